@@ -1,0 +1,203 @@
+//! Error types of the library.
+//!
+//! Policy: everything a user or a file can cause returns a `Result` with one of these errors; a
+//! panic means a broken internal contract (a bug) and nothing else. Every error carries what a
+//! user needs to find the problem: the file, the element id, the key, and for syntax errors the
+//! line and column.
+
+use std::fmt;
+
+/// The element of a model an error is about.
+#[derive(Clone, Debug, PartialEq, Eq)]
+#[non_exhaustive]
+pub enum Element {
+    /// A node, by id.
+    Node(String),
+    /// A link, by id.
+    Link(String),
+    /// The n-th entry (0-based) of `nodes`, when it has no usable id.
+    NodeEntry(usize),
+    /// The n-th entry (0-based) of `links`, when it has no usable id.
+    LinkEntry(usize),
+    /// A top-level table such as `units` or `hydraulics`.
+    Table(String),
+}
+
+impl fmt::Display for Element {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            Element::Node(id) => write!(f, "node '{}'", printable(id)),
+            Element::Link(id) => write!(f, "link '{}'", printable(id)),
+            Element::NodeEntry(i) => write!(f, "nodes entry #{}", i + 1),
+            Element::LinkEntry(i) => write!(f, "links entry #{}", i + 1),
+            Element::Table(name) => write!(f, "[{name}]"),
+        }
+    }
+}
+
+/// Escapes control characters so that an id can be shown safely on one line.
+pub fn printable(text: &str) -> String {
+    text.chars().flat_map(char::escape_debug).collect::<String>().replace("\\'", "'")
+}
+
+/// A model that cannot be read or is not valid.
+#[derive(Clone, Debug, PartialEq)]
+#[non_exhaustive]
+pub struct ModelError {
+    /// The file (or other source) the model came from, when known.
+    pub file: Option<String>,
+    /// Line and column (1-based) for syntax errors.
+    pub position: Option<(usize, usize)>,
+    /// The element concerned.
+    pub element: Option<Element>,
+    /// The key concerned.
+    pub key: Option<String>,
+    /// What is wrong, and where it helps, what would be right.
+    pub message: String,
+}
+
+impl ModelError {
+    /// An error with only a message.
+    pub fn new(message: impl Into<String>) -> Self {
+        ModelError { file: None, position: None, element: None, key: None, message: message.into() }
+    }
+
+    /// An error about one key of one element.
+    pub fn at(element: Option<Element>, key: Option<&str>, message: impl Into<String>) -> Self {
+        ModelError { element, key: key.map(str::to_owned), ..ModelError::new(message) }
+    }
+
+    /// Sets the file name (keeps a name already set).
+    pub fn in_file(mut self, file: impl Into<String>) -> Self {
+        if self.file.is_none() {
+            self.file = Some(file.into());
+        }
+        self
+    }
+
+    /// Sets the element when none is set yet.
+    pub fn for_element(mut self, element: Element) -> Self {
+        if self.element.is_none() {
+            self.element = Some(element);
+        }
+        self
+    }
+}
+
+impl fmt::Display for ModelError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        if let Some(file) = &self.file {
+            write!(f, "{file}")?;
+            if let Some((line, col)) = self.position {
+                write!(f, ":{line}:{col}")?;
+            }
+            write!(f, ": ")?;
+        } else if let Some((line, col)) = self.position {
+            write!(f, "line {line}, column {col}: ")?;
+        }
+        if let Some(element) = &self.element {
+            write!(f, "{element}: ")?;
+        }
+        if let Some(key) = &self.key {
+            write!(f, "key '{}': ", printable(key))?;
+        }
+        f.write_str(&self.message)
+    }
+}
+
+impl std::error::Error for ModelError {}
+
+/// One element with a value, named in a solver diagnosis (for example a node's last head change).
+#[derive(Clone, Debug, PartialEq)]
+pub struct Offender {
+    /// The element's id.
+    pub id: String,
+    /// The value reached (SI).
+    pub value: f64,
+}
+
+/// The solver could not produce a trustworthy answer.
+#[derive(Clone, Debug, PartialEq)]
+#[non_exhaustive]
+pub enum SolveError {
+    /// The model failed validation.
+    Model(ModelError),
+    /// The iteration limit was reached before the tolerances were met.
+    NotConverged {
+        /// Iterations done.
+        iterations: u32,
+        /// Largest head change of the last iteration, m.
+        head_change: f64,
+        /// Relative flow change of the last iteration.
+        flow_change: f64,
+        /// Largest energy-equation residual over open links, m.
+        energy_residual: f64,
+        /// Nodes with the largest last head change (m), worst first.
+        worst_nodes: Vec<Offender>,
+        /// Links with the largest last flow change (m³/s), worst first.
+        worst_links: Vec<Offender>,
+    },
+    /// The status of devices kept changing between the same states.
+    StatusCycle {
+        /// Iterations done.
+        iterations: u32,
+        /// Links whose status kept changing.
+        links: Vec<String>,
+    },
+    /// The linear system could not be factored (a pivot was not positive).
+    Numerical {
+        /// Iteration at which it happened.
+        iteration: u32,
+        /// What the factorization reported.
+        detail: String,
+    },
+}
+
+impl From<ModelError> for SolveError {
+    fn from(e: ModelError) -> Self {
+        SolveError::Model(e)
+    }
+}
+
+fn list(items: &[Offender], unit: &str) -> String {
+    items.iter().map(|o| format!("'{}' ({:.3e} {unit})", printable(&o.id), o.value)).collect::<Vec<_>>().join(", ")
+}
+
+impl fmt::Display for SolveError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            SolveError::Model(e) => e.fmt(f),
+            SolveError::NotConverged {
+                iterations,
+                head_change,
+                flow_change,
+                energy_residual,
+                worst_nodes,
+                worst_links,
+            } => {
+                write!(
+                    f,
+                    "the solver did not converge in {iterations} iterations: last largest head change {head_change:.3e} m, \
+                     relative flow change {flow_change:.3e}, largest energy residual {energy_residual:.3e} m"
+                )?;
+                if !worst_nodes.is_empty() {
+                    write!(f, "; nodes still moving most: {}", list(worst_nodes, "m"))?;
+                }
+                if !worst_links.is_empty() {
+                    write!(f, "; links still changing most: {}", list(worst_links, "m3/s"))?;
+                }
+                Ok(())
+            }
+            SolveError::StatusCycle { iterations, links } => write!(
+                f,
+                "device states kept cycling after {iterations} iterations; links involved: {}",
+                links.iter().map(|l| format!("'{}'", printable(l))).collect::<Vec<_>>().join(", ")
+            ),
+            SolveError::Numerical { iteration, detail } => {
+                write!(f, "the linear system could not be factored at iteration {iteration}: {detail}")
+            }
+        }
+    }
+}
+
+impl std::error::Error for SolveError {}

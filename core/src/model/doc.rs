@@ -1,0 +1,202 @@
+//! A model file's syntax tree, the same for TOML and JSON.
+//!
+//! The file is first parsed into a [`Value`] tree (syntax errors carry line and column), then
+//! [`super::file`] walks the tree and builds the model, so that every later error can name the
+//! element and the key. Parsing into our own tree also lets us reject what the generic parsers
+//! accept silently: duplicate keys in JSON objects, and nesting deeper than any model needs.
+
+use serde::de::{self, DeserializeSeed, MapAccess, SeqAccess, Visitor};
+use std::fmt;
+
+/// Deepest nesting of arrays and tables accepted; a model needs four levels.
+pub const MAX_DEPTH: usize = 32;
+
+/// One value of a model file.
+#[derive(Clone, Debug, PartialEq)]
+pub enum Value {
+    /// true or false
+    Bool(bool),
+    /// An integer that fits in i64.
+    Int(i64),
+    /// A floating-point number (may be NaN or infinite in TOML).
+    Float(f64),
+    /// A string.
+    Str(String),
+    /// An array.
+    Array(Vec<Value>),
+    /// A table or object, keys in file order.
+    Table(Vec<(String, Value)>),
+    /// A TOML date or time (never valid in a model).
+    Date,
+}
+
+impl Value {
+    /// What kind of value this is, for messages ("a string", "a table"...).
+    pub fn kind(&self) -> &'static str {
+        match self {
+            Value::Bool(_) => "a boolean",
+            Value::Int(_) | Value::Float(_) => "a number",
+            Value::Str(_) => "a string",
+            Value::Array(_) => "an array",
+            Value::Table(_) => "a table",
+            Value::Date => "a date",
+        }
+    }
+}
+
+const TOML_DATETIME_KEY: &str = "$__toml_private_datetime";
+
+struct Seed {
+    depth: usize,
+}
+
+impl<'de> DeserializeSeed<'de> for Seed {
+    type Value = Value;
+    fn deserialize<D: de::Deserializer<'de>>(self, deserializer: D) -> Result<Value, D::Error> {
+        deserializer.deserialize_any(self)
+    }
+}
+
+impl<'de> Visitor<'de> for Seed {
+    type Value = Value;
+
+    fn expecting(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str("a model value")
+    }
+
+    fn visit_bool<E>(self, v: bool) -> Result<Value, E> {
+        Ok(Value::Bool(v))
+    }
+    fn visit_i64<E>(self, v: i64) -> Result<Value, E> {
+        Ok(Value::Int(v))
+    }
+    fn visit_u64<E>(self, v: u64) -> Result<Value, E> {
+        Ok(i64::try_from(v).map(Value::Int).unwrap_or(Value::Float(v as f64)))
+    }
+    fn visit_f64<E>(self, v: f64) -> Result<Value, E> {
+        Ok(Value::Float(v))
+    }
+    fn visit_str<E>(self, v: &str) -> Result<Value, E> {
+        Ok(Value::Str(v.to_owned()))
+    }
+    fn visit_string<E>(self, v: String) -> Result<Value, E> {
+        Ok(Value::Str(v))
+    }
+    fn visit_unit<E: de::Error>(self) -> Result<Value, E> {
+        Err(E::custom("null is not a valid value in a model; leave the key out instead"))
+    }
+
+    fn visit_seq<A: SeqAccess<'de>>(self, mut seq: A) -> Result<Value, A::Error> {
+        if self.depth >= MAX_DEPTH {
+            return Err(de::Error::custom(format!("nesting deeper than {MAX_DEPTH} levels")));
+        }
+        let mut items = Vec::new();
+        while let Some(v) = seq.next_element_seed(Seed { depth: self.depth + 1 })? {
+            items.push(v);
+        }
+        Ok(Value::Array(items))
+    }
+
+    fn visit_map<A: MapAccess<'de>>(self, mut map: A) -> Result<Value, A::Error> {
+        if self.depth >= MAX_DEPTH {
+            return Err(de::Error::custom(format!("nesting deeper than {MAX_DEPTH} levels")));
+        }
+        let mut entries: Vec<(String, Value)> = Vec::new();
+        while let Some(key) = map.next_key::<String>()? {
+            if key == TOML_DATETIME_KEY {
+                let _: de::IgnoredAny = map.next_value()?;
+                return Ok(Value::Date);
+            }
+            if entries.iter().any(|(k, _)| *k == key) {
+                return Err(de::Error::custom(format!("duplicate key '{key}'")));
+            }
+            let value = map.next_value_seed(Seed { depth: self.depth + 1 })?;
+            entries.push((key, value));
+        }
+        Ok(Value::Table(entries))
+    }
+}
+
+/// A syntax error with its position (1-based line and column) when known.
+#[derive(Clone, Debug, PartialEq)]
+pub struct SyntaxError {
+    /// What the parser said.
+    pub message: String,
+    /// Line and column, 1-based.
+    pub position: Option<(usize, usize)>,
+}
+
+/// Line and column (1-based, columns in characters) of a byte offset.
+pub fn line_column(text: &str, offset: usize) -> (usize, usize) {
+    let offset = offset.min(text.len());
+    let before = &text[..text.floor_char_boundary_compat(offset)];
+    let line = before.matches('\n').count() + 1;
+    let col = before.rsplit('\n').next().map_or(0, |l| l.chars().count()) + 1;
+    (line, col)
+}
+
+trait FloorCharBoundary {
+    fn floor_char_boundary_compat(&self, index: usize) -> usize;
+}
+
+impl FloorCharBoundary for str {
+    fn floor_char_boundary_compat(&self, mut index: usize) -> usize {
+        while index > 0 && !self.is_char_boundary(index) {
+            index -= 1;
+        }
+        index
+    }
+}
+
+/// Parses TOML text into a value tree.
+pub fn parse_toml(text: &str) -> Result<Value, SyntaxError> {
+    let to_err = |e: toml::de::Error| SyntaxError {
+        message: e.message().trim().to_owned(),
+        position: e.span().map(|s| line_column(text, s.start)),
+    };
+    let de = toml::Deserializer::parse(text).map_err(to_err)?;
+    Seed { depth: 0 }.deserialize(de).map_err(to_err)
+}
+
+/// Parses JSON text into a value tree.
+pub fn parse_json(text: &str) -> Result<Value, SyntaxError> {
+    let to_err = |e: serde_json::Error| {
+        let message = e.to_string();
+        // serde_json appends " at line L column C"; the position is reported separately.
+        let message = match message.rfind(" at line ") {
+            Some(i) => message[..i].to_owned(),
+            None => message,
+        };
+        SyntaxError { message, position: (e.line() > 0).then(|| (e.line(), e.column())) }
+    };
+    let mut de = serde_json::Deserializer::from_str(text);
+    let value = Seed { depth: 0 }.deserialize(&mut de).map_err(to_err)?;
+    de.end().map_err(to_err)?;
+    Ok(value)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn json_duplicate_keys_are_rejected() {
+        let e = parse_json("{\"a\": 1,\n \"a\": 2}").unwrap_err();
+        assert!(e.message.contains("duplicate key 'a'"), "{e:?}");
+        assert_eq!(e.position.map(|p| p.0), Some(2));
+    }
+
+    #[test]
+    fn deep_nesting_is_rejected_not_overflowed() {
+        let text = format!("{}{}", "[".repeat(100_000), "]".repeat(100_000));
+        assert!(parse_json(&text).is_err());
+        let text = format!("a = {}{}", "[".repeat(100_000), "]".repeat(100_000));
+        assert!(parse_toml(&text).is_err());
+    }
+
+    #[test]
+    fn toml_positions() {
+        let e = parse_toml("a = 1\nb = = 2\n").unwrap_err();
+        assert_eq!(e.position.map(|p| p.0), Some(2), "{e:?}");
+    }
+}

@@ -1,0 +1,475 @@
+//! Reading a model file (format version 1) into a [`Model`].
+//!
+//! TOML and JSON files share one structure (see the README). Every key is checked: unknown keys
+//! are errors (with a suggestion when a known key is close), values must have the right type and
+//! range, and units are converted into SI here and nowhere else. Errors name the file, the
+//! element id and the key.
+
+use super::doc::{self, Value};
+use super::{HeadLossLaw, HydraulicOptions, Link, LinkKind, LinkStatus, Model, Node, NodeKind, Pipe, Tank, WaterSpec};
+use crate::error::{Element, ModelError};
+use crate::physics::WaterProperties;
+use crate::units::{suggest, DiameterUnit, FlowUnit, LengthUnit, PressureUnit, RoughnessUnit, UnitSystem};
+use std::path::Path;
+
+/// The syntax of a model file.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Format {
+    /// TOML (`.toml`).
+    Toml,
+    /// JSON (`.json`).
+    Json,
+}
+
+impl Format {
+    /// The format a file name's extension says, if any.
+    pub fn from_path(path: &Path) -> Option<Format> {
+        match path.extension()?.to_str()?.to_ascii_lowercase().as_str() {
+            "toml" => Some(Format::Toml),
+            "json" => Some(Format::Json),
+            _ => None,
+        }
+    }
+
+    /// Guesses from the text: JSON starts with `{`.
+    pub fn sniff(text: &str) -> Format {
+        if text.trim_start().starts_with('{') {
+            Format::Json
+        } else {
+            Format::Toml
+        }
+    }
+}
+
+/// Parses a model from text. `source` names the text in error messages (usually the file name).
+pub fn read_str(text: &str, format: Format, source: &str) -> Result<Model, ModelError> {
+    read_inner(text, format).map_err(|e| e.in_file(source))
+}
+
+/// Parses a model from bytes (checks that they are UTF-8 text first).
+pub fn read_bytes(bytes: &[u8], format: Format, source: &str) -> Result<Model, ModelError> {
+    match std::str::from_utf8(bytes) {
+        Ok(text) => read_str(text, format, source),
+        Err(e) => {
+            let (line, col) = doc::line_column(&String::from_utf8_lossy(&bytes[..e.valid_up_to()]), usize::MAX);
+            Err(ModelError {
+                position: Some((line, col)),
+                ..ModelError::new("the file is not UTF-8 text (is it a binary file?)")
+            }
+            .in_file(source))
+        }
+    }
+}
+
+const TOP_KEYS: &[&str] = &["title", "units", "hydraulics", "nodes", "links"];
+const UNIT_KEYS: &[&str] = &["length", "diameter", "flow", "pressure", "roughness"];
+const HYDRAULIC_KEYS: &[&str] =
+    &["headloss", "kinematic_viscosity", "water_temperature", "max_iterations", "head_tolerance", "flow_tolerance"];
+const NODE_KEYS: &[(&str, &[&str])] = &[
+    ("junction", &["id", "kind", "elevation", "demand", "x", "y", "zone"]),
+    ("reservoir", &["id", "kind", "head", "elevation", "x", "y", "zone"]),
+    ("tank", &["id", "kind", "elevation", "level", "min_level", "max_level", "diameter", "x", "y", "zone"]),
+];
+const LINK_KEYS: &[(&str, &[&str])] = &[(
+    "pipe",
+    &["id", "kind", "from", "to", "length", "diameter", "roughness", "minor_loss", "status", "check_valve"],
+)];
+
+fn read_inner(text: &str, format: Format) -> Result<Model, ModelError> {
+    if text.trim().is_empty() {
+        return Err(ModelError::new("the file is empty; a model needs at least [[nodes]] and [[links]]"));
+    }
+    let tree = match format {
+        Format::Toml => doc::parse_toml(text),
+        Format::Json => doc::parse_json(text),
+    }
+    .map_err(|e| ModelError {
+        position: e.position,
+        ..ModelError::new(format!(
+            "{} syntax error: {}",
+            match format {
+                Format::Toml => "TOML",
+                Format::Json => "JSON",
+            },
+            e.message
+        ))
+    })?;
+    let Value::Table(entries) = tree else {
+        return Err(ModelError::new(format!("the model must be a table of keys, found {}", tree.kind())));
+    };
+    let mut top = Fields::new(None, entries);
+    let title = top.string("title")?;
+    let units = match top.take("units") {
+        Some(v) => read_units(v)?,
+        None => UnitSystem::default(),
+    };
+    let options = match top.take("hydraulics") {
+        Some(v) => read_hydraulics(v, &units)?,
+        None => HydraulicOptions::default(),
+    };
+    let nodes = top.array("nodes")?;
+    let links = top.array("links")?;
+    top.finish(TOP_KEYS)?;
+
+    let mut model = Model::new(units, options);
+    model.title = title;
+    for (i, v) in nodes.into_iter().enumerate() {
+        let node = read_node(i, v, &units)?;
+        model.add_node(node)?;
+    }
+    for (i, v) in links.into_iter().enumerate() {
+        let link = read_link(i, v, &model)?;
+        model.add_link(link)?;
+    }
+    model.validate()?;
+    Ok(model)
+}
+
+/// The keys of one table being read, with what has been consumed.
+struct Fields {
+    element: Option<Element>,
+    entries: Vec<(String, Option<Value>)>,
+}
+
+impl Fields {
+    fn new(element: Option<Element>, entries: Vec<(String, Value)>) -> Self {
+        Fields { element, entries: entries.into_iter().map(|(k, v)| (k, Some(v))).collect() }
+    }
+
+    fn from_value(element: Element, value: Value) -> Result<Self, ModelError> {
+        match value {
+            Value::Table(entries) => Ok(Fields::new(Some(element), entries)),
+            other => Err(ModelError::at(Some(element), None, format!("must be a table, found {}", other.kind()))),
+        }
+    }
+
+    fn error(&self, key: &str, message: impl Into<String>) -> ModelError {
+        ModelError::at(self.element.clone(), Some(key), message)
+    }
+
+    fn take(&mut self, key: &str) -> Option<Value> {
+        self.entries.iter_mut().find(|(k, _)| k == key).and_then(|(_, v)| v.take())
+    }
+
+    fn number(&mut self, key: &str) -> Result<Option<f64>, ModelError> {
+        match self.take(key) {
+            None => Ok(None),
+            Some(Value::Int(i)) => Ok(Some(i as f64)),
+            Some(Value::Float(f)) => Ok(Some(f)),
+            Some(other) => Err(self.error(key, format!("must be a number, found {}", other.kind()))),
+        }
+    }
+
+    fn required_number(&mut self, key: &str) -> Result<f64, ModelError> {
+        self.number(key)?.ok_or_else(|| self.error(key, "is missing"))
+    }
+
+    fn integer(&mut self, key: &str) -> Result<Option<i64>, ModelError> {
+        match self.take(key) {
+            None => Ok(None),
+            Some(Value::Int(i)) => Ok(Some(i)),
+            Some(other) => Err(self.error(key, format!("must be a whole number, found {}", other.kind()))),
+        }
+    }
+
+    fn string(&mut self, key: &str) -> Result<Option<String>, ModelError> {
+        match self.take(key) {
+            None => Ok(None),
+            Some(Value::Str(s)) => Ok(Some(s)),
+            Some(other) => Err(self.error(key, format!("must be a string, found {}", other.kind()))),
+        }
+    }
+
+    fn boolean(&mut self, key: &str) -> Result<Option<bool>, ModelError> {
+        match self.take(key) {
+            None => Ok(None),
+            Some(Value::Bool(b)) => Ok(Some(b)),
+            Some(other) => Err(self.error(key, format!("must be true or false, found {}", other.kind()))),
+        }
+    }
+
+    fn array(&mut self, key: &str) -> Result<Vec<Value>, ModelError> {
+        match self.take(key) {
+            None => Ok(Vec::new()),
+            Some(Value::Array(items)) => Ok(items),
+            Some(other) => Err(self.error(key, format!("must be an array of tables, found {}", other.kind()))),
+        }
+    }
+
+    /// A unit name, checked against the choices.
+    fn unit<U: Copy>(
+        &mut self,
+        key: &str,
+        parse: fn(&str) -> Option<U>,
+        labels: &[&'static str],
+    ) -> Result<Option<U>, ModelError> {
+        let Some(text) = self.string(key)? else { return Ok(None) };
+        if let Some(u) = parse(&text) {
+            return Ok(Some(u));
+        }
+        let choices = labels.iter().map(|l| format!("\"{l}\"")).collect::<Vec<_>>().join(", ");
+        let hint =
+            suggest(&text, labels.iter().copied()).map(|s| format!(" (did you mean \"{s}\"?)")).unwrap_or_default();
+        Err(self.error(
+            key,
+            format!("unknown unit \"{}\"{hint}; expected one of {choices}", crate::error::printable(&text)),
+        ))
+    }
+
+    /// Errors on any key not consumed; `known` are the keys valid here, for suggestions.
+    fn finish(self, known: &[&str]) -> Result<(), ModelError> {
+        self.finish_with(known, &[], "")
+    }
+
+    /// Like [`Fields::finish`], but keys in `elsewhere` get a message saying they belong to
+    /// another kind of element (`what` names this kind).
+    fn finish_with(self, known: &[&str], elsewhere: &[&str], what: &str) -> Result<(), ModelError> {
+        for (key, value) in &self.entries {
+            if value.is_none() {
+                continue;
+            }
+            let message = if known.contains(&key.as_str()) {
+                // A known key that was not consumed: it conflicts with another key.
+                "cannot be combined with the other keys given here".to_owned()
+            } else if elsewhere.contains(&key.as_str()) {
+                format!("does not apply to a {what}")
+            } else {
+                let hint =
+                    suggest(key, known.iter().copied()).map(|s| format!(" (did you mean '{s}'?)")).unwrap_or_default();
+                format!("is not a known key{hint}; known keys here: {}", known.join(", "))
+            };
+            return Err(ModelError::at(self.element.clone(), Some(key), message));
+        }
+        Ok(())
+    }
+}
+
+fn labels<T: Copy>(all: &[T], label: fn(T) -> &'static str) -> Vec<&'static str> {
+    all.iter().map(|u| label(*u)).collect()
+}
+
+fn read_units(value: Value) -> Result<UnitSystem, ModelError> {
+    let mut f = Fields::from_value(Element::Table("units".into()), value)?;
+    let d = UnitSystem::default();
+    let units = UnitSystem {
+        length: f.unit("length", LengthUnit::parse, &labels(LengthUnit::ALL, LengthUnit::label))?.unwrap_or(d.length),
+        diameter: f
+            .unit("diameter", DiameterUnit::parse, &labels(DiameterUnit::ALL, DiameterUnit::label))?
+            .unwrap_or(d.diameter),
+        flow: f.unit("flow", FlowUnit::parse, &labels(FlowUnit::ALL, FlowUnit::label))?.unwrap_or(d.flow),
+        pressure: f
+            .unit("pressure", PressureUnit::parse, &labels(PressureUnit::ALL, PressureUnit::label))?
+            .unwrap_or(d.pressure),
+        roughness: f
+            .unit("roughness", RoughnessUnit::parse, &labels(RoughnessUnit::ALL, RoughnessUnit::label))?
+            .unwrap_or(d.roughness),
+    };
+    f.finish(UNIT_KEYS)?;
+    Ok(units)
+}
+
+fn read_hydraulics(value: Value, units: &UnitSystem) -> Result<HydraulicOptions, ModelError> {
+    let el = Element::Table("hydraulics".into());
+    let mut f = Fields::from_value(el.clone(), value)?;
+    let mut o = HydraulicOptions::default();
+    if let Some(law) = f.string("headloss")? {
+        o.headloss = match law.as_str() {
+            "hazen-williams" => HeadLossLaw::HazenWilliams,
+            "darcy-weisbach" => HeadLossLaw::DarcyWeisbach,
+            other => {
+                let hint = suggest(other, ["hazen-williams", "darcy-weisbach"])
+                    .map(|s| format!(" (did you mean \"{s}\"?)"))
+                    .unwrap_or_default();
+                return Err(f.error(
+                    "headloss",
+                    format!(
+                        "unknown law \"{}\"{hint}; expected \"hazen-williams\" or \"darcy-weisbach\"",
+                        crate::error::printable(other)
+                    ),
+                ));
+            }
+        };
+    }
+    let nu = f.number("kinematic_viscosity")?;
+    let temp = f.number("water_temperature")?;
+    o.water = match (nu, temp) {
+        (Some(_), Some(_)) => {
+            return Err(f.error("water_temperature", "give either kinematic_viscosity or water_temperature, not both"))
+        }
+        (Some(nu), None) => {
+            let nu = super::check_value(&el, "kinematic_viscosity", nu, super::Rule::Positive)?;
+            if !(1e-7..=1e-4).contains(&nu) {
+                return Err(f.error(
+                    "kinematic_viscosity",
+                    format!("{nu} m2/s is not a plausible viscosity for water (about 1.0e-6 m2/s at 20 deg C); the value is in m2/s"),
+                ));
+            }
+            WaterSpec::KinematicViscosity(nu)
+        }
+        (None, Some(t)) => {
+            let t = super::check_value(&el, "water_temperature", t, super::Rule::Finite)?;
+            if !(WaterProperties::MIN_CELSIUS..=WaterProperties::MAX_CELSIUS).contains(&t) {
+                return Err(f.error(
+                    "water_temperature",
+                    format!(
+                        "must be between {} and {} deg C (liquid water at atmospheric pressure), found {t}",
+                        WaterProperties::MIN_CELSIUS,
+                        WaterProperties::MAX_CELSIUS
+                    ),
+                ));
+            }
+            WaterSpec::Temperature(t)
+        }
+        (None, None) => o.water,
+    };
+    if let Some(n) = f.integer("max_iterations")? {
+        if !(1..=100_000).contains(&n) {
+            return Err(f.error("max_iterations", format!("must be between 1 and 100000, found {n}")));
+        }
+        o.max_iterations = n as u32;
+    }
+    if let Some(t) = f.number("head_tolerance")? {
+        o.head_tolerance = units.length.to_si(super::check_value(&el, "head_tolerance", t, super::Rule::Positive)?);
+    }
+    if let Some(t) = f.number("flow_tolerance")? {
+        o.flow_tolerance = super::check_value(&el, "flow_tolerance", t, super::Rule::Positive)?;
+    }
+    f.finish(HYDRAULIC_KEYS)?;
+    Ok(o)
+}
+
+fn keys_for(table: &[(&str, &'static [&'static str])], kind: &str) -> Option<&'static [&'static str]> {
+    table.iter().find(|(k, _)| *k == kind).map(|(_, keys)| *keys)
+}
+
+fn all_keys(table: &[(&str, &'static [&'static str])]) -> Vec<&'static str> {
+    let mut keys: Vec<&str> = table.iter().flat_map(|(_, k)| k.iter().copied()).collect();
+    keys.sort_unstable();
+    keys.dedup();
+    keys
+}
+
+/// Reads `id` and `kind` of a node or link entry; returns the element, the fields and the kind.
+fn identify(
+    value: Value,
+    entry: Element,
+    make: fn(String) -> Element,
+    kinds: &[(&str, &'static [&'static str])],
+    default_kind: &'static str,
+) -> Result<(Fields, &'static [&'static str], String), ModelError> {
+    let mut f = Fields::from_value(entry.clone(), value)?;
+    let id = match f.take("id") {
+        Some(Value::Str(s)) => s,
+        Some(Value::Int(i)) => {
+            return Err(ModelError::at(Some(entry), Some("id"), format!("must be a string; write id = \"{i}\"")));
+        }
+        Some(other) => {
+            return Err(ModelError::at(Some(entry), Some("id"), format!("must be a string, found {}", other.kind())))
+        }
+        None => return Err(ModelError::at(Some(entry), Some("id"), "is missing")),
+    };
+    super::check_id(&id, entry)?;
+    f.element = Some(make(id));
+    let kind = f.string("kind")?.unwrap_or_else(|| default_kind.to_owned());
+    let Some(keys) = keys_for(kinds, &kind) else {
+        let names: Vec<&str> = kinds.iter().map(|(k, _)| *k).collect();
+        let hint =
+            suggest(&kind, names.iter().copied()).map(|s| format!(" (did you mean \"{s}\"?)")).unwrap_or_default();
+        return Err(f.error(
+            "kind",
+            format!("unknown kind \"{}\"{hint}; expected one of {}", crate::error::printable(&kind), names.join(", ")),
+        ));
+    };
+    Ok((f, keys, kind))
+}
+
+fn read_node(index: usize, value: Value, units: &UnitSystem) -> Result<Node, ModelError> {
+    let (mut f, keys, kind) = identify(value, Element::NodeEntry(index), Element::Node, NODE_KEYS, "junction")?;
+    let len = |v: f64| units.length.to_si(v);
+    let coordinates = match (f.number("x")?, f.number("y")?) {
+        (Some(x), Some(y)) => Some((x, y)),
+        (None, None) => None,
+        (Some(_), None) => return Err(f.error("y", "is missing (x is given)")),
+        (None, Some(_)) => return Err(f.error("x", "is missing (y is given)")),
+    };
+    let zone = f.string("zone")?;
+    let (elevation, kind) = match kind.as_str() {
+        "junction" => {
+            let elevation = len(f.required_number("elevation")?);
+            let demand = units.flow.to_si(f.number("demand")?.unwrap_or(0.0));
+            (elevation, NodeKind::Junction { demand })
+        }
+        "reservoir" => {
+            let head = len(f.required_number("head")?);
+            let elevation = f.number("elevation")?.map(len).unwrap_or(head);
+            (elevation, NodeKind::Reservoir { head })
+        }
+        _ => {
+            let elevation = len(f.required_number("elevation")?);
+            let level = len(f.required_number("level")?);
+            let tank = Tank {
+                level,
+                min_level: len(f.number("min_level")?.unwrap_or(0.0)),
+                max_level: f.number("max_level")?.map(len),
+                diameter: f.number("diameter")?.map(len),
+            };
+            (elevation, NodeKind::Tank(tank))
+        }
+    };
+    let element = f.element.clone();
+    let Some(Element::Node(id)) = element else { unreachable!("identify sets the element") };
+    f.finish_with(keys, &all_keys(NODE_KEYS), kind.label())?;
+    Ok(Node { id, elevation, coordinates, zone, kind })
+}
+
+fn read_link(index: usize, value: Value, model: &Model) -> Result<Link, ModelError> {
+    let (mut f, keys, _kind) = identify(value, Element::LinkEntry(index), Element::Link, LINK_KEYS, "pipe")?;
+    let units = &model.units;
+    let end = |key: &str, f: &mut Fields| -> Result<usize, ModelError> {
+        let id = f.string(key)?.ok_or_else(|| f.error(key, "is missing"))?;
+        model.node_index(&id).ok_or_else(|| {
+            let hint = suggest(&id, model.nodes().iter().map(|n| n.id.as_str()))
+                .map(|s| format!(" (did you mean '{s}'?)"))
+                .unwrap_or_default();
+            f.error(key, format!("refers to node '{}', which is not defined{hint}", crate::error::printable(&id)))
+        })
+    };
+    let from = end("from", &mut f)?;
+    let to = end("to", &mut f)?;
+    let status = match f.string("status")?.as_deref() {
+        None | Some("open") => LinkStatus::Open,
+        Some("closed") => LinkStatus::Closed,
+        Some(other) => {
+            return Err(f.error(
+                "status",
+                format!("unknown status \"{}\"; expected \"open\" or \"closed\"", crate::error::printable(other)),
+            ))
+        }
+    };
+    let roughness = f.required_number("roughness")?;
+    let pipe = Pipe {
+        length: units.length.to_si(f.required_number("length")?),
+        diameter: units.diameter.to_si(f.required_number("diameter")?),
+        roughness: match model.options.headloss {
+            HeadLossLaw::HazenWilliams => roughness,
+            HeadLossLaw::DarcyWeisbach => units.roughness.to_si(roughness),
+        },
+        minor_loss: f.number("minor_loss")?.unwrap_or(0.0),
+        check_valve: f.boolean("check_valve")?.unwrap_or(false),
+    };
+    if model.options.headloss == HeadLossLaw::HazenWilliams
+        && roughness.is_finite()
+        && roughness > 0.0
+        && roughness < 1.0
+    {
+        return Err(f.error(
+            "roughness",
+            format!(
+                "{roughness} is an absolute roughness, but this model uses Hazen-Williams, whose roughness is the coefficient C (typically 80 to 150)"
+            ),
+        ));
+    }
+    let Some(Element::Link(id)) = f.element.clone() else { unreachable!("identify sets the element") };
+    f.finish_with(keys, &all_keys(LINK_KEYS), "pipe")?;
+    Ok(Link { id, from, to, status, kind: LinkKind::Pipe(pipe) })
+}

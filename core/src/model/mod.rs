@@ -1,0 +1,540 @@
+//! The network model: nodes, links, options, in SI units.
+//!
+//! A [`Model`] is built either by [`file::read_str`] from a model file (TOML or JSON, see the
+//! README for the format) or element by element with [`Model::add_node`] and
+//! [`Model::add_link`]. Every value is checked as it enters; [`Model::validate`] checks what
+//! only the whole network can say (a fixed head to anchor the heads). Values are SI inside:
+//! metres, m³/s, seconds. The [`UnitSystem`] only remembers how the user wrote them, so that
+//! results can be written back the same way.
+//!
+//! Adding a new kind of element: add a variant to [`NodeKind`] or [`LinkKind`] (both are
+//! `#[non_exhaustive]`), read it in [`file`], give it a head-loss law in `solve::links`, and
+//! write it in the reports. DEVELOPERS.md walks through the steps.
+
+pub mod doc;
+pub mod file;
+pub mod write;
+
+use crate::error::{Element, ModelError};
+use crate::physics::WaterProperties;
+use crate::units::UnitSystem;
+use std::collections::HashMap;
+
+/// Friction law used for every pipe of a model.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Default)]
+pub enum HeadLossLaw {
+    /// Hazen–Williams; pipe roughness is the dimensionless coefficient C.
+    #[default]
+    HazenWilliams,
+    /// Darcy–Weisbach with Colebrook–White; pipe roughness is the absolute roughness.
+    DarcyWeisbach,
+}
+
+impl HeadLossLaw {
+    /// The name used in model files.
+    pub fn label(self) -> &'static str {
+        match self {
+            HeadLossLaw::HazenWilliams => "hazen-williams",
+            HeadLossLaw::DarcyWeisbach => "darcy-weisbach",
+        }
+    }
+}
+
+/// How the water's viscosity is specified.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub enum WaterSpec {
+    /// Properties from the water temperature, °C (IAPWS).
+    Temperature(f64),
+    /// A given kinematic viscosity (m²/s); density is taken at the default 20 °C.
+    KinematicViscosity(f64),
+}
+
+/// Solver-related options of a model (`[hydraulics]`).
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct HydraulicOptions {
+    /// Friction law for pipes.
+    pub headloss: HeadLossLaw,
+    /// Water properties.
+    pub water: WaterSpec,
+    /// Iteration limit of one snapshot solve.
+    pub max_iterations: u32,
+    /// Largest head change between iterations to accept convergence, m.
+    pub head_tolerance: f64,
+    /// Largest relative flow change (sum |ΔQ| / sum |Q|) to accept convergence.
+    pub flow_tolerance: f64,
+}
+
+impl HydraulicOptions {
+    /// Default iteration limit.
+    pub const MAX_ITERATIONS: u32 = 200;
+    /// Default head tolerance, m.
+    pub const HEAD_TOLERANCE: f64 = 1e-4;
+    /// Default relative flow tolerance.
+    pub const FLOW_TOLERANCE: f64 = 1e-6;
+
+    /// The water's density and viscosity.
+    pub fn water_properties(&self) -> WaterProperties {
+        match self.water {
+            WaterSpec::Temperature(t) => WaterProperties::at_celsius(t),
+            WaterSpec::KinematicViscosity(nu) => {
+                let base = WaterProperties::at_celsius(WaterProperties::DEFAULT_CELSIUS);
+                WaterProperties { kinematic_viscosity: nu, dynamic_viscosity: nu * base.density, ..base }
+            }
+        }
+    }
+}
+
+impl Default for HydraulicOptions {
+    fn default() -> Self {
+        HydraulicOptions {
+            headloss: HeadLossLaw::default(),
+            water: WaterSpec::Temperature(WaterProperties::DEFAULT_CELSIUS),
+            max_iterations: Self::MAX_ITERATIONS,
+            head_tolerance: Self::HEAD_TOLERANCE,
+            flow_tolerance: Self::FLOW_TOLERANCE,
+        }
+    }
+}
+
+/// A storage tank. In a snapshot its head is fixed at `elevation + level`.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Tank {
+    /// Water level above the tank floor, m.
+    pub level: f64,
+    /// Lowest allowed level, m.
+    pub min_level: f64,
+    /// Highest allowed level, m (`None`: not given).
+    pub max_level: Option<f64>,
+    /// Diameter of a cylindrical tank, m (`None`: not given).
+    pub diameter: Option<f64>,
+}
+
+/// What a node is.
+#[derive(Clone, Debug, PartialEq)]
+#[non_exhaustive]
+pub enum NodeKind {
+    /// A junction with a demand (m³/s; negative is an inflow).
+    Junction {
+        /// Demand, m³/s.
+        demand: f64,
+    },
+    /// A fixed-head source.
+    Reservoir {
+        /// Total head, m.
+        head: f64,
+    },
+    /// A tank, fixed head in a snapshot.
+    Tank(Tank),
+}
+
+impl NodeKind {
+    /// The name used in model files.
+    pub fn label(&self) -> &'static str {
+        match self {
+            NodeKind::Junction { .. } => "junction",
+            NodeKind::Reservoir { .. } => "reservoir",
+            NodeKind::Tank(_) => "tank",
+        }
+    }
+}
+
+/// A node of the network.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Node {
+    /// Unique id among nodes.
+    pub id: String,
+    /// Ground (junction), floor (tank) or water-surface (reservoir, by default) elevation, m.
+    pub elevation: f64,
+    /// Optional map coordinates (any consistent unit).
+    pub coordinates: Option<(f64, f64)>,
+    /// Zone tag, for grouping in reports and checks.
+    pub zone: Option<String>,
+    /// What the node is.
+    pub kind: NodeKind,
+}
+
+impl Node {
+    /// A junction.
+    pub fn junction(id: impl Into<String>, elevation: f64, demand: f64) -> Self {
+        Node { id: id.into(), elevation, coordinates: None, zone: None, kind: NodeKind::Junction { demand } }
+    }
+
+    /// A reservoir whose elevation is its head.
+    pub fn reservoir(id: impl Into<String>, head: f64) -> Self {
+        Node { id: id.into(), elevation: head, coordinates: None, zone: None, kind: NodeKind::Reservoir { head } }
+    }
+
+    /// The fixed head of a reservoir or tank in a snapshot; `None` for a junction.
+    pub fn fixed_head(&self) -> Option<f64> {
+        match &self.kind {
+            NodeKind::Junction { .. } => None,
+            NodeKind::Reservoir { head } => Some(*head),
+            NodeKind::Tank(t) => Some(self.elevation + t.level),
+        }
+    }
+
+    /// The demand of a junction, m³/s (zero for fixed-head nodes).
+    pub fn demand(&self) -> f64 {
+        match self.kind {
+            NodeKind::Junction { demand } => demand,
+            _ => 0.0,
+        }
+    }
+
+    fn element(&self) -> Element {
+        Element::Node(self.id.clone())
+    }
+}
+
+/// Open or closed, as set by the user.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Default)]
+pub enum LinkStatus {
+    /// In service.
+    #[default]
+    Open,
+    /// Out of service: carries no flow.
+    Closed,
+}
+
+impl LinkStatus {
+    /// The name used in model files and results.
+    pub fn label(self) -> &'static str {
+        match self {
+            LinkStatus::Open => "open",
+            LinkStatus::Closed => "closed",
+        }
+    }
+}
+
+/// A pipe.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Pipe {
+    /// Length, m.
+    pub length: f64,
+    /// Internal diameter, m.
+    pub diameter: f64,
+    /// Hazen–Williams C, or Darcy–Weisbach absolute roughness in m.
+    pub roughness: f64,
+    /// Sum of minor-loss coefficients K (h = K V²/2g).
+    pub minor_loss: f64,
+    /// Flow only from `from` to `to`.
+    pub check_valve: bool,
+}
+
+/// What a link is.
+#[derive(Clone, Debug, PartialEq)]
+#[non_exhaustive]
+pub enum LinkKind {
+    /// A pipe.
+    Pipe(Pipe),
+}
+
+impl LinkKind {
+    /// The name used in model files.
+    pub fn label(&self) -> &'static str {
+        match self {
+            LinkKind::Pipe(_) => "pipe",
+        }
+    }
+}
+
+/// A link between two nodes. Flow is positive from `from` to `to`.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Link {
+    /// Unique id among links.
+    pub id: String,
+    /// Index of the upstream node (for sign conventions).
+    pub from: usize,
+    /// Index of the downstream node.
+    pub to: usize,
+    /// User-set status.
+    pub status: LinkStatus,
+    /// What the link is.
+    pub kind: LinkKind,
+}
+
+impl Link {
+    /// The pipe data, when the link is a pipe.
+    pub fn as_pipe(&self) -> Option<&Pipe> {
+        match &self.kind {
+            LinkKind::Pipe(p) => Some(p),
+        }
+    }
+
+    /// The flow diameter used for velocities, m.
+    pub fn diameter(&self) -> f64 {
+        match &self.kind {
+            LinkKind::Pipe(p) => p.diameter,
+        }
+    }
+
+    fn element(&self) -> Element {
+        Element::Link(self.id.clone())
+    }
+}
+
+/// A water-distribution network and its options, SI inside.
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct Model {
+    /// Optional title.
+    pub title: Option<String>,
+    /// The units the user writes and reads values in.
+    pub units: UnitSystem,
+    /// Solver options.
+    pub options: HydraulicOptions,
+    nodes: Vec<Node>,
+    links: Vec<Link>,
+    node_index: HashMap<String, usize>,
+    link_index: HashMap<String, usize>,
+}
+
+/// Checks that a value is a finite number, and optionally strictly positive or non-negative.
+pub(crate) fn check_value(element: &Element, key: &str, value: f64, rule: Rule) -> Result<f64, ModelError> {
+    let problem = if value.is_nan() {
+        Some("must be a number, found NaN".to_owned())
+    } else if value.is_infinite() {
+        Some(format!("must be finite, found {value}"))
+    } else {
+        match rule {
+            Rule::Finite => None,
+            Rule::Positive if value <= 0.0 => Some(format!("must be greater than zero, found {value}")),
+            Rule::NonNegative if value < 0.0 => Some(format!("must not be negative, found {value}")),
+            _ => None,
+        }
+    };
+    match problem {
+        Some(message) => Err(ModelError::at(Some(element.clone()), Some(key), message)),
+        None => Ok(value),
+    }
+}
+
+/// Value rules for [`check_value`].
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub(crate) enum Rule {
+    Finite,
+    Positive,
+    NonNegative,
+}
+
+fn check_id(id: &str, element: Element) -> Result<(), ModelError> {
+    if id.trim().is_empty() {
+        return Err(ModelError::at(Some(element), Some("id"), "must not be empty"));
+    }
+    if id.chars().any(char::is_control) {
+        return Err(ModelError::at(Some(element), Some("id"), "must not contain control characters"));
+    }
+    Ok(())
+}
+
+impl Model {
+    /// An empty model with the given units and options.
+    pub fn new(units: UnitSystem, options: HydraulicOptions) -> Self {
+        Model { units, options, ..Model::default() }
+    }
+
+    /// All nodes, in the order they were added.
+    pub fn nodes(&self) -> &[Node] {
+        &self.nodes
+    }
+
+    /// All links, in the order they were added.
+    pub fn links(&self) -> &[Link] {
+        &self.links
+    }
+
+    /// Index of a node by id.
+    pub fn node_index(&self, id: &str) -> Option<usize> {
+        self.node_index.get(id).copied()
+    }
+
+    /// Index of a link by id.
+    pub fn link_index(&self, id: &str) -> Option<usize> {
+        self.link_index.get(id).copied()
+    }
+
+    /// Checks one node's values (used when adding and after changes).
+    fn check_node(node: &Node) -> Result<(), ModelError> {
+        let el = node.element();
+        check_id(&node.id, el.clone())?;
+        check_value(&el, "elevation", node.elevation, Rule::Finite)?;
+        if let Some((x, y)) = node.coordinates {
+            check_value(&el, "x", x, Rule::Finite)?;
+            check_value(&el, "y", y, Rule::Finite)?;
+        }
+        match &node.kind {
+            NodeKind::Junction { demand } => {
+                check_value(&el, "demand", *demand, Rule::Finite)?;
+            }
+            NodeKind::Reservoir { head } => {
+                check_value(&el, "head", *head, Rule::Finite)?;
+            }
+            NodeKind::Tank(t) => {
+                check_value(&el, "level", t.level, Rule::NonNegative)?;
+                check_value(&el, "min_level", t.min_level, Rule::NonNegative)?;
+                if let Some(d) = t.diameter {
+                    check_value(&el, "diameter", d, Rule::Positive)?;
+                }
+                if t.level < t.min_level {
+                    return Err(ModelError::at(
+                        Some(el),
+                        Some("level"),
+                        format!("is below min_level ({} < {} m)", t.level, t.min_level),
+                    ));
+                }
+                if let Some(max) = t.max_level {
+                    check_value(&el, "max_level", max, Rule::Positive)?;
+                    if max < t.min_level {
+                        return Err(ModelError::at(Some(el), Some("max_level"), "is below min_level"));
+                    }
+                    if t.level > max {
+                        return Err(ModelError::at(
+                            Some(el),
+                            Some("level"),
+                            format!("is above max_level ({} > {} m)", t.level, max),
+                        ));
+                    }
+                }
+            }
+        }
+        Ok(())
+    }
+
+    fn check_link(&self, link: &Link) -> Result<(), ModelError> {
+        let el = link.element();
+        check_id(&link.id, el.clone())?;
+        if link.from >= self.nodes.len() || link.to >= self.nodes.len() {
+            return Err(ModelError::at(Some(el), Some("from"), "refers to a node index that does not exist"));
+        }
+        if link.from == link.to {
+            return Err(ModelError::at(
+                Some(el),
+                Some("to"),
+                format!("links node '{}' to itself; a link must join two different nodes", self.nodes[link.to].id),
+            ));
+        }
+        match &link.kind {
+            LinkKind::Pipe(p) => {
+                check_value(&el, "length", p.length, Rule::Positive)?;
+                check_value(&el, "diameter", p.diameter, Rule::Positive)?;
+                let hint = match self.options.headloss {
+                    HeadLossLaw::HazenWilliams => "",
+                    HeadLossLaw::DarcyWeisbach => {
+                        " (for a hydraulically smooth pipe give a small absolute roughness, e.g. 0.0015 mm)"
+                    }
+                };
+                check_value(&el, "roughness", p.roughness, Rule::Positive).map_err(|mut e| {
+                    e.message.push_str(hint);
+                    e
+                })?;
+                check_value(&el, "minor_loss", p.minor_loss, Rule::NonNegative)?;
+            }
+        }
+        Ok(())
+    }
+
+    /// Adds a node after checking its values; returns its index.
+    pub fn add_node(&mut self, node: Node) -> Result<usize, ModelError> {
+        Self::check_node(&node)?;
+        if self.node_index.contains_key(&node.id) {
+            return Err(ModelError::at(
+                Some(node.element()),
+                Some("id"),
+                "is used by another node; node ids must be unique",
+            ));
+        }
+        let index = self.nodes.len();
+        self.node_index.insert(node.id.clone(), index);
+        self.nodes.push(node);
+        Ok(index)
+    }
+
+    /// Adds a link after checking its values and its end nodes; returns its index.
+    pub fn add_link(&mut self, link: Link) -> Result<usize, ModelError> {
+        self.check_link(&link)?;
+        if self.link_index.contains_key(&link.id) {
+            return Err(ModelError::at(
+                Some(link.element()),
+                Some("id"),
+                "is used by another link; link ids must be unique",
+            ));
+        }
+        let index = self.links.len();
+        self.link_index.insert(link.id.clone(), index);
+        self.links.push(link);
+        Ok(index)
+    }
+
+    /// Replaces a node's data (same id) after checking it.
+    pub fn replace_node(&mut self, index: usize, node: Node) -> Result<(), ModelError> {
+        let old = self.nodes.get(index).ok_or_else(|| ModelError::new(format!("no node at index {index}")))?;
+        if old.id != node.id {
+            return Err(ModelError::at(Some(old.element()), Some("id"), "cannot be changed"));
+        }
+        Self::check_node(&node)?;
+        self.nodes[index] = node;
+        Ok(())
+    }
+
+    /// Replaces a link's data (same id) after checking it.
+    pub fn replace_link(&mut self, index: usize, link: Link) -> Result<(), ModelError> {
+        let old = self.links.get(index).ok_or_else(|| ModelError::new(format!("no link at index {index}")))?;
+        if old.id != link.id {
+            return Err(ModelError::at(Some(old.element()), Some("id"), "cannot be changed"));
+        }
+        self.check_link(&link)?;
+        self.links[index] = link;
+        Ok(())
+    }
+
+    /// Sets a junction's demand (m³/s).
+    pub fn set_demand(&mut self, index: usize, demand: f64) -> Result<(), ModelError> {
+        let mut node =
+            self.nodes.get(index).cloned().ok_or_else(|| ModelError::new(format!("no node at index {index}")))?;
+        match &mut node.kind {
+            NodeKind::Junction { demand: d } => *d = demand,
+            _ => {
+                return Err(ModelError::at(
+                    Some(node.element()),
+                    Some("demand"),
+                    format!("only junctions have a demand; this node is a {}", node.kind.label()),
+                ))
+            }
+        }
+        self.replace_node(index, node)
+    }
+
+    /// Sets a link's status.
+    pub fn set_status(&mut self, index: usize, status: LinkStatus) -> Result<(), ModelError> {
+        let link = self.links.get_mut(index).ok_or_else(|| ModelError::new(format!("no link at index {index}")))?;
+        link.status = status;
+        Ok(())
+    }
+
+    /// Checks the whole network: at least one node with a fixed head and at least one junction.
+    pub fn validate(&self) -> Result<(), ModelError> {
+        if self.nodes.is_empty() {
+            return Err(ModelError::at(Some(Element::Table("nodes".into())), None, "the model has no nodes"));
+        }
+        if !self.nodes.iter().any(|n| n.fixed_head().is_some()) {
+            return Err(ModelError::at(
+                Some(Element::Table("nodes".into())),
+                Some("kind"),
+                "the model has no reservoir or tank: at least one node with a fixed head is needed to set the heads",
+            ));
+        }
+        if let WaterSpec::Temperature(t) = self.options.water {
+            if !(WaterProperties::MIN_CELSIUS..=WaterProperties::MAX_CELSIUS).contains(&t) {
+                return Err(ModelError::at(
+                    Some(Element::Table("hydraulics".into())),
+                    Some("water_temperature"),
+                    format!(
+                        "must be between {} and {} deg C, found {t}",
+                        WaterProperties::MIN_CELSIUS,
+                        WaterProperties::MAX_CELSIUS
+                    ),
+                ));
+            }
+        }
+        Ok(())
+    }
+}

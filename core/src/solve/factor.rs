@@ -1,0 +1,77 @@
+//! Phase 2, every Newton step: numeric Cholesky factorization of the refilled matrix and the two
+//! triangular solves, in buffers sized once.
+
+use super::pattern::{numeric_scratch, Pattern};
+use faer::dyn_stack::{MemBuffer, MemStack};
+use faer::linalg::cholesky::llt::factor::LltRegularization;
+use faer::sparse::linalg::cholesky::simplicial::{self, SimplicialLltRef};
+use faer::sparse::SparseColMatRef;
+use faer::{Conj, MatMut, Par};
+
+/// Numeric workspace for one pattern.
+pub struct Factor {
+    /// Matrix values, in the pattern's slot order (upper triangle, permuted).
+    pub values: Vec<f64>,
+    l_values: Vec<f64>,
+    mem: MemBuffer,
+}
+
+impl std::fmt::Debug for Factor {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_struct("Factor").field("values", &self.values.len()).field("l_values", &self.l_values.len()).finish()
+    }
+}
+
+/// The matrix was not positive definite: the pivot of this permuted unknown was not positive.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct NotPositive {
+    /// Permuted unknown index.
+    pub unknown: usize,
+}
+
+impl Factor {
+    /// Buffers for `pattern`.
+    pub fn new(pattern: &Pattern) -> Self {
+        Factor {
+            values: vec![0.0; pattern.nnz()],
+            l_values: vec![0.0; pattern.factor_nnz()],
+            mem: MemBuffer::new(numeric_scratch(pattern.n)),
+        }
+    }
+
+    /// Factors the current `values` and solves `A x = rhs` in place.
+    pub fn factor_and_solve(&mut self, pattern: &Pattern, rhs: &mut [f64]) -> Result<(), NotPositive> {
+        self.factor(pattern)?;
+        self.solve(pattern, rhs);
+        Ok(())
+    }
+
+    /// Numeric factorization of `values`.
+    pub fn factor(&mut self, pattern: &Pattern) -> Result<(), NotPositive> {
+        if pattern.n == 0 {
+            return Ok(());
+        }
+        let a = SparseColMatRef::new(pattern.matrix(), &self.values);
+        simplicial::factorize_simplicial_numeric_llt(
+            &mut self.l_values,
+            a,
+            LltRegularization::default(),
+            &pattern.symbolic,
+            MemStack::new(&mut self.mem),
+        )
+        .map(|_| ())
+        .map_err(|e| match e {
+            faer::linalg::cholesky::llt::factor::LltError::NonPositivePivot { index } => NotPositive { unknown: index },
+        })
+    }
+
+    /// Solves with the current factor.
+    pub fn solve(&mut self, pattern: &Pattern, rhs: &mut [f64]) {
+        if pattern.n == 0 {
+            return;
+        }
+        let llt = SimplicialLltRef::new(&pattern.symbolic, &self.l_values);
+        let rhs = MatMut::from_column_major_slice_mut(rhs, pattern.n, 1);
+        llt.solve_in_place_with_conj(Conj::No, rhs, Par::Seq, MemStack::new(&mut self.mem));
+    }
+}

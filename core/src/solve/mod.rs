@@ -1,0 +1,531 @@
+//! The gradient method of Todini & Pilati (1988) for a snapshot of a network.
+//!
+//! Unknowns are the heads `H` of junctions and the flows `Q` of links; reservoirs and tanks hold
+//! fixed heads. Each Newton step linearises every open link's law `h(Q) = H_from − H_to` around
+//! the current flow, `h(Q') ≈ y + g (Q' − Q)` with `y = h(Q)` and `g = dh/dQ`, and eliminates the
+//! flows: with `p = 1/g` and `c = Q − p y`, the new flow of a link is `Q' = c + p (H_from − H_to)`,
+//! and mass balance at every junction gives a symmetric positive definite system for the heads,
+//!
+//! ```text
+//! Σ_k p_k H_i − Σ_k p_k H_j = −d_i + Σ_in c_k − Σ_out c_k + Σ_(fixed neighbours) p_k H_fixed,
+//! ```
+//!
+//! a weighted graph Laplacian. Flows then follow link by link. At a solution the mass balance is
+//! met to the accuracy of the linear solve and the energy equations to the Newton tolerance.
+//!
+//! Phases, one file each: [`pattern`] (ordering, symbolic analysis, scatter map; once per
+//! structure), [`links`] (each link's law, once per model), assembly and the iteration loop
+//! (here), [`factor`] (numeric factorization and triangular solves, every step), [`status`]
+//! (check valves, after each converged inner solve), [`topology`] (which junctions a fixed head
+//! reaches). Entry points: [`solve`] for one answer, [`Solver`] to solve a network many times
+//! reusing the analysis.
+//!
+//! # Convergence
+//! A step is accepted as converged when the largest head change is at most the head tolerance and
+//! the relative flow change `Σ|ΔQ| / Σ|Q|` at most the flow tolerance. Then the status of check
+//! valves is examined; if one changes, the iteration goes on. Finally every open link's energy
+//! equation and every junction's mass balance are evaluated and the largest residuals reported.
+//! A case that has not converged within the iteration limit is an error, never an answer.
+
+pub mod factor;
+pub mod links;
+pub mod pattern;
+pub mod status;
+pub mod topology;
+
+use crate::error::{Element, Offender, SolveError};
+use crate::model::{LinkStatus, Model};
+use factor::Factor;
+use links::LinkLaw;
+use pattern::{Pattern, NONE};
+use status::StatusTracker;
+use topology::Adjacency;
+
+/// Options of one solve. Defaults come from the model's `[hydraulics]`.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct SolveOptions {
+    /// Iteration limit (status changes included).
+    pub max_iterations: u32,
+    /// Largest head change accepted at convergence, m.
+    pub head_tolerance: f64,
+    /// Largest relative flow change accepted at convergence.
+    pub flow_tolerance: f64,
+    /// Start from the previous solution of this solver, if any (useful for scenario loops).
+    pub warm_start: bool,
+}
+
+impl SolveOptions {
+    /// The options a model asks for.
+    pub fn from_model(model: &Model) -> Self {
+        SolveOptions {
+            max_iterations: model.options.max_iterations,
+            head_tolerance: model.options.head_tolerance,
+            flow_tolerance: model.options.flow_tolerance,
+            warm_start: false,
+        }
+    }
+}
+
+/// Initial velocity of every link on a cold start, m/s (common practice: about 1 ft/s).
+pub const INITIAL_VELOCITY: f64 = 0.3;
+
+/// The state of a link in a solution.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[non_exhaustive]
+pub enum LinkState {
+    /// Open and carrying flow.
+    Open,
+    /// Closed by the user.
+    Closed,
+    /// A check valve closed against reverse flow.
+    CheckValveClosed,
+    /// Open, but both ends are cut off from every fixed head.
+    Disconnected,
+}
+
+impl LinkState {
+    /// The status word written in results: "open" or "closed".
+    pub fn status_label(self) -> &'static str {
+        match self {
+            LinkState::Open | LinkState::Disconnected => "open",
+            LinkState::Closed | LinkState::CheckValveClosed => "closed",
+        }
+    }
+
+    /// Why a link is in this state, when there is more to say than open or closed.
+    pub fn reason(self) -> Option<&'static str> {
+        match self {
+            LinkState::Open | LinkState::Closed => None,
+            LinkState::CheckValveClosed => Some("check valve closed against reverse flow"),
+            LinkState::Disconnected => Some("no open path to a reservoir or tank"),
+        }
+    }
+}
+
+/// Something an engineer should look at in a solved network.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Warning {
+    /// The element concerned.
+    pub element: Option<Element>,
+    /// What to look at.
+    pub message: String,
+}
+
+/// A solved snapshot, SI units (pressures as pressure head in m of the model's water).
+#[derive(Clone, Debug, PartialEq)]
+pub struct Solution {
+    /// Always true for a returned solution (non-convergence is an error).
+    pub converged: bool,
+    /// Newton iterations done (linear solves).
+    pub iterations: u32,
+    /// Check-valve state changes made on the way.
+    pub status_changes: u32,
+    /// Head per node, m; NaN for disconnected junctions.
+    pub head: Vec<f64>,
+    /// Pressure head per node, m; NaN for disconnected junctions.
+    pub pressure: Vec<f64>,
+    /// Demand per node (m³/s) as supplied; zero for fixed-head nodes.
+    pub demand: Vec<f64>,
+    /// Whether a fixed head reaches the node through open links.
+    pub connected: Vec<bool>,
+    /// Flow per link, m³/s, positive from `from` to `to`.
+    pub flow: Vec<f64>,
+    /// Mean velocity per link, m/s, same sign as the flow.
+    pub velocity: Vec<f64>,
+    /// Head difference across the link in the direction of flow (|H_from − H_to|), m; for a closed
+    /// link, the head difference it holds; NaN when an end is disconnected.
+    pub headloss: Vec<f64>,
+    /// State of every link.
+    pub link_state: Vec<LinkState>,
+    /// Largest |Σ inflow − Σ outflow − demand| over connected junctions, m³/s.
+    pub max_mass_residual: f64,
+    /// Largest |h(Q) − (H_from − H_to)| over open links, m.
+    pub max_energy_residual: f64,
+    /// Largest head change of the last iteration, m.
+    pub last_head_change: f64,
+    /// Relative flow change of the last iteration.
+    pub last_flow_change: f64,
+    /// Things to look at.
+    pub warnings: Vec<Warning>,
+}
+
+impl Solution {
+    /// Net outflow of a node into the network, m³/s (positive: the node supplies water).
+    pub fn net_outflow(&self, model: &Model, node: usize) -> f64 {
+        model
+            .links()
+            .iter()
+            .zip(&self.flow)
+            .map(|(l, &q)| {
+                if l.from == node {
+                    q
+                } else if l.to == node {
+                    -q
+                } else {
+                    0.0
+                }
+            })
+            .sum()
+    }
+}
+
+/// Solves one snapshot of `model` with its own options.
+pub fn solve(model: &Model) -> Result<Solution, SolveError> {
+    Solver::new(model)?.solve(model)
+}
+
+/// A reusable solver: the analysis of one network structure and its workspaces.
+///
+/// Values (demands, heads, statuses, pipe data) may change between solves; when the structure
+/// changes (nodes or links added, a node's kind changed), the analysis is redone automatically.
+#[derive(Debug)]
+pub struct Solver {
+    pattern: Pattern,
+    factor: Factor,
+    adjacency: Adjacency,
+    laws: Vec<LinkLaw>,
+    flow: Vec<f64>,
+    has_previous: bool,
+    // Scratch, sized once per structure.
+    p: Vec<f64>,
+    c: Vec<f64>,
+    rhs: Vec<f64>,
+    x_old: Vec<f64>,
+    open: Vec<bool>,
+    connected: Vec<bool>,
+    stack: Vec<u32>,
+}
+
+impl Solver {
+    /// Analyses `model` (validating it first).
+    pub fn new(model: &Model) -> Result<Self, SolveError> {
+        model.validate()?;
+        let pattern = Pattern::analyse(model);
+        let factor = Factor::new(&pattern);
+        let n_links = model.links().len();
+        let n_nodes = model.nodes().len();
+        Ok(Solver {
+            factor,
+            adjacency: Adjacency::new(model),
+            laws: model.links().iter().map(|l| LinkLaw::new(model, l)).collect(),
+            flow: vec![0.0; n_links],
+            has_previous: false,
+            p: vec![0.0; n_links],
+            c: vec![0.0; n_links],
+            rhs: vec![0.0; pattern.n],
+            x_old: vec![0.0; pattern.n],
+            open: vec![false; n_links],
+            connected: vec![false; n_nodes],
+            stack: Vec::with_capacity(n_nodes),
+            pattern,
+        })
+    }
+
+    /// The analysed pattern (for statistics).
+    pub fn pattern(&self) -> &Pattern {
+        &self.pattern
+    }
+
+    /// Solves `model` with the options in its `[hydraulics]`.
+    pub fn solve(&mut self, model: &Model) -> Result<Solution, SolveError> {
+        self.solve_with(model, &SolveOptions::from_model(model))
+    }
+
+    /// Solves `model` with explicit options.
+    pub fn solve_with(&mut self, model: &Model, options: &SolveOptions) -> Result<Solution, SolveError> {
+        model.validate()?;
+        if !self.pattern.fits(model) {
+            *self = Solver::new(model)?;
+        }
+        // Pipe data may have changed since the analysis; laws are cheap to recompute.
+        for (law, link) in self.laws.iter_mut().zip(model.links()) {
+            *law = LinkLaw::new(model, link);
+        }
+        if !(options.warm_start && self.has_previous) {
+            for (q, law) in self.flow.iter_mut().zip(&self.laws) {
+                *q = INITIAL_VELOCITY * law.area;
+            }
+        }
+        let result = self.iterate(model, options);
+        self.has_previous = result.is_ok();
+        result
+    }
+
+    fn iterate(&mut self, model: &Model, options: &SolveOptions) -> Result<Solution, SolveError> {
+        let nodes = model.nodes();
+        let links = model.links();
+        let fixed_head: Vec<f64> = nodes.iter().map(|n| n.fixed_head().unwrap_or(f64::NAN)).collect();
+        let mut tracker = StatusTracker::new(model);
+        let mut head: Vec<f64> = fixed_head.clone();
+        let mut iterations = 0u32;
+        let mut status_changes = 0u32;
+        let mut head_change = f64::INFINITY;
+        let mut flow_change = f64::INFINITY;
+        let mut connectivity_stale = true;
+
+        loop {
+            if connectivity_stale {
+                for (k, l) in links.iter().enumerate() {
+                    self.open[k] = l.status == LinkStatus::Open && !tracker.is_closed(k);
+                }
+                topology::mark_connected(model, &self.adjacency, &self.open, &mut self.connected, &mut self.stack);
+                for (k, l) in links.iter().enumerate() {
+                    self.open[k] &= self.connected[l.from] && self.connected[l.to];
+                    if !self.open[k] {
+                        self.flow[k] = 0.0;
+                    }
+                }
+                connectivity_stale = false;
+            }
+            if iterations >= options.max_iterations {
+                return Err(self.not_converged(model, &head, iterations, head_change, flow_change));
+            }
+            iterations += 1;
+            self.assemble(model, &fixed_head);
+            for (u, x) in self.x_old.iter_mut().enumerate() {
+                *x = head[self.pattern.node_of_unknown[u] as usize];
+            }
+            self.factor.factor_and_solve(&self.pattern, &mut self.rhs).map_err(|e| SolveError::Numerical {
+                iteration: iterations,
+                detail: format!(
+                    "pivot of node '{}' is not positive",
+                    nodes[self.pattern.node_of_unknown[e.unknown] as usize].id
+                ),
+            })?;
+            head_change = 0.0;
+            let mut finite = true;
+            for u in 0..self.pattern.n {
+                let node = self.pattern.node_of_unknown[u] as usize;
+                if self.connected[node] {
+                    let h = self.rhs[u];
+                    finite &= h.is_finite();
+                    head_change = head_change.max((h - self.x_old[u]).abs());
+                    head[node] = h;
+                } else {
+                    head[node] = f64::NAN;
+                }
+            }
+            if iterations == 1 {
+                // No previous heads to compare with.
+                head_change = f64::INFINITY;
+            }
+            let (mut sum_dq, mut sum_q) = (0.0, 0.0);
+            for (k, l) in links.iter().enumerate() {
+                let q = if self.open[k] { self.c[k] + self.p[k] * (head[l.from] - head[l.to]) } else { 0.0 };
+                sum_dq += (q - self.flow[k]).abs();
+                sum_q += q.abs();
+                self.flow[k] = q;
+            }
+            flow_change = if sum_q > 0.0 { sum_dq / sum_q } else { sum_dq };
+            if !finite || !flow_change.is_finite() {
+                return Err(SolveError::Numerical {
+                    iteration: iterations,
+                    detail: "heads or flows became NaN".into(),
+                });
+            }
+            if head_change <= options.head_tolerance && flow_change <= options.flow_tolerance {
+                let changed = tracker.update(model, &self.flow, &head, &self.connected, options.head_tolerance);
+                match changed {
+                    Ok(0) => break,
+                    Ok(n) => {
+                        status_changes += n;
+                        connectivity_stale = true;
+                        head_change = f64::INFINITY;
+                    }
+                    Err(cycling) => {
+                        return Err(SolveError::StatusCycle {
+                            iterations,
+                            links: cycling.into_iter().map(|k| links[k].id.clone()).collect(),
+                        })
+                    }
+                }
+            }
+        }
+        Ok(self.finish(model, head, iterations, status_changes, head_change, flow_change, &tracker))
+    }
+
+    /// Fills the matrix values and right-hand side for the current flows.
+    fn assemble(&mut self, model: &Model, fixed_head: &[f64]) {
+        let values = &mut self.factor.values;
+        values.iter_mut().for_each(|v| *v = 0.0);
+        for (u, r) in self.rhs.iter_mut().enumerate() {
+            *r = -model.nodes()[self.pattern.node_of_unknown[u] as usize].demand();
+        }
+        for (k, l) in model.links().iter().enumerate() {
+            if !self.open[k] {
+                self.p[k] = 0.0;
+                self.c[k] = 0.0;
+                continue;
+            }
+            let (y, g) = self.laws[k].evaluate(self.flow[k]);
+            let p = 1.0 / g;
+            let c = self.flow[k] - p * y;
+            self.p[k] = p;
+            self.c[k] = c;
+            let s = self.pattern.links[k];
+            if s.from != NONE {
+                values[self.pattern.diag_slot[s.from as usize] as usize] += p;
+                self.rhs[s.from as usize] -= c;
+                if s.to == NONE {
+                    self.rhs[s.from as usize] += p * fixed_head[l.to];
+                }
+            }
+            if s.to != NONE {
+                values[self.pattern.diag_slot[s.to as usize] as usize] += p;
+                self.rhs[s.to as usize] += c;
+                if s.from == NONE {
+                    self.rhs[s.to as usize] += p * fixed_head[l.from];
+                }
+            }
+            if s.off != NONE {
+                values[s.off as usize] -= p;
+            }
+        }
+        for u in 0..self.pattern.n {
+            if !self.connected[self.pattern.node_of_unknown[u] as usize] {
+                values[self.pattern.diag_slot[u] as usize] = 1.0;
+                self.rhs[u] = 0.0;
+            }
+        }
+    }
+
+    fn not_converged(
+        &self,
+        model: &Model,
+        head: &[f64],
+        iterations: u32,
+        head_change: f64,
+        flow_change: f64,
+    ) -> SolveError {
+        let energy = energy_residuals(model, &self.laws, &self.flow, head, &self.open);
+        let mut worst_nodes: Vec<Offender> = (0..self.pattern.n)
+            .filter(|&u| self.connected[self.pattern.node_of_unknown[u] as usize])
+            .map(|u| {
+                let node = self.pattern.node_of_unknown[u] as usize;
+                Offender { id: model.nodes()[node].id.clone(), value: (head[node] - self.x_old[u]).abs() }
+            })
+            .collect();
+        worst_nodes.sort_by(|a, b| b.value.total_cmp(&a.value));
+        worst_nodes.truncate(5);
+        let mut worst_links: Vec<Offender> = model
+            .links()
+            .iter()
+            .enumerate()
+            .filter(|(k, _)| self.open[*k])
+            .map(|(k, l)| Offender { id: l.id.clone(), value: energy[k] })
+            .collect();
+        worst_links.sort_by(|a, b| b.value.total_cmp(&a.value));
+        worst_links.truncate(5);
+        SolveError::NotConverged {
+            iterations,
+            head_change,
+            flow_change,
+            energy_residual: energy.iter().copied().fold(0.0, f64::max),
+            worst_nodes,
+            worst_links,
+        }
+    }
+
+    #[allow(clippy::too_many_arguments)]
+    fn finish(
+        &self,
+        model: &Model,
+        head: Vec<f64>,
+        iterations: u32,
+        status_changes: u32,
+        last_head_change: f64,
+        last_flow_change: f64,
+        tracker: &StatusTracker,
+    ) -> Solution {
+        let nodes = model.nodes();
+        let links = model.links();
+        let energy = energy_residuals(model, &self.laws, &self.flow, &head, &self.open);
+        let max_energy_residual = energy.iter().copied().fold(0.0, f64::max);
+        let mut balance: Vec<f64> = nodes.iter().map(|n| -n.demand()).collect();
+        for (l, &q) in links.iter().zip(&self.flow) {
+            balance[l.to] += q;
+            balance[l.from] -= q;
+        }
+        let max_mass_residual = nodes
+            .iter()
+            .enumerate()
+            .filter(|(i, n)| n.fixed_head().is_none() && self.connected[*i])
+            .map(|(i, _)| balance[i].abs())
+            .fold(0.0, f64::max);
+        let pressure: Vec<f64> = nodes.iter().zip(&head).map(|(n, h)| h - n.elevation).collect();
+        let velocity: Vec<f64> = self.flow.iter().zip(&self.laws).map(|(q, law)| q / law.area).collect();
+        let headloss: Vec<f64> = links.iter().map(|l| (head[l.from] - head[l.to]).abs()).collect();
+        let link_state: Vec<LinkState> = links
+            .iter()
+            .enumerate()
+            .map(|(k, l)| {
+                if l.status == LinkStatus::Closed {
+                    LinkState::Closed
+                } else if tracker.is_closed(k) {
+                    LinkState::CheckValveClosed
+                } else if !self.open[k] {
+                    LinkState::Disconnected
+                } else {
+                    LinkState::Open
+                }
+            })
+            .collect();
+        let mut warnings = Vec::new();
+        let cut_off: Vec<usize> = (0..nodes.len()).filter(|&i| !self.connected[i]).collect();
+        for &i in &cut_off {
+            let d = nodes[i].demand();
+            let message = if d != 0.0 {
+                "cut off from every reservoir and tank by closed links; its demand is not supplied".to_owned()
+            } else {
+                "cut off from every reservoir and tank by closed links; it has no head".to_owned()
+            };
+            warnings.push(Warning { element: Some(Element::Node(nodes[i].id.clone())), message });
+        }
+        for (i, n) in nodes.iter().enumerate() {
+            if n.fixed_head().is_none() && self.connected[i] && pressure[i] < 0.0 {
+                warnings.push(Warning {
+                    element: Some(Element::Node(n.id.clone())),
+                    message: "negative pressure: the demand cannot really be delivered at this head (consider a \
+                              pressure-driven analysis)"
+                        .to_owned(),
+                });
+            }
+        }
+        Solution {
+            converged: true,
+            iterations,
+            status_changes,
+            demand: nodes.iter().map(|n| n.demand()).collect(),
+            connected: self.connected.clone(),
+            head,
+            pressure,
+            flow: self.flow.clone(),
+            velocity,
+            headloss,
+            link_state,
+            max_mass_residual,
+            max_energy_residual,
+            last_head_change,
+            last_flow_change,
+            warnings,
+        }
+    }
+}
+
+/// |h(Q) − (H_from − H_to)| per link (zero for links not open).
+fn energy_residuals(model: &Model, laws: &[LinkLaw], flow: &[f64], head: &[f64], open: &[bool]) -> Vec<f64> {
+    model
+        .links()
+        .iter()
+        .enumerate()
+        .map(
+            |(k, l)| {
+                if open[k] {
+                    (laws[k].evaluate_exact(flow[k]).0 - (head[l.from] - head[l.to])).abs()
+                } else {
+                    0.0
+                }
+            },
+        )
+        .collect()
+}

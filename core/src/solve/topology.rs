@@ -1,0 +1,76 @@
+//! Which junctions an open path joins to a fixed head.
+//!
+//! Junctions cut off from every reservoir and tank by closed links have no defined head; they are
+//! reported as disconnected (never given a made-up head) and kept out of the Newton system by a
+//! unit diagonal in their row.
+
+use crate::model::Model;
+
+/// Adjacency of a network in compressed form: for each node, the links that touch it.
+#[derive(Debug, Clone)]
+pub struct Adjacency {
+    start: Vec<usize>,
+    links: Vec<u32>,
+}
+
+impl Adjacency {
+    /// Builds the adjacency of `model`.
+    pub fn new(model: &Model) -> Self {
+        let n = model.nodes().len();
+        let mut start = vec![0usize; n + 1];
+        for l in model.links() {
+            start[l.from + 1] += 1;
+            start[l.to + 1] += 1;
+        }
+        for i in 0..n {
+            start[i + 1] += start[i];
+        }
+        let mut fill = start[..n].to_vec();
+        let mut links = vec![0u32; start[n]];
+        for (k, l) in model.links().iter().enumerate() {
+            links[fill[l.from]] = k as u32;
+            fill[l.from] += 1;
+            links[fill[l.to]] = k as u32;
+            fill[l.to] += 1;
+        }
+        Adjacency { start, links }
+    }
+
+    /// Links touching node `i`.
+    pub fn of(&self, i: usize) -> &[u32] {
+        &self.links[self.start[i]..self.start[i + 1]]
+    }
+}
+
+/// Marks in `connected` every node that a path of links with `open[k]` joins to a fixed head.
+/// `stack` is scratch space.
+pub fn mark_connected(
+    model: &Model,
+    adjacency: &Adjacency,
+    open: &[bool],
+    connected: &mut [bool],
+    stack: &mut Vec<u32>,
+) {
+    connected.iter_mut().for_each(|c| *c = false);
+    stack.clear();
+    for (i, node) in model.nodes().iter().enumerate() {
+        if node.fixed_head().is_some() {
+            connected[i] = true;
+            stack.push(i as u32);
+        }
+    }
+    let links = model.links();
+    while let Some(i) = stack.pop() {
+        for &k in adjacency.of(i as usize) {
+            if !open[k as usize] {
+                continue;
+            }
+            let l = &links[k as usize];
+            let other = if l.from == i as usize { l.to } else { l.from };
+            if !connected[other] {
+                connected[other] = true;
+                stack.push(other as u32);
+            }
+        }
+    }
+}

@@ -1,0 +1,213 @@
+//! `ringmain`: the command-line program.
+//!
+//! Exit codes: 0 success; 2 invalid model, file or arguments; 3 the solver did not converge;
+//! 4 the results could not be written.
+
+mod report;
+
+use clap::{Parser, Subcommand, ValueEnum};
+use ringmain_core::physics::{friction_factor, WaterProperties};
+use ringmain_core::{Format, Model, ModelError, SolveError};
+use std::path::{Path, PathBuf};
+use std::process::ExitCode;
+
+/// Flows and pressures in looped water-distribution networks.
+///
+/// Results are only as good as the model and its data; designs must be checked by a licensed
+/// engineer against local codes and the utility's standards.
+#[derive(Parser)]
+#[command(name = "ringmain", version, about, long_about = None)]
+#[command(after_help = "Exit codes: 0 solved; 2 invalid model, file or arguments; 3 the solver did not converge; \
+                        4 the results could not be written.")]
+struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Subcommand)]
+enum Command {
+    /// Solve a snapshot of a network model and print heads, pressures and flows.
+    Solve {
+        /// The model file (.toml or .json).
+        model: PathBuf,
+        /// Output format.
+        #[arg(long, value_enum, default_value_t = OutputFormat::Table)]
+        format: OutputFormat,
+        /// Write the results to this file instead of standard output.
+        #[arg(long, short)]
+        output: Option<PathBuf>,
+    },
+    /// Print the density and viscosity of water at a temperature (IAPWS formulations).
+    WaterProperties {
+        /// Water temperature, deg C (0 to 99).
+        #[arg(long)]
+        temperature: f64,
+        /// Output format.
+        #[arg(long, value_enum, default_value_t = OutputFormat::Table)]
+        format: OutputFormat,
+    },
+    /// Print the Darcy friction factor for a Reynolds number and relative roughness.
+    FrictionFactor {
+        /// Reynolds number.
+        #[arg(long)]
+        reynolds: f64,
+        /// Relative roughness, absolute roughness divided by diameter.
+        #[arg(long)]
+        relative_roughness: f64,
+        /// Output format.
+        #[arg(long, value_enum, default_value_t = OutputFormat::Table)]
+        format: OutputFormat,
+    },
+}
+
+#[derive(Clone, Copy, PartialEq, Eq, ValueEnum)]
+enum OutputFormat {
+    Table,
+    Json,
+    Csv,
+}
+
+const EXIT_INVALID: u8 = 2;
+const EXIT_NOT_CONVERGED: u8 = 3;
+const EXIT_WRITE: u8 = 4;
+
+fn main() -> ExitCode {
+    let cli = Cli::parse();
+    match cli.command {
+        Command::Solve { model, format, output } => solve(&model, format, output.as_deref()),
+        Command::WaterProperties { temperature, format } => water_properties(temperature, format),
+        Command::FrictionFactor { reynolds, relative_roughness, format } => {
+            friction(reynolds, relative_roughness, format)
+        }
+    }
+}
+
+/// Reads and checks a model file.
+fn load(path: &Path) -> Result<Model, ModelError> {
+    let name = path.display().to_string();
+    let bytes =
+        std::fs::read(path).map_err(|e| ModelError::new(format!("cannot read the file: {e}")).in_file(&name))?;
+    let format = Format::from_path(path).unwrap_or_else(|| Format::sniff(&String::from_utf8_lossy(&bytes)));
+    ringmain_core::read_bytes(&bytes, format, &name)
+}
+
+fn write_out(text: &str, output: Option<&Path>) -> ExitCode {
+    match output {
+        None => {
+            use std::io::Write;
+            let mut stdout = std::io::stdout().lock();
+            match stdout.write_all(text.as_bytes()).and_then(|_| stdout.flush()) {
+                Ok(()) => ExitCode::SUCCESS,
+                // A closed pipe (| head) is not an error worth a message.
+                Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => ExitCode::SUCCESS,
+                Err(e) => {
+                    eprintln!("error: cannot write the results: {e}");
+                    ExitCode::from(EXIT_WRITE)
+                }
+            }
+        }
+        Some(path) => match std::fs::write(path, text) {
+            Ok(()) => ExitCode::SUCCESS,
+            Err(e) => {
+                eprintln!("error: cannot write the results to {}: {e}", path.display());
+                ExitCode::from(EXIT_WRITE)
+            }
+        },
+    }
+}
+
+fn solve(path: &Path, format: OutputFormat, output: Option<&Path>) -> ExitCode {
+    let model = match load(path) {
+        Ok(m) => m,
+        Err(e) => {
+            eprintln!("error: {e}");
+            return ExitCode::from(EXIT_INVALID);
+        }
+    };
+    let solution = match ringmain_core::solve(&model) {
+        Ok(s) => s,
+        Err(SolveError::Model(e)) => {
+            eprintln!("error: {}", e.in_file(path.display().to_string()));
+            return ExitCode::from(EXIT_INVALID);
+        }
+        Err(e) => {
+            eprintln!("error: {}: {e}", path.display());
+            return ExitCode::from(EXIT_NOT_CONVERGED);
+        }
+    };
+    let report = report::Report::new(&model, &solution);
+    let text = match format {
+        OutputFormat::Table => report.to_table(),
+        OutputFormat::Json => serde_json::to_string_pretty(&report.to_json()).unwrap_or_default() + "\n",
+        OutputFormat::Csv => report.to_csv(),
+    };
+    if format != OutputFormat::Json {
+        for w in &solution.warnings {
+            if let Some(e) = &w.element {
+                eprintln!("warning: {e}: {}", w.message);
+            }
+        }
+    }
+    write_out(&text, output)
+}
+
+fn water_properties(temperature: f64, format: OutputFormat) -> ExitCode {
+    if !(WaterProperties::MIN_CELSIUS..=WaterProperties::MAX_CELSIUS).contains(&temperature) {
+        eprintln!(
+            "error: --temperature must be between {} and {} deg C, found {temperature}",
+            WaterProperties::MIN_CELSIUS,
+            WaterProperties::MAX_CELSIUS
+        );
+        return ExitCode::from(EXIT_INVALID);
+    }
+    let w = WaterProperties::at_celsius(temperature);
+    let text = match format {
+        OutputFormat::Json => {
+            serde_json::json!({
+                "temperature": temperature, "density": w.density,
+                "dynamic_viscosity": w.dynamic_viscosity, "kinematic_viscosity": w.kinematic_viscosity,
+            })
+            .to_string()
+                + "\n"
+        }
+        OutputFormat::Csv => format!(
+            "temperature_C,density_kg_m3,dynamic_viscosity_Pa_s,kinematic_viscosity_m2_s\n{},{},{},{}\n",
+            temperature, w.density, w.dynamic_viscosity, w.kinematic_viscosity
+        ),
+        OutputFormat::Table => format!(
+            "water at {temperature} deg C and 101.325 kPa\n  density              {:.4} kg/m3 (IAPWS-IF97)\n  \
+             dynamic viscosity    {:.6e} Pa s (IAPWS 2008)\n  kinematic viscosity  {:.6e} m2/s\n",
+            w.density, w.dynamic_viscosity, w.kinematic_viscosity
+        ),
+    };
+    write_out(&text, None)
+}
+
+fn friction(re: f64, rr: f64, format: OutputFormat) -> ExitCode {
+    if !(re.is_finite() && re > 0.0) {
+        eprintln!("error: --reynolds must be a positive number, found {re}");
+        return ExitCode::from(EXIT_INVALID);
+    }
+    if !(rr.is_finite() && (0.0..0.5).contains(&rr)) {
+        eprintln!("error: --relative-roughness must be between 0 and 0.5, found {rr}");
+        return ExitCode::from(EXIT_INVALID);
+    }
+    let (f, _) = friction_factor(re, rr);
+    let regime = if re < 2000.0 {
+        "laminar (64/Re)"
+    } else if re > 4000.0 {
+        "turbulent (Colebrook-White)"
+    } else {
+        "transitional (cubic interpolation)"
+    };
+    let text = match format {
+        OutputFormat::Json => {
+            serde_json::json!({"reynolds": re, "relative_roughness": rr, "friction_factor": f, "regime": regime})
+                .to_string()
+                + "\n"
+        }
+        OutputFormat::Csv => format!("reynolds,relative_roughness,friction_factor\n{re},{rr},{f}\n"),
+        OutputFormat::Table => format!("Darcy friction factor f = {f:.6} at Re = {re}, e/D = {rr}: {regime}\n"),
+    };
+    write_out(&text, None)
+}
