@@ -1,0 +1,32 @@
+#!/usr/bin/env bash
+# The whole test suite of ringmain: what CI runs, and what to run before every commit.
+#
+#   scripts/test.sh
+#
+# Needs: the Rust toolchain (cargo, with clippy and rustfmt) and Python 3.11 with venv and pip.
+# The Python reference libraries are installed into .venv/ on the first run.
+set -euo pipefail
+cd "$(dirname "$0")/.."
+
+step() { printf '\n==> %s\n' "$*"; }
+
+step "format"
+cargo fmt --all --check
+
+step "lint"
+cargo clippy --release --workspace --all-targets -- -D warnings
+
+step "build"
+cargo build --release --workspace
+
+step "Rust tests (unit, integration, property, doc)"
+cargo test --release --workspace
+
+step "Python reference checks"
+if [ ! -x .venv/bin/python ]; then
+  python3 -m venv .venv
+fi
+.venv/bin/python -m pip install --quiet --disable-pip-version-check -r tests/python/requirements.txt
+RINGMAIN_BIN="$PWD/target/release/ringmain" .venv/bin/python -m pytest tests/python -q
+
+printf '\nall checks passed\n'
