@@ -34,7 +34,7 @@ pub mod status;
 pub mod topology;
 
 use crate::error::{Element, Offender, SolveError};
-use crate::model::{LinkStatus, Model};
+use crate::model::{LinkKind, Model, ValveType};
 use factor::Factor;
 use links::LinkLaw;
 use pattern::{Pattern, NONE};
@@ -66,40 +66,26 @@ impl SolveOptions {
     }
 }
 
-/// Initial velocity of every link on a cold start, m/s (common practice: about 1 ft/s).
-pub const INITIAL_VELOCITY: f64 = 0.3;
+pub use links::INITIAL_VELOCITY;
+pub use status::{Ending, LinkState};
 
-/// The state of a link in a solution.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
-#[non_exhaustive]
-pub enum LinkState {
-    /// Open and carrying flow.
-    Open,
-    /// Closed by the user.
-    Closed,
-    /// A check valve closed against reverse flow.
-    CheckValveClosed,
-    /// Open, but both ends are cut off from every fixed head.
-    Disconnected,
-}
-
-impl LinkState {
-    /// The status word written in results: "open" or "closed".
-    pub fn status_label(self) -> &'static str {
-        match self {
-            LinkState::Open | LinkState::Disconnected => "open",
-            LinkState::Closed | LinkState::CheckValveClosed => "closed",
-        }
-    }
-
-    /// Why a link is in this state, when there is more to say than open or closed.
-    pub fn reason(self) -> Option<&'static str> {
-        match self {
-            LinkState::Open | LinkState::Closed => None,
-            LinkState::CheckValveClosed => Some("check valve closed against reverse flow"),
-            LinkState::Disconnected => Some("no open path to a reservoir or tank"),
-        }
-    }
+/// Results of one pump in a solution (SI).
+#[derive(Clone, Debug, PartialEq)]
+pub struct PumpResult {
+    /// Index of the pump's link.
+    pub link: usize,
+    /// Head added, `H_to − H_from`, m.
+    pub head: f64,
+    /// Relative speed.
+    pub speed: f64,
+    /// Efficiency used, fraction.
+    pub efficiency: f64,
+    /// Hydraulic power ρ g Q H, W.
+    pub hydraulic_power: f64,
+    /// Shaft power ρ g Q H / η, W.
+    pub shaft_power: f64,
+    /// Whether it runs past the end of its curve (head below zero).
+    pub beyond_curve: bool,
 }
 
 /// Something an engineer should look at in a solved network.
@@ -118,8 +104,12 @@ pub struct Solution {
     pub converged: bool,
     /// Newton iterations done (linear solves).
     pub iterations: u32,
-    /// Check-valve state changes made on the way.
+    /// Device state changes made on the way (check valves, pumps, control valves).
     pub status_changes: u32,
+    /// Which rule ended the status logic.
+    pub ending: Ending,
+    /// Results of every pump, in link order.
+    pub pumps: Vec<PumpResult>,
     /// Head per node, m; NaN for disconnected junctions.
     pub head: Vec<f64>,
     /// Pressure head per node, m; NaN for disconnected junctions.
@@ -193,6 +183,7 @@ pub struct Solver {
     x_old: Vec<f64>,
     open: Vec<bool>,
     connected: Vec<bool>,
+    known_head: Vec<f64>,
     stack: Vec<u32>,
 }
 
@@ -216,6 +207,7 @@ impl Solver {
             x_old: vec![0.0; pattern.n],
             open: vec![false; n_links],
             connected: vec![false; n_nodes],
+            known_head: vec![f64::NAN; n_nodes],
             stack: Vec::with_capacity(n_nodes),
             pattern,
         })
@@ -243,7 +235,7 @@ impl Solver {
         }
         if !(options.warm_start && self.has_previous) {
             for (q, law) in self.flow.iter_mut().zip(&self.laws) {
-                *q = INITIAL_VELOCITY * law.area;
+                *q = law.initial_flow;
             }
         }
         let result = self.iterate(model, options);
@@ -261,27 +253,18 @@ impl Solver {
         let mut status_changes = 0u32;
         let mut head_change = f64::INFINITY;
         let mut flow_change = f64::INFINITY;
-        let mut connectivity_stale = true;
+        let mut states_stale = true;
 
         loop {
-            if connectivity_stale {
-                for (k, l) in links.iter().enumerate() {
-                    self.open[k] = l.status == LinkStatus::Open && !tracker.is_closed(k);
-                }
-                topology::mark_connected(model, &self.adjacency, &self.open, &mut self.connected, &mut self.stack);
-                for (k, l) in links.iter().enumerate() {
-                    self.open[k] &= self.connected[l.from] && self.connected[l.to];
-                    if !self.open[k] {
-                        self.flow[k] = 0.0;
-                    }
-                }
-                connectivity_stale = false;
+            if states_stale {
+                self.apply_states(model, &tracker, &fixed_head);
+                states_stale = false;
             }
             if iterations >= options.max_iterations {
                 return Err(self.not_converged(model, &head, iterations, head_change, flow_change));
             }
             iterations += 1;
-            self.assemble(model, &fixed_head);
+            self.assemble(model, &tracker);
             for (u, x) in self.x_old.iter_mut().enumerate() {
                 *x = head[self.pattern.node_of_unknown[u] as usize];
             }
@@ -309,14 +292,7 @@ impl Solver {
                 // No previous heads to compare with.
                 head_change = f64::INFINITY;
             }
-            let (mut sum_dq, mut sum_q) = (0.0, 0.0);
-            for (k, l) in links.iter().enumerate() {
-                let q = if self.open[k] { self.c[k] + self.p[k] * (head[l.from] - head[l.to]) } else { 0.0 };
-                sum_dq += (q - self.flow[k]).abs();
-                sum_q += q.abs();
-                self.flow[k] = q;
-            }
-            flow_change = if sum_q > 0.0 { sum_dq / sum_q } else { sum_dq };
+            flow_change = self.update_flows(model, &tracker, &head);
             if !finite || !flow_change.is_finite() {
                 return Err(SolveError::Numerical {
                     iteration: iterations,
@@ -324,12 +300,25 @@ impl Solver {
                 });
             }
             if head_change <= options.head_tolerance && flow_change <= options.flow_tolerance {
-                let changed = tracker.update(model, &self.flow, &head, &self.connected, options.head_tolerance);
-                match changed {
+                if !tracker.has_devices() {
+                    break;
+                }
+                let laws = &self.laws;
+                let open_loss = |k: usize, q: f64| laws[k].evaluate_exact(q).0;
+                let shutoff = |k: usize| laws[k].shutoff_head().unwrap_or(f64::INFINITY);
+                let seen = status::Observed {
+                    flow: &self.flow,
+                    head: &head,
+                    connected: &self.connected,
+                    open_loss: &open_loss,
+                    shutoff: &shutoff,
+                    tolerance: options.head_tolerance,
+                };
+                match tracker.update(model, &seen) {
                     Ok(0) => break,
                     Ok(n) => {
                         status_changes += n;
-                        connectivity_stale = true;
+                        states_stale = true;
                         head_change = f64::INFINITY;
                     }
                     Err(cycling) => {
@@ -341,50 +330,158 @@ impl Solver {
                 }
             }
         }
-        Ok(self.finish(model, head, iterations, status_changes, head_change, flow_change, &tracker))
+        let ending = tracker.ending(status_changes);
+        Ok(self.finish(model, head, iterations, status_changes, head_change, flow_change, &tracker, ending))
     }
 
-    /// Fills the matrix values and right-hand side for the current flows.
-    fn assemble(&mut self, model: &Model, fixed_head: &[f64]) {
+    /// Recomputes, for the current device states, which links carry flow, which nodes a fixed
+    /// head reaches, and which heads are pinned by active pressure valves.
+    fn apply_states(&mut self, model: &Model, tracker: &StatusTracker, fixed_head: &[f64]) {
+        let links = model.links();
+        for (k, s) in tracker.state.iter().enumerate() {
+            self.open[k] = s.carries_flow();
+        }
+        topology::mark_connected(model, &self.adjacency, &self.open, &mut self.connected, &mut self.stack);
+        self.known_head.copy_from_slice(fixed_head);
+        for (k, l) in links.iter().enumerate() {
+            self.open[k] &= self.connected[l.from] && self.connected[l.to];
+            if !self.open[k] {
+                self.flow[k] = 0.0;
+                continue;
+            }
+            if tracker.state[k] == LinkState::Active {
+                if let LinkKind::Valve(v) = &l.kind {
+                    match v.valve {
+                        ValveType::PressureReducing => {
+                            self.known_head[l.to] = model.nodes()[l.to].elevation + v.setting;
+                        }
+                        ValveType::PressureSustaining => {
+                            self.known_head[l.from] = model.nodes()[l.from].elevation + v.setting;
+                        }
+                        ValveType::FlowControl => self.flow[k] = v.setting,
+                        ValveType::Throttle => {}
+                    }
+                }
+            }
+        }
+    }
+
+    /// New flows from new heads; returns the relative flow change Σ|ΔQ| / Σ|Q|.
+    ///
+    /// Links on their law follow `Q = c + p (H_from − H_to)`. An active flow-control valve holds
+    /// its setting. An active pressure valve's flow is whatever the mass balance of the node it
+    /// pins requires; that flow enters the other node's balance at the next step, so at
+    /// convergence both balances hold.
+    fn update_flows(&mut self, model: &Model, tracker: &StatusTracker, head: &[f64]) -> f64 {
+        let links = model.links();
+        let (mut sum_dq, mut sum_q) = (0.0, 0.0);
+        let mut pinned_flows = false;
+        for (k, l) in links.iter().enumerate() {
+            let q = if !self.open[k] {
+                0.0
+            } else if tracker.state[k].uses_law() {
+                self.c[k] + self.p[k] * (head[l.from] - head[l.to])
+            } else {
+                pinned_flows |= matches!(&l.kind, LinkKind::Valve(v) if v.valve != ValveType::FlowControl);
+                self.c[k]
+            };
+            sum_dq += (q - self.flow[k]).abs();
+            sum_q += q.abs();
+            self.flow[k] = q;
+        }
+        if pinned_flows {
+            for (k, l) in links.iter().enumerate() {
+                if !self.open[k] || tracker.state[k] != LinkState::Active {
+                    continue;
+                }
+                let Some(v) = l.as_valve() else { continue };
+                let (node, sign) = match v.valve {
+                    ValveType::PressureReducing => (l.to, 1.0),
+                    ValveType::PressureSustaining => (l.from, -1.0),
+                    _ => continue,
+                };
+                // Net inflow the pinned node needs from this valve: its demand plus its outflow
+                // through every other link, minus its inflow through them.
+                let mut need = model.nodes()[node].demand();
+                for &j in self.adjacency.of(node) {
+                    let j = j as usize;
+                    if j == k {
+                        continue;
+                    }
+                    let lj = &links[j];
+                    if lj.from == node {
+                        need += self.flow[j];
+                    } else {
+                        need -= self.flow[j];
+                    }
+                }
+                // A pressure-sustaining valve pins its upstream node: its flow is what leaves it.
+                let q = if sign > 0.0 { need } else { -need };
+                sum_dq += (q - self.flow[k]).abs();
+                sum_q += q.abs() - self.flow[k].abs();
+                self.flow[k] = q;
+            }
+        }
+        if sum_q > 0.0 {
+            sum_dq / sum_q
+        } else {
+            sum_dq
+        }
+    }
+
+    /// Fills the matrix values and right-hand side for the current flows and states.
+    fn assemble(&mut self, model: &Model, tracker: &StatusTracker) {
         let values = &mut self.factor.values;
         values.iter_mut().for_each(|v| *v = 0.0);
         for (u, r) in self.rhs.iter_mut().enumerate() {
             *r = -model.nodes()[self.pattern.node_of_unknown[u] as usize].demand();
         }
+        let known = &self.known_head;
         for (k, l) in model.links().iter().enumerate() {
             if !self.open[k] {
                 self.p[k] = 0.0;
                 self.c[k] = 0.0;
                 continue;
             }
-            let (y, g) = self.laws[k].evaluate(self.flow[k]);
-            let p = 1.0 / g;
-            let c = self.flow[k] - p * y;
+            let (p, c) = if tracker.state[k].uses_law() {
+                let (y, g) = self.laws[k].evaluate(self.flow[k]);
+                let p = 1.0 / g;
+                (p, self.flow[k] - p * y)
+            } else {
+                // Regulating valve: a known flow this step, no coupling of heads.
+                (0.0, self.flow[k])
+            };
             self.p[k] = p;
             self.c[k] = c;
             let s = self.pattern.links[k];
-            if s.from != NONE {
+            let free_from = s.from != NONE && known[l.from].is_nan();
+            let free_to = s.to != NONE && known[l.to].is_nan();
+            if free_from {
                 values[self.pattern.diag_slot[s.from as usize] as usize] += p;
                 self.rhs[s.from as usize] -= c;
-                if s.to == NONE {
-                    self.rhs[s.from as usize] += p * fixed_head[l.to];
+                if !free_to {
+                    self.rhs[s.from as usize] += p * known[l.to];
                 }
             }
-            if s.to != NONE {
+            if free_to {
                 values[self.pattern.diag_slot[s.to as usize] as usize] += p;
                 self.rhs[s.to as usize] += c;
-                if s.from == NONE {
-                    self.rhs[s.to as usize] += p * fixed_head[l.from];
+                if !free_from {
+                    self.rhs[s.to as usize] += p * known[l.from];
                 }
             }
-            if s.off != NONE {
+            if free_from && free_to {
                 values[s.off as usize] -= p;
             }
         }
         for u in 0..self.pattern.n {
-            if !self.connected[self.pattern.node_of_unknown[u] as usize] {
+            let node = self.pattern.node_of_unknown[u] as usize;
+            if !self.connected[node] {
                 values[self.pattern.diag_slot[u] as usize] = 1.0;
                 self.rhs[u] = 0.0;
+            } else if !known[node].is_nan() {
+                values[self.pattern.diag_slot[u] as usize] = 1.0;
+                self.rhs[u] = known[node];
             }
         }
     }
@@ -436,6 +533,7 @@ impl Solver {
         last_head_change: f64,
         last_flow_change: f64,
         tracker: &StatusTracker,
+        ending: Ending,
     ) -> Solution {
         let nodes = model.nodes();
         let links = model.links();
@@ -455,19 +553,32 @@ impl Solver {
         let pressure: Vec<f64> = nodes.iter().zip(&head).map(|(n, h)| h - n.elevation).collect();
         let velocity: Vec<f64> = self.flow.iter().zip(&self.laws).map(|(q, law)| q / law.area).collect();
         let headloss: Vec<f64> = links.iter().map(|l| (head[l.from] - head[l.to]).abs()).collect();
-        let link_state: Vec<LinkState> = links
+        let link_state: Vec<LinkState> = tracker
+            .state
             .iter()
             .enumerate()
-            .map(|(k, l)| {
-                if l.status == LinkStatus::Closed {
-                    LinkState::Closed
-                } else if tracker.is_closed(k) {
-                    LinkState::CheckValveClosed
-                } else if !self.open[k] {
-                    LinkState::Disconnected
-                } else {
-                    LinkState::Open
-                }
+            .map(|(k, &s)| if s.carries_flow() && !self.open[k] { LinkState::Disconnected } else { s })
+            .collect();
+        let rho_g = model.options.water_properties().density * crate::units::GRAVITY;
+        let pumps: Vec<PumpResult> = links
+            .iter()
+            .enumerate()
+            .filter_map(|(k, l)| {
+                let pump = l.as_pump()?;
+                let q = self.flow[k];
+                let lift = head[l.to] - head[l.from];
+                let running = link_state[k] == LinkState::Open;
+                let efficiency = pump.efficiency.at(q, pump.speed);
+                let hydraulic_power = if running { rho_g * q * lift } else { 0.0 };
+                Some(PumpResult {
+                    link: k,
+                    head: if running { lift } else { 0.0 },
+                    speed: pump.speed,
+                    efficiency,
+                    hydraulic_power,
+                    shaft_power: hydraulic_power / efficiency,
+                    beyond_curve: running && self.laws[k].beyond_curve(q),
+                })
             })
             .collect();
         let mut warnings = Vec::new();
@@ -491,10 +602,20 @@ impl Solver {
                 });
             }
         }
+        for r in &pumps {
+            if r.beyond_curve {
+                warnings.push(Warning {
+                    element: Some(Element::Link(links[r.link].id.clone())),
+                    message: "runs past the end of its head curve (it adds no head and acts as a resistance)".into(),
+                });
+            }
+        }
         Solution {
             converged: true,
             iterations,
             status_changes,
+            ending,
+            pumps,
             demand: nodes.iter().map(|n| n.demand()).collect(),
             connected: self.connected.clone(),
             head,
