@@ -75,10 +75,11 @@ const NODE_KEYS: &[(&str, &[&str])] = &[
     ("reservoir", &["id", "kind", "head", "elevation", "x", "y", "zone"]),
     ("tank", &["id", "kind", "elevation", "level", "min_level", "max_level", "diameter", "x", "y", "zone"]),
 ];
-const LINK_KEYS: &[(&str, &[&str])] = &[(
-    "pipe",
-    &["id", "kind", "from", "to", "length", "diameter", "roughness", "minor_loss", "status", "check_valve"],
-)];
+const LINK_KEYS: &[(&str, &[&str])] = &[
+    ("pipe", &["id", "kind", "from", "to", "length", "diameter", "roughness", "minor_loss", "status", "check_valve"]),
+    ("pump", &["id", "kind", "from", "to", "head_curve", "power", "efficiency_curve", "efficiency", "speed", "status"]),
+    ("valve", &["id", "kind", "valve", "from", "to", "diameter", "setting", "minor_loss", "status"]),
+];
 
 fn read_inner(text: &str, format: Format) -> Result<Model, ModelError> {
     if text.trim().is_empty() {
@@ -166,7 +167,21 @@ impl Fields {
     }
 
     fn required_number(&mut self, key: &str) -> Result<f64, ModelError> {
-        self.number(key)?.ok_or_else(|| self.error(key, "is missing"))
+        self.number(key)?.ok_or_else(|| self.missing(key))
+    }
+
+    /// The error for a missing required key; when an unread key is a near-miss of it (a typo),
+    /// the error names that key instead, with the suggestion.
+    fn missing(&self, key: &str) -> ModelError {
+        let typo = self
+            .entries
+            .iter()
+            .filter(|(_, v)| v.is_some())
+            .find(|(k, _)| crate::units::edit_distance(&k.to_ascii_lowercase(), key) <= 2);
+        match typo {
+            Some((k, _)) => self.error(k, format!("is not a known key (did you mean '{key}'?); '{key}' is missing")),
+            None => self.error(key, "is missing"),
+        }
     }
 
     fn integer(&mut self, key: &str) -> Result<Option<i64>, ModelError> {
@@ -430,7 +445,7 @@ fn read_node(index: usize, value: Value, units: &UnitSystem) -> Result<Node, Mod
 fn read_link(index: usize, value: Value, model: &Model) -> Result<Link, ModelError> {
     let (mut f, keys, kind) = identify(value, Element::LinkEntry(index), Element::Link, LINK_KEYS, "pipe")?;
     let end = |key: &str, f: &mut Fields| -> Result<usize, ModelError> {
-        let id = f.string(key)?.ok_or_else(|| f.error(key, "is missing"))?;
+        let id = f.string(key)?.ok_or_else(|| f.missing(key))?;
         model.node_index(&id).ok_or_else(|| {
             let hint = suggest(&id, model.nodes().iter().map(|n| n.id.as_str()))
                 .map(|s| format!(" (did you mean '{s}'?)"))

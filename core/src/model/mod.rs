@@ -459,6 +459,10 @@ impl Model {
     fn check_node(node: &Node) -> Result<(), ModelError> {
         let el = node.element();
         check_id(&node.id, el.clone())?;
+        if let NodeKind::Reservoir { head } = &node.kind {
+            // Checked first: a reservoir's elevation defaults to its head.
+            check_value(&el, "head", *head, Rule::Finite)?;
+        }
         check_value(&el, "elevation", node.elevation, Rule::Finite)?;
         if let Some((x, y)) = node.coordinates {
             check_value(&el, "x", x, Rule::Finite)?;

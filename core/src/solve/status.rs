@@ -254,6 +254,18 @@ impl StatusTracker {
         }
     }
 
+    /// Holds a regulating valve fully open (it has nothing to regulate against).
+    pub fn hold_open(&mut self, model: &Model, k: usize) {
+        if let Some(v) = model.links()[k].as_valve() {
+            self.state[k] = match v.valve {
+                ValveType::PressureReducing => LinkState::OpenUpstreamLow,
+                ValveType::PressureSustaining => LinkState::OpenAboveSetting,
+                ValveType::FlowControl => LinkState::OpenBelowSetting,
+                ValveType::Throttle => LinkState::Open,
+            };
+        }
+    }
+
     /// The state device `k` should move to, with the size of the violated condition (m or m³/s).
     fn rule(&self, model: &Model, k: usize, o: &Observed<'_>) -> Option<(LinkState, f64)> {
         let l = &model.links()[k];
@@ -301,6 +313,8 @@ impl StatusTracker {
                         let set = model.nodes()[b].elevation + v.setting;
                         match state {
                             LinkState::Active if q < 0.0 => Some((LinkState::ValveClosed, -q)),
+                            // Another device holds the downstream head above this setting.
+                            LinkState::Active if hb > set + tau => Some((LinkState::ValveClosed, hb - set)),
                             LinkState::Active => {
                                 let available = ha - (o.open_loss)(k, q);
                                 (available < set - tau).then_some((LinkState::OpenUpstreamLow, set - available))
@@ -325,6 +339,8 @@ impl StatusTracker {
                         let set = model.nodes()[a].elevation + v.setting;
                         match state {
                             LinkState::Active if q < 0.0 => Some((LinkState::ValveClosed, -q)),
+                            // Another device holds the upstream head above this setting.
+                            LinkState::Active if ha > set + tau => Some((LinkState::OpenAboveSetting, ha - set)),
                             LinkState::Active => {
                                 let needed = hb + (o.open_loss)(k, q);
                                 (needed > set + tau).then_some((LinkState::OpenAboveSetting, needed - set))
