@@ -1,6 +1,8 @@
 //! Writers of solved snapshots: a readable table, JSON and CSV, all in the model's own units.
 
+use ringmain_core::model::{Valve, ValveType};
 use ringmain_core::solve::Warning;
+use ringmain_core::units::HORSEPOWER;
 use ringmain_core::{Model, NodeKind, Solution};
 use serde_json::{json, Value};
 use std::fmt::Write as _;
@@ -33,6 +35,36 @@ impl<'a> Report<'a> {
     }
     fn pressure(&self, head: f64) -> f64 {
         self.model.units.pressure.from_head(head, self.density)
+    }
+    /// Power in kW (SI models) or hp (US-customary models).
+    fn power(&self, watts: f64) -> f64 {
+        if self.model.units.is_us_customary() {
+            watts / HORSEPOWER
+        } else {
+            watts / 1e3
+        }
+    }
+    fn power_label(&self) -> &'static str {
+        if self.model.units.is_us_customary() {
+            "hp"
+        } else {
+            "kW"
+        }
+    }
+    /// A valve's setting in the model's units.
+    fn setting(&self, v: &Valve) -> f64 {
+        match v.valve {
+            ValveType::PressureReducing | ValveType::PressureSustaining => self.pressure(v.setting),
+            ValveType::FlowControl => self.flow(v.setting),
+            ValveType::Throttle => v.setting,
+        }
+    }
+    fn setting_unit(&self, v: &Valve) -> String {
+        match v.valve {
+            ValveType::PressureReducing | ValveType::PressureSustaining => self.model.units.pressure.label().into(),
+            ValveType::FlowControl => self.model.units.flow.label().into(),
+            ValveType::Throttle => "K".into(),
+        }
     }
 
     /// Supply of every fixed-head node (positive: into the network), in flow units.
@@ -88,6 +120,18 @@ impl<'a> Report<'a> {
                 if let Some(reason) = s.link_state[k].reason() {
                     v["reason"] = json!(reason);
                 }
+                if let Some(p) = s.pumps.iter().find(|p| p.link == k) {
+                    v["head_gain"] = finite_or_null(self.len(p.head));
+                    v["speed"] = json!(p.speed);
+                    v["efficiency"] = json!(p.efficiency * 100.0);
+                    v["hydraulic_power"] = finite_or_null(self.power(p.hydraulic_power));
+                    v["shaft_power"] = finite_or_null(self.power(p.shaft_power));
+                    v["beyond_curve"] = json!(p.beyond_curve);
+                }
+                if let Some(valve) = l.as_valve() {
+                    v["valve"] = json!(valve.valve.label());
+                    v["setting"] = json!(self.setting(valve));
+                }
                 v
             })
             .collect();
@@ -101,9 +145,10 @@ impl<'a> Report<'a> {
             "converged": s.converged,
             "iterations": s.iterations,
             "status_changes": s.status_changes,
+            "status_ending": s.ending.describe(),
             "units": {
                 "length": u.length.label(), "flow": u.flow.label(), "pressure": u.pressure.label(),
-                "velocity": u.velocity_label(), "diameter": u.diameter.label(),
+                "velocity": u.velocity_label(), "diameter": u.diameter.label(), "power": self.power_label(),
             },
             "summary": {
                 "max_mass_residual": self.flow(s.max_mass_residual),
@@ -240,10 +285,74 @@ impl<'a> Report<'a> {
                 status
             );
         }
+        if !s.pumps.is_empty() {
+            let _ = writeln!(out, "\nPumps");
+            let _ = writeln!(
+                out,
+                "{:<idw$}  {:>11}  {:>10}  {:>6}  {:>7}  {:>10}  state",
+                "id",
+                format!("flow {}", u.flow),
+                format!("head {}", u.length),
+                "speed",
+                "eff %",
+                format!("shaft {}", self.power_label()),
+            );
+            for p in &s.pumps {
+                let l = &m.links()[p.link];
+                let state = s.link_state[p.link];
+                let status = match state.reason() {
+                    Some(r) => format!("{}: {r}", state.status_label()),
+                    None if p.beyond_curve => "open: beyond the end of its curve".to_owned(),
+                    None => state.status_label().to_owned(),
+                };
+                let _ = writeln!(
+                    out,
+                    "{:<idw$}  {}  {}  {:>6.3}  {:>7.1}  {}  {}",
+                    l.id,
+                    num(self.flow(s.flow[p.link]), 11, 3),
+                    num(self.len(p.head), 10, 2),
+                    p.speed,
+                    p.efficiency * 100.0,
+                    num(self.power(p.shaft_power), 10, 2),
+                    status
+                );
+            }
+        }
+        let valves: Vec<(usize, &Valve)> =
+            m.links().iter().enumerate().filter_map(|(k, l)| Some((k, l.as_valve()?))).collect();
+        if !valves.is_empty() {
+            let _ = writeln!(out, "\nValves");
+            let _ = writeln!(
+                out,
+                "{:<idw$}  {:<19}  {:>12}  {:>11}  {:>10}  state",
+                "id",
+                "type",
+                "setting",
+                format!("flow {}", u.flow),
+                format!("loss {}", u.length),
+            );
+            for (k, v) in valves {
+                let state = s.link_state[k];
+                let status = match state.reason() {
+                    Some(r) => format!("{}: {r}", state.status_label()),
+                    None => state.status_label().to_owned(),
+                };
+                let _ = writeln!(
+                    out,
+                    "{:<idw$}  {:<19}  {:>12}  {}  {}  {}",
+                    m.links()[k].id,
+                    v.valve.label(),
+                    format!("{:.2} {}", self.setting(v), self.setting_unit(v)),
+                    num(self.flow(s.flow[k]), 11, 3),
+                    num(self.len(s.headloss[k]), 10, 3),
+                    status
+                );
+            }
+        }
         let _ = writeln!(out, "\nSummary");
         let _ = writeln!(out, "  iterations                {}", s.iterations);
         if s.status_changes > 0 {
-            let _ = writeln!(out, "  check-valve changes       {}", s.status_changes);
+            let _ = writeln!(out, "  device state changes      {} ({})", s.status_changes, s.ending.describe());
         }
         let _ = writeln!(out, "  largest mass residual     {:.3e} {}", self.flow(s.max_mass_residual), u.flow);
         let _ = writeln!(out, "  largest energy residual   {:.3e} {}", self.len(s.max_energy_residual), u.length);

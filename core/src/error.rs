@@ -134,7 +134,7 @@ pub enum SolveError {
         energy_residual: f64,
         /// Nodes with the largest last head change (m), worst first.
         worst_nodes: Vec<Offender>,
-        /// Links with the largest last flow change (m³/s), worst first.
+        /// Links with the largest energy-equation residual (m), worst first.
         worst_links: Vec<Offender>,
     },
     /// The status of devices kept changing between the same states.
@@ -175,16 +175,19 @@ impl fmt::Display for SolveError {
                 worst_nodes,
                 worst_links,
             } => {
-                write!(
-                    f,
-                    "the solver did not converge in {iterations} iterations: last largest head change {head_change:.3e} m, \
-                     relative flow change {flow_change:.3e}, largest energy residual {energy_residual:.3e} m"
-                )?;
+                let plural = if *iterations == 1 { "" } else { "s" };
+                write!(f, "the solver did not converge in {iterations} iteration{plural}: ")?;
+                if head_change.is_finite() {
+                    write!(f, "last largest head change {head_change:.3e} m, ")?;
+                } else {
+                    write!(f, "no head change measured yet, ")?;
+                }
+                write!(f, "relative flow change {flow_change:.3e}, largest energy residual {energy_residual:.3e} m")?;
                 if !worst_nodes.is_empty() {
                     write!(f, "; nodes still moving most: {}", list(worst_nodes, "m"))?;
                 }
                 if !worst_links.is_empty() {
-                    write!(f, "; links still changing most: {}", list(worst_links, "m3/s"))?;
+                    write!(f, "; links with the largest energy residual: {}", list(worst_links, "m"))?;
                 }
                 Ok(())
             }

@@ -6,9 +6,14 @@
 //! element id and the key.
 
 use super::doc::{self, Value};
-use super::{HeadLossLaw, HydraulicOptions, Link, LinkKind, LinkStatus, Model, Node, NodeKind, Pipe, Tank, WaterSpec};
+use super::{
+    HeadLossLaw, HydraulicOptions, Link, LinkKind, LinkStatus, Model, Node, NodeKind, Pipe, Pump, PumpDrive, Tank,
+    Valve, ValveType, WaterSpec,
+};
 use crate::error::{Element, ModelError};
+use crate::physics::pump::{Efficiency, HeadCurve};
 use crate::physics::WaterProperties;
+use crate::units::HORSEPOWER;
 use crate::units::{suggest, DiameterUnit, FlowUnit, LengthUnit, PressureUnit, RoughnessUnit, UnitSystem};
 use std::path::Path;
 
@@ -70,10 +75,11 @@ const NODE_KEYS: &[(&str, &[&str])] = &[
     ("reservoir", &["id", "kind", "head", "elevation", "x", "y", "zone"]),
     ("tank", &["id", "kind", "elevation", "level", "min_level", "max_level", "diameter", "x", "y", "zone"]),
 ];
-const LINK_KEYS: &[(&str, &[&str])] = &[(
-    "pipe",
-    &["id", "kind", "from", "to", "length", "diameter", "roughness", "minor_loss", "status", "check_valve"],
-)];
+const LINK_KEYS: &[(&str, &[&str])] = &[
+    ("pipe", &["id", "kind", "from", "to", "length", "diameter", "roughness", "minor_loss", "status", "check_valve"]),
+    ("pump", &["id", "kind", "from", "to", "head_curve", "power", "efficiency_curve", "efficiency", "speed", "status"]),
+    ("valve", &["id", "kind", "valve", "from", "to", "diameter", "setting", "minor_loss", "status"]),
+];
 
 fn read_inner(text: &str, format: Format) -> Result<Model, ModelError> {
     if text.trim().is_empty() {
@@ -161,7 +167,21 @@ impl Fields {
     }
 
     fn required_number(&mut self, key: &str) -> Result<f64, ModelError> {
-        self.number(key)?.ok_or_else(|| self.error(key, "is missing"))
+        self.number(key)?.ok_or_else(|| self.missing(key))
+    }
+
+    /// The error for a missing required key; when an unread key is a near-miss of it (a typo),
+    /// the error names that key instead, with the suggestion.
+    fn missing(&self, key: &str) -> ModelError {
+        let typo = self
+            .entries
+            .iter()
+            .filter(|(_, v)| v.is_some())
+            .find(|(k, _)| crate::units::edit_distance(&k.to_ascii_lowercase(), key) <= 2);
+        match typo {
+            Some((k, _)) => self.error(k, format!("is not a known key (did you mean '{key}'?); '{key}' is missing")),
+            None => self.error(key, "is missing"),
+        }
     }
 
     fn integer(&mut self, key: &str) -> Result<Option<i64>, ModelError> {
@@ -423,10 +443,9 @@ fn read_node(index: usize, value: Value, units: &UnitSystem) -> Result<Node, Mod
 }
 
 fn read_link(index: usize, value: Value, model: &Model) -> Result<Link, ModelError> {
-    let (mut f, keys, _kind) = identify(value, Element::LinkEntry(index), Element::Link, LINK_KEYS, "pipe")?;
-    let units = &model.units;
+    let (mut f, keys, kind) = identify(value, Element::LinkEntry(index), Element::Link, LINK_KEYS, "pipe")?;
     let end = |key: &str, f: &mut Fields| -> Result<usize, ModelError> {
-        let id = f.string(key)?.ok_or_else(|| f.error(key, "is missing"))?;
+        let id = f.string(key)?.ok_or_else(|| f.missing(key))?;
         model.node_index(&id).ok_or_else(|| {
             let hint = suggest(&id, model.nodes().iter().map(|n| n.id.as_str()))
                 .map(|s| format!(" (did you mean '{s}'?)"))
@@ -436,16 +455,37 @@ fn read_link(index: usize, value: Value, model: &Model) -> Result<Link, ModelErr
     };
     let from = end("from", &mut f)?;
     let to = end("to", &mut f)?;
-    let status = match f.string("status")?.as_deref() {
-        None | Some("open") => LinkStatus::Open,
-        Some("closed") => LinkStatus::Closed,
-        Some(other) => {
-            return Err(f.error(
-                "status",
-                format!("unknown status \"{}\"; expected \"open\" or \"closed\"", crate::error::printable(other)),
-            ))
+    let status_text = f.string("status")?;
+    let (kind, status) = match kind.as_str() {
+        "pipe" => (LinkKind::Pipe(read_pipe(&mut f, model)?), link_status(&f, status_text.as_deref(), false)?.0),
+        "pump" => (LinkKind::Pump(read_pump(&mut f, model)?), link_status(&f, status_text.as_deref(), false)?.0),
+        _ => {
+            let (status, automatic) = link_status(&f, status_text.as_deref(), true)?;
+            (LinkKind::Valve(read_valve(&mut f, model, automatic)?), status)
         }
     };
+    let Some(Element::Link(id)) = f.element.clone() else { unreachable!("identify sets the element") };
+    f.finish_with(keys, &all_keys(LINK_KEYS), kind.label())?;
+    Ok(Link { id, from, to, status, kind })
+}
+
+/// Reads `status`: open | closed, and for valves also automatic (the default for valves).
+/// Returns the status and whether a valve is automatic.
+fn link_status(f: &Fields, text: Option<&str>, valve: bool) -> Result<(LinkStatus, bool), ModelError> {
+    match (text, valve) {
+        (None, true) | (Some("automatic"), true) => Ok((LinkStatus::Open, true)),
+        (None, false) | (Some("open"), _) => Ok((LinkStatus::Open, false)),
+        (Some("closed"), _) => Ok((LinkStatus::Closed, false)),
+        (Some(other), _) => {
+            let expected = if valve { "\"automatic\", \"open\" or \"closed\"" } else { "\"open\" or \"closed\"" };
+            Err(f
+                .error("status", format!("unknown status \"{}\"; expected {expected}", crate::error::printable(other))))
+        }
+    }
+}
+
+fn read_pipe(f: &mut Fields, model: &Model) -> Result<Pipe, ModelError> {
+    let units = &model.units;
     let roughness = f.required_number("roughness")?;
     let pipe = Pipe {
         length: units.length.to_si(f.required_number("length")?),
@@ -469,7 +509,108 @@ fn read_link(index: usize, value: Value, model: &Model) -> Result<Link, ModelErr
             ),
         ));
     }
-    let Some(Element::Link(id)) = f.element.clone() else { unreachable!("identify sets the element") };
-    f.finish_with(keys, &all_keys(LINK_KEYS), "pipe")?;
-    Ok(Link { id, from, to, status, kind: LinkKind::Pipe(pipe) })
+    Ok(pipe)
+}
+
+/// Reads an array of `[x, y]` pairs.
+fn pairs(f: &mut Fields, key: &str, what: &str) -> Result<Option<Vec<(f64, f64)>>, ModelError> {
+    let Some(value) = f.take(key) else { return Ok(None) };
+    let Value::Array(items) = value else {
+        return Err(f.error(key, format!("must be an array of [{what}] pairs, found {}", value.kind())));
+    };
+    let mut out = Vec::with_capacity(items.len());
+    for (i, item) in items.into_iter().enumerate() {
+        let pair = match &item {
+            Value::Array(xy) if xy.len() == 2 => {
+                let num = |v: &Value| match v {
+                    Value::Int(i) => Some(*i as f64),
+                    Value::Float(x) => Some(*x),
+                    _ => None,
+                };
+                num(&xy[0]).zip(num(&xy[1]))
+            }
+            _ => None,
+        };
+        match pair {
+            Some((x, y)) if x.is_finite() && y.is_finite() => out.push((x, y)),
+            _ => return Err(f.error(key, format!("point {} must be a pair of finite numbers [{what}]", i + 1))),
+        }
+    }
+    Ok(Some(out))
+}
+
+fn read_pump(f: &mut Fields, model: &Model) -> Result<Pump, ModelError> {
+    let units = &model.units;
+    let curve = pairs(f, "head_curve", "flow, head")?;
+    let power = f.number("power")?;
+    let drive = match (curve, power) {
+        (Some(_), Some(_)) => return Err(f.error("power", "give either head_curve or power, not both")),
+        (None, None) => return Err(f.error("head_curve", "is missing (or give power for a constant-power pump)")),
+        (Some(points), None) => {
+            let points: Vec<(f64, f64)> =
+                points.into_iter().map(|(q, h)| (units.flow.to_si(q), units.length.to_si(h))).collect();
+            let curve = HeadCurve::fit(&points).map_err(|e| f.error("head_curve", e.0))?;
+            PumpDrive::Curve { points, curve }
+        }
+        (None, Some(p)) => {
+            // kW in SI models, horsepower in US-customary models.
+            let watts = if units.is_us_customary() { p * HORSEPOWER } else { p * 1e3 };
+            PumpDrive::Power(watts)
+        }
+    };
+    let eff_points = pairs(f, "efficiency_curve", "flow, percent")?;
+    let eff_const = f.number("efficiency")?;
+    let (efficiency_points, efficiency) = match (eff_points, eff_const) {
+        (Some(_), Some(_)) => return Err(f.error("efficiency", "give either efficiency_curve or efficiency, not both")),
+        (Some(points), None) => {
+            let points: Vec<(f64, f64)> = points.into_iter().map(|(q, e)| (units.flow.to_si(q), e / 100.0)).collect();
+            let eff = Efficiency::fit(&points).map_err(|e| f.error("efficiency_curve", e.0))?;
+            (Some(points), eff)
+        }
+        (None, Some(e)) => {
+            if !(e > 0.0 && e <= 100.0) {
+                return Err(f.error("efficiency", format!("must be above 0 and at most 100 percent, found {e}")));
+            }
+            (None, Efficiency::Constant(e / 100.0))
+        }
+        (None, None) => (None, Efficiency::Constant(Efficiency::DEFAULT)),
+    };
+    let speed = f.number("speed")?.unwrap_or(1.0);
+    Ok(Pump { drive, efficiency_points, efficiency, speed })
+}
+
+fn read_valve(f: &mut Fields, model: &Model, automatic: bool) -> Result<Valve, ModelError> {
+    let units = &model.units;
+    let text = f.string("valve")?.ok_or_else(|| {
+        f.error(
+            "valve",
+            "is missing; expected \"pressure-reducing\", \"pressure-sustaining\", \"flow-control\" or \"throttle\"",
+        )
+    })?;
+    let Some(valve) = ValveType::parse(&text) else {
+        let hint = suggest(&text, ValveType::ALL.iter().map(|v| v.label()))
+            .map(|s| format!(" (did you mean \"{s}\"?)"))
+            .unwrap_or_default();
+        return Err(f.error(
+            "valve",
+            format!(
+                "unknown valve type \"{}\"{hint}; expected \"pressure-reducing\", \"pressure-sustaining\", \"flow-control\" or \"throttle\"",
+                crate::error::printable(&text)
+            ),
+        ));
+    };
+    let raw = f.required_number("setting")?;
+    let density = model.options.water_properties().density;
+    let setting = match valve {
+        ValveType::PressureReducing | ValveType::PressureSustaining => units.pressure.to_head(raw, density),
+        ValveType::FlowControl => units.flow.to_si(raw),
+        ValveType::Throttle => raw,
+    };
+    Ok(Valve {
+        valve,
+        diameter: units.diameter.to_si(f.required_number("diameter")?),
+        setting,
+        minor_loss: f.number("minor_loss")?.unwrap_or(0.0),
+        automatic,
+    })
 }

@@ -16,6 +16,7 @@ pub mod file;
 pub mod write;
 
 use crate::error::{Element, ModelError};
+use crate::physics::pump::{Efficiency, HeadCurve};
 use crate::physics::WaterProperties;
 use crate::units::UnitSystem;
 use std::collections::HashMap;
@@ -221,12 +222,93 @@ pub struct Pipe {
     pub check_valve: bool,
 }
 
+/// How a pump delivers its head.
+#[derive(Clone, Debug, PartialEq)]
+pub enum PumpDrive {
+    /// A head curve; the points as given (m³/s, m) and the fitted curve.
+    Curve {
+        /// The points as given, SI.
+        points: Vec<(f64, f64)>,
+        /// The fitted curve.
+        curve: HeadCurve,
+    },
+    /// A constant hydraulic power, W: `H = P / (ρ g Q)`.
+    Power(f64),
+}
+
+/// A pump. Flow runs from `from` (suction) to `to` (discharge) only.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Pump {
+    /// Head curve or constant power.
+    pub drive: PumpDrive,
+    /// Efficiency points as given (m³/s, fraction), if a curve was given.
+    pub efficiency_points: Option<Vec<(f64, f64)>>,
+    /// Efficiency used for shaft power.
+    pub efficiency: Efficiency,
+    /// Relative speed (1 = the speed of the curve); 0 stops the pump.
+    pub speed: f64,
+}
+
+/// The four kinds of control valve.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum ValveType {
+    /// Holds the downstream pressure at the setting while the upstream pressure is higher.
+    PressureReducing,
+    /// Holds the upstream pressure at the setting.
+    PressureSustaining,
+    /// Holds the flow at the setting when the head available allows it.
+    FlowControl,
+    /// A set loss coefficient K.
+    Throttle,
+}
+
+impl ValveType {
+    /// Every valve type.
+    pub const ALL: &'static [ValveType] =
+        &[ValveType::PressureReducing, ValveType::PressureSustaining, ValveType::FlowControl, ValveType::Throttle];
+
+    /// The name used in model files.
+    pub fn label(self) -> &'static str {
+        match self {
+            ValveType::PressureReducing => "pressure-reducing",
+            ValveType::PressureSustaining => "pressure-sustaining",
+            ValveType::FlowControl => "flow-control",
+            ValveType::Throttle => "throttle",
+        }
+    }
+
+    /// Parses a model-file name.
+    pub fn parse(text: &str) -> Option<Self> {
+        Self::ALL.iter().copied().find(|v| v.label() == text)
+    }
+}
+
+/// A control valve.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Valve {
+    /// Which rule it follows.
+    pub valve: ValveType,
+    /// Diameter, m.
+    pub diameter: f64,
+    /// Setting in SI: pressure head (m) for pressure valves, m³/s for flow control, K for throttle.
+    pub setting: f64,
+    /// Loss coefficient when fully open.
+    pub minor_loss: f64,
+    /// Whether the valve follows its rule (`automatic`); `false` holds it fully open unless the
+    /// link's status is closed.
+    pub automatic: bool,
+}
+
 /// What a link is.
 #[derive(Clone, Debug, PartialEq)]
 #[non_exhaustive]
 pub enum LinkKind {
     /// A pipe.
     Pipe(Pipe),
+    /// A pump.
+    Pump(Pump),
+    /// A control valve.
+    Valve(Valve),
 }
 
 impl LinkKind {
@@ -234,6 +316,8 @@ impl LinkKind {
     pub fn label(&self) -> &'static str {
         match self {
             LinkKind::Pipe(_) => "pipe",
+            LinkKind::Pump(_) => "pump",
+            LinkKind::Valve(_) => "valve",
         }
     }
 }
@@ -258,13 +342,32 @@ impl Link {
     pub fn as_pipe(&self) -> Option<&Pipe> {
         match &self.kind {
             LinkKind::Pipe(p) => Some(p),
+            _ => None,
         }
     }
 
-    /// The flow diameter used for velocities, m.
-    pub fn diameter(&self) -> f64 {
+    /// The pump data, when the link is a pump.
+    pub fn as_pump(&self) -> Option<&Pump> {
         match &self.kind {
-            LinkKind::Pipe(p) => p.diameter,
+            LinkKind::Pump(p) => Some(p),
+            _ => None,
+        }
+    }
+
+    /// The valve data, when the link is a valve.
+    pub fn as_valve(&self) -> Option<&Valve> {
+        match &self.kind {
+            LinkKind::Valve(v) => Some(v),
+            _ => None,
+        }
+    }
+
+    /// The flow diameter used for velocities, m (`None` for pumps).
+    pub fn diameter(&self) -> Option<f64> {
+        match &self.kind {
+            LinkKind::Pipe(p) => Some(p.diameter),
+            LinkKind::Valve(v) => Some(v.diameter),
+            LinkKind::Pump(_) => None,
         }
     }
 
@@ -356,6 +459,10 @@ impl Model {
     fn check_node(node: &Node) -> Result<(), ModelError> {
         let el = node.element();
         check_id(&node.id, el.clone())?;
+        if let NodeKind::Reservoir { head } = &node.kind {
+            // Checked first: a reservoir's elevation defaults to its head.
+            check_value(&el, "head", *head, Rule::Finite)?;
+        }
         check_value(&el, "elevation", node.elevation, Rule::Finite)?;
         if let Some((x, y)) = node.coordinates {
             check_value(&el, "x", x, Rule::Finite)?;
@@ -427,6 +534,40 @@ impl Model {
                     e
                 })?;
                 check_value(&el, "minor_loss", p.minor_loss, Rule::NonNegative)?;
+            }
+            LinkKind::Pump(p) => {
+                check_value(&el, "speed", p.speed, Rule::NonNegative)?;
+                match &p.drive {
+                    PumpDrive::Power(w) => {
+                        check_value(&el, "power", *w, Rule::Positive)?;
+                    }
+                    PumpDrive::Curve { points, .. } => {
+                        HeadCurve::fit(points)
+                            .map_err(|e| ModelError::at(Some(el.clone()), Some("head_curve"), e.0))?;
+                    }
+                }
+                if let Some(points) = &p.efficiency_points {
+                    Efficiency::fit(points)
+                        .map_err(|e| ModelError::at(Some(el.clone()), Some("efficiency_curve"), e.0))?;
+                }
+                if let Efficiency::Constant(e) = p.efficiency {
+                    if !(e > 0.0 && e <= 1.0) {
+                        return Err(ModelError::at(
+                            Some(el),
+                            Some("efficiency"),
+                            "must be above 0 and at most 100 percent",
+                        ));
+                    }
+                }
+            }
+            LinkKind::Valve(v) => {
+                check_value(&el, "diameter", v.diameter, Rule::Positive)?;
+                check_value(&el, "minor_loss", v.minor_loss, Rule::NonNegative)?;
+                let rule = match v.valve {
+                    ValveType::PressureReducing | ValveType::PressureSustaining => Rule::Finite,
+                    ValveType::FlowControl | ValveType::Throttle => Rule::NonNegative,
+                };
+                check_value(&el, "setting", v.setting, rule)?;
             }
         }
         Ok(())
@@ -501,6 +642,28 @@ impl Model {
             }
         }
         self.replace_node(index, node)
+    }
+
+    /// Sets a pump's relative speed.
+    pub fn set_pump_speed(&mut self, index: usize, speed: f64) -> Result<(), ModelError> {
+        let mut link =
+            self.links.get(index).cloned().ok_or_else(|| ModelError::new(format!("no link at index {index}")))?;
+        match &mut link.kind {
+            LinkKind::Pump(p) => p.speed = speed,
+            _ => return Err(ModelError::at(Some(link.element()), Some("speed"), "only pumps have a speed")),
+        }
+        self.replace_link(index, link)
+    }
+
+    /// Sets a valve's setting (SI: pressure head in m, flow in m³/s, or K).
+    pub fn set_valve_setting(&mut self, index: usize, setting: f64) -> Result<(), ModelError> {
+        let mut link =
+            self.links.get(index).cloned().ok_or_else(|| ModelError::new(format!("no link at index {index}")))?;
+        match &mut link.kind {
+            LinkKind::Valve(v) => v.setting = setting,
+            _ => return Err(ModelError::at(Some(link.element()), Some("setting"), "only valves have a setting")),
+        }
+        self.replace_link(index, link)
     }
 
     /// Sets a link's status.

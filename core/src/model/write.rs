@@ -4,7 +4,9 @@
 //! conversions); defaults are written out explicitly so that the file documents itself.
 
 use super::file::Format;
-use super::{HeadLossLaw, LinkKind, LinkStatus, Model, NodeKind, WaterSpec};
+use super::{HeadLossLaw, LinkKind, LinkStatus, Model, NodeKind, PumpDrive, ValveType, WaterSpec};
+use crate::physics::pump::Efficiency;
+use crate::units::HORSEPOWER;
 use serde_json::{json, Map, Value};
 
 /// The model as a JSON value tree in its own units.
@@ -12,6 +14,7 @@ pub fn to_value(model: &Model) -> Value {
     let u = &model.units;
     let o = &model.options;
     let len = |v: f64| u.length.from_si(v);
+    let density = o.water_properties().density;
     let mut hydraulics = Map::new();
     hydraulics.insert("headloss".into(), json!(o.headloss.label()));
     match o.water {
@@ -81,6 +84,47 @@ pub fn to_value(model: &Model) -> Value {
                     m.insert("roughness".into(), json!(r));
                     m.insert("minor_loss".into(), json!(p.minor_loss));
                     m.insert("check_valve".into(), json!(p.check_valve));
+                }
+                LinkKind::Pump(p) => {
+                    match &p.drive {
+                        PumpDrive::Curve { points, .. } => {
+                            let pts: Vec<Value> =
+                                points.iter().map(|&(q, h)| json!([u.flow.from_si(q), len(h)])).collect();
+                            m.insert("head_curve".into(), Value::Array(pts));
+                        }
+                        PumpDrive::Power(w) => {
+                            let p = if u.is_us_customary() { w / HORSEPOWER } else { w / 1e3 };
+                            m.insert("power".into(), json!(p));
+                        }
+                    }
+                    match (&p.efficiency_points, &p.efficiency) {
+                        (Some(points), _) => {
+                            let pts: Vec<Value> =
+                                points.iter().map(|&(q, e)| json!([u.flow.from_si(q), e * 100.0])).collect();
+                            m.insert("efficiency_curve".into(), Value::Array(pts));
+                        }
+                        (None, Efficiency::Constant(e)) => {
+                            m.insert("efficiency".into(), json!(e * 100.0));
+                        }
+                        (None, Efficiency::Curve { .. }) => {}
+                    }
+                    m.insert("speed".into(), json!(p.speed));
+                }
+                LinkKind::Valve(v) => {
+                    m.insert("valve".into(), json!(v.valve.label()));
+                    m.insert("diameter".into(), json!(u.diameter.from_si(v.diameter)));
+                    let setting = match v.valve {
+                        ValveType::PressureReducing | ValveType::PressureSustaining => {
+                            u.pressure.from_head(v.setting, density)
+                        }
+                        ValveType::FlowControl => u.flow.from_si(v.setting),
+                        ValveType::Throttle => v.setting,
+                    };
+                    m.insert("setting".into(), json!(setting));
+                    m.insert("minor_loss".into(), json!(v.minor_loss));
+                    if !v.automatic && l.status == LinkStatus::Open {
+                        m.insert("status".into(), json!("open"));
+                    }
                 }
             }
             if l.status == LinkStatus::Closed {

@@ -1,10 +1,11 @@
-//! Physics of single elements: water properties, friction laws, minor losses.
+//! Physics of single elements: water properties, friction laws, minor losses, pump curves.
 //!
 //! Entry points: [`water::WaterProperties::at_celsius`], [`friction::Friction`] (the friction part
 //! of a pipe's head loss, with coefficients computed once), [`friction::minor_loss_coefficient`].
 //! The network solver combines them per link in [`crate::solve`].
 
 pub mod friction;
+pub mod pump;
 pub mod water;
 
 pub use friction::{friction_factor, minor_loss_coefficient, Friction};

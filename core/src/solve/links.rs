@@ -1,19 +1,41 @@
 //! Head-loss laws of links as the solver sees them: `h(Q)` and `dh/dQ`, coefficients computed once.
+//!
+//! A pipe loses head by friction and minor losses; a fully open valve by its loss coefficient; a
+//! pump *gains* head, which is written as a negative loss `h(Q) = −H_pump(Q)` so that every law is
+//! increasing in Q and the gradient method's matrix stays symmetric positive definite.
 
-use crate::model::{HeadLossLaw, Link, LinkKind, Model};
+use crate::model::{HeadLossLaw, Link, LinkKind, Model, PumpDrive, ValveType};
+use crate::physics::pump::HeadCurve;
 use crate::physics::{minor_loss_coefficient, Friction};
+use crate::units::GRAVITY;
 use std::f64::consts::PI;
 
-/// Velocity (m/s) that sets each link's smallest derivative; see [`LinkLaw::min_slope`].
+/// Velocity (m/s) that sets each pipe's and valve's smallest derivative; see [`LinkLaw::min_slope`].
 pub const REGULARISATION_VELOCITY: f64 = 1e-4;
+/// Smallest slope dh/dQ of any link, s/m², so that a lossless open valve still has a finite
+/// conductance in the matrix.
+pub const MIN_SLOPE: f64 = 1e-4;
+/// Head (m) at which a constant-power pump's law `H = P/(ρgQ)` is continued by its tangent
+/// towards zero flow; no distribution pump works above it, and the tangent keeps the law finite.
+pub const POWER_PUMP_HEAD_LIMIT: f64 = 300.0;
+
+#[derive(Clone, Debug, PartialEq)]
+enum Kind {
+    /// Friction (pipes only) plus `m Q|Q|`.
+    Resistance { friction: Option<Friction>, minor: f64 },
+    /// `h = −s² H(Q/s)`.
+    Curve { curve: HeadCurve, speed: f64 },
+    /// `h = −P/(ρ g Q)` above `q_c`, tangent below.
+    Power { power_over_rho_g: f64, q_c: f64 },
+    /// A pump at zero speed: never open (kept closed by the status logic).
+    Stopped,
+}
 
 /// The head-loss law of one link.
-#[derive(Clone, Copy, Debug, PartialEq)]
+#[derive(Clone, Debug, PartialEq)]
 pub struct LinkLaw {
-    friction: Friction,
-    /// m in `h_minor = m Q|Q|`.
-    minor: f64,
-    /// Flow area, m², for velocities.
+    kind: Kind,
+    /// Flow area, m², for velocities (zero for pumps).
     pub area: f64,
     /// Smallest slope dh/dQ used in the Newton matrix.
     ///
@@ -21,26 +43,77 @@ pub struct LinkLaw {
     /// method's matrix singular (Elhay & Simpson 2011, "Dealing with zero flows in solving the
     /// nonlinear equations for water distribution systems", J. Hydraul. Eng. 137(10)). We
     /// regularise the Jacobian only: the slope is floored at its value at the flow of a velocity of
-    /// [`REGULARISATION_VELOCITY`]. The residual `h(Q) − ΔH` is always the exact law, so a
-    /// converged answer satisfies the unmodified equations; only the step near zero flow changes.
+    /// [`REGULARISATION_VELOCITY`] (and never below [`MIN_SLOPE`]). The residual `h(Q) − ΔH` is
+    /// always the exact law, so a converged answer satisfies the unmodified equations; only the
+    /// step near zero flow changes.
     pub min_slope: f64,
+    /// Flow to start from on a cold start, m³/s.
+    pub initial_flow: f64,
 }
 
+/// Initial velocity of pipes and valves on a cold start, m/s (common practice: about 1 ft/s).
+pub const INITIAL_VELOCITY: f64 = 0.3;
+
 impl LinkLaw {
-    /// The law of a link of `model`.
+    /// The law of a link of `model` when it is open (for valves: fully open, or throttling at the
+    /// setting for an automatic throttle valve).
     pub fn new(model: &Model, link: &Link) -> Self {
-        let nu = model.options.water_properties().kinematic_viscosity;
+        let water = model.options.water_properties();
+        let resistance = |friction: Option<Friction>, k: f64, d: f64| {
+            let area = PI * d * d / 4.0;
+            let mut law = LinkLaw {
+                kind: Kind::Resistance { friction, minor: minor_loss_coefficient(k, d) },
+                area,
+                min_slope: 0.0,
+                initial_flow: INITIAL_VELOCITY * area,
+            };
+            law.min_slope = law.evaluate_exact(REGULARISATION_VELOCITY * area).1.max(MIN_SLOPE);
+            law
+        };
         match &link.kind {
             LinkKind::Pipe(p) => {
                 let friction = match model.options.headloss {
                     HeadLossLaw::HazenWilliams => Friction::hazen_williams(p.length, p.diameter, p.roughness),
-                    HeadLossLaw::DarcyWeisbach => Friction::darcy_weisbach(p.length, p.diameter, p.roughness, nu),
+                    HeadLossLaw::DarcyWeisbach => {
+                        Friction::darcy_weisbach(p.length, p.diameter, p.roughness, water.kinematic_viscosity)
+                    }
                 };
-                let area = PI * p.diameter * p.diameter / 4.0;
-                let mut law =
-                    LinkLaw { friction, minor: minor_loss_coefficient(p.minor_loss, p.diameter), area, min_slope: 0.0 };
-                law.min_slope = law.evaluate_exact(REGULARISATION_VELOCITY * area).1;
-                law
+                resistance(Some(friction), p.minor_loss, p.diameter)
+            }
+            LinkKind::Valve(v) => {
+                let k = if v.valve == ValveType::Throttle && v.automatic { v.setting } else { v.minor_loss };
+                resistance(None, k, v.diameter)
+            }
+            LinkKind::Pump(p) => {
+                if p.speed <= 0.0 {
+                    return LinkLaw { kind: Kind::Stopped, area: 0.0, min_slope: MIN_SLOPE, initial_flow: 0.0 };
+                }
+                match &p.drive {
+                    PumpDrive::Curve { curve, .. } => {
+                        // A characteristic flow: the run-out, else the last point, of the curve at speed.
+                        let q_char = curve.runout().or(curve.last_point_flow()).unwrap_or(0.01) * p.speed;
+                        let law = LinkLaw {
+                            kind: Kind::Curve { curve: curve.clone(), speed: p.speed },
+                            area: 0.0,
+                            min_slope: 0.0,
+                            initial_flow: 0.5 * q_char,
+                        };
+                        // Floor: the mean slope shutoff-to-run-out, times 1e-3.
+                        let shutoff = curve.shutoff() * p.speed * p.speed;
+                        LinkLaw { min_slope: (1e-3 * shutoff / q_char.max(1e-9)).max(MIN_SLOPE), ..law }
+                    }
+                    PumpDrive::Power(watts) => {
+                        let power_over_rho_g = watts * p.speed.powi(3) / (water.density * GRAVITY);
+                        let q_c = power_over_rho_g / POWER_PUMP_HEAD_LIMIT;
+                        LinkLaw {
+                            kind: Kind::Power { power_over_rho_g, q_c },
+                            area: 0.0,
+                            min_slope: MIN_SLOPE,
+                            // The flow at which it would lift 30 m.
+                            initial_flow: power_over_rho_g / 30.0,
+                        }
+                    }
+                }
             }
         }
     }
@@ -48,8 +121,21 @@ impl LinkLaw {
     /// Exact head loss and slope at flow `q`.
     #[inline]
     pub fn evaluate_exact(&self, q: f64) -> (f64, f64) {
-        let (h, d) = self.friction.evaluate(q);
-        (h + self.minor * q * q.abs(), d + 2.0 * self.minor * q.abs())
+        match &self.kind {
+            Kind::Resistance { friction, minor } => {
+                let (h, d) = friction.map_or((0.0, 0.0), |f| f.evaluate(q));
+                (h + minor * q * q.abs(), d + 2.0 * minor * q.abs())
+            }
+            Kind::Curve { curve, speed } => {
+                let (h, d) = curve.head_at_speed(q, *speed);
+                (-h, -d)
+            }
+            Kind::Power { power_over_rho_g, q_c } => {
+                let (h, d) = power_head(*power_over_rho_g, *q_c, q);
+                (-h, -d)
+            }
+            Kind::Stopped => (0.0, 0.0),
+        }
     }
 
     /// Exact head loss and the regularised slope used in the Newton matrix.
@@ -57,5 +143,29 @@ impl LinkLaw {
     pub fn evaluate(&self, q: f64) -> (f64, f64) {
         let (h, d) = self.evaluate_exact(q);
         (h, d.max(self.min_slope))
+    }
+
+    /// For pumps: the head at zero flow at the current speed (the most head it can hold against).
+    pub fn shutoff_head(&self) -> Option<f64> {
+        match &self.kind {
+            Kind::Curve { curve, speed } => Some(curve.shutoff() * speed * speed),
+            Kind::Power { power_over_rho_g, q_c } => Some(power_head(*power_over_rho_g, *q_c, 0.0).0),
+            _ => None,
+        }
+    }
+
+    /// For pumps: whether the flow `q` is past the curve's run-out (head negative).
+    pub fn beyond_curve(&self, q: f64) -> bool {
+        matches!(self.kind, Kind::Curve { .. } | Kind::Power { .. }) && self.evaluate_exact(q).0 > 0.0
+    }
+}
+
+/// `H = P'/Q` with `P' = P/(ρg)` above `q_c`, its tangent at `q_c` below.
+fn power_head(p: f64, q_c: f64, q: f64) -> (f64, f64) {
+    if q >= q_c {
+        (p / q, -p / (q * q))
+    } else {
+        let (h, d) = (p / q_c, -p / (q_c * q_c));
+        (h + d * (q - q_c), d)
     }
 }

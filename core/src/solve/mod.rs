@@ -34,7 +34,7 @@ pub mod status;
 pub mod topology;
 
 use crate::error::{Element, Offender, SolveError};
-use crate::model::{LinkStatus, Model};
+use crate::model::{LinkKind, Model, ValveType};
 use factor::Factor;
 use links::LinkLaw;
 use pattern::{Pattern, NONE};
@@ -66,40 +66,26 @@ impl SolveOptions {
     }
 }
 
-/// Initial velocity of every link on a cold start, m/s (common practice: about 1 ft/s).
-pub const INITIAL_VELOCITY: f64 = 0.3;
+pub use links::INITIAL_VELOCITY;
+pub use status::{Ending, LinkState};
 
-/// The state of a link in a solution.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
-#[non_exhaustive]
-pub enum LinkState {
-    /// Open and carrying flow.
-    Open,
-    /// Closed by the user.
-    Closed,
-    /// A check valve closed against reverse flow.
-    CheckValveClosed,
-    /// Open, but both ends are cut off from every fixed head.
-    Disconnected,
-}
-
-impl LinkState {
-    /// The status word written in results: "open" or "closed".
-    pub fn status_label(self) -> &'static str {
-        match self {
-            LinkState::Open | LinkState::Disconnected => "open",
-            LinkState::Closed | LinkState::CheckValveClosed => "closed",
-        }
-    }
-
-    /// Why a link is in this state, when there is more to say than open or closed.
-    pub fn reason(self) -> Option<&'static str> {
-        match self {
-            LinkState::Open | LinkState::Closed => None,
-            LinkState::CheckValveClosed => Some("check valve closed against reverse flow"),
-            LinkState::Disconnected => Some("no open path to a reservoir or tank"),
-        }
-    }
+/// Results of one pump in a solution (SI).
+#[derive(Clone, Debug, PartialEq)]
+pub struct PumpResult {
+    /// Index of the pump's link.
+    pub link: usize,
+    /// Head added, `H_to − H_from`, m.
+    pub head: f64,
+    /// Relative speed.
+    pub speed: f64,
+    /// Efficiency used, fraction.
+    pub efficiency: f64,
+    /// Hydraulic power ρ g Q H, W.
+    pub hydraulic_power: f64,
+    /// Shaft power ρ g Q H / η, W.
+    pub shaft_power: f64,
+    /// Whether it runs past the end of its curve (head below zero).
+    pub beyond_curve: bool,
 }
 
 /// Something an engineer should look at in a solved network.
@@ -118,8 +104,12 @@ pub struct Solution {
     pub converged: bool,
     /// Newton iterations done (linear solves).
     pub iterations: u32,
-    /// Check-valve state changes made on the way.
+    /// Device state changes made on the way (check valves, pumps, control valves).
     pub status_changes: u32,
+    /// Which rule ended the status logic.
+    pub ending: Ending,
+    /// Results of every pump, in link order.
+    pub pumps: Vec<PumpResult>,
     /// Head per node, m; NaN for disconnected junctions.
     pub head: Vec<f64>,
     /// Pressure head per node, m; NaN for disconnected junctions.
@@ -130,7 +120,7 @@ pub struct Solution {
     pub connected: Vec<bool>,
     /// Flow per link, m³/s, positive from `from` to `to`.
     pub flow: Vec<f64>,
-    /// Mean velocity per link, m/s, same sign as the flow.
+    /// Mean velocity per link, m/s, same sign as the flow (NaN for pumps).
     pub velocity: Vec<f64>,
     /// Head difference across the link in the direction of flow (|H_from − H_to|), m; for a closed
     /// link, the head difference it holds; NaN when an end is disconnected.
@@ -192,7 +182,11 @@ pub struct Solver {
     rhs: Vec<f64>,
     x_old: Vec<f64>,
     open: Vec<bool>,
+    on_law: Vec<bool>,
     connected: Vec<bool>,
+    known_head: Vec<f64>,
+    /// Σ|demand| floored at 1e-3 m³/s: the scale of relative flow changes.
+    demand_scale: f64,
     stack: Vec<u32>,
 }
 
@@ -215,7 +209,10 @@ impl Solver {
             rhs: vec![0.0; pattern.n],
             x_old: vec![0.0; pattern.n],
             open: vec![false; n_links],
+            on_law: vec![false; n_links],
             connected: vec![false; n_nodes],
+            known_head: vec![f64::NAN; n_nodes],
+            demand_scale: 0.0,
             stack: Vec::with_capacity(n_nodes),
             pattern,
         })
@@ -243,9 +240,10 @@ impl Solver {
         }
         if !(options.warm_start && self.has_previous) {
             for (q, law) in self.flow.iter_mut().zip(&self.laws) {
-                *q = INITIAL_VELOCITY * law.area;
+                *q = law.initial_flow;
             }
         }
+        self.demand_scale = model.nodes().iter().map(|n| n.demand().abs()).sum::<f64>().max(1e-3);
         let result = self.iterate(model, options);
         self.has_previous = result.is_ok();
         result
@@ -261,36 +259,27 @@ impl Solver {
         let mut status_changes = 0u32;
         let mut head_change = f64::INFINITY;
         let mut flow_change = f64::INFINITY;
-        let mut connectivity_stale = true;
+        let mut states_stale = true;
 
         loop {
-            if connectivity_stale {
-                for (k, l) in links.iter().enumerate() {
-                    self.open[k] = l.status == LinkStatus::Open && !tracker.is_closed(k);
-                }
-                topology::mark_connected(model, &self.adjacency, &self.open, &mut self.connected, &mut self.stack);
-                for (k, l) in links.iter().enumerate() {
-                    self.open[k] &= self.connected[l.from] && self.connected[l.to];
-                    if !self.open[k] {
-                        self.flow[k] = 0.0;
-                    }
-                }
-                connectivity_stale = false;
+            if states_stale {
+                self.apply_states(model, &mut tracker, &fixed_head);
+                states_stale = false;
             }
             if iterations >= options.max_iterations {
                 return Err(self.not_converged(model, &head, iterations, head_change, flow_change));
             }
             iterations += 1;
-            self.assemble(model, &fixed_head);
+            self.assemble(model, &tracker);
             for (u, x) in self.x_old.iter_mut().enumerate() {
                 *x = head[self.pattern.node_of_unknown[u] as usize];
             }
             self.factor.factor_and_solve(&self.pattern, &mut self.rhs).map_err(|e| SolveError::Numerical {
                 iteration: iterations,
-                detail: format!(
-                    "pivot of node '{}' is not positive",
-                    nodes[self.pattern.node_of_unknown[e.unknown] as usize].id
-                ),
+                detail: match self.pattern.node_of_unknown.get(e.unknown) {
+                    Some(&node) => format!("pivot of node '{}' is not positive", nodes[node as usize].id),
+                    None => "a pivot is not positive".to_owned(),
+                },
             })?;
             head_change = 0.0;
             let mut finite = true;
@@ -309,27 +298,40 @@ impl Solver {
                 // No previous heads to compare with.
                 head_change = f64::INFINITY;
             }
-            let (mut sum_dq, mut sum_q) = (0.0, 0.0);
-            for (k, l) in links.iter().enumerate() {
-                let q = if self.open[k] { self.c[k] + self.p[k] * (head[l.from] - head[l.to]) } else { 0.0 };
-                sum_dq += (q - self.flow[k]).abs();
-                sum_q += q.abs();
-                self.flow[k] = q;
-            }
-            flow_change = if sum_q > 0.0 { sum_dq / sum_q } else { sum_dq };
+            flow_change = self.update_flows(model, &tracker, &head);
             if !finite || !flow_change.is_finite() {
                 return Err(SolveError::Numerical {
                     iteration: iterations,
                     detail: "heads or flows became NaN".into(),
                 });
             }
-            if head_change <= options.head_tolerance && flow_change <= options.flow_tolerance {
-                let changed = tracker.update(model, &self.flow, &head, &self.connected, options.head_tolerance);
-                match changed {
+            let heads_settled = head_change <= options.head_tolerance
+                // At the floating-point floor of a badly conditioned network, heads can keep
+                // moving by more than a tight tolerance while every energy equation already holds
+                // to it: then the energy residual decides.
+                || (flow_change <= options.flow_tolerance
+                    && iterations > 1
+                    && self.max_energy_residual(model, &head) <= options.head_tolerance);
+            if heads_settled && flow_change <= options.flow_tolerance {
+                if !tracker.has_devices() {
+                    break;
+                }
+                let laws = &self.laws;
+                let open_loss = |k: usize, q: f64| laws[k].evaluate_exact(q).0;
+                let shutoff = |k: usize| laws[k].shutoff_head().unwrap_or(f64::INFINITY);
+                let seen = status::Observed {
+                    flow: &self.flow,
+                    head: &head,
+                    connected: &self.connected,
+                    open_loss: &open_loss,
+                    shutoff: &shutoff,
+                    tolerance: options.head_tolerance,
+                };
+                match tracker.update(model, &seen) {
                     Ok(0) => break,
                     Ok(n) => {
                         status_changes += n;
-                        connectivity_stale = true;
+                        states_stale = true;
                         head_change = f64::INFINITY;
                     }
                     Err(cycling) => {
@@ -341,50 +343,185 @@ impl Solver {
                 }
             }
         }
-        Ok(self.finish(model, head, iterations, status_changes, head_change, flow_change, &tracker))
+        let ending = tracker.ending(status_changes);
+        Ok(self.finish(model, head, iterations, status_changes, head_change, flow_change, &tracker, ending))
     }
 
-    /// Fills the matrix values and right-hand side for the current flows.
-    fn assemble(&mut self, model: &Model, fixed_head: &[f64]) {
+    /// Recomputes, for the current device states, which links carry flow, which nodes a fixed
+    /// head reaches, and which heads are pinned by active pressure valves.
+    fn apply_states(&mut self, model: &Model, tracker: &mut StatusTracker, fixed_head: &[f64]) {
+        let links = model.links();
+        loop {
+            for (k, s) in tracker.state.iter().enumerate() {
+                self.open[k] = s.carries_flow();
+            }
+            topology::mark_connected(model, &self.adjacency, &self.open, &mut self.connected, &mut self.stack);
+            self.known_head.copy_from_slice(fixed_head);
+            for (k, l) in links.iter().enumerate() {
+                self.open[k] &= self.connected[l.from] && self.connected[l.to];
+                self.on_law[k] = self.open[k] && tracker.state[k].uses_law();
+                if !self.open[k] {
+                    self.flow[k] = 0.0;
+                    continue;
+                }
+                if tracker.state[k] == LinkState::Active {
+                    if let LinkKind::Valve(v) = &l.kind {
+                        match v.valve {
+                            ValveType::PressureReducing => {
+                                self.known_head[l.to] = model.nodes()[l.to].elevation + v.setting;
+                            }
+                            ValveType::PressureSustaining => {
+                                self.known_head[l.from] = model.nodes()[l.from].elevation + v.setting;
+                            }
+                            ValveType::FlowControl => self.flow[k] = v.setting,
+                            ValveType::Throttle => {}
+                        }
+                    }
+                }
+            }
+            // A junction reached only through regulating valves has no head the equations can
+            // fix, and a valve cannot regulate a branch whose demand alone sets its flow: such a
+            // valve is fully open.
+            let mut forced = false;
+            for i in 0..model.nodes().len() {
+                if !self.connected[i] || !self.known_head[i].is_nan() {
+                    continue;
+                }
+                let adjacent = self.adjacency.of(i);
+                if adjacent.iter().any(|&k| self.on_law[k as usize]) {
+                    continue;
+                }
+                if let Some(&k) = adjacent.iter().find(|&&k| tracker.state[k as usize] == LinkState::Active) {
+                    tracker.hold_open(model, k as usize);
+                    forced = true;
+                }
+            }
+            if !forced {
+                break;
+            }
+        }
+    }
+
+    /// New flows from new heads; returns the relative flow change Σ|ΔQ| / Σ|Q|.
+    ///
+    /// Links on their law follow `Q = c + p (H_from − H_to)`. An active flow-control valve holds
+    /// its setting. An active pressure valve's flow is whatever the mass balance of the node it
+    /// pins requires; that flow enters the other node's balance at the next step, so at
+    /// convergence both balances hold.
+    fn update_flows(&mut self, model: &Model, tracker: &StatusTracker, head: &[f64]) -> f64 {
+        let links = model.links();
+        let (mut sum_dq, mut sum_q) = (0.0, 0.0);
+        let mut pinned_flows = false;
+        for (k, l) in links.iter().enumerate() {
+            let q = if !self.open[k] {
+                0.0
+            } else if tracker.state[k].uses_law() {
+                self.c[k] + self.p[k] * (head[l.from] - head[l.to])
+            } else {
+                pinned_flows |= matches!(&l.kind, LinkKind::Valve(v) if v.valve != ValveType::FlowControl);
+                self.c[k]
+            };
+            sum_dq += (q - self.flow[k]).abs();
+            sum_q += q.abs();
+            self.flow[k] = q;
+        }
+        if pinned_flows {
+            for (k, l) in links.iter().enumerate() {
+                if !self.open[k] || tracker.state[k] != LinkState::Active {
+                    continue;
+                }
+                let Some(v) = l.as_valve() else { continue };
+                let (node, sign) = match v.valve {
+                    ValveType::PressureReducing => (l.to, 1.0),
+                    ValveType::PressureSustaining => (l.from, -1.0),
+                    _ => continue,
+                };
+                // Net inflow the pinned node needs from this valve: its demand plus its outflow
+                // through every other link, minus its inflow through them.
+                let mut need = model.nodes()[node].demand();
+                for &j in self.adjacency.of(node) {
+                    let j = j as usize;
+                    if j == k {
+                        continue;
+                    }
+                    let lj = &links[j];
+                    if lj.from == node {
+                        need += self.flow[j];
+                    } else {
+                        need -= self.flow[j];
+                    }
+                }
+                // A pressure-sustaining valve pins its upstream node: its flow is what leaves it.
+                let q = if sign > 0.0 { need } else { -need };
+                sum_dq += (q - self.flow[k]).abs();
+                sum_q += q.abs() - self.flow[k].abs();
+                self.flow[k] = q;
+            }
+        }
+        // Relative to the water moving; a network with (almost) no flow is measured against the
+        // total demand, or an absolute floor of 1 L/s, so that round-off in flows of nothing
+        // does not count as change.
+        sum_dq / sum_q.max(self.demand_scale)
+    }
+
+    /// Largest |h(Q) − (H_from − H_to)| over links on their law.
+    fn max_energy_residual(&self, model: &Model, head: &[f64]) -> f64 {
+        energy_residuals(model, &self.laws, &self.flow, head, &self.on_law).into_iter().fold(0.0, f64::max)
+    }
+
+    /// Fills the matrix values and right-hand side for the current flows and states.
+    fn assemble(&mut self, model: &Model, tracker: &StatusTracker) {
         let values = &mut self.factor.values;
         values.iter_mut().for_each(|v| *v = 0.0);
         for (u, r) in self.rhs.iter_mut().enumerate() {
             *r = -model.nodes()[self.pattern.node_of_unknown[u] as usize].demand();
         }
+        let known = &self.known_head;
         for (k, l) in model.links().iter().enumerate() {
             if !self.open[k] {
                 self.p[k] = 0.0;
                 self.c[k] = 0.0;
                 continue;
             }
-            let (y, g) = self.laws[k].evaluate(self.flow[k]);
-            let p = 1.0 / g;
-            let c = self.flow[k] - p * y;
+            let (p, c) = if tracker.state[k].uses_law() {
+                let (y, g) = self.laws[k].evaluate(self.flow[k]);
+                let p = 1.0 / g;
+                (p, self.flow[k] - p * y)
+            } else {
+                // Regulating valve: a known flow this step, no coupling of heads.
+                (0.0, self.flow[k])
+            };
             self.p[k] = p;
             self.c[k] = c;
             let s = self.pattern.links[k];
-            if s.from != NONE {
+            let free_from = s.from != NONE && known[l.from].is_nan();
+            let free_to = s.to != NONE && known[l.to].is_nan();
+            if free_from {
                 values[self.pattern.diag_slot[s.from as usize] as usize] += p;
                 self.rhs[s.from as usize] -= c;
-                if s.to == NONE {
-                    self.rhs[s.from as usize] += p * fixed_head[l.to];
+                if !free_to {
+                    self.rhs[s.from as usize] += p * known[l.to];
                 }
             }
-            if s.to != NONE {
+            if free_to {
                 values[self.pattern.diag_slot[s.to as usize] as usize] += p;
                 self.rhs[s.to as usize] += c;
-                if s.from == NONE {
-                    self.rhs[s.to as usize] += p * fixed_head[l.from];
+                if !free_from {
+                    self.rhs[s.to as usize] += p * known[l.from];
                 }
             }
-            if s.off != NONE {
+            if free_from && free_to {
                 values[s.off as usize] -= p;
             }
         }
         for u in 0..self.pattern.n {
-            if !self.connected[self.pattern.node_of_unknown[u] as usize] {
+            let node = self.pattern.node_of_unknown[u] as usize;
+            if !self.connected[node] {
                 values[self.pattern.diag_slot[u] as usize] = 1.0;
                 self.rhs[u] = 0.0;
+            } else if !known[node].is_nan() {
+                values[self.pattern.diag_slot[u] as usize] = 1.0;
+                self.rhs[u] = known[node];
             }
         }
     }
@@ -397,13 +534,14 @@ impl Solver {
         head_change: f64,
         flow_change: f64,
     ) -> SolveError {
-        let energy = energy_residuals(model, &self.laws, &self.flow, head, &self.open);
+        let energy = energy_residuals(model, &self.laws, &self.flow, head, &self.on_law);
         let mut worst_nodes: Vec<Offender> = (0..self.pattern.n)
             .filter(|&u| self.connected[self.pattern.node_of_unknown[u] as usize])
             .map(|u| {
                 let node = self.pattern.node_of_unknown[u] as usize;
                 Offender { id: model.nodes()[node].id.clone(), value: (head[node] - self.x_old[u]).abs() }
             })
+            .filter(|o| o.value.is_finite())
             .collect();
         worst_nodes.sort_by(|a, b| b.value.total_cmp(&a.value));
         worst_nodes.truncate(5);
@@ -411,7 +549,7 @@ impl Solver {
             .links()
             .iter()
             .enumerate()
-            .filter(|(k, _)| self.open[*k])
+            .filter(|(k, _)| self.on_law[*k])
             .map(|(k, l)| Offender { id: l.id.clone(), value: energy[k] })
             .collect();
         worst_links.sort_by(|a, b| b.value.total_cmp(&a.value));
@@ -436,10 +574,11 @@ impl Solver {
         last_head_change: f64,
         last_flow_change: f64,
         tracker: &StatusTracker,
+        ending: Ending,
     ) -> Solution {
         let nodes = model.nodes();
         let links = model.links();
-        let energy = energy_residuals(model, &self.laws, &self.flow, &head, &self.open);
+        let energy = energy_residuals(model, &self.laws, &self.flow, &head, &self.on_law);
         let max_energy_residual = energy.iter().copied().fold(0.0, f64::max);
         let mut balance: Vec<f64> = nodes.iter().map(|n| -n.demand()).collect();
         for (l, &q) in links.iter().zip(&self.flow) {
@@ -453,21 +592,39 @@ impl Solver {
             .map(|(i, _)| balance[i].abs())
             .fold(0.0, f64::max);
         let pressure: Vec<f64> = nodes.iter().zip(&head).map(|(n, h)| h - n.elevation).collect();
-        let velocity: Vec<f64> = self.flow.iter().zip(&self.laws).map(|(q, law)| q / law.area).collect();
+        let velocity: Vec<f64> = self
+            .flow
+            .iter()
+            .zip(&self.laws)
+            .map(|(q, law)| if law.area > 0.0 { q / law.area } else { f64::NAN })
+            .collect();
         let headloss: Vec<f64> = links.iter().map(|l| (head[l.from] - head[l.to]).abs()).collect();
-        let link_state: Vec<LinkState> = links
+        let link_state: Vec<LinkState> = tracker
+            .state
             .iter()
             .enumerate()
-            .map(|(k, l)| {
-                if l.status == LinkStatus::Closed {
-                    LinkState::Closed
-                } else if tracker.is_closed(k) {
-                    LinkState::CheckValveClosed
-                } else if !self.open[k] {
-                    LinkState::Disconnected
-                } else {
-                    LinkState::Open
-                }
+            .map(|(k, &s)| if s.carries_flow() && !self.open[k] { LinkState::Disconnected } else { s })
+            .collect();
+        let rho_g = model.options.water_properties().density * crate::units::GRAVITY;
+        let pumps: Vec<PumpResult> = links
+            .iter()
+            .enumerate()
+            .filter_map(|(k, l)| {
+                let pump = l.as_pump()?;
+                let q = self.flow[k];
+                let lift = head[l.to] - head[l.from];
+                let running = link_state[k] == LinkState::Open;
+                let efficiency = pump.efficiency.at(q, pump.speed);
+                let hydraulic_power = if running { rho_g * q * lift } else { 0.0 };
+                Some(PumpResult {
+                    link: k,
+                    head: if running { lift } else { 0.0 },
+                    speed: pump.speed,
+                    efficiency,
+                    hydraulic_power,
+                    shaft_power: hydraulic_power / efficiency,
+                    beyond_curve: running && self.laws[k].beyond_curve(q),
+                })
             })
             .collect();
         let mut warnings = Vec::new();
@@ -491,10 +648,20 @@ impl Solver {
                 });
             }
         }
+        for r in &pumps {
+            if r.beyond_curve {
+                warnings.push(Warning {
+                    element: Some(Element::Link(links[r.link].id.clone())),
+                    message: "runs past the end of its head curve (it adds no head and acts as a resistance)".into(),
+                });
+            }
+        }
         Solution {
             converged: true,
             iterations,
             status_changes,
+            ending,
+            pumps,
             demand: nodes.iter().map(|n| n.demand()).collect(),
             connected: self.connected.clone(),
             head,
@@ -513,14 +680,16 @@ impl Solver {
 }
 
 /// |h(Q) − (H_from − H_to)| per link (zero for links not open).
-fn energy_residuals(model: &Model, laws: &[LinkLaw], flow: &[f64], head: &[f64], open: &[bool]) -> Vec<f64> {
+/// |h(Q) − (H_from − H_to)| per link on its law (zero for closed and regulating links, whose
+/// energy equation is replaced by their constraint).
+fn energy_residuals(model: &Model, laws: &[LinkLaw], flow: &[f64], head: &[f64], on_law: &[bool]) -> Vec<f64> {
     model
         .links()
         .iter()
         .enumerate()
         .map(
             |(k, l)| {
-                if open[k] {
+                if on_law[k] {
                     (laws[k].evaluate_exact(flow[k]).0 - (head[l.from] - head[l.to])).abs()
                 } else {
                     0.0

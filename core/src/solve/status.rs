@@ -1,87 +1,380 @@
-//! Status logic of check valves, applied after each converged inner solve.
+//! States of devices (check valves, pumps, control valves) and the rules that move between them.
 //!
-//! A check valve imposes a complementarity condition: either it is open with `Q ≥ 0` and its
-//! energy equation holds, or it is closed with `Q = 0` and the head difference `H_from − H_to`
-//! is not positive (it cannot push water backwards, and nothing pushes forwards). The rule below
-//! moves between these two states only when the current one is violated by more than the
-//! tolerance: an open valve with reverse flow closes; a closed valve whose upstream head exceeds
-//! the downstream head by more than the head tolerance opens. Each set of states is remembered;
-//! meeting one again is reported as cycling rather than looping forever.
+//! Every device is a set of complementarity conditions, and each state is one branch of them:
+//!
+//! | device | state | holds | leaves it when |
+//! |---|---|---|---|
+//! | check valve | open | `Q ≥ 0`, energy equation | `Q < 0` → closed |
+//! | | closed | `Q = 0`, `H_from − H_to ≤ 0` | `H_from − H_to > τ` → open |
+//! | pump | running | `Q ≥ 0`, `H_to − H_from = H(Q, s)` | `Q < 0` → closed: head above shutoff |
+//! | | closed: head above shutoff | `Q = 0`, `H_to − H_from ≥ H(0, s)` | `H_to − H_from < H(0, s) − τ` → running |
+//! | pressure-reducing | active | `H_to = z_to + p_set`, `Q ≥ 0`, `H_from ≥ H_to + h_open(Q)` | `Q < 0` → closed; `H_from − h_open(Q) < H_set − τ` → open |
+//! | | open | open-valve loss, `Q ≥ 0`, `H_to ≤ H_set` | `Q < 0` → closed; `H_to > H_set + τ` → active |
+//! | | closed | `Q = 0`, `H_to ≥ H_set` or `H_from ≤ H_to` | `H_to < H_set − τ` and `H_from > H_to + τ` → active or open |
+//! | pressure-sustaining | active | `H_from = z_from + p_set`, `Q ≥ 0`, `H_to ≤ H_from − h_open(Q)` | `Q < 0` → closed; `H_to + h_open(Q) > H_set + τ` → open |
+//! | | open | open-valve loss, `Q ≥ 0`, `H_from ≥ H_set` | `Q < 0` → closed; `H_from < H_set − τ` → active |
+//! | | closed | `Q = 0` | `H_from > H_set + τ` and `H_from > H_to + τ` → active |
+//! | flow-control | active | `Q = Q_set`, `H_from − H_to ≥ h_open(Q_set)` | `H_from − H_to < h_open(Q_set) − τ` → open |
+//! | | open | open-valve loss, `0 ≤ Q ≤ Q_set` | `Q > Q_set` → active; `Q < 0` → closed |
+//! | | closed | `Q = 0` | `H_from > H_to + τ` → open |
+//!
+//! (τ is the head tolerance.) The rules are applied only after the inner Newton iteration has
+//! converged for the current states, so every decision is made on a solution of the network, not
+//! on an intermediate iterate. Each set of states is remembered. If a set comes back (the
+//! heuristic cycling that Deuerlein, Simpson & Dempe 2009 show can happen when every violated
+//! device switches at once), the rule switches to changing one device per round — the one whose
+//! condition is violated most — which is the active-set strategy; a set that comes back even then
+//! is reported as an error naming the devices, never an endless loop.
 
-use crate::model::{LinkKind, Model};
+use crate::model::{LinkKind, LinkStatus, Model, ValveType};
 use std::collections::HashSet;
 
-/// States of every check valve, and the sets of states already visited.
+/// The state of a link in a solution.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash)]
+#[non_exhaustive]
+pub enum LinkState {
+    /// Open and carrying flow (pipes, running pumps, throttle and manually opened valves).
+    Open,
+    /// Closed by the user.
+    Closed,
+    /// A check valve closed against reverse flow.
+    CheckValveClosed,
+    /// Open, but cut off from every fixed head.
+    Disconnected,
+    /// A pump at zero speed.
+    PumpStopped,
+    /// A pump closed because the system asks for more head than its shutoff head.
+    PumpShutoff,
+    /// A control valve regulating (holding its pressure or flow setting).
+    Active,
+    /// A pressure-reducing valve fully open because the upstream head is too low to regulate.
+    OpenUpstreamLow,
+    /// A pressure-sustaining valve fully open because the upstream pressure is above the setting.
+    OpenAboveSetting,
+    /// A flow-control valve fully open because the head available cannot drive the set flow.
+    OpenBelowSetting,
+    /// A control valve closed because flow would reverse (or, for a pressure-reducing valve,
+    /// because the downstream pressure is already above the setting).
+    ValveClosed,
+}
+
+impl LinkState {
+    /// The status word written in results: "open", "closed" or "active".
+    pub fn status_label(self) -> &'static str {
+        match self {
+            LinkState::Open
+            | LinkState::Disconnected
+            | LinkState::OpenUpstreamLow
+            | LinkState::OpenAboveSetting
+            | LinkState::OpenBelowSetting => "open",
+            LinkState::Closed
+            | LinkState::CheckValveClosed
+            | LinkState::PumpStopped
+            | LinkState::PumpShutoff
+            | LinkState::ValveClosed => "closed",
+            LinkState::Active => "active",
+        }
+    }
+
+    /// Why a link is in this state, when there is more to say than its status word.
+    pub fn reason(self) -> Option<&'static str> {
+        match self {
+            LinkState::Open | LinkState::Closed | LinkState::Active => None,
+            LinkState::CheckValveClosed => Some("check valve closed against reverse flow"),
+            LinkState::Disconnected => Some("no open path to a reservoir or tank"),
+            LinkState::PumpStopped => Some("speed is zero"),
+            LinkState::PumpShutoff => Some("head above shutoff"),
+            LinkState::OpenUpstreamLow => Some("upstream head too low to regulate"),
+            LinkState::OpenAboveSetting => Some("upstream pressure above the setting"),
+            LinkState::OpenBelowSetting => Some("head available cannot drive the set flow"),
+            LinkState::ValveClosed => Some("flow would reverse or downstream pressure is above the setting"),
+        }
+    }
+
+    /// The link follows its open law (friction, open-valve loss or pump curve) in this state.
+    pub fn uses_law(self) -> bool {
+        matches!(
+            self,
+            LinkState::Open | LinkState::OpenUpstreamLow | LinkState::OpenAboveSetting | LinkState::OpenBelowSetting
+        )
+    }
+
+    /// The link carries flow in this state (law or regulation).
+    pub fn carries_flow(self) -> bool {
+        self.uses_law() || self == LinkState::Active
+    }
+}
+
+/// What the head-dependent rules need to know about the current solution.
+pub struct Observed<'a> {
+    /// Link flows, m³/s.
+    pub flow: &'a [f64],
+    /// Node heads, m (NaN where disconnected).
+    pub head: &'a [f64],
+    /// Whether each node is connected to a fixed head.
+    pub connected: &'a [bool],
+    /// Head loss of each valve when fully open at its current flow (NaN for other links).
+    pub open_loss: &'a dyn Fn(usize, f64) -> f64,
+    /// Shutoff head of each pump at its speed.
+    pub shutoff: &'a dyn Fn(usize) -> f64,
+    /// Head tolerance τ, m.
+    pub tolerance: f64,
+}
+
+/// Device states during one solve.
 #[derive(Debug)]
 pub struct StatusTracker {
-    /// Links that are check valves.
-    valves: Vec<usize>,
-    /// Closed flag per link (only check valves can be closed here).
-    closed: Vec<bool>,
-    visited: HashSet<Vec<bool>>,
+    /// State of every link.
+    pub state: Vec<LinkState>,
+    /// Links with state rules.
+    devices: Vec<usize>,
+    visited: HashSet<Vec<LinkState>>,
+    one_at_a_time: bool,
+}
+
+/// How the status logic ended.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Ending {
+    /// All device conditions held at the first converged solution.
+    FirstSolution,
+    /// Switching every violated device at once reached a consistent set of states.
+    SimultaneousSwitching,
+    /// Cycling was detected; switching one device per round reached a consistent set.
+    OneAtATime,
+}
+
+impl Ending {
+    /// A sentence for reports.
+    pub fn describe(self) -> &'static str {
+        match self {
+            Ending::FirstSolution => "every device condition held at the first converged solution",
+            Ending::SimultaneousSwitching => "device states settled by switching every violated device together",
+            Ending::OneAtATime => {
+                "device states settled by switching the most violated device one at a time (after cycling was detected)"
+            }
+        }
+    }
 }
 
 impl StatusTracker {
-    /// Every check valve starts open.
+    /// Initial states from the model: user closures, stopped pumps, automatic valves active.
     pub fn new(model: &Model) -> Self {
-        let valves: Vec<usize> = model
-            .links()
-            .iter()
-            .enumerate()
-            .filter(|(_, l)| matches!(&l.kind, LinkKind::Pipe(p) if p.check_valve))
-            .map(|(k, _)| k)
-            .collect();
-        let closed = vec![false; model.links().len()];
-        let mut visited = HashSet::new();
-        visited.insert(valves.iter().map(|&k| closed[k]).collect());
-        StatusTracker { valves, closed, visited }
-    }
-
-    /// Whether link `k` is a check valve closed by this logic.
-    pub fn is_closed(&self, k: usize) -> bool {
-        self.closed[k]
-    }
-
-    /// Applies the rule; returns the number of changes, or the valves that changed when the new
-    /// set of states was met before (cycling).
-    pub fn update(
-        &mut self,
-        model: &Model,
-        flow: &[f64],
-        head: &[f64],
-        connected: &[bool],
-        head_tolerance: f64,
-    ) -> Result<u32, Vec<usize>> {
-        let links = model.links();
-        let mut changed = Vec::new();
-        for &k in &self.valves {
-            let l = &links[k];
-            if model.links()[k].status == crate::model::LinkStatus::Closed {
-                continue;
-            }
-            if self.closed[k] {
-                let opens = match (connected[l.from], connected[l.to]) {
-                    (true, true) => head[l.from] - head[l.to] > head_tolerance,
-                    // Downstream is cut off only by this valve: opening lets the supply through.
-                    (true, false) => true,
-                    _ => false,
-                };
-                if opens {
-                    self.closed[k] = false;
-                    changed.push(k);
+        let mut state = Vec::with_capacity(model.links().len());
+        let mut devices = Vec::new();
+        for (k, l) in model.links().iter().enumerate() {
+            let s = if l.status == LinkStatus::Closed {
+                LinkState::Closed
+            } else {
+                match &l.kind {
+                    LinkKind::Pipe(p) => {
+                        if p.check_valve {
+                            devices.push(k);
+                        }
+                        LinkState::Open
+                    }
+                    LinkKind::Pump(p) => {
+                        if p.speed <= 0.0 {
+                            LinkState::PumpStopped
+                        } else {
+                            devices.push(k);
+                            LinkState::Open
+                        }
+                    }
+                    LinkKind::Valve(v) => {
+                        if !v.automatic || v.valve == ValveType::Throttle {
+                            LinkState::Open
+                        } else {
+                            devices.push(k);
+                            let fixed = |i: usize| model.nodes()[i].fixed_head().is_some();
+                            match v.valve {
+                                // A pressure valve whose regulated node has a fixed head cannot
+                                // regulate it: it is open or closed.
+                                ValveType::PressureReducing if fixed(l.to) => LinkState::OpenUpstreamLow,
+                                ValveType::PressureSustaining if fixed(l.from) => LinkState::OpenAboveSetting,
+                                _ => LinkState::Active,
+                            }
+                        }
+                    }
                 }
-            } else if flow[k] < 0.0 {
-                self.closed[k] = true;
-                changed.push(k);
+            };
+            state.push(s);
+        }
+        let mut visited = HashSet::new();
+        visited.insert(state.clone());
+        StatusTracker { state, devices, visited, one_at_a_time: false }
+    }
+
+    /// Whether any link has state rules.
+    pub fn has_devices(&self) -> bool {
+        !self.devices.is_empty()
+    }
+
+    /// The ending so far (valid once [`StatusTracker::update`] returned no change).
+    pub fn ending(&self, changes: u32) -> Ending {
+        if changes == 0 {
+            Ending::FirstSolution
+        } else if self.one_at_a_time {
+            Ending::OneAtATime
+        } else {
+            Ending::SimultaneousSwitching
+        }
+    }
+
+    /// Applies the rules to a converged solution. Returns the number of changes made, or the
+    /// links involved when states cycle even one device at a time.
+    pub fn update(&mut self, model: &Model, seen: &Observed<'_>) -> Result<u32, Vec<usize>> {
+        let mut proposals: Vec<(usize, LinkState, f64)> = Vec::new();
+        for &k in &self.devices {
+            if let Some((next, violation)) = self.rule(model, k, seen) {
+                proposals.push((k, next, violation));
             }
         }
-        if changed.is_empty() {
+        if proposals.is_empty() {
             return Ok(0);
         }
-        let key: Vec<bool> = self.valves.iter().map(|&k| self.closed[k]).collect();
-        if !self.visited.insert(key) {
-            return Err(changed);
+        loop {
+            let chosen: Vec<(usize, LinkState, f64)> = if self.one_at_a_time {
+                let best = proposals.iter().copied().max_by(|a, b| a.2.total_cmp(&b.2)).into_iter().collect();
+                best
+            } else {
+                proposals.clone()
+            };
+            let mut next = self.state.clone();
+            for &(k, s, _) in &chosen {
+                next[k] = s;
+            }
+            if self.visited.insert(next.clone()) {
+                self.state = next;
+                return Ok(chosen.len() as u32);
+            }
+            if self.one_at_a_time {
+                return Err(proposals.iter().map(|p| p.0).collect());
+            }
+            self.one_at_a_time = true;
         }
-        Ok(changed.len() as u32)
+    }
+
+    /// Holds a regulating valve fully open (it has nothing to regulate against).
+    pub fn hold_open(&mut self, model: &Model, k: usize) {
+        if let Some(v) = model.links()[k].as_valve() {
+            self.state[k] = match v.valve {
+                ValveType::PressureReducing => LinkState::OpenUpstreamLow,
+                ValveType::PressureSustaining => LinkState::OpenAboveSetting,
+                ValveType::FlowControl => LinkState::OpenBelowSetting,
+                ValveType::Throttle => LinkState::Open,
+            };
+        }
+    }
+
+    /// The state device `k` should move to, with the size of the violated condition (m or m³/s).
+    fn rule(&self, model: &Model, k: usize, o: &Observed<'_>) -> Option<(LinkState, f64)> {
+        let l = &model.links()[k];
+        let (a, b) = (l.from, l.to);
+        let q = o.flow[k];
+        let tau = o.tolerance;
+        let (ha, hb) = (o.head[a], o.head[b]);
+        let both = o.connected[a] && o.connected[b];
+        let state = self.state[k];
+        match &l.kind {
+            LinkKind::Pipe(_) => match state {
+                LinkState::Open if q < 0.0 => Some((LinkState::CheckValveClosed, -q)),
+                LinkState::CheckValveClosed => {
+                    if both && ha - hb > tau {
+                        Some((LinkState::Open, ha - hb))
+                    } else if o.connected[a] && !o.connected[b] {
+                        Some((LinkState::Open, f64::INFINITY))
+                    } else {
+                        None
+                    }
+                }
+                _ => None,
+            },
+            LinkKind::Pump(_) => match state {
+                LinkState::Open if q < 0.0 => Some((LinkState::PumpShutoff, -q)),
+                LinkState::PumpShutoff => {
+                    let lift = hb - ha;
+                    let shutoff = (o.shutoff)(k);
+                    if !both {
+                        (o.connected[a] && !o.connected[b]).then_some((LinkState::Open, f64::INFINITY))
+                    } else {
+                        (lift < shutoff - tau).then_some((LinkState::Open, shutoff - lift))
+                    }
+                }
+                _ => None,
+            },
+            LinkKind::Valve(v) => {
+                if !both {
+                    return None;
+                }
+                let fixed_to = model.nodes()[b].fixed_head().is_some();
+                let fixed_from = model.nodes()[a].fixed_head().is_some();
+                match v.valve {
+                    ValveType::PressureReducing => {
+                        let set = model.nodes()[b].elevation + v.setting;
+                        match state {
+                            LinkState::Active if q < 0.0 => Some((LinkState::ValveClosed, -q)),
+                            // Another device holds the downstream head above this setting.
+                            LinkState::Active if hb > set + tau => Some((LinkState::ValveClosed, hb - set)),
+                            LinkState::Active => {
+                                let available = ha - (o.open_loss)(k, q);
+                                (available < set - tau).then_some((LinkState::OpenUpstreamLow, set - available))
+                            }
+                            LinkState::OpenUpstreamLow if q < 0.0 => Some((LinkState::ValveClosed, -q)),
+                            LinkState::OpenUpstreamLow if hb > set + tau => {
+                                let next = if fixed_to { LinkState::ValveClosed } else { LinkState::Active };
+                                Some((next, hb - set))
+                            }
+                            LinkState::ValveClosed if hb < set - tau && ha > hb + tau => {
+                                let next = if ha > set + tau && !fixed_to {
+                                    LinkState::Active
+                                } else {
+                                    LinkState::OpenUpstreamLow
+                                };
+                                Some((next, (set - hb).min(ha - hb)))
+                            }
+                            _ => None,
+                        }
+                    }
+                    ValveType::PressureSustaining => {
+                        let set = model.nodes()[a].elevation + v.setting;
+                        match state {
+                            LinkState::Active if q < 0.0 => Some((LinkState::ValveClosed, -q)),
+                            // Another device holds the upstream head above this setting.
+                            LinkState::Active if ha > set + tau => Some((LinkState::OpenAboveSetting, ha - set)),
+                            LinkState::Active => {
+                                let needed = hb + (o.open_loss)(k, q);
+                                (needed > set + tau).then_some((LinkState::OpenAboveSetting, needed - set))
+                            }
+                            LinkState::OpenAboveSetting if q < 0.0 => Some((LinkState::ValveClosed, -q)),
+                            LinkState::OpenAboveSetting if ha < set - tau => {
+                                let next = if fixed_from { LinkState::ValveClosed } else { LinkState::Active };
+                                Some((next, set - ha))
+                            }
+                            LinkState::ValveClosed if ha > set + tau && ha > hb + tau => {
+                                let next = if fixed_from { LinkState::OpenAboveSetting } else { LinkState::Active };
+                                Some((next, (ha - set).min(ha - hb)))
+                            }
+                            _ => None,
+                        }
+                    }
+                    ValveType::FlowControl => {
+                        let set = v.setting;
+                        match state {
+                            LinkState::Active => {
+                                let needed = (o.open_loss)(k, set);
+                                (ha - hb < needed - tau).then_some((LinkState::OpenBelowSetting, needed - (ha - hb)))
+                            }
+                            LinkState::OpenBelowSetting if q < 0.0 => Some((LinkState::ValveClosed, -q)),
+                            LinkState::OpenBelowSetting if q > set * (1.0 + 1e-9) + 1e-12 => {
+                                Some((LinkState::Active, q - set))
+                            }
+                            LinkState::ValveClosed if ha > hb + tau => Some((LinkState::OpenBelowSetting, ha - hb)),
+                            _ => None,
+                        }
+                    }
+                    ValveType::Throttle => None,
+                }
+            }
+        }
     }
 }
