@@ -37,6 +37,21 @@ enum Command {
         #[arg(long, short)]
         output: Option<PathBuf>,
     },
+    /// Write a synthetic street network of any size (an invented town) as a model file.
+    ///
+    /// The same junction count and seed always give the same network. See
+    /// `ringmain_core::generate` for what the networks look like.
+    Generate {
+        /// Number of junctions (at least 4).
+        #[arg(long)]
+        junctions: usize,
+        /// Seed of the random numbers.
+        #[arg(long, default_value_t = 1)]
+        seed: u64,
+        /// The model file to write (.json or .toml).
+        #[arg(long, short)]
+        output: PathBuf,
+    },
     /// Print the density and viscosity of water at a temperature (IAPWS formulations).
     WaterProperties {
         /// Water temperature, deg C (0 to 99).
@@ -75,6 +90,7 @@ fn main() -> ExitCode {
     let cli = Cli::parse();
     match cli.command {
         Command::Solve { model, format, output } => solve(&model, format, output.as_deref()),
+        Command::Generate { junctions, seed, output } => generate(junctions, seed, &output),
         Command::WaterProperties { temperature, format } => water_properties(temperature, format),
         Command::FrictionFactor { reynolds, relative_roughness, format } => {
             friction(reynolds, relative_roughness, format)
@@ -149,6 +165,21 @@ fn solve(path: &Path, format: OutputFormat, output: Option<&Path>) -> ExitCode {
         }
     }
     write_out(&text, output)
+}
+
+fn generate(junctions: usize, seed: u64, output: &Path) -> ExitCode {
+    let Some(format) = Format::from_path(output) else {
+        eprintln!("error: --output {}: the file name must end in .json or .toml", output.display());
+        return ExitCode::from(EXIT_INVALID);
+    };
+    let model = match ringmain_core::generate::generate(&ringmain_core::generate::NetworkSpec::new(junctions, seed)) {
+        Ok(m) => m,
+        Err(e) => {
+            eprintln!("error: {e}");
+            return ExitCode::from(EXIT_INVALID);
+        }
+    };
+    write_out(&ringmain_core::model::write::to_string(&model, format), Some(output))
 }
 
 fn water_properties(temperature: f64, format: OutputFormat) -> ExitCode {

@@ -34,6 +34,7 @@
 #![warn(missing_docs)]
 
 pub mod error;
+pub mod generate;
 pub mod model;
 pub mod physics;
 pub mod solve;
