@@ -162,6 +162,11 @@ impl<'a> Report<'a> {
         })
     }
 
+    /// The JSON report as pretty-printed text.
+    pub fn to_json_text(&self) -> String {
+        serde_json::to_string_pretty(&self.to_json()).unwrap_or_default() + "\n"
+    }
+
     pub fn to_csv(&self) -> String {
         let m = self.model;
         let s = self.solution;

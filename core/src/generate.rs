@@ -64,9 +64,9 @@ impl NetworkSpec {
     /// Default block length, m.
     pub const BLOCK_LENGTH: f64 = 120.0;
     /// Default share of missing streets.
-    pub const MISSING_STREETS: f64 = 0.33;
+    pub const MISSING_STREETS: f64 = 0.40;
     /// Default share of junctions in branches.
-    pub const BRANCH_FRACTION: f64 = 0.38;
+    pub const BRANCH_FRACTION: f64 = 0.31;
     /// Default trunk spacing, streets.
     pub const TRUNK_SPACING: usize = 8;
     /// Default junctions per source.
@@ -472,6 +472,9 @@ mod tests {
         let degree = 2.0 * m.links().len() as f64 / m.nodes().len() as f64;
         assert!((2.3..2.5).contains(&degree), "mean degree {degree}");
         assert!(m.nodes().iter().any(|n| matches!(n.kind, NodeKind::Tank(_))));
+        let trees = crate::solve::Solver::new(&m).unwrap().pattern().tree_junctions() as f64 / 20_000.0;
+        eprintln!("mean degree {degree}, {trees} of the junctions in trees");
+        assert!((0.40..0.50).contains(&trees), "{trees} of the junctions in trees");
         let m = generate(&NetworkSpec::new(100_000, 1)).unwrap();
         let sources = m.nodes().iter().filter(|n| n.fixed_head().is_some()).count();
         assert_eq!(sources, 9);

@@ -138,6 +138,16 @@ impl LinkLaw {
         }
     }
 
+    /// For a Hazen–Williams pipe: its friction resistance `r` and minor-loss coefficient `m` in
+    /// `h = r |Q|^n sign(Q) + m Q|Q|`, so that the iteration can evaluate the commonest law
+    /// without a branch on its kind (see [`hazen_williams`]).
+    pub fn hazen_williams_parts(&self) -> Option<(f64, f64)> {
+        match self.kind {
+            Kind::Resistance { friction: Some(Friction::HazenWilliams { r }), minor } => Some((r, minor)),
+            _ => None,
+        }
+    }
+
     /// Exact head loss and the regularised slope used in the Newton matrix.
     #[inline]
     pub fn evaluate(&self, q: f64) -> (f64, f64) {
@@ -158,6 +168,20 @@ impl LinkLaw {
     pub fn beyond_curve(&self, q: f64) -> bool {
         matches!(self.kind, Kind::Curve { .. } | Kind::Power { .. }) && self.evaluate_exact(q).0 > 0.0
     }
+}
+
+/// Head loss and slope of a Hazen–Williams pipe with resistance `r` and minor-loss coefficient
+/// `m`: the same operations as [`LinkLaw::evaluate_exact`], so the same bits.
+#[inline]
+pub fn hazen_williams(r: f64, m: f64, q: f64) -> (f64, f64) {
+    let a = q.abs();
+    let (h, d) = if a == 0.0 {
+        (0.0, 0.0)
+    } else {
+        let h = r * a.powf(crate::physics::friction::HW_FLOW_EXPONENT);
+        (h.copysign(q), crate::physics::friction::HW_FLOW_EXPONENT * h / a)
+    };
+    (h + m * q * a, d + 2.0 * m * a)
 }
 
 /// `H = P'/Q` with `P' = P/(ρg)` above `q_c`, its tangent at `q_c` below.

@@ -33,13 +33,14 @@ pub mod pattern;
 pub mod status;
 pub mod topology;
 
-use crate::error::{Element, Offender, SolveError};
-use crate::model::{LinkKind, Model, ValveType};
+use crate::error::{Element, ModelError, Offender, SolveError};
+use crate::model::{LinkKind, LinkStatus, Model, ValveType};
 use factor::Factor;
 use links::LinkLaw;
 use pattern::{Pattern, NONE};
 use status::StatusTracker;
-use topology::Adjacency;
+use std::sync::Arc;
+use std::time::{Duration, Instant};
 
 /// Options of one solve. Defaults come from the model's `[hydraulics]`.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -164,63 +165,184 @@ pub fn solve(model: &Model) -> Result<Solution, SolveError> {
     Solver::new(model)?.solve(model)
 }
 
+/// Where the time of the last solve went (wall-clock, this thread).
+#[derive(Clone, Copy, Debug, Default, PartialEq)]
+pub struct Timings {
+    /// Structure analysis (forest-core split, ordering, symbolic factorization), when this solver
+    /// did it; zero when the analysis was reused.
+    pub analysis: Duration,
+    /// Laws, demands and initial values of this solve.
+    pub preparation: Duration,
+    /// Link coefficients (flows, head losses, slopes) and scattering them into the matrix.
+    pub assembly: Duration,
+    /// Numeric Cholesky factorization.
+    pub factorization: Duration,
+    /// Triangular solves.
+    pub solves: Duration,
+    /// Device states: connectivity, pinned heads, state rules.
+    pub status: Duration,
+    /// Dead-end trees: flows from demands, heads from their roots.
+    pub forest: Duration,
+    /// Residuals, pressures, velocities, warnings of the solution.
+    pub results: Duration,
+    /// Newton iterations done.
+    pub iterations: u32,
+}
+
+impl Timings {
+    /// Time spent inside the iterations (assembly, factorization, solves).
+    pub fn iterating(&self) -> Duration {
+        self.assembly + self.factorization + self.solves
+    }
+
+    /// Everything but the analysis.
+    pub fn solve_total(&self) -> Duration {
+        self.preparation + self.iterating() + self.status + self.forest + self.results
+    }
+}
+
+/// One scenario of a network for [`Solver::solve_scenario`] and [`Solver::solve_batch`]: the
+/// model's demands scaled by a factor, and some links' user status changed.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Scenario {
+    /// Factor on every junction demand (1 = as in the model).
+    pub demand_multiplier: f64,
+    /// Links (by index) whose user status differs from the model's.
+    pub statuses: Vec<(usize, LinkStatus)>,
+}
+
+impl Default for Scenario {
+    fn default() -> Self {
+        Scenario { demand_multiplier: 1.0, statuses: Vec::new() }
+    }
+}
+
+/// How a core link enters the current iteration.
+const MODE_CLOSED: u8 = 0;
+const MODE_LAW: u8 = 1;
+const MODE_FIXED_FLOW: u8 = 2;
+
+/// A core link's law in the form the iteration evaluates: Hazen–Williams pipes inline, anything
+/// else through its [`LinkLaw`].
+#[derive(Clone, Copy, Debug, PartialEq)]
+struct HotLaw {
+    r: f64,
+    minor: f64,
+    min_slope: f64,
+    general: bool,
+}
+
+/// An active pressure valve: its core position and the node whose head it pins.
+#[derive(Clone, Copy, Debug, PartialEq)]
+struct Pinned {
+    core: u32,
+    link: u32,
+    node: u32,
+    /// +1 for a pressure-reducing valve (it feeds the pinned node), −1 for a sustaining one.
+    sign: f64,
+}
+
 /// A reusable solver: the analysis of one network structure and its workspaces.
 ///
 /// Values (demands, heads, statuses, pipe data) may change between solves; when the structure
-/// changes (nodes or links added, a node's kind changed), the analysis is redone automatically.
-#[derive(Debug)]
+/// changes (nodes or links added, a node's kind changed, a pipe turned into another kind of
+/// link), the analysis is redone automatically. Cloning is cheap in analysis: the clones share
+/// one [`Pattern`] (behind an `Arc`) and only allocate their own workspaces, which is how
+/// [`Solver::solve_batch`] gives every thread its solver.
+#[derive(Debug, Clone)]
 pub struct Solver {
-    pattern: Pattern,
+    pattern: Arc<Pattern>,
     factor: Factor,
-    adjacency: Adjacency,
     laws: Vec<LinkLaw>,
+    /// Laws of the core links, in core order.
+    hot: Vec<HotLaw>,
+    /// Flow of every link (for core links, valid after `sync_flows`).
     flow: Vec<f64>,
+    /// Head of every node: the current iterate, then the solution.
+    head: Vec<f64>,
     has_previous: bool,
-    // Scratch, sized once per structure.
-    p: Vec<f64>,
-    c: Vec<f64>,
+    // Core links, in core order: flow, conductance p = 1/g, and c = Q + p (ΔH − h(Q)), so that
+    // the next flow is c + p (δ_from − δ_to) for head corrections δ.
+    cq: Vec<f64>,
+    cp: Vec<f64>,
+    cc: Vec<f64>,
+    mode: Vec<u8>,
+    // Per unknown.
     rhs: Vec<f64>,
-    x_old: Vec<f64>,
+    unknown_demand: Vec<f64>,
+    free: Vec<bool>,
+    // Per link.
     open: Vec<bool>,
     on_law: Vec<bool>,
+    status: Vec<LinkStatus>,
+    // Per node.
     connected: Vec<bool>,
     known_head: Vec<f64>,
+    demand: Vec<f64>,
+    subtree: Vec<f64>,
+    pinned: Vec<Pinned>,
+    /// Σ|Q| over the tree pipes (constant for a set of device states).
+    tree_flow_sum: f64,
     /// Σ|demand| floored at 1e-3 m³/s: the scale of relative flow changes.
     demand_scale: f64,
     stack: Vec<u32>,
+    timings: Timings,
+    analysis_time: Duration,
 }
 
 impl Solver {
     /// Analyses `model` (validating it first).
     pub fn new(model: &Model) -> Result<Self, SolveError> {
         model.validate()?;
-        let pattern = Pattern::analyse(model);
-        let factor = Factor::new(&pattern);
+        let start = Instant::now();
+        let pattern = Arc::new(Pattern::analyse(model));
+        let analysis_time = start.elapsed();
+        Ok(Solver::with_pattern(model, pattern, analysis_time))
+    }
+
+    fn with_pattern(model: &Model, pattern: Arc<Pattern>, analysis_time: Duration) -> Self {
         let n_links = model.links().len();
         let n_nodes = model.nodes().len();
-        Ok(Solver {
-            factor,
-            adjacency: Adjacency::new(model),
+        let n_core = pattern.core.len();
+        Solver {
+            factor: Factor::new(&pattern),
             laws: model.links().iter().map(|l| LinkLaw::new(model, l)).collect(),
+            hot: vec![HotLaw { r: 0.0, minor: 0.0, min_slope: 0.0, general: true }; n_core],
             flow: vec![0.0; n_links],
+            head: vec![f64::NAN; n_nodes],
             has_previous: false,
-            p: vec![0.0; n_links],
-            c: vec![0.0; n_links],
+            cq: vec![0.0; n_core],
+            cp: vec![0.0; n_core],
+            cc: vec![0.0; n_core],
+            mode: vec![MODE_CLOSED; n_core],
             rhs: vec![0.0; pattern.n],
-            x_old: vec![0.0; pattern.n],
+            unknown_demand: vec![0.0; pattern.n],
+            free: vec![false; pattern.n],
             open: vec![false; n_links],
             on_law: vec![false; n_links],
+            status: vec![LinkStatus::Open; n_links],
             connected: vec![false; n_nodes],
             known_head: vec![f64::NAN; n_nodes],
+            demand: vec![0.0; n_nodes],
+            subtree: vec![0.0; n_nodes],
+            pinned: Vec::new(),
+            tree_flow_sum: 0.0,
             demand_scale: 0.0,
             stack: Vec::with_capacity(n_nodes),
+            timings: Timings { analysis: analysis_time, ..Timings::default() },
+            analysis_time,
             pattern,
-        })
+        }
     }
 
     /// The analysed pattern (for statistics).
     pub fn pattern(&self) -> &Pattern {
         &self.pattern
+    }
+
+    /// Where the time of the last solve went.
+    pub fn timings(&self) -> &Timings {
+        &self.timings
     }
 
     /// Solves `model` with the options in its `[hydraulics]`.
@@ -230,31 +352,115 @@ impl Solver {
 
     /// Solves `model` with explicit options.
     pub fn solve_with(&mut self, model: &Model, options: &SolveOptions) -> Result<Solution, SolveError> {
+        self.solve_scenario(model, options, &Scenario::default())
+    }
+
+    /// Solves one scenario of `model`: its demands scaled, some statuses changed, the model
+    /// itself untouched.
+    pub fn solve_scenario(
+        &mut self,
+        model: &Model,
+        options: &SolveOptions,
+        scenario: &Scenario,
+    ) -> Result<Solution, SolveError> {
         model.validate()?;
+        check_scenario(model, scenario)?;
         if !self.pattern.fits(model) {
             *self = Solver::new(model)?;
         }
+        let start = Instant::now();
+        self.timings = Timings { analysis: self.analysis_time, ..Timings::default() };
+        self.analysis_time = Duration::ZERO;
         // Pipe data may have changed since the analysis; laws are cheap to recompute.
         for (law, link) in self.laws.iter_mut().zip(model.links()) {
             *law = LinkLaw::new(model, link);
         }
-        if !(options.warm_start && self.has_previous) {
+        for (hot, c) in self.hot.iter_mut().zip(&self.pattern.core) {
+            let law = &self.laws[c.link as usize];
+            *hot = match law.hazen_williams_parts() {
+                Some((r, minor)) => HotLaw { r, minor, min_slope: law.min_slope, general: false },
+                None => HotLaw { r: 0.0, minor: 0.0, min_slope: law.min_slope, general: true },
+            };
+        }
+        for (i, n) in model.nodes().iter().enumerate() {
+            self.demand[i] = n.demand() * scenario.demand_multiplier;
+        }
+        for (s, l) in self.status.iter_mut().zip(model.links()) {
+            *s = l.status;
+        }
+        for &(k, s) in &scenario.statuses {
+            self.status[k] = s;
+        }
+        let warm = options.warm_start && self.has_previous;
+        if !warm {
             for (q, law) in self.flow.iter_mut().zip(&self.laws) {
                 *q = law.initial_flow;
             }
         }
-        self.demand_scale = model.nodes().iter().map(|n| n.demand().abs()).sum::<f64>().max(1e-3);
+        // Heads: fixed ones as given; junctions from the previous solution on a warm start, else
+        // the mean fixed head. (The Newton step does not depend on the heads it starts from; a
+        // good start only keeps the first correction small.)
+        let (sum, count) =
+            model.nodes().iter().filter_map(|n| n.fixed_head()).fold((0.0, 0usize), |(s, c), h| (s + h, c + 1));
+        let start_head = sum / count.max(1) as f64;
+        for (h, n) in self.head.iter_mut().zip(model.nodes()) {
+            *h = match n.fixed_head() {
+                Some(fixed) => fixed,
+                None if warm && h.is_finite() => *h,
+                None => start_head,
+            };
+        }
+        self.demand_scale = self.demand.iter().map(|d| d.abs()).sum::<f64>().max(1e-3);
+        self.timings.preparation += start.elapsed();
         let result = self.iterate(model, options);
         self.has_previous = result.is_ok();
         result
     }
 
+    /// Solves many scenarios of one network in parallel (rayon's thread pool), every thread with
+    /// its own clone of this solver sharing one analysis. Results come in the scenarios' order.
+    ///
+    /// Each scenario is solved as by [`Solver::solve_scenario`] with `options`; with
+    /// `warm_start`, a thread starts each scenario from the one it solved before, so results
+    /// can then differ in the last digits from run to run.
+    pub fn solve_batch(
+        &self,
+        model: &Model,
+        options: &SolveOptions,
+        scenarios: &[Scenario],
+    ) -> Vec<Result<Solution, SolveError>> {
+        use rayon::prelude::*;
+        let fresh;
+        let base = if self.pattern.fits(model) {
+            self
+        } else {
+            match Solver::new(model) {
+                Ok(s) => {
+                    fresh = s;
+                    &fresh
+                }
+                Err(e) => return scenarios.iter().map(|_| Err(e.clone())).collect(),
+            }
+        };
+        scenarios
+            .par_iter()
+            .map_init(
+                || {
+                    let mut s = base.clone();
+                    s.has_previous = false;
+                    s
+                },
+                |solver, scenario| solver.solve_scenario(model, options, scenario),
+            )
+            .collect()
+    }
+
     fn iterate(&mut self, model: &Model, options: &SolveOptions) -> Result<Solution, SolveError> {
         let nodes = model.nodes();
         let links = model.links();
-        let fixed_head: Vec<f64> = nodes.iter().map(|n| n.fixed_head().unwrap_or(f64::NAN)).collect();
-        let mut tracker = StatusTracker::new(model);
-        let mut head: Vec<f64> = fixed_head.clone();
+        let clock = Instant::now();
+        let mut tracker = StatusTracker::new(model, &self.status);
+        self.timings.status += clock.elapsed();
         let mut iterations = 0u32;
         let mut status_changes = 0u32;
         let mut head_change = f64::INFINITY;
@@ -263,42 +469,56 @@ impl Solver {
 
         loop {
             if states_stale {
-                self.apply_states(model, &mut tracker, &fixed_head);
+                let clock = Instant::now();
+                self.apply_states(model, &mut tracker);
+                self.timings.status += clock.elapsed();
+                let clock = Instant::now();
+                self.tree_flows(model);
+                self.timings.forest += clock.elapsed();
+                let clock = Instant::now();
+                self.linearise();
+                self.timings.assembly += clock.elapsed();
                 states_stale = false;
             }
             if iterations >= options.max_iterations {
-                return Err(self.not_converged(model, &head, iterations, head_change, flow_change));
+                self.sync_flows();
+                self.tree_heads();
+                return Err(self.not_converged(model, iterations, head_change, flow_change));
             }
             iterations += 1;
-            self.assemble(model, &tracker);
-            for (u, x) in self.x_old.iter_mut().enumerate() {
-                *x = head[self.pattern.node_of_unknown[u] as usize];
-            }
-            self.factor.factor_and_solve(&self.pattern, &mut self.rhs).map_err(|e| SolveError::Numerical {
+            let clock = Instant::now();
+            self.assemble();
+            let assembled = Instant::now();
+            self.timings.assembly += assembled - clock;
+            let factored = self.factor.factor(&self.pattern);
+            let clock = Instant::now();
+            self.timings.factorization += clock - assembled;
+            factored.map_err(|e| SolveError::Numerical {
                 iteration: iterations,
                 detail: match self.pattern.node_of_unknown.get(e.unknown) {
                     Some(&node) => format!("pivot of node '{}' is not positive", nodes[node as usize].id),
                     None => "a pivot is not positive".to_owned(),
                 },
             })?;
+            self.factor.solve(&self.pattern, &mut self.rhs);
+            let solved = Instant::now();
+            self.timings.solves += solved - clock;
             head_change = 0.0;
             let mut finite = true;
-            for u in 0..self.pattern.n {
-                let node = self.pattern.node_of_unknown[u] as usize;
-                if self.connected[node] {
-                    let h = self.rhs[u];
-                    finite &= h.is_finite();
-                    head_change = head_change.max((h - self.x_old[u]).abs());
-                    head[node] = h;
-                } else {
-                    head[node] = f64::NAN;
+            for (u, &delta) in self.rhs.iter().enumerate() {
+                if self.free[u] {
+                    finite &= delta.is_finite();
+                    head_change = head_change.max(delta.abs());
+                    self.head[self.pattern.node_of_unknown[u] as usize] += delta;
                 }
             }
             if iterations == 1 {
-                // No previous heads to compare with.
+                // No previous iterate to compare with.
                 head_change = f64::INFINITY;
             }
-            flow_change = self.update_flows(model, &tracker, &head);
+            let (change, energy_residual) = self.update_links(model);
+            flow_change = change;
+            self.timings.assembly += solved.elapsed();
             if !finite || !flow_change.is_finite() {
                 return Err(SolveError::Numerical {
                     iteration: iterations,
@@ -306,28 +526,30 @@ impl Solver {
                 });
             }
             let heads_settled = head_change <= options.head_tolerance
-                // At the floating-point floor of a badly conditioned network, heads can keep
-                // moving by more than a tight tolerance while every energy equation already holds
-                // to it: then the energy residual decides.
-                || (flow_change <= options.flow_tolerance
-                    && iterations > 1
-                    && self.max_energy_residual(model, &head) <= options.head_tolerance);
+                // Heads that still move by more than a tight tolerance while every energy
+                // equation already holds to it (possible when the tolerance is near the
+                // floating-point floor of a large network): the energy residual decides.
+                || (flow_change <= options.flow_tolerance && iterations > 1 && energy_residual <= options.head_tolerance);
             if heads_settled && flow_change <= options.flow_tolerance {
                 if !tracker.has_devices() {
                     break;
                 }
+                let clock = Instant::now();
+                self.sync_flows();
                 let laws = &self.laws;
                 let open_loss = |k: usize, q: f64| laws[k].evaluate_exact(q).0;
                 let shutoff = |k: usize| laws[k].shutoff_head().unwrap_or(f64::INFINITY);
                 let seen = status::Observed {
                     flow: &self.flow,
-                    head: &head,
+                    head: &self.head,
                     connected: &self.connected,
                     open_loss: &open_loss,
                     shutoff: &shutoff,
                     tolerance: options.head_tolerance,
                 };
-                match tracker.update(model, &seen) {
+                let update = tracker.update(model, &seen);
+                self.timings.status += clock.elapsed();
+                match update {
                     Ok(0) => break,
                     Ok(n) => {
                         status_changes += n;
@@ -343,20 +565,32 @@ impl Solver {
                 }
             }
         }
+        self.sync_flows();
+        let clock = Instant::now();
+        self.tree_heads();
+        self.timings.forest += clock.elapsed();
+        let clock = Instant::now();
         let ending = tracker.ending(status_changes);
-        Ok(self.finish(model, head, iterations, status_changes, head_change, flow_change, &tracker, ending))
+        let solution = self.finish(model, iterations, status_changes, head_change, flow_change, &tracker, ending);
+        self.timings.results += clock.elapsed();
+        self.timings.iterations = iterations;
+        Ok(solution)
     }
 
     /// Recomputes, for the current device states, which links carry flow, which nodes a fixed
-    /// head reaches, and which heads are pinned by active pressure valves.
-    fn apply_states(&mut self, model: &Model, tracker: &mut StatusTracker, fixed_head: &[f64]) {
+    /// head reaches, which heads are pinned by active pressure valves, and how every core link
+    /// enters the iteration.
+    fn apply_states(&mut self, model: &Model, tracker: &mut StatusTracker) {
         let links = model.links();
+        let nodes = model.nodes();
         loop {
             for (k, s) in tracker.state.iter().enumerate() {
                 self.open[k] = s.carries_flow();
             }
-            topology::mark_connected(model, &self.adjacency, &self.open, &mut self.connected, &mut self.stack);
-            self.known_head.copy_from_slice(fixed_head);
+            topology::mark_connected(model, &self.pattern.adjacency, &self.open, &mut self.connected, &mut self.stack);
+            for (known, n) in self.known_head.iter_mut().zip(nodes) {
+                *known = n.fixed_head().unwrap_or(f64::NAN);
+            }
             for (k, l) in links.iter().enumerate() {
                 self.open[k] &= self.connected[l.from] && self.connected[l.to];
                 self.on_law[k] = self.open[k] && tracker.state[k].uses_law();
@@ -368,10 +602,10 @@ impl Solver {
                     if let LinkKind::Valve(v) = &l.kind {
                         match v.valve {
                             ValveType::PressureReducing => {
-                                self.known_head[l.to] = model.nodes()[l.to].elevation + v.setting;
+                                self.known_head[l.to] = nodes[l.to].elevation + v.setting;
                             }
                             ValveType::PressureSustaining => {
-                                self.known_head[l.from] = model.nodes()[l.from].elevation + v.setting;
+                                self.known_head[l.from] = nodes[l.from].elevation + v.setting;
                             }
                             ValveType::FlowControl => self.flow[k] = v.setting,
                             ValveType::Throttle => {}
@@ -383,11 +617,11 @@ impl Solver {
             // fix, and a valve cannot regulate a branch whose demand alone sets its flow: such a
             // valve is fully open.
             let mut forced = false;
-            for i in 0..model.nodes().len() {
+            for i in 0..nodes.len() {
                 if !self.connected[i] || !self.known_head[i].is_nan() {
                     continue;
                 }
-                let adjacent = self.adjacency.of(i);
+                let adjacent = self.pattern.adjacency.of(i);
                 if adjacent.iter().any(|&k| self.on_law[k as usize]) {
                     continue;
                 }
@@ -400,146 +634,238 @@ impl Solver {
                 break;
             }
         }
+        // Heads: pinned ones at their setting, cut-off ones undefined, newly reached ones from
+        // any finite value (the mean of the others would do as well as this one).
+        let fallback = self.head.iter().copied().find(|h| h.is_finite()).unwrap_or(0.0);
+        for i in 0..nodes.len() {
+            if !self.connected[i] {
+                self.head[i] = f64::NAN;
+            } else if !self.known_head[i].is_nan() {
+                self.head[i] = self.known_head[i];
+            } else if !self.head[i].is_finite() {
+                self.head[i] = fallback;
+            }
+        }
+        for (u, &node) in self.pattern.node_of_unknown.iter().enumerate() {
+            let node = node as usize;
+            self.free[u] = self.connected[node] && self.known_head[node].is_nan();
+        }
+        self.pinned.clear();
+        for (i, c) in self.pattern.core.iter().enumerate() {
+            let k = c.link as usize;
+            self.cq[i] = self.flow[k];
+            self.mode[i] = if !self.open[k] {
+                MODE_CLOSED
+            } else if self.on_law[k] {
+                MODE_LAW
+            } else {
+                MODE_FIXED_FLOW
+            };
+            if self.mode[i] == MODE_FIXED_FLOW {
+                let l = &links[k];
+                match l.as_valve().map(|v| v.valve) {
+                    Some(ValveType::PressureReducing) => {
+                        self.pinned.push(Pinned { core: i as u32, link: c.link, node: l.to as u32, sign: 1.0 })
+                    }
+                    Some(ValveType::PressureSustaining) => {
+                        self.pinned.push(Pinned { core: i as u32, link: c.link, node: l.from as u32, sign: -1.0 })
+                    }
+                    _ => {}
+                }
+            }
+        }
     }
 
-    /// New flows from new heads; returns the relative flow change Σ|ΔQ| / Σ|Q|.
+    /// Flows of the tree pipes (the demand beyond each, leaves first) and the demand each core
+    /// unknown then carries.
+    fn tree_flows(&mut self, model: &Model) {
+        let _ = model;
+        self.subtree.iter_mut().for_each(|s| *s = 0.0);
+        let mut sum = 0.0;
+        for t in &self.pattern.trees {
+            let (k, child, parent) = (t.link as usize, t.child as usize, t.parent as usize);
+            if !self.open[k] {
+                self.flow[k] = 0.0;
+                continue;
+            }
+            let beyond = self.demand[child] + self.subtree[child];
+            self.subtree[parent] += beyond;
+            self.flow[k] = if t.downstream { beyond } else { -beyond };
+            sum += beyond.abs();
+        }
+        self.tree_flow_sum = sum;
+        for (u, &node) in self.pattern.node_of_unknown.iter().enumerate() {
+            let node = node as usize;
+            self.unknown_demand[u] = self.demand[node] + self.subtree[node];
+        }
+    }
+
+    /// Heads of the tree junctions from their roots' heads, root to leaves, on the exact laws.
+    fn tree_heads(&mut self) {
+        for t in self.pattern.trees.iter().rev() {
+            let (k, child, parent) = (t.link as usize, t.child as usize, t.parent as usize);
+            self.head[child] = if self.connected[child] {
+                let loss = self.laws[k].evaluate_exact(self.flow[k]).0;
+                if t.downstream {
+                    self.head[parent] - loss
+                } else {
+                    self.head[parent] + loss
+                }
+            } else {
+                f64::NAN
+            };
+        }
+    }
+
+    /// Copies the core flows into the per-link flows.
+    fn sync_flows(&mut self) {
+        for (c, &q) in self.pattern.core.iter().zip(&self.cq) {
+            self.flow[c.link as usize] = q;
+        }
+    }
+
+    /// Linearises every core link at its current flow and the current heads.
+    fn linearise(&mut self) {
+        for i in 0..self.pattern.core.len() {
+            if self.mode[i] == MODE_LAW {
+                let c = &self.pattern.core[i];
+                let dh = self.head[c.from as usize] - self.head[c.to as usize];
+                let (p, cc, _) = self.coefficients(i, self.cq[i], dh);
+                self.cp[i] = p;
+                self.cc[i] = cc;
+            } else {
+                self.cp[i] = 0.0;
+                self.cc[i] = self.cq[i];
+            }
+        }
+    }
+
+    /// Conductance p, constant c and energy residual of core link `i` at flow `q` and head
+    /// difference `dh`.
+    #[inline]
+    fn coefficients(&self, i: usize, q: f64, dh: f64) -> (f64, f64, f64) {
+        let hot = self.hot[i];
+        let (y, g) = if hot.general {
+            let (y, g) = self.laws[self.pattern.core[i].link as usize].evaluate_exact(q);
+            (y, g.max(hot.min_slope))
+        } else {
+            let (y, g) = links::hazen_williams(hot.r, hot.minor, q);
+            (y, g.max(hot.min_slope))
+        };
+        let p = 1.0 / g;
+        (p, q + p * (dh - y), (y - dh).abs())
+    }
+
+    /// New flows of the core links from the head corrections in `rhs`, linearised at once for
+    /// the next step (one pass: each law evaluated once per iteration). Returns the relative
+    /// flow change Σ|ΔQ| / Σ|Q| and the largest energy residual of the core links on their law
+    /// (tree pipes meet theirs exactly by construction).
     ///
-    /// Links on their law follow `Q = c + p (H_from − H_to)`. An active flow-control valve holds
+    /// Links on their law follow `Q = c + p (δ_from − δ_to)`. An active flow-control valve holds
     /// its setting. An active pressure valve's flow is whatever the mass balance of the node it
     /// pins requires; that flow enters the other node's balance at the next step, so at
     /// convergence both balances hold.
-    fn update_flows(&mut self, model: &Model, tracker: &StatusTracker, head: &[f64]) -> f64 {
-        let links = model.links();
-        let (mut sum_dq, mut sum_q) = (0.0, 0.0);
-        let mut pinned_flows = false;
-        for (k, l) in links.iter().enumerate() {
-            let q = if !self.open[k] {
-                0.0
-            } else if tracker.state[k].uses_law() {
-                self.c[k] + self.p[k] * (head[l.from] - head[l.to])
-            } else {
-                pinned_flows |= matches!(&l.kind, LinkKind::Valve(v) if v.valve != ValveType::FlowControl);
-                self.c[k]
-            };
-            sum_dq += (q - self.flow[k]).abs();
-            sum_q += q.abs();
-            self.flow[k] = q;
-        }
-        if pinned_flows {
-            for (k, l) in links.iter().enumerate() {
-                if !self.open[k] || tracker.state[k] != LinkState::Active {
-                    continue;
+    fn update_links(&mut self, model: &Model) -> (f64, f64) {
+        let (mut sum_dq, mut sum_q, mut residual) = (0.0, self.tree_flow_sum, 0.0f64);
+        let delta = |u: u32| if u == NONE { 0.0 } else { self.rhs[u as usize] };
+        for i in 0..self.pattern.core.len() {
+            match self.mode[i] {
+                MODE_LAW => {
+                    let c = &self.pattern.core[i];
+                    let q = self.cc[i] + self.cp[i] * (delta(c.slots.from) - delta(c.slots.to));
+                    let dh = self.head[c.from as usize] - self.head[c.to as usize];
+                    let (p, cc, r) = self.coefficients(i, q, dh);
+                    residual = residual.max(r);
+                    sum_dq += (q - self.cq[i]).abs();
+                    sum_q += q.abs();
+                    self.cq[i] = q;
+                    self.cp[i] = p;
+                    self.cc[i] = cc;
                 }
-                let Some(v) = l.as_valve() else { continue };
-                let (node, sign) = match v.valve {
-                    ValveType::PressureReducing => (l.to, 1.0),
-                    ValveType::PressureSustaining => (l.from, -1.0),
-                    _ => continue,
-                };
+                MODE_FIXED_FLOW => sum_q += self.cq[i].abs(),
+                _ => {}
+            }
+        }
+        if !self.pinned.is_empty() {
+            let links = model.links();
+            for v in 0..self.pinned.len() {
+                let Pinned { core, link, node, sign } = self.pinned[v];
+                let (core, node) = (core as usize, node as usize);
                 // Net inflow the pinned node needs from this valve: its demand plus its outflow
                 // through every other link, minus its inflow through them.
-                let mut need = model.nodes()[node].demand();
-                for &j in self.adjacency.of(node) {
-                    let j = j as usize;
-                    if j == k {
+                let mut need = self.demand[node];
+                for &j in self.pattern.adjacency.of(node) {
+                    if j == link {
                         continue;
                     }
-                    let lj = &links[j];
-                    if lj.from == node {
-                        need += self.flow[j];
+                    let position = self.pattern.core_position[j as usize];
+                    let q = if position == NONE { self.flow[j as usize] } else { self.cq[position as usize] };
+                    if links[j as usize].from == node {
+                        need += q;
                     } else {
-                        need -= self.flow[j];
+                        need -= q;
                     }
                 }
                 // A pressure-sustaining valve pins its upstream node: its flow is what leaves it.
-                let q = if sign > 0.0 { need } else { -need };
-                sum_dq += (q - self.flow[k]).abs();
-                sum_q += q.abs() - self.flow[k].abs();
-                self.flow[k] = q;
+                let q = sign * need;
+                sum_dq += (q - self.cq[core]).abs();
+                sum_q += q.abs() - self.cq[core].abs();
+                self.cq[core] = q;
+                self.cc[core] = q;
             }
         }
         // Relative to the water moving; a network with (almost) no flow is measured against the
         // total demand, or an absolute floor of 1 L/s, so that round-off in flows of nothing
         // does not count as change.
-        sum_dq / sum_q.max(self.demand_scale)
+        (sum_dq / sum_q.max(self.demand_scale), residual)
     }
 
-    /// Largest |h(Q) − (H_from − H_to)| over links on their law.
-    fn max_energy_residual(&self, model: &Model, head: &[f64]) -> f64 {
-        energy_residuals(model, &self.laws, &self.flow, head, &self.on_law).into_iter().fold(0.0, f64::max)
-    }
-
-    /// Fills the matrix values and right-hand side for the current flows and states.
-    fn assemble(&mut self, model: &Model, tracker: &StatusTracker) {
+    /// Fills the matrix and right-hand side of the head corrections δ for the current
+    /// coefficients: `Σ p δ_i − Σ p δ_j = −d_i + Σ_in c − Σ_out c`, unit rows for pinned and
+    /// cut-off unknowns (their δ is zero).
+    fn assemble(&mut self) {
         let values = &mut self.factor.values;
         values.iter_mut().for_each(|v| *v = 0.0);
-        for (u, r) in self.rhs.iter_mut().enumerate() {
-            *r = -model.nodes()[self.pattern.node_of_unknown[u] as usize].demand();
+        for (r, &d) in self.rhs.iter_mut().zip(&self.unknown_demand) {
+            *r = -d;
         }
-        let known = &self.known_head;
-        for (k, l) in model.links().iter().enumerate() {
-            if !self.open[k] {
-                self.p[k] = 0.0;
-                self.c[k] = 0.0;
+        let pattern = &*self.pattern;
+        for (i, c) in pattern.core.iter().enumerate() {
+            if self.mode[i] == MODE_CLOSED {
                 continue;
             }
-            let (p, c) = if tracker.state[k].uses_law() {
-                let (y, g) = self.laws[k].evaluate(self.flow[k]);
-                let p = 1.0 / g;
-                (p, self.flow[k] - p * y)
-            } else {
-                // Regulating valve: a known flow this step, no coupling of heads.
-                (0.0, self.flow[k])
-            };
-            self.p[k] = p;
-            self.c[k] = c;
-            let s = self.pattern.links[k];
-            let free_from = s.from != NONE && known[l.from].is_nan();
-            let free_to = s.to != NONE && known[l.to].is_nan();
+            let (p, cc) = (self.cp[i], self.cc[i]);
+            let s = c.slots;
+            let free_from = s.from != NONE && self.free[s.from as usize];
+            let free_to = s.to != NONE && self.free[s.to as usize];
             if free_from {
-                values[self.pattern.diag_slot[s.from as usize] as usize] += p;
-                self.rhs[s.from as usize] -= c;
-                if !free_to {
-                    self.rhs[s.from as usize] += p * known[l.to];
-                }
+                values[pattern.diag_slot[s.from as usize] as usize] += p;
+                self.rhs[s.from as usize] -= cc;
             }
             if free_to {
-                values[self.pattern.diag_slot[s.to as usize] as usize] += p;
-                self.rhs[s.to as usize] += c;
-                if !free_from {
-                    self.rhs[s.to as usize] += p * known[l.from];
-                }
+                values[pattern.diag_slot[s.to as usize] as usize] += p;
+                self.rhs[s.to as usize] += cc;
             }
             if free_from && free_to {
                 values[s.off as usize] -= p;
             }
         }
-        for u in 0..self.pattern.n {
-            let node = self.pattern.node_of_unknown[u] as usize;
-            if !self.connected[node] {
-                values[self.pattern.diag_slot[u] as usize] = 1.0;
+        for u in 0..pattern.n {
+            if !self.free[u] {
+                values[pattern.diag_slot[u] as usize] = 1.0;
                 self.rhs[u] = 0.0;
-            } else if !known[node].is_nan() {
-                values[self.pattern.diag_slot[u] as usize] = 1.0;
-                self.rhs[u] = known[node];
             }
         }
     }
 
-    fn not_converged(
-        &self,
-        model: &Model,
-        head: &[f64],
-        iterations: u32,
-        head_change: f64,
-        flow_change: f64,
-    ) -> SolveError {
-        let energy = energy_residuals(model, &self.laws, &self.flow, head, &self.on_law);
+    fn not_converged(&self, model: &Model, iterations: u32, head_change: f64, flow_change: f64) -> SolveError {
+        let energy = energy_residuals(model, &self.laws, &self.flow, &self.head, &self.on_law);
+        // The last head corrections are still in `rhs`.
         let mut worst_nodes: Vec<Offender> = (0..self.pattern.n)
-            .filter(|&u| self.connected[self.pattern.node_of_unknown[u] as usize])
+            .filter(|&u| self.free[u])
             .map(|u| {
                 let node = self.pattern.node_of_unknown[u] as usize;
-                Offender { id: model.nodes()[node].id.clone(), value: (head[node] - self.x_old[u]).abs() }
+                Offender { id: model.nodes()[node].id.clone(), value: self.rhs[u].abs() }
             })
             .filter(|o| o.value.is_finite())
             .collect();
@@ -568,7 +894,6 @@ impl Solver {
     fn finish(
         &self,
         model: &Model,
-        head: Vec<f64>,
         iterations: u32,
         status_changes: u32,
         last_head_change: f64,
@@ -578,9 +903,10 @@ impl Solver {
     ) -> Solution {
         let nodes = model.nodes();
         let links = model.links();
+        let head = self.head.clone();
         let energy = energy_residuals(model, &self.laws, &self.flow, &head, &self.on_law);
         let max_energy_residual = energy.iter().copied().fold(0.0, f64::max);
-        let mut balance: Vec<f64> = nodes.iter().map(|n| -n.demand()).collect();
+        let mut balance: Vec<f64> = self.demand.iter().map(|d| -d).collect();
         for (l, &q) in links.iter().zip(&self.flow) {
             balance[l.to] += q;
             balance[l.from] -= q;
@@ -630,8 +956,7 @@ impl Solver {
         let mut warnings = Vec::new();
         let cut_off: Vec<usize> = (0..nodes.len()).filter(|&i| !self.connected[i]).collect();
         for &i in &cut_off {
-            let d = nodes[i].demand();
-            let message = if d != 0.0 {
+            let message = if self.demand[i] != 0.0 {
                 "cut off from every reservoir and tank by closed links; its demand is not supplied".to_owned()
             } else {
                 "cut off from every reservoir and tank by closed links; it has no head".to_owned()
@@ -662,7 +987,7 @@ impl Solver {
             status_changes,
             ending,
             pumps,
-            demand: nodes.iter().map(|n| n.demand()).collect(),
+            demand: self.demand.clone(),
             connected: self.connected.clone(),
             head,
             pressure,
@@ -679,7 +1004,6 @@ impl Solver {
     }
 }
 
-/// |h(Q) − (H_from − H_to)| per link (zero for links not open).
 /// |h(Q) − (H_from − H_to)| per link on its law (zero for closed and regulating links, whose
 /// energy equation is replaced by their constraint).
 fn energy_residuals(model: &Model, laws: &[LinkLaw], flow: &[f64], head: &[f64], on_law: &[bool]) -> Vec<f64> {
@@ -697,4 +1021,20 @@ fn energy_residuals(model: &Model, laws: &[LinkLaw], flow: &[f64], head: &[f64],
             },
         )
         .collect()
+}
+
+/// Checks a scenario against its model: a finite, non-negative demand factor and existing links.
+fn check_scenario(model: &Model, scenario: &Scenario) -> Result<(), ModelError> {
+    let m = scenario.demand_multiplier;
+    if !(m.is_finite() && m >= 0.0) {
+        return Err(ModelError::at(None, Some("demand_multiplier"), format!("must be a finite number, zero or more, found {m}")));
+    }
+    if let Some(&(k, _)) = scenario.statuses.iter().find(|(k, _)| *k >= model.links().len()) {
+        return Err(ModelError::at(
+            None,
+            Some("statuses"),
+            format!("link index {k} does not exist (the model has {} links)", model.links().len()),
+        ));
+    }
+    Ok(())
 }

@@ -1,23 +1,21 @@
-//! Phase 1, once per network structure: number the unknowns, order them, build the permuted
-//! sparsity pattern of the head matrix, the scatter map from links to matrix slots, and the
-//! symbolic Cholesky factorization.
+//! Phase 1, once per network structure: split off the dead-end trees, number the remaining
+//! (core) unknowns, order them, build the permuted sparsity pattern of the head matrix, the
+//! scatter map from links to matrix slots, and the symbolic Cholesky factorization.
+//!
+//! # Forest and core
+//! Following Simpson, Elhay & Alexander (2014, "Forest-core partitioning algorithm for speeding
+//! up analysis of water distribution systems", J. Water Resour. Plann. Manage. 140(4)), junctions
+//! in dead-end trees never enter the matrix: the flow of a tree pipe is the demand of everything
+//! beyond it, whatever the heads, and the heads in a tree follow from its root's head by one
+//! sweep. The trees are found by peeling: a junction with a single remaining link is a leaf; it
+//! is removed with that link, which may make its neighbour a leaf, and so on. Only plain pipes
+//! (no check valve) are peeled, so every device stays in the core and its state logic sees the
+//! core's heads; a closed tree pipe simply cuts off what lies beyond it. [`Pattern::trees`] lists
+//! the tree pipes leaves first: flows accumulate in that order, heads in the reverse.
 //!
 //! # Why faer's simplicial Cholesky with AMD
-//! The head matrix of the gradient method is a weighted graph Laplacian: symmetric positive
-//! definite, about 3.4 non-zeros per row, with long dead-end chains. With an approximate minimum
-//! degree (AMD) ordering its Cholesky factor keeps under 4 non-zeros per row, so a simplicial
-//! (column-by-column) factorization is the right tool; supernodes bring nothing at this density.
-//! Measured on generated street networks on a 2-core machine, faer's simplicial Cholesky with an
-//! AMD ordering, the matrix assembled directly in permuted order, is level with CHOLMOD (about
-//! 15 ms for 10⁵ unknowns), while sprs-ldl with its own reverse Cuthill–McKee ordering was 19×
-//! slower at that size (RCM's profile grows much faster than AMD's fill). The ordering is what
-//! matters, so it is computed once here and reused for every iteration, scenario and time step.
-//!
-//! The pattern includes every link between two junctions, whatever its status: closing a link
-//! or a check valve only writes zeros into its slots, and a junction cut off from every fixed
-//! head gets a unit diagonal. The analysis therefore survives every status change.
-
-use crate::model::Model;
+use super::topology::Adjacency;
+use crate::model::{LinkKind, Model};
 use faer::dyn_stack::{MemBuffer, MemStack, StackReq};
 use faer::sparse::linalg::amd;
 use faer::sparse::linalg::cholesky::simplicial::{self, SymbolicSimplicialCholesky};
@@ -37,6 +35,32 @@ pub struct LinkSlots {
 /// Marker for "no unknown / no slot".
 pub const NONE: u32 = u32::MAX;
 
+/// A pipe of a dead-end tree, with the end nearer the core.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct TreeLink {
+    /// The link.
+    pub link: u32,
+    /// The end towards the core (a core junction, a fixed head, or a tree junction).
+    pub parent: u32,
+    /// The end away from the core (a tree junction).
+    pub child: u32,
+    /// Whether the link points from parent to child (`from == parent`).
+    pub downstream: bool,
+}
+
+/// A link of the core, with everything the iteration needs to scatter it.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct CoreLink {
+    /// The link.
+    pub link: u32,
+    /// Its `from` node.
+    pub from: u32,
+    /// Its `to` node.
+    pub to: u32,
+    /// Matrix slots.
+    pub slots: LinkSlots,
+}
+
 /// The analysed structure of a network's head matrix.
 #[derive(Debug)]
 pub struct Pattern {
@@ -52,14 +76,65 @@ pub struct Pattern {
     pub row_idx: Vec<usize>,
     /// Value slot of each permuted unknown's diagonal entry.
     pub diag_slot: Vec<u32>,
-    /// Slots of every link.
+    /// Slots of every link (all `NONE` for tree links).
     pub links: Vec<LinkSlots>,
+    /// Links of the core, ordered by the matrix column they write to (for locality).
+    pub core: Vec<CoreLink>,
+    /// Position of each link in `core`, or `NONE` for tree links.
+    pub core_position: Vec<u32>,
+    /// Pipes of the dead-end trees, leaves first.
+    pub trees: Vec<TreeLink>,
+    /// Whether each node is a junction of a dead-end tree.
+    pub in_tree: Vec<bool>,
+    /// For each node, the links that touch it.
+    pub adjacency: Adjacency,
     /// Symbolic Cholesky factor.
     pub symbolic: SymbolicSimplicialCholesky<usize>,
     /// Structure signature: node kinds (fixed or not) and link end points.
     signature: Vec<(u32, u32)>,
     /// Fixed-head flags per node at analysis time.
     fixed: Vec<bool>,
+    /// Whether each link could be peeled into a tree (a plain pipe) at analysis time.
+    peelable: Vec<bool>,
+}
+
+/// Whether a link may belong to a dead-end tree: a pipe without a check valve, whatever its
+/// status (a closed tree pipe cuts off its subtree, which the tree sweeps handle).
+fn peelable(kind: &LinkKind) -> bool {
+    matches!(kind, LinkKind::Pipe(p) if !p.check_valve)
+}
+
+/// Peels the dead-end trees off the network; returns the tree links, leaves first, and which
+/// nodes are tree junctions.
+fn peel(model: &Model, adjacency: &Adjacency, fixed: &[bool], peelable: &[bool]) -> (Vec<TreeLink>, Vec<bool>) {
+    let links = model.links();
+    let n = model.nodes().len();
+    let mut degree: Vec<u32> = (0..n).map(|i| adjacency.of(i).len() as u32).collect();
+    let mut removed = vec![false; links.len()];
+    let mut in_tree = vec![false; n];
+    let mut trees = Vec::new();
+    let mut stack: Vec<u32> = (0..n as u32).filter(|&i| !fixed[i as usize] && degree[i as usize] == 1).collect();
+    while let Some(leaf) = stack.pop() {
+        let leaf = leaf as usize;
+        if in_tree[leaf] || degree[leaf] != 1 {
+            continue;
+        }
+        let Some(&k) = adjacency.of(leaf).iter().find(|&&k| !removed[k as usize]) else { continue };
+        if !peelable[k as usize] {
+            continue;
+        }
+        let l = &links[k as usize];
+        let parent = if l.from == leaf { l.to } else { l.from };
+        removed[k as usize] = true;
+        in_tree[leaf] = true;
+        degree[leaf] = 0;
+        degree[parent] -= 1;
+        trees.push(TreeLink { link: k, parent: parent as u32, child: leaf as u32, downstream: l.from == parent });
+        if !fixed[parent] && degree[parent] == 1 {
+            stack.push(parent as u32);
+        }
+    }
+    (trees, in_tree)
 }
 
 /// Scratch size of the numeric factorization and solve for an `n`-unknown matrix.
@@ -72,18 +147,25 @@ impl Pattern {
     pub fn analyse(model: &Model) -> Pattern {
         let nodes = model.nodes();
         let fixed: Vec<bool> = nodes.iter().map(|n| n.fixed_head().is_some()).collect();
-        // Unknowns in node order first.
+        let peelable: Vec<bool> = model.links().iter().map(|l| peelable(&l.kind)).collect();
+        let adjacency = Adjacency::new(model);
+        let (trees, in_tree) = peel(model, &adjacency, &fixed, &peelable);
+        let mut is_tree_link = vec![false; model.links().len()];
+        for t in &trees {
+            is_tree_link[t.link as usize] = true;
+        }
+        // Core unknowns in node order first.
         let mut original = vec![NONE; nodes.len()];
         let mut n = 0usize;
         for (i, f) in fixed.iter().enumerate() {
-            if !f {
+            if !f && !in_tree[i] {
                 original[i] = n as u32;
                 n += 1;
             }
         }
         // Neighbour lists (upper part, deduplicated) in original numbering.
         let mut pairs: Vec<(u32, u32)> = Vec::with_capacity(model.links().len());
-        for l in model.links() {
+        for (l, _) in model.links().iter().zip(&is_tree_link).filter(|(_, &t)| !t) {
             let (a, b) = (original[l.from], original[l.to]);
             if a != NONE && b != NONE {
                 pairs.push((a.min(b), a.max(b)));
@@ -140,7 +222,11 @@ impl Pattern {
         let links: Vec<LinkSlots> = model
             .links()
             .iter()
-            .map(|l| {
+            .zip(&is_tree_link)
+            .map(|(l, &tree)| {
+                if tree {
+                    return LinkSlots { from: NONE, to: NONE, off: NONE };
+                }
                 let (a, b) = (unknown_of_node[l.from], unknown_of_node[l.to]);
                 let off = if a != NONE && b != NONE {
                     let (r, c) = (a.min(b) as usize, a.max(b) as usize);
@@ -152,17 +238,60 @@ impl Pattern {
             })
             .collect();
 
+        let mut core: Vec<CoreLink> = model
+            .links()
+            .iter()
+            .enumerate()
+            .filter(|&(k, _)| !is_tree_link[k])
+            .map(|(k, l)| CoreLink { link: k as u32, from: l.from as u32, to: l.to as u32, slots: links[k] })
+            .collect();
+        // Column order: consecutive links write to nearby matrix entries and read nearby unknowns.
+        let column = |c: &CoreLink| match (c.slots.from, c.slots.to) {
+            (NONE, NONE) => 0,
+            (NONE, u) | (u, NONE) => u,
+            (a, b) => a.max(b),
+        };
+        core.sort_by_key(|c| (column(c), c.link));
+        let mut core_position = vec![NONE; model.links().len()];
+        for (i, c) in core.iter().enumerate() {
+            core_position[c.link as usize] = i as u32;
+        }
+
         let symbolic = symbolic_factor(n, &col_ptr, &row_idx);
         let signature = model.links().iter().map(|l| (l.from as u32, l.to as u32)).collect();
-        Pattern { n, unknown_of_node, node_of_unknown, col_ptr, row_idx, diag_slot, links, symbolic, signature, fixed }
+        Pattern {
+            n,
+            unknown_of_node,
+            node_of_unknown,
+            col_ptr,
+            row_idx,
+            diag_slot,
+            links,
+            core,
+            core_position,
+            trees,
+            in_tree,
+            adjacency,
+            symbolic,
+            signature,
+            fixed,
+            peelable,
+        }
     }
 
-    /// Whether this analysis still fits `model` (same nodes' roles, same link end points).
+    /// Whether this analysis still fits `model` (same nodes' roles, same link end points, the
+    /// same links eligible for the trees).
     pub fn fits(&self, model: &Model) -> bool {
         model.nodes().len() == self.fixed.len()
             && model.links().len() == self.signature.len()
             && model.nodes().iter().zip(&self.fixed).all(|(n, &f)| n.fixed_head().is_some() == f)
             && model.links().iter().zip(&self.signature).all(|(l, &(a, b))| l.from as u32 == a && l.to as u32 == b)
+            && model.links().iter().zip(&self.peelable).all(|(l, &p)| peelable(&l.kind) == p)
+    }
+
+    /// Number of junctions in dead-end trees (outside the matrix).
+    pub fn tree_junctions(&self) -> usize {
+        self.trees.len()
     }
 
     /// Number of stored entries of the upper triangle.
