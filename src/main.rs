@@ -202,7 +202,10 @@ fn print_timings(model: &Model, solver: &ringmain_core::Solver, reading: Duratio
         t.iterations
     );
     eprintln!("  reading the model       {:9.3} ms", ms(reading));
-    eprintln!("  analysis                {:9.3} ms  (forest-core split, ordering, symbolic factorization)", ms(t.analysis));
+    eprintln!(
+        "  analysis                {:9.3} ms  (forest-core split, ordering, symbolic factorization)",
+        ms(t.analysis)
+    );
     eprintln!("  preparation             {:9.3} ms  (laws, demands, starting values)", ms(t.preparation));
     eprintln!("  assembly                {:9.3} ms  ({:.0}% of the iterations)", ms(t.assembly), share(t.assembly));
     eprintln!(

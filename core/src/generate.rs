@@ -272,10 +272,7 @@ pub fn generate(spec: &NetworkSpec) -> Result<Model, ModelError> {
     for (g, &(x, y)) in coords.iter().enumerate() {
         let elevation = ground(x, y, spec.terrain_relief, phase) + b.rng.range(-0.5, 0.5);
         let d = demand(&mut b.rng);
-        let node = Node {
-            coordinates: Some((x, y)),
-            ..Node::junction(format!("J{}", g + 1), round2(elevation), d)
-        };
+        let node = Node { coordinates: Some((x, y)), ..Node::junction(format!("J{}", g + 1), round2(elevation), d) };
         b.model.add_node(node)?;
     }
 
@@ -405,7 +402,12 @@ pub fn generate(spec: &NetworkSpec) -> Result<Model, ModelError> {
                 let floor = mean_ground + spec.service_head - 2.0 - 6.0;
                 Node {
                     coordinates: Some((x, y)),
-                    kind: NodeKind::Tank(Tank { level: 6.0, min_level: 1.0, max_level: Some(9.0), diameter: Some(30.0) }),
+                    kind: NodeKind::Tank(Tank {
+                        level: 6.0,
+                        min_level: 1.0,
+                        max_level: Some(9.0),
+                        diameter: Some(30.0),
+                    }),
                     ..Node::junction(format!("T{}", sources / 3 + 1), round2(floor), 0.0)
                 }
             } else {

@@ -16,6 +16,7 @@ use crate::physics::WaterProperties;
 use crate::units::HORSEPOWER;
 use crate::units::{suggest, DiameterUnit, FlowUnit, LengthUnit, PressureUnit, RoughnessUnit, UnitSystem};
 use std::path::Path;
+use std::sync::OnceLock;
 
 /// The syntax of a model file.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -438,7 +439,8 @@ fn read_node(index: usize, value: Value, units: &UnitSystem) -> Result<Node, Mod
     };
     let element = f.element.clone();
     let Some(Element::Node(id)) = element else { unreachable!("identify sets the element") };
-    f.finish_with(keys, &all_keys(NODE_KEYS), kind.label())?;
+    static ALL_NODE_KEYS: OnceLock<Vec<&'static str>> = OnceLock::new();
+    f.finish_with(keys, ALL_NODE_KEYS.get_or_init(|| all_keys(NODE_KEYS)), kind.label())?;
     Ok(Node { id, elevation, coordinates, zone, kind })
 }
 
@@ -465,7 +467,8 @@ fn read_link(index: usize, value: Value, model: &Model) -> Result<Link, ModelErr
         }
     };
     let Some(Element::Link(id)) = f.element.clone() else { unreachable!("identify sets the element") };
-    f.finish_with(keys, &all_keys(LINK_KEYS), kind.label())?;
+    static ALL_LINK_KEYS: OnceLock<Vec<&'static str>> = OnceLock::new();
+    f.finish_with(keys, ALL_LINK_KEYS.get_or_init(|| all_keys(LINK_KEYS)), kind.label())?;
     Ok(Link { id, from, to, status, kind })
 }
 

@@ -6,7 +6,7 @@
 
 use crate::model::{HeadLossLaw, Link, LinkKind, Model, PumpDrive, ValveType};
 use crate::physics::pump::HeadCurve;
-use crate::physics::{minor_loss_coefficient, Friction};
+use crate::physics::{minor_loss_coefficient, Friction, WaterProperties};
 use crate::units::GRAVITY;
 use std::f64::consts::PI;
 
@@ -58,7 +58,12 @@ impl LinkLaw {
     /// The law of a link of `model` when it is open (for valves: fully open, or throttling at the
     /// setting for an automatic throttle valve).
     pub fn new(model: &Model, link: &Link) -> Self {
-        let water = model.options.water_properties();
+        LinkLaw::with_water(model, link, &model.options.water_properties())
+    }
+
+    /// Like [`LinkLaw::new`] with the model's water properties computed once by the caller
+    /// (they take a few hundred floating-point operations, more than the law itself).
+    pub fn with_water(model: &Model, link: &Link, water: &WaterProperties) -> Self {
         let resistance = |friction: Option<Friction>, k: f64, d: f64| {
             let area = PI * d * d / 4.0;
             let mut law = LinkLaw {

@@ -217,10 +217,16 @@ impl Default for Scenario {
     }
 }
 
-/// How a core link enters the current iteration.
+/// How a core link enters the current iteration (low two bits), and which of its ends are free
+/// unknowns (the bits above).
 const MODE_CLOSED: u8 = 0;
 const MODE_LAW: u8 = 1;
 const MODE_FIXED_FLOW: u8 = 2;
+/// An active pressure valve: its flow comes from the balance of the node it pins.
+const MODE_PINNED: u8 = 3;
+const MODE_MASK: u8 = 3;
+const FREE_FROM: u8 = 4;
+const FREE_TO: u8 = 8;
 
 /// A core link's law in the form the iteration evaluates: Hazen–Williams pipes inline, anything
 /// else through its [`LinkLaw`].
@@ -269,6 +275,8 @@ pub struct Solver {
     mode: Vec<u8>,
     // Per unknown.
     rhs: Vec<f64>,
+    /// The last head corrections.
+    delta: Vec<f64>,
     unknown_demand: Vec<f64>,
     free: Vec<bool>,
     // Per link.
@@ -306,7 +314,10 @@ impl Solver {
         let n_core = pattern.core.len();
         Solver {
             factor: Factor::new(&pattern),
-            laws: model.links().iter().map(|l| LinkLaw::new(model, l)).collect(),
+            laws: {
+                let water = model.options.water_properties();
+                model.links().iter().map(|l| LinkLaw::with_water(model, l, &water)).collect()
+            },
             hot: vec![HotLaw { r: 0.0, minor: 0.0, min_slope: 0.0, general: true }; n_core],
             flow: vec![0.0; n_links],
             head: vec![f64::NAN; n_nodes],
@@ -316,6 +327,7 @@ impl Solver {
             cc: vec![0.0; n_core],
             mode: vec![MODE_CLOSED; n_core],
             rhs: vec![0.0; pattern.n],
+            delta: vec![0.0; pattern.n],
             unknown_demand: vec![0.0; pattern.n],
             free: vec![false; pattern.n],
             open: vec![false; n_links],
@@ -372,8 +384,9 @@ impl Solver {
         self.timings = Timings { analysis: self.analysis_time, ..Timings::default() };
         self.analysis_time = Duration::ZERO;
         // Pipe data may have changed since the analysis; laws are cheap to recompute.
+        let water = model.options.water_properties();
         for (law, link) in self.laws.iter_mut().zip(model.links()) {
-            *law = LinkLaw::new(model, link);
+            *law = LinkLaw::with_water(model, link, &water);
         }
         for (hot, c) in self.hot.iter_mut().zip(&self.pattern.core) {
             let law = &self.laws[c.link as usize];
@@ -477,6 +490,11 @@ impl Solver {
                 self.timings.forest += clock.elapsed();
                 let clock = Instant::now();
                 self.linearise();
+                self.begin_assembly();
+                for i in 0..self.pattern.core.len() {
+                    self.scatter(i);
+                }
+                self.end_assembly();
                 self.timings.assembly += clock.elapsed();
                 states_stale = false;
             }
@@ -486,10 +504,7 @@ impl Solver {
                 return Err(self.not_converged(model, iterations, head_change, flow_change));
             }
             iterations += 1;
-            let clock = Instant::now();
-            self.assemble();
             let assembled = Instant::now();
-            self.timings.assembly += assembled - clock;
             let factored = self.factor.factor(&self.pattern);
             let clock = Instant::now();
             self.timings.factorization += clock - assembled;
@@ -503,9 +518,10 @@ impl Solver {
             self.factor.solve(&self.pattern, &mut self.rhs);
             let solved = Instant::now();
             self.timings.solves += solved - clock;
+            std::mem::swap(&mut self.rhs, &mut self.delta);
             head_change = 0.0;
             let mut finite = true;
-            for (u, &delta) in self.rhs.iter().enumerate() {
+            for (u, &delta) in self.delta.iter().enumerate() {
                 if self.free[u] {
                     finite &= delta.is_finite();
                     head_change = head_change.max(delta.abs());
@@ -516,7 +532,10 @@ impl Solver {
                 // No previous iterate to compare with.
                 head_change = f64::INFINITY;
             }
+            // The next step's matrix is filled as the new flows are computed.
+            self.begin_assembly();
             let (change, energy_residual) = self.update_links(model);
+            self.end_assembly();
             flow_change = change;
             self.timings.assembly += solved.elapsed();
             if !finite || !flow_change.is_finite() {
@@ -654,25 +673,35 @@ impl Solver {
         for (i, c) in self.pattern.core.iter().enumerate() {
             let k = c.link as usize;
             self.cq[i] = self.flow[k];
-            self.mode[i] = if !self.open[k] {
+            let mut mode = if !self.open[k] {
                 MODE_CLOSED
             } else if self.on_law[k] {
                 MODE_LAW
             } else {
                 MODE_FIXED_FLOW
             };
-            if self.mode[i] == MODE_FIXED_FLOW {
+            if mode == MODE_FIXED_FLOW {
                 let l = &links[k];
-                match l.as_valve().map(|v| v.valve) {
-                    Some(ValveType::PressureReducing) => {
-                        self.pinned.push(Pinned { core: i as u32, link: c.link, node: l.to as u32, sign: 1.0 })
-                    }
-                    Some(ValveType::PressureSustaining) => {
-                        self.pinned.push(Pinned { core: i as u32, link: c.link, node: l.from as u32, sign: -1.0 })
-                    }
-                    _ => {}
+                let pinned = match l.as_valve().map(|v| v.valve) {
+                    Some(ValveType::PressureReducing) => Some((l.to, 1.0)),
+                    Some(ValveType::PressureSustaining) => Some((l.from, -1.0)),
+                    _ => None,
+                };
+                if let Some((node, sign)) = pinned {
+                    self.pinned.push(Pinned { core: i as u32, link: c.link, node: node as u32, sign });
+                    mode = MODE_PINNED;
                 }
             }
+            if mode != MODE_CLOSED {
+                let s = c.slots;
+                if s.from != NONE && self.free[s.from as usize] {
+                    mode |= FREE_FROM;
+                }
+                if s.to != NONE && self.free[s.to as usize] {
+                    mode |= FREE_TO;
+                }
+            }
+            self.mode[i] = mode;
         }
     }
 
@@ -727,7 +756,7 @@ impl Solver {
     /// Linearises every core link at its current flow and the current heads.
     fn linearise(&mut self) {
         for i in 0..self.pattern.core.len() {
-            if self.mode[i] == MODE_LAW {
+            if self.mode[i] & MODE_MASK == MODE_LAW {
                 let c = &self.pattern.core[i];
                 let dh = self.head[c.from as usize] - self.head[c.to as usize];
                 let (p, cc, _) = self.coefficients(i, self.cq[i], dh);
@@ -767,11 +796,11 @@ impl Solver {
     /// convergence both balances hold.
     fn update_links(&mut self, model: &Model) -> (f64, f64) {
         let (mut sum_dq, mut sum_q, mut residual) = (0.0, self.tree_flow_sum, 0.0f64);
-        let delta = |u: u32| if u == NONE { 0.0 } else { self.rhs[u as usize] };
         for i in 0..self.pattern.core.len() {
-            match self.mode[i] {
+            match self.mode[i] & MODE_MASK {
                 MODE_LAW => {
                     let c = &self.pattern.core[i];
+                    let delta = |u: u32| if u == NONE { 0.0 } else { self.delta[u as usize] };
                     let q = self.cc[i] + self.cp[i] * (delta(c.slots.from) - delta(c.slots.to));
                     let dh = self.head[c.from as usize] - self.head[c.to as usize];
                     let (p, cc, r) = self.coefficients(i, q, dh);
@@ -781,8 +810,12 @@ impl Solver {
                     self.cq[i] = q;
                     self.cp[i] = p;
                     self.cc[i] = cc;
+                    self.scatter(i);
                 }
-                MODE_FIXED_FLOW => sum_q += self.cq[i].abs(),
+                MODE_FIXED_FLOW => {
+                    sum_q += self.cq[i].abs();
+                    self.scatter(i);
+                }
                 _ => {}
             }
         }
@@ -809,9 +842,10 @@ impl Solver {
                 // A pressure-sustaining valve pins its upstream node: its flow is what leaves it.
                 let q = sign * need;
                 sum_dq += (q - self.cq[core]).abs();
-                sum_q += q.abs() - self.cq[core].abs();
+                sum_q += q.abs();
                 self.cq[core] = q;
                 self.cc[core] = q;
+                self.scatter(core);
             }
         }
         // Relative to the water moving; a network with (almost) no flow is measured against the
@@ -820,39 +854,44 @@ impl Solver {
         (sum_dq / sum_q.max(self.demand_scale), residual)
     }
 
-    /// Fills the matrix and right-hand side of the head corrections δ for the current
-    /// coefficients: `Σ p δ_i − Σ p δ_j = −d_i + Σ_in c − Σ_out c`, unit rows for pinned and
-    /// cut-off unknowns (their δ is zero).
-    fn assemble(&mut self) {
-        let values = &mut self.factor.values;
-        values.iter_mut().for_each(|v| *v = 0.0);
+    /// Starts filling the matrix and right-hand side of the head corrections δ,
+    /// `Σ p δ_i − Σ p δ_j = −d_i + Σ_in c − Σ_out c`: zero values, demands on the right.
+    fn begin_assembly(&mut self) {
+        self.factor.values.iter_mut().for_each(|v| *v = 0.0);
         for (r, &d) in self.rhs.iter_mut().zip(&self.unknown_demand) {
             *r = -d;
         }
-        let pattern = &*self.pattern;
-        for (i, c) in pattern.core.iter().enumerate() {
-            if self.mode[i] == MODE_CLOSED {
-                continue;
-            }
-            let (p, cc) = (self.cp[i], self.cc[i]);
-            let s = c.slots;
-            let free_from = s.from != NONE && self.free[s.from as usize];
-            let free_to = s.to != NONE && self.free[s.to as usize];
-            if free_from {
-                values[pattern.diag_slot[s.from as usize] as usize] += p;
-                self.rhs[s.from as usize] -= cc;
-            }
-            if free_to {
-                values[pattern.diag_slot[s.to as usize] as usize] += p;
-                self.rhs[s.to as usize] += cc;
-            }
-            if free_from && free_to {
-                values[s.off as usize] -= p;
-            }
+    }
+
+    /// Adds core link `i`, with its current `p` and `c`, to the matrix and right-hand side.
+    #[inline]
+    fn scatter(&mut self, i: usize) {
+        let mode = self.mode[i];
+        if mode & MODE_MASK == MODE_CLOSED {
+            return;
         }
+        let (p, cc) = (self.cp[i], self.cc[i]);
+        let c = &self.pattern.core[i];
+        let values = &mut self.factor.values;
+        if mode & FREE_FROM != 0 {
+            values[c.diag_from as usize] += p;
+            self.rhs[c.slots.from as usize] -= cc;
+        }
+        if mode & FREE_TO != 0 {
+            values[c.diag_to as usize] += p;
+            self.rhs[c.slots.to as usize] += cc;
+        }
+        if mode & (FREE_FROM | FREE_TO) == FREE_FROM | FREE_TO {
+            values[c.slots.off as usize] -= p;
+        }
+    }
+
+    /// Ends the assembly: unit rows for pinned and cut-off unknowns (their δ is zero).
+    fn end_assembly(&mut self) {
+        let pattern = &*self.pattern;
         for u in 0..pattern.n {
             if !self.free[u] {
-                values[pattern.diag_slot[u] as usize] = 1.0;
+                self.factor.values[pattern.diag_slot[u] as usize] = 1.0;
                 self.rhs[u] = 0.0;
             }
         }
@@ -860,12 +899,12 @@ impl Solver {
 
     fn not_converged(&self, model: &Model, iterations: u32, head_change: f64, flow_change: f64) -> SolveError {
         let energy = energy_residuals(model, &self.laws, &self.flow, &self.head, &self.on_law);
-        // The last head corrections are still in `rhs`.
+        // The last head corrections are still in `delta`.
         let mut worst_nodes: Vec<Offender> = (0..self.pattern.n)
             .filter(|&u| self.free[u])
             .map(|u| {
                 let node = self.pattern.node_of_unknown[u] as usize;
-                Offender { id: model.nodes()[node].id.clone(), value: self.rhs[u].abs() }
+                Offender { id: model.nodes()[node].id.clone(), value: self.delta[u].abs() }
             })
             .filter(|o| o.value.is_finite())
             .collect();
@@ -1027,7 +1066,11 @@ fn energy_residuals(model: &Model, laws: &[LinkLaw], flow: &[f64], head: &[f64],
 fn check_scenario(model: &Model, scenario: &Scenario) -> Result<(), ModelError> {
     let m = scenario.demand_multiplier;
     if !(m.is_finite() && m >= 0.0) {
-        return Err(ModelError::at(None, Some("demand_multiplier"), format!("must be a finite number, zero or more, found {m}")));
+        return Err(ModelError::at(
+            None,
+            Some("demand_multiplier"),
+            format!("must be a finite number, zero or more, found {m}"),
+        ));
     }
     if let Some(&(k, _)) = scenario.statuses.iter().find(|(k, _)| *k >= model.links().len()) {
         return Err(ModelError::at(

@@ -59,6 +59,10 @@ pub struct CoreLink {
     pub to: u32,
     /// Matrix slots.
     pub slots: LinkSlots,
+    /// Value slot of the `from` unknown's diagonal, or `NONE`.
+    pub diag_from: u32,
+    /// Value slot of the `to` unknown's diagonal, or `NONE`.
+    pub diag_to: u32,
 }
 
 /// The analysed structure of a network's head matrix.
@@ -243,7 +247,18 @@ impl Pattern {
             .iter()
             .enumerate()
             .filter(|&(k, _)| !is_tree_link[k])
-            .map(|(k, l)| CoreLink { link: k as u32, from: l.from as u32, to: l.to as u32, slots: links[k] })
+            .map(|(k, l)| {
+                let s = links[k];
+                let diag = |u: u32| if u == NONE { NONE } else { diag_slot[u as usize] };
+                CoreLink {
+                    link: k as u32,
+                    from: l.from as u32,
+                    to: l.to as u32,
+                    slots: s,
+                    diag_from: diag(s.from),
+                    diag_to: diag(s.to),
+                }
+            })
             .collect();
         // Column order: consecutive links write to nearby matrix entries and read nearby unknowns.
         let column = |c: &CoreLink| match (c.slots.from, c.slots.to) {

@@ -1,0 +1,177 @@
+//! Benchmarks of the solver on generated street networks (see `ringmain_core::generate`).
+//!
+//! ```text
+//! cargo bench --bench solve                              # 1e3, 1e4, 1e5 junctions
+//! RINGMAIN_BENCH_MILLION=1 cargo bench --bench solve     # and 1e6
+//! cargo bench --bench solve -- batch                     # one group only
+//! ```
+//!
+//! Groups:
+//! * `solve/<n>`: one snapshot solve reusing the analysis (what a scenario loop or a time step
+//!   costs); `solve-with-analysis/<n>`: a fresh solver, analysis included (a one-off solve).
+//!   Before each size the bench prints the phase split of one solve (`Solver::timings`).
+//! * `files/<n>`: reading the JSON model file, and writing a model file.
+//! * `cli/<n>`: the whole `ringmain solve model.json --format json --output results.json`
+//!   process, reading and writing included.
+//! * `batch`: 16 scenarios (demand factors and closed pipes) of a 1e4-junction network with
+//!   `Solver::solve_batch`, on a rayon pool of 1 and of 2 threads.
+
+use criterion::{criterion_group, criterion_main, BenchmarkId, Criterion, Throughput};
+use ringmain_core::generate::{generate, NetworkSpec};
+use ringmain_core::model::write;
+use ringmain_core::solve::{Scenario, SolveOptions, Solver};
+use ringmain_core::{Format, LinkStatus, Model};
+use std::path::PathBuf;
+use std::time::Duration;
+
+fn sizes() -> Vec<usize> {
+    let mut sizes = vec![1_000, 10_000, 100_000];
+    if std::env::var_os("RINGMAIN_BENCH_MILLION").is_some() {
+        sizes.push(1_000_000);
+    }
+    sizes
+}
+
+fn network(n: usize) -> Model {
+    generate(&NetworkSpec::new(n, 1)).expect("the generator accepts its defaults")
+}
+
+fn print_split(n: usize, model: &Model) {
+    let mut solver = Solver::new(model).expect("analysis");
+    let analysis = solver.timings().analysis;
+    // Best of three solves, phase by phase, to damp noise from other processes.
+    let mut best = None::<ringmain_core::solve::Timings>;
+    for _ in 0..3 {
+        solver.solve(model).expect("solves");
+        let t = *solver.timings();
+        if best.map_or(true, |b| t.solve_total() < b.solve_total()) {
+            best = Some(t);
+        }
+    }
+    let t = best.expect("three solves");
+    let ms = |d: Duration| d.as_secs_f64() * 1e3;
+    let inner = (t.factorization + t.solves).as_secs_f64() / t.iterating().as_secs_f64();
+    let p = solver.pattern();
+    eprintln!(
+        "split {n}: {} iterations; {} of {} junctions in trees, {} unknowns, factor nnz {}; analysis {:.2} ms; \
+         solve {:.2} ms = preparation {:.2} + assembly {:.2} + factorization {:.2} + solves {:.2} + status {:.2} \
+         + trees {:.2} + results {:.2}; factorization and solves {:.0}% of the iterations",
+        t.iterations,
+        p.tree_junctions(),
+        n,
+        p.n,
+        p.factor_nnz(),
+        ms(analysis),
+        ms(t.solve_total()),
+        ms(t.preparation),
+        ms(t.assembly),
+        ms(t.factorization),
+        ms(t.solves),
+        ms(t.status),
+        ms(t.forest),
+        ms(t.results),
+        100.0 * inner
+    );
+}
+
+fn solve(c: &mut Criterion) {
+    for n in sizes() {
+        let model = network(n);
+        print_split(n, &model);
+        let mut group = c.benchmark_group("solve");
+        group.sample_size(10).warm_up_time(Duration::from_secs(1)).measurement_time(Duration::from_secs(4));
+        group.throughput(Throughput::Elements(n as u64));
+        let mut solver = Solver::new(&model).expect("analysis");
+        group.bench_function(BenchmarkId::from_parameter(n), |b| {
+            b.iter(|| solver.solve(&model).expect("solves").iterations)
+        });
+        group.finish();
+        let mut group = c.benchmark_group("solve-with-analysis");
+        group.sample_size(10).warm_up_time(Duration::from_secs(1)).measurement_time(Duration::from_secs(4));
+        group.bench_function(BenchmarkId::from_parameter(n), |b| {
+            b.iter(|| Solver::new(&model).expect("analysis").solve(&model).expect("solves").iterations)
+        });
+        group.finish();
+    }
+}
+
+fn scratch() -> PathBuf {
+    let dir = std::env::temp_dir().join(format!("ringmain-bench-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).expect("temporary directory");
+    dir
+}
+
+fn files(c: &mut Criterion) {
+    let mut group = c.benchmark_group("files");
+    group.sample_size(10).warm_up_time(Duration::from_secs(1)).measurement_time(Duration::from_secs(4));
+    for n in [10_000, 100_000] {
+        let model = network(n);
+        let text = write::to_string(&model, Format::Json);
+        group.bench_function(BenchmarkId::new("read-json", n), |b| {
+            b.iter(|| ringmain_core::read_str(&text, Format::Json, "bench.json").expect("reads").links().len())
+        });
+        group.bench_function(BenchmarkId::new("write-json", n), |b| {
+            b.iter(|| write::to_string(&model, Format::Json).len())
+        });
+    }
+    group.finish();
+}
+
+fn cli(c: &mut Criterion) {
+    let dir = scratch();
+    let mut group = c.benchmark_group("cli");
+    group.sample_size(10).warm_up_time(Duration::from_secs(1)).measurement_time(Duration::from_secs(6));
+    let mut cli_sizes = vec![10_000, 100_000];
+    if std::env::var_os("RINGMAIN_BENCH_MILLION").is_some() {
+        cli_sizes.push(1_000_000);
+    }
+    for n in cli_sizes {
+        let input = dir.join(format!("network-{n}.json"));
+        std::fs::write(&input, write::to_string(&network(n), Format::Json)).expect("model file written");
+        let output = dir.join(format!("results-{n}.json"));
+        group.bench_function(BenchmarkId::from_parameter(n), |b| {
+            b.iter(|| {
+                let status = std::process::Command::new(env!("CARGO_BIN_EXE_ringmain"))
+                    .arg("solve")
+                    .arg(&input)
+                    .args(["--format", "json", "--output"])
+                    .arg(&output)
+                    .status()
+                    .expect("ringmain runs");
+                assert!(status.success());
+            })
+        });
+    }
+    group.finish();
+    let _ = std::fs::remove_dir_all(&dir);
+}
+
+fn batch(c: &mut Criterion) {
+    let model = network(10_000);
+    let solver = Solver::new(&model).expect("analysis");
+    let options = SolveOptions::from_model(&model);
+    // Demand factors over a day, and single-pipe closures for a small criticality sweep.
+    let pipes: Vec<usize> = (0..model.links().len()).step_by(997).take(8).collect();
+    let mut scenarios: Vec<Scenario> =
+        (0..8).map(|i| Scenario { demand_multiplier: 0.5 + 0.15 * i as f64, ..Scenario::default() }).collect();
+    scenarios
+        .extend(pipes.iter().map(|&k| Scenario { statuses: vec![(k, LinkStatus::Closed)], ..Scenario::default() }));
+    let mut group = c.benchmark_group("batch");
+    group.sample_size(10).warm_up_time(Duration::from_secs(1)).measurement_time(Duration::from_secs(6));
+    group.throughput(Throughput::Elements(scenarios.len() as u64));
+    for threads in [1, 2] {
+        let pool = rayon::ThreadPoolBuilder::new().num_threads(threads).build().expect("thread pool");
+        group.bench_function(BenchmarkId::new("16-scenarios-1e4-threads", threads), |b| {
+            b.iter(|| {
+                pool.install(|| solver.solve_batch(&model, &options, &scenarios))
+                    .iter()
+                    .map(|r| r.as_ref().expect("solves").iterations)
+                    .sum::<u32>()
+            })
+        });
+    }
+    group.finish();
+}
+
+criterion_group!(benches, solve, files, cli, batch);
+criterion_main!(benches);
