@@ -82,7 +82,58 @@ const LINK_KEYS: &[(&str, &[&str])] = &[
     ("valve", &["id", "kind", "valve", "from", "to", "diameter", "setting", "minor_loss", "status"]),
 ];
 
+/// The JSON reader for large files: the file's syntax is checked in one pass that builds no
+/// value tree, then each node and link is turned into a tree, read and dropped in turn, so that
+/// memory holds the text, the model and one element's tree instead of a tree of the whole file.
+/// It gives up (`None`) at the first problem of any kind; [`read_inner`] then reads the file the
+/// ordinary way, so that every error and its position are exactly those of the ordinary reader,
+/// and a model read this way equals the one the ordinary reader builds.
+fn read_json_streamed(text: &str) -> Option<Model> {
+    let top = doc::json_top_level(text)?;
+    let (mut entries, mut nodes, mut links) = (Vec::new(), Vec::new(), Vec::new());
+    for (key, raw) in top {
+        match key.as_str() {
+            "nodes" => nodes = doc::json_elements(raw)?,
+            "links" => links = doc::json_elements(raw)?,
+            _ => entries.push((key, doc::json_value(raw, 1)?)),
+        }
+    }
+    let mut top = Fields::new(None, entries);
+    let title = top.string("title").ok()?;
+    let units = match top.take("units") {
+        Some(v) => read_units(v).ok()?,
+        None => UnitSystem::default(),
+    };
+    let options = match top.take("hydraulics") {
+        Some(v) => read_hydraulics(v, &units).ok()?,
+        None => HydraulicOptions::default(),
+    };
+    top.finish(TOP_KEYS).ok()?;
+    let mut model = Model::new(units, options);
+    model.title = title;
+    for (i, raw) in nodes.into_iter().enumerate() {
+        let node = read_node(i, doc::json_value(raw, 2)?, &units).ok()?;
+        model.add_node(node).ok()?;
+    }
+    for (i, raw) in links.into_iter().enumerate() {
+        let link = read_link(i, doc::json_value(raw, 2)?, &model).ok()?;
+        model.add_link(link).ok()?;
+    }
+    model.validate().ok()?;
+    Some(model)
+}
+
 fn read_inner(text: &str, format: Format) -> Result<Model, ModelError> {
+    if format == Format::Json {
+        if let Some(model) = read_json_streamed(text) {
+            return Ok(model);
+        }
+    }
+    read_tree(text, format)
+}
+
+/// The ordinary reader: the whole file as one value tree, then the model.
+fn read_tree(text: &str, format: Format) -> Result<Model, ModelError> {
     if text.trim().is_empty() {
         return Err(ModelError::new("the file is empty; a model needs at least [[nodes]] and [[links]]"));
     }
@@ -155,7 +206,13 @@ impl Fields {
     }
 
     fn take(&mut self, key: &str) -> Option<Value> {
-        self.entries.iter_mut().find(|(k, _)| k == key).and_then(|(_, v)| v.take())
+        // Length and first byte first: most keys differ there, and a model file of a large
+        // network asks this question millions of times.
+        let first = key.as_bytes().first();
+        self.entries
+            .iter_mut()
+            .find(|(k, _)| k.len() == key.len() && k.as_bytes().first() == first && k == key)
+            .and_then(|(_, v)| v.take())
     }
 
     fn number(&mut self, key: &str) -> Result<Option<f64>, ModelError> {
@@ -616,4 +673,25 @@ fn read_valve(f: &mut Fields, model: &Model, automatic: bool) -> Result<Valve, M
         minor_loss: f.number("minor_loss")?.unwrap_or(0.0),
         automatic,
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn streamed_json_reader_builds_the_same_model_as_the_tree_reader() {
+        let mut model = crate::generate::generate(&crate::generate::NetworkSpec::new(1_500, 3)).unwrap();
+        model.units = UnitSystem { flow: crate::units::FlowUnit::parse("gpm").unwrap(), ..UnitSystem::default() };
+        let k = model.links().len() - 1;
+        model.set_status(k, LinkStatus::Closed).unwrap();
+        let text = super::super::write::to_string(&model, Format::Json);
+        let streamed = read_json_streamed(&text).expect("the streamed reader takes a written model");
+        assert_eq!(streamed, read_tree(&text, Format::Json).unwrap());
+        // Where the streamed reader gives up, the tree reader's error comes out.
+        let broken = text.replacen("\"length\"", "\"lenght\"", 1);
+        assert!(read_json_streamed(&broken).is_none());
+        let e = read_str(&broken, Format::Json, "broken.json").unwrap_err();
+        assert!(e.to_string().contains("lenght"), "{e}");
+    }
 }
