@@ -606,18 +606,27 @@ impl Solver {
             for (k, s) in tracker.state.iter().enumerate() {
                 self.open[k] = s.carries_flow();
             }
-            topology::mark_connected(model, &self.pattern.adjacency, &self.open, &mut self.connected, &mut self.stack);
+            let pattern = &*self.pattern;
+            topology::mark_connected(
+                model,
+                &pattern.adjacency,
+                &pattern.ends,
+                &self.open,
+                &mut self.connected,
+                &mut self.stack,
+            );
             for (known, n) in self.known_head.iter_mut().zip(nodes) {
                 *known = n.fixed_head().unwrap_or(f64::NAN);
             }
-            for (k, l) in links.iter().enumerate() {
-                self.open[k] &= self.connected[l.from] && self.connected[l.to];
+            for (k, &(from, to)) in self.pattern.ends.iter().enumerate() {
+                self.open[k] &= self.connected[from as usize] && self.connected[to as usize];
                 self.on_law[k] = self.open[k] && tracker.state[k].uses_law();
                 if !self.open[k] {
                     self.flow[k] = 0.0;
                     continue;
                 }
                 if tracker.state[k] == LinkState::Active {
+                    let l = &links[k];
                     if let LinkKind::Valve(v) = &l.kind {
                         match v.valve {
                             ValveType::PressureReducing => {
@@ -898,7 +907,7 @@ impl Solver {
     }
 
     fn not_converged(&self, model: &Model, iterations: u32, head_change: f64, flow_change: f64) -> SolveError {
-        let energy = energy_residuals(model, &self.laws, &self.flow, &self.head, &self.on_law);
+        let energy = energy_residuals(&self.pattern.ends, &self.laws, &self.flow, &self.head, &self.on_law);
         // The last head corrections are still in `delta`.
         let mut worst_nodes: Vec<Offender> = (0..self.pattern.n)
             .filter(|&u| self.free[u])
@@ -943,12 +952,12 @@ impl Solver {
         let nodes = model.nodes();
         let links = model.links();
         let head = self.head.clone();
-        let energy = energy_residuals(model, &self.laws, &self.flow, &head, &self.on_law);
+        let energy = energy_residuals(&self.pattern.ends, &self.laws, &self.flow, &head, &self.on_law);
         let max_energy_residual = energy.iter().copied().fold(0.0, f64::max);
         let mut balance: Vec<f64> = self.demand.iter().map(|d| -d).collect();
-        for (l, &q) in links.iter().zip(&self.flow) {
-            balance[l.to] += q;
-            balance[l.from] -= q;
+        for (&(from, to), &q) in self.pattern.ends.iter().zip(&self.flow) {
+            balance[to as usize] += q;
+            balance[from as usize] -= q;
         }
         let max_mass_residual = nodes
             .iter()
@@ -963,7 +972,8 @@ impl Solver {
             .zip(&self.laws)
             .map(|(q, law)| if law.area > 0.0 { q / law.area } else { f64::NAN })
             .collect();
-        let headloss: Vec<f64> = links.iter().map(|l| (head[l.from] - head[l.to]).abs()).collect();
+        let headloss: Vec<f64> =
+            self.pattern.ends.iter().map(|&(from, to)| (head[from as usize] - head[to as usize]).abs()).collect();
         let link_state: Vec<LinkState> = tracker
             .state
             .iter()
@@ -1045,20 +1055,16 @@ impl Solver {
 
 /// |h(Q) − (H_from − H_to)| per link on its law (zero for closed and regulating links, whose
 /// energy equation is replaced by their constraint).
-fn energy_residuals(model: &Model, laws: &[LinkLaw], flow: &[f64], head: &[f64], on_law: &[bool]) -> Vec<f64> {
-    model
-        .links()
-        .iter()
+fn energy_residuals(ends: &[(u32, u32)], laws: &[LinkLaw], flow: &[f64], head: &[f64], on_law: &[bool]) -> Vec<f64> {
+    ends.iter()
         .enumerate()
-        .map(
-            |(k, l)| {
-                if on_law[k] {
-                    (laws[k].evaluate_exact(flow[k]).0 - (head[l.from] - head[l.to])).abs()
-                } else {
-                    0.0
-                }
-            },
-        )
+        .map(|(k, &(from, to))| {
+            if on_law[k] {
+                (laws[k].evaluate_exact(flow[k]).0 - (head[from as usize] - head[to as usize])).abs()
+            } else {
+                0.0
+            }
+        })
         .collect()
 }
 

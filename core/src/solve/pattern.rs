@@ -94,8 +94,9 @@ pub struct Pattern {
     pub adjacency: Adjacency,
     /// Symbolic Cholesky factor.
     pub symbolic: SymbolicSimplicialCholesky<usize>,
-    /// Structure signature: node kinds (fixed or not) and link end points.
-    signature: Vec<(u32, u32)>,
+    /// End points `(from, to)` of every link, compact for passes over all links (and the
+    /// structure signature with the node kinds).
+    pub ends: Vec<(u32, u32)>,
     /// Fixed-head flags per node at analysis time.
     fixed: Vec<bool>,
     /// Whether each link could be peeled into a tree (a plain pipe) at analysis time.
@@ -266,14 +267,14 @@ impl Pattern {
             (NONE, u) | (u, NONE) => u,
             (a, b) => a.max(b),
         };
-        core.sort_by_key(|c| (column(c), c.link));
+        core.sort_unstable_by_key(|c| (column(c), c.link));
         let mut core_position = vec![NONE; model.links().len()];
         for (i, c) in core.iter().enumerate() {
             core_position[c.link as usize] = i as u32;
         }
 
         let symbolic = symbolic_factor(n, &col_ptr, &row_idx);
-        let signature = model.links().iter().map(|l| (l.from as u32, l.to as u32)).collect();
+        let ends = model.links().iter().map(|l| (l.from as u32, l.to as u32)).collect();
         Pattern {
             n,
             unknown_of_node,
@@ -288,7 +289,7 @@ impl Pattern {
             in_tree,
             adjacency,
             symbolic,
-            signature,
+            ends,
             fixed,
             peelable,
         }
@@ -298,9 +299,9 @@ impl Pattern {
     /// same links eligible for the trees).
     pub fn fits(&self, model: &Model) -> bool {
         model.nodes().len() == self.fixed.len()
-            && model.links().len() == self.signature.len()
+            && model.links().len() == self.ends.len()
             && model.nodes().iter().zip(&self.fixed).all(|(n, &f)| n.fixed_head().is_some() == f)
-            && model.links().iter().zip(&self.signature).all(|(l, &(a, b))| l.from as u32 == a && l.to as u32 == b)
+            && model.links().iter().zip(&self.ends).all(|(l, &(a, b))| l.from as u32 == a && l.to as u32 == b)
             && model.links().iter().zip(&self.peelable).all(|(l, &p)| peelable(&l.kind) == p)
     }
 

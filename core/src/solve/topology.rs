@@ -44,9 +44,11 @@ impl Adjacency {
 
 /// Marks in `connected` every node that a path of links with `open[k]` joins to a fixed head.
 /// `stack` is scratch space.
+/// `ends` holds every link's `(from, to)`.
 pub fn mark_connected(
     model: &Model,
     adjacency: &Adjacency,
+    ends: &[(u32, u32)],
     open: &[bool],
     connected: &mut [bool],
     stack: &mut Vec<u32>,
@@ -59,14 +61,13 @@ pub fn mark_connected(
             stack.push(i as u32);
         }
     }
-    let links = model.links();
     while let Some(i) = stack.pop() {
         for &k in adjacency.of(i as usize) {
             if !open[k as usize] {
                 continue;
             }
-            let l = &links[k as usize];
-            let other = if l.from == i as usize { l.to } else { l.from };
+            let (from, to) = ends[k as usize];
+            let other = if from == i { to } else { from } as usize;
             if !connected[other] {
                 connected[other] = true;
                 stack.push(other as u32);
