@@ -3,6 +3,7 @@
 //! ```text
 //! cargo bench --bench solve                              # 1e3, 1e4, 1e5 junctions
 //! RINGMAIN_BENCH_MILLION=1 cargo bench --bench solve     # and 1e6
+//! RINGMAIN_BENCH_ONLY=10000 cargo bench --bench solve    # only networks of this size
 //! cargo bench --bench solve -- batch                     # one group only
 //! ```
 //!
@@ -29,7 +30,17 @@ fn sizes() -> Vec<usize> {
     if std::env::var_os("RINGMAIN_BENCH_MILLION").is_some() {
         sizes.push(1_000_000);
     }
+    sizes.retain(|&n| wanted(n));
     sizes
+}
+
+/// `RINGMAIN_BENCH_ONLY=<n>` limits every group to networks of `n` junctions (criterion's
+/// filter skips the measurements, but not the networks' generation).
+fn wanted(n: usize) -> bool {
+    match std::env::var("RINGMAIN_BENCH_ONLY") {
+        Ok(only) => only.trim().parse() == Ok(n),
+        Err(_) => true,
+    }
 }
 
 fn network(n: usize) -> Model {
@@ -39,16 +50,28 @@ fn network(n: usize) -> Model {
 fn print_split(n: usize, model: &Model) {
     let mut solver = Solver::new(model).expect("analysis");
     let analysis = solver.timings().analysis;
-    // Best of three solves, phase by phase, to damp noise from other processes.
-    let mut best = None::<ringmain_core::solve::Timings>;
-    for _ in 0..3 {
+    // The least time of seven solves, phase by phase: other processes on the machine only ever
+    // add time, so each phase's minimum is the closest to its cost.
+    let mut t = None::<ringmain_core::solve::Timings>;
+    for _ in 0..7 {
         solver.solve(model).expect("solves");
-        let t = *solver.timings();
-        if best.map_or(true, |b| t.solve_total() < b.solve_total()) {
-            best = Some(t);
-        }
+        let s = *solver.timings();
+        t = Some(match t {
+            None => s,
+            Some(b) => ringmain_core::solve::Timings {
+                analysis: b.analysis,
+                preparation: b.preparation.min(s.preparation),
+                assembly: b.assembly.min(s.assembly),
+                factorization: b.factorization.min(s.factorization),
+                solves: b.solves.min(s.solves),
+                status: b.status.min(s.status),
+                forest: b.forest.min(s.forest),
+                results: b.results.min(s.results),
+                iterations: s.iterations,
+            },
+        });
     }
-    let t = best.expect("three solves");
+    let t = t.expect("seven solves");
     let ms = |d: Duration| d.as_secs_f64() * 1e3;
     let inner = (t.factorization + t.solves).as_secs_f64() / t.iterating().as_secs_f64();
     let p = solver.pattern();
@@ -104,7 +127,7 @@ fn scratch() -> PathBuf {
 fn files(c: &mut Criterion) {
     let mut group = c.benchmark_group("files");
     group.sample_size(10).warm_up_time(Duration::from_secs(1)).measurement_time(Duration::from_secs(4));
-    for n in [10_000, 100_000] {
+    for n in [10_000, 100_000].into_iter().filter(|&n| wanted(n)) {
         let model = network(n);
         let text = write::to_string(&model, Format::Json);
         group.bench_function(BenchmarkId::new("read-json", n), |b| {
@@ -125,7 +148,7 @@ fn cli(c: &mut Criterion) {
     if std::env::var_os("RINGMAIN_BENCH_MILLION").is_some() {
         cli_sizes.push(1_000_000);
     }
-    for n in cli_sizes {
+    for n in cli_sizes.into_iter().filter(|&n| wanted(n)) {
         let input = dir.join(format!("network-{n}.json"));
         std::fs::write(&input, write::to_string(&network(n), Format::Json)).expect("model file written");
         let output = dir.join(format!("results-{n}.json"));
@@ -147,6 +170,9 @@ fn cli(c: &mut Criterion) {
 }
 
 fn batch(c: &mut Criterion) {
+    if !wanted(10_000) {
+        return;
+    }
     let model = network(10_000);
     let solver = Solver::new(&model).expect("analysis");
     let options = SolveOptions::from_model(&model);

@@ -277,6 +277,8 @@ pub struct Solver {
     rhs: Vec<f64>,
     /// The last head corrections.
     delta: Vec<f64>,
+    /// Heads of the unknowns during the iteration (the nodes' heads follow at `sync_flows`).
+    unknown_head: Vec<f64>,
     unknown_demand: Vec<f64>,
     free: Vec<bool>,
     // Per link.
@@ -328,6 +330,7 @@ impl Solver {
             mode: vec![MODE_CLOSED; n_core],
             rhs: vec![0.0; pattern.n],
             delta: vec![0.0; pattern.n],
+            unknown_head: vec![0.0; pattern.n],
             unknown_demand: vec![0.0; pattern.n],
             free: vec![false; pattern.n],
             open: vec![false; n_links],
@@ -525,7 +528,7 @@ impl Solver {
                 if self.free[u] {
                     finite &= delta.is_finite();
                     head_change = head_change.max(delta.abs());
-                    self.head[self.pattern.node_of_unknown[u] as usize] += delta;
+                    self.unknown_head[u] += delta;
                 }
             }
             if iterations == 1 {
@@ -677,6 +680,7 @@ impl Solver {
         for (u, &node) in self.pattern.node_of_unknown.iter().enumerate() {
             let node = node as usize;
             self.free[u] = self.connected[node] && self.known_head[node].is_nan();
+            self.unknown_head[u] = self.head[node];
         }
         self.pinned.clear();
         for (i, c) in self.pattern.core.iter().enumerate() {
@@ -755,10 +759,23 @@ impl Solver {
         }
     }
 
-    /// Copies the core flows into the per-link flows.
+    /// Copies the core flows into the per-link flows, and the unknowns' heads into the nodes'.
     fn sync_flows(&mut self) {
         for (c, &q) in self.pattern.core.iter().zip(&self.cq) {
             self.flow[c.link as usize] = q;
+        }
+        for (&node, &h) in self.pattern.node_of_unknown.iter().zip(&self.unknown_head) {
+            self.head[node as usize] = h;
+        }
+    }
+
+    /// Head of a core link's end: its unknown's, or the node's fixed head.
+    #[inline]
+    fn end_head(&self, unknown: u32, node: u32) -> f64 {
+        if unknown == NONE {
+            self.head[node as usize]
+        } else {
+            self.unknown_head[unknown as usize]
         }
     }
 
@@ -767,7 +784,7 @@ impl Solver {
         for i in 0..self.pattern.core.len() {
             if self.mode[i] & MODE_MASK == MODE_LAW {
                 let c = &self.pattern.core[i];
-                let dh = self.head[c.from as usize] - self.head[c.to as usize];
+                let dh = self.end_head(c.slots.from, c.from) - self.end_head(c.slots.to, c.to);
                 let (p, cc, _) = self.coefficients(i, self.cq[i], dh);
                 self.cp[i] = p;
                 self.cc[i] = cc;
@@ -811,7 +828,7 @@ impl Solver {
                     let c = &self.pattern.core[i];
                     let delta = |u: u32| if u == NONE { 0.0 } else { self.delta[u as usize] };
                     let q = self.cc[i] + self.cp[i] * (delta(c.slots.from) - delta(c.slots.to));
-                    let dh = self.head[c.from as usize] - self.head[c.to as usize];
+                    let dh = self.end_head(c.slots.from, c.from) - self.end_head(c.slots.to, c.to);
                     let (p, cc, r) = self.coefficients(i, q, dh);
                     residual = residual.max(r);
                     sum_dq += (q - self.cq[i]).abs();

@@ -19,7 +19,7 @@ use crate::model::{LinkKind, Model};
 use faer::dyn_stack::{MemBuffer, MemStack, StackReq};
 use faer::sparse::linalg::amd;
 use faer::sparse::linalg::cholesky::simplicial::{self, SymbolicSimplicialCholesky};
-use faer::sparse::SymbolicSparseColMatRef;
+use faer::sparse::{SymbolicSparseColMat, SymbolicSparseColMatRef};
 
 /// Where a link writes into the matrix.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -74,10 +74,9 @@ pub struct Pattern {
     pub unknown_of_node: Vec<u32>,
     /// For each permuted unknown, the node it stands for.
     pub node_of_unknown: Vec<u32>,
-    /// Upper-triangular CSC pattern of the permuted matrix.
-    pub col_ptr: Vec<usize>,
-    /// Row indices, sorted within each column.
-    pub row_idx: Vec<usize>,
+    /// Upper-triangular CSC pattern of the permuted matrix, rows sorted within each column
+    /// (checked once here, not at every factorization).
+    structure: SymbolicSparseColMat<usize>,
     /// Value slot of each permuted unknown's diagonal entry.
     pub diag_slot: Vec<u32>,
     /// Slots of every link (all `NONE` for tree links).
@@ -279,8 +278,7 @@ impl Pattern {
             n,
             unknown_of_node,
             node_of_unknown,
-            col_ptr,
-            row_idx,
+            structure: SymbolicSparseColMat::new_checked(n, n, col_ptr, None, row_idx),
             diag_slot,
             links,
             core,
@@ -312,7 +310,7 @@ impl Pattern {
 
     /// Number of stored entries of the upper triangle.
     pub fn nnz(&self) -> usize {
-        self.row_idx.len()
+        self.structure.row_idx().len()
     }
 
     /// Non-zeros of the Cholesky factor.
@@ -322,7 +320,7 @@ impl Pattern {
 
     /// The symbolic view of the matrix for faer.
     pub fn matrix(&self) -> SymbolicSparseColMatRef<'_, usize> {
-        SymbolicSparseColMatRef::new_checked(self.n, self.n, &self.col_ptr, None, &self.row_idx)
+        self.structure.as_ref()
     }
 }
 
