@@ -13,19 +13,48 @@
 //! a weighted graph Laplacian. Flows then follow link by link. At a solution the mass balance is
 //! met to the accuracy of the linear solve and the energy equations to the Newton tolerance.
 //!
-//! Phases, one file each: [`pattern`] (ordering, symbolic analysis, scatter map; once per
-//! structure), [`links`] (each link's law, once per model), assembly and the iteration loop
-//! (here), [`factor`] (numeric factorization and triangular solves, every step), [`status`]
-//! (check valves, after each converged inner solve), [`topology`] (which junctions a fixed head
-//! reaches). Entry points: [`solve`] for one answer, [`Solver`] to solve a network many times
-//! reusing the analysis.
+//! # Head corrections instead of heads
+//! The system is solved for the *corrections* `δ = H' − H` of the current heads: with
+//! `c = Q + p (H_from − H_to − y)` the new flow is `Q' = c + p (δ_from − δ_to)`, and the matrix
+//! is the same Laplacian with right-hand side `−d_i + Σ_in c − Σ_out c`. Mathematically this is
+//! the same Newton step (it does not depend on the heads it starts from); numerically it removes
+//! the floating-point floor of the plain form, where heads of about 100 m, computed afresh at
+//! every step from a matrix whose conductances span many orders of magnitude, stall at changes
+//! of 1e-5 to 1e-4 m on large networks. Here `c` carries the energy residual, which goes to zero,
+//! and `δ` shrinks with it, so the head change, the flow change and the residuals all converge
+//! to round-off.
+//!
+//! # Forest and core
+//! Dead-end trees (see [`pattern`]) never enter the matrix: the flow of a tree pipe is the demand
+//! beyond it, summed leaves to root once per set of device states; the tree junctions' demands
+//! are added to their roots; after the core has converged one sweep from the roots gives the
+//! tree heads on the exact laws.
+//!
+//! # One pass per iteration
+//! Per step: factor and solve (`factor`), apply the corrections, then one pass over the core
+//! links in matrix-column order that computes each new flow, evaluates its law once (value and
+//! slope: the energy residual, and `p`, `c` for the next step) and scatters it into the next
+//! matrix. Laws of Hazen–Williams pipes, the commonest by far, are evaluated inline from three
+//! numbers per link; other laws through [`links::LinkLaw`]. Nothing is allocated in the loop.
+//!
+//! Phases, one file each: [`pattern`] (forest-core split, ordering, symbolic analysis, scatter
+//! map; once per structure, shared between clones of a [`Solver`]), [`links`] (each link's law,
+//! once per solve), assembly and the iteration loop (here), [`factor`] (numeric factorization and
+//! triangular solves, every step), [`status`] (device states, after each converged inner solve),
+//! [`topology`] (which junctions a fixed head reaches). Entry points: [`solve`] for one answer,
+//! [`Solver`] to solve a network many times reusing the analysis, [`Solver::solve_scenario`] and
+//! [`Solver::solve_batch`] for demand and status scenarios (in parallel), [`Solver::timings`] for
+//! where the time went.
 //!
 //! # Convergence
-//! A step is accepted as converged when the largest head change is at most the head tolerance and
-//! the relative flow change `Σ|ΔQ| / Σ|Q|` at most the flow tolerance. Then the status of check
-//! valves is examined; if one changes, the iteration goes on. Finally every open link's energy
-//! equation and every junction's mass balance are evaluated and the largest residuals reported.
-//! A case that has not converged within the iteration limit is an error, never an answer.
+//! A step is accepted as converged when the relative flow change `Σ|ΔQ| / Σ|Q|` is at most the
+//! flow tolerance and either the largest head correction or the largest energy residual of the
+//! links on their law is at most the head tolerance (the residual comes free from the pass
+//! above; it decides when a tolerance is set below what a network's heads can resolve). Then the
+//! device states are examined; if one changes, the iteration goes on. Finally every open link's
+//! energy equation and every junction's mass balance are evaluated and the largest residuals
+//! reported. A case that has not converged within the iteration limit is an error, never an
+//! answer.
 
 pub mod factor;
 pub mod links;
@@ -220,6 +249,8 @@ impl Default for Scenario {
 /// How a core link enters the current iteration (low two bits), and which of its ends are free
 /// unknowns (the bits above).
 const MODE_CLOSED: u8 = 0;
+/// Steps of a cold start taken with secant slopes (see `Solver::linearise`).
+const SECANT_STEPS: u32 = 1;
 const MODE_LAW: u8 = 1;
 const MODE_FIXED_FLOW: u8 = 2;
 /// An active pressure valve: its flow comes from the balance of the node it pins.
@@ -428,7 +459,7 @@ impl Solver {
         }
         self.demand_scale = self.demand.iter().map(|d| d.abs()).sum::<f64>().max(1e-3);
         self.timings.preparation += start.elapsed();
-        let result = self.iterate(model, options);
+        let result = self.iterate(model, options, warm);
         self.has_previous = result.is_ok();
         result
     }
@@ -471,7 +502,7 @@ impl Solver {
             .collect()
     }
 
-    fn iterate(&mut self, model: &Model, options: &SolveOptions) -> Result<Solution, SolveError> {
+    fn iterate(&mut self, model: &Model, options: &SolveOptions, warm: bool) -> Result<Solution, SolveError> {
         let nodes = model.nodes();
         let links = model.links();
         let clock = Instant::now();
@@ -492,7 +523,8 @@ impl Solver {
                 self.tree_flows(model);
                 self.timings.forest += clock.elapsed();
                 let clock = Instant::now();
-                self.linearise();
+                // The secant start only on a cold start's first step.
+                self.linearise(iterations < SECANT_STEPS && !warm);
                 self.begin_assembly();
                 for i in 0..self.pattern.core.len() {
                     self.scatter(i);
@@ -537,7 +569,7 @@ impl Solver {
             }
             // The next step's matrix is filled as the new flows are computed.
             self.begin_assembly();
-            let (change, energy_residual) = self.update_links(model);
+            let (change, energy_residual) = self.update_links(model, !warm && iterations < SECANT_STEPS);
             self.end_assembly();
             flow_change = change;
             self.timings.assembly += solved.elapsed();
@@ -780,12 +812,23 @@ impl Solver {
     }
 
     /// Linearises every core link at its current flow and the current heads.
-    fn linearise(&mut self) {
+    ///
+    /// With `secant`, pipes take the secant `h(Q)/Q` through the origin instead of the tangent:
+    /// the first step of the linear theory method (Wood & Charles 1972, "Hydraulic network
+    /// analysis using linear theory", J. Hydraul. Div. 98(HY7)). A Newton step on
+    /// `h = r|Q|^n` from a flow far above the answer shrinks it by at most the factor `1 − 1/n`
+    /// ≈ 0.46, so a cold start from a common velocity several times too high costs a handful of
+    /// iterations; the secant step's flows do not depend on the starting flows' scale (scaling
+    /// every resistance alike leaves the flows of a linear network unchanged), and Newton's
+    /// method takes over from there.
+    fn linearise(&mut self, secant: bool) {
         for i in 0..self.pattern.core.len() {
             if self.mode[i] & MODE_MASK == MODE_LAW {
                 let c = &self.pattern.core[i];
                 let dh = self.end_head(c.slots.from, c.from) - self.end_head(c.slots.to, c.to);
-                let (p, cc, _) = self.coefficients(i, self.cq[i], dh);
+                let hot = self.hot[i];
+                let q = self.cq[i];
+                let (p, cc, _) = if secant { self.secant(i, q, dh) } else { self.coefficients(i, q, dh) };
                 self.cp[i] = p;
                 self.cc[i] = cc;
             } else {
@@ -793,6 +836,17 @@ impl Solver {
                 self.cc[i] = self.cq[i];
             }
         }
+    }
+
+    /// Like [`Solver::coefficients`], with the secant slope `h(Q)/Q` for Hazen–Williams pipes.
+    fn secant(&self, i: usize, q: f64, dh: f64) -> (f64, f64, f64) {
+        let hot = self.hot[i];
+        if hot.general || q == 0.0 {
+            return self.coefficients(i, q, dh);
+        }
+        let (y, _) = links::hazen_williams(hot.r, hot.minor, q);
+        let p = 1.0 / (y / q).max(hot.min_slope);
+        (p, q + p * (dh - y), (y - dh).abs())
     }
 
     /// Conductance p, constant c and energy residual of core link `i` at flow `q` and head
@@ -820,7 +874,7 @@ impl Solver {
     /// its setting. An active pressure valve's flow is whatever the mass balance of the node it
     /// pins requires; that flow enters the other node's balance at the next step, so at
     /// convergence both balances hold.
-    fn update_links(&mut self, model: &Model) -> (f64, f64) {
+    fn update_links(&mut self, model: &Model, secant: bool) -> (f64, f64) {
         let (mut sum_dq, mut sum_q, mut residual) = (0.0, self.tree_flow_sum, 0.0f64);
         for i in 0..self.pattern.core.len() {
             match self.mode[i] & MODE_MASK {
@@ -829,7 +883,7 @@ impl Solver {
                     let delta = |u: u32| if u == NONE { 0.0 } else { self.delta[u as usize] };
                     let q = self.cc[i] + self.cp[i] * (delta(c.slots.from) - delta(c.slots.to));
                     let dh = self.end_head(c.slots.from, c.from) - self.end_head(c.slots.to, c.to);
-                    let (p, cc, r) = self.coefficients(i, q, dh);
+                    let (p, cc, r) = if secant { self.secant(i, q, dh) } else { self.coefficients(i, q, dh) };
                     residual = residual.max(r);
                     sum_dq += (q - self.cq[i]).abs();
                     sum_q += q.abs();
