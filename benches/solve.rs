@@ -182,6 +182,7 @@ fn batch(c: &mut Criterion) {
         (0..8).map(|i| Scenario { demand_multiplier: 0.5 + 0.15 * i as f64, ..Scenario::default() }).collect();
     scenarios
         .extend(pipes.iter().map(|&k| Scenario { statuses: vec![(k, LinkStatus::Closed)], ..Scenario::default() }));
+    print_batch_work(&solver, &model, &options, &scenarios);
     let mut group = c.benchmark_group("batch");
     group.sample_size(10).warm_up_time(Duration::from_secs(1)).measurement_time(Duration::from_secs(6));
     group.throughput(Throughput::Elements(scenarios.len() as u64));
@@ -197,6 +198,52 @@ fn batch(c: &mut Criterion) {
         });
     }
     group.finish();
+}
+
+/// Processor time of this process so far (user + system), from /proc/self/stat (Linux only;
+/// zero elsewhere).
+fn cpu_time() -> Duration {
+    let Ok(stat) = std::fs::read_to_string("/proc/self/stat") else { return Duration::ZERO };
+    // Fields after the command name (which is in parentheses): utime and stime are the 12th
+    // and 13th, in clock ticks (100 per second on Linux).
+    let Some(rest) = stat.rsplit(')').next() else { return Duration::ZERO };
+    let fields: Vec<&str> = rest.split_whitespace().collect();
+    let ticks: u64 = fields.get(11..13).map_or(0, |f| f.iter().filter_map(|v| v.parse::<u64>().ok()).sum());
+    Duration::from_millis(ticks * 10)
+}
+
+/// Wall-clock and processor time of the batch on 1 and 2 threads. On a machine shared with
+/// other work the wall-clock speedup understates what two free cores give; the processor time
+/// shows whether the parallel run does more work than the serial one.
+fn print_batch_work(solver: &Solver, model: &Model, options: &SolveOptions, scenarios: &[Scenario]) {
+    let mut figures = Vec::new();
+    for threads in [1, 2] {
+        let pool = rayon::ThreadPoolBuilder::new().num_threads(threads).build().expect("thread pool");
+        let mut best = Duration::MAX;
+        let (cpu0, wall0) = (cpu_time(), std::time::Instant::now());
+        for _ in 0..10 {
+            let start = std::time::Instant::now();
+            let results = pool.install(|| solver.solve_batch(model, options, scenarios));
+            assert!(results.iter().all(|r| r.is_ok()));
+            best = best.min(start.elapsed());
+        }
+        figures.push((threads, best, wall0.elapsed() / 10, (cpu_time() - cpu0) / 10));
+    }
+    for &(threads, best, mean, cpu) in &figures {
+        eprintln!(
+            "batch work, {threads} thread(s): best {:.1} ms, mean {:.1} ms wall, {:.1} ms processor time per batch",
+            best.as_secs_f64() * 1e3,
+            mean.as_secs_f64() * 1e3,
+            cpu.as_secs_f64() * 1e3
+        );
+    }
+    let (one, two) = (figures[0], figures[1]);
+    eprintln!(
+        "batch speedup on 2 threads: {:.2}x (best wall), {:.2}x (mean wall); processor time ratio {:.2}",
+        one.1.as_secs_f64() / two.1.as_secs_f64(),
+        one.2.as_secs_f64() / two.2.as_secs_f64(),
+        two.3.as_secs_f64() / one.3.as_secs_f64().max(1e-9)
+    );
 }
 
 criterion_group!(benches, solve, files, cli, batch);

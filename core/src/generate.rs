@@ -167,7 +167,7 @@ impl Rng {
 
     /// Uniform integer in 0..n (n > 0).
     pub fn below(&mut self, n: usize) -> usize {
-        ((self.next_u64() >> 32) * n as u64 >> 32) as usize
+        (((self.next_u64() >> 32) * n as u64) >> 32) as usize
     }
 }
 

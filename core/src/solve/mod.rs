@@ -826,7 +826,6 @@ impl Solver {
             if self.mode[i] & MODE_MASK == MODE_LAW {
                 let c = &self.pattern.core[i];
                 let dh = self.end_head(c.slots.from, c.from) - self.end_head(c.slots.to, c.to);
-                let hot = self.hot[i];
                 let q = self.cq[i];
                 let (p, cc, _) = if secant { self.secant(i, q, dh) } else { self.coefficients(i, q, dh) };
                 self.cp[i] = p;
