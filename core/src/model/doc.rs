@@ -136,37 +136,50 @@ impl<'de> Visitor<'de> for Seed {
     }
 }
 
-/// The top level of a JSON model file with each value left as raw text: the file is checked
-/// for syntax as a whole, but no value tree is built yet. `None` if the text is not a JSON
-/// object, has a syntax error or a duplicate top-level key (the full reader then says why).
-pub fn json_top_level(text: &str) -> Option<Vec<(String, &RawValue)>> {
+/// The top level of a JSON model file with each value left as raw text, and the elements of
+/// its `nodes` and `links` arrays each as raw text: the file is checked for syntax in one pass,
+/// but no value tree is built yet.
+#[derive(Debug, Default)]
+pub struct RawModel<'a> {
+    /// Top-level keys other than `nodes` and `links`, in file order.
+    pub entries: Vec<(String, &'a RawValue)>,
+    /// The elements of `nodes`.
+    pub nodes: Vec<&'a RawValue>,
+    /// The elements of `links`.
+    pub links: Vec<&'a RawValue>,
+}
+
+/// Splits a JSON model file into a [`RawModel`]. `None` if the text is not a JSON object, has a
+/// syntax error, a duplicate top-level key, or `nodes` or `links` that are not arrays (the full
+/// reader then says why).
+pub fn json_raw_model(text: &str) -> Option<RawModel<'_>> {
     struct Top;
     impl<'de> Visitor<'de> for Top {
-        type Value = Vec<(String, &'de RawValue)>;
+        type Value = RawModel<'de>;
         fn expecting(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
             f.write_str("a JSON object")
         }
         fn visit_map<A: MapAccess<'de>>(self, mut map: A) -> Result<Self::Value, A::Error> {
-            let mut entries: Self::Value = Vec::new();
+            let mut raw = RawModel::default();
+            let mut keys: Vec<String> = Vec::new();
             while let Some(key) = map.next_key::<String>()? {
-                if entries.iter().any(|(k, _)| *k == key) {
+                if keys.contains(&key) {
                     return Err(de::Error::custom("duplicate key"));
                 }
-                let value: &'de RawValue = map.next_value()?;
-                entries.push((key, value));
+                match key.as_str() {
+                    "nodes" => raw.nodes = map.next_value()?,
+                    "links" => raw.links = map.next_value()?,
+                    _ => raw.entries.push((key.clone(), map.next_value()?)),
+                }
+                keys.push(key);
             }
-            Ok(entries)
+            Ok(raw)
         }
     }
     let mut de = serde_json::Deserializer::from_str(text);
-    let entries = de::Deserializer::deserialize_map(&mut de, Top).ok()?;
+    let raw = de::Deserializer::deserialize_map(&mut de, Top).ok()?;
     de.end().ok()?;
-    Some(entries)
-}
-
-/// The elements of a raw JSON array, each still raw; `None` if it is not an array.
-pub fn json_elements(raw: &RawValue) -> Option<Vec<&RawValue>> {
-    serde_json::from_str(raw.get()).ok()
+    Some(raw)
 }
 
 /// The value tree of a raw JSON value found at nesting `depth`; `None` on any problem (the full

@@ -89,15 +89,12 @@ const LINK_KEYS: &[(&str, &[&str])] = &[
 /// ordinary way, so that every error and its position are exactly those of the ordinary reader,
 /// and a model read this way equals the one the ordinary reader builds.
 fn read_json_streamed(text: &str) -> Option<Model> {
-    let top = doc::json_top_level(text)?;
-    let (mut entries, mut nodes, mut links) = (Vec::new(), Vec::new(), Vec::new());
-    for (key, raw) in top {
-        match key.as_str() {
-            "nodes" => nodes = doc::json_elements(raw)?,
-            "links" => links = doc::json_elements(raw)?,
-            _ => entries.push((key, doc::json_value(raw, 1)?)),
-        }
+    let raw = doc::json_raw_model(text)?;
+    let mut entries = Vec::with_capacity(raw.entries.len());
+    for (key, value) in raw.entries {
+        entries.push((key, doc::json_value(value, 1)?));
     }
+    let (nodes, links) = (raw.nodes, raw.links);
     let mut top = Fields::new(None, entries);
     let title = top.string("title").ok()?;
     let units = match top.take("units") {
