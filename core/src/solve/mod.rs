@@ -67,6 +67,10 @@ impl SolveOptions {
 }
 
 pub use links::INITIAL_VELOCITY;
+
+/// Iterations without convergence in one set of device states after which an active pressure
+/// valve whose flow keeps drifting is taken to be unable to regulate.
+pub const STALLED_ITERATIONS: u32 = 40;
 pub use status::{Ending, LinkState};
 
 /// Results of one pump in a solution (SI).
@@ -183,8 +187,10 @@ pub struct Solver {
     x_old: Vec<f64>,
     open: Vec<bool>,
     on_law: Vec<bool>,
+    last_dq: Vec<f64>,
     connected: Vec<bool>,
     known_head: Vec<f64>,
+    anchored: Vec<bool>,
     /// Σ|demand| floored at 1e-3 m³/s: the scale of relative flow changes.
     demand_scale: f64,
     stack: Vec<u32>,
@@ -210,8 +216,10 @@ impl Solver {
             x_old: vec![0.0; pattern.n],
             open: vec![false; n_links],
             on_law: vec![false; n_links],
+            last_dq: vec![0.0; n_links],
             connected: vec![false; n_nodes],
             known_head: vec![f64::NAN; n_nodes],
+            anchored: vec![false; n_nodes],
             demand_scale: 0.0,
             stack: Vec::with_capacity(n_nodes),
             pattern,
@@ -260,6 +268,7 @@ impl Solver {
         let mut head_change = f64::INFINITY;
         let mut flow_change = f64::INFINITY;
         let mut states_stale = true;
+        let mut since_change = 0u32;
 
         loop {
             if states_stale {
@@ -270,6 +279,21 @@ impl Solver {
                 return Err(self.not_converged(model, &head, iterations, head_change, flow_change));
             }
             iterations += 1;
+            since_change += 1;
+            if since_change > STALLED_ITERATIONS {
+                // An active pressure valve whose pinned head cannot be held (no sink for the flow
+                // it would pass, or a head it cannot reach) makes its flow drift without a fixed
+                // point. Such a valve cannot regulate: it closes, and the status logic decides
+                // again from the next converged solution.
+                if let Some(k) = self.drifting_pressure_valve(model, &tracker) {
+                    tracker.state[k] = LinkState::ValveClosed;
+                    status_changes += 1;
+                    states_stale = true;
+                    since_change = 0;
+                    head_change = f64::INFINITY;
+                    continue;
+                }
+            }
             self.assemble(model, &tracker);
             for (u, x) in self.x_old.iter_mut().enumerate() {
                 *x = head[self.pattern.node_of_unknown[u] as usize];
@@ -332,6 +356,7 @@ impl Solver {
                     Ok(n) => {
                         status_changes += n;
                         states_stale = true;
+                        since_change = 0;
                         head_change = f64::INFINITY;
                     }
                     Err(cycling) => {
@@ -379,27 +404,47 @@ impl Solver {
                     }
                 }
             }
-            // A junction reached only through regulating valves has no head the equations can
-            // fix, and a valve cannot regulate a branch whose demand alone sets its flow: such a
-            // valve is fully open.
+            // A group of junctions joined to every known head only through regulating valves has
+            // no head the equations can fix (its matrix block would be singular), and a valve
+            // cannot regulate a branch whose demand alone sets its flow: such a valve is fully open.
+            topology::mark_reached(
+                model,
+                &self.adjacency,
+                &self.on_law,
+                self.known_head.iter().map(|h| !h.is_nan()),
+                &mut self.anchored,
+                &mut self.stack,
+            );
             let mut forced = false;
             for i in 0..model.nodes().len() {
-                if !self.connected[i] || !self.known_head[i].is_nan() {
+                if !self.connected[i] || self.anchored[i] {
                     continue;
                 }
-                let adjacent = self.adjacency.of(i);
-                if adjacent.iter().any(|&k| self.on_law[k as usize]) {
-                    continue;
-                }
-                if let Some(&k) = adjacent.iter().find(|&&k| tracker.state[k as usize] == LinkState::Active) {
+                if let Some(&k) = self.adjacency.of(i).iter().find(|&&k| tracker.state[k as usize] == LinkState::Active)
+                {
                     tracker.hold_open(model, k as usize);
                     forced = true;
+                    break;
                 }
             }
             if !forced {
                 break;
             }
         }
+    }
+
+    /// The active pressure valve whose flow changed most in the last step, if any.
+    fn drifting_pressure_valve(&self, model: &Model, tracker: &StatusTracker) -> Option<usize> {
+        model
+            .links()
+            .iter()
+            .enumerate()
+            .filter(|(k, l)| {
+                tracker.state[*k] == LinkState::Active
+                    && matches!(l.as_valve(), Some(v) if matches!(v.valve, ValveType::PressureReducing | ValveType::PressureSustaining))
+            })
+            .max_by(|a, b| self.last_dq[a.0].total_cmp(&self.last_dq[b.0]))
+            .map(|(k, _)| k)
     }
 
     /// New flows from new heads; returns the relative flow change Σ|ΔQ| / Σ|Q|.
@@ -423,6 +468,7 @@ impl Solver {
             };
             sum_dq += (q - self.flow[k]).abs();
             sum_q += q.abs();
+            self.last_dq[k] = (q - self.flow[k]).abs();
             self.flow[k] = q;
         }
         if pinned_flows {
@@ -455,6 +501,7 @@ impl Solver {
                 let q = if sign > 0.0 { need } else { -need };
                 sum_dq += (q - self.flow[k]).abs();
                 sum_q += q.abs() - self.flow[k].abs();
+                self.last_dq[k] = (q - self.flow[k]).abs();
                 self.flow[k] = q;
             }
         }

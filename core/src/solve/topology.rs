@@ -51,11 +51,25 @@ pub fn mark_connected(
     connected: &mut [bool],
     stack: &mut Vec<u32>,
 ) {
-    connected.iter_mut().for_each(|c| *c = false);
+    let seeds = model.nodes().iter().map(|n| n.fixed_head().is_some());
+    mark_reached(model, adjacency, open, seeds, connected, stack);
+}
+
+/// Marks in `reached` every node that a path of links with `open[k]` joins to a node for which
+/// `seeds` yields true. `stack` is scratch space.
+pub fn mark_reached(
+    model: &Model,
+    adjacency: &Adjacency,
+    open: &[bool],
+    seeds: impl Iterator<Item = bool>,
+    reached: &mut [bool],
+    stack: &mut Vec<u32>,
+) {
+    reached.iter_mut().for_each(|c| *c = false);
     stack.clear();
-    for (i, node) in model.nodes().iter().enumerate() {
-        if node.fixed_head().is_some() {
-            connected[i] = true;
+    for (i, seed) in seeds.enumerate() {
+        if seed {
+            reached[i] = true;
             stack.push(i as u32);
         }
     }
@@ -67,8 +81,8 @@ pub fn mark_connected(
             }
             let l = &links[k as usize];
             let other = if l.from == i as usize { l.to } else { l.from };
-            if !connected[other] {
-                connected[other] = true;
+            if !reached[other] {
+                reached[other] = true;
                 stack.push(other as u32);
             }
         }
