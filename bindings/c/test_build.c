@@ -73,11 +73,11 @@ static void every_kind(void) {
 
     OK(ringmain_model_add_pipe(m, "P-1", "Lake", "J-1", 1000.0, 300.0, 130.0, 0.0, false, &index));
     EXPECT(index == 0);
-    OK(ringmain_model_add_valve(m, "PRV", "J-1", "J-2", RINGMAIN_VALVE_PRESSURE_REDUCING, 200.0, 30.0, 0.5, NULL));
-    OK(ringmain_model_add_valve(m, "FCV", "J-1", "J-3", RINGMAIN_VALVE_FLOW_CONTROL, 150.0, 4.0, 0.5, NULL));
+    OK(ringmain_model_add_valve(m, "V-reducing", "J-1", "J-2", RINGMAIN_VALVE_PRESSURE_REDUCING, 200.0, 30.0, 0.5, NULL));
+    OK(ringmain_model_add_valve(m, "V-flow", "J-1", "J-3", RINGMAIN_VALVE_FLOW_CONTROL, 150.0, 4.0, 0.5, NULL));
     OK(ringmain_model_add_pipe(m, "P-3", "J-3", "Tower", 500.0, 150.0, 120.0, 0.0, false, NULL));
-    OK(ringmain_model_add_valve(m, "PSV", "J-1", "J-5", RINGMAIN_VALVE_PRESSURE_SUSTAINING, 150.0, 40.0, 0.5, NULL));
-    OK(ringmain_model_add_valve(m, "TCV", "J-5", "J-6", RINGMAIN_VALVE_THROTTLE, 100.0, 10.0, 0.0, NULL));
+    OK(ringmain_model_add_valve(m, "V-sustaining", "J-1", "J-5", RINGMAIN_VALVE_PRESSURE_SUSTAINING, 150.0, 40.0, 0.5, NULL));
+    OK(ringmain_model_add_valve(m, "V-throttle", "J-5", "J-6", RINGMAIN_VALVE_THROTTLE, 100.0, 10.0, 0.0, NULL));
     OK(ringmain_model_add_pipe(m, "P-6", "J-6", "Tower", 300.0, 100.0, 120.0, 0.0, false, NULL));
     const double flows[] = {0.0, 10.0, 20.0};
     const double heads[] = {60.0, 55.0, 40.0};
@@ -95,12 +95,12 @@ static void every_kind(void) {
     EXPECT(kind == RINGMAIN_NODE_TANK);
     OK(ringmain_model_link_kind(m, link_of(m, "PU-2"), &kind));
     EXPECT(kind == RINGMAIN_LINK_PUMP);
-    OK(ringmain_model_link_kind(m, link_of(m, "TCV"), &kind));
+    OK(ringmain_model_link_kind(m, link_of(m, "V-throttle"), &kind));
     EXPECT(kind == RINGMAIN_LINK_VALVE);
-    OK(ringmain_model_get_valve_type(m, link_of(m, "PSV"), &kind));
+    OK(ringmain_model_get_valve_type(m, link_of(m, "V-sustaining"), &kind));
     EXPECT(kind == RINGMAIN_VALVE_PRESSURE_SUSTAINING);
     uint32_t status;
-    OK(ringmain_model_get_link_status(m, link_of(m, "PRV"), &status));
+    OK(ringmain_model_get_link_status(m, link_of(m, "V-reducing"), &status));
     EXPECT(status == RINGMAIN_STATUS_AUTOMATIC);
     OK(ringmain_model_validate(m));
 
@@ -117,31 +117,31 @@ static void every_kind(void) {
     EXPECT_NEAR(value(ringmain_results_link_velocity, r, p1), q1 / 1000.0 / (PI * 0.3 * 0.3 / 4.0), 1e-9);
 
     /* The pressure-reducing valve regulates: J-2 holds its setting of 30 m. */
-    OK(ringmain_results_link_state(r, link_of(m, "PRV"), &state));
+    OK(ringmain_results_link_state(r, link_of(m, "V-reducing"), &state));
     EXPECT(state == RINGMAIN_STATE_ACTIVE);
     EXPECT_NEAR(value(ringmain_results_node_pressure, r, node_of(m, "J-2")), 30.0, 1e-6);
-    EXPECT_NEAR(value(ringmain_results_link_flow, r, link_of(m, "PRV")), 5.0, 1e-6);
+    EXPECT_NEAR(value(ringmain_results_link_flow, r, link_of(m, "V-reducing")), 5.0, 1e-6);
 
     /* The flow-control valve holds 4 L/s; what J-3 does not use fills the tower. */
-    OK(ringmain_results_link_state(r, link_of(m, "FCV"), &state));
+    OK(ringmain_results_link_state(r, link_of(m, "V-flow"), &state));
     EXPECT(state == RINGMAIN_STATE_ACTIVE);
-    EXPECT_NEAR(value(ringmain_results_link_flow, r, link_of(m, "FCV")), 4.0, 1e-6);
+    EXPECT_NEAR(value(ringmain_results_link_flow, r, link_of(m, "V-flow")), 4.0, 1e-6);
     EXPECT_NEAR(value(ringmain_results_link_flow, r, link_of(m, "P-3")), 3.0, 1e-6);
 
     /* The pressure-sustaining valve: J-1 stands above 40 m, so it is fully open. */
-    OK(ringmain_results_link_state(r, link_of(m, "PSV"), &state));
+    OK(ringmain_results_link_state(r, link_of(m, "V-sustaining"), &state));
     EXPECT(state == RINGMAIN_STATE_OPEN_ABOVE_SETTING);
     const char *word, *reason;
     OK(ringmain_link_state_text(state, &word, &reason));
     EXPECT(strcmp(word, "open") == 0 && strlen(reason) > 0);
     EXPECT(value(ringmain_results_node_pressure, r, node_of(m, "J-1")) > 40.0);
     /* The throttle valve loses K V^2 / 2g (g = 9.80665 m/s2, CGPM 1901). */
-    size_t tcv = link_of(m, "TCV");
-    double q_tcv = value(ringmain_results_link_flow, r, tcv);
-    EXPECT(q_tcv > 0.0);
-    EXPECT_NEAR(value(ringmain_results_link_flow, r, link_of(m, "PSV")), q_tcv + 2.0, 1e-6);
-    double v_tcv = q_tcv / 1000.0 / (PI * 0.1 * 0.1 / 4.0);
-    EXPECT_NEAR(value(ringmain_results_link_headloss, r, tcv), 10.0 * v_tcv * v_tcv / (2.0 * 9.80665), 1e-6);
+    size_t throttle = link_of(m, "V-throttle");
+    double q_throttle = value(ringmain_results_link_flow, r, throttle);
+    EXPECT(q_throttle > 0.0);
+    EXPECT_NEAR(value(ringmain_results_link_flow, r, link_of(m, "V-sustaining")), q_throttle + 2.0, 1e-6);
+    double v_throttle = q_throttle / 1000.0 / (PI * 0.1 * 0.1 / 4.0);
+    EXPECT_NEAR(value(ringmain_results_link_headloss, r, throttle), 10.0 * v_throttle * v_throttle / (2.0 * 9.80665), 1e-6);
 
     /* The curve pump lifts along the quadratic through its three points. */
     size_t pu1 = link_of(m, "PU-1");
@@ -158,32 +158,32 @@ static void every_kind(void) {
     ringmain_results_free(r);
 
     /* Change every kind of value, solve again each time, without rebuilding. */
-    OK(ringmain_model_set_valve_setting(m, link_of(m, "PRV"), 25.0));
+    OK(ringmain_model_set_valve_setting(m, link_of(m, "V-reducing"), 25.0));
     double setting;
-    OK(ringmain_model_get_valve_setting(m, link_of(m, "PRV"), &setting));
+    OK(ringmain_model_get_valve_setting(m, link_of(m, "V-reducing"), &setting));
     EXPECT(setting == 25.0);
-    OK(ringmain_model_set_valve_setting(m, link_of(m, "FCV"), 2.5));
+    OK(ringmain_model_set_valve_setting(m, link_of(m, "V-flow"), 2.5));
     OK(ringmain_model_set_pump_efficiency(m, pu1, 80.0));
     const double eff_flows[] = {5.0, 10.0, 15.0};
     const double eff_percent[] = {60.0, 70.0, 65.0};
     OK(ringmain_model_set_pump_efficiency_curve(m, link_of(m, "PU-2"), eff_flows, eff_percent, 3));
     r = solve(m);
     EXPECT_NEAR(value(ringmain_results_node_pressure, r, node_of(m, "J-2")), 25.0, 1e-6);
-    EXPECT_NEAR(value(ringmain_results_link_flow, r, link_of(m, "FCV")), 2.5, 1e-6);
+    EXPECT_NEAR(value(ringmain_results_link_flow, r, link_of(m, "V-flow")), 2.5, 1e-6);
     OK(ringmain_results_pump_power(r, pu1, &hydraulic, &shaft, &efficiency));
     EXPECT_NEAR(efficiency, 80.0, 1e-12);
     ringmain_results_free(r);
 
     /* A valve set open no longer regulates; automatic again, it does. */
-    OK(ringmain_model_set_link_status(m, link_of(m, "PRV"), RINGMAIN_STATUS_OPEN));
-    OK(ringmain_model_get_link_status(m, link_of(m, "PRV"), &status));
+    OK(ringmain_model_set_link_status(m, link_of(m, "V-reducing"), RINGMAIN_STATUS_OPEN));
+    OK(ringmain_model_get_link_status(m, link_of(m, "V-reducing"), &status));
     EXPECT(status == RINGMAIN_STATUS_OPEN);
     r = solve(m);
-    OK(ringmain_results_link_state(r, link_of(m, "PRV"), &state));
+    OK(ringmain_results_link_state(r, link_of(m, "V-reducing"), &state));
     EXPECT(state == RINGMAIN_STATE_OPEN);
     EXPECT(value(ringmain_results_node_pressure, r, node_of(m, "J-2")) > 30.0);
     ringmain_results_free(r);
-    OK(ringmain_model_set_link_status(m, link_of(m, "PRV"), RINGMAIN_STATUS_AUTOMATIC));
+    OK(ringmain_model_set_link_status(m, link_of(m, "V-reducing"), RINGMAIN_STATUS_AUTOMATIC));
 
     /* A stopped pump carries nothing. */
     OK(ringmain_model_set_pump_speed(m, pu1, 0.0));
