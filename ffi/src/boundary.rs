@@ -1,7 +1,7 @@
 //! The boundary between C and Rust: the panic-catching wrapper, the thread's last error, and the
 //! helpers that turn C pointers into Rust values.
 //!
-//! Every exported function's body runs inside [`ffi_boundary!`]: the body returns
+//! Every exported function's body runs inside `ffi_boundary!`: the body returns
 //! `Result<(), Failure>`; `Ok` becomes `RINGMAIN_OK`, a [`Failure`] records its message as the
 //! calling thread's last error and becomes its status code, and a panic (a bug) is caught and
 //! becomes `RINGMAIN_PANIC` with the panic's message as the last error. No panic unwinds into C.

@@ -40,8 +40,10 @@ fn header_declares_every_status_code_with_its_value() {
 }
 
 #[test]
-fn handles_can_move_between_threads() {
-    fn sendable<T: Send>() {}
+fn handles_can_move_between_threads_and_be_read_from_several() {
+    // What the header promises: a handle may move to another thread (Send), and several threads
+    // may use one handle through the functions taking a const pointer (Sync).
+    fn sendable<T: Send + Sync>() {}
     sendable::<ringmain_model>();
     sendable::<ringmain_results>();
 }

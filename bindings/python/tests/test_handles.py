@@ -45,6 +45,7 @@ def test_handles_are_counted_while_alive():
 
 def test_a_copy_is_independent():
     with ringmain.Model.load(HILLSIDE) as m, m.copy() as c:
+        assert not c.warm_start
         c.set_demand("J-109", 25.0)
         assert m.demand("J-109") != 25.0
         with m.solve() as a, c.solve() as b:

@@ -142,8 +142,10 @@ class Model(Handle):
         )
 
     def copy(self) -> "Model":
-        """An independent copy (for example, one per thread)."""
-        return type(self)._made(lib.ringmain_model_clone, self._ptr)
+        """An independent copy (for example, one per thread), warm start setting included."""
+        copy = type(self)._made(lib.ringmain_model_clone, self._ptr)
+        copy._warm_start = self.warm_start
+        return copy
 
     # -- what the model is --------------------------------------------------------------------
 
