@@ -29,4 +29,7 @@ fi
 .venv/bin/python -m pip install --quiet --disable-pip-version-check -r tests/python/requirements.txt
 RINGMAIN_BIN="$PWD/target/release/ringmain" .venv/bin/python -m pytest tests/python -q
 
+step "C library and Python package"
+scripts/test-embedding.sh
+
 printf '\nall checks passed\n'

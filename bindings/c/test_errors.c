@@ -238,7 +238,7 @@ static void buffers_files_and_solves(const char *model_path, const char *tmpdir)
     FAILS_WITH(ringmain_model_solve(demo, &r), RINGMAIN_NOT_CONVERGED);
     EXPECT(r == NULL);
     EXPECT_ERROR_CONTAINS(model_path);
-    EXPECT_ERROR_CONTAINS("did not converge in 1 iterations");
+    EXPECT_ERROR_CONTAINS("did not converge in 1 iteration:");
     FAILS_WITH(ringmain_model_set_solver_options(demo, 0, 1e-4, 1e-6), RINGMAIN_MODEL_INVALID);
     EXPECT_ERROR_CONTAINS("[hydraulics]: key 'max_iterations'");
     FAILS_WITH(ringmain_model_set_solver_options(demo, 50, -1.0, 1e-6), RINGMAIN_MODEL_INVALID);

@@ -52,12 +52,17 @@ def test_results_equal_the_command_line_program(path, cli_json):
 
     links = results.links()
     assert [k["id"] for k in links] == [k["id"] for k in expected["links"]]
+    # Device details that the program's JSON carries from the model rather than from the results.
+    from_model = {"speed", "beyond_curve", "valve", "setting"}
     for got, want in zip(links, expected["links"]):
-        assert set(got) == set(want), got["id"]
-        for key in want:
+        assert set(got) == set(want) - from_model, got["id"]
+        for key in got:
             _same(got[key], want[key], f"link {want['id']} {key}")
         _same(results.link_flow(want["id"]), want["flow"], "link_flow")
-        _same(results.link_velocity(want["id"]), want["velocity"], "link_velocity")
+        if want["velocity"] is not None:
+            _same(results.link_velocity(want["id"]), want["velocity"], "link_velocity")
+        else:
+            assert math.isnan(results.link_velocity(want["id"]))
         assert results.link_status(want["id"]) == want["status"]
     assert results.warnings == expected["warnings"]
     results.close()

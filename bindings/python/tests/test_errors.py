@@ -77,7 +77,7 @@ def test_unknown_ids_wrong_kinds_and_bad_values():
 def test_a_solve_that_does_not_converge_raises_solve_error():
     with ringmain.Model.load(HILLSIDE) as m:
         m.set_solver_options(max_iterations=1)
-        with pytest.raises(ringmain.SolveError, match="did not converge in 1 iterations") as e:
+        with pytest.raises(ringmain.SolveError, match="did not converge in 1 iteration:") as e:
             m.solve()
         assert e.value.status_name == "RINGMAIN_NOT_CONVERGED"
         assert str(HILLSIDE) in str(e.value)

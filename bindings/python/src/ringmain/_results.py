@@ -270,7 +270,8 @@ class Results(Handle):
 
     def links(self) -> list[dict[str, Any]]:
         """Every link as a dict with the keys of the command-line program's JSON results: id, kind,
-        from, to, flow, velocity, headloss, status, and reason when there is one."""
+        from, to, flow, velocity (None for pumps), headloss, status, reason when there is one, and
+        for pumps head_gain, efficiency, hydraulic_power and shaft_power."""
         layout = self._layout
         out = []
         for k in range(len(layout.link_ids)):
@@ -281,12 +282,18 @@ class Results(Handle):
                 "from": layout.link_from[k],
                 "to": layout.link_to[k],
                 "flow": float(self.flows[k]),
-                "velocity": float(self.velocities[k]),
+                "velocity": _finite_or_none(float(self.velocities[k])),
                 "headloss": _finite_or_none(float(self.headlosses[k])),
                 "status": word,
             }
             if reason:
                 item["reason"] = reason
+            if layout.link_kinds[k] == "pump":
+                power = self.pump_power(k)
+                item["head_gain"] = self.pump_head(k)
+                item["efficiency"] = power["efficiency"]
+                item["hydraulic_power"] = power["hydraulic"]
+                item["shaft_power"] = power["shaft"]
             out.append(item)
         return out
 
