@@ -649,14 +649,21 @@ impl<'m> Engine<'m> {
             let action = controls[winner].action;
             let overruled: Vec<usize> =
                 on_link.iter().copied().filter(|&c| c != winner && controls[c].action != action).collect();
-            self.apply(link, action);
-            self.events
-                .push(Event { time: self.t, kind: EventKind::Control { control: winner, link, action, overruled } });
+            // Only actions that change something are logged.
+            if self.apply(link, action) {
+                self.events.push(Event {
+                    time: self.t,
+                    kind: EventKind::Control { control: winner, link, action, overruled },
+                });
+            }
         }
         Ok(())
     }
 
-    fn apply(&mut self, k: usize, action: Action) {
+    /// Applies an action to a link's settings; returns whether anything changed.
+    fn apply(&mut self, k: usize, action: Action) -> bool {
+        let before = (self.settings.status[k], self.settings.speed[k].to_bits(), self.settings.setting[k].to_bits());
+        let automatic = self.settings.automatic[k];
         let s = &mut self.settings;
         match action {
             Action::Open => {
@@ -680,6 +687,8 @@ impl<'m> Engine<'m> {
                 s.automatic[k] = true;
             }
         }
+        let after = (self.settings.status[k], self.settings.speed[k].to_bits(), self.settings.setting[k].to_bits());
+        before != after || automatic != self.settings.automatic[k]
     }
 
     /// Tracks extremes and logs limit events at the current point.
