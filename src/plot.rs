@@ -31,6 +31,9 @@ struct Band {
     color: &'static str,
 }
 
+/// A row of on/off bars: label, colour, the stretches (hours) when on.
+type Strip = (String, &'static str, Vec<(f64, f64)>);
+
 /// One panel: lines against time, optional bands and a legend.
 struct Panel {
     title: String,
@@ -41,7 +44,7 @@ struct Panel {
     /// Fixed y range (else from the data).
     y_range: Option<(f64, f64)>,
     /// A strip of on/off rows instead of lines: (label, color, running stretches).
-    strips: Vec<(String, &'static str, Vec<(f64, f64)>)>,
+    strips: Vec<Strip>,
 }
 
 impl Panel {

@@ -487,13 +487,13 @@ fn priority_decides_between_controls_at_the_same_instant() {
 [[controls]]
 id = "low"
 link = "Spare"
-status = "closed"
+status = "open"
 when = { clock = "08:00" }
 priority = 1
 [[controls]]
 id = "high"
 link = "Spare"
-status = "open"
+status = "closed"
 when = { after = "2h" }
 priority = 5
 "#,

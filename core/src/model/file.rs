@@ -68,7 +68,7 @@ pub fn read_bytes(bytes: &[u8], format: Format, source: &str) -> Result<Model, M
 }
 
 const TOP_KEYS: &[&str] =
-    &["title", "units", "hydraulics", "simulation", "energy", "patterns", "nodes", "links", "controls"];
+    &["title", "units", "hydraulics", "simulation", "electricity", "patterns", "nodes", "links", "controls"];
 const SIMULATION_KEYS: &[&str] = &["duration", "hydraulic_step", "report_interval", "start_clock", "level_tolerance"];
 const ENERGY_KEYS: &[&str] = &["price_per_kwh", "tariff_pattern", "currency"];
 const PATTERN_KEYS: &[&str] = &["id", "step", "multipliers"];
@@ -144,7 +144,7 @@ fn read_inner(text: &str, format: Format) -> Result<Model, ModelError> {
         Some(v) => Some(read_simulation(v, &units)?),
         None => None,
     };
-    let energy = top.take("energy");
+    let energy = top.take("electricity");
     let patterns = top.array("patterns")?;
     let nodes = top.array("nodes")?;
     let links = top.array("links")?;
@@ -806,7 +806,7 @@ fn read_simulation(value: Value, units: &UnitSystem) -> Result<SimulationSetting
 }
 
 fn read_energy(value: Value, time: &TimeData) -> Result<Energy, ModelError> {
-    let el = Element::Table("energy".into());
+    let el = Element::Table("electricity".into());
     let mut f = Fields::from_value(el.clone(), value)?;
     let price = match f.number("price_per_kwh")? {
         Some(p) => super::check_value(&el, "price_per_kwh", p, super::Rule::NonNegative)?,

@@ -223,7 +223,7 @@ pub struct Control {
     pub priority: i64,
 }
 
-/// Energy prices (`[energy]`).
+/// Energy prices (`[electricity]`).
 #[derive(Clone, Debug, PartialEq, Default)]
 pub struct Energy {
     /// Price of one kWh of shaft energy, in the currency below.

@@ -211,7 +211,7 @@ pub fn to_value(model: &Model) -> Value {
         if let Some(c) = &e.currency {
             m.insert("currency".into(), json!(c));
         }
-        top.insert("energy".into(), Value::Object(m));
+        top.insert("electricity".into(), Value::Object(m));
     }
     if !time.patterns.is_empty() {
         let list: Vec<Value> = time
@@ -300,7 +300,7 @@ mod tests {
             hydraulic_step = "30min"
             report_interval = "15min"
             start_clock = "06:30"
-            [energy]
+            [electricity]
             price_per_kwh = 0.2
             tariff_pattern = "night"
             currency = "EUR"
