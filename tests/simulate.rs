@@ -616,3 +616,81 @@ fn a_tank_without_a_shape_cannot_be_simulated() {
     let e = simulate(&m).unwrap_err().to_string();
     assert!(e.contains("node 'T': key 'diameter'"), "{e}");
 }
+
+#[test]
+fn a_level_volume_table_of_a_cylinder_gives_the_cylinder() {
+    // The 5 m cylinder as a table: volume = π 5²/4 × level (m³), points every 2 m.
+    let table: Vec<String> = (0..=5).map(|i| format!("[{}, {}]", 2 * i, AREA5 * 2.0 * i as f64)).collect();
+    let cylinder = linear_drain("");
+    let shaped = cylinder.replace("diameter = 5.0\n", &format!("volume_curve = [{}]\n", table.join(", ")));
+    let (_, a) = run(&cylinder);
+    let (_, b) = run(&shaped);
+    for (x, y) in a.series.iter().zip(&b.series) {
+        assert!((x.level[0] - y.level[0]).abs() < 1e-9, "{} vs {}", x.level[0], y.level[0]);
+    }
+    assert_balance(&b);
+}
+
+#[test]
+fn head_and_speed_patterns_follow_the_clock() {
+    let (m, r) = run(r#"
+[simulation]
+duration = "4h"
+report_interval = "1h"
+[[patterns]]
+id = "river"
+step = "2h"
+multipliers = [1.0, 1.1]
+[[patterns]]
+id = "slow"
+step = "1h"
+multipliers = [1.0, 0.8, 0.0, 1.0]
+[[nodes]]
+id = "R"
+kind = "reservoir"
+head = 20
+head_pattern = "river"
+[[nodes]]
+id = "J"
+elevation = 0
+demand = 1.0
+[[nodes]]
+id = "S"
+kind = "reservoir"
+head = 5
+[[nodes]]
+id = "K"
+elevation = 0
+demand = 2.0
+[[links]]
+id = "P"
+from = "R"
+to = "J"
+length = 100
+diameter = 150
+roughness = 120
+[[links]]
+id = "U"
+kind = "pump"
+from = "S"
+to = "K"
+head_curve = [[0, 40], [5, 30]]
+speed_pattern = "slow"
+[[links]]
+id = "Q"
+from = "K"
+to = "J"
+length = 100
+diameter = 150
+roughness = 120
+"#);
+    let r_node = m.node_index("R").unwrap();
+    for s in &r.series {
+        let hour = (s.time / HOUR).round() as usize;
+        let head = 20.0 * [1.0, 1.0, 1.1, 1.1, 1.0][hour];
+        assert!((s.head[r_node] - head).abs() < 1e-12, "at {hour} h: {}", s.head[r_node]);
+        let speed = [1.0, 0.8, 0.0, 1.0, 1.0][hour];
+        assert_eq!(s.pump_speed[0], speed, "at {hour} h");
+    }
+    assert_balance(&r);
+}

@@ -3,7 +3,7 @@
 //!
 //! A snapshot solve ignores all of this: it uses each junction's base demand (the sum of its
 //! demand categories), each reservoir's head, each pump's speed and each valve's setting as
-//! written. [`crate::simulate`] applies the patterns and controls over time.
+//! written. [`crate::simulate`](mod@crate::simulate) applies the patterns and controls over time.
 //!
 //! Attachments to elements are kept here, keyed by element index, so that the snapshot model's
 //! element types stay as they are.
