@@ -36,11 +36,13 @@
 pub mod error;
 pub mod model;
 pub mod physics;
+pub mod simulate;
 pub mod solve;
 pub mod units;
 
 pub use error::{Element, ModelError, SolveError};
 pub use model::file::{read_bytes, read_str, Format};
 pub use model::{HeadLossLaw, Link, LinkKind, LinkStatus, Model, Node, NodeKind, Pipe, Tank};
+pub use simulate::{simulate, Run, SimulateError, SimulateOptions};
 pub use solve::{solve, LinkState, Solution, SolveOptions, Solver};
 pub use units::UnitSystem;

@@ -13,6 +13,7 @@
 
 pub mod doc;
 pub mod file;
+pub mod time;
 pub mod write;
 
 use crate::error::{Element, ModelError};
@@ -385,6 +386,8 @@ pub struct Model {
     pub units: UnitSystem,
     /// Solver options.
     pub options: HydraulicOptions,
+    /// What only a simulation over time uses (patterns, controls, tank shapes, energy).
+    pub time: time::TimeData,
     nodes: Vec<Node>,
     links: Vec<Link>,
     node_index: HashMap<String, usize>,
