@@ -16,6 +16,9 @@ cargo fmt --all --check
 step "lint"
 cargo clippy --release --workspace --all-targets -- -D warnings
 
+step "docs"
+RUSTDOCFLAGS="-D warnings" cargo doc --no-deps -p ringmain-core -p ringmain-ffi
+
 step "build"
 cargo build --release --workspace
 

@@ -1,7 +1,7 @@
 //! ringmain-core: flows and pressures in looped water-distribution networks.
 //!
 //! Data flows one way: a model file is read into a [`Model`] ([`model::file`]), the gradient
-//! method of Todini & Pilati solves it ([`solve`]), and the [`Solution`] goes to writers (in the
+//! method of Todini & Pilati solves it ([`mod@solve`]), and the [`Solution`] goes to writers (in the
 //! command-line program and the C library). SI units inside; [`units`] converts at the edges.
 //!
 //! ```

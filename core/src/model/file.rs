@@ -655,18 +655,6 @@ fn read_pipe(f: &mut Fields, model: &Model) -> Result<Pipe, ModelError> {
         minor_loss: f.number("minor_loss")?.unwrap_or(0.0),
         check_valve: f.boolean("check_valve")?.unwrap_or(false),
     };
-    if model.options.headloss == HeadLossLaw::HazenWilliams
-        && roughness.is_finite()
-        && roughness > 0.0
-        && roughness < 1.0
-    {
-        return Err(f.error(
-            "roughness",
-            format!(
-                "{roughness} is an absolute roughness, but this model uses Hazen-Williams, whose roughness is the coefficient C (typically 80 to 150)"
-            ),
-        ));
-    }
     Ok(pipe)
 }
 
