@@ -16,6 +16,9 @@ cargo fmt --all --check
 step "lint"
 cargo clippy --release --workspace --all-targets -- -D warnings
 
+step "docs"
+RUSTDOCFLAGS="-D warnings" cargo doc --no-deps -p ringmain-core -p ringmain-ffi
+
 step "build"
 cargo build --release --workspace
 
@@ -28,5 +31,8 @@ if [ ! -x .venv/bin/python ]; then
 fi
 .venv/bin/python -m pip install --quiet --disable-pip-version-check -r tests/python/requirements.txt
 RINGMAIN_BIN="$PWD/target/release/ringmain" .venv/bin/python -m pytest tests/python -q
+
+step "C library and Python package"
+scripts/test-embedding.sh
 
 printf '\nall checks passed\n'

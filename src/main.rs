@@ -3,7 +3,9 @@
 //! Exit codes: 0 success; 2 invalid model, file or arguments; 3 the solver did not converge;
 //! 4 the results could not be written.
 
+mod plot;
 mod report;
+mod simulation;
 
 use clap::{Parser, Subcommand, ValueEnum};
 use ringmain_core::physics::{friction_factor, WaterProperties};
@@ -57,6 +59,23 @@ enum Command {
         #[arg(long, short)]
         output: PathBuf,
     },
+    /// Simulate a model over time (its [simulation] table): tank levels, pump energy, pressures.
+    ///
+    /// Prints a summary (or writes the time series as CSV or JSON) and, with --plot, SVG charts.
+    Simulate {
+        /// The model file (.toml or .json).
+        model: PathBuf,
+        /// Output format: table = summary and events; json = summary, events and time series;
+        /// csv = the time series, one value a row.
+        #[arg(long, value_enum, default_value_t = OutputFormat::Table)]
+        format: OutputFormat,
+        /// Write the results to this file instead of standard output.
+        #[arg(long, short)]
+        output: Option<PathBuf>,
+        /// Write SVG charts (tanks.svg, pumps.svg, pressures.svg) into this directory.
+        #[arg(long, value_name = "DIR")]
+        plot: Option<PathBuf>,
+    },
     /// Print the density and viscosity of water at a temperature (IAPWS formulations).
     WaterProperties {
         /// Water temperature, deg C (0 to 99).
@@ -96,6 +115,9 @@ fn main() -> ExitCode {
     match cli.command {
         Command::Solve { model, format, output, timings } => solve(&model, format, output.as_deref(), timings),
         Command::Generate { junctions, seed, output } => generate(junctions, seed, &output),
+        Command::Simulate { model, format, output, plot } => {
+            simulate(&model, format, output.as_deref(), plot.as_deref())
+        }
         Command::WaterProperties { temperature, format } => water_properties(temperature, format),
         Command::FrictionFactor { reynolds, relative_roughness, format } => {
             friction(reynolds, relative_roughness, format)
@@ -237,6 +259,85 @@ fn generate(junctions: usize, seed: u64, output: &Path) -> ExitCode {
         }
     };
     write_out(&ringmain_core::model::write::to_string(&model, format), Some(output))
+}
+
+/// A progress bar on standard error, drawn only when it is a terminal.
+struct Progress {
+    enabled: bool,
+    shown: i64,
+}
+
+impl Progress {
+    fn new() -> Self {
+        use std::io::IsTerminal;
+        Progress { enabled: std::io::stderr().is_terminal(), shown: -1 }
+    }
+
+    fn update(&mut self, fraction: f64) {
+        if !self.enabled {
+            return;
+        }
+        let percent = (fraction.clamp(0.0, 1.0) * 100.0).floor() as i64;
+        if percent == self.shown {
+            return;
+        }
+        self.shown = percent;
+        let filled = (percent / 4) as usize;
+        eprint!("\rsimulating [{}{}] {percent:>3}%", "#".repeat(filled), " ".repeat(25 - filled));
+    }
+
+    fn finish(&self) {
+        if self.enabled && self.shown >= 0 {
+            eprint!("\r{}\r", " ".repeat(48));
+        }
+    }
+}
+
+fn simulate(path: &Path, format: OutputFormat, output: Option<&Path>, plot_dir: Option<&Path>) -> ExitCode {
+    use ringmain_core::SimulateError;
+    let model = match load(path) {
+        Ok(m) => m,
+        Err(e) => {
+            eprintln!("error: {e}");
+            return ExitCode::from(EXIT_INVALID);
+        }
+    };
+    let mut progress = Progress::new();
+    let result = ringmain_core::simulate::simulate_with(&model, &ringmain_core::SimulateOptions::default(), &mut |f| {
+        progress.update(f)
+    });
+    progress.finish();
+    let run = match result {
+        Ok(r) => r,
+        Err(SimulateError::Model(e)) => {
+            eprintln!("error: {}", e.in_file(path.display().to_string()));
+            return ExitCode::from(EXIT_INVALID);
+        }
+        Err(e) => {
+            eprintln!("error: {}: {e}", path.display());
+            return ExitCode::from(EXIT_NOT_CONVERGED);
+        }
+    };
+    let report = simulation::RunReport::new(&model, &run);
+    if let Some(dir) = plot_dir {
+        match plot::write_all(&report, dir) {
+            Ok(files) => {
+                for f in files {
+                    eprintln!("wrote {}", f.display());
+                }
+            }
+            Err(e) => {
+                eprintln!("error: cannot write the charts to {}: {e}", dir.display());
+                return ExitCode::from(EXIT_WRITE);
+            }
+        }
+    }
+    let text = match format {
+        OutputFormat::Table => report.to_table(),
+        OutputFormat::Json => serde_json::to_string_pretty(&report.to_json()).unwrap_or_default() + "\n",
+        OutputFormat::Csv => report.to_csv(),
+    };
+    write_out(&text, output)
 }
 
 fn water_properties(temperature: f64, format: OutputFormat) -> ExitCode {

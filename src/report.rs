@@ -424,7 +424,7 @@ impl<'a> Report<'a> {
                 (_, true) => "supplying",
                 (_, false) => "taking",
             };
-            let _ = writeln!(out, "  {:<9} {:<15} {what} {:.3} {}", n.kind.label(), n.id, q.abs(), u.flow);
+            let _ = writeln!(out, "  {:<9} {:<idw$}  {what} {:.3} {}", n.kind.label(), n.id, q.abs(), u.flow);
         }
         let lowest = m
             .nodes()

@@ -21,6 +21,12 @@ pub enum Element {
     LinkEntry(usize),
     /// A top-level table such as `units` or `hydraulics`.
     Table(String),
+    /// A pattern, by id.
+    Pattern(String),
+    /// A control, by id.
+    Control(String),
+    /// The n-th entry (0-based) of an array of tables such as `patterns`, when it has no usable id.
+    Entry(String, usize),
 }
 
 impl fmt::Display for Element {
@@ -31,6 +37,9 @@ impl fmt::Display for Element {
             Element::NodeEntry(i) => write!(f, "nodes entry #{}", i + 1),
             Element::LinkEntry(i) => write!(f, "links entry #{}", i + 1),
             Element::Table(name) => write!(f, "[{name}]"),
+            Element::Pattern(id) => write!(f, "pattern '{}'", printable(id)),
+            Element::Control(id) => write!(f, "control '{}'", printable(id)),
+            Element::Entry(table, i) => write!(f, "{table} entry #{}", i + 1),
         }
     }
 }

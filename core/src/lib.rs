@@ -1,7 +1,7 @@
 //! ringmain-core: flows and pressures in looped water-distribution networks.
 //!
 //! Data flows one way: a model file is read into a [`Model`] ([`model::file`]), the gradient
-//! method of Todini & Pilati solves it ([`solve`]), and the [`Solution`] goes to writers (in the
+//! method of Todini & Pilati solves it ([`mod@solve`]), and the [`Solution`] goes to writers (in the
 //! command-line program and the C library). SI units inside; [`units`] converts at the edges.
 //!
 //! ```
@@ -37,11 +37,13 @@ pub mod error;
 pub mod generate;
 pub mod model;
 pub mod physics;
+pub mod simulate;
 pub mod solve;
 pub mod units;
 
 pub use error::{Element, ModelError, SolveError};
 pub use model::file::{read_bytes, read_str, Format};
 pub use model::{HeadLossLaw, Link, LinkKind, LinkStatus, Model, Node, NodeKind, Pipe, Tank};
+pub use simulate::{simulate, Run, SimulateError, SimulateOptions};
 pub use solve::{solve, LinkState, Solution, SolveOptions, Solver};
 pub use units::UnitSystem;

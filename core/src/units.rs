@@ -292,7 +292,7 @@ mod tests {
         // 1 cfs = 0.3048^3 m3/s = 0.028316846592 (exact).
         assert!((FlowUnit::CubicFootPerSecond.factor() - 0.028_316_846_592).abs() < 1e-15);
         // 1 Mgal/d = 3785.411784 m3/d = 0.0438126364... m3/s.
-        assert!((FlowUnit::MillionGallonPerDay.factor() - 3785.411_784 / 86_400.0).abs() < 1e-15);
+        assert!((FlowUnit::MillionGallonPerDay.factor() - 3_785.411_784 / 86_400.0).abs() < 1e-15);
     }
 
     #[test]

@@ -133,6 +133,8 @@ def _toml_value(value) -> str:
         return repr(value)
     if isinstance(value, str):
         return json.dumps(value)  # a JSON string literal is a valid TOML basic string
+    if isinstance(value, (list, tuple)):
+        return "[" + ", ".join(_toml_value(v) for v in value) + "]"
     raise TypeError(f"cannot write a {type(value).__name__} to a model file")
 
 

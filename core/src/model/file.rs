@@ -6,6 +6,7 @@
 //! element id and the key.
 
 use super::doc::{self, Value};
+use super::time::{self as tm, Action, Condition, Control, Demand, Energy, SimulationSettings, TimeData, TimePattern};
 use super::{
     HeadLossLaw, HydraulicOptions, Link, LinkKind, LinkStatus, Model, Node, NodeKind, Pipe, Pump, PumpDrive, Tank,
     Valve, ValveType, WaterSpec,
@@ -67,19 +68,45 @@ pub fn read_bytes(bytes: &[u8], format: Format, source: &str) -> Result<Model, M
     }
 }
 
-const TOP_KEYS: &[&str] = &["title", "units", "hydraulics", "nodes", "links"];
+const TOP_KEYS: &[&str] =
+    &["title", "units", "hydraulics", "simulation", "electricity", "patterns", "nodes", "links", "controls"];
+const SIMULATION_KEYS: &[&str] = &["duration", "hydraulic_step", "report_interval", "start_clock", "level_tolerance"];
+const ENERGY_KEYS: &[&str] = &["price_per_kwh", "tariff_pattern", "currency"];
+const PATTERN_KEYS: &[&str] = &["id", "step", "multipliers"];
+const DEMAND_KEYS: &[&str] = &["base", "pattern"];
+const CONTROL_KEYS: &[&str] = &["id", "link", "status", "speed", "setting", "when", "priority"];
+const CONDITION_KEYS: &[&str] =
+    &["tank", "level_above", "level_below", "node", "pressure_above", "pressure_below", "clock", "after", "all", "any"];
 const UNIT_KEYS: &[&str] = &["length", "diameter", "flow", "pressure", "roughness"];
 const HYDRAULIC_KEYS: &[&str] =
     &["headloss", "kinematic_viscosity", "water_temperature", "max_iterations", "head_tolerance", "flow_tolerance"];
 const NODE_KEYS: &[(&str, &[&str])] = &[
-    ("junction", &["id", "kind", "elevation", "demand", "x", "y", "zone"]),
-    ("reservoir", &["id", "kind", "head", "elevation", "x", "y", "zone"]),
-    ("tank", &["id", "kind", "elevation", "level", "min_level", "max_level", "diameter", "x", "y", "zone"]),
+    ("junction", &["id", "kind", "elevation", "demand", "pattern", "demands", "x", "y", "zone"]),
+    ("reservoir", &["id", "kind", "head", "head_pattern", "elevation", "x", "y", "zone"]),
+    (
+        "tank",
+        &["id", "kind", "elevation", "level", "min_level", "max_level", "diameter", "volume_curve", "x", "y", "zone"],
+    ),
 ];
 const LINK_KEYS: &[(&str, &[&str])] = &[
     ("pipe", &["id", "kind", "from", "to", "length", "diameter", "roughness", "minor_loss", "status", "check_valve"]),
-    ("pump", &["id", "kind", "from", "to", "head_curve", "power", "efficiency_curve", "efficiency", "speed", "status"]),
-    ("valve", &["id", "kind", "valve", "from", "to", "diameter", "setting", "minor_loss", "status"]),
+    (
+        "pump",
+        &[
+            "id",
+            "kind",
+            "from",
+            "to",
+            "head_curve",
+            "power",
+            "efficiency_curve",
+            "efficiency",
+            "speed",
+            "speed_pattern",
+            "status",
+        ],
+    ),
+    ("valve", &["id", "kind", "valve", "from", "to", "diameter", "setting", "setting_pattern", "minor_loss", "status"]),
 ];
 
 /// The JSON reader for large files: the file's syntax is checked in one pass that builds no
@@ -94,30 +121,11 @@ fn read_json_streamed(text: &str) -> Option<Model> {
     for (key, value) in raw.entries {
         entries.push((key, doc::json_value(value, 1)?));
     }
-    let (nodes, links) = (raw.nodes, raw.links);
-    let mut top = Fields::new(None, entries);
-    let title = top.string("title").ok()?;
-    let units = match top.take("units") {
-        Some(v) => read_units(v).ok()?,
-        None => UnitSystem::default(),
-    };
-    let options = match top.take("hydraulics") {
-        Some(v) => read_hydraulics(v, &units).ok()?,
-        None => HydraulicOptions::default(),
-    };
-    top.finish(TOP_KEYS).ok()?;
-    let mut model = Model::new(units, options);
-    model.title = title;
-    for (i, raw) in nodes.into_iter().enumerate() {
-        let node = read_node(i, doc::json_value(raw, 2)?, &units).ok()?;
-        model.add_node(node).ok()?;
-    }
-    for (i, raw) in links.into_iter().enumerate() {
-        let link = read_link(i, doc::json_value(raw, 2)?, &model).ok()?;
-        model.add_link(link).ok()?;
-    }
-    model.validate().ok()?;
-    Some(model)
+    // An element that does not parse: the ordinary reader will say why.
+    let give_up = || ModelError::new("element not readable on its own");
+    let nodes = raw.nodes.into_iter().map(|r| doc::json_value(r, 2).ok_or_else(give_up));
+    let links = raw.links.into_iter().map(|r| doc::json_value(r, 2).ok_or_else(give_up));
+    build(Fields::new(None, entries), Some(nodes), Some(links)).ok()
 }
 
 fn read_inner(text: &str, format: Format) -> Result<Model, ModelError> {
@@ -152,7 +160,17 @@ fn read_tree(text: &str, format: Format) -> Result<Model, ModelError> {
     let Value::Table(entries) = tree else {
         return Err(ModelError::new(format!("the model must be a table of keys, found {}", tree.kind())));
     };
-    let mut top = Fields::new(None, entries);
+    type Items = std::iter::Map<std::vec::IntoIter<Value>, fn(Value) -> Result<Value, ModelError>>;
+    build::<Items, Items>(Fields::new(None, entries), None, None)
+}
+
+/// Builds the model from the top-level table. The elements of `nodes` and `links` come from the
+/// table itself (`None`), or one by one from the streamed JSON reader.
+fn build<N, L>(mut top: Fields, nodes: Option<N>, links: Option<L>) -> Result<Model, ModelError>
+where
+    N: Iterator<Item = Result<Value, ModelError>>,
+    L: Iterator<Item = Result<Value, ModelError>>,
+{
     let title = top.string("title")?;
     let units = match top.take("units") {
         Some(v) => read_units(v)?,
@@ -162,19 +180,52 @@ fn read_tree(text: &str, format: Format) -> Result<Model, ModelError> {
         Some(v) => read_hydraulics(v, &units)?,
         None => HydraulicOptions::default(),
     };
-    let nodes = top.array("nodes")?;
-    let links = top.array("links")?;
+    let simulation = match top.take("simulation") {
+        Some(v) => Some(read_simulation(v, &units)?),
+        None => None,
+    };
+    let energy = top.take("electricity");
+    let patterns = top.array("patterns")?;
+    let nodes: Box<dyn Iterator<Item = Result<Value, ModelError>>> = match nodes {
+        Some(items) => Box::new(items),
+        None => Box::new(top.array("nodes")?.into_iter().map(Ok)),
+    };
+    let links: Box<dyn Iterator<Item = Result<Value, ModelError>>> = match links {
+        Some(items) => Box::new(items),
+        None => Box::new(top.array("links")?.into_iter().map(Ok)),
+    };
+    let controls = top.array("controls")?;
     top.finish(TOP_KEYS)?;
 
     let mut model = Model::new(units, options);
     model.title = title;
-    for (i, v) in nodes.into_iter().enumerate() {
-        let node = read_node(i, v, &units)?;
+    model.time.simulation = simulation;
+    for (i, v) in patterns.into_iter().enumerate() {
+        let pattern = read_pattern(i, v, &model.time)?;
+        model.time.patterns.push(pattern);
+    }
+    if let Some(v) = energy {
+        model.time.energy = read_energy(v, &model.time)?;
+    }
+    for (i, v) in nodes.enumerate() {
+        let index = model.nodes().len();
+        let node = read_node(i, v?, &units, index, &mut model.time)?;
         model.add_node(node)?;
     }
-    for (i, v) in links.into_iter().enumerate() {
-        let link = read_link(i, v, &model)?;
+    for (i, v) in links.enumerate() {
+        let index = model.links().len();
+        let (link, pattern) = read_link(i, v?, &model)?;
+        if let Some(p) = pattern {
+            match link.kind {
+                LinkKind::Pump(_) => model.time.speed_patterns.insert(index, p),
+                _ => model.time.setting_patterns.insert(index, p),
+            };
+        }
         model.add_link(link)?;
+    }
+    for (i, v) in controls.into_iter().enumerate() {
+        let control = read_control(i, v, &model)?;
+        model.time.controls.push(control);
     }
     model.validate()?;
     Ok(model)
@@ -184,11 +235,57 @@ fn read_tree(text: &str, format: Format) -> Result<Model, ModelError> {
 struct Fields {
     element: Option<Element>,
     entries: Vec<(String, Option<Value>)>,
+    /// Written before every key in messages, for tables inside an element ("demands[2].").
+    prefix: String,
 }
 
 impl Fields {
     fn new(element: Option<Element>, entries: Vec<(String, Value)>) -> Self {
-        Fields { element, entries: entries.into_iter().map(|(k, v)| (k, Some(v))).collect() }
+        Fields { element, entries: entries.into_iter().map(|(k, v)| (k, Some(v))).collect(), prefix: String::new() }
+    }
+
+    /// The fields of a table nested in this element under `prefix` (e.g. "when.").
+    fn nested(&self, prefix: String, value: Value) -> Result<Self, ModelError> {
+        match value {
+            Value::Table(entries) => Ok(Fields { prefix, ..Fields::new(self.element.clone(), entries) }),
+            other => Err(ModelError::at(
+                self.element.clone(),
+                Some(prefix.trim_end_matches('.')),
+                format!("must be a table, found {}", other.kind()),
+            )),
+        }
+    }
+
+    /// A duration such as "24h" or "15min", in seconds.
+    fn duration(&mut self, key: &str) -> Result<Option<f64>, ModelError> {
+        match self.take(key) {
+            None => Ok(None),
+            Some(Value::Str(s)) => tm::parse_duration(&s).map(Some).map_err(|m| self.error(key, m)),
+            Some(other) => Err(self.error(
+                key,
+                format!("must be a duration written as a string such as \"1h\" or \"15min\", found {}", other.kind()),
+            )),
+        }
+    }
+
+    /// A reference to a pattern by id, as its index.
+    fn pattern(&mut self, key: &str, time: &TimeData) -> Result<Option<usize>, ModelError> {
+        let Some(id) = self.string(key)? else { return Ok(None) };
+        match time.pattern_index(&id) {
+            Some(i) => Ok(Some(i)),
+            None => {
+                let hint = suggest(&id, time.patterns.iter().map(|p| p.id.as_str()))
+                    .map(|s| format!(" (did you mean '{s}'?)"))
+                    .unwrap_or_default();
+                Err(self.error(
+                    key,
+                    format!(
+                        "refers to pattern '{}', which is not defined in [[patterns]]{hint}",
+                        crate::error::printable(&id)
+                    ),
+                ))
+            }
+        }
     }
 
     fn from_value(element: Element, value: Value) -> Result<Self, ModelError> {
@@ -199,7 +296,7 @@ impl Fields {
     }
 
     fn error(&self, key: &str, message: impl Into<String>) -> ModelError {
-        ModelError::at(self.element.clone(), Some(key), message)
+        ModelError::at(self.element.clone(), Some(&format!("{}{key}", self.prefix)), message)
     }
 
     fn take(&mut self, key: &str) -> Option<Value> {
@@ -291,6 +388,19 @@ impl Fields {
         ))
     }
 
+    /// Errors on the first key that is not in `known`, before any is read (so that a misspelt
+    /// key is reported as such rather than as the key it should have been).
+    fn reject_unknown(&self, known: &[&str]) -> Result<(), ModelError> {
+        match self.entries.iter().find(|(k, v)| v.is_some() && !known.contains(&k.as_str())) {
+            Some((key, _)) => {
+                let hint =
+                    suggest(key, known.iter().copied()).map(|s| format!(" (did you mean '{s}'?)")).unwrap_or_default();
+                Err(self.error(key, format!("is not a known key{hint}; known keys here: {}", known.join(", "))))
+            }
+            None => Ok(()),
+        }
+    }
+
     /// Errors on any key not consumed; `known` are the keys valid here, for suggestions.
     fn finish(self, known: &[&str]) -> Result<(), ModelError> {
         self.finish_with(known, &[], "")
@@ -313,7 +423,7 @@ impl Fields {
                     suggest(key, known.iter().copied()).map(|s| format!(" (did you mean '{s}'?)")).unwrap_or_default();
                 format!("is not a known key{hint}; known keys here: {}", known.join(", "))
             };
-            return Err(ModelError::at(self.element.clone(), Some(key), message));
+            return Err(self.error(key, message));
         }
         Ok(())
     }
@@ -458,7 +568,13 @@ fn identify(
     Ok((f, keys, kind))
 }
 
-fn read_node(index: usize, value: Value, units: &UnitSystem) -> Result<Node, ModelError> {
+fn read_node(
+    index: usize,
+    value: Value,
+    units: &UnitSystem,
+    node_index: usize,
+    time: &mut TimeData,
+) -> Result<Node, ModelError> {
     let (mut f, keys, kind) = identify(value, Element::NodeEntry(index), Element::Node, NODE_KEYS, "junction")?;
     let len = |v: f64| units.length.to_si(v);
     let coordinates = match (f.number("x")?, f.number("y")?) {
@@ -471,12 +587,36 @@ fn read_node(index: usize, value: Value, units: &UnitSystem) -> Result<Node, Mod
     let (elevation, kind) = match kind.as_str() {
         "junction" => {
             let elevation = len(f.required_number("elevation")?);
-            let demand = units.flow.to_si(f.number("demand")?.unwrap_or(0.0));
+            let single = f.number("demand")?;
+            let pattern = f.pattern("pattern", time)?;
+            let several = f.take("demands");
+            let demands = match (single, several) {
+                (Some(_), Some(_)) => {
+                    return Err(f.error("demands", "give either demand (with an optional pattern) or demands, not both"))
+                }
+                (_, Some(list)) => {
+                    if pattern.is_some() {
+                        return Err(f.error("pattern", "give each entry of demands its own pattern"));
+                    }
+                    read_demands(&mut f, list, units, time)?
+                }
+                (single, None) => {
+                    let base = units.flow.to_si(single.unwrap_or(0.0));
+                    vec![Demand { base, pattern }]
+                }
+            };
+            let demand = demands.iter().map(|d| d.base).sum();
+            if demands.len() != 1 || demands[0].pattern.is_some() {
+                time.demands.insert(node_index, demands);
+            }
             (elevation, NodeKind::Junction { demand })
         }
         "reservoir" => {
             let head = len(f.required_number("head")?);
             let elevation = f.number("elevation")?.map(len).unwrap_or(head);
+            if let Some(p) = f.pattern("head_pattern", time)? {
+                time.head_patterns.insert(node_index, p);
+            }
             (elevation, NodeKind::Reservoir { head })
         }
         _ => {
@@ -488,6 +628,15 @@ fn read_node(index: usize, value: Value, units: &UnitSystem) -> Result<Node, Mod
                 max_level: f.number("max_level")?.map(len),
                 diameter: f.number("diameter")?.map(len),
             };
+            if let Some(points) = pairs(&mut f, "volume_curve", "level, volume")? {
+                if tank.diameter.is_some() {
+                    return Err(f.error("volume_curve", "give either diameter or volume_curve, not both"));
+                }
+                let volume = len(1.0).powi(3);
+                let points = points.into_iter().map(|(l, v)| (len(l), v * volume)).collect();
+                let curve = tm::VolumeCurve::new(points).map_err(|m| f.error("volume_curve", m))?;
+                time.volume_curves.insert(node_index, curve);
+            }
             (elevation, NodeKind::Tank(tank))
         }
     };
@@ -498,7 +647,8 @@ fn read_node(index: usize, value: Value, units: &UnitSystem) -> Result<Node, Mod
     Ok(Node { id, elevation, coordinates, zone, kind })
 }
 
-fn read_link(index: usize, value: Value, model: &Model) -> Result<Link, ModelError> {
+/// Reads a link; also returns the index of its speed or setting pattern, if it has one.
+fn read_link(index: usize, value: Value, model: &Model) -> Result<(Link, Option<usize>), ModelError> {
     let (mut f, keys, kind) = identify(value, Element::LinkEntry(index), Element::Link, LINK_KEYS, "pipe")?;
     let end = |key: &str, f: &mut Fields| -> Result<usize, ModelError> {
         let id = f.string(key)?.ok_or_else(|| f.missing(key))?;
@@ -512,6 +662,11 @@ fn read_link(index: usize, value: Value, model: &Model) -> Result<Link, ModelErr
     let from = end("from", &mut f)?;
     let to = end("to", &mut f)?;
     let status_text = f.string("status")?;
+    let pattern = match kind.as_str() {
+        "pump" => f.pattern("speed_pattern", &model.time)?,
+        "valve" => f.pattern("setting_pattern", &model.time)?,
+        _ => None,
+    };
     let (kind, status) = match kind.as_str() {
         "pipe" => (LinkKind::Pipe(read_pipe(&mut f, model)?), link_status(&f, status_text.as_deref(), false)?.0),
         "pump" => (LinkKind::Pump(read_pump(&mut f, model)?), link_status(&f, status_text.as_deref(), false)?.0),
@@ -523,7 +678,7 @@ fn read_link(index: usize, value: Value, model: &Model) -> Result<Link, ModelErr
     let Some(Element::Link(id)) = f.element.clone() else { unreachable!("identify sets the element") };
     static ALL_LINK_KEYS: OnceLock<Vec<&'static str>> = OnceLock::new();
     f.finish_with(keys, ALL_LINK_KEYS.get_or_init(|| all_keys(LINK_KEYS)), kind.label())?;
-    Ok(Link { id, from, to, status, kind })
+    Ok((Link { id, from, to, status, kind }, pattern))
 }
 
 /// Reads `status`: open | closed, and for valves also automatic (the default for valves).
@@ -554,18 +709,6 @@ fn read_pipe(f: &mut Fields, model: &Model) -> Result<Pipe, ModelError> {
         minor_loss: f.number("minor_loss")?.unwrap_or(0.0),
         check_valve: f.boolean("check_valve")?.unwrap_or(false),
     };
-    if model.options.headloss == HeadLossLaw::HazenWilliams
-        && roughness.is_finite()
-        && roughness > 0.0
-        && roughness < 1.0
-    {
-        return Err(f.error(
-            "roughness",
-            format!(
-                "{roughness} is an absolute roughness, but this model uses Hazen-Williams, whose roughness is the coefficient C (typically 80 to 150)"
-            ),
-        ));
-    }
     Ok(pipe)
 }
 
@@ -670,6 +813,329 @@ fn read_valve(f: &mut Fields, model: &Model, automatic: bool) -> Result<Valve, M
         minor_loss: f.number("minor_loss")?.unwrap_or(0.0),
         automatic,
     })
+}
+
+fn read_simulation(value: Value, units: &UnitSystem) -> Result<SimulationSettings, ModelError> {
+    let el = Element::Table("simulation".into());
+    let mut f = Fields::from_value(el.clone(), value)?;
+    let positive = |f: &Fields, key: &str, v: f64| -> Result<f64, ModelError> {
+        if v > 0.0 {
+            Ok(v)
+        } else {
+            Err(f.error(key, "must be longer than zero"))
+        }
+    };
+    let duration = f.duration("duration")?.ok_or_else(|| f.missing("duration"))?;
+    let duration = positive(&f, "duration", duration)?;
+    let hydraulic_step = match f.duration("hydraulic_step")? {
+        Some(v) => positive(&f, "hydraulic_step", v)?,
+        None => SimulationSettings::HYDRAULIC_STEP.min(duration),
+    };
+    let report_interval = match f.duration("report_interval")? {
+        Some(v) => positive(&f, "report_interval", v)?,
+        None => hydraulic_step,
+    };
+    let start_clock = match f.string("start_clock")? {
+        Some(text) => tm::parse_clock(&text).map_err(|m| f.error("start_clock", m))?,
+        None => 0.0,
+    };
+    let level_tolerance = match f.number("level_tolerance")? {
+        Some(t) => units.length.to_si(super::check_value(&el, "level_tolerance", t, super::Rule::Positive)?),
+        None => SimulationSettings::LEVEL_TOLERANCE,
+    };
+    f.finish(SIMULATION_KEYS)?;
+    Ok(SimulationSettings { duration, hydraulic_step, report_interval, start_clock, level_tolerance })
+}
+
+fn read_energy(value: Value, time: &TimeData) -> Result<Energy, ModelError> {
+    let el = Element::Table("electricity".into());
+    let mut f = Fields::from_value(el.clone(), value)?;
+    let price = match f.number("price_per_kwh")? {
+        Some(p) => super::check_value(&el, "price_per_kwh", p, super::Rule::NonNegative)?,
+        None => 0.0,
+    };
+    let tariff = f.pattern("tariff_pattern", time)?;
+    let currency = f.string("currency")?;
+    f.finish(ENERGY_KEYS)?;
+    Ok(Energy { price, tariff, currency })
+}
+
+/// Reads the `id` of an entry of `patterns` or `controls`.
+fn entry_id(f: &mut Fields, table: &str, index: usize, make: fn(String) -> Element) -> Result<String, ModelError> {
+    let entry = Element::Entry(table.into(), index);
+    let id = match f.take("id") {
+        Some(Value::Str(s)) => s,
+        Some(other) => {
+            return Err(ModelError::at(Some(entry), Some("id"), format!("must be a string, found {}", other.kind())))
+        }
+        None => return Err(ModelError::at(Some(entry), Some("id"), "is missing")),
+    };
+    super::check_id(&id, entry)?;
+    f.element = Some(make(id.clone()));
+    Ok(id)
+}
+
+fn read_pattern(index: usize, value: Value, time: &TimeData) -> Result<TimePattern, ModelError> {
+    let mut f = Fields::from_value(Element::Entry("patterns".into(), index), value)?;
+    let id = entry_id(&mut f, "patterns", index, Element::Pattern)?;
+    if time.pattern_index(&id).is_some() {
+        return Err(f.error("id", "is used by another pattern; pattern ids must be unique"));
+    }
+    let step = f.duration("step")?.ok_or_else(|| f.missing("step"))?;
+    if step <= 0.0 {
+        return Err(f.error("step", "must be longer than zero"));
+    }
+    let Some(list) = f.take("multipliers") else { return Err(f.missing("multipliers")) };
+    let Value::Array(items) = list else {
+        return Err(f.error("multipliers", format!("must be an array of numbers, found {}", list.kind())));
+    };
+    if items.is_empty() {
+        return Err(f.error("multipliers", "must hold at least one number"));
+    }
+    let mut multipliers = Vec::with_capacity(items.len());
+    for (i, item) in items.into_iter().enumerate() {
+        let v = match item {
+            Value::Int(n) => n as f64,
+            Value::Float(x) => x,
+            other => {
+                return Err(f.error("multipliers", format!("entry {} must be a number, found {}", i + 1, other.kind())))
+            }
+        };
+        if !(v.is_finite() && v >= 0.0) {
+            return Err(
+                f.error("multipliers", format!("entry {} must be a finite number not below zero, found {v}", i + 1))
+            );
+        }
+        multipliers.push(v);
+    }
+    f.finish(PATTERN_KEYS)?;
+    Ok(TimePattern { id, step, multipliers })
+}
+
+fn read_demands(f: &mut Fields, list: Value, units: &UnitSystem, time: &TimeData) -> Result<Vec<Demand>, ModelError> {
+    let Value::Array(items) = list else {
+        return Err(
+            f.error("demands", format!("must be an array of tables {{ base, pattern }}, found {}", list.kind()))
+        );
+    };
+    if items.is_empty() {
+        return Err(f.error("demands", "must hold at least one { base, pattern } table"));
+    }
+    let mut out = Vec::with_capacity(items.len());
+    for (i, item) in items.into_iter().enumerate() {
+        let mut d = f.nested(format!("demands[{}].", i + 1), item)?;
+        d.reject_unknown(DEMAND_KEYS)?;
+        let base = d.required_number("base")?;
+        if !base.is_finite() {
+            return Err(d.error("base", format!("must be finite, found {base}")));
+        }
+        let pattern = d.pattern("pattern", time)?;
+        d.finish(DEMAND_KEYS)?;
+        out.push(Demand { base: units.flow.to_si(base), pattern });
+    }
+    Ok(out)
+}
+
+fn read_control(index: usize, value: Value, model: &Model) -> Result<Control, ModelError> {
+    let mut f = Fields::from_value(Element::Entry("controls".into(), index), value)?;
+    let id = entry_id(&mut f, "controls", index, Element::Control)?;
+    if model.time.controls.iter().any(|c| c.id == id) {
+        return Err(f.error("id", "is used by another control; control ids must be unique"));
+    }
+    let link_id = f.string("link")?.ok_or_else(|| f.missing("link"))?;
+    let Some(link) = model.link_index(&link_id) else {
+        let hint = suggest(&link_id, model.links().iter().map(|l| l.id.as_str()))
+            .map(|s| format!(" (did you mean '{s}'?)"))
+            .unwrap_or_default();
+        return Err(f.error(
+            "link",
+            format!("refers to link '{}', which is not defined{hint}", crate::error::printable(&link_id)),
+        ));
+    };
+    let l = &model.links()[link];
+    let status = f.string("status")?;
+    let speed = f.number("speed")?;
+    let setting = f.number("setting")?;
+    let action = match (status, speed, setting) {
+        (Some(s), None, None) => match s.as_str() {
+            "open" => Action::Open,
+            "closed" => Action::Close,
+            "automatic" if l.as_valve().is_some() => Action::Automatic,
+            "automatic" => return Err(f.error("status", "\"automatic\" applies only to valves")),
+            other => {
+                return Err(f.error(
+                    "status",
+                    format!(
+                        "unknown status \"{}\"; expected \"open\", \"closed\" or (valves) \"automatic\"",
+                        crate::error::printable(other)
+                    ),
+                ))
+            }
+        },
+        (None, Some(v), None) => {
+            if l.as_pump().is_none() {
+                return Err(
+                    f.error("speed", format!("only pumps have a speed; link '{link_id}' is a {}", l.kind.label()))
+                );
+            }
+            if !(v.is_finite() && v >= 0.0) {
+                return Err(f.error("speed", format!("must be a finite number not below zero, found {v}")));
+            }
+            Action::Speed(v)
+        }
+        (None, None, Some(v)) => {
+            let Some(valve) = l.as_valve() else {
+                return Err(f.error(
+                    "setting",
+                    format!("only valves have a setting; link '{link_id}' is a {}", l.kind.label()),
+                ));
+            };
+            let units = &model.units;
+            let si = match valve.valve {
+                ValveType::PressureReducing | ValveType::PressureSustaining => {
+                    units.pressure.to_head(v, model.options.water_properties().density)
+                }
+                ValveType::FlowControl => units.flow.to_si(v),
+                ValveType::Throttle => v,
+            };
+            let ok = match valve.valve {
+                ValveType::PressureReducing | ValveType::PressureSustaining => si.is_finite(),
+                _ => si.is_finite() && si >= 0.0,
+            };
+            if !ok {
+                return Err(
+                    f.error("setting", format!("is not a valid setting for a {} valve: {v}", valve.valve.label()))
+                );
+            }
+            Action::Setting(si)
+        }
+        (None, None, None) => {
+            return Err(f.error("status", "is missing: give the action as status, speed (pumps) or setting (valves)"))
+        }
+        _ => return Err(f.error("status", "give one action only: status, speed or setting")),
+    };
+    let Some(when) = f.take("when") else { return Err(f.missing("when")) };
+    let when = read_condition(&f, "when.".into(), when, model)?;
+    let priority = f.integer("priority")?.unwrap_or(0);
+    f.finish(CONTROL_KEYS)?;
+    Ok(Control { id, link, action, when, priority })
+}
+
+fn read_condition(parent: &Fields, prefix: String, value: Value, model: &Model) -> Result<Condition, ModelError> {
+    let mut f = parent.nested(prefix.clone(), value)?;
+    f.reject_unknown(CONDITION_KEYS)?;
+    let units = &model.units;
+    let density = model.options.water_properties().density;
+    let node_ref = |f: &mut Fields, key: &str| -> Result<Option<usize>, ModelError> {
+        let Some(id) = f.string(key)? else { return Ok(None) };
+        match model.node_index(&id) {
+            Some(i) => Ok(Some(i)),
+            None => {
+                let hint = suggest(&id, model.nodes().iter().map(|n| n.id.as_str()))
+                    .map(|s| format!(" (did you mean '{s}'?)"))
+                    .unwrap_or_default();
+                Err(f.error(
+                    key,
+                    format!("refers to node '{}', which is not defined{hint}", crate::error::printable(&id)),
+                ))
+            }
+        }
+    };
+    let tank = node_ref(&mut f, "tank")?;
+    let node = node_ref(&mut f, "node")?;
+    let level_above = f.number("level_above")?;
+    let level_below = f.number("level_below")?;
+    let pressure_above = f.number("pressure_above")?;
+    let pressure_below = f.number("pressure_below")?;
+    let clock = f.string("clock")?;
+    let after = f.duration("after")?;
+    let all = f.take("all");
+    let any = f.take("any");
+    let forms = [tank.is_some(), node.is_some(), clock.is_some(), after.is_some(), all.is_some(), any.is_some()];
+    if forms.iter().filter(|b| **b).count() != 1 {
+        let key = if forms.iter().any(|b| *b) { "tank" } else { "clock" };
+        return Err(f.error(
+            key,
+            "a condition needs exactly one of: tank (with level_above or level_below), node (with pressure_above \
+             or pressure_below), clock, after, all, any",
+        ));
+    }
+    let threshold = |f: &Fields, above: Option<f64>, below: Option<f64>, keys: [&str; 2]| {
+        match (above, below) {
+            (Some(v), None) => Ok((true, v, keys[0])),
+            (None, Some(v)) => Ok((false, v, keys[1])),
+            (None, None) => Err(f.error(keys[0], format!("is missing (or give {})", keys[1]))),
+            (Some(_), Some(_)) => Err(f.error(keys[1], format!("give either {} or {}, not both", keys[0], keys[1]))),
+        }
+        .and_then(|(up, v, key)| {
+            if v.is_finite() {
+                Ok((up, v))
+            } else {
+                Err(f.error(key, format!("must be finite, found {v}")))
+            }
+        })
+    };
+    let condition = if let Some(t) = tank {
+        if !matches!(model.nodes()[t].kind, NodeKind::Tank(_)) {
+            return Err(f.error("tank", format!("node '{}' is not a tank", model.nodes()[t].id)));
+        }
+        let (up, v) = threshold(&f, level_above, level_below, ["level_above", "level_below"])?;
+        if v < 0.0 {
+            return Err(f.error(
+                if up { "level_above" } else { "level_below" },
+                "must not be negative (a level above the tank floor)",
+            ));
+        }
+        let level = units.length.to_si(v);
+        if up {
+            Condition::LevelAbove { tank: t, level }
+        } else {
+            Condition::LevelBelow { tank: t, level }
+        }
+    } else if let Some(n) = node {
+        let (up, v) = threshold(&f, pressure_above, pressure_below, ["pressure_above", "pressure_below"])?;
+        let pressure = units.pressure.to_head(v, density);
+        if up {
+            Condition::PressureAbove { node: n, pressure }
+        } else {
+            Condition::PressureBelow { node: n, pressure }
+        }
+    } else if let Some(text) = clock {
+        Condition::Clock(tm::parse_clock(&text).map_err(|m| f.error("clock", m))?)
+    } else if let Some(t) = after {
+        Condition::After(t)
+    } else {
+        let (key, list) = match (all, any) {
+            (Some(v), _) => ("all", v),
+            (_, Some(v)) => ("any", v),
+            _ => unreachable!("one form is present"),
+        };
+        let Value::Array(items) = list else {
+            return Err(f.error(key, format!("must be an array of conditions, found {}", list.kind())));
+        };
+        if items.is_empty() {
+            return Err(f.error(key, "must hold at least one condition"));
+        }
+        let mut parts = Vec::with_capacity(items.len());
+        for (i, item) in items.into_iter().enumerate() {
+            parts.push(read_condition(&f, format!("{prefix}{key}[{}].", i + 1), item, model)?);
+        }
+        if key == "all" {
+            Condition::All(parts)
+        } else {
+            Condition::Any(parts)
+        }
+    };
+    if (level_above.is_some() || level_below.is_some()) && tank.is_none() {
+        let key = if level_above.is_some() { "level_above" } else { "level_below" };
+        return Err(f.error(key, "needs tank"));
+    }
+    if (pressure_above.is_some() || pressure_below.is_some()) && node.is_none() {
+        let key = if pressure_above.is_some() { "pressure_above" } else { "pressure_below" };
+        return Err(f.error(key, "needs node"));
+    }
+    f.finish(CONDITION_KEYS)?;
+    Ok(condition)
 }
 
 #[cfg(test)]

@@ -8,11 +8,12 @@
 //! results can be written back the same way.
 //!
 //! Adding a new kind of element: add a variant to [`NodeKind`] or [`LinkKind`] (both are
-//! `#[non_exhaustive]`), read it in [`file`], give it a head-loss law in `solve::links`, and
+//! `#[non_exhaustive]`), read it in [`mod@file`], give it a head-loss law in `solve::links`, and
 //! write it in the reports. DEVELOPERS.md walks through the steps.
 
 pub mod doc;
 pub mod file;
+pub mod time;
 pub mod write;
 
 use crate::error::{Element, ModelError};
@@ -385,6 +386,8 @@ pub struct Model {
     pub units: UnitSystem,
     /// Solver options.
     pub options: HydraulicOptions,
+    /// What only a simulation over time uses (patterns, controls, tank shapes, energy).
+    pub time: time::TimeData,
     nodes: Vec<Node>,
     links: Vec<Link>,
     node_index: HashMap<String, usize>,
@@ -533,6 +536,17 @@ impl Model {
                     e.message.push_str(hint);
                     e
                 })?;
+                if self.options.headloss == HeadLossLaw::HazenWilliams && p.roughness < 1.0 {
+                    return Err(ModelError::at(
+                        Some(el),
+                        Some("roughness"),
+                        format!(
+                            "{} is an absolute roughness, but this model uses Hazen-Williams, whose roughness is the \
+                             coefficient C (typically 80 to 150)",
+                            p.roughness
+                        ),
+                    ));
+                }
                 check_value(&el, "minor_loss", p.minor_loss, Rule::NonNegative)?;
             }
             LinkKind::Pump(p) => {

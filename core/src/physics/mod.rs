@@ -2,7 +2,7 @@
 //!
 //! Entry points: [`water::WaterProperties::at_celsius`], [`friction::Friction`] (the friction part
 //! of a pipe's head loss, with coefficients computed once), [`friction::minor_loss_coefficient`].
-//! The network solver combines them per link in [`crate::solve`].
+//! The network solver combines them per link in [`mod@crate::solve`].
 
 pub mod friction;
 pub mod pump;

@@ -61,14 +61,8 @@ impl HeadCurve {
                 return Err(CurveError(format!("point {}: flows and heads must not be negative", i + 1)));
             }
         }
+        increasing_flows(points)?;
         for (i, w) in points.windows(2).enumerate() {
-            if w[1].0 <= w[0].0 {
-                return Err(CurveError(format!(
-                    "flows must increase from point to point (points {} and {})",
-                    i + 1,
-                    i + 2
-                )));
-            }
             if w[1].1 >= w[0].1 {
                 return Err(CurveError(format!(
                     "heads must decrease strictly as flow increases (points {} and {})",
@@ -187,6 +181,14 @@ impl HeadCurve {
     }
 }
 
+/// Checks that the flows of a curve's points increase strictly.
+fn increasing_flows(points: &[(f64, f64)]) -> Result<(), CurveError> {
+    match points.windows(2).position(|w| w[1].0 <= w[0].0) {
+        Some(i) => Err(CurveError(format!("flows must increase from point to point (points {} and {})", i + 1, i + 2))),
+        None => Ok(()),
+    }
+}
+
 /// Value and derivative of the cubic Hermite interpolant on `[x0, x1]` at `x`.
 fn hermite(x0: f64, x1: f64, y0: f64, y1: f64, d0: f64, d1: f64, x: f64) -> (f64, f64) {
     let w = x1 - x0;
@@ -271,15 +273,7 @@ impl Efficiency {
                 return Err(CurveError(format!("point {}: efficiency must be above 0 and at most 100 percent", i + 1)));
             }
         }
-        for (i, w) in points.windows(2).enumerate() {
-            if w[1].0 <= w[0].0 {
-                return Err(CurveError(format!(
-                    "flows must increase from point to point (points {} and {})",
-                    i + 1,
-                    i + 2
-                )));
-            }
-        }
+        increasing_flows(points)?;
         if points.len() == 1 {
             return Ok(Efficiency::Constant(points[0].1));
         }

@@ -97,6 +97,10 @@ impl SolveOptions {
 }
 
 pub use links::INITIAL_VELOCITY;
+
+/// Iterations without convergence in one set of device states after which an active pressure
+/// valve whose flow keeps drifting is taken to be unable to regulate.
+pub const STALLED_ITERATIONS: u32 = 40;
 pub use status::{Ending, LinkState};
 
 /// Results of one pump in a solution (SI).
@@ -277,6 +281,8 @@ struct Pinned {
     node: u32,
     /// +1 for a pressure-reducing valve (it feeds the pinned node), −1 for a sustaining one.
     sign: f64,
+    /// |ΔQ| of its last step.
+    change: f64,
 }
 
 /// A reusable solver: the analysis of one network structure and its workspaces.
@@ -324,6 +330,8 @@ pub struct Solver {
     pinned: Vec<Pinned>,
     /// Σ|Q| over the tree pipes (constant for a set of device states).
     tree_flow_sum: f64,
+    /// Nodes a known head reaches through links on their law (scratch of `apply_states`).
+    anchored: Vec<bool>,
     /// Σ|demand| floored at 1e-3 m³/s: the scale of relative flow changes.
     demand_scale: f64,
     stack: Vec<u32>,
@@ -373,6 +381,7 @@ impl Solver {
             subtree: vec![0.0; n_nodes],
             pinned: Vec::new(),
             tree_flow_sum: 0.0,
+            anchored: vec![false; n_nodes],
             demand_scale: 0.0,
             stack: Vec::with_capacity(n_nodes),
             timings: Timings { analysis: analysis_time, ..Timings::default() },
@@ -513,6 +522,7 @@ impl Solver {
         let mut head_change = f64::INFINITY;
         let mut flow_change = f64::INFINITY;
         let mut states_stale = true;
+        let mut since_change = 0u32;
 
         loop {
             if states_stale {
@@ -539,6 +549,22 @@ impl Solver {
                 return Err(self.not_converged(model, iterations, head_change, flow_change));
             }
             iterations += 1;
+            since_change += 1;
+            if since_change > STALLED_ITERATIONS {
+                // An active pressure valve whose pinned head cannot be held (no sink for the flow
+                // it would pass, or a head it cannot reach) makes its flow drift without a fixed
+                // point. Such a valve cannot regulate: it closes, and the status logic decides
+                // again from the next converged solution.
+                if let Some(k) = self.drifting_pressure_valve() {
+                    self.sync_flows();
+                    tracker.state[k] = LinkState::ValveClosed;
+                    status_changes += 1;
+                    states_stale = true;
+                    since_change = 0;
+                    head_change = f64::INFINITY;
+                    continue;
+                }
+            }
             let assembled = Instant::now();
             let factored = self.factor.factor(&self.pattern);
             let clock = Instant::now();
@@ -608,6 +634,7 @@ impl Solver {
                     Ok(n) => {
                         status_changes += n;
                         states_stale = true;
+                        since_change = 0;
                         head_change = f64::INFINITY;
                     }
                     Err(cycling) => {
@@ -676,21 +703,27 @@ impl Solver {
                     }
                 }
             }
-            // A junction reached only through regulating valves has no head the equations can
-            // fix, and a valve cannot regulate a branch whose demand alone sets its flow: such a
-            // valve is fully open.
+            // A group of junctions joined to every known head only through regulating valves has
+            // no head the equations can fix (its matrix block would be singular), and a valve
+            // cannot regulate a branch whose demand alone sets its flow: such a valve is fully open.
+            topology::mark_reached(
+                &self.pattern.adjacency,
+                &self.pattern.ends,
+                &self.on_law,
+                self.known_head.iter().map(|h| !h.is_nan()),
+                &mut self.anchored,
+                &mut self.stack,
+            );
             let mut forced = false;
             for i in 0..nodes.len() {
-                if !self.connected[i] || !self.known_head[i].is_nan() {
+                if !self.connected[i] || self.anchored[i] {
                     continue;
                 }
                 let adjacent = self.pattern.adjacency.of(i);
-                if adjacent.iter().any(|&k| self.on_law[k as usize]) {
-                    continue;
-                }
                 if let Some(&k) = adjacent.iter().find(|&&k| tracker.state[k as usize] == LinkState::Active) {
                     tracker.hold_open(model, k as usize);
                     forced = true;
+                    break;
                 }
             }
             if !forced {
@@ -733,7 +766,7 @@ impl Solver {
                     _ => None,
                 };
                 if let Some((node, sign)) = pinned {
-                    self.pinned.push(Pinned { core: i as u32, link: c.link, node: node as u32, sign });
+                    self.pinned.push(Pinned { core: i as u32, link: c.link, node: node as u32, sign, change: 0.0 });
                     mode = MODE_PINNED;
                 }
             }
@@ -809,6 +842,11 @@ impl Solver {
         } else {
             self.unknown_head[unknown as usize]
         }
+    }
+
+    /// The active pressure valve whose flow changed most in the last step, if any.
+    fn drifting_pressure_valve(&self) -> Option<usize> {
+        self.pinned.iter().max_by(|a, b| a.change.total_cmp(&b.change)).map(|v| v.link as usize)
     }
 
     /// Linearises every core link at its current flow and the current heads.
@@ -901,7 +939,7 @@ impl Solver {
         if !self.pinned.is_empty() {
             let links = model.links();
             for v in 0..self.pinned.len() {
-                let Pinned { core, link, node, sign } = self.pinned[v];
+                let Pinned { core, link, node, sign, .. } = self.pinned[v];
                 let (core, node) = (core as usize, node as usize);
                 // Net inflow the pinned node needs from this valve: its demand plus its outflow
                 // through every other link, minus its inflow through them.
@@ -922,6 +960,7 @@ impl Solver {
                 let q = sign * need;
                 sum_dq += (q - self.cq[core]).abs();
                 sum_q += q.abs();
+                self.pinned[v].change = (q - self.cq[core]).abs();
                 self.cq[core] = q;
                 self.cc[core] = q;
                 self.scatter(core);

@@ -10,10 +10,10 @@
 //! | | closed: head above shutoff | `Q = 0`, `H_to − H_from ≥ H(0, s)` | `H_to − H_from < H(0, s) − τ` → running |
 //! | pressure-reducing | active | `H_to = z_to + p_set`, `Q ≥ 0`, `H_from ≥ H_to + h_open(Q)` | `Q < 0` → closed; `H_from − h_open(Q) < H_set − τ` → open |
 //! | | open | open-valve loss, `Q ≥ 0`, `H_to ≤ H_set` | `Q < 0` → closed; `H_to > H_set + τ` → active |
-//! | | closed | `Q = 0`, `H_to ≥ H_set` or `H_from ≤ H_to` | `H_to < H_set − τ` and `H_from > H_to + τ` → active or open |
+//! | | closed | `Q = 0`, `H_to ≥ H_set` or `H_from ≤ H_to` | `H_to < H_set − τ` and `H_from > H_to + τ` → open |
 //! | pressure-sustaining | active | `H_from = z_from + p_set`, `Q ≥ 0`, `H_to ≤ H_from − h_open(Q)` | `Q < 0` → closed; `H_to + h_open(Q) > H_set + τ` → open |
 //! | | open | open-valve loss, `Q ≥ 0`, `H_from ≥ H_set` | `Q < 0` → closed; `H_from < H_set − τ` → active |
-//! | | closed | `Q = 0` | `H_from > H_set + τ` and `H_from > H_to + τ` → active |
+//! | | closed | `Q = 0` | `H_from > H_set + τ` and `H_from > H_to + τ` → open |
 //! | flow-control | active | `Q = Q_set`, `H_from − H_to ≥ h_open(Q_set)` | `H_from − H_to < h_open(Q_set) − τ` → open |
 //! | | open | open-valve loss, `0 ≤ Q ≤ Q_set` | `Q > Q_set` → active; `Q < 0` → closed |
 //! | | closed | `Q = 0` | `H_from > H_to + τ` → open |
@@ -186,12 +186,13 @@ impl StatusTracker {
                             LinkState::Open
                         } else {
                             devices.push(k);
-                            let fixed = |i: usize| model.nodes()[i].fixed_head().is_some();
                             match v.valve {
-                                // A pressure valve whose regulated node has a fixed head cannot
-                                // regulate it: it is open or closed.
-                                ValveType::PressureReducing if fixed(l.to) => LinkState::OpenUpstreamLow,
-                                ValveType::PressureSustaining if fixed(l.from) => LinkState::OpenAboveSetting,
+                                // Pressure valves start fully open: they become active only when a
+                                // solution shows the pressure they watch on the wrong side of the
+                                // setting, so no head is ever pinned where it cannot be held.
+                                ValveType::PressureReducing => LinkState::OpenUpstreamLow,
+                                ValveType::PressureSustaining => LinkState::OpenAboveSetting,
+                                // A flow-control valve's active state fixes only its own flow.
                                 _ => LinkState::Active,
                             }
                         }
@@ -325,13 +326,10 @@ impl StatusTracker {
                                 let next = if fixed_to { LinkState::ValveClosed } else { LinkState::Active };
                                 Some((next, hb - set))
                             }
+                            // A closed valve reopens fully first; it becomes active only if the open
+                            // solution then shows the downstream pressure above the setting.
                             LinkState::ValveClosed if hb < set - tau && ha > hb + tau => {
-                                let next = if ha > set + tau && !fixed_to {
-                                    LinkState::Active
-                                } else {
-                                    LinkState::OpenUpstreamLow
-                                };
-                                Some((next, (set - hb).min(ha - hb)))
+                                Some((LinkState::OpenUpstreamLow, (set - hb).min(ha - hb)))
                             }
                             _ => None,
                         }
@@ -352,8 +350,7 @@ impl StatusTracker {
                                 Some((next, set - ha))
                             }
                             LinkState::ValveClosed if ha > set + tau && ha > hb + tau => {
-                                let next = if fixed_from { LinkState::OpenAboveSetting } else { LinkState::Active };
-                                Some((next, (ha - set).min(ha - hb)))
+                                Some((LinkState::OpenAboveSetting, (ha - set).min(ha - hb)))
                             }
                             _ => None,
                         }

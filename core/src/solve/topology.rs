@@ -43,8 +43,7 @@ impl Adjacency {
 }
 
 /// Marks in `connected` every node that a path of links with `open[k]` joins to a fixed head.
-/// `stack` is scratch space.
-/// `ends` holds every link's `(from, to)`.
+/// `ends` holds every link's `(from, to)`; `stack` is scratch space.
 pub fn mark_connected(
     model: &Model,
     adjacency: &Adjacency,
@@ -53,11 +52,25 @@ pub fn mark_connected(
     connected: &mut [bool],
     stack: &mut Vec<u32>,
 ) {
-    connected.iter_mut().for_each(|c| *c = false);
+    let seeds = model.nodes().iter().map(|n| n.fixed_head().is_some());
+    mark_reached(adjacency, ends, open, seeds, connected, stack);
+}
+
+/// Marks in `reached` every node that a path of links with `open[k]` joins to a node for which
+/// `seeds` yields true. `ends` holds every link's `(from, to)`; `stack` is scratch space.
+pub fn mark_reached(
+    adjacency: &Adjacency,
+    ends: &[(u32, u32)],
+    open: &[bool],
+    seeds: impl Iterator<Item = bool>,
+    reached: &mut [bool],
+    stack: &mut Vec<u32>,
+) {
+    reached.iter_mut().for_each(|c| *c = false);
     stack.clear();
-    for (i, node) in model.nodes().iter().enumerate() {
-        if node.fixed_head().is_some() {
-            connected[i] = true;
+    for (i, seed) in seeds.enumerate() {
+        if seed {
+            reached[i] = true;
             stack.push(i as u32);
         }
     }
@@ -68,8 +81,8 @@ pub fn mark_connected(
             }
             let (from, to) = ends[k as usize];
             let other = if from == i { to } else { from } as usize;
-            if !connected[other] {
-                connected[other] = true;
+            if !reached[other] {
+                reached[other] = true;
                 stack.push(other as u32);
             }
         }

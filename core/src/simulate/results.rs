@@ -1,0 +1,254 @@
+//! What a simulation returns: reported time series, summaries, the event log and the volume
+//! balance (SI units, times in seconds from the start).
+
+use crate::model::time::Action;
+use crate::model::Model;
+
+/// The state of the network at one reported time.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Snapshot {
+    /// Elapsed time, s.
+    pub time: f64,
+    /// Head per node, m (NaN where cut off).
+    pub head: Vec<f64>,
+    /// Pressure head per node, m (NaN where cut off).
+    pub pressure: Vec<f64>,
+    /// Demand per node, m³/s.
+    pub demand: Vec<f64>,
+    /// Flow per link, m³/s.
+    pub flow: Vec<f64>,
+    /// Status word per link ("open", "closed", "active").
+    pub status: Vec<&'static str>,
+    /// Level per tank (in the order of [`Run::tanks`]), m.
+    pub level: Vec<f64>,
+    /// Volume per tank, m³.
+    pub volume: Vec<f64>,
+    /// Whether each tank is full, empty or neither ("full", "empty", "").
+    pub tank_state: Vec<&'static str>,
+    /// Per pump (in the order of [`Run::pumps`]): relative speed in use (0 when stopped).
+    pub pump_speed: Vec<f64>,
+    /// Per pump: shaft power, W.
+    pub pump_power: Vec<f64>,
+    /// Energy price in force, per kWh.
+    pub price: f64,
+}
+
+/// Summary of one tank over the run.
+#[derive(Clone, Debug, PartialEq)]
+pub struct TankSummary {
+    /// Node index.
+    pub node: usize,
+    /// Lowest level, m, and when (s).
+    pub min_level: (f64, f64),
+    /// Highest level, m, and when (s).
+    pub max_level: (f64, f64),
+    /// Level at the start and at the end, m.
+    pub start_level: f64,
+    /// Level at the end, m.
+    pub end_level: f64,
+    /// Time spent full, s.
+    pub time_full: f64,
+    /// Time spent empty, s.
+    pub time_empty: f64,
+}
+
+/// Summary of one pump over the run.
+#[derive(Clone, Debug, PartialEq)]
+pub struct PumpSummary {
+    /// Link index.
+    pub link: usize,
+    /// Time running, s.
+    pub time_running: f64,
+    /// Number of starts (stopped → running), the start itself not counted.
+    pub starts: u32,
+    /// Volume pumped, m³.
+    pub volume: f64,
+    /// Shaft energy, J.
+    pub shaft_energy: f64,
+    /// Hydraulic energy ρ g Q H, J.
+    pub hydraulic_energy: f64,
+    /// Cost of the shaft energy at the prices in force, in the model's currency.
+    pub cost: f64,
+    /// Largest shaft power, W.
+    pub peak_power: f64,
+}
+
+impl PumpSummary {
+    /// Hours run.
+    pub fn hours(&self) -> f64 {
+        self.time_running / 3600.0
+    }
+
+    /// Shaft energy, kWh.
+    pub fn kwh(&self) -> f64 {
+        self.shaft_energy / 3.6e6
+    }
+
+    /// Mean efficiency: hydraulic energy over shaft energy (NaN if it never ran).
+    pub fn mean_efficiency(&self) -> f64 {
+        if self.shaft_energy > 0.0 {
+            self.hydraulic_energy / self.shaft_energy
+        } else {
+            f64::NAN
+        }
+    }
+
+    /// Shaft energy per volume pumped, kWh/m³ (NaN if nothing was pumped).
+    pub fn kwh_per_m3(&self) -> f64 {
+        if self.volume > 0.0 {
+            self.kwh() / self.volume
+        } else {
+            f64::NAN
+        }
+    }
+}
+
+/// The volume balance of the whole run, m³: supplied = delivered + change in storage + discrepancy.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Balance {
+    /// Net volume the reservoirs gave the network.
+    pub supplied: f64,
+    /// Volume delivered to junction demands.
+    pub delivered: f64,
+    /// Increase of the volume stored in tanks (end minus start).
+    pub storage_change: f64,
+    /// Demand of junctions cut off from every source, not delivered.
+    pub unsupplied: f64,
+}
+
+impl Balance {
+    /// supplied − delivered − change in storage, m³.
+    pub fn discrepancy(&self) -> f64 {
+        self.supplied - self.delivered - self.storage_change
+    }
+
+    /// The discrepancy relative to the larger of the volumes supplied and delivered.
+    pub fn relative_discrepancy(&self) -> f64 {
+        let scale = self.supplied.abs().max(self.delivered.abs()).max(self.storage_change.abs());
+        if scale > 0.0 {
+            self.discrepancy() / scale
+        } else {
+            0.0
+        }
+    }
+}
+
+/// Something that happened during the run.
+#[derive(Clone, Debug, PartialEq)]
+pub enum EventKind {
+    /// A tank reached its highest level; the links filling it were closed.
+    TankFull {
+        /// Tank node index.
+        tank: usize,
+        /// Links closed.
+        closed: Vec<usize>,
+    },
+    /// A tank reached its lowest level; the links drawing from it were closed.
+    TankEmpty {
+        /// Tank node index.
+        tank: usize,
+        /// Links closed.
+        closed: Vec<usize>,
+    },
+    /// A tank is no longer at a limit (its flows reversed).
+    TankReleased {
+        /// Tank node index.
+        tank: usize,
+    },
+    /// A control acted.
+    Control {
+        /// Index into the model's controls.
+        control: usize,
+        /// Link acted on.
+        link: usize,
+        /// What was done.
+        action: Action,
+        /// Controls on the same link at the same instant that lost on priority.
+        overruled: Vec<usize>,
+    },
+}
+
+/// An event with its time.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Event {
+    /// Elapsed time, s.
+    pub time: f64,
+    /// What happened.
+    pub kind: EventKind,
+}
+
+impl Event {
+    /// A sentence for reports (ids from `model`).
+    pub fn describe(&self, model: &Model) -> String {
+        let node = |i: usize| model.nodes()[i].id.as_str();
+        let link = |k: usize| model.links()[k].id.as_str();
+        let list = |ks: &[usize]| ks.iter().map(|&k| format!("'{}'", link(k))).collect::<Vec<_>>().join(", ");
+        match &self.kind {
+            EventKind::TankFull { tank, closed } => {
+                format!("tank '{}' full; stops taking water (closed: {})", node(*tank), list(closed))
+            }
+            EventKind::TankEmpty { tank, closed } => {
+                format!("tank '{}' empty; stops giving water (closed: {})", node(*tank), list(closed))
+            }
+            EventKind::TankReleased { tank } => format!("tank '{}' leaves its limit", node(*tank)),
+            EventKind::Control { control, link: k, action, overruled } => {
+                let what = match action {
+                    Action::Open => "opens".to_owned(),
+                    Action::Close => "closes".to_owned(),
+                    Action::Automatic => "sets to automatic".to_owned(),
+                    Action::Speed(s) => format!("sets speed {s} on"),
+                    Action::Setting(s) => format!("sets setting {s} (SI) on"),
+                };
+                let mut text = format!("control '{}' {what} '{}'", model.time.controls[*control].id, link(*k));
+                if !overruled.is_empty() {
+                    let ids: Vec<String> =
+                        overruled.iter().map(|&c| format!("'{}'", model.time.controls[c].id)).collect();
+                    text.push_str(&format!(" (overruling {} by priority)", ids.join(", ")));
+                }
+                text
+            }
+        }
+    }
+}
+
+/// Counts of the work done.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub struct Statistics {
+    /// Steps accepted.
+    pub steps: u64,
+    /// Steps rejected by the error estimate and retried shorter.
+    pub rejected: u64,
+    /// Steps taken while locating events.
+    pub locating: u64,
+    /// Hydraulic solves.
+    pub solves: u64,
+}
+
+/// The results of a simulation.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Run {
+    /// Clock time at the start, s after midnight.
+    pub start_clock: f64,
+    /// Length of the run, s.
+    pub duration: f64,
+    /// Tank node indices, in node order.
+    pub tanks: Vec<usize>,
+    /// Pump link indices, in link order.
+    pub pumps: Vec<usize>,
+    /// The state at every reported time.
+    pub series: Vec<Snapshot>,
+    /// Per tank.
+    pub tank_summary: Vec<TankSummary>,
+    /// Per pump.
+    pub pump_summary: Vec<PumpSummary>,
+    /// Lowest pressure head at a connected junction: node, value (m), time (s).
+    pub lowest_pressure: Option<(usize, f64, f64)>,
+    /// Lowest pressure head each node reached (m; NaN if never connected).
+    pub node_min_pressure: Vec<f64>,
+    /// The volume balance.
+    pub balance: Balance,
+    /// Every event, in time order.
+    pub events: Vec<Event>,
+    /// Work done.
+    pub statistics: Statistics,
+}
