@@ -373,3 +373,98 @@ fn symbolic_factor(n: usize, col_ptr: &[usize], row_idx: &[usize]) -> SymbolicSi
     simplicial::factorize_simplicial_symbolic_cholesky(a, etree_ref, &col_counts, stack)
         .expect("symbolic factorization only fails on allocation or index overflow")
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::model::{HydraulicOptions, Link, LinkStatus, Node, Pipe, Pump, PumpDrive};
+    use crate::physics::pump::{Efficiency, HeadCurve};
+    use crate::units::UnitSystem;
+
+    fn pipe(id: &str, from: usize, to: usize, check_valve: bool) -> Link {
+        Link {
+            id: id.into(),
+            from,
+            to,
+            status: LinkStatus::Open,
+            kind: LinkKind::Pipe(Pipe { length: 100.0, diameter: 0.1, roughness: 120.0, minor_loss: 0.0, check_valve }),
+        }
+    }
+
+    /// R0 – J1 – J2 – J3 around a loop J1 – J4 – J5 – J1, with a branch J2 – J6 – J7, a dead end
+    /// J5 – J8 through a check valve and a dead end J4 – J9 through a pump.
+    fn network() -> Model {
+        let mut m = Model::new(UnitSystem::default(), HydraulicOptions::default());
+        m.add_node(Node::reservoir("R0", 50.0)).unwrap();
+        for i in 1..=9 {
+            m.add_node(Node::junction(format!("J{i}"), 0.0, 1e-3)).unwrap();
+        }
+        for (k, (a, b)) in [(0, 1), (1, 2), (2, 3), (1, 4), (4, 5), (5, 1), (2, 6), (6, 7)].into_iter().enumerate() {
+            m.add_link(pipe(&format!("P{k}"), a, b, false)).unwrap();
+        }
+        m.add_link(pipe("CV", 5, 8, true)).unwrap();
+        let points = vec![(0.0, 30.0), (0.01, 20.0)];
+        let curve = HeadCurve::fit(&points).unwrap();
+        let drive = PumpDrive::Curve { points, curve };
+        let pump = Pump { drive, efficiency_points: None, efficiency: Efficiency::Constant(0.75), speed: 1.0 };
+        m.add_link(Link { id: "PU".into(), from: 4, to: 9, status: LinkStatus::Open, kind: LinkKind::Pump(pump) })
+            .unwrap();
+        m
+    }
+
+    #[test]
+    fn dead_end_pipes_are_peeled_and_devices_stay_in_the_core() {
+        let m = network();
+        let p = Pattern::analyse(&m);
+        let tree: Vec<usize> = (0..m.nodes().len()).filter(|&i| p.in_tree[i]).collect();
+        // J3 and the branch J7, J6; then J2, left with its one link to J1. Behind the check valve
+        // and the pump nothing is peeled, and the loop J1 – J4 – J5 stays.
+        assert_eq!(tree, vec![2, 3, 6, 7]);
+        assert_eq!(p.tree_junctions(), 4);
+        // Leaves first: J7 before J6.
+        let order: Vec<u32> = p.trees.iter().map(|t| t.child).collect();
+        let (i7, i6) = (order.iter().position(|&c| c == 7).unwrap(), order.iter().position(|&c| c == 6).unwrap());
+        assert!(i7 < i6);
+        for t in &p.trees {
+            let l = &m.links()[t.link as usize];
+            assert_eq!(t.downstream, l.from == t.parent as usize);
+            assert_eq!(p.core_position[t.link as usize], NONE);
+        }
+        // Every other junction is an unknown of the matrix, every other link a core link.
+        assert_eq!(p.n, 9 - 4);
+        assert_eq!(p.core.len(), m.links().len() - 4);
+        assert!(p.fits(&m));
+    }
+
+    #[test]
+    fn a_network_that_is_all_tree_has_an_empty_matrix() {
+        let mut m = Model::new(UnitSystem::default(), HydraulicOptions::default());
+        m.add_node(Node::reservoir("R", 50.0)).unwrap();
+        for i in 1..=4 {
+            m.add_node(Node::junction(format!("J{i}"), 0.0, 1e-3)).unwrap();
+            m.add_link(pipe(&format!("P{i}"), i - 1, i, false)).unwrap();
+        }
+        let p = Pattern::analyse(&m);
+        assert_eq!((p.n, p.tree_junctions(), p.core.len()), (0, 4, 0));
+        let s = crate::solve::solve(&m).unwrap();
+        // Each pipe carries the demand beyond it: 4, 3, 2, 1 L/s.
+        for (k, q) in s.flow.iter().enumerate() {
+            assert!((q - (4 - k) as f64 * 1e-3).abs() < 1e-15, "{q}");
+        }
+        assert!(s.max_energy_residual < 1e-12 && s.max_mass_residual < 1e-15);
+    }
+
+    #[test]
+    fn changing_a_pipe_into_a_check_valve_redoes_the_analysis() {
+        let mut m = network();
+        let p = Pattern::analyse(&m);
+        let k = m.link_index("P7").unwrap();
+        let mut link = m.links()[k].clone();
+        if let LinkKind::Pipe(pipe) = &mut link.kind {
+            pipe.check_valve = true;
+        }
+        m.replace_link(k, link).unwrap();
+        assert!(!p.fits(&m));
+        assert!(!Pattern::analyse(&m).in_tree[7]);
+    }
+}
