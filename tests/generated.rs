@@ -121,3 +121,54 @@ fn a_batch_of_scenarios_matches_one_by_one_solves_of_edited_models() {
     );
     assert!(bad[0].is_err());
 }
+
+#[test]
+fn generate_command_writes_a_model_that_solve_reads_with_timings() {
+    let dir = std::env::temp_dir().join(format!("ringmain-generated-cli-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).expect("scratch directory");
+    let bin = env!("CARGO_BIN_EXE_ringmain");
+    let model = dir.join("town.json");
+    let run = std::process::Command::new(bin)
+        .args(["generate", "--junctions", "400", "--seed", "9", "--output"])
+        .arg(&model)
+        .output()
+        .expect("runs");
+    assert!(run.status.success(), "{}", String::from_utf8_lossy(&run.stderr));
+    let results = dir.join("results.json");
+    let run = std::process::Command::new(bin)
+        .arg("solve")
+        .arg(&model)
+        .args(["--format", "json", "--timings", "--output"])
+        .arg(&results)
+        .output()
+        .expect("runs");
+    assert!(run.status.success(), "{}", String::from_utf8_lossy(&run.stderr));
+    let stderr = String::from_utf8_lossy(&run.stderr);
+    for phase in
+        ["reading the model", "analysis", "assembly", "factorization", "triangular solves", "status logic", "writing"]
+    {
+        assert!(stderr.contains(phase), "no '{phase}' in:\n{stderr}");
+    }
+    let doc: serde_json::Value = serde_json::from_slice(&std::fs::read(&results).expect("results")).expect("JSON");
+    assert_eq!(doc["converged"], serde_json::Value::Bool(true));
+    assert_eq!(doc["nodes"].as_array().map(Vec::len), Some(402));
+    // The same size and seed give the same file.
+    let again = dir.join("again.json");
+    let run = std::process::Command::new(bin)
+        .args(["generate", "--junctions", "400", "--seed", "9", "--output"])
+        .arg(&again)
+        .output()
+        .expect("runs");
+    assert!(run.status.success());
+    assert_eq!(std::fs::read(&model).unwrap(), std::fs::read(&again).unwrap());
+    // Bad arguments are errors with exit code 2, not panics.
+    for args in [
+        &["generate", "--junctions", "2", "--output", "x.json"][..],
+        &["generate", "--junctions", "100", "--output", "x.txt"],
+    ] {
+        let run = std::process::Command::new(bin).args(args).current_dir(&dir).output().expect("runs");
+        assert_eq!(run.status.code(), Some(2), "{args:?}: {}", String::from_utf8_lossy(&run.stderr));
+        assert!(String::from_utf8_lossy(&run.stderr).starts_with("error:"));
+    }
+    let _ = std::fs::remove_dir_all(&dir);
+}
