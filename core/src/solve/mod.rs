@@ -913,27 +913,55 @@ impl Solver {
     /// convergence both balances hold.
     fn update_links(&mut self, model: &Model, secant: bool) -> (f64, f64) {
         let (mut sum_dq, mut sum_q, mut residual) = (0.0, self.tree_flow_sum, 0.0f64);
-        for i in 0..self.pattern.core.len() {
-            match self.mode[i] & MODE_MASK {
+        // One pass with the fields borrowed apart, so that the loop runs over plain slices.
+        let pattern = &*self.pattern;
+        let (laws, delta, unknown_head, head) = (&self.laws, &self.delta, &self.unknown_head, &self.head);
+        let (values, rhs) = (&mut self.factor.values, &mut self.rhs);
+        let states = self.hot.iter().zip(&self.mode).zip(self.cq.iter_mut().zip(&mut self.cp).zip(&mut self.cc));
+        for (c, ((hot, &mode), ((cq, cp), cc))) in pattern.core.iter().zip(states) {
+            match mode & MODE_MASK {
                 MODE_LAW => {
-                    let c = &self.pattern.core[i];
-                    let delta = |u: u32| if u == NONE { 0.0 } else { self.delta[u as usize] };
-                    let q = self.cc[i] + self.cp[i] * (delta(c.slots.from) - delta(c.slots.to));
-                    let dh = self.end_head(c.slots.from, c.from) - self.end_head(c.slots.to, c.to);
-                    let (p, cc, r) = if secant { self.secant(i, q, dh) } else { self.coefficients(i, q, dh) };
-                    residual = residual.max(r);
-                    sum_dq += (q - self.cq[i]).abs();
+                    let s = c.slots;
+                    let (d_from, h_from) = if s.from == NONE {
+                        (0.0, head[c.from as usize])
+                    } else {
+                        (delta[s.from as usize], unknown_head[s.from as usize])
+                    };
+                    let (d_to, h_to) = if s.to == NONE {
+                        (0.0, head[c.to as usize])
+                    } else {
+                        (delta[s.to as usize], unknown_head[s.to as usize])
+                    };
+                    let q = *cc + *cp * (d_from - d_to);
+                    let dh = h_from - h_to;
+                    let (y, g) = if hot.general {
+                        laws[c.link as usize].evaluate_exact(q)
+                    } else {
+                        links::hazen_williams(hot.r, hot.minor, q)
+                    };
+                    let g = if secant && !hot.general && q != 0.0 { y / q } else { g };
+                    let p = 1.0 / g.max(hot.min_slope);
+                    residual = residual.max((y - dh).abs());
+                    sum_dq += (q - *cq).abs();
                     sum_q += q.abs();
-                    self.cq[i] = q;
-                    self.cp[i] = p;
-                    self.cc[i] = cc;
-                    self.scatter(i);
+                    *cq = q;
+                    *cp = p;
+                    *cc = q + p * (dh - y);
                 }
-                MODE_FIXED_FLOW => {
-                    sum_q += self.cq[i].abs();
-                    self.scatter(i);
-                }
-                _ => {}
+                MODE_FIXED_FLOW => sum_q += cq.abs(),
+                _ => continue,
+            }
+            let (p, c_value) = (*cp, *cc);
+            if mode & FREE_FROM != 0 {
+                values[c.diag_from as usize] += p;
+                rhs[c.slots.from as usize] -= c_value;
+            }
+            if mode & FREE_TO != 0 {
+                values[c.diag_to as usize] += p;
+                rhs[c.slots.to as usize] += c_value;
+            }
+            if mode & (FREE_FROM | FREE_TO) == FREE_FROM | FREE_TO {
+                values[c.slots.off as usize] -= p;
             }
         }
         if !self.pinned.is_empty() {
