@@ -706,6 +706,10 @@ impl Solver {
             // A group of junctions joined to every known head only through regulating valves has
             // no head the equations can fix (its matrix block would be singular), and a valve
             // cannot regulate a branch whose demand alone sets its flow: such a valve is fully open.
+            // (Nothing to look for when no valve is regulating.)
+            if !tracker.state.contains(&LinkState::Active) {
+                break;
+            }
             topology::mark_reached(
                 &self.pattern.adjacency,
                 &self.pattern.ends,
