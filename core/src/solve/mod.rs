@@ -355,10 +355,8 @@ impl Solver {
         let n_core = pattern.core.len();
         Solver {
             factor: Factor::new(&pattern),
-            laws: {
-                let water = model.options.water_properties();
-                model.links().iter().map(|l| LinkLaw::with_water(model, l, &water)).collect()
-            },
+            // Filled by every solve (pipe data may change between solves).
+            laws: Vec::with_capacity(n_links),
             hot: vec![HotLaw { r: 0.0, minor: 0.0, min_slope: 0.0, general: true }; n_core],
             flow: vec![0.0; n_links],
             head: vec![f64::NAN; n_nodes],
@@ -426,10 +424,14 @@ impl Solver {
         let start = Instant::now();
         self.timings = Timings { analysis: self.analysis_time, ..Timings::default() };
         self.analysis_time = Duration::ZERO;
-        // Pipe data may have changed since the analysis; laws are cheap to recompute.
+        // Pipe data may have changed since the last solve; laws are cheap to recompute.
         let water = model.options.water_properties();
-        for (law, link) in self.laws.iter_mut().zip(model.links()) {
-            *law = LinkLaw::with_water(model, link, &water);
+        if self.laws.len() == model.links().len() {
+            for (law, link) in self.laws.iter_mut().zip(model.links()) {
+                *law = LinkLaw::with_water(model, link, &water);
+            }
+        } else {
+            self.laws = model.links().iter().map(|l| LinkLaw::with_water(model, l, &water)).collect();
         }
         for (hot, c) in self.hot.iter_mut().zip(&self.pattern.core) {
             let law = &self.laws[c.link as usize];
