@@ -66,7 +66,7 @@ pub fn read_bytes(bytes: &[u8], format: Format, source: &str) -> Result<Model, M
     }
 }
 
-const TOP_KEYS: &[&str] = &["title", "units", "hydraulics", "nodes", "links"];
+const TOP_KEYS: &[&str] = &["title", "units", "hydraulics", "criteria", "nodes", "links"];
 const UNIT_KEYS: &[&str] = &["length", "diameter", "flow", "pressure", "roughness"];
 const HYDRAULIC_KEYS: &[&str] =
     &["headloss", "kinematic_viscosity", "water_temperature", "max_iterations", "head_tolerance", "flow_tolerance"];
@@ -112,12 +112,15 @@ fn read_inner(text: &str, format: Format) -> Result<Model, ModelError> {
         Some(v) => read_hydraulics(v, &units)?,
         None => HydraulicOptions::default(),
     };
+    // Checked by `analysis::Criteria::from_value`, which the commands that use it call.
+    let criteria = top.take("criteria");
     let nodes = top.array("nodes")?;
     let links = top.array("links")?;
     top.finish(TOP_KEYS)?;
 
     let mut model = Model::new(units, options);
     model.title = title;
+    model.criteria = criteria;
     for (i, v) in nodes.into_iter().enumerate() {
         let node = read_node(i, v, &units)?;
         model.add_node(node)?;

@@ -385,6 +385,9 @@ pub struct Model {
     pub units: UnitSystem,
     /// Solver options.
     pub options: HydraulicOptions,
+    /// The `[criteria]` table as written, unchecked; [`crate::analysis::Criteria::from_value`]
+    /// reads it (only the commands that check criteria need it to be valid).
+    pub criteria: Option<doc::Value>,
     nodes: Vec<Node>,
     links: Vec<Link>,
     node_index: HashMap<String, usize>,
