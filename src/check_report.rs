@@ -154,6 +154,9 @@ fn worst_first(a: &(usize, &Outcome), b: &(usize, &Outcome)) -> std::cmp::Orderi
 }
 
 fn outcome_section(out: &mut String, run: &Run<'_>, o: &Outcome) {
+    if let (Some(e), false) = (&o.error, run.criteria.must_converge) {
+        let _ = writeln!(out, "  note: no usable answer (must_converge = false): {e}");
+    }
     for c in o.checks.iter().filter(|c| !c.passed()) {
         let _ = writeln!(out, "  FAIL {}: {} of {} {}", criterion_text(run, c), c.failures, c.checked, what_checked(c));
         for f in &c.worst {

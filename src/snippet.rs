@@ -290,13 +290,12 @@ fn offset_of(text: &str, line: usize, col: usize) -> Option<usize> {
     Some(start + within)
 }
 
-/// A few lines around `span`, each cut to [`MAX_LINE`] characters around the span and with
-/// control characters made visible; returns the excerpt, the span in it, and the number of the
-/// excerpt's first line (0-based).
-fn excerpt(text: &str, span: &Range<usize>) -> (String, Range<usize>, usize) {
+/// The line of `span`, cut to [`MAX_LINE`] characters around the span and with control
+/// characters made visible, after as many empty lines as precede it in `text`; returns the
+/// excerpt and the span in it.
+fn excerpt(text: &str, span: &Range<usize>) -> (String, Range<usize>) {
     let line_start = text[..span.start].rfind('\n').map_or(0, |i| i + 1);
     let first_line = text[..line_start].matches('\n').count();
-    let prev_start = if line_start > 0 { text[..line_start - 1].rfind('\n').map_or(0, |i| i + 1) } else { line_start };
     let line_end = text[span.start..].find('\n').map_or(text.len(), |e| span.start + e);
     let mut out = String::new();
     let mut out_span = 0..0;
@@ -331,17 +330,15 @@ fn excerpt(text: &str, span: &Range<usize>) -> (String, Range<usize>, usize) {
         }
         out.push('\n');
     };
-    let mut shown_first = first_line;
-    if prev_start < line_start {
-        push_line(&mut out, prev_start, line_start - 1, None);
-        shown_first -= 1;
-    }
+    // Blank lines before the excerpt make the snippet's line numbers those of the file (the
+    // renderer's own line offset is not applied to its gutter).
+    out.push_str(&"\n".repeat(first_line));
     let end = span.end.min(line_end).max(span.start);
     push_line(&mut out, line_start, line_end, Some(&(span.start..end)));
     if out_span.end < out_span.start {
         out_span.end = out_span.start;
     }
-    (out, out_span, shown_first)
+    (out, out_span)
 }
 
 /// The message for `error`: the plain line, then a snippet when `text` shows where.
@@ -349,7 +346,7 @@ pub fn render(error: &ModelError, text: Option<&str>, format: Format, color: boo
     let mut out = format!("error: {error}\n");
     let Some(text) = text else { return out };
     let Some(span) = locate(error, text, format) else { return out };
-    let (snippet, mut at, first_line) = excerpt(text, &span);
+    let (snippet, mut at) = excerpt(text, &span);
     if at.end <= at.start {
         at.end = (at.start + 1).min(snippet.len());
     }
@@ -365,7 +362,7 @@ pub fn render(error: &ModelError, text: Option<&str>, format: Format, color: boo
         .with_message(&error.message)
         .with_label(Label::new((name.as_str(), at)).with_message(label))
         .finish();
-    if report.write((name.as_str(), Source::from(snippet).with_display_line_offset(first_line)), &mut buf).is_ok() {
+    if report.write((name.as_str(), Source::from(snippet)), &mut buf).is_ok() {
         out.push_str(&String::from_utf8_lossy(&buf));
     }
     out
