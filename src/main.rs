@@ -45,8 +45,9 @@ enum Command {
     /// Criteria come from the model's [criteria] table and from --criteria FILE (whose keys
     /// override the model's). Reports worst offenders first; see docs/check.md.
     #[command(after_help = "Exit codes: 0 all criteria met; 1 a criterion failed; 2 invalid model, criteria file or \
-                            arguments; 3 the solver did not converge (or a pump cannot lift the water); 4 a report \
-                            could not be written.")]
+                            arguments; 3 a scenario did not solve: the solver did not converge, or the demand cannot \
+                            be delivered (the report names the junctions and pumps); 4 a report could not be \
+                            written.")]
     Check {
         /// The model file (.toml or .json).
         model: PathBuf,

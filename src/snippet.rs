@@ -202,7 +202,7 @@ fn parse_json(text: &str) -> Option<Spanned> {
 
 /// Walks a key path such as `groups[2].min_pressure` or `source_capacity.Works` inside `table`;
 /// returns the span of the last key found.
-fn walk<'a>(mut table: &'a Spanned, path: &str) -> Option<Range<usize>> {
+fn walk(mut table: &Spanned, path: &str) -> Option<Range<usize>> {
     let mut rest = path;
     let mut found = None;
     while !rest.is_empty() {

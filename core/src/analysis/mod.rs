@@ -202,6 +202,21 @@ pub fn demand_delivered(model: &Model, solution: &Solution, keep: usize) -> Resu
     let nodes = model.nodes();
     let links = model.links();
     let shut: Vec<usize> = (0..links.len()).filter(|&k| solution.link_state[k] == LinkState::PumpShutoff).collect();
+    // Junctions that the shut-off pumps would reach if they could run.
+    let behind_pumps: Vec<bool> = if shut.is_empty() {
+        Vec::new()
+    } else {
+        let adjacency = crate::solve::topology::Adjacency::new(model);
+        let open: Vec<bool> = (0..links.len())
+            .map(|k| {
+                let state = solution.link_state[k];
+                state.carries_flow() || matches!(state, LinkState::PumpShutoff | LinkState::Disconnected)
+            })
+            .collect();
+        let mut reach = vec![false; nodes.len()];
+        crate::solve::topology::mark_connected(model, &adjacency, &open, &mut reach, &mut Vec::new());
+        reach
+    };
     let mut bad: Vec<(usize, f64)> = nodes
         .iter()
         .enumerate()
@@ -211,8 +226,9 @@ pub fn demand_delivered(model: &Model, solution: &Solution, keep: usize) -> Resu
             if solution.connected[i] {
                 (p < 0.0).then_some((i, p))
             } else {
-                // Cut off: a failure of supply (all_demands_supplied) unless a pump had to shut off.
-                (!shut.is_empty()).then_some((i, f64::NAN))
+                // Cut off: a failure of supply (all_demands_supplied), unless a pump that had to
+                // shut off would reach it.
+                behind_pumps.get(i).copied().unwrap_or(false).then_some((i, f64::NAN))
             }
         })
         .collect();
