@@ -137,9 +137,15 @@ fn main() -> ExitCode {
 }
 
 /// Reads and checks a model file; errors are printed with a snippet of the file.
+///
+/// The message is one line (scripts and the error tests read it); on a terminal a snippet of the
+/// offending line follows it. `check` always adds the snippet.
 fn load(path: &Path) -> Result<Model, ()> {
+    use std::io::IsTerminal;
     let (source, bytes) = check::read_source(path).map_err(|e| check::report_error(&e, None))?;
-    ringmain_core::read_bytes(&bytes, source.format, &source.name).map_err(|e| check::report_error(&e, Some(&source)))
+    let snippet = std::io::stderr().is_terminal();
+    ringmain_core::read_bytes(&bytes, source.format, &source.name)
+        .map_err(|e| check::report_error(&e, Some(&source).filter(|_| snippet)))
 }
 
 pub(crate) fn write_out(text: &str, output: Option<&Path>) -> ExitCode {
