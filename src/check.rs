@@ -184,11 +184,12 @@ pub fn run(args: Args) -> ExitCode {
     if let Some(s) = &solution {
         warnings.extend(diagnose_solution(&what_if, s));
     }
-
     base.checks.extend(warning_checks(&criteria, &warnings, options.keep));
 
     let sweep = if args.each_pipe_closed {
-        let reference = if base.converged() { base.connected.clone() } else { supplied_by_topology(&what_if) };
+        // Supply lost is measured against the solved scenario, or the open links when it has no solution.
+        let reference =
+            if base.connected.is_empty() { supplied_by_topology(&what_if) } else { base.connected.clone() };
         let pipes = sweep_candidates(&what_if);
         let bar = progress_bar(pipes.len());
         let tick = |done: usize, _total: usize| {
