@@ -305,6 +305,10 @@ fn semantic_errors_in_json_point_at_the_key() {
     names(&f, "missing.json", "link 'P2'", "to");
     assert!(f.first_line.contains("which is not defined"), "{}", f.first_line);
     snippet_line(&f, 9);
+    let f = bad("selfloop.toml", &variant(BASE, "to = \"J2\"", "to = \"J1\""));
+    names(&f, "selfloop.toml", "link 'P2'", "to");
+    assert!(f.first_line.contains("links node 'J1' to itself"), "{}", f.first_line);
+    snippet_line(&f, 29);
     let f = bad("kind.toml", &variant(BASE, "kind = \"reservoir\"", "kind = \"reservior\""));
     names(&f, "kind.toml", "node 'R1'", "kind");
     assert!(f.first_line.contains("did you mean \"reservoir\""), "{}", f.first_line);
