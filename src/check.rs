@@ -188,8 +188,7 @@ pub fn run(args: Args) -> ExitCode {
 
     let sweep = if args.each_pipe_closed {
         // Supply lost is measured against the solved scenario, or the open links when it has no solution.
-        let reference =
-            if base.connected.is_empty() { supplied_by_topology(&what_if) } else { base.connected.clone() };
+        let reference = if base.connected.is_empty() { supplied_by_topology(&what_if) } else { base.connected.clone() };
         let pipes = sweep_candidates(&what_if);
         let bar = progress_bar(pipes.len());
         let tick = |done: usize, _total: usize| {
