@@ -15,6 +15,7 @@ use ringmain_core::physics::{friction_factor, WaterProperties};
 use ringmain_core::{Model, SolveError};
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
+use std::time::{Duration, Instant};
 
 /// Flows and pressures in looped water-distribution networks.
 ///
@@ -41,6 +42,25 @@ enum Command {
         /// Write the results to this file instead of standard output.
         #[arg(long, short)]
         output: Option<PathBuf>,
+        /// Print to standard error where the time went: reading, analysis, assembly,
+        /// factorization, triangular solves, status logic, writing.
+        #[arg(long)]
+        timings: bool,
+    },
+    /// Write a synthetic street network of any size (an invented town) as a model file.
+    ///
+    /// The same junction count and seed always give the same network. See
+    /// `ringmain_core::generate` for what the networks look like.
+    Generate {
+        /// Number of junctions (at least 4).
+        #[arg(long)]
+        junctions: usize,
+        /// Seed of the random numbers.
+        #[arg(long, default_value_t = 1)]
+        seed: u64,
+        /// The model file to write (.json or .toml).
+        #[arg(long, short)]
+        output: PathBuf,
     },
     /// Simulate a model over time (its [simulation] table): tank levels, pump energy, pressures.
     ///
@@ -135,7 +155,8 @@ const EXIT_WRITE: u8 = 4;
 fn main() -> ExitCode {
     let cli = Cli::parse();
     match cli.command {
-        Command::Solve { model, format, output } => solve(&model, format, output.as_deref()),
+        Command::Solve { model, format, output, timings } => solve(&model, format, output.as_deref(), timings),
+        Command::Generate { junctions, seed, output } => generate(junctions, seed, &output),
         Command::Simulate { model, format, output, plot } => {
             simulate(&model, format, output.as_deref(), plot.as_deref())
         }
@@ -195,9 +216,13 @@ pub(crate) fn write_out(text: &str, output: Option<&Path>) -> ExitCode {
     }
 }
 
-fn solve(path: &Path, format: OutputFormat, output: Option<&Path>) -> ExitCode {
+fn solve(path: &Path, format: OutputFormat, output: Option<&Path>, timings: bool) -> ExitCode {
+    let clock = Instant::now();
     let Ok(model) = load(path) else { return ExitCode::from(EXIT_INVALID) };
-    let solution = match ringmain_core::solve(&model) {
+    let reading = clock.elapsed();
+    let mut solver = None;
+    let solved = ringmain_core::Solver::new(&model).and_then(|s| solver.insert(s).solve(&model));
+    let solution = match solved {
         Ok(s) => s,
         Err(SolveError::Model(e)) => {
             eprintln!("error: {}", e.in_file(path.display().to_string()));
@@ -208,10 +233,11 @@ fn solve(path: &Path, format: OutputFormat, output: Option<&Path>) -> ExitCode {
             return ExitCode::from(EXIT_NOT_CONVERGED);
         }
     };
+    let clock = Instant::now();
     let report = report::Report::new(&model, &solution);
     let text = match format {
         OutputFormat::Table => report.to_table(),
-        OutputFormat::Json => serde_json::to_string_pretty(&report.to_json()).unwrap_or_default() + "\n",
+        OutputFormat::Json => report.to_json_text(),
         OutputFormat::Csv => report.to_csv(),
     };
     if format != OutputFormat::Json {
@@ -221,7 +247,69 @@ fn solve(path: &Path, format: OutputFormat, output: Option<&Path>) -> ExitCode {
             }
         }
     }
-    write_out(&text, output)
+    let code = write_out(&text, output);
+    let writing = clock.elapsed();
+    if let (true, Some(solver)) = (timings, &solver) {
+        print_timings(&model, solver, reading, writing);
+    }
+    // The process ends here: the operating system takes the memory back at once, while freeing
+    // a large network's millions of small allocations one by one takes a noticeable time.
+    std::mem::forget((text, solution, model, solver));
+    code
+}
+
+/// The `--timings` report, on standard error.
+fn print_timings(model: &Model, solver: &ringmain_core::Solver, reading: Duration, writing: Duration) {
+    let t = solver.timings();
+    let pattern = solver.pattern();
+    let ms = |d: Duration| d.as_secs_f64() * 1e3;
+    let iterating = t.iterating();
+    let share = |d: Duration| if iterating.is_zero() { 0.0 } else { 100.0 * d.as_secs_f64() / iterating.as_secs_f64() };
+    let solver_total = t.analysis + t.solve_total();
+    eprintln!(
+        "timings: {} nodes, {} links; {} junctions in dead-end trees, {} unknowns in the matrix \
+         ({} stored entries, {} in the factor); {} iterations",
+        model.nodes().len(),
+        model.links().len(),
+        pattern.tree_junctions(),
+        pattern.n,
+        pattern.nnz(),
+        pattern.factor_nnz(),
+        t.iterations
+    );
+    eprintln!("  reading the model       {:9.3} ms", ms(reading));
+    eprintln!(
+        "  analysis                {:9.3} ms  (forest-core split, ordering, symbolic factorization)",
+        ms(t.analysis)
+    );
+    eprintln!("  preparation             {:9.3} ms  (laws, demands, starting values)", ms(t.preparation));
+    eprintln!("  assembly                {:9.3} ms  ({:.0}% of the iterations)", ms(t.assembly), share(t.assembly));
+    eprintln!(
+        "  factorization           {:9.3} ms  ({:.0}% of the iterations)",
+        ms(t.factorization),
+        share(t.factorization)
+    );
+    eprintln!("  triangular solves       {:9.3} ms  ({:.0}% of the iterations)", ms(t.solves), share(t.solves));
+    eprintln!("  status logic            {:9.3} ms", ms(t.status));
+    eprintln!("  dead-end trees          {:9.3} ms", ms(t.forest));
+    eprintln!("  results                 {:9.3} ms", ms(t.results));
+    eprintln!("  solver in all           {:9.3} ms", ms(solver_total));
+    eprintln!("  writing the results     {:9.3} ms", ms(writing));
+}
+
+fn generate(junctions: usize, seed: u64, output: &Path) -> ExitCode {
+    let Some(format) = ringmain_core::Format::from_path(output) else {
+        eprintln!("error: --output {}: the file name must end in .json or .toml", output.display());
+        return ExitCode::from(EXIT_INVALID);
+    };
+    let model = match ringmain_core::generate::generate(&ringmain_core::generate::NetworkSpec::new(junctions, seed)) {
+        Ok(m) => m,
+        Err(e) => {
+            eprintln!("error: {e}");
+            return ExitCode::from(EXIT_INVALID);
+        }
+    };
+    write_out(&ringmain_core::model::write::to_string(&model, format), Some(output))
 }
 
 /// A progress bar on standard error, drawn only when it is a terminal.

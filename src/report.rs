@@ -4,22 +4,73 @@ use ringmain_core::model::{Valve, ValveType};
 use ringmain_core::solve::Warning;
 use ringmain_core::units::HORSEPOWER;
 use ringmain_core::{Model, NodeKind, Solution};
+use serde::Serialize;
 use serde_json::{json, Value};
 use std::fmt::Write as _;
+
+/// The JSON report's top level (fields in alphabetical order, as the keys are written).
+#[derive(Serialize)]
+struct JsonReport<'a> {
+    converged: bool,
+    iterations: u32,
+    links: Vec<JsonLink<'a>>,
+    nodes: Vec<JsonNode<'a>>,
+    status_changes: u32,
+    status_ending: &'static str,
+    summary: Value,
+    title: Option<&'a str>,
+    units: Value,
+    warnings: Vec<String>,
+}
+
+/// One node of the JSON report; numbers that are not finite are written as null.
+#[derive(Serialize)]
+struct JsonNode<'a> {
+    connected: bool,
+    demand: f64,
+    elevation: f64,
+    head: f64,
+    id: &'a str,
+    kind: &'static str,
+    pressure: f64,
+}
+
+/// One link of the JSON report; pump and valve fields only for pumps and valves.
+#[derive(Serialize)]
+struct JsonLink<'a> {
+    #[serde(skip_serializing_if = "Option::is_none")]
+    beyond_curve: Option<bool>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    efficiency: Option<f64>,
+    flow: f64,
+    from: &'a str,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    head_gain: Option<f64>,
+    headloss: f64,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    hydraulic_power: Option<f64>,
+    id: &'a str,
+    kind: &'static str,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    reason: Option<&'static str>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    setting: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    shaft_power: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    speed: Option<f64>,
+    status: &'static str,
+    to: &'a str,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    valve: Option<&'static str>,
+    velocity: f64,
+}
 
 /// A solution converted into the model's units, ready for any writer.
 pub struct Report<'a> {
     model: &'a Model,
     solution: &'a Solution,
     density: f64,
-}
-
-fn finite_or_null(v: f64) -> Value {
-    if v.is_finite() {
-        json!(v)
-    } else {
-        Value::Null
-    }
 }
 
 impl<'a> Report<'a> {
@@ -82,57 +133,56 @@ impl<'a> Report<'a> {
         self.flow(self.model.nodes().iter().map(|n| n.demand()).sum())
     }
 
-    pub fn to_json(&self) -> Value {
+    /// The JSON report: a tree of plain structs serialized directly (no intermediate value tree
+    /// of a million small maps), keys in alphabetical order.
+    fn json_report(&self) -> JsonReport<'_> {
         let m = self.model;
         let s = self.solution;
         let u = &m.units;
-        let nodes: Vec<Value> = m
+        let nodes: Vec<JsonNode<'_>> = m
             .nodes()
             .iter()
             .enumerate()
-            .map(|(i, n)| {
-                json!({
-                    "id": n.id,
-                    "kind": n.kind.label(),
-                    "elevation": self.len(n.elevation),
-                    "head": finite_or_null(self.len(s.head[i])),
-                    "pressure": finite_or_null(self.pressure(s.pressure[i])),
-                    "demand": self.flow(s.demand[i]),
-                    "connected": s.connected[i],
-                })
+            .map(|(i, n)| JsonNode {
+                connected: s.connected[i],
+                demand: self.flow(s.demand[i]),
+                elevation: self.len(n.elevation),
+                head: self.len(s.head[i]),
+                id: &n.id,
+                kind: n.kind.label(),
+                pressure: self.pressure(s.pressure[i]),
             })
             .collect();
-        let links: Vec<Value> = m
+        let mut pump_of_link = vec![None; m.links().len()];
+        for p in &s.pumps {
+            pump_of_link[p.link] = Some(p);
+        }
+        let links: Vec<JsonLink<'_>> = m
             .links()
             .iter()
             .enumerate()
             .map(|(k, l)| {
-                let mut v = json!({
-                    "id": l.id,
-                    "kind": l.kind.label(),
-                    "from": m.nodes()[l.from].id,
-                    "to": m.nodes()[l.to].id,
-                    "flow": self.flow(s.flow[k]),
-                    "velocity": self.len(s.velocity[k]),
-                    "headloss": finite_or_null(self.len(s.headloss[k])),
-                    "status": s.link_state[k].status_label(),
-                });
-                if let Some(reason) = s.link_state[k].reason() {
-                    v["reason"] = json!(reason);
+                let pump = pump_of_link[k];
+                let valve = l.as_valve();
+                JsonLink {
+                    beyond_curve: pump.map(|p| p.beyond_curve),
+                    efficiency: pump.map(|p| p.efficiency * 100.0),
+                    flow: self.flow(s.flow[k]),
+                    from: &m.nodes()[l.from].id,
+                    head_gain: pump.map(|p| self.len(p.head)),
+                    headloss: self.len(s.headloss[k]),
+                    hydraulic_power: pump.map(|p| self.power(p.hydraulic_power)),
+                    id: &l.id,
+                    kind: l.kind.label(),
+                    reason: s.link_state[k].reason(),
+                    setting: valve.map(|v| self.setting(v)),
+                    shaft_power: pump.map(|p| self.power(p.shaft_power)),
+                    speed: pump.map(|p| p.speed),
+                    status: s.link_state[k].status_label(),
+                    to: &m.nodes()[l.to].id,
+                    valve: valve.map(|v| v.valve.label()),
+                    velocity: self.len(s.velocity[k]),
                 }
-                if let Some(p) = s.pumps.iter().find(|p| p.link == k) {
-                    v["head_gain"] = finite_or_null(self.len(p.head));
-                    v["speed"] = json!(p.speed);
-                    v["efficiency"] = json!(p.efficiency * 100.0);
-                    v["hydraulic_power"] = finite_or_null(self.power(p.hydraulic_power));
-                    v["shaft_power"] = finite_or_null(self.power(p.shaft_power));
-                    v["beyond_curve"] = json!(p.beyond_curve);
-                }
-                if let Some(valve) = l.as_valve() {
-                    v["valve"] = json!(valve.valve.label());
-                    v["setting"] = json!(self.setting(valve));
-                }
-                v
             })
             .collect();
         let sources: Vec<Value> = self
@@ -140,26 +190,36 @@ impl<'a> Report<'a> {
             .into_iter()
             .map(|(i, q)| json!({"id": m.nodes()[i].id, "kind": m.nodes()[i].kind.label(), "supply": q}))
             .collect();
-        json!({
-            "title": m.title,
-            "converged": s.converged,
-            "iterations": s.iterations,
-            "status_changes": s.status_changes,
-            "status_ending": s.ending.describe(),
-            "units": {
-                "length": u.length.label(), "flow": u.flow.label(), "pressure": u.pressure.label(),
-                "velocity": u.velocity_label(), "diameter": u.diameter.label(), "power": self.power_label(),
-            },
-            "summary": {
+        JsonReport {
+            converged: s.converged,
+            iterations: s.iterations,
+            links,
+            nodes,
+            status_changes: s.status_changes,
+            status_ending: s.ending.describe(),
+            summary: json!({
                 "max_mass_residual": self.flow(s.max_mass_residual),
                 "max_energy_residual": self.len(s.max_energy_residual),
                 "total_demand": self.total_demand(),
                 "sources": sources,
-            },
-            "nodes": nodes,
-            "links": links,
-            "warnings": s.warnings.iter().map(warning_text).collect::<Vec<_>>(),
-        })
+            }),
+            title: m.title.as_deref(),
+            units: json!({
+                "length": u.length.label(), "flow": u.flow.label(), "pressure": u.pressure.label(),
+                "velocity": u.velocity_label(), "diameter": u.diameter.label(), "power": self.power_label(),
+            }),
+            warnings: s.warnings.iter().map(warning_text).collect(),
+        }
+    }
+
+    /// The JSON report as pretty-printed text.
+    pub fn to_json_text(&self) -> String {
+        let report = self.json_report();
+        let mut out = Vec::with_capacity(256 * (report.nodes.len() + 2 * report.links.len()) + 1024);
+        // Serializing plain structs, strings and numbers into memory cannot fail.
+        let _ = serde_json::to_writer_pretty(&mut out, &report);
+        out.push(b'\n');
+        String::from_utf8(out).unwrap_or_default()
     }
 
     pub fn to_csv(&self) -> String {

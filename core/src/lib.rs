@@ -35,6 +35,7 @@
 
 pub mod analysis;
 pub mod error;
+pub mod generate;
 pub mod model;
 pub mod physics;
 pub mod simulate;

@@ -214,7 +214,14 @@ pub fn demand_delivered(model: &Model, solution: &Solution, keep: usize) -> Resu
             })
             .collect();
         let mut reach = vec![false; nodes.len()];
-        crate::solve::topology::mark_connected(model, &adjacency, &open, &mut reach, &mut Vec::new());
+        crate::solve::topology::mark_connected(
+            model,
+            &adjacency,
+            &crate::solve::topology::link_ends(model),
+            &open,
+            &mut reach,
+            &mut Vec::new(),
+        );
         reach
     };
     let mut bad: Vec<(usize, f64)> = nodes
@@ -377,7 +384,14 @@ pub fn supplied_by_topology(model: &Model) -> Vec<bool> {
     let open: Vec<bool> = model.links().iter().map(|l| l.status != LinkStatus::Closed).collect();
     let mut connected = vec![false; model.nodes().len()];
     let mut stack = Vec::new();
-    crate::solve::topology::mark_connected(model, &adjacency, &open, &mut connected, &mut stack);
+    crate::solve::topology::mark_connected(
+        model,
+        &adjacency,
+        &crate::solve::topology::link_ends(model),
+        &open,
+        &mut connected,
+        &mut stack,
+    );
     connected
 }
 

@@ -6,6 +6,7 @@
 //! accept silently: duplicate keys in JSON objects, and nesting deeper than any model needs.
 
 use serde::de::{self, DeserializeSeed, MapAccess, SeqAccess, Visitor};
+use serde_json::value::RawValue;
 use std::fmt;
 
 /// Deepest nesting of arrays and tables accepted; a model needs four levels.
@@ -43,6 +44,12 @@ impl Value {
         }
     }
 }
+
+/// Initial capacity of a table's entries: the most keys a node or link of a written model has.
+const TABLE_CAPACITY: usize = 10;
+
+/// Tables with more keys than this check duplicates with a hash set.
+const SCAN_LIMIT: usize = 32;
 
 const TOML_DATETIME_KEY: &str = "$__toml_private_datetime";
 
@@ -101,20 +108,87 @@ impl<'de> Visitor<'de> for Seed {
         if self.depth >= MAX_DEPTH {
             return Err(de::Error::custom(format!("nesting deeper than {MAX_DEPTH} levels")));
         }
-        let mut entries: Vec<(String, Value)> = Vec::new();
+        // Room for the keys of the largest element table at once: one allocation per node or
+        // link instead of three growing ones.
+        let mut entries: Vec<(String, Value)> = Vec::with_capacity(TABLE_CAPACITY);
+        // Duplicate keys: a scan while the table is small, a hash set beyond that, so that a
+        // table with very many keys is not quadratic.
+        let mut seen: Option<std::collections::HashSet<String>> = None;
         while let Some(key) = map.next_key::<String>()? {
             if key == TOML_DATETIME_KEY {
                 let _: de::IgnoredAny = map.next_value()?;
                 return Ok(Value::Date);
             }
-            if entries.iter().any(|(k, _)| *k == key) {
+            let duplicate = match &mut seen {
+                Some(set) => !set.insert(key.clone()),
+                None => entries.iter().any(|(k, _)| *k == key),
+            };
+            if duplicate {
                 return Err(de::Error::custom(format!("duplicate key '{key}'")));
+            }
+            if seen.is_none() && entries.len() >= SCAN_LIMIT {
+                seen = Some(entries.iter().map(|(k, _)| k.clone()).chain(std::iter::once(key.clone())).collect());
             }
             let value = map.next_value_seed(Seed { depth: self.depth + 1 })?;
             entries.push((key, value));
         }
         Ok(Value::Table(entries))
     }
+}
+
+/// The top level of a JSON model file with each value left as raw text, and the elements of
+/// its `nodes` and `links` arrays each as raw text: the file is checked for syntax in one pass,
+/// but no value tree is built yet.
+#[derive(Debug, Default)]
+pub struct RawModel<'a> {
+    /// Top-level keys other than `nodes` and `links`, in file order.
+    pub entries: Vec<(String, &'a RawValue)>,
+    /// The elements of `nodes`.
+    pub nodes: Vec<&'a RawValue>,
+    /// The elements of `links`.
+    pub links: Vec<&'a RawValue>,
+}
+
+/// Splits a JSON model file into a [`RawModel`]. `None` if the text is not a JSON object, has a
+/// syntax error, a duplicate top-level key, or `nodes` or `links` that are not arrays (the full
+/// reader then says why).
+pub fn json_raw_model(text: &str) -> Option<RawModel<'_>> {
+    struct Top;
+    impl<'de> Visitor<'de> for Top {
+        type Value = RawModel<'de>;
+        fn expecting(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+            f.write_str("a JSON object")
+        }
+        fn visit_map<A: MapAccess<'de>>(self, mut map: A) -> Result<Self::Value, A::Error> {
+            let mut raw = RawModel::default();
+            let mut keys: Vec<String> = Vec::new();
+            while let Some(key) = map.next_key::<String>()? {
+                if keys.contains(&key) {
+                    return Err(de::Error::custom("duplicate key"));
+                }
+                match key.as_str() {
+                    "nodes" => raw.nodes = map.next_value()?,
+                    "links" => raw.links = map.next_value()?,
+                    _ => raw.entries.push((key.clone(), map.next_value()?)),
+                }
+                keys.push(key);
+            }
+            Ok(raw)
+        }
+    }
+    let mut de = serde_json::Deserializer::from_str(text);
+    let raw = de::Deserializer::deserialize_map(&mut de, Top).ok()?;
+    de.end().ok()?;
+    Some(raw)
+}
+
+/// The value tree of a raw JSON value found at nesting `depth`; `None` on any problem (the full
+/// reader then says what it is, with its position).
+pub fn json_value(raw: &RawValue, depth: usize) -> Option<Value> {
+    let mut de = serde_json::Deserializer::from_str(raw.get());
+    let value = Seed { depth }.deserialize(&mut de).ok()?;
+    de.end().ok()?;
+    Some(value)
 }
 
 /// A syntax error with its position (1-based line and column) when known.
@@ -184,6 +258,23 @@ mod tests {
         let e = parse_json("{\"a\": 1,\n \"a\": 2}").unwrap_err();
         assert!(e.message.contains("duplicate key 'a'"), "{e:?}");
         assert_eq!(e.position.map(|p| p.0), Some(2));
+    }
+
+    #[test]
+    fn duplicate_keys_in_a_large_table_are_found_quickly() {
+        // 200 000 distinct keys, then a repeat of an early one: linear time, not quadratic.
+        let mut text = String::from("{");
+        for i in 0..200_000 {
+            text.push_str(&format!("\"k{i}\": {i}, "));
+        }
+        text.push_str("\"k17\": 0}");
+        let e = parse_json(&text).unwrap_err();
+        assert!(e.message.contains("duplicate key 'k17'"), "{e:?}");
+        let ok = text.replacen("\"k17\": 0}", "\"last\": 0}", 1);
+        match parse_json(&ok).unwrap() {
+            Value::Table(entries) => assert_eq!(entries.len(), 200_001),
+            other => panic!("{other:?}"),
+        }
     }
 
     #[test]

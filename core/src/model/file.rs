@@ -17,6 +17,7 @@ use crate::physics::WaterProperties;
 use crate::units::HORSEPOWER;
 use crate::units::{suggest, DiameterUnit, FlowUnit, LengthUnit, PressureUnit, RoughnessUnit, UnitSystem};
 use std::path::Path;
+use std::sync::OnceLock;
 
 /// The syntax of a model file.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -118,7 +119,36 @@ const LINK_KEYS: &[(&str, &[&str])] = &[
     ("valve", &["id", "kind", "valve", "from", "to", "diameter", "setting", "setting_pattern", "minor_loss", "status"]),
 ];
 
+/// The JSON reader for large files: the file's syntax is checked in one pass that builds no
+/// value tree, then each node and link is turned into a tree, read and dropped in turn, so that
+/// memory holds the text, the model and one element's tree instead of a tree of the whole file.
+/// It gives up (`None`) at the first problem of any kind; [`read_inner`] then reads the file the
+/// ordinary way, so that every error and its position are exactly those of the ordinary reader,
+/// and a model read this way equals the one the ordinary reader builds.
+fn read_json_streamed(text: &str) -> Option<Model> {
+    let raw = doc::json_raw_model(text)?;
+    let mut entries = Vec::with_capacity(raw.entries.len());
+    for (key, value) in raw.entries {
+        entries.push((key, doc::json_value(value, 1)?));
+    }
+    // An element that does not parse: the ordinary reader will say why.
+    let give_up = || ModelError::new("element not readable on its own");
+    let nodes = raw.nodes.into_iter().map(|r| doc::json_value(r, 2).ok_or_else(give_up));
+    let links = raw.links.into_iter().map(|r| doc::json_value(r, 2).ok_or_else(give_up));
+    build(Fields::new(None, entries), Some(nodes), Some(links)).ok()
+}
+
 fn read_inner(text: &str, format: Format) -> Result<Model, ModelError> {
+    if format == Format::Json {
+        if let Some(model) = read_json_streamed(text) {
+            return Ok(model);
+        }
+    }
+    read_tree(text, format)
+}
+
+/// The ordinary reader: the whole file as one value tree, then the model.
+fn read_tree(text: &str, format: Format) -> Result<Model, ModelError> {
     if text.trim().is_empty() {
         return Err(ModelError::new("the file is empty; a model needs at least [[nodes]] and [[links]]"));
     }
@@ -140,7 +170,17 @@ fn read_inner(text: &str, format: Format) -> Result<Model, ModelError> {
     let Value::Table(entries) = tree else {
         return Err(ModelError::new(format!("the model must be a table of keys, found {}", tree.kind())));
     };
-    let mut top = Fields::new(None, entries);
+    type Items = std::iter::Map<std::vec::IntoIter<Value>, fn(Value) -> Result<Value, ModelError>>;
+    build::<Items, Items>(Fields::new(None, entries), None, None)
+}
+
+/// Builds the model from the top-level table. The elements of `nodes` and `links` come from the
+/// table itself (`None`), or one by one from the streamed JSON reader.
+fn build<N, L>(mut top: Fields, nodes: Option<N>, links: Option<L>) -> Result<Model, ModelError>
+where
+    N: Iterator<Item = Result<Value, ModelError>>,
+    L: Iterator<Item = Result<Value, ModelError>>,
+{
     let title = top.string("title")?;
     let units = match top.take("units") {
         Some(v) => read_units(v)?,
@@ -158,8 +198,14 @@ fn read_inner(text: &str, format: Format) -> Result<Model, ModelError> {
     let patterns = top.array("patterns")?;
     // Checked by `analysis::Criteria::from_value`, which the commands that use it call.
     let criteria = top.take("criteria");
-    let nodes = top.array("nodes")?;
-    let links = top.array("links")?;
+    let nodes: Box<dyn Iterator<Item = Result<Value, ModelError>>> = match nodes {
+        Some(items) => Box::new(items),
+        None => Box::new(top.array("nodes")?.into_iter().map(Ok)),
+    };
+    let links: Box<dyn Iterator<Item = Result<Value, ModelError>>> = match links {
+        Some(items) => Box::new(items),
+        None => Box::new(top.array("links")?.into_iter().map(Ok)),
+    };
     let controls = top.array("controls")?;
     top.finish(TOP_KEYS)?;
 
@@ -174,14 +220,14 @@ fn read_inner(text: &str, format: Format) -> Result<Model, ModelError> {
         model.time.energy = read_energy(v, &model.time)?;
     }
     model.criteria = criteria;
-    for (i, v) in nodes.into_iter().enumerate() {
+    for (i, v) in nodes.enumerate() {
         let index = model.nodes().len();
-        let node = read_node(i, v, &units, index, &mut model.time)?;
+        let node = read_node(i, v?, &units, index, &mut model.time)?;
         model.add_node(node)?;
     }
-    for (i, v) in links.into_iter().enumerate() {
+    for (i, v) in links.enumerate() {
         let index = model.links().len();
-        let (link, pattern) = read_link(i, v, &model)?;
+        let (link, pattern) = read_link(i, v?, &model)?;
         if let Some(p) = pattern {
             match link.kind {
                 LinkKind::Pump(_) => model.time.speed_patterns.insert(index, p),
@@ -267,7 +313,13 @@ impl Fields {
     }
 
     fn take(&mut self, key: &str) -> Option<Value> {
-        self.entries.iter_mut().find(|(k, _)| k == key).and_then(|(_, v)| v.take())
+        // Length and first byte first: most keys differ there, and a model file of a large
+        // network asks this question millions of times.
+        let first = key.as_bytes().first();
+        self.entries
+            .iter_mut()
+            .find(|(k, _)| k.len() == key.len() && k.as_bytes().first() == first && k == key)
+            .and_then(|(_, v)| v.take())
     }
 
     fn number(&mut self, key: &str) -> Result<Option<f64>, ModelError> {
@@ -603,7 +655,8 @@ fn read_node(
     };
     let element = f.element.clone();
     let Some(Element::Node(id)) = element else { unreachable!("identify sets the element") };
-    f.finish_with(keys, &all_keys(NODE_KEYS), kind.label())?;
+    static ALL_NODE_KEYS: OnceLock<Vec<&'static str>> = OnceLock::new();
+    f.finish_with(keys, ALL_NODE_KEYS.get_or_init(|| all_keys(NODE_KEYS)), kind.label())?;
     Ok(Node { id, elevation, coordinates, zone, kind })
 }
 
@@ -636,7 +689,8 @@ fn read_link(index: usize, value: Value, model: &Model) -> Result<(Link, Option<
         }
     };
     let Some(Element::Link(id)) = f.element.clone() else { unreachable!("identify sets the element") };
-    f.finish_with(keys, &all_keys(LINK_KEYS), kind.label())?;
+    static ALL_LINK_KEYS: OnceLock<Vec<&'static str>> = OnceLock::new();
+    f.finish_with(keys, ALL_LINK_KEYS.get_or_init(|| all_keys(LINK_KEYS)), kind.label())?;
     Ok((Link { id, from, to, status, kind }, pattern))
 }
 
@@ -1095,4 +1149,25 @@ fn read_condition(parent: &Fields, prefix: String, value: Value, model: &Model) 
     }
     f.finish(CONDITION_KEYS)?;
     Ok(condition)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn streamed_json_reader_builds_the_same_model_as_the_tree_reader() {
+        let mut model = crate::generate::generate(&crate::generate::NetworkSpec::new(1_500, 3)).unwrap();
+        model.units = UnitSystem { flow: crate::units::FlowUnit::parse("gpm").unwrap(), ..UnitSystem::default() };
+        let k = model.links().len() - 1;
+        model.set_status(k, LinkStatus::Closed).unwrap();
+        let text = super::super::write::to_string(&model, Format::Json);
+        let streamed = read_json_streamed(&text).expect("the streamed reader takes a written model");
+        assert_eq!(streamed, read_tree(&text, Format::Json).unwrap());
+        // Where the streamed reader gives up, the tree reader's error comes out.
+        let broken = text.replacen("\"length\"", "\"lenght\"", 1);
+        assert!(read_json_streamed(&broken).is_none());
+        let e = read_str(&broken, Format::Json, "broken.json").unwrap_err();
+        assert!(e.to_string().contains("lenght"), "{e}");
+    }
 }

@@ -14,6 +14,20 @@ pub struct Factor {
     pub values: Vec<f64>,
     l_values: Vec<f64>,
     mem: MemBuffer,
+    n: usize,
+}
+
+impl Clone for Factor {
+    /// The same values in new buffers (the scratch space is not copied: it holds nothing
+    /// between calls).
+    fn clone(&self) -> Self {
+        Factor {
+            values: self.values.clone(),
+            l_values: self.l_values.clone(),
+            mem: MemBuffer::new(numeric_scratch(self.n)),
+            n: self.n,
+        }
+    }
 }
 
 impl std::fmt::Debug for Factor {
@@ -36,6 +50,7 @@ impl Factor {
             values: vec![0.0; pattern.nnz()],
             l_values: vec![0.0; pattern.factor_nnz()],
             mem: MemBuffer::new(numeric_scratch(pattern.n)),
+            n: pattern.n,
         }
     }
 

@@ -6,7 +6,7 @@
 
 use crate::model::{HeadLossLaw, Link, LinkKind, Model, PumpDrive, ValveType};
 use crate::physics::pump::HeadCurve;
-use crate::physics::{minor_loss_coefficient, Friction};
+use crate::physics::{minor_loss_coefficient, Friction, WaterProperties};
 use crate::units::GRAVITY;
 use std::f64::consts::PI;
 
@@ -58,7 +58,12 @@ impl LinkLaw {
     /// The law of a link of `model` when it is open (for valves: fully open, or throttling at the
     /// setting for an automatic throttle valve).
     pub fn new(model: &Model, link: &Link) -> Self {
-        let water = model.options.water_properties();
+        LinkLaw::with_water(model, link, &model.options.water_properties())
+    }
+
+    /// Like [`LinkLaw::new`] with the model's water properties computed once by the caller
+    /// (they take a few hundred floating-point operations, more than the law itself).
+    pub fn with_water(model: &Model, link: &Link, water: &WaterProperties) -> Self {
         let resistance = |friction: Option<Friction>, k: f64, d: f64| {
             let area = PI * d * d / 4.0;
             let mut law = LinkLaw {
@@ -122,6 +127,7 @@ impl LinkLaw {
     #[inline]
     pub fn evaluate_exact(&self, q: f64) -> (f64, f64) {
         match &self.kind {
+            Kind::Resistance { friction: Some(Friction::HazenWilliams { r }), minor } => hazen_williams(*r, *minor, q),
             Kind::Resistance { friction, minor } => {
                 let (h, d) = friction.map_or((0.0, 0.0), |f| f.evaluate(q));
                 (h + minor * q * q.abs(), d + 2.0 * minor * q.abs())
@@ -135,6 +141,16 @@ impl LinkLaw {
                 (-h, -d)
             }
             Kind::Stopped => (0.0, 0.0),
+        }
+    }
+
+    /// For a Hazen–Williams pipe: its friction resistance `r` and minor-loss coefficient `m` in
+    /// `h = r |Q|^n sign(Q) + m Q|Q|`, so that the iteration can evaluate the commonest law
+    /// without a branch on its kind (see [`hazen_williams`]).
+    pub fn hazen_williams_parts(&self) -> Option<(f64, f64)> {
+        match self.kind {
+            Kind::Resistance { friction: Some(Friction::HazenWilliams { r }), minor } => Some((r, minor)),
+            _ => None,
         }
     }
 
@@ -158,6 +174,24 @@ impl LinkLaw {
     pub fn beyond_curve(&self, q: f64) -> bool {
         matches!(self.kind, Kind::Curve { .. } | Kind::Power { .. }) && self.evaluate_exact(q).0 > 0.0
     }
+}
+
+/// Head loss and slope of a Hazen–Williams pipe with resistance `r` and minor-loss coefficient
+/// `m`, `h = r |Q|^n sign(Q) + m Q|Q|`. This is the one evaluation the solver uses for these
+/// pipes (in the iteration, the tree sweeps and the reported residuals). `|Q|^n` is computed as
+/// `exp(n ln|Q|)`: within a few units in the last place of `powf` (relative error about 1e-15
+/// for the flows of a network), and about a third faster, which matters in the solver's hottest
+/// loop.
+#[inline]
+pub fn hazen_williams(r: f64, m: f64, q: f64) -> (f64, f64) {
+    let a = q.abs();
+    let (h, d) = if a == 0.0 {
+        (0.0, 0.0)
+    } else {
+        let h = r * (crate::physics::friction::HW_FLOW_EXPONENT * a.ln()).exp();
+        (h.copysign(q), crate::physics::friction::HW_FLOW_EXPONENT * h / a)
+    };
+    (h + m * q * a, d + 2.0 * m * a)
 }
 
 /// `H = P'/Q` with `P' = P/(ρg)` above `q_c`, its tangent at `q_c` below.

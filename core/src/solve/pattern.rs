@@ -1,27 +1,25 @@
-//! Phase 1, once per network structure: number the unknowns, order them, build the permuted
-//! sparsity pattern of the head matrix, the scatter map from links to matrix slots, and the
-//! symbolic Cholesky factorization.
+//! Phase 1, once per network structure: split off the dead-end trees, number the remaining
+//! (core) unknowns, order them, build the permuted sparsity pattern of the head matrix, the
+//! scatter map from links to matrix slots, and the symbolic Cholesky factorization.
+//!
+//! # Forest and core
+//! Following Simpson, Elhay & Alexander (2014, "Forest-core partitioning algorithm for speeding
+//! up analysis of water distribution systems", J. Water Resour. Plann. Manage. 140(4)), junctions
+//! in dead-end trees never enter the matrix: the flow of a tree pipe is the demand of everything
+//! beyond it, whatever the heads, and the heads in a tree follow from its root's head by one
+//! sweep. The trees are found by peeling: a junction with a single remaining link is a leaf; it
+//! is removed with that link, which may make its neighbour a leaf, and so on. Only plain pipes
+//! (no check valve) are peeled, so every device stays in the core and its state logic sees the
+//! core's heads; a closed tree pipe simply cuts off what lies beyond it. [`Pattern::trees`] lists
+//! the tree pipes leaves first: flows accumulate in that order, heads in the reverse.
 //!
 //! # Why faer's simplicial Cholesky with AMD
-//! The head matrix of the gradient method is a weighted graph Laplacian: symmetric positive
-//! definite, about 3.4 non-zeros per row, with long dead-end chains. With an approximate minimum
-//! degree (AMD) ordering its Cholesky factor keeps under 4 non-zeros per row, so a simplicial
-//! (column-by-column) factorization is the right tool; supernodes bring nothing at this density.
-//! Measured on generated street networks on a 2-core machine, faer's simplicial Cholesky with an
-//! AMD ordering, the matrix assembled directly in permuted order, is level with CHOLMOD (about
-//! 15 ms for 10⁵ unknowns), while sprs-ldl with its own reverse Cuthill–McKee ordering was 19×
-//! slower at that size (RCM's profile grows much faster than AMD's fill). The ordering is what
-//! matters, so it is computed once here and reused for every iteration, scenario and time step.
-//!
-//! The pattern includes every link between two junctions, whatever its status: closing a link
-//! or a check valve only writes zeros into its slots, and a junction cut off from every fixed
-//! head gets a unit diagonal. The analysis therefore survives every status change.
-
-use crate::model::Model;
+use super::topology::Adjacency;
+use crate::model::{LinkKind, Model};
 use faer::dyn_stack::{MemBuffer, MemStack, StackReq};
 use faer::sparse::linalg::amd;
 use faer::sparse::linalg::cholesky::simplicial::{self, SymbolicSimplicialCholesky};
-use faer::sparse::SymbolicSparseColMatRef;
+use faer::sparse::{SymbolicSparseColMat, SymbolicSparseColMatRef};
 
 /// Where a link writes into the matrix.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -37,6 +35,36 @@ pub struct LinkSlots {
 /// Marker for "no unknown / no slot".
 pub const NONE: u32 = u32::MAX;
 
+/// A pipe of a dead-end tree, with the end nearer the core.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct TreeLink {
+    /// The link.
+    pub link: u32,
+    /// The end towards the core (a core junction, a fixed head, or a tree junction).
+    pub parent: u32,
+    /// The end away from the core (a tree junction).
+    pub child: u32,
+    /// Whether the link points from parent to child (`from == parent`).
+    pub downstream: bool,
+}
+
+/// A link of the core, with everything the iteration needs to scatter it.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct CoreLink {
+    /// The link.
+    pub link: u32,
+    /// Its `from` node.
+    pub from: u32,
+    /// Its `to` node.
+    pub to: u32,
+    /// Matrix slots.
+    pub slots: LinkSlots,
+    /// Value slot of the `from` unknown's diagonal, or `NONE`.
+    pub diag_from: u32,
+    /// Value slot of the `to` unknown's diagonal, or `NONE`.
+    pub diag_to: u32,
+}
+
 /// The analysed structure of a network's head matrix.
 #[derive(Debug)]
 pub struct Pattern {
@@ -46,20 +74,71 @@ pub struct Pattern {
     pub unknown_of_node: Vec<u32>,
     /// For each permuted unknown, the node it stands for.
     pub node_of_unknown: Vec<u32>,
-    /// Upper-triangular CSC pattern of the permuted matrix.
-    pub col_ptr: Vec<usize>,
-    /// Row indices, sorted within each column.
-    pub row_idx: Vec<usize>,
+    /// Upper-triangular CSC pattern of the permuted matrix, rows sorted within each column
+    /// (checked once here, not at every factorization).
+    structure: SymbolicSparseColMat<usize>,
     /// Value slot of each permuted unknown's diagonal entry.
     pub diag_slot: Vec<u32>,
-    /// Slots of every link.
+    /// Slots of every link (all `NONE` for tree links).
     pub links: Vec<LinkSlots>,
+    /// Links of the core, ordered by the matrix column they write to (for locality).
+    pub core: Vec<CoreLink>,
+    /// Position of each link in `core`, or `NONE` for tree links.
+    pub core_position: Vec<u32>,
+    /// Pipes of the dead-end trees, leaves first.
+    pub trees: Vec<TreeLink>,
+    /// Whether each node is a junction of a dead-end tree.
+    pub in_tree: Vec<bool>,
+    /// For each node, the links that touch it.
+    pub adjacency: Adjacency,
     /// Symbolic Cholesky factor.
     pub symbolic: SymbolicSimplicialCholesky<usize>,
-    /// Structure signature: node kinds (fixed or not) and link end points.
-    signature: Vec<(u32, u32)>,
+    /// End points `(from, to)` of every link, compact for passes over all links (and the
+    /// structure signature with the node kinds).
+    pub ends: Vec<(u32, u32)>,
     /// Fixed-head flags per node at analysis time.
     fixed: Vec<bool>,
+    /// Whether each link could be peeled into a tree (a plain pipe) at analysis time.
+    peelable: Vec<bool>,
+}
+
+/// Whether a link may belong to a dead-end tree: a pipe without a check valve, whatever its
+/// status (a closed tree pipe cuts off its subtree, which the tree sweeps handle).
+fn peelable(kind: &LinkKind) -> bool {
+    matches!(kind, LinkKind::Pipe(p) if !p.check_valve)
+}
+
+/// Peels the dead-end trees off the network; returns the tree links, leaves first, and which
+/// nodes are tree junctions.
+fn peel(model: &Model, adjacency: &Adjacency, fixed: &[bool], peelable: &[bool]) -> (Vec<TreeLink>, Vec<bool>) {
+    let links = model.links();
+    let n = model.nodes().len();
+    let mut degree: Vec<u32> = (0..n).map(|i| adjacency.of(i).len() as u32).collect();
+    let mut removed = vec![false; links.len()];
+    let mut in_tree = vec![false; n];
+    let mut trees = Vec::new();
+    let mut stack: Vec<u32> = (0..n as u32).filter(|&i| !fixed[i as usize] && degree[i as usize] == 1).collect();
+    while let Some(leaf) = stack.pop() {
+        let leaf = leaf as usize;
+        if in_tree[leaf] || degree[leaf] != 1 {
+            continue;
+        }
+        let Some(&k) = adjacency.of(leaf).iter().find(|&&k| !removed[k as usize]) else { continue };
+        if !peelable[k as usize] {
+            continue;
+        }
+        let l = &links[k as usize];
+        let parent = if l.from == leaf { l.to } else { l.from };
+        removed[k as usize] = true;
+        in_tree[leaf] = true;
+        degree[leaf] = 0;
+        degree[parent] -= 1;
+        trees.push(TreeLink { link: k, parent: parent as u32, child: leaf as u32, downstream: l.from == parent });
+        if !fixed[parent] && degree[parent] == 1 {
+            stack.push(parent as u32);
+        }
+    }
+    (trees, in_tree)
 }
 
 /// Scratch size of the numeric factorization and solve for an `n`-unknown matrix.
@@ -72,18 +151,25 @@ impl Pattern {
     pub fn analyse(model: &Model) -> Pattern {
         let nodes = model.nodes();
         let fixed: Vec<bool> = nodes.iter().map(|n| n.fixed_head().is_some()).collect();
-        // Unknowns in node order first.
+        let peelable: Vec<bool> = model.links().iter().map(|l| peelable(&l.kind)).collect();
+        let adjacency = Adjacency::new(model);
+        let (trees, in_tree) = peel(model, &adjacency, &fixed, &peelable);
+        let mut is_tree_link = vec![false; model.links().len()];
+        for t in &trees {
+            is_tree_link[t.link as usize] = true;
+        }
+        // Core unknowns in node order first.
         let mut original = vec![NONE; nodes.len()];
         let mut n = 0usize;
         for (i, f) in fixed.iter().enumerate() {
-            if !f {
+            if !f && !in_tree[i] {
                 original[i] = n as u32;
                 n += 1;
             }
         }
         // Neighbour lists (upper part, deduplicated) in original numbering.
         let mut pairs: Vec<(u32, u32)> = Vec::with_capacity(model.links().len());
-        for l in model.links() {
+        for (l, _) in model.links().iter().zip(&is_tree_link).filter(|(_, &t)| !t) {
             let (a, b) = (original[l.from], original[l.to]);
             if a != NONE && b != NONE {
                 pairs.push((a.min(b), a.max(b)));
@@ -140,7 +226,11 @@ impl Pattern {
         let links: Vec<LinkSlots> = model
             .links()
             .iter()
-            .map(|l| {
+            .zip(&is_tree_link)
+            .map(|(l, &tree)| {
+                if tree {
+                    return LinkSlots { from: NONE, to: NONE, off: NONE };
+                }
                 let (a, b) = (unknown_of_node[l.from], unknown_of_node[l.to]);
                 let off = if a != NONE && b != NONE {
                     let (r, c) = (a.min(b) as usize, a.max(b) as usize);
@@ -152,22 +242,75 @@ impl Pattern {
             })
             .collect();
 
+        let mut core: Vec<CoreLink> = model
+            .links()
+            .iter()
+            .enumerate()
+            .filter(|&(k, _)| !is_tree_link[k])
+            .map(|(k, l)| {
+                let s = links[k];
+                let diag = |u: u32| if u == NONE { NONE } else { diag_slot[u as usize] };
+                CoreLink {
+                    link: k as u32,
+                    from: l.from as u32,
+                    to: l.to as u32,
+                    slots: s,
+                    diag_from: diag(s.from),
+                    diag_to: diag(s.to),
+                }
+            })
+            .collect();
+        // Column order: consecutive links write to nearby matrix entries and read nearby unknowns.
+        let column = |c: &CoreLink| match (c.slots.from, c.slots.to) {
+            (NONE, NONE) => 0,
+            (NONE, u) | (u, NONE) => u,
+            (a, b) => a.max(b),
+        };
+        core.sort_unstable_by_key(|c| (column(c), c.link));
+        let mut core_position = vec![NONE; model.links().len()];
+        for (i, c) in core.iter().enumerate() {
+            core_position[c.link as usize] = i as u32;
+        }
+
         let symbolic = symbolic_factor(n, &col_ptr, &row_idx);
-        let signature = model.links().iter().map(|l| (l.from as u32, l.to as u32)).collect();
-        Pattern { n, unknown_of_node, node_of_unknown, col_ptr, row_idx, diag_slot, links, symbolic, signature, fixed }
+        let ends = model.links().iter().map(|l| (l.from as u32, l.to as u32)).collect();
+        Pattern {
+            n,
+            unknown_of_node,
+            node_of_unknown,
+            structure: SymbolicSparseColMat::new_checked(n, n, col_ptr, None, row_idx),
+            diag_slot,
+            links,
+            core,
+            core_position,
+            trees,
+            in_tree,
+            adjacency,
+            symbolic,
+            ends,
+            fixed,
+            peelable,
+        }
     }
 
-    /// Whether this analysis still fits `model` (same nodes' roles, same link end points).
+    /// Whether this analysis still fits `model` (same nodes' roles, same link end points, the
+    /// same links eligible for the trees).
     pub fn fits(&self, model: &Model) -> bool {
         model.nodes().len() == self.fixed.len()
-            && model.links().len() == self.signature.len()
+            && model.links().len() == self.ends.len()
             && model.nodes().iter().zip(&self.fixed).all(|(n, &f)| n.fixed_head().is_some() == f)
-            && model.links().iter().zip(&self.signature).all(|(l, &(a, b))| l.from as u32 == a && l.to as u32 == b)
+            && model.links().iter().zip(&self.ends).all(|(l, &(a, b))| l.from as u32 == a && l.to as u32 == b)
+            && model.links().iter().zip(&self.peelable).all(|(l, &p)| peelable(&l.kind) == p)
+    }
+
+    /// Number of junctions in dead-end trees (outside the matrix).
+    pub fn tree_junctions(&self) -> usize {
+        self.trees.len()
     }
 
     /// Number of stored entries of the upper triangle.
     pub fn nnz(&self) -> usize {
-        self.row_idx.len()
+        self.structure.row_idx().len()
     }
 
     /// Non-zeros of the Cholesky factor.
@@ -177,7 +320,7 @@ impl Pattern {
 
     /// The symbolic view of the matrix for faer.
     pub fn matrix(&self) -> SymbolicSparseColMatRef<'_, usize> {
-        SymbolicSparseColMatRef::new_checked(self.n, self.n, &self.col_ptr, None, &self.row_idx)
+        self.structure.as_ref()
     }
 }
 
@@ -229,4 +372,99 @@ fn symbolic_factor(n: usize, col_ptr: &[usize], row_idx: &[usize]) -> SymbolicSi
     let etree_ref = simplicial::prefactorize_symbolic_cholesky(&mut etree, &mut col_counts, a, stack);
     simplicial::factorize_simplicial_symbolic_cholesky(a, etree_ref, &col_counts, stack)
         .expect("symbolic factorization only fails on allocation or index overflow")
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::model::{HydraulicOptions, Link, LinkStatus, Node, Pipe, Pump, PumpDrive};
+    use crate::physics::pump::{Efficiency, HeadCurve};
+    use crate::units::UnitSystem;
+
+    fn pipe(id: &str, from: usize, to: usize, check_valve: bool) -> Link {
+        Link {
+            id: id.into(),
+            from,
+            to,
+            status: LinkStatus::Open,
+            kind: LinkKind::Pipe(Pipe { length: 100.0, diameter: 0.1, roughness: 120.0, minor_loss: 0.0, check_valve }),
+        }
+    }
+
+    /// R0 – J1 – J2 – J3 around a loop J1 – J4 – J5 – J1, with a branch J2 – J6 – J7, a dead end
+    /// J5 – J8 through a check valve and a dead end J4 – J9 through a pump.
+    fn network() -> Model {
+        let mut m = Model::new(UnitSystem::default(), HydraulicOptions::default());
+        m.add_node(Node::reservoir("R0", 50.0)).unwrap();
+        for i in 1..=9 {
+            m.add_node(Node::junction(format!("J{i}"), 0.0, 1e-3)).unwrap();
+        }
+        for (k, (a, b)) in [(0, 1), (1, 2), (2, 3), (1, 4), (4, 5), (5, 1), (2, 6), (6, 7)].into_iter().enumerate() {
+            m.add_link(pipe(&format!("P{k}"), a, b, false)).unwrap();
+        }
+        m.add_link(pipe("CV", 5, 8, true)).unwrap();
+        let points = vec![(0.0, 30.0), (0.01, 20.0)];
+        let curve = HeadCurve::fit(&points).unwrap();
+        let drive = PumpDrive::Curve { points, curve };
+        let pump = Pump { drive, efficiency_points: None, efficiency: Efficiency::Constant(0.75), speed: 1.0 };
+        m.add_link(Link { id: "PU".into(), from: 4, to: 9, status: LinkStatus::Open, kind: LinkKind::Pump(pump) })
+            .unwrap();
+        m
+    }
+
+    #[test]
+    fn dead_end_pipes_are_peeled_and_devices_stay_in_the_core() {
+        let m = network();
+        let p = Pattern::analyse(&m);
+        let tree: Vec<usize> = (0..m.nodes().len()).filter(|&i| p.in_tree[i]).collect();
+        // J3 and the branch J7, J6; then J2, left with its one link to J1. Behind the check valve
+        // and the pump nothing is peeled, and the loop J1 – J4 – J5 stays.
+        assert_eq!(tree, vec![2, 3, 6, 7]);
+        assert_eq!(p.tree_junctions(), 4);
+        // Leaves first: J7 before J6.
+        let order: Vec<u32> = p.trees.iter().map(|t| t.child).collect();
+        let (i7, i6) = (order.iter().position(|&c| c == 7).unwrap(), order.iter().position(|&c| c == 6).unwrap());
+        assert!(i7 < i6);
+        for t in &p.trees {
+            let l = &m.links()[t.link as usize];
+            assert_eq!(t.downstream, l.from == t.parent as usize);
+            assert_eq!(p.core_position[t.link as usize], NONE);
+        }
+        // Every other junction is an unknown of the matrix, every other link a core link.
+        assert_eq!(p.n, 9 - 4);
+        assert_eq!(p.core.len(), m.links().len() - 4);
+        assert!(p.fits(&m));
+    }
+
+    #[test]
+    fn a_network_that_is_all_tree_has_an_empty_matrix() {
+        let mut m = Model::new(UnitSystem::default(), HydraulicOptions::default());
+        m.add_node(Node::reservoir("R", 50.0)).unwrap();
+        for i in 1..=4 {
+            m.add_node(Node::junction(format!("J{i}"), 0.0, 1e-3)).unwrap();
+            m.add_link(pipe(&format!("P{i}"), i - 1, i, false)).unwrap();
+        }
+        let p = Pattern::analyse(&m);
+        assert_eq!((p.n, p.tree_junctions(), p.core.len()), (0, 4, 0));
+        let s = crate::solve::solve(&m).unwrap();
+        // Each pipe carries the demand beyond it: 4, 3, 2, 1 L/s.
+        for (k, q) in s.flow.iter().enumerate() {
+            assert!((q - (4 - k) as f64 * 1e-3).abs() < 1e-15, "{q}");
+        }
+        assert!(s.max_energy_residual < 1e-12 && s.max_mass_residual < 1e-15);
+    }
+
+    #[test]
+    fn changing_a_pipe_into_a_check_valve_redoes_the_analysis() {
+        let mut m = network();
+        let p = Pattern::analyse(&m);
+        let k = m.link_index("P7").unwrap();
+        let mut link = m.links()[k].clone();
+        if let LinkKind::Pipe(pipe) = &mut link.kind {
+            pipe.check_valve = true;
+        }
+        m.replace_link(k, link).unwrap();
+        assert!(!p.fits(&m));
+        assert!(!Pattern::analyse(&m).in_tree[7]);
+    }
 }

@@ -158,11 +158,12 @@ impl Ending {
 
 impl StatusTracker {
     /// Initial states from the model: user closures, stopped pumps, automatic valves active.
-    pub fn new(model: &Model) -> Self {
+    /// `status` is the user status of every link (the model's, or a scenario's).
+    pub fn new(model: &Model, status: &[LinkStatus]) -> Self {
         let mut state = Vec::with_capacity(model.links().len());
         let mut devices = Vec::new();
         for (k, l) in model.links().iter().enumerate() {
-            let s = if l.status == LinkStatus::Closed {
+            let s = if status[k] == LinkStatus::Closed {
                 LinkState::Closed
             } else {
                 match &l.kind {

@@ -42,24 +42,30 @@ impl Adjacency {
     }
 }
 
+/// The end points `(from, to)` of every link, compact for the passes over all links.
+pub fn link_ends(model: &Model) -> Vec<(u32, u32)> {
+    model.links().iter().map(|l| (l.from as u32, l.to as u32)).collect()
+}
+
 /// Marks in `connected` every node that a path of links with `open[k]` joins to a fixed head.
-/// `stack` is scratch space.
+/// `ends` holds every link's `(from, to)`; `stack` is scratch space.
 pub fn mark_connected(
     model: &Model,
     adjacency: &Adjacency,
+    ends: &[(u32, u32)],
     open: &[bool],
     connected: &mut [bool],
     stack: &mut Vec<u32>,
 ) {
     let seeds = model.nodes().iter().map(|n| n.fixed_head().is_some());
-    mark_reached(model, adjacency, open, seeds, connected, stack);
+    mark_reached(adjacency, ends, open, seeds, connected, stack);
 }
 
 /// Marks in `reached` every node that a path of links with `open[k]` joins to a node for which
-/// `seeds` yields true. `stack` is scratch space.
+/// `seeds` yields true. `ends` holds every link's `(from, to)`; `stack` is scratch space.
 pub fn mark_reached(
-    model: &Model,
     adjacency: &Adjacency,
+    ends: &[(u32, u32)],
     open: &[bool],
     seeds: impl Iterator<Item = bool>,
     reached: &mut [bool],
@@ -73,14 +79,13 @@ pub fn mark_reached(
             stack.push(i as u32);
         }
     }
-    let links = model.links();
     while let Some(i) = stack.pop() {
         for &k in adjacency.of(i as usize) {
             if !open[k as usize] {
                 continue;
             }
-            let l = &links[k as usize];
-            let other = if l.from == i as usize { l.to } else { l.from };
+            let (from, to) = ends[k as usize];
+            let other = if from == i { to } else { from } as usize;
             if !reached[other] {
                 reached[other] = true;
                 stack.push(other as u32);
