@@ -35,4 +35,8 @@ RINGMAIN_BIN="$PWD/target/release/ringmain" .venv/bin/python -m pytest tests/pyt
 step "C library and Python package"
 scripts/test-embedding.sh
 
+step "fuzz the model reader (about a minute)"
+command -v cargo-fuzz >/dev/null 2>&1 || cargo install cargo-fuzz --locked
+scripts/test-fuzz.sh
+
 printf '\nall checks passed\n'

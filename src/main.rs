@@ -1,15 +1,18 @@
 //! `ringmain`: the command-line program.
 //!
 //! Exit codes: 0 success; 2 invalid model, file or arguments; 3 the solver did not converge;
-//! 4 the results could not be written.
+//! 4 the results could not be written. `check` adds 1: a criterion failed.
 
+mod check;
+mod check_report;
 mod plot;
 mod report;
 mod simulation;
+mod snippet;
 
 use clap::{Parser, Subcommand, ValueEnum};
 use ringmain_core::physics::{friction_factor, WaterProperties};
-use ringmain_core::{Format, Model, ModelError, SolveError};
+use ringmain_core::{Model, SolveError};
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 use std::time::{Duration, Instant};
@@ -76,6 +79,39 @@ enum Command {
         #[arg(long, value_name = "DIR")]
         plot: Option<PathBuf>,
     },
+    /// Check a model against service criteria, with what-if closures: for CI pipelines.
+    ///
+    /// Criteria come from the model's [criteria] table and from --criteria FILE (whose keys
+    /// override the model's). Reports worst offenders first; see docs/check.md.
+    #[command(after_help = "Exit codes: 0 all criteria met; 1 a criterion failed; 2 invalid model, criteria file or \
+                            arguments; 3 a scenario did not solve: the solver did not converge, or the demand cannot \
+                            be delivered (the report names the junctions and pumps); 4 a report could not be \
+                            written.")]
+    Check {
+        /// The model file (.toml or .json).
+        model: PathBuf,
+        /// A criteria file (TOML or JSON): a [criteria] table, or criteria keys at the top level.
+        #[arg(long, value_name = "FILE")]
+        criteria: Option<PathBuf>,
+        /// Close this link for the check (repeatable).
+        #[arg(long, value_name = "ID")]
+        close: Vec<String>,
+        /// Multiply every junction demand by this factor.
+        #[arg(long, value_name = "F", default_value_t = 1.0)]
+        demand_factor: f64,
+        /// Also close every open pipe in turn (a criticality sweep on all cores).
+        #[arg(long)]
+        each_pipe_closed: bool,
+        /// Output format of the report on standard output.
+        #[arg(long, value_enum, default_value_t = CheckFormat::Table)]
+        format: CheckFormat,
+        /// Also write a JUnit XML report (one test case per criterion and scenario) to this file.
+        #[arg(long, value_name = "PATH")]
+        junit: Option<PathBuf>,
+        /// How many of the worst offenders to list per criterion and scenario.
+        #[arg(long, value_name = "N", default_value_t = 10)]
+        offenders: usize,
+    },
     /// Print the density and viscosity of water at a temperature (IAPWS formulations).
     WaterProperties {
         /// Water temperature, deg C (0 to 99).
@@ -100,6 +136,12 @@ enum Command {
 }
 
 #[derive(Clone, Copy, PartialEq, Eq, ValueEnum)]
+enum CheckFormat {
+    Table,
+    Json,
+}
+
+#[derive(Clone, Copy, PartialEq, Eq, ValueEnum)]
 enum OutputFormat {
     Table,
     Json,
@@ -118,6 +160,18 @@ fn main() -> ExitCode {
         Command::Simulate { model, format, output, plot } => {
             simulate(&model, format, output.as_deref(), plot.as_deref())
         }
+        Command::Check { model, criteria, close, demand_factor, each_pipe_closed, format, junit, offenders } => {
+            check::run(check::Args {
+                model,
+                criteria,
+                close,
+                demand_factor,
+                each_pipe_closed,
+                json: format == CheckFormat::Json,
+                junit,
+                keep: offenders,
+            })
+        }
         Command::WaterProperties { temperature, format } => water_properties(temperature, format),
         Command::FrictionFactor { reynolds, relative_roughness, format } => {
             friction(reynolds, relative_roughness, format)
@@ -125,16 +179,19 @@ fn main() -> ExitCode {
     }
 }
 
-/// Reads and checks a model file.
-fn load(path: &Path) -> Result<Model, ModelError> {
-    let name = path.display().to_string();
-    let bytes =
-        std::fs::read(path).map_err(|e| ModelError::new(format!("cannot read the file: {e}")).in_file(&name))?;
-    let format = Format::from_path(path).unwrap_or_else(|| Format::sniff(&String::from_utf8_lossy(&bytes)));
-    ringmain_core::read_bytes(&bytes, format, &name)
+/// Reads and checks a model file; errors are printed with a snippet of the file.
+///
+/// The message is one line (scripts and the error tests read it); on a terminal a snippet of the
+/// offending line follows it. `check` always adds the snippet.
+fn load(path: &Path) -> Result<Model, ()> {
+    use std::io::IsTerminal;
+    let (source, bytes) = check::read_source(path).map_err(|e| check::report_error(&e, None))?;
+    let snippet = std::io::stderr().is_terminal();
+    ringmain_core::read_bytes(&bytes, source.format, &source.name)
+        .map_err(|e| check::report_error(&e, Some(&source).filter(|_| snippet)))
 }
 
-fn write_out(text: &str, output: Option<&Path>) -> ExitCode {
+pub(crate) fn write_out(text: &str, output: Option<&Path>) -> ExitCode {
     match output {
         None => {
             use std::io::Write;
@@ -161,13 +218,7 @@ fn write_out(text: &str, output: Option<&Path>) -> ExitCode {
 
 fn solve(path: &Path, format: OutputFormat, output: Option<&Path>, timings: bool) -> ExitCode {
     let clock = Instant::now();
-    let model = match load(path) {
-        Ok(m) => m,
-        Err(e) => {
-            eprintln!("error: {e}");
-            return ExitCode::from(EXIT_INVALID);
-        }
-    };
+    let Ok(model) = load(path) else { return ExitCode::from(EXIT_INVALID) };
     let reading = clock.elapsed();
     let mut solver = None;
     let solved = ringmain_core::Solver::new(&model).and_then(|s| solver.insert(s).solve(&model));
@@ -247,7 +298,7 @@ fn print_timings(model: &Model, solver: &ringmain_core::Solver, reading: Duratio
 }
 
 fn generate(junctions: usize, seed: u64, output: &Path) -> ExitCode {
-    let Some(format) = Format::from_path(output) else {
+    let Some(format) = ringmain_core::Format::from_path(output) else {
         eprintln!("error: --output {}: the file name must end in .json or .toml", output.display());
         return ExitCode::from(EXIT_INVALID);
     };
@@ -295,13 +346,7 @@ impl Progress {
 
 fn simulate(path: &Path, format: OutputFormat, output: Option<&Path>, plot_dir: Option<&Path>) -> ExitCode {
     use ringmain_core::SimulateError;
-    let model = match load(path) {
-        Ok(m) => m,
-        Err(e) => {
-            eprintln!("error: {e}");
-            return ExitCode::from(EXIT_INVALID);
-        }
-    };
+    let Ok(model) = load(path) else { return ExitCode::from(EXIT_INVALID) };
     let mut progress = Progress::new();
     let result = ringmain_core::simulate::simulate_with(&model, &ringmain_core::SimulateOptions::default(), &mut |f| {
         progress.update(f)

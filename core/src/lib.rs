@@ -33,6 +33,7 @@
 
 #![warn(missing_docs)]
 
+pub mod analysis;
 pub mod error;
 pub mod generate;
 pub mod model;

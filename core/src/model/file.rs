@@ -68,8 +68,18 @@ pub fn read_bytes(bytes: &[u8], format: Format, source: &str) -> Result<Model, M
     }
 }
 
-const TOP_KEYS: &[&str] =
-    &["title", "units", "hydraulics", "simulation", "electricity", "patterns", "nodes", "links", "controls"];
+const TOP_KEYS: &[&str] = &[
+    "title",
+    "units",
+    "hydraulics",
+    "criteria",
+    "simulation",
+    "electricity",
+    "patterns",
+    "nodes",
+    "links",
+    "controls",
+];
 const SIMULATION_KEYS: &[&str] = &["duration", "hydraulic_step", "report_interval", "start_clock", "level_tolerance"];
 const ENERGY_KEYS: &[&str] = &["price_per_kwh", "tariff_pattern", "currency"];
 const PATTERN_KEYS: &[&str] = &["id", "step", "multipliers"];
@@ -186,6 +196,8 @@ where
     };
     let energy = top.take("electricity");
     let patterns = top.array("patterns")?;
+    // Checked by `analysis::Criteria::from_value`, which the commands that use it call.
+    let criteria = top.take("criteria");
     let nodes: Box<dyn Iterator<Item = Result<Value, ModelError>>> = match nodes {
         Some(items) => Box::new(items),
         None => Box::new(top.array("nodes")?.into_iter().map(Ok)),
@@ -207,6 +219,7 @@ where
     if let Some(v) = energy {
         model.time.energy = read_energy(v, &model.time)?;
     }
+    model.criteria = criteria;
     for (i, v) in nodes.enumerate() {
         let index = model.nodes().len();
         let node = read_node(i, v?, &units, index, &mut model.time)?;

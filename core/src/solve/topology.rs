@@ -42,6 +42,11 @@ impl Adjacency {
     }
 }
 
+/// The end points `(from, to)` of every link, compact for the passes over all links.
+pub fn link_ends(model: &Model) -> Vec<(u32, u32)> {
+    model.links().iter().map(|l| (l.from as u32, l.to as u32)).collect()
+}
+
 /// Marks in `connected` every node that a path of links with `open[k]` joins to a fixed head.
 /// `ends` holds every link's `(from, to)`; `stack` is scratch space.
 pub fn mark_connected(

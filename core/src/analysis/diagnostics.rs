@@ -1,0 +1,340 @@
+//! Model diagnostics: things in a valid model that an engineer should look at.
+//!
+//! None of these stops a solve; each is a warning, or a failure when the criteria list its code in
+//! `fail_on_warnings`. The plausible ranges are common practice for drinking-water distribution,
+//! not limits of the method:
+//!
+//! - Hazen–Williams C between 40 and 160: handbook tables run from about 40 for badly
+//!   tuberculated old cast iron to about 150–160 for new plastic pipe (common practice; the range
+//!   as remembered from several handbooks, no single source).
+//! - Diameters between 10 mm and 3000 mm: service pipes start near 10 mm and the largest trunk
+//!   mains are about 3 m across (common practice); values outside usually mean a unit mistake
+//!   (metres written as millimetres or the reverse).
+//! - Velocities up to 3 m/s: design guides keep distribution mains well below this to limit head
+//!   loss, surge and scour (common practice); faster water usually means an undersized pipe or a
+//!   wrong demand.
+//! - Elevations within 100 m of the median of a junction's neighbours: our own rule of thumb for
+//!   catching a mistyped digit (1200 written for 120); two joined nodes can legitimately differ by
+//!   more on a steep rising main, which is why this is only a warning.
+//!
+//! A link whose both ends are the same node is not a warning: the reader rejects it as an error.
+
+use crate::error::Element;
+use crate::model::{HeadLossLaw, LinkKind, LinkStatus, Model, NodeKind};
+use crate::solve::topology::{mark_connected, Adjacency};
+use crate::solve::Solution;
+use std::collections::HashMap;
+use std::ops::RangeInclusive;
+
+/// Plausible Hazen–Williams C (common practice, see the module docs).
+pub const PLAUSIBLE_HAZEN_WILLIAMS_C: RangeInclusive<f64> = 40.0..=160.0;
+/// Plausible pipe and valve diameters, m (common practice).
+pub const PLAUSIBLE_DIAMETER: RangeInclusive<f64> = 0.010..=3.0;
+/// Highest plausible velocity, m/s (common practice).
+pub const PLAUSIBLE_VELOCITY: f64 = 3.0;
+/// Largest difference from the median elevation of a junction's neighbours, m (our own rule).
+pub const ELEVATION_OUTLIER: f64 = 100.0;
+
+/// The kinds of warning, each with a short code used in reports and in `fail_on_warnings`.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash)]
+#[non_exhaustive]
+pub enum DiagnosticKind {
+    /// A junction that no reservoir or tank reaches through any link, open or closed.
+    IsolatedJunction,
+    /// A junction with a demand that only closed links join to a source.
+    ClosedOffDemand,
+    /// Two pipes joining the same two nodes.
+    ParallelPipes,
+    /// Hazen–Williams C outside the plausible range.
+    RoughnessRange,
+    /// A diameter outside the plausible range.
+    DiameterRange,
+    /// An elevation far from its neighbours'.
+    ElevationOutlier,
+    /// A velocity above the plausible maximum in the solved base scenario.
+    HighVelocity,
+}
+
+impl DiagnosticKind {
+    /// Every kind.
+    pub const ALL: &'static [DiagnosticKind] = &[
+        DiagnosticKind::IsolatedJunction,
+        DiagnosticKind::ClosedOffDemand,
+        DiagnosticKind::ParallelPipes,
+        DiagnosticKind::RoughnessRange,
+        DiagnosticKind::DiameterRange,
+        DiagnosticKind::ElevationOutlier,
+        DiagnosticKind::HighVelocity,
+    ];
+
+    /// The short code.
+    pub fn code(self) -> &'static str {
+        match self {
+            DiagnosticKind::IsolatedJunction => "isolated-junction",
+            DiagnosticKind::ClosedOffDemand => "closed-off-demand",
+            DiagnosticKind::ParallelPipes => "parallel-pipes",
+            DiagnosticKind::RoughnessRange => "roughness-range",
+            DiagnosticKind::DiameterRange => "diameter-range",
+            DiagnosticKind::ElevationOutlier => "elevation-outlier",
+            DiagnosticKind::HighVelocity => "high-velocity",
+        }
+    }
+
+    /// Parses a code.
+    pub fn parse(code: &str) -> Option<Self> {
+        Self::ALL.iter().copied().find(|d| d.code() == code)
+    }
+}
+
+/// One warning about one element.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Diagnostic {
+    /// What kind of warning.
+    pub kind: DiagnosticKind,
+    /// The element concerned.
+    pub element: Element,
+    /// The key concerned, when one value is the cause.
+    pub key: Option<&'static str>,
+    /// What to look at, values in the model's units.
+    pub message: String,
+}
+
+/// Warnings about the model's data and structure (no solve needed).
+pub fn diagnose_model(model: &Model) -> Vec<Diagnostic> {
+    let mut out = Vec::new();
+    reachability(model, &mut out);
+    parallel_pipes(model, &mut out);
+    ranges(model, &mut out);
+    elevations(model, &mut out);
+    out
+}
+
+/// Warnings about a solved scenario of the model (velocities).
+pub fn diagnose_solution(model: &Model, solution: &Solution) -> Vec<Diagnostic> {
+    let u = &model.units;
+    let mut out = Vec::new();
+    for (k, l) in model.links().iter().enumerate() {
+        if matches!(l.kind, LinkKind::Pump(_)) {
+            continue;
+        }
+        let v = solution.velocity.get(k).copied().unwrap_or(0.0).abs();
+        if v > PLAUSIBLE_VELOCITY {
+            out.push(Diagnostic {
+                kind: DiagnosticKind::HighVelocity,
+                element: Element::Link(l.id.clone()),
+                key: Some("diameter"),
+                message: format!(
+                    "velocity {:.2} {} is above {:.1} {} (common practice): is the pipe undersized or a demand wrong?",
+                    u.length.from_si(v),
+                    u.velocity_label(),
+                    u.length.from_si(PLAUSIBLE_VELOCITY),
+                    u.velocity_label()
+                ),
+            });
+        }
+    }
+    out
+}
+
+fn reachability(model: &Model, out: &mut Vec<Diagnostic>) {
+    let adjacency = Adjacency::new(model);
+    let ends = crate::solve::topology::link_ends(model);
+    let n = model.nodes().len();
+    let mut stack = Vec::with_capacity(n);
+    let mut any = vec![false; n];
+    let mut open = vec![false; n];
+    let all_links = vec![true; model.links().len()];
+    mark_connected(model, &adjacency, &ends, &all_links, &mut any, &mut stack);
+    let open_links: Vec<bool> = model.links().iter().map(|l| l.status != LinkStatus::Closed).collect();
+    mark_connected(model, &adjacency, &ends, &open_links, &mut open, &mut stack);
+    for (i, node) in model.nodes().iter().enumerate() {
+        if !matches!(node.kind, NodeKind::Junction { .. }) {
+            continue;
+        }
+        if !any[i] {
+            out.push(Diagnostic {
+                kind: DiagnosticKind::IsolatedJunction,
+                element: Element::Node(node.id.clone()),
+                key: None,
+                message: "no reservoir or tank can reach it through any link, open or closed".into(),
+            });
+        } else if !open[i] && node.demand() != 0.0 {
+            out.push(Diagnostic {
+                kind: DiagnosticKind::ClosedOffDemand,
+                element: Element::Node(node.id.clone()),
+                key: Some("demand"),
+                message: format!(
+                    "has a demand of {:.3} {} but only closed links join it to a source",
+                    model.units.flow.from_si(node.demand()),
+                    model.units.flow.label()
+                ),
+            });
+        }
+    }
+}
+
+fn parallel_pipes(model: &Model, out: &mut Vec<Diagnostic>) {
+    let mut first: HashMap<(usize, usize), usize> = HashMap::new();
+    for (k, l) in model.links().iter().enumerate() {
+        let Some(p) = l.as_pipe() else { continue };
+        let ends = (l.from.min(l.to), l.from.max(l.to));
+        match first.get(&ends) {
+            None => {
+                first.insert(ends, k);
+            }
+            Some(&j) => {
+                let other = &model.links()[j];
+                let same = other.as_pipe().is_some_and(|q| {
+                    let close = |a: f64, b: f64| (a - b).abs() <= 1e-9 * a.abs().max(b.abs());
+                    close(p.length, q.length) && close(p.diameter, q.diameter) && close(p.roughness, q.roughness)
+                });
+                let nodes = model.nodes();
+                out.push(Diagnostic {
+                    kind: DiagnosticKind::ParallelPipes,
+                    element: Element::Link(l.id.clone()),
+                    key: Some("to"),
+                    message: if same {
+                        format!(
+                            "joins '{}' and '{}' like pipe '{}', with the same length, diameter and roughness: \
+                             a duplicate entry?",
+                            nodes[ends.0].id, nodes[ends.1].id, other.id
+                        )
+                    } else {
+                        format!(
+                            "joins '{}' and '{}' like pipe '{}' (fine for a twin main; check it is not a duplicate)",
+                            nodes[ends.0].id, nodes[ends.1].id, other.id
+                        )
+                    },
+                });
+            }
+        }
+    }
+}
+
+fn ranges(model: &Model, out: &mut Vec<Diagnostic>) {
+    let u = &model.units;
+    let d_text = |d: f64| format!("{} {}", u.diameter.from_si(d), u.diameter.label());
+    for l in model.links() {
+        if let Some(d) = l.diameter() {
+            if !PLAUSIBLE_DIAMETER.contains(&d) {
+                out.push(Diagnostic {
+                    kind: DiagnosticKind::DiameterRange,
+                    element: Element::Link(l.id.clone()),
+                    key: Some("diameter"),
+                    message: format!(
+                        "diameter {} is outside {} to {} (common practice): is the unit right?",
+                        d_text(d),
+                        d_text(*PLAUSIBLE_DIAMETER.start()),
+                        d_text(*PLAUSIBLE_DIAMETER.end())
+                    ),
+                });
+            }
+        }
+        if let Some(p) = l.as_pipe() {
+            if model.options.headloss == HeadLossLaw::HazenWilliams
+                && !PLAUSIBLE_HAZEN_WILLIAMS_C.contains(&p.roughness)
+            {
+                out.push(Diagnostic {
+                    kind: DiagnosticKind::RoughnessRange,
+                    element: Element::Link(l.id.clone()),
+                    key: Some("roughness"),
+                    message: format!(
+                        "Hazen-Williams C {} is outside {} to {} (common practice)",
+                        p.roughness,
+                        PLAUSIBLE_HAZEN_WILLIAMS_C.start(),
+                        PLAUSIBLE_HAZEN_WILLIAMS_C.end()
+                    ),
+                });
+            }
+        }
+    }
+}
+
+fn elevations(model: &Model, out: &mut Vec<Diagnostic>) {
+    let nodes = model.nodes();
+    let adjacency = Adjacency::new(model);
+    let mut around = Vec::new();
+    for (i, node) in nodes.iter().enumerate() {
+        if !matches!(node.kind, NodeKind::Junction { .. }) {
+            continue;
+        }
+        around.clear();
+        for &k in adjacency.of(i) {
+            let l = &model.links()[k as usize];
+            let other = if l.from == i { l.to } else { l.from };
+            around.push(nodes[other].elevation);
+        }
+        if around.is_empty() {
+            continue;
+        }
+        around.sort_by(f64::total_cmp);
+        let m = around.len();
+        let median = if m % 2 == 1 { around[m / 2] } else { 0.5 * (around[m / 2 - 1] + around[m / 2]) };
+        if (node.elevation - median).abs() > ELEVATION_OUTLIER {
+            let len = |v: f64| model.units.length.from_si(v);
+            let unit = model.units.length.label();
+            out.push(Diagnostic {
+                kind: DiagnosticKind::ElevationOutlier,
+                element: Element::Node(node.id.clone()),
+                key: Some("elevation"),
+                message: format!(
+                    "elevation {:.1} {unit} is {:.1} {unit} from the median of its neighbours ({:.1} {unit}): a \
+                     mistyped digit?",
+                    len(node.elevation),
+                    len((node.elevation - median).abs()),
+                    len(median)
+                ),
+            });
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::model::{Link, Node, Pipe};
+
+    fn pipe(id: &str, from: usize, to: usize, d: f64, c: f64) -> Link {
+        Link {
+            id: id.into(),
+            from,
+            to,
+            status: LinkStatus::Open,
+            kind: LinkKind::Pipe(Pipe {
+                length: 100.0,
+                diameter: d,
+                roughness: c,
+                minor_loss: 0.0,
+                check_valve: false,
+            }),
+        }
+    }
+
+    #[test]
+    fn each_kind_is_found() {
+        let mut m = Model::default();
+        m.add_node(Node::reservoir("R", 50.0)).unwrap();
+        m.add_node(Node::junction("A", 10.0, 0.001)).unwrap();
+        m.add_node(Node::junction("B", 12.0, 0.001)).unwrap();
+        m.add_node(Node::junction("C", 11.0, 0.002)).unwrap();
+        m.add_node(Node::junction("Lone", 11.0, 0.0)).unwrap();
+        m.add_node(Node::junction("High", 900.0, 0.0)).unwrap();
+        m.add_link(pipe("P1", 0, 1, 0.2, 120.0)).unwrap();
+        m.add_link(pipe("P2", 1, 2, 0.2, 120.0)).unwrap();
+        m.add_link(pipe("P2b", 2, 1, 0.2, 120.0)).unwrap();
+        let mut closed = pipe("P3", 2, 3, 5.0, 20.0);
+        closed.status = LinkStatus::Closed;
+        m.add_link(closed).unwrap();
+        m.add_link(pipe("P4", 2, 5, 0.1, 120.0)).unwrap();
+        let found: Vec<(DiagnosticKind, String)> =
+            diagnose_model(&m).into_iter().map(|d| (d.kind, d.element.to_string())).collect();
+        let has = |k: DiagnosticKind, e: &str| found.iter().any(|(fk, fe)| *fk == k && fe == e);
+        assert!(has(DiagnosticKind::IsolatedJunction, "node 'Lone'"), "{found:?}");
+        assert!(has(DiagnosticKind::ClosedOffDemand, "node 'C'"), "{found:?}");
+        assert!(has(DiagnosticKind::ParallelPipes, "link 'P2b'"), "{found:?}");
+        assert!(has(DiagnosticKind::DiameterRange, "link 'P3'"), "{found:?}");
+        assert!(has(DiagnosticKind::RoughnessRange, "link 'P3'"), "{found:?}");
+        assert!(has(DiagnosticKind::ElevationOutlier, "node 'High'"), "{found:?}");
+        assert_eq!(found.len(), 6, "{found:?}");
+    }
+}

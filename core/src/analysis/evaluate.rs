@@ -1,0 +1,256 @@
+//! Evaluating criteria on a solved scenario: one [`CheckResult`] per criterion, worst first.
+
+use super::criteria::{Criteria, Quantity};
+use super::diagnostics::Diagnostic;
+use crate::error::Element;
+use crate::model::{LinkKind, Model, NodeKind};
+use crate::solve::Solution;
+
+/// One element that breaks a criterion.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Finding {
+    /// The element.
+    pub element: Element,
+    /// The value found, SI (NaN when the criterion has no value, e.g. a warning).
+    pub value: f64,
+    /// The limit it breaks, SI (NaN when there is none).
+    pub limit: f64,
+    /// How far beyond the limit, SI of the same quantity; what "worst" sorts by.
+    pub excess: f64,
+    /// Words for findings that are not a value against a limit.
+    pub detail: Option<String>,
+}
+
+/// The outcome of one criterion in one scenario.
+#[derive(Clone, Debug, PartialEq)]
+pub struct CheckResult {
+    /// The criterion's name, as the key in the criteria table (`min_pressure`,
+    /// `groups.<name>.min_pressure`, `warnings.<code>`).
+    pub name: String,
+    /// What the values measure.
+    pub quantity: Quantity,
+    /// The limit, SI (NaN for criteria without one).
+    pub limit: f64,
+    /// How many elements were checked.
+    pub checked: usize,
+    /// How many break the criterion.
+    pub failures: usize,
+    /// The worst findings, worst first (at most the number asked for).
+    pub worst: Vec<Finding>,
+}
+
+impl CheckResult {
+    /// Whether the criterion holds.
+    pub fn passed(&self) -> bool {
+        self.failures == 0
+    }
+
+    fn new(name: impl Into<String>, quantity: Quantity, limit: f64) -> Self {
+        CheckResult { name: name.into(), quantity, limit, checked: 0, failures: 0, worst: Vec::new() }
+    }
+
+    /// Counts a finding and keeps it when it is among the `keep` worst.
+    fn add(&mut self, finding: Finding, keep: usize) {
+        self.failures += 1;
+        if keep == 0 {
+            return;
+        }
+        let at = self.worst.partition_point(|f| f.excess >= finding.excess);
+        if at < keep {
+            self.worst.insert(at, finding);
+            self.worst.truncate(keep);
+        }
+    }
+}
+
+/// The pressure limits that apply to a junction: its groups' where they set the key, else global.
+fn pressure_checks(criteria: &Criteria, model: &Model, solution: &Solution, keep: usize) -> Vec<CheckResult> {
+    let mut global_min = criteria.min_pressure.map(|l| CheckResult::new("min_pressure", Quantity::Pressure, l));
+    let mut global_max = criteria.max_pressure.map(|l| CheckResult::new("max_pressure", Quantity::Pressure, l));
+    let mut groups: Vec<(Option<CheckResult>, Option<CheckResult>)> = criteria
+        .groups
+        .iter()
+        .map(|g| {
+            (
+                g.min_pressure
+                    .map(|l| CheckResult::new(format!("groups.{}.min_pressure", g.name), Quantity::Pressure, l)),
+                g.max_pressure
+                    .map(|l| CheckResult::new(format!("groups.{}.max_pressure", g.name), Quantity::Pressure, l)),
+            )
+        })
+        .collect();
+    for (i, node) in model.nodes().iter().enumerate() {
+        if !matches!(node.kind, NodeKind::Junction { .. }) {
+            continue;
+        }
+        let p = solution.pressure[i];
+        // Disconnected junctions have no pressure; `all_demands_supplied` reports them.
+        let connected = solution.connected[i] && p.is_finite();
+        let (mut min_by_group, mut max_by_group) = (false, false);
+        for (g, (lo, hi)) in criteria.groups.iter().zip(groups.iter_mut()) {
+            if !g.selects(&node.id, node.zone.as_deref()) {
+                continue;
+            }
+            for (check, is_min) in [(lo.as_mut(), true), (hi.as_mut(), false)] {
+                let Some(c) = check else { continue };
+                if is_min {
+                    min_by_group = true;
+                } else {
+                    max_by_group = true;
+                }
+                if connected {
+                    check_pressure(c, &node.id, p, is_min, keep);
+                }
+            }
+        }
+        if !connected {
+            continue;
+        }
+        if let Some(c) = global_min.as_mut().filter(|_| !min_by_group) {
+            check_pressure(c, &node.id, p, true, keep);
+        }
+        if let Some(c) = global_max.as_mut().filter(|_| !max_by_group) {
+            check_pressure(c, &node.id, p, false, keep);
+        }
+    }
+    let mut out: Vec<CheckResult> = global_min.into_iter().chain(global_max).collect();
+    for (lo, hi) in groups {
+        out.extend(lo);
+        out.extend(hi);
+    }
+    out
+}
+
+fn check_pressure(c: &mut CheckResult, id: &str, p: f64, is_min: bool, keep: usize) {
+    c.checked += 1;
+    let excess = if is_min { c.limit - p } else { p - c.limit };
+    if excess > 0.0 {
+        c.add(Finding { element: Element::Node(id.to_owned()), value: p, limit: c.limit, excess, detail: None }, keep);
+    }
+}
+
+/// Evaluates every criterion but `must_converge` on a solved scenario. `keep` is how many of the
+/// worst findings each result lists (all are counted).
+pub fn evaluate(criteria: &Criteria, model: &Model, solution: &Solution, keep: usize) -> Vec<CheckResult> {
+    let nodes = model.nodes();
+    let links = model.links();
+    let mut out = Vec::new();
+    if criteria.all_demands_supplied {
+        let mut c = CheckResult::new("all_demands_supplied", Quantity::Flow, 0.0);
+        for (i, n) in nodes.iter().enumerate() {
+            if matches!(n.kind, NodeKind::Junction { .. }) && n.demand() > 0.0 {
+                c.checked += 1;
+                if !solution.connected[i] {
+                    let detail = Some("cut off from every reservoir and tank; its demand is not supplied".to_owned());
+                    let finding = Finding {
+                        element: Element::Node(n.id.clone()),
+                        value: n.demand(),
+                        limit: 0.0,
+                        excess: n.demand(),
+                        detail,
+                    };
+                    c.add(finding, keep);
+                }
+            }
+        }
+        out.push(c);
+    }
+    out.extend(pressure_checks(criteria, model, solution, keep));
+    if let Some(limit) = criteria.max_velocity {
+        let mut c = CheckResult::new("max_velocity", Quantity::Velocity, limit);
+        for (k, l) in links.iter().enumerate() {
+            if matches!(l.kind, LinkKind::Pump(_)) || !solution.link_state[k].carries_flow() {
+                continue;
+            }
+            c.checked += 1;
+            let v = solution.velocity[k].abs();
+            if v > limit {
+                c.add(
+                    Finding { element: Element::Link(l.id.clone()), value: v, limit, excess: v - limit, detail: None },
+                    keep,
+                );
+            }
+        }
+        out.push(c);
+    }
+    if let Some(limit) = criteria.max_headloss {
+        let mut c = CheckResult::new("max_headloss", Quantity::Gradient, limit);
+        for (k, l) in links.iter().enumerate() {
+            let Some(p) = l.as_pipe() else { continue };
+            if !solution.link_state[k].carries_flow() || !solution.headloss[k].is_finite() {
+                continue;
+            }
+            c.checked += 1;
+            let g = solution.headloss[k] / p.length;
+            if g > limit {
+                c.add(
+                    Finding { element: Element::Link(l.id.clone()), value: g, limit, excess: g - limit, detail: None },
+                    keep,
+                );
+            }
+        }
+        out.push(c);
+    }
+    if !criteria.source_capacity.is_empty() || criteria.min_supply_margin.is_some() {
+        let mut c = CheckResult::new("min_supply_margin", Quantity::Flow, f64::NAN);
+        for &(i, capacity) in &criteria.source_capacity {
+            c.checked += 1;
+            let allowed = criteria.min_supply_margin.map_or(capacity, |m| m.allowed_supply(capacity));
+            let supply = solution.net_outflow(model, i);
+            if supply > allowed {
+                let finding = Finding {
+                    element: Element::Node(nodes[i].id.clone()),
+                    value: supply,
+                    limit: allowed,
+                    excess: supply - allowed,
+                    detail: None,
+                };
+                c.add(finding, keep);
+            }
+        }
+        out.push(c);
+    }
+    if let Some(limit) = criteria.min_tank_reserve {
+        let mut c = CheckResult::new("min_tank_reserve", Quantity::Length, limit);
+        for n in nodes {
+            let NodeKind::Tank(t) = &n.kind else { continue };
+            c.checked += 1;
+            let reserve = t.level - t.min_level;
+            if reserve < limit {
+                let finding = Finding {
+                    element: Element::Node(n.id.clone()),
+                    value: reserve,
+                    limit,
+                    excess: limit - reserve,
+                    detail: None,
+                };
+                c.add(finding, keep);
+            }
+        }
+        out.push(c);
+    }
+    out
+}
+
+/// The warnings the criteria turn into failures, one result per code listed.
+pub fn warning_checks(criteria: &Criteria, diagnostics: &[Diagnostic], keep: usize) -> Vec<CheckResult> {
+    criteria
+        .fail_on_warnings
+        .iter()
+        .map(|&kind| {
+            let mut c = CheckResult::new(format!("warnings.{}", kind.code()), Quantity::None, f64::NAN);
+            for d in diagnostics.iter().filter(|d| d.kind == kind) {
+                let finding = Finding {
+                    element: d.element.clone(),
+                    value: f64::NAN,
+                    limit: f64::NAN,
+                    excess: 0.0,
+                    detail: Some(d.message.clone()),
+                };
+                c.add(finding, keep);
+            }
+            c.checked = c.failures;
+            c
+        })
+        .collect()
+}

@@ -1,0 +1,248 @@
+//! `ringmain check`: a model against service criteria, with what-if scenarios, for CI pipelines.
+//!
+//! Order of work: read the model (exit 2 on any error, with a snippet); read the criteria — the
+//! model's `[criteria]` table, then the `--criteria` file on top, key by key; build the what-if
+//! model (`--close`, `--demand-factor`); list the model's warnings; solve and evaluate the base
+//! scenario; with `--each-pipe-closed`, close every open pipe in turn on all cores. Then write
+//! the report (table or JSON on standard output, JUnit XML to `--junit`) and exit with the code
+//! of the worst thing found: 2 invalid input, 3 a scenario did not solve, 1 a criterion failed,
+//! 0 all criteria met (4: a report could not be written).
+
+use crate::check_report::{self, Run};
+use crate::snippet;
+use ringmain_core::analysis::{
+    diagnose_model, diagnose_solution, run_scenario, supplied_by_topology, sweep_candidates, sweep_pipes,
+    warning_checks, CheckOptions, Criteria, Scenario,
+};
+use ringmain_core::model::doc::{self, Value};
+use ringmain_core::{Format, ModelError, SolveError, SolveOptions, Solver};
+use std::io::IsTerminal;
+use std::path::{Path, PathBuf};
+use std::process::ExitCode;
+use std::time::Instant;
+
+/// Exit codes of `check` (documented in `--help` and docs/check.md).
+pub const EXIT_FAILED: u8 = 1;
+/// Invalid model, criteria file or arguments.
+pub const EXIT_INVALID: u8 = 2;
+/// A scenario did not solve.
+pub const EXIT_NOT_CONVERGED: u8 = 3;
+/// A report could not be written.
+pub const EXIT_WRITE: u8 = 4;
+
+/// What `check` was asked to do.
+pub struct Args {
+    pub model: PathBuf,
+    pub criteria: Option<PathBuf>,
+    pub close: Vec<String>,
+    pub demand_factor: f64,
+    pub each_pipe_closed: bool,
+    pub json: bool,
+    pub junit: Option<PathBuf>,
+    pub keep: usize,
+}
+
+/// A file's text, for snippets, and its format.
+pub struct SourceText {
+    pub name: String,
+    pub text: Option<String>,
+    pub format: Format,
+}
+
+/// Reads a file; errors name it.
+pub fn read_source(path: &Path) -> Result<(SourceText, Vec<u8>), ModelError> {
+    let name = path.display().to_string();
+    let bytes =
+        std::fs::read(path).map_err(|e| ModelError::new(format!("cannot read the file: {e}")).in_file(&name))?;
+    let text = String::from_utf8(bytes.clone()).ok();
+    let format = Format::from_path(path).unwrap_or_else(|| Format::sniff(&String::from_utf8_lossy(&bytes)));
+    Ok((SourceText { name, text, format }, bytes))
+}
+
+/// Prints an input error with its snippet.
+pub fn report_error(error: &ModelError, source: Option<&SourceText>) {
+    let color = std::io::stderr().is_terminal() && std::env::var_os("NO_COLOR").is_none();
+    let (text, format) = match source {
+        Some(s) if error.file.as_deref() == Some(s.name.as_str()) => (s.text.as_deref(), s.format),
+        _ => (None, Format::Toml),
+    };
+    eprint!("{}", snippet::render(error, text, format, color));
+}
+
+/// Reads a criteria file: a `[criteria]` table, or the criteria keys at the top level.
+fn read_criteria_file(path: &Path) -> Result<(SourceText, Value), (ModelError, Option<SourceText>)> {
+    let (source, bytes) = read_source(path).map_err(|e| (e, None))?;
+    let name = source.name.clone();
+    let Some(text) = source.text.as_deref() else {
+        let e = ringmain_core::read_bytes(&bytes, source.format, &name)
+            .err()
+            .unwrap_or_else(|| ModelError::new("the file is not UTF-8 text (is it a binary file?)").in_file(&name));
+        return Err((e, Some(source)));
+    };
+    let parsed = match source.format {
+        Format::Toml => doc::parse_toml(text),
+        Format::Json => doc::parse_json(text),
+    };
+    let tree = match parsed {
+        Ok(t) => t,
+        Err(e) => {
+            let kind = if source.format == Format::Json { "JSON" } else { "TOML" };
+            let mut error = ModelError::new(format!("{kind} syntax error: {}", e.message)).in_file(&name);
+            error.position = e.position;
+            return Err((error, Some(source)));
+        }
+    };
+    let value = match tree {
+        Value::Table(mut entries) if entries.len() == 1 && entries[0].0 == "criteria" => entries.remove(0).1,
+        other => other,
+    };
+    Ok((source, value))
+}
+
+fn exit(code: u8) -> ExitCode {
+    ExitCode::from(code)
+}
+
+/// Runs the command.
+pub fn run(args: Args) -> ExitCode {
+    let started = Instant::now();
+    let (model_source, bytes) = match read_source(&args.model) {
+        Ok(s) => s,
+        Err(e) => {
+            report_error(&e, None);
+            return exit(EXIT_INVALID);
+        }
+    };
+    let model = match ringmain_core::read_bytes(&bytes, model_source.format, &model_source.name) {
+        Ok(m) => m,
+        Err(e) => {
+            report_error(&e, Some(&model_source));
+            return exit(EXIT_INVALID);
+        }
+    };
+    drop(bytes);
+
+    let mut criteria = Criteria::default();
+    if let Some(v) = &model.criteria {
+        if let Err(e) = criteria.apply(v, &model) {
+            report_error(&e.in_file(&model_source.name), Some(&model_source));
+            return exit(EXIT_INVALID);
+        }
+    }
+    let mut criteria_source = None;
+    if let Some(path) = &args.criteria {
+        match read_criteria_file(path) {
+            Ok((source, value)) => {
+                if let Err(e) = criteria.apply(&value, &model) {
+                    report_error(&e.in_file(&source.name), Some(&source));
+                    return exit(EXIT_INVALID);
+                }
+                criteria_source = Some(source.name);
+            }
+            Err((e, source)) => {
+                report_error(&e, source.as_ref());
+                return exit(EXIT_INVALID);
+            }
+        }
+    }
+
+    let scenario = Scenario { close: args.close.clone(), demand_factor: args.demand_factor };
+    let what_if = match scenario.apply(&model) {
+        Ok(m) => m,
+        Err(e) => {
+            let mut e = e;
+            e.message = match e.element {
+                Some(_) => format!("{} (--close)", e.message),
+                None => format!("--demand-factor: {}", e.message),
+            };
+            report_error(&e.in_file(&model_source.name), None);
+            return exit(EXIT_INVALID);
+        }
+    };
+
+    let options = CheckOptions { keep: args.keep };
+    let mut warnings = diagnose_model(&what_if);
+    let mut notes = Vec::new();
+    for g in &criteria.groups {
+        if !what_if.nodes().iter().any(|n| g.selects(&n.id, n.zone.as_deref())) {
+            notes.push(format!("criteria group '{}' selects no node of this model", g.name));
+        }
+    }
+    let mut solver = match Solver::new(&what_if) {
+        Ok(s) => s,
+        Err(SolveError::Model(e)) => {
+            report_error(&e.in_file(&model_source.name), Some(&model_source));
+            return exit(EXIT_INVALID);
+        }
+        Err(e) => {
+            eprintln!("error: {}: {e}", model_source.name);
+            return exit(EXIT_NOT_CONVERGED);
+        }
+    };
+    let (mut base, solution) =
+        run_scenario(&what_if, &criteria, &mut solver, &SolveOptions::from_model(&what_if), None, &options);
+    if let Some(s) = &solution {
+        warnings.extend(diagnose_solution(&what_if, s));
+    }
+    base.checks.extend(warning_checks(&criteria, &warnings, options.keep));
+
+    let sweep = if args.each_pipe_closed {
+        // Supply lost is measured against the solved scenario, or the open links when it has no solution.
+        let reference = if base.connected.is_empty() { supplied_by_topology(&what_if) } else { base.connected.clone() };
+        let pipes = sweep_candidates(&what_if);
+        let bar = progress_bar(pipes.len());
+        let tick = |done: usize, _total: usize| {
+            if let Some(b) = &bar {
+                b.set_position(done as u64);
+            }
+        };
+        let results = sweep_pipes(&what_if, &pipes, &criteria, &reference, &options, &tick);
+        if let Some(b) = bar {
+            b.finish_and_clear();
+        }
+        Some(results)
+    } else {
+        None
+    };
+
+    let run = Run {
+        model_name: &model_source.name,
+        criteria_name: criteria_source.as_deref(),
+        model: &what_if,
+        criteria: &criteria,
+        scenario: &scenario,
+        base: &base,
+        sweep: sweep.as_deref(),
+        warnings: &warnings,
+        notes: &notes,
+        seconds: started.elapsed().as_secs_f64(),
+    };
+    let code = run.exit_code();
+    let text = if args.json {
+        serde_json::to_string_pretty(&check_report::to_json(&run, code)).unwrap_or_default() + "\n"
+    } else {
+        check_report::to_table(&run, code)
+    };
+    if let Some(path) = &args.junit {
+        if let Err(e) = std::fs::write(path, check_report::to_junit(&run)) {
+            eprintln!("error: cannot write the JUnit report to {}: {e}", path.display());
+            return exit(EXIT_WRITE);
+        }
+    }
+    let written = crate::write_out(&text, None);
+    if written != ExitCode::SUCCESS {
+        return written;
+    }
+    exit(code)
+}
+
+fn progress_bar(total: usize) -> Option<indicatif::ProgressBar> {
+    if !std::io::stderr().is_terminal() || total == 0 {
+        return None;
+    }
+    let bar = indicatif::ProgressBar::with_draw_target(Some(total as u64), indicatif::ProgressDrawTarget::stderr());
+    let style = indicatif::ProgressStyle::with_template("closing each pipe {bar:40} {pos}/{len} [{elapsed} < {eta}]")
+        .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar());
+    bar.set_style(style);
+    Some(bar)
+}
