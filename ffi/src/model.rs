@@ -8,7 +8,7 @@ use crate::codes::*;
 use crate::convert::Units;
 use crate::results::ringmain_results;
 use ringmain_core::model::write::to_string;
-use ringmain_core::model::{HydraulicOptions, Pump, PumpDrive, Valve, WaterSpec};
+use ringmain_core::model::{HydraulicOptions, LinkControl, Pump, PumpDrive, Valve, WaterSpec};
 use ringmain_core::physics::pump::{Efficiency, HeadCurve};
 use ringmain_core::physics::WaterProperties;
 use ringmain_core::units::{suggest, UnitSystem};
@@ -1334,25 +1334,12 @@ pub unsafe extern "C" fn ringmain_model_set_link_status(
         // SAFETY: the caller's contract above.
         unsafe {
             change_link(model, link, |l, _| {
-                let (new, automatic) = match status {
-                    ringmain_link_status::RINGMAIN_STATUS_OPEN => (LinkStatus::Open, false),
-                    ringmain_link_status::RINGMAIN_STATUS_CLOSED => (LinkStatus::Closed, false),
-                    ringmain_link_status::RINGMAIN_STATUS_AUTOMATIC => (LinkStatus::Open, true),
+                let control = match status {
+                    ringmain_link_status::RINGMAIN_STATUS_OPEN => LinkControl::Open,
+                    ringmain_link_status::RINGMAIN_STATUS_CLOSED => LinkControl::Closed,
+                    ringmain_link_status::RINGMAIN_STATUS_AUTOMATIC => LinkControl::Automatic,
                 };
-                match &mut l.kind {
-                    LinkKind::Valve(v) => v.automatic = automatic,
-                    other if automatic => {
-                        let e = ModelError::at(
-                            Some(Element::Link(l.id.clone())),
-                            Some("status"),
-                            format!("\"automatic\" applies to valves only; this link is a {}", other.label()),
-                        );
-                        return Err(Failure::invalid(e.to_string()));
-                    }
-                    _ => {}
-                }
-                l.status = new;
-                Ok(())
+                l.set_control(control).map_err(|e| Failure::invalid(e.to_string()))
             })
         }
     }

@@ -31,6 +31,11 @@ def test_results_equal_the_command_line_program(path, cli_json):
         results = model.solve()
         assert model.title == expected["title"]
         units = model.units
+    with results:
+        _check_against_cli(results, units, expected)
+
+
+def _check_against_cli(results, units, expected):
     assert results.converged is expected["converged"] is True
     assert results.iterations == expected["iterations"]
     assert results.status_changes == expected["status_changes"]
@@ -65,7 +70,6 @@ def test_results_equal_the_command_line_program(path, cli_json):
             assert math.isnan(results.link_velocity(want["id"]))
         assert results.link_status(want["id"]) == want["status"]
     assert results.warnings == expected["warnings"]
-    results.close()
 
 
 def test_numpy_arrays_hold_the_same_values(cli_json):

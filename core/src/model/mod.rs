@@ -208,6 +208,17 @@ impl LinkStatus {
     }
 }
 
+/// How a link is operated, as the `status` key of a model file says it.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum LinkControl {
+    /// In service; a valve is held fully open.
+    Open,
+    /// Out of service.
+    Closed,
+    /// A valve regulating by its setting (valves only).
+    Automatic,
+}
+
 /// A pipe.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Pipe {
@@ -345,6 +356,28 @@ impl Link {
             LinkKind::Pipe(p) => Some(p),
             _ => None,
         }
+    }
+
+    /// Sets how the link is operated: its status, and for a valve whether it regulates.
+    pub fn set_control(&mut self, control: LinkControl) -> Result<(), ModelError> {
+        let (status, automatic) = match control {
+            LinkControl::Open => (LinkStatus::Open, false),
+            LinkControl::Closed => (LinkStatus::Closed, false),
+            LinkControl::Automatic => (LinkStatus::Open, true),
+        };
+        match &mut self.kind {
+            LinkKind::Valve(v) => v.automatic = automatic,
+            other if automatic => {
+                return Err(ModelError::at(
+                    Some(Element::Link(self.id.clone())),
+                    Some("status"),
+                    format!("\"automatic\" applies to valves only; this link is a {}", other.label()),
+                ))
+            }
+            _ => {}
+        }
+        self.status = status;
+        Ok(())
     }
 
     /// The pump data, when the link is a pump.

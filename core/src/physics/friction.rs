@@ -31,7 +31,9 @@ pub const HW_DIAMETER_EXPONENT: f64 = 2.63 / 0.54;
 
 /// The SI Hazen–Williams head-loss constant K (see the module docs), derived from 0.849.
 pub fn hazen_williams_constant() -> f64 {
-    (0.849 * PI / 4.0 * 4f64.powf(-0.63)).powf(-HW_FLOW_EXPONENT)
+    static K: std::sync::LazyLock<f64> =
+        std::sync::LazyLock::new(|| (0.849 * PI / 4.0 * 4f64.powf(-0.63)).powf(-HW_FLOW_EXPONENT));
+    *K
 }
 
 /// Hazen–Williams resistance `r` in `h = r |Q|^n` (SI), for length `l`, diameter `d`, coefficient `c`.
