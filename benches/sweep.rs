@@ -28,7 +28,7 @@ fn side() -> usize {
 
 fn pipe(id: String, from: usize, to: usize, diameter: f64) -> Link {
     Link {
-        id,
+        id: id.into(),
         from,
         to,
         status: LinkStatus::Open,

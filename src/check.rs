@@ -42,28 +42,61 @@ pub struct Args {
     pub keep: usize,
 }
 
-/// A file's text, for snippets, and its format.
+/// A file, for snippets: its name, its format, and its text when it is at hand (otherwise it is
+/// read again from `path` when an error needs a snippet).
 pub struct SourceText {
     pub name: String,
+    pub path: PathBuf,
     pub text: Option<String>,
     pub format: Format,
 }
 
-/// Reads a file; errors name it.
+/// Reads a file; errors name it. The text is not kept (see [`SourceText`]).
 pub fn read_source(path: &Path) -> Result<(SourceText, Vec<u8>), ModelError> {
     let name = path.display().to_string();
     let bytes =
         std::fs::read(path).map_err(|e| ModelError::new(format!("cannot read the file: {e}")).in_file(&name))?;
-    let text = String::from_utf8(bytes.clone()).ok();
     let format = Format::from_path(path).unwrap_or_else(|| Format::sniff(&String::from_utf8_lossy(&bytes)));
-    Ok((SourceText { name, text, format }, bytes))
+    Ok((SourceText { name, path: path.to_owned(), text: None, format }, bytes))
+}
+
+/// JSON model files larger than this are read straight from the file instead of as one text.
+const STREAM_ABOVE_BYTES: u64 = 64 << 20;
+
+/// Reads a model file. A large JSON file is first read in one pass straight from the file,
+/// without holding its text (a network of a million junctions takes some 300 MB of JSON); any
+/// other file, or a JSON file that reader gives up on (an error, or keys in an order it cannot
+/// take in one pass), is read as one text, so that every error comes with its position. (Parsing
+/// a text in memory is about twice as fast as parsing from a file, so smaller files are read so.)
+pub fn read_model(path: &Path) -> Result<(ringmain_core::Model, SourceText), (ModelError, Option<SourceText>)> {
+    let name = path.display().to_string();
+    let large = std::fs::metadata(path).is_ok_and(|m| m.len() > STREAM_ABOVE_BYTES);
+    if large && Format::from_path(path) == Some(Format::Json) {
+        if let Ok(file) = std::fs::File::open(path) {
+            if let Some(model) = ringmain_core::model::file::read_json_stream(file) {
+                return Ok((model, SourceText { name, path: path.to_owned(), text: None, format: Format::Json }));
+            }
+        }
+    }
+    let (source, bytes) = read_source(path).map_err(|e| (e, None))?;
+    match ringmain_core::read_bytes(&bytes, source.format, &source.name) {
+        Ok(model) => Ok((model, source)),
+        Err(e) => Err((e, Some(source))),
+    }
 }
 
 /// Prints an input error with its snippet.
 pub fn report_error(error: &ModelError, source: Option<&SourceText>) {
     let color = std::io::stderr().is_terminal() && std::env::var_os("NO_COLOR").is_none();
+    let loaded;
     let (text, format) = match source {
-        Some(s) if error.file.as_deref() == Some(s.name.as_str()) => (s.text.as_deref(), s.format),
+        Some(s) if error.file.as_deref() == Some(s.name.as_str()) => match &s.text {
+            Some(t) => (Some(t.as_str()), s.format),
+            None => {
+                loaded = std::fs::read_to_string(&s.path).ok();
+                (loaded.as_deref(), s.format)
+            }
+        },
         _ => (None, Format::Toml),
     };
     eprint!("{}", snippet::render(error, text, format, color));
@@ -71,8 +104,9 @@ pub fn report_error(error: &ModelError, source: Option<&SourceText>) {
 
 /// Reads a criteria file: a `[criteria]` table, or the criteria keys at the top level.
 fn read_criteria_file(path: &Path) -> Result<(SourceText, Value), (ModelError, Option<SourceText>)> {
-    let (source, bytes) = read_source(path).map_err(|e| (e, None))?;
+    let (mut source, bytes) = read_source(path).map_err(|e| (e, None))?;
     let name = source.name.clone();
+    source.text = String::from_utf8(bytes.clone()).ok();
     let Some(text) = source.text.as_deref() else {
         let e = ringmain_core::read_bytes(&bytes, source.format, &name)
             .err()
@@ -106,21 +140,13 @@ fn exit(code: u8) -> ExitCode {
 /// Runs the command.
 pub fn run(args: Args) -> ExitCode {
     let started = Instant::now();
-    let (model_source, bytes) = match read_source(&args.model) {
-        Ok(s) => s,
-        Err(e) => {
-            report_error(&e, None);
+    let (model, model_source) = match read_model(&args.model) {
+        Ok(read) => read,
+        Err((e, source)) => {
+            report_error(&e, source.as_ref());
             return exit(EXIT_INVALID);
         }
     };
-    let model = match ringmain_core::read_bytes(&bytes, model_source.format, &model_source.name) {
-        Ok(m) => m,
-        Err(e) => {
-            report_error(&e, Some(&model_source));
-            return exit(EXIT_INVALID);
-        }
-    };
-    drop(bytes);
 
     let mut criteria = Criteria::default();
     if let Some(v) = &model.criteria {

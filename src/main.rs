@@ -185,10 +185,10 @@ fn main() -> ExitCode {
 /// offending line follows it. `check` always adds the snippet.
 fn load(path: &Path) -> Result<Model, ()> {
     use std::io::IsTerminal;
-    let (source, bytes) = check::read_source(path).map_err(|e| check::report_error(&e, None))?;
     let snippet = std::io::stderr().is_terminal();
-    ringmain_core::read_bytes(&bytes, source.format, &source.name)
-        .map_err(|e| check::report_error(&e, Some(&source).filter(|_| snippet)))
+    check::read_model(path)
+        .map(|(model, _)| model)
+        .map_err(|(e, source)| check::report_error(&e, source.as_ref().filter(|_| snippet)))
 }
 
 pub(crate) fn write_out(text: &str, output: Option<&Path>) -> ExitCode {
@@ -295,6 +295,16 @@ fn print_timings(model: &Model, solver: &ringmain_core::Solver, reading: Duratio
     eprintln!("  results                 {:9.3} ms", ms(t.results));
     eprintln!("  solver in all           {:9.3} ms", ms(solver_total));
     eprintln!("  writing the results     {:9.3} ms", ms(writing));
+    if let Some(kib) = peak_memory_kib() {
+        eprintln!("  peak memory             {:9.1} MB  (whole process, so far)", kib as f64 / 1024.0);
+    }
+}
+
+/// The process's peak resident memory, KiB, where the system tells it (Linux).
+fn peak_memory_kib() -> Option<u64> {
+    let status = std::fs::read_to_string("/proc/self/status").ok()?;
+    let line = status.lines().find(|l| l.starts_with("VmHWM:"))?;
+    line.split_whitespace().nth(1)?.parse().ok()
 }
 
 fn generate(junctions: usize, seed: u64, output: &Path) -> ExitCode {

@@ -360,7 +360,7 @@ fn pump_strip(report: &RunReport<'_>, times: &[f64]) -> Option<Panel> {
     p.height = 26.0 * run.pumps.len() as f64;
     for (i, &k) in run.pumps.iter().enumerate() {
         let runs = stretches(times, |t| run.series[t].status[k] == "open");
-        p.strips.push((report.model.links()[k].id.clone(), PALETTE[i % PALETTE.len()], runs));
+        p.strips.push((report.model.links()[k].id.to_string(), PALETTE[i % PALETTE.len()], runs));
     }
     Some(p)
 }

@@ -59,7 +59,7 @@ fn build(c: &Case) -> Model {
     let mut id = 0;
     let mut add = |m: &mut Model, from: usize, to: usize, kind: LinkKind| {
         id += 1;
-        m.add_link(Link { id: format!("L{id}"), from, to, status: LinkStatus::Open, kind }).unwrap();
+        m.add_link(Link { id: format!("L{id}").into(), from, to, status: LinkStatus::Open, kind }).unwrap();
     };
     // Reservoir r feeds junction (r * n / count).
     for r in 0..c.reservoir_heads.len() {
@@ -68,12 +68,12 @@ fn build(c: &Case) -> Model {
     if let Some(shutoff) = c.pump {
         let sump = m.add_node(Node::reservoir("Sump", 0.0)).unwrap();
         let curve = [(0.0, shutoff), (0.05, 0.8 * shutoff), (0.08, 0.5 * shutoff)];
-        let kind = LinkKind::Pump(ringmain_core::model::Pump {
+        let kind = LinkKind::Pump(Box::new(ringmain_core::model::Pump {
             drive: PumpDrive::Curve { points: curve.to_vec(), curve: HeadCurve::fit(&curve).unwrap() },
             efficiency_points: None,
             efficiency: Efficiency::Constant(0.75),
             speed: 1.0,
-        });
+        }));
         add(&mut m, sump, n - 1, kind);
     }
     for (e, &parent) in c.tree_parent.iter().enumerate() {

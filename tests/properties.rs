@@ -115,7 +115,7 @@ impl Net {
             let p = &self.pipes[k];
             let index = |i: usize| model.node_index(&self.node_id(i)).expect("node added");
             let link = Link {
-                id: Self::link_id(k),
+                id: Self::link_id(k).into(),
                 from: index(p.from),
                 to: index(p.to),
                 status: LinkStatus::Open,

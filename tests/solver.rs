@@ -57,7 +57,7 @@ fn model(law: HeadLossLaw, nodes: Vec<Node>, pipes: &[P]) -> Model {
     }
     for p in pipes {
         let link = Link {
-            id: p.id.to_owned(),
+            id: p.id.into(),
             from: m.node_index(p.from).expect("from node"),
             to: m.node_index(p.to).expect("to node"),
             status: if p.closed { LinkStatus::Closed } else { LinkStatus::Open },
@@ -77,7 +77,8 @@ fn model(law: HeadLossLaw, nodes: Vec<Node>, pipes: &[P]) -> Model {
 fn tank(id: &str, elevation: f64, level: f64) -> Node {
     let mut node = Node::reservoir(id, 0.0);
     node.elevation = elevation;
-    node.kind = NodeKind::Tank(Tank { level, min_level: 0.0, max_level: Some(level + 2.0), diameter: Some(15.0) });
+    node.kind =
+        NodeKind::Tank(Box::new(Tank { level, min_level: 0.0, max_level: Some(level + 2.0), diameter: Some(15.0) }));
     node
 }
 
@@ -715,7 +716,7 @@ fn grid_of_400_junctions_converges_fast() {
     }
     let mut add = |name: String, a: &str, b: &str, length: f64, diameter: f64| {
         let link = Link {
-            id: name,
+            id: name.into(),
             from: m.node_index(a).expect("from"),
             to: m.node_index(b).expect("to"),
             status: LinkStatus::Open,

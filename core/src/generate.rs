@@ -220,7 +220,7 @@ impl Builder {
     fn pipe(&mut self, from: usize, to: usize, length: f64, diameter: f64, c: f64) -> Result<(), ModelError> {
         self.links += 1;
         self.model.add_link(Link {
-            id: format!("P{}", self.links),
+            id: compact_str::format_compact!("P{}", self.links),
             from,
             to,
             status: LinkStatus::Open,
@@ -402,12 +402,12 @@ pub fn generate(spec: &NetworkSpec) -> Result<Model, ModelError> {
                 let floor = mean_ground + spec.service_head - 2.0 - 6.0;
                 Node {
                     coordinates: Some((x, y)),
-                    kind: NodeKind::Tank(Tank {
+                    kind: NodeKind::Tank(Box::new(Tank {
                         level: 6.0,
                         min_level: 1.0,
                         max_level: Some(9.0),
                         diameter: Some(30.0),
-                    }),
+                    })),
                     ..Node::junction(format!("T{}", sources / 3 + 1), round2(floor), 0.0)
                 }
             } else {

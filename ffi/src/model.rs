@@ -54,24 +54,24 @@ pub(crate) struct Ids {
 
 impl Ids {
     fn of(model: &Model) -> Self {
-        let nodes: Vec<String> = model.nodes().iter().map(|n| n.id.clone()).collect();
-        let links: Vec<String> = model.links().iter().map(|l| l.id.clone()).collect();
+        let nodes: Vec<String> = model.nodes().iter().map(|n| n.id.to_string()).collect();
+        let links: Vec<String> = model.links().iter().map(|l| l.id.to_string()).collect();
         let node_index = nodes.iter().enumerate().map(|(i, id)| (id.clone(), i)).collect();
         let link_index = links.iter().enumerate().map(|(i, id)| (id.clone(), i)).collect();
         Ids { nodes, links, node_index, link_index }
     }
 
     pub(crate) fn find_node(&self, id: &str) -> Result<usize, Failure> {
-        self.node_index.get(id).copied().ok_or_else(|| not_found("node", id, self.nodes.iter()))
+        self.node_index.get(id).copied().ok_or_else(|| not_found("node", id, self.nodes.iter().map(String::as_str)))
     }
 
     pub(crate) fn find_link(&self, id: &str) -> Result<usize, Failure> {
-        self.link_index.get(id).copied().ok_or_else(|| not_found("link", id, self.links.iter()))
+        self.link_index.get(id).copied().ok_or_else(|| not_found("link", id, self.links.iter().map(String::as_str)))
     }
 }
 
-fn not_found<'a>(what: &str, id: &str, ids: impl Iterator<Item = &'a String>) -> Failure {
-    let hint = suggest(id, ids.map(String::as_str)).map(|s| format!(" (did you mean '{s}'?)")).unwrap_or_default();
+fn not_found<'a>(what: &str, id: &str, ids: impl Iterator<Item = &'a str>) -> Failure {
+    let hint = suggest(id, ids).map(|s| format!(" (did you mean '{s}'?)")).unwrap_or_default();
     Failure::new(
         ringmain_status::RINGMAIN_NOT_FOUND,
         format!("no {what} has the id '{}'{hint}", ringmain_core::error::printable(id)),
@@ -451,7 +451,7 @@ pub unsafe extern "C" fn ringmain_model_node_index(
         let index = m
             .model
             .node_index(id)
-            .ok_or_else(|| not_found("node", id, m.model.nodes().iter().map(|n| &n.id)))?;
+            .ok_or_else(|| not_found("node", id, m.model.nodes().iter().map(|n| n.id.as_str())))?;
         out.write(index);
         Ok(())
     }
@@ -474,7 +474,7 @@ pub unsafe extern "C" fn ringmain_model_link_index(
         let index = m
             .model
             .link_index(id)
-            .ok_or_else(|| not_found("link", id, m.model.links().iter().map(|l| &l.id)))?;
+            .ok_or_else(|| not_found("link", id, m.model.links().iter().map(|l| l.id.as_str())))?;
         out.write(index);
         Ok(())
     }
@@ -730,7 +730,7 @@ pub unsafe extern "C" fn ringmain_model_get_demand(
         unsafe {
             node_value(model, node, out, |n, u| match n.kind {
                 NodeKind::Junction { demand } => Ok(u.flow_out(demand)),
-                _ => Err(wrong_kind(Element::Node(n.id.clone()), "demand", "junctions", n.kind.label())),
+                _ => Err(wrong_kind(Element::Node(n.id.to_string()), "demand", "junctions", n.kind.label())),
             })
         }
     }
@@ -751,7 +751,7 @@ pub unsafe extern "C" fn ringmain_model_get_reservoir_head(
         unsafe {
             node_value(model, node, out, |n, u| match n.kind {
                 NodeKind::Reservoir { head } => Ok(u.length_out(head)),
-                _ => Err(wrong_kind(Element::Node(n.id.clone()), "head", "reservoirs", n.kind.label())),
+                _ => Err(wrong_kind(Element::Node(n.id.to_string()), "head", "reservoirs", n.kind.label())),
             })
         }
     }
@@ -773,7 +773,7 @@ pub unsafe extern "C" fn ringmain_model_get_tank_level(
         unsafe {
             node_value(model, node, out, |n, u| match &n.kind {
                 NodeKind::Tank(t) => Ok(u.length_out(t.level)),
-                _ => Err(wrong_kind(Element::Node(n.id.clone()), "level", "tanks", n.kind.label())),
+                _ => Err(wrong_kind(Element::Node(n.id.to_string()), "level", "tanks", n.kind.label())),
             })
         }
     }
@@ -820,7 +820,7 @@ pub unsafe extern "C" fn ringmain_model_get_pump_speed(
         unsafe {
             link_value(model, link, out, |l, _| match &l.kind {
                 LinkKind::Pump(p) => Ok(p.speed),
-                other => Err(wrong_kind(Element::Link(l.id.clone()), "speed", "pumps", other.label())),
+                other => Err(wrong_kind(Element::Link(l.id.to_string()), "speed", "pumps", other.label())),
             })
         }
     }
@@ -843,7 +843,7 @@ pub unsafe extern "C" fn ringmain_model_get_valve_setting(
         unsafe {
             link_value(model, link, out, |l, u| match &l.kind {
                 LinkKind::Valve(v) => Ok(u.setting_out(v.valve, v.setting)),
-                other => Err(wrong_kind(Element::Link(l.id.clone()), "setting", "valves", other.label())),
+                other => Err(wrong_kind(Element::Link(l.id.to_string()), "setting", "valves", other.label())),
             })
         }
     }
@@ -866,7 +866,7 @@ pub unsafe extern "C" fn ringmain_model_get_valve_type(
         let l = m.link(link)?;
         match &l.kind {
             LinkKind::Valve(v) => out.write(ringmain_valve_type::of(v.valve) as u32),
-            other => return Err(wrong_kind(Element::Link(l.id.clone()), "valve", "valves", other.label())),
+            other => return Err(wrong_kind(Element::Link(l.id.to_string()), "valve", "valves", other.label())),
         }
         Ok(())
     }
@@ -888,7 +888,7 @@ pub unsafe extern "C" fn ringmain_model_get_pipe_roughness(
         unsafe {
             link_value(model, link, out, |l, u| match &l.kind {
                 LinkKind::Pipe(p) => Ok(u.roughness_out(p.roughness)),
-                other => Err(wrong_kind(Element::Link(l.id.clone()), "roughness", "pipes", other.label())),
+                other => Err(wrong_kind(Element::Link(l.id.to_string()), "roughness", "pipes", other.label())),
             })
         }
     }
@@ -910,7 +910,7 @@ pub unsafe extern "C" fn ringmain_model_get_pipe_diameter(
         unsafe {
             link_value(model, link, out, |l, u| match &l.kind {
                 LinkKind::Pipe(p) => Ok(u.diameter_out(p.diameter)),
-                other => Err(wrong_kind(Element::Link(l.id.clone()), "diameter", "pipes", other.label())),
+                other => Err(wrong_kind(Element::Link(l.id.to_string()), "diameter", "pipes", other.label())),
             })
         }
     }
@@ -960,7 +960,7 @@ unsafe fn add_link_with(
     };
     let (from, to) = (m.end(id, "from", from)?, m.end(id, "to", to)?);
     let (kind, status) = make(id, &m.units())?;
-    let index = m.add_link(Link { id: id.to_owned(), from, to, status, kind })?;
+    let index = m.add_link(Link { id: id.into(), from, to, status, kind })?;
     if let Some(o) = out_index {
         o.write(index);
     }
@@ -1036,16 +1036,16 @@ pub unsafe extern "C" fn ringmain_model_add_tank(
         // SAFETY: the caller's contract above.
         unsafe {
             add_node_with(model, id, out_index, |id, u| Node {
-                id,
+                id: id.into(),
                 elevation: u.length_in(elevation),
                 coordinates: None,
                 zone: None,
-                kind: NodeKind::Tank(Tank {
+                kind: NodeKind::Tank(Box::new(Tank {
                     level: u.length_in(level),
                     min_level: u.length_in(min_level),
                     max_level: optional(max_level).map(|v| u.length_in(v)),
                     diameter: optional(diameter).map(|v| u.length_in(v)),
-                }),
+                })),
             })
         }
     }
@@ -1094,12 +1094,12 @@ pub unsafe extern "C" fn ringmain_model_add_pipe(
 }
 
 fn pump(drive: PumpDrive, speed: f64) -> LinkKind {
-    LinkKind::Pump(Pump {
+    LinkKind::Pump(Box::new(Pump {
         drive,
         efficiency_points: None,
         efficiency: Efficiency::Constant(Efficiency::DEFAULT),
         speed,
-    })
+    }))
 }
 
 /// Adds a pump from `from` (suction) to `to` (discharge) with a head curve through `n_points`
@@ -1259,7 +1259,7 @@ pub unsafe extern "C" fn ringmain_model_set_demand(
                     *d = u.flow_in(demand);
                     Ok(())
                 }
-                other => Err(wrong_kind(Element::Node(n.id.clone()), "demand", "junctions", other.label())),
+                other => Err(wrong_kind(Element::Node(n.id.to_string()), "demand", "junctions", other.label())),
             })
         }
     }
@@ -1284,7 +1284,7 @@ pub unsafe extern "C" fn ringmain_model_set_reservoir_head(
                     *h = u.length_in(head);
                     Ok(())
                 }
-                other => Err(wrong_kind(Element::Node(n.id.clone()), "head", "reservoirs", other.label())),
+                other => Err(wrong_kind(Element::Node(n.id.to_string()), "head", "reservoirs", other.label())),
             })
         }
     }
@@ -1309,7 +1309,7 @@ pub unsafe extern "C" fn ringmain_model_set_tank_level(
                     t.level = u.length_in(level);
                     Ok(())
                 }
-                other => Err(wrong_kind(Element::Node(n.id.clone()), "level", "tanks", other.label())),
+                other => Err(wrong_kind(Element::Node(n.id.to_string()), "level", "tanks", other.label())),
             })
         }
     }
@@ -1364,7 +1364,7 @@ pub unsafe extern "C" fn ringmain_model_set_pump_speed(
                     p.speed = speed;
                     Ok(())
                 }
-                other => Err(wrong_kind(Element::Link(l.id.clone()), "speed", "pumps", other.label())),
+                other => Err(wrong_kind(Element::Link(l.id.to_string()), "speed", "pumps", other.label())),
             })
         }
     }
@@ -1390,7 +1390,7 @@ pub unsafe extern "C" fn ringmain_model_set_pump_efficiency(
                     p.efficiency = Efficiency::Constant(percent / 100.0);
                     Ok(())
                 }
-                other => Err(wrong_kind(Element::Link(l.id.clone()), "efficiency", "pumps", other.label())),
+                other => Err(wrong_kind(Element::Link(l.id.to_string()), "efficiency", "pumps", other.label())),
             })
         }
     }
@@ -1422,12 +1422,12 @@ pub unsafe extern "C" fn ringmain_model_set_pump_efficiency_curve(
                     let points: Vec<(f64, f64)> =
                         flows.iter().zip(percents).map(|(&q, &e)| (u.flow_in(q), e / 100.0)).collect();
                     p.efficiency = Efficiency::fit(&points).map_err(|e| {
-                        ModelError::at(Some(Element::Link(l.id.clone())), Some("efficiency_curve"), e.0)
+                        ModelError::at(Some(Element::Link(l.id.to_string())), Some("efficiency_curve"), e.0)
                     })?;
                     p.efficiency_points = Some(points);
                     Ok(())
                 }
-                other => Err(wrong_kind(Element::Link(l.id.clone()), "efficiency_curve", "pumps", other.label())),
+                other => Err(wrong_kind(Element::Link(l.id.to_string()), "efficiency_curve", "pumps", other.label())),
             })
         }
     }
@@ -1452,7 +1452,7 @@ pub unsafe extern "C" fn ringmain_model_set_valve_setting(
                     v.setting = u.setting_in(v.valve, setting);
                     Ok(())
                 }
-                other => Err(wrong_kind(Element::Link(l.id.clone()), "setting", "valves", other.label())),
+                other => Err(wrong_kind(Element::Link(l.id.to_string()), "setting", "valves", other.label())),
             })
         }
     }
@@ -1477,7 +1477,7 @@ pub unsafe extern "C" fn ringmain_model_set_pipe_roughness(
                     p.roughness = u.roughness_in(roughness);
                     Ok(())
                 }
-                other => Err(wrong_kind(Element::Link(l.id.clone()), "roughness", "pipes", other.label())),
+                other => Err(wrong_kind(Element::Link(l.id.to_string()), "roughness", "pipes", other.label())),
             })
         }
     }
@@ -1502,7 +1502,7 @@ pub unsafe extern "C" fn ringmain_model_set_pipe_diameter(
                     p.diameter = u.diameter_in(diameter);
                     Ok(())
                 }
-                other => Err(wrong_kind(Element::Link(l.id.clone()), "diameter", "pipes", other.label())),
+                other => Err(wrong_kind(Element::Link(l.id.to_string()), "diameter", "pipes", other.label())),
             })
         }
     }

@@ -31,7 +31,7 @@
 use super::glob_match;
 use super::DiagnosticKind;
 use crate::error::{printable, Element, ModelError};
-use crate::model::doc::Value;
+use crate::model::doc::{Key, Value};
 use crate::model::{Model, NodeKind};
 use crate::units::{suggest, FlowUnit, LengthUnit, PressureUnit, UnitSystem};
 
@@ -314,7 +314,7 @@ fn unknown_key(reader: &Reader<'_>, key: &str, known: &[&str]) -> ModelError {
     reader.error(key, format!("is not a known criterion{hint}; known keys here: {}", known.join(", ")))
 }
 
-fn table<'v>(reader: &Reader<'_>, key: &str, value: &'v Value) -> Result<&'v [(String, Value)], ModelError> {
+fn table<'v>(reader: &Reader<'_>, key: &str, value: &'v Value) -> Result<&'v [(Key, Value)], ModelError> {
     match value {
         Value::Table(entries) => Ok(entries),
         other => Err(reader.error(key, format!("must be a table, found {}", other.kind()))),
@@ -341,7 +341,7 @@ impl Criteria {
         let mut next = self.clone();
         for (key, v) in entries {
             let r = &reader;
-            match key.as_str() {
+            match key.as_ref() {
                 "must_converge" => next.must_converge = r.boolean(key, v)?,
                 "all_demands_supplied" => next.all_demands_supplied = r.boolean(key, v)?,
                 "min_pressure" => next.min_pressure = Some(r.limit(key, v, Quantity::Pressure, false)?),
@@ -469,7 +469,7 @@ fn read_groups(r: &Reader<'_>, key: &str, v: &Value) -> Result<Vec<Group>, Model
             max_pressure: None,
         };
         for (k, v) in entries {
-            match k.as_str() {
+            match k.as_ref() {
                 "name" => match v {
                     Value::Str(s) if !s.trim().is_empty() && !s.chars().any(char::is_control) => g.name = s.clone(),
                     Value::Str(_) => return Err(sub.error(k, "must not be empty or contain control characters")),

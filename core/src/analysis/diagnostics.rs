@@ -121,7 +121,7 @@ pub fn diagnose_solution(model: &Model, solution: &Solution) -> Vec<Diagnostic> 
         if v > PLAUSIBLE_VELOCITY {
             out.push(Diagnostic {
                 kind: DiagnosticKind::HighVelocity,
-                element: Element::Link(l.id.clone()),
+                element: Element::Link(l.id.to_string()),
                 key: Some("diameter"),
                 message: format!(
                     "velocity {:.2} {} is above {:.1} {} (common practice): is the pipe undersized or a demand wrong?",
@@ -154,14 +154,14 @@ fn reachability(model: &Model, out: &mut Vec<Diagnostic>) {
         if !any[i] {
             out.push(Diagnostic {
                 kind: DiagnosticKind::IsolatedJunction,
-                element: Element::Node(node.id.clone()),
+                element: Element::Node(node.id.to_string()),
                 key: None,
                 message: "no reservoir or tank can reach it through any link, open or closed".into(),
             });
         } else if !open[i] && node.demand() != 0.0 {
             out.push(Diagnostic {
                 kind: DiagnosticKind::ClosedOffDemand,
-                element: Element::Node(node.id.clone()),
+                element: Element::Node(node.id.to_string()),
                 key: Some("demand"),
                 message: format!(
                     "has a demand of {:.3} {} but only closed links join it to a source",
@@ -191,7 +191,7 @@ fn parallel_pipes(model: &Model, out: &mut Vec<Diagnostic>) {
                 let nodes = model.nodes();
                 out.push(Diagnostic {
                     kind: DiagnosticKind::ParallelPipes,
-                    element: Element::Link(l.id.clone()),
+                    element: Element::Link(l.id.to_string()),
                     key: Some("to"),
                     message: if same {
                         format!(
@@ -219,7 +219,7 @@ fn ranges(model: &Model, out: &mut Vec<Diagnostic>) {
             if !PLAUSIBLE_DIAMETER.contains(&d) {
                 out.push(Diagnostic {
                     kind: DiagnosticKind::DiameterRange,
-                    element: Element::Link(l.id.clone()),
+                    element: Element::Link(l.id.to_string()),
                     key: Some("diameter"),
                     message: format!(
                         "diameter {} is outside {} to {} (common practice): is the unit right?",
@@ -236,7 +236,7 @@ fn ranges(model: &Model, out: &mut Vec<Diagnostic>) {
             {
                 out.push(Diagnostic {
                     kind: DiagnosticKind::RoughnessRange,
-                    element: Element::Link(l.id.clone()),
+                    element: Element::Link(l.id.to_string()),
                     key: Some("roughness"),
                     message: format!(
                         "Hazen-Williams C {} is outside {} to {} (common practice)",
@@ -275,7 +275,7 @@ fn elevations(model: &Model, out: &mut Vec<Diagnostic>) {
             let unit = model.units.length.label();
             out.push(Diagnostic {
                 kind: DiagnosticKind::ElevationOutlier,
-                element: Element::Node(node.id.clone()),
+                element: Element::Node(node.id.to_string()),
                 key: Some("elevation"),
                 message: format!(
                     "elevation {:.1} {unit} is {:.1} {unit} from the median of its neighbours ({:.1} {unit}): a \

@@ -143,7 +143,7 @@ pub fn evaluate(criteria: &Criteria, model: &Model, solution: &Solution, keep: u
                 if !solution.connected[i] {
                     let detail = Some("cut off from every reservoir and tank; its demand is not supplied".to_owned());
                     let finding = Finding {
-                        element: Element::Node(n.id.clone()),
+                        element: Element::Node(n.id.to_string()),
                         value: n.demand(),
                         limit: 0.0,
                         excess: n.demand(),
@@ -166,7 +166,13 @@ pub fn evaluate(criteria: &Criteria, model: &Model, solution: &Solution, keep: u
             let v = solution.velocity[k].abs();
             if v > limit {
                 c.add(
-                    Finding { element: Element::Link(l.id.clone()), value: v, limit, excess: v - limit, detail: None },
+                    Finding {
+                        element: Element::Link(l.id.to_string()),
+                        value: v,
+                        limit,
+                        excess: v - limit,
+                        detail: None,
+                    },
                     keep,
                 );
             }
@@ -184,7 +190,13 @@ pub fn evaluate(criteria: &Criteria, model: &Model, solution: &Solution, keep: u
             let g = solution.headloss[k] / p.length;
             if g > limit {
                 c.add(
-                    Finding { element: Element::Link(l.id.clone()), value: g, limit, excess: g - limit, detail: None },
+                    Finding {
+                        element: Element::Link(l.id.to_string()),
+                        value: g,
+                        limit,
+                        excess: g - limit,
+                        detail: None,
+                    },
                     keep,
                 );
             }
@@ -199,7 +211,7 @@ pub fn evaluate(criteria: &Criteria, model: &Model, solution: &Solution, keep: u
             let supply = solution.net_outflow(model, i);
             if supply > allowed {
                 let finding = Finding {
-                    element: Element::Node(nodes[i].id.clone()),
+                    element: Element::Node(nodes[i].id.to_string()),
                     value: supply,
                     limit: allowed,
                     excess: supply - allowed,
@@ -218,7 +230,7 @@ pub fn evaluate(criteria: &Criteria, model: &Model, solution: &Solution, keep: u
             let reserve = t.level - t.min_level;
             if reserve < limit {
                 let finding = Finding {
-                    element: Element::Node(n.id.clone()),
+                    element: Element::Node(n.id.to_string()),
                     value: reserve,
                     limit,
                     excess: limit - reserve,

@@ -252,11 +252,11 @@ pub fn demand_delivered(model: &Model, solution: &Solution, keep: usize) -> Resu
             let to = links[r.link].to;
             shut.contains(&r.link) || r.beyond_curve || (solution.connected[to] && solution.pressure[to] < 0.0)
         })
-        .map(|r| links[r.link].id.clone())
+        .map(|r| links[r.link].id.to_string())
         .collect();
     Err(Unsolved::DemandNotDelivered {
         count,
-        nodes: bad.into_iter().map(|(i, p)| (nodes[i].id.clone(), p)).collect(),
+        nodes: bad.into_iter().map(|(i, p)| (nodes[i].id.to_string(), p)).collect(),
         pumps,
     })
 }
@@ -530,7 +530,7 @@ mod tests {
         assert_eq!(by_id("CD").lost_supply.nodes, vec![4]);
         // Each closure agrees with a cold single run of the same scenario.
         for (k, outcome) in &results {
-            let scenario = Scenario { close: vec![m.links()[*k].id.clone()], demand_factor: 1.0 };
+            let scenario = Scenario { close: vec![m.links()[*k].id.to_string()], demand_factor: 1.0 };
             let sm = scenario.apply(&m).unwrap();
             let mut cold = Solver::new(&sm).unwrap();
             let (single, _) = run_scenario(
@@ -564,8 +564,14 @@ mod tests {
             efficiency: Efficiency::Constant(0.7),
             speed: 1.0,
         };
-        m.add_link(Link { id: "Lift".into(), from: 1, to: 2, status: LinkStatus::Open, kind: LinkKind::Pump(pump) })
-            .unwrap();
+        m.add_link(Link {
+            id: "Lift".into(),
+            from: 1,
+            to: 2,
+            status: LinkStatus::Open,
+            kind: LinkKind::Pump(Box::new(pump)),
+        })
+        .unwrap();
         let criteria = Criteria::default();
         let mut solver = Solver::new(&m).unwrap();
         let (outcome, _) =

@@ -6,11 +6,76 @@
 //! accept silently: duplicate keys in JSON objects, and nesting deeper than any model needs.
 
 use serde::de::{self, DeserializeSeed, MapAccess, SeqAccess, Visitor};
-use serde_json::value::RawValue;
 use std::fmt;
 
 /// Deepest nesting of arrays and tables accepted; a model needs four levels.
 pub const MAX_DEPTH: usize = 32;
+
+/// A key of a table. The keys that every node and link repeats are not copied for each one.
+pub type Key = std::borrow::Cow<'static, str>;
+
+/// The keys of node and link entries (a large model has millions of them).
+pub(crate) const ELEMENT_KEYS: &[&str] = &[
+    "id",
+    "kind",
+    "from",
+    "to",
+    "elevation",
+    "demand",
+    "x",
+    "y",
+    "length",
+    "diameter",
+    "roughness",
+    "minor_loss",
+    "check_valve",
+    "status",
+    "zone",
+    "pattern",
+    "demands",
+    "head",
+    "head_pattern",
+    "level",
+    "min_level",
+    "max_level",
+    "volume_curve",
+    "head_curve",
+    "power",
+    "efficiency_curve",
+    "efficiency",
+    "speed",
+    "speed_pattern",
+    "valve",
+    "setting",
+    "setting_pattern",
+];
+
+fn key(text: &str) -> Key {
+    match ELEMENT_KEYS.iter().find(|k| k.len() == text.len() && **k == text) {
+        Some(k) => Key::Borrowed(k),
+        None => Key::Owned(text.to_owned()),
+    }
+}
+
+/// Reads a table key as a [`Key`].
+struct KeySeed;
+
+impl<'de> DeserializeSeed<'de> for KeySeed {
+    type Value = Key;
+    fn deserialize<D: de::Deserializer<'de>>(self, deserializer: D) -> Result<Key, D::Error> {
+        deserializer.deserialize_str(self)
+    }
+}
+
+impl<'de> Visitor<'de> for KeySeed {
+    type Value = Key;
+    fn expecting(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str("a key")
+    }
+    fn visit_str<E>(self, v: &str) -> Result<Key, E> {
+        Ok(key(v))
+    }
+}
 
 /// One value of a model file.
 #[derive(Clone, Debug, PartialEq)]
@@ -26,7 +91,7 @@ pub enum Value {
     /// An array.
     Array(Vec<Value>),
     /// A table or object, keys in file order.
-    Table(Vec<(String, Value)>),
+    Table(Vec<(Key, Value)>),
     /// A TOML date or time (never valid in a model).
     Date,
 }
@@ -53,8 +118,9 @@ const SCAN_LIMIT: usize = 32;
 
 const TOML_DATETIME_KEY: &str = "$__toml_private_datetime";
 
-struct Seed {
-    depth: usize,
+/// Parses one value into a [`Value`] at nesting `depth` (0: the whole file).
+pub(crate) struct Seed {
+    pub(crate) depth: usize,
 }
 
 impl<'de> DeserializeSeed<'de> for Seed {
@@ -110,11 +176,11 @@ impl<'de> Visitor<'de> for Seed {
         }
         // Room for the keys of the largest element table at once: one allocation per node or
         // link instead of three growing ones.
-        let mut entries: Vec<(String, Value)> = Vec::with_capacity(TABLE_CAPACITY);
+        let mut entries: Vec<(Key, Value)> = Vec::with_capacity(TABLE_CAPACITY);
         // Duplicate keys: a scan while the table is small, a hash set beyond that, so that a
         // table with very many keys is not quadratic.
-        let mut seen: Option<std::collections::HashSet<String>> = None;
-        while let Some(key) = map.next_key::<String>()? {
+        let mut seen: Option<std::collections::HashSet<Key>> = None;
+        while let Some(key) = map.next_key_seed(KeySeed)? {
             if key == TOML_DATETIME_KEY {
                 let _: de::IgnoredAny = map.next_value()?;
                 return Ok(Value::Date);
@@ -134,61 +200,6 @@ impl<'de> Visitor<'de> for Seed {
         }
         Ok(Value::Table(entries))
     }
-}
-
-/// The top level of a JSON model file with each value left as raw text, and the elements of
-/// its `nodes` and `links` arrays each as raw text: the file is checked for syntax in one pass,
-/// but no value tree is built yet.
-#[derive(Debug, Default)]
-pub struct RawModel<'a> {
-    /// Top-level keys other than `nodes` and `links`, in file order.
-    pub entries: Vec<(String, &'a RawValue)>,
-    /// The elements of `nodes`.
-    pub nodes: Vec<&'a RawValue>,
-    /// The elements of `links`.
-    pub links: Vec<&'a RawValue>,
-}
-
-/// Splits a JSON model file into a [`RawModel`]. `None` if the text is not a JSON object, has a
-/// syntax error, a duplicate top-level key, or `nodes` or `links` that are not arrays (the full
-/// reader then says why).
-pub fn json_raw_model(text: &str) -> Option<RawModel<'_>> {
-    struct Top;
-    impl<'de> Visitor<'de> for Top {
-        type Value = RawModel<'de>;
-        fn expecting(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-            f.write_str("a JSON object")
-        }
-        fn visit_map<A: MapAccess<'de>>(self, mut map: A) -> Result<Self::Value, A::Error> {
-            let mut raw = RawModel::default();
-            let mut keys: Vec<String> = Vec::new();
-            while let Some(key) = map.next_key::<String>()? {
-                if keys.contains(&key) {
-                    return Err(de::Error::custom("duplicate key"));
-                }
-                match key.as_str() {
-                    "nodes" => raw.nodes = map.next_value()?,
-                    "links" => raw.links = map.next_value()?,
-                    _ => raw.entries.push((key.clone(), map.next_value()?)),
-                }
-                keys.push(key);
-            }
-            Ok(raw)
-        }
-    }
-    let mut de = serde_json::Deserializer::from_str(text);
-    let raw = de::Deserializer::deserialize_map(&mut de, Top).ok()?;
-    de.end().ok()?;
-    Some(raw)
-}
-
-/// The value tree of a raw JSON value found at nesting `depth`; `None` on any problem (the full
-/// reader then says what it is, with its position).
-pub fn json_value(raw: &RawValue, depth: usize) -> Option<Value> {
-    let mut de = serde_json::Deserializer::from_str(raw.get());
-    let value = Seed { depth }.deserialize(&mut de).ok()?;
-    de.end().ok()?;
-    Some(value)
 }
 
 /// A syntax error with its position (1-based line and column) when known.

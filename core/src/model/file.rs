@@ -5,7 +5,7 @@
 //! range, and units are converted into SI here and nowhere else. Errors name the file, the
 //! element id and the key.
 
-use super::doc::{self, Value};
+use super::doc::{self, Key, Value};
 use super::time::{self as tm, Action, Condition, Control, Demand, Energy, SimulationSettings, TimeData, TimePattern};
 use super::{
     HeadLossLaw, HydraulicOptions, Link, LinkKind, LinkStatus, Model, Node, NodeKind, Pipe, Pump, PumpDrive, Tank,
@@ -119,28 +119,120 @@ const LINK_KEYS: &[(&str, &[&str])] = &[
     ("valve", &["id", "kind", "valve", "from", "to", "diameter", "setting", "setting_pattern", "minor_loss", "status"]),
 ];
 
-/// The JSON reader for large files: the file's syntax is checked in one pass that builds no
-/// value tree, then each node and link is turned into a tree, read and dropped in turn, so that
-/// memory holds the text, the model and one element's tree instead of a tree of the whole file.
-/// It gives up (`None`) at the first problem of any kind; [`read_inner`] then reads the file the
-/// ordinary way, so that every error and its position are exactly those of the ordinary reader,
-/// and a model read this way equals the one the ordinary reader builds.
-fn read_json_streamed(text: &str) -> Option<Model> {
-    let raw = doc::json_raw_model(text)?;
-    let mut entries = Vec::with_capacity(raw.entries.len());
-    for (key, value) in raw.entries {
-        entries.push((key, doc::json_value(value, 1)?));
+/// Reads a JSON model in one pass from `reader`, without holding the text: each node and link
+/// is parsed into a small tree, read into the model and dropped in turn, so that memory holds the
+/// model and one element's tree. The reader is buffered here.
+///
+/// It gives up (`None`) at the first problem of any kind, and also when the file's top-level keys
+/// are not in the order a one-pass read needs: every setting (units, hydraulics, patterns...)
+/// before `nodes`, `nodes` before `links` — the order [`super::write`] writes them in. The caller
+/// then reads the whole text with [`read_str`] (or [`read_bytes`]), which accepts any order and
+/// whose errors carry their positions; a model read this way equals the one `read_str` builds
+/// from the same text.
+pub fn read_json_stream<R: std::io::Read>(reader: R) -> Option<Model> {
+    let reader = std::io::BufReader::with_capacity(1 << 16, reader);
+    read_json_one_pass(serde_json::Deserializer::from_reader(reader))
+}
+
+fn read_json_one_pass<'de, R: serde_json::de::Read<'de>>(mut de: serde_json::Deserializer<R>) -> Option<Model> {
+    let model = serde::Deserializer::deserialize_map(&mut de, OnePass).ok()?;
+    de.end().ok()?;
+    Some(model)
+}
+
+/// The visitor of a model file's top-level object for [`read_json_stream`]; every error is only
+/// "give up".
+struct OnePass;
+
+fn give_up<E: serde::de::Error>(_: ModelError) -> E {
+    E::custom("not readable in one pass")
+}
+
+impl<'de> serde::de::Visitor<'de> for OnePass {
+    type Value = Model;
+
+    fn expecting(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str("a model")
     }
-    // An element that does not parse: the ordinary reader will say why.
-    let give_up = || ModelError::new("element not readable on its own");
-    let nodes = raw.nodes.into_iter().map(|r| doc::json_value(r, 2).ok_or_else(give_up));
-    let links = raw.links.into_iter().map(|r| doc::json_value(r, 2).ok_or_else(give_up));
-    build(Fields::new(None, entries), Some(nodes), Some(links)).ok()
+
+    fn visit_map<A: serde::de::MapAccess<'de>>(self, mut map: A) -> Result<Model, A::Error> {
+        use serde::de::Error;
+        let mut entries: Vec<(Key, Value)> = Vec::new();
+        let mut seen: Vec<String> = Vec::new();
+        let mut model: Option<Model> = None;
+        let mut controls: Option<Value> = None;
+        let mut links_read = false;
+        while let Some(key) = map.next_key::<String>()? {
+            if seen.contains(&key) {
+                return Err(A::Error::custom("duplicate key"));
+            }
+            match key.as_str() {
+                "nodes" if !links_read => {
+                    let mut top = Fields::new(None, std::mem::take(&mut entries));
+                    let settings = Settings::take(&mut top).map_err(give_up)?;
+                    top.finish(TOP_KEYS).map_err(give_up)?;
+                    let mut m = settings.into_model().map_err(give_up)?;
+                    map.next_value_seed(Elements { model: &mut m, nodes: true })?;
+                    model = Some(m);
+                }
+                "links" => {
+                    let Some(m) = model.as_mut() else { return Err(A::Error::custom("links before nodes")) };
+                    map.next_value_seed(Elements { model: m, nodes: false })?;
+                    links_read = true;
+                }
+                "controls" => controls = Some(map.next_value_seed(doc::Seed { depth: 1 })?),
+                _ if model.is_some() => return Err(A::Error::custom("a setting after the nodes")),
+                _ => entries.push((Key::Owned(key.clone()), map.next_value_seed(doc::Seed { depth: 1 })?)),
+            }
+            seen.push(key);
+        }
+        let Some(model) = model else { return Err(A::Error::custom("no nodes")) };
+        let controls = match controls {
+            None => Vec::new(),
+            Some(Value::Array(items)) => items,
+            Some(_) => return Err(A::Error::custom("controls not an array")),
+        };
+        finish(model, controls).map_err(give_up)
+    }
+}
+
+/// The `nodes` or `links` array of [`OnePass`], read element by element into the model.
+struct Elements<'m> {
+    model: &'m mut Model,
+    nodes: bool,
+}
+
+impl<'de> serde::de::DeserializeSeed<'de> for Elements<'_> {
+    type Value = ();
+    fn deserialize<D: serde::Deserializer<'de>>(self, deserializer: D) -> Result<(), D::Error> {
+        deserializer.deserialize_seq(self)
+    }
+}
+
+impl<'de> serde::de::Visitor<'de> for Elements<'_> {
+    type Value = ();
+
+    fn expecting(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str("an array of tables")
+    }
+
+    fn visit_seq<A: serde::de::SeqAccess<'de>>(self, mut seq: A) -> Result<(), A::Error> {
+        let mut i = 0;
+        while let Some(value) = seq.next_element_seed(doc::Seed { depth: 2 })? {
+            if self.nodes {
+                add_node_value(self.model, i, value).map_err(give_up)?;
+            } else {
+                add_link_value(self.model, i, value).map_err(give_up)?;
+            }
+            i += 1;
+        }
+        Ok(())
+    }
 }
 
 fn read_inner(text: &str, format: Format) -> Result<Model, ModelError> {
     if format == Format::Json {
-        if let Some(model) = read_json_streamed(text) {
+        if let Some(model) = read_json_one_pass(serde_json::Deserializer::from_str(text)) {
             return Ok(model);
         }
     }
@@ -170,90 +262,116 @@ fn read_tree(text: &str, format: Format) -> Result<Model, ModelError> {
     let Value::Table(entries) = tree else {
         return Err(ModelError::new(format!("the model must be a table of keys, found {}", tree.kind())));
     };
-    type Items = std::iter::Map<std::vec::IntoIter<Value>, fn(Value) -> Result<Value, ModelError>>;
-    build::<Items, Items>(Fields::new(None, entries), None, None)
-}
-
-/// Builds the model from the top-level table. The elements of `nodes` and `links` come from the
-/// table itself (`None`), or one by one from the streamed JSON reader.
-fn build<N, L>(mut top: Fields, nodes: Option<N>, links: Option<L>) -> Result<Model, ModelError>
-where
-    N: Iterator<Item = Result<Value, ModelError>>,
-    L: Iterator<Item = Result<Value, ModelError>>,
-{
-    let title = top.string("title")?;
-    let units = match top.take("units") {
-        Some(v) => read_units(v)?,
-        None => UnitSystem::default(),
-    };
-    let options = match top.take("hydraulics") {
-        Some(v) => read_hydraulics(v, &units)?,
-        None => HydraulicOptions::default(),
-    };
-    let simulation = match top.take("simulation") {
-        Some(v) => Some(read_simulation(v, &units)?),
-        None => None,
-    };
-    let energy = top.take("electricity");
-    let patterns = top.array("patterns")?;
-    // Checked by `analysis::Criteria::from_value`, which the commands that use it call.
-    let criteria = top.take("criteria");
-    let nodes: Box<dyn Iterator<Item = Result<Value, ModelError>>> = match nodes {
-        Some(items) => Box::new(items),
-        None => Box::new(top.array("nodes")?.into_iter().map(Ok)),
-    };
-    let links: Box<dyn Iterator<Item = Result<Value, ModelError>>> = match links {
-        Some(items) => Box::new(items),
-        None => Box::new(top.array("links")?.into_iter().map(Ok)),
-    };
+    let mut top = Fields::new(None, entries);
+    let settings = Settings::take(&mut top)?;
+    let nodes = top.array("nodes")?;
+    let links = top.array("links")?;
     let controls = top.array("controls")?;
     top.finish(TOP_KEYS)?;
+    let mut model = settings.into_model()?;
+    for (i, v) in nodes.into_iter().enumerate() {
+        add_node_value(&mut model, i, v)?;
+    }
+    for (i, v) in links.into_iter().enumerate() {
+        add_link_value(&mut model, i, v)?;
+    }
+    finish(model, controls)
+}
 
-    let mut model = Model::new(units, options);
-    model.title = title;
-    model.time.simulation = simulation;
-    for (i, v) in patterns.into_iter().enumerate() {
-        let pattern = read_pattern(i, v, &model.time)?;
-        model.time.patterns.push(pattern);
+/// What the top level says besides the elements and controls, read in this order by both readers.
+struct Settings {
+    title: Option<String>,
+    units: UnitSystem,
+    options: HydraulicOptions,
+    simulation: Option<SimulationSettings>,
+    energy: Option<Value>,
+    patterns: Vec<Value>,
+    criteria: Option<Value>,
+}
+
+impl Settings {
+    fn take(top: &mut Fields) -> Result<Settings, ModelError> {
+        let title = top.string("title")?;
+        let units = match top.take("units") {
+            Some(v) => read_units(v)?,
+            None => UnitSystem::default(),
+        };
+        let options = match top.take("hydraulics") {
+            Some(v) => read_hydraulics(v, &units)?,
+            None => HydraulicOptions::default(),
+        };
+        let simulation = match top.take("simulation") {
+            Some(v) => Some(read_simulation(v, &units)?),
+            None => None,
+        };
+        let energy = top.take("electricity");
+        let patterns = top.array("patterns")?;
+        // Checked by `analysis::Criteria::from_value`, which the commands that use it call.
+        let criteria = top.take("criteria");
+        Ok(Settings { title, units, options, simulation, energy, patterns, criteria })
     }
-    if let Some(v) = energy {
-        model.time.energy = read_energy(v, &model.time)?;
-    }
-    model.criteria = criteria;
-    for (i, v) in nodes.enumerate() {
-        let index = model.nodes().len();
-        let node = read_node(i, v?, &units, index, &mut model.time)?;
-        model.add_node(node)?;
-    }
-    for (i, v) in links.enumerate() {
-        let index = model.links().len();
-        let (link, pattern) = read_link(i, v?, &model)?;
-        if let Some(p) = pattern {
-            match link.kind {
-                LinkKind::Pump(_) => model.time.speed_patterns.insert(index, p),
-                _ => model.time.setting_patterns.insert(index, p),
-            };
+
+    /// The model with these settings and its patterns, before any element.
+    fn into_model(self) -> Result<Model, ModelError> {
+        let mut model = Model::new(self.units, self.options);
+        model.title = self.title;
+        model.time.simulation = self.simulation;
+        for (i, v) in self.patterns.into_iter().enumerate() {
+            let pattern = read_pattern(i, v, &model.time)?;
+            model.time.patterns.push(pattern);
         }
-        model.add_link(link)?;
+        if let Some(v) = self.energy {
+            model.time.energy = read_energy(v, &model.time)?;
+        }
+        model.criteria = self.criteria;
+        Ok(model)
     }
+}
+
+/// Reads the `i`-th entry of `nodes` into the model.
+fn add_node_value(model: &mut Model, i: usize, value: Value) -> Result<(), ModelError> {
+    let index = model.nodes().len();
+    let units = model.units;
+    let node = read_node(i, value, &units, index, &mut model.time)?;
+    model.add_node(node)?;
+    Ok(())
+}
+
+/// Reads the `i`-th entry of `links` into the model.
+fn add_link_value(model: &mut Model, i: usize, value: Value) -> Result<(), ModelError> {
+    let index = model.links().len();
+    let (link, pattern) = read_link(i, value, model)?;
+    if let Some(p) = pattern {
+        match link.kind {
+            LinkKind::Pump(_) => model.time.speed_patterns.insert(index, p),
+            _ => model.time.setting_patterns.insert(index, p),
+        };
+    }
+    model.add_link(link)?;
+    Ok(())
+}
+
+/// The controls (they refer to nodes and links, so come last), then the whole-network checks.
+fn finish(mut model: Model, controls: Vec<Value>) -> Result<Model, ModelError> {
     for (i, v) in controls.into_iter().enumerate() {
         let control = read_control(i, v, &model)?;
         model.time.controls.push(control);
     }
     model.validate()?;
+    model.shrink_to_fit();
     Ok(model)
 }
 
 /// The keys of one table being read, with what has been consumed.
 struct Fields {
     element: Option<Element>,
-    entries: Vec<(String, Option<Value>)>,
+    entries: Vec<(Key, Option<Value>)>,
     /// Written before every key in messages, for tables inside an element ("demands[2].").
     prefix: String,
 }
 
 impl Fields {
-    fn new(element: Option<Element>, entries: Vec<(String, Value)>) -> Self {
+    fn new(element: Option<Element>, entries: Vec<(Key, Value)>) -> Self {
         Fields { element, entries: entries.into_iter().map(|(k, v)| (k, Some(v))).collect(), prefix: String::new() }
     }
 
@@ -404,7 +522,7 @@ impl Fields {
     /// Errors on the first key that is not in `known`, before any is read (so that a misspelt
     /// key is reported as such rather than as the key it should have been).
     fn reject_unknown(&self, known: &[&str]) -> Result<(), ModelError> {
-        match self.entries.iter().find(|(k, v)| v.is_some() && !known.contains(&k.as_str())) {
+        match self.entries.iter().find(|(k, v)| v.is_some() && !known.contains(&k.as_ref())) {
             Some((key, _)) => {
                 let hint =
                     suggest(key, known.iter().copied()).map(|s| format!(" (did you mean '{s}'?)")).unwrap_or_default();
@@ -426,10 +544,10 @@ impl Fields {
             if value.is_none() {
                 continue;
             }
-            let message = if known.contains(&key.as_str()) {
+            let message = if known.contains(&key.as_ref()) {
                 // A known key that was not consumed: it conflicts with another key.
                 "cannot be combined with the other keys given here".to_owned()
-            } else if elsewhere.contains(&key.as_str()) {
+            } else if elsewhere.contains(&key.as_ref()) {
                 format!("does not apply to a {what}")
             } else {
                 let hint =
@@ -566,7 +684,7 @@ fn identify(
         }
         None => return Err(ModelError::at(Some(entry), Some("id"), "is missing")),
     };
-    super::check_id(&id, entry)?;
+    super::check_id(&id, &entry)?;
     f.element = Some(make(id));
     let kind = f.string("kind")?.unwrap_or_else(|| default_kind.to_owned());
     let Some(keys) = keys_for(kinds, &kind) else {
@@ -650,14 +768,14 @@ fn read_node(
                 let curve = tm::VolumeCurve::new(points).map_err(|m| f.error("volume_curve", m))?;
                 time.volume_curves.insert(node_index, curve);
             }
-            (elevation, NodeKind::Tank(tank))
+            (elevation, NodeKind::Tank(Box::new(tank)))
         }
     };
     let element = f.element.clone();
     let Some(Element::Node(id)) = element else { unreachable!("identify sets the element") };
     static ALL_NODE_KEYS: OnceLock<Vec<&'static str>> = OnceLock::new();
     f.finish_with(keys, ALL_NODE_KEYS.get_or_init(|| all_keys(NODE_KEYS)), kind.label())?;
-    Ok(Node { id, elevation, coordinates, zone, kind })
+    Ok(Node { id: id.into(), elevation, coordinates, zone, kind })
 }
 
 /// Reads a link; also returns the index of its speed or setting pattern, if it has one.
@@ -682,7 +800,9 @@ fn read_link(index: usize, value: Value, model: &Model) -> Result<(Link, Option<
     };
     let (kind, status) = match kind.as_str() {
         "pipe" => (LinkKind::Pipe(read_pipe(&mut f, model)?), link_status(&f, status_text.as_deref(), false)?.0),
-        "pump" => (LinkKind::Pump(read_pump(&mut f, model)?), link_status(&f, status_text.as_deref(), false)?.0),
+        "pump" => {
+            (LinkKind::Pump(Box::new(read_pump(&mut f, model)?)), link_status(&f, status_text.as_deref(), false)?.0)
+        }
         _ => {
             let (status, automatic) = link_status(&f, status_text.as_deref(), true)?;
             (LinkKind::Valve(read_valve(&mut f, model, automatic)?), status)
@@ -691,7 +811,7 @@ fn read_link(index: usize, value: Value, model: &Model) -> Result<(Link, Option<
     let Some(Element::Link(id)) = f.element.clone() else { unreachable!("identify sets the element") };
     static ALL_LINK_KEYS: OnceLock<Vec<&'static str>> = OnceLock::new();
     f.finish_with(keys, ALL_LINK_KEYS.get_or_init(|| all_keys(LINK_KEYS)), kind.label())?;
-    Ok((Link { id, from, to, status, kind }, pattern))
+    Ok((Link { id: id.into(), from, to, status, kind }, pattern))
 }
 
 /// Reads `status`: open | closed, and for valves also automatic (the default for valves).
@@ -883,7 +1003,7 @@ fn entry_id(f: &mut Fields, table: &str, index: usize, make: fn(String) -> Eleme
         }
         None => return Err(ModelError::at(Some(entry), Some("id"), "is missing")),
     };
-    super::check_id(&id, entry)?;
+    super::check_id(&id, &entry)?;
     f.element = Some(make(id.clone()));
     Ok(id)
 }
@@ -1156,17 +1276,26 @@ mod tests {
     use super::*;
 
     #[test]
+    fn every_element_key_is_shared_not_copied() {
+        for (_, keys) in NODE_KEYS.iter().chain(LINK_KEYS) {
+            for key in *keys {
+                assert!(doc::ELEMENT_KEYS.contains(key), "{key} is missing from doc::ELEMENT_KEYS");
+            }
+        }
+    }
+
+    #[test]
     fn streamed_json_reader_builds_the_same_model_as_the_tree_reader() {
         let mut model = crate::generate::generate(&crate::generate::NetworkSpec::new(1_500, 3)).unwrap();
         model.units = UnitSystem { flow: crate::units::FlowUnit::parse("gpm").unwrap(), ..UnitSystem::default() };
         let k = model.links().len() - 1;
         model.set_status(k, LinkStatus::Closed).unwrap();
         let text = super::super::write::to_string(&model, Format::Json);
-        let streamed = read_json_streamed(&text).expect("the streamed reader takes a written model");
+        let streamed = read_json_stream(text.as_bytes()).expect("the one-pass reader takes a written model");
         assert_eq!(streamed, read_tree(&text, Format::Json).unwrap());
-        // Where the streamed reader gives up, the tree reader's error comes out.
+        // Where the one-pass reader gives up, the tree reader's error comes out.
         let broken = text.replacen("\"length\"", "\"lenght\"", 1);
-        assert!(read_json_streamed(&broken).is_none());
+        assert!(read_json_stream(broken.as_bytes()).is_none());
         let e = read_str(&broken, Format::Json, "broken.json").unwrap_err();
         assert!(e.to_string().contains("lenght"), "{e}");
     }

@@ -13,6 +13,7 @@
 
 pub mod doc;
 pub mod file;
+mod index;
 pub mod time;
 pub mod write;
 
@@ -20,7 +21,7 @@ use crate::error::{Element, ModelError};
 use crate::physics::pump::{Efficiency, HeadCurve};
 use crate::physics::WaterProperties;
 use crate::units::UnitSystem;
-use std::collections::HashMap;
+use index::{IdIndex, Insert};
 
 /// Friction law used for every pipe of a model.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Default)]
@@ -125,8 +126,8 @@ pub enum NodeKind {
         /// Total head, m.
         head: f64,
     },
-    /// A tank, fixed head in a snapshot.
-    Tank(Tank),
+    /// A tank, fixed head in a snapshot (boxed: junctions, the common case, stay small).
+    Tank(Box<Tank>),
 }
 
 impl NodeKind {
@@ -140,11 +141,15 @@ impl NodeKind {
     }
 }
 
+/// An element's id: a string kept inline when it is short (up to 24 bytes, as nearly every id
+/// is), so that a model of a million elements does not make a million small allocations.
+pub type Id = compact_str::CompactString;
+
 /// A node of the network.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Node {
     /// Unique id among nodes.
-    pub id: String,
+    pub id: Id,
     /// Ground (junction), floor (tank) or water-surface (reservoir, by default) elevation, m.
     pub elevation: f64,
     /// Optional map coordinates (any consistent unit).
@@ -157,12 +162,12 @@ pub struct Node {
 
 impl Node {
     /// A junction.
-    pub fn junction(id: impl Into<String>, elevation: f64, demand: f64) -> Self {
+    pub fn junction(id: impl Into<Id>, elevation: f64, demand: f64) -> Self {
         Node { id: id.into(), elevation, coordinates: None, zone: None, kind: NodeKind::Junction { demand } }
     }
 
     /// A reservoir whose elevation is its head.
-    pub fn reservoir(id: impl Into<String>, head: f64) -> Self {
+    pub fn reservoir(id: impl Into<Id>, head: f64) -> Self {
         Node { id: id.into(), elevation: head, coordinates: None, zone: None, kind: NodeKind::Reservoir { head } }
     }
 
@@ -181,10 +186,6 @@ impl Node {
             NodeKind::Junction { demand } => demand,
             _ => 0.0,
         }
-    }
-
-    fn element(&self) -> Element {
-        Element::Node(self.id.clone())
     }
 }
 
@@ -317,8 +318,8 @@ pub struct Valve {
 pub enum LinkKind {
     /// A pipe.
     Pipe(Pipe),
-    /// A pump.
-    Pump(Pump),
+    /// A pump (boxed: pipes, the common case, stay small).
+    Pump(Box<Pump>),
     /// A control valve.
     Valve(Valve),
 }
@@ -338,7 +339,7 @@ impl LinkKind {
 #[derive(Clone, Debug, PartialEq)]
 pub struct Link {
     /// Unique id among links.
-    pub id: String,
+    pub id: Id,
     /// Index of the upstream node (for sign conventions).
     pub from: usize,
     /// Index of the downstream node.
@@ -369,7 +370,7 @@ impl Link {
             LinkKind::Valve(v) => v.automatic = automatic,
             other if automatic => {
                 return Err(ModelError::at(
-                    Some(Element::Link(self.id.clone())),
+                    Some(Element::Link(self.id.to_string())),
                     Some("status"),
                     format!("\"automatic\" applies to valves only; this link is a {}", other.label()),
                 ))
@@ -404,14 +405,10 @@ impl Link {
             LinkKind::Pump(_) => None,
         }
     }
-
-    fn element(&self) -> Element {
-        Element::Link(self.id.clone())
-    }
 }
 
 /// A water-distribution network and its options, SI inside.
-#[derive(Clone, Debug, Default, PartialEq)]
+#[derive(Clone, Debug, Default)]
 pub struct Model {
     /// Optional title.
     pub title: Option<String>,
@@ -426,12 +423,26 @@ pub struct Model {
     pub criteria: Option<doc::Value>,
     nodes: Vec<Node>,
     links: Vec<Link>,
-    node_index: HashMap<String, usize>,
-    link_index: HashMap<String, usize>,
+    node_index: IdIndex,
+    link_index: IdIndex,
+}
+
+/// Two models are equal when their data are; the id indices follow from the elements.
+impl PartialEq for Model {
+    fn eq(&self, other: &Self) -> bool {
+        let Model { title, units, options, time, criteria, nodes, links, node_index: _, link_index: _ } = self;
+        *title == other.title
+            && *units == other.units
+            && *options == other.options
+            && *time == other.time
+            && *criteria == other.criteria
+            && *nodes == other.nodes
+            && *links == other.links
+    }
 }
 
 /// Checks that a value is a finite number, and optionally strictly positive or non-negative.
-pub(crate) fn check_value(element: &Element, key: &str, value: f64, rule: Rule) -> Result<f64, ModelError> {
+pub(crate) fn check_value(element: &impl Named, key: &str, value: f64, rule: Rule) -> Result<f64, ModelError> {
     let problem = if value.is_nan() {
         Some("must be a number, found NaN".to_owned())
     } else if value.is_infinite() {
@@ -445,8 +456,32 @@ pub(crate) fn check_value(element: &Element, key: &str, value: f64, rule: Rule) 
         }
     };
     match problem {
-        Some(message) => Err(ModelError::at(Some(element.clone()), Some(key), message)),
+        Some(message) => Err(ModelError::at(Some(element.element()), Some(key), message)),
         None => Ok(value),
+    }
+}
+
+/// What an error names: an element, made only when there is an error to report (checking a
+/// large model's values would otherwise copy every id twice).
+pub(crate) trait Named {
+    fn element(&self) -> Element;
+}
+
+impl Named for Element {
+    fn element(&self) -> Element {
+        self.clone()
+    }
+}
+
+impl Named for Node {
+    fn element(&self) -> Element {
+        Element::Node(self.id.to_string())
+    }
+}
+
+impl Named for Link {
+    fn element(&self) -> Element {
+        Element::Link(self.id.to_string())
     }
 }
 
@@ -458,12 +493,12 @@ pub(crate) enum Rule {
     NonNegative,
 }
 
-fn check_id(id: &str, element: Element) -> Result<(), ModelError> {
+fn check_id(id: &str, element: &impl Named) -> Result<(), ModelError> {
     if id.trim().is_empty() {
-        return Err(ModelError::at(Some(element), Some("id"), "must not be empty"));
+        return Err(ModelError::at(Some(element.element()), Some("id"), "must not be empty"));
     }
     if id.chars().any(char::is_control) {
-        return Err(ModelError::at(Some(element), Some("id"), "must not contain control characters"));
+        return Err(ModelError::at(Some(element.element()), Some("id"), "must not contain control characters"));
     }
     Ok(())
 }
@@ -484,57 +519,64 @@ impl Model {
         &self.links
     }
 
+    /// Gives back the room the element lists grew into while elements were added one by one
+    /// (up to half of it for a large model read from a file).
+    pub fn shrink_to_fit(&mut self) {
+        self.nodes.shrink_to_fit();
+        self.links.shrink_to_fit();
+    }
+
     /// Index of a node by id.
     pub fn node_index(&self, id: &str) -> Option<usize> {
-        self.node_index.get(id).copied()
+        self.node_index.find(id, |k| &self.nodes[k].id)
     }
 
     /// Index of a link by id.
     pub fn link_index(&self, id: &str) -> Option<usize> {
-        self.link_index.get(id).copied()
+        self.link_index.find(id, |k| &self.links[k].id)
     }
 
     /// Checks one node's values (used when adding and after changes).
     fn check_node(node: &Node) -> Result<(), ModelError> {
-        let el = node.element();
-        check_id(&node.id, el.clone())?;
+        let el = node;
+        check_id(&node.id, el)?;
         if let NodeKind::Reservoir { head } = &node.kind {
             // Checked first: a reservoir's elevation defaults to its head.
-            check_value(&el, "head", *head, Rule::Finite)?;
+            check_value(el, "head", *head, Rule::Finite)?;
         }
-        check_value(&el, "elevation", node.elevation, Rule::Finite)?;
+        check_value(el, "elevation", node.elevation, Rule::Finite)?;
         if let Some((x, y)) = node.coordinates {
-            check_value(&el, "x", x, Rule::Finite)?;
-            check_value(&el, "y", y, Rule::Finite)?;
+            check_value(el, "x", x, Rule::Finite)?;
+            check_value(el, "y", y, Rule::Finite)?;
         }
         match &node.kind {
             NodeKind::Junction { demand } => {
-                check_value(&el, "demand", *demand, Rule::Finite)?;
+                check_value(el, "demand", *demand, Rule::Finite)?;
             }
             NodeKind::Reservoir { head } => {
-                check_value(&el, "head", *head, Rule::Finite)?;
+                check_value(el, "head", *head, Rule::Finite)?;
             }
             NodeKind::Tank(t) => {
-                check_value(&el, "level", t.level, Rule::NonNegative)?;
-                check_value(&el, "min_level", t.min_level, Rule::NonNegative)?;
+                check_value(el, "level", t.level, Rule::NonNegative)?;
+                check_value(el, "min_level", t.min_level, Rule::NonNegative)?;
                 if let Some(d) = t.diameter {
-                    check_value(&el, "diameter", d, Rule::Positive)?;
+                    check_value(el, "diameter", d, Rule::Positive)?;
                 }
                 if t.level < t.min_level {
                     return Err(ModelError::at(
-                        Some(el),
+                        Some(el.element()),
                         Some("level"),
                         format!("is below min_level ({} < {} m)", t.level, t.min_level),
                     ));
                 }
                 if let Some(max) = t.max_level {
-                    check_value(&el, "max_level", max, Rule::Positive)?;
+                    check_value(el, "max_level", max, Rule::Positive)?;
                     if max < t.min_level {
-                        return Err(ModelError::at(Some(el), Some("max_level"), "is below min_level"));
+                        return Err(ModelError::at(Some(el.element()), Some("max_level"), "is below min_level"));
                     }
                     if t.level > max {
                         return Err(ModelError::at(
-                            Some(el),
+                            Some(el.element()),
                             Some("level"),
                             format!("is above max_level ({} > {} m)", t.level, max),
                         ));
@@ -546,35 +588,35 @@ impl Model {
     }
 
     fn check_link(&self, link: &Link) -> Result<(), ModelError> {
-        let el = link.element();
-        check_id(&link.id, el.clone())?;
+        let el = link;
+        check_id(&link.id, el)?;
         if link.from >= self.nodes.len() || link.to >= self.nodes.len() {
-            return Err(ModelError::at(Some(el), Some("from"), "refers to a node index that does not exist"));
+            return Err(ModelError::at(Some(el.element()), Some("from"), "refers to a node index that does not exist"));
         }
         if link.from == link.to {
             return Err(ModelError::at(
-                Some(el),
+                Some(el.element()),
                 Some("to"),
                 format!("links node '{}' to itself; a link must join two different nodes", self.nodes[link.to].id),
             ));
         }
         match &link.kind {
             LinkKind::Pipe(p) => {
-                check_value(&el, "length", p.length, Rule::Positive)?;
-                check_value(&el, "diameter", p.diameter, Rule::Positive)?;
+                check_value(el, "length", p.length, Rule::Positive)?;
+                check_value(el, "diameter", p.diameter, Rule::Positive)?;
                 let hint = match self.options.headloss {
                     HeadLossLaw::HazenWilliams => "",
                     HeadLossLaw::DarcyWeisbach => {
                         " (for a hydraulically smooth pipe give a small absolute roughness, e.g. 0.0015 mm)"
                     }
                 };
-                check_value(&el, "roughness", p.roughness, Rule::Positive).map_err(|mut e| {
+                check_value(el, "roughness", p.roughness, Rule::Positive).map_err(|mut e| {
                     e.message.push_str(hint);
                     e
                 })?;
                 if self.options.headloss == HeadLossLaw::HazenWilliams && p.roughness < 1.0 {
                     return Err(ModelError::at(
-                        Some(el),
+                        Some(el.element()),
                         Some("roughness"),
                         format!(
                             "{} is an absolute roughness, but this model uses Hazen-Williams, whose roughness is the \
@@ -583,27 +625,27 @@ impl Model {
                         ),
                     ));
                 }
-                check_value(&el, "minor_loss", p.minor_loss, Rule::NonNegative)?;
+                check_value(el, "minor_loss", p.minor_loss, Rule::NonNegative)?;
             }
             LinkKind::Pump(p) => {
-                check_value(&el, "speed", p.speed, Rule::NonNegative)?;
+                check_value(el, "speed", p.speed, Rule::NonNegative)?;
                 match &p.drive {
                     PumpDrive::Power(w) => {
-                        check_value(&el, "power", *w, Rule::Positive)?;
+                        check_value(el, "power", *w, Rule::Positive)?;
                     }
                     PumpDrive::Curve { points, .. } => {
                         HeadCurve::fit(points)
-                            .map_err(|e| ModelError::at(Some(el.clone()), Some("head_curve"), e.0))?;
+                            .map_err(|e| ModelError::at(Some(el.element()), Some("head_curve"), e.0))?;
                     }
                 }
                 if let Some(points) = &p.efficiency_points {
                     Efficiency::fit(points)
-                        .map_err(|e| ModelError::at(Some(el.clone()), Some("efficiency_curve"), e.0))?;
+                        .map_err(|e| ModelError::at(Some(el.element()), Some("efficiency_curve"), e.0))?;
                 }
                 if let Efficiency::Constant(e) = p.efficiency {
                     if !(e > 0.0 && e <= 1.0) {
                         return Err(ModelError::at(
-                            Some(el),
+                            Some(el.element()),
                             Some("efficiency"),
                             "must be above 0 and at most 100 percent",
                         ));
@@ -611,13 +653,13 @@ impl Model {
                 }
             }
             LinkKind::Valve(v) => {
-                check_value(&el, "diameter", v.diameter, Rule::Positive)?;
-                check_value(&el, "minor_loss", v.minor_loss, Rule::NonNegative)?;
+                check_value(el, "diameter", v.diameter, Rule::Positive)?;
+                check_value(el, "minor_loss", v.minor_loss, Rule::NonNegative)?;
                 let rule = match v.valve {
                     ValveType::PressureReducing | ValveType::PressureSustaining => Rule::Finite,
                     ValveType::FlowControl | ValveType::Throttle => Rule::NonNegative,
                 };
-                check_value(&el, "setting", v.setting, rule)?;
+                check_value(el, "setting", v.setting, rule)?;
             }
         }
         Ok(())
@@ -626,15 +668,19 @@ impl Model {
     /// Adds a node after checking its values; returns its index.
     pub fn add_node(&mut self, node: Node) -> Result<usize, ModelError> {
         Self::check_node(&node)?;
-        if self.node_index.contains_key(&node.id) {
-            return Err(ModelError::at(
-                Some(node.element()),
-                Some("id"),
-                "is used by another node; node ids must be unique",
-            ));
-        }
         let index = self.nodes.len();
-        self.node_index.insert(node.id.clone(), index);
+        let nodes = &self.nodes;
+        match self.node_index.insert(&node.id, index, |k| &nodes[k].id) {
+            Insert::Added => {}
+            Insert::Duplicate => {
+                return Err(ModelError::at(
+                    Some(node.element()),
+                    Some("id"),
+                    "is used by another node; node ids must be unique",
+                ))
+            }
+            Insert::Full => return Err(ModelError::at(Some(node.element()), None, "too many nodes in one model")),
+        }
         self.nodes.push(node);
         Ok(index)
     }
@@ -642,15 +688,19 @@ impl Model {
     /// Adds a link after checking its values and its end nodes; returns its index.
     pub fn add_link(&mut self, link: Link) -> Result<usize, ModelError> {
         self.check_link(&link)?;
-        if self.link_index.contains_key(&link.id) {
-            return Err(ModelError::at(
-                Some(link.element()),
-                Some("id"),
-                "is used by another link; link ids must be unique",
-            ));
-        }
         let index = self.links.len();
-        self.link_index.insert(link.id.clone(), index);
+        let links = &self.links;
+        match self.link_index.insert(&link.id, index, |k| &links[k].id) {
+            Insert::Added => {}
+            Insert::Duplicate => {
+                return Err(ModelError::at(
+                    Some(link.element()),
+                    Some("id"),
+                    "is used by another link; link ids must be unique",
+                ))
+            }
+            Insert::Full => return Err(ModelError::at(Some(link.element()), None, "too many links in one model")),
+        }
         self.links.push(link);
         Ok(index)
     }

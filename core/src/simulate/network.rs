@@ -161,7 +161,7 @@ impl Network {
                 (None, Some(d)) => Shape::Cylinder(std::f64::consts::PI * d * d / 4.0),
                 (None, None) => {
                     return Err(ModelError::at(
-                        Some(Element::Node(n.id.clone())),
+                        Some(Element::Node(n.id.to_string())),
                         Some("diameter"),
                         "is missing: a simulation needs each tank's diameter or volume_curve",
                     )
@@ -288,7 +288,7 @@ impl Network {
                     .mode
                     .iter()
                     .position(|m| *m != TankMode::Normal)
-                    .map(|j| self.work.nodes()[self.tanks[j].node].id.clone())
+                    .map(|j| self.work.nodes()[self.tanks[j].node].id.to_string())
                     .unwrap_or_default();
                 return Err(SimulateError::TankLimits { time, tank });
             }

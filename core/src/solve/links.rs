@@ -24,7 +24,7 @@ enum Kind {
     /// Friction (pipes only) plus `m Q|Q|`.
     Resistance { friction: Option<Friction>, minor: f64 },
     /// `h = −s² H(Q/s)`.
-    Curve { curve: HeadCurve, speed: f64 },
+    Curve { curve: Box<HeadCurve>, speed: f64 },
     /// `h = −P/(ρ g Q)` above `q_c`, tangent below.
     Power { power_over_rho_g: f64, q_c: f64 },
     /// A pump at zero speed: never open (kept closed by the status logic).
@@ -98,7 +98,7 @@ impl LinkLaw {
                         // A characteristic flow: the run-out, else the last point, of the curve at speed.
                         let q_char = curve.runout().or(curve.last_point_flow()).unwrap_or(0.01) * p.speed;
                         let law = LinkLaw {
-                            kind: Kind::Curve { curve: curve.clone(), speed: p.speed },
+                            kind: Kind::Curve { curve: Box::new(curve.clone()), speed: p.speed },
                             area: 0.0,
                             min_slope: 0.0,
                             initial_flow: 0.5 * q_char,

@@ -431,7 +431,9 @@ impl Solver {
                 *law = LinkLaw::with_water(model, link, &water);
             }
         } else {
-            self.laws = model.links().iter().map(|l| LinkLaw::with_water(model, l, &water)).collect();
+            // In the room reserved when the solver was made: no second array at any time.
+            self.laws.clear();
+            self.laws.extend(model.links().iter().map(|l| LinkLaw::with_water(model, l, &water)));
         }
         for (hot, c) in self.hot.iter_mut().zip(&self.pattern.core) {
             let law = &self.laws[c.link as usize];
@@ -642,7 +644,7 @@ impl Solver {
                     Err(cycling) => {
                         return Err(SolveError::StatusCycle {
                             iterations,
-                            links: cycling.into_iter().map(|k| links[k].id.clone()).collect(),
+                            links: cycling.into_iter().map(|k| links[k].id.to_string()).collect(),
                         })
                     }
                 }
@@ -1056,7 +1058,7 @@ impl Solver {
             .filter(|&u| self.free[u])
             .map(|u| {
                 let node = self.pattern.node_of_unknown[u] as usize;
-                Offender { id: model.nodes()[node].id.clone(), value: self.delta[u].abs() }
+                Offender { id: model.nodes()[node].id.to_string(), value: self.delta[u].abs() }
             })
             .filter(|o| o.value.is_finite())
             .collect();
@@ -1067,7 +1069,7 @@ impl Solver {
             .iter()
             .enumerate()
             .filter(|(k, _)| self.on_law[*k])
-            .map(|(k, l)| Offender { id: l.id.clone(), value: energy[k] })
+            .map(|(k, l)| Offender { id: l.id.to_string(), value: energy[k] })
             .collect();
         worst_links.sort_by(|a, b| b.value.total_cmp(&a.value));
         worst_links.truncate(5);
@@ -1153,12 +1155,12 @@ impl Solver {
             } else {
                 "cut off from every reservoir and tank by closed links; it has no head".to_owned()
             };
-            warnings.push(Warning { element: Some(Element::Node(nodes[i].id.clone())), message });
+            warnings.push(Warning { element: Some(Element::Node(nodes[i].id.to_string())), message });
         }
         for (i, n) in nodes.iter().enumerate() {
             if n.fixed_head().is_none() && self.connected[i] && pressure[i] < 0.0 {
                 warnings.push(Warning {
-                    element: Some(Element::Node(n.id.clone())),
+                    element: Some(Element::Node(n.id.to_string())),
                     message: "negative pressure: the demand cannot really be delivered at this head (consider a \
                               pressure-driven analysis)"
                         .to_owned(),
@@ -1168,7 +1170,7 @@ impl Solver {
         for r in &pumps {
             if r.beyond_curve {
                 warnings.push(Warning {
-                    element: Some(Element::Link(links[r.link].id.clone())),
+                    element: Some(Element::Link(links[r.link].id.to_string())),
                     message: "runs past the end of its head curve (it adds no head and acts as a resistance)".into(),
                 });
             }

@@ -407,8 +407,14 @@ mod tests {
         let curve = HeadCurve::fit(&points).unwrap();
         let drive = PumpDrive::Curve { points, curve };
         let pump = Pump { drive, efficiency_points: None, efficiency: Efficiency::Constant(0.75), speed: 1.0 };
-        m.add_link(Link { id: "PU".into(), from: 4, to: 9, status: LinkStatus::Open, kind: LinkKind::Pump(pump) })
-            .unwrap();
+        m.add_link(Link {
+            id: "PU".into(),
+            from: 4,
+            to: 9,
+            status: LinkStatus::Open,
+            kind: LinkKind::Pump(Box::new(pump)),
+        })
+        .unwrap();
         m
     }
 
