@@ -244,18 +244,20 @@ pub fn run(args: Args) -> ExitCode {
         seconds: started.elapsed().as_secs_f64(),
     };
     let code = run.exit_code();
-    let text = if args.json {
-        serde_json::to_string_pretty(&check_report::to_json(&run, code)).unwrap_or_default() + "\n"
-    } else {
-        check_report::to_table(&run, code)
-    };
     if let Some(path) = &args.junit {
         if let Err(e) = std::fs::write(path, check_report::to_junit(&run)) {
             eprintln!("error: cannot write the JUnit report to {}: {e}", path.display());
             return exit(EXIT_WRITE);
         }
     }
-    let written = crate::write_out(&text, None);
+    let written = crate::write_with("the results", None, |out| {
+        if args.json {
+            serde_json::to_writer_pretty(&mut *out, &check_report::to_json(&run, code))?;
+            out.write_all(b"\n")
+        } else {
+            out.write_all(check_report::to_table(&run, code).as_bytes())
+        }
+    });
     if written != ExitCode::SUCCESS {
         return written;
     }

@@ -13,6 +13,8 @@ mod snippet;
 use clap::{Parser, Subcommand, ValueEnum};
 use ringmain_core::physics::{friction_factor, WaterProperties};
 use ringmain_core::{Model, SolveError};
+use std::fs::File;
+use std::io::{BufWriter, Write};
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 use std::time::{Duration, Instant};
@@ -191,28 +193,46 @@ fn load(path: &Path) -> Result<Model, ()> {
         .map_err(|(e, source)| check::report_error(&e, source.as_ref().filter(|_| snippet)))
 }
 
+/// Writes a short text to the file, or to standard output.
 pub(crate) fn write_out(text: &str, output: Option<&Path>) -> ExitCode {
+    write_with("the results", output, |out| out.write_all(text.as_bytes()))
+}
+
+/// Streams what `write` writes, through a buffer, to the file or to standard output, and turns
+/// failures into a message naming `what` and the file. A closed pipe (`| head`) is success.
+pub(crate) fn write_with(
+    what: &str,
+    output: Option<&Path>,
+    write: impl FnOnce(&mut dyn Write) -> std::io::Result<()>,
+) -> ExitCode {
+    const BUFFER: usize = 1 << 16;
     match output {
         None => {
-            use std::io::Write;
-            let mut stdout = std::io::stdout().lock();
-            match stdout.write_all(text.as_bytes()).and_then(|_| stdout.flush()) {
+            let mut out = BufWriter::with_capacity(BUFFER, std::io::stdout().lock());
+            match write(&mut out).and_then(|()| out.flush()) {
                 Ok(()) => ExitCode::SUCCESS,
                 // A closed pipe (| head) is not an error worth a message.
                 Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => ExitCode::SUCCESS,
                 Err(e) => {
-                    eprintln!("error: cannot write the results: {e}");
+                    eprintln!("error: cannot write {what}: {e}");
                     ExitCode::from(EXIT_WRITE)
                 }
             }
         }
-        Some(path) => match std::fs::write(path, text) {
-            Ok(()) => ExitCode::SUCCESS,
-            Err(e) => {
-                eprintln!("error: cannot write the results to {}: {e}", path.display());
-                ExitCode::from(EXIT_WRITE)
+        Some(path) => {
+            let written = File::create(path).and_then(|file| {
+                let mut out = BufWriter::with_capacity(BUFFER, file);
+                write(&mut out)?;
+                out.flush()
+            });
+            match written {
+                Ok(()) => ExitCode::SUCCESS,
+                Err(e) => {
+                    eprintln!("error: cannot write {what} to {}: {e}", path.display());
+                    ExitCode::from(EXIT_WRITE)
+                }
             }
-        },
+        }
     }
 }
 
@@ -234,12 +254,6 @@ fn solve(path: &Path, format: OutputFormat, output: Option<&Path>, timings: bool
         }
     };
     let clock = Instant::now();
-    let report = report::Report::new(&model, &solution);
-    let text = match format {
-        OutputFormat::Table => report.to_table(),
-        OutputFormat::Json => report.to_json_text(),
-        OutputFormat::Csv => report.to_csv(),
-    };
     if format != OutputFormat::Json {
         for w in &solution.warnings {
             if let Some(e) = &w.element {
@@ -247,14 +261,19 @@ fn solve(path: &Path, format: OutputFormat, output: Option<&Path>, timings: bool
             }
         }
     }
-    let code = write_out(&text, output);
+    let report = report::Report::new(&model, &solution);
+    let code = write_with("the results", output, |out| match format {
+        OutputFormat::Table => report.write_table(out),
+        OutputFormat::Json => report.write_json(out),
+        OutputFormat::Csv => report.write_csv(out),
+    });
     let writing = clock.elapsed();
     if let (true, Some(solver)) = (timings, &solver) {
         print_timings(&model, solver, reading, writing);
     }
     // The process ends here: the operating system takes the memory back at once, while freeing
     // a large network's millions of small allocations one by one takes a noticeable time.
-    std::mem::forget((text, solution, model, solver));
+    std::mem::forget((solution, model, solver));
     code
 }
 
@@ -319,7 +338,13 @@ fn generate(junctions: usize, seed: u64, output: &Path) -> ExitCode {
             return ExitCode::from(EXIT_INVALID);
         }
     };
-    write_out(&ringmain_core::model::write::to_string(&model, format), Some(output))
+    let code = write_with("the model", Some(output), |out| match format {
+        ringmain_core::Format::Json => ringmain_core::model::write::write_json(&model, out),
+        ringmain_core::Format::Toml => out.write_all(ringmain_core::model::write::to_string(&model, format).as_bytes()),
+    });
+    // As in `solve`: the process ends here, the operating system takes the memory back at once.
+    std::mem::forget(model);
+    code
 }
 
 /// A progress bar on standard error, drawn only when it is a terminal.
@@ -387,12 +412,14 @@ fn simulate(path: &Path, format: OutputFormat, output: Option<&Path>, plot_dir: 
             }
         }
     }
-    let text = match format {
-        OutputFormat::Table => report.to_table(),
-        OutputFormat::Json => serde_json::to_string_pretty(&report.to_json()).unwrap_or_default() + "\n",
-        OutputFormat::Csv => report.to_csv(),
-    };
-    write_out(&text, output)
+    write_with("the results", output, |out| match format {
+        OutputFormat::Table => out.write_all(report.to_table().as_bytes()),
+        OutputFormat::Json => {
+            serde_json::to_writer_pretty(&mut *out, &report.to_json())?;
+            out.write_all(b"\n")
+        }
+        OutputFormat::Csv => out.write_all(report.to_csv().as_bytes()),
+    })
 }
 
 fn water_properties(temperature: f64, format: OutputFormat) -> ExitCode {

@@ -1,26 +1,52 @@
 //! Writers of solved snapshots: a readable table, JSON and CSV, all in the model's own units.
+//!
+//! Each writer streams to an [`std::io::Write`], element by element.
 
+use ringmain_core::model::write::write_element_per_line;
 use ringmain_core::model::{Valve, ValveType};
-use ringmain_core::solve::Warning;
+use ringmain_core::solve::{PumpResult, Warning};
 use ringmain_core::units::HORSEPOWER;
 use ringmain_core::{Model, NodeKind, Solution};
-use serde::Serialize;
+use serde::{Serialize, Serializer};
 use serde_json::{json, Value};
-use std::fmt::Write as _;
+use std::io::{self, Write};
 
 /// The JSON report's top level (fields in alphabetical order, as the keys are written).
 #[derive(Serialize)]
-struct JsonReport<'a> {
+struct JsonReport<'r, 'a> {
     converged: bool,
     iterations: u32,
-    links: Vec<JsonLink<'a>>,
-    nodes: Vec<JsonNode<'a>>,
+    links: JsonLinks<'r, 'a>,
+    nodes: JsonNodes<'r, 'a>,
     status_changes: u32,
     status_ending: &'static str,
     summary: Value,
     title: Option<&'a str>,
     units: Value,
     warnings: Vec<String>,
+}
+
+/// Every node of the report, serialized one at a time.
+struct JsonNodes<'r, 'a>(&'r Report<'a>);
+
+impl Serialize for JsonNodes<'_, '_> {
+    fn serialize<S: Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        s.collect_seq((0..self.0.model.nodes().len()).map(|i| self.0.json_node(i)))
+    }
+}
+
+/// Every link of the report, serialized one at a time.
+struct JsonLinks<'r, 'a>(&'r Report<'a>);
+
+impl Serialize for JsonLinks<'_, '_> {
+    fn serialize<S: Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        let r = self.0;
+        let mut pump_of_link = vec![None; r.model.links().len()];
+        for p in &r.solution.pumps {
+            pump_of_link[p.link] = Some(p);
+        }
+        s.collect_seq(pump_of_link.iter().enumerate().map(|(k, &pump)| r.json_link(k, pump)))
+    }
 }
 
 /// One node of the JSON report; numbers that are not finite are written as null.
@@ -119,13 +145,21 @@ impl<'a> Report<'a> {
     }
 
     /// Supply of every fixed-head node (positive: into the network), in flow units.
+    ///
+    /// One pass over the links for all of them (each node's flows are added in link order, as
+    /// [`Solution::net_outflow`] adds them), instead of one pass per source.
     fn sources(&self) -> Vec<(usize, f64)> {
-        self.model
-            .nodes()
+        let m = self.model;
+        let mut net = vec![0.0; m.nodes().len()];
+        for (l, &q) in m.links().iter().zip(&self.solution.flow) {
+            net[l.from] += q;
+            net[l.to] -= q;
+        }
+        m.nodes()
             .iter()
             .enumerate()
             .filter(|(_, n)| n.fixed_head().is_some())
-            .map(|(i, _)| (i, self.flow(self.solution.net_outflow(self.model, i))))
+            .map(|(i, _)| (i, self.flow(net[i])))
             .collect()
     }
 
@@ -133,68 +167,63 @@ impl<'a> Report<'a> {
         self.flow(self.model.nodes().iter().map(|n| n.demand()).sum())
     }
 
-    /// The JSON report: a tree of plain structs serialized directly (no intermediate value tree
-    /// of a million small maps), keys in alphabetical order.
-    fn json_report(&self) -> JsonReport<'_> {
+    fn json_node(&self, i: usize) -> JsonNode<'a> {
+        let m = self.model;
+        let s = self.solution;
+        let n = &m.nodes()[i];
+        JsonNode {
+            connected: s.connected[i],
+            demand: self.flow(s.demand[i]),
+            elevation: self.len(n.elevation),
+            head: self.len(s.head[i]),
+            id: &n.id,
+            kind: n.kind.label(),
+            pressure: self.pressure(s.pressure[i]),
+        }
+    }
+
+    fn json_link(&self, k: usize, pump: Option<&PumpResult>) -> JsonLink<'a> {
+        let m = self.model;
+        let s = self.solution;
+        let l = &m.links()[k];
+        let valve = l.as_valve();
+        JsonLink {
+            beyond_curve: pump.map(|p| p.beyond_curve),
+            efficiency: pump.map(|p| p.efficiency * 100.0),
+            flow: self.flow(s.flow[k]),
+            from: &m.nodes()[l.from].id,
+            head_gain: pump.map(|p| self.len(p.head)),
+            headloss: self.len(s.headloss[k]),
+            hydraulic_power: pump.map(|p| self.power(p.hydraulic_power)),
+            id: &l.id,
+            kind: l.kind.label(),
+            reason: s.link_state[k].reason(),
+            setting: valve.map(|v| self.setting(v)),
+            shaft_power: pump.map(|p| self.power(p.shaft_power)),
+            speed: pump.map(|p| p.speed),
+            status: s.link_state[k].status_label(),
+            to: &m.nodes()[l.to].id,
+            valve: valve.map(|v| v.valve.label()),
+            velocity: self.len(s.velocity[k]),
+        }
+    }
+
+    /// Writes the JSON report to `out`, one node or link a line, each serialized as it is
+    /// reached (nothing the size of the network is built first); `out` is flushed at the end.
+    pub fn write_json<W: Write>(&self, out: W) -> io::Result<()> {
         let m = self.model;
         let s = self.solution;
         let u = &m.units;
-        let nodes: Vec<JsonNode<'_>> = m
-            .nodes()
-            .iter()
-            .enumerate()
-            .map(|(i, n)| JsonNode {
-                connected: s.connected[i],
-                demand: self.flow(s.demand[i]),
-                elevation: self.len(n.elevation),
-                head: self.len(s.head[i]),
-                id: &n.id,
-                kind: n.kind.label(),
-                pressure: self.pressure(s.pressure[i]),
-            })
-            .collect();
-        let mut pump_of_link = vec![None; m.links().len()];
-        for p in &s.pumps {
-            pump_of_link[p.link] = Some(p);
-        }
-        let links: Vec<JsonLink<'_>> = m
-            .links()
-            .iter()
-            .enumerate()
-            .map(|(k, l)| {
-                let pump = pump_of_link[k];
-                let valve = l.as_valve();
-                JsonLink {
-                    beyond_curve: pump.map(|p| p.beyond_curve),
-                    efficiency: pump.map(|p| p.efficiency * 100.0),
-                    flow: self.flow(s.flow[k]),
-                    from: &m.nodes()[l.from].id,
-                    head_gain: pump.map(|p| self.len(p.head)),
-                    headloss: self.len(s.headloss[k]),
-                    hydraulic_power: pump.map(|p| self.power(p.hydraulic_power)),
-                    id: &l.id,
-                    kind: l.kind.label(),
-                    reason: s.link_state[k].reason(),
-                    setting: valve.map(|v| self.setting(v)),
-                    shaft_power: pump.map(|p| self.power(p.shaft_power)),
-                    speed: pump.map(|p| p.speed),
-                    status: s.link_state[k].status_label(),
-                    to: &m.nodes()[l.to].id,
-                    valve: valve.map(|v| v.valve.label()),
-                    velocity: self.len(s.velocity[k]),
-                }
-            })
-            .collect();
         let sources: Vec<Value> = self
             .sources()
             .into_iter()
             .map(|(i, q)| json!({"id": m.nodes()[i].id, "kind": m.nodes()[i].kind.label(), "supply": q}))
             .collect();
-        JsonReport {
+        let report = JsonReport {
             converged: s.converged,
             iterations: s.iterations,
-            links,
-            nodes,
+            links: JsonLinks(self),
+            nodes: JsonNodes(self),
             status_changes: s.status_changes,
             status_ending: s.ending.describe(),
             summary: json!({
@@ -209,34 +238,25 @@ impl<'a> Report<'a> {
                 "velocity": u.velocity_label(), "diameter": u.diameter.label(), "power": self.power_label(),
             }),
             warnings: s.warnings.iter().map(warning_text).collect(),
-        }
+        };
+        write_element_per_line(out, &report)
     }
 
-    /// The JSON report as pretty-printed text.
-    pub fn to_json_text(&self) -> String {
-        let report = self.json_report();
-        let mut out = Vec::with_capacity(256 * (report.nodes.len() + 2 * report.links.len()) + 1024);
-        // Serializing plain structs, strings and numbers into memory cannot fail.
-        let _ = serde_json::to_writer_pretty(&mut out, &report);
-        out.push(b'\n');
-        String::from_utf8(out).unwrap_or_default()
-    }
-
-    pub fn to_csv(&self) -> String {
+    /// Writes the nodes and then the links as CSV, a header line before each.
+    pub fn write_csv(&self, out: &mut dyn Write) -> io::Result<()> {
         let m = self.model;
         let s = self.solution;
         let u = &m.units;
         let cell = |v: f64| if v.is_finite() { format!("{v}") } else { String::new() };
-        let mut out = String::new();
-        let _ = writeln!(
+        writeln!(
             out,
             "node,kind,elevation_{l},head_{l},pressure_{p},demand_{q}",
             l = u.length,
             p = u.pressure,
             q = u.flow
-        );
+        )?;
         for (i, n) in m.nodes().iter().enumerate() {
-            let _ = writeln!(
+            writeln!(
                 out,
                 "{},{},{},{},{},{}",
                 csv_field(&n.id),
@@ -245,18 +265,18 @@ impl<'a> Report<'a> {
                 cell(self.len(s.head[i])),
                 cell(self.pressure(s.pressure[i])),
                 cell(self.flow(s.demand[i]))
-            );
+            )?;
         }
-        out.push('\n');
-        let _ = writeln!(
+        writeln!(out)?;
+        writeln!(
             out,
             "link,kind,from,to,flow_{q},velocity_{v},headloss_{l},status",
             q = u.flow,
             v = u.velocity_label(),
             l = u.length
-        );
+        )?;
         for (k, l) in m.links().iter().enumerate() {
-            let _ = writeln!(
+            writeln!(
                 out,
                 "{},{},{},{},{},{},{},{}",
                 csv_field(&l.id),
@@ -267,12 +287,13 @@ impl<'a> Report<'a> {
                 cell(self.len(s.velocity[k])),
                 cell(self.len(s.headloss[k])),
                 s.link_state[k].status_label()
-            );
+            )?;
         }
-        out
+        Ok(())
     }
 
-    pub fn to_table(&self) -> String {
+    /// Writes the readable table: nodes, links, pumps, valves, a summary and the warnings.
+    pub fn write_table(&self, out: &mut dyn Write) -> io::Result<()> {
         let m = self.model;
         let s = self.solution;
         let u = &m.units;
@@ -291,12 +312,11 @@ impl<'a> Report<'a> {
             .max()
             .unwrap_or(4)
             .clamp(4, 24);
-        let mut out = String::new();
         if let Some(t) = &m.title {
-            let _ = writeln!(out, "{t}\n");
+            writeln!(out, "{t}\n")?;
         }
-        let _ = writeln!(out, "Nodes");
-        let _ = writeln!(
+        writeln!(out, "Nodes")?;
+        writeln!(
             out,
             "{:<idw$}  {:<9}  {:>10}  {:>10}  {:>10}  {:>10}",
             "id",
@@ -305,9 +325,9 @@ impl<'a> Report<'a> {
             format!("head {}", u.length),
             format!("pres {}", u.pressure),
             format!("dem {}", u.flow)
-        );
+        )?;
         for (i, n) in m.nodes().iter().enumerate() {
-            let _ = writeln!(
+            writeln!(
                 out,
                 "{:<idw$}  {:<9}  {}  {}  {}  {}",
                 n.id,
@@ -316,10 +336,10 @@ impl<'a> Report<'a> {
                 num(self.len(s.head[i]), 10, 2),
                 num(self.pressure(s.pressure[i]), 10, 2),
                 num(self.flow(s.demand[i]), 10, 3)
-            );
+            )?;
         }
-        let _ = writeln!(out, "\nLinks");
-        let _ = writeln!(
+        writeln!(out, "\nLinks")?;
+        writeln!(
             out,
             "{:<idw$}  {:<6}  {:>11}  {:>10}  {:>11}  status",
             "id",
@@ -327,14 +347,14 @@ impl<'a> Report<'a> {
             format!("flow {}", u.flow),
             format!("vel {}", u.velocity_label()),
             format!("loss {}", u.length),
-        );
+        )?;
         for (k, l) in m.links().iter().enumerate() {
             let state = s.link_state[k];
             let status = match state.reason() {
                 Some(r) => format!("{} ({r})", state.status_label()),
                 None => state.status_label().to_owned(),
             };
-            let _ = writeln!(
+            writeln!(
                 out,
                 "{:<idw$}  {:<6}  {}  {}  {}  {}",
                 l.id,
@@ -343,11 +363,11 @@ impl<'a> Report<'a> {
                 num(self.len(s.velocity[k]), 10, 3),
                 num(self.len(s.headloss[k]), 11, 3),
                 status
-            );
+            )?;
         }
         if !s.pumps.is_empty() {
-            let _ = writeln!(out, "\nPumps");
-            let _ = writeln!(
+            writeln!(out, "\nPumps")?;
+            writeln!(
                 out,
                 "{:<idw$}  {:>11}  {:>10}  {:>6}  {:>7}  {:>10}  state",
                 "id",
@@ -356,7 +376,7 @@ impl<'a> Report<'a> {
                 "speed",
                 "eff %",
                 format!("shaft {}", self.power_label()),
-            );
+            )?;
             for p in &s.pumps {
                 let l = &m.links()[p.link];
                 let state = s.link_state[p.link];
@@ -365,7 +385,7 @@ impl<'a> Report<'a> {
                     None if p.beyond_curve => "open: beyond the end of its curve".to_owned(),
                     None => state.status_label().to_owned(),
                 };
-                let _ = writeln!(
+                writeln!(
                     out,
                     "{:<idw$}  {}  {}  {:>6.3}  {:>7.1}  {}  {}",
                     l.id,
@@ -375,14 +395,14 @@ impl<'a> Report<'a> {
                     p.efficiency * 100.0,
                     num(self.power(p.shaft_power), 10, 2),
                     status
-                );
+                )?;
             }
         }
         let valves: Vec<(usize, &Valve)> =
             m.links().iter().enumerate().filter_map(|(k, l)| Some((k, l.as_valve()?))).collect();
         if !valves.is_empty() {
-            let _ = writeln!(out, "\nValves");
-            let _ = writeln!(
+            writeln!(out, "\nValves")?;
+            writeln!(
                 out,
                 "{:<idw$}  {:<19}  {:>12}  {:>11}  {:>10}  state",
                 "id",
@@ -390,14 +410,14 @@ impl<'a> Report<'a> {
                 "setting",
                 format!("flow {}", u.flow),
                 format!("loss {}", u.length),
-            );
+            )?;
             for (k, v) in valves {
                 let state = s.link_state[k];
                 let status = match state.reason() {
                     Some(r) => format!("{}: {r}", state.status_label()),
                     None => state.status_label().to_owned(),
                 };
-                let _ = writeln!(
+                writeln!(
                     out,
                     "{:<idw$}  {:<19}  {:>12}  {}  {}  {}",
                     m.links()[k].id,
@@ -406,17 +426,17 @@ impl<'a> Report<'a> {
                     num(self.flow(s.flow[k]), 11, 3),
                     num(self.len(s.headloss[k]), 10, 3),
                     status
-                );
+                )?;
             }
         }
-        let _ = writeln!(out, "\nSummary");
-        let _ = writeln!(out, "  iterations                {}", s.iterations);
+        writeln!(out, "\nSummary")?;
+        writeln!(out, "  iterations                {}", s.iterations)?;
         if s.status_changes > 0 {
-            let _ = writeln!(out, "  device state changes      {} ({})", s.status_changes, s.ending.describe());
+            writeln!(out, "  device state changes      {} ({})", s.status_changes, s.ending.describe())?;
         }
-        let _ = writeln!(out, "  largest mass residual     {:.3e} {}", self.flow(s.max_mass_residual), u.flow);
-        let _ = writeln!(out, "  largest energy residual   {:.3e} {}", self.len(s.max_energy_residual), u.length);
-        let _ = writeln!(out, "  total demand              {:.3} {}", self.total_demand(), u.flow);
+        writeln!(out, "  largest mass residual     {:.3e} {}", self.flow(s.max_mass_residual), u.flow)?;
+        writeln!(out, "  largest energy residual   {:.3e} {}", self.len(s.max_energy_residual), u.length)?;
+        writeln!(out, "  total demand              {:.3} {}", self.total_demand(), u.flow)?;
         for (i, q) in self.sources() {
             let n = &m.nodes()[i];
             let what = match (&n.kind, q >= 0.0) {
@@ -424,7 +444,7 @@ impl<'a> Report<'a> {
                 (_, true) => "supplying",
                 (_, false) => "taking",
             };
-            let _ = writeln!(out, "  {:<9} {:<idw$}  {what} {:.3} {}", n.kind.label(), n.id, q.abs(), u.flow);
+            writeln!(out, "  {:<9} {:<idw$}  {what} {:.3} {}", n.kind.label(), n.id, q.abs(), u.flow)?;
         }
         let lowest = m
             .nodes()
@@ -433,26 +453,26 @@ impl<'a> Report<'a> {
             .filter(|(i, n)| n.fixed_head().is_none() && s.pressure[*i].is_finite())
             .min_by(|a, b| s.pressure[a.0].total_cmp(&s.pressure[b.0]));
         if let Some((i, n)) = lowest {
-            let _ = writeln!(
+            writeln!(
                 out,
                 "  lowest pressure           {:.2} {} at {}",
                 self.pressure(s.pressure[i]),
                 u.pressure,
                 n.id
-            );
+            )?;
         }
         if !s.warnings.is_empty() {
-            let _ = writeln!(out, "\nWarnings");
+            writeln!(out, "\nWarnings")?;
             for w in &s.warnings {
-                let _ = writeln!(out, "  {}", warning_text(w));
+                writeln!(out, "  {}", warning_text(w))?;
             }
         }
-        let _ = writeln!(
+        writeln!(
             out,
             "\nResults are only as good as the model and its data; designs must be checked by a licensed engineer\n\
              against local codes and the utility's standards."
-        );
-        out
+        )?;
+        Ok(())
     }
 }
 

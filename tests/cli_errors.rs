@@ -738,6 +738,58 @@ fn output_into_a_missing_directory_exits_4() {
 }
 
 #[test]
+fn generate_into_a_missing_directory_exits_4_naming_the_file() {
+    let dir = scratch("generate_missing_dir");
+    let out = dir.join("no-such-dir").join("town.json");
+    let run = run(&["generate".as_ref(), "--junctions".as_ref(), "50".as_ref(), "-o".as_ref(), out.as_os_str()]);
+    assert_eq!(run.code, Some(4), "{}", run.stderr);
+    assert!(run.stderr.contains("cannot write the model"), "{}", run.stderr);
+    assert!(run.stderr.contains(&out.display().to_string()), "{}", run.stderr);
+}
+
+/// A device that is always full: the results fail part-way (or when the buffer is flushed),
+/// after the file was opened.
+#[cfg(target_os = "linux")]
+#[test]
+fn a_write_failure_after_the_file_is_open_exits_4_naming_the_file() {
+    let dir = scratch("output_device_full");
+    let path = dir.join("model.toml");
+    std::fs::write(&path, BASE).expect("write model");
+    for format in ["json", "csv", "table"] {
+        let run = run(&[
+            "solve".as_ref(),
+            path.as_os_str(),
+            "--format".as_ref(),
+            format.as_ref(),
+            "-o".as_ref(),
+            "/dev/full".as_ref(),
+        ]);
+        assert_eq!(run.code, Some(4), "{format}: {}", run.stderr);
+        assert!(run.stderr.contains("cannot write the results to /dev/full"), "{format}: {}", run.stderr);
+    }
+}
+
+#[test]
+fn json_results_have_one_node_or_link_a_line() {
+    let (_, run) = solve_file("json_layout", "model.toml", BASE.as_bytes(), &["--format", "json"]);
+    assert_eq!(run.code, Some(0), "{}", run.stderr);
+    let doc: serde_json::Value = serde_json::from_str(&run.stdout).expect("JSON");
+    let lines: Vec<&str> = run.stdout.lines().collect();
+    let elements: Vec<&str> = lines.iter().copied().filter(|l| l.starts_with("    {")).collect();
+    let (nodes, links) = (doc["nodes"].as_array().expect("nodes"), doc["links"].as_array().expect("links"));
+    assert_eq!(elements.len(), nodes.len() + links.len(), "{}", run.stdout);
+    // Each such line is a whole element, equal to the element of the parsed document (the
+    // links come first: the top-level keys of the results are in alphabetical order).
+    for (line, element) in elements.iter().zip(links.iter().chain(nodes)) {
+        let one: serde_json::Value =
+            serde_json::from_str(line.trim().trim_end_matches(',')).unwrap_or_else(|e| panic!("{e}: {line}"));
+        assert_eq!(&one, element);
+    }
+    assert_eq!(lines.first(), Some(&"{"));
+    assert!(lines.contains(&"  \"nodes\": ["), "{}", run.stdout);
+}
+
+#[test]
 fn table_output_has_the_summary() {
     let (_, run) = solve_file("table_output", "model.toml", BASE.as_bytes(), &[]);
     assert_eq!(run.code, Some(0), "{}", run.stderr);

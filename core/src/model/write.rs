@@ -2,288 +2,642 @@
 //!
 //! The output reads back into an equal model (up to floating-point rounding of unit
 //! conversions); defaults are written out explicitly so that the file documents itself.
+//!
+//! The top-level keys come in the order a reader needs them: `title`, `units`, `hydraulics`,
+//! `simulation`, `electricity`, `patterns`, then `nodes`, `links` and `controls`; inside an
+//! element, `id` and `kind` come first and the element's data follows in the order the file
+//! format documents it. JSON is written element by element, never as a whole value tree, with
+//! one element a line ([`ElementPerLine`]): a million-junction model streams to a file in a
+//! fraction of a second and in little memory.
 
 use super::file::Format;
 use super::time::{self as tm, Action, Condition};
 use super::{HeadLossLaw, LinkKind, LinkStatus, Model, NodeKind, PumpDrive, ValveType, WaterSpec};
 use crate::physics::pump::Efficiency;
 use crate::units::HORSEPOWER;
-use serde_json::{json, Map, Value};
+use serde::ser::{SerializeMap, Serializer};
+use serde::Serialize;
+use std::io::{self, Write};
 
-/// The model as a JSON value tree in its own units.
-pub fn to_value(model: &Model) -> Value {
-    let u = &model.units;
-    let o = &model.options;
-    let len = |v: f64| u.length.from_si(v);
-    let density = o.water_properties().density;
-    let time = &model.time;
-    let pattern_id = |i: usize| json!(time.patterns[i].id);
-    let mut hydraulics = Map::new();
-    hydraulics.insert("headloss".into(), json!(o.headloss.label()));
-    match o.water {
-        WaterSpec::Temperature(t) => hydraulics.insert("water_temperature".into(), json!(t)),
-        WaterSpec::KinematicViscosity(nu) => hydraulics.insert("kinematic_viscosity".into(), json!(nu)),
-    };
-    hydraulics.insert("max_iterations".into(), json!(o.max_iterations));
-    hydraulics.insert("head_tolerance".into(), json!(len(o.head_tolerance)));
-    hydraulics.insert("flow_tolerance".into(), json!(o.flow_tolerance));
-
-    let nodes: Vec<Value> = model
-        .nodes()
-        .iter()
-        .enumerate()
-        .map(|(i, n)| {
-            let mut m = Map::new();
-            m.insert("id".into(), json!(n.id));
-            m.insert("kind".into(), json!(n.kind.label()));
-            match &n.kind {
-                NodeKind::Junction { demand } => {
-                    m.insert("elevation".into(), json!(len(n.elevation)));
-                    match time.demands.get(&i).map(Vec::as_slice) {
-                        Some([one]) => {
-                            m.insert("demand".into(), json!(u.flow.from_si(one.base)));
-                            if let Some(p) = one.pattern {
-                                m.insert("pattern".into(), pattern_id(p));
-                            }
-                        }
-                        Some(several) => {
-                            let list: Vec<Value> = several
-                                .iter()
-                                .map(|d| {
-                                    let mut e = Map::new();
-                                    e.insert("base".into(), json!(u.flow.from_si(d.base)));
-                                    if let Some(p) = d.pattern {
-                                        e.insert("pattern".into(), pattern_id(p));
-                                    }
-                                    Value::Object(e)
-                                })
-                                .collect();
-                            m.insert("demands".into(), Value::Array(list));
-                        }
-                        None => {
-                            m.insert("demand".into(), json!(u.flow.from_si(*demand)));
-                        }
-                    }
-                }
-                NodeKind::Reservoir { head } => {
-                    m.insert("head".into(), json!(len(*head)));
-                    m.insert("elevation".into(), json!(len(n.elevation)));
-                    if let Some(&p) = time.head_patterns.get(&i) {
-                        m.insert("head_pattern".into(), pattern_id(p));
-                    }
-                }
-                NodeKind::Tank(t) => {
-                    m.insert("elevation".into(), json!(len(n.elevation)));
-                    m.insert("level".into(), json!(len(t.level)));
-                    m.insert("min_level".into(), json!(len(t.min_level)));
-                    if let Some(v) = t.max_level {
-                        m.insert("max_level".into(), json!(len(v)));
-                    }
-                    if let Some(v) = t.diameter {
-                        m.insert("diameter".into(), json!(len(v)));
-                    }
-                    if let Some(c) = time.volume_curves.get(&i) {
-                        let volume = len(1.0).powi(3);
-                        let pts: Vec<Value> = c.points.iter().map(|&(l, v)| json!([len(l), v * volume])).collect();
-                        m.insert("volume_curve".into(), Value::Array(pts));
-                    }
-                }
-            }
-            if let Some((x, y)) = n.coordinates {
-                m.insert("x".into(), json!(x));
-                m.insert("y".into(), json!(y));
-            }
-            if let Some(z) = &n.zone {
-                m.insert("zone".into(), json!(z));
-            }
-            Value::Object(m)
-        })
-        .collect();
-
-    let links: Vec<Value> = model
-        .links()
-        .iter()
-        .enumerate()
-        .map(|(k, l)| {
-            let mut m = Map::new();
-            m.insert("id".into(), json!(l.id));
-            m.insert("kind".into(), json!(l.kind.label()));
-            m.insert("from".into(), json!(model.nodes()[l.from].id));
-            m.insert("to".into(), json!(model.nodes()[l.to].id));
-            match &l.kind {
-                LinkKind::Pipe(p) => {
-                    m.insert("length".into(), json!(len(p.length)));
-                    m.insert("diameter".into(), json!(u.diameter.from_si(p.diameter)));
-                    let r = match o.headloss {
-                        HeadLossLaw::HazenWilliams => p.roughness,
-                        HeadLossLaw::DarcyWeisbach => u.roughness.from_si(p.roughness),
-                    };
-                    m.insert("roughness".into(), json!(r));
-                    m.insert("minor_loss".into(), json!(p.minor_loss));
-                    m.insert("check_valve".into(), json!(p.check_valve));
-                }
-                LinkKind::Pump(p) => {
-                    match &p.drive {
-                        PumpDrive::Curve { points, .. } => {
-                            let pts: Vec<Value> =
-                                points.iter().map(|&(q, h)| json!([u.flow.from_si(q), len(h)])).collect();
-                            m.insert("head_curve".into(), Value::Array(pts));
-                        }
-                        PumpDrive::Power(w) => {
-                            let p = if u.is_us_customary() { w / HORSEPOWER } else { w / 1e3 };
-                            m.insert("power".into(), json!(p));
-                        }
-                    }
-                    match (&p.efficiency_points, &p.efficiency) {
-                        (Some(points), _) => {
-                            let pts: Vec<Value> =
-                                points.iter().map(|&(q, e)| json!([u.flow.from_si(q), e * 100.0])).collect();
-                            m.insert("efficiency_curve".into(), Value::Array(pts));
-                        }
-                        (None, Efficiency::Constant(e)) => {
-                            m.insert("efficiency".into(), json!(e * 100.0));
-                        }
-                        (None, Efficiency::Curve { .. }) => {}
-                    }
-                    m.insert("speed".into(), json!(p.speed));
-                    if let Some(&p) = time.speed_patterns.get(&k) {
-                        m.insert("speed_pattern".into(), pattern_id(p));
-                    }
-                }
-                LinkKind::Valve(v) => {
-                    m.insert("valve".into(), json!(v.valve.label()));
-                    m.insert("diameter".into(), json!(u.diameter.from_si(v.diameter)));
-                    let setting = match v.valve {
-                        ValveType::PressureReducing | ValveType::PressureSustaining => {
-                            u.pressure.from_head(v.setting, density)
-                        }
-                        ValveType::FlowControl => u.flow.from_si(v.setting),
-                        ValveType::Throttle => v.setting,
-                    };
-                    m.insert("setting".into(), json!(setting));
-                    if let Some(&p) = time.setting_patterns.get(&k) {
-                        m.insert("setting_pattern".into(), pattern_id(p));
-                    }
-                    m.insert("minor_loss".into(), json!(v.minor_loss));
-                    if !v.automatic && l.status == LinkStatus::Open {
-                        m.insert("status".into(), json!("open"));
-                    }
-                }
-            }
-            if l.status == LinkStatus::Closed {
-                m.insert("status".into(), json!(l.status.label()));
-            }
-            Value::Object(m)
-        })
-        .collect();
-
-    let mut top = Map::new();
-    if let Some(t) = &model.title {
-        top.insert("title".into(), json!(t));
-    }
-    top.insert(
-        "units".into(),
-        json!({
-            "length": u.length.label(), "diameter": u.diameter.label(), "flow": u.flow.label(),
-            "pressure": u.pressure.label(), "roughness": u.roughness.label(),
-        }),
-    );
-    top.insert("hydraulics".into(), Value::Object(hydraulics));
-    if let Some(sim) = &time.simulation {
-        top.insert(
-            "simulation".into(),
-            json!({
-                "duration": tm::format_duration(sim.duration),
-                "hydraulic_step": tm::format_duration(sim.hydraulic_step),
-                "report_interval": tm::format_duration(sim.report_interval),
-                "start_clock": tm::format_clock(sim.start_clock),
-                "level_tolerance": len(sim.level_tolerance),
-            }),
-        );
-    }
-    let e = &time.energy;
-    if e.price != 0.0 || e.tariff.is_some() || e.currency.is_some() {
-        let mut m = Map::new();
-        m.insert("price_per_kwh".into(), json!(e.price));
-        if let Some(p) = e.tariff {
-            m.insert("tariff_pattern".into(), pattern_id(p));
-        }
-        if let Some(c) = &e.currency {
-            m.insert("currency".into(), json!(c));
-        }
-        top.insert("electricity".into(), Value::Object(m));
-    }
-    if !time.patterns.is_empty() {
-        let list: Vec<Value> = time
-            .patterns
-            .iter()
-            .map(|p| json!({"id": p.id, "step": tm::format_duration(p.step), "multipliers": p.multipliers}))
-            .collect();
-        top.insert("patterns".into(), Value::Array(list));
-    }
-    top.insert("nodes".into(), Value::Array(nodes));
-    top.insert("links".into(), Value::Array(links));
-    if !time.controls.is_empty() {
-        let list: Vec<Value> = time.controls.iter().map(|c| control(model, c)).collect();
-        top.insert("controls".into(), Value::Array(list));
-    }
-    Value::Object(top)
-}
-
-fn control(model: &Model, c: &tm::Control) -> Value {
-    let u = &model.units;
-    let density = model.options.water_properties().density;
-    let mut m = Map::new();
-    m.insert("id".into(), json!(c.id));
-    let link = &model.links()[c.link];
-    m.insert("link".into(), json!(link.id));
-    match c.action {
-        Action::Open => m.insert("status".into(), json!("open")),
-        Action::Close => m.insert("status".into(), json!("closed")),
-        Action::Automatic => m.insert("status".into(), json!("automatic")),
-        Action::Speed(s) => m.insert("speed".into(), json!(s)),
-        Action::Setting(s) => {
-            let v = match link.as_valve().map(|v| v.valve) {
-                Some(ValveType::PressureReducing | ValveType::PressureSustaining) => u.pressure.from_head(s, density),
-                Some(ValveType::FlowControl) => u.flow.from_si(s),
-                _ => s,
-            };
-            m.insert("setting".into(), json!(v))
-        }
-    };
-    m.insert("when".into(), condition(model, &c.when));
-    m.insert("priority".into(), json!(c.priority));
-    Value::Object(m)
-}
-
-fn condition(model: &Model, c: &Condition) -> Value {
-    let u = &model.units;
-    let density = model.options.water_properties().density;
-    let node = |i: usize| json!(model.nodes()[i].id);
-    match c {
-        Condition::LevelAbove { tank, level } => json!({"tank": node(*tank), "level_above": u.length.from_si(*level)}),
-        Condition::LevelBelow { tank, level } => json!({"tank": node(*tank), "level_below": u.length.from_si(*level)}),
-        Condition::PressureAbove { node: n, pressure } => {
-            json!({"node": node(*n), "pressure_above": u.pressure.from_head(*pressure, density)})
-        }
-        Condition::PressureBelow { node: n, pressure } => {
-            json!({"node": node(*n), "pressure_below": u.pressure.from_head(*pressure, density)})
-        }
-        Condition::Clock(t) => json!({"clock": tm::format_clock(*t)}),
-        Condition::After(t) => json!({"after": tm::format_duration(*t)}),
-        Condition::All(parts) => json!({"all": parts.iter().map(|p| condition(model, p)).collect::<Vec<_>>()}),
-        Condition::Any(parts) => json!({"any": parts.iter().map(|p| condition(model, p)).collect::<Vec<_>>()}),
-    }
+/// Writes the model as a JSON model file, element by element, one element a line.
+///
+/// Nothing of the file is held in memory beyond what `out` buffers; give it a
+/// [`std::io::BufWriter`] over a file. `out` is flushed at the end.
+pub fn write_json<W: Write>(model: &Model, out: W) -> io::Result<()> {
+    write_element_per_line(out, &ModelFile(Ctx::new(model)))
 }
 
 /// The model as model-file text in the given format.
 pub fn to_string(model: &Model, format: Format) -> String {
-    let value = to_value(model);
     match format {
-        Format::Json => serde_json::to_string_pretty(&value).unwrap_or_default() + "\n",
-        // A JSON tree of tables, arrays of tables, strings, numbers and booleans always has a TOML
-        // form; the fallback is unreachable in practice.
-        Format::Toml => toml::to_string(&value).unwrap_or_default(),
+        Format::Json => {
+            let mut out = Vec::with_capacity(128 * (model.nodes().len() + 2 * model.links().len()) + 1024);
+            // Writing into memory cannot fail, and serde_json writes UTF-8.
+            let _ = write_json(model, &mut out);
+            String::from_utf8(out).unwrap_or_default()
+        }
+        // Tables, arrays of tables, strings, numbers and booleans always have a TOML form; the
+        // fallback is unreachable in practice.
+        Format::Toml => toml::to_string(&ModelFile(Ctx::new(model))).unwrap_or_default(),
+    }
+}
+
+/// Serializes `value` as JSON laid out by [`ElementPerLine`], followed by a newline, and flushes
+/// `out`.
+pub fn write_element_per_line<W: Write, T: Serialize + ?Sized>(out: W, value: &T) -> io::Result<()> {
+    // The serializer makes several small writes per number and string. A buffer of our own
+    // keeps them inlined copies whatever `out` is (a `&mut dyn Write` costs a call each); its
+    // full chunks go past a caller's buffer of the same size without a second copy.
+    let mut out = io::BufWriter::with_capacity(1 << 16, out);
+    let mut serializer = serde_json::Serializer::with_formatter(&mut out, ElementPerLine::default());
+    value.serialize(&mut serializer)?;
+    out.write_all(b"\n")?;
+    out.flush()
+}
+
+/// A JSON layout of one element a line: the top-level object and the objects and arrays directly
+/// in it are indented, one entry a line; anything deeper (a node, a link, a pattern) is written
+/// on one line, as `{"id": "J1", "kind": "junction", "elevation": 12.5}`.
+///
+/// Files stay readable and diff well line by line, and are about half the size of fully
+/// indented ones.
+#[derive(Clone, Debug, Default)]
+pub struct ElementPerLine {
+    /// Objects and arrays open around the next token.
+    depth: usize,
+    /// Whether the innermost open object or array has an entry yet.
+    has_value: bool,
+}
+
+impl ElementPerLine {
+    /// Objects and arrays opened at this depth or less are written one entry a line.
+    const LINE_DEPTH: usize = 2;
+
+    fn one_entry_a_line(&self) -> bool {
+        self.depth <= Self::LINE_DEPTH
+    }
+
+    fn new_line<W: ?Sized + Write>(&self, out: &mut W) -> io::Result<()> {
+        out.write_all(b"\n")?;
+        for _ in 0..self.depth {
+            out.write_all(b"  ")?;
+        }
+        Ok(())
+    }
+
+    fn begin(&mut self, out: &mut (impl ?Sized + Write), bracket: &[u8]) -> io::Result<()> {
+        self.depth += 1;
+        self.has_value = false;
+        out.write_all(bracket)
+    }
+
+    fn end(&mut self, out: &mut (impl ?Sized + Write), bracket: &[u8]) -> io::Result<()> {
+        let lines = self.one_entry_a_line();
+        self.depth -= 1;
+        if lines && self.has_value {
+            self.new_line(out)?;
+        }
+        out.write_all(bracket)
+    }
+
+    fn begin_entry(&mut self, out: &mut (impl ?Sized + Write), first: bool) -> io::Result<()> {
+        if self.one_entry_a_line() {
+            if !first {
+                out.write_all(b",")?;
+            }
+            self.new_line(out)
+        } else if first {
+            Ok(())
+        } else {
+            out.write_all(b", ")
+        }
+    }
+}
+
+impl serde_json::ser::Formatter for ElementPerLine {
+    fn begin_array<W: ?Sized + Write>(&mut self, out: &mut W) -> io::Result<()> {
+        self.begin(out, b"[")
+    }
+    fn end_array<W: ?Sized + Write>(&mut self, out: &mut W) -> io::Result<()> {
+        self.end(out, b"]")
+    }
+    fn begin_array_value<W: ?Sized + Write>(&mut self, out: &mut W, first: bool) -> io::Result<()> {
+        self.begin_entry(out, first)
+    }
+    fn end_array_value<W: ?Sized + Write>(&mut self, _out: &mut W) -> io::Result<()> {
+        self.has_value = true;
+        Ok(())
+    }
+    fn begin_object<W: ?Sized + Write>(&mut self, out: &mut W) -> io::Result<()> {
+        self.begin(out, b"{")
+    }
+    fn end_object<W: ?Sized + Write>(&mut self, out: &mut W) -> io::Result<()> {
+        self.end(out, b"}")
+    }
+    fn begin_object_key<W: ?Sized + Write>(&mut self, out: &mut W, first: bool) -> io::Result<()> {
+        self.begin_entry(out, first)
+    }
+    fn begin_object_value<W: ?Sized + Write>(&mut self, out: &mut W) -> io::Result<()> {
+        out.write_all(b": ")
+    }
+    fn end_object_value<W: ?Sized + Write>(&mut self, _out: &mut W) -> io::Result<()> {
+        self.has_value = true;
+        Ok(())
+    }
+}
+
+/// What every part of the file needs: the model and its water density (for pressures).
+#[derive(Clone, Copy)]
+struct Ctx<'a> {
+    model: &'a Model,
+    density: f64,
+}
+
+impl<'a> Ctx<'a> {
+    fn new(model: &'a Model) -> Self {
+        Ctx { model, density: model.options.water_properties().density }
+    }
+    fn len(self, v: f64) -> f64 {
+        self.model.units.length.from_si(v)
+    }
+    fn flow(self, v: f64) -> f64 {
+        self.model.units.flow.from_si(v)
+    }
+    fn diameter(self, v: f64) -> f64 {
+        self.model.units.diameter.from_si(v)
+    }
+    fn pressure(self, head: f64) -> f64 {
+        self.model.units.pressure.from_head(head, self.density)
+    }
+    fn pattern(self, i: usize) -> &'a str {
+        &self.model.time.patterns[i].id
+    }
+    fn node(self, i: usize) -> &'a str {
+        &self.model.nodes()[i].id
+    }
+    /// A valve setting (or a control's new setting) in the model's units.
+    fn setting(self, valve: Option<ValveType>, s: f64) -> f64 {
+        match valve {
+            Some(ValveType::PressureReducing | ValveType::PressureSustaining) => self.pressure(s),
+            Some(ValveType::FlowControl) => self.flow(s),
+            Some(ValveType::Throttle) | None => s,
+        }
+    }
+    fn axis(self, axis: Axis, v: f64) -> f64 {
+        match axis {
+            Axis::Length => self.len(v),
+            Axis::Flow => self.flow(v),
+            Axis::Volume => v * self.len(1.0).powi(3),
+            Axis::Percent => v * 100.0,
+        }
+    }
+}
+
+/// The quantity on one axis of a curve.
+#[derive(Clone, Copy)]
+enum Axis {
+    Length,
+    Flow,
+    Volume,
+    Percent,
+}
+
+/// A curve as `[[x, y], ...]` in the model's units.
+struct Points<'a> {
+    ctx: Ctx<'a>,
+    points: &'a [(f64, f64)],
+    x: Axis,
+    y: Axis,
+}
+
+impl Serialize for Points<'_> {
+    fn serialize<S: Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        let c = self.ctx;
+        s.collect_seq(self.points.iter().map(|&(x, y)| [c.axis(self.x, x), c.axis(self.y, y)]))
+    }
+}
+
+/// The whole file.
+struct ModelFile<'a>(Ctx<'a>);
+
+impl Serialize for ModelFile<'_> {
+    fn serialize<S: Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        let c = self.0;
+        let m = c.model;
+        let time = &m.time;
+        let mut top = s.serialize_map(None)?;
+        if let Some(t) = &m.title {
+            top.serialize_entry("title", t)?;
+        }
+        let u = &m.units;
+        top.serialize_entry(
+            "units",
+            &UnitsTable {
+                length: u.length.label(),
+                diameter: u.diameter.label(),
+                flow: u.flow.label(),
+                pressure: u.pressure.label(),
+                roughness: u.roughness.label(),
+            },
+        )?;
+        let o = &m.options;
+        let (water_temperature, kinematic_viscosity) = match o.water {
+            WaterSpec::Temperature(t) => (Some(t), None),
+            WaterSpec::KinematicViscosity(nu) => (None, Some(nu)),
+        };
+        top.serialize_entry(
+            "hydraulics",
+            &Hydraulics {
+                headloss: o.headloss.label(),
+                water_temperature,
+                kinematic_viscosity,
+                max_iterations: o.max_iterations,
+                head_tolerance: c.len(o.head_tolerance),
+                flow_tolerance: o.flow_tolerance,
+            },
+        )?;
+        if let Some(sim) = &time.simulation {
+            top.serialize_entry(
+                "simulation",
+                &Simulation {
+                    duration: tm::format_duration(sim.duration),
+                    hydraulic_step: tm::format_duration(sim.hydraulic_step),
+                    report_interval: tm::format_duration(sim.report_interval),
+                    start_clock: tm::format_clock(sim.start_clock),
+                    level_tolerance: c.len(sim.level_tolerance),
+                },
+            )?;
+        }
+        let e = &time.energy;
+        if e.price != 0.0 || e.tariff.is_some() || e.currency.is_some() {
+            top.serialize_entry(
+                "electricity",
+                &Electricity {
+                    price_per_kwh: e.price,
+                    tariff_pattern: e.tariff.map(|p| c.pattern(p)),
+                    currency: e.currency.as_deref(),
+                },
+            )?;
+        }
+        if !time.patterns.is_empty() {
+            top.serialize_entry("patterns", &Patterns(c))?;
+        }
+        top.serialize_entry("nodes", &Nodes(c))?;
+        top.serialize_entry("links", &Links(c))?;
+        if !time.controls.is_empty() {
+            top.serialize_entry("controls", &Controls(c))?;
+        }
+        top.end()
+    }
+}
+
+#[derive(Serialize)]
+struct UnitsTable {
+    length: &'static str,
+    diameter: &'static str,
+    flow: &'static str,
+    pressure: &'static str,
+    roughness: &'static str,
+}
+
+#[derive(Serialize)]
+struct Hydraulics {
+    headloss: &'static str,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    water_temperature: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    kinematic_viscosity: Option<f64>,
+    max_iterations: u32,
+    head_tolerance: f64,
+    flow_tolerance: f64,
+}
+
+#[derive(Serialize)]
+struct Simulation {
+    duration: String,
+    hydraulic_step: String,
+    report_interval: String,
+    start_clock: String,
+    level_tolerance: f64,
+}
+
+#[derive(Serialize)]
+struct Electricity<'a> {
+    price_per_kwh: f64,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    tariff_pattern: Option<&'a str>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    currency: Option<&'a str>,
+}
+
+struct Patterns<'a>(Ctx<'a>);
+
+impl Serialize for Patterns<'_> {
+    fn serialize<S: Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        s.collect_seq(self.0.model.time.patterns.iter().map(|p| PatternEntry {
+            id: &p.id,
+            step: tm::format_duration(p.step),
+            multipliers: &p.multipliers,
+        }))
+    }
+}
+
+#[derive(Serialize)]
+struct PatternEntry<'a> {
+    id: &'a str,
+    step: String,
+    multipliers: &'a [f64],
+}
+
+struct Nodes<'a>(Ctx<'a>);
+
+impl Serialize for Nodes<'_> {
+    fn serialize<S: Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        let c = self.0;
+        s.collect_seq((0..c.model.nodes().len()).map(|i| node_entry(c, i)))
+    }
+}
+
+/// One node; the fields in the order they are written, those of other kinds left out.
+#[derive(Serialize, Default)]
+struct NodeEntry<'a> {
+    id: &'a str,
+    kind: &'static str,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    head: Option<f64>,
+    elevation: f64,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    demand: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pattern: Option<&'a str>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    demands: Option<Demands<'a>>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    level: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    min_level: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    max_level: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    diameter: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    volume_curve: Option<Points<'a>>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    head_pattern: Option<&'a str>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    x: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    y: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    zone: Option<&'a str>,
+}
+
+fn node_entry(c: Ctx<'_>, i: usize) -> NodeEntry<'_> {
+    let n = &c.model.nodes()[i];
+    let time = &c.model.time;
+    let mut e = NodeEntry {
+        id: &n.id,
+        kind: n.kind.label(),
+        elevation: c.len(n.elevation),
+        x: n.coordinates.map(|(x, _)| x),
+        y: n.coordinates.map(|(_, y)| y),
+        zone: n.zone.as_deref(),
+        ..NodeEntry::default()
+    };
+    match &n.kind {
+        NodeKind::Junction { demand } => match time.demands.get(&i).map(Vec::as_slice) {
+            Some([one]) => {
+                e.demand = Some(c.flow(one.base));
+                e.pattern = one.pattern.map(|p| c.pattern(p));
+            }
+            Some(several) => e.demands = Some(Demands { ctx: c, list: several }),
+            None => e.demand = Some(c.flow(*demand)),
+        },
+        NodeKind::Reservoir { head } => {
+            e.head = Some(c.len(*head));
+            e.head_pattern = time.head_patterns.get(&i).map(|&p| c.pattern(p));
+        }
+        NodeKind::Tank(t) => {
+            e.level = Some(c.len(t.level));
+            e.min_level = Some(c.len(t.min_level));
+            e.max_level = t.max_level.map(|v| c.len(v));
+            e.diameter = t.diameter.map(|v| c.len(v));
+            e.volume_curve = time.volume_curves.get(&i).map(|curve| Points {
+                ctx: c,
+                points: &curve.points,
+                x: Axis::Length,
+                y: Axis::Volume,
+            });
+        }
+    }
+    e
+}
+
+/// A junction's demand categories.
+struct Demands<'a> {
+    ctx: Ctx<'a>,
+    list: &'a [tm::Demand],
+}
+
+#[derive(Serialize)]
+struct DemandEntry<'a> {
+    base: f64,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pattern: Option<&'a str>,
+}
+
+impl Serialize for Demands<'_> {
+    fn serialize<S: Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        let c = self.ctx;
+        s.collect_seq(
+            self.list.iter().map(|d| DemandEntry { base: c.flow(d.base), pattern: d.pattern.map(|p| c.pattern(p)) }),
+        )
+    }
+}
+
+struct Links<'a>(Ctx<'a>);
+
+impl Serialize for Links<'_> {
+    fn serialize<S: Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        let c = self.0;
+        s.collect_seq((0..c.model.links().len()).map(|k| link_entry(c, k)))
+    }
+}
+
+/// One link; the fields in the order they are written, those of other kinds left out.
+#[derive(Serialize, Default)]
+struct LinkEntry<'a> {
+    id: &'a str,
+    kind: &'static str,
+    from: &'a str,
+    to: &'a str,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    valve: Option<&'static str>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    length: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    diameter: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    roughness: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    head_curve: Option<Points<'a>>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    power: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    efficiency_curve: Option<Points<'a>>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    efficiency: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    speed: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    speed_pattern: Option<&'a str>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    setting: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    setting_pattern: Option<&'a str>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    minor_loss: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    status: Option<&'static str>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    check_valve: Option<bool>,
+}
+
+fn link_entry(c: Ctx<'_>, k: usize) -> LinkEntry<'_> {
+    let m = c.model;
+    let u = &m.units;
+    let l = &m.links()[k];
+    let time = &m.time;
+    let mut e = LinkEntry {
+        id: &l.id,
+        kind: l.kind.label(),
+        from: c.node(l.from),
+        to: c.node(l.to),
+        status: (l.status == LinkStatus::Closed).then(|| l.status.label()),
+        ..LinkEntry::default()
+    };
+    match &l.kind {
+        LinkKind::Pipe(p) => {
+            e.length = Some(c.len(p.length));
+            e.diameter = Some(c.diameter(p.diameter));
+            e.roughness = Some(match m.options.headloss {
+                HeadLossLaw::HazenWilliams => p.roughness,
+                HeadLossLaw::DarcyWeisbach => u.roughness.from_si(p.roughness),
+            });
+            e.minor_loss = Some(p.minor_loss);
+            e.check_valve = Some(p.check_valve);
+        }
+        LinkKind::Pump(p) => {
+            match &p.drive {
+                PumpDrive::Curve { points, .. } => {
+                    e.head_curve = Some(Points { ctx: c, points, x: Axis::Flow, y: Axis::Length });
+                }
+                PumpDrive::Power(w) => e.power = Some(if u.is_us_customary() { w / HORSEPOWER } else { w / 1e3 }),
+            }
+            match (&p.efficiency_points, &p.efficiency) {
+                (Some(points), _) => {
+                    e.efficiency_curve = Some(Points { ctx: c, points, x: Axis::Flow, y: Axis::Percent });
+                }
+                (None, Efficiency::Constant(eff)) => e.efficiency = Some(eff * 100.0),
+                (None, Efficiency::Curve { .. }) => {}
+            }
+            e.speed = Some(p.speed);
+            e.speed_pattern = time.speed_patterns.get(&k).map(|&p| c.pattern(p));
+        }
+        LinkKind::Valve(v) => {
+            e.valve = Some(v.valve.label());
+            e.diameter = Some(c.diameter(v.diameter));
+            e.setting = Some(c.setting(Some(v.valve), v.setting));
+            e.setting_pattern = time.setting_patterns.get(&k).map(|&p| c.pattern(p));
+            e.minor_loss = Some(v.minor_loss);
+            if !v.automatic && l.status == LinkStatus::Open {
+                e.status = Some("open");
+            }
+        }
+    }
+    e
+}
+
+struct Controls<'a>(Ctx<'a>);
+
+impl Serialize for Controls<'_> {
+    fn serialize<S: Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        let c = self.0;
+        s.collect_seq(c.model.time.controls.iter().map(|control| ControlEntry { ctx: c, control }))
+    }
+}
+
+struct ControlEntry<'a> {
+    ctx: Ctx<'a>,
+    control: &'a tm::Control,
+}
+
+impl Serialize for ControlEntry<'_> {
+    fn serialize<S: Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        let c = self.ctx;
+        let control = self.control;
+        let link = &c.model.links()[control.link];
+        let mut m = s.serialize_map(None)?;
+        m.serialize_entry("id", &control.id)?;
+        m.serialize_entry("link", &link.id)?;
+        match control.action {
+            Action::Open => m.serialize_entry("status", "open")?,
+            Action::Close => m.serialize_entry("status", "closed")?,
+            Action::Automatic => m.serialize_entry("status", "automatic")?,
+            Action::Speed(speed) => m.serialize_entry("speed", &speed)?,
+            Action::Setting(value) => {
+                m.serialize_entry("setting", &c.setting(link.as_valve().map(|v| v.valve), value))?
+            }
+        }
+        m.serialize_entry("when", &ConditionEntry { ctx: c, condition: &control.when })?;
+        m.serialize_entry("priority", &control.priority)?;
+        m.end()
+    }
+}
+
+struct ConditionEntry<'a> {
+    ctx: Ctx<'a>,
+    condition: &'a Condition,
+}
+
+impl Serialize for ConditionEntry<'_> {
+    fn serialize<S: Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        let c = self.ctx;
+        let mut m = s.serialize_map(None)?;
+        match self.condition {
+            Condition::LevelAbove { tank, level } => {
+                m.serialize_entry("tank", c.node(*tank))?;
+                m.serialize_entry("level_above", &c.len(*level))?;
+            }
+            Condition::LevelBelow { tank, level } => {
+                m.serialize_entry("tank", c.node(*tank))?;
+                m.serialize_entry("level_below", &c.len(*level))?;
+            }
+            Condition::PressureAbove { node, pressure } => {
+                m.serialize_entry("node", c.node(*node))?;
+                m.serialize_entry("pressure_above", &c.pressure(*pressure))?;
+            }
+            Condition::PressureBelow { node, pressure } => {
+                m.serialize_entry("node", c.node(*node))?;
+                m.serialize_entry("pressure_below", &c.pressure(*pressure))?;
+            }
+            Condition::Clock(t) => m.serialize_entry("clock", &tm::format_clock(*t))?,
+            Condition::After(t) => m.serialize_entry("after", &tm::format_duration(*t))?,
+            Condition::All(parts) => m.serialize_entry("all", &Conditions { ctx: c, parts })?,
+            Condition::Any(parts) => m.serialize_entry("any", &Conditions { ctx: c, parts })?,
+        }
+        m.end()
+    }
+}
+
+struct Conditions<'a> {
+    ctx: Ctx<'a>,
+    parts: &'a [Condition],
+}
+
+impl Serialize for Conditions<'_> {
+    fn serialize<S: Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        s.collect_seq(self.parts.iter().map(|condition| ConditionEntry { ctx: self.ctx, condition }))
     }
 }
 
@@ -373,6 +727,111 @@ mod tests {
             let back = read_str(&out, format, "out").unwrap_or_else(|e| panic!("{e}\n{out}"));
             assert_eq!(back.time, model.time, "{out}");
         }
+    }
+
+    #[test]
+    fn json_is_one_element_a_line_in_reading_order() {
+        let text = r#"
+            title = "Lane"
+            [[controls]]
+            id = "off"
+            link = "U"
+            status = "closed"
+            when = { tank = "T", level_above = 4.5 }
+            [[links]]
+            id = "P"
+            from = "R"
+            to = "J"
+            length = 100
+            diameter = 150
+            roughness = 120
+            [[links]]
+            id = "U"
+            kind = "pump"
+            from = "J"
+            to = "T"
+            head_curve = [[0, 40], [10, 30]]
+            [[nodes]]
+            id = "R"
+            kind = "reservoir"
+            head = 50
+            [[nodes]]
+            id = "J"
+            elevation = 10
+            demand = 1.0
+            pattern = "homes"
+            [[nodes]]
+            id = "T"
+            kind = "tank"
+            elevation = 30
+            level = 2
+            [[patterns]]
+            id = "homes"
+            step = "1h"
+            multipliers = [0.5, 1.5]
+            [simulation]
+            duration = "1d"
+            [hydraulics]
+            max_iterations = 50
+            [units]
+            flow = "L/s"
+        "#;
+        let model = read_str(text, Format::Toml, "t.toml").unwrap_or_else(|e| panic!("{e}"));
+        let out = to_string(&model, Format::Json);
+        let top: Vec<&str> =
+            out.lines().filter_map(|l| l.strip_prefix("  \"").and_then(|rest| rest.split('"').next())).collect();
+        assert_eq!(top, ["title", "units", "hydraulics", "simulation", "patterns", "nodes", "links", "controls"]);
+        let lines: Vec<&str> = out.lines().collect();
+        for expected in [
+            r#"    {"id": "homes", "step": "1h", "multipliers": [0.5, 1.5]}"#,
+            r#"    {"id": "R", "kind": "reservoir", "head": 50.0, "elevation": 50.0},"#,
+            r#"    {"id": "J", "kind": "junction", "elevation": 10.0, "demand": 1.0, "pattern": "homes"},"#,
+            r#"    {"id": "T", "kind": "tank", "elevation": 30.0, "level": 2.0, "min_level": 0.0}"#,
+            r#"    {"id": "U", "kind": "pump", "from": "J", "to": "T", "head_curve": [[0.0, 40.0], [10.0, 30.0]], "efficiency": 75.0, "speed": 1.0}"#,
+            r#"    {"id": "off", "link": "U", "status": "closed", "when": {"tank": "T", "level_above": 4.5}, "priority": 0}"#,
+        ] {
+            assert!(lines.contains(&expected), "{expected}\nnot in\n{out}");
+        }
+        assert!(lines.contains(&r#"  "units": {"#) && lines.contains(&r#"    "flow": "L/s","#), "{out}");
+        // The layout is plain JSON to any other reader.
+        let parsed: serde_json::Value = serde_json::from_str(&out).unwrap_or_else(|e| panic!("{e}\n{out}"));
+        assert_eq!(parsed["links"][0]["roughness"], 120.0);
+        let back = read_str(&out, Format::Json, "out.json").unwrap_or_else(|e| panic!("{e}\n{out}"));
+        assert_eq!(back.time, model.time);
+        let toml_text = to_string(&model, Format::Toml);
+        let back = read_str(&toml_text, Format::Toml, "out.toml").unwrap_or_else(|e| panic!("{e}\n{toml_text}"));
+        assert_eq!(back.time, model.time);
+    }
+
+    #[test]
+    fn awkward_ids_are_escaped() {
+        // Ids may hold any character but control characters.
+        let ids = ["quote \" in", "back\\slash", "\u{e9}t\u{e9} \u{2028} \u{1f6b0}", "}, {\"id\": \"x", "a\\u0022b"];
+        let mut text = String::from("[[nodes]]\nid = \"R\"\nkind = \"reservoir\"\nhead = 50\n");
+        for (i, id) in ids.iter().enumerate() {
+            let quoted = serde_json::to_string(id).unwrap_or_default();
+            text += &format!("[[nodes]]\nid = {quoted}\nelevation = 1\n[[links]]\nid = {quoted}\nfrom = \"R\"\n");
+            text += &format!("to = {quoted}\nlength = {}\ndiameter = 100\nroughness = 130\n", 10 + i);
+        }
+        let model = read_str(&text, Format::Toml, "t.toml").unwrap_or_else(|e| panic!("{e}\n{text}"));
+        for format in [Format::Json, Format::Toml] {
+            let out = to_string(&model, format);
+            let back = read_str(&out, format, "out").unwrap_or_else(|e| panic!("{e}\n{out}"));
+            let names = |m: &Model| {
+                m.nodes().iter().map(|n| n.id.clone()).chain(m.links().iter().map(|l| l.id.clone())).collect::<Vec<_>>()
+            };
+            assert_eq!(names(&back), names(&model), "{out}");
+        }
+    }
+
+    #[test]
+    fn element_per_line_layout_of_empty_and_nested_values() {
+        let mut out = Vec::new();
+        let value = serde_json::json!({"a": [], "b": {}, "c": [[1, 2], {"d": [3, {"e": null}]}], "f": {"g": true}});
+        write_element_per_line(&mut out, &value).unwrap_or_else(|e| panic!("{e}"));
+        let text = String::from_utf8(out).unwrap_or_default();
+        let expected = "{\n  \"a\": [],\n  \"b\": {},\n  \"c\": [\n    [1, 2],\n    {\"d\": [3, {\"e\": null}]}\n  ],\n  \"f\": {\n    \"g\": true\n  }\n}\n";
+        assert_eq!(text, expected);
     }
 
     #[test]
