@@ -47,8 +47,6 @@ pub struct LinkLaw {
     /// always the exact law, so a converged answer satisfies the unmodified equations; only the
     /// step near zero flow changes.
     pub min_slope: f64,
-    /// Flow to start from on a cold start, m³/s.
-    pub initial_flow: f64,
 }
 
 /// Initial velocity of pipes and valves on a cold start, m/s (common practice: about 1 ft/s).
@@ -70,7 +68,6 @@ impl LinkLaw {
                 kind: Kind::Resistance { friction, minor: minor_loss_coefficient(k, d) },
                 area,
                 min_slope: 0.0,
-                initial_flow: INITIAL_VELOCITY * area,
             };
             law.min_slope = law.evaluate_exact(REGULARISATION_VELOCITY * area).1.max(MIN_SLOPE);
             law
@@ -91,17 +88,15 @@ impl LinkLaw {
             }
             LinkKind::Pump(p) => {
                 if p.speed <= 0.0 {
-                    return LinkLaw { kind: Kind::Stopped, area: 0.0, min_slope: MIN_SLOPE, initial_flow: 0.0 };
+                    return LinkLaw { kind: Kind::Stopped, area: 0.0, min_slope: MIN_SLOPE };
                 }
                 match &p.drive {
                     PumpDrive::Curve { curve, .. } => {
-                        // A characteristic flow: the run-out, else the last point, of the curve at speed.
-                        let q_char = curve.runout().or(curve.last_point_flow()).unwrap_or(0.01) * p.speed;
+                        let q_char = characteristic_flow(curve, p.speed);
                         let law = LinkLaw {
                             kind: Kind::Curve { curve: Box::new(curve.clone()), speed: p.speed },
                             area: 0.0,
                             min_slope: 0.0,
-                            initial_flow: 0.5 * q_char,
                         };
                         // Floor: the mean slope shutoff-to-run-out, times 1e-3.
                         let shutoff = curve.shutoff() * p.speed * p.speed;
@@ -114,12 +109,22 @@ impl LinkLaw {
                             kind: Kind::Power { power_over_rho_g, q_c },
                             area: 0.0,
                             min_slope: MIN_SLOPE,
-                            // The flow at which it would lift 30 m.
-                            initial_flow: power_over_rho_g / 30.0,
                         }
                     }
                 }
             }
+        }
+    }
+
+    /// Flow to start from on a cold start, m³/s (computed when asked: it is needed once per
+    /// cold start, and a field would cost 8 bytes per link for the whole solve).
+    pub fn initial_flow(&self) -> f64 {
+        match &self.kind {
+            Kind::Resistance { .. } => INITIAL_VELOCITY * self.area,
+            Kind::Curve { curve, speed } => 0.5 * characteristic_flow(curve, *speed),
+            // The flow at which it would lift 30 m.
+            Kind::Power { power_over_rho_g, .. } => power_over_rho_g / 30.0,
+            Kind::Stopped => 0.0,
         }
     }
 
@@ -192,6 +197,12 @@ pub fn hazen_williams(r: f64, m: f64, q: f64) -> (f64, f64) {
         (h.copysign(q), crate::physics::friction::HW_FLOW_EXPONENT * h / a)
     };
     (h + m * q * a, d + 2.0 * m * a)
+}
+
+/// A pump curve's characteristic flow at relative speed `speed`: its run-out, else its last
+/// point.
+fn characteristic_flow(curve: &HeadCurve, speed: f64) -> f64 {
+    curve.runout().or(curve.last_point_flow()).unwrap_or(0.01) * speed
 }
 
 /// `H = P'/Q` with `P' = P/(ρg)` above `q_c`, its tangent at `q_c` below.

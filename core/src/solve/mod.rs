@@ -344,7 +344,10 @@ impl Solver {
     pub fn new(model: &Model) -> Result<Self, SolveError> {
         model.validate()?;
         let start = Instant::now();
-        let pattern = Arc::new(Pattern::analyse(model));
+        let pattern = Pattern::analyse(model).ok_or_else(|| {
+            SolveError::Model(ModelError::new("the network is too large for the solver's 32-bit matrix indices"))
+        })?;
+        let pattern = Arc::new(pattern);
         let analysis_time = start.elapsed();
         Ok(Solver::with_pattern(model, pattern, analysis_time))
     }
@@ -454,7 +457,7 @@ impl Solver {
         let warm = options.warm_start && self.has_previous;
         if !warm {
             for (q, law) in self.flow.iter_mut().zip(&self.laws) {
-                *q = law.initial_flow;
+                *q = law.initial_flow();
             }
         }
         // Heads: fixed ones as given; junctions from the previous solution on a warm start, else
@@ -1096,20 +1099,25 @@ impl Solver {
     ) -> Solution {
         let nodes = model.nodes();
         let links = model.links();
-        let head = self.head.clone();
-        let energy = energy_residuals(&self.pattern.ends, &self.laws, &self.flow, &head, &self.on_law);
-        let max_energy_residual = energy.iter().copied().fold(0.0, f64::max);
-        let mut balance: Vec<f64> = self.demand.iter().map(|d| -d).collect();
-        for (&(from, to), &q) in self.pattern.ends.iter().zip(&self.flow) {
-            balance[to as usize] += q;
-            balance[from as usize] -= q;
-        }
-        let max_mass_residual = nodes
-            .iter()
-            .enumerate()
-            .filter(|(i, n)| n.fixed_head().is_none() && self.connected[*i])
-            .map(|(i, _)| balance[i].abs())
+        // The residuals' work arrays are dropped before the solution's arrays are made (at a
+        // million junctions each is some 10 MB at the moment of the process's peak memory).
+        let max_energy_residual = energy_residuals(&self.pattern.ends, &self.laws, &self.flow, &self.head, &self.on_law)
+            .into_iter()
             .fold(0.0, f64::max);
+        let max_mass_residual = {
+            let mut balance: Vec<f64> = self.demand.iter().map(|d| -d).collect();
+            for (&(from, to), &q) in self.pattern.ends.iter().zip(&self.flow) {
+                balance[to as usize] += q;
+                balance[from as usize] -= q;
+            }
+            nodes
+                .iter()
+                .enumerate()
+                .filter(|(i, n)| n.fixed_head().is_none() && self.connected[*i])
+                .map(|(i, _)| balance[i].abs())
+                .fold(0.0, f64::max)
+        };
+        let head = self.head.clone();
         let pressure: Vec<f64> = nodes.iter().zip(&head).map(|(n, h)| h - n.elevation).collect();
         let velocity: Vec<f64> = self
             .flow

@@ -76,11 +76,9 @@ pub struct Pattern {
     pub node_of_unknown: Vec<u32>,
     /// Upper-triangular CSC pattern of the permuted matrix, rows sorted within each column
     /// (checked once here, not at every factorization).
-    structure: SymbolicSparseColMat<usize>,
+    structure: SymbolicSparseColMat<u32>,
     /// Value slot of each permuted unknown's diagonal entry.
     pub diag_slot: Vec<u32>,
-    /// Slots of every link (all `NONE` for tree links).
-    pub links: Vec<LinkSlots>,
     /// Links of the core, ordered by the matrix column they write to (for locality).
     pub core: Vec<CoreLink>,
     /// Position of each link in `core`, or `NONE` for tree links.
@@ -92,7 +90,7 @@ pub struct Pattern {
     /// For each node, the links that touch it.
     pub adjacency: Adjacency,
     /// Symbolic Cholesky factor.
-    pub symbolic: SymbolicSimplicialCholesky<usize>,
+    pub symbolic: SymbolicSimplicialCholesky<u32>,
     /// End points `(from, to)` of every link, compact for passes over all links (and the
     /// structure signature with the node kinds).
     pub ends: Vec<(u32, u32)>,
@@ -143,12 +141,17 @@ fn peel(model: &Model, adjacency: &Adjacency, fixed: &[bool], peelable: &[bool])
 
 /// Scratch size of the numeric factorization and solve for an `n`-unknown matrix.
 pub fn numeric_scratch(n: usize) -> StackReq {
-    simplicial::factorize_simplicial_numeric_llt_scratch::<usize, f64>(n)
+    simplicial::factorize_simplicial_numeric_llt_scratch::<u32, f64>(n)
 }
 
 impl Pattern {
-    /// Analyses the structure of `model`.
-    pub fn analyse(model: &Model) -> Pattern {
+    /// Analyses the structure of `model`; `None` when the matrix or its factor would have more
+    /// entries than 32-bit indices can number (some four thousand million, far beyond any
+    /// network a computer of today could hold).
+    pub fn analyse(model: &Model) -> Option<Pattern> {
+        if u32::try_from(model.nodes().len() + model.links().len()).is_err() {
+            return None;
+        }
         let nodes = model.nodes();
         let fixed: Vec<bool> = nodes.iter().map(|n| n.fixed_head().is_some()).collect();
         let peelable: Vec<bool> = model.links().iter().map(|l| peelable(&l.kind)).collect();
@@ -193,27 +196,32 @@ impl Pattern {
         for &(_, c) in &permuted {
             counts[c] += 1;
         }
-        let mut col_ptr = vec![0usize; n + 1];
+        // 32-bit indices (half the memory of the factor's structure); `fits_u32` checked the
+        // sizes before the analysis started.
+        let mut col_ptr = vec![0u32; n + 1];
         for j in 0..n {
-            col_ptr[j + 1] = col_ptr[j] + counts[j];
+            col_ptr[j + 1] = col_ptr[j] + counts[j] as u32;
         }
-        let mut row_idx = vec![0usize; col_ptr[n]];
-        let mut fill = col_ptr[..n].to_vec();
+        let at = |p: u32| p as usize;
+        let mut row_idx = vec![0u32; at(col_ptr[n])];
+        let mut fill: Vec<usize> = col_ptr[..n].iter().map(|&p| at(p)).collect();
         for j in 0..n {
-            row_idx[fill[j]] = j;
+            row_idx[fill[j]] = j as u32;
             fill[j] += 1;
         }
         for &(r, c) in &permuted {
-            row_idx[fill[c]] = r;
+            row_idx[fill[c]] = r as u32;
             fill[c] += 1;
         }
+        drop(fill);
         for j in 0..n {
-            row_idx[col_ptr[j]..col_ptr[j + 1]].sort_unstable();
+            row_idx[at(col_ptr[j])..at(col_ptr[j + 1])].sort_unstable();
         }
         let slot = |r: usize, c: usize| -> u32 {
-            let rows = &row_idx[col_ptr[c]..col_ptr[c + 1]];
-            let pos = rows.binary_search(&r).expect("entry is in the pattern by construction");
-            (col_ptr[c] + pos) as u32
+            let rows = &row_idx[at(col_ptr[c])..at(col_ptr[c + 1])];
+            // The entry is in the pattern by construction.
+            let pos = rows.binary_search(&(r as u32)).unwrap_or_else(|p| p);
+            col_ptr[c] + pos as u32
         };
         let diag_slot: Vec<u32> = (0..n).map(|j| slot(j, j)).collect();
         let unknown_of_node: Vec<u32> = original.iter().map(|&u| permute(u)).collect();
@@ -242,12 +250,8 @@ impl Pattern {
             })
             .collect();
 
-        let mut core: Vec<CoreLink> = model
-            .links()
-            .iter()
-            .enumerate()
-            .filter(|&(k, _)| !is_tree_link[k])
-            .map(|(k, l)| {
+        let mut core: Vec<CoreLink> = Vec::with_capacity(is_tree_link.iter().filter(|t| !**t).count());
+        core.extend(model.links().iter().enumerate().filter(|&(k, _)| !is_tree_link[k]).map(|(k, l)| {
                 let s = links[k];
                 let diag = |u: u32| if u == NONE { NONE } else { diag_slot[u as usize] };
                 CoreLink {
@@ -258,8 +262,7 @@ impl Pattern {
                     diag_from: diag(s.from),
                     diag_to: diag(s.to),
                 }
-            })
-            .collect();
+            }));
         // Column order: consecutive links write to nearby matrix entries and read nearby unknowns.
         let column = |c: &CoreLink| match (c.slots.from, c.slots.to) {
             (NONE, NONE) => 0,
@@ -272,15 +275,14 @@ impl Pattern {
             core_position[c.link as usize] = i as u32;
         }
 
-        let symbolic = symbolic_factor(n, &col_ptr, &row_idx);
+        let symbolic = symbolic_factor(n, &col_ptr, &row_idx)?;
         let ends = model.links().iter().map(|l| (l.from as u32, l.to as u32)).collect();
-        Pattern {
+        Some(Pattern {
             n,
             unknown_of_node,
             node_of_unknown,
             structure: SymbolicSparseColMat::new_checked(n, n, col_ptr, None, row_idx),
             diag_slot,
-            links,
             core,
             core_position,
             trees,
@@ -290,7 +292,7 @@ impl Pattern {
             ends,
             fixed,
             peelable,
-        }
+        })
     }
 
     /// Whether this analysis still fits `model` (same nodes' roles, same link end points, the
@@ -319,7 +321,7 @@ impl Pattern {
     }
 
     /// The symbolic view of the matrix for faer.
-    pub fn matrix(&self) -> SymbolicSparseColMatRef<'_, usize> {
+    pub fn matrix(&self) -> SymbolicSparseColMatRef<'_, u32> {
         self.structure.as_ref()
     }
 }
@@ -359,19 +361,19 @@ fn ordering(n: usize, pairs: &[(u32, u32)]) -> Vec<usize> {
     }
 }
 
-fn symbolic_factor(n: usize, col_ptr: &[usize], row_idx: &[usize]) -> SymbolicSimplicialCholesky<usize> {
+fn symbolic_factor(n: usize, col_ptr: &[u32], row_idx: &[u32]) -> Option<SymbolicSimplicialCholesky<u32>> {
     let a = SymbolicSparseColMatRef::new_checked(n, n, col_ptr, None, row_idx);
-    let mut etree = vec![0isize; n];
-    let mut col_counts = vec![0usize; n];
+    let mut etree = vec![0i32; n];
+    let mut col_counts = vec![0u32; n];
     let req = StackReq::any_of(&[
-        simplicial::prefactorize_symbolic_cholesky_scratch::<usize>(n, row_idx.len()),
-        simplicial::factorize_simplicial_symbolic_cholesky_scratch::<usize>(n),
+        simplicial::prefactorize_symbolic_cholesky_scratch::<u32>(n, row_idx.len()),
+        simplicial::factorize_simplicial_symbolic_cholesky_scratch::<u32>(n),
     ]);
     let mut mem = MemBuffer::new(req);
     let stack = MemStack::new(&mut mem);
     let etree_ref = simplicial::prefactorize_symbolic_cholesky(&mut etree, &mut col_counts, a, stack);
-    simplicial::factorize_simplicial_symbolic_cholesky(a, etree_ref, &col_counts, stack)
-        .expect("symbolic factorization only fails on allocation or index overflow")
+    // Fails only when the factor has more entries than 32-bit indices can number.
+    simplicial::factorize_simplicial_symbolic_cholesky(a, etree_ref, &col_counts, stack).ok()
 }
 
 #[cfg(test)]
@@ -421,7 +423,7 @@ mod tests {
     #[test]
     fn dead_end_pipes_are_peeled_and_devices_stay_in_the_core() {
         let m = network();
-        let p = Pattern::analyse(&m);
+        let p = Pattern::analyse(&m).unwrap();
         let tree: Vec<usize> = (0..m.nodes().len()).filter(|&i| p.in_tree[i]).collect();
         // J3 and the branch J7, J6; then J2, left with its one link to J1. Behind the check valve
         // and the pump nothing is peeled, and the loop J1 – J4 – J5 stays.
@@ -450,7 +452,7 @@ mod tests {
             m.add_node(Node::junction(format!("J{i}"), 0.0, 1e-3)).unwrap();
             m.add_link(pipe(&format!("P{i}"), i - 1, i, false)).unwrap();
         }
-        let p = Pattern::analyse(&m);
+        let p = Pattern::analyse(&m).unwrap();
         assert_eq!((p.n, p.tree_junctions(), p.core.len()), (0, 4, 0));
         let s = crate::solve::solve(&m).unwrap();
         // Each pipe carries the demand beyond it: 4, 3, 2, 1 L/s.
@@ -463,7 +465,7 @@ mod tests {
     #[test]
     fn changing_a_pipe_into_a_check_valve_redoes_the_analysis() {
         let mut m = network();
-        let p = Pattern::analyse(&m);
+        let p = Pattern::analyse(&m).unwrap();
         let k = m.link_index("P7").unwrap();
         let mut link = m.links()[k].clone();
         if let LinkKind::Pipe(pipe) = &mut link.kind {
@@ -471,6 +473,6 @@ mod tests {
         }
         m.replace_link(k, link).unwrap();
         assert!(!p.fits(&m));
-        assert!(!Pattern::analyse(&m).in_tree[7]);
+        assert!(!Pattern::analyse(&m).unwrap().in_tree[7]);
     }
 }

@@ -9,7 +9,8 @@ use crate::model::Model;
 /// Adjacency of a network in compressed form: for each node, the links that touch it.
 #[derive(Debug, Clone)]
 pub struct Adjacency {
-    start: Vec<usize>,
+    /// 32-bit offsets: twice the links fit (the solver's analysis checks the model's size).
+    start: Vec<u32>,
     links: Vec<u32>,
 }
 
@@ -17,7 +18,7 @@ impl Adjacency {
     /// Builds the adjacency of `model`.
     pub fn new(model: &Model) -> Self {
         let n = model.nodes().len();
-        let mut start = vec![0usize; n + 1];
+        let mut start = vec![0u32; n + 1];
         for l in model.links() {
             start[l.from + 1] += 1;
             start[l.to + 1] += 1;
@@ -25,8 +26,8 @@ impl Adjacency {
         for i in 0..n {
             start[i + 1] += start[i];
         }
-        let mut fill = start[..n].to_vec();
-        let mut links = vec![0u32; start[n]];
+        let mut fill: Vec<usize> = start[..n].iter().map(|&s| s as usize).collect();
+        let mut links = vec![0u32; start[n] as usize];
         for (k, l) in model.links().iter().enumerate() {
             links[fill[l.from]] = k as u32;
             fill[l.from] += 1;
@@ -38,7 +39,7 @@ impl Adjacency {
 
     /// Links touching node `i`.
     pub fn of(&self, i: usize) -> &[u32] {
-        &self.links[self.start[i]..self.start[i + 1]]
+        &self.links[self.start[i] as usize..self.start[i + 1] as usize]
     }
 }
 
