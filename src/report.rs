@@ -41,11 +41,12 @@ struct JsonLinks<'r, 'a>(&'r Report<'a>);
 impl Serialize for JsonLinks<'_, '_> {
     fn serialize<S: Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
         let r = self.0;
-        let mut pump_of_link = vec![None; r.model.links().len()];
-        for p in &r.solution.pumps {
-            pump_of_link[p.link] = Some(p);
-        }
-        s.collect_seq(pump_of_link.iter().enumerate().map(|(k, &pump)| r.json_link(k, pump)))
+        // The pumps' results are in link order: walked beside the links, not looked up.
+        let mut pumps = r.solution.pumps.iter().peekable();
+        s.collect_seq((0..r.model.links().len()).map(|k| {
+            let pump = pumps.next_if(|p| p.link == k);
+            r.json_link(k, pump)
+        }))
     }
 }
 

@@ -4,6 +4,10 @@
 //! compares against them. A `HashMap<String, usize>` would keep a second copy of every id and
 //! take about 33 bytes per bucket; this takes 5, which at a million elements is the difference
 //! between some 140 MB and 10 MB.
+//!
+//! While a model is being read, the index also keeps each id's hash, so that growing the table
+//! does not go back to the ids scattered through the element list (at a million elements that
+//! took half a second); [`IdIndex::settle`] drops them once the model is read.
 
 use hashbrown::{DefaultHashBuilder, HashTable};
 use std::hash::BuildHasher;
@@ -22,6 +26,8 @@ pub(crate) enum Insert {
 pub(crate) struct IdIndex {
     table: HashTable<u32>,
     hasher: DefaultHashBuilder,
+    /// The short hash of the id at each position, while the model grows (empty once settled).
+    hashes: Vec<u32>,
 }
 
 impl std::fmt::Debug for IdIndex {
@@ -30,24 +36,46 @@ impl std::fmt::Debug for IdIndex {
     }
 }
 
+/// The table's hash of a short hash: spread over 64 bits (the table takes its bucket from the
+/// low bits and a tag from the high ones).
+fn spread(h: u32) -> u64 {
+    u64::from(h).wrapping_mul(0x9e37_79b9_7f4a_7c15)
+}
+
 impl IdIndex {
+    fn short_hash(&self, id: &str) -> u32 {
+        (self.hasher.hash_one(id) >> 32) as u32
+    }
+
     /// The position of `id`; `ids(k)` is the id at position `k`.
     pub(crate) fn find<'a>(&self, id: &str, ids: impl Fn(usize) -> &'a str) -> Option<usize> {
-        let hash = self.hasher.hash_one(id);
-        self.table.find(hash, |&k| ids(k as usize) == id).map(|&k| k as usize)
+        let h = self.short_hash(id);
+        self.table.find(spread(h), |&k| ids(k as usize) == id).map(|&k| k as usize)
     }
 
     /// Records that `id` is at `position` (nothing is recorded unless the answer is `Added`).
     /// `ids(k)` is called only for positions already recorded (to compare, and to hash them
-    /// again when the table grows).
+    /// again when the table grows after [`IdIndex::settle`]).
     pub(crate) fn insert<'a>(&mut self, id: &str, position: usize, ids: impl Fn(usize) -> &'a str) -> Insert {
         let Ok(stored) = u32::try_from(position) else { return Insert::Full };
-        let hash = self.hasher.hash_one(id);
-        if self.table.find(hash, |&k| ids(k as usize) == id).is_some() {
+        let h = self.short_hash(id);
+        if self.table.find(spread(h), |&k| ids(k as usize) == id).is_some() {
             return Insert::Duplicate;
         }
-        let hasher = &self.hasher;
-        self.table.insert_unique(hash, stored, |&k| hasher.hash_one(ids(k as usize)));
+        let (hasher, hashes) = (&self.hasher, &self.hashes);
+        let rehash = |&k: &u32| match hashes.get(k as usize) {
+            Some(&hk) => spread(hk),
+            None => spread((hasher.hash_one(ids(k as usize)) >> 32) as u32),
+        };
+        self.table.insert_unique(spread(h), stored, rehash);
+        if self.hashes.len() == position {
+            self.hashes.push(h);
+        }
         Insert::Added
+    }
+
+    /// Drops the hashes kept while the model grew (lookups are unchanged).
+    pub(crate) fn settle(&mut self) {
+        self.hashes = Vec::new();
     }
 }

@@ -520,10 +520,13 @@ impl Model {
     }
 
     /// Gives back the room the element lists grew into while elements were added one by one
-    /// (up to half of it for a large model read from a file).
+    /// (up to half of it for a large model read from a file), and the work space of the id
+    /// indices. Adding elements afterwards still works, a little more slowly.
     pub fn shrink_to_fit(&mut self) {
         self.nodes.shrink_to_fit();
         self.links.shrink_to_fit();
+        self.node_index.settle();
+        self.link_index.settle();
     }
 
     /// Index of a node by id.

@@ -21,8 +21,13 @@ pub const POWER_PUMP_HEAD_LIMIT: f64 = 300.0;
 
 #[derive(Clone, Debug, PartialEq)]
 enum Kind {
-    /// Friction (pipes only) plus `m Q|Q|`.
-    Resistance { friction: Option<Friction>, minor: f64 },
+    /// A Hazen–Williams pipe, `r |Q|^n sign(Q) + m Q|Q|`: the commonest law, kept inline (the
+    /// other pipe law is boxed so that an array of laws stays at 32 bytes a link).
+    HazenWilliams { r: f64, minor: f64 },
+    /// A Darcy–Weisbach pipe: friction plus `m Q|Q|`.
+    DarcyWeisbach(Box<(Friction, f64)>),
+    /// A loss coefficient only (a fully open or throttling valve): `m Q|Q|`.
+    Minor { minor: f64 },
     /// `h = −s² H(Q/s)`.
     Curve { curve: Box<HeadCurve>, speed: f64 },
     /// `h = −P/(ρ g Q)` above `q_c`, tangent below.
@@ -35,8 +40,6 @@ enum Kind {
 #[derive(Clone, Debug, PartialEq)]
 pub struct LinkLaw {
     kind: Kind,
-    /// Flow area, m², for velocities (zero for pumps).
-    pub area: f64,
     /// Smallest slope dh/dQ used in the Newton matrix.
     ///
     /// Hazen–Williams' slope `n r |Q|^(n-1)` vanishes at Q = 0, which would make the gradient
@@ -64,11 +67,7 @@ impl LinkLaw {
     pub fn with_water(model: &Model, link: &Link, water: &WaterProperties) -> Self {
         let resistance = |friction: Option<Friction>, k: f64, d: f64| {
             let area = PI * d * d / 4.0;
-            let mut law = LinkLaw {
-                kind: Kind::Resistance { friction, minor: minor_loss_coefficient(k, d) },
-                area,
-                min_slope: 0.0,
-            };
+            let mut law = LinkLaw { kind: resistance_kind(friction, minor_loss_coefficient(k, d)), min_slope: 0.0 };
             law.min_slope = law.evaluate_exact(REGULARISATION_VELOCITY * area).1.max(MIN_SLOPE);
             law
         };
@@ -88,14 +87,13 @@ impl LinkLaw {
             }
             LinkKind::Pump(p) => {
                 if p.speed <= 0.0 {
-                    return LinkLaw { kind: Kind::Stopped, area: 0.0, min_slope: MIN_SLOPE };
+                    return LinkLaw { kind: Kind::Stopped, min_slope: MIN_SLOPE };
                 }
                 match &p.drive {
                     PumpDrive::Curve { curve, .. } => {
                         let q_char = characteristic_flow(curve, p.speed);
                         let law = LinkLaw {
                             kind: Kind::Curve { curve: Box::new(curve.clone()), speed: p.speed },
-                            area: 0.0,
                             min_slope: 0.0,
                         };
                         // Floor: the mean slope shutoff-to-run-out, times 1e-3.
@@ -105,22 +103,21 @@ impl LinkLaw {
                     PumpDrive::Power(watts) => {
                         let power_over_rho_g = watts * p.speed.powi(3) / (water.density * GRAVITY);
                         let q_c = power_over_rho_g / POWER_PUMP_HEAD_LIMIT;
-                        LinkLaw {
-                            kind: Kind::Power { power_over_rho_g, q_c },
-                            area: 0.0,
-                            min_slope: MIN_SLOPE,
-                        }
+                        LinkLaw { kind: Kind::Power { power_over_rho_g, q_c }, min_slope: MIN_SLOPE }
                     }
                 }
             }
         }
     }
 
-    /// Flow to start from on a cold start, m³/s (computed when asked: it is needed once per
-    /// cold start, and a field would cost 8 bytes per link for the whole solve).
-    pub fn initial_flow(&self) -> f64 {
+    /// Flow to start from on a cold start, m³/s, for this law of `link` (computed when asked:
+    /// it is needed once per cold start, and a field would cost 8 bytes per link for the whole
+    /// solve).
+    pub fn initial_flow(&self, link: &Link) -> f64 {
         match &self.kind {
-            Kind::Resistance { .. } => INITIAL_VELOCITY * self.area,
+            Kind::HazenWilliams { .. } | Kind::DarcyWeisbach(_) | Kind::Minor { .. } => {
+                INITIAL_VELOCITY * flow_area(link)
+            }
             Kind::Curve { curve, speed } => 0.5 * characteristic_flow(curve, *speed),
             // The flow at which it would lift 30 m.
             Kind::Power { power_over_rho_g, .. } => power_over_rho_g / 30.0,
@@ -132,11 +129,13 @@ impl LinkLaw {
     #[inline]
     pub fn evaluate_exact(&self, q: f64) -> (f64, f64) {
         match &self.kind {
-            Kind::Resistance { friction: Some(Friction::HazenWilliams { r }), minor } => hazen_williams(*r, *minor, q),
-            Kind::Resistance { friction, minor } => {
-                let (h, d) = friction.map_or((0.0, 0.0), |f| f.evaluate(q));
+            Kind::HazenWilliams { r, minor } => hazen_williams(*r, *minor, q),
+            Kind::DarcyWeisbach(parts) => {
+                let (friction, minor) = **parts;
+                let (h, d) = friction.evaluate(q);
                 (h + minor * q * q.abs(), d + 2.0 * minor * q.abs())
             }
+            Kind::Minor { minor } => (minor * q * q.abs(), 2.0 * minor * q.abs()),
             Kind::Curve { curve, speed } => {
                 let (h, d) = curve.head_at_speed(q, *speed);
                 (-h, -d)
@@ -154,7 +153,7 @@ impl LinkLaw {
     /// without a branch on its kind (see [`hazen_williams`]).
     pub fn hazen_williams_parts(&self) -> Option<(f64, f64)> {
         match self.kind {
-            Kind::Resistance { friction: Some(Friction::HazenWilliams { r }), minor } => Some((r, minor)),
+            Kind::HazenWilliams { r, minor } => Some((r, minor)),
             _ => None,
         }
     }
@@ -197,6 +196,20 @@ pub fn hazen_williams(r: f64, m: f64, q: f64) -> (f64, f64) {
         (h.copysign(q), crate::physics::friction::HW_FLOW_EXPONENT * h / a)
     };
     (h + m * q * a, d + 2.0 * m * a)
+}
+
+/// The law of a pipe (with its friction) or of a valve (without), plus the minor losses `m`.
+fn resistance_kind(friction: Option<Friction>, minor: f64) -> Kind {
+    match friction {
+        Some(Friction::HazenWilliams { r }) => Kind::HazenWilliams { r, minor },
+        Some(f) => Kind::DarcyWeisbach(Box::new((f, minor))),
+        None => Kind::Minor { minor },
+    }
+}
+
+/// The flow area of a pipe or valve, m² (zero for a pump), for velocities.
+pub fn flow_area(link: &Link) -> f64 {
+    link.diameter().map_or(0.0, |d| PI * d * d / 4.0)
 }
 
 /// A pump curve's characteristic flow at relative speed `speed`: its run-out, else its last

@@ -267,10 +267,18 @@ const FREE_TO: u8 = 8;
 /// else through its [`LinkLaw`].
 #[derive(Clone, Copy, Debug, PartialEq)]
 struct HotLaw {
+    /// Hazen–Williams resistance, or NaN for a law evaluated through its [`LinkLaw`] (a flag
+    /// field would add a quarter to the size of this per-link array).
     r: f64,
     minor: f64,
     min_slope: f64,
-    general: bool,
+}
+
+impl HotLaw {
+    #[inline]
+    fn general(&self) -> bool {
+        self.r.is_nan()
+    }
 }
 
 /// An active pressure valve: its core position and the node whose head it pins.
@@ -360,7 +368,7 @@ impl Solver {
             factor: Factor::new(&pattern),
             // Filled by every solve (pipe data may change between solves).
             laws: Vec::with_capacity(n_links),
-            hot: vec![HotLaw { r: 0.0, minor: 0.0, min_slope: 0.0, general: true }; n_core],
+            hot: vec![HotLaw { r: f64::NAN, minor: 0.0, min_slope: 0.0 }; n_core],
             flow: vec![0.0; n_links],
             head: vec![f64::NAN; n_nodes],
             has_previous: false,
@@ -384,7 +392,7 @@ impl Solver {
             tree_flow_sum: 0.0,
             anchored: vec![false; n_nodes],
             demand_scale: 0.0,
-            stack: Vec::with_capacity(n_nodes),
+            stack: Vec::new(),
             timings: Timings { analysis: analysis_time, ..Timings::default() },
             analysis_time,
             pattern,
@@ -441,8 +449,8 @@ impl Solver {
         for (hot, c) in self.hot.iter_mut().zip(&self.pattern.core) {
             let law = &self.laws[c.link as usize];
             *hot = match law.hazen_williams_parts() {
-                Some((r, minor)) => HotLaw { r, minor, min_slope: law.min_slope, general: false },
-                None => HotLaw { r: 0.0, minor: 0.0, min_slope: law.min_slope, general: true },
+                Some((r, minor)) if !r.is_nan() => HotLaw { r, minor, min_slope: law.min_slope },
+                _ => HotLaw { r: f64::NAN, minor: 0.0, min_slope: law.min_slope },
             };
         }
         for (i, n) in model.nodes().iter().enumerate() {
@@ -456,8 +464,8 @@ impl Solver {
         }
         let warm = options.warm_start && self.has_previous;
         if !warm {
-            for (q, law) in self.flow.iter_mut().zip(&self.laws) {
-                *q = law.initial_flow();
+            for ((q, law), link) in self.flow.iter_mut().zip(&self.laws).zip(model.links()) {
+                *q = law.initial_flow(link);
             }
         }
         // Heads: fixed ones as given; junctions from the previous solution on a warm start, else
@@ -889,7 +897,7 @@ impl Solver {
     /// Like [`Solver::coefficients`], with the secant slope `h(Q)/Q` for Hazen–Williams pipes.
     fn secant(&self, i: usize, q: f64, dh: f64) -> (f64, f64, f64) {
         let hot = self.hot[i];
-        if hot.general || q == 0.0 {
+        if hot.general() || q == 0.0 {
             return self.coefficients(i, q, dh);
         }
         let (y, _) = links::hazen_williams(hot.r, hot.minor, q);
@@ -902,7 +910,7 @@ impl Solver {
     #[inline]
     fn coefficients(&self, i: usize, q: f64, dh: f64) -> (f64, f64, f64) {
         let hot = self.hot[i];
-        let (y, g) = if hot.general {
+        let (y, g) = if hot.general() {
             let (y, g) = self.laws[self.pattern.core[i].link as usize].evaluate_exact(q);
             (y, g.max(hot.min_slope))
         } else {
@@ -945,12 +953,12 @@ impl Solver {
                     };
                     let q = *cc + *cp * (d_from - d_to);
                     let dh = h_from - h_to;
-                    let (y, g) = if hot.general {
+                    let (y, g) = if hot.general() {
                         laws[c.link as usize].evaluate_exact(q)
                     } else {
                         links::hazen_williams(hot.r, hot.minor, q)
                     };
-                    let g = if secant && !hot.general && q != 0.0 { y / q } else { g };
+                    let g = if secant && !hot.general() && q != 0.0 { y / q } else { g };
                     let p = 1.0 / g.max(hot.min_slope);
                     residual = residual.max((y - dh).abs());
                     sum_dq += (q - *cq).abs();
@@ -1101,9 +1109,10 @@ impl Solver {
         let links = model.links();
         // The residuals' work arrays are dropped before the solution's arrays are made (at a
         // million junctions each is some 10 MB at the moment of the process's peak memory).
-        let max_energy_residual = energy_residuals(&self.pattern.ends, &self.laws, &self.flow, &self.head, &self.on_law)
-            .into_iter()
-            .fold(0.0, f64::max);
+        let max_energy_residual =
+            energy_residuals(&self.pattern.ends, &self.laws, &self.flow, &self.head, &self.on_law)
+                .into_iter()
+                .fold(0.0, f64::max);
         let max_mass_residual = {
             let mut balance: Vec<f64> = self.demand.iter().map(|d| -d).collect();
             for (&(from, to), &q) in self.pattern.ends.iter().zip(&self.flow) {
@@ -1122,8 +1131,11 @@ impl Solver {
         let velocity: Vec<f64> = self
             .flow
             .iter()
-            .zip(&self.laws)
-            .map(|(q, law)| if law.area > 0.0 { q / law.area } else { f64::NAN })
+            .zip(links)
+            .map(|(q, link)| match links::flow_area(link) {
+                a if a > 0.0 => q / a,
+                _ => f64::NAN,
+            })
             .collect();
         let headloss: Vec<f64> =
             self.pattern.ends.iter().map(|&(from, to)| (head[from as usize] - head[to as usize]).abs()).collect();

@@ -252,17 +252,17 @@ impl Pattern {
 
         let mut core: Vec<CoreLink> = Vec::with_capacity(is_tree_link.iter().filter(|t| !**t).count());
         core.extend(model.links().iter().enumerate().filter(|&(k, _)| !is_tree_link[k]).map(|(k, l)| {
-                let s = links[k];
-                let diag = |u: u32| if u == NONE { NONE } else { diag_slot[u as usize] };
-                CoreLink {
-                    link: k as u32,
-                    from: l.from as u32,
-                    to: l.to as u32,
-                    slots: s,
-                    diag_from: diag(s.from),
-                    diag_to: diag(s.to),
-                }
-            }));
+            let s = links[k];
+            let diag = |u: u32| if u == NONE { NONE } else { diag_slot[u as usize] };
+            CoreLink {
+                link: k as u32,
+                from: l.from as u32,
+                to: l.to as u32,
+                slots: s,
+                diag_from: diag(s.from),
+                diag_to: diag(s.to),
+            }
+        }));
         // Column order: consecutive links write to nearby matrix entries and read nearby unknowns.
         let column = |c: &CoreLink| match (c.slots.from, c.slots.to) {
             (NONE, NONE) => 0,
