@@ -315,7 +315,11 @@ fn print_timings(model: &Model, solver: &ringmain_core::Solver, reading: Duratio
     eprintln!("  solver in all           {:9.3} ms", ms(solver_total));
     eprintln!("  writing the results     {:9.3} ms", ms(writing));
     if let Some(kib) = peak_memory_kib() {
-        eprintln!("  peak memory             {:9.1} MB  (whole process, so far)", kib as f64 / 1024.0);
+        eprintln!(
+            "  peak memory             {:9.1} MB  (whole process so far; {:.1} MiB)",
+            kib as f64 * 1.024e-3,
+            kib as f64 / 1024.0
+        );
     }
 }
 

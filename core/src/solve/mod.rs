@@ -453,6 +453,9 @@ impl Solver {
                 _ => HotLaw { r: f64::NAN, minor: 0.0, min_slope: law.min_slope },
             };
         }
+        // The last solution took these two arrays (they are rebuilt for every solve).
+        self.demand.resize(model.nodes().len(), 0.0);
+        self.connected.resize(model.nodes().len(), false);
         for (i, n) in model.nodes().iter().enumerate() {
             self.demand[i] = n.demand() * scenario.demand_multiplier;
         }
@@ -1096,7 +1099,7 @@ impl Solver {
 
     #[allow(clippy::too_many_arguments)]
     fn finish(
-        &self,
+        &mut self,
         model: &Model,
         iterations: u32,
         status_changes: u32,
@@ -1201,8 +1204,9 @@ impl Solver {
             status_changes,
             ending,
             pumps,
-            demand: self.demand.clone(),
-            connected: self.connected.clone(),
+            // Taken, not copied: a solve rebuilds both from the model before using them.
+            demand: std::mem::take(&mut self.demand),
+            connected: std::mem::take(&mut self.connected),
             head,
             pressure,
             flow: self.flow.clone(),
