@@ -269,7 +269,26 @@ impl Pattern {
             (NONE, u) | (u, NONE) => u,
             (a, b) => a.max(b),
         };
-        core.sort_unstable_by_key(|c| (column(c), c.link));
+        // A counting sort by column, stable, so links stay in index order within a column (the
+        // same order as sorting by (column, link), in linear time).
+        if let Some(&first) = core.first() {
+            // Column 0 also takes the links between two fixed heads (there may be no unknowns).
+            let columns = n.max(1);
+            let mut start = vec![0u32; columns + 1];
+            for c in &core {
+                start[column(c) as usize + 1] += 1;
+            }
+            for j in 0..columns {
+                start[j + 1] += start[j];
+            }
+            let mut sorted = vec![first; core.len()];
+            for c in &core {
+                let at = &mut start[column(c) as usize];
+                sorted[*at as usize] = *c;
+                *at += 1;
+            }
+            core = sorted;
+        }
         let mut core_position = vec![NONE; model.links().len()];
         for (i, c) in core.iter().enumerate() {
             core_position[c.link as usize] = i as u32;
@@ -418,6 +437,22 @@ mod tests {
         })
         .unwrap();
         m
+    }
+
+    #[test]
+    fn core_links_are_in_column_order_then_link_order() {
+        let m = network();
+        let p = Pattern::analyse(&m).unwrap();
+        let column = |c: &CoreLink| match (c.slots.from, c.slots.to) {
+            (NONE, NONE) => 0,
+            (NONE, u) | (u, NONE) => u,
+            (a, b) => a.max(b),
+        };
+        let keys: Vec<(u32, u32)> = p.core.iter().map(|c| (column(c), c.link)).collect();
+        assert!(keys.windows(2).all(|w| w[0] < w[1]), "{keys:?}");
+        for (i, c) in p.core.iter().enumerate() {
+            assert_eq!(p.core_position[c.link as usize], i as u32);
+        }
     }
 
     #[test]
