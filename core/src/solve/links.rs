@@ -56,6 +56,9 @@ pub struct LinkLaw {
 pub const INITIAL_VELOCITY: f64 = 0.3;
 
 impl LinkLaw {
+    /// A placeholder law (a stopped pump's), for arrays about to be filled.
+    pub const STOPPED: LinkLaw = LinkLaw { kind: Kind::Stopped, min_slope: MIN_SLOPE };
+
     /// The law of a link of `model` when it is open (for valves: fully open, or throttling at the
     /// setting for an automatic throttle valve).
     pub fn new(model: &Model, link: &Link) -> Self {

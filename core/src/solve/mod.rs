@@ -63,7 +63,7 @@ pub mod status;
 pub mod topology;
 
 use crate::error::{Element, ModelError, Offender, SolveError};
-use crate::model::{LinkKind, LinkStatus, Model, ValveType};
+use crate::model::{Link, LinkKind, LinkStatus, Model, ValveType};
 use factor::Factor;
 use links::LinkLaw;
 use pattern::{Pattern, NONE};
@@ -293,6 +293,10 @@ struct Pinned {
     change: f64,
 }
 
+/// Networks with at least this many links compute their links' laws on all cores (a few
+/// percent of a solve; below it the threads' start costs more than they save).
+const PARALLEL_LAWS: usize = 50_000;
+
 /// A reusable solver: the analysis of one network structure and its workspaces.
 ///
 /// Values (demands, heads, statuses, pipe data) may change between solves; when the structure
@@ -437,14 +441,17 @@ impl Solver {
         self.analysis_time = Duration::ZERO;
         // Pipe data may have changed since the last solve; laws are cheap to recompute.
         let water = model.options.water_properties();
-        if self.laws.len() == model.links().len() {
-            for (law, link) in self.laws.iter_mut().zip(model.links()) {
-                *law = LinkLaw::with_water(model, link, &water);
-            }
-        } else {
+        if self.laws.len() != model.links().len() {
             // In the room reserved when the solver was made: no second array at any time.
             self.laws.clear();
-            self.laws.extend(model.links().iter().map(|l| LinkLaw::with_water(model, l, &water)));
+            self.laws.resize(model.links().len(), LinkLaw::STOPPED);
+        }
+        let law_of = |(law, link): (&mut LinkLaw, &Link)| *law = LinkLaw::with_water(model, link, &water);
+        if model.links().len() >= PARALLEL_LAWS {
+            use rayon::prelude::*;
+            self.laws.par_iter_mut().zip(model.links().par_iter()).for_each(law_of);
+        } else {
+            self.laws.iter_mut().zip(model.links()).for_each(law_of);
         }
         for (hot, c) in self.hot.iter_mut().zip(&self.pattern.core) {
             let law = &self.laws[c.link as usize];

@@ -223,78 +223,84 @@ impl Pattern {
             let pos = rows.binary_search(&(r as u32)).unwrap_or_else(|p| p);
             col_ptr[c] + pos as u32
         };
-        let diag_slot: Vec<u32> = (0..n).map(|j| slot(j, j)).collect();
-        let unknown_of_node: Vec<u32> = original.iter().map(|&u| permute(u)).collect();
-        let mut node_of_unknown = vec![0u32; n];
-        for (node, &u) in unknown_of_node.iter().enumerate() {
-            if u != NONE {
-                node_of_unknown[u as usize] = node as u32;
-            }
-        }
-        let links: Vec<LinkSlots> = model
-            .links()
-            .iter()
-            .zip(&is_tree_link)
-            .map(|(l, &tree)| {
-                if tree {
-                    return LinkSlots { from: NONE, to: NONE, off: NONE };
+        // The symbolic factorization and the scatter map both need only the structure: on two
+        // threads at once (a tenth of a first solve of a large network).
+        let scatter = || {
+            let diag_slot: Vec<u32> = (0..n).map(|j| slot(j, j)).collect();
+            let unknown_of_node: Vec<u32> = original.iter().map(|&u| permute(u)).collect();
+            let mut node_of_unknown = vec![0u32; n];
+            for (node, &u) in unknown_of_node.iter().enumerate() {
+                if u != NONE {
+                    node_of_unknown[u as usize] = node as u32;
                 }
-                let (a, b) = (unknown_of_node[l.from], unknown_of_node[l.to]);
-                let off = if a != NONE && b != NONE {
-                    let (r, c) = (a.min(b) as usize, a.max(b) as usize);
-                    slot(r, c)
-                } else {
-                    NONE
-                };
-                LinkSlots { from: a, to: b, off }
-            })
-            .collect();
-
-        let mut core: Vec<CoreLink> = Vec::with_capacity(is_tree_link.iter().filter(|t| !**t).count());
-        core.extend(model.links().iter().enumerate().filter(|&(k, _)| !is_tree_link[k]).map(|(k, l)| {
-            let s = links[k];
-            let diag = |u: u32| if u == NONE { NONE } else { diag_slot[u as usize] };
-            CoreLink {
-                link: k as u32,
-                from: l.from as u32,
-                to: l.to as u32,
-                slots: s,
-                diag_from: diag(s.from),
-                diag_to: diag(s.to),
             }
-        }));
-        // Column order: consecutive links write to nearby matrix entries and read nearby unknowns.
-        let column = |c: &CoreLink| match (c.slots.from, c.slots.to) {
-            (NONE, NONE) => 0,
-            (NONE, u) | (u, NONE) => u,
-            (a, b) => a.max(b),
+            let links: Vec<LinkSlots> = model
+                .links()
+                .iter()
+                .zip(&is_tree_link)
+                .map(|(l, &tree)| {
+                    if tree {
+                        return LinkSlots { from: NONE, to: NONE, off: NONE };
+                    }
+                    let (a, b) = (unknown_of_node[l.from], unknown_of_node[l.to]);
+                    let off = if a != NONE && b != NONE {
+                        let (r, c) = (a.min(b) as usize, a.max(b) as usize);
+                        slot(r, c)
+                    } else {
+                        NONE
+                    };
+                    LinkSlots { from: a, to: b, off }
+                })
+                .collect();
+
+            let mut core: Vec<CoreLink> = Vec::with_capacity(is_tree_link.iter().filter(|t| !**t).count());
+            core.extend(model.links().iter().enumerate().filter(|&(k, _)| !is_tree_link[k]).map(|(k, l)| {
+                let s = links[k];
+                let diag = |u: u32| if u == NONE { NONE } else { diag_slot[u as usize] };
+                CoreLink {
+                    link: k as u32,
+                    from: l.from as u32,
+                    to: l.to as u32,
+                    slots: s,
+                    diag_from: diag(s.from),
+                    diag_to: diag(s.to),
+                }
+            }));
+            // Column order: consecutive links write to nearby matrix entries and read nearby unknowns.
+            let column = |c: &CoreLink| match (c.slots.from, c.slots.to) {
+                (NONE, NONE) => 0,
+                (NONE, u) | (u, NONE) => u,
+                (a, b) => a.max(b),
+            };
+            // A counting sort by column, stable, so links stay in index order within a column (the
+            // same order as sorting by (column, link), in linear time).
+            if let Some(&first) = core.first() {
+                // Column 0 also takes the links between two fixed heads (there may be no unknowns).
+                let columns = n.max(1);
+                let mut start = vec![0u32; columns + 1];
+                for c in &core {
+                    start[column(c) as usize + 1] += 1;
+                }
+                for j in 0..columns {
+                    start[j + 1] += start[j];
+                }
+                let mut sorted = vec![first; core.len()];
+                for c in &core {
+                    let at = &mut start[column(c) as usize];
+                    sorted[*at as usize] = *c;
+                    *at += 1;
+                }
+                core = sorted;
+            }
+            let mut core_position = vec![NONE; model.links().len()];
+            for (i, c) in core.iter().enumerate() {
+                core_position[c.link as usize] = i as u32;
+            }
+            (diag_slot, unknown_of_node, node_of_unknown, core, core_position)
         };
-        // A counting sort by column, stable, so links stay in index order within a column (the
-        // same order as sorting by (column, link), in linear time).
-        if let Some(&first) = core.first() {
-            // Column 0 also takes the links between two fixed heads (there may be no unknowns).
-            let columns = n.max(1);
-            let mut start = vec![0u32; columns + 1];
-            for c in &core {
-                start[column(c) as usize + 1] += 1;
-            }
-            for j in 0..columns {
-                start[j + 1] += start[j];
-            }
-            let mut sorted = vec![first; core.len()];
-            for c in &core {
-                let at = &mut start[column(c) as usize];
-                sorted[*at as usize] = *c;
-                *at += 1;
-            }
-            core = sorted;
-        }
-        let mut core_position = vec![NONE; model.links().len()];
-        for (i, c) in core.iter().enumerate() {
-            core_position[c.link as usize] = i as u32;
-        }
-
-        let symbolic = symbolic_factor(n, &col_ptr, &row_idx)?;
+        let (symbolic, (diag_slot, unknown_of_node, node_of_unknown, core, core_position)) =
+            rayon::join(|| symbolic_factor(n, &col_ptr, &row_idx), scatter);
+        let symbolic = symbolic?;
         let ends = model.links().iter().map(|l| (l.from as u32, l.to as u32)).collect();
         Some(Pattern {
             n,
