@@ -365,9 +365,15 @@ pub unsafe extern "C" fn ringmain_model_save(model: *const ringmain_model, path:
         let format = Format::from_path(Path::new(path)).ok_or_else(|| {
             Failure::invalid(format!("{path}: the file name must end in .toml or .json to choose the format"))
         })?;
-        let text = model_text(&m.model, format)?;
-        std::fs::write(path, text)
-            .map_err(|e| Failure::new(ringmain_status::RINGMAIN_IO, format!("{path}: cannot write the file: {e}")))?;
+        let io_error = |e: std::io::Error| Failure::new(ringmain_status::RINGMAIN_IO, format!("{path}: cannot write the file: {e}"));
+        match format {
+            // Streamed element by element: a large model is never held as one text.
+            Format::Json => {
+                let file = std::fs::File::create(path).map_err(io_error)?;
+                ringmain_core::model::write::write_json(&m.model, std::io::BufWriter::new(file)).map_err(io_error)?;
+            }
+            Format::Toml => std::fs::write(path, model_text(&m.model, format)?).map_err(io_error)?,
+        }
         Ok(())
     }
 }
