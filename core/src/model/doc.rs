@@ -14,46 +14,12 @@ pub const MAX_DEPTH: usize = 32;
 /// A key of a table. The keys that every node and link repeats are not copied for each one.
 pub type Key = std::borrow::Cow<'static, str>;
 
-/// The keys of node and link entries (a large model has millions of them).
-pub(crate) const ELEMENT_KEYS: &[&str] = &[
-    "id",
-    "kind",
-    "from",
-    "to",
-    "elevation",
-    "demand",
-    "x",
-    "y",
-    "length",
-    "diameter",
-    "roughness",
-    "minor_loss",
-    "check_valve",
-    "status",
-    "zone",
-    "pattern",
-    "demands",
-    "head",
-    "head_pattern",
-    "level",
-    "min_level",
-    "max_level",
-    "volume_curve",
-    "head_curve",
-    "power",
-    "efficiency_curve",
-    "efficiency",
-    "speed",
-    "speed_pattern",
-    "valve",
-    "setting",
-    "setting_pattern",
-];
-
 fn key(text: &str) -> Key {
-    match ELEMENT_KEYS.iter().find(|k| k.len() == text.len() && **k == text) {
-        Some(k) => Key::Borrowed(k),
-        None => Key::Owned(text.to_owned()),
+    // The keys of node and link entries (a large model has millions of them) are shared.
+    let shared = super::file::element_keys();
+    match shared.binary_search(&text) {
+        Ok(i) => Key::Borrowed(shared[i]),
+        Err(_) => Key::Owned(text.to_owned()),
     }
 }
 

@@ -161,13 +161,13 @@ impl<'de> serde::de::Visitor<'de> for OnePass {
         let mut seen: Vec<String> = Vec::new();
         let mut model: Option<Model> = None;
         let mut controls: Option<Value> = None;
-        let mut links_read = false;
         while let Some(key) = map.next_key::<String>()? {
             if seen.contains(&key) {
                 return Err(A::Error::custom("duplicate key"));
             }
             match key.as_str() {
-                "nodes" if !links_read => {
+                // (`links` needs the nodes read; a second `nodes` is a duplicate key.)
+                "nodes" => {
                     let mut top = Fields::new(None, std::mem::take(&mut entries));
                     let settings = Settings::take(&mut top).map_err(give_up)?;
                     top.finish(TOP_KEYS).map_err(give_up)?;
@@ -178,7 +178,6 @@ impl<'de> serde::de::Visitor<'de> for OnePass {
                 "links" => {
                     let Some(m) = model.as_mut() else { return Err(A::Error::custom("links before nodes")) };
                     map.next_value_seed(Elements { model: m, nodes: false })?;
-                    links_read = true;
                 }
                 "controls" => controls = Some(map.next_value_seed(doc::Seed { depth: 1 })?),
                 _ if model.is_some() => return Err(A::Error::custom("a setting after the nodes")),
@@ -656,6 +655,18 @@ fn read_hydraulics(value: Value, units: &UnitSystem) -> Result<HydraulicOptions,
 
 fn keys_for(table: &[(&str, &'static [&'static str])], kind: &str) -> Option<&'static [&'static str]> {
     table.iter().find(|(k, _)| *k == kind).map(|(_, keys)| *keys)
+}
+
+/// Every key of node and link entries, sorted: the keys [`doc`] shares instead of copying.
+pub(super) fn element_keys() -> &'static [&'static str] {
+    static KEYS: OnceLock<Vec<&'static str>> = OnceLock::new();
+    KEYS.get_or_init(|| {
+        let mut keys = all_keys(NODE_KEYS);
+        keys.extend(all_keys(LINK_KEYS));
+        keys.sort_unstable();
+        keys.dedup();
+        keys
+    })
 }
 
 fn all_keys(table: &[(&str, &'static [&'static str])]) -> Vec<&'static str> {
@@ -1277,11 +1288,17 @@ mod tests {
 
     #[test]
     fn every_element_key_is_shared_not_copied() {
+        let parsed_key = |text: &str| match doc::parse_json(text).unwrap() {
+            Value::Table(mut entries) => entries.remove(0).0,
+            other => panic!("{other:?}"),
+        };
         for (_, keys) in NODE_KEYS.iter().chain(LINK_KEYS) {
             for key in *keys {
-                assert!(doc::ELEMENT_KEYS.contains(key), "{key} is missing from doc::ELEMENT_KEYS");
+                let parsed = parsed_key(&format!("{{\"{key}\": 1}}"));
+                assert!(matches!(parsed, Key::Borrowed(k) if k == *key), "{key} was copied: {parsed:?}");
             }
         }
+        assert!(matches!(parsed_key("{\"lenght\": 1}"), Key::Owned(k) if k == "lenght"));
     }
 
     #[test]
@@ -1298,5 +1315,11 @@ mod tests {
         assert!(read_json_stream(broken.as_bytes()).is_none());
         let e = read_str(&broken, Format::Json, "broken.json").unwrap_err();
         assert!(e.to_string().contains("lenght"), "{e}");
+        // Keys in alphabetical order (links before nodes, units last): one pass gives up, and the
+        // whole-text reader builds the same model.
+        let sorted = serde_json::to_string(&serde_json::from_str::<serde_json::Value>(&text).unwrap()).unwrap();
+        assert!(sorted.find("\"links\"") < sorted.find("\"nodes\""));
+        assert!(read_json_stream(sorted.as_bytes()).is_none());
+        assert_eq!(read_str(&sorted, Format::Json, "sorted.json").unwrap(), streamed);
     }
 }

@@ -541,45 +541,44 @@ impl Model {
 
     /// Checks one node's values (used when adding and after changes).
     fn check_node(node: &Node) -> Result<(), ModelError> {
-        let el = node;
-        check_id(&node.id, el)?;
+        check_id(&node.id, node)?;
         if let NodeKind::Reservoir { head } = &node.kind {
             // Checked first: a reservoir's elevation defaults to its head.
-            check_value(el, "head", *head, Rule::Finite)?;
+            check_value(node, "head", *head, Rule::Finite)?;
         }
-        check_value(el, "elevation", node.elevation, Rule::Finite)?;
+        check_value(node, "elevation", node.elevation, Rule::Finite)?;
         if let Some((x, y)) = node.coordinates {
-            check_value(el, "x", x, Rule::Finite)?;
-            check_value(el, "y", y, Rule::Finite)?;
+            check_value(node, "x", x, Rule::Finite)?;
+            check_value(node, "y", y, Rule::Finite)?;
         }
         match &node.kind {
             NodeKind::Junction { demand } => {
-                check_value(el, "demand", *demand, Rule::Finite)?;
+                check_value(node, "demand", *demand, Rule::Finite)?;
             }
             NodeKind::Reservoir { head } => {
-                check_value(el, "head", *head, Rule::Finite)?;
+                check_value(node, "head", *head, Rule::Finite)?;
             }
             NodeKind::Tank(t) => {
-                check_value(el, "level", t.level, Rule::NonNegative)?;
-                check_value(el, "min_level", t.min_level, Rule::NonNegative)?;
+                check_value(node, "level", t.level, Rule::NonNegative)?;
+                check_value(node, "min_level", t.min_level, Rule::NonNegative)?;
                 if let Some(d) = t.diameter {
-                    check_value(el, "diameter", d, Rule::Positive)?;
+                    check_value(node, "diameter", d, Rule::Positive)?;
                 }
                 if t.level < t.min_level {
                     return Err(ModelError::at(
-                        Some(el.element()),
+                        Some(node.element()),
                         Some("level"),
                         format!("is below min_level ({} < {} m)", t.level, t.min_level),
                     ));
                 }
                 if let Some(max) = t.max_level {
-                    check_value(el, "max_level", max, Rule::Positive)?;
+                    check_value(node, "max_level", max, Rule::Positive)?;
                     if max < t.min_level {
-                        return Err(ModelError::at(Some(el.element()), Some("max_level"), "is below min_level"));
+                        return Err(ModelError::at(Some(node.element()), Some("max_level"), "is below min_level"));
                     }
                     if t.level > max {
                         return Err(ModelError::at(
-                            Some(el.element()),
+                            Some(node.element()),
                             Some("level"),
                             format!("is above max_level ({} > {} m)", t.level, max),
                         ));
@@ -591,35 +590,38 @@ impl Model {
     }
 
     fn check_link(&self, link: &Link) -> Result<(), ModelError> {
-        let el = link;
-        check_id(&link.id, el)?;
+        check_id(&link.id, link)?;
         if link.from >= self.nodes.len() || link.to >= self.nodes.len() {
-            return Err(ModelError::at(Some(el.element()), Some("from"), "refers to a node index that does not exist"));
+            return Err(ModelError::at(
+                Some(link.element()),
+                Some("from"),
+                "refers to a node index that does not exist",
+            ));
         }
         if link.from == link.to {
             return Err(ModelError::at(
-                Some(el.element()),
+                Some(link.element()),
                 Some("to"),
                 format!("links node '{}' to itself; a link must join two different nodes", self.nodes[link.to].id),
             ));
         }
         match &link.kind {
             LinkKind::Pipe(p) => {
-                check_value(el, "length", p.length, Rule::Positive)?;
-                check_value(el, "diameter", p.diameter, Rule::Positive)?;
+                check_value(link, "length", p.length, Rule::Positive)?;
+                check_value(link, "diameter", p.diameter, Rule::Positive)?;
                 let hint = match self.options.headloss {
                     HeadLossLaw::HazenWilliams => "",
                     HeadLossLaw::DarcyWeisbach => {
                         " (for a hydraulically smooth pipe give a small absolute roughness, e.g. 0.0015 mm)"
                     }
                 };
-                check_value(el, "roughness", p.roughness, Rule::Positive).map_err(|mut e| {
+                check_value(link, "roughness", p.roughness, Rule::Positive).map_err(|mut e| {
                     e.message.push_str(hint);
                     e
                 })?;
                 if self.options.headloss == HeadLossLaw::HazenWilliams && p.roughness < 1.0 {
                     return Err(ModelError::at(
-                        Some(el.element()),
+                        Some(link.element()),
                         Some("roughness"),
                         format!(
                             "{} is an absolute roughness, but this model uses Hazen-Williams, whose roughness is the \
@@ -628,27 +630,27 @@ impl Model {
                         ),
                     ));
                 }
-                check_value(el, "minor_loss", p.minor_loss, Rule::NonNegative)?;
+                check_value(link, "minor_loss", p.minor_loss, Rule::NonNegative)?;
             }
             LinkKind::Pump(p) => {
-                check_value(el, "speed", p.speed, Rule::NonNegative)?;
+                check_value(link, "speed", p.speed, Rule::NonNegative)?;
                 match &p.drive {
                     PumpDrive::Power(w) => {
-                        check_value(el, "power", *w, Rule::Positive)?;
+                        check_value(link, "power", *w, Rule::Positive)?;
                     }
                     PumpDrive::Curve { points, .. } => {
                         HeadCurve::fit(points)
-                            .map_err(|e| ModelError::at(Some(el.element()), Some("head_curve"), e.0))?;
+                            .map_err(|e| ModelError::at(Some(link.element()), Some("head_curve"), e.0))?;
                     }
                 }
                 if let Some(points) = &p.efficiency_points {
                     Efficiency::fit(points)
-                        .map_err(|e| ModelError::at(Some(el.element()), Some("efficiency_curve"), e.0))?;
+                        .map_err(|e| ModelError::at(Some(link.element()), Some("efficiency_curve"), e.0))?;
                 }
                 if let Efficiency::Constant(e) = p.efficiency {
                     if !(e > 0.0 && e <= 1.0) {
                         return Err(ModelError::at(
-                            Some(el.element()),
+                            Some(link.element()),
                             Some("efficiency"),
                             "must be above 0 and at most 100 percent",
                         ));
@@ -656,13 +658,13 @@ impl Model {
                 }
             }
             LinkKind::Valve(v) => {
-                check_value(el, "diameter", v.diameter, Rule::Positive)?;
-                check_value(el, "minor_loss", v.minor_loss, Rule::NonNegative)?;
+                check_value(link, "diameter", v.diameter, Rule::Positive)?;
+                check_value(link, "minor_loss", v.minor_loss, Rule::NonNegative)?;
                 let rule = match v.valve {
                     ValveType::PressureReducing | ValveType::PressureSustaining => Rule::Finite,
                     ValveType::FlowControl | ValveType::Throttle => Rule::NonNegative,
                 };
-                check_value(el, "setting", v.setting, rule)?;
+                check_value(link, "setting", v.setting, rule)?;
             }
         }
         Ok(())

@@ -65,6 +65,18 @@ pub struct CoreLink {
     pub diag_to: u32,
 }
 
+impl CoreLink {
+    /// The matrix column the link writes to: that of its later unknown (0 for a link between two
+    /// fixed heads).
+    pub fn column(&self) -> u32 {
+        match (self.slots.from, self.slots.to) {
+            (NONE, NONE) => 0,
+            (NONE, u) | (u, NONE) => u,
+            (a, b) => a.max(b),
+        }
+    }
+}
+
 /// The analysed structure of a network's head matrix.
 #[derive(Debug)]
 pub struct Pattern {
@@ -196,8 +208,9 @@ impl Pattern {
         for &(_, c) in &permuted {
             counts[c] += 1;
         }
-        // 32-bit indices (half the memory of the factor's structure); `fits_u32` checked the
-        // sizes before the analysis started.
+        // 32-bit indices (half the memory of the factor's structure): the check above bounds the
+        // matrix's entries (at most one per node and link), the symbolic factorization the
+        // factor's.
         let mut col_ptr = vec![0u32; n + 1];
         for j in 0..n {
             col_ptr[j + 1] = col_ptr[j] + counts[j] as u32;
@@ -267,11 +280,7 @@ impl Pattern {
                 }
             }));
             // Column order: consecutive links write to nearby matrix entries and read nearby unknowns.
-            let column = |c: &CoreLink| match (c.slots.from, c.slots.to) {
-                (NONE, NONE) => 0,
-                (NONE, u) | (u, NONE) => u,
-                (a, b) => a.max(b),
-            };
+            let column = |c: &CoreLink| c.column() as usize;
             // A counting sort by column, stable, so links stay in index order within a column (the
             // same order as sorting by (column, link), in linear time).
             if let Some(&first) = core.first() {
@@ -279,14 +288,14 @@ impl Pattern {
                 let columns = n.max(1);
                 let mut start = vec![0u32; columns + 1];
                 for c in &core {
-                    start[column(c) as usize + 1] += 1;
+                    start[column(c) + 1] += 1;
                 }
                 for j in 0..columns {
                     start[j + 1] += start[j];
                 }
                 let mut sorted = vec![first; core.len()];
                 for c in &core {
-                    let at = &mut start[column(c) as usize];
+                    let at = &mut start[column(c)];
                     sorted[*at as usize] = *c;
                     *at += 1;
                 }
@@ -468,12 +477,7 @@ mod tests {
     fn core_links_are_in_column_order_then_link_order() {
         let m = network();
         let p = Pattern::analyse(&m).unwrap();
-        let column = |c: &CoreLink| match (c.slots.from, c.slots.to) {
-            (NONE, NONE) => 0,
-            (NONE, u) | (u, NONE) => u,
-            (a, b) => a.max(b),
-        };
-        let keys: Vec<(u32, u32)> = p.core.iter().map(|c| (column(c), c.link)).collect();
+        let keys: Vec<(u32, u32)> = p.core.iter().map(|c| (c.column(), c.link)).collect();
         assert!(keys.windows(2).all(|w| w[0] < w[1]), "{keys:?}");
         for (i, c) in p.core.iter().enumerate() {
             assert_eq!(p.core_position[c.link as usize], i as u32);
