@@ -86,8 +86,8 @@ enum Command {
     /// Criteria come from the model's [criteria] table and from --criteria FILE (whose keys
     /// override the model's). Reports worst offenders first; see docs/check.md.
     #[command(after_help = "Exit codes: 0 all criteria met; 1 a criterion failed; 2 invalid model, criteria file or \
-                            arguments; 3 a scenario did not solve: the solver did not converge, or the demand cannot \
-                            be delivered (the report names the junctions and pumps); 4 a report could not be \
+                            arguments; 3 a scenario did not solve: the solver did not converge, devices kept switching, \
+                            or the demand cannot be delivered (the report names the junctions and pumps); 4 a report could not be \
                             written.")]
     Check {
         /// The model file (.toml or .json).
@@ -111,7 +111,7 @@ enum Command {
         #[arg(long, value_name = "PATH")]
         junit: Option<PathBuf>,
         /// How many of the worst offenders to list per criterion and scenario.
-        #[arg(long, value_name = "N", default_value_t = 10)]
+        #[arg(long, value_name = "N", default_value_t = ringmain_core::analysis::CheckOptions::KEEP)]
         offenders: usize,
     },
     /// Print the density and viscosity of water at a temperature (IAPWS formulations).
@@ -342,10 +342,7 @@ fn generate(junctions: usize, seed: u64, output: &Path) -> ExitCode {
             return ExitCode::from(EXIT_INVALID);
         }
     };
-    let code = write_with("the model", Some(output), |out| match format {
-        ringmain_core::Format::Json => ringmain_core::model::write::write_json(&model, out),
-        ringmain_core::Format::Toml => out.write_all(ringmain_core::model::write::to_string(&model, format).as_bytes()),
-    });
+    let code = write_with("the model", Some(output), |out| ringmain_core::model::write::write_to(&model, format, out));
     // As in `solve`: the process ends here, the operating system takes the memory back at once.
     std::mem::forget(model);
     code

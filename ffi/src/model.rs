@@ -366,14 +366,8 @@ pub unsafe extern "C" fn ringmain_model_save(model: *const ringmain_model, path:
             Failure::invalid(format!("{path}: the file name must end in .toml or .json to choose the format"))
         })?;
         let io_error = |e: std::io::Error| Failure::new(ringmain_status::RINGMAIN_IO, format!("{path}: cannot write the file: {e}"));
-        match format {
-            // Streamed element by element: a large model is never held as one text.
-            Format::Json => {
-                let file = std::fs::File::create(path).map_err(io_error)?;
-                ringmain_core::model::write::write_json(&m.model, std::io::BufWriter::new(file)).map_err(io_error)?;
-            }
-            Format::Toml => std::fs::write(path, model_text(&m.model, format)?).map_err(io_error)?,
-        }
+        let file = std::fs::File::create(path).map_err(io_error)?;
+        ringmain_core::model::write::write_to(&m.model, format, file).map_err(io_error)?;
         Ok(())
     }
 }

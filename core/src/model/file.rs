@@ -305,7 +305,7 @@ impl Settings {
         };
         let energy = top.take("electricity");
         let patterns = top.array("patterns")?;
-        // Checked by `analysis::Criteria::from_value`, which the commands that use it call.
+        // Checked by `analysis::Criteria::apply`, which the commands that use it call.
         let criteria = top.take("criteria");
         Ok(Settings { title, units, options, simulation, energy, patterns, criteria })
     }

@@ -418,7 +418,7 @@ pub struct Model {
     pub options: HydraulicOptions,
     /// What only a simulation over time uses (patterns, controls, tank shapes, energy).
     pub time: time::TimeData,
-    /// The `[criteria]` table as written, unchecked; [`crate::analysis::Criteria::from_value`]
+    /// The `[criteria]` table as written, unchecked; [`crate::analysis::Criteria::apply`]
     /// reads it (only the commands that check criteria need it to be valid).
     pub criteria: Option<doc::Value>,
     nodes: Vec<Node>,
