@@ -21,6 +21,13 @@ pub struct Finding {
     pub detail: Option<String>,
 }
 
+impl Finding {
+    /// A value of `element` beyond `limit` by `excess`.
+    fn over(element: Element, value: f64, limit: f64, excess: f64) -> Self {
+        Finding { element, value, limit, excess, detail: None }
+    }
+}
+
 /// The outcome of one criterion in one scenario.
 #[derive(Clone, Debug, PartialEq)]
 pub struct CheckResult {
@@ -125,7 +132,7 @@ fn check_pressure(c: &mut CheckResult, id: &str, p: f64, is_min: bool, keep: usi
     c.checked += 1;
     let excess = if is_min { c.limit - p } else { p - c.limit };
     if excess > 0.0 {
-        c.add(Finding { element: Element::Node(id.to_owned()), value: p, limit: c.limit, excess, detail: None }, keep);
+        c.add(Finding::over(Element::Node(id.to_owned()), p, c.limit, excess), keep);
     }
 }
 
@@ -165,16 +172,7 @@ pub fn evaluate(criteria: &Criteria, model: &Model, solution: &Solution, keep: u
             c.checked += 1;
             let v = solution.velocity[k].abs();
             if v > limit {
-                c.add(
-                    Finding {
-                        element: Element::Link(l.id.to_string()),
-                        value: v,
-                        limit,
-                        excess: v - limit,
-                        detail: None,
-                    },
-                    keep,
-                );
+                c.add(Finding::over(Element::Link(l.id.to_string()), v, limit, v - limit), keep);
             }
         }
         out.push(c);
@@ -189,16 +187,7 @@ pub fn evaluate(criteria: &Criteria, model: &Model, solution: &Solution, keep: u
             c.checked += 1;
             let g = solution.headloss[k] / p.length;
             if g > limit {
-                c.add(
-                    Finding {
-                        element: Element::Link(l.id.to_string()),
-                        value: g,
-                        limit,
-                        excess: g - limit,
-                        detail: None,
-                    },
-                    keep,
-                );
+                c.add(Finding::over(Element::Link(l.id.to_string()), g, limit, g - limit), keep);
             }
         }
         out.push(c);
@@ -210,14 +199,7 @@ pub fn evaluate(criteria: &Criteria, model: &Model, solution: &Solution, keep: u
             let allowed = criteria.min_supply_margin.map_or(capacity, |m| m.allowed_supply(capacity));
             let supply = solution.net_outflow(model, i);
             if supply > allowed {
-                let finding = Finding {
-                    element: Element::Node(nodes[i].id.to_string()),
-                    value: supply,
-                    limit: allowed,
-                    excess: supply - allowed,
-                    detail: None,
-                };
-                c.add(finding, keep);
+                c.add(Finding::over(Element::Node(nodes[i].id.to_string()), supply, allowed, supply - allowed), keep);
             }
         }
         out.push(c);
@@ -229,14 +211,7 @@ pub fn evaluate(criteria: &Criteria, model: &Model, solution: &Solution, keep: u
             c.checked += 1;
             let reserve = t.level - t.min_level;
             if reserve < limit {
-                let finding = Finding {
-                    element: Element::Node(n.id.to_string()),
-                    value: reserve,
-                    limit,
-                    excess: limit - reserve,
-                    detail: None,
-                };
-                c.add(finding, keep);
+                c.add(Finding::over(Element::Node(n.id.to_string()), reserve, limit, limit - reserve), keep);
             }
         }
         out.push(c);
