@@ -14,6 +14,7 @@
 pub mod doc;
 pub mod file;
 mod index;
+pub mod outflow;
 pub mod time;
 pub mod write;
 
@@ -421,6 +422,8 @@ pub struct Model {
     /// The `[criteria]` table as written, unchecked; [`crate::analysis::Criteria::apply`]
     /// reads it (only the commands that check criteria need it to be valid).
     pub criteria: Option<doc::Value>,
+    /// Outflows that follow pressure: pressure-dependent demand, outlets, leakage.
+    pub outflow: outflow::OutflowData,
     nodes: Vec<Node>,
     links: Vec<Link>,
     node_index: IdIndex,
@@ -430,12 +433,13 @@ pub struct Model {
 /// Two models are equal when their data are; the id indices follow from the elements.
 impl PartialEq for Model {
     fn eq(&self, other: &Self) -> bool {
-        let Model { title, units, options, time, criteria, nodes, links, node_index: _, link_index: _ } = self;
+        let Model { title, units, options, time, criteria, outflow, nodes, links, node_index: _, link_index: _ } = self;
         *title == other.title
             && *units == other.units
             && *options == other.options
             && *time == other.time
             && *criteria == other.criteria
+            && *outflow == other.outflow
             && *nodes == other.nodes
             && *links == other.links
     }
@@ -803,6 +807,6 @@ impl Model {
                 ));
             }
         }
-        Ok(())
+        self.outflow.check(self)
     }
 }

@@ -268,6 +268,27 @@ impl Serialize for ModelFile<'_> {
                 flow_tolerance: o.flow_tolerance,
             },
         )?;
+        let density = c.density;
+        if let Some(pd) = &m.outflow.pressure_demand {
+            top.serialize_entry(
+                "pressure_demand",
+                &PressureDemandTable {
+                    full_pressure: c.pressure(pd.full_pressure),
+                    zero_pressure: c.pressure(pd.zero_pressure),
+                    exponent: pd.exponent,
+                },
+            )?;
+        }
+        if let Some(l) = &m.outflow.leakage {
+            top.serialize_entry(
+                "background_leakage",
+                &LeakageTable {
+                    rate: leakage_rate_from_si(c, l.rate),
+                    reference_pressure: m.units.pressure.from_head(l.reference_pressure, density),
+                    exponent: l.exponent,
+                },
+            )?;
+        }
         if let Some(sim) = &time.simulation {
             top.serialize_entry(
                 "simulation",
@@ -322,6 +343,31 @@ struct Hydraulics {
     max_iterations: u32,
     head_tolerance: f64,
     flow_tolerance: f64,
+}
+
+#[derive(Serialize)]
+struct PressureDemandTable {
+    full_pressure: f64,
+    zero_pressure: f64,
+    exponent: f64,
+}
+
+#[derive(Serialize)]
+struct LeakageTable {
+    rate: f64,
+    reference_pressure: f64,
+    exponent: f64,
+}
+
+/// A leakage rate (m³/s per m) in flow units per km (per 1000 ft where lengths are in ft).
+fn leakage_rate_from_si(c: Ctx<'_>, rate: f64) -> f64 {
+    c.flow(rate * c.model.units.length.to_si(1000.0))
+}
+
+#[derive(Serialize)]
+struct OutletEntry {
+    coefficient: f64,
+    exponent: f64,
 }
 
 #[derive(Serialize)]
@@ -385,6 +431,14 @@ struct NodeEntry<'a> {
     #[serde(skip_serializing_if = "Option::is_none")]
     demands: Option<Demands<'a>>,
     #[serde(skip_serializing_if = "Option::is_none")]
+    full_pressure: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    zero_pressure: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    exponent: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    outlet: Option<OutletEntry>,
+    #[serde(skip_serializing_if = "Option::is_none")]
     level: Option<f64>,
     #[serde(skip_serializing_if = "Option::is_none")]
     min_level: Option<f64>,
@@ -416,6 +470,15 @@ fn node_entry(c: Ctx<'_>, i: usize) -> NodeEntry<'_> {
         zone: n.zone.as_deref(),
         ..NodeEntry::default()
     };
+    if let Some(j) = c.model.outflow.junctions.get(&i) {
+        e.full_pressure = j.full_pressure.map(|p| c.pressure(p));
+        e.zero_pressure = j.zero_pressure.map(|p| c.pressure(p));
+        e.exponent = j.exponent;
+        e.outlet = j.outlet.map(|o| OutletEntry {
+            coefficient: c.flow(o.coefficient) / c.model.units.pressure.from_head(1.0, c.density).powf(o.exponent),
+            exponent: o.exponent,
+        });
+    }
     match &n.kind {
         NodeKind::Junction { demand } => match time.demands.get(&i).map(Vec::as_slice) {
             Some([one]) => {
@@ -513,6 +576,8 @@ struct LinkEntry<'a> {
     status: Option<&'static str>,
     #[serde(skip_serializing_if = "Option::is_none")]
     check_valve: Option<bool>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    leakage_rate: Option<f64>,
 }
 
 fn link_entry(c: Ctx<'_>, k: usize) -> LinkEntry<'_> {
@@ -538,6 +603,7 @@ fn link_entry(c: Ctx<'_>, k: usize) -> LinkEntry<'_> {
             });
             e.minor_loss = Some(p.minor_loss);
             e.check_valve = Some(p.check_valve);
+            e.leakage_rate = m.outflow.leakage_rates.get(&k).map(|&r| leakage_rate_from_si(c, r));
         }
         LinkKind::Pump(p) => {
             match &p.drive {
