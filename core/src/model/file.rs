@@ -8,7 +8,7 @@
 use super::doc::{self, Key, Value};
 use super::time::{self as tm, Action, Condition, Control, Demand, Energy, SimulationSettings, TimeData, TimePattern};
 use super::{
-    HeadLossLaw, HydraulicOptions, Link, LinkKind, LinkStatus, Model, Node, NodeKind, Pipe, Pump, PumpDrive, Tank,
+    HeadLossLaw, HydraulicOptions, Link, MapCoordinates, LinkKind, LinkStatus, Model, Node, NodeKind, Pipe, Pump, PumpDrive, Tank,
     Valve, ValveType, WaterSpec,
 };
 use crate::error::{Element, ModelError};
@@ -75,6 +75,7 @@ const TOP_KEYS: &[&str] = &[
     "criteria",
     "simulation",
     "electricity",
+    "map",
     "patterns",
     "nodes",
     "links",
@@ -87,6 +88,7 @@ const DEMAND_KEYS: &[&str] = &["base", "pattern"];
 const CONTROL_KEYS: &[&str] = &["id", "link", "status", "speed", "setting", "when", "priority"];
 const CONDITION_KEYS: &[&str] =
     &["tank", "level_above", "level_below", "node", "pressure_above", "pressure_below", "clock", "after", "all", "any"];
+const MAP_KEYS: &[&str] = &["coordinates"];
 const UNIT_KEYS: &[&str] = &["length", "diameter", "flow", "pressure", "roughness"];
 const HYDRAULIC_KEYS: &[&str] =
     &["headloss", "kinematic_viscosity", "water_temperature", "max_iterations", "head_tolerance", "flow_tolerance"];
@@ -99,7 +101,10 @@ const NODE_KEYS: &[(&str, &[&str])] = &[
     ),
 ];
 const LINK_KEYS: &[(&str, &[&str])] = &[
-    ("pipe", &["id", "kind", "from", "to", "length", "diameter", "roughness", "minor_loss", "status", "check_valve"]),
+    (
+        "pipe",
+        &["id", "kind", "from", "to", "length", "diameter", "roughness", "minor_loss", "status", "check_valve", "path"],
+    ),
     (
         "pump",
         &[
@@ -114,9 +119,13 @@ const LINK_KEYS: &[(&str, &[&str])] = &[
             "speed",
             "speed_pattern",
             "status",
+            "path",
         ],
     ),
-    ("valve", &["id", "kind", "valve", "from", "to", "diameter", "setting", "setting_pattern", "minor_loss", "status"]),
+    (
+        "valve",
+        &["id", "kind", "valve", "from", "to", "diameter", "setting", "setting_pattern", "minor_loss", "status", "path"],
+    ),
 ];
 
 /// Reads a JSON model in one pass from `reader`, without holding the text: each node and link
@@ -286,6 +295,7 @@ struct Settings {
     energy: Option<Value>,
     patterns: Vec<Value>,
     criteria: Option<Value>,
+    map: MapCoordinates,
 }
 
 impl Settings {
@@ -304,10 +314,14 @@ impl Settings {
             None => None,
         };
         let energy = top.take("electricity");
+        let map = match top.take("map") {
+            Some(v) => read_map(v)?,
+            None => MapCoordinates::default(),
+        };
         let patterns = top.array("patterns")?;
         // Checked by `analysis::Criteria::apply`, which the commands that use it call.
         let criteria = top.take("criteria");
-        Ok(Settings { title, units, options, simulation, energy, patterns, criteria })
+        Ok(Settings { title, units, options, simulation, energy, patterns, criteria, map })
     }
 
     /// The model with these settings and its patterns, before any element.
@@ -323,6 +337,7 @@ impl Settings {
             model.time.energy = read_energy(v, &model.time)?;
         }
         model.criteria = self.criteria;
+        model.map.coordinates = self.map;
         Ok(model)
     }
 }
@@ -339,7 +354,10 @@ fn add_node_value(model: &mut Model, i: usize, value: Value) -> Result<(), Model
 /// Reads the `i`-th entry of `links` into the model.
 fn add_link_value(model: &mut Model, i: usize, value: Value) -> Result<(), ModelError> {
     let index = model.links().len();
-    let (link, pattern) = read_link(i, value, model)?;
+    let (link, pattern, path) = read_link(i, value, model)?;
+    if let Some(path) = path {
+        model.map.paths.insert(index, path);
+    }
     if let Some(p) = pattern {
         match link.kind {
             LinkKind::Pump(_) => model.time.speed_patterns.insert(index, p),
@@ -563,7 +581,7 @@ fn labels<T: Copy>(all: &[T], label: fn(T) -> &'static str) -> Vec<&'static str>
     all.iter().map(|u| label(*u)).collect()
 }
 
-fn read_units(value: Value) -> Result<UnitSystem, ModelError> {
+pub(crate) fn read_units(value: Value) -> Result<UnitSystem, ModelError> {
     let mut f = Fields::from_value(Element::Table("units".into()), value)?;
     let d = UnitSystem::default();
     let units = UnitSystem {
@@ -583,7 +601,7 @@ fn read_units(value: Value) -> Result<UnitSystem, ModelError> {
     Ok(units)
 }
 
-fn read_hydraulics(value: Value, units: &UnitSystem) -> Result<HydraulicOptions, ModelError> {
+pub(crate) fn read_hydraulics(value: Value, units: &UnitSystem) -> Result<HydraulicOptions, ModelError> {
     let el = Element::Table("hydraulics".into());
     let mut f = Fields::from_value(el.clone(), value)?;
     let mut o = HydraulicOptions::default();
@@ -789,8 +807,28 @@ fn read_node(
     Ok(Node { id: id.into(), elevation, coordinates, zone, kind })
 }
 
-/// Reads a link; also returns the index of its speed or setting pattern, if it has one.
-fn read_link(index: usize, value: Value, model: &Model) -> Result<(Link, Option<usize>), ModelError> {
+/// Reads `[map]`: what the nodes' coordinates are.
+fn read_map(value: Value) -> Result<MapCoordinates, ModelError> {
+    let mut f = Fields::from_value(Element::Table("map".into()), value)?;
+    let coordinates = match f.string("coordinates")? {
+        None => MapCoordinates::default(),
+        Some(text) => MapCoordinates::parse(&text).ok_or_else(|| {
+            f.error(
+                "coordinates",
+                format!("unknown coordinates \"{}\"; expected \"lonlat\" or \"projected\"", crate::error::printable(&text)),
+            )
+        })?,
+    };
+    f.finish(MAP_KEYS)?;
+    Ok(coordinates)
+}
+
+/// A link read from a file: the link, the index of its speed or setting pattern, its `path`.
+type LinkRead = (Link, Option<usize>, Option<Vec<(f64, f64)>>);
+
+/// Reads a link; also returns the index of its speed or setting pattern, if it has one, and the
+/// interior vertices of its drawn alignment.
+fn read_link(index: usize, value: Value, model: &Model) -> Result<LinkRead, ModelError> {
     let (mut f, keys, kind) = identify(value, Element::LinkEntry(index), Element::Link, LINK_KEYS, "pipe")?;
     let end = |key: &str, f: &mut Fields| -> Result<usize, ModelError> {
         let id = f.string(key)?.ok_or_else(|| f.missing(key))?;
@@ -804,6 +842,7 @@ fn read_link(index: usize, value: Value, model: &Model) -> Result<(Link, Option<
     let from = end("from", &mut f)?;
     let to = end("to", &mut f)?;
     let status_text = f.string("status")?;
+    let path = pairs(&mut f, "path", "x, y")?;
     let pattern = match kind.as_str() {
         "pump" => f.pattern("speed_pattern", &model.time)?,
         "valve" => f.pattern("setting_pattern", &model.time)?,
@@ -822,7 +861,7 @@ fn read_link(index: usize, value: Value, model: &Model) -> Result<(Link, Option<
     let Some(Element::Link(id)) = f.element.clone() else { unreachable!("identify sets the element") };
     static ALL_LINK_KEYS: OnceLock<Vec<&'static str>> = OnceLock::new();
     f.finish_with(keys, ALL_LINK_KEYS.get_or_init(|| all_keys(LINK_KEYS)), kind.label())?;
-    Ok((Link { id: id.into(), from, to, status, kind }, pattern))
+    Ok((Link { id: id.into(), from, to, status, kind }, pattern, path))
 }
 
 /// Reads `status`: open | closed, and for valves also automatic (the default for valves).
