@@ -8,8 +8,8 @@
 use super::doc::{self, Key, Value};
 use super::time::{self as tm, Action, Condition, Control, Demand, Energy, SimulationSettings, TimeData, TimePattern};
 use super::{
-    HeadLossLaw, HydraulicOptions, Link, MapCoordinates, LinkKind, LinkStatus, Model, Node, NodeKind, Pipe, Pump, PumpDrive, Tank,
-    Valve, ValveType, WaterSpec,
+    HeadLossLaw, HydraulicOptions, Link, LinkKind, LinkStatus, MapCoordinates, Model, Node, NodeKind, Pipe, Pump,
+    PumpDrive, Tank, Valve, ValveType, WaterSpec,
 };
 use crate::error::{Element, ModelError};
 use crate::physics::pump::{Efficiency, HeadCurve};
@@ -124,7 +124,19 @@ const LINK_KEYS: &[(&str, &[&str])] = &[
     ),
     (
         "valve",
-        &["id", "kind", "valve", "from", "to", "diameter", "setting", "setting_pattern", "minor_loss", "status", "path"],
+        &[
+            "id",
+            "kind",
+            "valve",
+            "from",
+            "to",
+            "diameter",
+            "setting",
+            "setting_pattern",
+            "minor_loss",
+            "status",
+            "path",
+        ],
     ),
 ];
 
@@ -815,7 +827,10 @@ fn read_map(value: Value) -> Result<MapCoordinates, ModelError> {
         Some(text) => MapCoordinates::parse(&text).ok_or_else(|| {
             f.error(
                 "coordinates",
-                format!("unknown coordinates \"{}\"; expected \"lonlat\" or \"projected\"", crate::error::printable(&text)),
+                format!(
+                    "unknown coordinates \"{}\"; expected \"lonlat\" or \"projected\"",
+                    crate::error::printable(&text)
+                ),
             )
         })?,
     };

@@ -907,7 +907,11 @@ mod tests {
         // A path that is not a list of pairs names the link and the key.
         let bad = text.replace("path = [[7.4420, 46.9490], [7.4437, 46.9495]]", "path = [[7.4420]]");
         let e = read_str(&bad, Format::Toml, "t.toml").unwrap_err();
-        assert_eq!((e.element.clone(), e.key.as_deref()), (Some(crate::Element::Link("P".into())), Some("path")), "{e}");
+        assert_eq!(
+            (e.element.clone(), e.key.as_deref()),
+            (Some(crate::Element::Link("P".into())), Some("path")),
+            "{e}"
+        );
         let bad = text.replace("\"lonlat\"", "\"latlon\"");
         let e = read_str(&bad, Format::Toml, "t.toml").unwrap_err();
         assert_eq!(e.key.as_deref(), Some("coordinates"), "{e}");
