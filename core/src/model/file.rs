@@ -9,8 +9,8 @@ use super::doc::{self, Key, Value};
 use super::outflow::{JunctionOutflow, Leakage, Outlet, PressureDemand};
 use super::time::{self as tm, Action, Condition, Control, Demand, Energy, SimulationSettings, TimeData, TimePattern};
 use super::{
-    HeadLossLaw, HydraulicOptions, Link, LinkKind, LinkStatus, Model, Node, NodeKind, Pipe, Pump, PumpDrive, Tank,
-    Valve, ValveType, WaterSpec,
+    HeadLossLaw, HydraulicOptions, Link, LinkKind, LinkStatus, MapCoordinates, Model, Node, NodeKind, Pipe, Pump,
+    PumpDrive, Tank, Valve, ValveType, WaterSpec,
 };
 use crate::error::{Element, ModelError};
 use crate::physics::pump::{Efficiency, HeadCurve};
@@ -78,6 +78,7 @@ const TOP_KEYS: &[&str] = &[
     "background_leakage",
     "simulation",
     "electricity",
+    "map",
     "patterns",
     "nodes",
     "links",
@@ -93,6 +94,7 @@ const CONDITION_KEYS: &[&str] =
 const PRESSURE_DEMAND_KEYS: &[&str] = &["full_pressure", "zero_pressure", "exponent"];
 const LEAKAGE_KEYS: &[&str] = &["rate", "reference_pressure", "exponent"];
 const OUTLET_KEYS: &[&str] = &["coefficient", "exponent"];
+const MAP_KEYS: &[&str] = &["coordinates"];
 const UNIT_KEYS: &[&str] = &["length", "diameter", "flow", "pressure", "roughness"];
 const HYDRAULIC_KEYS: &[&str] =
     &["headloss", "kinematic_viscosity", "water_temperature", "max_iterations", "head_tolerance", "flow_tolerance"];
@@ -136,6 +138,7 @@ const LINK_KEYS: &[(&str, &[&str])] = &[
             "status",
             "check_valve",
             "leakage_rate",
+            "path",
         ],
     ),
     (
@@ -152,9 +155,25 @@ const LINK_KEYS: &[(&str, &[&str])] = &[
             "speed",
             "speed_pattern",
             "status",
+            "path",
         ],
     ),
-    ("valve", &["id", "kind", "valve", "from", "to", "diameter", "setting", "setting_pattern", "minor_loss", "status"]),
+    (
+        "valve",
+        &[
+            "id",
+            "kind",
+            "valve",
+            "from",
+            "to",
+            "diameter",
+            "setting",
+            "setting_pattern",
+            "minor_loss",
+            "status",
+            "path",
+        ],
+    ),
 ];
 
 /// Reads a JSON model in one pass from `reader`, without holding the text: each node and link
@@ -326,6 +345,7 @@ struct Settings {
     criteria: Option<Value>,
     pressure_demand: Option<PressureDemand>,
     leakage: Option<Leakage>,
+    map: MapCoordinates,
 }
 
 impl Settings {
@@ -352,10 +372,14 @@ impl Settings {
             None => None,
         };
         let energy = top.take("electricity");
+        let map = match top.take("map") {
+            Some(v) => read_map(v)?,
+            None => MapCoordinates::default(),
+        };
         let patterns = top.array("patterns")?;
         // Checked by `analysis::Criteria::apply`, which the commands that use it call.
         let criteria = top.take("criteria");
-        Ok(Settings { title, units, options, simulation, energy, patterns, criteria, pressure_demand, leakage })
+        Ok(Settings { title, units, options, simulation, energy, patterns, criteria, pressure_demand, leakage, map })
     }
 
     /// The model with these settings and its patterns, before any element.
@@ -373,6 +397,7 @@ impl Settings {
         model.criteria = self.criteria;
         model.outflow.pressure_demand = self.pressure_demand;
         model.outflow.leakage = self.leakage;
+        model.map.coordinates = self.map;
         Ok(model)
     }
 }
@@ -393,9 +418,12 @@ fn add_node_value(model: &mut Model, i: usize, value: Value) -> Result<(), Model
 /// Reads the `i`-th entry of `links` into the model.
 fn add_link_value(model: &mut Model, i: usize, value: Value) -> Result<(), ModelError> {
     let index = model.links().len();
-    let (link, pattern, leakage_rate) = read_link(i, value, model)?;
+    let (link, pattern, leakage_rate, path) = read_link(i, value, model)?;
     if let Some(rate) = leakage_rate {
         model.outflow.leakage_rates.insert(index, rate);
+    }
+    if let Some(path) = path {
+        model.map.paths.insert(index, path);
     }
     if let Some(p) = pattern {
         match link.kind {
@@ -620,7 +648,7 @@ fn labels<T: Copy>(all: &[T], label: fn(T) -> &'static str) -> Vec<&'static str>
     all.iter().map(|u| label(*u)).collect()
 }
 
-fn read_units(value: Value) -> Result<UnitSystem, ModelError> {
+pub(crate) fn read_units(value: Value) -> Result<UnitSystem, ModelError> {
     let mut f = Fields::from_value(Element::Table("units".into()), value)?;
     let d = UnitSystem::default();
     let units = UnitSystem {
@@ -640,7 +668,7 @@ fn read_units(value: Value) -> Result<UnitSystem, ModelError> {
     Ok(units)
 }
 
-fn read_hydraulics(value: Value, units: &UnitSystem) -> Result<HydraulicOptions, ModelError> {
+pub(crate) fn read_hydraulics(value: Value, units: &UnitSystem) -> Result<HydraulicOptions, ModelError> {
     let el = Element::Table("hydraulics".into());
     let mut f = Fields::from_value(el.clone(), value)?;
     let mut o = HydraulicOptions::default();
@@ -850,9 +878,32 @@ fn read_node(
     Ok((Node { id: id.into(), elevation, coordinates, zone, kind }, outflow))
 }
 
-/// Reads a link; also returns the index of its speed or setting pattern, if it has one, and a
-/// pipe's own leakage rate (m³/s per m), if it has one.
-fn read_link(index: usize, value: Value, model: &Model) -> Result<(Link, Option<usize>, Option<f64>), ModelError> {
+/// Reads `[map]`: what the nodes' coordinates are.
+fn read_map(value: Value) -> Result<MapCoordinates, ModelError> {
+    let mut f = Fields::from_value(Element::Table("map".into()), value)?;
+    let coordinates = match f.string("coordinates")? {
+        None => MapCoordinates::default(),
+        Some(text) => MapCoordinates::parse(&text).ok_or_else(|| {
+            f.error(
+                "coordinates",
+                format!(
+                    "unknown coordinates \"{}\"; expected \"lonlat\" or \"projected\"",
+                    crate::error::printable(&text)
+                ),
+            )
+        })?,
+    };
+    f.finish(MAP_KEYS)?;
+    Ok(coordinates)
+}
+
+/// A link read from a file: the link, the index of its speed or setting pattern, a pipe's own
+/// leakage rate (m³/s per m), its `path`.
+type LinkRead = (Link, Option<usize>, Option<f64>, Option<Vec<(f64, f64)>>);
+
+/// Reads a link; also returns the index of its speed or setting pattern, if it has one, a pipe's
+/// own leakage rate, if it has one, and the interior vertices of its drawn alignment.
+fn read_link(index: usize, value: Value, model: &Model) -> Result<LinkRead, ModelError> {
     let (mut f, keys, kind) = identify(value, Element::LinkEntry(index), Element::Link, LINK_KEYS, "pipe")?;
     let end = |key: &str, f: &mut Fields| -> Result<usize, ModelError> {
         let id = f.string(key)?.ok_or_else(|| f.missing(key))?;
@@ -866,6 +917,7 @@ fn read_link(index: usize, value: Value, model: &Model) -> Result<(Link, Option<
     let from = end("from", &mut f)?;
     let to = end("to", &mut f)?;
     let status_text = f.string("status")?;
+    let path = pairs(&mut f, "path", "x, y")?;
     let pattern = match kind.as_str() {
         "pump" => f.pattern("speed_pattern", &model.time)?,
         "valve" => f.pattern("setting_pattern", &model.time)?,
@@ -892,7 +944,7 @@ fn read_link(index: usize, value: Value, model: &Model) -> Result<(Link, Option<
     let Some(Element::Link(id)) = f.element.clone() else { unreachable!("identify sets the element") };
     static ALL_LINK_KEYS: OnceLock<Vec<&'static str>> = OnceLock::new();
     f.finish_with(keys, ALL_LINK_KEYS.get_or_init(|| all_keys(LINK_KEYS)), kind.label())?;
-    Ok((Link { id: id.into(), from, to, status, kind }, pattern, leakage_rate))
+    Ok((Link { id: id.into(), from, to, status, kind }, pattern, leakage_rate, path))
 }
 
 /// A leakage rate in flow units per km (per 1000 ft where lengths are in ft) into m³/s per m.

@@ -289,6 +289,9 @@ impl Serialize for ModelFile<'_> {
                 },
             )?;
         }
+        if m.map.coordinates != super::MapCoordinates::default() {
+            top.serialize_entry("map", &MapTable { coordinates: m.map.coordinates.label() })?;
+        }
         if let Some(sim) = &time.simulation {
             top.serialize_entry(
                 "simulation",
@@ -368,6 +371,11 @@ fn leakage_rate_from_si(c: Ctx<'_>, rate: f64) -> f64 {
 struct OutletEntry {
     coefficient: f64,
     exponent: f64,
+}
+
+#[derive(Serialize)]
+struct MapTable {
+    coordinates: &'static str,
 }
 
 #[derive(Serialize)]
@@ -578,6 +586,9 @@ struct LinkEntry<'a> {
     check_valve: Option<bool>,
     #[serde(skip_serializing_if = "Option::is_none")]
     leakage_rate: Option<f64>,
+    /// Map coordinates, written as given (no unit conversion, as node `x`, `y`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    path: Option<&'a [(f64, f64)]>,
 }
 
 fn link_entry(c: Ctx<'_>, k: usize) -> LinkEntry<'_> {
@@ -591,6 +602,7 @@ fn link_entry(c: Ctx<'_>, k: usize) -> LinkEntry<'_> {
         from: c.node(l.from),
         to: c.node(l.to),
         status: (l.status == LinkStatus::Closed).then(|| l.status.label()),
+        path: m.map.paths.get(&k).map(Vec::as_slice),
         ..LinkEntry::default()
     };
     match &l.kind {
@@ -913,6 +925,62 @@ mod tests {
         let text = String::from_utf8(out).unwrap_or_default();
         let expected = "{\n  \"a\": [],\n  \"b\": {},\n  \"c\": [\n    [1, 2],\n    {\"d\": [3, {\"e\": null}]}\n  ],\n  \"f\": {\n    \"g\": true\n  }\n}\n";
         assert_eq!(text, expected);
+    }
+
+    #[test]
+    fn map_keys_round_trip_in_both_formats() {
+        let text = r#"
+            [map]
+            coordinates = "lonlat"
+            [[nodes]]
+            id = "R"
+            kind = "reservoir"
+            head = 60
+            x = 7.4411
+            y = 46.9481
+            [[nodes]]
+            id = "J"
+            elevation = 10
+            x = 7.4452
+            y = 46.9503
+            [[links]]
+            id = "P"
+            from = "R"
+            to = "J"
+            length = 400
+            diameter = 150
+            roughness = 120
+            path = [[7.4420, 46.9490], [7.4437, 46.9495]]
+            [[links]]
+            id = "Q"
+            from = "R"
+            to = "J"
+            length = 500
+            diameter = 100
+            roughness = 120
+        "#;
+        let model = read_str(text, Format::Toml, "t.toml").unwrap();
+        assert_eq!(model.map.coordinates, crate::model::MapCoordinates::LonLat);
+        assert_eq!(model.map.paths.get(&0).map(Vec::len), Some(2));
+        assert!(!model.map.paths.contains_key(&1));
+        let drawn = model.map.alignment(&model, 0).unwrap();
+        assert_eq!(drawn, vec![(7.4411, 46.9481), (7.4420, 46.9490), (7.4437, 46.9495), (7.4452, 46.9503)]);
+        for format in [Format::Toml, Format::Json] {
+            let out = to_string(&model, format);
+            let back = read_str(&out, format, "out").unwrap_or_else(|e| panic!("{e}\n{out}"));
+            assert_eq!(back, model, "{out}");
+        }
+        // A path that is not a list of pairs names the link and the key.
+        let bad = text.replace("path = [[7.4420, 46.9490], [7.4437, 46.9495]]", "path = [[7.4420]]");
+        let e = read_str(&bad, Format::Toml, "t.toml").unwrap_err();
+        assert_eq!(
+            (e.element.clone(), e.key.as_deref()),
+            (Some(crate::Element::Link("P".into())), Some("path")),
+            "{e}"
+        );
+        let bad = text.replace("\"lonlat\"", "\"latlon\"");
+        let e = read_str(&bad, Format::Toml, "t.toml").unwrap_err();
+        assert_eq!(e.key.as_deref(), Some("coordinates"), "{e}");
     }
 
     #[test]
