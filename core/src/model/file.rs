@@ -12,6 +12,7 @@ use super::{
     Valve, ValveType, WaterSpec,
 };
 use crate::error::{Element, ModelError};
+use crate::physics::fittings::{Fitting, FittingKind, FittingsMethod};
 use crate::physics::pump::{Efficiency, HeadCurve};
 use crate::physics::WaterProperties;
 use crate::units::HORSEPOWER;
@@ -88,8 +89,17 @@ const CONTROL_KEYS: &[&str] = &["id", "link", "status", "speed", "setting", "whe
 const CONDITION_KEYS: &[&str] =
     &["tank", "level_above", "level_below", "node", "pressure_above", "pressure_below", "clock", "after", "all", "any"];
 const UNIT_KEYS: &[&str] = &["length", "diameter", "flow", "pressure", "roughness"];
-const HYDRAULIC_KEYS: &[&str] =
-    &["headloss", "kinematic_viscosity", "water_temperature", "max_iterations", "head_tolerance", "flow_tolerance"];
+const HYDRAULIC_KEYS: &[&str] = &[
+    "headloss",
+    "kinematic_viscosity",
+    "water_temperature",
+    "max_iterations",
+    "head_tolerance",
+    "flow_tolerance",
+    "fittings_method",
+    "site_elevation",
+];
+const FITTING_KEYS: &[&str] = &["kind", "count", "radius", "angle", "opening"];
 const NODE_KEYS: &[(&str, &[&str])] = &[
     ("junction", &["id", "kind", "elevation", "demand", "pattern", "demands", "x", "y", "zone"]),
     ("reservoir", &["id", "kind", "head", "head_pattern", "elevation", "x", "y", "zone"]),
@@ -99,7 +109,22 @@ const NODE_KEYS: &[(&str, &[&str])] = &[
     ),
 ];
 const LINK_KEYS: &[(&str, &[&str])] = &[
-    ("pipe", &["id", "kind", "from", "to", "length", "diameter", "roughness", "minor_loss", "status", "check_valve"]),
+    (
+        "pipe",
+        &[
+            "id",
+            "kind",
+            "from",
+            "to",
+            "length",
+            "diameter",
+            "roughness",
+            "minor_loss",
+            "fittings",
+            "status",
+            "check_valve",
+        ],
+    ),
     (
         "pump",
         &[
@@ -113,10 +138,27 @@ const LINK_KEYS: &[(&str, &[&str])] = &[
             "efficiency",
             "speed",
             "speed_pattern",
+            "elevation",
+            "npsh_required_curve",
             "status",
         ],
     ),
-    ("valve", &["id", "kind", "valve", "from", "to", "diameter", "setting", "setting_pattern", "minor_loss", "status"]),
+    (
+        "valve",
+        &[
+            "id",
+            "kind",
+            "valve",
+            "from",
+            "to",
+            "diameter",
+            "setting",
+            "setting_pattern",
+            "minor_loss",
+            "fittings",
+            "status",
+        ],
+    ),
 ];
 
 /// Reads a JSON model in one pass from `reader`, without holding the text: each node and link
@@ -339,7 +381,7 @@ fn add_node_value(model: &mut Model, i: usize, value: Value) -> Result<(), Model
 /// Reads the `i`-th entry of `links` into the model.
 fn add_link_value(model: &mut Model, i: usize, value: Value) -> Result<(), ModelError> {
     let index = model.links().len();
-    let (link, pattern) = read_link(i, value, model)?;
+    let (link, pattern, fittings) = read_link(i, value, model)?;
     if let Some(p) = pattern {
         match link.kind {
             LinkKind::Pump(_) => model.time.speed_patterns.insert(index, p),
@@ -347,6 +389,9 @@ fn add_link_value(model: &mut Model, i: usize, value: Value) -> Result<(), Model
         };
     }
     model.add_link(link)?;
+    if !fittings.is_empty() {
+        model.set_fittings(index, fittings)?;
+    }
     Ok(())
 }
 
@@ -649,6 +694,36 @@ fn read_hydraulics(value: Value, units: &UnitSystem) -> Result<HydraulicOptions,
     if let Some(t) = f.number("flow_tolerance")? {
         o.flow_tolerance = super::check_value(&el, "flow_tolerance", t, super::Rule::Positive)?;
     }
+    if let Some(text) = f.string("fittings_method")? {
+        o.fittings_method = FittingsMethod::parse(&text).ok_or_else(|| {
+            let names: Vec<&str> = FittingsMethod::ALL.iter().map(|m| m.label()).collect();
+            let hint =
+                suggest(&text, names.iter().copied()).map(|s| format!(" (did you mean \"{s}\"?)")).unwrap_or_default();
+            f.error(
+                "fittings_method",
+                format!(
+                    "unknown method \"{}\"{hint}; expected one of {}",
+                    crate::error::printable(&text),
+                    names.join(", ")
+                ),
+            )
+        })?;
+    }
+    if let Some(z) = f.number("site_elevation")? {
+        let z = units.length.to_si(super::check_value(&el, "site_elevation", z, super::Rule::Finite)?);
+        if !(crate::physics::atmosphere::MIN_ELEVATION..=crate::physics::atmosphere::MAX_ELEVATION).contains(&z) {
+            return Err(f.error(
+                "site_elevation",
+                format!(
+                    "{} m is outside the standard atmosphere's lowest layer ({} m to {} m above sea level)",
+                    z,
+                    crate::physics::atmosphere::MIN_ELEVATION,
+                    crate::physics::atmosphere::MAX_ELEVATION
+                ),
+            ));
+        }
+        o.site_elevation = Some(z);
+    }
     f.finish(HYDRAULIC_KEYS)?;
     Ok(o)
 }
@@ -789,8 +864,9 @@ fn read_node(
     Ok(Node { id: id.into(), elevation, coordinates, zone, kind })
 }
 
-/// Reads a link; also returns the index of its speed or setting pattern, if it has one.
-fn read_link(index: usize, value: Value, model: &Model) -> Result<(Link, Option<usize>), ModelError> {
+/// Reads a link; also returns the index of its speed or setting pattern, if it has one, and its
+/// named fittings.
+fn read_link(index: usize, value: Value, model: &Model) -> Result<(Link, Option<usize>, Vec<Fitting>), ModelError> {
     let (mut f, keys, kind) = identify(value, Element::LinkEntry(index), Element::Link, LINK_KEYS, "pipe")?;
     let end = |key: &str, f: &mut Fields| -> Result<usize, ModelError> {
         let id = f.string(key)?.ok_or_else(|| f.missing(key))?;
@@ -809,6 +885,10 @@ fn read_link(index: usize, value: Value, model: &Model) -> Result<(Link, Option<
         "valve" => f.pattern("setting_pattern", &model.time)?,
         _ => None,
     };
+    let fittings = match kind.as_str() {
+        "pipe" | "valve" => read_fittings(&mut f)?,
+        _ => Vec::new(),
+    };
     let (kind, status) = match kind.as_str() {
         "pipe" => (LinkKind::Pipe(read_pipe(&mut f, model)?), link_status(&f, status_text.as_deref(), false)?.0),
         "pump" => {
@@ -822,7 +902,66 @@ fn read_link(index: usize, value: Value, model: &Model) -> Result<(Link, Option<
     let Some(Element::Link(id)) = f.element.clone() else { unreachable!("identify sets the element") };
     static ALL_LINK_KEYS: OnceLock<Vec<&'static str>> = OnceLock::new();
     f.finish_with(keys, ALL_LINK_KEYS.get_or_init(|| all_keys(LINK_KEYS)), kind.label())?;
-    Ok((Link { id: id.into(), from, to, status, kind }, pattern))
+    Ok((Link { id: id.into(), from, to, status, kind }, pattern, fittings))
+}
+
+/// Reads a link's `fittings`: an array of tables `{ kind, count, radius, angle, opening }`.
+/// Values are checked by [`Model::set_fittings`]; here only their types and which keys each kind
+/// takes.
+fn read_fittings(f: &mut Fields) -> Result<Vec<Fitting>, ModelError> {
+    let Some(list) = f.take("fittings") else { return Ok(Vec::new()) };
+    let Value::Array(items) = list else {
+        return Err(f.error(
+            "fittings",
+            format!("must be an array of tables such as {{ kind = \"elbow-90\", count = 2 }}, found {}", list.kind()),
+        ));
+    };
+    let mut out = Vec::with_capacity(items.len());
+    for (i, item) in items.into_iter().enumerate() {
+        let mut e = f.nested(format!("fittings[{}].", i + 1), item)?;
+        e.reject_unknown(FITTING_KEYS)?;
+        let text = e.string("kind")?.ok_or_else(|| e.error("kind", "is missing"))?;
+        let Some(kind) = FittingKind::parse(&text) else {
+            let names: Vec<&str> = FittingKind::ALL.iter().map(|k| k.label()).collect();
+            let hint =
+                suggest(&text, names.iter().copied()).map(|s| format!(" (did you mean \"{s}\"?)")).unwrap_or_default();
+            return Err(e.error(
+                "kind",
+                format!(
+                    "unknown fitting kind \"{}\"{hint}; expected one of {} (`ringmain fittings` lists them)",
+                    crate::error::printable(&text),
+                    names.join(", ")
+                ),
+            ));
+        };
+        let mut fitting = Fitting::new(kind);
+        if let Some(n) = e.integer("count")? {
+            if !(1..=i64::from(u32::MAX)).contains(&n) {
+                return Err(e.error("count", format!("must be a whole number of at least 1, found {n}")));
+            }
+            fitting.count = n as u32;
+        }
+        let takes = kind.parameters();
+        for key in ["radius", "angle", "opening"] {
+            let Some(v) = e.number(key)? else {
+                if kind == FittingKind::Bend && key == "radius" {
+                    return Err(e.error("radius", "is missing: give the bend radius in pipe diameters (r/D >= 0.5)"));
+                }
+                continue;
+            };
+            if !takes.contains(&key) {
+                return Err(e.error(key, format!("does not apply to a {} fitting", kind.label())));
+            }
+            match key {
+                "radius" => fitting.radius = v,
+                "angle" => fitting.angle = v,
+                _ => fitting.opening = v,
+            }
+        }
+        e.finish(FITTING_KEYS)?;
+        out.push(fitting);
+    }
+    Ok(out)
 }
 
 /// Reads `status`: open | closed, and for valves also automatic (the default for valves).
@@ -920,7 +1059,10 @@ fn read_pump(f: &mut Fields, model: &Model) -> Result<Pump, ModelError> {
         (None, None) => (None, Efficiency::Constant(Efficiency::DEFAULT)),
     };
     let speed = f.number("speed")?.unwrap_or(1.0);
-    Ok(Pump { drive, efficiency_points, efficiency, speed })
+    let elevation = f.number("elevation")?.map(|z| units.length.to_si(z));
+    let npsh_required = pairs(f, "npsh_required_curve", "flow, head")?
+        .map(|points| points.into_iter().map(|(q, h)| (units.flow.to_si(q), units.length.to_si(h))).collect());
+    Ok(Pump { drive, efficiency_points, efficiency, speed, elevation, npsh_required })
 }
 
 fn read_valve(f: &mut Fields, model: &Model, automatic: bool) -> Result<Valve, ModelError> {
