@@ -8,6 +8,7 @@ mod check_report;
 mod gis;
 mod import_cmd;
 mod map;
+mod duty;
 mod plot;
 mod report;
 mod simulation;
@@ -170,6 +171,53 @@ enum Command {
         #[arg(long, value_name = "N", default_value_t = ringmain_core::analysis::CheckOptions::KEEP)]
         offenders: usize,
     },
+    /// The system curve a pump works against, its operating point at each speed, the shaft power,
+    /// the motor rating and the net positive suction head.
+    ///
+    /// The system curve is the head the pump must add at each flow through it, with the rest of
+    /// the network solved at that flow. Values are in the model's units; motor ratings from IEC
+    /// 60072-1 (kW, SI models) or NEMA MG 1 (hp, models in feet).
+    #[command(
+        after_help = "Exit codes: 0 done; 2 invalid model, pump or arguments, or no operating point at a                             speed; 3 the solver did not converge at a flow or speed; 4 the results or the chart                             could not be written."
+    )]
+    Duty {
+        /// The model file (.toml or .json).
+        model: PathBuf,
+        /// The pump's link id.
+        #[arg(long, value_name = "ID")]
+        pump: String,
+        /// Pump flows of the system curve, START:STOP:STEP in the model's flow unit (STOP
+        /// included when on the grid); default 0 to 1.5 times the last flow of the pump's curve
+        /// in 40 steps.
+        #[arg(long, value_name = "START:STOP:STEP")]
+        flows: Option<String>,
+        /// Relative speeds of the operating points, comma-separated (default: the pump's speed).
+        #[arg(long, value_name = "S,S,...", value_delimiter = ',')]
+        speeds: Vec<f64>,
+        /// Motor margin over the shaft power, a fraction.
+        #[arg(long, value_name = "F", default_value_t = ringmain_core::duty::DutyOptions::MOTOR_MARGIN)]
+        motor_margin: f64,
+        /// NPSH margin: NPSH available should be at least NPSH required times (1 + F).
+        #[arg(long, value_name = "F", default_value_t = ringmain_core::duty::DutyOptions::NPSH_MARGIN)]
+        npsh_margin: f64,
+        /// Tank levels of the system curve: "current", or "min,max" for the band between the
+        /// emptiest and the fullest tanks.
+        #[arg(long, value_name = "current|min,max", default_value = "current")]
+        tank_levels: String,
+        /// Output format.
+        #[arg(long, value_enum, default_value_t = OutputFormat::Table)]
+        format: OutputFormat,
+        /// Also write an SVG chart to this file.
+        #[arg(long, value_name = "FILE.svg")]
+        plot: Option<PathBuf>,
+    },
+    /// List the kinds of named fitting, their parameters, their K under each method and the
+    /// sources.
+    Fittings {
+        /// Output format.
+        #[arg(long, value_enum, default_value_t = OutputFormat::Table)]
+        format: OutputFormat,
+    },
     /// Print the density and viscosity of water at a temperature (IAPWS formulations).
     WaterProperties {
         /// Water temperature, deg C (0 to 99).
@@ -200,7 +248,7 @@ enum CheckFormat {
 }
 
 #[derive(Clone, Copy, PartialEq, Eq, ValueEnum)]
-enum OutputFormat {
+pub(crate) enum OutputFormat {
     Table,
     Json,
     Csv,
@@ -209,7 +257,7 @@ enum OutputFormat {
 }
 
 pub(crate) const EXIT_INVALID: u8 = 2;
-const EXIT_NOT_CONVERGED: u8 = 3;
+pub(crate) const EXIT_NOT_CONVERGED: u8 = 3;
 pub(crate) const EXIT_WRITE: u8 = 4;
 
 fn main() -> ExitCode {
@@ -253,10 +301,16 @@ fn main() -> ExitCode {
             })
         }
         Command::WaterProperties { format: OutputFormat::Geojson, .. }
-        | Command::FrictionFactor { format: OutputFormat::Geojson, .. } => {
+        | Command::FrictionFactor { format: OutputFormat::Geojson, .. }
+        | Command::Duty { format: OutputFormat::Geojson, .. }
+        | Command::Fittings { format: OutputFormat::Geojson } => {
             eprintln!("error: --format geojson applies to solve and simulate (results on a map)");
             ExitCode::from(EXIT_INVALID)
         }
+        Command::Duty { model, pump, flows, speeds, motor_margin, npsh_margin, tank_levels, format, plot } => {
+            duty::run(duty::Args { model, pump, flows, speeds, motor_margin, npsh_margin, tank_levels, format, plot })
+        }
+        Command::Fittings { format } => duty::list_fittings(format),
         Command::WaterProperties { temperature, format } => water_properties(temperature, format),
         Command::FrictionFactor { reynolds, relative_roughness, format } => {
             friction(reynolds, relative_roughness, format)
@@ -268,7 +322,7 @@ fn main() -> ExitCode {
 ///
 /// The message is one line (scripts and the error tests read it); on a terminal a snippet of the
 /// offending line follows it. `check` always adds the snippet.
-fn load(path: &Path) -> Result<Model, ()> {
+pub(crate) fn load(path: &Path) -> Result<Model, ()> {
     use std::io::IsTerminal;
     let snippet = std::io::stderr().is_terminal();
     check::read_model(path)
@@ -662,6 +716,7 @@ fn water_properties(temperature: f64, format: OutputFormat) -> ExitCode {
             serde_json::json!({
                 "temperature": temperature, "density": w.density,
                 "dynamic_viscosity": w.dynamic_viscosity, "kinematic_viscosity": w.kinematic_viscosity,
+                "vapour_pressure": w.vapour_pressure(),
             })
             .to_string()
                 + "\n"
@@ -672,8 +727,12 @@ fn water_properties(temperature: f64, format: OutputFormat) -> ExitCode {
         ),
         OutputFormat::Table => format!(
             "water at {temperature} deg C and 101.325 kPa\n  density              {:.4} kg/m3 (IAPWS-IF97)\n  \
-             dynamic viscosity    {:.6e} Pa s (IAPWS 2008)\n  kinematic viscosity  {:.6e} m2/s\n",
-            w.density, w.dynamic_viscosity, w.kinematic_viscosity
+             dynamic viscosity    {:.6e} Pa s (IAPWS 2008)\n  kinematic viscosity  {:.6e} m2/s\n  \
+             vapour pressure      {:.2} Pa (IAPWS-IF97 saturation line)\n",
+            w.density,
+            w.dynamic_viscosity,
+            w.kinematic_viscosity,
+            w.vapour_pressure()
         ),
     };
     write_out(&text, None)

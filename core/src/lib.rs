@@ -34,6 +34,7 @@
 #![warn(missing_docs)]
 
 pub mod analysis;
+pub mod duty;
 pub mod error;
 pub mod generate;
 pub mod import;

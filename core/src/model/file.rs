@@ -13,6 +13,7 @@ use super::{
     PumpDrive, Tank, Valve, ValveType, WaterSpec,
 };
 use crate::error::{Element, ModelError};
+use crate::physics::fittings::{Fitting, FittingKind, FittingsMethod};
 use crate::physics::pump::{Efficiency, HeadCurve};
 use crate::physics::WaterProperties;
 use crate::units::HORSEPOWER;
@@ -96,8 +97,17 @@ const LEAKAGE_KEYS: &[&str] = &["rate", "reference_pressure", "exponent"];
 const OUTLET_KEYS: &[&str] = &["coefficient", "exponent"];
 const MAP_KEYS: &[&str] = &["coordinates"];
 const UNIT_KEYS: &[&str] = &["length", "diameter", "flow", "pressure", "roughness"];
-const HYDRAULIC_KEYS: &[&str] =
-    &["headloss", "kinematic_viscosity", "water_temperature", "max_iterations", "head_tolerance", "flow_tolerance"];
+const HYDRAULIC_KEYS: &[&str] = &[
+    "headloss",
+    "kinematic_viscosity",
+    "water_temperature",
+    "max_iterations",
+    "head_tolerance",
+    "flow_tolerance",
+    "fittings_method",
+    "site_elevation",
+];
+const FITTING_KEYS: &[&str] = &["kind", "count", "radius", "angle", "opening"];
 const NODE_KEYS: &[(&str, &[&str])] = &[
     (
         "junction",
@@ -135,6 +145,7 @@ const LINK_KEYS: &[(&str, &[&str])] = &[
             "diameter",
             "roughness",
             "minor_loss",
+            "fittings",
             "status",
             "check_valve",
             "leakage_rate",
@@ -154,6 +165,8 @@ const LINK_KEYS: &[(&str, &[&str])] = &[
             "efficiency",
             "speed",
             "speed_pattern",
+            "elevation",
+            "npsh_required_curve",
             "status",
             "path",
         ],
@@ -170,6 +183,7 @@ const LINK_KEYS: &[(&str, &[&str])] = &[
             "setting",
             "setting_pattern",
             "minor_loss",
+            "fittings",
             "status",
             "path",
         ],
@@ -418,7 +432,7 @@ fn add_node_value(model: &mut Model, i: usize, value: Value) -> Result<(), Model
 /// Reads the `i`-th entry of `links` into the model.
 fn add_link_value(model: &mut Model, i: usize, value: Value) -> Result<(), ModelError> {
     let index = model.links().len();
-    let (link, pattern, leakage_rate, path) = read_link(i, value, model)?;
+    let (link, pattern, leakage_rate, path, fittings) = read_link(i, value, model)?;
     if let Some(rate) = leakage_rate {
         model.outflow.leakage_rates.insert(index, rate);
     }
@@ -432,6 +446,9 @@ fn add_link_value(model: &mut Model, i: usize, value: Value) -> Result<(), Model
         };
     }
     model.add_link(link)?;
+    if !fittings.is_empty() {
+        model.set_fittings(index, fittings)?;
+    }
     Ok(())
 }
 
@@ -734,6 +751,36 @@ pub(crate) fn read_hydraulics(value: Value, units: &UnitSystem) -> Result<Hydrau
     if let Some(t) = f.number("flow_tolerance")? {
         o.flow_tolerance = super::check_value(&el, "flow_tolerance", t, super::Rule::Positive)?;
     }
+    if let Some(text) = f.string("fittings_method")? {
+        o.fittings_method = FittingsMethod::parse(&text).ok_or_else(|| {
+            let names: Vec<&str> = FittingsMethod::ALL.iter().map(|m| m.label()).collect();
+            let hint =
+                suggest(&text, names.iter().copied()).map(|s| format!(" (did you mean \"{s}\"?)")).unwrap_or_default();
+            f.error(
+                "fittings_method",
+                format!(
+                    "unknown method \"{}\"{hint}; expected one of {}",
+                    crate::error::printable(&text),
+                    names.join(", ")
+                ),
+            )
+        })?;
+    }
+    if let Some(z) = f.number("site_elevation")? {
+        let z = units.length.to_si(super::check_value(&el, "site_elevation", z, super::Rule::Finite)?);
+        if !(crate::physics::atmosphere::MIN_ELEVATION..=crate::physics::atmosphere::MAX_ELEVATION).contains(&z) {
+            return Err(f.error(
+                "site_elevation",
+                format!(
+                    "{} m is outside the standard atmosphere's lowest layer ({} m to {} m above sea level)",
+                    z,
+                    crate::physics::atmosphere::MIN_ELEVATION,
+                    crate::physics::atmosphere::MAX_ELEVATION
+                ),
+            ));
+        }
+        o.site_elevation = Some(z);
+    }
     f.finish(HYDRAULIC_KEYS)?;
     Ok(o)
 }
@@ -898,11 +945,12 @@ fn read_map(value: Value) -> Result<MapCoordinates, ModelError> {
 }
 
 /// A link read from a file: the link, the index of its speed or setting pattern, a pipe's own
-/// leakage rate (m³/s per m), its `path`.
-type LinkRead = (Link, Option<usize>, Option<f64>, Option<Vec<(f64, f64)>>);
+/// leakage rate (m³/s per m), its `path`, its named fittings.
+type LinkRead = (Link, Option<usize>, Option<f64>, Option<Vec<(f64, f64)>>, Vec<Fitting>);
 
 /// Reads a link; also returns the index of its speed or setting pattern, if it has one, a pipe's
-/// own leakage rate, if it has one, and the interior vertices of its drawn alignment.
+/// own leakage rate, if it has one, the interior vertices of its drawn alignment and its named
+/// fittings.
 fn read_link(index: usize, value: Value, model: &Model) -> Result<LinkRead, ModelError> {
     let (mut f, keys, kind) = identify(value, Element::LinkEntry(index), Element::Link, LINK_KEYS, "pipe")?;
     let end = |key: &str, f: &mut Fields| -> Result<usize, ModelError> {
@@ -924,6 +972,10 @@ fn read_link(index: usize, value: Value, model: &Model) -> Result<LinkRead, Mode
         _ => None,
     };
     let mut leakage_rate = None;
+    let fittings = match kind.as_str() {
+        "pipe" | "valve" => read_fittings(&mut f)?,
+        _ => Vec::new(),
+    };
     let (kind, status) = match kind.as_str() {
         "pipe" => {
             if let Some(rate) = f.number("leakage_rate")? {
@@ -944,7 +996,7 @@ fn read_link(index: usize, value: Value, model: &Model) -> Result<LinkRead, Mode
     let Some(Element::Link(id)) = f.element.clone() else { unreachable!("identify sets the element") };
     static ALL_LINK_KEYS: OnceLock<Vec<&'static str>> = OnceLock::new();
     f.finish_with(keys, ALL_LINK_KEYS.get_or_init(|| all_keys(LINK_KEYS)), kind.label())?;
-    Ok((Link { id: id.into(), from, to, status, kind }, pattern, leakage_rate, path))
+    Ok((Link { id: id.into(), from, to, status, kind }, pattern, leakage_rate, path, fittings))
 }
 
 /// A leakage rate in flow units per km (per 1000 ft where lengths are in ft) into m³/s per m.
@@ -1048,6 +1100,65 @@ fn read_junction_outflow(
     Ok(Some(j))
 }
 
+/// Reads a link's `fittings`: an array of tables `{ kind, count, radius, angle, opening }`.
+/// Values are checked by [`Model::set_fittings`]; here only their types and which keys each kind
+/// takes.
+fn read_fittings(f: &mut Fields) -> Result<Vec<Fitting>, ModelError> {
+    let Some(list) = f.take("fittings") else { return Ok(Vec::new()) };
+    let Value::Array(items) = list else {
+        return Err(f.error(
+            "fittings",
+            format!("must be an array of tables such as {{ kind = \"elbow-90\", count = 2 }}, found {}", list.kind()),
+        ));
+    };
+    let mut out = Vec::with_capacity(items.len());
+    for (i, item) in items.into_iter().enumerate() {
+        let mut e = f.nested(format!("fittings[{}].", i + 1), item)?;
+        e.reject_unknown(FITTING_KEYS)?;
+        let text = e.string("kind")?.ok_or_else(|| e.error("kind", "is missing"))?;
+        let Some(kind) = FittingKind::parse(&text) else {
+            let names: Vec<&str> = FittingKind::ALL.iter().map(|k| k.label()).collect();
+            let hint =
+                suggest(&text, names.iter().copied()).map(|s| format!(" (did you mean \"{s}\"?)")).unwrap_or_default();
+            return Err(e.error(
+                "kind",
+                format!(
+                    "unknown fitting kind \"{}\"{hint}; expected one of {} (`ringmain fittings` lists them)",
+                    crate::error::printable(&text),
+                    names.join(", ")
+                ),
+            ));
+        };
+        let mut fitting = Fitting::new(kind);
+        if let Some(n) = e.integer("count")? {
+            if !(1..=i64::from(u32::MAX)).contains(&n) {
+                return Err(e.error("count", format!("must be a whole number of at least 1, found {n}")));
+            }
+            fitting.count = n as u32;
+        }
+        let takes = kind.parameters();
+        for key in ["radius", "angle", "opening"] {
+            let Some(v) = e.number(key)? else {
+                if kind == FittingKind::Bend && key == "radius" {
+                    return Err(e.error("radius", "is missing: give the bend radius in pipe diameters (r/D >= 0.5)"));
+                }
+                continue;
+            };
+            if !takes.contains(&key) {
+                return Err(e.error(key, format!("does not apply to a {} fitting", kind.label())));
+            }
+            match key {
+                "radius" => fitting.radius = v,
+                "angle" => fitting.angle = v,
+                _ => fitting.opening = v,
+            }
+        }
+        e.finish(FITTING_KEYS)?;
+        out.push(fitting);
+    }
+    Ok(out)
+}
+
 /// Reads `status`: open | closed, and for valves also automatic (the default for valves).
 /// Returns the status and whether a valve is automatic.
 fn link_status(f: &Fields, text: Option<&str>, valve: bool) -> Result<(LinkStatus, bool), ModelError> {
@@ -1143,7 +1254,10 @@ fn read_pump(f: &mut Fields, model: &Model) -> Result<Pump, ModelError> {
         (None, None) => (None, Efficiency::Constant(Efficiency::DEFAULT)),
     };
     let speed = f.number("speed")?.unwrap_or(1.0);
-    Ok(Pump { drive, efficiency_points, efficiency, speed })
+    let elevation = f.number("elevation")?.map(|z| units.length.to_si(z));
+    let npsh_required = pairs(f, "npsh_required_curve", "flow, head")?
+        .map(|points| points.into_iter().map(|(q, h)| (units.flow.to_si(q), units.length.to_si(h))).collect());
+    Ok(Pump { drive, efficiency_points, efficiency, speed, elevation, npsh_required })
 }
 
 fn read_valve(f: &mut Fields, model: &Model, automatic: bool) -> Result<Valve, ModelError> {
