@@ -27,6 +27,8 @@ pub enum Element {
     Control(String),
     /// The n-th entry (0-based) of an array of tables such as `patterns`, when it has no usable id.
     Entry(String, usize),
+    /// A water-quality constituent (`[[quality]]`), by id.
+    Constituent(String),
 }
 
 impl fmt::Display for Element {
@@ -40,6 +42,7 @@ impl fmt::Display for Element {
             Element::Pattern(id) => write!(f, "pattern '{}'", printable(id)),
             Element::Control(id) => write!(f, "control '{}'", printable(id)),
             Element::Entry(table, i) => write!(f, "{table} entry #{}", i + 1),
+            Element::Constituent(id) => write!(f, "quality '{}'", printable(id)),
         }
     }
 }

@@ -38,6 +38,7 @@ pub mod error;
 pub mod generate;
 pub mod model;
 pub mod physics;
+pub mod quality;
 pub mod simulate;
 pub mod solve;
 pub mod units;
