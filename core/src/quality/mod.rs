@@ -292,6 +292,22 @@ impl<'m> QualityEngine<'m> {
         }
     }
 
+    /// Whether tank `node`'s water is outside the balance of constituent `c`: a source trace at a
+    /// tank that some trace follows. Water leaving such a tank is 100 % its own and 0 % of every
+    /// other source (it starts again from there), so percentages still add up to 100.
+    fn outside(&self, c: usize, node: usize) -> bool {
+        matches!(self.q.constituents[c].kind, ConstituentKind::Source { .. })
+            && self.q.constituents.iter().any(|k| k.kind == ConstituentKind::Source { node })
+    }
+
+    fn own_value(&self, c: usize, node: usize) -> f64 {
+        if self.traced(c) == Some(node) {
+            100.0
+        } else {
+            0.0
+        }
+    }
+
     /// Mass of constituent `c` stored in pipes and tanks (a traced tank's own water is outside).
     fn stored(&self, c: usize) -> f64 {
         let pipes: f64 = (0..self.model.links().len()).map(|p| self.seg.mass(p, c, self.t)).sum();
@@ -299,7 +315,7 @@ impl<'m> QualityEngine<'m> {
             .tanks
             .iter()
             .zip(&self.tank_nodes)
-            .filter(|(_, &n)| self.traced(c) != Some(n))
+            .filter(|(_, &n)| !self.outside(c, n))
             .map(|(s, _)| s.mass(c, self.t))
             .sum();
         pipes + tanks
@@ -338,8 +354,8 @@ impl<'m> QualityEngine<'m> {
                 NodeKind::Tank(_) => {
                     let j = self.tank_of[i];
                     for c in 0..nc {
-                        if self.traced(c) == Some(i) {
-                            self.value[i * nc + c] = 100.0;
+                        if self.outside(c, i) {
+                            self.value[i * nc + c] = self.own_value(c, i);
                         } else if let Some(v) = self.tanks[j].value(c, self.t) {
                             self.value[i * nc + c] = v;
                         }
@@ -514,7 +530,7 @@ impl<'m> QualityEngine<'m> {
                     continue;
                 }
                 let g = self.tanks[j].react(c, k, age, dt, self.t);
-                if self.traced(c) != Some(node) {
+                if !self.outside(c, node) {
                     self.balance[c].reacted += g;
                 }
             }
@@ -540,9 +556,10 @@ impl<'m> QualityEngine<'m> {
             let mut out = vec![0.0; nc];
             self.tanks[j].outflow(v_in, v_out, dt, &mut out, t);
             for c in 0..nc {
-                let v = if self.traced(c) == Some(node) {
-                    self.balance[c].inflow += 100.0 * v_out;
-                    100.0
+                let v = if self.outside(c, node) {
+                    let v = self.own_value(c, node);
+                    self.balance[c].inflow += v * v_out;
+                    v
                 } else if v_out > 0.0 {
                     out[c] / v_out
                 } else {
@@ -652,7 +669,7 @@ impl<'m> QualityEngine<'m> {
                     let m: Vec<f64> = self.acc_mass[i * nc..(i + 1) * nc].to_vec();
                     self.tanks[j].settle(tank_in_vol[j], &m, t);
                     for c in 0..nc {
-                        if self.traced(c) == Some(i) {
+                        if self.outside(c, i) {
                             self.balance[c].outflow += m[c];
                         }
                         self.acc_mass[i * nc + c] = 0.0;
