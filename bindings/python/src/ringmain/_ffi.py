@@ -25,6 +25,7 @@ LIBRARY_NAME = {"darwin": "libringmain.dylib", "win32": "ringmain.dll"}.get(sys.
 status = c_uint32
 model_p = c_void_p
 results_p = c_void_p
+run_p = c_void_p
 out_handle = POINTER(c_void_p)
 size_p = POINTER(c_size_t)
 u32_p = POINTER(c_uint32)
@@ -102,6 +103,37 @@ FUNCTIONS: dict[str, tuple[object, list[object]]] = {
     "ringmain_model_set_solver_options": (status, [model_p, c_uint32, c_double, c_double]),
     "ringmain_model_set_warm_start": (status, [model_p, c_bool]),
     "ringmain_model_solve": (status, [model_p, out_handle]),
+    "ringmain_set_threads": (status, [c_size_t]),
+    "ringmain_get_threads": (status, [size_p]),
+    "ringmain_model_set_demands": (status, [model_p, double_p, c_size_t]),
+    "ringmain_model_get_demands": (status, [model_p, double_p, c_size_t, size_p]),
+    "ringmain_model_set_reservoir_heads": (status, [model_p, double_p, c_size_t]),
+    "ringmain_model_get_reservoir_heads": (status, [model_p, double_p, c_size_t, size_p]),
+    "ringmain_model_set_pump_speeds": (status, [model_p, double_p, c_size_t]),
+    "ringmain_model_get_pump_speeds": (status, [model_p, double_p, c_size_t, size_p]),
+    "ringmain_model_set_valve_settings": (status, [model_p, double_p, c_size_t]),
+    "ringmain_model_get_valve_settings": (status, [model_p, double_p, c_size_t, size_p]),
+    "ringmain_model_set_pipe_roughnesses": (status, [model_p, double_p, c_size_t]),
+    "ringmain_model_get_pipe_roughnesses": (status, [model_p, double_p, c_size_t, size_p]),
+    "ringmain_model_set_pipe_diameters": (status, [model_p, double_p, c_size_t]),
+    "ringmain_model_get_pipe_diameters": (status, [model_p, double_p, c_size_t, size_p]),
+    "ringmain_model_set_link_statuses": (status, [model_p, u32_p, c_size_t]),
+    "ringmain_model_get_link_statuses": (status, [model_p, u32_p, c_size_t, size_p]),
+    "ringmain_model_node_ids": (status, [model_p, c_char_p, c_size_t, size_p]),
+    "ringmain_model_link_ids": (status, [model_p, c_char_p, c_size_t, size_p]),
+    "ringmain_model_node_zones": (status, [model_p, c_char_p, c_size_t, size_p]),
+    "ringmain_model_node_kinds": (status, [model_p, u32_p, c_size_t, size_p]),
+    "ringmain_model_link_kinds": (status, [model_p, u32_p, c_size_t, size_p]),
+    "ringmain_model_elevations": (status, [model_p, double_p, c_size_t, size_p]),
+    "ringmain_model_link_ends": (status, [model_p, size_p, size_p, c_size_t, size_p]),
+    "ringmain_model_coordinates": (status, [model_p, double_p, double_p, c_size_t, size_p]),
+    "ringmain_model_simulate": (status, [model_p, out_handle]),
+    "ringmain_run_free": (None, [run_p]),
+    "ringmain_run_get_summary": (status, [run_p, c_void_p]),
+    "ringmain_run_times": (status, [run_p, double_p, c_size_t, size_p]),
+    "ringmain_run_columns": (status, [run_p, c_uint32, size_p, c_size_t, size_p]),
+    "ringmain_run_series": (status, [run_p, c_uint32, double_p, c_size_t, size_p]),
+    "ringmain_run_event": (status, [run_p, c_size_t, double_p, c_char_p, c_size_t, size_p]),
     "ringmain_results_free": (None, [results_p]),
     "ringmain_results_node_count": (status, [results_p, size_p]),
     "ringmain_results_link_count": (status, [results_p, size_p]),
@@ -213,7 +245,41 @@ CONSTANTS: dict[str, dict[str, int]] = {
         "RINGMAIN_STATE_VALVE_CLOSED": 10,
         "RINGMAIN_STATE_OTHER": 255,
     },
+    "ringmain_series": {
+        "RINGMAIN_SERIES_HEAD": 0,
+        "RINGMAIN_SERIES_PRESSURE": 1,
+        "RINGMAIN_SERIES_DEMAND": 2,
+        "RINGMAIN_SERIES_FLOW": 3,
+        "RINGMAIN_SERIES_STATUS": 4,
+        "RINGMAIN_SERIES_LEVEL": 5,
+        "RINGMAIN_SERIES_VOLUME": 6,
+        "RINGMAIN_SERIES_PUMP_SPEED": 7,
+        "RINGMAIN_SERIES_PUMP_POWER": 8,
+    },
 }
+
+
+class RunSummary(ctypes.Structure):
+    """``struct ringmain_run_summary`` of the header."""
+
+    _fields_ = [
+        ("duration", c_double),
+        ("start_clock", c_double),
+        ("times", c_size_t),
+        ("events", c_size_t),
+        ("supplied", c_double),
+        ("delivered", c_double),
+        ("storage_change", c_double),
+        ("not_delivered", c_double),
+        ("discrepancy", c_double),
+        ("has_lowest_pressure", c_bool),
+        ("lowest_pressure_node", c_size_t),
+        ("lowest_pressure", c_double),
+        ("lowest_pressure_time", c_double),
+        ("steps", ctypes.c_uint64),
+        ("rejected_steps", ctypes.c_uint64),
+        ("solves", ctypes.c_uint64),
+    ]
 
 OK = CONSTANTS["ringmain_status"]["RINGMAIN_OK"]
 BUFFER_TOO_SMALL = CONSTANTS["ringmain_status"]["RINGMAIN_BUFFER_TOO_SMALL"]
