@@ -6,7 +6,8 @@ This is the only module that knows the C signatures. ``tests/test_declarations.p
 The library is looked for, in order:
 
 1. the file named by the environment variable ``RINGMAIN_LIBRARY``;
-2. beside the package: in the package directory, then in the directory that holds it;
+2. inside the package, where ``pip install`` puts it (``libringmain*.so``), then beside it: the
+   package directory, then the directory that holds it;
 3. in the Cargo workspace the package sits in (found by walking up from the package directory to
    a ``Cargo.toml`` with a ``[workspace]`` table): ``$CARGO_TARGET_DIR/release`` when that
    variable is set, else ``target/release``.
@@ -304,13 +305,22 @@ def _workspace_release_dirs(start: Path) -> list[Path]:
     return []
 
 
+def _in_package(here: Path) -> list[Path]:
+    """The library installed inside the package by `pip install` (its name carries the
+    interpreter's extension suffix, e.g. libringmain.cpython-311-x86_64-linux-gnu.so)."""
+    stem = LIBRARY_NAME.rsplit(".", 1)[0]
+    suffix = LIBRARY_NAME.rsplit(".", 1)[1]
+    return sorted(p for p in here.glob(f"{stem}*.{suffix}") if p.is_file())
+
+
 def candidates() -> list[tuple[str, Path]]:
     """Where the library is looked for, in order, each with the rule that gave it."""
     given = os.environ.get("RINGMAIN_LIBRARY")
     if given:
         return [("RINGMAIN_LIBRARY", Path(given))]
     here = Path(__file__).resolve().parent
-    found = [("beside the package", here / LIBRARY_NAME), ("beside the package", here.parent / LIBRARY_NAME)]
+    found = [("inside the package", p) for p in _in_package(here)]
+    found += [("beside the package", here / LIBRARY_NAME), ("beside the package", here.parent / LIBRARY_NAME)]
     found += [("the Cargo workspace", d / LIBRARY_NAME) for d in _workspace_release_dirs(here)]
     return found
 
@@ -328,8 +338,8 @@ def load_library() -> ctypes.CDLL:
         where += "\n  - no Cargo workspace above the package directory"
     raise LibraryNotFound(
         f"cannot find the ringmain library {LIBRARY_NAME}; looked at:\n{where}\n"
-        "Build it with `cargo build --release` in the ringmain workspace, or set RINGMAIN_LIBRARY "
-        "to the path of the library file."
+        "Install the package with `pip install ./bindings/python` (it builds the library), build it with "
+        "`cargo build --release` in the ringmain workspace, or set RINGMAIN_LIBRARY to the library file."
     )
 
 

@@ -178,7 +178,7 @@ class Results(Handle):
         if name not in self._cache:
             out = np.empty(count, dtype=dtype)
             n = c_size_t()
-            pointer = {np.float64: _ffi.double_p, np.uint32: _ffi.u32_p, np.bool_: _ffi.bool_p}[dtype]
+            pointer: Any = {np.float64: _ffi.double_p, np.uint32: _ffi.u32_p, np.bool_: _ffi.bool_p}[dtype]
             check(call(self._ptr, out.ctypes.data_as(pointer), count, byref(n)))
             out.setflags(write=False)
             self._cache[name] = out

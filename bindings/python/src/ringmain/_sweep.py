@@ -157,7 +157,7 @@ def _solve_chunk(
     model = base.model
     layout = model.layout()
     widths = {q: len(layout.node_ids) if q in NODE_QUANTITIES else len(layout.link_ids) for q in quantities}
-    values = {q: np.full((len(scenarios), widths[q]), np.nan) for q in quantities}
+    values: dict[str, FloatArray] = {q: np.full((len(scenarios), widths[q]), np.nan) for q in quantities}
     errors: list[str | None] = []
     attribute = {"head": "heads", "pressure": "pressures", "demand": "demands", "flow": "flows",
                  "velocity": "velocities", "headloss": "headlosses"}
@@ -253,8 +253,8 @@ def sweep(
     if not isinstance(model, Model):
         raise ArgumentTypeError(f"argument 'model' must be a ringmain.Model, got {type(model).__name__}")
     items = _check_scenarios(scenarios)
-    quantities = list(quantities)
-    for q in quantities:
+    wanted: list[str] = list(quantities)
+    for q in wanted:
         if q not in NODE_QUANTITIES + LINK_QUANTITIES:
             raise InvalidValueError(0, f"argument 'quantities': unknown quantity {q!r}")
     if on_error not in ("raise", "record"):
@@ -283,7 +283,7 @@ def sweep(
                     copies.append(copy)
                 base = _Base(copy)
                 local.base = base
-            return _solve_chunk(base, chunk[0], chunk[1], quantities, on_error)
+            return _solve_chunk(base, chunk[0], chunk[1], wanted, on_error)
 
         try:
             with ThreadPoolExecutor(max_workers=max(1, min(lanes, len(chunks)))) as pool:
@@ -296,15 +296,15 @@ def sweep(
         digest = hashlib.sha256(text.encode("utf-8")).hexdigest()
         [shared] = client.scatter([text], broadcast=True)
         futures = [
-            client.submit(_worker_chunk, shared, digest, s, chunk, quantities, on_error, pure=False)
+            client.submit(_worker_chunk, shared, digest, s, chunk, wanted, on_error, pure=False)
             for s, chunk in chunks
         ]
         parts = client.gather(futures)
-    widths = {q: len(layout.node_ids) if q in NODE_QUANTITIES else len(layout.link_ids) for q in quantities}
-    values = {q: np.empty((n, widths[q])) for q in quantities}
+    widths = {q: len(layout.node_ids) if q in NODE_QUANTITIES else len(layout.link_ids) for q in wanted}
+    values: dict[str, FloatArray] = {q: np.empty((n, widths[q])) for q in wanted}
     errors: list[str | None] = [None] * n
     for start, part, part_errors in parts:
-        for q in quantities:
+        for q in wanted:
             values[q][start : start + len(part_errors)] = part[q]
         errors[start : start + len(part_errors)] = part_errors
     return SweepResults(values=values, errors=errors, node_ids=layout.node_ids, link_ids=layout.link_ids)
