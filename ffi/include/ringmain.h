@@ -2338,8 +2338,8 @@ ringmain_status ringmain_run_event(const ringmain_run *run,
  * running on other threads finish on the old pool. A process made by `fork` starts a new pool of
  * this size at its first such call.
  *
- * Calls that use the worker threads: `ringmain_model_solve`, `ringmain_model_simulate` and
- * `ringmain_model_solve_batch`; all other functions run on the calling thread.
+ * Calls that use the worker threads: `ringmain_model_solve` and `ringmain_model_simulate`; all
+ * other functions run on the calling thread.
  *
  * Errors: `RINGMAIN_INVALID_ARGUMENT` above 4096.
  */

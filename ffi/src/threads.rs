@@ -4,13 +4,12 @@
 //! Worker threads do not survive `fork`: the child has only the thread that called `fork`. A pool
 //! made before the fork would be waited on for ever by the child's first parallel call. The pool
 //! is therefore tagged with the id of the process that made it, and a call from another process
-//! (a forked child) makes a new pool; the parent's pool is leaked in the child (its threads do not
-//! exist there, so there is nothing to join).
+//! (a forked child) makes a new pool; the parent's pool is kept aside in the child, never dropped
+//! (its threads do not exist there, so there is nothing to join).
 //!
 //! Which calls use the pool: `ringmain_model_solve` (the first solve of a network analyses it on
 //! two threads; a network of more than a few thousand links evaluates its links' laws on all
-//! threads), `ringmain_model_simulate` (its solves) and `ringmain_model_solve_batch` (scenarios
-//! spread over the threads). Everything else runs on the calling thread.
+//! threads) and `ringmain_model_simulate` (its solves). Everything else runs on the calling thread.
 //!
 //! The pool is built on rayon (already the core's parallel engine: its scoped `install` makes the
 //! core's parallel loops run on this pool instead of rayon's global one, which is made once per
@@ -27,6 +26,14 @@ static THREADS: AtomicUsize = AtomicUsize::new(0);
 
 /// The pool and the id of the process that made it.
 static POOL: Mutex<Option<(u32, Arc<ThreadPool>)>> = Mutex::new(None);
+
+/// Pools made by the parent of a forked child, kept (not dropped: their threads do not exist in
+/// the child, so there is nothing to join) where leak checkers still see them.
+static ABANDONED: Mutex<Vec<Arc<ThreadPool>>> = Mutex::new(Vec::new());
+
+fn abandon(pool: Arc<ThreadPool>) {
+    ABANDONED.lock().unwrap_or_else(PoisonError::into_inner).push(pool);
+}
 
 /// Most threads a pool may have (far beyond any machine's cores; a bound on typing mistakes).
 pub const MAX_THREADS: usize = 4096;
@@ -51,7 +58,7 @@ fn pool() -> Result<Arc<ThreadPool>, Failure> {
     if let Some((owner, old)) = slot.take() {
         if owner != pid {
             // Made by the parent before a fork: its threads do not exist here.
-            std::mem::forget(old);
+            abandon(old);
         }
     }
     let pool =
@@ -83,8 +90,8 @@ pub fn current() -> usize {
 /// running on other threads finish on the old pool. A process made by `fork` starts a new pool of
 /// this size at its first such call.
 ///
-/// Calls that use the worker threads: `ringmain_model_solve`, `ringmain_model_simulate` and
-/// `ringmain_model_solve_batch`; all other functions run on the calling thread.
+/// Calls that use the worker threads: `ringmain_model_solve` and `ringmain_model_simulate`; all
+/// other functions run on the calling thread.
 ///
 /// Errors: `RINGMAIN_INVALID_ARGUMENT` above 4096.
 #[no_mangle]
@@ -100,7 +107,7 @@ pub extern "C" fn ringmain_set_threads(threads: usize) -> ringmain_status {
         let mut slot = POOL.lock().unwrap_or_else(PoisonError::into_inner);
         if let Some((owner, old)) = slot.take() {
             if owner != std::process::id() {
-                std::mem::forget(old);
+                abandon(old);
             }
             // Otherwise dropped: its threads end once the calls running on it return.
         }

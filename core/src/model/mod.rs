@@ -778,7 +778,8 @@ impl Model {
     /// through `restore(node, old)` and the error is returned.
     ///
     /// This is the whole-array path of the C library's setters: no node is copied, so setting
-    /// every demand of a large network costs a pass over the nodes.
+    /// every demand of a large network costs a pass over the nodes. `change` must not change a
+    /// node's id or kind (the id index would no longer match); it changes values.
     pub fn change_nodes<T>(
         &mut self,
         mut change: impl FnMut(usize, &mut Node) -> Result<Option<T>, ModelError>,
@@ -787,17 +788,10 @@ impl Model {
         let mut undo: Vec<(usize, T)> = Vec::new();
         let mut failure = None;
         for (i, node) in self.nodes.iter_mut().enumerate() {
-            let id = node.id.clone();
             match change(i, node) {
                 Ok(Some(old)) => {
                     undo.push((i, old));
-                    // The id is not the caller's to change.
-                    let checked = if node.id != id {
-                        Err(ModelError::at(Some(node.element()), Some("id"), "cannot be changed"))
-                    } else {
-                        Self::check_node(node)
-                    };
-                    if let Err(e) = checked {
+                    if let Err(e) = Self::check_node(node) {
                         failure = Some(e);
                         break;
                     }
@@ -831,14 +825,13 @@ impl Model {
         let mut undo: Vec<(usize, T)> = Vec::new();
         let mut failure = None;
         for (k, link) in links.iter_mut().enumerate() {
-            let id = link.id.clone();
             let (from, to) = (link.from, link.to);
             match change(k, link) {
                 Ok(Some(old)) => {
                     undo.push((k, old));
-                    // The id and ends are not the caller's to change.
-                    let checked = if link.id != id || link.from != from || link.to != to {
-                        Err(ModelError::at(Some(link.element()), Some("id"), "cannot be changed"))
+                    // The ends are not the caller's to change (nor the id: see the docs).
+                    let checked = if link.from != from || link.to != to {
+                        Err(ModelError::at(Some(link.element()), Some("from"), "cannot be changed"))
                     } else {
                         self.check_link(link)
                     };
