@@ -53,8 +53,17 @@ pub fn run(args: Args) -> ExitCode {
         }
     }
     let Ok(model) = crate::load(&args.model) else { return ExitCode::from(crate::EXIT_INVALID) };
-    let flows = match &args.flows {
-        None => Vec::new(),
+    // The flows in the model's unit, as they are written back (no round trip through SI).
+    let flows_user: Vec<f64> = match &args.flows {
+        None => match model.link_index(&args.pump).and_then(|k| model.links()[k].as_pump()).map(|p| &p.drive) {
+            Some(PumpDrive::Curve { points, .. }) => {
+                let last = model.units.flow.from_si(points.last().map_or(0.0, |p| p.0));
+                let n = DutyOptions::DEFAULT_STEPS;
+                (0..=n).map(|i| 1.5 * last * i as f64 / n as f64).collect()
+            }
+            // The analysis names what is wrong.
+            _ => Vec::new(),
+        },
         Some(text) => {
             let parts: Vec<&str> = text.split(':').collect();
             let numbers: Option<Vec<f64>> = parts.iter().map(|p| p.trim().parse::<f64>().ok()).collect();
@@ -63,13 +72,13 @@ pub fn run(args: Args) -> ExitCode {
                 _ => Err(format!("expected START:STOP:STEP (three numbers), found \"{text}\"")),
             };
             match grid {
-                Ok(g) => g.into_iter().map(|q| model.units.flow.to_si(q)).collect(),
+                Ok(g) => g,
                 Err(m) => return invalid(format!("--flows: {m}")),
             }
         }
     };
     let options = DutyOptions {
-        flows,
+        flows: flows_user.iter().map(|&q| model.units.flow.to_si(q)).collect(),
         speeds: args.speeds.clone(),
         motor_margin: args.motor_margin,
         npsh_margin: args.npsh_margin,
@@ -83,7 +92,7 @@ pub fn run(args: Args) -> ExitCode {
             return ExitCode::from(crate::EXIT_NOT_CONVERGED);
         }
     };
-    let view = View { model: &model, analysis: &analysis };
+    let view = View { model: &model, analysis: &analysis, flows: &flows_user };
     if let Some(plot) = &args.plot {
         if let Err(e) = write_atomically(plot, &view.svg()) {
             eprintln!("error: cannot write the chart to {}: {e}", plot.display());
@@ -126,9 +135,18 @@ fn write_atomically(path: &Path, text: &str) -> std::io::Result<()> {
 struct View<'a> {
     model: &'a Model,
     analysis: &'a DutyAnalysis,
+    /// The system curve's flows in the model's unit, as given or made (no round trip via SI).
+    flows: &'a [f64],
 }
 
 impl View<'_> {
+    /// The `i`-th flow of the system curve, in the model's unit.
+    fn qi(&self, i: usize) -> f64 {
+        match self.flows.get(i) {
+            Some(&q) if self.flows.len() == self.analysis.system_curve.len() => q,
+            _ => self.q(self.analysis.system_curve[i].0),
+        }
+    }
     fn q(&self, v: f64) -> f64 {
         self.model.units.flow.from_si(v)
     }
@@ -204,9 +222,14 @@ impl View<'_> {
                 "flow": u.flow.label(), "head": u.length.label(), "power": self.power_label(),
                 "efficiency": "percent", "npsh": u.length.label(),
             },
-            "system_curve": a.system_curve.iter().map(|&(q, h)| [self.q(q), self.h(h)]).collect::<Vec<_>>(),
-            "npsh_available_curve":
-                a.npsh_available_curve.iter().map(|&(q, h)| [self.q(q), self.h(h)]).collect::<Vec<_>>(),
+            "system_curve":
+                a.system_curve.iter().enumerate().map(|(i, &(_, h))| [self.qi(i), self.h(h)]).collect::<Vec<_>>(),
+            "npsh_available_curve": a
+                .npsh_available_curve
+                .iter()
+                .enumerate()
+                .map(|(i, &(_, h))| [self.qi(i), self.h(h)])
+                .collect::<Vec<_>>(),
             "operating_points": a.operating_points.iter().map(|p| json!({
                 "speed": p.speed,
                 "flow": self.q(p.flow),
@@ -231,8 +254,11 @@ impl View<'_> {
             "caution": CAUTION,
         });
         if let Some(band) = &a.system_curve_band {
-            out["system_curve_band"] =
-                json!(band.iter().map(|&(q, lo, hi)| [self.q(q), self.h(lo), self.h(hi)]).collect::<Vec<_>>());
+            out["system_curve_band"] = json!(band
+                .iter()
+                .enumerate()
+                .map(|(i, &(_, lo, hi))| [self.qi(i), self.h(lo), self.h(hi)])
+                .collect::<Vec<_>>());
         }
         out
     }
@@ -247,8 +273,8 @@ impl View<'_> {
             let _ = write!(s, ",system_head_low_{l},system_head_high_{l}", l = u.length);
         }
         let _ = writeln!(s, ",npsh_available_{}", u.length);
-        for (i, &(q, h)) in a.system_curve.iter().enumerate() {
-            let _ = write!(s, "{},{}", self.q(q), self.h(h));
+        for (i, &(_, h)) in a.system_curve.iter().enumerate() {
+            let _ = write!(s, "{},{}", self.qi(i), self.h(h));
             if let Some(b) = band {
                 let _ = write!(s, ",{},{}", self.h(b[i].1), self.h(b[i].2));
             }
@@ -301,8 +327,8 @@ impl View<'_> {
             let _ = write!(s, " {:>12} {:>12}", "low", "high");
         }
         let _ = writeln!(s, " {:>14}", format!("NPSHa {}", u.length));
-        for (i, &(q, h)) in a.system_curve.iter().enumerate() {
-            let _ = write!(s, "{:>12.3} {:>12.3}", self.q(q), self.h(h));
+        for (i, &(_, h)) in a.system_curve.iter().enumerate() {
+            let _ = write!(s, "{:>12.3} {:>12.3}", self.qi(i), self.h(h));
             if let Some(b) = band {
                 let _ = write!(s, " {:>12.3} {:>12.3}", self.h(b[i].1), self.h(b[i].2));
             }
