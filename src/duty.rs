@@ -39,6 +39,9 @@ fn invalid(message: impl std::fmt::Display) -> ExitCode {
 
 /// Runs `ringmain duty`.
 pub fn run(args: Args) -> ExitCode {
+    if args.format == crate::OutputFormat::Geojson {
+        return invalid("--format geojson applies to solve and simulate (results on a map); use table, json or csv");
+    }
     let tank_levels = match args.tank_levels.replace(' ', "").as_str() {
         "current" => TankLevels::Current,
         "min,max" => TankLevels::MinMax,
@@ -106,7 +109,7 @@ pub fn run(args: Args) -> ExitCode {
             out.write_all(b"\n")
         }
         crate::OutputFormat::Csv => out.write_all(view.csv().as_bytes()),
-        crate::OutputFormat::Table => out.write_all(view.table().as_bytes()),
+        crate::OutputFormat::Table | crate::OutputFormat::Geojson => out.write_all(view.table().as_bytes()),
     })
 }
 
@@ -630,6 +633,9 @@ fn render_xy(title: &str, x_label: &str, x_max: f64, panels: &[XyPanel]) -> Stri
 /// Runs `ringmain fittings`: the kinds, their parameters, their values under each method and
 /// the sources.
 pub fn list_fittings(format: crate::OutputFormat) -> ExitCode {
+    if format == crate::OutputFormat::Geojson {
+        return invalid("--format geojson applies to solve and simulate (results on a map); use table, json or csv");
+    }
     let text = match format {
         crate::OutputFormat::Json => {
             let kinds: Vec<Value> = FittingKind::ALL
@@ -679,7 +685,7 @@ pub fn list_fittings(format: crate::OutputFormat) -> ExitCode {
             }
             s
         }
-        crate::OutputFormat::Table => {
+        crate::OutputFormat::Table | crate::OutputFormat::Geojson => {
             let mut s = String::from("fittings of pipes and valves: fittings = [{ kind, count, ... }]\n\n");
             let _ = writeln!(
                 s,

@@ -37,6 +37,7 @@ pub mod analysis;
 pub mod duty;
 pub mod error;
 pub mod generate;
+pub mod import;
 pub mod model;
 pub mod physics;
 pub mod simulate;

@@ -1,5 +1,6 @@
 //! Physics of single elements: water properties, friction laws, minor losses and named
-//! fittings, pump curves, the standard atmosphere.
+//! fittings, pump curves, the standard atmosphere, the outflow relations of junctions
+//! (pressure-dependent demand, outlets, leakage).
 //!
 //! Entry points: [`water::WaterProperties::at_celsius`], [`friction::Friction`] (the friction part
 //! of a pipe's head loss, with coefficients computed once), [`friction::minor_loss_coefficient`],
@@ -9,6 +10,7 @@
 pub mod atmosphere;
 pub mod fittings;
 pub mod friction;
+pub mod outflow;
 pub mod pump;
 pub mod water;
 
