@@ -56,6 +56,8 @@ fn network(n: usize) -> Model {
         report_interval: HOUR,
         start_clock: 0.0,
         level_tolerance: SimulationSettings::LEVEL_TOLERANCE,
+        transport_step: None,
+        quality_tolerance: None,
     });
     m
 }

@@ -39,6 +39,9 @@ fn invalid(message: impl std::fmt::Display) -> ExitCode {
 
 /// Runs `ringmain duty`.
 pub fn run(args: Args) -> ExitCode {
+    if args.format == crate::OutputFormat::Geojson {
+        return invalid("--format geojson applies to solve and simulate (results on a map); use table, json or csv");
+    }
     let tank_levels = match args.tank_levels.replace(' ', "").as_str() {
         "current" => TankLevels::Current,
         "min,max" => TankLevels::MinMax,
@@ -53,8 +56,17 @@ pub fn run(args: Args) -> ExitCode {
         }
     }
     let Ok(model) = crate::load(&args.model) else { return ExitCode::from(crate::EXIT_INVALID) };
-    let flows = match &args.flows {
-        None => Vec::new(),
+    // The flows in the model's unit, as they are written back (no round trip through SI).
+    let flows_user: Vec<f64> = match &args.flows {
+        None => match model.link_index(&args.pump).and_then(|k| model.links()[k].as_pump()).map(|p| &p.drive) {
+            Some(PumpDrive::Curve { points, .. }) => {
+                let last = model.units.flow.from_si(points.last().map_or(0.0, |p| p.0));
+                let n = DutyOptions::DEFAULT_STEPS;
+                (0..=n).map(|i| 1.5 * last * i as f64 / n as f64).collect()
+            }
+            // The analysis names what is wrong.
+            _ => Vec::new(),
+        },
         Some(text) => {
             let parts: Vec<&str> = text.split(':').collect();
             let numbers: Option<Vec<f64>> = parts.iter().map(|p| p.trim().parse::<f64>().ok()).collect();
@@ -63,13 +75,13 @@ pub fn run(args: Args) -> ExitCode {
                 _ => Err(format!("expected START:STOP:STEP (three numbers), found \"{text}\"")),
             };
             match grid {
-                Ok(g) => g.into_iter().map(|q| model.units.flow.to_si(q)).collect(),
+                Ok(g) => g,
                 Err(m) => return invalid(format!("--flows: {m}")),
             }
         }
     };
     let options = DutyOptions {
-        flows,
+        flows: flows_user.iter().map(|&q| model.units.flow.to_si(q)).collect(),
         speeds: args.speeds.clone(),
         motor_margin: args.motor_margin,
         npsh_margin: args.npsh_margin,
@@ -83,7 +95,7 @@ pub fn run(args: Args) -> ExitCode {
             return ExitCode::from(crate::EXIT_NOT_CONVERGED);
         }
     };
-    let view = View { model: &model, analysis: &analysis };
+    let view = View { model: &model, analysis: &analysis, flows: &flows_user };
     if let Some(plot) = &args.plot {
         if let Err(e) = write_atomically(plot, &view.svg()) {
             eprintln!("error: cannot write the chart to {}: {e}", plot.display());
@@ -96,9 +108,8 @@ pub fn run(args: Args) -> ExitCode {
             serde_json::to_writer_pretty(&mut *out, &view.json())?;
             out.write_all(b"\n")
         }
-        // GeoJSON is refused before the command runs (main.rs).
-        crate::OutputFormat::Csv | crate::OutputFormat::Geojson => out.write_all(view.csv().as_bytes()),
-        crate::OutputFormat::Table => out.write_all(view.table().as_bytes()),
+        crate::OutputFormat::Csv => out.write_all(view.csv().as_bytes()),
+        crate::OutputFormat::Table | crate::OutputFormat::Geojson => out.write_all(view.table().as_bytes()),
     })
 }
 
@@ -127,9 +138,18 @@ fn write_atomically(path: &Path, text: &str) -> std::io::Result<()> {
 struct View<'a> {
     model: &'a Model,
     analysis: &'a DutyAnalysis,
+    /// The system curve's flows in the model's unit, as given or made (no round trip via SI).
+    flows: &'a [f64],
 }
 
 impl View<'_> {
+    /// The `i`-th flow of the system curve, in the model's unit.
+    fn qi(&self, i: usize) -> f64 {
+        match self.flows.get(i) {
+            Some(&q) if self.flows.len() == self.analysis.system_curve.len() => q,
+            _ => self.q(self.analysis.system_curve[i].0),
+        }
+    }
     fn q(&self, v: f64) -> f64 {
         self.model.units.flow.from_si(v)
     }
@@ -205,9 +225,14 @@ impl View<'_> {
                 "flow": u.flow.label(), "head": u.length.label(), "power": self.power_label(),
                 "efficiency": "percent", "npsh": u.length.label(),
             },
-            "system_curve": a.system_curve.iter().map(|&(q, h)| [self.q(q), self.h(h)]).collect::<Vec<_>>(),
-            "npsh_available_curve":
-                a.npsh_available_curve.iter().map(|&(q, h)| [self.q(q), self.h(h)]).collect::<Vec<_>>(),
+            "system_curve":
+                a.system_curve.iter().enumerate().map(|(i, &(_, h))| [self.qi(i), self.h(h)]).collect::<Vec<_>>(),
+            "npsh_available_curve": a
+                .npsh_available_curve
+                .iter()
+                .enumerate()
+                .map(|(i, &(_, h))| [self.qi(i), self.h(h)])
+                .collect::<Vec<_>>(),
             "operating_points": a.operating_points.iter().map(|p| json!({
                 "speed": p.speed,
                 "flow": self.q(p.flow),
@@ -232,8 +257,11 @@ impl View<'_> {
             "caution": CAUTION,
         });
         if let Some(band) = &a.system_curve_band {
-            out["system_curve_band"] =
-                json!(band.iter().map(|&(q, lo, hi)| [self.q(q), self.h(lo), self.h(hi)]).collect::<Vec<_>>());
+            out["system_curve_band"] = json!(band
+                .iter()
+                .enumerate()
+                .map(|(i, &(_, lo, hi))| [self.qi(i), self.h(lo), self.h(hi)])
+                .collect::<Vec<_>>());
         }
         out
     }
@@ -248,8 +276,8 @@ impl View<'_> {
             let _ = write!(s, ",system_head_low_{l},system_head_high_{l}", l = u.length);
         }
         let _ = writeln!(s, ",npsh_available_{}", u.length);
-        for (i, &(q, h)) in a.system_curve.iter().enumerate() {
-            let _ = write!(s, "{},{}", self.q(q), self.h(h));
+        for (i, &(_, h)) in a.system_curve.iter().enumerate() {
+            let _ = write!(s, "{},{}", self.qi(i), self.h(h));
             if let Some(b) = band {
                 let _ = write!(s, ",{},{}", self.h(b[i].1), self.h(b[i].2));
             }
@@ -302,8 +330,8 @@ impl View<'_> {
             let _ = write!(s, " {:>12} {:>12}", "low", "high");
         }
         let _ = writeln!(s, " {:>14}", format!("NPSHa {}", u.length));
-        for (i, &(q, h)) in a.system_curve.iter().enumerate() {
-            let _ = write!(s, "{:>12.3} {:>12.3}", self.q(q), self.h(h));
+        for (i, &(_, h)) in a.system_curve.iter().enumerate() {
+            let _ = write!(s, "{:>12.3} {:>12.3}", self.qi(i), self.h(h));
             if let Some(b) = band {
                 let _ = write!(s, " {:>12.3} {:>12.3}", self.h(b[i].1), self.h(b[i].2));
             }
@@ -605,6 +633,9 @@ fn render_xy(title: &str, x_label: &str, x_max: f64, panels: &[XyPanel]) -> Stri
 /// Runs `ringmain fittings`: the kinds, their parameters, their values under each method and
 /// the sources.
 pub fn list_fittings(format: crate::OutputFormat) -> ExitCode {
+    if format == crate::OutputFormat::Geojson {
+        return invalid("--format geojson applies to solve and simulate (results on a map); use table, json or csv");
+    }
     let text = match format {
         crate::OutputFormat::Json => {
             let kinds: Vec<Value> = FittingKind::ALL
@@ -633,7 +664,7 @@ pub fn list_fittings(format: crate::OutputFormat) -> ExitCode {
             .unwrap_or_default()
                 + "\n"
         }
-        crate::OutputFormat::Csv | crate::OutputFormat::Geojson => {
+        crate::OutputFormat::Csv => {
             let mut s = String::from(
                 "kind,parameters,crane_l_over_d,two_k_k1,two_k_k_inf,three_k_k1,three_k_k_i,three_k_k_d\n",
             );
@@ -654,7 +685,7 @@ pub fn list_fittings(format: crate::OutputFormat) -> ExitCode {
             }
             s
         }
-        crate::OutputFormat::Table => {
+        crate::OutputFormat::Table | crate::OutputFormat::Geojson => {
             let mut s = String::from("fittings of pipes and valves: fittings = [{ kind, count, ... }]\n\n");
             let _ = writeln!(
                 s,

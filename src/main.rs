@@ -5,10 +5,10 @@
 
 mod check;
 mod check_report;
+mod duty;
 mod gis;
 mod import_cmd;
 mod map;
-mod duty;
 mod plot;
 mod quality_report;
 mod report;

@@ -1046,11 +1046,11 @@ fn read_link(index: usize, value: Value, model: &Model) -> Result<LinkRead, Mode
         "valve" => f.pattern("setting_pattern", &model.time)?,
         _ => None,
     };
-    let mut leakage_rate = None;
     let fittings = match kind.as_str() {
         "pipe" | "valve" => read_fittings(&mut f)?,
         _ => Vec::new(),
     };
+    let mut leakage_rate = None;
     let (kind, status) = match kind.as_str() {
         "pipe" => {
             if let Some(rate) = f.number("leakage_rate")? {
@@ -1072,6 +1072,65 @@ fn read_link(index: usize, value: Value, model: &Model) -> Result<LinkRead, Mode
     static ALL_LINK_KEYS: OnceLock<Vec<&'static str>> = OnceLock::new();
     f.finish_with(keys, ALL_LINK_KEYS.get_or_init(|| all_keys(LINK_KEYS)), kind.label())?;
     Ok((Link { id: id.into(), from, to, status, kind }, pattern, leakage_rate, path, fittings))
+}
+
+/// Reads a link's `fittings`: an array of tables `{ kind, count, radius, angle, opening }`.
+/// Values are checked by [`Model::set_fittings`]; here only their types and which keys each kind
+/// takes.
+fn read_fittings(f: &mut Fields) -> Result<Vec<Fitting>, ModelError> {
+    let Some(list) = f.take("fittings") else { return Ok(Vec::new()) };
+    let Value::Array(items) = list else {
+        return Err(f.error(
+            "fittings",
+            format!("must be an array of tables such as {{ kind = \"elbow-90\", count = 2 }}, found {}", list.kind()),
+        ));
+    };
+    let mut out = Vec::with_capacity(items.len());
+    for (i, item) in items.into_iter().enumerate() {
+        let mut e = f.nested(format!("fittings[{}].", i + 1), item)?;
+        e.reject_unknown(FITTING_KEYS)?;
+        let text = e.string("kind")?.ok_or_else(|| e.error("kind", "is missing"))?;
+        let Some(kind) = FittingKind::parse(&text) else {
+            let names: Vec<&str> = FittingKind::ALL.iter().map(|k| k.label()).collect();
+            let hint =
+                suggest(&text, names.iter().copied()).map(|s| format!(" (did you mean \"{s}\"?)")).unwrap_or_default();
+            return Err(e.error(
+                "kind",
+                format!(
+                    "unknown fitting kind \"{}\"{hint}; expected one of {} (`ringmain fittings` lists them)",
+                    crate::error::printable(&text),
+                    names.join(", ")
+                ),
+            ));
+        };
+        let mut fitting = Fitting::new(kind);
+        if let Some(n) = e.integer("count")? {
+            if !(1..=i64::from(u32::MAX)).contains(&n) {
+                return Err(e.error("count", format!("must be a whole number of at least 1, found {n}")));
+            }
+            fitting.count = n as u32;
+        }
+        let takes = kind.parameters();
+        for key in ["radius", "angle", "opening"] {
+            let Some(v) = e.number(key)? else {
+                if kind == FittingKind::Bend && key == "radius" {
+                    return Err(e.error("radius", "is missing: give the bend radius in pipe diameters (r/D >= 0.5)"));
+                }
+                continue;
+            };
+            if !takes.contains(&key) {
+                return Err(e.error(key, format!("does not apply to a {} fitting", kind.label())));
+            }
+            match key {
+                "radius" => fitting.radius = v,
+                "angle" => fitting.angle = v,
+                _ => fitting.opening = v,
+            }
+        }
+        e.finish(FITTING_KEYS)?;
+        out.push(fitting);
+    }
+    Ok(out)
 }
 
 /// A leakage rate in flow units per km (per 1000 ft where lengths are in ft) into m³/s per m.
@@ -1173,65 +1232,6 @@ fn read_junction_outflow(
         j.outlet = Some(Outlet { coefficient: outlet_coefficient_to_si(units, density, c, e), exponent: e });
     }
     Ok(Some(j))
-}
-
-/// Reads a link's `fittings`: an array of tables `{ kind, count, radius, angle, opening }`.
-/// Values are checked by [`Model::set_fittings`]; here only their types and which keys each kind
-/// takes.
-fn read_fittings(f: &mut Fields) -> Result<Vec<Fitting>, ModelError> {
-    let Some(list) = f.take("fittings") else { return Ok(Vec::new()) };
-    let Value::Array(items) = list else {
-        return Err(f.error(
-            "fittings",
-            format!("must be an array of tables such as {{ kind = \"elbow-90\", count = 2 }}, found {}", list.kind()),
-        ));
-    };
-    let mut out = Vec::with_capacity(items.len());
-    for (i, item) in items.into_iter().enumerate() {
-        let mut e = f.nested(format!("fittings[{}].", i + 1), item)?;
-        e.reject_unknown(FITTING_KEYS)?;
-        let text = e.string("kind")?.ok_or_else(|| e.error("kind", "is missing"))?;
-        let Some(kind) = FittingKind::parse(&text) else {
-            let names: Vec<&str> = FittingKind::ALL.iter().map(|k| k.label()).collect();
-            let hint =
-                suggest(&text, names.iter().copied()).map(|s| format!(" (did you mean \"{s}\"?)")).unwrap_or_default();
-            return Err(e.error(
-                "kind",
-                format!(
-                    "unknown fitting kind \"{}\"{hint}; expected one of {} (`ringmain fittings` lists them)",
-                    crate::error::printable(&text),
-                    names.join(", ")
-                ),
-            ));
-        };
-        let mut fitting = Fitting::new(kind);
-        if let Some(n) = e.integer("count")? {
-            if !(1..=i64::from(u32::MAX)).contains(&n) {
-                return Err(e.error("count", format!("must be a whole number of at least 1, found {n}")));
-            }
-            fitting.count = n as u32;
-        }
-        let takes = kind.parameters();
-        for key in ["radius", "angle", "opening"] {
-            let Some(v) = e.number(key)? else {
-                if kind == FittingKind::Bend && key == "radius" {
-                    return Err(e.error("radius", "is missing: give the bend radius in pipe diameters (r/D >= 0.5)"));
-                }
-                continue;
-            };
-            if !takes.contains(&key) {
-                return Err(e.error(key, format!("does not apply to a {} fitting", kind.label())));
-            }
-            match key {
-                "radius" => fitting.radius = v,
-                "angle" => fitting.angle = v,
-                _ => fitting.opening = v,
-            }
-        }
-        e.finish(FITTING_KEYS)?;
-        out.push(fitting);
-    }
-    Ok(out)
 }
 
 /// Reads `status`: open | closed, and for valves also automatic (the default for valves).

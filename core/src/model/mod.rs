@@ -492,14 +492,14 @@ pub struct Model {
     /// The `[criteria]` table as written, unchecked; [`crate::analysis::Criteria::apply`]
     /// reads it (only the commands that check criteria need it to be valid).
     pub criteria: Option<doc::Value>,
-    /// Outflows that follow pressure: pressure-dependent demand, outlets, leakage.
-    pub outflow: outflow::OutflowData,
-    /// Map data: coordinate kind and drawn alignments (`[map]`, `path`).
-    pub map: MapData,
     /// Named fittings of pipes and valves: link index → its list (set through
     /// [`Model::set_fittings`], which checks them). Kept beside the links rather than in them:
     /// few links list fittings, and every link of a large network stays small.
     fittings: BTreeMap<usize, Box<[Fitting]>>,
+    /// Outflows that follow pressure: pressure-dependent demand, outlets, leakage.
+    pub outflow: outflow::OutflowData,
+    /// Map data: coordinate kind and drawn alignments (`[map]`, `path`).
+    pub map: MapData,
     nodes: Vec<Node>,
     links: Vec<Link>,
     node_index: IdIndex,
@@ -509,8 +509,20 @@ pub struct Model {
 /// Two models are equal when their data are; the id indices follow from the elements.
 impl PartialEq for Model {
     fn eq(&self, other: &Self) -> bool {
-        let Model { title, units, options, time, criteria, outflow, map, fittings, nodes, links, node_index: _, link_index: _ } =
-            self;
+        let Model {
+            title,
+            units,
+            options,
+            time,
+            criteria,
+            fittings,
+            outflow,
+            map,
+            nodes,
+            links,
+            node_index: _,
+            link_index: _,
+        } = self;
         *title == other.title
             && *fittings == other.fittings
             && *units == other.units
