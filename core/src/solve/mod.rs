@@ -57,6 +57,7 @@
 //! answer.
 
 pub mod factor;
+pub mod finite;
 pub mod links;
 pub mod pattern;
 pub mod status;
@@ -625,6 +626,25 @@ impl Solver {
             flow_change = change;
             self.timings.assembly += solved.elapsed();
             if !finite || !flow_change.is_finite() {
+                // Name the element whose value overflowed: the first head, then the first flow.
+                let node = (0..self.delta.len())
+                    .find(|&u| self.free[u] && !self.unknown_head[u].is_finite())
+                    .map(|u| (self.pattern.node_of_unknown[u] as usize, self.unknown_head[u]));
+                if let Some((i, value)) = node {
+                    return Err(SolveError::NonFinite {
+                        element: Element::Node(nodes[i].id.to_string()),
+                        quantity: "head",
+                        value,
+                    });
+                }
+                let link = self.pattern.core.iter().zip(&self.cq).find(|(_, q)| !q.is_finite());
+                if let Some((c, &value)) = link {
+                    return Err(SolveError::NonFinite {
+                        element: Element::Link(links[c.link as usize].id.to_string()),
+                        quantity: "flow",
+                        value,
+                    });
+                }
                 return Err(SolveError::Numerical {
                     iteration: iterations,
                     detail: "heads or flows became NaN".into(),
@@ -680,6 +700,7 @@ impl Solver {
         let solution = self.finish(model, iterations, status_changes, head_change, flow_change, &tracker, ending);
         self.timings.results += clock.elapsed();
         self.timings.iterations = iterations;
+        finite::check(model, &solution)?;
         Ok(solution)
     }
 
