@@ -770,7 +770,21 @@ impl Solver {
                     continue;
                 }
                 let adjacent = self.pattern.adjacency.of(i);
-                if let Some(&k) = adjacent.iter().find(|&&k| tracker.state[k as usize] == LinkState::Active) {
+                // The valve held open: of flow-control valves in series the one with the larger
+                // setting (the smaller one limits the flow, the other cannot reach its setting);
+                // otherwise the first active one.
+                let flow_setting = |k: u32| {
+                    links[k as usize].as_valve().filter(|v| v.valve == ValveType::FlowControl).map(|v| v.setting)
+                };
+                let active = adjacent.iter().copied().filter(|&k| tracker.state[k as usize] == LinkState::Active);
+                let widest = active.clone().filter_map(|k| flow_setting(k).map(|s| (k, s))).fold(
+                    None,
+                    |best: Option<(u32, f64)>, (k, s)| match best {
+                        Some((_, b)) if b >= s => best,
+                        _ => Some((k, s)),
+                    },
+                );
+                if let Some(k) = widest.map(|(k, _)| k).or_else(|| active.clone().next()) {
                     tracker.hold_open(model, k as usize);
                     forced = true;
                     break;
