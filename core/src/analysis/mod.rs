@@ -114,8 +114,12 @@ impl Scenario {
             m.set_status(k, LinkStatus::Closed)?;
         }
         let f = self.demand_factor;
-        if !(f.is_finite() && f >= 0.0) {
-            return Err(ModelError::new(format!("the demand factor must be a finite number of at least 0, found {f}")));
+        if !(f.is_finite() && f > 0.0 && f <= crate::model::LARGEST_FACTOR) {
+            return Err(ModelError::new(format!(
+                "the demand factor must be positive (greater than zero, at most {:e}), found {}",
+                crate::model::LARGEST_FACTOR,
+                crate::model::show(f)
+            )));
         }
         if f != 1.0 {
             for i in 0..m.nodes().len() {
