@@ -17,6 +17,8 @@ use crate::{Element, ModelError};
 
 /// Largest number of rounds of tank-limit closures in one evaluation.
 const LIMIT_ROUNDS: usize = 30;
+/// A tank level beyond this (m) is no tank's: the tallest standpipes are some tens of metres.
+const LEVEL_BEYOND_ANY_TANK: f64 = 1e5;
 /// Flows below this (m³/s) do not count as filling or draining a tank at a limit.
 const FLOW_EPS: f64 = 1e-10;
 
@@ -256,6 +258,22 @@ impl Network {
     pub fn evaluate(&mut self, volumes: &[f64], settings: &LinkSettings, time: f64) -> Result<Stage, SimulateError> {
         for (j, t) in self.tanks.iter().enumerate() {
             let level = t.level(volumes[j]).max(0.0);
+            if !(level <= LEVEL_BEYOND_ANY_TANK) {
+                // The level follows from the volume and the shape: blame the shape.
+                let key = if matches!(t.shape, Shape::Curve(_)) { "volume_curve" } else { "diameter" };
+                return Err(ModelError::at(
+                    Some(Element::Node(self.work.nodes()[t.node].id.to_string())),
+                    Some(key),
+                    format!(
+                        "the tank's level would reach {} m at {} s of the run: its plan area ({} m2) is far too \
+                         small for the water it receives (is the {key} in the right unit?)",
+                        crate::model::show(level),
+                        crate::model::show(time),
+                        crate::model::show(t.area(0.0))
+                    ),
+                )
+                .into());
+            }
             let mut node = self.work.nodes()[t.node].clone();
             if let NodeKind::Tank(wt) = &mut node.kind {
                 if wt.level != level {
@@ -331,7 +349,10 @@ impl Network {
                         LinkKind::Pump(_) => {
                             (mode == TankMode::Full && end == l.from) || (mode == TankMode::Empty && end == l.to)
                         }
-                        _ => h_other.is_finite() && sign * (h_tank - h_other) > self.options.head_tolerance,
+                        // The other side cut off from every source (its supply shut, its pump
+                        // stopped) would draw from a full tank and cannot feed an empty one.
+                        _ if !h_other.is_finite() => mode == TankMode::Full,
+                        _ => sign * (h_tank - h_other) > self.options.head_tolerance,
                     };
                     keep_closed |= !allowed;
                 }
@@ -384,6 +405,17 @@ impl Network {
             })
             .collect();
         Stage { tank_inflow, supplied, delivered, unsupplied, pumps, solution }
+    }
+
+    /// Takes tank `j` out of its limit mode and reopens the links closed for it.
+    pub fn release(&mut self, j: usize) {
+        self.mode[j] = TankMode::Normal;
+        let node = self.tanks[j].node;
+        for (k, l) in self.work.links().iter().enumerate() {
+            if l.from == node || l.to == node {
+                self.limit_closed[k] = false;
+            }
+        }
     }
 
     /// Links closed by the limit rule at tank `j` right now.
