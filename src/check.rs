@@ -140,6 +140,16 @@ fn exit(code: u8) -> ExitCode {
 /// Runs the command.
 pub fn run(args: Args) -> ExitCode {
     let started = Instant::now();
+    if let Some(junit) = &args.junit {
+        let mut inputs = vec![("model", args.model.as_path())];
+        if let Some(c) = &args.criteria {
+            inputs.push(("criteria file", c.as_path()));
+        }
+        if let Err(message) = crate::output::refuse_input("--junit", junit, &inputs) {
+            eprintln!("error: {message}");
+            return exit(EXIT_INVALID);
+        }
+    }
     let (model, model_source) = match read_model(&args.model) {
         Ok(read) => read,
         Err((e, source)) => {
@@ -245,7 +255,8 @@ pub fn run(args: Args) -> ExitCode {
     };
     let code = run.exit_code();
     if let Some(path) = &args.junit {
-        if let Err(e) = std::fs::write(path, check_report::to_junit(&run)) {
+        let junit = check_report::to_junit(&run);
+        if let Err(e) = crate::output::write_file(path, |out| out.write_all(junit.as_bytes())) {
             eprintln!("error: cannot write the JUnit report to {}: {e}", path.display());
             return exit(EXIT_WRITE);
         }

@@ -5,6 +5,7 @@
 
 mod check;
 mod check_report;
+mod output;
 mod plot;
 mod report;
 mod simulation;
@@ -13,7 +14,6 @@ mod snippet;
 use clap::{Parser, Subcommand, ValueEnum};
 use ringmain_core::physics::{friction_factor, WaterProperties};
 use ringmain_core::{Model, SolveError};
-use std::fs::File;
 use std::io::{BufWriter, Write};
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
@@ -98,8 +98,8 @@ enum Command {
         /// Close this link for the check (repeatable).
         #[arg(long, value_name = "ID")]
         close: Vec<String>,
-        /// Multiply every junction demand by this factor.
-        #[arg(long, value_name = "F", default_value_t = 1.0)]
+        /// Multiply every junction demand by this factor (positive).
+        #[arg(long, value_name = "F", default_value_t = 1.0, allow_negative_numbers = true)]
         demand_factor: f64,
         /// Also close every open pipe in turn (a criticality sweep on all cores).
         #[arg(long)]
@@ -117,7 +117,7 @@ enum Command {
     /// Print the density and viscosity of water at a temperature (IAPWS formulations).
     WaterProperties {
         /// Water temperature, deg C (0 to 99).
-        #[arg(long)]
+        #[arg(long, allow_negative_numbers = true)]
         temperature: f64,
         /// Output format.
         #[arg(long, value_enum, default_value_t = OutputFormat::Table)]
@@ -126,10 +126,10 @@ enum Command {
     /// Print the Darcy friction factor for a Reynolds number and relative roughness.
     FrictionFactor {
         /// Reynolds number.
-        #[arg(long)]
+        #[arg(long, allow_negative_numbers = true)]
         reynolds: f64,
         /// Relative roughness, absolute roughness divided by diameter.
-        #[arg(long)]
+        #[arg(long, allow_negative_numbers = true)]
         relative_roughness: f64,
         /// Output format.
         #[arg(long, value_enum, default_value_t = OutputFormat::Table)]
@@ -219,30 +219,40 @@ pub(crate) fn write_with(
                 }
             }
         }
-        Some(path) => {
-            let written = File::create(path).and_then(|file| {
-                let mut out = BufWriter::with_capacity(BUFFER, file);
-                write(&mut out)?;
-                out.flush()
-            });
-            match written {
-                Ok(()) => ExitCode::SUCCESS,
-                Err(e) => {
-                    eprintln!("error: cannot write {what} to {}: {e}", path.display());
-                    ExitCode::from(EXIT_WRITE)
-                }
+        Some(path) => match output::write_file(path, write) {
+            Ok(()) => ExitCode::SUCCESS,
+            Err(e) => {
+                eprintln!("error: cannot write {what} to {}: {e}", path.display());
+                ExitCode::from(EXIT_WRITE)
+            }
+        },
+    }
+}
+
+/// Refuses outputs that are inputs (see [`output`]); prints the message. `outputs` pairs each
+/// output path with the option that named it.
+fn refuse_overwrite(model: &Path, outputs: &[(&str, Option<&Path>)]) -> Result<(), ExitCode> {
+    for (option, path) in outputs {
+        if let Some(path) = path {
+            if let Err(message) = output::refuse_input(option, path, &[("model", model)]) {
+                eprintln!("error: {message}");
+                return Err(ExitCode::from(EXIT_INVALID));
             }
         }
     }
+    Ok(())
 }
 
 fn solve(path: &Path, format: OutputFormat, output: Option<&Path>, timings: bool) -> ExitCode {
     let clock = Instant::now();
+    if let Err(code) = refuse_overwrite(path, &[("--output", output)]) {
+        return code;
+    }
     let Ok(model) = load(path) else { return ExitCode::from(EXIT_INVALID) };
     let reading = clock.elapsed();
     let mut solver = None;
     let solved = ringmain_core::Solver::new(&model).and_then(|s| solver.insert(s).solve(&model));
-    let solution = match solved {
+    let mut solution = match solved {
         Ok(s) => s,
         Err(SolveError::Model(e)) => {
             eprintln!("error: {}", e.in_file(path.display().to_string()));
@@ -254,6 +264,10 @@ fn solve(path: &Path, format: OutputFormat, output: Option<&Path>, timings: bool
         }
     };
     let clock = Instant::now();
+    // Valid values that are almost certainly typing mistakes, first among the warnings.
+    let mut warnings = plausibility_warnings(&model);
+    warnings.append(&mut solution.warnings);
+    solution.warnings = warnings;
     if format != OutputFormat::Json {
         for w in &solution.warnings {
             if let Some(e) = &w.element {
@@ -275,6 +289,21 @@ fn solve(path: &Path, format: OutputFormat, output: Option<&Path>, timings: bool
     // a large network's millions of small allocations one by one takes a noticeable time.
     std::mem::forget((solution, model, solver));
     code
+}
+
+/// The model's plausibility warnings (see `ringmain_core::analysis::plausibility`) as solution
+/// warnings, each naming its key.
+fn plausibility_warnings(model: &Model) -> Vec<ringmain_core::solve::Warning> {
+    ringmain_core::analysis::plausibility(model)
+        .into_iter()
+        .map(|d| ringmain_core::solve::Warning {
+            element: Some(d.element),
+            message: match d.key {
+                Some(key) => format!("key '{key}': {}", d.message),
+                None => d.message,
+            },
+        })
+        .collect()
 }
 
 /// The `--timings` report, on standard error.
@@ -382,7 +411,18 @@ impl Progress {
 
 fn simulate(path: &Path, format: OutputFormat, output: Option<&Path>, plot_dir: Option<&Path>) -> ExitCode {
     use ringmain_core::SimulateError;
+    let charts: Vec<PathBuf> = plot_dir.map(|d| plot::FILES.iter().map(|f| d.join(f)).collect()).unwrap_or_default();
+    let mut outputs = vec![("--output", output)];
+    outputs.extend(charts.iter().map(|c| ("--plot", Some(c.as_path()))));
+    if let Err(code) = refuse_overwrite(path, &outputs) {
+        return code;
+    }
     let Ok(model) = load(path) else { return ExitCode::from(EXIT_INVALID) };
+    for w in plausibility_warnings(&model) {
+        if let Some(e) = &w.element {
+            eprintln!("warning: {e}: {}", w.message);
+        }
+    }
     let mut progress = Progress::new();
     let result = ringmain_core::simulate::simulate_with(&model, &ringmain_core::SimulateOptions::default(), &mut |f| {
         progress.update(f)
@@ -455,16 +495,32 @@ fn water_properties(temperature: f64, format: OutputFormat) -> ExitCode {
     write_out(&text, None)
 }
 
+/// Reynolds numbers `friction-factor` accepts. Below 1e-3 the laminar factor 64/Re exceeds
+/// 64 000, a flow that is no flow at all; above 1e10 the flow is beyond any water main (a 10 m
+/// tunnel at 10 m/s is at 1e8) and beyond the range the Colebrook–White equation was fitted on
+/// (the Moody diagram ends at 1e8; common practice).
+const REYNOLDS_RANGE: (f64, f64) = (1e-3, 1e10);
+
 fn friction(re: f64, rr: f64, format: OutputFormat) -> ExitCode {
-    if !(re.is_finite() && re > 0.0) {
-        eprintln!("error: --reynolds must be a positive number, found {re}");
+    use ringmain_core::model::show;
+    if !(re.is_finite() && re >= REYNOLDS_RANGE.0 && re <= REYNOLDS_RANGE.1) {
+        eprintln!(
+            "error: --reynolds must be a positive number between {:e} and {:e}, found {}",
+            REYNOLDS_RANGE.0,
+            REYNOLDS_RANGE.1,
+            show(re)
+        );
         return ExitCode::from(EXIT_INVALID);
     }
     if !(rr.is_finite() && (0.0..0.5).contains(&rr)) {
-        eprintln!("error: --relative-roughness must be between 0 and 0.5, found {rr}");
+        eprintln!("error: --relative-roughness must be between 0 and 0.5, found {}", show(rr));
         return ExitCode::from(EXIT_INVALID);
     }
     let (f, _) = friction_factor(re, rr);
+    if !f.is_finite() {
+        eprintln!("error: the friction factor at Re = {} and e/D = {} is not a finite number", show(re), show(rr));
+        return ExitCode::from(EXIT_INVALID);
+    }
     let regime = if re < 2000.0 {
         "laminar (64/Re)"
     } else if re > 4000.0 {
@@ -479,7 +535,9 @@ fn friction(re: f64, rr: f64, format: OutputFormat) -> ExitCode {
                 + "\n"
         }
         OutputFormat::Csv => format!("reynolds,relative_roughness,friction_factor\n{re},{rr},{f}\n"),
-        OutputFormat::Table => format!("Darcy friction factor f = {f:.6} at Re = {re}, e/D = {rr}: {regime}\n"),
+        OutputFormat::Table => {
+            format!("Darcy friction factor f = {f:.6} at Re = {}, e/D = {}: {regime}\n", show(re), show(rr))
+        }
     };
     write_out(&text, None)
 }
