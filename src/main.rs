@@ -250,6 +250,9 @@ fn solve(path: &Path, format: OutputFormat, output: Option<&Path>, timings: bool
     }
     let Ok(model) = load(path) else { return ExitCode::from(EXIT_INVALID) };
     let reading = clock.elapsed();
+    // Shown before solving: a typing mistake is most worth knowing when the solve then fails.
+    let mut plausible = plausibility_warnings(&model);
+    print_warnings(&plausible);
     let mut solver = None;
     let solved = ringmain_core::Solver::new(&model).and_then(|s| solver.insert(s).solve(&model));
     let mut solution = match solved {
@@ -264,10 +267,6 @@ fn solve(path: &Path, format: OutputFormat, output: Option<&Path>, timings: bool
         }
     };
     let clock = Instant::now();
-    // Valid values that are almost certainly typing mistakes, first among the warnings.
-    let mut warnings = plausibility_warnings(&model);
-    warnings.append(&mut solution.warnings);
-    solution.warnings = warnings;
     if format != OutputFormat::Json {
         for w in &solution.warnings {
             if let Some(e) = &w.element {
@@ -275,6 +274,10 @@ fn solve(path: &Path, format: OutputFormat, output: Option<&Path>, timings: bool
             }
         }
     }
+    // Valid values that are almost certainly typing mistakes (already on standard error), first
+    // among the report's warnings.
+    plausible.append(&mut solution.warnings);
+    solution.warnings = plausible;
     let report = report::Report::new(&model, &solution);
     let code = write_with("the results", output, |out| match format {
         OutputFormat::Table => report.write_table(out),
@@ -304,6 +307,16 @@ fn plausibility_warnings(model: &Model) -> Vec<ringmain_core::solve::Warning> {
             },
         })
         .collect()
+}
+
+/// Prints warnings on standard error, one a line.
+fn print_warnings(warnings: &[ringmain_core::solve::Warning]) {
+    for w in warnings {
+        match &w.element {
+            Some(e) => eprintln!("warning: {e}: {}", w.message),
+            None => eprintln!("warning: {}", w.message),
+        }
+    }
 }
 
 /// The `--timings` report, on standard error.
@@ -418,11 +431,7 @@ fn simulate(path: &Path, format: OutputFormat, output: Option<&Path>, plot_dir: 
         return code;
     }
     let Ok(model) = load(path) else { return ExitCode::from(EXIT_INVALID) };
-    for w in plausibility_warnings(&model) {
-        if let Some(e) = &w.element {
-            eprintln!("warning: {e}: {}", w.message);
-        }
-    }
+    print_warnings(&plausibility_warnings(&model));
     let mut progress = Progress::new();
     let result = ringmain_core::simulate::simulate_with(&model, &ringmain_core::SimulateOptions::default(), &mut |f| {
         progress.update(f)
