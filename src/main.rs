@@ -5,6 +5,9 @@
 
 mod check;
 mod check_report;
+mod gis;
+mod import_cmd;
+mod map;
 mod output;
 mod plot;
 mod report;
@@ -80,6 +83,59 @@ enum Command {
         /// Write SVG charts (tanks.svg, pumps.svg, pressures.svg) into this directory.
         #[arg(long, value_name = "DIR")]
         plot: Option<PathBuf>,
+        /// With --format geojson: the values at this reported instant (elapsed time such as
+        /// "6h" or "1h30min") instead of each element's worst instant.
+        #[arg(long, value_name = "TIME")]
+        at: Option<String>,
+    },
+    /// Build a model from GIS data: GeoJSON pipes (and points) with a fields file.
+    ///
+    /// Pipe ends within the snap distance join, points split the pipes they sit on, duplicates
+    /// and zero-length pipes are dropped, near misses and unreached nodes are reported (a summary
+    /// on standard error, everything with --report). See the README's import section.
+    Import {
+        /// The pipes: a GeoJSON FeatureCollection of LineStrings.
+        #[arg(long, value_name = "PIPES.geojson")]
+        pipes: PathBuf,
+        /// The points: a GeoJSON FeatureCollection of Points (reservoirs, tanks, hydrants...).
+        #[arg(long, value_name = "POINTS.geojson")]
+        points: Option<PathBuf>,
+        /// The fields file (TOML) mapping attributes to model keys; see examples/FIELDS.toml.
+        #[arg(long, value_name = "FIELDS.toml")]
+        fields: PathBuf,
+        /// Snap distance: metres for longitude/latitude input, the [crs] unit otherwise.
+        #[arg(long, default_value_t = ringmain_core::import::ImportOptions::SNAP)]
+        snap: f64,
+        /// The model file to write (.toml or .json); standard output (TOML) when not given.
+        #[arg(long, short, value_name = "MODEL")]
+        output: Option<PathBuf>,
+        /// Write the report of every decision (JSON) to this file.
+        #[arg(long, value_name = "REPORT.json")]
+        report: Option<PathBuf>,
+        /// Give nodes without an elevation one interpolated along the network.
+        #[arg(long)]
+        elevation_from_neighbours: bool,
+        /// The elevation of nodes that have none otherwise, in the model's length unit.
+        #[arg(long, value_name = "Z", allow_negative_numbers = true)]
+        elevation_default: Option<f64>,
+    },
+    /// Draw the network coloured by a result: one self-contained HTML page or an SVG file.
+    ///
+    /// Models with a [simulation] table are simulated (each element's worst instant, or --at);
+    /// others are solved as a snapshot.
+    Map {
+        /// The model file (.toml or .json); its nodes need coordinates.
+        model: PathBuf,
+        /// The quantity to colour by: pressure, head, demand, delivered, elevation (nodes);
+        /// flow, velocity, headloss, unit_headloss (links).
+        #[arg(long, default_value = "pressure")]
+        quantity: String,
+        /// A reported instant of the simulation (elapsed time such as "6h").
+        #[arg(long, value_name = "TIME")]
+        at: Option<String>,
+        /// The map to write: .html or .svg.
+        #[arg(long, short, value_name = "map.html|map.svg")]
+        output: PathBuf,
     },
     /// Check a model against service criteria, with what-if closures: for CI pipelines.
     ///
@@ -148,20 +204,42 @@ enum OutputFormat {
     Table,
     Json,
     Csv,
+    /// A GeoJSON FeatureCollection of nodes and links with their results (solve, simulate).
+    Geojson,
 }
 
-const EXIT_INVALID: u8 = 2;
+pub(crate) const EXIT_INVALID: u8 = 2;
 const EXIT_NOT_CONVERGED: u8 = 3;
-const EXIT_WRITE: u8 = 4;
+pub(crate) const EXIT_WRITE: u8 = 4;
 
 fn main() -> ExitCode {
     let cli = Cli::parse();
     match cli.command {
         Command::Solve { model, format, output, timings } => solve(&model, format, output.as_deref(), timings),
         Command::Generate { junctions, seed, output } => generate(junctions, seed, &output),
-        Command::Simulate { model, format, output, plot } => {
-            simulate(&model, format, output.as_deref(), plot.as_deref())
+        Command::Simulate { model, format, output, plot, at } => {
+            simulate(&model, format, output.as_deref(), plot.as_deref(), at.as_deref())
         }
+        Command::Import {
+            pipes,
+            points,
+            fields,
+            snap,
+            output,
+            report,
+            elevation_from_neighbours,
+            elevation_default,
+        } => import_cmd::run(import_cmd::Args {
+            pipes,
+            points,
+            fields,
+            snap,
+            output,
+            report,
+            elevation_from_neighbours,
+            elevation_default,
+        }),
+        Command::Map { model, quantity, at, output } => draw_map(&model, &quantity, at.as_deref(), &output),
         Command::Check { model, criteria, close, demand_factor, each_pipe_closed, format, junit, offenders } => {
             check::run(check::Args {
                 model,
@@ -173,6 +251,11 @@ fn main() -> ExitCode {
                 junit,
                 keep: offenders,
             })
+        }
+        Command::WaterProperties { format: OutputFormat::Geojson, .. }
+        | Command::FrictionFactor { format: OutputFormat::Geojson, .. } => {
+            eprintln!("error: --format geojson applies to solve and simulate (results on a map)");
+            ExitCode::from(EXIT_INVALID)
         }
         Command::WaterProperties { temperature, format } => water_properties(temperature, format),
         Command::FrictionFactor { reynolds, relative_roughness, format } => {
@@ -278,11 +361,16 @@ fn solve(path: &Path, format: OutputFormat, output: Option<&Path>, timings: bool
     // among the report's warnings.
     plausible.append(&mut solution.warnings);
     solution.warnings = plausible;
+    if format == OutputFormat::Geojson {
+        let code = write_geojson(path, output, gis::GisResults::from_solution(&model, &solution));
+        std::mem::forget((solution, model, solver));
+        return code;
+    }
     let report = report::Report::new(&model, &solution);
     let code = write_with("the results", output, |out| match format {
         OutputFormat::Table => report.write_table(out),
         OutputFormat::Json => report.write_json(out),
-        OutputFormat::Csv => report.write_csv(out),
+        OutputFormat::Csv | OutputFormat::Geojson => report.write_csv(out),
     });
     let writing = clock.elapsed();
     if let (true, Some(solver)) = (timings, &solver) {
@@ -422,7 +510,125 @@ impl Progress {
     }
 }
 
-fn simulate(path: &Path, format: OutputFormat, output: Option<&Path>, plot_dir: Option<&Path>) -> ExitCode {
+/// Writes per-element results as GeoJSON (no partial file on failure).
+fn write_geojson(
+    path: &Path,
+    output: Option<&Path>,
+    results: Result<gis::GisResults<'_>, ringmain_core::ModelError>,
+) -> ExitCode {
+    let results = match results.and_then(|r| r.check_coordinates().map(|()| r)) {
+        Ok(r) => r,
+        Err(e) => {
+            eprintln!("error: {}", e.in_file(path.display().to_string()));
+            return ExitCode::from(EXIT_INVALID);
+        }
+    };
+    match output {
+        None => write_with("the results", None, |out| results.write_geojson(out)),
+        Some(file) => match import_cmd::write_atomically(file, |out| results.write_geojson(out)) {
+            Ok(()) => ExitCode::SUCCESS,
+            Err(e) => {
+                eprintln!("error: cannot write the results to {}: {e}", file.display());
+                ExitCode::from(EXIT_WRITE)
+            }
+        },
+    }
+}
+
+/// `ringmain map`.
+fn draw_map(path: &Path, quantity: &str, at: Option<&str>, output: &Path) -> ExitCode {
+    let extension = output.extension().and_then(|e| e.to_str()).map(str::to_ascii_lowercase);
+    let svg = match extension.as_deref() {
+        Some("html" | "htm") => false,
+        Some("svg") => true,
+        _ => {
+            eprintln!("error: --output {}: the file name must end in .html or .svg", output.display());
+            return ExitCode::from(EXIT_INVALID);
+        }
+    };
+    if let Err(code) = refuse_overwrite(path, &[("--output", Some(output))]) {
+        return code;
+    }
+    let at = match at.map(gis::parse_at).transpose() {
+        Ok(t) => t,
+        Err(m) => {
+            eprintln!("error: {m}");
+            return ExitCode::from(EXIT_INVALID);
+        }
+    };
+    let Ok(model) = load(path) else { return ExitCode::from(EXIT_INVALID) };
+    let results = match results_for_map(path, &model, at) {
+        Ok(r) => r,
+        Err(code) => return code,
+    };
+    let results = match results.check_coordinates() {
+        Ok(()) => results,
+        Err(e) => {
+            eprintln!("error: {}", e.in_file(path.display().to_string()));
+            return ExitCode::from(EXIT_INVALID);
+        }
+    };
+    if results.quantity(quantity).is_none() {
+        eprintln!(
+            "error: --quantity {quantity}: not a result of this model; expected one of {}",
+            results.names().join(", ")
+        );
+        return ExitCode::from(EXIT_INVALID);
+    }
+    let written = import_cmd::write_atomically(output, |out| {
+        if svg {
+            map::write_svg(&results, quantity, out)
+        } else {
+            map::write_html(&results, quantity, out)
+        }
+    });
+    match written {
+        Ok(()) => ExitCode::SUCCESS,
+        Err(e) => {
+            eprintln!("error: cannot write the map to {}: {e}", output.display());
+            ExitCode::from(EXIT_WRITE)
+        }
+    }
+}
+
+/// The results a map draws: a simulation's when the model has one, else a snapshot's.
+fn results_for_map<'a>(path: &Path, model: &'a Model, at: Option<f64>) -> Result<gis::GisResults<'a>, ExitCode> {
+    let fail = |e: ringmain_core::ModelError| {
+        eprintln!("error: {}", e.in_file(path.display().to_string()));
+        ExitCode::from(EXIT_INVALID)
+    };
+    if model.time.simulation.is_some() {
+        let run = match ringmain_core::simulate::simulate(model) {
+            Ok(r) => r,
+            Err(ringmain_core::SimulateError::Model(e)) => return Err(fail(e)),
+            Err(e) => {
+                eprintln!("error: {}: {e}", path.display());
+                return Err(ExitCode::from(EXIT_NOT_CONVERGED));
+            }
+        };
+        return gis::GisResults::from_run(model, &run, at).map_err(fail);
+    }
+    if at.is_some() {
+        eprintln!("error: --at: {} has no [simulation] table; a snapshot has no instants", path.display());
+        return Err(ExitCode::from(EXIT_INVALID));
+    }
+    match ringmain_core::solve(model) {
+        Ok(s) => gis::GisResults::from_solution(model, &s).map_err(fail),
+        Err(SolveError::Model(e)) => Err(fail(e)),
+        Err(e) => {
+            eprintln!("error: {}: {e}", path.display());
+            Err(ExitCode::from(EXIT_NOT_CONVERGED))
+        }
+    }
+}
+
+fn simulate(
+    path: &Path,
+    format: OutputFormat,
+    output: Option<&Path>,
+    plot_dir: Option<&Path>,
+    at: Option<&str>,
+) -> ExitCode {
     use ringmain_core::SimulateError;
     let charts: Vec<PathBuf> = plot_dir.map(|d| plot::FILES.iter().map(|f| d.join(f)).collect()).unwrap_or_default();
     let mut outputs = vec![("--output", output)];
@@ -430,6 +636,20 @@ fn simulate(path: &Path, format: OutputFormat, output: Option<&Path>, plot_dir: 
     if let Err(code) = refuse_overwrite(path, &outputs) {
         return code;
     }
+    let at = match at {
+        None => None,
+        Some(_) if format != OutputFormat::Geojson => {
+            eprintln!("error: --at applies to --format geojson");
+            return ExitCode::from(EXIT_INVALID);
+        }
+        Some(text) => match gis::parse_at(text) {
+            Ok(t) => Some(t),
+            Err(m) => {
+                eprintln!("error: {m}");
+                return ExitCode::from(EXIT_INVALID);
+            }
+        },
+    };
     let Ok(model) = load(path) else { return ExitCode::from(EXIT_INVALID) };
     print_warnings(&plausibility_warnings(&model));
     let mut progress = Progress::new();
@@ -448,6 +668,9 @@ fn simulate(path: &Path, format: OutputFormat, output: Option<&Path>, plot_dir: 
             return ExitCode::from(EXIT_NOT_CONVERGED);
         }
     };
+    if format == OutputFormat::Geojson {
+        return write_geojson(path, output, gis::GisResults::from_run(&model, &run, at));
+    }
     let report = simulation::RunReport::new(&model, &run);
     if let Some(dir) = plot_dir {
         match plot::write_all(&report, dir) {
@@ -468,7 +691,7 @@ fn simulate(path: &Path, format: OutputFormat, output: Option<&Path>, plot_dir: 
             serde_json::to_writer_pretty(&mut *out, &report.to_json())?;
             out.write_all(b"\n")
         }
-        OutputFormat::Csv => out.write_all(report.to_csv().as_bytes()),
+        OutputFormat::Csv | OutputFormat::Geojson => out.write_all(report.to_csv().as_bytes()),
     })
 }
 
@@ -491,7 +714,7 @@ fn water_properties(temperature: f64, format: OutputFormat) -> ExitCode {
             .to_string()
                 + "\n"
         }
-        OutputFormat::Csv => format!(
+        OutputFormat::Csv | OutputFormat::Geojson => format!(
             "temperature_C,density_kg_m3,dynamic_viscosity_Pa_s,kinematic_viscosity_m2_s\n{},{},{},{}\n",
             temperature, w.density, w.dynamic_viscosity, w.kinematic_viscosity
         ),
@@ -543,7 +766,9 @@ fn friction(re: f64, rr: f64, format: OutputFormat) -> ExitCode {
                 .to_string()
                 + "\n"
         }
-        OutputFormat::Csv => format!("reynolds,relative_roughness,friction_factor\n{re},{rr},{f}\n"),
+        OutputFormat::Csv | OutputFormat::Geojson => {
+            format!("reynolds,relative_roughness,friction_factor\n{re},{rr},{f}\n")
+        }
         OutputFormat::Table => {
             format!("Darcy friction factor f = {f:.6} at Re = {}, e/D = {}: {regime}\n", show(re), show(rr))
         }

@@ -149,6 +149,15 @@ fn output_over_input_is_refused_for_every_command_and_output_option() {
         cases.push(vec!["check".as_ref(), m, "--junit".as_ref(), s]);
     }
     cases.push(vec!["simulate".as_ref(), m, "--plot".as_ref(), charts.as_os_str()]);
+    let map = charts.join("pressures.svg");
+    cases.push(vec![
+        "map".as_ref(),
+        m,
+        "--quantity".as_ref(),
+        "pressure".as_ref(),
+        "--output".as_ref(),
+        map.as_os_str(),
+    ]);
     cases.push(vec![
         "check".as_ref(),
         m,

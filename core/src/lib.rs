@@ -36,6 +36,7 @@
 pub mod analysis;
 pub mod error;
 pub mod generate;
+pub mod import;
 pub mod model;
 pub mod physics;
 pub mod simulate;

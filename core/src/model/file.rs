@@ -6,10 +6,11 @@
 //! element id and the key.
 
 use super::doc::{self, Key, Value};
+use super::outflow::{JunctionOutflow, Leakage, Outlet, PressureDemand};
 use super::time::{self as tm, Action, Condition, Control, Demand, Energy, SimulationSettings, TimeData, TimePattern};
 use super::{
-    HeadLossLaw, HydraulicOptions, Link, LinkKind, LinkStatus, Model, Node, NodeKind, Pipe, Pump, PumpDrive, Tank,
-    Valve, ValveType, WaterSpec,
+    HeadLossLaw, HydraulicOptions, Link, LinkKind, LinkStatus, MapCoordinates, Model, Node, NodeKind, Pipe, Pump,
+    PumpDrive, Tank, Valve, ValveType, WaterSpec,
 };
 use crate::error::{Element, ModelError};
 use crate::physics::pump::{Efficiency, HeadCurve};
@@ -76,8 +77,11 @@ const TOP_KEYS: &[&str] = &[
     "units",
     "hydraulics",
     "criteria",
+    "pressure_demand",
+    "background_leakage",
     "simulation",
     "electricity",
+    "map",
     "patterns",
     "nodes",
     "links",
@@ -90,11 +94,32 @@ const DEMAND_KEYS: &[&str] = &["base", "pattern"];
 const CONTROL_KEYS: &[&str] = &["id", "link", "status", "speed", "setting", "when", "priority"];
 const CONDITION_KEYS: &[&str] =
     &["tank", "level_above", "level_below", "node", "pressure_above", "pressure_below", "clock", "after", "all", "any"];
+const PRESSURE_DEMAND_KEYS: &[&str] = &["full_pressure", "zero_pressure", "exponent"];
+const LEAKAGE_KEYS: &[&str] = &["rate", "reference_pressure", "exponent"];
+const OUTLET_KEYS: &[&str] = &["coefficient", "exponent"];
+const MAP_KEYS: &[&str] = &["coordinates"];
 const UNIT_KEYS: &[&str] = &["length", "diameter", "flow", "pressure", "roughness"];
 const HYDRAULIC_KEYS: &[&str] =
     &["headloss", "kinematic_viscosity", "water_temperature", "max_iterations", "head_tolerance", "flow_tolerance"];
 const NODE_KEYS: &[(&str, &[&str])] = &[
-    ("junction", &["id", "kind", "elevation", "demand", "pattern", "demands", "x", "y", "zone"]),
+    (
+        "junction",
+        &[
+            "id",
+            "kind",
+            "elevation",
+            "demand",
+            "pattern",
+            "demands",
+            "full_pressure",
+            "zero_pressure",
+            "exponent",
+            "outlet",
+            "x",
+            "y",
+            "zone",
+        ],
+    ),
     ("reservoir", &["id", "kind", "head", "head_pattern", "elevation", "x", "y", "zone"]),
     (
         "tank",
@@ -102,7 +127,23 @@ const NODE_KEYS: &[(&str, &[&str])] = &[
     ),
 ];
 const LINK_KEYS: &[(&str, &[&str])] = &[
-    ("pipe", &["id", "kind", "from", "to", "length", "diameter", "roughness", "minor_loss", "status", "check_valve"]),
+    (
+        "pipe",
+        &[
+            "id",
+            "kind",
+            "from",
+            "to",
+            "length",
+            "diameter",
+            "roughness",
+            "minor_loss",
+            "status",
+            "check_valve",
+            "leakage_rate",
+            "path",
+        ],
+    ),
     (
         "pump",
         &[
@@ -117,9 +158,25 @@ const LINK_KEYS: &[(&str, &[&str])] = &[
             "speed",
             "speed_pattern",
             "status",
+            "path",
         ],
     ),
-    ("valve", &["id", "kind", "valve", "from", "to", "diameter", "setting", "setting_pattern", "minor_loss", "status"]),
+    (
+        "valve",
+        &[
+            "id",
+            "kind",
+            "valve",
+            "from",
+            "to",
+            "diameter",
+            "setting",
+            "setting_pattern",
+            "minor_loss",
+            "status",
+            "path",
+        ],
+    ),
 ];
 
 /// Reads a JSON model in one pass from `reader`, without holding the text: each node and link
@@ -289,6 +346,9 @@ struct Settings {
     energy: Option<Value>,
     patterns: Vec<Value>,
     criteria: Option<Value>,
+    pressure_demand: Option<PressureDemand>,
+    leakage: Option<Leakage>,
+    map: MapCoordinates,
 }
 
 impl Settings {
@@ -302,15 +362,27 @@ impl Settings {
             Some(v) => read_hydraulics(v, &units)?,
             None => HydraulicOptions::default(),
         };
+        let pressure_demand = match top.take("pressure_demand") {
+            Some(v) => Some(read_pressure_demand(v, &units, &options)?),
+            None => None,
+        };
+        let leakage = match top.take("background_leakage") {
+            Some(v) => Some(read_leakage(v, &units, &options)?),
+            None => None,
+        };
         let simulation = match top.take("simulation") {
             Some(v) => Some(read_simulation(v, &units)?),
             None => None,
         };
         let energy = top.take("electricity");
+        let map = match top.take("map") {
+            Some(v) => read_map(v)?,
+            None => MapCoordinates::default(),
+        };
         let patterns = top.array("patterns")?;
         // Checked by `analysis::Criteria::apply`, which the commands that use it call.
         let criteria = top.take("criteria");
-        Ok(Settings { title, units, options, simulation, energy, patterns, criteria })
+        Ok(Settings { title, units, options, simulation, energy, patterns, criteria, pressure_demand, leakage, map })
     }
 
     /// The model with these settings and its patterns, before any element.
@@ -326,6 +398,9 @@ impl Settings {
             model.time.energy = read_energy(v, &model.time)?;
         }
         model.criteria = self.criteria;
+        model.outflow.pressure_demand = self.pressure_demand;
+        model.outflow.leakage = self.leakage;
+        model.map.coordinates = self.map;
         Ok(model)
     }
 }
@@ -334,15 +409,25 @@ impl Settings {
 fn add_node_value(model: &mut Model, i: usize, value: Value) -> Result<(), ModelError> {
     let index = model.nodes().len();
     let units = model.units;
-    let node = read_node(i, value, &units, index, &mut model.time)?;
+    let options = model.options;
+    let (node, outflow) = read_node(i, value, &units, &options, index, &mut model.time)?;
     model.add_node(node)?;
+    if let Some(j) = outflow {
+        model.outflow.junctions.insert(index, j);
+    }
     Ok(())
 }
 
 /// Reads the `i`-th entry of `links` into the model.
 fn add_link_value(model: &mut Model, i: usize, value: Value) -> Result<(), ModelError> {
     let index = model.links().len();
-    let (link, pattern) = read_link(i, value, model)?;
+    let (link, pattern, leakage_rate, path) = read_link(i, value, model)?;
+    if let Some(rate) = leakage_rate {
+        model.outflow.leakage_rates.insert(index, rate);
+    }
+    if let Some(path) = path {
+        model.map.paths.insert(index, path);
+    }
     if let Some(p) = pattern {
         match link.kind {
             LinkKind::Pump(_) => model.time.speed_patterns.insert(index, p),
@@ -600,7 +685,7 @@ fn labels<T: Copy>(all: &[T], label: fn(T) -> &'static str) -> Vec<&'static str>
     all.iter().map(|u| label(*u)).collect()
 }
 
-fn read_units(value: Value) -> Result<UnitSystem, ModelError> {
+pub(crate) fn read_units(value: Value) -> Result<UnitSystem, ModelError> {
     let mut f = Fields::from_value(Element::Table("units".into()), value)?;
     let d = UnitSystem::default();
     let units = UnitSystem {
@@ -620,7 +705,7 @@ fn read_units(value: Value) -> Result<UnitSystem, ModelError> {
     Ok(units)
 }
 
-fn read_hydraulics(value: Value, units: &UnitSystem) -> Result<HydraulicOptions, ModelError> {
+pub(crate) fn read_hydraulics(value: Value, units: &UnitSystem) -> Result<HydraulicOptions, ModelError> {
     let el = Element::Table("hydraulics".into());
     let mut f = Fields::from_value(el.clone(), value)?;
     let mut o = HydraulicOptions::default();
@@ -747,13 +832,15 @@ fn identify(
     Ok((f, keys, kind))
 }
 
+/// Reads a node; also returns a junction's outflow data, if it has any.
 fn read_node(
     index: usize,
     value: Value,
     units: &UnitSystem,
+    options: &HydraulicOptions,
     node_index: usize,
     time: &mut TimeData,
-) -> Result<Node, ModelError> {
+) -> Result<(Node, Option<JunctionOutflow>), ModelError> {
     let (mut f, keys, kind) = identify(value, Element::NodeEntry(index), Element::Node, NODE_KEYS, "junction")?;
     let len = |v: f64| units.length.to_si(v);
     let coordinates = match (f.number("x")?, f.number("y")?) {
@@ -763,6 +850,7 @@ fn read_node(
         (None, Some(_)) => return Err(f.error("x", "is missing (y is given)")),
     };
     let zone = f.string("zone")?;
+    let mut outflow = None;
     let (elevation, kind) = match kind.as_str() {
         "junction" => {
             let elevation = len(f.required_number("elevation")?);
@@ -788,6 +876,7 @@ fn read_node(
             if demands.len() != 1 || demands[0].pattern.is_some() {
                 time.demands.insert(node_index, demands);
             }
+            outflow = read_junction_outflow(&mut f, units, options)?;
             (elevation, NodeKind::Junction { demand })
         }
         "reservoir" => {
@@ -823,11 +912,35 @@ fn read_node(
     let Some(Element::Node(id)) = element else { unreachable!("identify sets the element") };
     static ALL_NODE_KEYS: OnceLock<Vec<&'static str>> = OnceLock::new();
     f.finish_with(keys, ALL_NODE_KEYS.get_or_init(|| all_keys(NODE_KEYS)), kind.label())?;
-    Ok(Node { id: id.into(), elevation, coordinates, zone, kind })
+    Ok((Node { id: id.into(), elevation, coordinates, zone, kind }, outflow))
 }
 
-/// Reads a link; also returns the index of its speed or setting pattern, if it has one.
-fn read_link(index: usize, value: Value, model: &Model) -> Result<(Link, Option<usize>), ModelError> {
+/// Reads `[map]`: what the nodes' coordinates are.
+fn read_map(value: Value) -> Result<MapCoordinates, ModelError> {
+    let mut f = Fields::from_value(Element::Table("map".into()), value)?;
+    let coordinates = match f.string("coordinates")? {
+        None => MapCoordinates::default(),
+        Some(text) => MapCoordinates::parse(&text).ok_or_else(|| {
+            f.error(
+                "coordinates",
+                format!(
+                    "unknown coordinates \"{}\"; expected \"lonlat\" or \"projected\"",
+                    crate::error::printable(&text)
+                ),
+            )
+        })?,
+    };
+    f.finish(MAP_KEYS)?;
+    Ok(coordinates)
+}
+
+/// A link read from a file: the link, the index of its speed or setting pattern, a pipe's own
+/// leakage rate (m³/s per m), its `path`.
+type LinkRead = (Link, Option<usize>, Option<f64>, Option<Vec<(f64, f64)>>);
+
+/// Reads a link; also returns the index of its speed or setting pattern, if it has one, a pipe's
+/// own leakage rate, if it has one, and the interior vertices of its drawn alignment.
+fn read_link(index: usize, value: Value, model: &Model) -> Result<LinkRead, ModelError> {
     let (mut f, keys, kind) = identify(value, Element::LinkEntry(index), Element::Link, LINK_KEYS, "pipe")?;
     let end = |key: &str, f: &mut Fields| -> Result<usize, ModelError> {
         let id = f.string(key)?.ok_or_else(|| f.missing(key))?;
@@ -841,13 +954,22 @@ fn read_link(index: usize, value: Value, model: &Model) -> Result<(Link, Option<
     let from = end("from", &mut f)?;
     let to = end("to", &mut f)?;
     let status_text = f.string("status")?;
+    let path = pairs(&mut f, "path", "x, y")?;
     let pattern = match kind.as_str() {
         "pump" => f.pattern("speed_pattern", &model.time)?,
         "valve" => f.pattern("setting_pattern", &model.time)?,
         _ => None,
     };
+    let mut leakage_rate = None;
     let (kind, status) = match kind.as_str() {
-        "pipe" => (LinkKind::Pipe(read_pipe(&mut f, model)?), link_status(&f, status_text.as_deref(), false)?.0),
+        "pipe" => {
+            if let Some(rate) = f.number("leakage_rate")? {
+                let el = f.element.clone().unwrap_or(Element::LinkEntry(index));
+                let rate = super::check_value(&el, "leakage_rate", rate, super::Rule::NonNegative)?;
+                leakage_rate = Some(leakage_rate_to_si(&model.units, rate));
+            }
+            (LinkKind::Pipe(read_pipe(&mut f, model)?), link_status(&f, status_text.as_deref(), false)?.0)
+        }
         "pump" => {
             (LinkKind::Pump(Box::new(read_pump(&mut f, model)?)), link_status(&f, status_text.as_deref(), false)?.0)
         }
@@ -859,7 +981,108 @@ fn read_link(index: usize, value: Value, model: &Model) -> Result<(Link, Option<
     let Some(Element::Link(id)) = f.element.clone() else { unreachable!("identify sets the element") };
     static ALL_LINK_KEYS: OnceLock<Vec<&'static str>> = OnceLock::new();
     f.finish_with(keys, ALL_LINK_KEYS.get_or_init(|| all_keys(LINK_KEYS)), kind.label())?;
-    Ok((Link { id: id.into(), from, to, status, kind }, pattern))
+    Ok((Link { id: id.into(), from, to, status, kind }, pattern, leakage_rate, path))
+}
+
+/// A leakage rate in flow units per km (per 1000 ft where lengths are in ft) into m³/s per m.
+pub(super) fn leakage_rate_to_si(units: &UnitSystem, rate: f64) -> f64 {
+    units.flow.to_si(rate) / units.length.to_si(1000.0)
+}
+
+/// The SI coefficient (m³/s at 1 m of head) of an outlet written in flow and pressure units.
+pub(super) fn outlet_coefficient_to_si(units: &UnitSystem, density: f64, coefficient: f64, exponent: f64) -> f64 {
+    units.flow.to_si(coefficient) * units.pressure.from_head(1.0, density).powf(exponent)
+}
+
+/// Reads `[pressure_demand]`.
+fn read_pressure_demand(
+    value: Value,
+    units: &UnitSystem,
+    options: &HydraulicOptions,
+) -> Result<PressureDemand, ModelError> {
+    let el = Element::Table("pressure_demand".into());
+    let mut f = Fields::from_value(el.clone(), value)?;
+    f.reject_unknown(PRESSURE_DEMAND_KEYS)?;
+    let density = options.water_properties().density;
+    let full = super::check_value(&el, "full_pressure", f.required_number("full_pressure")?, super::Rule::Finite)?;
+    let zero = match f.number("zero_pressure")? {
+        Some(z) => units.pressure.to_head(super::check_value(&el, "zero_pressure", z, super::Rule::Finite)?, density),
+        None => PressureDemand::ZERO_PRESSURE,
+    };
+    let exponent = match f.number("exponent")? {
+        Some(e) => super::check_value(&el, "exponent", e, super::Rule::Positive)?,
+        None => PressureDemand::EXPONENT,
+    };
+    f.finish(PRESSURE_DEMAND_KEYS)?;
+    let full_pressure = units.pressure.to_head(full, density);
+    if full_pressure <= zero {
+        return Err(ModelError::at(
+            Some(el),
+            Some("full_pressure"),
+            format!("must be above zero_pressure ({full_pressure} <= {zero} m of head)"),
+        ));
+    }
+    Ok(PressureDemand { full_pressure, zero_pressure: zero, exponent })
+}
+
+/// Reads `[background_leakage]`.
+fn read_leakage(value: Value, units: &UnitSystem, options: &HydraulicOptions) -> Result<Leakage, ModelError> {
+    let el = Element::Table("background_leakage".into());
+    let mut f = Fields::from_value(el.clone(), value)?;
+    f.reject_unknown(LEAKAGE_KEYS)?;
+    let density = options.water_properties().density;
+    let rate = match f.number("rate")? {
+        Some(r) => leakage_rate_to_si(units, super::check_value(&el, "rate", r, super::Rule::NonNegative)?),
+        None => 0.0,
+    };
+    let reference = f.required_number("reference_pressure")?;
+    let reference = super::check_value(&el, "reference_pressure", reference, super::Rule::Positive)?;
+    let exponent = match f.number("exponent")? {
+        Some(e) => super::check_value(&el, "exponent", e, super::Rule::Positive)?,
+        None => Leakage::EXPONENT,
+    };
+    f.finish(LEAKAGE_KEYS)?;
+    Ok(Leakage { rate, reference_pressure: units.pressure.to_head(reference, density), exponent })
+}
+
+/// Reads a junction's `full_pressure`, `zero_pressure`, `exponent` and `outlet`.
+fn read_junction_outflow(
+    f: &mut Fields,
+    units: &UnitSystem,
+    options: &HydraulicOptions,
+) -> Result<Option<JunctionOutflow>, ModelError> {
+    let full = f.number("full_pressure")?;
+    let zero = f.number("zero_pressure")?;
+    let exponent = f.number("exponent")?;
+    let outlet = f.take("outlet");
+    if full.is_none() && zero.is_none() && exponent.is_none() && outlet.is_none() {
+        return Ok(None);
+    }
+    let el = f.element.clone().unwrap_or(Element::Table("nodes".into()));
+    let density = options.water_properties().density;
+    let pressure = |key: &str, v: Option<f64>| -> Result<Option<f64>, ModelError> {
+        v.map(|v| super::check_value(&el, key, v, super::Rule::Finite).map(|v| units.pressure.to_head(v, density)))
+            .transpose()
+    };
+    let mut j = JunctionOutflow {
+        full_pressure: pressure("full_pressure", full)?,
+        zero_pressure: pressure("zero_pressure", zero)?,
+        exponent: exponent.map(|e| super::check_value(&el, "exponent", e, super::Rule::Positive)).transpose()?,
+        outlet: None,
+    };
+    if let Some(value) = outlet {
+        let mut o = f.nested("outlet.".into(), value)?;
+        o.reject_unknown(OUTLET_KEYS)?;
+        let c = o.required_number("coefficient")?;
+        let c = super::check_value(&el, "outlet.coefficient", c, super::Rule::NonNegative)?;
+        let e = match o.number("exponent")? {
+            Some(e) => super::check_value(&el, "outlet.exponent", e, super::Rule::Positive)?,
+            None => Outlet::EXPONENT,
+        };
+        o.finish(OUTLET_KEYS)?;
+        j.outlet = Some(Outlet { coefficient: outlet_coefficient_to_si(units, density, c, e), exponent: e });
+    }
+    Ok(Some(j))
 }
 
 /// Reads `status`: open | closed, and for valves also automatic (the default for valves).

@@ -14,6 +14,7 @@
 pub mod doc;
 pub mod file;
 mod index;
+pub mod outflow;
 pub mod time;
 pub mod write;
 
@@ -407,6 +408,63 @@ impl Link {
     }
 }
 
+/// What a model's node coordinates `x`, `y` are (`[map] coordinates`).
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Default)]
+pub enum MapCoordinates {
+    /// Planar coordinates in any consistent unit (the default).
+    #[default]
+    Projected,
+    /// Longitude and latitude in degrees on WGS 84 (`x` = longitude, `y` = latitude).
+    LonLat,
+}
+
+impl MapCoordinates {
+    /// The name used in model files.
+    pub fn label(self) -> &'static str {
+        match self {
+            MapCoordinates::Projected => "projected",
+            MapCoordinates::LonLat => "lonlat",
+        }
+    }
+
+    /// Parses a model-file name.
+    pub fn parse(text: &str) -> Option<Self> {
+        match text {
+            "projected" => Some(MapCoordinates::Projected),
+            "lonlat" => Some(MapCoordinates::LonLat),
+            _ => None,
+        }
+    }
+}
+
+/// What only drawing the network uses: the kind of coordinates and the links' drawn
+/// alignments. None of it enters the hydraulics (a link's hydraulic length stays its `length`).
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct MapData {
+    /// What the nodes' `x`, `y` are.
+    pub coordinates: MapCoordinates,
+    /// The interior vertices of a link's drawn alignment, by link index (`path` in a model
+    /// file), in the nodes' coordinates. Kept apart from [`Link`] so that links without one (the
+    /// common case in hand-made models) stay small.
+    pub paths: std::collections::BTreeMap<usize, Vec<(f64, f64)>>,
+}
+
+impl MapData {
+    /// The drawn alignment of link `k` of `model`: its start node, the interior vertices of its
+    /// `path`, its end node; `None` when either node has no coordinates.
+    pub fn alignment(&self, model: &Model, k: usize) -> Option<Vec<(f64, f64)>> {
+        let link = model.links().get(k)?;
+        let from = model.nodes()[link.from].coordinates?;
+        let to = model.nodes()[link.to].coordinates?;
+        let inner = self.paths.get(&k).map(Vec::as_slice).unwrap_or(&[]);
+        let mut out = Vec::with_capacity(inner.len() + 2);
+        out.push(from);
+        out.extend_from_slice(inner);
+        out.push(to);
+        Some(out)
+    }
+}
+
 /// A water-distribution network and its options, SI inside.
 #[derive(Clone, Debug, Default)]
 pub struct Model {
@@ -421,6 +479,10 @@ pub struct Model {
     /// The `[criteria]` table as written, unchecked; [`crate::analysis::Criteria::apply`]
     /// reads it (only the commands that check criteria need it to be valid).
     pub criteria: Option<doc::Value>,
+    /// Outflows that follow pressure: pressure-dependent demand, outlets, leakage.
+    pub outflow: outflow::OutflowData,
+    /// Map data: coordinate kind and drawn alignments (`[map]`, `path`).
+    pub map: MapData,
     nodes: Vec<Node>,
     links: Vec<Link>,
     node_index: IdIndex,
@@ -430,12 +492,15 @@ pub struct Model {
 /// Two models are equal when their data are; the id indices follow from the elements.
 impl PartialEq for Model {
     fn eq(&self, other: &Self) -> bool {
-        let Model { title, units, options, time, criteria, nodes, links, node_index: _, link_index: _ } = self;
+        let Model { title, units, options, time, criteria, outflow, map, nodes, links, node_index: _, link_index: _ } =
+            self;
         *title == other.title
             && *units == other.units
             && *options == other.options
             && *time == other.time
             && *criteria == other.criteria
+            && *outflow == other.outflow
+            && *map == other.map
             && *nodes == other.nodes
             && *links == other.links
     }
@@ -874,6 +939,6 @@ impl Model {
                 ));
             }
         }
-        Ok(())
+        self.outflow.check(self)
     }
 }
