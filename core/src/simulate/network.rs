@@ -258,7 +258,7 @@ impl Network {
     pub fn evaluate(&mut self, volumes: &[f64], settings: &LinkSettings, time: f64) -> Result<Stage, SimulateError> {
         for (j, t) in self.tanks.iter().enumerate() {
             let level = t.level(volumes[j]).max(0.0);
-            if !(level <= LEVEL_BEYOND_ANY_TANK) {
+            if level.is_nan() || level > LEVEL_BEYOND_ANY_TANK {
                 // The level follows from the volume and the shape: blame the shape.
                 let key = if matches!(t.shape, Shape::Curve(_)) { "volume_curve" } else { "diameter" };
                 return Err(ModelError::at(
