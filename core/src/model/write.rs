@@ -14,6 +14,7 @@
 use super::file::Format;
 use super::time::{self as tm, Action, Condition};
 use super::{HeadLossLaw, LinkKind, LinkStatus, Model, NodeKind, PumpDrive, ValveType, WaterSpec};
+use crate::physics::fittings::Fitting;
 use crate::physics::pump::Efficiency;
 use crate::units::HORSEPOWER;
 use serde::ser::{SerializeMap, Serializer};
@@ -266,6 +267,8 @@ impl Serialize for ModelFile<'_> {
                 max_iterations: o.max_iterations,
                 head_tolerance: c.len(o.head_tolerance),
                 flow_tolerance: o.flow_tolerance,
+                fittings_method: o.fittings_method.label(),
+                site_elevation: o.site_elevation.map(|z| c.len(z)),
             },
         )?;
         let density = c.density;
@@ -346,6 +349,9 @@ struct Hydraulics {
     max_iterations: u32,
     head_tolerance: f64,
     flow_tolerance: f64,
+    fittings_method: &'static str,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    site_elevation: Option<f64>,
 }
 
 #[derive(Serialize)]
@@ -581,6 +587,12 @@ struct LinkEntry<'a> {
     #[serde(skip_serializing_if = "Option::is_none")]
     minor_loss: Option<f64>,
     #[serde(skip_serializing_if = "Option::is_none")]
+    fittings: Option<Vec<FittingEntry>>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    elevation: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    npsh_required_curve: Option<Points<'a>>,
+    #[serde(skip_serializing_if = "Option::is_none")]
     status: Option<&'static str>,
     #[serde(skip_serializing_if = "Option::is_none")]
     check_valve: Option<bool>,
@@ -589,6 +601,37 @@ struct LinkEntry<'a> {
     /// Map coordinates, written as given (no unit conversion, as node `x`, `y`).
     #[serde(skip_serializing_if = "Option::is_none")]
     path: Option<&'a [(f64, f64)]>,
+}
+
+/// One named fitting; parameters only for the kinds that take them.
+#[derive(Serialize)]
+struct FittingEntry {
+    kind: &'static str,
+    count: u32,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    radius: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    angle: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    opening: Option<f64>,
+}
+
+fn fitting_entries(fittings: &[Fitting]) -> Option<Vec<FittingEntry>> {
+    (!fittings.is_empty()).then(|| {
+        fittings
+            .iter()
+            .map(|f| {
+                let takes = |key: &str| f.kind.parameters().contains(&key);
+                FittingEntry {
+                    kind: f.kind.label(),
+                    count: f.count,
+                    radius: takes("radius").then_some(f.radius),
+                    angle: takes("angle").then_some(f.angle),
+                    opening: takes("opening").then_some(f.opening),
+                }
+            })
+            .collect()
+    })
 }
 
 fn link_entry(c: Ctx<'_>, k: usize) -> LinkEntry<'_> {
@@ -614,6 +657,7 @@ fn link_entry(c: Ctx<'_>, k: usize) -> LinkEntry<'_> {
                 HeadLossLaw::DarcyWeisbach => u.roughness.from_si(p.roughness),
             });
             e.minor_loss = Some(p.minor_loss);
+            e.fittings = fitting_entries(m.fittings(k));
             e.check_valve = Some(p.check_valve);
             e.leakage_rate = m.outflow.leakage_rates.get(&k).map(|&r| leakage_rate_from_si(c, r));
         }
@@ -633,6 +677,9 @@ fn link_entry(c: Ctx<'_>, k: usize) -> LinkEntry<'_> {
             }
             e.speed = Some(p.speed);
             e.speed_pattern = time.speed_patterns.get(&k).map(|&p| c.pattern(p));
+            e.elevation = p.elevation.map(|z| c.len(z));
+            e.npsh_required_curve =
+                p.npsh_required.as_deref().map(|points| Points { ctx: c, points, x: Axis::Flow, y: Axis::Length });
         }
         LinkKind::Valve(v) => {
             e.valve = Some(v.valve.label());
@@ -640,6 +687,7 @@ fn link_entry(c: Ctx<'_>, k: usize) -> LinkEntry<'_> {
             e.setting = Some(c.setting(Some(v.valve), v.setting));
             e.setting_pattern = time.setting_patterns.get(&k).map(|&p| c.pattern(p));
             e.minor_loss = Some(v.minor_loss);
+            e.fittings = fitting_entries(m.fittings(k));
             if !v.automatic && l.status == LinkStatus::Open {
                 e.status = Some("open");
             }
