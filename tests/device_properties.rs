@@ -72,6 +72,8 @@ fn build(c: &Case) -> Model {
             drive: PumpDrive::Curve { points: curve.to_vec(), curve: HeadCurve::fit(&curve).unwrap() },
             efficiency_points: None,
             efficiency: Efficiency::Constant(0.75),
+            elevation: None,
+            npsh_required: None,
             speed: 1.0,
         }));
         add(&mut m, sump, n - 1, kind);
@@ -226,6 +228,8 @@ fn pair_device(which: usize, second: bool) -> LinkKind {
                 drive: PumpDrive::Curve { points: curve.to_vec(), curve: HeadCurve::fit(&curve).unwrap() },
                 efficiency_points: None,
                 efficiency: Efficiency::Constant(0.75),
+                elevation: None,
+                npsh_required: None,
                 speed: 1.0,
             }))
         }
