@@ -84,7 +84,7 @@ pub fn write_file(path: &Path, write: impl FnOnce(&mut dyn Write) -> io::Result<
     let existing = std::fs::metadata(path).ok();
     if existing.as_ref().is_some_and(|m| !m.is_file()) {
         if existing.as_ref().is_some_and(|m| m.is_dir()) {
-            return Err(io::Error::new(io::ErrorKind::IsADirectory, "it is a directory"));
+            return Err(io::Error::other("it is a directory"));
         }
         // A device or a pipe: written in place.
         let mut out = BufWriter::with_capacity(BUFFER, OpenOptions::new().write(true).open(path)?);
