@@ -140,6 +140,16 @@ fn exit(code: u8) -> ExitCode {
 /// Runs the command.
 pub fn run(args: Args) -> ExitCode {
     let started = Instant::now();
+    if let Some(junit) = &args.junit {
+        let mut inputs = vec![("model", args.model.as_path())];
+        if let Some(c) = &args.criteria {
+            inputs.push(("criteria file", c.as_path()));
+        }
+        if let Err(message) = crate::output::refuse_input("--junit", junit, &inputs) {
+            eprintln!("error: {message}");
+            return exit(EXIT_INVALID);
+        }
+    }
     let (model, model_source) = match read_model(&args.model) {
         Ok(read) => read,
         Err((e, source)) => {
@@ -172,6 +182,18 @@ pub fn run(args: Args) -> ExitCode {
         }
     }
 
+    // A what-if demand factor must be positive: zero or a negative factor is a typing mistake on
+    // the command line (the library's scenarios accept zero, a static check).
+    let f = args.demand_factor;
+    if !(f.is_finite() && f > 0.0 && f <= ringmain_core::model::LARGEST_FACTOR) {
+        let e = ringmain_core::ModelError::new(format!(
+            "--demand-factor: the demand factor must be positive (greater than zero, at most {:e}), found {}",
+            ringmain_core::model::LARGEST_FACTOR,
+            ringmain_core::model::show(f)
+        ));
+        report_error(&e.in_file(&model_source.name), None);
+        return exit(EXIT_INVALID);
+    }
     let what_if = Scenario::closing(&model, &args.close, args.demand_factor).and_then(|s| {
         let m = what_if_model(&model, &s)?;
         Ok((s, m))
@@ -262,7 +284,8 @@ pub fn run(args: Args) -> ExitCode {
     };
     let code = run.exit_code();
     if let Some(path) = &args.junit {
-        if let Err(e) = std::fs::write(path, check_report::to_junit(&run)) {
+        let junit = check_report::to_junit(&run);
+        if let Err(e) = crate::output::write_file(path, |out| out.write_all(junit.as_bytes())) {
             eprintln!("error: cannot write the JUnit report to {}: {e}", path.display());
             return exit(EXIT_WRITE);
         }

@@ -113,25 +113,14 @@ pub fn run(args: Args) -> ExitCode {
     })
 }
 
-/// Whether two paths name the same existing file.
+/// Whether two paths name the same existing file, by identity (see [`crate::output::same_file`]).
 fn same_file(a: &Path, b: &Path) -> bool {
-    match (a.canonicalize(), b.canonicalize()) {
-        (Ok(x), Ok(y)) => x == y,
-        _ => false,
-    }
+    crate::output::same_file(a, b)
 }
 
-/// Writes `text` to a temporary file beside `path`, then renames it over `path`: a failed write
-/// leaves no half-written file.
+/// Writes `text` whole or not at all (see [`crate::output::write_file`]).
 fn write_atomically(path: &Path, text: &str) -> std::io::Result<()> {
-    let dir = path.parent().filter(|p| !p.as_os_str().is_empty()).unwrap_or(Path::new("."));
-    let name = path.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_else(|| "chart.svg".into());
-    let tmp = dir.join(format!(".{name}.{}.tmp", std::process::id()));
-    let result = std::fs::write(&tmp, text).and_then(|()| std::fs::rename(&tmp, path));
-    if result.is_err() {
-        let _ = std::fs::remove_file(&tmp);
-    }
-    result
+    crate::output::write_file(path, |out| out.write_all(text.as_bytes()))
 }
 
 /// An analysis in the model's units.

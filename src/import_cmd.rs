@@ -25,33 +25,16 @@ fn read(path: &Path) -> Result<Vec<u8>, ExitCode> {
     })
 }
 
-/// Whether two paths name the same file (an output must never overwrite an input).
+/// Whether two paths name the same file (an output must never overwrite an input): by
+/// identity, so hard and symbolic links count (see [`crate::output::same_file`]).
 pub fn same_file(a: &Path, b: &Path) -> bool {
-    match (std::fs::canonicalize(a), std::fs::canonicalize(b)) {
-        (Ok(a), Ok(b)) => a == b,
-        _ => false,
-    }
+    crate::output::same_file(a, b)
 }
 
-/// Writes a file whole or not at all: into a temporary file beside it, renamed over it at the
-/// end, so that a failed run leaves no half-written file.
+/// Writes a file whole or not at all (see [`crate::output::write_file`]: a temporary file beside
+/// it, renamed at the end; devices such as /dev/null written in place).
 pub fn write_atomically(path: &Path, write: impl FnOnce(&mut dyn Write) -> std::io::Result<()>) -> std::io::Result<()> {
-    let dir = path.parent().filter(|d| !d.as_os_str().is_empty()).unwrap_or(Path::new("."));
-    let name = path.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
-    let temp = dir.join(format!(".{name}.{}.partial", std::process::id()));
-    let result = (|| {
-        let file = std::fs::File::create(&temp)?;
-        let mut out = std::io::BufWriter::with_capacity(1 << 16, file);
-        write(&mut out)?;
-        out.flush()?;
-        out.get_ref().sync_all()?;
-        drop(out);
-        std::fs::rename(&temp, path)
-    })();
-    if result.is_err() {
-        let _ = std::fs::remove_file(&temp);
-    }
-    result
+    crate::output::write_file(path, write)
 }
 
 pub fn run(args: Args) -> ExitCode {

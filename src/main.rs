@@ -9,6 +9,7 @@ mod duty;
 mod gis;
 mod import_cmd;
 mod map;
+mod output;
 mod plot;
 mod quality_report;
 mod report;
@@ -18,7 +19,6 @@ mod snippet;
 use clap::{Parser, Subcommand, ValueEnum};
 use ringmain_core::physics::{friction_factor, WaterProperties};
 use ringmain_core::{Model, SolveError};
-use std::fs::File;
 use std::io::{BufWriter, Write};
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
@@ -161,8 +161,8 @@ enum Command {
         /// Close this link for the check (repeatable).
         #[arg(long, value_name = "ID")]
         close: Vec<String>,
-        /// Multiply every junction demand by this factor.
-        #[arg(long, value_name = "F", default_value_t = 1.0)]
+        /// Multiply every junction demand by this factor (positive).
+        #[arg(long, value_name = "F", default_value_t = 1.0, allow_negative_numbers = true)]
         demand_factor: f64,
         /// Also close every open pipe in turn (a criticality sweep on all cores).
         #[arg(long)]
@@ -227,7 +227,7 @@ enum Command {
     /// Print the density and viscosity of water at a temperature (IAPWS formulations).
     WaterProperties {
         /// Water temperature, deg C (0 to 99).
-        #[arg(long)]
+        #[arg(long, allow_negative_numbers = true)]
         temperature: f64,
         /// Output format.
         #[arg(long, value_enum, default_value_t = OutputFormat::Table)]
@@ -236,10 +236,10 @@ enum Command {
     /// Print the Darcy friction factor for a Reynolds number and relative roughness.
     FrictionFactor {
         /// Reynolds number.
-        #[arg(long)]
+        #[arg(long, allow_negative_numbers = true)]
         reynolds: f64,
         /// Relative roughness, absolute roughness divided by diameter.
-        #[arg(long)]
+        #[arg(long, allow_negative_numbers = true)]
         relative_roughness: f64,
         /// Output format.
         #[arg(long, value_enum, default_value_t = OutputFormat::Table)]
@@ -271,14 +271,9 @@ fn main() -> ExitCode {
     match cli.command {
         Command::Solve { model, format, output, timings } => solve(&model, format, output.as_deref(), timings),
         Command::Generate { junctions, seed, output } => generate(junctions, seed, &output),
-        Command::Simulate { model, format, output, plot, at, criteria } => simulate(
-            &model,
-            format,
-            output.as_deref(),
-            plot.as_deref(),
-            at.as_deref(),
-            criteria.as_deref(),
-        ),
+        Command::Simulate { model, format, output, plot, at, criteria } => {
+            simulate(&model, format, output.as_deref(), plot.as_deref(), at.as_deref(), criteria.as_deref())
+        }
         Command::Import {
             pipes,
             points,
@@ -367,30 +362,48 @@ pub(crate) fn write_with(
                 }
             }
         }
-        Some(path) => {
-            let written = File::create(path).and_then(|file| {
-                let mut out = BufWriter::with_capacity(BUFFER, file);
-                write(&mut out)?;
-                out.flush()
-            });
-            match written {
-                Ok(()) => ExitCode::SUCCESS,
-                Err(e) => {
-                    eprintln!("error: cannot write {what} to {}: {e}", path.display());
-                    ExitCode::from(EXIT_WRITE)
-                }
+        Some(path) => match output::write_file(path, write) {
+            Ok(()) => ExitCode::SUCCESS,
+            Err(e) => {
+                eprintln!("error: cannot write {what} to {}: {e}", path.display());
+                ExitCode::from(EXIT_WRITE)
+            }
+        },
+    }
+}
+
+/// Refuses outputs that are inputs (see [`output`]); prints the message. `outputs` pairs each
+/// output path with the option that named it.
+fn refuse_overwrite(model: &Path, outputs: &[(&str, Option<&Path>)]) -> Result<(), ExitCode> {
+    refuse_overwrite_of(&[("model", model)], outputs)
+}
+
+/// [`refuse_overwrite`] with several inputs, each with how it was given.
+fn refuse_overwrite_of(inputs: &[(&str, &Path)], outputs: &[(&str, Option<&Path>)]) -> Result<(), ExitCode> {
+    for (option, path) in outputs {
+        if let Some(path) = path {
+            if let Err(message) = output::refuse_input(option, path, inputs) {
+                eprintln!("error: {message}");
+                return Err(ExitCode::from(EXIT_INVALID));
             }
         }
     }
+    Ok(())
 }
 
 fn solve(path: &Path, format: OutputFormat, output: Option<&Path>, timings: bool) -> ExitCode {
     let clock = Instant::now();
+    if let Err(code) = refuse_overwrite(path, &[("--output", output)]) {
+        return code;
+    }
     let Ok(model) = load(path) else { return ExitCode::from(EXIT_INVALID) };
     let reading = clock.elapsed();
+    // Shown before solving: a typing mistake is most worth knowing when the solve then fails.
+    let mut plausible = plausibility_warnings(&model);
+    print_warnings(&plausible);
     let mut solver = None;
     let solved = ringmain_core::Solver::new(&model).and_then(|s| solver.insert(s).solve_model(&model));
-    let solution = match solved {
+    let mut solution = match solved {
         Ok(s) => s,
         Err(SolveError::Model(e)) => {
             eprintln!("error: {}", e.in_file(path.display().to_string()));
@@ -409,6 +422,10 @@ fn solve(path: &Path, format: OutputFormat, output: Option<&Path>, timings: bool
             }
         }
     }
+    // Valid values that are almost certainly typing mistakes (already on standard error), first
+    // among the report's warnings.
+    plausible.append(&mut solution.warnings);
+    solution.warnings = plausible;
     if format == OutputFormat::Geojson {
         let code = write_geojson(path, output, gis::GisResults::from_solution(&model, &solution));
         std::mem::forget((solution, model, solver));
@@ -428,6 +445,31 @@ fn solve(path: &Path, format: OutputFormat, output: Option<&Path>, timings: bool
     // a large network's millions of small allocations one by one takes a noticeable time.
     std::mem::forget((solution, model, solver));
     code
+}
+
+/// The model's plausibility warnings (see `ringmain_core::analysis::plausibility`) as solution
+/// warnings, each naming its key.
+fn plausibility_warnings(model: &Model) -> Vec<ringmain_core::solve::Warning> {
+    ringmain_core::analysis::plausibility(model)
+        .into_iter()
+        .map(|d| ringmain_core::solve::Warning {
+            element: Some(d.element),
+            message: match d.key {
+                Some(key) => format!("key '{key}': {}", d.message),
+                None => d.message,
+            },
+        })
+        .collect()
+}
+
+/// Prints warnings on standard error, one a line.
+fn print_warnings(warnings: &[ringmain_core::solve::Warning]) {
+    for w in warnings {
+        match &w.element {
+            Some(e) => eprintln!("warning: {e}: {}", w.message),
+            None => eprintln!("warning: {}", w.message),
+        }
+    }
 }
 
 /// The `--timings` report, on standard error.
@@ -569,9 +611,8 @@ fn draw_map(path: &Path, quantity: &str, at: Option<&str>, output: &Path) -> Exi
             return ExitCode::from(EXIT_INVALID);
         }
     };
-    if import_cmd::same_file(path, output) {
-        eprintln!("error: --output {} is the model file; choose another name", output.display());
-        return ExitCode::from(EXIT_INVALID);
+    if let Err(code) = refuse_overwrite(path, &[("--output", Some(output))]) {
+        return code;
     }
     let at = match at.map(gis::parse_at).transpose() {
         Ok(t) => t,
@@ -655,6 +696,14 @@ fn simulate(
     criteria_path: Option<&Path>,
 ) -> ExitCode {
     use ringmain_core::SimulateError;
+    let charts: Vec<PathBuf> = plot_dir.map(|d| plot::FILES.iter().map(|f| d.join(f)).collect()).unwrap_or_default();
+    let mut outputs = vec![("--output", output)];
+    outputs.extend(charts.iter().map(|c| ("--plot", Some(c.as_path()))));
+    let mut inputs = vec![("model", path)];
+    inputs.extend(criteria_path.map(|c| ("criteria file", c)));
+    if let Err(code) = refuse_overwrite_of(&inputs, &outputs) {
+        return code;
+    }
     let at = match at {
         None => None,
         Some(_) if format != OutputFormat::Geojson => {
@@ -670,6 +719,7 @@ fn simulate(
         },
     };
     let Ok(model) = load(path) else { return ExitCode::from(EXIT_INVALID) };
+    print_warnings(&plausibility_warnings(&model));
     let criteria = match check::criteria_for(&model, path, criteria_path) {
         Ok(c) => c,
         Err(()) => return ExitCode::from(EXIT_INVALID),
@@ -787,16 +837,32 @@ fn water_properties(temperature: f64, format: OutputFormat) -> ExitCode {
     write_out(&text, None)
 }
 
+/// Reynolds numbers `friction-factor` accepts. Below 1e-3 the laminar factor 64/Re exceeds
+/// 64 000, a flow that is no flow at all; above 1e10 the flow is beyond any water main (a 10 m
+/// tunnel at 10 m/s is at 1e8) and beyond the range the Colebrook–White equation was fitted on
+/// (the Moody diagram ends at 1e8; common practice).
+const REYNOLDS_RANGE: (f64, f64) = (1e-3, 1e10);
+
 fn friction(re: f64, rr: f64, format: OutputFormat) -> ExitCode {
-    if !(re.is_finite() && re > 0.0) {
-        eprintln!("error: --reynolds must be a positive number, found {re}");
+    use ringmain_core::model::show;
+    if !(re.is_finite() && re >= REYNOLDS_RANGE.0 && re <= REYNOLDS_RANGE.1) {
+        eprintln!(
+            "error: --reynolds must be a positive number between {:e} and {:e}, found {}",
+            REYNOLDS_RANGE.0,
+            REYNOLDS_RANGE.1,
+            show(re)
+        );
         return ExitCode::from(EXIT_INVALID);
     }
     if !(rr.is_finite() && (0.0..0.5).contains(&rr)) {
-        eprintln!("error: --relative-roughness must be between 0 and 0.5, found {rr}");
+        eprintln!("error: --relative-roughness must be between 0 and 0.5, found {}", show(rr));
         return ExitCode::from(EXIT_INVALID);
     }
     let (f, _) = friction_factor(re, rr);
+    if !f.is_finite() {
+        eprintln!("error: the friction factor at Re = {} and e/D = {} is not a finite number", show(re), show(rr));
+        return ExitCode::from(EXIT_INVALID);
+    }
     let regime = if re < 2000.0 {
         "laminar (64/Re)"
     } else if re > 4000.0 {
@@ -813,7 +879,9 @@ fn friction(re: f64, rr: f64, format: OutputFormat) -> ExitCode {
         OutputFormat::Csv | OutputFormat::Geojson => {
             format!("reynolds,relative_roughness,friction_factor\n{re},{rr},{f}\n")
         }
-        OutputFormat::Table => format!("Darcy friction factor f = {f:.6} at Re = {re}, e/D = {rr}: {regime}\n"),
+        OutputFormat::Table => {
+            format!("Darcy friction factor f = {f:.6} at Re = {}, e/D = {}: {regime}\n", show(re), show(rr))
+        }
     };
     write_out(&text, None)
 }

@@ -471,22 +471,26 @@ pub fn pressures_svg(report: &RunReport<'_>, count: usize) -> String {
     c.render()
 }
 
-/// Writes every chart into `dir`; returns the files written.
+/// The charts `write_all` may write, by file name.
+pub const FILES: [&str; 3] = ["tanks.svg", "pumps.svg", "pressures.svg"];
+
+/// Writes every chart into `dir` (each file all or nothing, see [`crate::output`]); returns the
+/// files written.
 pub fn write_all(report: &RunReport<'_>, dir: &Path) -> std::io::Result<Vec<std::path::PathBuf>> {
     std::fs::create_dir_all(dir)?;
     let mut written = Vec::new();
     let mut put = |name: &str, text: String| -> std::io::Result<()> {
         let path = dir.join(name);
-        std::fs::write(&path, text)?;
+        crate::output::write_file(&path, |out| out.write_all(text.as_bytes()))?;
         written.push(path);
         Ok(())
     };
     if !report.run.tanks.is_empty() {
-        put("tanks.svg", tanks_svg(report))?;
+        put(FILES[0], tanks_svg(report))?;
     }
     if !report.run.pumps.is_empty() {
-        put("pumps.svg", pumps_svg(report))?;
+        put(FILES[1], pumps_svg(report))?;
     }
-    put("pressures.svg", pressures_svg(report, 5))?;
+    put(FILES[2], pressures_svg(report, 5))?;
     Ok(written)
 }

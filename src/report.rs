@@ -343,7 +343,14 @@ impl<'a> Report<'a> {
         let u = &m.units;
         let num = |v: f64, width: usize, prec: usize| {
             if v.is_finite() {
-                format!("{v:>width$.prec$}")
+                // A value too wide for its column (a huge demand typed on purpose) in exponent
+                // form, never hundreds of digits.
+                let fixed = format!("{v:>width$.prec$}");
+                if fixed.len() > width {
+                    format!("{v:>width$.3e}")
+                } else {
+                    fixed
+                }
             } else {
                 format!("{:>width$}", "-")
             }

@@ -160,12 +160,29 @@ impl<'a> RunReport<'a> {
         if let Some((node, p, t)) = r.lowest_pressure {
             let _ = writeln!(
                 out,
-                "\nLowest pressure: {:.2} {} at '{}', {}",
+                "\nLowest pressure: {:.2} {} at '{}', {} (over every solved instant, not only report times)",
                 self.pressure(p),
                 u.pressure,
                 m.nodes()[node].id,
                 self.when(t)
             );
+        }
+        if !r.without_water.is_empty() {
+            let n = r.without_water.len();
+            let _ = writeln!(
+                out,
+                "Without water (cut off from every source; below any pressure): {n} junction{}",
+                if n == 1 { "" } else { "s" }
+            );
+            for d in &r.without_water {
+                let _ = writeln!(
+                    out,
+                    "  '{}' from {}, {:.2} h in all",
+                    m.nodes()[d.node].id,
+                    self.when(d.first),
+                    d.time / 3600.0
+                );
+            }
         }
         let b = &r.balance;
         let v = self.volume_label();
@@ -277,7 +294,11 @@ impl<'a> RunReport<'a> {
                 "pumps": pumps,
                 "lowest_pressure": r.lowest_pressure.map(|(n, p, t)| json!({
                     "node": m.nodes()[n].id, "pressure": self.pressure(p), "time_s": t,
+                    "over": "every solved instant",
                 })),
+                "without_water": r.without_water.iter().map(|d| json!({
+                    "node": m.nodes()[d.node].id, "first_time_s": d.first, "hours": d.time / 3600.0,
+                })).collect::<Vec<_>>(),
                 "volume_balance": {
                     "supplied": self.volume(b.supplied), "delivered": self.volume(b.delivered),
                     "storage_change": self.volume(b.storage_change), "discrepancy": self.volume(b.discrepancy()),

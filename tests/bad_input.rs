@@ -210,8 +210,10 @@ fn numbers_that_overflow_are_refused() {
     let f = bad("overflow.json", &variant(BASE_JSON, "\"elevation\": 10.0", "\"elevation\": 1e400"));
     at(&f, "overflow.json", 4);
     assert!(f.first_line.contains("number out of range"), "{}", f.first_line);
+    // An integer beyond 64 bits names its element and key (it used to name only the line).
     let f = bad("overflow.toml", &variant(BASE, "head = 50.0", "head = 99999999999999999999999"));
-    at(&f, "overflow.toml", 6);
+    names(&f, "overflow.toml", "node 'R1'", "head");
+    assert!(f.first_line.contains("too large"), "{}", f.first_line);
     let f = bad("inf.toml", &variant(BASE, "elevation = 10.0", "elevation = inf"));
     names(&f, "inf.toml", "node 'J1'", "elevation");
     assert!(f.first_line.ends_with("must be finite, found inf"), "{}", f.first_line);
@@ -313,4 +315,119 @@ fn semantic_errors_in_json_point_at_the_key() {
     names(&f, "kind.toml", "node 'R1'", "kind");
     assert!(f.first_line.contains("did you mean \"reservoir\""), "{}", f.first_line);
     snippet_line(&f, 5);
+}
+
+// --- Extreme values and clear messages ------------------------------------------------------
+
+/// Every numeric key of the base model's junctions, reservoir and pipes, with its line.
+const NUMERIC_KEYS: [(&str, &str, &str, &str); 7] = [
+    ("head = 50.0", "head", "node 'R1'", "head"),
+    ("elevation = 10.0", "elevation", "node 'J1'", "elevation"),
+    ("demand = 5.0", "demand", "node 'J1'", "demand"),
+    ("length = 400.0", "length", "link 'P1'", "length"),
+    ("diameter = 150", "diameter", "link 'P1'", "diameter"),
+    ("roughness = 120", "roughness", "link 'P1'", "roughness"),
+    ("length = 300.0", "length", "link 'P2'", "length"),
+];
+
+/// Fault class: extreme values ended in "heads or flows became NaN" or "a pivot is not
+/// positive" naming no element, printed hundreds of digits, said "found inf" for a value that
+/// overflowed on conversion and "found 0" for 5e-324 mm. Every numeric key at the largest and
+/// the smallest doubles is refused naming the element and key, saying too large or too small,
+/// with the value as written in a short form.
+#[test]
+fn extreme_values_in_every_numeric_key_are_refused_naming_element_and_key() {
+    for (line, key, element, _) in NUMERIC_KEYS {
+        for (value, word) in
+            [("1e308", "too large"), ("-1e308", "too large"), ("5e-324", "too small"), ("1e-200", "too small")]
+        {
+            let edited = variant(BASE, line, &format!("{key} = {value}"));
+            let f = bad("extreme.toml", &edited);
+            names(&f, "extreme.toml", element, key);
+            assert!(f.first_line.contains(word), "{key} = {value}: {}", f.first_line);
+            assert!(f.first_line.contains(value.trim_start_matches('-')), "{key} = {value}: {}", f.first_line);
+            assert!(f.first_line.len() < 400, "{}", f.first_line);
+        }
+    }
+    // An integer beyond 64 bits names its element and key.
+    let f = bad("bigint.toml", &variant(BASE, "demand = 5.0", "demand = 99999999999999999999999999"));
+    names(&f, "bigint.toml", "node 'J1'", "demand");
+    assert!(f.first_line.contains("too large"), "{}", f.first_line);
+    // A pump's power that overflows on conversion (kW to W) says too large, not "inf".
+    let pump = variant(
+        BASE,
+        "\n[[links]]\nid = \"P2\"",
+        "\n[[nodes]]\nid = \"S\"\nkind = \"reservoir\"\nhead = 5.0\n\n[[links]]\nid = \"PU\"\nkind = \"pump\"\nfrom = \"S\"\nto = \"J2\"\npower = 1e308\n\n[[links]]\nid = \"P2\"",
+    );
+    let f = bad("power.toml", &pump);
+    names(&f, "power.toml", "link 'PU'", "power");
+    assert!(f.first_line.contains("too large") && !f.first_line.contains("inf"), "{}", f.first_line);
+}
+
+/// Fault: a duplicate id named one definition only. Both places are named, for nodes and links.
+#[test]
+fn duplicate_id_names_both_definitions() {
+    let f = bad("dup-node.toml", &variant(BASE, "id = \"J2\"", "id = \"J1\""));
+    names(&f, "dup-node.toml", "node 'J1'", "id");
+    assert!(f.first_line.contains("nodes entry #2") && f.first_line.contains("nodes entry #3"), "{}", f.first_line);
+    let f = bad("dup-link.toml", &variant(BASE, "id = \"P2\"", "id = \"P1\""));
+    names(&f, "dup-link.toml", "link 'P1'", "id");
+    assert!(f.first_line.contains("links entry #1") && f.first_line.contains("links entry #2"), "{}", f.first_line);
+}
+
+/// Fault: ids with a right-to-left override or another invisible character were accepted (two
+/// ids that look the same on screen would be different ids). Every such class of character is
+/// refused, in node and link ids.
+#[test]
+fn ids_with_invisible_or_direction_changing_characters_are_refused() {
+    for c in ['\u{202E}', '\u{2066}', '\u{200B}', '\u{200D}', '\u{2060}', '\u{FEFF}', '\u{00AD}', '\u{061C}'] {
+        let node = variant(BASE, "id = \"J2\"", &format!("id = \"J{c}2\""));
+        let node = variant(&node, "to = \"J2\"", &format!("to = \"J{c}2\""));
+        let f = bad("invisible.toml", &node);
+        assert!(f.first_line.contains("key 'id'") && f.first_line.contains("invisible"), "{c:?}: {}", f.first_line);
+        assert!(f.first_line.contains(&format!("U+{:04X}", c as u32)), "{}", f.first_line);
+        let link = variant(BASE, "id = \"P2\"", &format!("id = \"P{c}2\""));
+        let f = bad("invisible.toml", &link);
+        assert!(f.first_line.contains("key 'id'"), "{c:?}: {}", f.first_line);
+    }
+}
+
+/// Fault: a JSON file with a byte-order mark was a syntax error while TOML read it.
+#[test]
+fn a_byte_order_mark_is_read_in_json_as_in_toml() {
+    for (name, text) in [("bom.json", BASE_JSON), ("bom.toml", BASE)] {
+        let path = dir().join(name);
+        let mut bytes = b"\xef\xbb\xbf".to_vec();
+        bytes.extend_from_slice(text.as_bytes());
+        std::fs::write(&path, bytes).unwrap();
+        let out = Command::new(env!("CARGO_BIN_EXE_ringmain"))
+            .args(["solve", path.to_str().unwrap(), "--format", "json"])
+            .output()
+            .unwrap();
+        assert!(out.status.success(), "{name}: {}", String::from_utf8_lossy(&out.stderr));
+    }
+}
+
+/// Fault: `--demand-factor -1` was taken for an option, and a Reynolds number of 1e300 printed a
+/// result with hundreds of digits (and 5e-324 a null) with exit 0. Negative, zero and absurd
+/// values are refused with exit 2 saying what is allowed.
+#[test]
+fn negative_demand_factor_and_absurd_reynolds_number_exit_2() {
+    let d = dir();
+    let model = d.join("factor.toml");
+    std::fs::write(&model, BASE).unwrap();
+    for factor in ["-1", "0", "-0.5", "1e308"] {
+        let f = bad_path(&model, &["--demand-factor", factor]);
+        assert!(f.first_line.contains("--demand-factor") && f.first_line.contains("positive"), "{}", f.first_line);
+    }
+    for re in ["1e300", "5e-324", "0", "-5", "inf", "NaN"] {
+        let out = Command::new(env!("CARGO_BIN_EXE_ringmain"))
+            .args(["friction-factor", "--reynolds", re, "--relative-roughness", "0.001", "--format", "json"])
+            .output()
+            .unwrap();
+        let stderr = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(2), "Re = {re}: {stderr}");
+        assert!(stderr.contains("--reynolds") && stderr.len() < 300, "{stderr}");
+        assert!(out.stdout.is_empty());
+    }
 }

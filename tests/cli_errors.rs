@@ -822,3 +822,76 @@ fn warning_for_a_junction_cut_off_by_a_closed_pipe() {
     assert!(run.stderr.contains("warning: node 'J3': cut off"), "{}", run.stderr);
     assert!(run.stdout.contains("Warnings"), "{}", run.stdout);
 }
+
+// ---------------------------------------------------------------------------------------------
+// Plausibility warnings: valid values that are almost certainly typing mistakes.
+
+/// Fault: a Darcy–Weisbach roughness comparable to the diameter (a Hazen–Williams C left in
+/// after switching the law), a relative pump speed typed in rpm and a head tolerance of metres
+/// were taken silently. Each is warned about by `solve`, `simulate` and `check`, naming the
+/// element and key; the same model with plausible values gives none of these warnings. Ranges:
+/// ε/D ≤ 0.05 (end of the Moody diagram), speed ≤ 2 and tolerance ≤ 1 m (common practice).
+#[test]
+fn implausible_roughness_pump_speed_and_head_tolerance_are_warned_by_solve_simulate_and_check() {
+    let model = |roughness: &str, speed: &str, tolerance: &str| {
+        format!(
+            r#"
+[hydraulics]
+headloss = "darcy-weisbach"
+head_tolerance = {tolerance}
+[simulation]
+duration = "2h"
+[[nodes]]
+id = "Sump"
+kind = "reservoir"
+head = 5.0
+[[nodes]]
+id = "R1"
+kind = "reservoir"
+head = 50.0
+[[nodes]]
+id = "J1"
+elevation = 10.0
+demand = 5.0
+[[links]]
+id = "P1"
+from = "R1"
+to = "J1"
+length = 400.0
+diameter = 150
+roughness = {roughness}
+[[links]]
+id = "Booster"
+kind = "pump"
+from = "Sump"
+to = "J1"
+head_curve = [[0, 60], [10, 50], [20, 30]]
+speed = {speed}
+"#
+        )
+    };
+    let dir = scratch("plausibility");
+    let bad = dir.join("typos.toml");
+    std::fs::write(&bad, model("120", "1450", "5")).unwrap();
+    let good = dir.join("plausible.toml");
+    std::fs::write(&good, model("0.1", "1.0", "0.0001")).unwrap();
+    for command in ["solve", "simulate", "check"] {
+        // `check` lists warnings by code and element; `solve` and `simulate` by element and key.
+        let expected: [&str; 3] = if command == "check" {
+            ["roughness-range: link 'P1'", "pump-speed: link 'Booster'", "head-tolerance: [hydraulics]"]
+        } else {
+            ["link 'P1': key 'roughness'", "link 'Booster': key 'speed'", "[hydraulics]: key 'head_tolerance'"]
+        };
+        let out = run(&[command.as_ref(), bad.as_os_str()]);
+        let all = format!("{}{}", out.stderr, out.stdout);
+        for e in expected {
+            assert!(all.contains(e), "{command}: no warning {e:?} in:\n{all}");
+        }
+        assert!(all.contains("Moody") && all.contains("rpm") && all.contains("common practice"), "{all}");
+        let out = run(&[command.as_ref(), good.as_os_str()]);
+        let all = format!("{}{}", out.stderr, out.stdout);
+        for e in expected {
+            assert!(!all.contains(e), "{command}: a plausible model warned {e:?}:\n{all}");
+        }
+    }
+}

@@ -72,9 +72,9 @@ fn build(c: &Case) -> Model {
             drive: PumpDrive::Curve { points: curve.to_vec(), curve: HeadCurve::fit(&curve).unwrap() },
             efficiency_points: None,
             efficiency: Efficiency::Constant(0.75),
-            speed: 1.0,
             elevation: None,
             npsh_required: None,
+            speed: 1.0,
         }));
         add(&mut m, sump, n - 1, kind);
     }
@@ -207,4 +207,160 @@ proptest! {
             Err(e) => return Err(TestCaseError::fail(format!("{e}"))),
         }
     }
+}
+
+/// The devices of the pair tests, by name: check valve, pump, and the four valves.
+const PAIR_DEVICES: [&str; 6] =
+    ["check valve", "pump", "pressure-reducing", "pressure-sustaining", "flow-control", "throttle"];
+
+/// Device `which` of [`PAIR_DEVICES`]; `second` picks the second setting of a pair of the same
+/// kind (a duty and a standby valve at different settings).
+fn pair_device(which: usize, second: bool) -> LinkKind {
+    let valve = |valve, setting: f64| {
+        LinkKind::Valve(Valve { valve, diameter: 0.2, setting, minor_loss: 0.5, automatic: true })
+    };
+    match which {
+        0 => pipe(150.0, 0.2, 110.0, true),
+        1 => {
+            let shutoff = if second { 30.0 } else { 40.0 };
+            let curve = [(0.0, shutoff), (0.03, 0.8 * shutoff), (0.05, 0.5 * shutoff)];
+            LinkKind::Pump(Box::new(ringmain_core::model::Pump {
+                drive: PumpDrive::Curve { points: curve.to_vec(), curve: HeadCurve::fit(&curve).unwrap() },
+                efficiency_points: None,
+                efficiency: Efficiency::Constant(0.75),
+                elevation: None,
+                npsh_required: None,
+                speed: 1.0,
+            }))
+        }
+        2 => valve(ValveType::PressureReducing, if second { 55.0 } else { 40.0 }),
+        3 => valve(ValveType::PressureSustaining, if second { 75.0 } else { 60.0 }),
+        4 => valve(ValveType::FlowControl, if second { 0.025 } else { 0.015 }),
+        _ => valve(ValveType::Throttle, if second { 8.0 } else { 3.0 }),
+    }
+}
+
+/// A supply main from a reservoir (head 100 m) into junction A, the pair of devices from A to B
+/// (side by side, or one after the other through M), and B feeding C; a second reservoir at
+/// `far_head` behind a long thin pipe at C takes or gives water. Demands 20 L/s at B, 10 L/s at C;
+/// every elevation 0, so a head is a pressure head.
+fn pair_model(first: usize, second: usize, series: bool, far_head: f64, main_diameter: f64) -> Model {
+    let mut m = Model::new(UnitSystem::default(), HydraulicOptions::default());
+    let r = m.add_node(Node::reservoir("R", 100.0)).unwrap();
+    let a = m.add_node(Node::junction("A", 0.0, 0.0)).unwrap();
+    let b = m.add_node(Node::junction("B", 0.0, 0.020)).unwrap();
+    let c = m.add_node(Node::junction("C", 0.0, 0.010)).unwrap();
+    let far = m.add_node(Node::reservoir("Far", far_head)).unwrap();
+    let add = |m: &mut Model, id: &str, from: usize, to: usize, kind: LinkKind| {
+        m.add_link(Link { id: id.into(), from, to, status: LinkStatus::Open, kind }).unwrap();
+    };
+    add(&mut m, "main", r, a, pipe(1000.0, main_diameter, 120.0, false));
+    let same = first == second;
+    if series {
+        let mid = m.add_node(Node::junction("M", 0.0, 0.0)).unwrap();
+        add(&mut m, "first", a, mid, pair_device(first, false));
+        add(&mut m, "second", mid, b, pair_device(second, same));
+    } else {
+        add(&mut m, "first", a, b, pair_device(first, false));
+        add(&mut m, "second", a, b, pair_device(second, same));
+    }
+    add(&mut m, "onward", b, c, pipe(300.0, 0.2, 120.0, false));
+    add(&mut m, "far main", c, far, pipe(2000.0, 0.1, 120.0, false));
+    m
+}
+
+/// Fault: two pressure-reducing valves side by side between the same two nodes (a duty and a
+/// standby valve at different settings) both reported "active" with the downstream node at the
+/// lower setting. The class: every pair of devices, side by side and in series, under a supply
+/// that lets valves reduce (far reservoir at 60 m, large main) and one that starves them (far
+/// reservoir at 0 m, small main). Each must settle in states whose defining conditions hold
+/// (checked independently above) with water conserved at every junction; and the rule for
+/// devices that would hold the same node (see the solver's status docs) gives, side by side:
+/// pressure-reducing valves hold the node at the higher setting, the other closed; sustaining
+/// valves hold it at the lower setting, the other closed; flow-control valves in series pass
+/// the smaller setting, the other fully open.
+#[test]
+fn pressure_reducing_valves_in_parallel_hold_the_higher_setting_and_every_device_pair_settles() {
+    let mut failures = Vec::new();
+    for first in 0..PAIR_DEVICES.len() {
+        for second in 0..PAIR_DEVICES.len() {
+            for series in [false, true] {
+                for (far_head, main_diameter) in [(60.0, 0.3), (0.0, 0.15)] {
+                    let label = format!(
+                        "{} + {} {} (far reservoir {far_head} m)",
+                        PAIR_DEVICES[first],
+                        PAIR_DEVICES[second],
+                        if series { "in series" } else { "side by side" }
+                    );
+                    let m = pair_model(first, second, series, far_head, main_diameter);
+                    let s = match solve(&m) {
+                        Ok(s) => s,
+                        Err(e) => {
+                            failures.push(format!("{label}: {e}"));
+                            continue;
+                        }
+                    };
+                    if let Err(e) = check_conditions(&m, &s) {
+                        failures.push(format!("{label}: {e}"));
+                    }
+                    for (i, n) in m.nodes().iter().enumerate() {
+                        if n.fixed_head().is_some() {
+                            continue;
+                        }
+                        let mut net = -n.demand();
+                        for (k, l) in m.links().iter().enumerate() {
+                            if l.to == i {
+                                net += s.flow[k];
+                            }
+                            if l.from == i {
+                                net -= s.flow[k];
+                            }
+                        }
+                        if net.abs() > 1e-6 {
+                            failures.push(format!("{label}: water not conserved at {} ({net} m3/s)", n.id));
+                        }
+                    }
+                    let b = m.nodes().iter().position(|n| n.id == "B").unwrap();
+                    let a = m.nodes().iter().position(|n| n.id == "A").unwrap();
+                    let state = |id: &str| s.link_state[m.links().iter().position(|l| l.id == id).unwrap()];
+                    let flow = |id: &str| s.flow[m.links().iter().position(|l| l.id == id).unwrap()];
+                    if !series && first == second && first == 2 && far_head > 0.0 {
+                        // Duty 40 m, standby 55 m: the node sits at 55 m, the 40 m valve closes.
+                        if (s.head[b] - 55.0).abs() > 1e-6
+                            || state("second") != LinkState::Active
+                            || state("first") != LinkState::ValveClosed
+                        {
+                            failures.push(format!(
+                                "{label}: B at {} m, states {:?} / {:?}",
+                                s.head[b],
+                                state("first"),
+                                state("second")
+                            ));
+                        }
+                    }
+                    if !series && first == second && first == 3 && far_head == 0.0 {
+                        // Settings 60 m and 75 m: the node upstream is held at 60 m.
+                        if (s.head[a] - 60.0).abs() > 1e-6
+                            || state("first") != LinkState::Active
+                            || state("second") != LinkState::ValveClosed
+                        {
+                            failures.push(format!(
+                                "{label}: A at {} m, states {:?} / {:?}",
+                                s.head[a],
+                                state("first"),
+                                state("second")
+                            ));
+                        }
+                    }
+                    if series && first == second && first == 4 {
+                        // 15 L/s and 25 L/s in series pass 15 L/s.
+                        if (flow("first") - 0.015).abs() > 1e-9 || (flow("second") - 0.015).abs() > 1e-9 {
+                            failures.push(format!("{label}: flows {} / {}", flow("first"), flow("second")));
+                        }
+                    }
+                }
+            }
+        }
+    }
+    assert!(failures.is_empty(), "{} of 144 cases wrong:\n{}", failures.len(), failures.join("\n"));
 }

@@ -113,3 +113,140 @@ fn the_demo_round_trips_through_the_writer() {
         assert_eq!(back.time.simulation, model.time.simulation);
     }
 }
+
+/// Fault: `solve net.toml --output net.toml`, `check net.toml --junit net.toml` and `simulate
+/// net.toml --output net.toml` overwrote the model and exited 0. The whole class: every command
+/// with every output option, the input named the same way, by another name (`./`, a hard link, a
+/// symbolic link), and the criteria file of `check`. Each is refused with exit code 2 before any
+/// work, and the input is left byte for byte as it was.
+#[test]
+fn output_over_input_is_refused_for_every_command_and_output_option() {
+    let dir = scratch("output-over-input");
+    let model = dir.join("net.toml");
+    let original = std::fs::read(demo()).unwrap();
+    std::fs::write(&model, &original).unwrap();
+    let criteria = dir.join("criteria.toml");
+    let criteria_text = b"min_pressure = 10.0\n";
+    std::fs::write(&criteria, criteria_text).unwrap();
+    let hard = dir.join("hard-link.toml");
+    std::fs::hard_link(&model, &hard).unwrap();
+    let soft = dir.join("soft-link.toml");
+    std::os::unix::fs::symlink(&model, &soft).unwrap();
+    let dotted = dir.join(".").join("net.toml");
+    // A chart directory holding the model under a chart's name (a hard link of it).
+    let charts = dir.join("charts");
+    std::fs::create_dir_all(&charts).unwrap();
+    std::fs::hard_link(&model, charts.join("pressures.svg")).unwrap();
+
+    let m = model.as_os_str();
+    let mut cases: Vec<Vec<&std::ffi::OsStr>> = Vec::new();
+    for same in [&model, &hard, &soft, &dotted] {
+        let s = same.as_os_str();
+        cases.push(vec!["solve".as_ref(), m, "--output".as_ref(), s]);
+        cases.push(vec!["solve".as_ref(), m, "-o".as_ref(), s, "--format".as_ref(), "json".as_ref()]);
+        cases.push(vec!["simulate".as_ref(), m, "--output".as_ref(), s]);
+        cases.push(vec!["simulate".as_ref(), m, "--output".as_ref(), s, "--format".as_ref(), "csv".as_ref()]);
+        cases.push(vec!["check".as_ref(), m, "--junit".as_ref(), s]);
+    }
+    cases.push(vec!["simulate".as_ref(), m, "--plot".as_ref(), charts.as_os_str()]);
+    let map = charts.join("pressures.svg");
+    cases.push(vec![
+        "map".as_ref(),
+        m,
+        "--quantity".as_ref(),
+        "pressure".as_ref(),
+        "--output".as_ref(),
+        map.as_os_str(),
+    ]);
+    cases.push(vec![
+        "check".as_ref(),
+        m,
+        "--criteria".as_ref(),
+        criteria.as_os_str(),
+        "--junit".as_ref(),
+        criteria.as_os_str(),
+    ]);
+    for args in &cases {
+        let out = ringmain(args);
+        let stderr = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(2), "{args:?} must be refused:\n{stderr}");
+        assert!(stderr.contains("never replaces an input"), "{args:?}: {stderr}");
+        assert!(out.stdout.is_empty(), "{args:?}: no work may be done");
+        assert_eq!(std::fs::read(&model).unwrap(), original, "{args:?} changed the model");
+        assert_eq!(std::fs::read(&criteria).unwrap(), criteria_text, "{args:?} changed the criteria");
+    }
+    // Not the input: written, and no temporary file is left behind.
+    let results = dir.join("results.json");
+    let out = ringmain(&[
+        "solve".as_ref(),
+        m,
+        "--output".as_ref(),
+        results.as_os_str(),
+        "--format".as_ref(),
+        "json".as_ref(),
+    ]);
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    assert!(serde_json::from_slice::<serde_json::Value>(&std::fs::read(&results).unwrap()).is_ok());
+    let partial: Vec<_> = std::fs::read_dir(&dir)
+        .unwrap()
+        .filter_map(|e| e.ok())
+        .filter(|e| e.file_name().to_string_lossy().ends_with(".partial"))
+        .collect();
+    assert!(partial.is_empty(), "temporary files left: {partial:?}");
+}
+
+/// Fault class: a failed run must leave no half-written file. An output that cannot be
+/// finished (its directory is a file) fails with exit code 4, and an existing result file is
+/// kept whole when the run fails before writing (an invalid model).
+#[test]
+fn failed_run_leaves_no_half_written_output() {
+    let dir = scratch("failed-run");
+    let results = dir.join("results.txt");
+    std::fs::write(&results, "earlier results\n").unwrap();
+    let bad = dir.join("bad.toml");
+    std::fs::write(&bad, "[[nodes]]\nid = \"A\"\nkind = \"reservoir\"\n").unwrap();
+    for command in ["solve", "simulate"] {
+        let out = ringmain(&[command.as_ref(), bad.as_os_str(), "--output".as_ref(), results.as_os_str()]);
+        assert_eq!(out.status.code(), Some(2));
+        assert_eq!(std::fs::read_to_string(&results).unwrap(), "earlier results\n", "{command}");
+    }
+    let blocked = dir.join("results.txt").join("inside.json");
+    for command in ["solve", "simulate"] {
+        let out = ringmain(&[command.as_ref(), demo().as_os_str(), "--output".as_ref(), blocked.as_os_str()]);
+        assert_eq!(out.status.code(), Some(4), "{command}: {}", String::from_utf8_lossy(&out.stderr));
+    }
+    let leftovers: Vec<_> = std::fs::read_dir(&dir)
+        .unwrap()
+        .filter_map(|e| e.ok())
+        .filter(|e| e.file_name().to_string_lossy().ends_with(".partial"))
+        .collect();
+    assert!(leftovers.is_empty(), "{leftovers:?}");
+}
+
+/// Fault: the summary's lowest pressure missed solved instants between report times (the demo's
+/// pump started because Spring Lane fell below 18 m while the summary said the lowest pressure
+/// was 22.89 m). The class: for every control the run shows acting on a pressure below a
+/// threshold, the summary's lowest pressure is at or below that threshold, and the summary says
+/// it covers every solved instant.
+#[test]
+fn lowest_pressure_covers_every_solved_instant_not_only_report_times() {
+    let out = ringmain(&["simulate".as_ref(), demo().as_os_str(), "--format".as_ref(), "json".as_ref()]);
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    let lowest = &v["summary"]["lowest_pressure"];
+    let low = lowest["pressure"].as_f64().unwrap();
+    assert_eq!(lowest["over"], "every solved instant");
+    let fired: Vec<&str> = v["events"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter_map(|e| e["what"].as_str())
+        .filter(|w| w.contains("control 'duty-pressure'"))
+        .collect();
+    assert!(!fired.is_empty(), "the demo's pressure control must act for this test to mean something");
+    // The demo's threshold: 18 m at Spring Lane (examples/hillside-day.toml).
+    assert!(low <= 18.0 + 1e-3, "lowest pressure {low} m, but a control acted below 18 m: {fired:?}");
+    let table = ringmain(&["simulate".as_ref(), demo().as_os_str()]);
+    let text = String::from_utf8(table.stdout).unwrap();
+    assert!(text.contains("over every solved instant"), "{text}");
+}

@@ -794,3 +794,153 @@ fn tight_head_tolerance_on_a_stiff_chain() {
     let got = head(&m, &s, "A");
     assert!((got - expected).abs() < 1e-7, "head {got} vs {expected}: {:e}", got - expected);
 }
+
+// --- Non-finite values never leave the solver -----------------------------------------------
+
+/// A loop fed by a reservoir with a dead-end branch, a pump and a Darcy–Weisbach variant, with
+/// one numeric value replaced by `{v}` at the marked place.
+fn extreme_model(place: &str, value: &str, law: &str) -> String {
+    let v = |p: &str, normal: &str| if p == place { value.to_owned() } else { normal.to_owned() };
+    format!(
+        r#"
+[hydraulics]
+headloss = "{law}"
+[[nodes]]
+id = "R"
+kind = "reservoir"
+head = {}
+[[nodes]]
+id = "Sump"
+kind = "reservoir"
+head = 5
+[[nodes]]
+id = "J1"
+elevation = {}
+demand = {}
+[[nodes]]
+id = "J2"
+elevation = 10
+demand = 3
+[[nodes]]
+id = "End"
+elevation = 12
+demand = {}
+[[links]]
+id = "P1"
+from = "R"
+to = "J1"
+length = {}
+diameter = {}
+roughness = {}
+minor_loss = {}
+[[links]]
+id = "P2"
+from = "J1"
+to = "J2"
+length = 300
+diameter = 100
+roughness = {}
+[[links]]
+id = "P3"
+from = "R"
+to = "J2"
+length = 800
+diameter = 100
+roughness = {}
+[[links]]
+id = "Dead end"
+from = "J2"
+to = "End"
+length = {}
+diameter = {}
+roughness = {}
+[[links]]
+id = "Booster"
+kind = "pump"
+from = "Sump"
+to = "J1"
+head_curve = [[0, {}], [10, 40], [15, 30]]
+speed = {}
+"#,
+        v("head", "60"),
+        v("elevation", "10"),
+        v("demand", "5"),
+        v("end demand", "1"),
+        v("length", "400"),
+        v("diameter", "150"),
+        v("roughness", if law == "hazen-williams" { "120" } else { "0.1" }),
+        v("minor_loss", "0"),
+        if law == "hazen-williams" { "110" } else { "0.1" },
+        if law == "hazen-williams" { "100" } else { "0.1" },
+        v("end length", "200"),
+        v("end diameter", "80"),
+        if law == "hazen-williams" { "100" } else { "0.1" },
+        v("shutoff", "50"),
+        v("speed", "1"),
+    )
+}
+
+/// Fault: a dead-end pipe of absurdly small diameter gave its junction `head: null` with
+/// `connected: true` and no warning, and criteria then passed over the junctions without values.
+/// The class: every numeric key of junctions, reservoirs, pipes (looped and dead-end) and pumps,
+/// under both friction laws, at extreme values (the largest and the smallest double, 1e±30).
+/// The model is refused naming the element and key, or the solve fails naming the element (or
+/// does not converge, naming nodes), or every value of the solution is a finite number.
+#[test]
+fn non_finite_value_in_a_solution_is_an_error_naming_the_element() {
+    let places = [
+        "head",
+        "elevation",
+        "demand",
+        "end demand",
+        "length",
+        "diameter",
+        "roughness",
+        "minor_loss",
+        "end length",
+        "end diameter",
+        "shutoff",
+        "speed",
+    ];
+    let values = ["1e308", "-1e308", "1e30", "1e-30", "1e-300", "5e-324"];
+    let ids = ["'R'", "'Sump'", "'J1'", "'J2'", "'End'", "'P1'", "'P2'", "'P3'", "'Dead end'", "'Booster'"];
+    let mut bad = Vec::new();
+    for law in ["hazen-williams", "darcy-weisbach"] {
+        for place in places {
+            for value in values {
+                let text = extreme_model(place, value, law);
+                let case = format!("{law}, {place} = {value}");
+                let m = match ringmain_core::read_str(&text, ringmain_core::Format::Toml, "x.toml") {
+                    Ok(m) => m,
+                    Err(e) => {
+                        if e.element.is_none() || e.key.is_none() {
+                            bad.push(format!("{case}: refused without element and key: {e}"));
+                        }
+                        continue;
+                    }
+                };
+                match solve(&m) {
+                    Ok(s) => {
+                        for (i, n) in m.nodes().iter().enumerate() {
+                            if s.connected[i] && !(s.head[i].is_finite() && s.pressure[i].is_finite()) {
+                                bad.push(format!("{case}: node {} connected with head {}", n.id, s.head[i]));
+                            }
+                        }
+                        for (k, l) in m.links().iter().enumerate() {
+                            if !s.flow[k].is_finite() {
+                                bad.push(format!("{case}: link {} flow {}", l.id, s.flow[k]));
+                            }
+                        }
+                    }
+                    Err(e) => {
+                        let text = e.to_string();
+                        if !ids.iter().any(|id| text.contains(id)) {
+                            bad.push(format!("{case}: error names no element: {text}"));
+                        }
+                    }
+                }
+            }
+        }
+    }
+    assert!(bad.is_empty(), "{} cases:\n{}", bad.len(), bad.join("\n"));
+}

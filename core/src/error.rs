@@ -168,6 +168,15 @@ pub enum SolveError {
         /// Links whose status kept changing.
         links: Vec<String>,
     },
+    /// A value of the solution is not a finite number (it overflowed): the element and what.
+    NonFinite {
+        /// The node or link.
+        element: Element,
+        /// Which value: "head", "pressure", "flow", "head loss", "velocity", "head gain"...
+        quantity: &'static str,
+        /// The value (infinite or NaN).
+        value: f64,
+    },
     /// The linear system could not be factored (a pivot was not positive).
     Numerical {
         /// Iteration at which it happened.
@@ -219,6 +228,12 @@ impl fmt::Display for SolveError {
                 f,
                 "device states kept cycling after {iterations} iterations; links involved: {}",
                 links.iter().map(|l| format!("'{}'", printable(l))).collect::<Vec<_>>().join(", ")
+            ),
+            SolveError::NonFinite { element, quantity, value } => write!(
+                f,
+                "{element}: its {quantity} is not a finite number ({value}) in the solution: a value of the \
+                 model, or one it leads to, is beyond what the arithmetic can carry (look at this element's \
+                 values and those of its links: diameter, length, roughness, demand, speed, head)"
             ),
             SolveError::Numerical { iteration, detail } => {
                 write!(f, "the linear system could not be factored at iteration {iteration}: {detail}")

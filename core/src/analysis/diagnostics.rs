@@ -17,6 +17,18 @@
 //!   catching a mistyped digit (1200 written for 120); two joined nodes can legitimately differ by
 //!   more on a steep rising main, which is why this is only a warning.
 //!
+//! - Darcy–Weisbach relative roughness ε/D up to 0.05: the Moody diagram (Moody 1944, "Friction
+//!   factors for pipe flow", Trans. ASME 66) ends there, and the roughest pipes in the usual
+//!   tables (riveted steel, up to about 9 mm) stay below it at any main's diameter (common
+//!   practice). A roughness comparable to the diameter is almost always a Hazen–Williams C left
+//!   in after switching the friction law (C = 100 read as 100 mm).
+//! - Relative pump speed up to 2: variable-speed drives run pumps from about half to a little
+//!   above their rated speed, and the affinity laws are used only near it (common practice); a
+//!   speed above 2 is almost always a speed in rpm typed where the relative speed belongs.
+//! - Head tolerance up to 1 m: heads and pressures are reported to 0.01 m and the default
+//!   tolerance is 1e-4 m; a tolerance above 1 m lets the iteration stop with errors larger than
+//!   the pressure margins a design is judged by (common practice).
+//!
 //! A link whose both ends are the same node is not a warning: the reader rejects it as an error.
 
 use crate::error::Element;
@@ -32,6 +44,12 @@ pub const PLAUSIBLE_HAZEN_WILLIAMS_C: RangeInclusive<f64> = 40.0..=160.0;
 pub const PLAUSIBLE_DIAMETER: RangeInclusive<f64> = 0.010..=3.0;
 /// Highest plausible velocity, m/s (common practice).
 pub const PLAUSIBLE_VELOCITY: f64 = 3.0;
+/// Largest plausible Darcy–Weisbach relative roughness ε/D (the end of the Moody diagram).
+pub const PLAUSIBLE_RELATIVE_ROUGHNESS: f64 = 0.05;
+/// Largest plausible relative pump speed (common practice, see the module docs).
+pub const PLAUSIBLE_PUMP_SPEED: f64 = 2.0;
+/// Largest plausible head tolerance, m (common practice, see the module docs).
+pub const PLAUSIBLE_HEAD_TOLERANCE: f64 = 1.0;
 /// Largest difference from the median elevation of a junction's neighbours, m (our own rule).
 pub const ELEVATION_OUTLIER: f64 = 100.0;
 
@@ -53,6 +71,10 @@ pub enum DiagnosticKind {
     ElevationOutlier,
     /// A velocity above the plausible maximum in the solved base scenario.
     HighVelocity,
+    /// A relative pump speed above the plausible maximum (an rpm typed as a relative speed?).
+    PumpSpeed,
+    /// A head tolerance above the plausible maximum.
+    HeadTolerance,
 }
 
 impl DiagnosticKind {
@@ -65,6 +87,8 @@ impl DiagnosticKind {
         DiagnosticKind::DiameterRange,
         DiagnosticKind::ElevationOutlier,
         DiagnosticKind::HighVelocity,
+        DiagnosticKind::PumpSpeed,
+        DiagnosticKind::HeadTolerance,
     ];
 
     /// The short code.
@@ -77,6 +101,8 @@ impl DiagnosticKind {
             DiagnosticKind::DiameterRange => "diameter-range",
             DiagnosticKind::ElevationOutlier => "elevation-outlier",
             DiagnosticKind::HighVelocity => "high-velocity",
+            DiagnosticKind::PumpSpeed => "pump-speed",
+            DiagnosticKind::HeadTolerance => "head-tolerance",
         }
     }
 
@@ -106,6 +132,89 @@ pub fn diagnose_model(model: &Model) -> Vec<Diagnostic> {
     parallel_pipes(model, &mut out);
     ranges(model, &mut out);
     elevations(model, &mut out);
+    out.extend(plausibility(model));
+    out
+}
+
+/// Values that are valid but almost certainly typing mistakes, which `solve` and `simulate`
+/// report too (beside `check`'s full list): a Darcy–Weisbach roughness comparable to the
+/// diameter, a relative pump speed above 2 (in the model, a control or a speed pattern), a head
+/// tolerance above 1 m. The ranges and their sources are in the module docs.
+pub fn plausibility(model: &Model) -> Vec<Diagnostic> {
+    use crate::model::show;
+    let u = &model.units;
+    let mut out = Vec::new();
+    if model.options.headloss == HeadLossLaw::DarcyWeisbach {
+        for l in model.links() {
+            let Some(p) = l.as_pipe() else { continue };
+            let relative = p.roughness / p.diameter;
+            if relative > PLAUSIBLE_RELATIVE_ROUGHNESS {
+                out.push(Diagnostic {
+                    kind: DiagnosticKind::RoughnessRange,
+                    element: Element::Link(l.id.to_string()),
+                    key: Some("roughness"),
+                    message: format!(
+                        "Darcy-Weisbach roughness {} {} is {:.3} of the diameter; the Moody diagram ends at 0.05 \
+                         (common practice): a Hazen-Williams C left in after switching the friction law?",
+                        show(u.roughness.from_si(p.roughness)),
+                        u.roughness.label(),
+                        relative
+                    ),
+                });
+            }
+        }
+    }
+    let speed_warning = |id: &str, where_: String, speed: f64| Diagnostic {
+        kind: DiagnosticKind::PumpSpeed,
+        element: Element::Link(id.to_owned()),
+        key: Some("speed"),
+        message: format!(
+            "relative speed {} {where_}is above {PLAUSIBLE_PUMP_SPEED} (common practice: drives run pumps near \
+             their rated speed, 1): a speed in rpm typed as a relative speed?",
+            show(speed)
+        ),
+    };
+    for (k, l) in model.links().iter().enumerate() {
+        let Some(p) = l.as_pump() else { continue };
+        if p.speed > PLAUSIBLE_PUMP_SPEED {
+            out.push(speed_warning(&l.id, String::new(), p.speed));
+        }
+        if let Some(&pattern) = model.time.speed_patterns.get(&k) {
+            let peak = model.time.patterns[pattern].multipliers.iter().copied().fold(0.0, f64::max) * p.speed;
+            if peak > PLAUSIBLE_PUMP_SPEED && p.speed <= PLAUSIBLE_PUMP_SPEED {
+                out.push(speed_warning(
+                    &l.id,
+                    format!("(at the peak of pattern '{}') ", model.time.patterns[pattern].id),
+                    peak,
+                ));
+            }
+        }
+    }
+    for c in &model.time.controls {
+        if let crate::model::time::Action::Speed(v) = c.action {
+            if v > PLAUSIBLE_PUMP_SPEED {
+                if let Some(l) = model.links().get(c.link) {
+                    out.push(speed_warning(&l.id, format!("(set by control '{}') ", c.id), v));
+                }
+            }
+        }
+    }
+    let tolerance = model.options.head_tolerance;
+    if tolerance > PLAUSIBLE_HEAD_TOLERANCE {
+        out.push(Diagnostic {
+            kind: DiagnosticKind::HeadTolerance,
+            element: Element::Table("hydraulics".into()),
+            key: Some("head_tolerance"),
+            message: format!(
+                "a head tolerance of {} {} lets the iteration stop with head errors above {} {} (common practice: \
+                 heads are judged to 0.01 m; the default is 1e-4 m)",
+                show(u.length.from_si(tolerance)),
+                u.length.label(),
+                show(u.length.from_si(PLAUSIBLE_HEAD_TOLERANCE)),
+                u.length.label()
+            ),
+        });
+    }
     out
 }
 

@@ -29,7 +29,7 @@ pub mod diagnostics;
 pub mod evaluate;
 
 pub use criteria::{Criteria, Group, Quantity, SupplyMargin};
-pub use diagnostics::{diagnose_model, diagnose_solution, Diagnostic, DiagnosticKind};
+pub use diagnostics::{diagnose_model, diagnose_solution, plausibility, Diagnostic, DiagnosticKind};
 pub use evaluate::{evaluate, warning_checks, CheckResult, Finding};
 
 pub use crate::solve::Scenario;

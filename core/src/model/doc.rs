@@ -60,6 +60,8 @@ pub enum Value {
     Table(Vec<(Key, Value)>),
     /// A TOML date or time (never valid in a model).
     Date,
+    /// A whole number beyond 64 bits (its approximate value): always refused, naming the key.
+    HugeInt(f64),
 }
 
 impl Value {
@@ -72,6 +74,7 @@ impl Value {
             Value::Array(_) => "an array",
             Value::Table(_) => "a table",
             Value::Date => "a date",
+            Value::HugeInt(_) => "a whole number too large for 64 bits",
         }
     }
 }
@@ -111,6 +114,12 @@ impl<'de> Visitor<'de> for Seed {
     }
     fn visit_u64<E>(self, v: u64) -> Result<Value, E> {
         Ok(i64::try_from(v).map(Value::Int).unwrap_or(Value::Float(v as f64)))
+    }
+    fn visit_i128<E>(self, v: i128) -> Result<Value, E> {
+        Ok(i64::try_from(v).map(Value::Int).unwrap_or(Value::HugeInt(v as f64)))
+    }
+    fn visit_u128<E>(self, v: u128) -> Result<Value, E> {
+        Ok(i64::try_from(v).map(Value::Int).unwrap_or(Value::HugeInt(v as f64)))
     }
     fn visit_f64<E>(self, v: f64) -> Result<Value, E> {
         Ok(Value::Float(v))

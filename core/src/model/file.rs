@@ -52,6 +52,9 @@ impl Format {
 
 /// Parses a model from text. `source` names the text in error messages (usually the file name).
 pub fn read_str(text: &str, format: Format, source: &str) -> Result<Model, ModelError> {
+    // A byte-order mark (some editors on Windows write one) is not part of the text, in JSON as
+    // in TOML.
+    let text = text.strip_prefix('\u{feff}').unwrap_or(text);
     read_inner(text, format).map_err(|e| e.in_file(source))
 }
 
@@ -614,10 +617,44 @@ impl Fields {
     fn number(&mut self, key: &str) -> Result<Option<f64>, ModelError> {
         match self.take(key) {
             None => Ok(None),
-            Some(Value::Int(i)) => Ok(Some(i as f64)),
-            Some(Value::Float(f)) => Ok(Some(f)),
+            Some(Value::Int(i)) => self.magnitude(key, i as f64).map(Some),
+            Some(Value::Float(f)) => self.magnitude(key, f).map(Some),
+            Some(Value::HugeInt(v)) => Err(self.error(
+                key,
+                format!("is too large: a whole number of about {v:e}, beyond 64 bits and any physical value"),
+            )),
             Some(other) => Err(self.error(key, format!("must be a number, found {}", other.kind()))),
         }
+    }
+
+    /// Refuses a number beyond any physical value in any unit, before it is converted (a
+    /// conversion would turn 5e-324 mm into 0 m and 1e308 kW into an infinite power, and the
+    /// message would then show the converted value). Zero, infinities and NaN pass: the value
+    /// rules of each key judge them with their own words.
+    fn magnitude(&self, key: &str, v: f64) -> Result<f64, ModelError> {
+        let size = v.abs();
+        if size.is_finite() && size > super::LARGEST_INPUT {
+            return Err(self.error(
+                key,
+                format!(
+                    "is too large: {} (no physical value in any unit is beyond {:e} in size)",
+                    super::show(v),
+                    super::LARGEST_INPUT
+                ),
+            ));
+        }
+        if size > 0.0 && size < super::SMALLEST_INPUT {
+            return Err(self.error(
+                key,
+                format!(
+                    "is too small: {} (no physical value in any unit is this close to zero: below {:e} in size; \
+                     write 0 if zero is meant)",
+                    super::show(v),
+                    super::SMALLEST_INPUT
+                ),
+            ));
+        }
+        Ok(v)
     }
 
     fn required_number(&mut self, key: &str) -> Result<f64, ModelError> {

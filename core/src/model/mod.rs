@@ -536,6 +536,27 @@ impl PartialEq for Model {
     }
 }
 
+/// Numbers read from a file beyond this size are refused before any unit conversion (see
+/// `Fields::magnitude` in the reader): every conversion factor of `units.rs` lies between 1e-9 and
+/// 1e9, so a value within these bounds can neither overflow nor vanish on conversion.
+pub(crate) const LARGEST_INPUT: f64 = 1e100;
+/// The largest demand factor of a what-if scenario: a thousand times the demand is far beyond
+/// any design case (fire flow on peak hour is a few times the average), and keeps every flow
+/// within the arithmetic.
+pub const LARGEST_FACTOR: f64 = 1e3;
+/// Non-zero numbers read from a file below this size are refused (see [`LARGEST_INPUT`]).
+pub(crate) const SMALLEST_INPUT: f64 = 1e-100;
+
+/// A number for a message: the shortest text that reads back as the same value, in exponent
+/// form when large or small (`1e308`, `5e-324`, `0.1`, `150`), never hundreds of digits.
+pub fn show(v: f64) -> String {
+    if v.is_finite() && v == v.trunc() && v.abs() < 1e16 {
+        format!("{v}")
+    } else {
+        format!("{v:?}")
+    }
+}
+
 /// Checks that a value is a finite number, and optionally strictly positive or non-negative.
 pub(crate) fn check_value(element: &impl Named, key: &str, value: f64, rule: Rule) -> Result<f64, ModelError> {
     let problem = if value.is_nan() {
@@ -545,8 +566,8 @@ pub(crate) fn check_value(element: &impl Named, key: &str, value: f64, rule: Rul
     } else {
         match rule {
             Rule::Finite => None,
-            Rule::Positive if value <= 0.0 => Some(format!("must be greater than zero, found {value}")),
-            Rule::NonNegative if value < 0.0 => Some(format!("must not be negative, found {value}")),
+            Rule::Positive if value <= 0.0 => Some(format!("must be greater than zero, found {}", show(value))),
+            Rule::NonNegative if value < 0.0 => Some(format!("must not be negative, found {}", show(value))),
             _ => None,
         }
     };
@@ -658,12 +679,50 @@ pub(crate) enum Rule {
     NonNegative,
 }
 
+/// Characters that change how text around them is shown without showing themselves: the
+/// bidirectional overrides, embeddings and isolates, zero-width spaces and joiners, the word
+/// joiner and invisible operators, the soft hyphen, the byte-order mark, and the other
+/// format characters of Unicode's general category Cf that appear in text.
+fn invisible(c: char) -> bool {
+    matches!(
+        c,
+        '\u{00AD}'
+            | '\u{034F}'
+            | '\u{061C}'
+            | '\u{115F}'
+            | '\u{1160}'
+            | '\u{17B4}'
+            | '\u{17B5}'
+            | '\u{180B}'..='\u{180F}'
+            | '\u{200B}'..='\u{200F}'
+            | '\u{202A}'..='\u{202E}'
+            | '\u{2060}'..='\u{206F}'
+            | '\u{3164}'
+            | '\u{FE00}'..='\u{FE0F}'
+            | '\u{FEFF}'
+            | '\u{FFA0}'
+            | '\u{FFF0}'..='\u{FFFB}'
+            | '\u{E0000}'..='\u{E007F}'
+    )
+}
+
 fn check_id(id: &str, element: &impl Named) -> Result<(), ModelError> {
     if id.trim().is_empty() {
         return Err(ModelError::at(Some(element.element()), Some("id"), "must not be empty"));
     }
     if id.chars().any(char::is_control) {
         return Err(ModelError::at(Some(element.element()), Some("id"), "must not contain control characters"));
+    }
+    if let Some(c) = id.chars().find(|&c| invisible(c)) {
+        return Err(ModelError::at(
+            Some(element.element()),
+            Some("id"),
+            format!(
+                "must not contain invisible or direction-changing characters, found U+{:04X} (two ids that look \
+                 the same on screen must be the same id)",
+                c as u32
+            ),
+        ));
     }
     Ok(())
 }
@@ -850,11 +909,17 @@ impl Model {
         match self.node_index.insert(&node.id, index, |k| &nodes[k].id) {
             Insert::Added => {}
             Insert::Duplicate => {
+                let first = self.node_index.find(&node.id, |k| &self.nodes[k].id).unwrap_or(0);
                 return Err(ModelError::at(
                     Some(node.element()),
                     Some("id"),
-                    "is used by another node; node ids must be unique",
-                ))
+                    format!(
+                        "is used by another node: nodes entry #{} has the same id, and this is nodes entry #{}; \
+                         node ids must be unique",
+                        first + 1,
+                        self.nodes.len() + 1
+                    ),
+                ));
             }
             Insert::Full => return Err(ModelError::at(Some(node.element()), None, "too many nodes in one model")),
         }
@@ -870,11 +935,17 @@ impl Model {
         match self.link_index.insert(&link.id, index, |k| &links[k].id) {
             Insert::Added => {}
             Insert::Duplicate => {
+                let first = self.link_index.find(&link.id, |k| &self.links[k].id).unwrap_or(0);
                 return Err(ModelError::at(
                     Some(link.element()),
                     Some("id"),
-                    "is used by another link; link ids must be unique",
-                ))
+                    format!(
+                        "is used by another link: links entry #{} has the same id, and this is links entry #{}; \
+                         link ids must be unique",
+                        first + 1,
+                        self.links.len() + 1
+                    ),
+                ));
             }
             Insert::Full => return Err(ModelError::at(Some(link.element()), None, "too many links in one model")),
         }

@@ -31,9 +31,10 @@ pub fn value(c: &Condition, p: &Probe<'_>) -> f64 {
     match c {
         Condition::LevelAbove { tank, level } => (p.level)(*tank) - level,
         Condition::LevelBelow { tank, level } => level - (p.level)(*tank),
-        // A node cut off from every source has no pressure: the condition does not hold.
-        Condition::PressureAbove { node, pressure } => finite_or_false(p.pressure[*node] - pressure),
-        Condition::PressureBelow { node, pressure } => finite_or_false(pressure - p.pressure[*node]),
+        // A node cut off from every source has no water: it is below any pressure threshold and
+        // above none.
+        Condition::PressureAbove { node, pressure } => finite_or(p.pressure[*node] - pressure, f64::NEG_INFINITY),
+        Condition::PressureBelow { node, pressure } => finite_or(pressure - p.pressure[*node], f64::INFINITY),
         Condition::Clock(clock) => {
             let now = (p.start_clock + p.elapsed).rem_euclid(DAY);
             let d = (now - clock).abs();
@@ -45,9 +46,9 @@ pub fn value(c: &Condition, p: &Probe<'_>) -> f64 {
     }
 }
 
-fn finite_or_false(v: f64) -> f64 {
+fn finite_or(v: f64, dry: f64) -> f64 {
     if v.is_nan() {
-        f64::NEG_INFINITY
+        dry
     } else {
         v
     }
@@ -127,6 +128,25 @@ mod tests {
         assert_eq!(value(&Condition::Any(vec![low.clone(), high_p]), &probe), 1.0);
         assert_eq!(value(&Condition::Clock(3600.0), &probe), f64::INFINITY);
         assert_eq!(value(&Condition::All(vec![Condition::Clock(7200.0), low]), &probe), f64::NEG_INFINITY);
+    }
+
+    /// Fault: a low-pressure control never fired when its junction had lost all water (its
+    /// pressure is undefined). A junction without water is below every pressure threshold and
+    /// above none, alone or inside `all` / `any`.
+    #[test]
+    fn dry_junction_counts_as_below_any_pressure_threshold() {
+        let level = |_: usize| 1.0;
+        let pressure = [f64::NAN];
+        let probe = Probe { level: &level, pressure: &pressure, elapsed: 0.0, start_clock: 0.0, instants: true };
+        for threshold in [-1e6, 0.0, 18.0, 1e6] {
+            let below = Condition::PressureBelow { node: 0, pressure: threshold };
+            let above = Condition::PressureAbove { node: 0, pressure: threshold };
+            assert!(value(&below, &probe) >= 0.0, "{threshold}");
+            assert!(value(&above, &probe) < 0.0, "{threshold}");
+            let level_low = Condition::LevelBelow { tank: 0, level: 2.0 };
+            assert!(value(&Condition::All(vec![below.clone(), level_low]), &probe) >= 0.0);
+            assert!(value(&Condition::Any(vec![above, below]), &probe) >= 0.0);
+        }
     }
 
     #[test]

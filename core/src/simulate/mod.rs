@@ -47,7 +47,7 @@ use crate::model::time::{Action, SimulationSettings};
 use crate::model::{LinkStatus, Model};
 use crate::solve::Solution;
 use network::{LinkSettings, Network, Stage, TankMode};
-pub use results::{Balance, Event, EventKind, PumpSummary, Run, Snapshot, Statistics, TankSummary};
+pub use results::{Balance, Event, EventKind, PumpSummary, Run, Snapshot, Statistics, TankSummary, WithoutWater};
 use std::fmt;
 
 #[cfg(doc)]
@@ -304,6 +304,11 @@ struct Engine<'m> {
     tank_summary: Vec<TankSummary>,
     lowest: Option<(usize, f64, f64)>,
     node_min: Vec<f64>,
+    /// Controls that changed a link at the current instant, with the link's settings before.
+    acted_here: Vec<(usize, (LinkStatus, u64, u64, bool))>,
+    /// Per node: when it was first without water (s; NaN: never) and for how long in all (s).
+    dry_since: Vec<f64>,
+    dry_time: Vec<f64>,
     events: Vec<Event>,
     series: Vec<Snapshot>,
     stats: Statistics,
@@ -354,6 +359,9 @@ impl<'m> Engine<'m> {
             tank_summary,
             lowest: None,
             node_min: vec![f64::NAN; model.nodes().len()],
+            acted_here: Vec::new(),
+            dry_since: vec![f64::NAN; model.nodes().len()],
+            dry_time: vec![0.0; model.nodes().len()],
             events: Vec::new(),
             series: Vec::new(),
             stats: Statistics::default(),
@@ -508,13 +516,15 @@ impl<'m> Engine<'m> {
     fn crossings(&self, trial: &Trial) -> Vec<Watch> {
         let mut out = Vec::new();
         for (j, t) in self.net.tanks.iter().enumerate() {
-            if self.net.mode[j] != TankMode::Normal {
-                continue;
-            }
-            if t.max_level.is_some() {
+            // A tank at one limit can still reach the other within a step (a full tank drained
+            // by the zone while its inlet is closed).
+            let mode = self.net.mode[j];
+            if t.max_level.is_some() && mode != TankMode::Full {
                 out.push(Watch::Full(j));
             }
-            out.push(Watch::Empty(j));
+            if mode != TankMode::Empty {
+                out.push(Watch::Empty(j));
+            }
         }
         for (c, control) in self.model.time.controls.iter().enumerate() {
             if controls::is_continuous(&control.when) {
@@ -596,6 +606,13 @@ impl<'m> Engine<'m> {
             o.interval(self.t, t_new, &self.k1.solution, &trial.end.solution);
         }
         let h = trial.h;
+        // Junctions without water over the step: the connections change only at events, where
+        // steps end, so the state at the start of the step holds for all of it.
+        for (i, n) in self.model.nodes().iter().enumerate() {
+            if n.fixed_head().is_none() && !self.k1.solution.connected[i] {
+                self.dry_time[i] += h;
+            }
+        }
         for (j, s) in self.tank_summary.iter_mut().enumerate() {
             match self.net.mode[j] {
                 TankMode::Full => s.time_full += h,
@@ -621,11 +638,16 @@ impl<'m> Engine<'m> {
         // An armed control fires when its value is zero or positive; it fires at most once per
         // instant.
         let mut fired_here = vec![false; n_controls];
+        self.acted_here.clear();
         for _round in 0..=4 * (n_controls + self.net.tanks.len()) + 2 {
             let mut changed = self.settle_tanks();
             if changed {
                 self.k1 = self.net.evaluate(self.model, &self.volumes, &self.settings, self.t)?;
             }
+            // Every solved state the controls look at counts for the extremes: a control firing on
+            // low pressure changes the pressures it fired on, and the step's end, a pattern's
+            // new demands or a tank reaching its limit may be what made them low.
+            self.track_pressures();
             let now: Vec<f64> =
                 (0..n_controls).map(|c| self.control_value(c, &self.volumes, &self.k1, self.t, true)).collect();
             let firing: Vec<usize> =
@@ -672,7 +694,20 @@ impl<'m> Engine<'m> {
                 TankMode::Full | TankMode::Empty => {
                     let full = self.net.mode[j] == TankMode::Full;
                     let towards = if full { inflow > FLOW_EPS } else { inflow < -FLOW_EPS };
-                    if self.net.closed_at(self.model, j).is_empty() && !towards {
+                    // A full tank that has given water back (its level fell below the limit by
+                    // more than the level tolerance while other links drew from it) is full no
+                    // longer, whatever stays closed: its closures go, and the next solve decides
+                    // afresh. The same for an empty tank that has been refilled.
+                    let left = if full {
+                        tank.max_level.is_some_and(|m| level < m - self.tolerance)
+                    } else {
+                        level > tank.min_level + self.tolerance
+                    };
+                    if left || (self.net.closed_at(self.model, j).is_empty() && !towards) {
+                        if left {
+                            self.net.release(self.model, j);
+                            changed = true;
+                        }
                         self.net.mode[j] = TankMode::Normal;
                         self.events.push(Event { time: self.t, kind: EventKind::TankReleased { tank: node } });
                     }
@@ -696,15 +731,36 @@ impl<'m> Engine<'m> {
             let action = controls[winner].action;
             let overruled: Vec<usize> =
                 on_link.iter().copied().filter(|&c| c != winner && controls[c].action != action).collect();
-            // Only actions that change something are logged.
-            if self.apply(link, action) {
+            let before = self.link_settings(link);
+            let changed = self.apply(link, action);
+            // Actions that change something are logged, and so is a winner that changes nothing
+            // when it overrules another control (the loser must be named).
+            if changed || !overruled.is_empty() {
                 self.events.push(Event {
                     time: self.t,
-                    kind: EventKind::Control { control: winner, link, action, overruled },
+                    kind: EventKind::Control { control: winner, link, action, overruled, changed },
                 });
+            }
+            if changed {
+                // A control that puts the link back as another one found it at this instant,
+                // before that one acted: the two undo each other.
+                let after = self.link_settings(link);
+                if let Some(&(first, _)) =
+                    self.acted_here.iter().find(|(c, was)| controls[*c].link == link && *c != winner && *was == after)
+                {
+                    self.events
+                        .push(Event { time: self.t, kind: EventKind::ControlsCycling { link, first, second: winner } });
+                }
+                self.acted_here.push((winner, before));
             }
         }
         Ok(())
+    }
+
+    /// A link's settings as controls set them (status, speed, setting, automatic), to compare.
+    fn link_settings(&self, k: usize) -> (LinkStatus, u64, u64, bool) {
+        let s = &self.settings;
+        (s.status[k], s.speed[k].to_bits(), s.setting[k].to_bits(), s.automatic[k])
     }
 
     /// Applies an action to a link's settings; returns whether anything changed.
@@ -768,19 +824,7 @@ impl<'m> Engine<'m> {
                 self.events.push(Event { time: self.t, kind });
             }
         }
-        let sol = &self.k1.solution;
-        for (i, n) in self.model.nodes().iter().enumerate() {
-            if n.fixed_head().is_some() || !sol.connected[i] || !sol.pressure[i].is_finite() {
-                continue;
-            }
-            let p = sol.pressure[i];
-            if self.node_min[i].is_nan() || p < self.node_min[i] {
-                self.node_min[i] = p;
-            }
-            if self.lowest.map_or(true, |(_, v, _)| p < v) {
-                self.lowest = Some((i, p, self.t));
-            }
-        }
+        self.track_pressures();
         for (i, p) in self.k1.pumps.iter().enumerate() {
             let on = p[0] > 0.0;
             if on && !self.running[i] {
@@ -788,6 +832,35 @@ impl<'m> Engine<'m> {
             }
             self.running[i] = on;
             self.peak_power[i] = self.peak_power[i].max(p[2]);
+        }
+    }
+
+    /// Pressure extremes and junctions without water at the current solved instant. Called on
+    /// every state the controls are evaluated on (each accepted step's end, scheduled changes,
+    /// and each round of actions at an instant) and after the actions, so the extremes cover
+    /// every solved instant of the trajectory, not only report times.
+    fn track_pressures(&mut self) {
+        let sol = &self.k1.solution;
+        for (i, n) in self.model.nodes().iter().enumerate() {
+            if n.fixed_head().is_some() {
+                continue;
+            }
+            if !sol.connected[i] {
+                if self.dry_since[i].is_nan() {
+                    self.dry_since[i] = self.t;
+                }
+                continue;
+            }
+            let p = sol.pressure[i];
+            if !p.is_finite() {
+                continue;
+            }
+            if self.node_min[i].is_nan() || p < self.node_min[i] {
+                self.node_min[i] = p;
+            }
+            if self.lowest.map_or(true, |(_, v, _)| p < v) {
+                self.lowest = Some((i, p, self.t));
+            }
         }
     }
 
@@ -861,6 +934,10 @@ impl<'m> Engine<'m> {
             pump_summary,
             lowest_pressure: self.lowest,
             node_min_pressure: self.node_min,
+            without_water: (0..self.dry_since.len())
+                .filter(|&i| !self.dry_since[i].is_nan())
+                .map(|i| results::WithoutWater { node: i, first: self.dry_since[i], time: self.dry_time[i] })
+                .collect(),
             balance: Balance {
                 supplied: self.totals.supplied,
                 delivered: self.totals.delivered,

@@ -18,6 +18,8 @@ use crate::{Element, ModelError};
 
 /// Largest number of rounds of tank-limit closures in one evaluation.
 const LIMIT_ROUNDS: usize = 30;
+/// A tank level beyond this (m) is no tank's: the tallest standpipes are some tens of metres.
+const LEVEL_BEYOND_ANY_TANK: f64 = 1e5;
 /// Flows below this (m³/s) do not count as filling or draining a tank at a limit.
 const FLOW_EPS: f64 = 1e-10;
 
@@ -249,6 +251,22 @@ impl Network {
     ) -> Result<Stage, SimulateError> {
         for (j, t) in self.tanks.iter().enumerate() {
             let level = t.level(volumes[j]).max(0.0);
+            if level.is_nan() || level > LEVEL_BEYOND_ANY_TANK {
+                // The level follows from the volume and the shape: blame the shape.
+                let key = if matches!(t.shape, Shape::Curve(_)) { "volume_curve" } else { "diameter" };
+                return Err(ModelError::at(
+                    Some(Element::Node(model.nodes()[t.node].id.to_string())),
+                    Some(key),
+                    format!(
+                        "the tank's level would reach {} m at {} s of the run: its plan area ({} m2) is far too \
+                         small for the water it receives (is the {key} in the right unit?)",
+                        crate::model::show(level),
+                        crate::model::show(time),
+                        crate::model::show(t.area(0.0))
+                    ),
+                )
+                .into());
+            }
             self.conditions.set_tank_level(model, t.node, level)?;
         }
         if !self.mode.iter().any(|m| *m != TankMode::Normal) {
@@ -318,7 +336,10 @@ impl Network {
                         LinkKind::Pump(_) => {
                             (mode == TankMode::Full && end == l.from) || (mode == TankMode::Empty && end == l.to)
                         }
-                        _ => h_other.is_finite() && sign * (h_tank - h_other) > self.options.head_tolerance,
+                        // The other side cut off from every source (its supply shut, its pump
+                        // stopped) would draw from a full tank and cannot feed an empty one.
+                        _ if !h_other.is_finite() => mode == TankMode::Full,
+                        _ => sign * (h_tank - h_other) > self.options.head_tolerance,
                     };
                     keep_closed |= !allowed;
                 }
@@ -371,6 +392,17 @@ impl Network {
             })
             .collect();
         Stage { tank_inflow, supplied, delivered, unsupplied, pumps, solution }
+    }
+
+    /// Takes tank `j` out of its limit mode and reopens the links closed for it.
+    pub fn release(&mut self, model: &Model, j: usize) {
+        self.mode[j] = TankMode::Normal;
+        let node = self.tanks[j].node;
+        for (k, l) in model.links().iter().enumerate() {
+            if l.from == node || l.to == node {
+                self.limit_closed[k] = false;
+            }
+        }
     }
 
     /// Links closed by the limit rule at tank `j` right now.

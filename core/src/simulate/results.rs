@@ -163,8 +163,24 @@ pub enum EventKind {
         link: usize,
         /// What was done.
         action: Action,
-        /// Controls on the same link at the same instant that lost on priority.
+        /// Controls on the same link at the same instant that lost (on priority, or on file order
+        /// when their priorities are equal to the winner's), with a different action.
         overruled: Vec<usize>,
+        /// Whether the action changed the link (a winner that leaves the link as it was is still
+        /// logged when it overrules another control).
+        changed: bool,
+    },
+    /// Controls that undo each other at the same instant: `first` acted on the link, then
+    /// `second`, firing on the state `first` made, put it back. The link keeps what `second`
+    /// set; the model's controls should not fight like this (a dead band between their
+    /// thresholds is the usual cure).
+    ControlsCycling {
+        /// The link both act on.
+        link: usize,
+        /// The control that acted first.
+        first: usize,
+        /// The control that undid it.
+        second: usize,
     },
 }
 
@@ -191,7 +207,15 @@ impl Event {
                 format!("tank '{}' empty; stops giving water (closed: {})", node(*tank), list(closed))
             }
             EventKind::TankReleased { tank } => format!("tank '{}' leaves its limit", node(*tank)),
-            EventKind::Control { control, link: k, action, overruled } => {
+            EventKind::ControlsCycling { link: k, first, second } => format!(
+                "cycling controls: '{}' and '{}' undo each other on '{}' at this instant; '{}' acted last and \
+                 stands",
+                model.time.controls[*first].id,
+                model.time.controls[*second].id,
+                link(*k),
+                model.time.controls[*second].id
+            ),
+            EventKind::Control { control, link: k, action, overruled, changed } => {
                 let what = match action {
                     Action::Open => "opens".to_owned(),
                     Action::Close => "closes".to_owned(),
@@ -199,11 +223,30 @@ impl Event {
                     Action::Speed(s) => format!("sets speed {s} on"),
                     Action::Setting(s) => format!("sets setting {s} (SI) on"),
                 };
-                let mut text = format!("control '{}' {what} '{}'", model.time.controls[*control].id, link(*k));
-                if !overruled.is_empty() {
-                    let ids: Vec<String> =
-                        overruled.iter().map(|&c| format!("'{}'", model.time.controls[c].id)).collect();
-                    text.push_str(&format!(" (overruling {} by priority)", ids.join(", ")));
+                let controls = &model.time.controls;
+                let mut text = format!("control '{}' {what} '{}'", controls[*control].id, link(*k));
+                if !changed {
+                    text.push_str(" (no change: it already was so)");
+                }
+                let winner = controls[*control].priority;
+                let by_priority: Vec<String> = overruled
+                    .iter()
+                    .filter(|&&c| controls[c].priority < winner)
+                    .map(|&c| format!("'{}'", controls[c].id))
+                    .collect();
+                let by_order: Vec<String> = overruled
+                    .iter()
+                    .filter(|&&c| controls[c].priority >= winner)
+                    .map(|&c| format!("'{}'", controls[c].id))
+                    .collect();
+                if !by_priority.is_empty() {
+                    text.push_str(&format!(" (overruling {} by priority)", by_priority.join(", ")));
+                }
+                if !by_order.is_empty() {
+                    text.push_str(&format!(
+                        " (overruling {} of equal priority by file order: the later control wins)",
+                        by_order.join(", ")
+                    ));
                 }
                 text
             }
@@ -224,6 +267,17 @@ pub struct Statistics {
     pub solves: u64,
 }
 
+/// A junction cut off from every source during a run.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct WithoutWater {
+    /// Node index.
+    pub node: usize,
+    /// Elapsed time it was first without water, s.
+    pub first: f64,
+    /// Time it spent without water in all, s.
+    pub time: f64,
+}
+
 /// The results of a simulation.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Run {
@@ -241,8 +295,13 @@ pub struct Run {
     pub tank_summary: Vec<TankSummary>,
     /// Per pump.
     pub pump_summary: Vec<PumpSummary>,
-    /// Lowest pressure head at a connected junction: node, value (m), time (s).
+    /// Lowest pressure head at a junction that had water: node, value (m), time (s). Taken
+    /// over every solved instant (each accepted step's end and each scheduled change, before
+    /// and after the controls and tank limits acting there), not only the report times.
     pub lowest_pressure: Option<(usize, f64, f64)>,
+    /// Junctions that were without water (cut off from every source) at some solved instant:
+    /// below any pressure, so a low-pressure control on them fires.
+    pub without_water: Vec<WithoutWater>,
     /// Lowest pressure head each node reached (m; NaN if never connected).
     pub node_min_pressure: Vec<f64>,
     /// The volume balance.

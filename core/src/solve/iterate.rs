@@ -7,7 +7,7 @@ use super::solution::energy_residuals;
 use super::status::{self, LinkState, StatusTracker};
 use super::structure::NONE;
 use super::{topology, Conditions, Pinned, Solution, SolveOptions, Solver, STALLED_ITERATIONS};
-use crate::error::{Offender, SolveError};
+use crate::error::{Element, Offender, SolveError};
 use crate::model::{LinkKind, Model, ValveType};
 use std::time::Instant;
 
@@ -109,6 +109,25 @@ impl Solver {
             flow_change = change;
             self.timings.assembly += solved.elapsed();
             if !finite || !flow_change.is_finite() {
+                // Name the element whose value overflowed: the first head, then the first flow.
+                let node = (0..self.delta.len())
+                    .find(|&u| self.free[u] && !self.unknown_head[u].is_finite())
+                    .map(|u| (self.structure.node_of_unknown[u] as usize, self.unknown_head[u]));
+                if let Some((i, value)) = node {
+                    return Err(SolveError::NonFinite {
+                        element: Element::Node(nodes[i].id.to_string()),
+                        quantity: "head",
+                        value,
+                    });
+                }
+                let link = self.structure.core.iter().zip(&self.cq).find(|(_, q)| !q.is_finite());
+                if let Some((c, &value)) = link {
+                    return Err(SolveError::NonFinite {
+                        element: Element::Link(links[c.link as usize].id.to_string()),
+                        quantity: "flow",
+                        value,
+                    });
+                }
                 return Err(SolveError::Numerical {
                     iteration: iterations,
                     detail: "heads or flows became NaN".into(),
@@ -165,6 +184,7 @@ impl Solver {
             self.finish(model, conditions, iterations, status_changes, head_change, flow_change, &tracker, ending);
         self.timings.results += clock.elapsed();
         self.timings.iterations = iterations;
+        super::finite::check(model, &solution)?;
         Ok(solution)
     }
 
@@ -234,7 +254,24 @@ impl Solver {
                     continue;
                 }
                 let adjacent = self.structure.adjacency.of(i);
-                if let Some(&k) = adjacent.iter().find(|&&k| tracker.state[k as usize] == LinkState::Active) {
+                // The valve held open: of flow-control valves in series the one with the larger
+                // setting (the smaller one limits the flow, the other cannot reach its setting);
+                // otherwise the first active one.
+                let flow_setting = |k: u32| {
+                    links[k as usize]
+                        .as_valve()
+                        .filter(|v| v.valve == ValveType::FlowControl)
+                        .map(|_| conditions.valve_setting(k as usize))
+                };
+                let active = adjacent.iter().copied().filter(|&k| tracker.state[k as usize] == LinkState::Active);
+                let widest = active.clone().filter_map(|k| flow_setting(k).map(|s| (k, s))).fold(
+                    None,
+                    |best: Option<(u32, f64)>, (k, s)| match best {
+                        Some((_, b)) if b >= s => best,
+                        _ => Some((k, s)),
+                    },
+                );
+                if let Some(k) = widest.map(|(k, _)| k).or_else(|| active.clone().next()) {
                     tracker.hold_open(model, k as usize);
                     forced = true;
                     break;

@@ -77,6 +77,7 @@ mod assemble;
 pub mod batch;
 pub mod conditions;
 pub mod factor;
+pub mod finite;
 mod forest;
 mod iterate;
 pub mod links;

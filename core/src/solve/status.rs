@@ -106,6 +106,83 @@ impl LinkState {
     }
 }
 
+/// At most one regulating valve holds a node's head: two that would hold the same node at
+/// different settings cannot both be active, and two at the same setting would leave the split
+/// of flow between them undetermined. The rule, from each device's conditions (table above):
+///
+/// * pressure-reducing valves feeding the same node (side by side, a duty and a standby valve):
+///   the node sits at the **highest** setting — a valve whose setting is below the node's head is
+///   closed by its own condition (`H_to ≥ H_set`), so only the highest can regulate;
+/// * pressure-sustaining valves drawing from the same node: it sits at the **lowest** setting —
+///   a valve with a higher setting than the node's head is closed (`H_from ≤ H_set`), and any
+///   one with a lower setting would open fully and drain the node further;
+/// * a reducing valve feeding the node that a sustaining valve draws from: the reducing valve
+///   holds it; the sustaining valve is fully open when that head is at or above its setting and
+///   closed when below;
+/// * equal settings: the first in file order regulates, the others close.
+///
+/// In series (each valve holding a different node) no node is held twice and nothing is
+/// settled here: each valve follows its own conditions, so the downstream pressure of two
+/// reducing valves in series is the lower setting wherever the first holds less than the
+/// second asks, and flow-control valves in series pass the smaller setting (the other is
+/// fully open, its flow below its setting). The status logic reaches those states by its rules.
+fn settle_shared_pins(model: &Model, conditions: &Conditions, state: &mut [LinkState]) {
+    // (held node, link, head setting, reducing?) of every active pressure valve.
+    let links = model.links();
+    let nodes = model.nodes();
+    let mut held: Vec<(usize, usize, f64, bool)> = Vec::new();
+    for (k, s) in state.iter().enumerate() {
+        if *s != LinkState::Active {
+            continue;
+        }
+        let l = &links[k];
+        match l.as_valve() {
+            Some(v) if v.valve == ValveType::PressureReducing => {
+                held.push((l.to, k, nodes[l.to].elevation + conditions.valve_setting(k), true))
+            }
+            Some(v) if v.valve == ValveType::PressureSustaining => {
+                held.push((l.from, k, nodes[l.from].elevation + conditions.valve_setting(k), false))
+            }
+            _ => {}
+        }
+    }
+    if held.len() < 2 {
+        return;
+    }
+    held.sort_by_key(|h| (h.0, h.1));
+    for group in held.chunk_by(|a, b| a.0 == b.0) {
+        if group.len() < 2 {
+            continue;
+        }
+        let reducing = group.iter().filter(|h| h.3);
+        // Highest reducing setting, first in file order on ties (the group is in link order).
+        let winner = reducing.clone().fold(None, |best: Option<&(usize, usize, f64, bool)>, h| match best {
+            Some(b) if b.2 >= h.2 => Some(b),
+            _ => Some(h),
+        });
+        let winner = winner.or_else(|| {
+            group.iter().fold(None, |best: Option<&(usize, usize, f64, bool)>, h| match best {
+                Some(b) if b.2 <= h.2 => Some(b),
+                _ => Some(h),
+            })
+        });
+        let Some(&(_, wk, wset, _)) = winner else { continue };
+        for &(_, k, set, is_reducing) in group {
+            if k == wk {
+                continue;
+            }
+            state[k] = if !is_reducing
+                && links[wk].as_valve().is_some_and(|v| v.valve == ValveType::PressureReducing)
+                && wset >= set
+            {
+                LinkState::OpenAboveSetting
+            } else {
+                LinkState::ValveClosed
+            };
+        }
+    }
+}
+
 /// What the head-dependent rules need to know about the current solution.
 pub struct Observed<'a> {
     /// Link flows, m³/s.
@@ -245,6 +322,7 @@ impl StatusTracker {
             for &(k, s, _) in &chosen {
                 next[k] = s;
             }
+            settle_shared_pins(model, conditions, &mut next);
             if self.visited.insert(next.clone()) {
                 self.state = next;
                 return Ok(chosen.len() as u32);

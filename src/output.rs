@@ -1,0 +1,178 @@
+//! Output files that never replace an input and never stay half written.
+//!
+//! Two rules hold for every file the program writes (`--output`, `--junit`, the charts of
+//! `--plot`, the model of `generate`):
+//!
+//! 1. An output path that is one of the run's inputs (the model, a criteria file) is refused
+//!    before any work, with exit code 2. "Is" means the same file, by identity (device and inode
+//!    on Unix), not by name: `./net.toml`, `net.toml`, a symbolic link to it or a hard link all
+//!    count.
+//! 2. A regular file is written to a temporary file in the same directory and renamed over the
+//!    destination only once everything is written and flushed. A failed run (a write error, a
+//!    full disk, a panic) leaves the destination as it was and removes the temporary file.
+//!    Anything that is not a regular file (`/dev/null`, a named pipe) is written in place:
+//!    renaming over it would replace the device with a file.
+
+use std::fs::{File, OpenOptions};
+use std::io::{self, BufWriter, Write};
+use std::path::{Path, PathBuf};
+use std::sync::atomic::{AtomicU32, Ordering};
+
+/// Whether two paths name the same existing file. A path that does not exist names no file.
+pub fn same_file(a: &Path, b: &Path) -> bool {
+    let (Ok(ma), Ok(mb)) = (std::fs::metadata(a), std::fs::metadata(b)) else { return false };
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::MetadataExt;
+        ma.dev() == mb.dev() && ma.ino() == mb.ino()
+    }
+    #[cfg(not(unix))]
+    {
+        let _ = (ma, mb);
+        match (a.canonicalize(), b.canonicalize()) {
+            (Ok(x), Ok(y)) => x == y,
+            _ => false,
+        }
+    }
+}
+
+/// Refuses an output that is one of the inputs: returns the message to print (exit code 2).
+///
+/// `option` is how the user named the output (`--output`, `--junit`, `--plot`), `inputs` the
+/// files the run reads, each with how it was given.
+pub fn refuse_input(option: &str, output: &Path, inputs: &[(&str, &Path)]) -> Result<(), String> {
+    for (what, input) in inputs {
+        if same_file(output, input) {
+            return Err(format!(
+                "{option} {}: this is the {what} {} (the same file); an output never replaces an input, \
+                 choose another path",
+                output.display(),
+                input.display()
+            ));
+        }
+    }
+    Ok(())
+}
+
+/// A counter that keeps temporary names apart within one process.
+static SERIAL: AtomicU32 = AtomicU32::new(0);
+
+/// The temporary file beside `path`: hidden, named after it and this process.
+fn temporary_path(path: &Path) -> PathBuf {
+    let name = path.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_else(|| "output".into());
+    let serial = SERIAL.fetch_add(1, Ordering::Relaxed);
+    path.with_file_name(format!(".{name}.{}-{serial}.partial", std::process::id()))
+}
+
+/// Removes the temporary file unless it was renamed into place.
+struct Partial {
+    path: PathBuf,
+    done: bool,
+}
+
+impl Drop for Partial {
+    fn drop(&mut self) {
+        if !self.done {
+            let _ = std::fs::remove_file(&self.path);
+        }
+    }
+}
+
+/// Writes what `write` writes to `path`, all or nothing (see the module docs).
+pub fn write_file(path: &Path, write: impl FnOnce(&mut dyn Write) -> io::Result<()>) -> io::Result<()> {
+    const BUFFER: usize = 1 << 16;
+    let existing = std::fs::metadata(path).ok();
+    if existing.as_ref().is_some_and(|m| !m.is_file()) {
+        if existing.as_ref().is_some_and(|m| m.is_dir()) {
+            return Err(io::Error::other("it is a directory"));
+        }
+        // A device or a pipe: written in place.
+        let mut out = BufWriter::with_capacity(BUFFER, OpenOptions::new().write(true).open(path)?);
+        write(&mut out)?;
+        return out.flush();
+    }
+    let mut partial = Partial { path: temporary_path(path), done: false };
+    let file = OpenOptions::new().write(true).create_new(true).open(&partial.path)?;
+    if let Some(m) = &existing {
+        // A replaced file keeps its permissions.
+        let _ = file.set_permissions(m.permissions());
+    }
+    let mut out = BufWriter::with_capacity(BUFFER, file);
+    write(&mut out)?;
+    let file: File = out.into_inner().map_err(|e| e.into_error())?;
+    file.sync_all()?;
+    drop(file);
+    std::fs::rename(&partial.path, path)?;
+    partial.done = true;
+    Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn scratch(name: &str) -> PathBuf {
+        let dir = std::env::temp_dir().join(format!("ringmain-output-{}-{name}", std::process::id()));
+        let _ = std::fs::remove_dir_all(&dir);
+        std::fs::create_dir_all(&dir).unwrap();
+        dir
+    }
+
+    fn leftovers(dir: &Path) -> Vec<String> {
+        std::fs::read_dir(dir)
+            .unwrap()
+            .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+            .filter(|n| n.ends_with(".partial"))
+            .collect()
+    }
+
+    #[test]
+    fn failed_write_leaves_the_old_file_and_no_partial_file() {
+        let dir = scratch("failed");
+        let path = dir.join("out.txt");
+        std::fs::write(&path, "old").unwrap();
+        let e = write_file(&path, |out| {
+            out.write_all(b"half of the new")?;
+            Err(io::Error::other("disk full"))
+        });
+        assert!(e.is_err());
+        assert_eq!(std::fs::read_to_string(&path).unwrap(), "old");
+        assert!(leftovers(&dir).is_empty());
+        write_file(&path, |out| out.write_all(b"new")).unwrap();
+        assert_eq!(std::fs::read_to_string(&path).unwrap(), "new");
+        assert!(leftovers(&dir).is_empty());
+        let _ = std::fs::remove_dir_all(&dir);
+    }
+
+    #[test]
+    fn same_file_by_identity_not_by_name() {
+        let dir = scratch("identity");
+        let a = dir.join("net.toml");
+        std::fs::write(&a, "x").unwrap();
+        let dotted = dir.join(".").join("net.toml");
+        assert!(same_file(&a, &dotted));
+        let hard = dir.join("hard.toml");
+        std::fs::hard_link(&a, &hard).unwrap();
+        assert!(same_file(&a, &hard));
+        #[cfg(unix)]
+        {
+            let soft = dir.join("soft.toml");
+            std::os::unix::fs::symlink(&a, &soft).unwrap();
+            assert!(same_file(&a, &soft));
+        }
+        let other = dir.join("other.toml");
+        std::fs::write(&other, "x").unwrap();
+        assert!(!same_file(&a, &other));
+        assert!(!same_file(&a, &dir.join("missing.toml")));
+        let _ = std::fs::remove_dir_all(&dir);
+    }
+
+    #[test]
+    fn devices_are_written_in_place_not_replaced() {
+        #[cfg(unix)]
+        {
+            write_file(Path::new("/dev/null"), |out| out.write_all(b"nothing")).unwrap();
+            assert!(!std::fs::metadata("/dev/null").unwrap().is_file());
+        }
+    }
+}
