@@ -200,10 +200,19 @@ pub fn to_table(run: &Run<'_>, code: u8) -> String {
             sweep.iter().filter(|(_, o)| !o.passed() || o.lost_supply.count > 0).map(|(k, o)| (*k, o)).collect();
         let broken = sweep.iter().filter(|(_, o)| !o.passed()).count();
         let unsolved = sweep.iter().filter(|(_, o)| !o.converged()).count();
+        let cut = sweep.iter().filter(|(_, o)| o.lost_supply.count > 0).count();
+        let repeated: usize = sweep.iter().map(|(_, o)| o.repeated_from_base).sum();
         let _ = writeln!(
             out,
-            "\nEach pipe closed in turn: {} closures; {broken} break a criterion, {unsolved} did not solve",
+            "\nEach pipe closed in turn: {} closures; {cut} cut off supply, {broken} break a criterion the base case \
+             meets, {unsolved} did not solve",
             sweep.len()
+        );
+        let _ = writeln!(
+            out,
+            "  (relative to the base case: failures it already has are not repeated{}; worst first: no \
+             answer, then supply lost, then new failures)",
+            if repeated > 0 { format!(", {repeated} finding(s) left out") } else { String::new() }
         );
         let mut sorted = failing.clone();
         sorted.sort_by(worst_first);
@@ -220,9 +229,10 @@ pub fn to_table(run: &Run<'_>, code: u8) -> String {
                 let more = o.lost_supply.count - o.lost_supply.nodes.len();
                 let _ = writeln!(
                     out,
-                    "  {:<16} supply lost at {} node(s), {} of demand: {}{}",
+                    "  {:<16} supply lost at {} node(s) ({} junction(s) with a demand), {} of demand: {}{}",
                     "",
                     o.lost_supply.count,
+                    o.lost_supply.with_demand,
                     run.value(Quantity::Flow, o.lost_supply.demand),
                     names.join(", "),
                     if more > 0 { format!(" and {more} more") } else { String::new() }
@@ -308,6 +318,7 @@ fn outcome_json(run: &Run<'_>, o: &Outcome) -> Value {
     if o.lost_supply.count > 0 {
         v["lost_supply"] = json!({
             "count": o.lost_supply.count,
+            "junctions_with_demand": o.lost_supply.with_demand,
             "demand": run.model.units.flow.from_si(o.lost_supply.demand),
             "nodes": o.lost_supply.nodes.iter().map(|&i| &run.model.nodes()[i].id).collect::<Vec<_>>(),
         });
@@ -351,10 +362,14 @@ pub fn to_json(run: &Run<'_>, code: u8) -> Value {
         v["each_pipe_closed"] = json!({
             "closures": sweep.len(),
             "failed": sweep.iter().filter(|(_, o)| !o.passed()).count(),
+            "lost_supply": sweep.iter().filter(|(_, o)| o.lost_supply.count > 0).count(),
+            "relative_to_base": true,
+            "repeated_from_base": sweep.iter().map(|(_, o)| o.repeated_from_base).sum::<usize>(),
             "not_converged": sweep.iter().filter(|(_, o)| !o.converged()).count(),
             "results": listed.iter().map(|(k, o)| {
                 let mut r = outcome_json(run, o);
                 r["closed"] = json!(run.model.links()[*k].id);
+                r["repeated_from_base"] = json!(o.repeated_from_base);
                 r["checks"] = json!(o.failed().map(|c| check_json(run, c)).collect::<Vec<_>>());
                 r
             }).collect::<Vec<_>>(),

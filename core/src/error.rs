@@ -8,7 +8,7 @@
 use std::fmt;
 
 /// The element of a model an error is about.
-#[derive(Clone, Debug, PartialEq, Eq)]
+#[derive(Clone, Debug, PartialEq, Eq, Hash)]
 #[non_exhaustive]
 pub enum Element {
     /// A node, by id.

@@ -222,6 +222,10 @@ pub fn demand_delivered(model: &Model, solution: &Solution, keep: usize) -> Resu
 pub struct LostSupply {
     /// How many nodes lose supply.
     pub count: usize,
+    /// How many of them are junctions with a demand (the ones `all_demands_supplied` counts; the
+    /// others are junctions without a demand, tanks cut off from every other source, and the
+    /// like).
+    pub with_demand: usize,
     /// Their total demand, m³/s.
     pub demand: f64,
     /// Node indices, largest demand first (at most the number asked for).
@@ -242,6 +246,9 @@ pub struct Outcome {
     pub lost_supply: LostSupply,
     /// Which nodes a fixed head reaches (empty when the solve failed).
     pub connected: Vec<bool>,
+    /// In a sweep: findings left out because the base case has them too (the same element
+    /// failing the same criterion); zero elsewhere.
+    pub repeated_from_base: usize,
 }
 
 impl Outcome {
@@ -317,13 +324,27 @@ fn judge(
     let mut checks = vec![convergence_check(criteria, model, error.as_ref())];
     checks.extend(evaluate(criteria, model, solution, options.keep));
     let lost_supply = reference.map(|r| lost_supply(model, r, &solution.connected, options.keep)).unwrap_or_default();
-    Outcome { error, iterations: solution.iterations, checks, lost_supply, connected: solution.connected.clone() }
+    Outcome {
+        error,
+        iterations: solution.iterations,
+        checks,
+        lost_supply,
+        connected: solution.connected.clone(),
+        repeated_from_base: 0,
+    }
 }
 
 /// The outcome of a scenario the solver could not finish.
 fn unsolved(criteria: &Criteria, model: &Model, e: Unsolved) -> Outcome {
     let checks = vec![convergence_check(criteria, model, Some(&e))];
-    Outcome { error: Some(e), iterations: 0, checks, lost_supply: LostSupply::default(), connected: Vec::new() }
+    Outcome {
+        error: Some(e),
+        iterations: 0,
+        checks,
+        lost_supply: LostSupply::default(),
+        connected: Vec::new(),
+        repeated_from_base: 0,
+    }
 }
 
 fn lost_supply(model: &Model, reference: &[bool], now: &[bool], keep: usize) -> LostSupply {
@@ -331,9 +352,11 @@ fn lost_supply(model: &Model, reference: &[bool], now: &[bool], keep: usize) -> 
     let mut lost: Vec<usize> = (0..nodes.len()).filter(|&i| reference.get(i) == Some(&true) && !now[i]).collect();
     let demand = lost.iter().map(|&i| nodes[i].demand().max(0.0)).sum();
     let count = lost.len();
+    let with_demand =
+        lost.iter().filter(|&&i| matches!(nodes[i].kind, NodeKind::Junction { .. }) && nodes[i].demand() > 0.0).count();
     lost.sort_by(|&a, &b| nodes[b].demand().total_cmp(&nodes[a].demand()).then(a.cmp(&b)));
     lost.truncate(keep);
-    LostSupply { count, demand, nodes: lost }
+    LostSupply { count, with_demand, demand, nodes: lost }
 }
 
 /// Which nodes a fixed head reaches through links not closed by the user (no solve needed).
@@ -364,11 +387,49 @@ pub fn sweep_candidates(model: &Model) -> Vec<usize> {
         .collect()
 }
 
+/// What the base case of a sweep fails: per criterion, the elements that fail it.
+#[derive(Debug, Default)]
+struct BaseFailures {
+    failing: std::collections::HashMap<String, std::collections::HashSet<Element>>,
+}
+
+impl BaseFailures {
+    fn of(base: &Outcome) -> Self {
+        let mut failing = std::collections::HashMap::new();
+        for c in base.checks.iter().filter(|c| !c.passed()) {
+            failing.insert(c.name.clone(), c.worst.iter().map(|f| f.element.clone()).collect());
+        }
+        BaseFailures { failing }
+    }
+
+    /// Leaves out of `o` (evaluated with every finding kept) the findings the base case has
+    /// too, then keeps the `keep` worst of the others. A criterion whose every failure the base
+    /// case shares passes in the closure's report: the closure changed nothing there.
+    fn remove_from(&self, o: &mut Outcome, keep: usize) {
+        for c in &mut o.checks {
+            if let Some(base) = self.failing.get(&c.name) {
+                let before = c.worst.len();
+                c.worst.retain(|f| !base.contains(&f.element));
+                let repeated = before - c.worst.len();
+                o.repeated_from_base += repeated;
+                c.failures -= repeated;
+            }
+            c.worst.truncate(keep);
+        }
+    }
+}
+
 /// Closes each pipe of `pipes` in turn in `model`, solves and evaluates `criteria`, on every
 /// thread of rayon's pool (see [the sweep](self#the-sweep)). `reference` is which nodes are
 /// supplied with no pipe closed (the base solution's `connected`). `progress(done, total)` is
 /// called after each closure, from the worker threads. Returns `(link index, outcome)` in the
 /// order of `pipes`.
+///
+/// Each closure's outcome is relative to the base case: a finding the base case already has
+/// (the same element failing the same criterion) is left out and counted in
+/// [`Outcome::repeated_from_base`], so that a criterion fails in a closure only where the
+/// closure makes something fail that did not before. `must_converge` and the supply lost are
+/// the closure's own.
 pub fn sweep_pipes(
     model: &Model,
     pipes: &[usize],
@@ -395,14 +456,22 @@ pub fn sweep_pipes(
     let conditions = Conditions::from_model(model);
     let cold = SolveOptions::from_model(model);
     // The base case, from which every closure starts (a base that does not solve leaves every
-    // closure a cold start).
-    let _ = solver.solve(model, &conditions, &cold);
+    // closure a cold start), and what it already fails: every finding, not only the worst.
+    let all = CheckOptions { keep: usize::MAX };
+    let base_failures = match solver.solve(model, &conditions, &cold) {
+        Ok(base) => BaseFailures::of(&judge(model, criteria, &base, None, &all)),
+        Err(_) => BaseFailures::default(),
+    };
     let scenarios: Vec<Scenario> =
         pipes.iter().map(|&k| Scenario { statuses: vec![(k, LinkStatus::Closed)], ..Scenario::default() }).collect();
     let warm = SolveOptions { warm_start: true, ..cold };
     let outcomes = solver.solve_batch_map(model, &conditions, &warm, &scenarios, &|_, result| {
         let mut outcome = match result {
-            Ok(solution) => judge(model, criteria, &solution, Some(reference), options),
+            Ok(solution) => {
+                let mut o = judge(model, criteria, &solution, Some(reference), &all);
+                base_failures.remove_from(&mut o, options.keep);
+                o
+            }
             Err(e) => unsolved(criteria, model, Unsolved::Solver(e)),
         };
         outcome.connected = Vec::new(); // not needed per closure; saves memory on large sweeps
@@ -497,6 +566,51 @@ mod tests {
             assert_eq!(single.passed(), outcome.passed());
             assert_eq!(single.lost_supply.count, outcome.lost_supply.count);
         }
+    }
+
+    #[test]
+    fn the_sweep_reports_what_each_closure_changes_from_the_base() {
+        let m = network();
+        // A limit the base case itself fails at some junctions: the lowest base pressure plus
+        // half the spread.
+        let base_solution = crate::solve::solve(&m).unwrap();
+        let p: Vec<f64> = (1..5).map(|i| base_solution.pressure[i]).collect();
+        let (lo, hi) = p.iter().fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &x| (a.min(x), b.max(x)));
+        let criteria = Criteria { min_pressure: Some(0.5 * (lo + hi)), ..Criteria::default() };
+        let all = CheckOptions { keep: usize::MAX };
+        let mut solver = Solver::new(&m).unwrap();
+        let (base, _) = run_scenario(&m, &criteria, &mut solver, &SolveOptions::from_model(&m), None, &all);
+        assert!(!base.passed(), "the base must fail for this test: {base:?}");
+        let base_failing: Vec<(String, Element)> =
+            base.failed().flat_map(|c| c.worst.iter().map(move |f| (c.name.clone(), f.element.clone()))).collect();
+        let results = sweep_pipes(&m, &sweep_candidates(&m), &criteria, &base.connected, &all, &|_, _| {});
+        let mut repeated = 0;
+        for (k, outcome) in &results {
+            // No failure the base case has is repeated...
+            for c in outcome.failed() {
+                for f in &c.worst {
+                    assert!(!base_failing.contains(&(c.name.clone(), f.element.clone())), "{c:?}");
+                }
+            }
+            // ...and what is left out plus what is reported is everything a single run finds.
+            let sm = what_if_model(&m, &Scenario::closing(&m, &[m.links()[*k].id.to_string()], 1.0).unwrap()).unwrap();
+            let mut cold = Solver::new(&sm).unwrap();
+            let (single, _) =
+                run_scenario(&sm, &criteria, &mut cold, &SolveOptions::from_model(&sm), Some(&base.connected), &all);
+            let single_failures: usize = single.checks.iter().map(|c| c.failures).sum();
+            let reported: usize = outcome.checks.iter().map(|c| c.failures).sum();
+            assert_eq!(reported + outcome.repeated_from_base, single_failures, "{}", m.links()[*k].id);
+            // The junctions with a demand that lose supply are the ones all_demands_supplied counts.
+            let cut = outcome.checks.iter().find(|c| c.name == "all_demands_supplied").unwrap();
+            assert_eq!(cut.failures, outcome.lost_supply.with_demand, "{}", m.links()[*k].id);
+            repeated += outcome.repeated_from_base;
+        }
+        assert!(repeated > 0, "closures that keep the base's failures must leave them out");
+        // Closing one side of the loop leaves D's supply; closing CD cuts D off (one junction with
+        // a demand), and RA everything.
+        let by_id = |id: &str| &results.iter().find(|(k, _)| m.links()[*k].id == id).unwrap().1;
+        assert_eq!(by_id("CD").lost_supply.with_demand, 1);
+        assert_eq!(by_id("RA").lost_supply.with_demand, 4);
     }
 
     #[test]
