@@ -134,6 +134,8 @@ pub struct QualityEngine<'m> {
     flow: Vec<f64>,
     /// Per link and constituent: first-order rate of the interval, 1/s.
     rate: Vec<f64>,
+    /// Per link and constituent: `exp(k Δt) − 1` for the interval's transport step.
+    em1: Vec<f64>,
     order: Vec<u32>,
     indeg: Vec<u32>,
     /// Per link: upstream and downstream node of the interval's flow (`u32::MAX`: no flow).
@@ -263,6 +265,7 @@ impl<'m> QualityEngine<'m> {
             acc_vol: vec![0.0; nodes.len()],
             flow: vec![0.0; links.len()],
             rate: vec![0.0; links.len() * nc],
+            em1: vec![0.0; links.len() * nc],
             order: Vec::with_capacity(nodes.len()),
             indeg: vec![0; nodes.len()],
             up: vec![u32::MAX; links.len()],
@@ -524,9 +527,9 @@ impl<'m> QualityEngine<'m> {
                 ConstituentKind::Substance(_) if self.transforms[c] == Transform::Decay => {
                     let mut gained = 0.0;
                     for p in 0..links.len() {
-                        let k = self.rate[p * nc + c];
-                        if k != 0.0 && self.seg.volume[p] > 0.0 {
-                            gained += self.seg.react(p, c, k, dt, self.t);
+                        let em1 = self.em1[p * nc + c];
+                        if em1 != 0.0 && self.seg.volume[p] > 0.0 {
+                            gained += self.seg.react_by(p, c, em1 + 1.0, em1, self.t);
                         }
                     }
                     self.balance[c].reacted += gained;
@@ -710,6 +713,9 @@ impl StepObserver for QualityEngine<'_> {
         self.prepare(start, end);
         let n = (length / self.step_max - 1e-9).ceil().max(1.0);
         let dt = length / n;
+        for (e, k) in self.em1.iter_mut().zip(&self.rate) {
+            *e = (k * dt).exp_m1();
+        }
         for _ in 0..n as u64 {
             self.transport(dt);
         }
