@@ -34,8 +34,10 @@
 #![warn(missing_docs)]
 
 pub mod analysis;
+pub mod duty;
 pub mod error;
 pub mod generate;
+pub mod import;
 pub mod model;
 pub mod physics;
 pub mod quality;
