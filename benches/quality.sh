@@ -3,7 +3,7 @@
 # generated network of 10 000 junctions (`ringmain generate`), hourly hydraulics, 5-minute
 # transport steps. Prints the wall time of the run with and without the quality constituents
 # (the hydraulics alone are the reference measured in the same run) and the segment counts.
-# Usage: benches/quality.sh [junctions]   (needs `cargo build --release` first)
+# Usage: benches/quality.sh N   (N junctions, default 10 000; needs `cargo build --release` first)
 set -euo pipefail
 cd "$(dirname "$0")/.."
 bin=target/release/ringmain
