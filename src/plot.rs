@@ -471,6 +471,52 @@ pub fn pressures_svg(report: &RunReport<'_>, count: usize) -> String {
     c.render()
 }
 
+/// One water-quality constituent at the junctions where it is worst (highest ages, lowest
+/// residuals), with its criterion drawn when one is checked.
+pub fn quality_svg(report: &RunReport<'_>, c: usize, count: usize) -> Option<String> {
+    use ringmain_core::quality::ConstituentKind;
+    let q = report.quality?;
+    let model = report.model;
+    let con = &q.constituents[c];
+    let scale = con.report_scale();
+    let unit = con.report_unit();
+    let highest = con.kind == ConstituentKind::Age;
+    let worst = ringmain_core::quality::criteria::worst_per_junction(model, q, c, highest, 0.0);
+    let mut worst = worst;
+    worst.sort_by(|a, b| if highest { b.value.total_cmp(&a.value) } else { a.value.total_cmp(&b.value) });
+    worst.truncate(count);
+    let what = if highest { "highest" } else { "lowest" };
+    let mut chart = chart(report, &format!("Water quality: {}", con.id));
+    let mut p = Panel::new(
+        format!("The {} junctions with the {what} {} ({})", worst.len(), con.id, con.kind.label()),
+        format!("{} ({unit})", con.id),
+    );
+    p.height = 300.0;
+    for (n, w) in worst.iter().enumerate() {
+        let points = q.records.iter().map(|r| (r.time / HOUR, r.node[c][w.node] * scale)).collect();
+        p.lines.push(Line {
+            label: format!("{} ({what} {:.2})", model.nodes()[w.node].id, w.value * scale),
+            color: PALETTE[n % PALETTE.len()],
+            points,
+            dash: false,
+            width: 2.0,
+        });
+    }
+    let name = if highest { "max_age".to_owned() } else { format!("min_residual.{}", con.id) };
+    if let Some(check) = report.checks.iter().find(|k| k.name == name || k.name == format!("max_age.{}", con.id)) {
+        let v = check.limit * scale;
+        p.lines.push(Line {
+            label: format!("{name} {v:.2} {unit}"),
+            color: PALETTE[1],
+            points: vec![(0.0, v), (report.hours(), v)],
+            dash: true,
+            width: 1.4,
+        });
+    }
+    chart.panels.push(p);
+    Some(chart.render())
+}
+
 /// The charts `write_all` may write, by file name.
 pub const FILES: [&str; 3] = ["tanks.svg", "pumps.svg", "pressures.svg"];
 
@@ -492,5 +538,17 @@ pub fn write_all(report: &RunReport<'_>, dir: &Path) -> std::io::Result<Vec<std:
         put(FILES[1], pumps_svg(report))?;
     }
     put(FILES[2], pressures_svg(report, 5))?;
+    if let Some(q) = report.quality {
+        for c in 0..q.constituents.len() {
+            if let Some(svg) = quality_svg(report, c, 5) {
+                let safe: String = q.constituents[c]
+                    .id
+                    .chars()
+                    .map(|ch| if ch.is_ascii_alphanumeric() || ch == '-' || ch == '_' { ch } else { '_' })
+                    .collect();
+                put(&format!("quality-{c}-{safe}.svg"), svg)?;
+            }
+        }
+    }
     Ok(written)
 }

@@ -75,8 +75,6 @@ fn build(c: &Case) -> Model {
             elevation: None,
             npsh_required: None,
             speed: 1.0,
-            elevation: None,
-            npsh_required: None,
         }));
         add(&mut m, sump, n - 1, kind);
     }

@@ -55,7 +55,7 @@ pub struct Segments {
     queues: Vec<VecDeque<f64>>,
     /// Per link and constituent: `Σ s · v` over the segments.
     stored: Vec<f64>,
-    /// Per link and constituent: `Λ` (decay constituents only).
+    /// Per link and constituent: `exp(Λ)` (decay constituents only; 1 otherwise).
     lam: Vec<f64>,
     /// Per link: its volume, m³ (0: passes water through at once).
     pub volume: Vec<f64>,
@@ -64,8 +64,9 @@ pub struct Segments {
     held: Vec<f64>,
 }
 
-/// Largest |Λ| before a pipe's stored values are renormalised.
-const LAM_LIMIT: f64 = 200.0;
+/// `exp(±200)`: the range of `exp(Λ)` beyond which a pipe's stored values are renormalised.
+const FACTOR_HIGH: f64 = 7.225_973_768_125_749e86;
+const FACTOR_LOW: f64 = 1.383_896_526_736_737_4e-87;
 
 impl Segments {
     /// Pipes of the given volumes, each filled with one segment of the given current values
@@ -79,7 +80,7 @@ impl Segments {
             merge,
             queues: vec![VecDeque::new(); n],
             stored: vec![0.0; n * nc],
-            lam: vec![0.0; n * nc],
+            lam: vec![1.0; n * nc],
             held: vec![0.0; n],
             volume,
         };
@@ -106,7 +107,7 @@ impl Segments {
         match self.transforms[c] {
             Transform::Age => x - t,
             Transform::Plain => x,
-            Transform::Decay => x * (-self.lam[p * self.nc + c]).exp(),
+            Transform::Decay => x / self.lam[p * self.nc + c],
         }
     }
 
@@ -114,7 +115,7 @@ impl Segments {
         match self.transforms[c] {
             Transform::Age => s + t,
             Transform::Plain => s,
-            Transform::Decay => s * self.lam[p * self.nc + c].exp(),
+            Transform::Decay => s * self.lam[p * self.nc + c],
         }
     }
 
@@ -124,7 +125,7 @@ impl Segments {
         match self.transforms[c] {
             Transform::Age => stored + t * vol,
             Transform::Plain => stored,
-            Transform::Decay => stored * self.lam[p * self.nc + c].exp(),
+            Transform::Decay => stored * self.lam[p * self.nc + c],
         }
     }
 
@@ -249,21 +250,28 @@ impl Segments {
     /// Lets constituent `c` in pipe `p` react at rate `k` (1/s) for `dt`; returns the mass gained
     /// (negative for decay).
     pub fn react(&mut self, p: usize, c: usize, k: f64, dt: f64, t: f64) -> f64 {
-        if k == 0.0 || self.queues[p].is_empty() {
+        let em1 = (k * dt).exp_m1();
+        self.react_by(p, c, em1 + 1.0, em1, t)
+    }
+
+    /// Like [`Segments::react`] with the factor `growth = exp(k dt)` and `em1 = exp(k dt) − 1`
+    /// given (a transport step repeats them).
+    pub fn react_by(&mut self, p: usize, c: usize, growth: f64, em1: f64, t: f64) -> f64 {
+        if em1 == 0.0 || self.queues[p].is_empty() {
             return 0.0;
         }
         let before = self.mass(p, c, t);
         let i = p * self.nc + c;
-        self.lam[i] += k * dt;
-        if self.lam[i].abs() > LAM_LIMIT {
+        self.lam[i] *= growth;
+        if !(FACTOR_LOW..=FACTOR_HIGH).contains(&self.lam[i]) {
             self.renormalise(p, c);
         }
-        before * (k * dt).exp_m1()
+        before * em1
     }
 
     fn renormalise(&mut self, p: usize, c: usize) {
         let i = p * self.nc + c;
-        let f = self.lam[i].exp();
+        let f = self.lam[i];
         let stride = self.nc + 1;
         let q = &mut self.queues[p];
         let mut sum = 0.0;
@@ -272,7 +280,7 @@ impl Segments {
             sum += q[r + 1 + c] * q[r];
         }
         self.stored[i] = sum;
-        self.lam[i] = 0.0;
+        self.lam[i] = 1.0;
     }
 
     /// Recomputes the stored sums of every pipe from its segments (removes the round-off that
