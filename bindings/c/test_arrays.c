@@ -5,6 +5,8 @@
  */
 #include "check.h"
 
+#define PI_ 3.14159265358979323846
+
 /* Every id in one call equals the ids one at a time. */
 static void check_ids(const ringmain_model *m, size_t n) {
     size_t needed = 0;
@@ -162,6 +164,42 @@ static void series(const char *path) {
     ringmain_model_free(m);
 }
 
+/* Water age in one main: once the first water has arrived, the age at its end is the travel time,
+ * volume over flow = (pi/4 * 0.3^2 m^2 * 2000 m) / 0.010 m3/s = 14,137 s = 3.93 h (geometry). */
+static const char PLUG[] =
+    "[simulation]\nduration = \"24h\"\nhydraulic_step = \"1h\"\nreport_interval = \"30min\"\n"
+    "[[quality]]\nid = \"age\"\nkind = \"age\"\n"
+    "[[nodes]]\nid = \"Works\"\nkind = \"reservoir\"\nhead = 60.0\n"
+    "[[nodes]]\nid = \"End\"\nelevation = 0.0\ndemand = 10.0\n"
+    "[[links]]\nid = \"Main\"\nfrom = \"Works\"\nto = \"End\"\nlength = 2000.0\ndiameter = 300\n"
+    "roughness = 120\n";
+
+static void quality(void) {
+    ringmain_model *m = NULL;
+    OK(ringmain_model_from_toml(PLUG, strlen(PLUG), &m));
+    ringmain_run *run = NULL;
+    OK(ringmain_model_simulate(m, &run));
+    size_t constituents = 0, nt = 0, count = 0;
+    OK(ringmain_run_constituent_count(run, &constituents));
+    EXPECT(constituents == 1);
+    char text[16];
+    OK(ringmain_run_constituent(run, 0, false, text, sizeof text, NULL));
+    EXPECT(strcmp(text, "age") == 0);
+    OK(ringmain_run_constituent(run, 0, true, text, sizeof text, NULL));
+    EXPECT(strcmp(text, "h") == 0);
+    FAILS_WITH(ringmain_run_constituent(run, 1, false, text, sizeof text, NULL), RINGMAIN_OUT_OF_RANGE);
+    FAILS_WITH(ringmain_run_times(run, NULL, 0, &nt), RINGMAIN_BUFFER_TOO_SMALL);
+    double *age = calloc(nt * 2, sizeof(double));
+    OK(ringmain_run_quality(run, 0, false, age, nt * 2, &count));
+    EXPECT(count == nt * 2);
+    double travel = PI_ / 4.0 * 0.3 * 0.3 * 2000.0 / 0.010 / 3600.0;
+    EXPECT_NEAR(age[(nt - 1) * 2 + 1], travel, 1e-3);
+    EXPECT(age[(nt - 1) * 2] == 0.0);
+    free(age);
+    ringmain_run_free(run);
+    ringmain_model_free(m);
+}
+
 int main(int argc, char **argv) {
     if (argc != 3) {
         fprintf(stderr, "usage: %s MODEL.toml SIMULATION_MODEL.toml\n", argv[0]);
@@ -175,6 +213,7 @@ int main(int argc, char **argv) {
     OK(ringmain_set_threads(0));
     arrays(argv[1]);
     series(argv[2]);
+    quality();
     report("test_arrays");
     return 0;
 }

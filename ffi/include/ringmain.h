@@ -2228,8 +2228,8 @@ ringmain_status ringmain_link_state_text(uint32_t state,
 
 /**
  * Runs the model's extended-period simulation (its `[simulation]` table: duration, steps,
- * patterns, controls, tanks) and writes a new run handle to `*out` (free it with
- * `ringmain_run_free`). Uses the library's worker threads (see `ringmain_set_threads`).
+ * patterns, controls, tanks; and the transport of its `[[quality]]` constituents when it has
+ * some) and writes a new run handle to `*out` (free it with `ringmain_run_free`). Uses the library's worker threads (see `ringmain_set_threads`).
  *
  * Errors: `RINGMAIN_MODEL_INVALID` when the model has no `[simulation]` table or fails its
  * checks; `RINGMAIN_NOT_CONVERGED` or `RINGMAIN_SOLVE_FAILED` when a solve during the run fails
@@ -2331,6 +2331,56 @@ ringmain_status ringmain_run_event(const ringmain_run *run,
                                    char *buf,
                                    size_t len,
                                    size_t *needed);
+
+/**
+ * Writes the number of water-quality constituents of the run to `*out` (0 when the model has no
+ * `[[quality]]` table).
+ *
+ * # Safety
+ * `run` is NULL or a live run; `out` is NULL or writable.
+ */
+RINGMAIN_MUST_USE
+ringmain_status ringmain_run_constituent_count(const ringmain_run *run,
+                                               size_t *out);
+
+/**
+ * Writes the id of constituent `index` (as in the model's `[[quality]]` table) into `buf`, or
+ * with `unit` true the unit its values are reported in ("h" for water age, "%" for a source
+ * trace, the substance's unit otherwise). Text buffer rules as `ringmain_run_event`.
+ *
+ * Errors: `RINGMAIN_OUT_OF_RANGE` for an index past the last constituent.
+ *
+ * # Safety
+ * `run` is NULL or a live run; `buf` is NULL or `len` writable bytes; `needed` is NULL or
+ * writable.
+ */
+RINGMAIN_MUST_USE
+ringmain_status ringmain_run_constituent(const ringmain_run *run,
+                                         size_t index,
+                                         bool unit,
+                                         char *buf,
+                                         size_t len,
+                                         size_t *needed);
+
+/**
+ * Writes the values of constituent `index` at every reported time into `buf`: with `links`
+ * false at every node (time × node, row by row), with `links` true the mean over every link's
+ * water (time × link); in the unit `ringmain_run_constituent` gives. Buffer rules as
+ * `ringmain_run_times`.
+ *
+ * Errors: `RINGMAIN_OUT_OF_RANGE` for an index past the last constituent.
+ *
+ * # Safety
+ * `run` is NULL or a live run; `buf` is NULL or `len` writable doubles; `count` is NULL or
+ * writable.
+ */
+RINGMAIN_MUST_USE
+ringmain_status ringmain_run_quality(const ringmain_run *run,
+                                     size_t index,
+                                     bool links,
+                                     double *buf,
+                                     size_t len,
+                                     size_t *count);
 
 /**
  * Sets the number of worker threads of the library in this process: `threads` = 0 for one per

@@ -5,7 +5,8 @@ use crate::boundary::{copy_out, copy_text, free_handle, handle, handle_mut, into
 use crate::codes::ringmain_status;
 use crate::convert::Units;
 use crate::model::{out_of_range, ringmain_model};
-use ringmain_core::simulate::{simulate, Run, SimulateError};
+use ringmain_core::quality::QualityRun;
+use ringmain_core::simulate::{simulate, Run, SimulateError, SimulateOptions};
 use ringmain_core::Model;
 use std::ffi::c_char;
 use std::sync::atomic::AtomicUsize;
@@ -114,10 +115,21 @@ pub struct ringmain_run {
     series: [Vec<f64>; 9],
     summary: ringmain_run_summary,
     events: Vec<(f64, String)>,
+    /// Water quality, when the model has constituents: per constituent its id, report unit, and
+    /// values row-major time × node and time × link, in report units.
+    quality: Vec<QualitySeries>,
+}
+
+/// One constituent's series.
+struct QualitySeries {
+    id: String,
+    unit: String,
+    nodes: Vec<f64>,
+    links: Vec<f64>,
 }
 
 impl ringmain_run {
-    fn new(model: &Model, run: &Run) -> Self {
+    fn new(model: &Model, run: &Run, quality: Option<&QualityRun>) -> Self {
         let u = Units::of(model);
         let volume = |v: f64| v / model.units.length.to_si(1.0).powi(3);
         let rows = run.series.len();
@@ -176,7 +188,26 @@ impl ringmain_run {
             series,
             summary,
             events: run.events.iter().map(|e| (e.time, e.describe(model))).collect(),
+            quality: quality.map_or_else(Vec::new, |q| {
+                q.constituents
+                    .iter()
+                    .enumerate()
+                    .map(|(c, constituent)| {
+                        let scale = constituent.report_scale();
+                        QualitySeries {
+                            id: constituent.id.clone(),
+                            unit: constituent.report_unit().to_owned(),
+                            nodes: q.records.iter().flat_map(|r| r.node[c].iter().map(move |v| v * scale)).collect(),
+                            links: q.records.iter().flat_map(|r| r.link[c].iter().map(move |v| v * scale)).collect(),
+                        }
+                    })
+                    .collect()
+            }),
         }
+    }
+
+    fn constituent(&self, index: usize) -> Result<&QualitySeries, Failure> {
+        self.quality.get(index).ok_or_else(|| out_of_range("constituent", index, self.quality.len()))
     }
 
     fn columns(&self, quantity: ringmain_series) -> Vec<usize> {
@@ -191,8 +222,8 @@ impl ringmain_run {
 }
 
 /// Runs the model's extended-period simulation (its `[simulation]` table: duration, steps,
-/// patterns, controls, tanks) and writes a new run handle to `*out` (free it with
-/// `ringmain_run_free`). Uses the library's worker threads (see `ringmain_set_threads`).
+/// patterns, controls, tanks; and the transport of its `[[quality]]` constituents when it has
+/// some) and writes a new run handle to `*out` (free it with `ringmain_run_free`). Uses the library's worker threads (see `ringmain_set_threads`).
 ///
 /// Errors: `RINGMAIN_MODEL_INVALID` when the model has no `[simulation]` table or fails its
 /// checks; `RINGMAIN_NOT_CONVERGED` or `RINGMAIN_SOLVE_FAILED` when a solve during the run fails
@@ -211,7 +242,16 @@ pub unsafe extern "C" fn ringmain_model_simulate(
         // SAFETY: the caller's contract above.
         let (m, out) = unsafe { (handle_mut(model, "model")?, self::out(out, "out")?) };
         let model = &m.model;
-        let run = crate::threads::install(|| simulate(model))?.map_err(|e| {
+        let with_quality = !model.time.quality.constituents.is_empty();
+        let result = crate::threads::install(|| {
+            if with_quality {
+                ringmain_core::quality::simulate(model, &SimulateOptions::default(), &mut |_| {})
+                    .map(|(run, quality)| (run, Some(quality)))
+            } else {
+                simulate(model).map(|run| (run, None))
+            }
+        })?;
+        let (run, quality) = result.map_err(|e| {
             let status = match &e {
                 SimulateError::Model(_) => ringmain_status::RINGMAIN_MODEL_INVALID,
                 SimulateError::Solve { error: ringmain_core::SolveError::NotConverged { .. }, .. } => {
@@ -225,7 +265,7 @@ pub unsafe extern "C" fn ringmain_model_simulate(
             };
             Failure::new(status, message)
         })?;
-        out.write(into_handle(ringmain_run::new(&m.model, &run), &LIVE_RUNS));
+        out.write(into_handle(ringmain_run::new(&m.model, &run, quality.as_ref()), &LIVE_RUNS));
         Ok(())
     }
 }
@@ -369,5 +409,78 @@ pub unsafe extern "C" fn ringmain_run_event(
             o.write(*t);
         }
         Ok(())
+    }
+}
+
+/// Writes the number of water-quality constituents of the run to `*out` (0 when the model has no
+/// `[[quality]]` table).
+///
+/// # Safety
+/// `run` is NULL or a live run; `out` is NULL or writable.
+#[no_mangle]
+#[must_use]
+pub unsafe extern "C" fn ringmain_run_constituent_count(run: *const ringmain_run, out: *mut usize) -> ringmain_status {
+    ffi_boundary! {
+        // SAFETY: the caller's contract above.
+        let (r, out) = unsafe { (handle(run, "run")?, self::out(out, "out")?) };
+        out.write(r.quality.len());
+        Ok(())
+    }
+}
+
+/// Writes the id of constituent `index` (as in the model's `[[quality]]` table) into `buf`, or
+/// with `unit` true the unit its values are reported in ("h" for water age, "%" for a source
+/// trace, the substance's unit otherwise). Text buffer rules as `ringmain_run_event`.
+///
+/// Errors: `RINGMAIN_OUT_OF_RANGE` for an index past the last constituent.
+///
+/// # Safety
+/// `run` is NULL or a live run; `buf` is NULL or `len` writable bytes; `needed` is NULL or
+/// writable.
+#[no_mangle]
+#[must_use]
+pub unsafe extern "C" fn ringmain_run_constituent(
+    run: *const ringmain_run,
+    index: usize,
+    unit: bool,
+    buf: *mut c_char,
+    len: usize,
+    needed: *mut usize,
+) -> ringmain_status {
+    ffi_boundary! {
+        // SAFETY: the caller's contract above.
+        let (r, needed) = unsafe { (handle(run, "run")?, out_opt(needed, "needed")?) };
+        let c = r.constituent(index)?;
+        // SAFETY: the caller's contract above.
+        unsafe { copy_text(if unit { &c.unit } else { &c.id }, buf, len, needed) }
+    }
+}
+
+/// Writes the values of constituent `index` at every reported time into `buf`: with `links`
+/// false at every node (time × node, row by row), with `links` true the mean over every link's
+/// water (time × link); in the unit `ringmain_run_constituent` gives. Buffer rules as
+/// `ringmain_run_times`.
+///
+/// Errors: `RINGMAIN_OUT_OF_RANGE` for an index past the last constituent.
+///
+/// # Safety
+/// `run` is NULL or a live run; `buf` is NULL or `len` writable doubles; `count` is NULL or
+/// writable.
+#[no_mangle]
+#[must_use]
+pub unsafe extern "C" fn ringmain_run_quality(
+    run: *const ringmain_run,
+    index: usize,
+    links: bool,
+    buf: *mut f64,
+    len: usize,
+    count: *mut usize,
+) -> ringmain_status {
+    ffi_boundary! {
+        // SAFETY: the caller's contract above.
+        let (r, count) = unsafe { (handle(run, "run")?, out_opt(count, "count")?) };
+        let c = r.constituent(index)?;
+        // SAFETY: the caller's contract above.
+        unsafe { copy_out(if links { &c.links } else { &c.nodes }, buf, len, count, "the quality series") }
     }
 }

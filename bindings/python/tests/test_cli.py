@@ -57,8 +57,10 @@ def _check_against_cli(results, units, expected):
 
     links = results.links()
     assert [k["id"] for k in links] == [k["id"] for k in expected["links"]]
-    # Device details that the program's JSON carries from the model rather than from the results.
-    from_model = {"speed", "beyond_curve", "valve", "setting"}
+    # Device details that the program's JSON carries from the model rather than from the results,
+    # and the minor-loss details of the named fittings (k_total, minor_share), which the C library
+    # does not report yet.
+    from_model = {"speed", "beyond_curve", "valve", "setting", "k_total", "minor_share"}
     for got, want in zip(links, expected["links"]):
         assert set(got) == set(want) - from_model, got["id"]
         for key in got:

@@ -127,3 +127,46 @@ def test_snapshot_to_pandas_and_geo_interface():
         assert features[pipe]["properties"]["flow"] == r.link_flow(pipe)
         model_geo = m.__geo_interface__
         assert len(model_geo["features"]) == m.node_count + m.link_count
+
+
+PLUG = """
+[simulation]
+duration = "24h"
+hydraulic_step = "1h"
+report_interval = "30min"
+[[quality]]
+id = "age"
+kind = "age"
+[[nodes]]
+id = "Works"
+kind = "reservoir"
+head = 60.0
+[[nodes]]
+id = "End"
+elevation = 0.0
+demand = 10.0
+[[links]]
+id = "Main"
+from = "Works"
+to = "End"
+length = 2000.0
+diameter = 300
+roughness = 120
+"""
+
+
+def test_water_quality_joins_the_series():
+    # Plug flow in one main: once the first water has arrived, the age at its end is the travel
+    # time, volume over flow = (pi/4 * 0.3^2 m^2 * 2000 m) / 0.010 m3/s = 14,137 s = 3.93 h
+    # (geometry of the pipe; the model's demand is 10 L/s).
+    with ringmain.Model.from_toml(PLUG) as m:
+        sim = m.simulate()
+    assert list(sim.quality) == ["age"] and sim.quality_units == {"age": "h"}
+    age = sim.quality["age"]
+    assert age.shape == (sim.times.shape[0], 2) and sim.quality_links["age"].shape == (sim.times.shape[0], 1)
+    travel = math.pi / 4 * 0.3**2 * 2000.0 / 0.010 / 3600.0
+    late = sim.times > travel * 3600.0 + 3600.0
+    np.testing.assert_allclose(age[late, 1], travel, rtol=1e-3)
+    assert np.all(age[:, 0] == 0.0)  # a reservoir's water is new
+    frames = pytest.importorskip("pandas") and sim.to_pandas()
+    assert "quality:age" in frames and list(frames["quality:age:links"].columns) == ["Main"]

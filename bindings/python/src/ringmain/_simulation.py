@@ -55,6 +55,12 @@ class Simulation:
         pressure of the run (node, value, time) and the work done (steps, rejected_steps, solves).
     events : list of (float, str)
         Each event's time (s) and description, in time order.
+    quality : dict of str to ndarray
+        Per water-quality constituent of the model's ``[[quality]]`` table (by id): its value at
+        every node, time × node, in :attr:`quality_units` (hours for water age, percent for a
+        source trace, the substance's unit otherwise). Empty without constituents.
+    quality_links : dict of str to ndarray
+        The same per link (the mean over the link's water), time × link.
 
     The arrays are copies owned by Python: the native run is freed as soon as they are read.
     """
@@ -68,6 +74,9 @@ class Simulation:
     summary: dict[str, Any]
     events: list[tuple[float, str]]
     units: dict[str, str]
+    quality: dict[str, FloatArray]
+    quality_links: dict[str, FloatArray]
+    quality_units: dict[str, str]
 
     @classmethod
     def _from_run(cls, pointer: int, layout: Layout) -> Simulation:
@@ -108,6 +117,34 @@ class Simulation:
                 buf = ctypes.create_string_buffer(needed.value)
                 check(lib.ringmain_run_event(pointer, e, byref(when), buf, needed.value, byref(needed)))
                 events.append((when.value, buf.value.decode("utf-8")))
+            quality: dict[str, FloatArray] = {}
+            quality_links: dict[str, FloatArray] = {}
+            quality_units: dict[str, str] = {}
+            constituents = c_size_t()
+            check(lib.ringmain_run_constituent_count(pointer, byref(constituents)))
+            for c in range(constituents.value):
+                texts = []
+                for unit in (False, True):
+                    needed = c_size_t()
+                    lib.ringmain_run_constituent(pointer, c, unit, None, 0, byref(needed))
+                    buf = ctypes.create_string_buffer(needed.value)
+                    check(lib.ringmain_run_constituent(pointer, c, unit, buf, needed.value, byref(needed)))
+                    texts.append(buf.value.decode("utf-8"))
+                cid, unit_label = texts
+                for links, target, n_columns in (
+                    (False, quality, len(layout.node_ids)),
+                    (True, quality_links, len(layout.link_ids)),
+                ):
+                    values = np.empty((nt, n_columns))
+                    if values.size:
+                        check(
+                            lib.ringmain_run_quality(
+                                pointer, c, links, values.ctypes.data_as(_ffi.double_p), values.size, byref(count)
+                            )
+                        )
+                    values.setflags(write=False)
+                    target[cid] = values
+                quality_units[cid] = unit_label
         finally:
             lib.ringmain_run_free(pointer)
         lowest: dict[str, Any] | None = None
@@ -141,6 +178,9 @@ class Simulation:
             summary=info,
             events=events,
             units=dict(layout.units),
+            quality=quality,
+            quality_links=quality_links,
+            quality_units=quality_units,
         )
 
     def columns(self, quantity: str) -> tuple[str, ...]:
@@ -187,18 +227,25 @@ class Simulation:
         Returns
         -------
         dict of str to pandas.DataFrame
-            Keyed by quantity (``"head"``, ``"pressure"``, ``"flow"``, ``"level"``...); each
-            indexed by the time from the start (``pandas.TimedeltaIndex`` named ``time``), one
-            column per element id.
+            Keyed by quantity (``"head"``, ``"pressure"``, ``"flow"``, ``"level"``...; and per
+            water-quality constituent ``"quality:<id>"`` at the nodes and
+            ``"quality:<id>:links"``); each indexed by the time from the start
+            (``pandas.TimedeltaIndex`` named ``time``), one column per element id.
         """
         import pandas as pd
 
         index = pd.to_timedelta(self.times, unit="s")
         index.name = "time"
-        return {
+        frames = {
             name: pd.DataFrame(values, index=index, columns=pd.Index(list(self.columns(name)), name="id"))
             for name, values in self.series.items()
         }
+        for cid, values in self.quality.items():
+            frames[f"quality:{cid}"] = pd.DataFrame(values, index=index, columns=pd.Index(list(self.node_ids), name="id"))
+            frames[f"quality:{cid}:links"] = pd.DataFrame(
+                self.quality_links[cid], index=index, columns=pd.Index(list(self.link_ids), name="id")
+            )
+        return frames
 
     def __repr__(self) -> str:
         return (
