@@ -5,6 +5,8 @@
 
 mod check;
 mod check_report;
+mod columnar;
+mod csv;
 mod plot;
 mod report;
 mod simulation;
@@ -30,6 +32,10 @@ use std::time::{Duration, Instant};
 struct Cli {
     #[command(subcommand)]
     command: Command,
+    /// Largest model or criteria file read, MB (10^6 bytes): a larger file, or an endless
+    /// stream, is refused with exit code 2.
+    #[arg(long, global = true, value_name = "MB", default_value_t = check::DEFAULT_MAX_INPUT_MB as f64)]
+    max_input_mb: f64,
 }
 
 #[derive(Subcommand)]
@@ -38,10 +44,13 @@ enum Command {
     Solve {
         /// The model file (.toml or .json).
         model: PathBuf,
-        /// Output format.
+        /// Output format: table; json; csv = every table (nodes, links, pumps, valves, summary)
+        /// one value a row, or one file per table when --output is a directory; parquet = one
+        /// file per table in the --output directory.
         #[arg(long, value_enum, default_value_t = OutputFormat::Table)]
         format: OutputFormat,
-        /// Write the results to this file instead of standard output.
+        /// Write the results to this file (a directory for parquet, or for CSV tables) instead
+        /// of standard output.
         #[arg(long, short)]
         output: Option<PathBuf>,
         /// Print to standard error where the time went: reading, analysis, assembly,
@@ -66,20 +75,30 @@ enum Command {
     },
     /// Simulate a model over time (its [simulation] table): tank levels, pump energy, pressures.
     ///
-    /// Prints a summary (or writes the time series as CSV or JSON) and, with --plot, SVG charts.
+    /// Prints a summary, or writes the time series as JSON, CSV or Parquet as the run goes (the
+    /// series is never held in memory, except with --plot); with --output the summary is still
+    /// printed, with a line naming the file written. With --plot, SVG charts.
+    #[command(after_help = "A run whose estimated time exceeds 15 minutes (from its duration, the shorter of \
+                            hydraulic_step and report_interval, and the size of the network) is refused unless \
+                            --force is given. Exit codes: 0 simulated; 2 invalid model, file or arguments, or a run \
+                            too long without --force; 3 a hydraulic solve failed; 4 the results could not be written.")]
     Simulate {
         /// The model file (.toml or .json).
         model: PathBuf,
         /// Output format: table = summary and events; json = summary, events and time series;
-        /// csv = the time series, one value a row.
+        /// csv = the time series, one value a row; parquet = the time series as long tables
+        /// (nodes, links, tanks, pumps, series) in the directory given by --output.
         #[arg(long, value_enum, default_value_t = OutputFormat::Table)]
         format: OutputFormat,
-        /// Write the results to this file instead of standard output.
+        /// Write the results to this file (a directory for parquet) instead of standard output.
         #[arg(long, short)]
         output: Option<PathBuf>,
         /// Write SVG charts (tanks.svg, pumps.svg, pressures.svg) into this directory.
         #[arg(long, value_name = "DIR")]
         plot: Option<PathBuf>,
+        /// Run even when the estimated work is beyond the bound (see below).
+        #[arg(long)]
+        force: bool,
     },
     /// Check a model against service criteria, with what-if closures: for CI pipelines.
     ///
@@ -148,6 +167,8 @@ enum OutputFormat {
     Table,
     Json,
     Csv,
+    /// Apache Parquet, one file per table in the --output directory.
+    Parquet,
 }
 
 const EXIT_INVALID: u8 = 2;
@@ -156,11 +177,16 @@ const EXIT_WRITE: u8 = 4;
 
 fn main() -> ExitCode {
     let cli = Cli::parse();
+    if !(cli.max_input_mb.is_finite() && cli.max_input_mb > 0.0) {
+        eprintln!("error: --max-input-mb must be a positive number of MB, found {}", cli.max_input_mb);
+        return ExitCode::from(EXIT_INVALID);
+    }
+    check::set_max_input_mb(cli.max_input_mb);
     match cli.command {
         Command::Solve { model, format, output, timings } => solve(&model, format, output.as_deref(), timings),
         Command::Generate { junctions, seed, output } => generate(junctions, seed, &output),
-        Command::Simulate { model, format, output, plot } => {
-            simulate(&model, format, output.as_deref(), plot.as_deref())
+        Command::Simulate { model, format, output, plot, force } => {
+            simulate(&model, format, output.as_deref(), plot.as_deref(), force)
         }
         Command::Check { model, criteria, close, demand_factor, each_pipe_closed, format, junit, offenders } => {
             check::run(check::Args {
@@ -181,16 +207,13 @@ fn main() -> ExitCode {
     }
 }
 
-/// Reads and checks a model file; errors are printed with a snippet of the file.
+/// Reads and checks a model file; errors are printed with a snippet of the file, as `check`
+/// prints them.
 ///
-/// The message is one line (scripts and the error tests read it); on a terminal a snippet of the
-/// offending line follows it. `check` always adds the snippet.
+/// The message is one line, always the first (scripts and the error tests read it); a snippet
+/// of the offending line follows it when the place can be found.
 fn load(path: &Path) -> Result<Model, ()> {
-    use std::io::IsTerminal;
-    let snippet = std::io::stderr().is_terminal();
-    check::read_model(path)
-        .map(|(model, _)| model)
-        .map_err(|(e, source)| check::report_error(&e, source.as_ref().filter(|_| snippet)))
+    check::read_model(path).map(|(model, _)| model).map_err(|(e, source)| check::report_error(&e, source.as_ref()))
 }
 
 /// Writes a short text to the file, or to standard output.
@@ -262,11 +285,34 @@ fn solve(path: &Path, format: OutputFormat, output: Option<&Path>, timings: bool
         }
     }
     let report = report::Report::new(&model, &solution);
-    let code = write_with("the results", output, |out| match format {
-        OutputFormat::Table => report.write_table(out),
-        OutputFormat::Json => report.write_json(out),
-        OutputFormat::Csv => report.write_csv(out),
-    });
+    let to_dir = |dir: &Path, write: &dyn Fn(&Path) -> std::io::Result<Vec<PathBuf>>| match columnar::output_dir(dir)
+        .and_then(|()| write(dir))
+    {
+        Ok(files) => {
+            let names: Vec<String> = files.iter().map(|f| f.display().to_string()).collect();
+            eprintln!("wrote {}", names.join(", "));
+            ExitCode::SUCCESS
+        }
+        Err(e) => {
+            eprintln!("error: cannot write the results to {}: {e}", dir.display());
+            ExitCode::from(EXIT_WRITE)
+        }
+    };
+    let code = match (format, output) {
+        (OutputFormat::Parquet, Some(dir)) => to_dir(dir, &|d| report.write_parquet(d)),
+        (OutputFormat::Parquet, None) => {
+            eprintln!("error: --format parquet writes one file per table: give the directory with --output DIR");
+            ExitCode::from(EXIT_INVALID)
+        }
+        // A directory (existing, or named with a trailing slash, or without an extension):
+        // one CSV file per table.
+        (OutputFormat::Csv, Some(dir)) if is_directory_output(dir) => to_dir(dir, &|d| report.write_csv_tables(d)),
+        _ => write_with("the results", output, |out| match format {
+            OutputFormat::Table => report.write_table(out),
+            OutputFormat::Json => report.write_json(out),
+            _ => report.write_csv(out),
+        }),
+    };
     let writing = clock.elapsed();
     if let (true, Some(solver)) = (timings, &solver) {
         print_timings(&model, solver, reading, writing);
@@ -275,6 +321,12 @@ fn solve(path: &Path, format: OutputFormat, output: Option<&Path>, timings: bool
     // a large network's millions of small allocations one by one takes a noticeable time.
     std::mem::forget((solution, model, solver));
     code
+}
+
+/// Whether an output path names a directory: one that exists, or a path ending in a slash, or
+/// a name without an extension.
+fn is_directory_output(path: &Path) -> bool {
+    path.is_dir() || path.as_os_str().to_string_lossy().ends_with('/') || path.extension().is_none()
 }
 
 /// The `--timings` report, on standard error.
@@ -348,16 +400,18 @@ fn generate(junctions: usize, seed: u64, output: &Path) -> ExitCode {
     code
 }
 
-/// A progress bar on standard error, drawn only when it is a terminal.
+/// A progress bar on standard error with the estimated time left, drawn only when standard
+/// error is a terminal.
 struct Progress {
     enabled: bool,
     shown: i64,
+    started: Instant,
 }
 
 impl Progress {
     fn new() -> Self {
         use std::io::IsTerminal;
-        Progress { enabled: std::io::stderr().is_terminal(), shown: -1 }
+        Progress { enabled: std::io::stderr().is_terminal(), shown: -1, started: Instant::now() }
     }
 
     fn update(&mut self, fraction: f64) {
@@ -370,29 +424,217 @@ impl Progress {
         }
         self.shown = percent;
         let filled = (percent / 4) as usize;
-        eprint!("\rsimulating [{}{}] {percent:>3}%", "#".repeat(filled), " ".repeat(25 - filled));
+        let elapsed = self.started.elapsed().as_secs_f64();
+        // The rate so far carried to the end: a fair guess once a few per cent are done.
+        let left = if fraction >= 0.02 {
+            format!("about {} left", short_duration(elapsed * (1.0 - fraction) / fraction))
+        } else {
+            "estimating...".to_owned()
+        };
+        eprint!("\rsimulating [{}{}] {percent:>3}%  {left:<20}", "#".repeat(filled), " ".repeat(25 - filled));
     }
 
     fn finish(&self) {
         if self.enabled && self.shown >= 0 {
-            eprint!("\r{}\r", " ".repeat(48));
+            eprint!("\r{}\r", " ".repeat(72));
         }
     }
 }
 
-fn simulate(path: &Path, format: OutputFormat, output: Option<&Path>, plot_dir: Option<&Path>) -> ExitCode {
+/// "42 s", "3 min 10 s", "2 h 05 min".
+fn short_duration(seconds: f64) -> String {
+    let s = seconds.max(0.0).round() as u64;
+    if s < 60 {
+        format!("{s} s")
+    } else if s < 3600 {
+        format!("{} min {:02} s", s / 60, s % 60)
+    } else {
+        format!("{} h {:02} min", s / 3600, s % 3600 / 60)
+    }
+}
+
+/// A simulation's estimated run time, s, before it starts, from its length and the size of the
+/// network: at most one step per `min(hydraulic_step, report_interval)`, three hydraulic solves
+/// a step (the Runge–Kutta stages), each costing a fixed 5 µs plus 0.2 µs per node and link.
+/// The two costs were measured on this project's benchmark machine (benches/RESULTS.md, the
+/// simulation section): the 7-day run of the 10 000-junction network took 2.9 s for an
+/// estimate of 2.2 s. Pattern and control steps shorter than the hydraulic step are not
+/// counted, so the estimate is a lower bound of the order of the work, not a promise.
+fn estimated_run_time(model: &Model) -> Option<(f64, f64)> {
+    let sim = model.time.simulation?;
+    let step = sim.hydraulic_step.min(sim.report_interval).max(1e-3);
+    let steps = (sim.duration / step).ceil().max(1.0);
+    let elements = (model.nodes().len() + model.links().len()) as f64;
+    Some((steps * 3.0 * (5e-6 + 2e-7 * elements), steps))
+}
+
+/// Longest estimated run (s) that `simulate` starts without `--force`.
+const WORK_BOUND_SECONDS: f64 = 15.0 * 60.0;
+
+/// Whether two paths name the same existing file (same device and inode; by identity, not name).
+fn same_file(a: &Path, b: &Path) -> bool {
+    use std::os::unix::fs::MetadataExt;
+    match (std::fs::metadata(a), std::fs::metadata(b)) {
+        (Ok(x), Ok(y)) => x.dev() == y.dev() && x.ino() == y.ino(),
+        _ => false,
+    }
+}
+
+/// A file written under a temporary name beside its final one and renamed when complete: a
+/// failed run leaves no half-written file (and never a truncated earlier one).
+struct PartFile {
+    temporary: PathBuf,
+    path: PathBuf,
+    done: bool,
+}
+
+impl PartFile {
+    fn create(path: &Path) -> std::io::Result<(PartFile, File)> {
+        let name = path.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
+        let temporary = path.with_file_name(format!(".{name}.{}.part", std::process::id()));
+        let file = File::create(&temporary)?;
+        Ok((PartFile { temporary, path: path.to_owned(), done: false }, file))
+    }
+
+    fn commit(mut self) -> std::io::Result<()> {
+        std::fs::rename(&self.temporary, &self.path)?;
+        self.done = true;
+        Ok(())
+    }
+}
+
+impl Drop for PartFile {
+    fn drop(&mut self) {
+        if !self.done {
+            let _ = std::fs::remove_file(&self.temporary);
+        }
+    }
+}
+
+fn simulate(
+    path: &Path,
+    format: OutputFormat,
+    output: Option<&Path>,
+    plot_dir: Option<&Path>,
+    force: bool,
+) -> ExitCode {
     use ringmain_core::SimulateError;
+    use simulation::SeriesWriter;
+    if let Some(out) = output.filter(|o| same_file(o, path)) {
+        eprintln!("error: --output {} is the model file itself; choose another file", out.display());
+        return ExitCode::from(EXIT_INVALID);
+    }
+    if format == OutputFormat::Parquet && output.is_none() {
+        eprintln!("error: --format parquet writes one file per table: give the directory with --output DIR");
+        return ExitCode::from(EXIT_INVALID);
+    }
     let Ok(model) = load(path) else { return ExitCode::from(EXIT_INVALID) };
+    if let Some((seconds, steps)) = estimated_run_time(&model).filter(|_| !force) {
+        if seconds > WORK_BOUND_SECONDS {
+            eprintln!(
+                "error: {}: [simulation]: the run is estimated at about {} ({steps:.3e} steps over {} nodes and \
+                 links), beyond the {}-minute bound; lengthen hydraulic_step or report_interval, shorten duration, \
+                 or add --force to run it anyway",
+                path.display(),
+                short_duration(seconds),
+                model.nodes().len() + model.links().len(),
+                WORK_BOUND_SECONDS / 60.0
+            );
+            return ExitCode::from(EXIT_INVALID);
+        }
+    }
+    // Where the series goes, opened before the run so that it streams as the run goes.
+    let mut part = None;
+    let mut files = Vec::new();
+    let sink: Option<Box<dyn Write>> = match (format, output) {
+        (OutputFormat::Parquet, _) | (OutputFormat::Table, _) => None,
+        (_, None) => Some(Box::new(BufWriter::with_capacity(1 << 16, std::io::stdout().lock()))),
+        (_, Some(out)) => match PartFile::create(out) {
+            Ok((p, file)) => {
+                part = Some(p);
+                files.push(out.to_owned());
+                Some(Box::new(BufWriter::with_capacity(1 << 16, file)))
+            }
+            Err(e) => {
+                eprintln!("error: cannot write the results to {}: {e}", out.display());
+                return ExitCode::from(EXIT_WRITE);
+            }
+        },
+    };
+    let opened: std::io::Result<Option<Box<dyn SeriesWriter + '_>>> = match (format, sink) {
+        (OutputFormat::Json, Some(out)) => {
+            simulation::JsonSeries::new(&model, out).map(|w| Some(Box::new(w) as Box<dyn SeriesWriter + '_>))
+        }
+        (OutputFormat::Csv, Some(out)) => {
+            simulation::CsvSeries::new(&model, out).map(|w| Some(Box::new(w) as Box<dyn SeriesWriter + '_>))
+        }
+        (OutputFormat::Parquet, _) => {
+            let dir = output.expect("checked above");
+            columnar::output_dir(dir).and_then(|()| simulation::ParquetSeries::new(&model, dir)).map(|w| {
+                files = w.paths();
+                Some(Box::new(w) as Box<dyn SeriesWriter + '_>)
+            })
+        }
+        _ => Ok(None),
+    };
+    let mut writer = match opened {
+        Ok(w) => w,
+        Err(e) => {
+            eprintln!(
+                "error: cannot write the results to {}: {e}",
+                output.map_or("standard output".into(), |o| o.display().to_string())
+            );
+            return ExitCode::from(EXIT_WRITE);
+        }
+    };
     let mut progress = Progress::new();
-    let result = ringmain_core::simulate::simulate_with(&model, &ringmain_core::SimulateOptions::default(), &mut |f| {
-        progress.update(f)
-    });
+    let options = ringmain_core::SimulateOptions::default();
+    let mut failure: Option<std::io::Error> = None;
+    let mut reports = 0usize;
+    let result = if plot_dir.is_some() {
+        // The charts need the whole series: kept in memory, then written.
+        ringmain_core::simulate::simulate_with(&model, &options, &mut |f| progress.update(f)).and_then(|run| {
+            if let Some(w) = writer.as_mut() {
+                for s in &run.series {
+                    reports += 1;
+                    if let Err(e) = w.snapshot(s) {
+                        let message = e.to_string();
+                        failure = Some(e);
+                        return Err(SimulateError::Output { time: s.time, message });
+                    }
+                }
+            }
+            Ok(run)
+        })
+    } else {
+        ringmain_core::simulate::simulate_streaming(&model, &options, &mut |f| progress.update(f), &mut |s| {
+            reports += 1;
+            match writer.as_mut().map_or(Ok(()), |w| w.snapshot(s)) {
+                Ok(()) => Ok(()),
+                Err(e) => {
+                    let message = e.to_string();
+                    failure = Some(e);
+                    Err(message)
+                }
+            }
+        })
+    };
     progress.finish();
     let run = match result {
         Ok(r) => r,
         Err(SimulateError::Model(e)) => {
             eprintln!("error: {}", e.in_file(path.display().to_string()));
             return ExitCode::from(EXIT_INVALID);
+        }
+        Err(SimulateError::Output { .. })
+            if failure.as_ref().is_some_and(|e| e.kind() == std::io::ErrorKind::BrokenPipe) =>
+        {
+            return ExitCode::SUCCESS;
+        }
+        Err(SimulateError::Output { message, .. }) => {
+            let to = output.map_or("standard output".into(), |o| o.display().to_string());
+            eprintln!("error: cannot write the results to {to}: {message}");
+            return ExitCode::from(EXIT_WRITE);
         }
         Err(e) => {
             eprintln!("error: {}: {e}", path.display());
@@ -402,8 +644,8 @@ fn simulate(path: &Path, format: OutputFormat, output: Option<&Path>, plot_dir: 
     let report = simulation::RunReport::new(&model, &run);
     if let Some(dir) = plot_dir {
         match plot::write_all(&report, dir) {
-            Ok(files) => {
-                for f in files {
+            Ok(written) => {
+                for f in written {
                     eprintln!("wrote {}", f.display());
                 }
             }
@@ -413,17 +655,49 @@ fn simulate(path: &Path, format: OutputFormat, output: Option<&Path>, plot_dir: 
             }
         }
     }
-    write_with("the results", output, |out| match format {
-        OutputFormat::Table => out.write_all(report.to_table().as_bytes()),
-        OutputFormat::Json => {
-            serde_json::to_writer_pretty(&mut *out, &report.to_json())?;
-            out.write_all(b"\n")
+    let finished = match writer.as_mut() {
+        Some(w) => w.finish(&report),
+        None if format == OutputFormat::Table => {
+            return match output {
+                None => write_out(&report.to_table(), None),
+                Some(out) => {
+                    let code = write_with("the results", Some(out), |o| o.write_all(report.to_table().as_bytes()));
+                    if code == ExitCode::SUCCESS {
+                        println!("wrote {}", out.display());
+                    }
+                    code
+                }
+            };
         }
-        OutputFormat::Csv => out.write_all(report.to_csv().as_bytes()),
-    })
+        None => Ok(()),
+    };
+    drop(writer);
+    let committed = finished.and_then(|()| part.map_or(Ok(()), PartFile::commit));
+    match committed {
+        Ok(()) => {}
+        Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => return ExitCode::SUCCESS,
+        Err(e) => {
+            let to = output.map_or("standard output".into(), |o| o.display().to_string());
+            eprintln!("error: cannot write the results to {to}: {e}");
+            return ExitCode::from(EXIT_WRITE);
+        }
+    }
+    if output.is_some() {
+        // The series went to files: the summary still comes to the terminal, with what was written.
+        let mut text = report.to_table();
+        for f in &files {
+            text.push_str(&format!("wrote {} ({} reported times)\n", f.display(), reports));
+        }
+        return write_out(&text, None);
+    }
+    ExitCode::SUCCESS
 }
 
 fn water_properties(temperature: f64, format: OutputFormat) -> ExitCode {
+    if format == OutputFormat::Parquet {
+        eprintln!("error: --format parquet is for the results of solve and simulate; use table, json or csv");
+        return ExitCode::from(EXIT_INVALID);
+    }
     if !(WaterProperties::MIN_CELSIUS..=WaterProperties::MAX_CELSIUS).contains(&temperature) {
         eprintln!(
             "error: --temperature must be between {} and {} deg C, found {temperature}",
@@ -446,7 +720,7 @@ fn water_properties(temperature: f64, format: OutputFormat) -> ExitCode {
             "temperature_C,density_kg_m3,dynamic_viscosity_Pa_s,kinematic_viscosity_m2_s\n{},{},{},{}\n",
             temperature, w.density, w.dynamic_viscosity, w.kinematic_viscosity
         ),
-        OutputFormat::Table => format!(
+        OutputFormat::Table | OutputFormat::Parquet => format!(
             "water at {temperature} deg C and 101.325 kPa\n  density              {:.4} kg/m3 (IAPWS-IF97)\n  \
              dynamic viscosity    {:.6e} Pa s (IAPWS 2008)\n  kinematic viscosity  {:.6e} m2/s\n",
             w.density, w.dynamic_viscosity, w.kinematic_viscosity
@@ -456,6 +730,10 @@ fn water_properties(temperature: f64, format: OutputFormat) -> ExitCode {
 }
 
 fn friction(re: f64, rr: f64, format: OutputFormat) -> ExitCode {
+    if format == OutputFormat::Parquet {
+        eprintln!("error: --format parquet is for the results of solve and simulate; use table, json or csv");
+        return ExitCode::from(EXIT_INVALID);
+    }
     if !(re.is_finite() && re > 0.0) {
         eprintln!("error: --reynolds must be a positive number, found {re}");
         return ExitCode::from(EXIT_INVALID);
@@ -479,7 +757,9 @@ fn friction(re: f64, rr: f64, format: OutputFormat) -> ExitCode {
                 + "\n"
         }
         OutputFormat::Csv => format!("reynolds,relative_roughness,friction_factor\n{re},{rr},{f}\n"),
-        OutputFormat::Table => format!("Darcy friction factor f = {f:.6} at Re = {re}, e/D = {rr}: {regime}\n"),
+        OutputFormat::Table | OutputFormat::Parquet => {
+            format!("Darcy friction factor f = {f:.6} at Re = {re}, e/D = {rr}: {regime}\n")
+        }
     };
     write_out(&text, None)
 }
