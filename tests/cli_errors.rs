@@ -689,31 +689,37 @@ fn assert_close(a: f64, b: f64, what: &str) {
     assert!((a - b).abs() <= 1e-14 * a.abs().max(b.abs()), "{a} vs {b}: {what}");
 }
 
+/// The CSV carries every table one value a row (`table,id,quantity,value,unit`), with the JSON
+/// output's numbers at seven significant digits.
 #[test]
 fn csv_output() {
     let (_, json) = solve_file("csv_output", "model.toml", BASE.as_bytes(), &["--format", "json"]);
     let doc: Value = serde_json::from_str(&json.stdout).expect("JSON");
     let (_, run) = solve_file("csv_output", "model.toml", BASE.as_bytes(), &["--format", "csv"]);
     assert_eq!(run.code, Some(0), "{}", run.stderr);
-    let mut sections = run.stdout.split("\n\n");
-    let node_rows: Vec<&str> = sections.next().expect("node section").lines().collect();
-    let link_rows: Vec<&str> = sections.next().expect("link section").lines().collect();
-    assert_eq!(node_rows[0], "node,kind,elevation_m,head_m,pressure_m,demand_L/s");
-    assert_eq!(link_rows[0], "link,kind,from,to,flow_L/s,velocity_m/s,headloss_m,status");
-    assert_eq!(node_rows.len(), 4);
-    assert_eq!(link_rows.len(), 4);
-    // The CSV carries the same numbers as the JSON output.
-    for row in &node_rows[1..] {
-        let cells: Vec<&str> = row.split(',').collect();
-        let node = by_id(doc["nodes"].as_array().expect("nodes"), cells[0]);
-        assert_close(cells[3].parse::<f64>().expect("head"), number(node, "head"), row);
+    let mut lines = run.stdout.lines();
+    assert_eq!(lines.next(), Some("table,id,quantity,value,unit"));
+    let rows: Vec<Vec<&str>> = lines.map(|l| l.split(',').collect()).collect();
+    let seven_digits = |a: f64, b: f64, what: &[&str]| {
+        assert!((a - b).abs() <= 5e-7 * b.abs(), "{a} vs {b}: {what:?}");
+    };
+    let heads: Vec<&Vec<&str>> = rows.iter().filter(|r| r[0] == "nodes" && r[2] == "head").collect();
+    assert_eq!(heads.len(), 3);
+    for row in heads {
+        assert_eq!(row[4], "m");
+        let node = by_id(doc["nodes"].as_array().expect("nodes"), row[1]);
+        seven_digits(row[3].parse::<f64>().expect("head"), number(node, "head"), row);
     }
-    for row in &link_rows[1..] {
-        let cells: Vec<&str> = row.split(',').collect();
-        let link = by_id(doc["links"].as_array().expect("links"), cells[0]);
-        assert_close(cells[4].parse::<f64>().expect("flow"), number(link, "flow"), row);
-        assert_eq!(cells[7], "open");
+    let flows: Vec<&Vec<&str>> = rows.iter().filter(|r| r[0] == "links" && r[2] == "flow").collect();
+    assert_eq!(flows.len(), 3);
+    for row in flows {
+        assert_eq!(row[4], "L/s");
+        let link = by_id(doc["links"].as_array().expect("links"), row[1]);
+        seven_digits(row[3].parse::<f64>().expect("flow"), number(link, "flow"), row);
+        let status = rows.iter().find(|r| r[0] == "links" && r[1] == row[1] && r[2] == "status").expect("status");
+        assert_eq!(status[3], "open");
     }
+    assert!(rows.iter().any(|r| r[0] == "summary" && r[2] == "total_demand"));
 }
 
 #[test]
