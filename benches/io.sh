@@ -19,17 +19,21 @@ mkdir -p "$WORK"
 [ -x "$BIN" ] || { echo "build first: cargo build --release" >&2; exit 1; }
 [ -x /usr/bin/time ] || { echo "needs GNU time (/usr/bin/time)" >&2; exit 1; }
 
-# least wall time (s) and its peak memory (MB) of REPEAT runs of a command
+# least wall time (s), least processor time (user + system, s) and the peak memory (MB) of
+# REPEAT runs of a command. On a shared machine the processor time is the steadier figure.
 measure() {
   local label="$1"; shift
-  local best="" mem=""
+  local best="" cpu="" mem=""
   for _ in $(seq "$REPEAT"); do
-    /usr/bin/time -f "%e %M" -o "$WORK/time.txt" "$@" > "$WORK/stdout.txt" 2> "$WORK/stderr.txt" || {
+    /usr/bin/time -f "%e %M %U %S" -o "$WORK/time.txt" "$@" > "$WORK/stdout.txt" 2> "$WORK/stderr.txt" || {
       echo "failed: $*" >&2; cat "$WORK/stderr.txt" >&2; return 1; }
-    read -r wall kib < "$WORK/time.txt"
-    if [ -z "$best" ] || awk "BEGIN{exit !($wall < $best)}"; then best=$wall; mem=$kib; fi
+    read -r wall kib user sys < "$WORK/time.txt"
+    local c; c=$(awk "BEGIN{print $user + $sys}")
+    if [ -z "$best" ] || awk "BEGIN{exit !($wall < $best)}"; then best=$wall; fi
+    if [ -z "$cpu" ] || awk "BEGIN{exit !($c < $cpu)}"; then cpu=$c; fi
+    mem=$kib
   done
-  printf '%-58s %8.3f s %9.1f MB\n' "$label" "$best" "$(awk "BEGIN{print $mem*1.024/1000}")"
+  printf '%-58s wall %8.3f s  cpu %8.3f s %9.1f MB\n' "$label" "$best" "$cpu" "$(awk "BEGIN{print $mem*1.024/1000}")"
 }
 
 # the --timings line of one phase, ms (least of REPEAT runs)

@@ -97,7 +97,7 @@ fn criterion_text(run: &Run<'_>, c: &CheckResult) -> String {
 
 /// What a criterion counts, in the singular or the plural to agree with `count` ("1 junction",
 /// "2 junctions", "1 pipe carrying flow").
-fn what_checked(c: &CheckResult, count: usize) -> &'static str {
+pub(crate) fn what_checked(c: &CheckResult, count: usize) -> &'static str {
     let (one, many) = match c.name.as_str() {
         "must_converge" => ("solve", "solves"),
         "all_demands_supplied" => ("junction with a demand", "junctions with a demand"),
@@ -105,6 +105,9 @@ fn what_checked(c: &CheckResult, count: usize) -> &'static str {
         "max_headloss" => ("pipe carrying flow", "pipes carrying flow"),
         "min_supply_margin" => ("source with a capacity", "sources with a capacity"),
         "min_tank_reserve" => ("tank", "tanks"),
+        n if n.starts_with("max_age") || n.starts_with("min_residual") => {
+            ("junction over the run", "junctions over the run")
+        }
         n if n.starts_with("warnings.") => ("warning", "warnings"),
         _ => ("junction", "junctions"),
     };
@@ -120,10 +123,13 @@ fn finding_text(run: &Run<'_>, c: &CheckResult, f: &Finding) -> String {
         if c.name == "all_demands_supplied" {
             return format!("{:<24} {} not supplied", f.element.to_string(), run.value(Quantity::Flow, f.value));
         }
-        return format!("{}: {d}", f.element);
+        if !f.value.is_finite() {
+            return format!("{}: {d}", f.element);
+        }
     }
+    let when = f.detail.as_deref().map(|d| format!(" {d}")).unwrap_or_default();
     format!(
-        "{:<24} {:>14}  (limit {}, off by {})",
+        "{:<24} {:>14}  (limit {}, off by {}){when}",
         f.element.to_string(),
         run.value(c.quantity, f.value),
         run.value(c.quantity, f.limit),

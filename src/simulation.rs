@@ -1,10 +1,14 @@
 //! Writers of simulation results: a readable summary, JSON (summary, events and the reported
 //! time series) and CSV (the time series, one value a row), all in the model's own units. The
-//! series writers ([`SeriesWriter`]) take the reported states one by one as the run makes them.
+//! series writers ([`SeriesWriter`]) take the reported states one by one as the run makes them;
+//! a run with water quality is written whole by [`RunReport::to_json`] and
+//! [`RunReport::to_csv`].
 
 use crate::columnar::{self, Column, Table};
 use crate::csv;
+use ringmain_core::analysis::CheckResult;
 use ringmain_core::model::time::{format_clock, format_duration, DAY};
+use ringmain_core::quality::QualityRun;
 use ringmain_core::simulate::{Run, Snapshot};
 use ringmain_core::{Model, NodeKind};
 use serde::{Serialize, Serializer};
@@ -18,9 +22,13 @@ pub struct RunReport<'a> {
     pub model: &'a Model,
     pub run: &'a Run,
     density: f64,
+    /// The water-quality results, when the model has constituents.
+    pub quality: Option<&'a QualityRun>,
+    /// Criteria checked over the run (water quality).
+    pub checks: Vec<CheckResult>,
 }
 
-fn finite_or_null(v: f64) -> Value {
+pub(crate) fn finite_or_null(v: f64) -> Value {
     if v.is_finite() {
         json!(v)
     } else {
@@ -28,9 +36,15 @@ fn finite_or_null(v: f64) -> Value {
     }
 }
 
+/// A text cell of CSV, quoted when needed and neutralised against formula injection (see
+/// [`crate::csv::text`]).
+pub(crate) fn csv_field(text: &str) -> String {
+    csv::text(text).into_owned()
+}
+
 impl<'a> RunReport<'a> {
     pub fn new(model: &'a Model, run: &'a Run) -> Self {
-        RunReport { model, run, density: model.options.water_properties().density }
+        RunReport { model, run, density: model.options.water_properties().density, quality: None, checks: Vec::new() }
     }
 
     pub fn len(&self, v: f64) -> f64 {
@@ -182,11 +196,167 @@ impl<'a> RunReport<'a> {
         for e in &r.events {
             let _ = writeln!(out, "  {}  {}", self.when(e.time), e.describe(m));
         }
+        crate::quality_report::table(self, &mut out);
         let _ = writeln!(
             out,
             "\nResults are only as good as the model and its data; designs must be checked by a licensed engineer \
              against local codes and the utility's standards."
         );
+        out
+    }
+
+    pub fn to_json(&self) -> Value {
+        let m = self.model;
+        let r = self.run;
+        let u = &m.units;
+        let tanks: Vec<Value> = r
+            .tank_summary
+            .iter()
+            .enumerate()
+            .map(|(j, s)| {
+                json!({
+                    "id": self.tank_id(j),
+                    "min_level": self.len(s.min_level.0), "min_level_time_s": s.min_level.1,
+                    "max_level": self.len(s.max_level.0), "max_level_time_s": s.max_level.1,
+                    "start_level": self.len(s.start_level), "end_level": self.len(s.end_level),
+                    "hours_full": s.time_full / 3600.0, "hours_empty": s.time_empty / 3600.0,
+                })
+            })
+            .collect();
+        let pumps: Vec<Value> = r
+            .pump_summary
+            .iter()
+            .enumerate()
+            .map(|(i, p)| {
+                json!({
+                    "id": self.pump_id(i), "hours": p.hours(), "starts": p.starts,
+                    "volume": self.volume(p.volume), "energy_kwh": p.kwh(), "cost": p.cost,
+                    "peak_power_kw": p.peak_power / 1e3,
+                    "mean_efficiency": finite_or_null(p.mean_efficiency() * 100.0),
+                    "kwh_per_m3": finite_or_null(p.kwh_per_m3()),
+                })
+            })
+            .collect();
+        let b = &r.balance;
+        let series: Vec<Value> = r
+            .series
+            .iter()
+            .map(|s| {
+                let rec = self.quality.and_then(|q| q.at(s.time));
+                let mut entry = json!({
+                    "time_s": s.time,
+                    "clock": format_clock(r.start_clock + s.time),
+                    "price": s.price,
+                    "tanks": (0..r.tanks.len()).map(|j| json!({
+                        "id": self.tank_id(j), "level": self.len(s.level[j]),
+                        "volume": self.volume(s.volume[j]), "state": s.tank_state[j],
+                    })).collect::<Vec<_>>(),
+                    "pumps": (0..r.pumps.len()).map(|i| json!({
+                        "id": self.pump_id(i), "flow": self.flow(s.flow[r.pumps[i]]),
+                        "speed": s.pump_speed[i], "shaft_power_kw": s.pump_power[i] / 1e3,
+                        "status": s.status[r.pumps[i]],
+                    })).collect::<Vec<_>>(),
+                    "nodes": m.nodes().iter().enumerate().map(|(i, n)| json!({
+                        "id": n.id, "head": finite_or_null(self.len(s.head[i])),
+                        "pressure": finite_or_null(self.pressure(s.pressure[i])), "demand": self.flow(s.demand[i]),
+                    })).collect::<Vec<_>>(),
+                    "links": m.links().iter().enumerate().map(|(k, l)| json!({
+                        "id": l.id, "flow": self.flow(s.flow[k]), "status": s.status[k],
+                    })).collect::<Vec<_>>(),
+                });
+                if let (Some(q), Some(rec)) = (self.quality, rec) {
+                    crate::quality_report::add_to_series(q, rec, &mut entry);
+                }
+                entry
+            })
+            .collect();
+        let mut doc = json!({
+            "title": m.title,
+            "units": {
+                "length": u.length.label(), "flow": u.flow.label(), "pressure": u.pressure.label(),
+                "volume": self.volume_label(), "energy": "kWh", "currency": self.currency(),
+            },
+            "start_clock": format_clock(r.start_clock),
+            "duration_s": r.duration,
+            "summary": {
+                "tanks": tanks,
+                "pumps": pumps,
+                "lowest_pressure": r.lowest_pressure.map(|(n, p, t)| json!({
+                    "node": m.nodes()[n].id, "pressure": self.pressure(p), "time_s": t,
+                })),
+                "volume_balance": {
+                    "supplied": self.volume(b.supplied), "delivered": self.volume(b.delivered),
+                    "storage_change": self.volume(b.storage_change), "discrepancy": self.volume(b.discrepancy()),
+                    "relative_discrepancy": b.relative_discrepancy(), "not_delivered": self.volume(b.unsupplied),
+                },
+                "statistics": {
+                    "steps": r.statistics.steps, "rejected": r.statistics.rejected,
+                    "locating": r.statistics.locating, "hydraulic_solves": r.statistics.solves,
+                },
+            },
+            "events": r.events.iter().map(|e| json!({
+                "time_s": e.time, "clock": format_clock(r.start_clock + e.time), "what": e.describe(m),
+            })).collect::<Vec<_>>(),
+            "series": series,
+        });
+        crate::quality_report::add_to_json(self, &mut doc);
+        doc
+    }
+
+    /// The time series, one value a row: `time_h,clock,kind,id,quantity,value,unit`.
+    pub fn to_csv(&self) -> String {
+        let m = self.model;
+        let r = self.run;
+        let u = &m.units;
+        let mut out = String::from("time_h,clock,kind,id,quantity,value,unit\n");
+        let cell = csv::number;
+        for s in &r.series {
+            let head = format!("{},{}", s.time / 3600.0, format_clock(r.start_clock + s.time));
+            let mut row = |kind: &str, id: &str, q: &str, v: String, unit: &str| {
+                let _ = writeln!(out, "{head},{kind},{},{q},{v},{unit}", csv_field(id));
+            };
+            for j in 0..r.tanks.len() {
+                row("tank", self.tank_id(j), "level", cell(self.len(s.level[j])), u.length.label());
+                row("tank", self.tank_id(j), "volume", cell(self.volume(s.volume[j])), &self.volume_label());
+            }
+            for i in 0..r.pumps.len() {
+                row("pump", self.pump_id(i), "speed", cell(s.pump_speed[i]), "");
+                row("pump", self.pump_id(i), "shaft_power", cell(s.pump_power[i] / 1e3), "kW");
+            }
+            for (i, n) in m.nodes().iter().enumerate() {
+                row("node", &n.id, "head", cell(self.len(s.head[i])), u.length.label());
+                row("node", &n.id, "pressure", cell(self.pressure(s.pressure[i])), u.pressure.label());
+                row("node", &n.id, "demand", cell(self.flow(s.demand[i])), u.flow.label());
+            }
+            for (k, l) in m.links().iter().enumerate() {
+                row("link", &l.id, "flow", cell(self.flow(s.flow[k])), u.flow.label());
+                row("link", &l.id, "status", s.status[k].to_owned(), "");
+            }
+            if let Some((q, rec)) = self.quality.and_then(|q| q.at(s.time).map(|r| (q, r))) {
+                for (c, con) in q.constituents.iter().enumerate() {
+                    let scale = con.report_scale();
+                    for (i, n) in m.nodes().iter().enumerate() {
+                        row(
+                            "node",
+                            &n.id,
+                            &csv_field(&con.id),
+                            cell(rec.node[c][i] * scale),
+                            &csv_field(con.report_unit()),
+                        );
+                    }
+                    for (k, l) in m.links().iter().enumerate() {
+                        row(
+                            "link",
+                            &l.id,
+                            &csv_field(&con.id),
+                            cell(rec.link[c][k] * scale),
+                            &csv_field(con.report_unit()),
+                        );
+                    }
+                }
+            }
+            row("energy", "", "price", cell(s.price), &format!("{}/kWh", self.currency()));
+        }
         out
     }
 
@@ -224,7 +394,7 @@ impl<'a> RunReport<'a> {
             })
             .collect();
         let b = &r.balance;
-        json!({
+        let mut doc = json!({
             "summary": {
                 "tanks": tanks,
                 "pumps": pumps,
@@ -244,7 +414,9 @@ impl<'a> RunReport<'a> {
             "events": r.events.iter().map(|e| json!({
                 "time_s": e.time, "clock": format_clock(r.start_clock + e.time), "what": e.describe(m),
             })).collect::<Vec<_>>(),
-        })
+        });
+        crate::quality_report::add_to_json(self, &mut doc);
+        doc
     }
 }
 

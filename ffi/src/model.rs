@@ -1099,6 +1099,8 @@ fn pump(drive: PumpDrive, speed: f64) -> LinkKind {
         efficiency_points: None,
         efficiency: Efficiency::Constant(Efficiency::DEFAULT),
         speed,
+        elevation: None,
+        npsh_required: None,
     }))
 }
 
