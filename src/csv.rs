@@ -31,10 +31,11 @@ pub fn text(value: &str) -> Cow<'_, str> {
     }
 }
 
-/// Appends a number cell to `out`: at most [`DIGITS`] significant digits, in the shortest form
-/// that reads back to the rounded value (no trailing zeros, no exponent for ordinary
-/// magnitudes); nothing for a value that is not finite (an empty cell is a missing value to every
-/// spreadsheet and data-frame reader).
+/// Appends a number cell to `out`: at most [`DIGITS`] significant digits, trailing zeros
+/// dropped; between 10⁻⁴ and 10⁷ in plain decimals, otherwise in exponent form (`1.5e-7`);
+/// nothing for a value that is not finite (an empty cell is a missing value to every
+/// spreadsheet and data-frame reader). One formatting call a number: series of millions of
+/// values are written at close to the speed of the simulation.
 pub fn push_number(out: &mut String, v: f64) {
     if !v.is_finite() {
         return;
@@ -43,16 +44,29 @@ pub fn push_number(out: &mut String, v: f64) {
         out.push('0');
         return;
     }
-    // Round to DIGITS significant digits through the exact decimal exponent form, then print the
-    // rounded value in Rust's shortest round-trip form.
-    let mut rounded = String::with_capacity(24);
-    let _ = write!(rounded, "{:.*e}", DIGITS - 1, v);
-    let r: f64 = rounded.parse().unwrap_or(v);
-    let magnitude = r.abs();
-    if (1e-4..1e15).contains(&magnitude) {
-        let _ = write!(out, "{r}");
+    let magnitude = v.abs().log10().floor() as i32;
+    let start = out.len();
+    if (-4..7).contains(&magnitude) {
+        let decimals = (DIGITS as i32 - 1 - magnitude).max(0) as usize;
+        let _ = write!(out, "{v:.decimals$}");
+        if decimals > 0 {
+            let kept = out.trim_end_matches('0').trim_end_matches('.').len();
+            out.truncate(kept);
+        }
     } else {
-        let _ = write!(out, "{r:e}");
+        let _ = write!(out, "{:.*e}", DIGITS - 1, v);
+        if let Some(e) = out[start..].find('e').map(|e| start + e) {
+            let exponent = out[e..].to_owned();
+            let kept = out[..e].trim_end_matches('0').trim_end_matches('.').len();
+            out.truncate(kept);
+            out.push_str(&exponent);
+        }
+    }
+    // A value that rounds to zero in the last kept digit keeps no sign ("-0" is not a number
+    // spreadsheets show).
+    if &out[start..] == "-0" {
+        out.truncate(start);
+        out.push('0');
     }
 }
 
@@ -89,12 +103,15 @@ mod tests {
         assert_eq!(number(0.1 + 0.2), "0.3");
         assert_eq!(number(-55.616), "-55.616");
         assert_eq!(number(1e-7), "1e-7");
-        assert_eq!(number(123456789.0), "123456800");
+        assert_eq!(number(123456789.0), "1.234568e8");
+        assert_eq!(number(9.99999999), "10");
+        assert_eq!(number(-0.000123456789), "-0.0001234568");
+        assert_eq!(number(1234567.0), "1234567");
         assert_eq!(number(0.0), "0");
         assert_eq!(number(f64::NAN), "");
         assert_eq!(number(f64::INFINITY), "");
         // Every rounded value reads back within half a unit of the seventh digit.
-        for v in [3.141592653589793, 1234.5678901, 9.99999999e-3, 6.02214076e23] {
+        for v in [std::f64::consts::PI, 1234.5678901, 9.99999999e-3, 6.02214076e23] {
             let back: f64 = number(v).parse().unwrap();
             assert!(((back - v) / v).abs() <= 5e-7, "{v} -> {back}");
         }

@@ -499,7 +499,7 @@ impl<'a, W: Write> JsonSeries<'a, W> {
         });
         let text = serde_json::to_string(&head)?;
         // The object without its closing brace, then the series.
-        out.write_all(text[..text.len() - 1].as_bytes())?;
+        out.write_all(&text.as_bytes()[..text.len() - 1])?;
         out.write_all(b",\"series\":[")?;
         let (tanks, pumps) = units.tanks_and_pumps();
         Ok(JsonSeries { out, units, tanks, pumps, first: true })
@@ -628,7 +628,7 @@ impl<W: Write> SeriesWriter for JsonSeries<'_, W> {
         let tail = serde_json::to_string(&report.json_tail())?;
         self.out.write_all(b"\n],")?;
         // The tail object's members, without its braces.
-        self.out.write_all(tail[1..].as_bytes())?;
+        self.out.write_all(&tail.as_bytes()[1..])?;
         self.out.write_all(b"\n")?;
         self.out.flush()
     }

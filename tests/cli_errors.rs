@@ -683,12 +683,6 @@ fn json_input_gives_the_same_results_as_toml() {
     assert_eq!(toml_run.stdout, json_run.stdout);
 }
 
-/// Equal to a few units in the last place: serde_json's default number parser is not correctly
-/// rounded, so a value read back from the JSON output may differ from the CSV's by one ulp.
-fn assert_close(a: f64, b: f64, what: &str) {
-    assert!((a - b).abs() <= 1e-14 * a.abs().max(b.abs()), "{a} vs {b}: {what}");
-}
-
 /// The CSV carries every table one value a row (`table,id,quantity,value,unit`), with the JSON
 /// output's numbers at seven significant digits.
 #[test]
