@@ -15,10 +15,11 @@ use ringmain_core::analysis::{
     warning_checks, what_if_model, CheckOptions, Criteria, Scenario,
 };
 use ringmain_core::model::doc::{self, Value};
-use ringmain_core::{Format, ModelError, SolveError, SolveOptions, Solver};
+use ringmain_core::{Format, ModelError, NodeKind, SolveError, SolveOptions, Solver};
 use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
+use std::sync::atomic::{AtomicU64, Ordering};
 use std::time::Instant;
 
 /// Exit codes of `check` (documented in `--help` and docs/check.md).
@@ -51,11 +52,51 @@ pub struct SourceText {
     pub format: Format,
 }
 
+/// Largest input file read, bytes (`--max-input-mb`; default [`DEFAULT_MAX_INPUT_MB`]).
+static MAX_INPUT: AtomicU64 = AtomicU64::new(DEFAULT_MAX_INPUT_MB * 1_000_000);
+
+/// The default input size limit, MB (10⁶ bytes): four times the JSON model of a million
+/// junctions (330 MB), far beyond any real network's model, and a bound on what a wrong path (a
+/// device, a pipe that never ends, a disk image) can make the program read.
+pub const DEFAULT_MAX_INPUT_MB: u64 = 2000;
+
+/// Sets the input size limit, MB (fractions allowed).
+pub fn set_max_input_mb(mb: f64) {
+    MAX_INPUT.store((mb * 1e6).clamp(0.0, u64::MAX as f64) as u64, Ordering::Relaxed);
+}
+
+fn too_large(name: &str) -> ModelError {
+    let limit = MAX_INPUT.load(Ordering::Relaxed) as f64 / 1e6;
+    ModelError::new(format!(
+        "the file is larger than the input limit of {limit} MB; raise it with --max-input-mb if the file is \
+         really a model"
+    ))
+    .in_file(name)
+}
+
+/// Reads a whole file, at most the input limit: a larger file, or an endless stream (a device,
+/// a pipe), is an error naming the file and the limit, without reading past the limit.
+fn read_bounded(path: &Path, name: &str) -> Result<Vec<u8>, ModelError> {
+    use std::io::Read;
+    let cannot = |e: std::io::Error| ModelError::new(format!("cannot read the file: {e}")).in_file(name);
+    let limit = MAX_INPUT.load(Ordering::Relaxed);
+    let file = std::fs::File::open(path).map_err(cannot)?;
+    let known = file.metadata().ok().filter(|m| m.is_file()).map(|m| m.len());
+    if known.is_some_and(|len| len > limit) {
+        return Err(too_large(name));
+    }
+    let mut bytes = Vec::with_capacity(known.unwrap_or(0).min(limit) as usize);
+    file.take(limit.saturating_add(1)).read_to_end(&mut bytes).map_err(cannot)?;
+    if bytes.len() as u64 > limit {
+        return Err(too_large(name));
+    }
+    Ok(bytes)
+}
+
 /// Reads a file; errors name it. The text is not kept (see [`SourceText`]).
 pub fn read_source(path: &Path) -> Result<(SourceText, Vec<u8>), ModelError> {
     let name = path.display().to_string();
-    let bytes =
-        std::fs::read(path).map_err(|e| ModelError::new(format!("cannot read the file: {e}")).in_file(&name))?;
+    let bytes = read_bounded(path, &name)?;
     let format = Format::from_path(path).unwrap_or_else(|| Format::sniff(&String::from_utf8_lossy(&bytes)));
     Ok((SourceText { name, path: path.to_owned(), text: None, format }, bytes))
 }
@@ -70,12 +111,18 @@ const STREAM_ABOVE_BYTES: u64 = 64 << 20;
 /// a text in memory is about twice as fast as parsing from a file, so smaller files are read so.)
 pub fn read_model(path: &Path) -> Result<(ringmain_core::Model, SourceText), (ModelError, Option<SourceText>)> {
     let name = path.display().to_string();
-    let large = std::fs::metadata(path).is_ok_and(|m| m.len() > STREAM_ABOVE_BYTES);
+    let limit = MAX_INPUT.load(Ordering::Relaxed);
+    let large = std::fs::metadata(path).is_ok_and(|m| m.is_file() && m.len() > STREAM_ABOVE_BYTES && m.len() <= limit);
     if large && Format::from_path(path) == Some(Format::Json) {
-        if let Ok(file) = std::fs::File::open(path) {
-            if let Some(model) = ringmain_core::model::file::read_json_stream(file) {
-                return Ok((model, SourceText { name, path: path.to_owned(), text: None, format: Format::Json }));
-            }
+        // First line by line (the layout ringmain writes: each line parsed from memory), then
+        // in one pass from the file (any layout, keys in reading order).
+        let lines = std::fs::File::open(path)
+            .ok()
+            .and_then(|f| ringmain_core::model::file::read_json_lines(std::io::BufReader::with_capacity(1 << 20, f)));
+        let model =
+            lines.or_else(|| std::fs::File::open(path).ok().and_then(ringmain_core::model::file::read_json_stream));
+        if let Some(model) = model {
+            return Ok((model, SourceText { name, path: path.to_owned(), text: None, format: Format::Json }));
         }
     }
     let (source, bytes) = read_source(path).map_err(|e| (e, None))?;
@@ -131,6 +178,11 @@ fn read_criteria_file(path: &Path) -> Result<(SourceText, Value), (ModelError, O
         other => other,
     };
     Ok((source, value))
+}
+
+/// The file whose criteria are in force for a note (the criteria file when one is given).
+fn criteria_source_name(args: &Args, model_name: &str) -> String {
+    args.criteria.as_ref().map_or(model_name.to_owned(), |p| p.display().to_string())
 }
 
 fn exit(code: u8) -> ExitCode {
@@ -215,9 +267,24 @@ pub fn run(args: Args) -> ExitCode {
     let mut warnings = diagnose_model(&what_if);
     let mut notes = Vec::new();
     for g in &criteria.groups {
-        if !what_if.nodes().iter().any(|n| g.selects(&n.id, n.zone.as_deref())) {
-            notes.push(format!("criteria group '{}' selects no node of this model", g.name));
-        }
+        let selected = what_if.nodes().iter().filter(|n| g.selects(&n.id, n.zone.as_deref()));
+        let (nodes, junctions) =
+            selected.fold((0, 0), |(a, b), n| (a + 1, b + usize::from(matches!(n.kind, NodeKind::Junction { .. }))));
+        let note = if nodes == 0 {
+            format!("criteria group '{}' selects no node of this model", g.name)
+        } else if junctions == 0 {
+            format!(
+                "criteria group '{}' selects no junction of this model ({nodes} {} with a fixed head only): its \
+                 pressure limits check nothing",
+                g.name,
+                if nodes == 1 { "node" } else { "nodes" }
+            )
+        } else {
+            continue;
+        };
+        // A group that checks nothing is almost always a typing mistake in its zone or ids.
+        eprintln!("warning: {}: {note}", criteria_source_name(&args, &model_source.name));
+        notes.push(note);
     }
     let mut solver = match Solver::new(&what_if) {
         Ok(s) => s,

@@ -95,17 +95,26 @@ fn criterion_text(run: &Run<'_>, c: &CheckResult) -> String {
     }
 }
 
-fn what_checked(c: &CheckResult) -> &'static str {
-    match c.name.as_str() {
-        "must_converge" => "solve",
-        "all_demands_supplied" => "junctions with a demand",
-        "max_velocity" => "links carrying flow",
-        "max_headloss" => "pipes carrying flow",
-        "min_supply_margin" => "sources with a capacity",
-        "min_tank_reserve" => "tanks",
-        n if n.starts_with("max_age") || n.starts_with("min_residual") => "junctions over the run",
-        n if n.starts_with("warnings.") => "warnings",
-        _ => "junctions",
+/// What a criterion counts, in the singular or the plural to agree with `count` ("1 junction",
+/// "2 junctions", "1 pipe carrying flow").
+pub(crate) fn what_checked(c: &CheckResult, count: usize) -> &'static str {
+    let (one, many) = match c.name.as_str() {
+        "must_converge" => ("solve", "solves"),
+        "all_demands_supplied" => ("junction with a demand", "junctions with a demand"),
+        "max_velocity" => ("link carrying flow", "links carrying flow"),
+        "max_headloss" => ("pipe carrying flow", "pipes carrying flow"),
+        "min_supply_margin" => ("source with a capacity", "sources with a capacity"),
+        "min_tank_reserve" => ("tank", "tanks"),
+        n if n.starts_with("max_age") || n.starts_with("min_residual") => {
+            ("junction over the run", "junctions over the run")
+        }
+        n if n.starts_with("warnings.") => ("warning", "warnings"),
+        _ => ("junction", "junctions"),
+    };
+    if count == 1 {
+        one
+    } else {
+        many
     }
 }
 
@@ -132,7 +141,11 @@ fn finding_text(run: &Run<'_>, c: &CheckResult, f: &Finding) -> String {
 fn short_failure(run: &Run<'_>, c: &CheckResult) -> String {
     match (c.name.as_str(), c.worst.first()) {
         ("must_converge", Some(f)) => format!("did not solve: {}", f.detail.as_deref().unwrap_or("")),
-        ("all_demands_supplied", _) => format!("all_demands_supplied ({} junctions cut off)", c.failures),
+        ("all_demands_supplied", _) => format!(
+            "all_demands_supplied ({} {} cut off)",
+            c.failures,
+            if c.failures == 1 { "junction" } else { "junctions" }
+        ),
         (_, Some(f)) if f.value.is_finite() => {
             format!(
                 "{} ({} of {}, worst {} {})",
@@ -162,7 +175,14 @@ fn outcome_section(out: &mut String, run: &Run<'_>, o: &Outcome) {
         let _ = writeln!(out, "  note: no usable answer (must_converge = false): {e}");
     }
     for c in o.checks.iter().filter(|c| !c.passed()) {
-        let _ = writeln!(out, "  FAIL {}: {} of {} {}", criterion_text(run, c), c.failures, c.checked, what_checked(c));
+        let _ = writeln!(
+            out,
+            "  FAIL {}: {} of {} {}",
+            criterion_text(run, c),
+            c.failures,
+            c.checked,
+            what_checked(c, c.checked)
+        );
         for f in &c.worst {
             let _ = writeln!(out, "       {}", finding_text(run, c, f));
         }
@@ -171,7 +191,7 @@ fn outcome_section(out: &mut String, run: &Run<'_>, o: &Outcome) {
         }
     }
     for c in o.checks.iter().filter(|c| c.passed()) {
-        let _ = writeln!(out, "  pass {} ({} {})", criterion_text(run, c), c.checked, what_checked(c));
+        let _ = writeln!(out, "  pass {} ({} {})", criterion_text(run, c), c.checked, what_checked(c, c.checked));
     }
 }
 
@@ -403,7 +423,8 @@ fn testcase(out: &mut String, run: &Run<'_>, class: &str, c: &CheckResult) {
         return;
     }
     let first = c.worst.first().map(|f| format!("; worst {}", f.element)).unwrap_or_default();
-    let message = format!("{}: {} of {} {}{first}", criterion_text(run, c), c.failures, c.checked, what_checked(c));
+    let message =
+        format!("{}: {} of {} {}{first}", criterion_text(run, c), c.failures, c.checked, what_checked(c, c.checked));
     let _ = writeln!(out, ">\n      <failure type=\"{}\" message=\"{}\">", xml(&c.name), xml(&message));
     for f in &c.worst {
         let _ = writeln!(out, "{}", xml(&finding_text(run, c, f)));
@@ -412,6 +433,15 @@ fn testcase(out: &mut String, run: &Run<'_>, class: &str, c: &CheckResult) {
         let _ = writeln!(out, "... and {} more", c.failures - c.worst.len());
     }
     out.push_str("      </failure>\n    </testcase>\n");
+}
+
+/// A JUnit class name `<model>.<scenario>` with exactly one dot: CI viewers split class names
+/// at dots into packages, so the dots of a file name (`net.toml`) or of a scenario label
+/// (`demand x1.5`, a pipe id `P1.2`) become `_`, and a path keeps only its file name.
+fn junit_class(model_name: &str, scenario: &str) -> String {
+    let file = std::path::Path::new(model_name).file_name().map_or(model_name.into(), |f| f.to_string_lossy());
+    let part = |s: &str| s.replace('.', "_");
+    format!("{}.{}", part(&file), part(scenario))
 }
 
 /// The JUnit XML report: a test suite for the scenario and one for the sweep, one test case per
@@ -430,7 +460,7 @@ pub fn to_junit(run: &Run<'_>) -> String {
         }
         suites.push_str("  </testsuite>\n");
     };
-    let base_class = format!("{}.{}", run.model_name, run.scenario_label());
+    let base_class = junit_class(run.model_name, &run.scenario_label());
     suite(
         format!("{}: {}", run.model_name, run.scenario_label()),
         run.base.checks.iter().map(|c| (base_class.clone(), c)).collect(),
@@ -439,7 +469,7 @@ pub fn to_junit(run: &Run<'_>) -> String {
         let cases: Vec<(String, &CheckResult)> = sweep
             .iter()
             .flat_map(|(k, o)| {
-                let class = format!("{}.{}", run.model_name, run.closed_label(*k));
+                let class = junit_class(run.model_name, &run.closed_label(*k));
                 o.checks.iter().map(move |c| (class.clone(), c))
             })
             .collect();

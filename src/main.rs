@@ -5,6 +5,8 @@
 
 mod check;
 mod check_report;
+mod columnar;
+mod csv;
 mod duty;
 mod gis;
 mod import_cmd;
@@ -35,6 +37,10 @@ use std::time::{Duration, Instant};
 struct Cli {
     #[command(subcommand)]
     command: Command,
+    /// Largest model or criteria file read, MB (10^6 bytes): a larger file, or an endless
+    /// stream, is refused with exit code 2.
+    #[arg(long, global = true, value_name = "MB", default_value_t = check::DEFAULT_MAX_INPUT_MB as f64)]
+    max_input_mb: f64,
 }
 
 #[derive(Subcommand)]
@@ -43,10 +49,13 @@ enum Command {
     Solve {
         /// The model file (.toml or .json).
         model: PathBuf,
-        /// Output format.
+        /// Output format: table; json; csv = every table (nodes, links, pumps, valves, summary)
+        /// one value a row, or one file per table when --output is a directory; parquet = one
+        /// file per table in the --output directory; geojson.
         #[arg(long, value_enum, default_value_t = OutputFormat::Table)]
         format: OutputFormat,
-        /// Write the results to this file instead of standard output.
+        /// Write the results to this file (a directory for parquet, or for CSV tables) instead
+        /// of standard output.
         #[arg(long, short)]
         output: Option<PathBuf>,
         /// Print to standard error where the time went: reading, analysis, assembly,
@@ -71,15 +80,24 @@ enum Command {
     },
     /// Simulate a model over time (its [simulation] table): tank levels, pump energy, pressures.
     ///
-    /// Prints a summary (or writes the time series as CSV or JSON) and, with --plot, SVG charts.
+    /// Prints a summary, or writes the time series as JSON, CSV or Parquet as the run goes (the
+    /// series is never held in memory, except with --plot, water quality or geojson); with
+    /// --output the summary is still printed, with a line naming the file written. With --plot,
+    /// SVG charts.
+    #[command(after_help = "A run whose estimated time exceeds 15 minutes (from its duration, the shorter of \
+                            hydraulic_step and report_interval, and the size of the network) is refused unless \
+                            --force is given. Exit codes: 0 simulated; 1 a water-quality criterion failed; 2 invalid \
+                            model, file or arguments, or a run too long without --force; 3 a hydraulic solve failed; \
+                            4 the results could not be written.")]
     Simulate {
         /// The model file (.toml or .json).
         model: PathBuf,
         /// Output format: table = summary and events; json = summary, events and time series;
-        /// csv = the time series, one value a row.
+        /// csv = the time series, one value a row; parquet = the time series as long tables
+        /// (nodes, links, tanks, pumps, series) in the directory given by --output; geojson.
         #[arg(long, value_enum, default_value_t = OutputFormat::Table)]
         format: OutputFormat,
-        /// Write the results to this file instead of standard output.
+        /// Write the results to this file (a directory for parquet) instead of standard output.
         #[arg(long, short)]
         output: Option<PathBuf>,
         /// Write SVG charts (tanks.svg, pumps.svg, pressures.svg, and quality-<id>.svg per
@@ -94,6 +112,9 @@ enum Command {
         /// file (TOML or JSON) whose keys override the model's [criteria]. Exit 1 when one fails.
         #[arg(long, value_name = "FILE")]
         criteria: Option<PathBuf>,
+        /// Run even when the estimated work is beyond the bound (see below).
+        #[arg(long)]
+        force: bool,
     },
     /// Build a model from GIS data: GeoJSON pipes (and points) with a fields file.
     ///
@@ -260,6 +281,8 @@ pub(crate) enum OutputFormat {
     Csv,
     /// A GeoJSON FeatureCollection of nodes and links with their results (solve, simulate).
     Geojson,
+    /// Apache Parquet, one file per table in the --output directory (solve, simulate).
+    Parquet,
 }
 
 pub(crate) const EXIT_INVALID: u8 = 2;
@@ -268,11 +291,16 @@ pub(crate) const EXIT_WRITE: u8 = 4;
 
 fn main() -> ExitCode {
     let cli = Cli::parse();
+    if !(cli.max_input_mb.is_finite() && cli.max_input_mb > 0.0) {
+        eprintln!("error: --max-input-mb must be a positive number of MB, found {}", cli.max_input_mb);
+        return ExitCode::from(EXIT_INVALID);
+    }
+    check::set_max_input_mb(cli.max_input_mb);
     match cli.command {
         Command::Solve { model, format, output, timings } => solve(&model, format, output.as_deref(), timings),
         Command::Generate { junctions, seed, output } => generate(junctions, seed, &output),
-        Command::Simulate { model, format, output, plot, at, criteria } => {
-            simulate(&model, format, output.as_deref(), plot.as_deref(), at.as_deref(), criteria.as_deref())
+        Command::Simulate { model, format, output, plot, at, criteria, force } => {
+            simulate(&model, format, output.as_deref(), plot.as_deref(), at.as_deref(), criteria.as_deref(), force)
         }
         Command::Import {
             pipes,
@@ -313,6 +341,13 @@ fn main() -> ExitCode {
             eprintln!("error: --format geojson applies to solve and simulate (results on a map)");
             ExitCode::from(EXIT_INVALID)
         }
+        Command::WaterProperties { format: OutputFormat::Parquet, .. }
+        | Command::FrictionFactor { format: OutputFormat::Parquet, .. }
+        | Command::Duty { format: OutputFormat::Parquet, .. }
+        | Command::Fittings { format: OutputFormat::Parquet } => {
+            eprintln!("error: --format parquet applies to solve and simulate; use table, json or csv");
+            ExitCode::from(EXIT_INVALID)
+        }
         Command::Duty { model, pump, flows, speeds, motor_margin, npsh_margin, tank_levels, format, plot } => {
             duty::run(duty::Args { model, pump, flows, speeds, motor_margin, npsh_margin, tank_levels, format, plot })
         }
@@ -324,16 +359,13 @@ fn main() -> ExitCode {
     }
 }
 
-/// Reads and checks a model file; errors are printed with a snippet of the file.
+/// Reads and checks a model file; errors are printed with a snippet of the file, as `check`
+/// prints them.
 ///
-/// The message is one line (scripts and the error tests read it); on a terminal a snippet of the
-/// offending line follows it. `check` always adds the snippet.
+/// The message is one line, always the first (scripts and the error tests read it); a snippet
+/// of the offending line follows it when the place can be found.
 pub(crate) fn load(path: &Path) -> Result<Model, ()> {
-    use std::io::IsTerminal;
-    let snippet = std::io::stderr().is_terminal();
-    check::read_model(path)
-        .map(|(model, _)| model)
-        .map_err(|(e, source)| check::report_error(&e, source.as_ref().filter(|_| snippet)))
+    check::read_model(path).map(|(model, _)| model).map_err(|(e, source)| check::report_error(&e, source.as_ref()))
 }
 
 /// Writes a short text to the file, or to standard output.
@@ -432,11 +464,34 @@ fn solve(path: &Path, format: OutputFormat, output: Option<&Path>, timings: bool
         return code;
     }
     let report = report::Report::new(&model, &solution);
-    let code = write_with("the results", output, |out| match format {
-        OutputFormat::Table => report.write_table(out),
-        OutputFormat::Json => report.write_json(out),
-        OutputFormat::Csv | OutputFormat::Geojson => report.write_csv(out),
-    });
+    let to_dir = |dir: &Path, write: &dyn Fn(&Path) -> std::io::Result<Vec<PathBuf>>| match columnar::output_dir(dir)
+        .and_then(|()| write(dir))
+    {
+        Ok(files) => {
+            let names: Vec<String> = files.iter().map(|f| f.display().to_string()).collect();
+            eprintln!("wrote {}", names.join(", "));
+            ExitCode::SUCCESS
+        }
+        Err(e) => {
+            eprintln!("error: cannot write the results to {}: {e}", dir.display());
+            ExitCode::from(EXIT_WRITE)
+        }
+    };
+    let code = match (format, output) {
+        (OutputFormat::Parquet, Some(dir)) => to_dir(dir, &|d| report.write_parquet(d)),
+        (OutputFormat::Parquet, None) => {
+            eprintln!("error: --format parquet writes one file per table: give the directory with --output DIR");
+            ExitCode::from(EXIT_INVALID)
+        }
+        // A directory (existing, or named with a trailing slash, or without an extension):
+        // one CSV file per table.
+        (OutputFormat::Csv, Some(dir)) if is_directory_output(dir) => to_dir(dir, &|d| report.write_csv_tables(d)),
+        _ => write_with("the results", output, |out| match format {
+            OutputFormat::Table => report.write_table(out),
+            OutputFormat::Json => report.write_json(out),
+            _ => report.write_csv(out),
+        }),
+    };
     let writing = clock.elapsed();
     if let (true, Some(solver)) = (timings, &solver) {
         print_timings(&model, solver, reading, writing);
@@ -470,6 +525,12 @@ fn print_warnings(warnings: &[ringmain_core::solve::Warning]) {
             None => eprintln!("warning: {}", w.message),
         }
     }
+}
+
+/// Whether an output path names a directory: one that exists, or a path ending in a slash, or
+/// a name without an extension.
+fn is_directory_output(path: &Path) -> bool {
+    path.is_dir() || path.as_os_str().to_string_lossy().ends_with('/') || path.extension().is_none()
 }
 
 /// The `--timings` report, on standard error.
@@ -543,16 +604,18 @@ fn generate(junctions: usize, seed: u64, output: &Path) -> ExitCode {
     code
 }
 
-/// A progress bar on standard error, drawn only when it is a terminal.
+/// A progress bar on standard error with the estimated time left, drawn only when standard
+/// error is a terminal.
 struct Progress {
     enabled: bool,
     shown: i64,
+    started: Instant,
 }
 
 impl Progress {
     fn new() -> Self {
         use std::io::IsTerminal;
-        Progress { enabled: std::io::stderr().is_terminal(), shown: -1 }
+        Progress { enabled: std::io::stderr().is_terminal(), shown: -1, started: Instant::now() }
     }
 
     fn update(&mut self, fraction: f64) {
@@ -565,12 +628,89 @@ impl Progress {
         }
         self.shown = percent;
         let filled = (percent / 4) as usize;
-        eprint!("\rsimulating [{}{}] {percent:>3}%", "#".repeat(filled), " ".repeat(25 - filled));
+        let elapsed = self.started.elapsed().as_secs_f64();
+        // The rate so far carried to the end: a fair guess once a few per cent are done.
+        let left = if fraction >= 0.02 {
+            format!("about {} left", short_duration(elapsed * (1.0 - fraction) / fraction))
+        } else {
+            "estimating...".to_owned()
+        };
+        eprint!("\rsimulating [{}{}] {percent:>3}%  {left:<20}", "#".repeat(filled), " ".repeat(25 - filled));
     }
 
     fn finish(&self) {
         if self.enabled && self.shown >= 0 {
-            eprint!("\r{}\r", " ".repeat(48));
+            eprint!("\r{}\r", " ".repeat(72));
+        }
+    }
+}
+
+/// "42 s", "3 min 10 s", "2 h 05 min".
+fn short_duration(seconds: f64) -> String {
+    let s = seconds.max(0.0).round() as u64;
+    if s < 60 {
+        format!("{s} s")
+    } else if s < 3600 {
+        format!("{} min {:02} s", s / 60, s % 60)
+    } else {
+        format!("{} h {:02} min", s / 3600, s % 3600 / 60)
+    }
+}
+
+/// A simulation's estimated run time, s, before it starts, from its length and the size of the
+/// network: at most one step per `min(hydraulic_step, report_interval)`, three hydraulic solves
+/// a step (the Runge–Kutta stages), each costing a fixed 5 µs plus 0.2 µs per node and link.
+/// The two costs were measured on this project's benchmark machine (benches/RESULTS.md, the
+/// simulation section): the 7-day run of the 10 000-junction network took 2.9 s for an
+/// estimate of 2.2 s. Pattern and control steps shorter than the hydraulic step are not
+/// counted, so the estimate is a lower bound of the order of the work, not a promise.
+fn estimated_run_time(model: &Model) -> Option<(f64, f64)> {
+    let sim = model.time.simulation?;
+    let step = sim.hydraulic_step.min(sim.report_interval).max(1e-3);
+    let steps = (sim.duration / step).ceil().max(1.0);
+    let elements = (model.nodes().len() + model.links().len()) as f64;
+    Some((steps * 3.0 * (5e-6 + 2e-7 * elements), steps))
+}
+
+/// Longest estimated run (s) that `simulate` starts without `--force`.
+const WORK_BOUND_SECONDS: f64 = 15.0 * 60.0;
+
+/// Whether two paths name the same existing file (same device and inode; by identity, not name).
+fn same_file(a: &Path, b: &Path) -> bool {
+    use std::os::unix::fs::MetadataExt;
+    match (std::fs::metadata(a), std::fs::metadata(b)) {
+        (Ok(x), Ok(y)) => x.dev() == y.dev() && x.ino() == y.ino(),
+        _ => false,
+    }
+}
+
+/// A file written under a temporary name beside its final one and renamed when complete: a
+/// failed run leaves no half-written file (and never a truncated earlier one).
+struct PartFile {
+    temporary: PathBuf,
+    path: PathBuf,
+    done: bool,
+}
+
+impl PartFile {
+    fn create(path: &Path) -> std::io::Result<(PartFile, std::fs::File)> {
+        let name = path.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
+        let temporary = path.with_file_name(format!(".{name}.{}.part", std::process::id()));
+        let file = std::fs::File::create(&temporary)?;
+        Ok((PartFile { temporary, path: path.to_owned(), done: false }, file))
+    }
+
+    fn commit(mut self) -> std::io::Result<()> {
+        std::fs::rename(&self.temporary, &self.path)?;
+        self.done = true;
+        Ok(())
+    }
+}
+
+impl Drop for PartFile {
+    fn drop(&mut self) {
+        if !self.done {
+            let _ = std::fs::remove_file(&self.temporary);
         }
     }
 }
@@ -687,6 +827,7 @@ fn results_for_map<'a>(path: &Path, model: &'a Model, at: Option<f64>) -> Result
     }
 }
 
+#[allow(clippy::too_many_arguments)]
 fn simulate(
     path: &Path,
     format: OutputFormat,
@@ -694,6 +835,7 @@ fn simulate(
     plot_dir: Option<&Path>,
     at: Option<&str>,
     criteria_path: Option<&Path>,
+    force: bool,
 ) -> ExitCode {
     use ringmain_core::SimulateError;
     let charts: Vec<PathBuf> = plot_dir.map(|d| plot::FILES.iter().map(|f| d.join(f)).collect()).unwrap_or_default();
@@ -704,6 +846,7 @@ fn simulate(
     if let Err(code) = refuse_overwrite_of(&inputs, &outputs) {
         return code;
     }
+    use simulation::SeriesWriter;
     let at = match at {
         None => None,
         Some(_) if format != OutputFormat::Geojson => {
@@ -718,19 +861,102 @@ fn simulate(
             }
         },
     };
+    if let Some(out) = output.filter(|o| same_file(o, path)) {
+        eprintln!("error: --output {} is the model file itself; choose another file", out.display());
+        return ExitCode::from(EXIT_INVALID);
+    }
+    if format == OutputFormat::Parquet && output.is_none() {
+        eprintln!("error: --format parquet writes one file per table: give the directory with --output DIR");
+        return ExitCode::from(EXIT_INVALID);
+    }
     let Ok(model) = load(path) else { return ExitCode::from(EXIT_INVALID) };
     print_warnings(&plausibility_warnings(&model));
     let criteria = match check::criteria_for(&model, path, criteria_path) {
         Ok(c) => c,
         Err(()) => return ExitCode::from(EXIT_INVALID),
     };
+    if let Some((seconds, steps)) = estimated_run_time(&model).filter(|_| !force) {
+        if seconds > WORK_BOUND_SECONDS {
+            eprintln!(
+                "error: {}: [simulation]: the run is estimated at about {} ({steps:.3e} steps over {} nodes and \
+                 links), beyond the {}-minute bound; lengthen hydraulic_step or report_interval, shorten duration, \
+                 or add --force to run it anyway",
+                path.display(),
+                short_duration(seconds),
+                model.nodes().len() + model.links().len(),
+                WORK_BOUND_SECONDS / 60.0
+            );
+            return ExitCode::from(EXIT_INVALID);
+        }
+    }
     let with_quality = !model.time.quality.constituents.is_empty();
+    // The whole series is kept where what comes after the run needs it: the charts, the
+    // water-quality results (written whole) and the map formats. Otherwise it streams.
+    let keep = plot_dir.is_some() || with_quality || format == OutputFormat::Geojson;
+    // Where the series goes, opened before the run so that it streams as the run goes.
+    let streamed = !with_quality && matches!(format, OutputFormat::Json | OutputFormat::Csv | OutputFormat::Parquet);
+    let mut part = None;
+    let mut files = Vec::new();
+    let sink: Option<Box<dyn Write>> = match (streamed, format, output) {
+        (false, _, _) | (_, OutputFormat::Parquet, _) => None,
+        (_, _, None) => Some(Box::new(BufWriter::with_capacity(1 << 16, std::io::stdout().lock()))),
+        (_, _, Some(out)) => match PartFile::create(out) {
+            Ok((p, file)) => {
+                part = Some(p);
+                files.push(out.to_owned());
+                Some(Box::new(BufWriter::with_capacity(1 << 16, file)))
+            }
+            Err(e) => {
+                eprintln!("error: cannot write the results to {}: {e}", out.display());
+                return ExitCode::from(EXIT_WRITE);
+            }
+        },
+    };
+    let opened: std::io::Result<Option<Box<dyn SeriesWriter + '_>>> = match (format, sink) {
+        (OutputFormat::Json, Some(out)) => {
+            simulation::JsonSeries::new(&model, out).map(|w| Some(Box::new(w) as Box<dyn SeriesWriter + '_>))
+        }
+        (OutputFormat::Csv, Some(out)) => {
+            simulation::CsvSeries::new(&model, out).map(|w| Some(Box::new(w) as Box<dyn SeriesWriter + '_>))
+        }
+        (OutputFormat::Parquet, _) => {
+            let dir = output.expect("checked above");
+            columnar::output_dir(dir).and_then(|()| simulation::ParquetSeries::new(&model, dir)).map(|w| {
+                files = w.paths();
+                Some(Box::new(w) as Box<dyn SeriesWriter + '_>)
+            })
+        }
+        _ => Ok(None),
+    };
+    let mut writer = match opened {
+        Ok(w) => w,
+        Err(e) => {
+            let to = output.map_or("standard output".into(), |o| o.display().to_string());
+            eprintln!("error: cannot write the results to {to}: {e}");
+            return ExitCode::from(EXIT_WRITE);
+        }
+    };
     let mut progress = Progress::new();
     let options = ringmain_core::SimulateOptions::default();
+    let mut failure: Option<std::io::Error> = None;
+    let mut reports = 0usize;
     let result = if with_quality {
         ringmain_core::quality::simulate(&model, &options, &mut |f| progress.update(f)).map(|(r, q)| (r, Some(q)))
-    } else {
+    } else if keep {
         ringmain_core::simulate::simulate_with(&model, &options, &mut |f| progress.update(f)).map(|r| (r, None))
+    } else {
+        ringmain_core::simulate::simulate_streaming(&model, &options, &mut |f| progress.update(f), &mut |s| {
+            reports += 1;
+            match writer.as_mut().map_or(Ok(()), |w| w.snapshot(s)) {
+                Ok(()) => Ok(()),
+                Err(e) => {
+                    let message = e.to_string();
+                    failure = Some(e);
+                    Err(message)
+                }
+            }
+        })
+        .map(|r| (r, None))
     };
     progress.finish();
     let (run, quality) = match result {
@@ -739,6 +965,16 @@ fn simulate(
             eprintln!("error: {}", e.in_file(path.display().to_string()));
             return ExitCode::from(EXIT_INVALID);
         }
+        Err(SimulateError::Output { .. })
+            if failure.as_ref().is_some_and(|e| e.kind() == std::io::ErrorKind::BrokenPipe) =>
+        {
+            return ExitCode::SUCCESS;
+        }
+        Err(SimulateError::Output { message, .. }) => {
+            let to = output.map_or("standard output".into(), |o| o.display().to_string());
+            eprintln!("error: cannot write the results to {to}: {message}");
+            return ExitCode::from(EXIT_WRITE);
+        }
         Err(e) => {
             eprintln!("error: {}: {e}", path.display());
             return ExitCode::from(EXIT_NOT_CONVERGED);
@@ -746,6 +982,20 @@ fn simulate(
     };
     if format == OutputFormat::Geojson {
         return write_geojson(path, output, gis::GisResults::from_run(&model, &run, at));
+    }
+    // A kept series goes through the same writers, state by state.
+    if let (true, Some(w)) = (keep, writer.as_mut()) {
+        for s in &run.series {
+            reports += 1;
+            if let Err(e) = w.snapshot(s) {
+                if e.kind() == std::io::ErrorKind::BrokenPipe {
+                    return ExitCode::SUCCESS;
+                }
+                let to = output.map_or("standard output".into(), |o| o.display().to_string());
+                eprintln!("error: cannot write the results to {to}: {e}");
+                return ExitCode::from(EXIT_WRITE);
+            }
+        }
     }
     let mut report = simulation::RunReport::new(&model, &run);
     report.quality = quality.as_ref();
@@ -772,8 +1022,8 @@ fn simulate(
     }
     if let Some(dir) = plot_dir {
         match plot::write_all(&report, dir) {
-            Ok(files) => {
-                for f in files {
+            Ok(written) => {
+                for f in written {
                     eprintln!("wrote {}", f.display());
                 }
             }
@@ -783,21 +1033,65 @@ fn simulate(
             }
         }
     }
-    let written = write_with("the results", output, |out| match format {
-        OutputFormat::Table => out.write_all(report.to_table().as_bytes()),
-        OutputFormat::Json => {
-            serde_json::to_writer_pretty(&mut *out, &report.to_json())?;
-            out.write_all(b"\n")
+    let failed =
+        if report.checks.iter().any(|c| !c.passed()) { ExitCode::from(check::EXIT_FAILED) } else { ExitCode::SUCCESS };
+    let finished = match writer.as_mut() {
+        Some(w) => w.finish(&report),
+        None if format == OutputFormat::Table => {
+            let code = match output {
+                None => write_out(&report.to_table(), None),
+                Some(out) => {
+                    let code = write_with("the results", Some(out), |o| o.write_all(report.to_table().as_bytes()));
+                    if code == ExitCode::SUCCESS {
+                        println!("wrote {}", out.display());
+                    }
+                    code
+                }
+            };
+            return if code == ExitCode::SUCCESS { failed } else { code };
         }
-        OutputFormat::Csv | OutputFormat::Geojson => out.write_all(report.to_csv().as_bytes()),
-    });
-    if written != ExitCode::SUCCESS {
-        return written;
+        None => {
+            // Water quality: the series written whole, with the constituents beside it.
+            let written = write_with("the results", output, |out| match format {
+                OutputFormat::Json => {
+                    serde_json::to_writer_pretty(&mut *out, &report.to_json())?;
+                    out.write_all(b"\n")
+                }
+                _ => out.write_all(report.to_csv().as_bytes()),
+            });
+            if written != ExitCode::SUCCESS {
+                return written;
+            }
+            if let Some(out) = output {
+                let mut text = report.to_table();
+                text.push_str(&format!("wrote {}\n", out.display()));
+                let code = write_out(&text, None);
+                return if code == ExitCode::SUCCESS { failed } else { code };
+            }
+            return failed;
+        }
+    };
+    drop(writer);
+    let committed = finished.and_then(|()| part.map_or(Ok(()), PartFile::commit));
+    match committed {
+        Ok(()) => {}
+        Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => return ExitCode::SUCCESS,
+        Err(e) => {
+            let to = output.map_or("standard output".into(), |o| o.display().to_string());
+            eprintln!("error: cannot write the results to {to}: {e}");
+            return ExitCode::from(EXIT_WRITE);
+        }
     }
-    if report.checks.iter().any(|c| !c.passed()) {
-        return ExitCode::from(check::EXIT_FAILED);
+    if output.is_some() {
+        // The series went to files: the summary still comes to the terminal, with what was written.
+        let mut text = report.to_table();
+        for f in &files {
+            text.push_str(&format!("wrote {} ({} reported times)\n", f.display(), reports));
+        }
+        let code = write_out(&text, None);
+        return if code == ExitCode::SUCCESS { failed } else { code };
     }
-    ExitCode::SUCCESS
+    failed
 }
 
 fn water_properties(temperature: f64, format: OutputFormat) -> ExitCode {
@@ -824,7 +1118,7 @@ fn water_properties(temperature: f64, format: OutputFormat) -> ExitCode {
             "temperature_C,density_kg_m3,dynamic_viscosity_Pa_s,kinematic_viscosity_m2_s\n{},{},{},{}\n",
             temperature, w.density, w.dynamic_viscosity, w.kinematic_viscosity
         ),
-        OutputFormat::Table => format!(
+        OutputFormat::Table | OutputFormat::Parquet => format!(
             "water at {temperature} deg C and 101.325 kPa\n  density              {:.4} kg/m3 (IAPWS-IF97)\n  \
              dynamic viscosity    {:.6e} Pa s (IAPWS 2008)\n  kinematic viscosity  {:.6e} m2/s\n  \
              vapour pressure      {:.2} Pa (IAPWS-IF97 saturation line)\n",
@@ -879,7 +1173,7 @@ fn friction(re: f64, rr: f64, format: OutputFormat) -> ExitCode {
         OutputFormat::Csv | OutputFormat::Geojson => {
             format!("reynolds,relative_roughness,friction_factor\n{re},{rr},{f}\n")
         }
-        OutputFormat::Table => {
+        OutputFormat::Table | OutputFormat::Parquet => {
             format!("Darcy friction factor f = {f:.6} at Re = {}, e/D = {}: {regime}\n", show(re), show(rr))
         }
     };

@@ -9,6 +9,7 @@ use serde_json::{json, Map, Value};
 use std::fmt::Write as _;
 
 /// Extremes of one constituent over the run at junctions and tanks: (value, node, time).
+#[allow(clippy::type_complexity)]
 pub fn extremes(
     report: &RunReport<'_>,
     q: &QualityRun,

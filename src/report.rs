@@ -2,6 +2,8 @@
 //!
 //! Each writer streams to an [`std::io::Write`], element by element.
 
+use crate::columnar::{Column, Kind, Table};
+use crate::csv;
 use ringmain_core::model::write::write_element_per_line;
 use ringmain_core::model::{LinkKind, Valve, ValveType};
 use ringmain_core::physics::WaterProperties;
@@ -12,6 +14,7 @@ use ringmain_core::{Model, NodeKind, Solution};
 use serde::{Serialize, Serializer};
 use serde_json::{json, Value};
 use std::io::{self, Write};
+use std::path::{Path, PathBuf};
 
 /// The JSON report's top level (fields in alphabetical order, as the keys are written).
 #[derive(Serialize)]
@@ -235,7 +238,7 @@ impl<'a> Report<'a> {
             flow: self.flow(s.flow[k]),
             from: &m.nodes()[l.from].id,
             head_gain: pump.map(|p| self.len(p.head)),
-            headloss: self.len(s.headloss[k]),
+            headloss: self.reported_headloss(k),
             hydraulic_power: pump.map(|p| self.power(p.hydraulic_power)),
             id: &l.id,
             k_total: minor.map(|m| m.0),
@@ -286,54 +289,295 @@ impl<'a> Report<'a> {
         write_element_per_line(out, &report)
     }
 
-    /// Writes the nodes and then the links as CSV, a header line before each.
-    pub fn write_csv(&self, out: &mut dyn Write) -> io::Result<()> {
+    /// A link's head loss as reported: `|H_from − H_to|` in the direction of flow, except for
+    /// pumps, whose value is signed, `H_from − H_to`: negative where the pump lifts the water (a
+    /// head gain is a negative loss), so that a gain never reads as a loss.
+    fn reported_headloss(&self, k: usize) -> f64 {
+        let s = self.solution;
+        let l = &self.model.links()[k];
+        if l.as_pump().is_some() {
+            self.len(s.head[l.from] - s.head[l.to])
+        } else {
+            self.len(s.headloss[k])
+        }
+    }
+
+    /// The tables of the results, in order: nodes, links, pumps, valves, summary. The same
+    /// tables, columns and units feed the CSV and the Parquet writers.
+    pub fn tables(&self) -> [TableSpec; 5] {
+        use Kind::{Bool, Text, F64};
+        let u = &self.model.units;
+        let (l, p, q, v) = (u.length.label(), u.pressure.label(), u.flow.label(), u.velocity_label());
+        let power = self.power_label();
+        let c = |name: &'static str, kind: Kind, unit: &str| ColumnSpec { name, kind, unit: unit.to_owned() };
+        [
+            TableSpec {
+                name: "nodes",
+                columns: vec![
+                    c("id", Text, ""),
+                    c("kind", Text, ""),
+                    c("elevation", F64, l),
+                    c("head", F64, l),
+                    c("pressure", F64, p),
+                    c("demand", F64, q),
+                    c("connected", Bool, ""),
+                ],
+            },
+            TableSpec {
+                name: "links",
+                columns: vec![
+                    c("id", Text, ""),
+                    c("kind", Text, ""),
+                    c("from", Text, ""),
+                    c("to", Text, ""),
+                    c("flow", F64, q),
+                    c("velocity", F64, v),
+                    c("headloss", F64, l),
+                    c("status", Text, ""),
+                    c("reason", Text, ""),
+                ],
+            },
+            TableSpec {
+                name: "pumps",
+                columns: vec![
+                    c("id", Text, ""),
+                    c("flow", F64, q),
+                    c("head_gain", F64, l),
+                    c("speed", F64, ""),
+                    c("efficiency", F64, "%"),
+                    c("hydraulic_power", F64, power),
+                    c("shaft_power", F64, power),
+                    c("beyond_curve", Bool, ""),
+                    c("status", Text, ""),
+                ],
+            },
+            TableSpec {
+                name: "valves",
+                columns: vec![
+                    c("id", Text, ""),
+                    c("valve", Text, ""),
+                    c("setting", F64, ""),
+                    c("setting_unit", Text, ""),
+                    c("flow", F64, q),
+                    c("headloss", F64, l),
+                    c("status", Text, ""),
+                    c("reason", Text, ""),
+                ],
+            },
+            TableSpec {
+                name: "summary",
+                columns: vec![c("quantity", Text, ""), c("id", Text, ""), c("value", F64, ""), c("unit", Text, "")],
+            },
+        ]
+    }
+
+    /// Hands every row of table `t` (an index into [`Report::tables`]) to `row`, in order.
+    pub fn rows(&self, t: usize, row: &mut dyn FnMut(&[Cell]) -> io::Result<()>) -> io::Result<()> {
+        use Cell::{Flag, Num, Text};
         let m = self.model;
         let s = self.solution;
         let u = &m.units;
-        let cell = |v: f64| if v.is_finite() { format!("{v}") } else { String::new() };
-        writeln!(
-            out,
-            "node,kind,elevation_{l},head_{l},pressure_{p},demand_{q}",
-            l = u.length,
-            p = u.pressure,
-            q = u.flow
-        )?;
-        for (i, n) in m.nodes().iter().enumerate() {
-            writeln!(
-                out,
-                "{},{},{},{},{},{}",
-                csv_field(&n.id),
-                n.kind.label(),
-                cell(self.len(n.elevation)),
-                cell(self.len(s.head[i])),
-                cell(self.pressure(s.pressure[i])),
-                cell(self.flow(s.demand[i]))
-            )?;
-        }
-        writeln!(out)?;
-        writeln!(
-            out,
-            "link,kind,from,to,flow_{q},velocity_{v},headloss_{l},status",
-            q = u.flow,
-            v = u.velocity_label(),
-            l = u.length
-        )?;
-        for (k, l) in m.links().iter().enumerate() {
-            writeln!(
-                out,
-                "{},{},{},{},{},{},{},{}",
-                csv_field(&l.id),
-                l.kind.label(),
-                csv_field(&m.nodes()[l.from].id),
-                csv_field(&m.nodes()[l.to].id),
-                cell(self.flow(s.flow[k])),
-                cell(self.len(s.velocity[k])),
-                cell(self.len(s.headloss[k])),
-                s.link_state[k].status_label()
-            )?;
+        let txt = |v: &'a str| Text(Some(v));
+        match t {
+            0 => {
+                for (i, n) in m.nodes().iter().enumerate() {
+                    row(&[
+                        txt(&n.id),
+                        txt(n.kind.label()),
+                        Num(self.len(n.elevation)),
+                        Num(self.len(s.head[i])),
+                        Num(self.pressure(s.pressure[i])),
+                        Num(self.flow(s.demand[i])),
+                        Flag(s.connected[i]),
+                    ])?;
+                }
+            }
+            1 => {
+                for (k, l) in m.links().iter().enumerate() {
+                    row(&[
+                        txt(&l.id),
+                        txt(l.kind.label()),
+                        txt(&m.nodes()[l.from].id),
+                        txt(&m.nodes()[l.to].id),
+                        Num(self.flow(s.flow[k])),
+                        Num(self.len(s.velocity[k])),
+                        Num(self.reported_headloss(k)),
+                        txt(s.link_state[k].status_label()),
+                        Text(s.link_state[k].reason()),
+                    ])?;
+                }
+            }
+            2 => {
+                for pr in &s.pumps {
+                    let state = s.link_state[pr.link];
+                    row(&[
+                        txt(&m.links()[pr.link].id),
+                        Num(self.flow(s.flow[pr.link])),
+                        Num(self.len(pr.head)),
+                        Num(pr.speed),
+                        Num(pr.efficiency * 100.0),
+                        Num(self.power(pr.hydraulic_power)),
+                        Num(self.power(pr.shaft_power)),
+                        Flag(pr.beyond_curve),
+                        txt(state.status_label()),
+                    ])?;
+                }
+            }
+            3 => {
+                for (k, l) in m.links().iter().enumerate() {
+                    let Some(v) = l.as_valve() else { continue };
+                    let unit = self.setting_unit(v);
+                    let state = s.link_state[k];
+                    row(&[
+                        txt(&l.id),
+                        txt(v.valve.label()),
+                        Num(self.setting(v)),
+                        Text(Some(&unit)),
+                        Num(self.flow(s.flow[k])),
+                        Num(self.len(s.headloss[k])),
+                        txt(state.status_label()),
+                        Text(state.reason()),
+                    ])?;
+                }
+            }
+            _ => {
+                let (lu, qu, pu) = (u.length.label(), u.flow.label(), u.pressure.label());
+                let mut item = |what: &str, id: Option<&str>, value: f64, unit: &str| {
+                    row(&[Text(Some(what)), Text(id), Num(value), Text(Some(unit))])
+                };
+                item("converged", None, if s.converged { 1.0 } else { 0.0 }, "")?;
+                item("iterations", None, s.iterations.into(), "")?;
+                item("status_changes", None, s.status_changes.into(), "")?;
+                item("max_mass_residual", None, self.flow(s.max_mass_residual), qu)?;
+                item("max_energy_residual", None, self.len(s.max_energy_residual), lu)?;
+                item("total_demand", None, self.total_demand(), qu)?;
+                for (i, supply) in self.sources() {
+                    item("supply", Some(&m.nodes()[i].id), supply, qu)?;
+                }
+                if let Some(i) = self.lowest_pressure_node() {
+                    item("lowest_pressure", Some(&m.nodes()[i].id), self.pressure(s.pressure[i]), pu)?;
+                }
+            }
         }
         Ok(())
+    }
+
+    /// The junction (or tank) of lowest finite pressure, if any.
+    fn lowest_pressure_node(&self) -> Option<usize> {
+        let s = self.solution;
+        (0..self.model.nodes().len())
+            .filter(|&i| self.model.nodes()[i].fixed_head().is_none() && s.pressure[i].is_finite())
+            .min_by(|&a, &b| s.pressure[a].total_cmp(&s.pressure[b]))
+    }
+
+    /// Writes every table as CSV into one stream, one value a row with the table named in each
+    /// row: `table,id,quantity,value,unit` (text values in `value` are written as text). Opens in
+    /// any spreadsheet and pivots back into the tables; [`Report::write_csv_tables`] writes
+    /// each table as its own file instead.
+    pub fn write_csv(&self, out: &mut dyn Write) -> io::Result<()> {
+        out.write_all(b"table,id,quantity,value,unit\n")?;
+        let mut line = String::with_capacity(256);
+        for (t, spec) in self.tables().iter().enumerate() {
+            let summary = spec.name == "summary";
+            self.rows(t, &mut |cells| {
+                // The summary's rows are already one value each.
+                if summary {
+                    line.clear();
+                    line.push_str("summary,");
+                    push_cell(&mut line, &cells[1]);
+                    line.push(',');
+                    push_cell(&mut line, &cells[0]);
+                    line.push(',');
+                    push_cell(&mut line, &cells[2]);
+                    line.push(',');
+                    push_cell(&mut line, &cells[3]);
+                    line.push('\n');
+                    return out.write_all(line.as_bytes());
+                }
+                for (col, cell) in spec.columns.iter().zip(cells).skip(1) {
+                    line.clear();
+                    line.push_str(spec.name);
+                    line.push(',');
+                    push_cell(&mut line, &cells[0]);
+                    line.push(',');
+                    line.push_str(col.name);
+                    line.push(',');
+                    push_cell(&mut line, cell);
+                    line.push(',');
+                    line.push_str(&csv::text(&col.unit));
+                    line.push('\n');
+                    out.write_all(line.as_bytes())?;
+                }
+                Ok(())
+            })?;
+        }
+        out.flush()
+    }
+
+    /// Writes each table as its own CSV file in `dir` (`nodes.csv`, `links.csv`, `pumps.csv`,
+    /// `valves.csv`, `summary.csv`), a header line first, the unit after each column's name
+    /// (`head_m`); returns the files written. Each file is written under a temporary name and
+    /// renamed when complete.
+    pub fn write_csv_tables(&self, dir: &Path) -> io::Result<Vec<PathBuf>> {
+        let mut written = Vec::new();
+        for (t, spec) in self.tables().iter().enumerate() {
+            let path = dir.join(format!("{}.csv", spec.name));
+            let temporary = dir.join(format!(".{}.csv.{}.part", spec.name, std::process::id()));
+            let result = (|| -> io::Result<()> {
+                let mut out = io::BufWriter::with_capacity(1 << 16, std::fs::File::create(&temporary)?);
+                let header: Vec<String> = spec
+                    .columns
+                    .iter()
+                    .map(|c| if c.unit.is_empty() { c.name.to_owned() } else { format!("{}_{}", c.name, c.unit) })
+                    .map(|h| csv::text(&h).into_owned())
+                    .collect();
+                writeln!(out, "{}", header.join(","))?;
+                let mut line = String::with_capacity(256);
+                self.rows(t, &mut |cells| {
+                    line.clear();
+                    for (i, cell) in cells.iter().enumerate() {
+                        if i > 0 {
+                            line.push(',');
+                        }
+                        push_cell(&mut line, cell);
+                    }
+                    line.push('\n');
+                    out.write_all(line.as_bytes())
+                })?;
+                out.flush()?;
+                std::fs::rename(&temporary, &path)
+            })();
+            if let Err(e) = result {
+                let _ = std::fs::remove_file(&temporary);
+                return Err(e);
+            }
+            written.push(path);
+        }
+        Ok(written)
+    }
+
+    /// Writes each table as a Parquet file in `dir` (see [`crate::columnar`]); returns the files.
+    pub fn write_parquet(&self, dir: &Path) -> io::Result<Vec<PathBuf>> {
+        let meta = [("title", self.model.title.clone().unwrap_or_default())];
+        let mut written = Vec::new();
+        for (t, spec) in self.tables().iter().enumerate() {
+            let columns: Vec<Column> =
+                spec.columns.iter().map(|c| Column::new(c.name, c.kind, c.unit.clone())).collect();
+            let mut table = Table::create(dir, spec.name, &columns, &meta)?;
+            self.rows(t, &mut |cells| {
+                for (i, cell) in cells.iter().enumerate() {
+                    match *cell {
+                        Cell::Num(v) => table.f64(i, v),
+                        Cell::Text(v) => table.text(i, v),
+                        Cell::Flag(v) => table.bool(i, v),
+                    }
+                }
+                table.end_row()
+            })?;
+            table.finish()?;
+            written.push(table.path().to_owned());
+        }
+        Ok(written)
     }
 
     /// Writes the readable table: nodes, links, pumps, valves, a summary and the warnings.
@@ -412,7 +656,7 @@ impl<'a> Report<'a> {
                 l.kind.label(),
                 num(self.flow(s.flow[k]), 11, 3),
                 num(self.len(s.velocity[k]), 10, 3),
-                num(self.len(s.headloss[k]), 11, 3),
+                num(self.reported_headloss(k), 11, 3),
                 status
             )?;
         }
@@ -534,10 +778,35 @@ fn warning_text(w: &Warning) -> String {
     }
 }
 
-fn csv_field(text: &str) -> String {
-    if text.contains([',', '"', '\n', '\r']) {
-        format!("\"{}\"", text.replace('"', "\"\""))
-    } else {
-        text.to_owned()
+/// One column of a results table: name, type and unit (empty: none).
+pub struct ColumnSpec {
+    pub name: &'static str,
+    pub kind: Kind,
+    pub unit: String,
+}
+
+/// A results table: its name (the file's) and columns.
+pub struct TableSpec {
+    pub name: &'static str,
+    pub columns: Vec<ColumnSpec>,
+}
+
+/// One value of a row.
+pub enum Cell<'c> {
+    /// A number (not finite: missing).
+    Num(f64),
+    /// A text, or missing.
+    Text(Option<&'c str>),
+    /// A flag.
+    Flag(bool),
+}
+
+/// Appends a cell in CSV: numbers at [`csv::DIGITS`] digits, texts made spreadsheet-safe.
+fn push_cell(line: &mut String, cell: &Cell) {
+    match *cell {
+        Cell::Num(v) => csv::push_number(line, v),
+        Cell::Text(Some(t)) => line.push_str(&csv::text(t)),
+        Cell::Text(None) => {}
+        Cell::Flag(b) => line.push_str(if b { "true" } else { "false" }),
     }
 }

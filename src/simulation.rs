@@ -1,13 +1,21 @@
 //! Writers of simulation results: a readable summary, JSON (summary, events and the reported
-//! time series) and CSV (the time series, one value a row), all in the model's own units.
+//! time series) and CSV (the time series, one value a row), all in the model's own units. The
+//! series writers ([`SeriesWriter`]) take the reported states one by one as the run makes them;
+//! a run with water quality is written whole by [`RunReport::to_json`] and
+//! [`RunReport::to_csv`].
 
+use crate::columnar::{self, Column, Table};
+use crate::csv;
 use ringmain_core::analysis::CheckResult;
 use ringmain_core::model::time::{format_clock, format_duration, DAY};
 use ringmain_core::quality::QualityRun;
-use ringmain_core::simulate::Run;
-use ringmain_core::Model;
+use ringmain_core::simulate::{Run, Snapshot};
+use ringmain_core::{Model, NodeKind};
+use serde::{Serialize, Serializer};
 use serde_json::{json, Value};
 use std::fmt::Write as _;
+use std::io::{self, Write};
+use std::path::{Path, PathBuf};
 
 /// A run with its model, converting to the model's units for any writer.
 pub struct RunReport<'a> {
@@ -28,12 +36,10 @@ pub(crate) fn finite_or_null(v: f64) -> Value {
     }
 }
 
+/// A text cell of CSV, quoted when needed and neutralised against formula injection (see
+/// [`crate::csv::text`]).
 pub(crate) fn csv_field(text: &str) -> String {
-    if text.contains([',', '"', '\n', '\r']) {
-        format!("\"{}\"", text.replace('"', "\"\""))
-    } else {
-        text.to_owned()
-    }
+    csv::text(text).into_owned()
 }
 
 impl<'a> RunReport<'a> {
@@ -324,7 +330,7 @@ impl<'a> RunReport<'a> {
         let r = self.run;
         let u = &m.units;
         let mut out = String::from("time_h,clock,kind,id,quantity,value,unit\n");
-        let cell = |v: f64| if v.is_finite() { format!("{v}") } else { String::new() };
+        let cell = csv::number;
         for s in &r.series {
             let head = format!("{},{}", s.time / 3600.0, format_clock(r.start_clock + s.time));
             let mut row = |kind: &str, id: &str, q: &str, v: String, unit: &str| {
@@ -373,5 +379,505 @@ impl<'a> RunReport<'a> {
             row("energy", "", "price", cell(s.price), &format!("{}/kWh", self.currency()));
         }
         out
+    }
+
+    /// Everything of the JSON results but the series: the summary and the event log, as the
+    /// members that follow `"series"` in [`JsonSeries`].
+    fn json_tail(&self) -> Value {
+        let m = self.model;
+        let r = self.run;
+        let tanks: Vec<Value> = r
+            .tank_summary
+            .iter()
+            .enumerate()
+            .map(|(j, s)| {
+                json!({
+                    "id": self.tank_id(j),
+                    "min_level": self.len(s.min_level.0), "min_level_time_s": s.min_level.1,
+                    "max_level": self.len(s.max_level.0), "max_level_time_s": s.max_level.1,
+                    "start_level": self.len(s.start_level), "end_level": self.len(s.end_level),
+                    "hours_full": s.time_full / 3600.0, "hours_empty": s.time_empty / 3600.0,
+                })
+            })
+            .collect();
+        let pumps: Vec<Value> = r
+            .pump_summary
+            .iter()
+            .enumerate()
+            .map(|(i, p)| {
+                json!({
+                    "id": self.pump_id(i), "hours": p.hours(), "starts": p.starts,
+                    "volume": self.volume(p.volume), "energy_kwh": p.kwh(), "cost": p.cost,
+                    "peak_power_kw": p.peak_power / 1e3,
+                    "mean_efficiency": finite_or_null(p.mean_efficiency() * 100.0),
+                    "kwh_per_m3": finite_or_null(p.kwh_per_m3()),
+                })
+            })
+            .collect();
+        let b = &r.balance;
+        let mut doc = json!({
+            "summary": {
+                "tanks": tanks,
+                "pumps": pumps,
+                "lowest_pressure": r.lowest_pressure.map(|(n, p, t)| json!({
+                    "node": m.nodes()[n].id, "pressure": self.pressure(p), "time_s": t,
+                })),
+                "volume_balance": {
+                    "supplied": self.volume(b.supplied), "delivered": self.volume(b.delivered),
+                    "storage_change": self.volume(b.storage_change), "discrepancy": self.volume(b.discrepancy()),
+                    "relative_discrepancy": b.relative_discrepancy(), "not_delivered": self.volume(b.unsupplied),
+                },
+                "statistics": {
+                    "steps": r.statistics.steps, "rejected": r.statistics.rejected,
+                    "locating": r.statistics.locating, "hydraulic_solves": r.statistics.solves,
+                },
+            },
+            "events": r.events.iter().map(|e| json!({
+                "time_s": e.time, "clock": format_clock(r.start_clock + e.time), "what": e.describe(m),
+            })).collect::<Vec<_>>(),
+        });
+        crate::quality_report::add_to_json(self, &mut doc);
+        doc
+    }
+}
+
+/// The model's units for the writers of a series, known before the run starts.
+#[derive(Clone, Copy)]
+pub struct Units<'a> {
+    model: &'a Model,
+    density: f64,
+}
+
+impl<'a> Units<'a> {
+    pub fn new(model: &'a Model) -> Self {
+        Units { model, density: model.options.water_properties().density }
+    }
+    fn len(&self, v: f64) -> f64 {
+        self.model.units.length.from_si(v)
+    }
+    fn flow(&self, v: f64) -> f64 {
+        self.model.units.flow.from_si(v)
+    }
+    fn pressure(&self, head: f64) -> f64 {
+        self.model.units.pressure.from_head(head, self.density)
+    }
+    fn volume(&self, v: f64) -> f64 {
+        v / self.model.units.length.to_si(1.0).powi(3)
+    }
+    fn volume_label(&self) -> String {
+        format!("{}3", self.model.units.length.label())
+    }
+    fn currency(&self) -> &'a str {
+        self.model.time.energy.currency.as_deref().unwrap_or("cost units")
+    }
+    /// The tanks and the pumps of the model, in the order of a run's per-tank and per-pump
+    /// series ([`Run::tanks`], [`Run::pumps`]).
+    fn tanks_and_pumps(&self) -> (Vec<usize>, Vec<usize>) {
+        let m = self.model;
+        let tanks = m.nodes().iter().enumerate().filter(|(_, n)| matches!(n.kind, NodeKind::Tank(_)));
+        let pumps = m.links().iter().enumerate().filter(|(_, l)| l.as_pump().is_some());
+        (tanks.map(|(i, _)| i).collect(), pumps.map(|(k, _)| k).collect())
+    }
+}
+
+/// A writer of a run's series, fed one reported state at a time as the run makes them (see
+/// `ringmain_core::simulate::simulate_streaming`) and closed with the run's summary.
+///
+/// Each format is one implementation; a new quantity in [`Snapshot`] is one more member or
+/// column in each. Nothing the size of the series is held.
+pub trait SeriesWriter {
+    /// Writes one reported state.
+    fn snapshot(&mut self, s: &Snapshot) -> io::Result<()>;
+    /// Writes what follows the series (the summary and events, where the format has them) and
+    /// flushes.
+    fn finish(&mut self, report: &RunReport) -> io::Result<()>;
+}
+
+/// JSON: `{"title", "units", "start_clock", "duration_s", "series": [...], "summary", "events"}`,
+/// one reported state a line.
+pub struct JsonSeries<'a, W: Write> {
+    out: W,
+    units: Units<'a>,
+    tanks: Vec<usize>,
+    pumps: Vec<usize>,
+    first: bool,
+}
+
+impl<'a, W: Write> JsonSeries<'a, W> {
+    /// Writes the members before the series.
+    pub fn new(model: &'a Model, mut out: W) -> io::Result<Self> {
+        let units = Units::new(model);
+        let u = &model.units;
+        let (start_clock, duration) = model.time.simulation.map_or((0.0, 0.0), |s| (s.start_clock, s.duration));
+        let head = json!({
+            "title": model.title,
+            "units": {
+                "length": u.length.label(), "flow": u.flow.label(), "pressure": u.pressure.label(),
+                "volume": units.volume_label(), "energy": "kWh", "currency": units.currency(),
+            },
+            "start_clock": format_clock(start_clock),
+            "duration_s": duration,
+        });
+        let text = serde_json::to_string(&head)?;
+        // The object without its closing brace, then the series.
+        out.write_all(&text.as_bytes()[..text.len() - 1])?;
+        out.write_all(b",\"series\":[")?;
+        let (tanks, pumps) = units.tanks_and_pumps();
+        Ok(JsonSeries { out, units, tanks, pumps, first: true })
+    }
+}
+
+/// One reported state as a JSON object, serialized member by member.
+struct JsonSnapshot<'r, 'a> {
+    units: &'r Units<'a>,
+    tanks: &'r [usize],
+    pumps: &'r [usize],
+    s: &'r Snapshot,
+    start_clock: f64,
+}
+
+/// A number, or null where it is not finite (a node cut off from every source).
+struct Num(f64);
+
+impl Serialize for Num {
+    fn serialize<S: Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        if self.0.is_finite() {
+            s.serialize_f64(self.0)
+        } else {
+            s.serialize_none()
+        }
+    }
+}
+
+impl Serialize for JsonSnapshot<'_, '_> {
+    fn serialize<S: Serializer>(&self, ser: S) -> Result<S::Ok, S::Error> {
+        use serde::ser::SerializeMap;
+        let (u, s) = (self.units, self.s);
+        let m = u.model;
+        #[derive(Serialize)]
+        struct Tank<'x> {
+            id: &'x str,
+            level: Num,
+            volume: Num,
+            state: &'static str,
+        }
+        #[derive(Serialize)]
+        struct Pump<'x> {
+            id: &'x str,
+            flow: Num,
+            speed: Num,
+            shaft_power_kw: Num,
+            status: &'static str,
+        }
+        #[derive(Serialize)]
+        struct Node<'x> {
+            id: &'x str,
+            head: Num,
+            pressure: Num,
+            demand: Num,
+        }
+        #[derive(Serialize)]
+        struct Link<'x> {
+            id: &'x str,
+            flow: Num,
+            status: &'static str,
+        }
+        let mut map = ser.serialize_map(None)?;
+        map.serialize_entry("time_s", &s.time)?;
+        map.serialize_entry("clock", &format_clock(self.start_clock + s.time))?;
+        map.serialize_entry("price", &s.price)?;
+        map.serialize_entry(
+            "tanks",
+            &Seq(self.tanks.iter().enumerate().map(|(j, &i)| Tank {
+                id: &m.nodes()[i].id,
+                level: Num(u.len(s.level[j])),
+                volume: Num(u.volume(s.volume[j])),
+                state: s.tank_state[j],
+            })),
+        )?;
+        map.serialize_entry(
+            "pumps",
+            &Seq(self.pumps.iter().enumerate().map(|(j, &k)| Pump {
+                id: &m.links()[k].id,
+                flow: Num(u.flow(s.flow[k])),
+                speed: Num(s.pump_speed[j]),
+                shaft_power_kw: Num(s.pump_power[j] / 1e3),
+                status: s.status[k],
+            })),
+        )?;
+        map.serialize_entry(
+            "nodes",
+            &Seq(m.nodes().iter().enumerate().map(|(i, n)| Node {
+                id: &n.id,
+                head: Num(u.len(s.head[i])),
+                pressure: Num(u.pressure(s.pressure[i])),
+                demand: Num(u.flow(s.demand[i])),
+            })),
+        )?;
+        map.serialize_entry(
+            "links",
+            &Seq(m.links().iter().enumerate().map(|(k, l)| Link {
+                id: &l.id,
+                flow: Num(u.flow(s.flow[k])),
+                status: s.status[k],
+            })),
+        )?;
+        map.end()
+    }
+}
+
+/// A sequence serialized from an iterator, once.
+struct Seq<I>(I);
+
+impl<I: Iterator<Item = T> + Clone, T: Serialize> Serialize for Seq<I> {
+    fn serialize<S: Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        s.collect_seq(self.0.clone())
+    }
+}
+
+impl<W: Write> SeriesWriter for JsonSeries<'_, W> {
+    fn snapshot(&mut self, s: &Snapshot) -> io::Result<()> {
+        self.out.write_all(if self.first { b"\n" } else { b",\n" })?;
+        self.first = false;
+        let start_clock = self.units.model.time.simulation.map_or(0.0, |sim| sim.start_clock);
+        let entry = JsonSnapshot { units: &self.units, tanks: &self.tanks, pumps: &self.pumps, s, start_clock };
+        serde_json::to_writer(&mut self.out, &entry)?;
+        Ok(())
+    }
+
+    fn finish(&mut self, report: &RunReport) -> io::Result<()> {
+        let tail = serde_json::to_string(&report.json_tail())?;
+        self.out.write_all(b"\n],")?;
+        // The tail object's members, without its braces.
+        self.out.write_all(&tail.as_bytes()[1..])?;
+        self.out.write_all(b"\n")?;
+        self.out.flush()
+    }
+}
+
+/// CSV: the series one value a row, `time_h,clock,kind,id,quantity,value,unit`.
+pub struct CsvSeries<'a, W: Write> {
+    out: W,
+    units: Units<'a>,
+    tanks: Vec<usize>,
+    pumps: Vec<usize>,
+    labels: [String; 5],
+    line: String,
+}
+
+impl<'a, W: Write> CsvSeries<'a, W> {
+    /// Writes the header line.
+    pub fn new(model: &'a Model, mut out: W) -> io::Result<Self> {
+        out.write_all(b"time_h,clock,kind,id,quantity,value,unit\n")?;
+        let units = Units::new(model);
+        let (tanks, pumps) = units.tanks_and_pumps();
+        let u = &model.units;
+        let labels = [
+            u.length.label().to_owned(),
+            units.volume_label(),
+            u.pressure.label().to_owned(),
+            u.flow.label().to_owned(),
+            format!("{}/kWh", csv::text(units.currency())),
+        ];
+        Ok(CsvSeries { out, units, tanks, pumps, labels, line: String::with_capacity(1 << 16) })
+    }
+}
+
+impl<W: Write> SeriesWriter for CsvSeries<'_, W> {
+    fn snapshot(&mut self, s: &Snapshot) -> io::Result<()> {
+        let u = self.units;
+        let m = u.model;
+        let start_clock = m.time.simulation.map_or(0.0, |sim| sim.start_clock);
+        let mut head = csv::number(s.time / 3600.0);
+        head.push(',');
+        head.push_str(&format_clock(start_clock + s.time));
+        let line = &mut self.line;
+        let [length, volume, pressure, flow, price] = &self.labels;
+        let mut row = |out: &mut W, kind: &str, id: &str, q: &str, v: Option<f64>, text: &str, unit: &str| {
+            line.clear();
+            line.push_str(&head);
+            line.push(',');
+            line.push_str(kind);
+            line.push(',');
+            line.push_str(&csv::text(id));
+            line.push(',');
+            line.push_str(q);
+            line.push(',');
+            match v {
+                Some(v) => csv::push_number(line, v),
+                None => line.push_str(text),
+            }
+            line.push(',');
+            line.push_str(unit);
+            line.push('\n');
+            out.write_all(line.as_bytes())
+        };
+        let out = &mut self.out;
+        for (j, &i) in self.tanks.iter().enumerate() {
+            let id = &m.nodes()[i].id;
+            row(out, "tank", id, "level", Some(u.len(s.level[j])), "", length)?;
+            row(out, "tank", id, "volume", Some(u.volume(s.volume[j])), "", volume)?;
+        }
+        for (j, &k) in self.pumps.iter().enumerate() {
+            let id = &m.links()[k].id;
+            row(out, "pump", id, "speed", Some(s.pump_speed[j]), "", "")?;
+            row(out, "pump", id, "shaft_power", Some(s.pump_power[j] / 1e3), "", "kW")?;
+        }
+        for (i, n) in m.nodes().iter().enumerate() {
+            row(out, "node", &n.id, "head", Some(u.len(s.head[i])), "", length)?;
+            row(out, "node", &n.id, "pressure", Some(u.pressure(s.pressure[i])), "", pressure)?;
+            row(out, "node", &n.id, "demand", Some(u.flow(s.demand[i])), "", flow)?;
+        }
+        for (k, l) in m.links().iter().enumerate() {
+            row(out, "link", &l.id, "flow", Some(u.flow(s.flow[k])), "", flow)?;
+            row(out, "link", &l.id, "status", None, s.status[k], "")?;
+        }
+        row(out, "energy", "", "price", Some(s.price), "", price)
+    }
+
+    fn finish(&mut self, _: &RunReport) -> io::Result<()> {
+        self.out.flush()
+    }
+}
+
+/// Parquet: long tables with a time column, one file each in a directory: `nodes.parquet`
+/// (`time_s, id, head, pressure, demand`), `links.parquet` (`time_s, id, flow, status`),
+/// `tanks.parquet` (`time_s, id, level, volume, state`), `pumps.parquet`
+/// (`time_s, id, flow, speed, shaft_power`), and `series.parquet` (`time_s, clock, price`).
+pub struct ParquetSeries<'a> {
+    units: Units<'a>,
+    tanks: Vec<usize>,
+    pumps: Vec<usize>,
+    start_clock: f64,
+    tables: [Table; 5],
+}
+
+impl<'a> ParquetSeries<'a> {
+    /// Creates the five tables in `dir` (which must exist).
+    pub fn new(model: &'a Model, dir: &Path) -> io::Result<Self> {
+        use columnar::Kind::{Text, F64};
+        let units = Units::new(model);
+        let (tanks, pumps) = units.tanks_and_pumps();
+        let u = &model.units;
+        let (l, p, q, v) = (u.length.label(), u.pressure.label(), u.flow.label(), units.volume_label());
+        let sim = model.time.simulation;
+        let start_clock = sim.map_or(0.0, |s| s.start_clock);
+        let meta = [
+            ("title", model.title.clone().unwrap_or_default()),
+            ("start_clock", format_clock(start_clock)),
+            ("duration_s", sim.map_or(0.0, |s| s.duration).to_string()),
+        ];
+        let time = || Column::new("time_s", F64, "s");
+        let id = || Column::new("id", Text, "");
+        let tables = [
+            Table::create(
+                dir,
+                "nodes",
+                &[
+                    time(),
+                    id(),
+                    Column::new("head", F64, l),
+                    Column::new("pressure", F64, p),
+                    Column::new("demand", F64, q),
+                ],
+                &meta,
+            )?,
+            Table::create(
+                dir,
+                "links",
+                &[time(), id(), Column::new("flow", F64, q), Column::new("status", Text, "")],
+                &meta,
+            )?,
+            Table::create(
+                dir,
+                "tanks",
+                &[
+                    time(),
+                    id(),
+                    Column::new("level", F64, l),
+                    Column::new("volume", F64, v),
+                    Column::new("state", Text, ""),
+                ],
+                &meta,
+            )?,
+            Table::create(
+                dir,
+                "pumps",
+                &[
+                    time(),
+                    id(),
+                    Column::new("flow", F64, q),
+                    Column::new("speed", F64, ""),
+                    Column::new("shaft_power", F64, "kW"),
+                ],
+                &meta,
+            )?,
+            Table::create(
+                dir,
+                "series",
+                &[
+                    time(),
+                    Column::new("clock", Text, ""),
+                    Column::new("price", F64, format!("{}/kWh", units.currency())),
+                ],
+                &meta,
+            )?,
+        ];
+        Ok(ParquetSeries { units, tanks, pumps, start_clock, tables })
+    }
+
+    /// The files written (once finished).
+    pub fn paths(&self) -> Vec<PathBuf> {
+        self.tables.iter().map(|t| t.path().to_owned()).collect()
+    }
+}
+
+impl SeriesWriter for ParquetSeries<'_> {
+    fn snapshot(&mut self, s: &Snapshot) -> io::Result<()> {
+        let u = self.units;
+        let m = u.model;
+        let [nodes, links, tanks, pumps, series] = &mut self.tables;
+        for (i, n) in m.nodes().iter().enumerate() {
+            nodes.f64(0, s.time);
+            nodes.text(1, Some(&n.id));
+            nodes.f64(2, u.len(s.head[i]));
+            nodes.f64(3, u.pressure(s.pressure[i]));
+            nodes.f64(4, u.flow(s.demand[i]));
+            nodes.end_row()?;
+        }
+        for (k, l) in m.links().iter().enumerate() {
+            links.f64(0, s.time);
+            links.text(1, Some(&l.id));
+            links.f64(2, u.flow(s.flow[k]));
+            links.text(3, Some(s.status[k]));
+            links.end_row()?;
+        }
+        for (j, &i) in self.tanks.iter().enumerate() {
+            tanks.f64(0, s.time);
+            tanks.text(1, Some(&m.nodes()[i].id));
+            tanks.f64(2, u.len(s.level[j]));
+            tanks.f64(3, u.volume(s.volume[j]));
+            tanks.text(4, Some(s.tank_state[j]));
+            tanks.end_row()?;
+        }
+        for (j, &k) in self.pumps.iter().enumerate() {
+            pumps.f64(0, s.time);
+            pumps.text(1, Some(&m.links()[k].id));
+            pumps.f64(2, u.flow(s.flow[k]));
+            pumps.f64(3, s.pump_speed[j]);
+            pumps.f64(4, s.pump_power[j] / 1e3);
+            pumps.end_row()?;
+        }
+        series.f64(0, s.time);
+        series.text(1, Some(&format_clock(self.start_clock + s.time)));
+        series.f64(2, s.price);
+        series.end_row()
+    }
+
+    fn finish(&mut self, _: &RunReport) -> io::Result<()> {
+        for t in &mut self.tables {
+            t.finish()?;
+        }
+        Ok(())
     }
 }

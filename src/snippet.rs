@@ -363,7 +363,9 @@ pub fn render(error: &ModelError, text: Option<&str>, format: Format, color: boo
         .with_label(Label::new((name.as_str(), at)).with_message(label))
         .finish();
     if report.write((name.as_str(), Source::from(snippet)), &mut buf).is_ok() {
-        out.push_str(&String::from_utf8_lossy(&buf));
+        // The report's own first line repeats the message of the line above: shown once.
+        let text = String::from_utf8_lossy(&buf);
+        out.push_str(text.split_once('\n').map_or(&text, |(_, rest)| rest));
     }
     out
 }

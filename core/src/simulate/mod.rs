@@ -88,6 +88,13 @@ pub enum SimulateError {
         /// Elapsed time, s.
         time: f64,
     },
+    /// The sink of [`simulate_streaming`] could not take a reported state.
+    Output {
+        /// Elapsed time of the state, s.
+        time: f64,
+        /// What the sink said.
+        message: String,
+    },
 }
 
 impl From<ModelError> for SimulateError {
@@ -123,6 +130,7 @@ impl fmt::Display for SimulateError {
                  raise [simulation] level_tolerance or check the model",
                 at(*time)
             ),
+            SimulateError::Output { time, message } => write!(f, "{}: {message}", at(*time)),
         }
     }
 }
@@ -174,7 +182,7 @@ pub fn simulate_observed(
     check_options(options)?;
     let mut engine = Engine::new(model, sim, *options)?;
     engine.observer = Some(observer);
-    engine.run(progress)
+    engine.run(progress, None)
 }
 
 fn simulation_settings(model: &Model) -> Result<SimulationSettings, SimulateError> {
@@ -203,6 +211,33 @@ pub fn simulate_with(
     options: &SimulateOptions,
     progress: &mut dyn FnMut(f64),
 ) -> Result<Run, SimulateError> {
+    run_engine(model, options, progress, None)
+}
+
+/// Where [`simulate_streaming`] sends each reported state as the run makes it. An error (a
+/// message, say "cannot write series.csv: disk full") stops the run with
+/// [`SimulateError::Output`].
+pub type SeriesSink<'s> = dyn FnMut(&Snapshot) -> Result<(), String> + 's;
+
+/// Runs the model's `[simulation]` and hands every reported state to `sink` in time order as
+/// soon as it is final, instead of keeping the series: memory stays that of one or two
+/// snapshots however long the run. The returned [`Run`] has everything but its `series`, which
+/// is empty. `sink` sees exactly the snapshots [`simulate_with`] would have kept, in order.
+pub fn simulate_streaming(
+    model: &Model,
+    options: &SimulateOptions,
+    progress: &mut dyn FnMut(f64),
+    sink: &mut SeriesSink<'_>,
+) -> Result<Run, SimulateError> {
+    run_engine(model, options, progress, Some(sink))
+}
+
+fn run_engine(
+    model: &Model,
+    options: &SimulateOptions,
+    progress: &mut dyn FnMut(f64),
+    sink: Option<&mut SeriesSink<'_>>,
+) -> Result<Run, SimulateError> {
     let sim = model.time.simulation.ok_or_else(|| {
         ModelError::at(
             Some(Element::Table("simulation".into())),
@@ -215,7 +250,7 @@ pub fn simulate_with(
             return Err(ModelError::new(format!("the fixed step must be longer than zero, found {h}")).into());
         }
     }
-    Engine::new(model, sim, *options)?.run(progress)
+    Engine::new(model, sim, *options)?.run(progress, sink)
 }
 
 /// Volumes and energies over one step (or the run).
@@ -311,6 +346,8 @@ struct Engine<'m> {
     dry_time: Vec<f64>,
     events: Vec<Event>,
     series: Vec<Snapshot>,
+    /// The last reported state of a streamed run, not yet handed on.
+    pending: Option<Snapshot>,
     stats: Statistics,
     start_volume: f64,
     observer: Option<&'m mut dyn StepObserver>,
@@ -364,20 +401,25 @@ impl<'m> Engine<'m> {
             dry_time: vec![0.0; model.nodes().len()],
             events: Vec::new(),
             series: Vec::new(),
+            pending: None,
             stats: Statistics::default(),
             start_volume,
             observer: None,
         })
     }
 
-    fn run(mut self, progress: &mut dyn FnMut(f64)) -> Result<Run, SimulateError> {
+    fn run(
+        mut self,
+        progress: &mut dyn FnMut(f64),
+        mut sink: Option<&mut SeriesSink<'_>>,
+    ) -> Result<Run, SimulateError> {
         let duration = self.sim.duration;
         self.act()?;
         for (i, r) in self.running.iter_mut().enumerate() {
             *r = self.k1.pumps[i][0] > 0.0;
         }
         self.observe();
-        self.record();
+        self.record(&mut sink)?;
         let mut h_try = self.options.fixed_step.unwrap_or(FIRST_STEP.min(self.sim.hydraulic_step));
         while self.t < duration {
             let target = self.next_scheduled();
@@ -417,9 +459,12 @@ impl<'m> Engine<'m> {
             self.act()?;
             self.observe();
             if self.is_report_time() {
-                self.record();
+                self.record(&mut sink)?;
             }
             progress(self.t / duration);
+        }
+        if let (Some(sink), Some(last)) = (sink, self.pending.take()) {
+            sink(&last).map_err(|message| SimulateError::Output { time: last.time, message })?;
         }
         Ok(self.finish())
     }
@@ -864,9 +909,16 @@ impl<'m> Engine<'m> {
         }
     }
 
-    fn record(&mut self) {
+    /// Takes the state at a report time. A later state at the same instant (after the events
+    /// there) replaces it, so a streamed state is handed on only once the run has moved on.
+    fn record(&mut self, sink: &mut Option<&mut SeriesSink<'_>>) -> Result<(), SimulateError> {
         if self.series.last().is_some_and(|s| s.time == self.t) {
             self.series.pop();
+        }
+        if let Some(sink) = sink {
+            if let Some(done) = self.pending.take().filter(|p| p.time != self.t) {
+                sink(&done).map_err(|message| SimulateError::Output { time: done.time, message })?;
+            }
         }
         let sol = &self.k1.solution;
         let conditions = self.net.conditions();
@@ -899,7 +951,12 @@ impl<'m> Engine<'m> {
             pump_power: self.k1.pumps.iter().map(|p| p[2]).collect(),
             price: self.price(),
         };
-        self.series.push(snapshot);
+        if sink.is_some() {
+            self.pending = Some(snapshot);
+        } else {
+            self.series.push(snapshot);
+        }
+        Ok(())
     }
 
     fn finish(mut self) -> Run {

@@ -1,0 +1,332 @@
+//! Results as files: streamed simulation series (JSON, CSV, Parquet) equal to the series a run
+//! keeps, spreadsheet-safe CSV tables of every kind, signed pump head, the work bound of long
+//! simulations, the input size limit, and messages printed once with their snippet.
+
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output};
+
+fn example(name: &str) -> PathBuf {
+    PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("examples").join(name)
+}
+
+fn ringmain<S: AsRef<std::ffi::OsStr>>(args: &[S]) -> Output {
+    Command::new(env!("CARGO_BIN_EXE_ringmain")).args(args).output().expect("start ringmain")
+}
+
+fn text(bytes: &[u8]) -> String {
+    String::from_utf8_lossy(bytes).into_owned()
+}
+
+fn scratch(name: &str) -> PathBuf {
+    let dir = std::env::temp_dir().join(format!("ringmain-io-{}-{name}", std::process::id()));
+    let _ = std::fs::remove_dir_all(&dir);
+    std::fs::create_dir_all(&dir).unwrap();
+    dir
+}
+
+fn read_model(path: &Path) -> ringmain_core::Model {
+    let text = std::fs::read_to_string(path).unwrap();
+    ringmain_core::read_str(&text, ringmain_core::Format::Toml, "model").unwrap()
+}
+
+/// Parses a CSV line (RFC 4180 quoting) into its cells.
+fn cells(line: &str) -> Vec<String> {
+    let mut out = vec![String::new()];
+    let mut quoted = false;
+    let mut chars = line.chars().peekable();
+    while let Some(c) = chars.next() {
+        match (c, quoted) {
+            ('"', true) if chars.peek() == Some(&'"') => {
+                chars.next();
+                out.last_mut().unwrap().push('"');
+            }
+            ('"', _) => quoted = !quoted,
+            (',', false) => out.push(String::new()),
+            (c, _) => out.last_mut().unwrap().push(c),
+        }
+    }
+    out
+}
+
+/// The streamed JSON series is the series the engine keeps, state for state and value for value
+/// (the writer prints shortest round-trip numbers; serde_json's default reader may round the
+/// last bit differently, hence a tolerance of a few units in the last place).
+#[test]
+fn streamed_json_series_equals_the_kept_series() {
+    let path = example("hillside-day.toml");
+    let model = read_model(&path);
+    let run = ringmain_core::simulate(&model).unwrap();
+    let out = ringmain(&["simulate".as_ref(), path.as_os_str(), "--format".as_ref(), "json".as_ref()]);
+    assert!(out.status.success(), "{}", text(&out.stderr));
+    let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    let series = v["series"].as_array().unwrap();
+    assert_eq!(series.len(), run.series.len());
+    let length = model.units.length;
+    for (s, kept) in series.iter().zip(&run.series) {
+        assert_eq!(s["time_s"].as_f64().unwrap(), kept.time);
+        for (i, n) in s["nodes"].as_array().unwrap().iter().enumerate() {
+            let head = length.from_si(kept.head[i]);
+            match n["head"].as_f64() {
+                Some(h) => assert!(close(h, head), "node {i} at {}: {h} {head}", kept.time),
+                None => assert!(!head.is_finite(), "node {i} at {}", kept.time),
+            }
+        }
+        for (k, l) in s["links"].as_array().unwrap().iter().enumerate() {
+            assert!(close(l["flow"].as_f64().unwrap(), model.units.flow.from_si(kept.flow[k])));
+            assert_eq!(l["status"], kept.status[k]);
+        }
+    }
+    assert_eq!(v["summary"]["statistics"]["hydraulic_solves"], run.statistics.solves);
+    assert_eq!(v["events"].as_array().unwrap().len(), run.events.len());
+}
+
+/// Equal to within four units in the last place.
+fn close(a: f64, b: f64) -> bool {
+    a == b || (a - b).abs() <= 4.0 * f64::EPSILON * a.abs().max(b.abs())
+}
+
+/// `simulate --output FILE` prints the summary and a line naming the file written, in every
+/// series format; the file is complete and no temporary file is left beside it.
+#[test]
+fn simulate_output_prints_summary_and_the_file_written() {
+    let dir = scratch("summary");
+    for (format, name) in [("csv", "series.csv"), ("json", "series.json")] {
+        let file = dir.join(name);
+        let out = ringmain(&[
+            "simulate".as_ref(),
+            example("hillside-day.toml").as_os_str(),
+            "--format".as_ref(),
+            format.as_ref(),
+            "--output".as_ref(),
+            file.as_os_str(),
+        ]);
+        assert!(out.status.success(), "{}", text(&out.stderr));
+        let stdout = text(&out.stdout);
+        assert!(stdout.contains("Volume balance"), "{format}: no summary:\n{stdout}");
+        assert!(stdout.contains(&format!("wrote {}", file.display())), "{format}: no line naming the file:\n{stdout}");
+        assert!(stdout.contains("licensed engineer"), "{stdout}");
+        let written = std::fs::read_to_string(&file).unwrap();
+        if format == "json" {
+            let v: serde_json::Value = serde_json::from_str(&written).unwrap();
+            assert_eq!(v["series"].as_array().unwrap().len(), 193);
+        } else {
+            // 48 h every 15 min, both ends: 193 reported times, each ending with the price row.
+            assert_eq!(written.lines().filter(|l| l.contains(",energy,,price,")).count(), 193);
+        }
+    }
+    let left: Vec<_> = std::fs::read_dir(&dir).unwrap().map(|e| e.unwrap().file_name()).collect();
+    assert_eq!(left.len(), 2, "only the two outputs may be left: {left:?}");
+    let _ = std::fs::remove_dir_all(&dir);
+}
+
+/// Output over input (by identity, not by name): refused before anything is written.
+#[test]
+fn simulate_output_over_its_model_is_refused() {
+    let dir = scratch("over");
+    let model = dir.join("m.toml");
+    std::fs::copy(example("hillside-day.toml"), &model).unwrap();
+    let before = std::fs::read(&model).unwrap();
+    let alias = dir.join(".").join("m.toml");
+    let out = ringmain(&[
+        "simulate".as_ref(),
+        model.as_os_str(),
+        "--format".as_ref(),
+        "csv".as_ref(),
+        "--output".as_ref(),
+        alias.as_os_str(),
+    ]);
+    assert_eq!(out.status.code(), Some(2), "{}", text(&out.stderr));
+    assert_eq!(std::fs::read(&model).unwrap(), before);
+    let _ = std::fs::remove_dir_all(&dir);
+}
+
+/// A run far beyond the work bound (a year at a one-second step) is refused with exit 2 and a
+/// message naming `--force`, before any work; within the bound it runs as always.
+#[test]
+fn simulate_unbounded_work_needs_force() {
+    let dir = scratch("work");
+    let text_model = std::fs::read_to_string(example("hillside-day.toml")).unwrap();
+    let start = text_model.find("[simulation]").expect("the demo has a [simulation] table");
+    let end = text_model[start..].find("\n[").map_or(text_model.len(), |e| start + e + 1);
+    let long = format!(
+        "{}[simulation]\nduration = \"3650 d\"\nhydraulic_step = \"1 s\"\nreport_interval = \"1 d\"\n\n{}",
+        &text_model[..start],
+        &text_model[end..]
+    );
+    let model = dir.join("long.toml");
+    std::fs::write(&model, long).unwrap();
+    let clock = std::time::Instant::now();
+    let out = ringmain(&["simulate".as_ref(), model.as_os_str()]);
+    assert_eq!(out.status.code(), Some(2), "{}", text(&out.stderr));
+    let err = text(&out.stderr);
+    assert!(err.contains("--force") && err.contains("long.toml") && err.contains("[simulation]"), "{err}");
+    // Refused up front, not after running (a generous bound: the run would take hours).
+    assert!(clock.elapsed().as_secs() < 60);
+    let _ = std::fs::remove_dir_all(&dir);
+}
+
+/// The CSV of `solve`: every table (nodes, links, pumps, valves, summary) one value a row, and
+/// one file per table into a directory; numbers at seven significant digits.
+#[test]
+fn solve_csv_has_every_table_at_sensible_precision() {
+    let path = example("hillside.toml");
+    let out = ringmain(&["solve".as_ref(), path.as_os_str(), "--format".as_ref(), "csv".as_ref()]);
+    assert!(out.status.success(), "{}", text(&out.stderr));
+    let csv = text(&out.stdout);
+    let mut lines = csv.lines();
+    assert_eq!(lines.next(), Some("table,id,quantity,value,unit"));
+    let rows: Vec<Vec<String>> = lines.map(cells).collect();
+    for table in ["nodes", "links", "pumps", "valves", "summary"] {
+        assert!(rows.iter().any(|r| r[0] == table), "no {table} rows");
+    }
+    for r in &rows {
+        assert_eq!(r.len(), 5, "{r:?}");
+        if let Ok(v) = r[3].parse::<f64>() {
+            let digits = r[3].trim_start_matches('-').replace('.', "");
+            let significant = digits.split('e').next().unwrap().trim_start_matches('0').len();
+            assert!(significant <= 7, "{r:?} has {significant} digits; v = {v}");
+        }
+    }
+    // The pump's head gain is a gain, and its loss in the links table is negative.
+    let pump = rows.iter().find(|r| r[0] == "pumps" && r[2] == "head_gain").expect("a pump");
+    let gain: f64 = pump[3].parse().unwrap();
+    let loss: f64 =
+        rows.iter().find(|r| r[0] == "links" && r[1] == pump[1] && r[2] == "headloss").unwrap()[3].parse().unwrap();
+    assert!(gain > 0.0 && (loss + gain).abs() <= 1e-6 * gain, "gain {gain}, loss {loss}");
+
+    let dir = scratch("tables");
+    let tables = dir.join("results");
+    let out = ringmain(&[
+        "solve".as_ref(),
+        path.as_os_str(),
+        "--format".as_ref(),
+        "csv".as_ref(),
+        "--output".as_ref(),
+        tables.as_os_str(),
+    ]);
+    assert!(out.status.success(), "{}", text(&out.stderr));
+    let nodes = std::fs::read_to_string(tables.join("nodes.csv")).unwrap();
+    let header = nodes.lines().next().unwrap();
+    assert!(header.starts_with("id,kind,elevation_m,head_m,pressure_m,demand_"), "{header}");
+    let model = read_model(&path);
+    assert_eq!(nodes.lines().count(), model.nodes().len() + 1);
+    for name in ["links", "pumps", "valves", "summary"] {
+        assert!(tables.join(format!("{name}.csv")).is_file(), "{name}.csv");
+    }
+    let _ = std::fs::remove_dir_all(&dir);
+}
+
+/// Formula injection through ids: every id that begins with `=`, `+`, `-` or `@` is written
+/// neutralised (a leading apostrophe) in every CSV the program writes, solve and simulate.
+#[test]
+fn csv_formula_injection_through_ids_is_neutralised() {
+    let dir = scratch("inject");
+    let model = "title = \"ids a spreadsheet would evaluate\"\n\
+        [simulation]\nduration = \"2 h\"\nhydraulic_step = \"1 h\"\nreport_interval = \"1 h\"\n\n\
+        [[nodes]]\nid = \"=HYPERLINK(1)\"\nkind = \"reservoir\"\nhead = 50\n\n\
+        [[nodes]]\nid = \"+J1\"\nelevation = 10\ndemand = 5\n\n\
+        [[nodes]]\nid = \"-J2\"\nelevation = 12\ndemand = 3\n\n\
+        [[nodes]]\nid = \"@J3\"\nelevation = 11\ndemand = 2\n\n\
+        [[links]]\nid = \"=P1\"\nfrom = \"=HYPERLINK(1)\"\nto = \"+J1\"\nlength = 100\ndiameter = 150\nroughness = 120\n\n\
+        [[links]]\nid = \"@P2\"\nfrom = \"+J1\"\nto = \"-J2\"\nlength = 100\ndiameter = 100\nroughness = 120\n\n\
+        [[links]]\nid = \"-P3\"\nfrom = \"+J1\"\nto = \"@J3\"\nlength = 100\ndiameter = 100\nroughness = 120\n";
+    let path = dir.join("inject.toml");
+    std::fs::write(&path, model).unwrap();
+    let solved = ringmain(&["solve".as_ref(), path.as_os_str(), "--format".as_ref(), "csv".as_ref()]);
+    assert!(solved.status.success(), "{}", text(&solved.stderr));
+    let simulated = ringmain(&["simulate".as_ref(), path.as_os_str(), "--format".as_ref(), "csv".as_ref()]);
+    assert!(simulated.status.success(), "{}", text(&simulated.stderr));
+    let tables = dir.join("tables");
+    let out = ringmain(&[
+        "solve".as_ref(),
+        path.as_os_str(),
+        "--format".as_ref(),
+        "csv".as_ref(),
+        "--output".as_ref(),
+        tables.as_os_str(),
+    ]);
+    assert!(out.status.success(), "{}", text(&out.stderr));
+    let mut all = vec![text(&solved.stdout), text(&simulated.stdout)];
+    for name in ["nodes", "links"] {
+        all.push(std::fs::read_to_string(tables.join(format!("{name}.csv"))).unwrap());
+    }
+    let mut seen = 0;
+    for csv in &all {
+        for line in csv.lines().skip(1) {
+            for cell in cells(line) {
+                assert!(!cell.starts_with(['=', '+', '@']), "a formula cell: {cell:?} in {line:?}");
+                if cell.starts_with('-') {
+                    assert!(cell.parse::<f64>().is_ok(), "a text cell starting with '-': {cell:?} in {line:?}");
+                }
+                seen += usize::from(cell.starts_with("'"));
+            }
+        }
+    }
+    assert!(seen > 20, "the neutralised ids must be there: {seen}");
+    let _ = std::fs::remove_dir_all(&dir);
+}
+
+/// The JSON and the table give a pump a head gain, and its head loss as a signed, negative value.
+#[test]
+fn pump_head_gain_is_never_a_positive_loss() {
+    let out = ringmain(&["solve".as_ref(), example("hillside.toml").as_os_str(), "--format".as_ref(), "json".as_ref()]);
+    assert!(out.status.success(), "{}", text(&out.stderr));
+    let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    let pumps: Vec<&serde_json::Value> =
+        v["links"].as_array().unwrap().iter().filter(|l| l["kind"] == "pump").collect();
+    assert!(!pumps.is_empty());
+    let head = |id: &serde_json::Value| {
+        v["nodes"].as_array().unwrap().iter().find(|n| n["id"] == *id).unwrap()["head"].as_f64().unwrap()
+    };
+    for p in pumps {
+        let gain = p["head_gain"].as_f64().unwrap();
+        let loss = p["headloss"].as_f64().unwrap();
+        assert!(gain > 0.0, "{p}");
+        // Signed: H_from - H_to, the negative of the head the pump adds.
+        assert!((loss - (head(&p["from"]) - head(&p["to"]))).abs() < 1e-9, "{p}");
+        assert!((loss + gain).abs() < 1e-6 * gain, "{p}");
+    }
+}
+
+/// A model larger than the input limit is refused with exit 2 naming the file and the limit;
+/// an endless stream (a character device) is refused the same way instead of growing memory.
+#[test]
+fn input_beyond_the_size_limit_is_refused() {
+    let path = example("hillside.toml");
+    let out = ringmain(&["solve".as_ref(), path.as_os_str(), "--max-input-mb".as_ref(), "0.001".as_ref()]);
+    assert_eq!(out.status.code(), Some(2), "{}", text(&out.stderr));
+    let err = text(&out.stderr);
+    assert!(err.contains("hillside.toml") && err.contains("--max-input-mb"), "{err}");
+    let ok = ringmain(&["solve".as_ref(), path.as_os_str(), "--max-input-mb".as_ref(), "1".as_ref()]);
+    assert!(ok.status.success(), "{}", text(&ok.stderr));
+    if Path::new("/dev/zero").exists() {
+        let out = ringmain(&["solve", "/dev/zero", "--max-input-mb", "2"]);
+        assert_eq!(out.status.code(), Some(2), "{}", text(&out.stderr));
+        assert!(text(&out.stderr).contains("--max-input-mb"), "{}", text(&out.stderr));
+    }
+}
+
+/// `check` prints an error once (the snippet follows without repeating it), and `solve` shows
+/// the same snippet.
+#[test]
+fn errors_are_printed_once_with_their_snippet_in_check_and_solve() {
+    let dir = scratch("once");
+    let path = dir.join("bad.toml");
+    std::fs::write(
+        &path,
+        "[[nodes]]\nid = \"R\"\nkind = \"reservoir\"\nhead = 50\n\n[[nodes]]\nid = \"J\"\nelevation = 1\ndemand = \"lots\"\n\n\
+         [[links]]\nid = \"P\"\nfrom = \"R\"\nto = \"J\"\nlength = 10\ndiameter = 100\nroughness = 120\n",
+    )
+    .unwrap();
+    for command in ["check", "solve"] {
+        let out = ringmain(&[command.as_ref(), path.as_os_str()]);
+        assert_eq!(out.status.code(), Some(2));
+        let err = text(&out.stderr);
+        assert_eq!(err.matches("lots").count() + err.matches("demand").count() >= 2, true, "{err}");
+        let mentions = err.lines().filter(|l| l.to_ascii_lowercase().contains("error")).count();
+        assert_eq!(mentions, 1, "{command}: the error must be printed once:\n{err}");
+        assert!(err.lines().next().unwrap().starts_with("error: "), "{err}");
+        assert!(err.lines().skip(1).any(|l| l.contains("9 │")), "{command}: no snippet of line 9:\n{err}");
+    }
+    let _ = std::fs::remove_dir_all(&dir);
+}
