@@ -5,6 +5,7 @@
 
 mod check;
 mod check_report;
+mod fire_flow;
 mod plot;
 mod report;
 mod simulation;
@@ -114,6 +115,39 @@ enum Command {
         #[arg(long, value_name = "N", default_value_t = ringmain_core::analysis::CheckOptions::KEEP)]
         offenders: usize,
     },
+    /// Fire flow available at hydrants while the network holds a residual pressure.
+    ///
+    /// For each hydrant (a junction), with the rest of the network drawing its demands: the extra
+    /// draw at which its own pressure falls to the residual (hydrant_limited), and the one at which
+    /// the lowest pressure among the protected junctions (those at or above the residual without
+    /// a fire draw) falls to it (system_limited); the available fire flow is the smaller.
+    FireFlow {
+        /// The model file (.toml or .json).
+        model: PathBuf,
+        /// Residual pressure to hold, with its unit: "20 psi", "140 kPa", "1.4 bar", "14 m"; a
+        /// bare number is in the model's pressure unit. 20 psi is common practice in North
+        /// America.
+        #[arg(long)]
+        residual: String,
+        /// A hydrant, by junction id (repeatable).
+        #[arg(long, value_name = "ID")]
+        at: Vec<String>,
+        /// Every junction of this zone is a hydrant.
+        #[arg(long, value_name = "Z")]
+        zone: Option<String>,
+        /// Every junction is a hydrant.
+        #[arg(long)]
+        all_junctions: bool,
+        /// Multiply every junction demand by this factor (not outlets or leakage).
+        #[arg(long, value_name = "F", default_value_t = 1.0)]
+        demand_factor: f64,
+        /// Output format.
+        #[arg(long, value_enum, default_value_t = OutputFormat::Table)]
+        format: OutputFormat,
+        /// Write the results to this file instead of standard output.
+        #[arg(long, short)]
+        output: Option<PathBuf>,
+    },
     /// Print the density and viscosity of water at a temperature (IAPWS formulations).
     WaterProperties {
         /// Water temperature, deg C (0 to 99).
@@ -173,6 +207,9 @@ fn main() -> ExitCode {
                 junit,
                 keep: offenders,
             })
+        }
+        Command::FireFlow { model, residual, at, zone, all_junctions, demand_factor, format, output } => {
+            fire_flow::run(fire_flow::Args { model, residual, at, zone, all_junctions, demand_factor, format, output })
         }
         Command::WaterProperties { temperature, format } => water_properties(temperature, format),
         Command::FrictionFactor { reynolds, relative_roughness, format } => {
