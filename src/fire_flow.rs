@@ -141,6 +141,9 @@ pub fn run(args: Args) -> ExitCode {
         crate::OutputFormat::Json => view.json(&results, residual, args.demand_factor),
         crate::OutputFormat::Csv => view.csv(&results),
         crate::OutputFormat::Table => view.table(&results, residual, args.demand_factor),
+        crate::OutputFormat::Geojson => {
+            return invalid("--format geojson applies to solve and simulate (results on a map)".into())
+        }
     };
     match &args.output {
         None => crate::write_out(&text, None),

@@ -5,8 +5,13 @@
 
 mod check;
 mod check_report;
+mod duty;
 mod fire_flow;
+mod gis;
+mod import_cmd;
+mod map;
 mod plot;
+mod quality_report;
 mod report;
 mod simulation;
 mod snippet;
@@ -78,9 +83,67 @@ enum Command {
         /// Write the results to this file instead of standard output.
         #[arg(long, short)]
         output: Option<PathBuf>,
-        /// Write SVG charts (tanks.svg, pumps.svg, pressures.svg) into this directory.
+        /// Write SVG charts (tanks.svg, pumps.svg, pressures.svg, and quality-<id>.svg per
+        /// water-quality constituent) into this directory.
         #[arg(long, value_name = "DIR")]
         plot: Option<PathBuf>,
+        /// With --format geojson: the values at this reported instant (elapsed time such as
+        /// "6h" or "1h30min") instead of each element's worst instant.
+        #[arg(long, value_name = "TIME")]
+        at: Option<String>,
+        /// Check water-quality criteria over the run (max_age, min_residual, after): a criteria
+        /// file (TOML or JSON) whose keys override the model's [criteria]. Exit 1 when one fails.
+        #[arg(long, value_name = "FILE")]
+        criteria: Option<PathBuf>,
+    },
+    /// Build a model from GIS data: GeoJSON pipes (and points) with a fields file.
+    ///
+    /// Pipe ends within the snap distance join, points split the pipes they sit on, duplicates
+    /// and zero-length pipes are dropped, near misses and unreached nodes are reported (a summary
+    /// on standard error, everything with --report). See the README's import section.
+    Import {
+        /// The pipes: a GeoJSON FeatureCollection of LineStrings.
+        #[arg(long, value_name = "PIPES.geojson")]
+        pipes: PathBuf,
+        /// The points: a GeoJSON FeatureCollection of Points (reservoirs, tanks, hydrants...).
+        #[arg(long, value_name = "POINTS.geojson")]
+        points: Option<PathBuf>,
+        /// The fields file (TOML) mapping attributes to model keys; see examples/FIELDS.toml.
+        #[arg(long, value_name = "FIELDS.toml")]
+        fields: PathBuf,
+        /// Snap distance: metres for longitude/latitude input, the [crs] unit otherwise.
+        #[arg(long, default_value_t = ringmain_core::import::ImportOptions::SNAP)]
+        snap: f64,
+        /// The model file to write (.toml or .json); standard output (TOML) when not given.
+        #[arg(long, short, value_name = "MODEL")]
+        output: Option<PathBuf>,
+        /// Write the report of every decision (JSON) to this file.
+        #[arg(long, value_name = "REPORT.json")]
+        report: Option<PathBuf>,
+        /// Give nodes without an elevation one interpolated along the network.
+        #[arg(long)]
+        elevation_from_neighbours: bool,
+        /// The elevation of nodes that have none otherwise, in the model's length unit.
+        #[arg(long, value_name = "Z", allow_negative_numbers = true)]
+        elevation_default: Option<f64>,
+    },
+    /// Draw the network coloured by a result: one self-contained HTML page or an SVG file.
+    ///
+    /// Models with a [simulation] table are simulated (each element's worst instant, or --at);
+    /// others are solved as a snapshot.
+    Map {
+        /// The model file (.toml or .json); its nodes need coordinates.
+        model: PathBuf,
+        /// The quantity to colour by: pressure, head, demand, delivered, elevation (nodes);
+        /// flow, velocity, headloss, unit_headloss (links).
+        #[arg(long, default_value = "pressure")]
+        quantity: String,
+        /// A reported instant of the simulation (elapsed time such as "6h").
+        #[arg(long, value_name = "TIME")]
+        at: Option<String>,
+        /// The map to write: .html or .svg.
+        #[arg(long, short, value_name = "map.html|map.svg")]
+        output: PathBuf,
     },
     /// Check a model against service criteria, with what-if closures: for CI pipelines.
     ///
@@ -148,6 +211,53 @@ enum Command {
         #[arg(long, short)]
         output: Option<PathBuf>,
     },
+    /// The system curve a pump works against, its operating point at each speed, the shaft power,
+    /// the motor rating and the net positive suction head.
+    ///
+    /// The system curve is the head the pump must add at each flow through it, with the rest of
+    /// the network solved at that flow. Values are in the model's units; motor ratings from IEC
+    /// 60072-1 (kW, SI models) or NEMA MG 1 (hp, models in feet).
+    #[command(
+        after_help = "Exit codes: 0 done; 2 invalid model, pump or arguments, or no operating point at a                             speed; 3 the solver did not converge at a flow or speed; 4 the results or the chart                             could not be written."
+    )]
+    Duty {
+        /// The model file (.toml or .json).
+        model: PathBuf,
+        /// The pump's link id.
+        #[arg(long, value_name = "ID")]
+        pump: String,
+        /// Pump flows of the system curve, START:STOP:STEP in the model's flow unit (STOP
+        /// included when on the grid); default 0 to 1.5 times the last flow of the pump's curve
+        /// in 40 steps.
+        #[arg(long, value_name = "START:STOP:STEP")]
+        flows: Option<String>,
+        /// Relative speeds of the operating points, comma-separated (default: the pump's speed).
+        #[arg(long, value_name = "S,S,...", value_delimiter = ',')]
+        speeds: Vec<f64>,
+        /// Motor margin over the shaft power, a fraction.
+        #[arg(long, value_name = "F", default_value_t = ringmain_core::duty::DutyOptions::MOTOR_MARGIN)]
+        motor_margin: f64,
+        /// NPSH margin: NPSH available should be at least NPSH required times (1 + F).
+        #[arg(long, value_name = "F", default_value_t = ringmain_core::duty::DutyOptions::NPSH_MARGIN)]
+        npsh_margin: f64,
+        /// Tank levels of the system curve: "current", or "min,max" for the band between the
+        /// emptiest and the fullest tanks.
+        #[arg(long, value_name = "current|min,max", default_value = "current")]
+        tank_levels: String,
+        /// Output format.
+        #[arg(long, value_enum, default_value_t = OutputFormat::Table)]
+        format: OutputFormat,
+        /// Also write an SVG chart to this file.
+        #[arg(long, value_name = "FILE.svg")]
+        plot: Option<PathBuf>,
+    },
+    /// List the kinds of named fitting, their parameters, their K under each method and the
+    /// sources.
+    Fittings {
+        /// Output format.
+        #[arg(long, value_enum, default_value_t = OutputFormat::Table)]
+        format: OutputFormat,
+    },
     /// Print the density and viscosity of water at a temperature (IAPWS formulations).
     WaterProperties {
         /// Water temperature, deg C (0 to 99).
@@ -178,24 +288,46 @@ enum CheckFormat {
 }
 
 #[derive(Clone, Copy, PartialEq, Eq, ValueEnum)]
-enum OutputFormat {
+pub(crate) enum OutputFormat {
     Table,
     Json,
     Csv,
+    /// A GeoJSON FeatureCollection of nodes and links with their results (solve, simulate).
+    Geojson,
 }
 
-const EXIT_INVALID: u8 = 2;
-const EXIT_NOT_CONVERGED: u8 = 3;
-const EXIT_WRITE: u8 = 4;
+pub(crate) const EXIT_INVALID: u8 = 2;
+pub(crate) const EXIT_NOT_CONVERGED: u8 = 3;
+pub(crate) const EXIT_WRITE: u8 = 4;
 
 fn main() -> ExitCode {
     let cli = Cli::parse();
     match cli.command {
         Command::Solve { model, format, output, timings } => solve(&model, format, output.as_deref(), timings),
         Command::Generate { junctions, seed, output } => generate(junctions, seed, &output),
-        Command::Simulate { model, format, output, plot } => {
-            simulate(&model, format, output.as_deref(), plot.as_deref())
+        Command::Simulate { model, format, output, plot, at, criteria } => {
+            simulate(&model, format, output.as_deref(), plot.as_deref(), at.as_deref(), criteria.as_deref())
         }
+        Command::Import {
+            pipes,
+            points,
+            fields,
+            snap,
+            output,
+            report,
+            elevation_from_neighbours,
+            elevation_default,
+        } => import_cmd::run(import_cmd::Args {
+            pipes,
+            points,
+            fields,
+            snap,
+            output,
+            report,
+            elevation_from_neighbours,
+            elevation_default,
+        }),
+        Command::Map { model, quantity, at, output } => draw_map(&model, &quantity, at.as_deref(), &output),
         Command::Check { model, criteria, close, demand_factor, each_pipe_closed, format, junit, offenders } => {
             check::run(check::Args {
                 model,
@@ -208,6 +340,18 @@ fn main() -> ExitCode {
                 keep: offenders,
             })
         }
+        Command::WaterProperties { format: OutputFormat::Geojson, .. }
+        | Command::FrictionFactor { format: OutputFormat::Geojson, .. }
+        | Command::Duty { format: OutputFormat::Geojson, .. }
+        | Command::FireFlow { format: OutputFormat::Geojson, .. }
+        | Command::Fittings { format: OutputFormat::Geojson } => {
+            eprintln!("error: --format geojson applies to solve and simulate (results on a map)");
+            ExitCode::from(EXIT_INVALID)
+        }
+        Command::Duty { model, pump, flows, speeds, motor_margin, npsh_margin, tank_levels, format, plot } => {
+            duty::run(duty::Args { model, pump, flows, speeds, motor_margin, npsh_margin, tank_levels, format, plot })
+        }
+        Command::Fittings { format } => duty::list_fittings(format),
         Command::FireFlow { model, residual, at, zone, all_junctions, demand_factor, format, output } => {
             fire_flow::run(fire_flow::Args { model, residual, at, zone, all_junctions, demand_factor, format, output })
         }
@@ -222,7 +366,7 @@ fn main() -> ExitCode {
 ///
 /// The message is one line (scripts and the error tests read it); on a terminal a snippet of the
 /// offending line follows it. `check` always adds the snippet.
-fn load(path: &Path) -> Result<Model, ()> {
+pub(crate) fn load(path: &Path) -> Result<Model, ()> {
     use std::io::IsTerminal;
     let snippet = std::io::stderr().is_terminal();
     check::read_model(path)
@@ -278,7 +422,7 @@ fn solve(path: &Path, format: OutputFormat, output: Option<&Path>, timings: bool
     let Ok(model) = load(path) else { return ExitCode::from(EXIT_INVALID) };
     let reading = clock.elapsed();
     let mut solver = None;
-    let solved = ringmain_core::Solver::new(&model).and_then(|s| solver.insert(s).solve(&model));
+    let solved = ringmain_core::Solver::new(&model).and_then(|s| solver.insert(s).solve_model(&model));
     let solution = match solved {
         Ok(s) => s,
         Err(SolveError::Model(e)) => {
@@ -298,11 +442,16 @@ fn solve(path: &Path, format: OutputFormat, output: Option<&Path>, timings: bool
             }
         }
     }
+    if format == OutputFormat::Geojson {
+        let code = write_geojson(path, output, gis::GisResults::from_solution(&model, &solution));
+        std::mem::forget((solution, model, solver));
+        return code;
+    }
     let report = report::Report::new(&model, &solution);
     let code = write_with("the results", output, |out| match format {
         OutputFormat::Table => report.write_table(out),
         OutputFormat::Json => report.write_json(out),
-        OutputFormat::Csv => report.write_csv(out),
+        OutputFormat::Csv | OutputFormat::Geojson => report.write_csv(out),
     });
     let writing = clock.elapsed();
     if let (true, Some(solver)) = (timings, &solver) {
@@ -317,7 +466,7 @@ fn solve(path: &Path, format: OutputFormat, output: Option<&Path>, timings: bool
 /// The `--timings` report, on standard error.
 fn print_timings(model: &Model, solver: &ringmain_core::Solver, reading: Duration, writing: Duration) {
     let t = solver.timings();
-    let pattern = solver.pattern();
+    let pattern = solver.structure();
     let ms = |d: Duration| d.as_secs_f64() * 1e3;
     let iterating = t.iterating();
     let share = |d: Duration| if iterating.is_zero() { 0.0 } else { 100.0 * d.as_secs_f64() / iterating.as_secs_f64() };
@@ -417,15 +566,157 @@ impl Progress {
     }
 }
 
-fn simulate(path: &Path, format: OutputFormat, output: Option<&Path>, plot_dir: Option<&Path>) -> ExitCode {
-    use ringmain_core::SimulateError;
+/// Writes per-element results as GeoJSON (no partial file on failure).
+fn write_geojson(
+    path: &Path,
+    output: Option<&Path>,
+    results: Result<gis::GisResults<'_>, ringmain_core::ModelError>,
+) -> ExitCode {
+    let results = match results.and_then(|r| r.check_coordinates().map(|()| r)) {
+        Ok(r) => r,
+        Err(e) => {
+            eprintln!("error: {}", e.in_file(path.display().to_string()));
+            return ExitCode::from(EXIT_INVALID);
+        }
+    };
+    match output {
+        None => write_with("the results", None, |out| results.write_geojson(out)),
+        Some(file) => match import_cmd::write_atomically(file, |out| results.write_geojson(out)) {
+            Ok(()) => ExitCode::SUCCESS,
+            Err(e) => {
+                eprintln!("error: cannot write the results to {}: {e}", file.display());
+                ExitCode::from(EXIT_WRITE)
+            }
+        },
+    }
+}
+
+/// `ringmain map`.
+fn draw_map(path: &Path, quantity: &str, at: Option<&str>, output: &Path) -> ExitCode {
+    let extension = output.extension().and_then(|e| e.to_str()).map(str::to_ascii_lowercase);
+    let svg = match extension.as_deref() {
+        Some("html" | "htm") => false,
+        Some("svg") => true,
+        _ => {
+            eprintln!("error: --output {}: the file name must end in .html or .svg", output.display());
+            return ExitCode::from(EXIT_INVALID);
+        }
+    };
+    if import_cmd::same_file(path, output) {
+        eprintln!("error: --output {} is the model file; choose another name", output.display());
+        return ExitCode::from(EXIT_INVALID);
+    }
+    let at = match at.map(gis::parse_at).transpose() {
+        Ok(t) => t,
+        Err(m) => {
+            eprintln!("error: {m}");
+            return ExitCode::from(EXIT_INVALID);
+        }
+    };
     let Ok(model) = load(path) else { return ExitCode::from(EXIT_INVALID) };
-    let mut progress = Progress::new();
-    let result = ringmain_core::simulate::simulate_with(&model, &ringmain_core::SimulateOptions::default(), &mut |f| {
-        progress.update(f)
+    let results = match results_for_map(path, &model, at) {
+        Ok(r) => r,
+        Err(code) => return code,
+    };
+    let results = match results.check_coordinates() {
+        Ok(()) => results,
+        Err(e) => {
+            eprintln!("error: {}", e.in_file(path.display().to_string()));
+            return ExitCode::from(EXIT_INVALID);
+        }
+    };
+    if results.quantity(quantity).is_none() {
+        eprintln!(
+            "error: --quantity {quantity}: not a result of this model; expected one of {}",
+            results.names().join(", ")
+        );
+        return ExitCode::from(EXIT_INVALID);
+    }
+    let written = import_cmd::write_atomically(output, |out| {
+        if svg {
+            map::write_svg(&results, quantity, out)
+        } else {
+            map::write_html(&results, quantity, out)
+        }
     });
+    match written {
+        Ok(()) => ExitCode::SUCCESS,
+        Err(e) => {
+            eprintln!("error: cannot write the map to {}: {e}", output.display());
+            ExitCode::from(EXIT_WRITE)
+        }
+    }
+}
+
+/// The results a map draws: a simulation's when the model has one, else a snapshot's.
+fn results_for_map<'a>(path: &Path, model: &'a Model, at: Option<f64>) -> Result<gis::GisResults<'a>, ExitCode> {
+    let fail = |e: ringmain_core::ModelError| {
+        eprintln!("error: {}", e.in_file(path.display().to_string()));
+        ExitCode::from(EXIT_INVALID)
+    };
+    if model.time.simulation.is_some() {
+        let run = match ringmain_core::simulate::simulate(model) {
+            Ok(r) => r,
+            Err(ringmain_core::SimulateError::Model(e)) => return Err(fail(e)),
+            Err(e) => {
+                eprintln!("error: {}: {e}", path.display());
+                return Err(ExitCode::from(EXIT_NOT_CONVERGED));
+            }
+        };
+        return gis::GisResults::from_run(model, &run, at).map_err(fail);
+    }
+    if at.is_some() {
+        eprintln!("error: --at: {} has no [simulation] table; a snapshot has no instants", path.display());
+        return Err(ExitCode::from(EXIT_INVALID));
+    }
+    match ringmain_core::solve(model) {
+        Ok(s) => gis::GisResults::from_solution(model, &s).map_err(fail),
+        Err(SolveError::Model(e)) => Err(fail(e)),
+        Err(e) => {
+            eprintln!("error: {}: {e}", path.display());
+            Err(ExitCode::from(EXIT_NOT_CONVERGED))
+        }
+    }
+}
+
+fn simulate(
+    path: &Path,
+    format: OutputFormat,
+    output: Option<&Path>,
+    plot_dir: Option<&Path>,
+    at: Option<&str>,
+    criteria_path: Option<&Path>,
+) -> ExitCode {
+    use ringmain_core::SimulateError;
+    let at = match at {
+        None => None,
+        Some(_) if format != OutputFormat::Geojson => {
+            eprintln!("error: --at applies to --format geojson");
+            return ExitCode::from(EXIT_INVALID);
+        }
+        Some(text) => match gis::parse_at(text) {
+            Ok(t) => Some(t),
+            Err(m) => {
+                eprintln!("error: {m}");
+                return ExitCode::from(EXIT_INVALID);
+            }
+        },
+    };
+    let Ok(model) = load(path) else { return ExitCode::from(EXIT_INVALID) };
+    let criteria = match check::criteria_for(&model, path, criteria_path) {
+        Ok(c) => c,
+        Err(()) => return ExitCode::from(EXIT_INVALID),
+    };
+    let with_quality = !model.time.quality.constituents.is_empty();
+    let mut progress = Progress::new();
+    let options = ringmain_core::SimulateOptions::default();
+    let result = if with_quality {
+        ringmain_core::quality::simulate(&model, &options, &mut |f| progress.update(f)).map(|(r, q)| (r, Some(q)))
+    } else {
+        ringmain_core::simulate::simulate_with(&model, &options, &mut |f| progress.update(f)).map(|r| (r, None))
+    };
     progress.finish();
-    let run = match result {
+    let (run, quality) = match result {
         Ok(r) => r,
         Err(SimulateError::Model(e)) => {
             eprintln!("error: {}", e.in_file(path.display().to_string()));
@@ -436,7 +727,32 @@ fn simulate(path: &Path, format: OutputFormat, output: Option<&Path>, plot_dir: 
             return ExitCode::from(EXIT_NOT_CONVERGED);
         }
     };
-    let report = simulation::RunReport::new(&model, &run);
+    if format == OutputFormat::Geojson {
+        return write_geojson(path, output, gis::GisResults::from_run(&model, &run, at));
+    }
+    let mut report = simulation::RunReport::new(&model, &run);
+    report.quality = quality.as_ref();
+    if let Some(criteria) = criteria.as_ref().filter(|c| c.has_quality_limits()) {
+        let Some(q) = quality.as_ref() else {
+            eprintln!(
+                "error: {}: [criteria]: key 'max_age'/'min_residual': the model has no [[quality]] constituents to check",
+                path.display()
+            );
+            return ExitCode::from(EXIT_INVALID);
+        };
+        match ringmain_core::quality::criteria::evaluate(
+            criteria,
+            &model,
+            q,
+            ringmain_core::analysis::CheckOptions::KEEP,
+        ) {
+            Ok(checks) => report.checks = checks,
+            Err(e) => {
+                eprintln!("error: {}", e.in_file(criteria_path.unwrap_or(path).display().to_string()));
+                return ExitCode::from(EXIT_INVALID);
+            }
+        }
+    }
     if let Some(dir) = plot_dir {
         match plot::write_all(&report, dir) {
             Ok(files) => {
@@ -450,14 +766,21 @@ fn simulate(path: &Path, format: OutputFormat, output: Option<&Path>, plot_dir: 
             }
         }
     }
-    write_with("the results", output, |out| match format {
+    let written = write_with("the results", output, |out| match format {
         OutputFormat::Table => out.write_all(report.to_table().as_bytes()),
         OutputFormat::Json => {
             serde_json::to_writer_pretty(&mut *out, &report.to_json())?;
             out.write_all(b"\n")
         }
-        OutputFormat::Csv => out.write_all(report.to_csv().as_bytes()),
-    })
+        OutputFormat::Csv | OutputFormat::Geojson => out.write_all(report.to_csv().as_bytes()),
+    });
+    if written != ExitCode::SUCCESS {
+        return written;
+    }
+    if report.checks.iter().any(|c| !c.passed()) {
+        return ExitCode::from(check::EXIT_FAILED);
+    }
+    ExitCode::SUCCESS
 }
 
 fn water_properties(temperature: f64, format: OutputFormat) -> ExitCode {
@@ -475,18 +798,23 @@ fn water_properties(temperature: f64, format: OutputFormat) -> ExitCode {
             serde_json::json!({
                 "temperature": temperature, "density": w.density,
                 "dynamic_viscosity": w.dynamic_viscosity, "kinematic_viscosity": w.kinematic_viscosity,
+                "vapour_pressure": w.vapour_pressure(),
             })
             .to_string()
                 + "\n"
         }
-        OutputFormat::Csv => format!(
+        OutputFormat::Csv | OutputFormat::Geojson => format!(
             "temperature_C,density_kg_m3,dynamic_viscosity_Pa_s,kinematic_viscosity_m2_s\n{},{},{},{}\n",
             temperature, w.density, w.dynamic_viscosity, w.kinematic_viscosity
         ),
         OutputFormat::Table => format!(
             "water at {temperature} deg C and 101.325 kPa\n  density              {:.4} kg/m3 (IAPWS-IF97)\n  \
-             dynamic viscosity    {:.6e} Pa s (IAPWS 2008)\n  kinematic viscosity  {:.6e} m2/s\n",
-            w.density, w.dynamic_viscosity, w.kinematic_viscosity
+             dynamic viscosity    {:.6e} Pa s (IAPWS 2008)\n  kinematic viscosity  {:.6e} m2/s\n  \
+             vapour pressure      {:.2} Pa (IAPWS-IF97 saturation line)\n",
+            w.density,
+            w.dynamic_viscosity,
+            w.kinematic_viscosity,
+            w.vapour_pressure()
         ),
     };
     write_out(&text, None)
@@ -515,7 +843,9 @@ fn friction(re: f64, rr: f64, format: OutputFormat) -> ExitCode {
                 .to_string()
                 + "\n"
         }
-        OutputFormat::Csv => format!("reynolds,relative_roughness,friction_factor\n{re},{rr},{f}\n"),
+        OutputFormat::Csv | OutputFormat::Geojson => {
+            format!("reynolds,relative_roughness,friction_factor\n{re},{rr},{f}\n")
+        }
         OutputFormat::Table => format!("Darcy friction factor f = {f:.6} at Re = {re}, e/D = {rr}: {regime}\n"),
     };
     write_out(&text, None)

@@ -27,6 +27,16 @@ pub enum Element {
     Control(String),
     /// The n-th entry (0-based) of an array of tables such as `patterns`, when it has no usable id.
     Entry(String, usize),
+    /// A feature of a GeoJSON file being imported: its 0-based index in `features` and its id,
+    /// when it has one.
+    Feature {
+        /// Index in the file's `features` array, 0-based.
+        index: usize,
+        /// The feature's id (the mapped id attribute, or else its `id` member).
+        id: Option<String>,
+    },
+    /// A water-quality constituent (`[[quality]]`), by id.
+    Constituent(String),
 }
 
 impl fmt::Display for Element {
@@ -40,6 +50,11 @@ impl fmt::Display for Element {
             Element::Pattern(id) => write!(f, "pattern '{}'", printable(id)),
             Element::Control(id) => write!(f, "control '{}'", printable(id)),
             Element::Entry(table, i) => write!(f, "{table} entry #{}", i + 1),
+            Element::Feature { index, id: Some(id) } => {
+                write!(f, "feature #{} (features[{index}], id '{}')", index + 1, printable(id))
+            }
+            Element::Feature { index, id: None } => write!(f, "feature #{} (features[{index}], no id)", index + 1),
+            Element::Constituent(id) => write!(f, "quality '{}'", printable(id)),
         }
     }
 }

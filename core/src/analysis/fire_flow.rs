@@ -21,12 +21,13 @@
 //! (Dowell & Jarratt, 1971, BIT 11) inside a bracket grown by extrapolation. On a single main the
 //! first secant step is exact; on looped networks a few solves suffice. Every solve starts from
 //! the previous one (a warm start), and hydrants are spread over all cores, each thread with its
-//! own copy of the model and of the solver sharing one analysis of the network structure.
+//! own [`Conditions`] (only the hydrant's demand changes) and its own solver sharing one analysis
+//! of the network structure; the model is never copied.
 
 use crate::error::{Element, ModelError, SolveError};
 use crate::model::{Model, NodeKind};
 use crate::physics::friction::HW_FLOW_EXPONENT;
-use crate::solve::{SolveOptions, Solver};
+use crate::solve::{Conditions, SolveOptions, Solver};
 
 /// What limits the available fire flow.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -116,30 +117,26 @@ pub fn fire_flows(model: &Model, hydrants: &[usize], options: &FireFlowOptions) 
             )));
         }
     }
-    // The model with its demands scaled once; every hydrant changes only its own demand.
-    let mut base = model.clone();
-    for i in 0..base.nodes().len() {
-        if let NodeKind::Junction { demand } = base.nodes()[i].kind {
-            base.set_demand(i, demand * options.demand_factor).map_err(SolveError::Model)?;
-        }
-    }
-    let mut solver = Solver::new(&base)?;
-    let solve_options = SolveOptions::from_model(&base);
-    let without = solver.solve_with(&base, &solve_options)?;
-    let solver = solver;
-    let base_ref = &base;
+    // The conditions with the demands scaled once; every hydrant changes only its own demand.
+    let mut conditions = Conditions::from_model(model);
+    conditions.scale_demands(options.demand_factor).map_err(SolveError::Model)?;
+    let mut solver = Solver::new(model)?;
+    let solve_options = SolveOptions::from_model(model);
+    let without = solver.solve(model, &conditions, &solve_options)?;
+    let (solver, conditions) = (&solver, &conditions);
     hydrants
         .par_iter()
         .map_init(
-            || (base_ref.clone(), solver.clone()),
-            |(model, solver), &h| one_hydrant(model, solver, &without, h, options, &solve_options),
+            || (conditions.clone(), solver.clone()),
+            |(conditions, solver), &h| one_hydrant(model, conditions, solver, &without, h, options, &solve_options),
         )
         .collect()
 }
 
-/// The pressure heads of `model` with extra draw `q` at `h`.
+/// The pressure heads of `model` with extra draw `q` at `hydrant`.
 struct Draw<'a> {
-    model: &'a mut Model,
+    model: &'a Model,
+    conditions: &'a mut Conditions,
     solver: &'a mut Solver,
     options: SolveOptions,
     hydrant: usize,
@@ -148,9 +145,9 @@ struct Draw<'a> {
 
 impl Draw<'_> {
     fn pressures(&mut self, q: f64) -> Result<Vec<f64>, SolveError> {
-        self.model.set_demand(self.hydrant, self.demand + q).map_err(SolveError::Model)?;
-        let solved = self.solver.solve_with(self.model, &self.options);
-        self.model.set_demand(self.hydrant, self.demand).map_err(SolveError::Model)?;
+        self.conditions.set_demand(self.model, self.hydrant, self.demand + q).map_err(SolveError::Model)?;
+        let solved = self.solver.solve(self.model, self.conditions, &self.options);
+        self.conditions.set_demand(self.model, self.hydrant, self.demand).map_err(SolveError::Model)?;
         Ok(solved?.pressure)
     }
 
@@ -167,7 +164,7 @@ impl Draw<'_> {
         let q_of = |x: f64| x.max(0.0).powf(1.0 / HW_FLOW_EXPONENT);
         // Bracket [lo, hi] in x with g(lo) > 0 > g(hi), g = measure − target.
         let (mut lo, mut g_lo) = (0.0, at_zero - target);
-        let scale = self.model.nodes().iter().map(|n| n.demand().abs()).sum::<f64>().max(1e-2);
+        let scale = self.conditions.demands().iter().map(|d| d.abs()).sum::<f64>().max(1e-2);
         let mut x = x_of(0.1 * scale);
         let mut hi = None;
         let x_max = x_of(MAX_DRAW);
@@ -223,7 +220,8 @@ impl Draw<'_> {
 }
 
 fn one_hydrant(
-    model: &mut Model,
+    model: &Model,
+    conditions: &mut Conditions,
     solver: &mut Solver,
     without: &crate::solve::Solution,
     h: usize,
@@ -247,8 +245,9 @@ fn one_hydrant(
         .collect();
     let mut notes = Vec::new();
     let mut draw = Draw {
-        demand: model.nodes()[h].demand(),
+        demand: conditions.demand(h),
         model,
+        conditions,
         solver,
         options: SolveOptions { warm_start: true, ..*solve_options },
         hydrant: h,

@@ -14,6 +14,7 @@
 use super::file::Format;
 use super::time::{self as tm, Action, Condition};
 use super::{HeadLossLaw, LinkKind, LinkStatus, Model, NodeKind, PumpDrive, ValveType, WaterSpec};
+use crate::physics::fittings::Fitting;
 use crate::physics::pump::Efficiency;
 use crate::units::HORSEPOWER;
 use serde::ser::{SerializeMap, Serializer};
@@ -266,6 +267,8 @@ impl Serialize for ModelFile<'_> {
                 max_iterations: o.max_iterations,
                 head_tolerance: c.len(o.head_tolerance),
                 flow_tolerance: o.flow_tolerance,
+                fittings_method: o.fittings_method.label(),
+                site_elevation: o.site_elevation.map(|z| c.len(z)),
             },
         )?;
         let density = c.density;
@@ -288,6 +291,9 @@ impl Serialize for ModelFile<'_> {
                     exponent: l.exponent,
                 },
             )?;
+        }
+        if m.map.coordinates != super::MapCoordinates::default() {
+            top.serialize_entry("map", &MapTable { coordinates: m.map.coordinates.label() })?;
         }
         if let Some(sim) = &time.simulation {
             top.serialize_entry(
@@ -343,6 +349,9 @@ struct Hydraulics {
     max_iterations: u32,
     head_tolerance: f64,
     flow_tolerance: f64,
+    fittings_method: &'static str,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    site_elevation: Option<f64>,
 }
 
 #[derive(Serialize)]
@@ -368,6 +377,11 @@ fn leakage_rate_from_si(c: Ctx<'_>, rate: f64) -> f64 {
 struct OutletEntry {
     coefficient: f64,
     exponent: f64,
+}
+
+#[derive(Serialize)]
+struct MapTable {
+    coordinates: &'static str,
 }
 
 #[derive(Serialize)]
@@ -573,11 +587,51 @@ struct LinkEntry<'a> {
     #[serde(skip_serializing_if = "Option::is_none")]
     minor_loss: Option<f64>,
     #[serde(skip_serializing_if = "Option::is_none")]
+    fittings: Option<Vec<FittingEntry>>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    elevation: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    npsh_required_curve: Option<Points<'a>>,
+    #[serde(skip_serializing_if = "Option::is_none")]
     status: Option<&'static str>,
     #[serde(skip_serializing_if = "Option::is_none")]
     check_valve: Option<bool>,
     #[serde(skip_serializing_if = "Option::is_none")]
     leakage_rate: Option<f64>,
+    /// Map coordinates, written as given (no unit conversion, as node `x`, `y`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    path: Option<&'a [(f64, f64)]>,
+}
+
+/// One named fitting; parameters only for the kinds that take them.
+#[derive(Serialize)]
+struct FittingEntry {
+    kind: &'static str,
+    count: u32,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    radius: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    angle: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    opening: Option<f64>,
+}
+
+fn fitting_entries(fittings: &[Fitting]) -> Option<Vec<FittingEntry>> {
+    (!fittings.is_empty()).then(|| {
+        fittings
+            .iter()
+            .map(|f| {
+                let takes = |key: &str| f.kind.parameters().contains(&key);
+                FittingEntry {
+                    kind: f.kind.label(),
+                    count: f.count,
+                    radius: takes("radius").then_some(f.radius),
+                    angle: takes("angle").then_some(f.angle),
+                    opening: takes("opening").then_some(f.opening),
+                }
+            })
+            .collect()
+    })
 }
 
 fn link_entry(c: Ctx<'_>, k: usize) -> LinkEntry<'_> {
@@ -591,6 +645,7 @@ fn link_entry(c: Ctx<'_>, k: usize) -> LinkEntry<'_> {
         from: c.node(l.from),
         to: c.node(l.to),
         status: (l.status == LinkStatus::Closed).then(|| l.status.label()),
+        path: m.map.paths.get(&k).map(Vec::as_slice),
         ..LinkEntry::default()
     };
     match &l.kind {
@@ -602,6 +657,7 @@ fn link_entry(c: Ctx<'_>, k: usize) -> LinkEntry<'_> {
                 HeadLossLaw::DarcyWeisbach => u.roughness.from_si(p.roughness),
             });
             e.minor_loss = Some(p.minor_loss);
+            e.fittings = fitting_entries(m.fittings(k));
             e.check_valve = Some(p.check_valve);
             e.leakage_rate = m.outflow.leakage_rates.get(&k).map(|&r| leakage_rate_from_si(c, r));
         }
@@ -621,6 +677,9 @@ fn link_entry(c: Ctx<'_>, k: usize) -> LinkEntry<'_> {
             }
             e.speed = Some(p.speed);
             e.speed_pattern = time.speed_patterns.get(&k).map(|&p| c.pattern(p));
+            e.elevation = p.elevation.map(|z| c.len(z));
+            e.npsh_required_curve =
+                p.npsh_required.as_deref().map(|points| Points { ctx: c, points, x: Axis::Flow, y: Axis::Length });
         }
         LinkKind::Valve(v) => {
             e.valve = Some(v.valve.label());
@@ -628,6 +687,7 @@ fn link_entry(c: Ctx<'_>, k: usize) -> LinkEntry<'_> {
             e.setting = Some(c.setting(Some(v.valve), v.setting));
             e.setting_pattern = time.setting_patterns.get(&k).map(|&p| c.pattern(p));
             e.minor_loss = Some(v.minor_loss);
+            e.fittings = fitting_entries(m.fittings(k));
             if !v.automatic && l.status == LinkStatus::Open {
                 e.status = Some("open");
             }
@@ -913,6 +973,62 @@ mod tests {
         let text = String::from_utf8(out).unwrap_or_default();
         let expected = "{\n  \"a\": [],\n  \"b\": {},\n  \"c\": [\n    [1, 2],\n    {\"d\": [3, {\"e\": null}]}\n  ],\n  \"f\": {\n    \"g\": true\n  }\n}\n";
         assert_eq!(text, expected);
+    }
+
+    #[test]
+    fn map_keys_round_trip_in_both_formats() {
+        let text = r#"
+            [map]
+            coordinates = "lonlat"
+            [[nodes]]
+            id = "R"
+            kind = "reservoir"
+            head = 60
+            x = 7.4411
+            y = 46.9481
+            [[nodes]]
+            id = "J"
+            elevation = 10
+            x = 7.4452
+            y = 46.9503
+            [[links]]
+            id = "P"
+            from = "R"
+            to = "J"
+            length = 400
+            diameter = 150
+            roughness = 120
+            path = [[7.4420, 46.9490], [7.4437, 46.9495]]
+            [[links]]
+            id = "Q"
+            from = "R"
+            to = "J"
+            length = 500
+            diameter = 100
+            roughness = 120
+        "#;
+        let model = read_str(text, Format::Toml, "t.toml").unwrap();
+        assert_eq!(model.map.coordinates, crate::model::MapCoordinates::LonLat);
+        assert_eq!(model.map.paths.get(&0).map(Vec::len), Some(2));
+        assert!(!model.map.paths.contains_key(&1));
+        let drawn = model.map.alignment(&model, 0).unwrap();
+        assert_eq!(drawn, vec![(7.4411, 46.9481), (7.4420, 46.9490), (7.4437, 46.9495), (7.4452, 46.9503)]);
+        for format in [Format::Toml, Format::Json] {
+            let out = to_string(&model, format);
+            let back = read_str(&out, format, "out").unwrap_or_else(|e| panic!("{e}\n{out}"));
+            assert_eq!(back, model, "{out}");
+        }
+        // A path that is not a list of pairs names the link and the key.
+        let bad = text.replace("path = [[7.4420, 46.9490], [7.4437, 46.9495]]", "path = [[7.4420]]");
+        let e = read_str(&bad, Format::Toml, "t.toml").unwrap_err();
+        assert_eq!(
+            (e.element.clone(), e.key.as_deref()),
+            (Some(crate::Element::Link("P".into())), Some("path")),
+            "{e}"
+        );
+        let bad = text.replace("\"lonlat\"", "\"latlon\"");
+        let e = read_str(&bad, Format::Toml, "t.toml").unwrap_err();
+        assert_eq!(e.key.as_deref(), Some("coordinates"), "{e}");
     }
 
     #[test]

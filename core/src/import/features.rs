@@ -1,0 +1,168 @@
+//! Reading GeoJSON feature collections (RFC 7946) into lines and points with their attributes.
+//!
+//! The text is parsed once into a JSON tree (syntax errors carry their line and column); each
+//! feature is then converted on its own by the `geojson` crate, so that an error names the
+//! feature's index and id. Geometry rules: pipes are LineString features (or MultiLineString
+//! features of one part), points are Point features (or MultiPoint of one point); a third
+//! coordinate is kept as Z; every coordinate must be finite, and for longitude/latitude input
+//! within ±180° and ±90°.
+
+use crate::error::{Element, ModelError};
+use geojson::JsonObject;
+
+/// What geometry the features of a file must have.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Expect {
+    /// LineString (or single-part MultiLineString).
+    Lines,
+    /// Point (or single-point MultiPoint).
+    Points,
+}
+
+/// One feature: its index, its `id` member, its vertices (x, y), their Z when every vertex has
+/// one, and its properties.
+#[derive(Clone, Debug)]
+pub struct Feature {
+    /// Index in the file's `features` array.
+    pub index: usize,
+    /// The feature's `id` member, as text.
+    pub member_id: Option<String>,
+    /// Vertices in plan (one for a point).
+    pub xy: Vec<(f64, f64)>,
+    /// Z of each vertex, when every vertex has one.
+    pub z: Option<Vec<f64>>,
+    /// The properties (attributes); absent or null properties are an empty object.
+    pub properties: JsonObject,
+}
+
+/// The error about one feature.
+pub fn feature_error(index: usize, id: Option<&str>, key: Option<&str>, message: impl Into<String>) -> ModelError {
+    ModelError::at(Some(Element::Feature { index, id: id.map(str::to_owned) }), key, message)
+}
+
+/// Text of a JSON id (string or number).
+pub fn id_text(v: &serde_json::Value) -> Option<String> {
+    match v {
+        serde_json::Value::String(s) => Some(s.clone()),
+        serde_json::Value::Number(n) => Some(n.to_string()),
+        _ => None,
+    }
+}
+
+/// Reads the features of a GeoJSON FeatureCollection; `lonlat` checks coordinate ranges;
+/// `id_attribute` names the attribute used as the feature's id in messages.
+pub fn read_features(
+    bytes: &[u8],
+    file: &str,
+    expect: Expect,
+    lonlat: bool,
+    id_attribute: Option<&str>,
+) -> Result<Vec<Feature>, ModelError> {
+    read_inner(bytes, expect, lonlat, id_attribute).map_err(|e| e.in_file(file))
+}
+
+fn read_inner(
+    bytes: &[u8],
+    expect: Expect,
+    lonlat: bool,
+    id_attribute: Option<&str>,
+) -> Result<Vec<Feature>, ModelError> {
+    let tree: serde_json::Value = serde_json::from_slice(bytes).map_err(|e| ModelError {
+        position: (e.line() > 0).then(|| (e.line(), e.column())),
+        ..ModelError::new(format!("not valid JSON (GeoJSON is JSON): {e}"))
+    })?;
+    let serde_json::Value::Object(mut top) = tree else {
+        return Err(ModelError::new("GeoJSON must be a FeatureCollection object"));
+    };
+    match top.get("type").and_then(|t| t.as_str()) {
+        Some("FeatureCollection") => {}
+        Some(other) => {
+            return Err(ModelError::at(
+                None,
+                Some("type"),
+                format!("the file is a GeoJSON {other}; a FeatureCollection is expected"),
+            ))
+        }
+        None => return Err(ModelError::at(None, Some("type"), "is missing; a GeoJSON FeatureCollection is expected")),
+    }
+    let Some(serde_json::Value::Array(items)) = top.remove("features") else {
+        return Err(ModelError::at(None, Some("features"), "is missing or not an array"));
+    };
+    let mut out = Vec::with_capacity(items.len());
+    for (index, item) in items.into_iter().enumerate() {
+        out.push(read_one(index, item, expect, lonlat, id_attribute)?);
+    }
+    Ok(out)
+}
+
+fn read_one(
+    index: usize,
+    item: serde_json::Value,
+    expect: Expect,
+    lonlat: bool,
+    id_attribute: Option<&str>,
+) -> Result<Feature, ModelError> {
+    // The id for messages, read before the conversion so that its errors can name it too.
+    let raw_id = item.as_object().and_then(|o| {
+        let from_attribute = id_attribute
+            .and_then(|a| o.get("properties").and_then(|p| p.as_object()).and_then(|p| p.get(a)).and_then(id_text));
+        from_attribute.or_else(|| o.get("id").and_then(id_text))
+    });
+    let err = |key: Option<&str>, m: String| feature_error(index, raw_id.as_deref(), key, m);
+    let feature =
+        geojson::Feature::from_json_value(item).map_err(|e| err(None, format!("not a GeoJSON Feature: {e}")))?;
+    let member_id = feature.id.as_ref().map(|id| match id {
+        geojson::feature::Id::String(s) => s.clone(),
+        geojson::feature::Id::Number(n) => n.to_string(),
+    });
+    let Some(geometry) = feature.geometry else {
+        return Err(err(Some("geometry"), "is null; every feature needs a geometry".into()));
+    };
+    use geojson::Value as G;
+    let positions: Vec<Vec<f64>> = match (expect, geometry.value) {
+        (Expect::Lines, G::LineString(line)) => line,
+        (Expect::Lines, G::MultiLineString(mut parts)) if parts.len() == 1 => parts.pop().unwrap_or_default(),
+        (Expect::Lines, G::MultiLineString(parts)) => {
+            return Err(err(
+                Some("geometry"),
+                format!("is a MultiLineString of {} parts; split it into one LineString feature per pipe", parts.len()),
+            ))
+        }
+        (Expect::Points, G::Point(p)) => vec![p],
+        (Expect::Points, G::MultiPoint(mut ps)) if ps.len() == 1 => ps.pop().map(|p| vec![p]).unwrap_or_default(),
+        (expect, other) => {
+            let wanted = match expect {
+                Expect::Lines => "a LineString (pipes)",
+                Expect::Points => "a Point (points)",
+            };
+            return Err(err(Some("geometry"), format!("is a {}; expected {wanted}", other.type_name())));
+        }
+    };
+    if expect == Expect::Lines && positions.len() < 2 {
+        return Err(err(Some("geometry"), format!("a line needs at least 2 positions, found {}", positions.len())));
+    }
+    let mut xy = Vec::with_capacity(positions.len());
+    let has_z = positions.iter().all(|p| p.len() >= 3);
+    let mut z = has_z.then(|| Vec::with_capacity(positions.len()));
+    for (i, p) in positions.iter().enumerate() {
+        if p.len() < 2 || p.iter().any(|c| !c.is_finite()) {
+            return Err(err(Some("geometry"), format!("position {} must be 2 or 3 finite numbers", i + 1)));
+        }
+        if lonlat && !(p[0].abs() <= 180.0 && p[1].abs() <= 90.0) {
+            return Err(err(
+                Some("geometry"),
+                format!(
+                    "position {} ({}, {}) is not a longitude, latitude; for projected coordinates add [crs] units = \"m\" (or \"ft\") to the fields file",
+                    i + 1,
+                    p[0],
+                    p[1]
+                ),
+            ));
+        }
+        xy.push((p[0], p[1]));
+        if let Some(z) = z.as_mut() {
+            z.push(p[2]);
+        }
+    }
+    Ok(Feature { index, member_id, xy, z, properties: feature.properties.unwrap_or_default() })
+}
