@@ -8,6 +8,7 @@ mod check_report;
 mod columnar;
 mod csv;
 mod duty;
+mod fire_flow;
 mod gis;
 mod import_cmd;
 mod map;
@@ -198,6 +199,39 @@ enum Command {
         #[arg(long, value_name = "N", default_value_t = ringmain_core::analysis::CheckOptions::KEEP)]
         offenders: usize,
     },
+    /// Fire flow available at hydrants while the network holds a residual pressure.
+    ///
+    /// For each hydrant (a junction), with the rest of the network drawing its demands: the extra
+    /// draw at which its own pressure falls to the residual (hydrant_limited), and the one at which
+    /// the lowest pressure among the protected junctions (those at or above the residual without
+    /// a fire draw) falls to it (system_limited); the available fire flow is the smaller.
+    FireFlow {
+        /// The model file (.toml or .json).
+        model: PathBuf,
+        /// Residual pressure to hold, with its unit: "20 psi", "140 kPa", "1.4 bar", "14 m"; a
+        /// bare number is in the model's pressure unit. 20 psi is common practice in North
+        /// America.
+        #[arg(long)]
+        residual: String,
+        /// A hydrant, by junction id (repeatable).
+        #[arg(long, value_name = "ID")]
+        at: Vec<String>,
+        /// Every junction of this zone is a hydrant.
+        #[arg(long, value_name = "Z")]
+        zone: Option<String>,
+        /// Every junction is a hydrant.
+        #[arg(long)]
+        all_junctions: bool,
+        /// Multiply every junction demand by this factor (not outlets or leakage).
+        #[arg(long, value_name = "F", default_value_t = 1.0)]
+        demand_factor: f64,
+        /// Output format.
+        #[arg(long, value_enum, default_value_t = OutputFormat::Table)]
+        format: OutputFormat,
+        /// Write the results to this file instead of standard output.
+        #[arg(long, short)]
+        output: Option<PathBuf>,
+    },
     /// The system curve a pump works against, its operating point at each speed, the shaft power,
     /// the motor rating and the net positive suction head.
     ///
@@ -337,6 +371,7 @@ fn main() -> ExitCode {
         Command::WaterProperties { format: OutputFormat::Geojson, .. }
         | Command::FrictionFactor { format: OutputFormat::Geojson, .. }
         | Command::Duty { format: OutputFormat::Geojson, .. }
+        | Command::FireFlow { format: OutputFormat::Geojson, .. }
         | Command::Fittings { format: OutputFormat::Geojson } => {
             eprintln!("error: --format geojson applies to solve and simulate (results on a map)");
             ExitCode::from(EXIT_INVALID)
@@ -344,6 +379,7 @@ fn main() -> ExitCode {
         Command::WaterProperties { format: OutputFormat::Parquet, .. }
         | Command::FrictionFactor { format: OutputFormat::Parquet, .. }
         | Command::Duty { format: OutputFormat::Parquet, .. }
+        | Command::FireFlow { format: OutputFormat::Parquet, .. }
         | Command::Fittings { format: OutputFormat::Parquet } => {
             eprintln!("error: --format parquet applies to solve and simulate; use table, json or csv");
             ExitCode::from(EXIT_INVALID)
@@ -352,6 +388,9 @@ fn main() -> ExitCode {
             duty::run(duty::Args { model, pump, flows, speeds, motor_margin, npsh_margin, tank_levels, format, plot })
         }
         Command::Fittings { format } => duty::list_fittings(format),
+        Command::FireFlow { model, residual, at, zone, all_junctions, demand_factor, format, output } => {
+            fire_flow::run(fire_flow::Args { model, residual, at, zone, all_junctions, demand_factor, format, output })
+        }
         Command::WaterProperties { temperature, format } => water_properties(temperature, format),
         Command::FrictionFactor { reynolds, relative_roughness, format } => {
             friction(reynolds, relative_roughness, format)

@@ -278,3 +278,16 @@ fn junction_laws_follow_the_data() {
     assert!((d2.base + d2.scale - 20.0).abs() < 1e-12);
     assert!(l2.outlet.is_some() && l1.outlet.is_none());
 }
+
+/// Until the solver computes them, a model with pressure-dependent outflows is refused by every
+/// command that solves (exit 2, naming the table), never solved as if demands were fixed.
+#[test]
+fn solving_refuses_what_the_solver_does_not_compute() {
+    let path = dir().join("unsolved.toml");
+    std::fs::write(&path, BASE).unwrap();
+    let out = Command::new(env!("CARGO_BIN_EXE_ringmain")).args(["solve", path.to_str().unwrap()]).output().unwrap();
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(2), "{stderr}");
+    assert!(stderr.contains("[pressure_demand]") && stderr.contains("does not compute them yet"), "{stderr}");
+    assert!(out.stdout.is_empty());
+}

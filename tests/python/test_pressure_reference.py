@@ -15,8 +15,8 @@
 
 Hazen-Williams is written out here in its SI form V = 0.849 C R^0.63 S^0.54 (R = D/4).
 
-These tests need a ringmain built with pressure-dependent outflows; a build without them (no
-`delivered` in the node results) skips them with that reason.
+These tests need a ringmain that solves pressure-dependent outflows; a build that refuses them
+(exit code 2, "does not compute them yet") skips them with that reason.
 
 Results are only as good as the model and its data; designs must be checked by a licensed engineer
 against local codes and the utility's standards.
@@ -97,11 +97,10 @@ def solve_json(ringmain_bin, tmp_path_factory):
             timeout=RUN_TIMEOUT,
             stdin=subprocess.DEVNULL,
         )
+        if proc.returncode == 2 and "does not compute them yet" in proc.stderr:
+            pytest.skip("this ringmain reads pressure-dependent outflows but does not solve them yet")
         assert proc.returncode == 0, f"{text}\n{proc.stderr}"
-        result = json.loads(proc.stdout)
-        if "delivered" not in result["nodes"][0]:
-            pytest.skip("this ringmain has no pressure-dependent outflows (no 'delivered' in node results)")
-        return result
+        return json.loads(proc.stdout)
 
     return solve
 
@@ -134,14 +133,14 @@ id = "Main"
 from = "Spring"
 to = "Farm"
 length = 2500.0
-diameter = 100
+diameter = 150
 roughness = 110
 """
 
 
 def single_reference(head: float) -> tuple[float, float]:
     """Delivered flow (m3/s) and pressure (m) at Farm: the pipe law plus the demand relation."""
-    r = hw_resistance(2500.0, 0.1, 110.0)
+    r = hw_resistance(2500.0, 0.15, 110.0)
     d, p0, p1, e = 12e-3, 5.0, 25.0, 0.5
     available = head - 20.0
     if available <= p0:
@@ -159,6 +158,7 @@ def single_reference(head: float) -> tuple[float, float]:
     [(22.0, "zero"), (26.5, "partial"), (40.0, "partial"), (90.0, "full")],
 )
 def test_single_junction_every_regime(solve_json, head, regime):
+    result = solve_json(SINGLE.format(head=head))
     q_ref, p_ref = single_reference(head)
     d = 12e-3
     if regime == "zero":
@@ -167,7 +167,7 @@ def test_single_junction_every_regime(solve_json, head, regime):
         assert p_ref >= 25.0 and q_ref == d
     else:
         assert 0.0 < q_ref < d
-    farm = by_id(solve_json(SINGLE.format(head=head)))["Farm"]
+    farm = by_id(result)["Farm"]
     assert farm["demand"] == pytest.approx(12.0)  # the demand asked stays in `demand`
     assert farm["delivered"] * 1e-3 == pytest.approx(q_ref, abs=FLOW_ATOL)
     assert farm["pressure"] == pytest.approx(p_ref, abs=HEAD_ATOL)
@@ -380,19 +380,19 @@ def looped_reference(tower_head: float) -> dict:
     polished = root(lambda h: objective(h)[1], best.x, method="hybr", options={"xtol": 1e-14})
     h = polished.x if polished.success else best.x
     residual = np.max(np.abs(objective(h)[1]))
-    assert residual < 1e-11, f"reference not converged: mass residual {residual} m3/s"
+    assert residual < 1e-9, f"reference not converged: mass residual {residual} m3/s"
     rows = outflows(h)
     return {n: (h[index[n]], *rows[index[n]]) for n in ids}
 
 
 @pytest.mark.parametrize("tower_head", [38.0, 45.0, 70.0])
 def test_looped_network_against_an_independent_solve(solve_json, tower_head):
+    result = solve_json(LOOPED.format(head=tower_head))
     ref = looped_reference(tower_head)
     demands = {n: LOOPED_NODES[n][1] * 1e-3 for n in LOOPED_NODES}
     partial = [n for n in ref if 0.0 < ref[n][1] < demands[n] * (1 - 1e-9)]
     if tower_head < 60:
         assert partial, "the scenario is meant to have partial deliveries"
-    result = solve_json(LOOPED.format(head=tower_head))
     nodes = by_id(result)
     for n, (head, delivered, leak, outlet) in ref.items():
         got = nodes[n]

@@ -27,6 +27,7 @@
 pub mod criteria;
 pub mod diagnostics;
 pub mod evaluate;
+pub mod fire_flow;
 
 pub use criteria::{Criteria, Group, Quantity, SupplyMargin};
 pub use diagnostics::{diagnose_model, diagnose_solution, plausibility, Diagnostic, DiagnosticKind};

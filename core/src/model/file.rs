@@ -627,7 +627,7 @@ fn finish(mut model: Model, controls: Vec<Value>) -> Result<Model, ModelError> {
         let control = read_control(i, v, &model)?;
         model.time.controls.push(control);
     }
-    model.validate()?;
+    model.check_data()?;
     model.shrink_to_fit();
     Ok(model)
 }

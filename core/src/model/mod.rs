@@ -1141,8 +1141,17 @@ impl Model {
         Ok(())
     }
 
-    /// Checks the whole network: at least one node with a fixed head and at least one junction.
+    /// Checks that the model can be solved: [`Model::check_data`], and no outflow that depends
+    /// on pressure, which this version reads and writes but does not solve yet (solving as if
+    /// every junction drew its fixed demand would give wrong answers exactly where they matter).
     pub fn validate(&self) -> Result<(), ModelError> {
+        self.check_data()?;
+        self.outflow.check_solvable(self)
+    }
+
+    /// Checks the whole network: at least one node with a fixed head, plausible water, and
+    /// consistent outflow data.
+    pub fn check_data(&self) -> Result<(), ModelError> {
         if self.nodes.is_empty() {
             return Err(ModelError::at(Some(Element::Table("nodes".into())), None, "the model has no nodes"));
         }

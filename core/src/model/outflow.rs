@@ -189,6 +189,24 @@ impl OutflowData {
         OutflowLaws { nodes }
     }
 
+    /// Refuses a model whose outflows depend on pressure: this version reads and writes them but
+    /// its solver does not compute them yet.
+    pub fn check_solvable(&self, model: &Model) -> Result<(), ModelError> {
+        const WHY: &str = "pressure-dependent outflows are read and written by this version of ringmain, but its \
+                           solver does not compute them yet (solving with fixed demands would give wrong answers)";
+        if self.pressure_demand.is_some() {
+            return Err(ModelError::at(Some(Element::Table("pressure_demand".into())), None, WHY));
+        }
+        if self.leakage.is_some() {
+            return Err(ModelError::at(Some(Element::Table("background_leakage".into())), None, WHY));
+        }
+        if let Some((&i, _)) = self.junctions.iter().find(|(_, j)| j.outlet.is_some()) {
+            let id = model.nodes().get(i).map(|n| n.id.to_string()).unwrap_or_default();
+            return Err(ModelError::at(Some(Element::Node(id)), Some("outlet"), WHY));
+        }
+        Ok(())
+    }
+
     /// Checks the whole: overrides only with `[pressure_demand]`, per-pipe rates only with
     /// `[background_leakage]`, attachments on junctions and pipes, and full above zero pressure per junction.
     pub fn check(&self, model: &Model) -> Result<(), ModelError> {

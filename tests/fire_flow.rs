@@ -1,0 +1,192 @@
+//! `ringmain fire-flow` against closed forms on single mains, and its bad input.
+//!
+//! Closed forms: Hazen–Williams in its SI velocity form V = 0.849 C R^0.63 S^0.54 (R = D/4 for a
+//! full pipe), written out here; on a main fed from a reservoir, the pressure head at distance
+//! along it falls by r·Q^1.852 for a draw Q past that point, so the draw that brings the pressure
+//! head at a point to the residual is ((H0 − z − p_R)/r)^0.54.
+
+use std::path::PathBuf;
+use std::process::Command;
+
+fn dir() -> PathBuf {
+    let d = std::env::temp_dir().join(format!("ringmain-fire-flow-{}", std::process::id()));
+    std::fs::create_dir_all(&d).unwrap();
+    d
+}
+
+fn write(name: &str, text: &str) -> PathBuf {
+    let path = dir().join(name);
+    std::fs::write(&path, text).unwrap();
+    path
+}
+
+fn run(args: &[&str]) -> (Option<i32>, String, String) {
+    let out = Command::new(env!("CARGO_BIN_EXE_ringmain")).args(args).output().unwrap();
+    let stderr = String::from_utf8_lossy(&out.stderr).into_owned();
+    assert!(!stderr.contains("panicked"), "{stderr}");
+    (out.status.code(), String::from_utf8_lossy(&out.stdout).into_owned(), stderr)
+}
+
+fn json(args: &[&str]) -> serde_json::Value {
+    let (code, out, err) = run(args);
+    assert_eq!(code, Some(0), "{err}");
+    serde_json::from_str(&out).unwrap_or_else(|e| panic!("{e}: {out}"))
+}
+
+/// A reservoir at 70 m feeding "Mid" (elevation 10 m, 600 m of 200 mm C 120) and beyond it the
+/// hydrant "End" (elevation 14 m, 500 m of 150 mm C 110); no demands. Pressures in m of head.
+const LINE: &str = r#"
+title = "orchard lane main"
+[hydraulics]
+head_tolerance = 1e-7
+[[nodes]]
+id = "Source"
+kind = "reservoir"
+head = 70.0
+[[nodes]]
+id = "Mid"
+elevation = 10.0
+[[nodes]]
+id = "End"
+elevation = 14.0
+[[links]]
+id = "A"
+from = "Source"
+to = "Mid"
+length = 600.0
+diameter = 200
+roughness = 120
+[[links]]
+id = "B"
+from = "Mid"
+to = "End"
+length = 500.0
+diameter = 150
+roughness = 110
+"#;
+
+/// Hazen–Williams resistance r in h = r Q^1.852 (SI) from V = 0.849 C R^0.63 S^0.54.
+fn resistance(length: f64, d: f64, c: f64) -> f64 {
+    let area = std::f64::consts::PI * d * d / 4.0;
+    let k = 0.849 * c * area * (d / 4.0).powf(0.63);
+    length / k.powf(1.0 / 0.54)
+}
+
+#[test]
+fn hydrant_and_system_limits_on_a_single_main_match_the_closed_form() {
+    let path = write("line.toml", LINE);
+    let v = json(&["fire-flow", path.to_str().unwrap(), "--residual", "20 m", "--at", "End", "--format", "json"]);
+    let row = &v["hydrants"][0];
+    assert_eq!(row["id"], "End");
+    let (r1, r2) = (resistance(600.0, 0.2, 120.0), resistance(500.0, 0.15, 110.0));
+    // (a) the hydrant itself: 70 − 14 − 20 = 36 m over both pipes.
+    let hydrant = (36.0 / (r1 + r2)).powf(0.54) * 1e3;
+    // (b) Mid, protected (60 m static): 70 − 10 − 20 = 40 m over the first pipe.
+    let system = (40.0 / r1).powf(0.54) * 1e3;
+    assert!((row["hydrant_limited"].as_f64().unwrap() - hydrant).abs() < 1e-5 * hydrant, "{row} vs {hydrant}");
+    assert!((row["system_limited"].as_f64().unwrap() - system).abs() < 1e-5 * system, "{row} vs {system}");
+    assert_eq!(row["limiting_node"], "Mid");
+    assert_eq!(row["limit"], if hydrant < system { "hydrant" } else { "system" });
+    assert!((row["static_pressure"].as_f64().unwrap() - 56.0).abs() < 1e-6);
+    assert!((row["available"].as_f64().unwrap() - hydrant.min(system)).abs() < 1e-5 * system);
+    // With Mid on a hill (elevation 40 m, 30 m static) and a residual of 25 m, Mid reaches the
+    // residual first: the system limit binds.
+    let hill =
+        write("hill.toml", &LINE.replacen("id = \"Mid\"\nelevation = 10.0", "id = \"Mid\"\nelevation = 40.0", 1));
+    let v = json(&["fire-flow", hill.to_str().unwrap(), "--residual", "25", "--at", "End", "--format", "json"]);
+    let row = &v["hydrants"][0];
+    let hydrant = (31.0 / (r1 + r2)).powf(0.54) * 1e3;
+    let system = (5.0 / r1).powf(0.54) * 1e3;
+    assert!(system < hydrant);
+    assert_eq!(row["limit"], "system");
+    assert!((row["system_limited"].as_f64().unwrap() - system).abs() < 1e-5 * system, "{row} vs {system}");
+    assert!((row["hydrant_limited"].as_f64().unwrap() - hydrant).abs() < 1e-5 * hydrant, "{row} vs {hydrant}");
+}
+
+#[test]
+fn a_hydrant_below_the_residual_gets_zero_and_a_note_and_no_protected_junction_gives_null() {
+    let path = write("below.toml", LINE);
+    // 58 m: End (56 m static) is below; Mid (60 m) is protected.
+    let v = json(&["fire-flow", path.to_str().unwrap(), "--residual", "58 m", "--at", "End", "--format", "json"]);
+    let row = &v["hydrants"][0];
+    assert_eq!(row["hydrant_limited"], 0.0);
+    assert_eq!(row["available"], 0.0);
+    assert!(row["notes"].as_array().unwrap().iter().any(|n| n.as_str().unwrap().contains("below the residual")));
+    // 61 m: nobody is protected.
+    let v = json(&["fire-flow", path.to_str().unwrap(), "--residual", "61 m", "--at", "Mid", "--format", "json"]);
+    let row = &v["hydrants"][0];
+    assert!(row["system_limited"].is_null() && row["limiting_node"].is_null(), "{row}");
+}
+
+#[test]
+fn many_hydrants_in_parallel_agree_with_one_at_a_time() {
+    let path = write("many.toml", LINE);
+    let p = path.to_str().unwrap();
+    let all = json(&["fire-flow", p, "--residual", "20 psi", "--all-junctions", "--format", "json"]);
+    for row in all["hydrants"].as_array().unwrap() {
+        let id = row["id"].as_str().unwrap();
+        let one = json(&["fire-flow", p, "--residual", "20 psi", "--at", id, "--format", "json"]);
+        for key in ["hydrant_limited", "system_limited", "static_pressure"] {
+            let (a, b) = (row[key].as_f64(), one["hydrants"][0][key].as_f64());
+            match (a, b) {
+                (Some(a), Some(b)) => assert!((a - b).abs() <= 1e-6 * a.abs().max(1.0), "{id} {key}: {a} vs {b}"),
+                _ => assert_eq!(a, b, "{id} {key}"),
+            }
+        }
+    }
+    // CSV and table carry the same hydrants.
+    let (code, csv, _) = run(&["fire-flow", p, "--residual", "20 psi", "--all-junctions", "--format", "csv"]);
+    assert_eq!(code, Some(0));
+    assert!(csv.starts_with("id,static_pressure_m,hydrant_limited_L/s,system_limited_L/s,available_L/s,limit"));
+    assert_eq!(csv.lines().count(), 3);
+    let (code, table, _) = run(&["fire-flow", p, "--residual", "20 psi", "--at", "End"]);
+    assert_eq!(code, Some(0));
+    assert!(table.contains("End") && table.contains("licensed engineer"), "{table}");
+}
+
+#[test]
+fn demand_factor_scales_the_background_demands() {
+    // With a demand at Mid, a larger factor leaves less for the hydrant.
+    let text = LINE.replacen("id = \"Mid\"\nelevation = 10.0", "id = \"Mid\"\nelevation = 10.0\ndemand = 20.0", 1);
+    let path = write("factor.toml", &text);
+    let p = path.to_str().unwrap();
+    let flow = |f: &str| {
+        json(&["fire-flow", p, "--residual", "20 m", "--at", "End", "--demand-factor", f, "--format", "json"])
+            ["hydrants"][0]["hydrant_limited"]
+            .as_f64()
+            .unwrap()
+    };
+    let (a, b) = (flow("0"), flow("2"));
+    assert!(a > b, "{a} {b}");
+    // Factor 0: no background draw, the closed form of the bare main.
+    let (r1, r2) = (resistance(600.0, 0.2, 120.0), resistance(500.0, 0.15, 110.0));
+    let bare = (36.0 / (r1 + r2)).powf(0.54) * 1e3;
+    assert!((a - bare).abs() < 1e-5 * bare);
+}
+
+#[test]
+fn bad_fire_flow_arguments_exit_2_naming_what_is_wrong() {
+    let path = write("bad.toml", LINE);
+    let p = path.to_str().unwrap();
+    let cases: &[(&[&str], &str)] = &[
+        (&["--residual", "20 psi", "--at", "Ned"], "'Ned'"),
+        (&["--residual", "20 psi", "--at", "Source"], "must be a junction"),
+        (&["--residual", "20 psx", "--at", "End"], "unknown pressure unit"),
+        (&["--residual", "twenty", "--at", "End"], "--residual"),
+        (&["--residual", "nan psi", "--at", "End"], "--residual"),
+        (&["--residual", "20 psi"], "--at"),
+        (&["--residual", "20 psi", "--zone", "nowhere"], "'nowhere'"),
+        (&["--residual", "20 psi", "--at", "End", "--demand-factor=-1"], "--demand-factor"),
+        (&["--residual", "20 psi", "--at", "End", "--output", p], "model file"),
+    ];
+    for (extra, want) in cases {
+        let mut args = vec!["fire-flow", p];
+        args.extend_from_slice(extra);
+        let (code, out, err) = run(&args);
+        assert_eq!(code, Some(2), "{args:?}: {err}");
+        assert!(err.contains(want), "{args:?}: expected {want:?} in {err}");
+        assert!(out.is_empty(), "{args:?}");
+    }
+    // The model is untouched.
+    assert_eq!(std::fs::read_to_string(&path).unwrap(), LINE);
+}
