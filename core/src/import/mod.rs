@@ -1034,10 +1034,14 @@ pub fn import(
         let pos = seg as f64 + t;
         let (first, end) = parts_of_pipe[k as usize];
         let Some(other) = parts[first..end].iter().find(|p| p.cut_start <= pos && pos <= p.cut_end) else { continue };
-        // An end-to-end miss is reported once, from the end listed first.
-        let other_slot = if pos == other.cut_start {
+        // An end-to-end miss is reported once, from the end listed first. The nearest position
+        // is an end when that end is as close as the foot (to round-off: a foot found in the
+        // tangent plane may fall a hair inside the line).
+        let tolerance = d * 1e-9 + 1e-12;
+        let other_xy = &pipe_list[other.pipe].xy;
+        let other_slot = if frame.distance(at, lerp_cut(other_xy, other.cut_start)) <= d + tolerance {
             Some(other.from)
-        } else if pos == other.cut_end {
+        } else if frame.distance(at, lerp_cut(other_xy, other.cut_end)) <= d + tolerance {
             Some(other.to)
         } else {
             None
