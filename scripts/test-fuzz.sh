@@ -1,5 +1,8 @@
 #!/usr/bin/env bash
 # Builds the fuzz target of the model reader and runs it for about a minute; fails on any crash.
+# On a fresh machine the whole step takes about 5–7 minutes: installing cargo-fuzz (test.sh does
+# it, 2–3 min), building the instrumented crate (about 3 min) and fuzzing (60 s). libFuzzer's own
+# log goes to target/fuzz-read_model.log (its last lines are printed), so the test log stays short.
 #
 #   scripts/test-fuzz.sh              # 60 s
 #   FUZZ_SECONDS=300 scripts/test-fuzz.sh
@@ -18,11 +21,26 @@ if ! command -v cargo-fuzz >/dev/null 2>&1; then
 fi
 export RUSTC_BOOTSTRAP=1
 
+# The fuzz crate has its own lock file; it must match its manifest (and so the core's
+# dependencies). scripts/update-fuzz-lock.sh brings it up to date from the workspace's lock.
+if ! cargo metadata --locked --offline --manifest-path fuzz/Cargo.toml --format-version 1 >/dev/null 2>&1 &&
+  ! cargo metadata --locked --manifest-path fuzz/Cargo.toml --format-version 1 >/dev/null 2>&1; then
+  echo "fuzz/Cargo.lock is out of date: run scripts/update-fuzz-lock.sh and commit it" >&2
+  exit 1
+fi
+
 scripts/fuzz-seed.sh
+log="$PWD/target/fuzz-read_model.log"
+mkdir -p target
 cd fuzz
-cargo fuzz build read_model
+cargo fuzz build --locked read_model
 mkdir -p artifacts/read_model
 # -max_len: large enough for the seed models; -rss_limit_mb: the machine's memory is shared.
-cargo fuzz run read_model corpus/read_model -- \
-  -max_total_time="$seconds" -max_len=65536 -rss_limit_mb=2048 -print_final_stats=1
-echo "fuzzing the model reader for ${seconds} s found no crash"
+if ! cargo fuzz run --locked read_model corpus/read_model -- \
+  -max_total_time="$seconds" -max_len=65536 -rss_limit_mb=2048 -print_final_stats=1 >"$log" 2>&1; then
+  tail -n 60 "$log" >&2
+  echo "the fuzzer found a crash; the whole log is in $log" >&2
+  exit 1
+fi
+tail -n 12 "$log"
+echo "fuzzing the model reader for ${seconds} s found no crash (log: $log)"

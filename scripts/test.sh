@@ -38,7 +38,7 @@ scripts/test-embedding.sh
 step "the HTML map in headless Chromium"
 scripts/test-map-browser.sh
 
-step "fuzz the model reader (about a minute)"
+step "fuzz the model reader (60 s of fuzzing; 5–7 min on a fresh machine with the install and build)"
 command -v cargo-fuzz >/dev/null 2>&1 || cargo install cargo-fuzz --locked
 scripts/test-fuzz.sh
 

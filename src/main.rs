@@ -8,7 +8,9 @@ mod check_report;
 mod gis;
 mod import_cmd;
 mod map;
+mod duty;
 mod plot;
+mod quality_report;
 mod report;
 mod simulation;
 mod snippet;
@@ -80,13 +82,18 @@ enum Command {
         /// Write the results to this file instead of standard output.
         #[arg(long, short)]
         output: Option<PathBuf>,
-        /// Write SVG charts (tanks.svg, pumps.svg, pressures.svg) into this directory.
+        /// Write SVG charts (tanks.svg, pumps.svg, pressures.svg, and quality-<id>.svg per
+        /// water-quality constituent) into this directory.
         #[arg(long, value_name = "DIR")]
         plot: Option<PathBuf>,
         /// With --format geojson: the values at this reported instant (elapsed time such as
         /// "6h" or "1h30min") instead of each element's worst instant.
         #[arg(long, value_name = "TIME")]
         at: Option<String>,
+        /// Check water-quality criteria over the run (max_age, min_residual, after): a criteria
+        /// file (TOML or JSON) whose keys override the model's [criteria]. Exit 1 when one fails.
+        #[arg(long, value_name = "FILE")]
+        criteria: Option<PathBuf>,
     },
     /// Build a model from GIS data: GeoJSON pipes (and points) with a fields file.
     ///
@@ -170,6 +177,53 @@ enum Command {
         #[arg(long, value_name = "N", default_value_t = ringmain_core::analysis::CheckOptions::KEEP)]
         offenders: usize,
     },
+    /// The system curve a pump works against, its operating point at each speed, the shaft power,
+    /// the motor rating and the net positive suction head.
+    ///
+    /// The system curve is the head the pump must add at each flow through it, with the rest of
+    /// the network solved at that flow. Values are in the model's units; motor ratings from IEC
+    /// 60072-1 (kW, SI models) or NEMA MG 1 (hp, models in feet).
+    #[command(
+        after_help = "Exit codes: 0 done; 2 invalid model, pump or arguments, or no operating point at a                             speed; 3 the solver did not converge at a flow or speed; 4 the results or the chart                             could not be written."
+    )]
+    Duty {
+        /// The model file (.toml or .json).
+        model: PathBuf,
+        /// The pump's link id.
+        #[arg(long, value_name = "ID")]
+        pump: String,
+        /// Pump flows of the system curve, START:STOP:STEP in the model's flow unit (STOP
+        /// included when on the grid); default 0 to 1.5 times the last flow of the pump's curve
+        /// in 40 steps.
+        #[arg(long, value_name = "START:STOP:STEP")]
+        flows: Option<String>,
+        /// Relative speeds of the operating points, comma-separated (default: the pump's speed).
+        #[arg(long, value_name = "S,S,...", value_delimiter = ',')]
+        speeds: Vec<f64>,
+        /// Motor margin over the shaft power, a fraction.
+        #[arg(long, value_name = "F", default_value_t = ringmain_core::duty::DutyOptions::MOTOR_MARGIN)]
+        motor_margin: f64,
+        /// NPSH margin: NPSH available should be at least NPSH required times (1 + F).
+        #[arg(long, value_name = "F", default_value_t = ringmain_core::duty::DutyOptions::NPSH_MARGIN)]
+        npsh_margin: f64,
+        /// Tank levels of the system curve: "current", or "min,max" for the band between the
+        /// emptiest and the fullest tanks.
+        #[arg(long, value_name = "current|min,max", default_value = "current")]
+        tank_levels: String,
+        /// Output format.
+        #[arg(long, value_enum, default_value_t = OutputFormat::Table)]
+        format: OutputFormat,
+        /// Also write an SVG chart to this file.
+        #[arg(long, value_name = "FILE.svg")]
+        plot: Option<PathBuf>,
+    },
+    /// List the kinds of named fitting, their parameters, their K under each method and the
+    /// sources.
+    Fittings {
+        /// Output format.
+        #[arg(long, value_enum, default_value_t = OutputFormat::Table)]
+        format: OutputFormat,
+    },
     /// Print the density and viscosity of water at a temperature (IAPWS formulations).
     WaterProperties {
         /// Water temperature, deg C (0 to 99).
@@ -200,7 +254,7 @@ enum CheckFormat {
 }
 
 #[derive(Clone, Copy, PartialEq, Eq, ValueEnum)]
-enum OutputFormat {
+pub(crate) enum OutputFormat {
     Table,
     Json,
     Csv,
@@ -209,7 +263,7 @@ enum OutputFormat {
 }
 
 pub(crate) const EXIT_INVALID: u8 = 2;
-const EXIT_NOT_CONVERGED: u8 = 3;
+pub(crate) const EXIT_NOT_CONVERGED: u8 = 3;
 pub(crate) const EXIT_WRITE: u8 = 4;
 
 fn main() -> ExitCode {
@@ -217,9 +271,14 @@ fn main() -> ExitCode {
     match cli.command {
         Command::Solve { model, format, output, timings } => solve(&model, format, output.as_deref(), timings),
         Command::Generate { junctions, seed, output } => generate(junctions, seed, &output),
-        Command::Simulate { model, format, output, plot, at } => {
-            simulate(&model, format, output.as_deref(), plot.as_deref(), at.as_deref())
-        }
+        Command::Simulate { model, format, output, plot, at, criteria } => simulate(
+            &model,
+            format,
+            output.as_deref(),
+            plot.as_deref(),
+            at.as_deref(),
+            criteria.as_deref(),
+        ),
         Command::Import {
             pipes,
             points,
@@ -253,10 +312,16 @@ fn main() -> ExitCode {
             })
         }
         Command::WaterProperties { format: OutputFormat::Geojson, .. }
-        | Command::FrictionFactor { format: OutputFormat::Geojson, .. } => {
+        | Command::FrictionFactor { format: OutputFormat::Geojson, .. }
+        | Command::Duty { format: OutputFormat::Geojson, .. }
+        | Command::Fittings { format: OutputFormat::Geojson } => {
             eprintln!("error: --format geojson applies to solve and simulate (results on a map)");
             ExitCode::from(EXIT_INVALID)
         }
+        Command::Duty { model, pump, flows, speeds, motor_margin, npsh_margin, tank_levels, format, plot } => {
+            duty::run(duty::Args { model, pump, flows, speeds, motor_margin, npsh_margin, tank_levels, format, plot })
+        }
+        Command::Fittings { format } => duty::list_fittings(format),
         Command::WaterProperties { temperature, format } => water_properties(temperature, format),
         Command::FrictionFactor { reynolds, relative_roughness, format } => {
             friction(reynolds, relative_roughness, format)
@@ -268,7 +333,7 @@ fn main() -> ExitCode {
 ///
 /// The message is one line (scripts and the error tests read it); on a terminal a snippet of the
 /// offending line follows it. `check` always adds the snippet.
-fn load(path: &Path) -> Result<Model, ()> {
+pub(crate) fn load(path: &Path) -> Result<Model, ()> {
     use std::io::IsTerminal;
     let snippet = std::io::stderr().is_terminal();
     check::read_model(path)
@@ -587,6 +652,7 @@ fn simulate(
     output: Option<&Path>,
     plot_dir: Option<&Path>,
     at: Option<&str>,
+    criteria_path: Option<&Path>,
 ) -> ExitCode {
     use ringmain_core::SimulateError;
     let at = match at {
@@ -604,12 +670,20 @@ fn simulate(
         },
     };
     let Ok(model) = load(path) else { return ExitCode::from(EXIT_INVALID) };
+    let criteria = match check::criteria_for(&model, path, criteria_path) {
+        Ok(c) => c,
+        Err(()) => return ExitCode::from(EXIT_INVALID),
+    };
+    let with_quality = !model.time.quality.constituents.is_empty();
     let mut progress = Progress::new();
-    let result = ringmain_core::simulate::simulate_with(&model, &ringmain_core::SimulateOptions::default(), &mut |f| {
-        progress.update(f)
-    });
+    let options = ringmain_core::SimulateOptions::default();
+    let result = if with_quality {
+        ringmain_core::quality::simulate(&model, &options, &mut |f| progress.update(f)).map(|(r, q)| (r, Some(q)))
+    } else {
+        ringmain_core::simulate::simulate_with(&model, &options, &mut |f| progress.update(f)).map(|r| (r, None))
+    };
     progress.finish();
-    let run = match result {
+    let (run, quality) = match result {
         Ok(r) => r,
         Err(SimulateError::Model(e)) => {
             eprintln!("error: {}", e.in_file(path.display().to_string()));
@@ -623,7 +697,29 @@ fn simulate(
     if format == OutputFormat::Geojson {
         return write_geojson(path, output, gis::GisResults::from_run(&model, &run, at));
     }
-    let report = simulation::RunReport::new(&model, &run);
+    let mut report = simulation::RunReport::new(&model, &run);
+    report.quality = quality.as_ref();
+    if let Some(criteria) = criteria.as_ref().filter(|c| c.has_quality_limits()) {
+        let Some(q) = quality.as_ref() else {
+            eprintln!(
+                "error: {}: [criteria]: key 'max_age'/'min_residual': the model has no [[quality]] constituents to check",
+                path.display()
+            );
+            return ExitCode::from(EXIT_INVALID);
+        };
+        match ringmain_core::quality::criteria::evaluate(
+            criteria,
+            &model,
+            q,
+            ringmain_core::analysis::CheckOptions::KEEP,
+        ) {
+            Ok(checks) => report.checks = checks,
+            Err(e) => {
+                eprintln!("error: {}", e.in_file(criteria_path.unwrap_or(path).display().to_string()));
+                return ExitCode::from(EXIT_INVALID);
+            }
+        }
+    }
     if let Some(dir) = plot_dir {
         match plot::write_all(&report, dir) {
             Ok(files) => {
@@ -637,14 +733,21 @@ fn simulate(
             }
         }
     }
-    write_with("the results", output, |out| match format {
+    let written = write_with("the results", output, |out| match format {
         OutputFormat::Table => out.write_all(report.to_table().as_bytes()),
         OutputFormat::Json => {
             serde_json::to_writer_pretty(&mut *out, &report.to_json())?;
             out.write_all(b"\n")
         }
         OutputFormat::Csv | OutputFormat::Geojson => out.write_all(report.to_csv().as_bytes()),
-    })
+    });
+    if written != ExitCode::SUCCESS {
+        return written;
+    }
+    if report.checks.iter().any(|c| !c.passed()) {
+        return ExitCode::from(check::EXIT_FAILED);
+    }
+    ExitCode::SUCCESS
 }
 
 fn water_properties(temperature: f64, format: OutputFormat) -> ExitCode {
@@ -662,6 +765,7 @@ fn water_properties(temperature: f64, format: OutputFormat) -> ExitCode {
             serde_json::json!({
                 "temperature": temperature, "density": w.density,
                 "dynamic_viscosity": w.dynamic_viscosity, "kinematic_viscosity": w.kinematic_viscosity,
+                "vapour_pressure": w.vapour_pressure(),
             })
             .to_string()
                 + "\n"
@@ -672,8 +776,12 @@ fn water_properties(temperature: f64, format: OutputFormat) -> ExitCode {
         ),
         OutputFormat::Table => format!(
             "water at {temperature} deg C and 101.325 kPa\n  density              {:.4} kg/m3 (IAPWS-IF97)\n  \
-             dynamic viscosity    {:.6e} Pa s (IAPWS 2008)\n  kinematic viscosity  {:.6e} m2/s\n",
-            w.density, w.dynamic_viscosity, w.kinematic_viscosity
+             dynamic viscosity    {:.6e} Pa s (IAPWS 2008)\n  kinematic viscosity  {:.6e} m2/s\n  \
+             vapour pressure      {:.2} Pa (IAPWS-IF97 saturation line)\n",
+            w.density,
+            w.dynamic_viscosity,
+            w.kinematic_viscosity,
+            w.vapour_pressure()
         ),
     };
     write_out(&text, None)

@@ -61,12 +61,12 @@ impl Panel {
     }
 }
 
-fn esc(text: &str) -> String {
+pub(crate) fn esc(text: &str) -> String {
     text.replace('&', "&amp;").replace('<', "&lt;").replace('>', "&gt;").replace('"', "&quot;")
 }
 
 /// Tick spacing of about `target` ticks over `span`: 1, 2 or 5 times a power of ten.
-fn nice_step(span: f64, target: f64) -> f64 {
+pub(crate) fn nice_step(span: f64, target: f64) -> f64 {
     let raw = (span / target).max(1e-12);
     let mag = 10f64.powf(raw.log10().floor());
     let f = raw / mag;

@@ -3,7 +3,9 @@
 //! Each writer streams to an [`std::io::Write`], element by element.
 
 use ringmain_core::model::write::write_element_per_line;
-use ringmain_core::model::{Valve, ValveType};
+use ringmain_core::model::{LinkKind, Valve, ValveType};
+use ringmain_core::physics::WaterProperties;
+use ringmain_core::solve::links::{minor_losses, LinkLaw};
 use ringmain_core::solve::{PumpResult, Warning};
 use ringmain_core::units::HORSEPOWER;
 use ringmain_core::{Model, NodeKind, Solution};
@@ -77,7 +79,14 @@ struct JsonLink<'a> {
     #[serde(skip_serializing_if = "Option::is_none")]
     hydraulic_power: Option<f64>,
     id: &'a str,
+    /// Pipes and valves: the total K of `minor_loss` and the named fittings at the link's flow
+    /// (null at zero flow).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    k_total: Option<Option<f64>>,
     kind: &'static str,
+    /// Pipes and valves: the fraction of the head loss due to minor losses (null at zero flow).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    minor_share: Option<Option<f64>>,
     #[serde(skip_serializing_if = "Option::is_none")]
     reason: Option<&'static str>,
     #[serde(skip_serializing_if = "Option::is_none")]
@@ -98,11 +107,13 @@ pub struct Report<'a> {
     model: &'a Model,
     solution: &'a Solution,
     density: f64,
+    water: WaterProperties,
 }
 
 impl<'a> Report<'a> {
     pub fn new(model: &'a Model, solution: &'a Solution) -> Self {
-        Report { model, solution, density: model.options.water_properties().density }
+        let water = model.options.water_properties();
+        Report { model, solution, density: water.density, water }
     }
 
     fn len(&self, v: f64) -> f64 {
@@ -183,11 +194,41 @@ impl<'a> Report<'a> {
         }
     }
 
+    /// A pipe's or valve's total K and the share of its head loss due to minor losses, at its
+    /// flow (`None` inside: not defined at zero flow); `None` for a pump.
+    fn minor(&self, k: usize) -> Option<(Option<f64>, Option<f64>)> {
+        let m = self.model;
+        let s = self.solution;
+        let l = &m.links()[k];
+        let user_k = match &l.kind {
+            LinkKind::Pipe(p) => p.minor_loss,
+            LinkKind::Valve(v) => v.minor_loss,
+            _ => return None,
+        };
+        let q = s.flow[k];
+        if q == 0.0 || !q.is_finite() {
+            return Some((None, None));
+        }
+        if user_k == 0.0 && m.fittings(k).is_empty() && l.as_valve().is_none() {
+            return Some((Some(0.0), Some(0.0)));
+        }
+        let Some((k_total, head)) = minor_losses(m, l, &self.water, q) else { return Some((None, None)) };
+        let total = match &l.kind {
+            // The pipe's whole law at its flow: exactly the part's denominator.
+            LinkKind::Pipe(_) => LinkLaw::with_water(m, l, &self.water).evaluate_exact(q).0.abs(),
+            // A regulating valve loses more than its open K: the head across it.
+            _ => s.headloss[k].max(head.abs()),
+        };
+        let share = (total > 0.0).then(|| (head.abs() / total).min(1.0));
+        Some((Some(k_total), share))
+    }
+
     fn json_link(&self, k: usize, pump: Option<&PumpResult>) -> JsonLink<'a> {
         let m = self.model;
         let s = self.solution;
         let l = &m.links()[k];
         let valve = l.as_valve();
+        let minor = self.minor(k);
         JsonLink {
             beyond_curve: pump.map(|p| p.beyond_curve),
             efficiency: pump.map(|p| p.efficiency * 100.0),
@@ -197,7 +238,9 @@ impl<'a> Report<'a> {
             headloss: self.len(s.headloss[k]),
             hydraulic_power: pump.map(|p| self.power(p.hydraulic_power)),
             id: &l.id,
+            k_total: minor.map(|m| m.0),
             kind: l.kind.label(),
+            minor_share: minor.map(|m| m.1),
             reason: s.link_state[k].reason(),
             setting: valve.map(|v| self.setting(v)),
             shaft_power: pump.map(|p| self.power(p.shaft_power)),

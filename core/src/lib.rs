@@ -34,11 +34,13 @@
 #![warn(missing_docs)]
 
 pub mod analysis;
+pub mod duty;
 pub mod error;
 pub mod generate;
 pub mod import;
 pub mod model;
 pub mod physics;
+pub mod quality;
 pub mod simulate;
 pub mod solve;
 pub mod units;

@@ -563,6 +563,8 @@ mod tests {
             efficiency_points: None,
             efficiency: Efficiency::Constant(0.7),
             speed: 1.0,
+            elevation: None,
+            npsh_required: None,
         };
         m.add_link(Link {
             id: "Lift".into(),

@@ -14,14 +14,17 @@
 pub mod doc;
 pub mod file;
 mod index;
+pub mod outflow;
 pub mod time;
 pub mod write;
 
 use crate::error::{Element, ModelError};
+use crate::physics::fittings::{Fitting, FittingKind, FittingsMethod};
 use crate::physics::pump::{Efficiency, HeadCurve};
 use crate::physics::WaterProperties;
 use crate::units::UnitSystem;
 use index::{IdIndex, Insert};
+use std::collections::BTreeMap;
 
 /// Friction law used for every pipe of a model.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Default)]
@@ -65,6 +68,11 @@ pub struct HydraulicOptions {
     pub head_tolerance: f64,
     /// Largest relative flow change (sum |ΔQ| / sum |Q|) to accept convergence.
     pub flow_tolerance: f64,
+    /// How the K of named fittings is computed.
+    pub fittings_method: FittingsMethod,
+    /// Elevation of the site above sea level, m, for the air pressure over pump suctions
+    /// (`None`: each pump's own elevation).
+    pub site_elevation: Option<f64>,
 }
 
 impl HydraulicOptions {
@@ -95,6 +103,8 @@ impl Default for HydraulicOptions {
             max_iterations: Self::MAX_ITERATIONS,
             head_tolerance: Self::HEAD_TOLERANCE,
             flow_tolerance: Self::FLOW_TOLERANCE,
+            fittings_method: FittingsMethod::default(),
+            site_elevation: None,
         }
     }
 }
@@ -260,6 +270,10 @@ pub struct Pump {
     pub efficiency: Efficiency,
     /// Relative speed (1 = the speed of the curve); 0 stops the pump.
     pub speed: f64,
+    /// Elevation of the pump's centreline (impeller eye), m (`None`: its suction node's).
+    pub elevation: Option<f64>,
+    /// Net positive suction head the pump requires, points (m³/s, m) at speed 1, if given.
+    pub npsh_required: Option<Vec<(f64, f64)>>,
 }
 
 /// The four kinds of control valve.
@@ -478,8 +492,14 @@ pub struct Model {
     /// The `[criteria]` table as written, unchecked; [`crate::analysis::Criteria::apply`]
     /// reads it (only the commands that check criteria need it to be valid).
     pub criteria: Option<doc::Value>,
+    /// Outflows that follow pressure: pressure-dependent demand, outlets, leakage.
+    pub outflow: outflow::OutflowData,
     /// Map data: coordinate kind and drawn alignments (`[map]`, `path`).
     pub map: MapData,
+    /// Named fittings of pipes and valves: link index → its list (set through
+    /// [`Model::set_fittings`], which checks them). Kept beside the links rather than in them:
+    /// few links list fittings, and every link of a large network stays small.
+    fittings: BTreeMap<usize, Box<[Fitting]>>,
     nodes: Vec<Node>,
     links: Vec<Link>,
     node_index: IdIndex,
@@ -489,12 +509,15 @@ pub struct Model {
 /// Two models are equal when their data are; the id indices follow from the elements.
 impl PartialEq for Model {
     fn eq(&self, other: &Self) -> bool {
-        let Model { title, units, options, time, criteria, map, nodes, links, node_index: _, link_index: _ } = self;
+        let Model { title, units, options, time, criteria, outflow, map, fittings, nodes, links, node_index: _, link_index: _ } =
+            self;
         *title == other.title
+            && *fittings == other.fittings
             && *units == other.units
             && *options == other.options
             && *time == other.time
             && *criteria == other.criteria
+            && *outflow == other.outflow
             && *map == other.map
             && *nodes == other.nodes
             && *links == other.links
@@ -543,6 +566,76 @@ impl Named for Link {
     fn element(&self) -> Element {
         Element::Link(self.id.to_string())
     }
+}
+
+/// Checks a link's fittings (see [`Model::set_fittings`]).
+pub(crate) fn check_fittings(link: &Link, fittings: &[Fitting]) -> Result<(), ModelError> {
+    if fittings.is_empty() {
+        return Ok(());
+    }
+    if let LinkKind::Pump(_) = link.kind {
+        return Err(ModelError::at(
+            Some(link.element()),
+            Some("fittings"),
+            "applies to pipes and valves; list a pump's fittings on its suction and discharge pipes",
+        ));
+    }
+    for (i, f) in fittings.iter().enumerate() {
+        let key = |k: &str| format!("fittings[{}].{k}", i + 1);
+        let fail = |k: &str, message: String| Err(ModelError::at(Some(link.element()), Some(&key(k)), message));
+        if f.count < 1 {
+            return fail("count", format!("must be at least 1, found {}", f.count));
+        }
+        match f.kind {
+            FittingKind::Bend => {
+                if link.as_valve().is_some() {
+                    return fail(
+                        "kind",
+                        "a bend's loss needs the pipe's friction factor; list it on a pipe, not on a valve".into(),
+                    );
+                }
+                if !(f.radius.is_finite() && f.radius >= Fitting::MIN_RADIUS) {
+                    return fail(
+                        "radius",
+                        format!(
+                            "must be at least {} pipe diameters (r/D; a tighter turn is a mitre, not a bend), found {}",
+                            Fitting::MIN_RADIUS,
+                            f.radius
+                        ),
+                    );
+                }
+                if !(f.angle.is_finite() && f.angle > 0.0 && f.angle <= 180.0) {
+                    return fail("angle", format!("must be above 0 and at most 180 degrees, found {}", f.angle));
+                }
+            }
+            FittingKind::GateValve => {
+                if !(f.opening.is_finite() && f.opening > 0.0 && f.opening <= 1.0) {
+                    return fail(
+                        "opening",
+                        format!("must be above 0 and at most 1 (the fraction open), found {}", f.opening),
+                    );
+                }
+            }
+            _ => {}
+        }
+    }
+    Ok(())
+}
+
+/// Checks a pump's required-NPSH points: at least two, finite, flows increasing, heads positive.
+fn check_npsh_curve(points: &[(f64, f64)]) -> Result<(), String> {
+    if points.len() < 2 {
+        return Err(format!("needs at least two (flow, head) points, found {}", points.len()));
+    }
+    for (i, &(q, h)) in points.iter().enumerate() {
+        if !(q.is_finite() && h.is_finite()) || q < 0.0 || h <= 0.0 {
+            return Err(format!("point {}: flows must not be negative and heads must be above zero", i + 1));
+        }
+    }
+    if let Some(i) = points.windows(2).position(|w| w[1].0 <= w[0].0) {
+        return Err(format!("flows must increase from point to point (points {} and {})", i + 1, i + 2));
+    }
+    Ok(())
 }
 
 /// Value rules for [`check_value`].
@@ -707,6 +800,13 @@ impl Model {
                     Efficiency::fit(points)
                         .map_err(|e| ModelError::at(Some(link.element()), Some("efficiency_curve"), e.0))?;
                 }
+                if let Some(z) = p.elevation {
+                    check_value(link, "elevation", z, Rule::Finite)?;
+                }
+                if let Some(points) = &p.npsh_required {
+                    check_npsh_curve(points)
+                        .map_err(|m| ModelError::at(Some(link.element()), Some("npsh_required_curve"), m))?;
+                }
                 if let Efficiency::Constant(e) = p.efficiency {
                     if !(e > 0.0 && e <= 1.0) {
                         return Err(ModelError::at(
@@ -831,6 +931,126 @@ impl Model {
         self.replace_link(index, link)
     }
 
+    /// The named fittings of the link at `index` (empty when it lists none).
+    pub fn fittings(&self, index: usize) -> &[Fitting] {
+        self.fittings.get(&index).map_or(&[], |f| f)
+    }
+
+    /// The named fittings of `link`, a link of this model (empty when it lists none). Costs an
+    /// id lookup only when some link of the model lists fittings.
+    pub fn fittings_of(&self, link: &Link) -> &[Fitting] {
+        if self.fittings.is_empty() {
+            return &[];
+        }
+        self.link_index(&link.id).map_or(&[], |k| self.fittings(k))
+    }
+
+    /// Whether any link lists named fittings.
+    pub fn has_fittings(&self) -> bool {
+        !self.fittings.is_empty()
+    }
+
+    /// Sets the named fittings of the link at `index` after checking them: pipes and valves
+    /// only, a bend only on a pipe (its K needs the pipe's friction factor), and every value in
+    /// range. Errors name the link and the key as `fittings[n].key`, n counted from 1.
+    pub fn set_fittings(&mut self, index: usize, fittings: Vec<Fitting>) -> Result<(), ModelError> {
+        let link = self.links.get(index).ok_or_else(|| ModelError::new(format!("no link at index {index}")))?;
+        check_fittings(link, &fittings)?;
+        if fittings.is_empty() {
+            self.fittings.remove(&index);
+        } else {
+            self.fittings.insert(index, fittings.into_boxed_slice());
+        }
+        Ok(())
+    }
+
+    /// Changes one value of many nodes in place, all or none: `change(index, node)` writes the
+    /// new value into the node's data and returns the old one, or `None` when it leaves the node
+    /// alone; every changed node is then checked as [`Model::replace_node`] checks it. On the
+    /// first error (from `change` or a check) every node changed so far gets its old value back
+    /// through `restore(node, old)` and the error is returned.
+    ///
+    /// This is the whole-array path of the C library's setters: no node is copied, so setting
+    /// every demand of a large network costs a pass over the nodes. `change` must not change a
+    /// node's id or kind (the id index would no longer match); it changes values.
+    pub fn change_nodes<T>(
+        &mut self,
+        mut change: impl FnMut(usize, &mut Node) -> Result<Option<T>, ModelError>,
+        mut restore: impl FnMut(&mut Node, T),
+    ) -> Result<(), ModelError> {
+        let mut undo: Vec<(usize, T)> = Vec::new();
+        let mut failure = None;
+        for (i, node) in self.nodes.iter_mut().enumerate() {
+            match change(i, node) {
+                Ok(Some(old)) => {
+                    undo.push((i, old));
+                    if let Err(e) = Self::check_node(node) {
+                        failure = Some(e);
+                        break;
+                    }
+                }
+                Ok(None) => {}
+                Err(e) => {
+                    failure = Some(e);
+                    break;
+                }
+            }
+        }
+        match failure {
+            None => Ok(()),
+            Some(e) => {
+                for (i, old) in undo.into_iter().rev() {
+                    restore(&mut self.nodes[i], old);
+                }
+                Err(e)
+            }
+        }
+    }
+
+    /// Changes one value of many links in place, all or none, as [`Model::change_nodes`] does
+    /// for nodes (each changed link is checked as [`Model::replace_link`] checks it).
+    pub fn change_links<T>(
+        &mut self,
+        mut change: impl FnMut(usize, &mut Link) -> Result<Option<T>, ModelError>,
+        mut restore: impl FnMut(&mut Link, T),
+    ) -> Result<(), ModelError> {
+        let mut links = std::mem::take(&mut self.links);
+        let mut undo: Vec<(usize, T)> = Vec::new();
+        let mut failure = None;
+        for (k, link) in links.iter_mut().enumerate() {
+            let (from, to) = (link.from, link.to);
+            match change(k, link) {
+                Ok(Some(old)) => {
+                    undo.push((k, old));
+                    // The ends are not the caller's to change (nor the id: see the docs).
+                    let checked = if link.from != from || link.to != to {
+                        Err(ModelError::at(Some(link.element()), Some("from"), "cannot be changed"))
+                    } else {
+                        self.check_link(link)
+                    };
+                    if let Err(e) = checked {
+                        failure = Some(e);
+                        break;
+                    }
+                }
+                Ok(None) => {}
+                Err(e) => {
+                    failure = Some(e);
+                    break;
+                }
+            }
+        }
+        if let Some(e) = failure {
+            for (k, old) in undo.into_iter().rev() {
+                restore(&mut links[k], old);
+            }
+            self.links = links;
+            return Err(e);
+        }
+        self.links = links;
+        Ok(())
+    }
+
     /// Sets a link's status.
     pub fn set_status(&mut self, index: usize, status: LinkStatus) -> Result<(), ModelError> {
         let link = self.links.get_mut(index).ok_or_else(|| ModelError::new(format!("no link at index {index}")))?;
@@ -863,6 +1083,6 @@ impl Model {
                 ));
             }
         }
-        Ok(())
+        self.outflow.check(self)
     }
 }

@@ -14,6 +14,7 @@
 use super::file::Format;
 use super::time::{self as tm, Action, Condition};
 use super::{HeadLossLaw, LinkKind, LinkStatus, Model, NodeKind, PumpDrive, ValveType, WaterSpec};
+use crate::physics::fittings::Fitting;
 use crate::physics::pump::Efficiency;
 use crate::units::HORSEPOWER;
 use serde::ser::{SerializeMap, Serializer};
@@ -266,8 +267,31 @@ impl Serialize for ModelFile<'_> {
                 max_iterations: o.max_iterations,
                 head_tolerance: c.len(o.head_tolerance),
                 flow_tolerance: o.flow_tolerance,
+                fittings_method: o.fittings_method.label(),
+                site_elevation: o.site_elevation.map(|z| c.len(z)),
             },
         )?;
+        let density = c.density;
+        if let Some(pd) = &m.outflow.pressure_demand {
+            top.serialize_entry(
+                "pressure_demand",
+                &PressureDemandTable {
+                    full_pressure: c.pressure(pd.full_pressure),
+                    zero_pressure: c.pressure(pd.zero_pressure),
+                    exponent: pd.exponent,
+                },
+            )?;
+        }
+        if let Some(l) = &m.outflow.leakage {
+            top.serialize_entry(
+                "background_leakage",
+                &LeakageTable {
+                    rate: leakage_rate_from_si(c, l.rate),
+                    reference_pressure: m.units.pressure.from_head(l.reference_pressure, density),
+                    exponent: l.exponent,
+                },
+            )?;
+        }
         if m.map.coordinates != super::MapCoordinates::default() {
             top.serialize_entry("map", &MapTable { coordinates: m.map.coordinates.label() })?;
         }
@@ -325,6 +349,34 @@ struct Hydraulics {
     max_iterations: u32,
     head_tolerance: f64,
     flow_tolerance: f64,
+    fittings_method: &'static str,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    site_elevation: Option<f64>,
+}
+
+#[derive(Serialize)]
+struct PressureDemandTable {
+    full_pressure: f64,
+    zero_pressure: f64,
+    exponent: f64,
+}
+
+#[derive(Serialize)]
+struct LeakageTable {
+    rate: f64,
+    reference_pressure: f64,
+    exponent: f64,
+}
+
+/// A leakage rate (m³/s per m) in flow units per km (per 1000 ft where lengths are in ft).
+fn leakage_rate_from_si(c: Ctx<'_>, rate: f64) -> f64 {
+    c.flow(rate * c.model.units.length.to_si(1000.0))
+}
+
+#[derive(Serialize)]
+struct OutletEntry {
+    coefficient: f64,
+    exponent: f64,
 }
 
 #[derive(Serialize)]
@@ -393,6 +445,14 @@ struct NodeEntry<'a> {
     #[serde(skip_serializing_if = "Option::is_none")]
     demands: Option<Demands<'a>>,
     #[serde(skip_serializing_if = "Option::is_none")]
+    full_pressure: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    zero_pressure: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    exponent: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    outlet: Option<OutletEntry>,
+    #[serde(skip_serializing_if = "Option::is_none")]
     level: Option<f64>,
     #[serde(skip_serializing_if = "Option::is_none")]
     min_level: Option<f64>,
@@ -424,6 +484,15 @@ fn node_entry(c: Ctx<'_>, i: usize) -> NodeEntry<'_> {
         zone: n.zone.as_deref(),
         ..NodeEntry::default()
     };
+    if let Some(j) = c.model.outflow.junctions.get(&i) {
+        e.full_pressure = j.full_pressure.map(|p| c.pressure(p));
+        e.zero_pressure = j.zero_pressure.map(|p| c.pressure(p));
+        e.exponent = j.exponent;
+        e.outlet = j.outlet.map(|o| OutletEntry {
+            coefficient: c.flow(o.coefficient) / c.model.units.pressure.from_head(1.0, c.density).powf(o.exponent),
+            exponent: o.exponent,
+        });
+    }
     match &n.kind {
         NodeKind::Junction { demand } => match time.demands.get(&i).map(Vec::as_slice) {
             Some([one]) => {
@@ -518,12 +587,51 @@ struct LinkEntry<'a> {
     #[serde(skip_serializing_if = "Option::is_none")]
     minor_loss: Option<f64>,
     #[serde(skip_serializing_if = "Option::is_none")]
+    fittings: Option<Vec<FittingEntry>>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    elevation: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    npsh_required_curve: Option<Points<'a>>,
+    #[serde(skip_serializing_if = "Option::is_none")]
     status: Option<&'static str>,
     #[serde(skip_serializing_if = "Option::is_none")]
     check_valve: Option<bool>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    leakage_rate: Option<f64>,
     /// Map coordinates, written as given (no unit conversion, as node `x`, `y`).
     #[serde(skip_serializing_if = "Option::is_none")]
     path: Option<&'a [(f64, f64)]>,
+}
+
+/// One named fitting; parameters only for the kinds that take them.
+#[derive(Serialize)]
+struct FittingEntry {
+    kind: &'static str,
+    count: u32,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    radius: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    angle: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    opening: Option<f64>,
+}
+
+fn fitting_entries(fittings: &[Fitting]) -> Option<Vec<FittingEntry>> {
+    (!fittings.is_empty()).then(|| {
+        fittings
+            .iter()
+            .map(|f| {
+                let takes = |key: &str| f.kind.parameters().contains(&key);
+                FittingEntry {
+                    kind: f.kind.label(),
+                    count: f.count,
+                    radius: takes("radius").then_some(f.radius),
+                    angle: takes("angle").then_some(f.angle),
+                    opening: takes("opening").then_some(f.opening),
+                }
+            })
+            .collect()
+    })
 }
 
 fn link_entry(c: Ctx<'_>, k: usize) -> LinkEntry<'_> {
@@ -549,7 +657,9 @@ fn link_entry(c: Ctx<'_>, k: usize) -> LinkEntry<'_> {
                 HeadLossLaw::DarcyWeisbach => u.roughness.from_si(p.roughness),
             });
             e.minor_loss = Some(p.minor_loss);
+            e.fittings = fitting_entries(m.fittings(k));
             e.check_valve = Some(p.check_valve);
+            e.leakage_rate = m.outflow.leakage_rates.get(&k).map(|&r| leakage_rate_from_si(c, r));
         }
         LinkKind::Pump(p) => {
             match &p.drive {
@@ -567,6 +677,9 @@ fn link_entry(c: Ctx<'_>, k: usize) -> LinkEntry<'_> {
             }
             e.speed = Some(p.speed);
             e.speed_pattern = time.speed_patterns.get(&k).map(|&p| c.pattern(p));
+            e.elevation = p.elevation.map(|z| c.len(z));
+            e.npsh_required_curve =
+                p.npsh_required.as_deref().map(|points| Points { ctx: c, points, x: Axis::Flow, y: Axis::Length });
         }
         LinkKind::Valve(v) => {
             e.valve = Some(v.valve.label());
@@ -574,6 +687,7 @@ fn link_entry(c: Ctx<'_>, k: usize) -> LinkEntry<'_> {
             e.setting = Some(c.setting(Some(v.valve), v.setting));
             e.setting_pattern = time.setting_patterns.get(&k).map(|&p| c.pattern(p));
             e.minor_loss = Some(v.minor_loss);
+            e.fittings = fitting_entries(m.fittings(k));
             if !v.automatic && l.status == LinkStatus::Open {
                 e.status = Some("open");
             }

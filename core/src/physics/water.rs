@@ -64,6 +64,34 @@ pub fn density_if97(temperature: f64, pressure: f64) -> f64 {
     1.0 / specific_volume
 }
 
+/// IF97 region 4 (saturation line) coefficients n1..n10, table 34 of the release (transcription
+/// checked against the `iapws` Python package, which caught a mistyped n2).
+const IF97_R4: [f64; 10] = [
+    0.116_705_214_527_67e4,
+    -0.724_213_167_032_06e6,
+    -0.170_738_469_400_92e2,
+    0.120_208_247_024_70e5,
+    -0.323_255_503_223_33e7,
+    0.149_151_086_135_30e2,
+    -0.482_326_573_615_91e4,
+    0.405_113_405_420_57e6,
+    -0.238_555_575_678_49,
+    0.650_175_348_447_98e3,
+];
+
+/// Saturation (vapour) pressure of water by IF97 region 4, Pa, at `temperature` K
+/// (273.15 K to 647.096 K): the explicit form of the saturation-pressure equation, eq. 30 of the
+/// release.
+pub fn saturation_pressure_if97(temperature: f64) -> f64 {
+    let n = &IF97_R4;
+    let theta = temperature + n[8] / (temperature - n[9]);
+    let a = theta * theta + n[0] * theta + n[1];
+    let b = n[2] * theta * theta + n[3] * theta + n[4];
+    let c = n[5] * theta * theta + n[6] * theta + n[7];
+    let x = 2.0 * c / (-b + (b * b - 4.0 * a * c).sqrt());
+    x.powi(4) * 1e6
+}
+
 /// IAPWS 2008 viscosity, coefficients H_i of the ideal-gas term μ0.
 const VISC_H0: [f64; 4] = [1.677_52, 2.204_62, 0.636_656_4, -0.241_605];
 /// IAPWS 2008 viscosity, coefficients H_ij of the residual term μ1 (i = 0..5, j = 0..6).
@@ -105,6 +133,13 @@ pub struct WaterProperties {
 }
 
 impl WaterProperties {
+    /// Vapour (saturation) pressure at this temperature, Pa (IAPWS-IF97 region 4).
+    pub fn vapour_pressure(&self) -> f64 {
+        saturation_pressure_if97(self.temperature_celsius + ZERO_CELSIUS)
+    }
+}
+
+impl WaterProperties {
     /// Lowest accepted water temperature, °C.
     pub const MIN_CELSIUS: f64 = 0.0;
     /// Highest accepted water temperature, °C (just below boiling at one atmosphere).
@@ -140,6 +175,17 @@ mod tests {
         {
             let got = 1.0 / density_if97(t, p);
             assert!((got - v).abs() / v < 1e-8, "v({t}, {p}) = {got}, published {v}");
+        }
+    }
+
+    #[test]
+    fn if97_saturation_verification_values() {
+        // IF97 release, table 35 (values recalled from the release; the Python reference tests
+        // cross-check against the `iapws` package): p_s(300 K) = 0.353658941e-2 MPa,
+        // p_s(500 K) = 0.263889776e1 MPa, p_s(600 K) = 0.123443146e2 MPa.
+        for (t, p) in [(300.0, 0.353_658_941e-2), (500.0, 0.263_889_776e1), (600.0, 0.123_443_146e2)] {
+            let got = saturation_pressure_if97(t) / 1e6;
+            assert!((got - p).abs() / p < 2e-9, "p_s({t}) = {got}, published {p}");
         }
     }
 

@@ -45,6 +45,7 @@ pub mod results;
 use crate::error::{printable, Element, ModelError, SolveError};
 use crate::model::time::{Action, SimulationSettings};
 use crate::model::{LinkStatus, Model};
+use crate::solve::Solution;
 use network::{LinkSettings, Network, Stage, TankMode};
 pub use results::{Balance, Event, EventKind, PumpSummary, Run, Snapshot, Statistics, TankSummary};
 use std::fmt;
@@ -152,6 +153,47 @@ const E: [f64; 4] = [-5.0 / 72.0, 1.0 / 12.0, 1.0 / 9.0, -1.0 / 8.0];
 /// Runs the model's `[simulation]`.
 pub fn simulate(model: &Model) -> Result<Run, SimulateError> {
     simulate_with(model, &SimulateOptions::default(), &mut |_| {})
+}
+
+/// Something that follows a run step by step (the water-quality transport does).
+pub trait StepObserver {
+    /// The run moved from elapsed time `t0` to `t1` (s); `start` is the hydraulic solution in
+    /// force from `t0` (after that instant's events) and `end` the one reached at `t1` (before
+    /// that instant's events). Intervals come in order and cover the run.
+    fn interval(&mut self, t0: f64, t1: f64, start: &Solution, end: &Solution);
+}
+
+/// Like [`simulate_with`], telling `observer` about every step.
+pub fn simulate_observed(
+    model: &Model,
+    options: &SimulateOptions,
+    progress: &mut dyn FnMut(f64),
+    observer: &mut dyn StepObserver,
+) -> Result<Run, SimulateError> {
+    let sim = simulation_settings(model)?;
+    check_options(options)?;
+    let mut engine = Engine::new(model, sim, *options)?;
+    engine.observer = Some(observer);
+    engine.run(progress)
+}
+
+fn simulation_settings(model: &Model) -> Result<SimulationSettings, SimulateError> {
+    Ok(model.time.simulation.ok_or_else(|| {
+        ModelError::at(
+            Some(Element::Table("simulation".into())),
+            None,
+            "the model has no [simulation] table; add one with at least duration = \"24h\"",
+        )
+    })?)
+}
+
+fn check_options(options: &SimulateOptions) -> Result<(), SimulateError> {
+    if let Some(h) = options.fixed_step {
+        if !(h.is_finite() && h > 0.0) {
+            return Err(ModelError::new(format!("the fixed step must be longer than zero, found {h}")).into());
+        }
+    }
+    Ok(())
 }
 
 /// Runs the model's `[simulation]` with options; `progress` is told the fraction done after
@@ -266,6 +308,7 @@ struct Engine<'m> {
     series: Vec<Snapshot>,
     stats: Statistics,
     start_volume: f64,
+    observer: Option<&'m mut dyn StepObserver>,
 }
 
 impl<'m> Engine<'m> {
@@ -315,6 +358,7 @@ impl<'m> Engine<'m> {
             series: Vec::new(),
             stats: Statistics::default(),
             start_volume,
+            observer: None,
         })
     }
 
@@ -548,6 +592,9 @@ impl<'m> Engine<'m> {
 
     /// Moves the current point to the end of an accepted trial.
     fn accept(&mut self, trial: Trial, t_new: f64) {
+        if let Some(o) = self.observer.as_mut() {
+            o.interval(self.t, t_new, &self.k1.solution, &trial.end.solution);
+        }
         let h = trial.h;
         for (j, s) in self.tank_summary.iter_mut().enumerate() {
             match self.net.mode[j] {

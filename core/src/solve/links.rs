@@ -3,8 +3,27 @@
 //! A pipe loses head by friction and minor losses; a fully open valve by its loss coefficient; a
 //! pump *gains* head, which is written as a negative loss `h(Q) = −H_pump(Q)` so that every law is
 //! increasing in Q and the gradient method's matrix stays symmetric positive definite.
+//!
+//! # Named fittings
+//! A pipe's or valve's fittings ([`crate::physics::fittings`]) add `K = C + R/Re + F f` velocity
+//! heads, with `Re = |Q| D/(A ν)` and `f` the pipe's own Darcy friction factor at Q. Each part
+//! becomes a term of the law whose slope is exact, so that Newton's method keeps its quadratic
+//! convergence:
+//!
+//! * `C` joins the summed `minor_loss`: `m Q|Q|` with `m = (K + C)/(2 g A²)`;
+//! * `R/Re` gives `R ν/(2 g A D) · Q`, a term linear in Q (value and slope exact, and it keeps
+//!   the slope above zero at zero flow);
+//! * `F f` gives `F f Q|Q|/(2 g A²) = F (D/L) h_f(Q)`, a fixed fraction of the pipe's own
+//!   friction loss `h_f = f (L/D) Q|Q|/(2 g A²)`: the friction law is scaled by `1 + F D/L`.
+//!   This holds for Darcy–Weisbach (with f by Colebrook–White, or laminar) and, by the
+//!   definition of the equivalent Darcy factor, for Hazen–Williams pipes; the friction law's
+//!   own slope (including df/dRe) carries over exactly.
+//!
+//! A Hazen–Williams pipe whose fittings have no Reynolds-number part (the equivalent-length
+//! method, bends, entrances and exits under it) keeps the inline Hazen–Williams law.
 
 use crate::model::{HeadLossLaw, Link, LinkKind, Model, PumpDrive, ValveType};
+use crate::physics::fittings::{total_k_parts, KParts};
 use crate::physics::pump::HeadCurve;
 use crate::physics::{minor_loss_coefficient, Friction, WaterProperties};
 use crate::units::GRAVITY;
@@ -28,12 +47,23 @@ enum Kind {
     DarcyWeisbach(Box<(Friction, f64)>),
     /// A loss coefficient only (a fully open or throttling valve): `m Q|Q|`.
     Minor { minor: f64 },
+    /// A pipe or valve with fittings whose K falls with the Reynolds number: friction (pipes)
+    /// plus `m Q|Q| + l Q`.
+    Fitted(Box<Fitted>),
     /// `h = −s² H(Q/s)`.
     Curve { curve: Box<HeadCurve>, speed: f64 },
     /// `h = −P/(ρ g Q)` above `q_c`, tangent below.
     Power { power_over_rho_g: f64, q_c: f64 },
     /// A pump at zero speed: never open (kept closed by the status logic).
     Stopped,
+}
+
+/// The parts of a [`Kind::Fitted`] law: `h = friction(Q) + minor Q|Q| + linear Q`.
+#[derive(Clone, Debug, PartialEq)]
+struct Fitted {
+    friction: Option<Friction>,
+    minor: f64,
+    linear: f64,
 }
 
 /// The head-loss law of one link.
@@ -68,26 +98,28 @@ impl LinkLaw {
     /// Like [`LinkLaw::new`] with the model's water properties computed once by the caller
     /// (they take a few hundred floating-point operations, more than the law itself).
     pub fn with_water(model: &Model, link: &Link, water: &WaterProperties) -> Self {
-        let resistance = |friction: Option<Friction>, k: f64, d: f64| {
+        let fittings = model.fittings_of(link);
+        let resistance = |friction: Option<(Friction, f64)>, k: f64, d: f64| {
             let area = PI * d * d / 4.0;
-            let mut law = LinkLaw { kind: resistance_kind(friction, minor_loss_coefficient(k, d)), min_slope: 0.0 };
+            let parts = total_k_parts(fittings, model.options.fittings_method, d);
+            let friction = friction.map(|(f, length)| scale_friction(f, 1.0 + parts.per_friction * d / length));
+            let minor = minor_loss_coefficient(k + parts.constant, d);
+            let linear = parts.per_reynolds * water.kinematic_viscosity / (2.0 * GRAVITY * area * d);
+            let kind = if linear > 0.0 {
+                Kind::Fitted(Box::new(Fitted { friction, minor, linear }))
+            } else {
+                resistance_kind(friction, minor)
+            };
+            let mut law = LinkLaw { kind, min_slope: 0.0 };
             law.min_slope = law.evaluate_exact(REGULARISATION_VELOCITY * area).1.max(MIN_SLOPE);
             law
         };
         match &link.kind {
             LinkKind::Pipe(p) => {
-                let friction = match model.options.headloss {
-                    HeadLossLaw::HazenWilliams => Friction::hazen_williams(p.length, p.diameter, p.roughness),
-                    HeadLossLaw::DarcyWeisbach => {
-                        Friction::darcy_weisbach(p.length, p.diameter, p.roughness, water.kinematic_viscosity)
-                    }
-                };
-                resistance(Some(friction), p.minor_loss, p.diameter)
+                let friction = pipe_friction(model, p, water);
+                resistance(Some((friction, p.length)), p.minor_loss, p.diameter)
             }
-            LinkKind::Valve(v) => {
-                let k = if v.valve == ValveType::Throttle && v.automatic { v.setting } else { v.minor_loss };
-                resistance(None, k, v.diameter)
-            }
+            LinkKind::Valve(v) => resistance(None, valve_k(v), v.diameter),
             LinkKind::Pump(p) => {
                 if p.speed <= 0.0 {
                     return LinkLaw { kind: Kind::Stopped, min_slope: MIN_SLOPE };
@@ -118,7 +150,7 @@ impl LinkLaw {
     /// solve).
     pub fn initial_flow(&self, link: &Link) -> f64 {
         match &self.kind {
-            Kind::HazenWilliams { .. } | Kind::DarcyWeisbach(_) | Kind::Minor { .. } => {
+            Kind::HazenWilliams { .. } | Kind::DarcyWeisbach(_) | Kind::Minor { .. } | Kind::Fitted(_) => {
                 INITIAL_VELOCITY * flow_area(link)
             }
             Kind::Curve { curve, speed } => 0.5 * characteristic_flow(curve, *speed),
@@ -139,6 +171,11 @@ impl LinkLaw {
                 (h + minor * q * q.abs(), d + 2.0 * minor * q.abs())
             }
             Kind::Minor { minor } => (minor * q * q.abs(), 2.0 * minor * q.abs()),
+            Kind::Fitted(parts) => {
+                let Fitted { friction, minor, linear } = **parts;
+                let (h, d) = friction.map_or((0.0, 0.0), |f| f.evaluate(q));
+                (h + minor * q * q.abs() + linear * q, d + 2.0 * minor * q.abs() + linear)
+            }
             Kind::Curve { curve, speed } => {
                 let (h, d) = curve.head_at_speed(q, *speed);
                 (-h, -d)
@@ -208,6 +245,62 @@ fn resistance_kind(friction: Option<Friction>, minor: f64) -> Kind {
         Some(f) => Kind::DarcyWeisbach(Box::new((f, minor))),
         None => Kind::Minor { minor },
     }
+}
+
+/// A pipe's friction law under the model's head-loss law.
+fn pipe_friction(model: &Model, p: &crate::model::Pipe, water: &WaterProperties) -> Friction {
+    match model.options.headloss {
+        HeadLossLaw::HazenWilliams => Friction::hazen_williams(p.length, p.diameter, p.roughness),
+        HeadLossLaw::DarcyWeisbach => {
+            Friction::darcy_weisbach(p.length, p.diameter, p.roughness, water.kinematic_viscosity)
+        }
+    }
+}
+
+/// The loss coefficient of a valve when it follows its law: its setting for an automatic
+/// throttle valve, else its fully open `minor_loss`.
+fn valve_k(v: &crate::model::Valve) -> f64 {
+    if v.valve == ValveType::Throttle && v.automatic {
+        v.setting
+    } else {
+        v.minor_loss
+    }
+}
+
+/// A friction law whose loss is multiplied by `factor`.
+fn scale_friction(f: Friction, factor: f64) -> Friction {
+    match f {
+        Friction::HazenWilliams { r } => Friction::HazenWilliams { r: r * factor },
+        Friction::DarcyWeisbach { k, re_per_flow, relative_roughness } => {
+            Friction::DarcyWeisbach { k: k * factor, re_per_flow, relative_roughness }
+        }
+    }
+}
+
+/// The minor losses of a pipe or valve at flow `q` (m³/s): the total K of its `minor_loss`
+/// (or a throttle valve's setting) and of its named fittings, referred to its own velocity
+/// head, and the head they take (m, same sign as q). `None` for a pump, and at zero flow, where
+/// K is not defined (its Reynolds-number part grows without bound).
+///
+/// The K of fittings is evaluated from the same parts as the law the solver uses, so the head
+/// here is exactly the law's minor part at `q`: for bends, with the pipe's own Darcy friction
+/// factor at `q` (for Hazen–Williams pipes, the factor that gives the same friction loss).
+pub fn minor_losses(model: &Model, link: &Link, water: &WaterProperties, q: f64) -> Option<(f64, f64)> {
+    if q == 0.0 || !q.is_finite() {
+        return None;
+    }
+    let (k_user, d, friction) = match &link.kind {
+        LinkKind::Pipe(p) => (p.minor_loss, p.diameter, Some((pipe_friction(model, p, water), p.length))),
+        LinkKind::Valve(v) => (valve_k(v), v.diameter, None),
+        LinkKind::Pump(_) => return None,
+    };
+    let area = PI * d * d / 4.0;
+    let velocity_head = q * q / (2.0 * GRAVITY * area * area);
+    let re = q.abs() * d / (area * water.kinematic_viscosity);
+    let parts: KParts = total_k_parts(model.fittings_of(link), model.options.fittings_method, d);
+    let f = friction.map_or(0.0, |(fr, length)| fr.evaluate(q).0.abs() / ((length / d) * velocity_head));
+    let k = k_user + parts.at(re, f);
+    Some((k, (k * velocity_head).copysign(q)))
 }
 
 /// The flow area of a pipe or valve, m² (zero for a pump), for velocities.

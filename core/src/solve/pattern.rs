@@ -461,7 +461,14 @@ mod tests {
         let points = vec![(0.0, 30.0), (0.01, 20.0)];
         let curve = HeadCurve::fit(&points).unwrap();
         let drive = PumpDrive::Curve { points, curve };
-        let pump = Pump { drive, efficiency_points: None, efficiency: Efficiency::Constant(0.75), speed: 1.0 };
+        let pump = Pump {
+            drive,
+            efficiency_points: None,
+            efficiency: Efficiency::Constant(0.75),
+            speed: 1.0,
+            elevation: None,
+            npsh_required: None,
+        };
         m.add_link(Link {
             id: "PU".into(),
             from: 4,
