@@ -5,10 +5,10 @@
 
 mod check;
 mod check_report;
+mod duty;
 mod gis;
 mod import_cmd;
 mod map;
-mod duty;
 mod plot;
 mod quality_report;
 mod report;
@@ -271,14 +271,9 @@ fn main() -> ExitCode {
     match cli.command {
         Command::Solve { model, format, output, timings } => solve(&model, format, output.as_deref(), timings),
         Command::Generate { junctions, seed, output } => generate(junctions, seed, &output),
-        Command::Simulate { model, format, output, plot, at, criteria } => simulate(
-            &model,
-            format,
-            output.as_deref(),
-            plot.as_deref(),
-            at.as_deref(),
-            criteria.as_deref(),
-        ),
+        Command::Simulate { model, format, output, plot, at, criteria } => {
+            simulate(&model, format, output.as_deref(), plot.as_deref(), at.as_deref(), criteria.as_deref())
+        }
         Command::Import {
             pipes,
             points,

@@ -417,7 +417,9 @@ function draw() {
   ctx.fillStyle = "#ffffff"; ctx.fillRect(0, 0, W, H);
   ctx.lineCap = "round"; ctx.lineJoin = "round";
   const vx0 = cx - W / 2 / s, vx1 = cx + W / 2 / s, vy0 = cy - H / 2 / s, vy1 = cy + H / 2 / s;
-  for (let g = GROUPS; g >= 0; g--) {
+  // Uncoloured links first, then from the low end of the scale up: the high values (the ones a
+  // reader looks for) stay on top where links overlap at small scales.
+  for (const g of [GROUPS, ...Array.from({ length: GROUPS }, (_, i) => i)]) {
     const list = groups[g];
     if (!list.length) continue;
     ctx.strokeStyle = g === GROUPS ? "#9a9a9a" : D.ramp[Math.min(255, g * 8 + 4)];

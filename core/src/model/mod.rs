@@ -509,8 +509,20 @@ pub struct Model {
 /// Two models are equal when their data are; the id indices follow from the elements.
 impl PartialEq for Model {
     fn eq(&self, other: &Self) -> bool {
-        let Model { title, units, options, time, criteria, outflow, map, fittings, nodes, links, node_index: _, link_index: _ } =
-            self;
+        let Model {
+            title,
+            units,
+            options,
+            time,
+            criteria,
+            outflow,
+            map,
+            fittings,
+            nodes,
+            links,
+            node_index: _,
+            link_index: _,
+        } = self;
         *title == other.title
             && *fittings == other.fittings
             && *units == other.units
