@@ -12,7 +12,7 @@ use crate::check_report::{self, Run};
 use crate::snippet;
 use ringmain_core::analysis::{
     diagnose_model, diagnose_solution, run_scenario, supplied_by_topology, sweep_candidates, sweep_pipes,
-    warning_checks, CheckOptions, Criteria, Scenario,
+    warning_checks, what_if_model, CheckOptions, Criteria, Scenario,
 };
 use ringmain_core::model::doc::{self, Value};
 use ringmain_core::{Format, ModelError, SolveError, SolveOptions, Solver};
@@ -172,9 +172,12 @@ pub fn run(args: Args) -> ExitCode {
         }
     }
 
-    let scenario = Scenario { close: args.close.clone(), demand_factor: args.demand_factor };
-    let what_if = match scenario.apply(&model) {
-        Ok(m) => m,
+    let what_if = Scenario::closing(&model, &args.close, args.demand_factor).and_then(|s| {
+        let m = what_if_model(&model, &s)?;
+        Ok((s, m))
+    });
+    let (scenario, what_if) = match what_if {
+        Ok(both) => both,
         Err(e) => {
             let mut e = e;
             e.message = match e.element {

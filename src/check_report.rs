@@ -58,7 +58,7 @@ impl Run<'_> {
     }
 
     fn scenario_label(&self) -> String {
-        self.scenario.label()
+        self.scenario.label(self.model)
     }
 
     fn closed_label(&self, link: usize) -> String {
@@ -329,7 +329,7 @@ pub fn to_json(run: &Run<'_>, code: u8) -> Value {
         },
         "scenario": {
             "label": run.scenario_label(),
-            "closed": run.scenario.close,
+            "closed": run.scenario.statuses.iter().map(|&(k, _)| run.model.links()[k].id.as_str()).collect::<Vec<_>>(),
             "demand_factor": run.scenario.demand_factor,
         },
         "base": base,

@@ -384,7 +384,7 @@ fn solve(path: &Path, format: OutputFormat, output: Option<&Path>, timings: bool
     let Ok(model) = load(path) else { return ExitCode::from(EXIT_INVALID) };
     let reading = clock.elapsed();
     let mut solver = None;
-    let solved = ringmain_core::Solver::new(&model).and_then(|s| solver.insert(s).solve(&model));
+    let solved = ringmain_core::Solver::new(&model).and_then(|s| solver.insert(s).solve_model(&model));
     let solution = match solved {
         Ok(s) => s,
         Err(SolveError::Model(e)) => {
@@ -428,7 +428,7 @@ fn solve(path: &Path, format: OutputFormat, output: Option<&Path>, timings: bool
 /// The `--timings` report, on standard error.
 fn print_timings(model: &Model, solver: &ringmain_core::Solver, reading: Duration, writing: Duration) {
     let t = solver.timings();
-    let pattern = solver.pattern();
+    let pattern = solver.structure();
     let ms = |d: Duration| d.as_secs_f64() * 1e3;
     let iterating = t.iterating();
     let share = |d: Duration| if iterating.is_zero() { 0.0 } else { 100.0 * d.as_secs_f64() / iterating.as_secs_f64() };

@@ -331,7 +331,7 @@ impl<'m> Engine<'m> {
             });
         }
         net.configure(model, &settings, sim.start_clock)?;
-        let k1 = net.evaluate(&volumes, &settings, 0.0)?;
+        let k1 = net.evaluate(model, &volumes, &settings, 0.0)?;
         let n_pumps = net.pumps.len();
         let start_volume = volumes.iter().sum();
         Ok(Engine {
@@ -403,7 +403,7 @@ impl<'m> Engine<'m> {
                 self.accept(trial, t_new);
                 if scheduled {
                     self.net.configure(self.model, &self.settings, self.clock())?;
-                    self.k1 = self.net.evaluate(&self.volumes, &self.settings, self.t)?;
+                    self.k1 = self.net.evaluate(self.model, &self.volumes, &self.settings, self.t)?;
                 }
             }
             self.act()?;
@@ -455,11 +455,11 @@ impl<'m> Engine<'m> {
             y.iter().enumerate().map(|(j, &v)| v + weights.iter().map(|(w, q)| w * q[j]).sum::<f64>()).collect()
         };
         let y2 = combine(&[(0.5 * h, &q1)]);
-        let s2 = self.net.evaluate(&y2, &self.settings, self.t + 0.5 * h)?;
+        let s2 = self.net.evaluate(self.model, &y2, &self.settings, self.t + 0.5 * h)?;
         let y3 = combine(&[(0.75 * h, &s2.tank_inflow)]);
-        let s3 = self.net.evaluate(&y3, &self.settings, self.t + 0.75 * h)?;
+        let s3 = self.net.evaluate(self.model, &y3, &self.settings, self.t + 0.75 * h)?;
         let y4 = combine(&[(B[0] * h, &q1), (B[1] * h, &s2.tank_inflow), (B[2] * h, &s3.tank_inflow)]);
-        let s4 = self.net.evaluate(&y4, &self.settings, self.t + h)?;
+        let s4 = self.net.evaluate(self.model, &y4, &self.settings, self.t + h)?;
         let mut err: f64 = 0.0;
         for (j, tank) in self.net.tanks.iter().enumerate() {
             let e = h * (E[0] * q1[j] + E[1] * s2.tank_inflow[j] + E[2] * s3.tank_inflow[j] + E[3] * s4.tank_inflow[j]);
@@ -624,7 +624,7 @@ impl<'m> Engine<'m> {
         for _round in 0..=4 * (n_controls + self.net.tanks.len()) + 2 {
             let mut changed = self.settle_tanks();
             if changed {
-                self.k1 = self.net.evaluate(&self.volumes, &self.settings, self.t)?;
+                self.k1 = self.net.evaluate(self.model, &self.volumes, &self.settings, self.t)?;
             }
             let now: Vec<f64> =
                 (0..n_controls).map(|c| self.control_value(c, &self.volumes, &self.k1, self.t, true)).collect();
@@ -637,7 +637,7 @@ impl<'m> Engine<'m> {
                 }
                 self.fire(&firing)?;
                 self.net.configure(self.model, &self.settings, self.clock())?;
-                self.k1 = self.net.evaluate(&self.volumes, &self.settings, self.t)?;
+                self.k1 = self.net.evaluate(self.model, &self.volumes, &self.settings, self.t)?;
                 changed = true;
             }
             if !changed {
@@ -672,7 +672,7 @@ impl<'m> Engine<'m> {
                 TankMode::Full | TankMode::Empty => {
                     let full = self.net.mode[j] == TankMode::Full;
                     let towards = if full { inflow > FLOW_EPS } else { inflow < -FLOW_EPS };
-                    if self.net.closed_at(j).is_empty() && !towards {
+                    if self.net.closed_at(self.model, j).is_empty() && !towards {
                         self.net.mode[j] = TankMode::Normal;
                         self.events.push(Event { time: self.t, kind: EventKind::TankReleased { tank: node } });
                     }
@@ -759,7 +759,7 @@ impl<'m> Engine<'m> {
                 _ => None,
             });
             if mode != TankMode::Normal && logged != Some(mode) {
-                let closed = self.net.closed_at(j);
+                let closed = self.net.closed_at(self.model, j);
                 let kind = if mode == TankMode::Full {
                     EventKind::TankFull { tank: node, closed }
                 } else {
@@ -796,12 +796,12 @@ impl<'m> Engine<'m> {
             self.series.pop();
         }
         let sol = &self.k1.solution;
-        let work = self.net.model();
+        let conditions = self.net.conditions();
         let snapshot = Snapshot {
             time: self.t,
             head: sol.head.clone(),
             pressure: sol.pressure.clone(),
-            demand: work.nodes().iter().map(|n| n.demand()).collect(),
+            demand: conditions.demands().to_vec(),
             flow: sol.flow.clone(),
             status: sol.link_state.iter().map(|s| s.status_label()).collect(),
             level: (0..self.net.tanks.len()).map(|j| self.level(j, &self.volumes)).collect(),
@@ -821,7 +821,7 @@ impl<'m> Engine<'m> {
                 .pumps
                 .iter()
                 .zip(&self.k1.pumps)
-                .map(|(&k, p)| if p[0] > 0.0 { work.links()[k].as_pump().map_or(0.0, |p| p.speed) } else { 0.0 })
+                .map(|(&k, p)| if p[0] > 0.0 { conditions.pump_speed(k) } else { 0.0 })
                 .collect(),
             pump_power: self.k1.pumps.iter().map(|p| p[2]).collect(),
             price: self.price(),
