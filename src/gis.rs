@@ -306,7 +306,7 @@ impl<'a> GisResults<'a> {
         head.insert("units".into(), serde_json::Value::Object(units));
         let text = serde_json::to_string(&serde_json::Value::Object(head))?;
         // The head without its closing brace, then the features.
-        out.write_all(text[..text.len() - 1].as_bytes())?;
+        out.write_all(&text.as_bytes()[..text.len() - 1])?;
         out.write_all(b",\"features\":[\n")?;
         let num = |v: f64| if v.is_finite() { json!(v) } else { serde_json::Value::Null };
         let mut first = true;

@@ -612,7 +612,7 @@ mod tests {
         for (t, want) in published {
             let got = viridis(t);
             for ch in 0..3 {
-                assert!((got[ch] as i32 - want[ch] as i32).abs() <= 8, "t = {t}: {got:?} vs {want:?}");
+                assert!((got[ch] as i32 - want[ch]).abs() <= 8, "t = {t}: {got:?} vs {want:?}");
             }
         }
         // Perceptually ordered: lightness (Rec. 709 luma) rises along the map.
