@@ -35,6 +35,9 @@ RINGMAIN_BIN="$PWD/target/release/ringmain" .venv/bin/python -m pytest tests/pyt
 step "C library and Python package"
 scripts/test-embedding.sh
 
+step "the HTML map in headless Chromium"
+scripts/test-map-browser.sh
+
 step "fuzz the model reader (60 s of fuzzing; 5–7 min on a fresh machine with the install and build)"
 command -v cargo-fuzz >/dev/null 2>&1 || cargo install cargo-fuzz --locked
 scripts/test-fuzz.sh

@@ -417,7 +417,9 @@ function draw() {
   ctx.fillStyle = "#ffffff"; ctx.fillRect(0, 0, W, H);
   ctx.lineCap = "round"; ctx.lineJoin = "round";
   const vx0 = cx - W / 2 / s, vx1 = cx + W / 2 / s, vy0 = cy - H / 2 / s, vy1 = cy + H / 2 / s;
-  for (let g = GROUPS; g >= 0; g--) {
+  // Uncoloured links first, then from the low end of the scale up: the high values (the ones a
+  // reader looks for) stay on top where links overlap at small scales.
+  for (const g of [GROUPS, ...Array.from({ length: GROUPS }, (_, i) => i)]) {
     const list = groups[g];
     if (!list.length) continue;
     ctx.strokeStyle = g === GROUPS ? "#9a9a9a" : D.ramp[Math.min(255, g * 8 + 4)];
@@ -489,7 +491,7 @@ function scaleBar() {
   let len = p;
   for (const f of [1, 2, 5]) if (f * p <= target) len = f * p;
   document.getElementById("scalebar").style.width = (len / metresPerPixel) + "px";
-  document.getElementById("scaletext").textContent = fmt(len) + " " + D.lengthUnit;
+  document.getElementById("scaletext").textContent = String(Number(len.toPrecision(6))) + " " + D.lengthUnit;
 }
 // Legend.
 document.getElementById("label").textContent = D.label;
@@ -585,8 +587,45 @@ window.ringmainMap = {
     return null;
   },
   pick(mx, my) { const h = pick(mx, my); return h ? (h.node ? D.nodeIds[h.index] : D.linkIds[h.index]) : null; },
+  redraw() { const t0 = performance.now(); draw(); return performance.now() - t0; },
   elements: nNodes + nLinks,
 };
 resize(); fit(); draw();
 })();
 "##;
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn viridis_matches_the_published_colours() {
+        // Viridis at 0, 1/4, 1/2, 3/4 and 1 as matplotlib publishes it (van der Walt and Smith,
+        // 2015): #440154, #3b528b, #21918c, #5ec962, #fde725 (from memory of the table).
+        let published = [
+            (0.0, [0x44, 0x01, 0x54]),
+            (0.25, [0x3b, 0x52, 0x8b]),
+            (0.5, [0x21, 0x91, 0x8c]),
+            (0.75, [0x5e, 0xc9, 0x62]),
+            (1.0, [0xfd, 0xe7, 0x25]),
+        ];
+        for (t, want) in published {
+            let got = viridis(t);
+            for ch in 0..3 {
+                assert!((got[ch] as i32 - want[ch]).abs() <= 8, "t = {t}: {got:?} vs {want:?}");
+            }
+        }
+        // Perceptually ordered: lightness (Rec. 709 luma) rises along the map.
+        let luma = |c: [u8; 3]| 0.2126 * c[0] as f64 + 0.7152 * c[1] as f64 + 0.0722 * c[2] as f64;
+        for i in 0..100 {
+            assert!(luma(viridis((i + 1) as f64 / 100.0)) > luma(viridis(i as f64 / 100.0)) - 0.5, "{i}");
+        }
+    }
+
+    #[test]
+    fn scale_bars_are_round_lengths() {
+        assert_eq!(round_length(1234.0), 200.0);
+        assert_eq!(round_length(5000.0), 1000.0);
+        assert_eq!(round_length(0.9), 0.1);
+    }
+}

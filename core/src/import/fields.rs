@@ -12,7 +12,7 @@ use crate::units::{LengthUnit, UnitSystem};
 
 /// The pipe attributes a fields file may map (model key → attribute name).
 pub const PIPE_KEYS: &[&str] =
-    &["id", "diameter", "roughness", "material", "status", "length", "minor_loss", "check_valve", "zone"];
+    &["id", "diameter", "roughness", "material", "status", "length", "minor_loss", "check_valve"];
 /// The point attributes a fields file may map.
 pub const POINT_KEYS: &[&str] =
     &["id", "kind", "elevation", "demand", "head", "level", "min_level", "max_level", "diameter", "zone"];
@@ -110,7 +110,7 @@ fn unknown(table: &str, key: &str, known: &[&str]) -> ModelError {
     table_error(table, Some(key), format!("is not a known key{hint}; known keys here: {}", known.join(", ")))
 }
 
-/// Reads a mapping table (`[pipes]`, `[points]`): model key = attribute name.
+/// Reads a mapping table (`pipes`, `points`): model key = attribute name.
 fn mapping(value: Value, table: &str, known: &[&'static str]) -> Result<Vec<(&'static str, String)>, ModelError> {
     let mut out = Vec::new();
     for (key, v) in entries(value, table)? {
@@ -274,7 +274,7 @@ fn read_inner(text: &str) -> Result<FieldMap, ModelError> {
         return Err(table_error(
             "materials",
             None,
-            "is missing: [pipes] material needs a table of material → roughness",
+            "is missing: the pipes table maps material, which needs a table of material → roughness",
         ));
     }
     if map.point("kind").is_some() && map.kinds.is_empty() {
@@ -292,16 +292,15 @@ mod tests {
     use super::*;
 
     const SAMPLE: &str = r#"
+        pipes.id = "ASSET"
+        pipes.diameter = "DIA"
+        pipes.material = "MAT"
         [crs]
         units = "ft"
         [units]
         length = "ft"
         diameter = "in"
         flow = "gpm"
-        [pipes]
-        id = "ASSET"
-        diameter = "DIA"
-        material = "MAT"
         [points]
         id = "NID"
         kind = "TYPE"
@@ -327,8 +326,22 @@ mod tests {
     }
 
     #[test]
+    fn the_sample_fields_file_reads() {
+        let f = read_fields(include_str!("../../../examples/FIELDS.toml"), "examples/FIELDS.toml").unwrap();
+        for key in PIPE_KEYS {
+            assert!(f.pipe(key).is_some(), "the sample documents pipes.{key}");
+        }
+        for key in POINT_KEYS {
+            assert!(f.point(key).is_some(), "the sample documents points {key}");
+        }
+        assert_eq!(f.crs, Crs::Projected(LengthUnit::Metre));
+        assert_eq!(f.options.water, crate::model::WaterSpec::Temperature(12.0));
+    }
+
+    #[test]
     fn unknown_and_missing_keys_are_named() {
-        let e = read_fields(&SAMPLE.replace("diameter = \"DIA\"", "diametre = \"DIA\""), "f.toml").unwrap_err();
+        let e =
+            read_fields(&SAMPLE.replace("pipes.diameter = \"DIA\"", "pipes.diametre = \"DIA\""), "f.toml").unwrap_err();
         assert_eq!(e.key.as_deref(), Some("diametre"), "{e}");
         assert!(e.to_string().starts_with("f.toml: "), "{e}");
         let e = read_fields(&SAMPLE.replace("units = \"ft\"\n", "units = \"yd\"\n"), "f.toml").unwrap_err();

@@ -725,7 +725,9 @@ pub fn import(
         list.dedup_by(|b, a| a.position() == b.position() && a.slot == b.slot);
         let first = parts.len();
         let total_drawn = drawn[i] * length_factor;
-        let mut pieces: Vec<(u32, u32, f64, Vec<(f64, f64)>, f64, f64)> = Vec::new();
+        // (from slot, to slot, drawn length, path, start position, end position)
+        type Piece = (u32, u32, f64, Vec<(f64, f64)>, f64, f64);
+        let mut pieces: Vec<Piece> = Vec::new();
         for w in list.windows(2) {
             let (c0, c1) = (w[0], w[1]);
             let a = lerp(pipe.xy[c0.seg as usize], pipe.xy[c0.seg as usize + 1], c0.t);
@@ -803,11 +805,6 @@ pub fn import(
         }
     }
     // Only slots some link uses become nodes (a slot whose every part closed on itself does not).
-    let mut slot_used = vec![false; slots.len()];
-    for p in &parts {
-        slot_used[p.from as usize] = true;
-        slot_used[p.to as usize] = true;
-    }
     let mut order: Vec<u32> = Vec::new();
     {
         let mut seen = vec![false; slots.len()];
@@ -1034,10 +1031,14 @@ pub fn import(
         let pos = seg as f64 + t;
         let (first, end) = parts_of_pipe[k as usize];
         let Some(other) = parts[first..end].iter().find(|p| p.cut_start <= pos && pos <= p.cut_end) else { continue };
-        // An end-to-end miss is reported once, from the end listed first.
-        let other_slot = if pos == other.cut_start {
+        // An end-to-end miss is reported once, from the end listed first. The nearest position
+        // is an end when that end is as close as the foot (to round-off: a foot found in the
+        // tangent plane may fall a hair inside the line).
+        let tolerance = d * 1e-9 + 1e-12;
+        let other_xy = &pipe_list[other.pipe].xy;
+        let other_slot = if frame.distance(at, lerp_cut(other_xy, other.cut_start)) <= d + tolerance {
             Some(other.from)
-        } else if pos == other.cut_end {
+        } else if frame.distance(at, lerp_cut(other_xy, other.cut_end)) <= d + tolerance {
             Some(other.to)
         } else {
             None
