@@ -73,6 +73,8 @@ fn build(c: &Case) -> Model {
             efficiency_points: None,
             efficiency: Efficiency::Constant(0.75),
             speed: 1.0,
+            elevation: None,
+            npsh_required: None,
         }));
         add(&mut m, sump, n - 1, kind);
     }
