@@ -20,7 +20,7 @@
 use criterion::{criterion_group, criterion_main, BenchmarkId, Criterion, Throughput};
 use ringmain_core::generate::{generate, NetworkSpec};
 use ringmain_core::model::write;
-use ringmain_core::solve::{Scenario, SolveOptions, Solver};
+use ringmain_core::solve::{Conditions, Scenario, SolveOptions, Solver};
 use ringmain_core::{Format, LinkStatus, Model};
 use std::path::PathBuf;
 use std::time::Duration;
@@ -54,7 +54,7 @@ fn print_split(n: usize, model: &Model) {
     // add time, so each phase's minimum is the closest to its cost.
     let mut t = None::<ringmain_core::solve::Timings>;
     for _ in 0..7 {
-        solver.solve(model).expect("solves");
+        solver.solve_model(model).expect("solves");
         let s = *solver.timings();
         t = Some(match t {
             None => s,
@@ -74,7 +74,7 @@ fn print_split(n: usize, model: &Model) {
     let t = t.expect("seven solves");
     let ms = |d: Duration| d.as_secs_f64() * 1e3;
     let inner = (t.factorization + t.solves).as_secs_f64() / t.iterating().as_secs_f64();
-    let p = solver.pattern();
+    let p = solver.structure();
     eprintln!(
         "split {n}: {} iterations; {} of {} junctions in trees, {} unknowns, factor nnz {}; analysis {:.2} ms; \
          solve {:.2} ms = preparation {:.2} + assembly {:.2} + factorization {:.2} + solves {:.2} + status {:.2} \
@@ -106,13 +106,13 @@ fn solve(c: &mut Criterion) {
         group.throughput(Throughput::Elements(n as u64));
         let mut solver = Solver::new(&model).expect("analysis");
         group.bench_function(BenchmarkId::from_parameter(n), |b| {
-            b.iter(|| solver.solve(&model).expect("solves").iterations)
+            b.iter(|| solver.solve_model(&model).expect("solves").iterations)
         });
         group.finish();
         let mut group = c.benchmark_group("solve-with-analysis");
         group.sample_size(10).warm_up_time(Duration::from_secs(1)).measurement_time(Duration::from_secs(4));
         group.bench_function(BenchmarkId::from_parameter(n), |b| {
-            b.iter(|| Solver::new(&model).expect("analysis").solve(&model).expect("solves").iterations)
+            b.iter(|| Solver::new(&model).expect("analysis").solve_model(&model).expect("solves").iterations)
         });
         group.finish();
     }
@@ -176,13 +176,14 @@ fn batch(c: &mut Criterion) {
     let model = network(10_000);
     let solver = Solver::new(&model).expect("analysis");
     let options = SolveOptions::from_model(&model);
+    let conditions = Conditions::from_model(&model);
     // Demand factors over a day, and single-pipe closures for a small criticality sweep.
     let pipes: Vec<usize> = (0..model.links().len()).step_by(997).take(8).collect();
     let mut scenarios: Vec<Scenario> =
-        (0..8).map(|i| Scenario { demand_multiplier: 0.5 + 0.15 * i as f64, ..Scenario::default() }).collect();
+        (0..8).map(|i| Scenario { demand_factor: 0.5 + 0.15 * i as f64, ..Scenario::default() }).collect();
     scenarios
         .extend(pipes.iter().map(|&k| Scenario { statuses: vec![(k, LinkStatus::Closed)], ..Scenario::default() }));
-    print_batch_work(&solver, &model, &options, &scenarios);
+    print_batch_work(&solver, &model, &conditions, &options, &scenarios);
     let mut group = c.benchmark_group("batch");
     group.sample_size(10).warm_up_time(Duration::from_secs(1)).measurement_time(Duration::from_secs(6));
     group.throughput(Throughput::Elements(scenarios.len() as u64));
@@ -190,7 +191,7 @@ fn batch(c: &mut Criterion) {
         let pool = rayon::ThreadPoolBuilder::new().num_threads(threads).build().expect("thread pool");
         group.bench_function(BenchmarkId::new("16-scenarios-1e4-threads", threads), |b| {
             b.iter(|| {
-                pool.install(|| solver.solve_batch(&model, &options, &scenarios))
+                pool.install(|| solver.solve_batch(&model, &conditions, &options, &scenarios))
                     .iter()
                     .map(|r| r.as_ref().expect("solves").iterations)
                     .sum::<u32>()
@@ -215,7 +216,13 @@ fn cpu_time() -> Duration {
 /// Wall-clock and processor time of the batch on 1 and 2 threads. On a machine shared with
 /// other work the wall-clock speedup understates what two free cores give; the processor time
 /// shows whether the parallel run does more work than the serial one.
-fn print_batch_work(solver: &Solver, model: &Model, options: &SolveOptions, scenarios: &[Scenario]) {
+fn print_batch_work(
+    solver: &Solver,
+    model: &Model,
+    conditions: &Conditions,
+    options: &SolveOptions,
+    scenarios: &[Scenario],
+) {
     let mut figures = Vec::new();
     for threads in [1, 2] {
         let pool = rayon::ThreadPoolBuilder::new().num_threads(threads).build().expect("thread pool");
@@ -223,7 +230,7 @@ fn print_batch_work(solver: &Solver, model: &Model, options: &SolveOptions, scen
         let (cpu0, wall0) = (cpu_time(), std::time::Instant::now());
         for _ in 0..10 {
             let start = std::time::Instant::now();
-            let results = pool.install(|| solver.solve_batch(model, options, scenarios));
+            let results = pool.install(|| solver.solve_batch(model, conditions, options, scenarios));
             assert!(results.iter().all(|r| r.is_ok()));
             best = best.min(start.elapsed());
         }

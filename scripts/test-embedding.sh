@@ -5,7 +5,8 @@
 #
 #   scripts/test-embedding.sh
 #
-# Needs: cargo, gcc, make, valgrind (installed with apt-get when missing), Python 3 with venv.
+# Needs: cargo, gcc, make, valgrind, cmake, pkg-config (installed with apt-get when missing),
+# Python 3 with venv.
 # Honours CARGO_TARGET_DIR. Installs the pinned cbindgen with `cargo install` when it is missing.
 set -euo pipefail
 cd "$(dirname "$0")/.."
@@ -41,7 +42,7 @@ if ! git diff --exit-code -- ffi/include/ringmain.h; then
 fi
 
 step "C tests"
-for tool in gcc make valgrind; do
+for tool in gcc make valgrind cmake pkg-config; do
   if ! command -v "$tool" >/dev/null; then
     command -v apt-get >/dev/null || die "$tool is missing and apt-get is not available to install it"
     apt-get install -y --no-install-recommends "$tool" >/dev/null || {
@@ -60,11 +61,41 @@ step "C tests under Valgrind memcheck"
 make -s -C bindings/c LIBDIR="$RELEASE" TMPDIR="$C_TMP" valgrind
 printf 'valgrind: %d passed, 0 failed\n' "$C_COUNT"
 
-step "Python package"
+step "installed C library: scripts/install-lib.sh, then a program built with pkg-config and with CMake"
+PREFIX_DIR="$C_TMP/prefix"
+scripts/install-lib.sh "$PREFIX_DIR"
+SONAME=$(readelf -d "$RELEASE/libringmain.so" | sed -n 's/.*Library soname: \[\(.*\)\].*/\1/p')
+[ -L "$PREFIX_DIR/lib/$SONAME" ] || die "install-lib.sh did not make the link $SONAME"
+PKG_CONFIG_PATH="$PREFIX_DIR/lib/pkgconfig" cc -std=c11 -Wall -Wextra -Werror -pedantic \
+  bindings/c/test_double_include.c $(PKG_CONFIG_PATH="$PREFIX_DIR/lib/pkgconfig" pkg-config --cflags --libs ringmain) \
+  -Wl,-rpath,"$PREFIX_DIR/lib" -o "$C_TMP/pkgconfig_app"
+"$C_TMP/pkgconfig_app"
+readelf -d "$C_TMP/pkgconfig_app" | grep -q "Shared library: \[$SONAME\]" \
+  || die "a program linked with -lringmain does not record the SONAME $SONAME"
+mkdir -p "$C_TMP/cmake_app"
+cp bindings/c/test_double_include.c "$C_TMP/cmake_app/app.c"
+cat >"$C_TMP/cmake_app/CMakeLists.txt" <<'CMAKE'
+cmake_minimum_required(VERSION 3.13)
+project(ringmain_cmake_check C)
+find_package(ringmain 0.1 REQUIRED)
+add_executable(app app.c)
+target_link_libraries(app PRIVATE ringmain::ringmain)
+add_executable(app_static app.c)
+target_link_libraries(app_static PRIVATE ringmain::ringmain_static)
+CMAKE
+cmake -S "$C_TMP/cmake_app" -B "$C_TMP/cmake_app/build" -DCMAKE_PREFIX_PATH="$PREFIX_DIR" \
+  -DCMAKE_BUILD_RPATH="$PREFIX_DIR/lib" >/dev/null
+cmake --build "$C_TMP/cmake_app/build" >/dev/null
+"$C_TMP/cmake_app/build/app"
+"$C_TMP/cmake_app/build/app_static"
+
+step "Python package: pip install builds the library into the package; tests, doctests, mypy --strict"
 if [ ! -x .venv/bin/python ]; then
   python3 -m venv .venv
 fi
 .venv/bin/python -m pip install --quiet --disable-pip-version-check -r tests/python/requirements.txt
 .venv/bin/python -m pip install --quiet --disable-pip-version-check --force-reinstall --no-deps ./bindings/python
-# The installed package finds the library in this workspace's release directory by itself.
+# The tests use the installed package and the library inside it (test_build.py checks that).
 (cd bindings/python && RINGMAIN_BIN="$RELEASE/ringmain" ../../.venv/bin/python -m pytest tests -q -p no:cacheprovider)
+(ROOT_DIR=$PWD; cd "$C_TMP" && "$ROOT_DIR/.venv/bin/python" -m pytest --doctest-modules --pyargs ringmain -q -p no:cacheprovider)
+(cd bindings/python && ../../.venv/bin/python -m mypy --strict --no-incremental -p ringmain)

@@ -12,7 +12,7 @@ use crate::check_report::{self, Run};
 use crate::snippet;
 use ringmain_core::analysis::{
     diagnose_model, diagnose_solution, run_scenario, supplied_by_topology, sweep_candidates, sweep_pipes,
-    warning_checks, CheckOptions, Criteria, Scenario,
+    warning_checks, what_if_model, CheckOptions, Criteria, Scenario,
 };
 use ringmain_core::model::doc::{self, Value};
 use ringmain_core::{Format, ModelError, SolveError, SolveOptions, Solver};
@@ -172,9 +172,12 @@ pub fn run(args: Args) -> ExitCode {
         }
     }
 
-    let scenario = Scenario { close: args.close.clone(), demand_factor: args.demand_factor };
-    let what_if = match scenario.apply(&model) {
-        Ok(m) => m,
+    let what_if = Scenario::closing(&model, &args.close, args.demand_factor).and_then(|s| {
+        let m = what_if_model(&model, &s)?;
+        Ok((s, m))
+    });
+    let (scenario, what_if) = match what_if {
+        Ok(both) => both,
         Err(e) => {
             let mut e = e;
             e.message = match e.element {
@@ -211,6 +214,20 @@ pub fn run(args: Args) -> ExitCode {
         warnings.extend(diagnose_solution(&what_if, s));
     }
     base.checks.extend(warning_checks(&criteria, &warnings, options.keep));
+    // Water-quality criteria hold over a simulation of the model's [simulation].
+    if criteria.has_quality_limits() {
+        match quality_checks(&what_if, &criteria, options.keep) {
+            Ok(checks) => base.checks.extend(checks),
+            Err((e, code)) => {
+                if code == EXIT_INVALID {
+                    report_error(&e.in_file(&model_source.name), Some(&model_source));
+                } else {
+                    eprintln!("error: {}: {}", model_source.name, e.message);
+                }
+                return exit(code);
+            }
+        }
+    }
 
     let sweep = if args.each_pipe_closed {
         // Supply lost is measured against the solved scenario, or the open links when it has no solution.
@@ -262,6 +279,67 @@ pub fn run(args: Args) -> ExitCode {
         return written;
     }
     exit(code)
+}
+
+/// The criteria of `simulate --criteria`: the model's `[criteria]`, then the file's on top.
+/// Errors are printed (with a snippet); `None` when neither gives any.
+pub fn criteria_for(
+    model: &ringmain_core::Model,
+    model_path: &Path,
+    file: Option<&Path>,
+) -> Result<Option<Criteria>, ()> {
+    let mut criteria = Criteria::default();
+    let mut any = false;
+    if let Some(v) = &model.criteria {
+        if let Err(e) = criteria.apply(v, model) {
+            report_error(&e.in_file(model_path.display().to_string()), None);
+            return Err(());
+        }
+        any = true;
+    }
+    if let Some(path) = file {
+        match read_criteria_file(path) {
+            Ok((source, value)) => {
+                if let Err(e) = criteria.apply(&value, model) {
+                    report_error(&e.in_file(&source.name), Some(&source));
+                    return Err(());
+                }
+                any = true;
+            }
+            Err((e, source)) => {
+                report_error(&e, source.as_ref());
+                return Err(());
+            }
+        }
+    }
+    Ok(any.then_some(criteria))
+}
+
+/// Simulates the model with its water quality and evaluates the quality criteria; errors come
+/// with their exit code (2: the model cannot be simulated as it is, 3: the run failed).
+pub fn quality_checks(
+    model: &ringmain_core::Model,
+    criteria: &Criteria,
+    keep: usize,
+) -> Result<Vec<ringmain_core::analysis::evaluate::CheckResult>, (ModelError, u8)> {
+    use ringmain_core::SimulateError;
+    if model.time.simulation.is_none() {
+        let key = if criteria.max_age.is_some() { "max_age" } else { "min_residual" };
+        return Err((
+            ModelError::at(
+                Some(ringmain_core::Element::Table("criteria".into())),
+                Some(key),
+                "is checked over a simulation, but the model has no [simulation] table",
+            ),
+            EXIT_INVALID,
+        ));
+    }
+    let (_, quality) = ringmain_core::quality::simulate(model, &ringmain_core::SimulateOptions::default(), &mut |_| {})
+        .map_err(|e| match e {
+            SimulateError::Model(m) => (m, EXIT_INVALID),
+            other => (ModelError::new(other.to_string()), EXIT_NOT_CONVERGED),
+        })?;
+    ringmain_core::quality::criteria::evaluate(criteria, model, &quality, keep).map_err(|e| (e, EXIT_INVALID))
 }
 
 fn progress_bar(total: usize) -> Option<indicatif::ProgressBar> {

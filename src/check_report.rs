@@ -58,7 +58,7 @@ impl Run<'_> {
     }
 
     fn scenario_label(&self) -> String {
-        self.scenario.label()
+        self.scenario.label(self.model)
     }
 
     fn closed_label(&self, link: usize) -> String {
@@ -103,6 +103,7 @@ fn what_checked(c: &CheckResult) -> &'static str {
         "max_headloss" => "pipes carrying flow",
         "min_supply_margin" => "sources with a capacity",
         "min_tank_reserve" => "tanks",
+        n if n.starts_with("max_age") || n.starts_with("min_residual") => "junctions over the run",
         n if n.starts_with("warnings.") => "warnings",
         _ => "junctions",
     }
@@ -113,10 +114,13 @@ fn finding_text(run: &Run<'_>, c: &CheckResult, f: &Finding) -> String {
         if c.name == "all_demands_supplied" {
             return format!("{:<24} {} not supplied", f.element.to_string(), run.value(Quantity::Flow, f.value));
         }
-        return format!("{}: {d}", f.element);
+        if !f.value.is_finite() {
+            return format!("{}: {d}", f.element);
+        }
     }
+    let when = f.detail.as_deref().map(|d| format!(" {d}")).unwrap_or_default();
     format!(
-        "{:<24} {:>14}  (limit {}, off by {})",
+        "{:<24} {:>14}  (limit {}, off by {}){when}",
         f.element.to_string(),
         run.value(c.quantity, f.value),
         run.value(c.quantity, f.limit),
@@ -325,7 +329,7 @@ pub fn to_json(run: &Run<'_>, code: u8) -> Value {
         },
         "scenario": {
             "label": run.scenario_label(),
-            "closed": run.scenario.close,
+            "closed": run.scenario.statuses.iter().map(|&(k, _)| run.model.links()[k].id.as_str()).collect::<Vec<_>>(),
             "demand_factor": run.scenario.demand_factor,
         },
         "base": base,

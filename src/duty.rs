@@ -108,8 +108,9 @@ pub fn run(args: Args) -> ExitCode {
             serde_json::to_writer_pretty(&mut *out, &view.json())?;
             out.write_all(b"\n")
         }
-        crate::OutputFormat::Csv => out.write_all(view.csv().as_bytes()),
-        crate::OutputFormat::Table | crate::OutputFormat::Geojson => out.write_all(view.table().as_bytes()),
+        // GeoJSON is refused before the command runs (main.rs).
+        crate::OutputFormat::Csv | crate::OutputFormat::Geojson => out.write_all(view.csv().as_bytes()),
+        crate::OutputFormat::Table => out.write_all(view.table().as_bytes()),
     })
 }
 
@@ -664,7 +665,7 @@ pub fn list_fittings(format: crate::OutputFormat) -> ExitCode {
             .unwrap_or_default()
                 + "\n"
         }
-        crate::OutputFormat::Csv => {
+        crate::OutputFormat::Csv | crate::OutputFormat::Geojson => {
             let mut s = String::from(
                 "kind,parameters,crane_l_over_d,two_k_k1,two_k_k_inf,three_k_k1,three_k_k_i,three_k_k_d\n",
             );
@@ -685,7 +686,7 @@ pub fn list_fittings(format: crate::OutputFormat) -> ExitCode {
             }
             s
         }
-        crate::OutputFormat::Table | crate::OutputFormat::Geojson => {
+        crate::OutputFormat::Table => {
             let mut s = String::from("fittings of pipes and valves: fittings = [{ kind, count, ... }]\n\n");
             let _ = writeln!(
                 s,

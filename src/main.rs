@@ -10,6 +10,7 @@ mod gis;
 mod import_cmd;
 mod map;
 mod plot;
+mod quality_report;
 mod report;
 mod simulation;
 mod snippet;
@@ -81,13 +82,18 @@ enum Command {
         /// Write the results to this file instead of standard output.
         #[arg(long, short)]
         output: Option<PathBuf>,
-        /// Write SVG charts (tanks.svg, pumps.svg, pressures.svg) into this directory.
+        /// Write SVG charts (tanks.svg, pumps.svg, pressures.svg, and quality-<id>.svg per
+        /// water-quality constituent) into this directory.
         #[arg(long, value_name = "DIR")]
         plot: Option<PathBuf>,
         /// With --format geojson: the values at this reported instant (elapsed time such as
         /// "6h" or "1h30min") instead of each element's worst instant.
         #[arg(long, value_name = "TIME")]
         at: Option<String>,
+        /// Check water-quality criteria over the run (max_age, min_residual, after): a criteria
+        /// file (TOML or JSON) whose keys override the model's [criteria]. Exit 1 when one fails.
+        #[arg(long, value_name = "FILE")]
+        criteria: Option<PathBuf>,
     },
     /// Build a model from GIS data: GeoJSON pipes (and points) with a fields file.
     ///
@@ -265,8 +271,8 @@ fn main() -> ExitCode {
     match cli.command {
         Command::Solve { model, format, output, timings } => solve(&model, format, output.as_deref(), timings),
         Command::Generate { junctions, seed, output } => generate(junctions, seed, &output),
-        Command::Simulate { model, format, output, plot, at } => {
-            simulate(&model, format, output.as_deref(), plot.as_deref(), at.as_deref())
+        Command::Simulate { model, format, output, plot, at, criteria } => {
+            simulate(&model, format, output.as_deref(), plot.as_deref(), at.as_deref(), criteria.as_deref())
         }
         Command::Import {
             pipes,
@@ -301,7 +307,9 @@ fn main() -> ExitCode {
             })
         }
         Command::WaterProperties { format: OutputFormat::Geojson, .. }
-        | Command::FrictionFactor { format: OutputFormat::Geojson, .. } => {
+        | Command::FrictionFactor { format: OutputFormat::Geojson, .. }
+        | Command::Duty { format: OutputFormat::Geojson, .. }
+        | Command::Fittings { format: OutputFormat::Geojson } => {
             eprintln!("error: --format geojson applies to solve and simulate (results on a map)");
             ExitCode::from(EXIT_INVALID)
         }
@@ -376,7 +384,7 @@ fn solve(path: &Path, format: OutputFormat, output: Option<&Path>, timings: bool
     let Ok(model) = load(path) else { return ExitCode::from(EXIT_INVALID) };
     let reading = clock.elapsed();
     let mut solver = None;
-    let solved = ringmain_core::Solver::new(&model).and_then(|s| solver.insert(s).solve(&model));
+    let solved = ringmain_core::Solver::new(&model).and_then(|s| solver.insert(s).solve_model(&model));
     let solution = match solved {
         Ok(s) => s,
         Err(SolveError::Model(e)) => {
@@ -420,7 +428,7 @@ fn solve(path: &Path, format: OutputFormat, output: Option<&Path>, timings: bool
 /// The `--timings` report, on standard error.
 fn print_timings(model: &Model, solver: &ringmain_core::Solver, reading: Duration, writing: Duration) {
     let t = solver.timings();
-    let pattern = solver.pattern();
+    let pattern = solver.structure();
     let ms = |d: Duration| d.as_secs_f64() * 1e3;
     let iterating = t.iterating();
     let share = |d: Duration| if iterating.is_zero() { 0.0 } else { 100.0 * d.as_secs_f64() / iterating.as_secs_f64() };
@@ -639,6 +647,7 @@ fn simulate(
     output: Option<&Path>,
     plot_dir: Option<&Path>,
     at: Option<&str>,
+    criteria_path: Option<&Path>,
 ) -> ExitCode {
     use ringmain_core::SimulateError;
     let at = match at {
@@ -656,12 +665,20 @@ fn simulate(
         },
     };
     let Ok(model) = load(path) else { return ExitCode::from(EXIT_INVALID) };
+    let criteria = match check::criteria_for(&model, path, criteria_path) {
+        Ok(c) => c,
+        Err(()) => return ExitCode::from(EXIT_INVALID),
+    };
+    let with_quality = !model.time.quality.constituents.is_empty();
     let mut progress = Progress::new();
-    let result = ringmain_core::simulate::simulate_with(&model, &ringmain_core::SimulateOptions::default(), &mut |f| {
-        progress.update(f)
-    });
+    let options = ringmain_core::SimulateOptions::default();
+    let result = if with_quality {
+        ringmain_core::quality::simulate(&model, &options, &mut |f| progress.update(f)).map(|(r, q)| (r, Some(q)))
+    } else {
+        ringmain_core::simulate::simulate_with(&model, &options, &mut |f| progress.update(f)).map(|r| (r, None))
+    };
     progress.finish();
-    let run = match result {
+    let (run, quality) = match result {
         Ok(r) => r,
         Err(SimulateError::Model(e)) => {
             eprintln!("error: {}", e.in_file(path.display().to_string()));
@@ -675,7 +692,29 @@ fn simulate(
     if format == OutputFormat::Geojson {
         return write_geojson(path, output, gis::GisResults::from_run(&model, &run, at));
     }
-    let report = simulation::RunReport::new(&model, &run);
+    let mut report = simulation::RunReport::new(&model, &run);
+    report.quality = quality.as_ref();
+    if let Some(criteria) = criteria.as_ref().filter(|c| c.has_quality_limits()) {
+        let Some(q) = quality.as_ref() else {
+            eprintln!(
+                "error: {}: [criteria]: key 'max_age'/'min_residual': the model has no [[quality]] constituents to check",
+                path.display()
+            );
+            return ExitCode::from(EXIT_INVALID);
+        };
+        match ringmain_core::quality::criteria::evaluate(
+            criteria,
+            &model,
+            q,
+            ringmain_core::analysis::CheckOptions::KEEP,
+        ) {
+            Ok(checks) => report.checks = checks,
+            Err(e) => {
+                eprintln!("error: {}", e.in_file(criteria_path.unwrap_or(path).display().to_string()));
+                return ExitCode::from(EXIT_INVALID);
+            }
+        }
+    }
     if let Some(dir) = plot_dir {
         match plot::write_all(&report, dir) {
             Ok(files) => {
@@ -689,14 +728,21 @@ fn simulate(
             }
         }
     }
-    write_with("the results", output, |out| match format {
+    let written = write_with("the results", output, |out| match format {
         OutputFormat::Table => out.write_all(report.to_table().as_bytes()),
         OutputFormat::Json => {
             serde_json::to_writer_pretty(&mut *out, &report.to_json())?;
             out.write_all(b"\n")
         }
         OutputFormat::Csv | OutputFormat::Geojson => out.write_all(report.to_csv().as_bytes()),
-    })
+    });
+    if written != ExitCode::SUCCESS {
+        return written;
+    }
+    if report.checks.iter().any(|c| !c.passed()) {
+        return ExitCode::from(check::EXIT_FAILED);
+    }
+    ExitCode::SUCCESS
 }
 
 fn water_properties(temperature: f64, format: OutputFormat) -> ExitCode {

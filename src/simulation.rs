@@ -1,7 +1,9 @@
 //! Writers of simulation results: a readable summary, JSON (summary, events and the reported
 //! time series) and CSV (the time series, one value a row), all in the model's own units.
 
+use ringmain_core::analysis::CheckResult;
 use ringmain_core::model::time::{format_clock, format_duration, DAY};
+use ringmain_core::quality::QualityRun;
 use ringmain_core::simulate::Run;
 use ringmain_core::Model;
 use serde_json::{json, Value};
@@ -12,9 +14,13 @@ pub struct RunReport<'a> {
     pub model: &'a Model,
     pub run: &'a Run,
     density: f64,
+    /// The water-quality results, when the model has constituents.
+    pub quality: Option<&'a QualityRun>,
+    /// Criteria checked over the run (water quality).
+    pub checks: Vec<CheckResult>,
 }
 
-fn finite_or_null(v: f64) -> Value {
+pub(crate) fn finite_or_null(v: f64) -> Value {
     if v.is_finite() {
         json!(v)
     } else {
@@ -22,7 +28,7 @@ fn finite_or_null(v: f64) -> Value {
     }
 }
 
-fn csv_field(text: &str) -> String {
+pub(crate) fn csv_field(text: &str) -> String {
     if text.contains([',', '"', '\n', '\r']) {
         format!("\"{}\"", text.replace('"', "\"\""))
     } else {
@@ -32,7 +38,7 @@ fn csv_field(text: &str) -> String {
 
 impl<'a> RunReport<'a> {
     pub fn new(model: &'a Model, run: &'a Run) -> Self {
-        RunReport { model, run, density: model.options.water_properties().density }
+        RunReport { model, run, density: model.options.water_properties().density, quality: None, checks: Vec::new() }
     }
 
     pub fn len(&self, v: f64) -> f64 {
@@ -184,6 +190,7 @@ impl<'a> RunReport<'a> {
         for e in &r.events {
             let _ = writeln!(out, "  {}  {}", self.when(e.time), e.describe(m));
         }
+        crate::quality_report::table(self, &mut out);
         let _ = writeln!(
             out,
             "\nResults are only as good as the model and its data; designs must be checked by a licensed engineer \
@@ -229,7 +236,8 @@ impl<'a> RunReport<'a> {
             .series
             .iter()
             .map(|s| {
-                json!({
+                let rec = self.quality.and_then(|q| q.at(s.time));
+                let mut entry = json!({
                     "time_s": s.time,
                     "clock": format_clock(r.start_clock + s.time),
                     "price": s.price,
@@ -249,10 +257,14 @@ impl<'a> RunReport<'a> {
                     "links": m.links().iter().enumerate().map(|(k, l)| json!({
                         "id": l.id, "flow": self.flow(s.flow[k]), "status": s.status[k],
                     })).collect::<Vec<_>>(),
-                })
+                });
+                if let (Some(q), Some(rec)) = (self.quality, rec) {
+                    crate::quality_report::add_to_series(q, rec, &mut entry);
+                }
+                entry
             })
             .collect();
-        json!({
+        let mut doc = json!({
             "title": m.title,
             "units": {
                 "length": u.length.label(), "flow": u.flow.label(), "pressure": u.pressure.label(),
@@ -280,7 +292,9 @@ impl<'a> RunReport<'a> {
                 "time_s": e.time, "clock": format_clock(r.start_clock + e.time), "what": e.describe(m),
             })).collect::<Vec<_>>(),
             "series": series,
-        })
+        });
+        crate::quality_report::add_to_json(self, &mut doc);
+        doc
     }
 
     /// The time series, one value a row: `time_h,clock,kind,id,quantity,value,unit`.
@@ -311,6 +325,29 @@ impl<'a> RunReport<'a> {
             for (k, l) in m.links().iter().enumerate() {
                 row("link", &l.id, "flow", cell(self.flow(s.flow[k])), u.flow.label());
                 row("link", &l.id, "status", s.status[k].to_owned(), "");
+            }
+            if let Some((q, rec)) = self.quality.and_then(|q| q.at(s.time).map(|r| (q, r))) {
+                for (c, con) in q.constituents.iter().enumerate() {
+                    let scale = con.report_scale();
+                    for (i, n) in m.nodes().iter().enumerate() {
+                        row(
+                            "node",
+                            &n.id,
+                            &csv_field(&con.id),
+                            cell(rec.node[c][i] * scale),
+                            &csv_field(con.report_unit()),
+                        );
+                    }
+                    for (k, l) in m.links().iter().enumerate() {
+                        row(
+                            "link",
+                            &l.id,
+                            &csv_field(&con.id),
+                            cell(rec.link[c][k] * scale),
+                            &csv_field(con.report_unit()),
+                        );
+                    }
+                }
             }
             row("energy", "", "price", cell(s.price), &format!("{}/kWh", self.currency()));
         }

@@ -67,7 +67,7 @@ fn generated_model_file_reads_back() {
 
 #[test]
 fn a_batch_of_scenarios_matches_one_by_one_solves_of_edited_models() {
-    use ringmain_core::solve::{Scenario, SolveOptions, Solver};
+    use ringmain_core::solve::{Conditions, Scenario, SolveOptions, Solver};
     use ringmain_core::LinkStatus;
     let m = generate(&NetworkSpec::new(3_000, 6)).expect("generated");
     let solver = Solver::new(&m).expect("analysis");
@@ -77,19 +77,19 @@ fn a_batch_of_scenarios_matches_one_by_one_solves_of_edited_models() {
     let branch_pipe = m.links().len() - 10;
     let scenarios = vec![
         Scenario::default(),
-        Scenario { demand_multiplier: 1.6, ..Scenario::default() },
-        Scenario { demand_multiplier: 0.0, ..Scenario::default() },
+        Scenario { demand_factor: 1.6, ..Scenario::default() },
+        Scenario { demand_factor: 0.0, ..Scenario::default() },
         Scenario { statuses: vec![(7, LinkStatus::Closed)], ..Scenario::default() },
-        Scenario { statuses: vec![(branch_pipe, LinkStatus::Closed)], demand_multiplier: 0.8 },
+        Scenario { statuses: vec![(branch_pipe, LinkStatus::Closed)], demand_factor: 0.8 },
     ];
-    let batch = solver.solve_batch(&m, &options, &scenarios);
+    let batch = solver.solve_batch(&m, &Conditions::from_model(&m), &options, &scenarios);
     assert_eq!(batch.len(), scenarios.len());
     for (scenario, result) in scenarios.iter().zip(&batch) {
         let got = result.as_ref().expect("scenario solves");
         let mut edited = m.clone();
         for i in 0..edited.nodes().len() {
             if edited.nodes()[i].fixed_head().is_none() {
-                let d = edited.nodes()[i].demand() * scenario.demand_multiplier;
+                let d = edited.nodes()[i].demand() * scenario.demand_factor;
                 edited.set_demand(i, d).expect("demand");
             }
         }
@@ -116,6 +116,7 @@ fn a_batch_of_scenarios_matches_one_by_one_solves_of_edited_models() {
     // A scenario naming a link that does not exist is an error, not a panic.
     let bad = solver.solve_batch(
         &m,
+        &Conditions::from_model(&m),
         &options,
         &[Scenario { statuses: vec![(usize::MAX, LinkStatus::Closed)], ..Scenario::default() }],
     );

@@ -353,7 +353,7 @@ fn solver_reuse_gives_the_same_answer() {
     let m = two_loops();
     let once = solved(&m);
     let mut solver = Solver::new(&m).expect("analysis");
-    let cold = solver.solve(&m).expect("cold solve");
+    let cold = solver.solve_model(&m).expect("cold solve");
     let warm = solver.solve_with(&m, &SolveOptions { warm_start: true, ..SolveOptions::from_model(&m) }).expect("warm");
     for s in [&cold, &warm] {
         for (a, b) in once.head.iter().zip(&s.head) {

@@ -90,8 +90,10 @@ static void *worker(void *arg) {
         }
     }
     char message[256];
-    ringmain_last_error(message, sizeof message, NULL);
-    if (strstr(message, expected) == NULL) {
+    ringmain_status got = ringmain_last_error(message, sizeof message, NULL);
+    if (got != RINGMAIN_OK) {
+        snprintf(j->message, sizeof j->message, "thread %d: ringmain_last_error returned %u", j->id, (unsigned)got);
+    } else if (strstr(message, expected) == NULL) {
         snprintf(j->message, sizeof j->message, "thread %d: last error is \"%.200s\"", j->id, message);
     } else {
         j->ok = 1;

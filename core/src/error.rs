@@ -35,6 +35,8 @@ pub enum Element {
         /// The feature's id (the mapped id attribute, or else its `id` member).
         id: Option<String>,
     },
+    /// A water-quality constituent (`[[quality]]`), by id.
+    Constituent(String),
 }
 
 impl fmt::Display for Element {
@@ -52,6 +54,7 @@ impl fmt::Display for Element {
                 write!(f, "feature #{} (features[{index}], id '{}')", index + 1, printable(id))
             }
             Element::Feature { index, id: None } => write!(f, "feature #{} (features[{index}], no id)", index + 1),
+            Element::Constituent(id) => write!(f, "quality '{}'", printable(id)),
         }
     }
 }

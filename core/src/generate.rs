@@ -474,7 +474,7 @@ mod tests {
         let degree = 2.0 * m.links().len() as f64 / m.nodes().len() as f64;
         assert!((2.3..2.5).contains(&degree), "mean degree {degree}");
         assert!(m.nodes().iter().any(|n| matches!(n.kind, NodeKind::Tank(_))));
-        let trees = crate::solve::Solver::new(&m).unwrap().pattern().tree_junctions() as f64 / 20_000.0;
+        let trees = crate::solve::Solver::new(&m).unwrap().structure().tree_junctions() as f64 / 20_000.0;
         eprintln!("mean degree {degree}, {trees} of the junctions in trees");
         assert!((0.40..0.50).contains(&trees), "{trees} of the junctions in trees");
         let m = generate(&NetworkSpec::new(100_000, 1)).unwrap();

@@ -40,6 +40,7 @@ pub mod generate;
 pub mod import;
 pub mod model;
 pub mod physics;
+pub mod quality;
 pub mod simulate;
 pub mod solve;
 pub mod units;

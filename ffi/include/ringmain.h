@@ -10,11 +10,22 @@
  *   or: cc app.c -I<prefix>/include -L<prefix>/lib -lringmain
  *
  * HANDLES AND OWNERSHIP
- *   Two opaque handles: ringmain_model (a network, made by ringmain_model_new, _load, _from_toml,
- *   _from_json or _clone) and ringmain_results (one solved snapshot, made by
- *   ringmain_model_solve). The caller owns every handle it receives and frees it once with
- *   ringmain_model_free / ringmain_results_free; both accept NULL and then do nothing. Results
- *   are independent of their model: they stay valid when the model changes or is freed.
+ *   Three opaque handles: ringmain_model (a network, made by ringmain_model_new, _load,
+ *   _from_toml, _from_json or _clone), ringmain_results (one solved snapshot, made by
+ *   ringmain_model_solve) and ringmain_run (an extended-period simulation's time series, made by
+ *   ringmain_model_simulate). The caller owns every handle it receives and frees it once with
+ *   ringmain_model_free / ringmain_results_free / ringmain_run_free; all accept NULL and then do
+ *   nothing. Results and runs are independent of their model: they stay valid when the model
+ *   changes or is freed.
+ *
+ * WHOLE ARRAYS
+ *   Values of every element go in and out in one call: ringmain_model_set_demands,
+ *   _set_link_statuses, _set_valve_settings, _set_pump_speeds, _set_pipe_roughnesses,
+ *   _set_pipe_diameters, _set_reservoir_heads (one value per node or link, NaN where the value
+ *   does not apply or is to stay; all or nothing) and their _get_ twins; ringmain_model_node_ids,
+ *   _link_ids, _node_zones (texts back to back, each NUL-terminated), _node_kinds, _link_kinds,
+ *   _link_ends, _elevations, _coordinates; ringmain_results_heads... for results and
+ *   ringmain_run_series for time series (time x element, row by row).
  *
  * STATUS CODES AND ERRORS
  *   Every function returns a ringmain_status (RINGMAIN_OK is 0), except ringmain_status_text and
@@ -23,7 +34,8 @@
  *   (count or needed), which is also written with RINGMAIN_BUFFER_TOO_SMALL so that the caller
  *   can retry: call with len = 0 and buf = NULL to ask for the size. Strings written into
  *   buffers are NUL-terminated UTF-8; their size counts the NUL. On failure,
- *   ringmain_last_error gives the full message, naming the file, element id and key as the
+ *   ringmain_last_error gives the message (cut short like snprintf when the buffer is small, the
+ *   full size in its size output), naming the file, element id and key as the
  *   command-line program does. Codes passed in (units, kinds, statuses) are plain uint32_t and
  *   are checked: an integer that names no constant is RINGMAIN_INVALID_ARGUMENT, an index past
  *   the end is RINGMAIN_OUT_OF_RANGE, a NULL pointer is RINGMAIN_NULL_POINTER. A panic inside
@@ -42,8 +54,13 @@
  *   unit's label.
  *
  * THREADS
- *   The library has no global mutable state except the per-thread last error and the process-
- *   wide live-handle counters (atomic). Handles are not internally synchronised:
+ *   Global state: the per-thread last error, the process-wide live-handle counters (atomic) and
+ *   one pool of worker threads per process. The pool is made at the first call that uses it
+ *   (ringmain_model_solve, ringmain_model_simulate; all other calls run on the calling thread),
+ *   has one thread per core unless ringmain_set_threads says otherwise, and is made anew in a
+ *   child process after fork(): a child may solve even when its parent solved before the fork
+ *   (fork while no other thread of the parent is inside the library). Handles are not internally
+ *   synchronised:
  *   - distinct handles may be used from distinct threads at the same time, freely;
  *   - one model may be used by several threads at the same time only through functions that
  *     take a const ringmain_model *; a function taking ringmain_model * (adding, changing,
@@ -69,6 +86,20 @@
 #define RINGMAIN_VERSION_PATCH 0
 #define RINGMAIN_VERSION "0.1.0"
 
+/* Functions returning a status are marked so that compilers warn when the status is ignored. */
+#ifndef RINGMAIN_MUST_USE
+#  if defined(__GNUC__) || defined(__clang__)
+#    define RINGMAIN_MUST_USE __attribute__((warn_unused_result))
+#  else
+#    define RINGMAIN_MUST_USE
+#  endif
+#endif
+
+
+/**
+ * Most threads a pool may have (far beyond any machine's cores; a bound on typing mistakes).
+ */
+#define MAX_THREADS 4096
 
 /**
  * Result of every function of the library that can fail.
@@ -598,6 +629,61 @@ typedef uint32_t ringmain_link_state;
 #endif // __cplusplus
 
 /**
+ * A quantity of a run's time series, for `ringmain_run_series`. Each series is a table of
+ * time × element, written row by row (one row per reported time); its columns are the elements
+ * `ringmain_run_columns` lists.
+ */
+enum ringmain_series
+#if defined(__cplusplus) || __STDC_VERSION__ >= 202311L
+  : uint32_t
+#endif // defined(__cplusplus) || __STDC_VERSION__ >= 202311L
+ {
+  /**
+   * Head of every node (length unit; NaN where cut off). Columns: all nodes.
+   */
+  RINGMAIN_SERIES_HEAD = 0,
+  /**
+   * Pressure of every node (pressure unit; NaN where cut off). Columns: all nodes.
+   */
+  RINGMAIN_SERIES_PRESSURE = 1,
+  /**
+   * Demand of every node (flow unit). Columns: all nodes.
+   */
+  RINGMAIN_SERIES_DEMAND = 2,
+  /**
+   * Flow of every link (flow unit). Columns: all links.
+   */
+  RINGMAIN_SERIES_FLOW = 3,
+  /**
+   * Status of every link: 0 open, 1 closed, 2 active (regulating). Columns: all links.
+   */
+  RINGMAIN_SERIES_STATUS = 4,
+  /**
+   * Water level of every tank above its floor (length unit). Columns: the tanks.
+   */
+  RINGMAIN_SERIES_LEVEL = 5,
+  /**
+   * Volume of every tank (length unit cubed). Columns: the tanks.
+   */
+  RINGMAIN_SERIES_VOLUME = 6,
+  /**
+   * Relative speed of every pump in use (0 when stopped). Columns: the pumps.
+   */
+  RINGMAIN_SERIES_PUMP_SPEED = 7,
+  /**
+   * Shaft power of every pump (kW, or hp when lengths are in feet). Columns: the pumps.
+   */
+  RINGMAIN_SERIES_PUMP_POWER = 8,
+};
+#ifndef __cplusplus
+#if __STDC_VERSION__ >= 202311L
+typedef enum ringmain_series ringmain_series;
+#else
+typedef uint32_t ringmain_series;
+#endif // __STDC_VERSION__ >= 202311L
+#endif // __cplusplus
+
+/**
  * A water-distribution network model with its solver.
  *
  * Made by `ringmain_model_new`, `ringmain_model_load`, `ringmain_model_from_toml`,
@@ -627,6 +713,87 @@ typedef struct ringmain_model ringmain_model;
  */
 typedef struct ringmain_results ringmain_results;
 
+/**
+ * The results of one extended-period simulation: the series of every reported time as arrays,
+ * the summary and the events, in the units of the model it was run from.
+ *
+ * Made by `ringmain_model_simulate`; freed by the caller with `ringmain_run_free` (once). Like
+ * results, a run does not refer to its model and is never changed after it is made: any number
+ * of threads may read it at the same time.
+ */
+typedef struct ringmain_run ringmain_run;
+
+/**
+ * What a simulation did, in the model's units (volumes in the length unit cubed, times in
+ * seconds). Written by `ringmain_run_get_summary`.
+ */
+typedef struct {
+  /**
+   * Length of the run, s.
+   */
+  double duration;
+  /**
+   * Clock time at the start, s after midnight.
+   */
+  double start_clock;
+  /**
+   * Number of reported times (rows of each series).
+   */
+  size_t times;
+  /**
+   * Number of events (`ringmain_run_event`).
+   */
+  size_t events;
+  /**
+   * Volume supplied by reservoirs.
+   */
+  double supplied;
+  /**
+   * Volume delivered to demands.
+   */
+  double delivered;
+  /**
+   * Change in the volume stored in tanks (positive: filled).
+   */
+  double storage_change;
+  /**
+   * Volume of demand that could not be delivered (junctions cut off).
+   */
+  double not_delivered;
+  /**
+   * Supplied minus delivered minus storage change.
+   */
+  double discrepancy;
+  /**
+   * Whether some junction had water during the run (the three fields below are set).
+   */
+  bool has_lowest_pressure;
+  /**
+   * Index of the junction with the lowest pressure of the run.
+   */
+  size_t lowest_pressure_node;
+  /**
+   * That pressure (pressure unit).
+   */
+  double lowest_pressure;
+  /**
+   * When it happened, s from the start.
+   */
+  double lowest_pressure_time;
+  /**
+   * Time steps accepted.
+   */
+  uint64_t steps;
+  /**
+   * Time steps rejected by the error control and retried shorter.
+   */
+  uint64_t rejected_steps;
+  /**
+   * Hydraulic solves.
+   */
+  uint64_t solves;
+} ringmain_run_summary;
+
 #ifdef __cplusplus
 extern "C" {
 #endif // __cplusplus
@@ -647,21 +814,25 @@ const char *ringmain_status_text(uint32_t status);
 const char *ringmain_version(void);
 
 /**
- * Copies the calling thread's last error message into `buf` (`len` bytes, NUL-terminated) and
- * writes its size, terminating NUL included, to `needed` (may be NULL).
+ * Copies the calling thread's last error message into `buf` (`len` bytes) as `snprintf` does:
+ * at most `len - 1` bytes of the message and a terminating NUL, cut short at a character
+ * boundary when the buffer is too small (so the text stays valid UTF-8). The size of the whole
+ * message, terminating NUL included, goes to `needed` (may be NULL), whatever `len` is.
  *
  * The last error is the full message of the most recent call on this thread that returned
  * something other than `RINGMAIN_OK`, naming the file, element and key where there is one, as
  * the command-line program does. Successful calls leave it as it was; it is empty before any
- * failure. This function does not change it, even when it fails itself.
+ * failure. This function does not change it.
  *
- * Returns `RINGMAIN_BUFFER_TOO_SMALL` (writing only `needed`) when `len` is too small: call with
- * `len = 0` to ask for the size. `buf` may be NULL only when `len` is zero.
+ * Returns `RINGMAIN_OK` when the whole message fitted, `RINGMAIN_BUFFER_TOO_SMALL` when it was
+ * cut short (the buffer still holds the beginning of the message, NUL-terminated, unless `len`
+ * is zero): a fixed buffer always gives something printable, and `needed` tells the size for a
+ * retry. `buf` may be NULL only when `len` is zero.
  *
  * # Safety
  * `buf` is NULL or points to `len` writable bytes; `needed` is NULL or writable.
  */
-ringmain_status ringmain_last_error(char *buf, size_t len, size_t *needed);
+RINGMAIN_MUST_USE ringmain_status ringmain_last_error(char *buf, size_t len, size_t *needed);
 
 /**
  * Writes the numbers of model and result handles alive in the whole process (made and not yet
@@ -670,7 +841,315 @@ ringmain_status ringmain_last_error(char *buf, size_t len, size_t *needed);
  * # Safety
  * `models` and `results` are NULL or writable.
  */
-ringmain_status ringmain_live_handles(size_t *models, size_t *results);
+RINGMAIN_MUST_USE ringmain_status ringmain_live_handles(size_t *models, size_t *results);
+
+/**
+ * Sets the demand of every junction from `values` (`len` = the number of nodes, flow unit; NaN
+ * for reservoirs and tanks, and for junctions to leave unchanged).
+ *
+ * Errors: `RINGMAIN_OUT_OF_RANGE` when `len` is not the number of nodes; `RINGMAIN_WRONG_KIND`
+ * for a number at a reservoir or tank; `RINGMAIN_MODEL_INVALID` for an infinite value (the last
+ * error names the node and key). Nothing is changed on error.
+ *
+ * # Safety
+ * `model` is NULL or a live model used by no other thread during the call; `values` is NULL or
+ * points to `len` doubles.
+ */
+RINGMAIN_MUST_USE
+ringmain_status ringmain_model_set_demands(ringmain_model *model,
+                                           const double *values,
+                                           size_t len);
+
+/**
+ * Writes the demand of every node (flow unit; NaN for reservoirs and tanks) into `buf` (`len`
+ * doubles) and the number of nodes to `count` (may be NULL). Returns
+ * `RINGMAIN_BUFFER_TOO_SMALL` (writing only `count`) when `len` is too small.
+ *
+ * # Safety
+ * `model` is NULL or a live model; `buf` is NULL or `len` writable doubles; `count` is NULL or
+ * writable.
+ */
+RINGMAIN_MUST_USE
+ringmain_status ringmain_model_get_demands(const ringmain_model *model,
+                                           double *buf,
+                                           size_t len,
+                                           size_t *count);
+
+/**
+ * Sets the fixed head of every reservoir from `values` (`len` = the number of nodes, length
+ * unit; NaN for junctions and tanks, and for reservoirs to leave unchanged). Errors as
+ * `ringmain_model_set_demands`.
+ *
+ * # Safety
+ * As `ringmain_model_set_demands`.
+ */
+RINGMAIN_MUST_USE
+ringmain_status ringmain_model_set_reservoir_heads(ringmain_model *model,
+                                                   const double *values,
+                                                   size_t len);
+
+/**
+ * Writes the fixed head of every node (length unit; NaN for junctions and tanks). Buffer rules
+ * as `ringmain_model_get_demands`.
+ *
+ * # Safety
+ * As `ringmain_model_get_demands`.
+ */
+RINGMAIN_MUST_USE
+ringmain_status ringmain_model_get_reservoir_heads(const ringmain_model *model,
+                                                   double *buf,
+                                                   size_t len,
+                                                   size_t *count);
+
+/**
+ * Sets the relative speed of every pump from `values` (`len` = the number of links; NaN for
+ * pipes and valves, and for pumps to leave unchanged). Errors as `ringmain_model_set_demands`
+ * (a negative speed is `RINGMAIN_MODEL_INVALID`).
+ *
+ * # Safety
+ * As `ringmain_model_set_demands`.
+ */
+RINGMAIN_MUST_USE
+ringmain_status ringmain_model_set_pump_speeds(ringmain_model *model,
+                                               const double *values,
+                                               size_t len);
+
+/**
+ * Writes the relative speed of every link (NaN for pipes and valves). Buffer rules as
+ * `ringmain_model_get_demands`, with one value per link.
+ *
+ * # Safety
+ * As `ringmain_model_get_demands`.
+ */
+RINGMAIN_MUST_USE
+ringmain_status ringmain_model_get_pump_speeds(const ringmain_model *model,
+                                               double *buf,
+                                               size_t len,
+                                               size_t *count);
+
+/**
+ * Sets the setting of every valve from `values` (`len` = the number of links, each in the unit
+ * its valve type takes, see `ringmain_model_get_valve_setting`; NaN for pipes and pumps, and for
+ * valves to leave unchanged). Errors as `ringmain_model_set_demands`.
+ *
+ * # Safety
+ * As `ringmain_model_set_demands`.
+ */
+RINGMAIN_MUST_USE
+ringmain_status ringmain_model_set_valve_settings(ringmain_model *model,
+                                                  const double *values,
+                                                  size_t len);
+
+/**
+ * Writes the setting of every link (NaN for pipes and pumps). Buffer rules as
+ * `ringmain_model_get_demands`, with one value per link.
+ *
+ * # Safety
+ * As `ringmain_model_get_demands`.
+ */
+RINGMAIN_MUST_USE
+ringmain_status ringmain_model_get_valve_settings(const ringmain_model *model,
+                                                  double *buf,
+                                                  size_t len,
+                                                  size_t *count);
+
+/**
+ * Sets the roughness of every pipe from `values` (`len` = the number of links; Hazen–Williams C,
+ * or absolute roughness in the roughness unit under Darcy–Weisbach; NaN for pumps and valves,
+ * and for pipes to leave unchanged). Errors as `ringmain_model_set_demands`.
+ *
+ * # Safety
+ * As `ringmain_model_set_demands`.
+ */
+RINGMAIN_MUST_USE
+ringmain_status ringmain_model_set_pipe_roughnesses(ringmain_model *model,
+                                                    const double *values,
+                                                    size_t len);
+
+/**
+ * Writes the roughness of every link (NaN for pumps and valves). Buffer rules as
+ * `ringmain_model_get_demands`, with one value per link.
+ *
+ * # Safety
+ * As `ringmain_model_get_demands`.
+ */
+RINGMAIN_MUST_USE
+ringmain_status ringmain_model_get_pipe_roughnesses(const ringmain_model *model,
+                                                    double *buf,
+                                                    size_t len,
+                                                    size_t *count);
+
+/**
+ * Sets the internal diameter of every pipe from `values` (`len` = the number of links, diameter
+ * unit; NaN for pumps and valves, and for pipes to leave unchanged). Errors as
+ * `ringmain_model_set_demands`.
+ *
+ * # Safety
+ * As `ringmain_model_set_demands`.
+ */
+RINGMAIN_MUST_USE
+ringmain_status ringmain_model_set_pipe_diameters(ringmain_model *model,
+                                                  const double *values,
+                                                  size_t len);
+
+/**
+ * Writes the internal diameter of every link (diameter unit; NaN for pumps and valves). Buffer
+ * rules as `ringmain_model_get_demands`, with one value per link.
+ *
+ * # Safety
+ * As `ringmain_model_get_demands`.
+ */
+RINGMAIN_MUST_USE
+ringmain_status ringmain_model_get_pipe_diameters(const ringmain_model *model,
+                                                  double *buf,
+                                                  size_t len,
+                                                  size_t *count);
+
+/**
+ * Sets the status of every link from `statuses` (`len` = the number of links, each a
+ * `ringmain_link_status`: open, closed, or for valves automatic). All or none.
+ *
+ * Errors: `RINGMAIN_OUT_OF_RANGE` when `len` is not the number of links;
+ * `RINGMAIN_INVALID_ARGUMENT` for an integer that names no status, or automatic for a pipe or
+ * pump (the last error names the link).
+ *
+ * # Safety
+ * `model` is NULL or a live model used by no other thread during the call; `statuses` is NULL or
+ * points to `len` integers.
+ */
+RINGMAIN_MUST_USE
+ringmain_status ringmain_model_set_link_statuses(ringmain_model *model,
+                                                 const uint32_t *statuses,
+                                                 size_t len);
+
+/**
+ * Writes the status set on every link (a `ringmain_link_status`) into `buf` (`len` integers)
+ * and the number of links to `count` (may be NULL). Buffer rules as
+ * `ringmain_model_get_demands`.
+ *
+ * # Safety
+ * `model` is NULL or a live model; `buf` is NULL or `len` writable integers; `count` is NULL or
+ * writable.
+ */
+RINGMAIN_MUST_USE
+ringmain_status ringmain_model_get_link_statuses(const ringmain_model *model,
+                                                 uint32_t *buf,
+                                                 size_t len,
+                                                 size_t *count);
+
+/**
+ * Writes the id of every node, in node order, back to back, each NUL-terminated, into `buf`
+ * (`len` bytes) and the size used, every NUL included, to `needed` (may be NULL). Returns
+ * `RINGMAIN_BUFFER_TOO_SMALL` (writing only `needed`) when `len` is too small: call with
+ * `len = 0` to ask for the size.
+ *
+ * # Safety
+ * `model` is NULL or a live model; `buf` is NULL or `len` writable bytes; `needed` is NULL or
+ * writable.
+ */
+RINGMAIN_MUST_USE
+ringmain_status ringmain_model_node_ids(const ringmain_model *model,
+                                        char *buf,
+                                        size_t len,
+                                        size_t *needed);
+
+/**
+ * Writes the id of every link, in link order, as `ringmain_model_node_ids` does for nodes.
+ *
+ * # Safety
+ * As `ringmain_model_node_ids`.
+ */
+RINGMAIN_MUST_USE
+ringmain_status ringmain_model_link_ids(const ringmain_model *model,
+                                        char *buf,
+                                        size_t len,
+                                        size_t *needed);
+
+/**
+ * Writes the zone of every node ("" for a node without one), in node order, as
+ * `ringmain_model_node_ids` writes ids.
+ *
+ * # Safety
+ * As `ringmain_model_node_ids`.
+ */
+RINGMAIN_MUST_USE
+ringmain_status ringmain_model_node_zones(const ringmain_model *model,
+                                          char *buf,
+                                          size_t len,
+                                          size_t *needed);
+
+/**
+ * Writes the kind of every node (a `ringmain_node_kind`) into `buf` (`len` integers) and the
+ * number of nodes to `count` (may be NULL). Buffer rules as `ringmain_model_get_demands`.
+ *
+ * # Safety
+ * `model` is NULL or a live model; `buf` is NULL or `len` writable integers; `count` is NULL or
+ * writable.
+ */
+RINGMAIN_MUST_USE
+ringmain_status ringmain_model_node_kinds(const ringmain_model *model,
+                                          uint32_t *buf,
+                                          size_t len,
+                                          size_t *count);
+
+/**
+ * Writes the kind of every link (a `ringmain_link_kind`) into `buf`, as
+ * `ringmain_model_node_kinds` does for nodes.
+ *
+ * # Safety
+ * As `ringmain_model_node_kinds`.
+ */
+RINGMAIN_MUST_USE
+ringmain_status ringmain_model_link_kinds(const ringmain_model *model,
+                                          uint32_t *buf,
+                                          size_t len,
+                                          size_t *count);
+
+/**
+ * Writes the elevation of every node (length unit) into `buf`. Buffer rules as
+ * `ringmain_model_get_demands`.
+ *
+ * # Safety
+ * As `ringmain_model_get_demands`.
+ */
+RINGMAIN_MUST_USE
+ringmain_status ringmain_model_elevations(const ringmain_model *model,
+                                          double *buf,
+                                          size_t len,
+                                          size_t *count);
+
+/**
+ * Writes the start and end node index of every link into `from` and `to` (`len` elements each)
+ * and the number of links to `count` (may be NULL). Flow is positive from start to end. Buffer
+ * rules as `ringmain_model_get_demands`.
+ *
+ * # Safety
+ * `model` is NULL or a live model; `from` and `to` are NULL or `len` writable elements each;
+ * `count` is NULL or writable.
+ */
+RINGMAIN_MUST_USE
+ringmain_status ringmain_model_link_ends(const ringmain_model *model,
+                                         size_t *from,
+                                         size_t *to,
+                                         size_t len,
+                                         size_t *count);
+
+/**
+ * Writes the map coordinates of every node into `x` and `y` (`len` elements each; NaN for a
+ * node without coordinates) and the number of nodes to `count` (may be NULL). Coordinates are
+ * as written in the model (no unit conversion: they are map coordinates, not lengths of the
+ * network). Buffer rules as `ringmain_model_get_demands`.
+ *
+ * # Safety
+ * `model` is NULL or a live model; `x` and `y` are NULL or `len` writable doubles each; `count`
+ * is NULL or writable.
+ */
+RINGMAIN_MUST_USE
+ringmain_status ringmain_model_coordinates(const ringmain_model *model,
+                                           double *x,
+                                           double *y,
+                                           size_t len,
+                                           size_t *count);
 
 /**
  * Makes an empty model whose values will be given in the units chosen here, and writes it to
@@ -685,6 +1164,7 @@ ringmain_status ringmain_live_handles(size_t *models, size_t *results);
  * # Safety
  * `out` is NULL or writable.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_model_new(uint32_t length_unit,
                                    uint32_t diameter_unit,
                                    uint32_t flow_unit,
@@ -704,7 +1184,7 @@ ringmain_status ringmain_model_new(uint32_t length_unit,
  * # Safety
  * `path` is NULL or a NUL-terminated string; `out` is NULL or writable.
  */
-ringmain_status ringmain_model_load(const char *path, ringmain_model **out);
+RINGMAIN_MUST_USE ringmain_status ringmain_model_load(const char *path, ringmain_model **out);
 
 /**
  * Reads a model from TOML text: `len` bytes at `text` (UTF-8; no terminating NUL needed) and
@@ -716,7 +1196,10 @@ ringmain_status ringmain_model_load(const char *path, ringmain_model **out);
  * # Safety
  * `text` is NULL or points to `len` readable bytes; `out` is NULL or writable.
  */
-ringmain_status ringmain_model_from_toml(const char *text, size_t len, ringmain_model **out);
+RINGMAIN_MUST_USE
+ringmain_status ringmain_model_from_toml(const char *text,
+                                         size_t len,
+                                         ringmain_model **out);
 
 /**
  * Reads a model from JSON text: `len` bytes at `text` (UTF-8; no terminating NUL needed) and
@@ -725,7 +1208,10 @@ ringmain_status ringmain_model_from_toml(const char *text, size_t len, ringmain_
  * # Safety
  * `text` is NULL or points to `len` readable bytes; `out` is NULL or writable.
  */
-ringmain_status ringmain_model_from_json(const char *text, size_t len, ringmain_model **out);
+RINGMAIN_MUST_USE
+ringmain_status ringmain_model_from_json(const char *text,
+                                         size_t len,
+                                         ringmain_model **out);
 
 /**
  * Makes an independent copy of a model (values, units and options; not its solver state) and
@@ -734,7 +1220,9 @@ ringmain_status ringmain_model_from_json(const char *text, size_t len, ringmain_
  * # Safety
  * `model` is NULL or a live model; `out` is NULL or writable.
  */
-ringmain_status ringmain_model_clone(const ringmain_model *model, ringmain_model **out);
+RINGMAIN_MUST_USE
+ringmain_status ringmain_model_clone(const ringmain_model *model,
+                                     ringmain_model **out);
 
 /**
  * Frees a model. NULL is ignored. Results made from the model stay valid.
@@ -751,7 +1239,7 @@ void ringmain_model_free(ringmain_model *model);
  * # Safety
  * `model` is NULL or a live model.
  */
-ringmain_status ringmain_model_validate(const ringmain_model *model);
+RINGMAIN_MUST_USE ringmain_status ringmain_model_validate(const ringmain_model *model);
 
 /**
  * Writes the model to a file in its own units, as TOML or JSON by the extension of `path`
@@ -763,7 +1251,9 @@ ringmain_status ringmain_model_validate(const ringmain_model *model);
  * # Safety
  * `model` is NULL or a live model; `path` is NULL or a NUL-terminated string.
  */
-ringmain_status ringmain_model_save(const ringmain_model *model, const char *path);
+RINGMAIN_MUST_USE
+ringmain_status ringmain_model_save(const ringmain_model *model,
+                                    const char *path);
 
 /**
  * Writes the model as model-file text (`format` is a `ringmain_format`) into `buf` (`len`
@@ -775,6 +1265,7 @@ ringmain_status ringmain_model_save(const ringmain_model *model, const char *pat
  * `model` is NULL or a live model; `buf` is NULL or `len` writable bytes; `needed` is NULL or
  * writable.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_model_write(const ringmain_model *model,
                                      uint32_t format,
                                      char *buf,
@@ -787,7 +1278,9 @@ ringmain_status ringmain_model_write(const ringmain_model *model,
  * # Safety
  * `model` is NULL or a live model; `out` is NULL or writable.
  */
-ringmain_status ringmain_model_node_count(const ringmain_model *model, size_t *out);
+RINGMAIN_MUST_USE
+ringmain_status ringmain_model_node_count(const ringmain_model *model,
+                                          size_t *out);
 
 /**
  * Writes the number of links to `*out`.
@@ -795,7 +1288,9 @@ ringmain_status ringmain_model_node_count(const ringmain_model *model, size_t *o
  * # Safety
  * `model` is NULL or a live model; `out` is NULL or writable.
  */
-ringmain_status ringmain_model_link_count(const ringmain_model *model, size_t *out);
+RINGMAIN_MUST_USE
+ringmain_status ringmain_model_link_count(const ringmain_model *model,
+                                          size_t *out);
 
 /**
  * Writes the index (0-based, in the order nodes were read or added) of the node `id` to
@@ -805,7 +1300,10 @@ ringmain_status ringmain_model_link_count(const ringmain_model *model, size_t *o
  * `model` is NULL or a live model; `id` is NULL or a NUL-terminated string; `out` is NULL or
  * writable.
  */
-ringmain_status ringmain_model_node_index(const ringmain_model *model, const char *id, size_t *out);
+RINGMAIN_MUST_USE
+ringmain_status ringmain_model_node_index(const ringmain_model *model,
+                                          const char *id,
+                                          size_t *out);
 
 /**
  * Writes the index of the link `id` to `*out`. Errors: `RINGMAIN_NOT_FOUND`.
@@ -814,7 +1312,10 @@ ringmain_status ringmain_model_node_index(const ringmain_model *model, const cha
  * `model` is NULL or a live model; `id` is NULL or a NUL-terminated string; `out` is NULL or
  * writable.
  */
-ringmain_status ringmain_model_link_index(const ringmain_model *model, const char *id, size_t *out);
+RINGMAIN_MUST_USE
+ringmain_status ringmain_model_link_index(const ringmain_model *model,
+                                          const char *id,
+                                          size_t *out);
 
 /**
  * Copies the id of node `index` into `buf` (`len` bytes, NUL-terminated); its size, NUL
@@ -824,6 +1325,7 @@ ringmain_status ringmain_model_link_index(const ringmain_model *model, const cha
  * `model` is NULL or a live model; `buf` is NULL or `len` writable bytes; `needed` is NULL or
  * writable.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_model_node_id(const ringmain_model *model,
                                        size_t index,
                                        char *buf,
@@ -836,6 +1338,7 @@ ringmain_status ringmain_model_node_id(const ringmain_model *model,
  * # Safety
  * As `ringmain_model_node_id`.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_model_link_id(const ringmain_model *model,
                                        size_t index,
                                        char *buf,
@@ -848,6 +1351,7 @@ ringmain_status ringmain_model_link_id(const ringmain_model *model,
  * # Safety
  * As `ringmain_model_node_id`.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_model_title(const ringmain_model *model,
                                      char *buf,
                                      size_t len,
@@ -859,7 +1363,10 @@ ringmain_status ringmain_model_title(const ringmain_model *model,
  * # Safety
  * `model` is NULL or a live model; `out` is NULL or writable.
  */
-ringmain_status ringmain_model_node_kind(const ringmain_model *model, size_t index, uint32_t *out);
+RINGMAIN_MUST_USE
+ringmain_status ringmain_model_node_kind(const ringmain_model *model,
+                                         size_t index,
+                                         uint32_t *out);
 
 /**
  * Writes the kind of link `index` (a `ringmain_link_kind`) to `*out`.
@@ -867,7 +1374,10 @@ ringmain_status ringmain_model_node_kind(const ringmain_model *model, size_t ind
  * # Safety
  * `model` is NULL or a live model; `out` is NULL or writable.
  */
-ringmain_status ringmain_model_link_kind(const ringmain_model *model, size_t index, uint32_t *out);
+RINGMAIN_MUST_USE
+ringmain_status ringmain_model_link_kind(const ringmain_model *model,
+                                         size_t index,
+                                         uint32_t *out);
 
 /**
  * Writes the indices of the start (`from`) and end (`to`) nodes of link `index`. Flow is
@@ -876,6 +1386,7 @@ ringmain_status ringmain_model_link_kind(const ringmain_model *model, size_t ind
  * # Safety
  * `model` is NULL or a live model; `from` and `to` are NULL or writable.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_model_link_nodes(const ringmain_model *model,
                                           size_t index,
                                           size_t *from,
@@ -888,6 +1399,7 @@ ringmain_status ringmain_model_link_nodes(const ringmain_model *model,
  * # Safety
  * As `ringmain_model_node_id`.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_model_unit_label(const ringmain_model *model,
                                           uint32_t quantity,
                                           char *buf,
@@ -900,7 +1412,9 @@ ringmain_status ringmain_model_unit_label(const ringmain_model *model,
  * # Safety
  * `model` is NULL or a live model; `out` is NULL or writable.
  */
-ringmain_status ringmain_model_get_headloss(const ringmain_model *model, uint32_t *out);
+RINGMAIN_MUST_USE
+ringmain_status ringmain_model_get_headloss(const ringmain_model *model,
+                                            uint32_t *out);
 
 /**
  * Writes the elevation of node `index` (length unit) to `*out`: ground level of a junction, floor
@@ -909,7 +1423,10 @@ ringmain_status ringmain_model_get_headloss(const ringmain_model *model, uint32_
  * # Safety
  * `model` is NULL or a live model; `out` is NULL or writable.
  */
-ringmain_status ringmain_model_get_elevation(const ringmain_model *model, size_t node, double *out);
+RINGMAIN_MUST_USE
+ringmain_status ringmain_model_get_elevation(const ringmain_model *model,
+                                             size_t node,
+                                             double *out);
 
 /**
  * Writes the demand of junction `node` (flow unit) to `*out`. Errors: `RINGMAIN_WRONG_KIND` for
@@ -918,7 +1435,10 @@ ringmain_status ringmain_model_get_elevation(const ringmain_model *model, size_t
  * # Safety
  * `model` is NULL or a live model; `out` is NULL or writable.
  */
-ringmain_status ringmain_model_get_demand(const ringmain_model *model, size_t node, double *out);
+RINGMAIN_MUST_USE
+ringmain_status ringmain_model_get_demand(const ringmain_model *model,
+                                          size_t node,
+                                          double *out);
 
 /**
  * Writes the head of reservoir `node` (length unit) to `*out`. Errors: `RINGMAIN_WRONG_KIND`.
@@ -926,6 +1446,7 @@ ringmain_status ringmain_model_get_demand(const ringmain_model *model, size_t no
  * # Safety
  * `model` is NULL or a live model; `out` is NULL or writable.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_model_get_reservoir_head(const ringmain_model *model,
                                                   size_t node,
                                                   double *out);
@@ -937,6 +1458,7 @@ ringmain_status ringmain_model_get_reservoir_head(const ringmain_model *model,
  * # Safety
  * `model` is NULL or a live model; `out` is NULL or writable.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_model_get_tank_level(const ringmain_model *model,
                                               size_t node,
                                               double *out);
@@ -948,6 +1470,7 @@ ringmain_status ringmain_model_get_tank_level(const ringmain_model *model,
  * # Safety
  * `model` is NULL or a live model; `out` is NULL or writable.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_model_get_link_status(const ringmain_model *model,
                                                size_t link,
                                                uint32_t *out);
@@ -959,6 +1482,7 @@ ringmain_status ringmain_model_get_link_status(const ringmain_model *model,
  * # Safety
  * `model` is NULL or a live model; `out` is NULL or writable.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_model_get_pump_speed(const ringmain_model *model,
                                               size_t link,
                                               double *out);
@@ -971,6 +1495,7 @@ ringmain_status ringmain_model_get_pump_speed(const ringmain_model *model,
  * # Safety
  * `model` is NULL or a live model; `out` is NULL or writable.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_model_get_valve_setting(const ringmain_model *model,
                                                  size_t link,
                                                  double *out);
@@ -982,6 +1507,7 @@ ringmain_status ringmain_model_get_valve_setting(const ringmain_model *model,
  * # Safety
  * `model` is NULL or a live model; `out` is NULL or writable.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_model_get_valve_type(const ringmain_model *model,
                                               size_t link,
                                               uint32_t *out);
@@ -993,6 +1519,7 @@ ringmain_status ringmain_model_get_valve_type(const ringmain_model *model,
  * # Safety
  * `model` is NULL or a live model; `out` is NULL or writable.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_model_get_pipe_roughness(const ringmain_model *model,
                                                   size_t link,
                                                   double *out);
@@ -1004,6 +1531,7 @@ ringmain_status ringmain_model_get_pipe_roughness(const ringmain_model *model,
  * # Safety
  * `model` is NULL or a live model; `out` is NULL or writable.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_model_get_pipe_diameter(const ringmain_model *model,
                                                  size_t link,
                                                  double *out);
@@ -1019,6 +1547,7 @@ ringmain_status ringmain_model_get_pipe_diameter(const ringmain_model *model,
  * `model` is NULL or a live model; `id` is NULL or a NUL-terminated string; `out_index` is NULL
  * or writable.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_model_add_junction(ringmain_model *model,
                                             const char *id,
                                             double elevation,
@@ -1032,6 +1561,7 @@ ringmain_status ringmain_model_add_junction(ringmain_model *model,
  * # Safety
  * As `ringmain_model_add_junction`.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_model_add_reservoir(ringmain_model *model,
                                              const char *id,
                                              double head,
@@ -1048,6 +1578,7 @@ ringmain_status ringmain_model_add_reservoir(ringmain_model *model,
  * # Safety
  * As `ringmain_model_add_junction`.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_model_add_tank(ringmain_model *model,
                                         const char *id,
                                         double elevation,
@@ -1071,6 +1602,7 @@ ringmain_status ringmain_model_add_tank(ringmain_model *model,
  * `model` is NULL or a live model; `id`, `from`, `to` are NULL or NUL-terminated strings;
  * `out_index` is NULL or writable.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_model_add_pipe(ringmain_model *model,
                                         const char *id,
                                         const char *from,
@@ -1095,6 +1627,7 @@ ringmain_status ringmain_model_add_pipe(ringmain_model *model,
  * # Safety
  * As `ringmain_model_add_pipe`; `flows` and `heads` are NULL or point to `n_points` doubles.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_model_add_pump_curve(ringmain_model *model,
                                               const char *id,
                                               const char *from,
@@ -1113,6 +1646,7 @@ ringmain_status ringmain_model_add_pump_curve(ringmain_model *model,
  * # Safety
  * As `ringmain_model_add_pipe`.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_model_add_pump_power(ringmain_model *model,
                                               const char *id,
                                               const char *from,
@@ -1134,6 +1668,7 @@ ringmain_status ringmain_model_add_pump_power(ringmain_model *model,
  * # Safety
  * As `ringmain_model_add_pipe`.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_model_add_valve(ringmain_model *model,
                                          const char *id,
                                          const char *from,
@@ -1151,7 +1686,10 @@ ringmain_status ringmain_model_add_valve(ringmain_model *model,
  * # Safety
  * `model` is NULL or a live model used by no other thread during the call.
  */
-ringmain_status ringmain_model_set_demand(ringmain_model *model, size_t node, double demand);
+RINGMAIN_MUST_USE
+ringmain_status ringmain_model_set_demand(ringmain_model *model,
+                                          size_t node,
+                                          double demand);
 
 /**
  * Sets the fixed head of reservoir `node` (length unit). Errors: `RINGMAIN_WRONG_KIND`;
@@ -1160,7 +1698,10 @@ ringmain_status ringmain_model_set_demand(ringmain_model *model, size_t node, do
  * # Safety
  * `model` is NULL or a live model used by no other thread during the call.
  */
-ringmain_status ringmain_model_set_reservoir_head(ringmain_model *model, size_t node, double head);
+RINGMAIN_MUST_USE
+ringmain_status ringmain_model_set_reservoir_head(ringmain_model *model,
+                                                  size_t node,
+                                                  double head);
 
 /**
  * Sets the water level of tank `node` above its floor (length unit). Errors:
@@ -1169,7 +1710,10 @@ ringmain_status ringmain_model_set_reservoir_head(ringmain_model *model, size_t 
  * # Safety
  * `model` is NULL or a live model used by no other thread during the call.
  */
-ringmain_status ringmain_model_set_tank_level(ringmain_model *model, size_t node, double level);
+RINGMAIN_MUST_USE
+ringmain_status ringmain_model_set_tank_level(ringmain_model *model,
+                                              size_t node,
+                                              double level);
 
 /**
  * Sets the status of link `link` (`status` is a `ringmain_link_status`): open, closed, or for a
@@ -1181,7 +1725,10 @@ ringmain_status ringmain_model_set_tank_level(ringmain_model *model, size_t node
  * # Safety
  * `model` is NULL or a live model used by no other thread during the call.
  */
-ringmain_status ringmain_model_set_link_status(ringmain_model *model, size_t link, uint32_t status);
+RINGMAIN_MUST_USE
+ringmain_status ringmain_model_set_link_status(ringmain_model *model,
+                                               size_t link,
+                                               uint32_t status);
 
 /**
  * Sets the relative speed of pump `link` (1 = the speed of its curve, 0 = stopped). Errors:
@@ -1190,7 +1737,10 @@ ringmain_status ringmain_model_set_link_status(ringmain_model *model, size_t lin
  * # Safety
  * `model` is NULL or a live model used by no other thread during the call.
  */
-ringmain_status ringmain_model_set_pump_speed(ringmain_model *model, size_t link, double speed);
+RINGMAIN_MUST_USE
+ringmain_status ringmain_model_set_pump_speed(ringmain_model *model,
+                                              size_t link,
+                                              double speed);
 
 /**
  * Sets the constant efficiency of pump `link`, in percent (above 0, at most 100), used for its
@@ -1199,6 +1749,7 @@ ringmain_status ringmain_model_set_pump_speed(ringmain_model *model, size_t link
  * # Safety
  * `model` is NULL or a live model used by no other thread during the call.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_model_set_pump_efficiency(ringmain_model *model,
                                                    size_t link,
                                                    double percent);
@@ -1212,6 +1763,7 @@ ringmain_status ringmain_model_set_pump_efficiency(ringmain_model *model,
  * `model` is NULL or a live model used by no other thread during the call; `flows` and
  * `percents` are NULL or point to `n_points` doubles.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_model_set_pump_efficiency_curve(ringmain_model *model,
                                                          size_t link,
                                                          const double *flows,
@@ -1225,6 +1777,7 @@ ringmain_status ringmain_model_set_pump_efficiency_curve(ringmain_model *model,
  * # Safety
  * `model` is NULL or a live model used by no other thread during the call.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_model_set_valve_setting(ringmain_model *model,
                                                  size_t link,
                                                  double setting);
@@ -1236,6 +1789,7 @@ ringmain_status ringmain_model_set_valve_setting(ringmain_model *model,
  * # Safety
  * `model` is NULL or a live model used by no other thread during the call.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_model_set_pipe_roughness(ringmain_model *model,
                                                   size_t link,
                                                   double roughness);
@@ -1247,6 +1801,7 @@ ringmain_status ringmain_model_set_pipe_roughness(ringmain_model *model,
  * # Safety
  * `model` is NULL or a live model used by no other thread during the call.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_model_set_pipe_diameter(ringmain_model *model,
                                                  size_t link,
                                                  double diameter);
@@ -1259,7 +1814,9 @@ ringmain_status ringmain_model_set_pipe_diameter(ringmain_model *model,
  * # Safety
  * `model` is NULL or a live model used by no other thread during the call.
  */
-ringmain_status ringmain_model_set_water_temperature(ringmain_model *model, double celsius);
+RINGMAIN_MUST_USE
+ringmain_status ringmain_model_set_water_temperature(ringmain_model *model,
+                                                     double celsius);
 
 /**
  * Sets the solver's iteration limit (1 to 100000), head tolerance (length unit, above zero) and
@@ -1269,6 +1826,7 @@ ringmain_status ringmain_model_set_water_temperature(ringmain_model *model, doub
  * # Safety
  * `model` is NULL or a live model used by no other thread during the call.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_model_set_solver_options(ringmain_model *model,
                                                   uint32_t max_iterations,
                                                   double head_tolerance,
@@ -1282,7 +1840,9 @@ ringmain_status ringmain_model_set_solver_options(ringmain_model *model,
  * # Safety
  * `model` is NULL or a live model used by no other thread during the call.
  */
-ringmain_status ringmain_model_set_warm_start(ringmain_model *model, bool enabled);
+RINGMAIN_MUST_USE
+ringmain_status ringmain_model_set_warm_start(ringmain_model *model,
+                                              bool enabled);
 
 /**
  * Solves a snapshot of the model and writes a new results handle to `*out` (free it with
@@ -1297,7 +1857,9 @@ ringmain_status ringmain_model_set_warm_start(ringmain_model *model, bool enable
  * `model` is NULL or a live model used by no other thread during the call; `out` is NULL or
  * writable.
  */
-ringmain_status ringmain_model_solve(ringmain_model *model, ringmain_results **out);
+RINGMAIN_MUST_USE
+ringmain_status ringmain_model_solve(ringmain_model *model,
+                                     ringmain_results **out);
 
 /**
  * Frees results. NULL is ignored.
@@ -1313,7 +1875,9 @@ void ringmain_results_free(ringmain_results *results);
  * # Safety
  * `results` is NULL or live results; `out` is NULL or writable.
  */
-ringmain_status ringmain_results_node_count(const ringmain_results *results, size_t *out);
+RINGMAIN_MUST_USE
+ringmain_status ringmain_results_node_count(const ringmain_results *results,
+                                            size_t *out);
 
 /**
  * Writes the number of links of the solved model to `*out`.
@@ -1321,7 +1885,9 @@ ringmain_status ringmain_results_node_count(const ringmain_results *results, siz
  * # Safety
  * `results` is NULL or live results; `out` is NULL or writable.
  */
-ringmain_status ringmain_results_link_count(const ringmain_results *results, size_t *out);
+RINGMAIN_MUST_USE
+ringmain_status ringmain_results_link_count(const ringmain_results *results,
+                                            size_t *out);
 
 /**
  * Writes the index of node `id` in these results to `*out`. Errors: `RINGMAIN_NOT_FOUND`.
@@ -1330,6 +1896,7 @@ ringmain_status ringmain_results_link_count(const ringmain_results *results, siz
  * `results` is NULL or live results; `id` is NULL or a NUL-terminated string; `out` is NULL or
  * writable.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_results_node_index(const ringmain_results *results,
                                             const char *id,
                                             size_t *out);
@@ -1340,6 +1907,7 @@ ringmain_status ringmain_results_node_index(const ringmain_results *results,
  * # Safety
  * As `ringmain_results_node_index`.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_results_link_index(const ringmain_results *results,
                                             const char *id,
                                             size_t *out);
@@ -1351,7 +1919,9 @@ ringmain_status ringmain_results_link_index(const ringmain_results *results,
  * # Safety
  * `results` is NULL or live results; `out` is NULL or writable.
  */
-ringmain_status ringmain_results_converged(const ringmain_results *results, bool *out);
+RINGMAIN_MUST_USE
+ringmain_status ringmain_results_converged(const ringmain_results *results,
+                                           bool *out);
 
 /**
  * Writes the number of Newton iterations (linear solves) of the solve to `*out`.
@@ -1359,7 +1929,9 @@ ringmain_status ringmain_results_converged(const ringmain_results *results, bool
  * # Safety
  * `results` is NULL or live results; `out` is NULL or writable.
  */
-ringmain_status ringmain_results_iterations(const ringmain_results *results, uint32_t *out);
+RINGMAIN_MUST_USE
+ringmain_status ringmain_results_iterations(const ringmain_results *results,
+                                            uint32_t *out);
 
 /**
  * Writes the number of device state changes (check valves, pumps, control valves) made during
@@ -1368,7 +1940,9 @@ ringmain_status ringmain_results_iterations(const ringmain_results *results, uin
  * # Safety
  * `results` is NULL or live results; `out` is NULL or writable.
  */
-ringmain_status ringmain_results_status_changes(const ringmain_results *results, uint32_t *out);
+RINGMAIN_MUST_USE
+ringmain_status ringmain_results_status_changes(const ringmain_results *results,
+                                                uint32_t *out);
 
 /**
  * Writes the largest mass-balance residual over connected junctions (flow unit) to `*mass` and
@@ -1377,6 +1951,7 @@ ringmain_status ringmain_results_status_changes(const ringmain_results *results,
  * # Safety
  * `results` is NULL or live results; `mass` and `energy` are NULL or writable.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_results_residuals(const ringmain_results *results,
                                            double *mass,
                                            double *energy);
@@ -1388,6 +1963,7 @@ ringmain_status ringmain_results_residuals(const ringmain_results *results,
  * # Safety
  * `results` is NULL or live results; `head_change` and `flow_change` are NULL or writable.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_results_last_changes(const ringmain_results *results,
                                               double *head_change,
                                               double *flow_change);
@@ -1403,6 +1979,7 @@ ringmain_status ringmain_results_last_changes(const ringmain_results *results,
  * `results` is NULL or live results; `buf` is NULL or `len` writable elements; `count` is NULL
  * or writable.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_results_heads(const ringmain_results *results,
                                        double *buf,
                                        size_t len,
@@ -1415,6 +1992,7 @@ ringmain_status ringmain_results_heads(const ringmain_results *results,
  * # Safety
  * As `ringmain_results_heads`.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_results_pressures(const ringmain_results *results,
                                            double *buf,
                                            size_t len,
@@ -1427,6 +2005,7 @@ ringmain_status ringmain_results_pressures(const ringmain_results *results,
  * # Safety
  * As `ringmain_results_heads`.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_results_demands(const ringmain_results *results,
                                          double *buf,
                                          size_t len,
@@ -1439,6 +2018,7 @@ ringmain_status ringmain_results_demands(const ringmain_results *results,
  * # Safety
  * As `ringmain_results_heads`.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_results_connected(const ringmain_results *results,
                                            bool *buf,
                                            size_t len,
@@ -1451,6 +2031,7 @@ ringmain_status ringmain_results_connected(const ringmain_results *results,
  * # Safety
  * As `ringmain_results_heads`.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_results_flows(const ringmain_results *results,
                                        double *buf,
                                        size_t len,
@@ -1463,6 +2044,7 @@ ringmain_status ringmain_results_flows(const ringmain_results *results,
  * # Safety
  * As `ringmain_results_heads`.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_results_velocities(const ringmain_results *results,
                                             double *buf,
                                             size_t len,
@@ -1475,6 +2057,7 @@ ringmain_status ringmain_results_velocities(const ringmain_results *results,
  * # Safety
  * As `ringmain_results_heads`.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_results_headlosses(const ringmain_results *results,
                                             double *buf,
                                             size_t len,
@@ -1487,6 +2070,7 @@ ringmain_status ringmain_results_headlosses(const ringmain_results *results,
  * # Safety
  * As `ringmain_results_heads`.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_results_link_states(const ringmain_results *results,
                                              uint32_t *buf,
                                              size_t len,
@@ -1498,6 +2082,7 @@ ringmain_status ringmain_results_link_states(const ringmain_results *results,
  * # Safety
  * `results` is NULL or live results; `out` is NULL or writable.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_results_node_head(const ringmain_results *results,
                                            size_t node,
                                            double *out);
@@ -1508,6 +2093,7 @@ ringmain_status ringmain_results_node_head(const ringmain_results *results,
  * # Safety
  * As `ringmain_results_node_head`.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_results_node_pressure(const ringmain_results *results,
                                                size_t node,
                                                double *out);
@@ -1518,6 +2104,7 @@ ringmain_status ringmain_results_node_pressure(const ringmain_results *results,
  * # Safety
  * As `ringmain_results_node_head`.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_results_node_demand(const ringmain_results *results,
                                              size_t node,
                                              double *out);
@@ -1528,6 +2115,7 @@ ringmain_status ringmain_results_node_demand(const ringmain_results *results,
  * # Safety
  * As `ringmain_results_node_head`.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_results_link_flow(const ringmain_results *results,
                                            size_t link,
                                            double *out);
@@ -1539,6 +2127,7 @@ ringmain_status ringmain_results_link_flow(const ringmain_results *results,
  * # Safety
  * As `ringmain_results_node_head`.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_results_link_velocity(const ringmain_results *results,
                                                size_t link,
                                                double *out);
@@ -1550,6 +2139,7 @@ ringmain_status ringmain_results_link_velocity(const ringmain_results *results,
  * # Safety
  * As `ringmain_results_node_head`.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_results_link_headloss(const ringmain_results *results,
                                                size_t link,
                                                double *out);
@@ -1561,6 +2151,7 @@ ringmain_status ringmain_results_link_headloss(const ringmain_results *results,
  * # Safety
  * `results` is NULL or live results; `out` is NULL or writable.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_results_link_state(const ringmain_results *results,
                                             size_t link,
                                             uint32_t *out);
@@ -1572,6 +2163,7 @@ ringmain_status ringmain_results_link_state(const ringmain_results *results,
  * # Safety
  * `results` is NULL or live results; `out` is NULL or writable.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_results_pump_head(const ringmain_results *results,
                                            size_t link,
                                            double *out);
@@ -1584,6 +2176,7 @@ ringmain_status ringmain_results_pump_head(const ringmain_results *results,
  * # Safety
  * `results` is NULL or live results; `hydraulic`, `shaft` and `efficiency` are NULL or writable.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_results_pump_power(const ringmain_results *results,
                                             size_t link,
                                             double *hydraulic,
@@ -1597,7 +2190,9 @@ ringmain_status ringmain_results_pump_power(const ringmain_results *results,
  * # Safety
  * `results` is NULL or live results; `out` is NULL or writable.
  */
-ringmain_status ringmain_results_warning_count(const ringmain_results *results, size_t *out);
+RINGMAIN_MUST_USE
+ringmain_status ringmain_results_warning_count(const ringmain_results *results,
+                                               size_t *out);
 
 /**
  * Copies warning `index` (naming the element, as the command-line program prints it) into `buf`
@@ -1608,6 +2203,7 @@ ringmain_status ringmain_results_warning_count(const ringmain_results *results, 
  * `results` is NULL or live results; `buf` is NULL or `len` writable bytes; `needed` is NULL or
  * writable.
  */
+RINGMAIN_MUST_USE
 ringmain_status ringmain_results_warning(const ringmain_results *results,
                                          size_t index,
                                          char *buf,
@@ -1625,7 +2221,138 @@ ringmain_status ringmain_results_warning(const ringmain_results *results,
  * # Safety
  * `status` and `reason` are NULL or writable.
  */
-ringmain_status ringmain_link_state_text(uint32_t state, const char **status, const char **reason);
+RINGMAIN_MUST_USE
+ringmain_status ringmain_link_state_text(uint32_t state,
+                                         const char **status,
+                                         const char **reason);
+
+/**
+ * Runs the model's extended-period simulation (its `[simulation]` table: duration, steps,
+ * patterns, controls, tanks) and writes a new run handle to `*out` (free it with
+ * `ringmain_run_free`). Uses the library's worker threads (see `ringmain_set_threads`).
+ *
+ * Errors: `RINGMAIN_MODEL_INVALID` when the model has no `[simulation]` table or fails its
+ * checks; `RINGMAIN_NOT_CONVERGED` or `RINGMAIN_SOLVE_FAILED` when a solve during the run fails
+ * (the last error says when into the run and why). No run then.
+ *
+ * # Safety
+ * `model` is NULL or a live model used by no other thread during the call; `out` is NULL or
+ * writable.
+ */
+RINGMAIN_MUST_USE
+ringmain_status ringmain_model_simulate(ringmain_model *model,
+                                        ringmain_run **out);
+
+/**
+ * Frees a run. NULL is ignored.
+ *
+ * # Safety
+ * `run` is NULL or a live run, not used again afterwards.
+ */
+void ringmain_run_free(ringmain_run *run);
+
+/**
+ * Writes the run's summary to `*out`.
+ *
+ * # Safety
+ * `run` is NULL or a live run; `out` is NULL or writable.
+ */
+RINGMAIN_MUST_USE
+ringmain_status ringmain_run_get_summary(const ringmain_run *run,
+                                         ringmain_run_summary *out);
+
+/**
+ * Writes the reported times (s from the start, increasing) into `buf` (`len` doubles) and their
+ * number to `count` (may be NULL). Returns `RINGMAIN_BUFFER_TOO_SMALL` (writing only `count`)
+ * when `len` is too small.
+ *
+ * # Safety
+ * `run` is NULL or a live run; `buf` is NULL or `len` writable doubles; `count` is NULL or
+ * writable.
+ */
+RINGMAIN_MUST_USE
+ringmain_status ringmain_run_times(const ringmain_run *run,
+                                   double *buf,
+                                   size_t len,
+                                   size_t *count);
+
+/**
+ * Writes the element index of each column of a series (`quantity` is a `ringmain_series`):
+ * node indices for node quantities, link indices for link quantities, the tanks' node indices
+ * for levels and volumes, the pumps' link indices for pump quantities. Buffer rules as
+ * `ringmain_run_times`.
+ *
+ * # Safety
+ * `run` is NULL or a live run; `buf` is NULL or `len` writable elements; `count` is NULL or
+ * writable.
+ */
+RINGMAIN_MUST_USE
+ringmain_status ringmain_run_columns(const ringmain_run *run,
+                                     uint32_t quantity,
+                                     size_t *buf,
+                                     size_t len,
+                                     size_t *count);
+
+/**
+ * Writes a whole series (`quantity` is a `ringmain_series`) into `buf`: times × columns, row by
+ * row (the value of column `j` at time `i` is `buf[i * columns + j]`), in the model's units. The
+ * number of values (times × columns) goes to `count` (may be NULL). Buffer rules as
+ * `ringmain_run_times`.
+ *
+ * Errors: `RINGMAIN_INVALID_ARGUMENT` for an integer that names no series.
+ *
+ * # Safety
+ * `run` is NULL or a live run; `buf` is NULL or `len` writable doubles; `count` is NULL or
+ * writable.
+ */
+RINGMAIN_MUST_USE
+ringmain_status ringmain_run_series(const ringmain_run *run,
+                                    uint32_t quantity,
+                                    double *buf,
+                                    size_t len,
+                                    size_t *count);
+
+/**
+ * Writes the time of event `index` (s from the start) to `*time` (may be NULL) and its
+ * description, naming the elements involved, into `buf` (`len` bytes, NUL-terminated) with its
+ * size to `needed` (may be NULL). Events are in time order; `ringmain_run_get_summary` gives their
+ * number. Returns `RINGMAIN_BUFFER_TOO_SMALL` (writing only `needed`) when `len` is too small.
+ *
+ * Errors: `RINGMAIN_OUT_OF_RANGE` for an index past the last event.
+ *
+ * # Safety
+ * `run` is NULL or a live run; `time` and `needed` are NULL or writable; `buf` is NULL or `len`
+ * writable bytes.
+ */
+RINGMAIN_MUST_USE
+ringmain_status ringmain_run_event(const ringmain_run *run,
+                                   size_t index,
+                                   double *time,
+                                   char *buf,
+                                   size_t len,
+                                   size_t *needed);
+
+/**
+ * Sets the number of worker threads of the library in this process: `threads` = 0 for one per
+ * core (the default), else 1 to 4096. Takes effect at the next call that uses threads; calls
+ * running on other threads finish on the old pool. A process made by `fork` starts a new pool of
+ * this size at its first such call.
+ *
+ * Calls that use the worker threads: `ringmain_model_solve` and `ringmain_model_simulate`; all
+ * other functions run on the calling thread.
+ *
+ * Errors: `RINGMAIN_INVALID_ARGUMENT` above 4096.
+ */
+RINGMAIN_MUST_USE ringmain_status ringmain_set_threads(size_t threads);
+
+/**
+ * Writes the number of worker threads the library uses in this process to `*out` (the size set
+ * by `ringmain_set_threads`, or the number of cores).
+ *
+ * # Safety
+ * `out` is NULL or writable.
+ */
+RINGMAIN_MUST_USE ringmain_status ringmain_get_threads(size_t *out);
 
 #ifdef __cplusplus
 }  // extern "C"

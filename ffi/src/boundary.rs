@@ -309,33 +309,68 @@ pub extern "C" fn ringmain_version() -> *const c_char {
     VERSION.as_ptr()
 }
 
-/// Copies the calling thread's last error message into `buf` (`len` bytes, NUL-terminated) and
-/// writes its size, terminating NUL included, to `needed` (may be NULL).
+/// Copies the calling thread's last error message into `buf` (`len` bytes) as `snprintf` does:
+/// at most `len - 1` bytes of the message and a terminating NUL, cut short at a character
+/// boundary when the buffer is too small (so the text stays valid UTF-8). The size of the whole
+/// message, terminating NUL included, goes to `needed` (may be NULL), whatever `len` is.
 ///
 /// The last error is the full message of the most recent call on this thread that returned
 /// something other than `RINGMAIN_OK`, naming the file, element and key where there is one, as
 /// the command-line program does. Successful calls leave it as it was; it is empty before any
-/// failure. This function does not change it, even when it fails itself.
+/// failure. This function does not change it.
 ///
-/// Returns `RINGMAIN_BUFFER_TOO_SMALL` (writing only `needed`) when `len` is too small: call with
-/// `len = 0` to ask for the size. `buf` may be NULL only when `len` is zero.
+/// Returns `RINGMAIN_OK` when the whole message fitted, `RINGMAIN_BUFFER_TOO_SMALL` when it was
+/// cut short (the buffer still holds the beginning of the message, NUL-terminated, unless `len`
+/// is zero): a fixed buffer always gives something printable, and `needed` tells the size for a
+/// retry. `buf` may be NULL only when `len` is zero.
 ///
 /// # Safety
 /// `buf` is NULL or points to `len` writable bytes; `needed` is NULL or writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_last_error(buf: *mut c_char, len: usize, needed: *mut usize) -> ringmain_status {
     let message = LAST_ERROR.with(|e| e.borrow().clone());
     let status = catch_unwind(AssertUnwindSafe(|| {
         // SAFETY: the caller's contract above.
         let needed = unsafe { out_opt(needed, "needed") }?;
         // SAFETY: the caller's contract above.
-        unsafe { copy_text(&message, buf, len, needed) }
+        unsafe { truncate_text(&message, buf, len, needed) }
     }));
     match status {
-        Ok(Ok(())) => ringmain_status::RINGMAIN_OK,
+        Ok(Ok(status)) => status,
         Ok(Err(f)) => f.status,
         Err(_) => ringmain_status::RINGMAIN_PANIC,
     }
+}
+
+/// Copies as much of `value` as fits in `len - 1` bytes (cut at a character boundary) and a NUL
+/// into `buf`, writes the full size to `needed`; `RINGMAIN_BUFFER_TOO_SMALL` when cut short.
+///
+/// # Safety
+/// `buf` is NULL or points to `len` writable bytes.
+unsafe fn truncate_text(
+    value: &str,
+    buf: *mut c_char,
+    len: usize,
+    needed: Option<Out<usize>>,
+) -> Result<ringmain_status, Failure> {
+    let full = value.len() + 1;
+    if len > 0 {
+        let dst = NonNull::new(buf).ok_or_else(|| Failure::null("buf"))?;
+        let mut n = value.len().min(len - 1);
+        while !value.is_char_boundary(n) {
+            n -= 1;
+        }
+        // SAFETY: `dst` holds `len > n` bytes (caller's contract); the source is a Rust string.
+        unsafe {
+            std::ptr::copy_nonoverlapping(value.as_ptr().cast::<c_char>(), dst.as_ptr(), n);
+            dst.as_ptr().add(n).write(0);
+        }
+    }
+    if let Some(o) = needed {
+        o.write(full);
+    }
+    Ok(if len >= full { ringmain_status::RINGMAIN_OK } else { ringmain_status::RINGMAIN_BUFFER_TOO_SMALL })
 }
 
 /// Writes the numbers of model and result handles alive in the whole process (made and not yet
@@ -344,6 +379,7 @@ pub unsafe extern "C" fn ringmain_last_error(buf: *mut c_char, len: usize, neede
 /// # Safety
 /// `models` and `results` are NULL or writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_live_handles(models: *mut usize, results: *mut usize) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
@@ -416,6 +452,32 @@ mod tests {
         unsafe { copy_text("abc", buf.as_mut_ptr(), 4, None) }.unwrap();
         // SAFETY: copy_text wrote a terminating NUL.
         assert_eq!(unsafe { CStr::from_ptr(buf.as_ptr()) }.to_str().unwrap(), "abc");
+    }
+
+    #[test]
+    fn last_error_truncates_like_snprintf() {
+        let _ = ffi_boundary! { Err(Failure::invalid("node 'Ä1': bad")) };
+        let full = "node 'Ä1': bad".len() + 1;
+        let mut needed = 0usize;
+        let mut buf = [1 as c_char; 8];
+        // SAFETY: a buffer of 8 bytes and a valid `needed`.
+        let s = unsafe { ringmain_last_error(buf.as_mut_ptr(), 8, &mut needed) };
+        assert_eq!(s, ringmain_status::RINGMAIN_BUFFER_TOO_SMALL);
+        assert_eq!(needed, full);
+        // SAFETY: NUL-terminated by the call.
+        let got = unsafe { CStr::from_ptr(buf.as_ptr()) }.to_str().unwrap();
+        // Seven bytes would cut 'Ä' (two bytes at offsets 6 and 7): the cut moves back to 6.
+        assert_eq!(got, "node '");
+        let mut big = [0 as c_char; 64];
+        // SAFETY: a buffer of 64 bytes.
+        let s = unsafe { ringmain_last_error(big.as_mut_ptr(), 64, &mut needed) };
+        assert_eq!(s, ringmain_status::RINGMAIN_OK);
+        // SAFETY: NUL-terminated by the call.
+        assert_eq!(unsafe { CStr::from_ptr(big.as_ptr()) }.to_str().unwrap(), "node 'Ä1': bad");
+        // SAFETY: length zero, NULL buffer: only the size.
+        let s = unsafe { ringmain_last_error(std::ptr::null_mut(), 0, &mut needed) };
+        assert_eq!(s, ringmain_status::RINGMAIN_BUFFER_TOO_SMALL);
+        assert_eq!(needed, full);
     }
 
     #[test]

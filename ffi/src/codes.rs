@@ -538,6 +538,42 @@ impl ringmain_link_state {
     }
 }
 
+impl ringmain_node_kind {
+    /// The code of a node kind; an error naming the node for a kind this interface has no code for.
+    pub fn of(node: &ringmain_core::Node) -> Result<Self, Failure> {
+        use ringmain_core::NodeKind;
+        match &node.kind {
+            NodeKind::Junction { .. } => Ok(ringmain_node_kind::RINGMAIN_NODE_JUNCTION),
+            NodeKind::Reservoir { .. } => Ok(ringmain_node_kind::RINGMAIN_NODE_RESERVOIR),
+            NodeKind::Tank(_) => Ok(ringmain_node_kind::RINGMAIN_NODE_TANK),
+            #[allow(unreachable_patterns)]
+            other => Err(Failure::wrong_kind(format!(
+                "node '{}': a {} has no code in this version of the interface",
+                ringmain_core::error::printable(&node.id),
+                other.label()
+            ))),
+        }
+    }
+}
+
+impl ringmain_link_kind {
+    /// The code of a link kind; an error naming the link for a kind this interface has no code for.
+    pub fn of(link: &ringmain_core::Link) -> Result<Self, Failure> {
+        use ringmain_core::LinkKind;
+        match &link.kind {
+            LinkKind::Pipe(_) => Ok(ringmain_link_kind::RINGMAIN_LINK_PIPE),
+            LinkKind::Pump(_) => Ok(ringmain_link_kind::RINGMAIN_LINK_PUMP),
+            LinkKind::Valve(_) => Ok(ringmain_link_kind::RINGMAIN_LINK_VALVE),
+            #[allow(unreachable_patterns)]
+            other => Err(Failure::wrong_kind(format!(
+                "link '{}': a {} has no code in this version of the interface",
+                ringmain_core::error::printable(&link.id),
+                other.label()
+            ))),
+        }
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -25,12 +25,18 @@
 
 #[macro_use]
 pub mod boundary;
+pub mod arrays;
 pub mod codes;
 pub mod convert;
 pub mod model;
 pub mod results;
+pub mod run;
+pub mod threads;
 
+pub use arrays::*;
 pub use boundary::{ringmain_last_error, ringmain_live_handles, ringmain_status_text, ringmain_version};
 pub use codes::*;
 pub use model::*;
 pub use results::*;
+pub use run::*;
+pub use threads::{ringmain_get_threads, ringmain_set_threads};

@@ -35,12 +35,12 @@ use std::sync::Arc;
 /// `ringmain_model *` needs the model to itself. Distinct models may be used from distinct
 /// threads at the same time without any locking.
 pub struct ringmain_model {
-    model: Model,
+    pub(crate) model: Model,
     /// The file the model was read from, for error messages.
-    source: Option<String>,
-    solver: Option<Solver>,
-    ids: Option<Arc<Ids>>,
-    warm_start: bool,
+    pub(crate) source: Option<String>,
+    pub(crate) solver: Option<Solver>,
+    pub(crate) ids: Option<Arc<Ids>>,
+    pub(crate) warm_start: bool,
 }
 
 /// Ids of the nodes and links of one network structure, shared by the results of its solves.
@@ -88,7 +88,7 @@ impl ringmain_model {
         ringmain_model { model, source, solver: None, ids: None, warm_start: false }
     }
 
-    fn units(&self) -> Units {
+    pub(crate) fn units(&self) -> Units {
         Units::of(&self.model)
     }
 
@@ -100,7 +100,7 @@ impl ringmain_model {
         self.model.links().get(index).ok_or_else(|| out_of_range("link", index, self.model.links().len()))
     }
 
-    fn ids(&mut self) -> Arc<Ids> {
+    pub(crate) fn ids(&mut self) -> Arc<Ids> {
         self.ids.get_or_insert_with(|| Arc::new(Ids::of(&self.model))).clone()
     }
 
@@ -136,14 +136,20 @@ impl ringmain_model {
         options.warm_start = self.warm_start;
         let solver = match &mut self.solver {
             Some(s) => s,
-            None => self.solver.insert(Solver::new(&self.model).map_err(|e| self.solve_failure(e))?),
+            None => {
+                let model = &self.model;
+                let solver = crate::threads::install(|| Solver::new(model))?.map_err(|e| self.solve_failure(e))?;
+                self.solver.insert(solver)
+            }
         };
-        let solution = solver.solve_with(&self.model, &options).map_err(|e| self.solve_failure(e))?;
+        let model = &self.model;
+        let solution =
+            crate::threads::install(|| solver.solve_with(model, &options))?.map_err(|e| self.solve_failure(e))?;
         let ids = self.ids();
         Ok(ringmain_results::new(&self.model, &solution, ids))
     }
 
-    fn solve_failure(&self, error: SolveError) -> Failure {
+    pub(crate) fn solve_failure(&self, error: SolveError) -> Failure {
         match (error, &self.source) {
             (SolveError::Model(e), Some(file)) => Failure::from(e.in_file(file.clone())),
             (e, Some(file)) => {
@@ -155,7 +161,7 @@ impl ringmain_model {
     }
 }
 
-fn wrong_kind(element: Element, key: &str, needs: &str, found: &str) -> Failure {
+pub(crate) fn wrong_kind(element: Element, key: &str, needs: &str, found: &str) -> Failure {
     let e = ModelError::at(Some(element), Some(key), format!("applies to {needs} only; this one is a {found}"));
     Failure::wrong_kind(e.to_string())
 }
@@ -193,6 +199,7 @@ fn give(out: crate::boundary::Out<*mut ringmain_model>, model: ringmain_model) {
 /// # Safety
 /// `out` is NULL or writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_new(
     length_unit: u32,
     diameter_unit: u32,
@@ -231,6 +238,7 @@ pub unsafe extern "C" fn ringmain_model_new(
 /// # Safety
 /// `path` is NULL or a NUL-terminated string; `out` is NULL or writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_load(path: *const c_char, out: *mut *mut ringmain_model) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
@@ -264,6 +272,7 @@ unsafe fn from_text(
 /// # Safety
 /// `text` is NULL or points to `len` readable bytes; `out` is NULL or writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_from_toml(
     text: *const c_char,
     len: usize,
@@ -279,6 +288,7 @@ pub unsafe extern "C" fn ringmain_model_from_toml(
 /// # Safety
 /// `text` is NULL or points to `len` readable bytes; `out` is NULL or writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_from_json(
     text: *const c_char,
     len: usize,
@@ -294,6 +304,7 @@ pub unsafe extern "C" fn ringmain_model_from_json(
 /// # Safety
 /// `model` is NULL or a live model; `out` is NULL or writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_clone(
     model: *const ringmain_model,
     out: *mut *mut ringmain_model,
@@ -328,6 +339,7 @@ pub unsafe extern "C" fn ringmain_model_free(model: *mut ringmain_model) {
 /// # Safety
 /// `model` is NULL or a live model.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_validate(model: *const ringmain_model) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
@@ -358,6 +370,7 @@ fn model_text(model: &Model, format: Format) -> Result<String, Failure> {
 /// # Safety
 /// `model` is NULL or a live model; `path` is NULL or a NUL-terminated string.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_save(model: *const ringmain_model, path: *const c_char) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
@@ -381,6 +394,7 @@ pub unsafe extern "C" fn ringmain_model_save(model: *const ringmain_model, path:
 /// `model` is NULL or a live model; `buf` is NULL or `len` writable bytes; `needed` is NULL or
 /// writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_write(
     model: *const ringmain_model,
     format: u32,
@@ -410,6 +424,7 @@ pub unsafe extern "C" fn ringmain_model_write(
 /// # Safety
 /// `model` is NULL or a live model; `out` is NULL or writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_node_count(model: *const ringmain_model, out: *mut usize) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
@@ -424,6 +439,7 @@ pub unsafe extern "C" fn ringmain_model_node_count(model: *const ringmain_model,
 /// # Safety
 /// `model` is NULL or a live model; `out` is NULL or writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_link_count(model: *const ringmain_model, out: *mut usize) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
@@ -440,6 +456,7 @@ pub unsafe extern "C" fn ringmain_model_link_count(model: *const ringmain_model,
 /// `model` is NULL or a live model; `id` is NULL or a NUL-terminated string; `out` is NULL or
 /// writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_node_index(
     model: *const ringmain_model,
     id: *const c_char,
@@ -463,6 +480,7 @@ pub unsafe extern "C" fn ringmain_model_node_index(
 /// `model` is NULL or a live model; `id` is NULL or a NUL-terminated string; `out` is NULL or
 /// writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_link_index(
     model: *const ringmain_model,
     id: *const c_char,
@@ -487,6 +505,7 @@ pub unsafe extern "C" fn ringmain_model_link_index(
 /// `model` is NULL or a live model; `buf` is NULL or `len` writable bytes; `needed` is NULL or
 /// writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_node_id(
     model: *const ringmain_model,
     index: usize,
@@ -508,6 +527,7 @@ pub unsafe extern "C" fn ringmain_model_node_id(
 /// # Safety
 /// As `ringmain_model_node_id`.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_link_id(
     model: *const ringmain_model,
     index: usize,
@@ -529,6 +549,7 @@ pub unsafe extern "C" fn ringmain_model_link_id(
 /// # Safety
 /// As `ringmain_model_node_id`.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_title(
     model: *const ringmain_model,
     buf: *mut c_char,
@@ -548,6 +569,7 @@ pub unsafe extern "C" fn ringmain_model_title(
 /// # Safety
 /// `model` is NULL or a live model; `out` is NULL or writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_node_kind(
     model: *const ringmain_model,
     index: usize,
@@ -577,6 +599,7 @@ pub unsafe extern "C" fn ringmain_model_node_kind(
 /// # Safety
 /// `model` is NULL or a live model; `out` is NULL or writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_link_kind(
     model: *const ringmain_model,
     index: usize,
@@ -607,6 +630,7 @@ pub unsafe extern "C" fn ringmain_model_link_kind(
 /// # Safety
 /// `model` is NULL or a live model; `from` and `to` are NULL or writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_link_nodes(
     model: *const ringmain_model,
     index: usize,
@@ -629,6 +653,7 @@ pub unsafe extern "C" fn ringmain_model_link_nodes(
 /// # Safety
 /// As `ringmain_model_node_id`.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_unit_label(
     model: *const ringmain_model,
     quantity: u32,
@@ -662,6 +687,7 @@ pub unsafe extern "C" fn ringmain_model_unit_label(
 /// # Safety
 /// `model` is NULL or a live model; `out` is NULL or writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_get_headloss(model: *const ringmain_model, out: *mut u32) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
@@ -705,6 +731,7 @@ unsafe fn link_value(
 /// # Safety
 /// `model` is NULL or a live model; `out` is NULL or writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_get_elevation(
     model: *const ringmain_model,
     node: usize,
@@ -720,6 +747,7 @@ pub unsafe extern "C" fn ringmain_model_get_elevation(
 /// # Safety
 /// `model` is NULL or a live model; `out` is NULL or writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_get_demand(
     model: *const ringmain_model,
     node: usize,
@@ -741,6 +769,7 @@ pub unsafe extern "C" fn ringmain_model_get_demand(
 /// # Safety
 /// `model` is NULL or a live model; `out` is NULL or writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_get_reservoir_head(
     model: *const ringmain_model,
     node: usize,
@@ -763,6 +792,7 @@ pub unsafe extern "C" fn ringmain_model_get_reservoir_head(
 /// # Safety
 /// `model` is NULL or a live model; `out` is NULL or writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_get_tank_level(
     model: *const ringmain_model,
     node: usize,
@@ -785,6 +815,7 @@ pub unsafe extern "C" fn ringmain_model_get_tank_level(
 /// # Safety
 /// `model` is NULL or a live model; `out` is NULL or writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_get_link_status(
     model: *const ringmain_model,
     link: usize,
@@ -810,6 +841,7 @@ pub unsafe extern "C" fn ringmain_model_get_link_status(
 /// # Safety
 /// `model` is NULL or a live model; `out` is NULL or writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_get_pump_speed(
     model: *const ringmain_model,
     link: usize,
@@ -833,6 +865,7 @@ pub unsafe extern "C" fn ringmain_model_get_pump_speed(
 /// # Safety
 /// `model` is NULL or a live model; `out` is NULL or writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_get_valve_setting(
     model: *const ringmain_model,
     link: usize,
@@ -855,6 +888,7 @@ pub unsafe extern "C" fn ringmain_model_get_valve_setting(
 /// # Safety
 /// `model` is NULL or a live model; `out` is NULL or writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_get_valve_type(
     model: *const ringmain_model,
     link: usize,
@@ -878,6 +912,7 @@ pub unsafe extern "C" fn ringmain_model_get_valve_type(
 /// # Safety
 /// `model` is NULL or a live model; `out` is NULL or writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_get_pipe_roughness(
     model: *const ringmain_model,
     link: usize,
@@ -900,6 +935,7 @@ pub unsafe extern "C" fn ringmain_model_get_pipe_roughness(
 /// # Safety
 /// `model` is NULL or a live model; `out` is NULL or writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_get_pipe_diameter(
     model: *const ringmain_model,
     link: usize,
@@ -977,6 +1013,7 @@ unsafe fn add_link_with(
 /// `model` is NULL or a live model; `id` is NULL or a NUL-terminated string; `out_index` is NULL
 /// or writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_add_junction(
     model: *mut ringmain_model,
     id: *const c_char,
@@ -1000,6 +1037,7 @@ pub unsafe extern "C" fn ringmain_model_add_junction(
 /// # Safety
 /// As `ringmain_model_add_junction`.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_add_reservoir(
     model: *mut ringmain_model,
     id: *const c_char,
@@ -1022,6 +1060,7 @@ pub unsafe extern "C" fn ringmain_model_add_reservoir(
 /// # Safety
 /// As `ringmain_model_add_junction`.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_add_tank(
     model: *mut ringmain_model,
     id: *const c_char,
@@ -1064,6 +1103,7 @@ pub unsafe extern "C" fn ringmain_model_add_tank(
 /// `model` is NULL or a live model; `id`, `from`, `to` are NULL or NUL-terminated strings;
 /// `out_index` is NULL or writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_add_pipe(
     model: *mut ringmain_model,
     id: *const c_char,
@@ -1116,6 +1156,7 @@ fn pump(drive: PumpDrive, speed: f64) -> LinkKind {
 /// # Safety
 /// As `ringmain_model_add_pipe`; `flows` and `heads` are NULL or point to `n_points` doubles.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_add_pump_curve(
     model: *mut ringmain_model,
     id: *const c_char,
@@ -1150,6 +1191,7 @@ pub unsafe extern "C" fn ringmain_model_add_pump_curve(
 /// # Safety
 /// As `ringmain_model_add_pipe`.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_add_pump_power(
     model: *mut ringmain_model,
     id: *const c_char,
@@ -1181,6 +1223,7 @@ pub unsafe extern "C" fn ringmain_model_add_pump_power(
 /// # Safety
 /// As `ringmain_model_add_pipe`.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_add_valve(
     model: *mut ringmain_model,
     id: *const c_char,
@@ -1248,6 +1291,7 @@ unsafe fn change_link(
 /// # Safety
 /// `model` is NULL or a live model used by no other thread during the call.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_set_demand(
     model: *mut ringmain_model,
     node: usize,
@@ -1273,6 +1317,7 @@ pub unsafe extern "C" fn ringmain_model_set_demand(
 /// # Safety
 /// `model` is NULL or a live model used by no other thread during the call.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_set_reservoir_head(
     model: *mut ringmain_model,
     node: usize,
@@ -1298,6 +1343,7 @@ pub unsafe extern "C" fn ringmain_model_set_reservoir_head(
 /// # Safety
 /// `model` is NULL or a live model used by no other thread during the call.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_set_tank_level(
     model: *mut ringmain_model,
     node: usize,
@@ -1326,6 +1372,7 @@ pub unsafe extern "C" fn ringmain_model_set_tank_level(
 /// # Safety
 /// `model` is NULL or a live model used by no other thread during the call.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_set_link_status(
     model: *mut ringmain_model,
     link: usize,
@@ -1353,6 +1400,7 @@ pub unsafe extern "C" fn ringmain_model_set_link_status(
 /// # Safety
 /// `model` is NULL or a live model used by no other thread during the call.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_set_pump_speed(
     model: *mut ringmain_model,
     link: usize,
@@ -1378,6 +1426,7 @@ pub unsafe extern "C" fn ringmain_model_set_pump_speed(
 /// # Safety
 /// `model` is NULL or a live model used by no other thread during the call.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_set_pump_efficiency(
     model: *mut ringmain_model,
     link: usize,
@@ -1406,6 +1455,7 @@ pub unsafe extern "C" fn ringmain_model_set_pump_efficiency(
 /// `model` is NULL or a live model used by no other thread during the call; `flows` and
 /// `percents` are NULL or point to `n_points` doubles.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_set_pump_efficiency_curve(
     model: *mut ringmain_model,
     link: usize,
@@ -1441,6 +1491,7 @@ pub unsafe extern "C" fn ringmain_model_set_pump_efficiency_curve(
 /// # Safety
 /// `model` is NULL or a live model used by no other thread during the call.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_set_valve_setting(
     model: *mut ringmain_model,
     link: usize,
@@ -1466,6 +1517,7 @@ pub unsafe extern "C" fn ringmain_model_set_valve_setting(
 /// # Safety
 /// `model` is NULL or a live model used by no other thread during the call.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_set_pipe_roughness(
     model: *mut ringmain_model,
     link: usize,
@@ -1491,6 +1543,7 @@ pub unsafe extern "C" fn ringmain_model_set_pipe_roughness(
 /// # Safety
 /// `model` is NULL or a live model used by no other thread during the call.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_set_pipe_diameter(
     model: *mut ringmain_model,
     link: usize,
@@ -1517,6 +1570,7 @@ pub unsafe extern "C" fn ringmain_model_set_pipe_diameter(
 /// # Safety
 /// `model` is NULL or a live model used by no other thread during the call.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_set_water_temperature(
     model: *mut ringmain_model,
     celsius: f64,
@@ -1548,6 +1602,7 @@ pub unsafe extern "C" fn ringmain_model_set_water_temperature(
 /// # Safety
 /// `model` is NULL or a live model used by no other thread during the call.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_set_solver_options(
     model: *mut ringmain_model,
     max_iterations: u32,
@@ -1582,6 +1637,7 @@ pub unsafe extern "C" fn ringmain_model_set_solver_options(
 /// # Safety
 /// `model` is NULL or a live model used by no other thread during the call.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_set_warm_start(model: *mut ringmain_model, enabled: bool) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
@@ -1607,6 +1663,7 @@ pub unsafe extern "C" fn ringmain_model_set_warm_start(model: *mut ringmain_mode
 /// `model` is NULL or a live model used by no other thread during the call; `out` is NULL or
 /// writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_model_solve(
     model: *mut ringmain_model,
     out: *mut *mut ringmain_results,

@@ -149,6 +149,7 @@ unsafe fn statistic<T>(
 /// # Safety
 /// `results` is NULL or live results; `out` is NULL or writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_results_node_count(
     results: *const ringmain_results,
     out: *mut usize,
@@ -162,6 +163,7 @@ pub unsafe extern "C" fn ringmain_results_node_count(
 /// # Safety
 /// `results` is NULL or live results; `out` is NULL or writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_results_link_count(
     results: *const ringmain_results,
     out: *mut usize,
@@ -176,6 +178,7 @@ pub unsafe extern "C" fn ringmain_results_link_count(
 /// `results` is NULL or live results; `id` is NULL or a NUL-terminated string; `out` is NULL or
 /// writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_results_node_index(
     results: *const ringmain_results,
     id: *const c_char,
@@ -194,6 +197,7 @@ pub unsafe extern "C" fn ringmain_results_node_index(
 /// # Safety
 /// As `ringmain_results_node_index`.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_results_link_index(
     results: *const ringmain_results,
     id: *const c_char,
@@ -213,6 +217,7 @@ pub unsafe extern "C" fn ringmain_results_link_index(
 /// # Safety
 /// `results` is NULL or live results; `out` is NULL or writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_results_converged(
     results: *const ringmain_results,
     out: *mut bool,
@@ -226,6 +231,7 @@ pub unsafe extern "C" fn ringmain_results_converged(
 /// # Safety
 /// `results` is NULL or live results; `out` is NULL or writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_results_iterations(
     results: *const ringmain_results,
     out: *mut u32,
@@ -240,6 +246,7 @@ pub unsafe extern "C" fn ringmain_results_iterations(
 /// # Safety
 /// `results` is NULL or live results; `out` is NULL or writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_results_status_changes(
     results: *const ringmain_results,
     out: *mut u32,
@@ -254,6 +261,7 @@ pub unsafe extern "C" fn ringmain_results_status_changes(
 /// # Safety
 /// `results` is NULL or live results; `mass` and `energy` are NULL or writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_results_residuals(
     results: *const ringmain_results,
     mass: *mut f64,
@@ -274,6 +282,7 @@ pub unsafe extern "C" fn ringmain_results_residuals(
 /// # Safety
 /// `results` is NULL or live results; `head_change` and `flow_change` are NULL or writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_results_last_changes(
     results: *const ringmain_results,
     head_change: *mut f64,
@@ -315,6 +324,7 @@ unsafe fn array<T: Copy>(
 /// `results` is NULL or live results; `buf` is NULL or `len` writable elements; `count` is NULL
 /// or writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_results_heads(
     results: *const ringmain_results,
     buf: *mut f64,
@@ -331,6 +341,7 @@ pub unsafe extern "C" fn ringmain_results_heads(
 /// # Safety
 /// As `ringmain_results_heads`.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_results_pressures(
     results: *const ringmain_results,
     buf: *mut f64,
@@ -347,6 +358,7 @@ pub unsafe extern "C" fn ringmain_results_pressures(
 /// # Safety
 /// As `ringmain_results_heads`.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_results_demands(
     results: *const ringmain_results,
     buf: *mut f64,
@@ -363,6 +375,7 @@ pub unsafe extern "C" fn ringmain_results_demands(
 /// # Safety
 /// As `ringmain_results_heads`.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_results_connected(
     results: *const ringmain_results,
     buf: *mut bool,
@@ -379,6 +392,7 @@ pub unsafe extern "C" fn ringmain_results_connected(
 /// # Safety
 /// As `ringmain_results_heads`.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_results_flows(
     results: *const ringmain_results,
     buf: *mut f64,
@@ -395,6 +409,7 @@ pub unsafe extern "C" fn ringmain_results_flows(
 /// # Safety
 /// As `ringmain_results_heads`.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_results_velocities(
     results: *const ringmain_results,
     buf: *mut f64,
@@ -411,6 +426,7 @@ pub unsafe extern "C" fn ringmain_results_velocities(
 /// # Safety
 /// As `ringmain_results_heads`.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_results_headlosses(
     results: *const ringmain_results,
     buf: *mut f64,
@@ -427,6 +443,7 @@ pub unsafe extern "C" fn ringmain_results_headlosses(
 /// # Safety
 /// As `ringmain_results_heads`.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_results_link_states(
     results: *const ringmain_results,
     buf: *mut u32,
@@ -470,6 +487,7 @@ unsafe fn link_value<T: Copy>(
 /// # Safety
 /// `results` is NULL or live results; `out` is NULL or writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_results_node_head(
     results: *const ringmain_results,
     node: usize,
@@ -484,6 +502,7 @@ pub unsafe extern "C" fn ringmain_results_node_head(
 /// # Safety
 /// As `ringmain_results_node_head`.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_results_node_pressure(
     results: *const ringmain_results,
     node: usize,
@@ -498,6 +517,7 @@ pub unsafe extern "C" fn ringmain_results_node_pressure(
 /// # Safety
 /// As `ringmain_results_node_head`.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_results_node_demand(
     results: *const ringmain_results,
     node: usize,
@@ -512,6 +532,7 @@ pub unsafe extern "C" fn ringmain_results_node_demand(
 /// # Safety
 /// As `ringmain_results_node_head`.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_results_link_flow(
     results: *const ringmain_results,
     link: usize,
@@ -527,6 +548,7 @@ pub unsafe extern "C" fn ringmain_results_link_flow(
 /// # Safety
 /// As `ringmain_results_node_head`.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_results_link_velocity(
     results: *const ringmain_results,
     link: usize,
@@ -542,6 +564,7 @@ pub unsafe extern "C" fn ringmain_results_link_velocity(
 /// # Safety
 /// As `ringmain_results_node_head`.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_results_link_headloss(
     results: *const ringmain_results,
     link: usize,
@@ -557,6 +580,7 @@ pub unsafe extern "C" fn ringmain_results_link_headloss(
 /// # Safety
 /// `results` is NULL or live results; `out` is NULL or writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_results_link_state(
     results: *const ringmain_results,
     link: usize,
@@ -572,6 +596,7 @@ pub unsafe extern "C" fn ringmain_results_link_state(
 /// # Safety
 /// `results` is NULL or live results; `out` is NULL or writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_results_pump_head(
     results: *const ringmain_results,
     link: usize,
@@ -592,6 +617,7 @@ pub unsafe extern "C" fn ringmain_results_pump_head(
 /// # Safety
 /// `results` is NULL or live results; `hydraulic`, `shaft` and `efficiency` are NULL or writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_results_pump_power(
     results: *const ringmain_results,
     link: usize,
@@ -623,6 +649,7 @@ pub unsafe extern "C" fn ringmain_results_pump_power(
 /// # Safety
 /// `results` is NULL or live results; `out` is NULL or writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_results_warning_count(
     results: *const ringmain_results,
     out: *mut usize,
@@ -639,6 +666,7 @@ pub unsafe extern "C" fn ringmain_results_warning_count(
 /// `results` is NULL or live results; `buf` is NULL or `len` writable bytes; `needed` is NULL or
 /// writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_results_warning(
     results: *const ringmain_results,
     index: usize,
@@ -680,6 +708,7 @@ fn state_texts() -> &'static [(CString, CString)] {
 /// # Safety
 /// `status` and `reason` are NULL or writable.
 #[no_mangle]
+#[must_use]
 pub unsafe extern "C" fn ringmain_link_state_text(
     state: u32,
     status: *mut *const c_char,

@@ -47,3 +47,33 @@ def cli_json():
         return json.loads(proc.stdout)
 
     return run
+
+
+HILLSIDE_DAY = REPO / "examples" / "hillside-day.toml"
+
+
+def cli_binary() -> Path:
+    given = os.environ.get("RINGMAIN_BIN")
+    return Path(given) if given else _release_dir() / "ringmain"
+
+
+@pytest.fixture(scope="session")
+def generated(tmp_path_factory):
+    """A generated street network of the given number of junctions (JSON model file)."""
+    made: dict[int, Path] = {}
+
+    def make(junctions: int) -> Path:
+        if junctions not in made:
+            path = tmp_path_factory.mktemp("generated") / f"town-{junctions}.json"
+            proc = subprocess.run(
+                [str(cli_binary()), "generate", "--junctions", str(junctions), "--output", str(path)],
+                capture_output=True,
+                text=True,
+                timeout=120,
+                stdin=subprocess.DEVNULL,
+            )
+            assert proc.returncode == 0, proc.stderr
+            made[junctions] = path
+        return made[junctions]
+
+    return make

@@ -109,13 +109,37 @@ def test_a_missing_library_is_a_clear_error():
     assert proc.returncode != 0
     assert "cannot find the ringmain library" in proc.stderr
     assert "/nonexistent/libringmain.so (RINGMAIN_LIBRARY)" in proc.stderr
-    assert "cargo build --release" in proc.stderr
+    assert "pip install ./bindings/python" in proc.stderr
 
 
 def test_the_library_is_found_by_the_documented_rules():
     proc = _python("from ringmain import _ffi; print('\\n'.join(f'{r}|{p}' for r, p in _ffi.candidates()))")
     assert proc.returncode == 0, proc.stderr
     rules = [line.split("|")[0] for line in proc.stdout.splitlines()]
+    rules = [r for r in rules if r != "inside the package"]
     assert rules[:2] == ["beside the package", "beside the package"]
     assert "the Cargo workspace" in rules
     assert ringmain.version() == ringmain.__version__
+
+
+def test_the_installed_package_carries_its_stripped_library():
+    from ringmain import _ffi
+
+    here = Path(_ffi.__file__).resolve().parent
+    if "site-packages" not in here.parts:
+        pytest.skip("the package runs from the source tree, not from `pip install`")
+    inside = _ffi._in_package(here)
+    assert len(inside) == 1, f"pip install must put the library inside {here}"
+    proc = _python(
+        "from ringmain import _ffi; print(_ffi.candidates()[0][0]); "
+        "print(open('/proc/self/maps').read() if __import__('os').path.exists('/proc/self/maps') else '')"
+    )
+    assert proc.returncode == 0, proc.stderr
+    first, maps = proc.stdout.split("\n", 1)
+    assert first == "inside the package"
+    if maps.strip():
+        assert str(inside[0]) in maps  # the library loaded is the one inside the package
+    sections = subprocess.run(["readelf", "-S", str(inside[0])], capture_output=True, text=True, timeout=60)
+    if sections.returncode == 0:
+        # setuptools-rust strips with `strip -x`: no debug information, no local symbols.
+        assert ".debug_" not in sections.stdout, "the library carries debug information"

@@ -31,6 +31,11 @@ C_TYPES = {
     "const ringmain_results *": c_void_p,
     "ringmain_model **": POINTER(c_void_p),
     "ringmain_results **": POINTER(c_void_p),
+    "ringmain_run *": c_void_p,
+    "const ringmain_run *": c_void_p,
+    "ringmain_run **": POINTER(c_void_p),
+    "const uint32_t *": POINTER(c_uint32),
+    "ringmain_run_summary *": c_void_p,
 }
 
 
@@ -38,6 +43,7 @@ def _code() -> str:
     text = HEADER.read_text(encoding="utf-8")
     text = re.sub(r"/\*.*?\*/", "", text, flags=re.S)
     text = re.sub(r"//[^\n]*", "", text)
+    text = text.replace("RINGMAIN_MUST_USE", "")
     return "\n".join(line for line in text.splitlines() if not line.lstrip().startswith("#"))
 
 

@@ -21,6 +21,12 @@
 //! [criteria.source_capacity]      # what each source can deliver; supply = net outflow
 //! "Works" = "120 L/s"
 //!
+//! # Water quality over a simulation (`ringmain simulate --criteria`, and `check` when the model
+//! # has [simulation]): junctions over the reported times after a spin-up
+//! max_age = "72 h"                # every age constituent
+//! min_residual = { chlorine = "0.2 mg/L" }   # per substance, in its unit
+//! after = "48h"                   # spin-up not checked
+//!
 //! [[criteria.groups]]             # limits for some nodes, replacing the global ones there
 //! name = "high zone"
 //! zone = "high"                   # nodes with this zone tag (a string or a list)
@@ -48,6 +54,9 @@ pub const CRITERIA_KEYS: &[&str] = &[
     "min_tank_reserve",
     "fail_on_warnings",
     "groups",
+    "max_age",
+    "min_residual",
+    "after",
 ];
 
 /// The keys of one `[[criteria.groups]]` entry.
@@ -121,6 +130,12 @@ pub struct Criteria {
     pub fail_on_warnings: Vec<DiagnosticKind>,
     /// Limits for groups of nodes.
     pub groups: Vec<Group>,
+    /// Highest water age at junctions over a simulation, s.
+    pub max_age: Option<f64>,
+    /// Lowest value of a constituent at junctions over a simulation: constituent index, value.
+    pub min_residual: Vec<(usize, f64)>,
+    /// Quality criteria skip the reported times before this elapsed time, s (spin-up).
+    pub after: f64,
 }
 
 impl Default for Criteria {
@@ -138,6 +153,9 @@ impl Default for Criteria {
             min_tank_reserve: None,
             fail_on_warnings: Vec::new(),
             groups: Vec::new(),
+            max_age: None,
+            min_residual: Vec::new(),
+            after: 0.0,
         }
     }
 }
@@ -156,7 +174,9 @@ pub enum Quantity {
     Flow,
     /// Length or level, m.
     Length,
-    /// No unit (counts, yes/no).
+    /// Water age, s (shown in hours).
+    Age,
+    /// No unit (counts, yes/no, concentrations in their own unit).
     None,
 }
 
@@ -168,6 +188,7 @@ fn unit_names(q: Quantity) -> Vec<&'static str> {
         Quantity::Gradient => vec!["m/km", "ft/kft", "m/m", "ft/ft"],
         Quantity::Flow => FlowUnit::ALL.iter().map(|u| u.label()).collect(),
         Quantity::Length => LengthUnit::ALL.iter().map(|u| u.label()).collect(),
+        Quantity::Age => vec!["h", "min", "d", "s"],
         Quantity::None => Vec::new(),
     }
 }
@@ -184,6 +205,13 @@ fn to_si(q: Quantity, unit: &str, value: f64, density: f64) -> Option<f64> {
             _ => return None,
         },
         Quantity::Flow => FlowUnit::parse(unit)?.to_si(value),
+        Quantity::Age => match unit {
+            "h" => value * 3600.0,
+            "min" => value * 60.0,
+            "d" => value * 86_400.0,
+            "s" => value,
+            _ => return None,
+        },
         Quantity::None => return None,
     })
 }
@@ -199,6 +227,7 @@ fn default_unit(q: Quantity, units: &UnitSystem) -> &'static str {
         },
         Quantity::Flow => units.flow.label(),
         Quantity::Length => units.length.label(),
+        Quantity::Age => "h",
         Quantity::None => "",
     }
 }
@@ -305,6 +334,7 @@ fn example(q: Quantity) -> &'static str {
         Quantity::Gradient => "3 m/km",
         Quantity::Flow => "120 L/s",
         Quantity::Length => "0.5 m",
+        Quantity::Age => "72 h",
         Quantity::None => "",
     }
 }
@@ -353,6 +383,14 @@ impl Criteria {
                 "source_capacity" => next.source_capacity = read_capacity(r, key, v, model)?,
                 "fail_on_warnings" => next.fail_on_warnings = read_fail_on(r, key, v)?,
                 "groups" => next.groups = read_groups(r, key, v)?,
+                "max_age" => next.max_age = Some(r.limit(key, v, Quantity::Age, true)?),
+                "min_residual" => next.min_residual = read_residuals(r, key, v, model)?,
+                "after" => {
+                    next.after = match v {
+                        Value::Str(s) => crate::model::time::parse_duration(s).map_err(|m| r.error(key, m))?,
+                        other => r.limit(key, other, Quantity::Age, true)?,
+                    }
+                }
                 _ => return Err(unknown_key(r, key, CRITERIA_KEYS)),
             }
         }
@@ -384,7 +422,66 @@ impl Criteria {
             || !self.source_capacity.is_empty()
             || self.min_tank_reserve.is_some()
             || !self.groups.is_empty()
+            || self.has_quality_limits()
     }
+
+    /// Whether a water-quality limit is set (these need a simulation).
+    pub fn has_quality_limits(&self) -> bool {
+        self.max_age.is_some() || !self.min_residual.is_empty()
+    }
+}
+
+/// Reads `min_residual = { id = "0.2 mg/L", ... }`: each constituent's lowest value, in its unit.
+fn read_residuals(r: &Reader<'_>, key: &str, v: &Value, model: &Model) -> Result<Vec<(usize, f64)>, ModelError> {
+    use crate::quality::ConstituentKind;
+    let entries = table(r, key, v)?;
+    let q = &model.time.quality;
+    let mut out = Vec::new();
+    for (id, value) in entries {
+        let sub = format!("{key}.{}", id.as_ref());
+        let Some(c) = q.index(id.as_ref()) else {
+            let hint = suggest(id.as_ref(), q.constituents.iter().map(|c| c.id.as_str()))
+                .map(|s| format!(" (did you mean '{s}'?)"))
+                .unwrap_or_default();
+            return Err(r.error(
+                &sub,
+                format!("names constituent '{}', which the model's [[quality]] does not define{hint}", printable(id)),
+            ));
+        };
+        let con = &q.constituents[c];
+        if matches!(con.kind, ConstituentKind::Age) {
+            return Err(r.error(&sub, format!("'{}' is a water age; limit it with max_age", con.id)));
+        }
+        let unit = con.report_unit().to_owned();
+        let number = match value {
+            Value::Int(i) => *i as f64,
+            Value::Float(f) => *f,
+            Value::Str(s) => {
+                let Some((number, given)) = split_number(s) else {
+                    return Err(r.error(
+                        &sub,
+                        format!("\"{}\" is not a number with a unit; write for example \"0.2 {unit}\"", printable(s)),
+                    ));
+                };
+                let given = given.trim();
+                if !given.is_empty() && given.replace(' ', "") != unit.replace(' ', "") {
+                    return Err(r.error(
+                        &sub,
+                        format!("unit \"{}\" is not the unit of '{}', which is \"{unit}\"", printable(given), con.id),
+                    ));
+                }
+                number
+            }
+            other => {
+                return Err(r.error(&sub, format!("must be a number or a string with a unit, found {}", other.kind())))
+            }
+        };
+        if !number.is_finite() || number < 0.0 {
+            return Err(r.error(&sub, format!("must be a finite number, not negative, found {number}")));
+        }
+        out.push((c, number));
+    }
+    Ok(out)
 }
 
 fn read_margin(r: &Reader<'_>, key: &str, v: &Value) -> Result<SupplyMargin, ModelError> {
@@ -523,6 +620,7 @@ pub fn to_units(q: Quantity, si: f64, units: &UnitSystem, density: f64) -> (f64,
         Quantity::Gradient => (si * 1000.0, default_unit(q, units)),
         Quantity::Flow => (units.flow.from_si(si), units.flow.label()),
         Quantity::Length => (units.length.from_si(si), units.length.label()),
+        Quantity::Age => (si / 3600.0, "h"),
         Quantity::None => (si, ""),
     }
 }

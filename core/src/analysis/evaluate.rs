@@ -23,7 +23,7 @@ pub struct Finding {
 
 impl Finding {
     /// A value of `element` beyond `limit` by `excess`.
-    fn over(element: Element, value: f64, limit: f64, excess: f64) -> Self {
+    pub(crate) fn over(element: Element, value: f64, limit: f64, excess: f64) -> Self {
         Finding { element, value, limit, excess, detail: None }
     }
 }
@@ -52,12 +52,12 @@ impl CheckResult {
         self.failures == 0
     }
 
-    fn new(name: impl Into<String>, quantity: Quantity, limit: f64) -> Self {
+    pub(crate) fn new(name: impl Into<String>, quantity: Quantity, limit: f64) -> Self {
         CheckResult { name: name.into(), quantity, limit, checked: 0, failures: 0, worst: Vec::new() }
     }
 
     /// Counts a finding and keeps it when it is among the `keep` worst.
-    fn add(&mut self, finding: Finding, keep: usize) {
+    pub(crate) fn add(&mut self, finding: Finding, keep: usize) {
         self.failures += 1;
         if keep == 0 {
             return;

@@ -4,19 +4,22 @@
 //! Entry points, in the order a check uses them:
 //! 1. [`Criteria::apply`] reads a `[criteria]` table (the model's, then a criteria file's);
 //! 2. [`diagnose_model`] lists warnings about the model's data (no solve needed);
-//! 3. [`Scenario::apply`] makes the what-if model (closed links, a demand factor);
+//! 3. [`Scenario::closing`] reads the what-if case (closed links, a demand factor) and
+//!    [`what_if_model`] makes the model the reports describe;
 //! 4. [`run_scenario`] solves it and evaluates the criteria ([`evaluate()`]), giving an
 //!    [`Outcome`];
 //! 5. [`sweep_pipes`] closes every open pipe of that model in turn, on all cores (rayon), and
 //!    gives one [`Outcome`] per closure, with the nodes that lose supply.
 //!
 //! # The sweep
-//! Closing a pipe changes only its status, so the symbolic analysis of the head matrix (ordering
-//! and symbolic factorization, see `solve::pattern`) stays valid: each worker thread builds one
-//! [`Solver`] and one copy of the model, and reuses both for every closure it takes from a shared
-//! counter (closing the pipe, solving, reopening it). Each closure starts from the solver's
-//! previous converged flows (a warm start), which are close to the answer since one pipe differs;
-//! results therefore agree with a cold-started solve to the solver's tolerances, not bit for bit.
+//! Closing a pipe changes only its status, so the analysis of the head matrix (ordering and
+//! symbolic factorization, see `solve::structure`) and every link's law stay valid: the sweep is
+//! one [`Solver::solve_batch_map`] of one-closure [`Scenario`]s over the model's [`Conditions`],
+//! in which each worker thread changes its own copy of the conditions (no model is cloned) and
+//! evaluates the criteria of each closure as soon as it is solved (no solution is kept). Every
+//! closure starts from the base case's solution (a warm start), which is close to the answer
+//! since one pipe differs, so results agree with a cold-started solve of the closed model to the
+//! solver's tolerances, not bit for bit, and are the same from run to run.
 //!
 //! A node *loses supply* in a closure when a fixed head reached it in the base scenario and none
 //! does with the pipe closed.
@@ -29,10 +32,32 @@ pub use criteria::{Criteria, Group, Quantity, SupplyMargin};
 pub use diagnostics::{diagnose_model, diagnose_solution, Diagnostic, DiagnosticKind};
 pub use evaluate::{evaluate, warning_checks, CheckResult, Finding};
 
+pub use crate::solve::Scenario;
+
 use crate::error::{printable, Element, ModelError, SolveError};
 use crate::model::{LinkKind, LinkStatus, Model, NodeKind};
-use crate::solve::{Solution, SolveOptions, Solver};
+use crate::solve::{Conditions, Solution, SolveOptions, Solver};
 use std::sync::atomic::{AtomicUsize, Ordering};
+
+/// The model a what-if `scenario` of `model` describes (its links closed, its demands scaled),
+/// for the checks and reports that read the model; the solver's paths apply a scenario to
+/// [`Conditions`] instead. An invalid scenario is an error naming the key.
+pub fn what_if_model(model: &Model, scenario: &Scenario) -> Result<Model, ModelError> {
+    scenario.check(model)?;
+    let mut m = model.clone();
+    for &(k, s) in &scenario.statuses {
+        m.set_status(k, s)?;
+    }
+    let f = scenario.demand_factor;
+    if f != 1.0 {
+        for i in 0..m.nodes().len() {
+            if let NodeKind::Junction { demand } = m.nodes()[i].kind {
+                m.set_demand(i, demand * f)?;
+            }
+        }
+    }
+    Ok(m)
+}
 
 /// Whether `text` matches `pattern`, where `*` stands for any run of characters and `?` for one.
 pub fn glob_match(pattern: &str, text: &str) -> bool {
@@ -57,75 +82,6 @@ pub fn glob_match(pattern: &str, text: &str) -> bool {
         }
     }
     p[pi..].iter().all(|&c| c == '*')
-}
-
-/// A what-if change of the model: links closed and all demands scaled.
-#[derive(Clone, Debug, PartialEq)]
-pub struct Scenario {
-    /// Ids of links to close.
-    pub close: Vec<String>,
-    /// Factor on every junction demand (1 leaves them as they are).
-    pub demand_factor: f64,
-}
-
-impl Default for Scenario {
-    fn default() -> Self {
-        Scenario { close: Vec::new(), demand_factor: 1.0 }
-    }
-}
-
-impl Scenario {
-    /// Whether the scenario changes nothing.
-    pub fn is_base(&self) -> bool {
-        self.close.is_empty() && self.demand_factor == 1.0
-    }
-
-    /// A short description for reports ("base", "P-7 closed, demand x1.8").
-    pub fn label(&self) -> String {
-        let mut parts = Vec::new();
-        if !self.close.is_empty() {
-            let ids: Vec<String> = self.close.iter().map(|c| printable(c)).collect();
-            parts.push(format!("{} closed", ids.join(", ")));
-        }
-        if self.demand_factor != 1.0 {
-            parts.push(format!("demand x{}", self.demand_factor));
-        }
-        if parts.is_empty() {
-            "base".to_owned()
-        } else {
-            parts.join(", ")
-        }
-    }
-
-    /// The model with the scenario's changes. Unknown link ids and a bad factor are errors.
-    pub fn apply(&self, model: &Model) -> Result<Model, ModelError> {
-        let mut m = model.clone();
-        for id in &self.close {
-            let Some(k) = m.link_index(id) else {
-                let hint = crate::units::suggest(id, m.links().iter().map(|l| l.id.as_str()))
-                    .map(|s| format!(" (did you mean '{s}'?)"))
-                    .unwrap_or_default();
-                return Err(ModelError::at(
-                    Some(Element::Link(id.clone())),
-                    None,
-                    format!("cannot be closed: there is no link with this id{hint}"),
-                ));
-            };
-            m.set_status(k, LinkStatus::Closed)?;
-        }
-        let f = self.demand_factor;
-        if !(f.is_finite() && f >= 0.0) {
-            return Err(ModelError::new(format!("the demand factor must be a finite number of at least 0, found {f}")));
-        }
-        if f != 1.0 {
-            for i in 0..m.nodes().len() {
-                if let NodeKind::Junction { demand } = m.nodes()[i].kind {
-                    m.set_demand(i, demand * f)?;
-                }
-            }
-        }
-        Ok(m)
-    }
 }
 
 /// How a check runs.
@@ -343,23 +299,25 @@ pub fn run_scenario(
     options: &CheckOptions,
 ) -> (Outcome, Option<Solution>) {
     match solver.solve_with(model, solve_options) {
-        Ok(solution) => {
-            let error = demand_delivered(model, &solution, options.keep).err();
-            let mut checks = vec![convergence_check(criteria, model, error.as_ref())];
-            checks.extend(evaluate(criteria, model, &solution, options.keep));
-            let lost_supply =
-                reference.map(|r| lost_supply(model, r, &solution.connected, options.keep)).unwrap_or_default();
-            let outcome = Outcome {
-                error,
-                iterations: solution.iterations,
-                checks,
-                lost_supply,
-                connected: solution.connected.clone(),
-            };
-            (outcome, Some(solution))
-        }
+        Ok(solution) => (judge(model, criteria, &solution, reference, options), Some(solution)),
         Err(e) => (unsolved(criteria, model, Unsolved::Solver(e)), None),
     }
+}
+
+/// The outcome of a solution of `model` against `criteria` (the model's demands are the ones
+/// solved; statuses are read from the solution's link states).
+fn judge(
+    model: &Model,
+    criteria: &Criteria,
+    solution: &Solution,
+    reference: Option<&[bool]>,
+    options: &CheckOptions,
+) -> Outcome {
+    let error = demand_delivered(model, solution, options.keep).err();
+    let mut checks = vec![convergence_check(criteria, model, error.as_ref())];
+    checks.extend(evaluate(criteria, model, solution, options.keep));
+    let lost_supply = reference.map(|r| lost_supply(model, r, &solution.connected, options.keep)).unwrap_or_default();
+    Outcome { error, iterations: solution.iterations, checks, lost_supply, connected: solution.connected.clone() }
 }
 
 /// The outcome of a scenario the solver could not finish.
@@ -407,9 +365,10 @@ pub fn sweep_candidates(model: &Model) -> Vec<usize> {
 }
 
 /// Closes each pipe of `pipes` in turn in `model`, solves and evaluates `criteria`, on every
-/// thread of rayon's pool. `reference` is which nodes are supplied with no pipe closed (the base
-/// solution's `connected`). `progress(done, total)` is called after each closure, from the worker
-/// threads. Returns `(link index, outcome)` in the order of `pipes`.
+/// thread of rayon's pool (see [the sweep](self#the-sweep)). `reference` is which nodes are
+/// supplied with no pipe closed (the base solution's `connected`). `progress(done, total)` is
+/// called after each closure, from the worker threads. Returns `(link index, outcome)` in the
+/// order of `pipes`.
 pub fn sweep_pipes(
     model: &Model,
     pipes: &[usize],
@@ -418,45 +377,39 @@ pub fn sweep_pipes(
     options: &CheckOptions,
     progress: &(dyn Fn(usize, usize) + Sync),
 ) -> Vec<(usize, Outcome)> {
-    let next = AtomicUsize::new(0);
     let done = AtomicUsize::new(0);
     let total = pipes.len();
-    let solve_options = SolveOptions { warm_start: true, ..SolveOptions::from_model(model) };
-    let parts: Vec<Vec<(usize, usize, Outcome)>> = rayon::broadcast(|_| {
-        let mut mine = Vec::new();
-        let mut local = model.clone();
-        // The model was validated by the caller; should it not be, every closure says so.
-        let mut solver = Solver::new(&local).map_err(Unsolved::Solver);
-        loop {
-            let i = next.fetch_add(1, Ordering::Relaxed);
-            if i >= total {
-                return mine;
-            }
-            let k = pipes[i];
-            let outcome = match (&mut solver, local.links().get(k).map(|l| l.status)) {
-                (Err(e), _) => unsolved(criteria, model, e.clone()),
-                (Ok(_), None) => unsolved(
-                    criteria,
-                    model,
-                    Unsolved::Solver(SolveError::Model(ModelError::new(format!("no link at index {k}")))),
-                ),
-                (Ok(solver), Some(before)) => {
-                    // Closing and reopening a link that exists cannot fail.
-                    let _ = local.set_status(k, LinkStatus::Closed);
-                    let (mut outcome, _) =
-                        run_scenario(&local, criteria, solver, &solve_options, Some(reference), options);
-                    let _ = local.set_status(k, before);
-                    outcome.connected = Vec::new(); // not needed per closure; saves memory on large sweeps
-                    outcome
-                }
-            };
-            mine.push((i, k, outcome));
-            progress(done.fetch_add(1, Ordering::Relaxed) + 1, total);
+    // The model was validated by the caller; should it not be, every closure says so.
+    let mut solver = match Solver::new(model) {
+        Ok(s) => s,
+        Err(e) => {
+            return pipes
+                .iter()
+                .map(|&k| {
+                    progress(done.fetch_add(1, Ordering::Relaxed) + 1, total);
+                    (k, unsolved(criteria, model, Unsolved::Solver(e.clone())))
+                })
+                .collect()
         }
+    };
+    let conditions = Conditions::from_model(model);
+    let cold = SolveOptions::from_model(model);
+    // The base case, from which every closure starts (a base that does not solve leaves every
+    // closure a cold start).
+    let _ = solver.solve(model, &conditions, &cold);
+    let scenarios: Vec<Scenario> =
+        pipes.iter().map(|&k| Scenario { statuses: vec![(k, LinkStatus::Closed)], ..Scenario::default() }).collect();
+    let warm = SolveOptions { warm_start: true, ..cold };
+    let outcomes = solver.solve_batch_map(model, &conditions, &warm, &scenarios, &|_, result| {
+        let mut outcome = match result {
+            Ok(solution) => judge(model, criteria, &solution, Some(reference), options),
+            Err(e) => unsolved(criteria, model, Unsolved::Solver(e)),
+        };
+        outcome.connected = Vec::new(); // not needed per closure; saves memory on large sweeps
+        progress(done.fetch_add(1, Ordering::Relaxed) + 1, total);
+        outcome
     });
-    let mut all: Vec<(usize, usize, Outcome)> = parts.into_iter().flatten().collect();
-    all.sort_by_key(|(i, _, _)| *i);
-    all.into_iter().map(|(_, k, o)| (k, o)).collect()
+    pipes.iter().copied().zip(outcomes).collect()
 }
 
 #[cfg(test)]
@@ -530,8 +483,8 @@ mod tests {
         assert_eq!(by_id("CD").lost_supply.nodes, vec![4]);
         // Each closure agrees with a cold single run of the same scenario.
         for (k, outcome) in &results {
-            let scenario = Scenario { close: vec![m.links()[*k].id.to_string()], demand_factor: 1.0 };
-            let sm = scenario.apply(&m).unwrap();
+            let scenario = Scenario::closing(&m, &[m.links()[*k].id.to_string()], 1.0).unwrap();
+            let sm = what_if_model(&m, &scenario).unwrap();
             let mut cold = Solver::new(&sm).unwrap();
             let (single, _) = run_scenario(
                 &sm,
@@ -590,13 +543,13 @@ mod tests {
     #[test]
     fn scenario_closes_and_scales() {
         let m = network();
-        let s = Scenario { close: vec!["AB".into()], demand_factor: 2.0 };
-        assert_eq!(s.label(), "AB closed, demand x2");
-        let w = s.apply(&m).unwrap();
+        let s = Scenario::closing(&m, &["AB".into()], 2.0).unwrap();
+        assert_eq!(s.label(&m), "AB closed, demand x2");
+        let w = what_if_model(&m, &s).unwrap();
         assert_eq!(w.links()[1].status, LinkStatus::Closed);
         assert!((w.nodes()[1].demand() - 0.008).abs() < 1e-15);
-        let e = Scenario { close: vec!["XB".into()], demand_factor: 1.0 }.apply(&m).unwrap_err();
+        let e = Scenario::closing(&m, &["XB".into()], 1.0).unwrap_err();
         assert!(e.to_string().contains("did you mean 'AB'"), "{e}");
-        assert!(Scenario { close: vec![], demand_factor: f64::NAN }.apply(&m).is_err());
+        assert!(Scenario::closing(&m, &[], f64::NAN).is_err());
     }
 }

@@ -84,8 +84,23 @@ const TOP_KEYS: &[&str] = &[
     "nodes",
     "links",
     "controls",
+    "quality",
 ];
-const SIMULATION_KEYS: &[&str] = &["duration", "hydraulic_step", "report_interval", "start_clock", "level_tolerance"];
+const SIMULATION_KEYS: &[&str] = &[
+    "duration",
+    "hydraulic_step",
+    "report_interval",
+    "start_clock",
+    "level_tolerance",
+    "transport_step",
+    "quality_tolerance",
+];
+/// Keys of a `[[quality]]` entry by kind.
+const QUALITY_KEYS: &[(&str, &[&str])] = &[
+    ("age", &["id", "kind", "initial"]),
+    ("source", &["id", "kind", "source", "initial"]),
+    ("substance", &["id", "kind", "unit", "bulk_rate", "wall_rate", "diffusivity", "initial"]),
+];
 const ENERGY_KEYS: &[&str] = &["price_per_kwh", "tariff_pattern", "currency"];
 const PATTERN_KEYS: &[&str] = &["id", "step", "multipliers"];
 const DEMAND_KEYS: &[&str] = &["base", "pattern"];
@@ -125,12 +140,48 @@ const NODE_KEYS: &[(&str, &[&str])] = &[
             "x",
             "y",
             "zone",
+            "quality",
+            "quality_pattern",
+            "initial_quality",
+            "booster",
         ],
     ),
-    ("reservoir", &["id", "kind", "head", "head_pattern", "elevation", "x", "y", "zone"]),
+    (
+        "reservoir",
+        &[
+            "id",
+            "kind",
+            "head",
+            "head_pattern",
+            "elevation",
+            "x",
+            "y",
+            "zone",
+            "quality",
+            "quality_pattern",
+            "initial_quality",
+            "booster",
+        ],
+    ),
     (
         "tank",
-        &["id", "kind", "elevation", "level", "min_level", "max_level", "diameter", "volume_curve", "x", "y", "zone"],
+        &[
+            "id",
+            "kind",
+            "elevation",
+            "level",
+            "min_level",
+            "max_level",
+            "diameter",
+            "volume_curve",
+            "x",
+            "y",
+            "zone",
+            "initial_quality",
+            "booster",
+            "mixing",
+            "mixing_fraction",
+        ],
     ),
 ];
 const LINK_KEYS: &[(&str, &[&str])] = &[
@@ -168,22 +219,6 @@ const LINK_KEYS: &[(&str, &[&str])] = &[
             "elevation",
             "npsh_required_curve",
             "status",
-        ],
-    ),
-    (
-        "valve",
-        &[
-            "id",
-            "kind",
-            "valve",
-            "from",
-            "to",
-            "diameter",
-            "setting",
-            "setting_pattern",
-            "minor_loss",
-            "fittings",
-            "status",
             "path",
         ],
     ),
@@ -199,6 +234,7 @@ const LINK_KEYS: &[(&str, &[&str])] = &[
             "setting",
             "setting_pattern",
             "minor_loss",
+            "fittings",
             "status",
             "path",
         ],
@@ -375,6 +411,7 @@ struct Settings {
     pressure_demand: Option<PressureDemand>,
     leakage: Option<Leakage>,
     map: MapCoordinates,
+    quality: Vec<Value>,
 }
 
 impl Settings {
@@ -408,7 +445,20 @@ impl Settings {
         let patterns = top.array("patterns")?;
         // Checked by `analysis::Criteria::apply`, which the commands that use it call.
         let criteria = top.take("criteria");
-        Ok(Settings { title, units, options, simulation, energy, patterns, criteria, pressure_demand, leakage, map })
+        let quality = top.array("quality")?;
+        Ok(Settings {
+            title,
+            units,
+            options,
+            simulation,
+            energy,
+            patterns,
+            criteria,
+            pressure_demand,
+            leakage,
+            map,
+            quality,
+        })
     }
 
     /// The model with these settings and its patterns, before any element.
@@ -427,6 +477,10 @@ impl Settings {
         model.outflow.pressure_demand = self.pressure_demand;
         model.outflow.leakage = self.leakage;
         model.map.coordinates = self.map;
+        for (i, v) in self.quality.into_iter().enumerate() {
+            let c = read_constituent(i, v, &model.units, &model.time.quality)?;
+            model.time.quality.constituents.push(c);
+        }
         Ok(model)
     }
 }
@@ -469,6 +523,7 @@ fn add_link_value(model: &mut Model, i: usize, value: Value) -> Result<(), Model
 
 /// The controls (they refer to nodes and links, so come last), then the whole-network checks.
 fn finish(mut model: Model, controls: Vec<Value>) -> Result<Model, ModelError> {
+    resolve_sources(&mut model)?;
     for (i, v) in controls.into_iter().enumerate() {
         let control = read_control(i, v, &model)?;
         model.time.controls.push(control);
@@ -930,9 +985,14 @@ fn read_node(
                 let curve = tm::VolumeCurve::new(points).map_err(|m| f.error("volume_curve", m))?;
                 time.volume_curves.insert(node_index, curve);
             }
+            let mixing = read_mixing(&mut f)?;
+            if let Some(m) = mixing {
+                time.quality.mixing.insert(node_index, m);
+            }
             (elevation, NodeKind::Tank(Box::new(tank)))
         }
     };
+    read_node_quality(&mut f, node_index, time)?;
     let element = f.element.clone();
     let Some(Element::Node(id)) = element else { unreachable!("identify sets the element") };
     static ALL_NODE_KEYS: OnceLock<Vec<&'static str>> = OnceLock::new();
@@ -986,11 +1046,11 @@ fn read_link(index: usize, value: Value, model: &Model) -> Result<LinkRead, Mode
         "valve" => f.pattern("setting_pattern", &model.time)?,
         _ => None,
     };
+    let mut leakage_rate = None;
     let fittings = match kind.as_str() {
         "pipe" | "valve" => read_fittings(&mut f)?,
         _ => Vec::new(),
     };
-    let mut leakage_rate = None;
     let (kind, status) = match kind.as_str() {
         "pipe" => {
             if let Some(rate) = f.number("leakage_rate")? {
@@ -1012,65 +1072,6 @@ fn read_link(index: usize, value: Value, model: &Model) -> Result<LinkRead, Mode
     static ALL_LINK_KEYS: OnceLock<Vec<&'static str>> = OnceLock::new();
     f.finish_with(keys, ALL_LINK_KEYS.get_or_init(|| all_keys(LINK_KEYS)), kind.label())?;
     Ok((Link { id: id.into(), from, to, status, kind }, pattern, leakage_rate, path, fittings))
-}
-
-/// Reads a link's `fittings`: an array of tables `{ kind, count, radius, angle, opening }`.
-/// Values are checked by [`Model::set_fittings`]; here only their types and which keys each kind
-/// takes.
-fn read_fittings(f: &mut Fields) -> Result<Vec<Fitting>, ModelError> {
-    let Some(list) = f.take("fittings") else { return Ok(Vec::new()) };
-    let Value::Array(items) = list else {
-        return Err(f.error(
-            "fittings",
-            format!("must be an array of tables such as {{ kind = \"elbow-90\", count = 2 }}, found {}", list.kind()),
-        ));
-    };
-    let mut out = Vec::with_capacity(items.len());
-    for (i, item) in items.into_iter().enumerate() {
-        let mut e = f.nested(format!("fittings[{}].", i + 1), item)?;
-        e.reject_unknown(FITTING_KEYS)?;
-        let text = e.string("kind")?.ok_or_else(|| e.error("kind", "is missing"))?;
-        let Some(kind) = FittingKind::parse(&text) else {
-            let names: Vec<&str> = FittingKind::ALL.iter().map(|k| k.label()).collect();
-            let hint =
-                suggest(&text, names.iter().copied()).map(|s| format!(" (did you mean \"{s}\"?)")).unwrap_or_default();
-            return Err(e.error(
-                "kind",
-                format!(
-                    "unknown fitting kind \"{}\"{hint}; expected one of {} (`ringmain fittings` lists them)",
-                    crate::error::printable(&text),
-                    names.join(", ")
-                ),
-            ));
-        };
-        let mut fitting = Fitting::new(kind);
-        if let Some(n) = e.integer("count")? {
-            if !(1..=i64::from(u32::MAX)).contains(&n) {
-                return Err(e.error("count", format!("must be a whole number of at least 1, found {n}")));
-            }
-            fitting.count = n as u32;
-        }
-        let takes = kind.parameters();
-        for key in ["radius", "angle", "opening"] {
-            let Some(v) = e.number(key)? else {
-                if kind == FittingKind::Bend && key == "radius" {
-                    return Err(e.error("radius", "is missing: give the bend radius in pipe diameters (r/D >= 0.5)"));
-                }
-                continue;
-            };
-            if !takes.contains(&key) {
-                return Err(e.error(key, format!("does not apply to a {} fitting", kind.label())));
-            }
-            match key {
-                "radius" => fitting.radius = v,
-                "angle" => fitting.angle = v,
-                _ => fitting.opening = v,
-            }
-        }
-        e.finish(FITTING_KEYS)?;
-        out.push(fitting);
-    }
-    Ok(out)
 }
 
 /// A leakage rate in flow units per km (per 1000 ft where lengths are in ft) into m³/s per m.
@@ -1172,6 +1173,65 @@ fn read_junction_outflow(
         j.outlet = Some(Outlet { coefficient: outlet_coefficient_to_si(units, density, c, e), exponent: e });
     }
     Ok(Some(j))
+}
+
+/// Reads a link's `fittings`: an array of tables `{ kind, count, radius, angle, opening }`.
+/// Values are checked by [`Model::set_fittings`]; here only their types and which keys each kind
+/// takes.
+fn read_fittings(f: &mut Fields) -> Result<Vec<Fitting>, ModelError> {
+    let Some(list) = f.take("fittings") else { return Ok(Vec::new()) };
+    let Value::Array(items) = list else {
+        return Err(f.error(
+            "fittings",
+            format!("must be an array of tables such as {{ kind = \"elbow-90\", count = 2 }}, found {}", list.kind()),
+        ));
+    };
+    let mut out = Vec::with_capacity(items.len());
+    for (i, item) in items.into_iter().enumerate() {
+        let mut e = f.nested(format!("fittings[{}].", i + 1), item)?;
+        e.reject_unknown(FITTING_KEYS)?;
+        let text = e.string("kind")?.ok_or_else(|| e.error("kind", "is missing"))?;
+        let Some(kind) = FittingKind::parse(&text) else {
+            let names: Vec<&str> = FittingKind::ALL.iter().map(|k| k.label()).collect();
+            let hint =
+                suggest(&text, names.iter().copied()).map(|s| format!(" (did you mean \"{s}\"?)")).unwrap_or_default();
+            return Err(e.error(
+                "kind",
+                format!(
+                    "unknown fitting kind \"{}\"{hint}; expected one of {} (`ringmain fittings` lists them)",
+                    crate::error::printable(&text),
+                    names.join(", ")
+                ),
+            ));
+        };
+        let mut fitting = Fitting::new(kind);
+        if let Some(n) = e.integer("count")? {
+            if !(1..=i64::from(u32::MAX)).contains(&n) {
+                return Err(e.error("count", format!("must be a whole number of at least 1, found {n}")));
+            }
+            fitting.count = n as u32;
+        }
+        let takes = kind.parameters();
+        for key in ["radius", "angle", "opening"] {
+            let Some(v) = e.number(key)? else {
+                if kind == FittingKind::Bend && key == "radius" {
+                    return Err(e.error("radius", "is missing: give the bend radius in pipe diameters (r/D >= 0.5)"));
+                }
+                continue;
+            };
+            if !takes.contains(&key) {
+                return Err(e.error(key, format!("does not apply to a {} fitting", kind.label())));
+            }
+            match key {
+                "radius" => fitting.radius = v,
+                "angle" => fitting.angle = v,
+                _ => fitting.opening = v,
+            }
+        }
+        e.finish(FITTING_KEYS)?;
+        out.push(fitting);
+    }
+    Ok(out)
 }
 
 /// Reads `status`: open | closed, and for valves also automatic (the default for valves).
@@ -1311,6 +1371,286 @@ fn read_valve(f: &mut Fields, model: &Model, automatic: bool) -> Result<Valve, M
     })
 }
 
+/// Reads a `[[quality]]` entry (its `source` node is found once the nodes are read).
+fn read_constituent(
+    index: usize,
+    value: Value,
+    units: &UnitSystem,
+    known: &crate::quality::QualityData,
+) -> Result<crate::quality::Constituent, ModelError> {
+    use crate::quality::{Constituent, ConstituentKind, Reaction};
+    let (mut f, keys, kind) =
+        identify(value, Element::Entry("quality".into(), index), Element::Constituent, QUALITY_KEYS, "substance")?;
+    let Some(Element::Constituent(id)) = f.element.clone() else { unreachable!("identify sets the element") };
+    if known.index(&id).is_some() {
+        return Err(f.error("id", "is used by another [[quality]] entry; constituent ids must be unique"));
+    }
+    let el = Element::Constituent(id.clone());
+    let number = |f: &mut Fields, key: &str, rule: super::Rule| -> Result<Option<f64>, ModelError> {
+        match f.number(key)? {
+            Some(v) => Ok(Some(super::check_value(&el, key, v, rule)?)),
+            None => Ok(None),
+        }
+    };
+    let per_day = 1.0 / tm::DAY;
+    let (kind, unit, initial) = match kind.as_str() {
+        "age" => {
+            let initial = number(&mut f, "initial", super::Rule::NonNegative)?.unwrap_or(0.0) * tm::HOUR;
+            (ConstituentKind::Age, "h".to_owned(), initial)
+        }
+        "source" => {
+            let source = f.string("source")?.ok_or_else(|| f.missing("source"))?;
+            let initial = number(&mut f, "initial", super::Rule::NonNegative)?.unwrap_or(0.0);
+            if initial > 100.0 {
+                return Err(f.error("initial", format!("is a percentage, at most 100, found {initial}")));
+            }
+            // The node is found in `resolve_sources`; until then its name waits in `unit`.
+            (ConstituentKind::Source { node: usize::MAX }, source, initial)
+        }
+        _ => {
+            let unit = f.string("unit")?.unwrap_or_else(|| "mg/L".to_owned());
+            if unit.trim().is_empty() || unit.chars().any(char::is_control) {
+                return Err(f.error("unit", "must be a label such as \"mg/L\""));
+            }
+            let bulk = number(&mut f, "bulk_rate", super::Rule::Finite)?.unwrap_or(0.0) * per_day;
+            let wall =
+                number(&mut f, "wall_rate", super::Rule::Finite)?.map_or(0.0, |w| units.length.to_si(w) * per_day);
+            let diffusivity = number(&mut f, "diffusivity", super::Rule::NonNegative)?
+                .unwrap_or(crate::quality::constituents::DIFFUSIVITY);
+            let initial = number(&mut f, "initial", super::Rule::NonNegative)?.unwrap_or(0.0);
+            (ConstituentKind::Substance(Reaction { bulk_rate: bulk, wall_rate: wall, diffusivity }), unit, initial)
+        }
+    };
+    static ALL: OnceLock<Vec<&'static str>> = OnceLock::new();
+    let label = match kind {
+        ConstituentKind::Age => "age constituent",
+        ConstituentKind::Source { .. } => "source trace",
+        ConstituentKind::Substance(_) => "substance",
+    };
+    f.finish_with(keys, ALL.get_or_init(|| all_keys(QUALITY_KEYS)), label)?;
+    Ok(Constituent { id, kind, unit, initial })
+}
+
+/// Finds the node each source trace follows; it must be a reservoir or a tank.
+fn resolve_sources(model: &mut Model) -> Result<(), ModelError> {
+    use crate::quality::ConstituentKind;
+    let mut found = Vec::new();
+    for (c, con) in model.time.quality.constituents.iter().enumerate() {
+        if !matches!(con.kind, ConstituentKind::Source { .. }) {
+            continue;
+        }
+        let name = &con.unit;
+        let el = Some(Element::Constituent(con.id.clone()));
+        let Some(i) = model.node_index(name) else {
+            let hint = suggest(name, model.nodes().iter().map(|n| n.id.as_str()))
+                .map(|s| format!(" (did you mean '{s}'?)"))
+                .unwrap_or_default();
+            return Err(ModelError::at(
+                el,
+                Some("source"),
+                format!("refers to node '{}', which is not defined{hint}", crate::error::printable(name)),
+            ));
+        };
+        if !matches!(model.nodes()[i].kind, NodeKind::Reservoir { .. } | NodeKind::Tank(_)) {
+            return Err(ModelError::at(
+                el,
+                Some("source"),
+                format!(
+                    "node '{}' is a {}; a source trace follows the water of a reservoir or a tank",
+                    crate::error::printable(name),
+                    model.nodes()[i].kind.label()
+                ),
+            ));
+        }
+        found.push((c, i));
+    }
+    for (c, i) in found {
+        let con = &mut model.time.quality.constituents[c];
+        con.kind = ConstituentKind::Source { node: i };
+        con.unit = "%".to_owned();
+    }
+    Ok(())
+}
+
+/// Reads a tank's `mixing` and `mixing_fraction`.
+fn read_mixing(f: &mut Fields) -> Result<Option<crate::quality::Mixing>, ModelError> {
+    use crate::quality::Mixing;
+    let text = f.string("mixing")?;
+    let fraction = f.number("mixing_fraction")?;
+    let mixing = match text.as_deref() {
+        None => None,
+        Some("complete") => Some(Mixing::Complete),
+        Some("two-zone") => {
+            let share = fraction.ok_or_else(|| {
+                f.error("mixing_fraction", "is missing: a two-zone tank needs the inlet zone's share (0 to 1)")
+            })?;
+            if !(share > 0.0 && share < 1.0) {
+                return Err(f.error("mixing_fraction", format!("must be above 0 and below 1, found {share}")));
+            }
+            return Ok(Some(Mixing::TwoZone(share)));
+        }
+        Some("plug-flow") => Some(Mixing::PlugFlow),
+        Some("stacked") => Some(Mixing::Stacked),
+        Some(other) => {
+            let hint = suggest(other, Mixing::LABELS.iter().copied())
+                .map(|s| format!(" (did you mean \"{s}\"?)"))
+                .unwrap_or_default();
+            return Err(f.error(
+                "mixing",
+                format!(
+                    "unknown mixing model \"{}\"{hint}; expected \"complete\", \"two-zone\", \"plug-flow\" or \"stacked\"",
+                    crate::error::printable(other)
+                ),
+            ));
+        }
+    };
+    if fraction.is_some() {
+        return Err(f.error("mixing_fraction", "applies only with mixing = \"two-zone\""));
+    }
+    Ok(mixing)
+}
+
+/// Reads a node's `quality`, `quality_pattern`, `initial_quality` and `booster` tables (keyed by
+/// constituent id).
+fn read_node_quality(f: &mut Fields, node: usize, time: &mut TimeData) -> Result<(), ModelError> {
+    use crate::quality::{ConstituentKind, SourceValue};
+    let table = |f: &mut Fields, key: &str| -> Result<Vec<(usize, Value)>, ModelError> {
+        let Some(value) = f.take(key) else { return Ok(Vec::new()) };
+        let Value::Table(entries) = value else {
+            return Err(f.error(
+                key,
+                format!(
+                    "must be a table of constituent ids, such as {key} = {{ chlorine = 0.5 }}, found {}",
+                    value.kind()
+                ),
+            ));
+        };
+        let q = &time.quality;
+        let mut out = Vec::new();
+        for (k, v) in entries {
+            let Some(c) = q.index(k.as_ref()) else {
+                let hint = suggest(k.as_ref(), q.constituents.iter().map(|c| c.id.as_str()))
+                    .map(|s| format!(" (did you mean '{s}'?)"))
+                    .unwrap_or_default();
+                let known = if q.constituents.is_empty() {
+                    "the model has no [[quality]] entries".to_owned()
+                } else {
+                    format!(
+                        "known: {}",
+                        q.constituents.iter().map(|c| format!("'{}'", c.id)).collect::<Vec<_>>().join(", ")
+                    )
+                };
+                return Err(f.error(
+                    key,
+                    format!(
+                        "names constituent '{}', which is not defined in [[quality]]{hint}; {known}",
+                        crate::error::printable(k.as_ref())
+                    ),
+                ));
+            };
+            out.push((c, v));
+        }
+        Ok(out)
+    };
+    let initial = table(f, "initial_quality")?;
+    let source = table(f, "quality")?;
+    let pattern = table(f, "quality_pattern")?;
+    let booster = table(f, "booster")?;
+    let q = &time.quality;
+    let num = |f: &Fields, key: &str, c: usize, v: &Value| -> Result<f64, ModelError> {
+        let x = match v {
+            Value::Int(i) => *i as f64,
+            Value::Float(x) => *x,
+            other => {
+                return Err(f.error(
+                    key,
+                    format!("the value for '{}' must be a number, found {}", q.constituents[c].id, other.kind()),
+                ))
+            }
+        };
+        if !x.is_finite() || x < 0.0 {
+            return Err(f.error(
+                key,
+                format!("the value for '{}' must be a finite number, not negative, found {x}", q.constituents[c].id),
+            ));
+        }
+        if matches!(q.constituents[c].kind, ConstituentKind::Source { .. }) && x > 100.0 {
+            return Err(f.error(
+                key,
+                format!("the value for '{}' is a percentage, at most 100, found {x}", q.constituents[c].id),
+            ));
+        }
+        Ok(x)
+    };
+    let substance_only = |f: &Fields, key: &str, c: usize| -> Result<(), ModelError> {
+        match q.constituents[c].kind {
+            ConstituentKind::Substance(_) => Ok(()),
+            ConstituentKind::Age => Err(f.error(
+                key,
+                format!(
+                    "'{}' is a water age: it starts at 0 where water leaves a reservoir and cannot be set here",
+                    q.constituents[c].id
+                ),
+            )),
+            ConstituentKind::Source { .. } => Err(f.error(
+                key,
+                format!(
+                    "'{}' is a source trace: its source is the node named by its 'source' key",
+                    q.constituents[c].id
+                ),
+            )),
+        }
+    };
+    let mut init = Vec::new();
+    for (c, v) in &initial {
+        let x = num(f, "initial_quality", *c, v)?;
+        let scale = if matches!(q.constituents[*c].kind, ConstituentKind::Age) { tm::HOUR } else { 1.0 };
+        init.push((*c, x * scale));
+    }
+    let mut sources = Vec::new();
+    for (c, v) in &source {
+        substance_only(f, "quality", *c)?;
+        sources.push(SourceValue { constituent: *c, value: num(f, "quality", *c, v)?, pattern: None });
+    }
+    for (c, v) in pattern {
+        let Value::Str(id) = v else {
+            return Err(f.error(
+                "quality_pattern",
+                format!("the value for '{}' must be a pattern id (a string), found {}", q.constituents[c].id, v.kind()),
+            ));
+        };
+        let Some(p) = time.pattern_index(&id) else {
+            return Err(f.error(
+                "quality_pattern",
+                format!("refers to pattern '{}', which is not defined in [[patterns]]", crate::error::printable(&id)),
+            ));
+        };
+        let Some(s) = sources.iter_mut().find(|s| s.constituent == c) else {
+            return Err(f.error(
+                "quality_pattern",
+                format!("gives '{}' a pattern but quality gives it no value to multiply", q.constituents[c].id),
+            ));
+        };
+        s.pattern = Some(p);
+    }
+    let mut boost = Vec::new();
+    for (c, v) in &booster {
+        substance_only(f, "booster", *c)?;
+        boost.push((*c, num(f, "booster", *c, v)?));
+    }
+    let q = &mut time.quality;
+    if !init.is_empty() {
+        q.initial.insert(node, init);
+    }
+    if !sources.is_empty() {
+        q.sources.insert(node, sources);
+    }
+    if !boost.is_empty() {
+        q.boosters.insert(node, boost);
+    }
+    Ok(())
+}
+
 fn read_simulation(value: Value, units: &UnitSystem) -> Result<SimulationSettings, ModelError> {
     let el = Element::Table("simulation".into());
     let mut f = Fields::from_value(el.clone(), value)?;
@@ -1339,8 +1679,30 @@ fn read_simulation(value: Value, units: &UnitSystem) -> Result<SimulationSetting
         Some(t) => units.length.to_si(super::check_value(&el, "level_tolerance", t, super::Rule::Positive)?),
         None => SimulationSettings::LEVEL_TOLERANCE,
     };
+    let transport_step = match f.duration("transport_step")? {
+        Some(v) => Some(positive(&f, "transport_step", v)?),
+        None => None,
+    };
+    let quality_tolerance = match f.number("quality_tolerance")? {
+        Some(t) => {
+            let t = super::check_value(&el, "quality_tolerance", t, super::Rule::NonNegative)?;
+            if t >= 1.0 {
+                return Err(f.error("quality_tolerance", format!("is a relative tolerance, below 1, found {t}")));
+            }
+            Some(t)
+        }
+        None => None,
+    };
     f.finish(SIMULATION_KEYS)?;
-    Ok(SimulationSettings { duration, hydraulic_step, report_interval, start_clock, level_tolerance })
+    Ok(SimulationSettings {
+        duration,
+        hydraulic_step,
+        report_interval,
+        start_clock,
+        level_tolerance,
+        transport_step,
+        quality_tolerance,
+    })
 }
 
 fn read_energy(value: Value, time: &TimeData) -> Result<Energy, ModelError> {

@@ -492,14 +492,14 @@ pub struct Model {
     /// The `[criteria]` table as written, unchecked; [`crate::analysis::Criteria::apply`]
     /// reads it (only the commands that check criteria need it to be valid).
     pub criteria: Option<doc::Value>,
-    /// Named fittings of pipes and valves: link index → its list (set through
-    /// [`Model::set_fittings`], which checks them). Kept beside the links rather than in them:
-    /// few links list fittings, and every link of a large network stays small.
-    fittings: BTreeMap<usize, Box<[Fitting]>>,
     /// Outflows that follow pressure: pressure-dependent demand, outlets, leakage.
     pub outflow: outflow::OutflowData,
     /// Map data: coordinate kind and drawn alignments (`[map]`, `path`).
     pub map: MapData,
+    /// Named fittings of pipes and valves: link index → its list (set through
+    /// [`Model::set_fittings`], which checks them). Kept beside the links rather than in them:
+    /// few links list fittings, and every link of a large network stays small.
+    fittings: BTreeMap<usize, Box<[Fitting]>>,
     nodes: Vec<Node>,
     links: Vec<Link>,
     node_index: IdIndex,
@@ -515,9 +515,9 @@ impl PartialEq for Model {
             options,
             time,
             criteria,
-            fittings,
             outflow,
             map,
+            fittings,
             nodes,
             links,
             node_index: _,
@@ -971,6 +971,93 @@ impl Model {
         } else {
             self.fittings.insert(index, fittings.into_boxed_slice());
         }
+        Ok(())
+    }
+
+    /// Changes one value of many nodes in place, all or none: `change(index, node)` writes the
+    /// new value into the node's data and returns the old one, or `None` when it leaves the node
+    /// alone; every changed node is then checked as [`Model::replace_node`] checks it. On the
+    /// first error (from `change` or a check) every node changed so far gets its old value back
+    /// through `restore(node, old)` and the error is returned.
+    ///
+    /// This is the whole-array path of the C library's setters: no node is copied, so setting
+    /// every demand of a large network costs a pass over the nodes. `change` must not change a
+    /// node's id or kind (the id index would no longer match); it changes values.
+    pub fn change_nodes<T>(
+        &mut self,
+        mut change: impl FnMut(usize, &mut Node) -> Result<Option<T>, ModelError>,
+        mut restore: impl FnMut(&mut Node, T),
+    ) -> Result<(), ModelError> {
+        let mut undo: Vec<(usize, T)> = Vec::new();
+        let mut failure = None;
+        for (i, node) in self.nodes.iter_mut().enumerate() {
+            match change(i, node) {
+                Ok(Some(old)) => {
+                    undo.push((i, old));
+                    if let Err(e) = Self::check_node(node) {
+                        failure = Some(e);
+                        break;
+                    }
+                }
+                Ok(None) => {}
+                Err(e) => {
+                    failure = Some(e);
+                    break;
+                }
+            }
+        }
+        match failure {
+            None => Ok(()),
+            Some(e) => {
+                for (i, old) in undo.into_iter().rev() {
+                    restore(&mut self.nodes[i], old);
+                }
+                Err(e)
+            }
+        }
+    }
+
+    /// Changes one value of many links in place, all or none, as [`Model::change_nodes`] does
+    /// for nodes (each changed link is checked as [`Model::replace_link`] checks it).
+    pub fn change_links<T>(
+        &mut self,
+        mut change: impl FnMut(usize, &mut Link) -> Result<Option<T>, ModelError>,
+        mut restore: impl FnMut(&mut Link, T),
+    ) -> Result<(), ModelError> {
+        let mut links = std::mem::take(&mut self.links);
+        let mut undo: Vec<(usize, T)> = Vec::new();
+        let mut failure = None;
+        for (k, link) in links.iter_mut().enumerate() {
+            let (from, to) = (link.from, link.to);
+            match change(k, link) {
+                Ok(Some(old)) => {
+                    undo.push((k, old));
+                    // The ends are not the caller's to change (nor the id: see the docs).
+                    let checked = if link.from != from || link.to != to {
+                        Err(ModelError::at(Some(link.element()), Some("from"), "cannot be changed"))
+                    } else {
+                        self.check_link(link)
+                    };
+                    if let Err(e) = checked {
+                        failure = Some(e);
+                        break;
+                    }
+                }
+                Ok(None) => {}
+                Err(e) => {
+                    failure = Some(e);
+                    break;
+                }
+            }
+        }
+        if let Some(e) = failure {
+            for (k, old) in undo.into_iter().rev() {
+                restore(&mut links[k], old);
+            }
+            self.links = links;
+            return Err(e);
+        }
+        self.links = links;
         Ok(())
     }
 

@@ -31,6 +31,11 @@ pub struct SimulationSettings {
     pub start_clock: f64,
     /// Largest local error of a tank level accepted in one step, m.
     pub level_tolerance: f64,
+    /// Longest water-quality transport step, s (`None`: the default of
+    /// [`crate::quality::TRANSPORT_STEP`]).
+    pub transport_step: Option<f64>,
+    /// Merge tolerance of water-quality segments (`None`: [`crate::quality::TOLERANCE`]).
+    pub quality_tolerance: Option<f64>,
 }
 
 impl SimulationSettings {
@@ -256,6 +261,8 @@ pub struct TimeData {
     pub controls: Vec<Control>,
     /// Energy prices.
     pub energy: Energy,
+    /// Water-quality constituents and what nodes say about them.
+    pub quality: crate::quality::QualityData,
 }
 
 impl TimeData {

@@ -45,6 +45,7 @@ pub mod results;
 use crate::error::{printable, Element, ModelError, SolveError};
 use crate::model::time::{Action, SimulationSettings};
 use crate::model::{LinkStatus, Model};
+use crate::solve::Solution;
 use network::{LinkSettings, Network, Stage, TankMode};
 pub use results::{Balance, Event, EventKind, PumpSummary, Run, Snapshot, Statistics, TankSummary};
 use std::fmt;
@@ -152,6 +153,47 @@ const E: [f64; 4] = [-5.0 / 72.0, 1.0 / 12.0, 1.0 / 9.0, -1.0 / 8.0];
 /// Runs the model's `[simulation]`.
 pub fn simulate(model: &Model) -> Result<Run, SimulateError> {
     simulate_with(model, &SimulateOptions::default(), &mut |_| {})
+}
+
+/// Something that follows a run step by step (the water-quality transport does).
+pub trait StepObserver {
+    /// The run moved from elapsed time `t0` to `t1` (s); `start` is the hydraulic solution in
+    /// force from `t0` (after that instant's events) and `end` the one reached at `t1` (before
+    /// that instant's events). Intervals come in order and cover the run.
+    fn interval(&mut self, t0: f64, t1: f64, start: &Solution, end: &Solution);
+}
+
+/// Like [`simulate_with`], telling `observer` about every step.
+pub fn simulate_observed(
+    model: &Model,
+    options: &SimulateOptions,
+    progress: &mut dyn FnMut(f64),
+    observer: &mut dyn StepObserver,
+) -> Result<Run, SimulateError> {
+    let sim = simulation_settings(model)?;
+    check_options(options)?;
+    let mut engine = Engine::new(model, sim, *options)?;
+    engine.observer = Some(observer);
+    engine.run(progress)
+}
+
+fn simulation_settings(model: &Model) -> Result<SimulationSettings, SimulateError> {
+    Ok(model.time.simulation.ok_or_else(|| {
+        ModelError::at(
+            Some(Element::Table("simulation".into())),
+            None,
+            "the model has no [simulation] table; add one with at least duration = \"24h\"",
+        )
+    })?)
+}
+
+fn check_options(options: &SimulateOptions) -> Result<(), SimulateError> {
+    if let Some(h) = options.fixed_step {
+        if !(h.is_finite() && h > 0.0) {
+            return Err(ModelError::new(format!("the fixed step must be longer than zero, found {h}")).into());
+        }
+    }
+    Ok(())
 }
 
 /// Runs the model's `[simulation]` with options; `progress` is told the fraction done after
@@ -266,6 +308,7 @@ struct Engine<'m> {
     series: Vec<Snapshot>,
     stats: Statistics,
     start_volume: f64,
+    observer: Option<&'m mut dyn StepObserver>,
 }
 
 impl<'m> Engine<'m> {
@@ -288,7 +331,7 @@ impl<'m> Engine<'m> {
             });
         }
         net.configure(model, &settings, sim.start_clock)?;
-        let k1 = net.evaluate(&volumes, &settings, 0.0)?;
+        let k1 = net.evaluate(model, &volumes, &settings, 0.0)?;
         let n_pumps = net.pumps.len();
         let start_volume = volumes.iter().sum();
         Ok(Engine {
@@ -315,6 +358,7 @@ impl<'m> Engine<'m> {
             series: Vec::new(),
             stats: Statistics::default(),
             start_volume,
+            observer: None,
         })
     }
 
@@ -359,7 +403,7 @@ impl<'m> Engine<'m> {
                 self.accept(trial, t_new);
                 if scheduled {
                     self.net.configure(self.model, &self.settings, self.clock())?;
-                    self.k1 = self.net.evaluate(&self.volumes, &self.settings, self.t)?;
+                    self.k1 = self.net.evaluate(self.model, &self.volumes, &self.settings, self.t)?;
                 }
             }
             self.act()?;
@@ -411,11 +455,11 @@ impl<'m> Engine<'m> {
             y.iter().enumerate().map(|(j, &v)| v + weights.iter().map(|(w, q)| w * q[j]).sum::<f64>()).collect()
         };
         let y2 = combine(&[(0.5 * h, &q1)]);
-        let s2 = self.net.evaluate(&y2, &self.settings, self.t + 0.5 * h)?;
+        let s2 = self.net.evaluate(self.model, &y2, &self.settings, self.t + 0.5 * h)?;
         let y3 = combine(&[(0.75 * h, &s2.tank_inflow)]);
-        let s3 = self.net.evaluate(&y3, &self.settings, self.t + 0.75 * h)?;
+        let s3 = self.net.evaluate(self.model, &y3, &self.settings, self.t + 0.75 * h)?;
         let y4 = combine(&[(B[0] * h, &q1), (B[1] * h, &s2.tank_inflow), (B[2] * h, &s3.tank_inflow)]);
-        let s4 = self.net.evaluate(&y4, &self.settings, self.t + h)?;
+        let s4 = self.net.evaluate(self.model, &y4, &self.settings, self.t + h)?;
         let mut err: f64 = 0.0;
         for (j, tank) in self.net.tanks.iter().enumerate() {
             let e = h * (E[0] * q1[j] + E[1] * s2.tank_inflow[j] + E[2] * s3.tank_inflow[j] + E[3] * s4.tank_inflow[j]);
@@ -548,6 +592,9 @@ impl<'m> Engine<'m> {
 
     /// Moves the current point to the end of an accepted trial.
     fn accept(&mut self, trial: Trial, t_new: f64) {
+        if let Some(o) = self.observer.as_mut() {
+            o.interval(self.t, t_new, &self.k1.solution, &trial.end.solution);
+        }
         let h = trial.h;
         for (j, s) in self.tank_summary.iter_mut().enumerate() {
             match self.net.mode[j] {
@@ -577,7 +624,7 @@ impl<'m> Engine<'m> {
         for _round in 0..=4 * (n_controls + self.net.tanks.len()) + 2 {
             let mut changed = self.settle_tanks();
             if changed {
-                self.k1 = self.net.evaluate(&self.volumes, &self.settings, self.t)?;
+                self.k1 = self.net.evaluate(self.model, &self.volumes, &self.settings, self.t)?;
             }
             let now: Vec<f64> =
                 (0..n_controls).map(|c| self.control_value(c, &self.volumes, &self.k1, self.t, true)).collect();
@@ -590,7 +637,7 @@ impl<'m> Engine<'m> {
                 }
                 self.fire(&firing)?;
                 self.net.configure(self.model, &self.settings, self.clock())?;
-                self.k1 = self.net.evaluate(&self.volumes, &self.settings, self.t)?;
+                self.k1 = self.net.evaluate(self.model, &self.volumes, &self.settings, self.t)?;
                 changed = true;
             }
             if !changed {
@@ -625,7 +672,7 @@ impl<'m> Engine<'m> {
                 TankMode::Full | TankMode::Empty => {
                     let full = self.net.mode[j] == TankMode::Full;
                     let towards = if full { inflow > FLOW_EPS } else { inflow < -FLOW_EPS };
-                    if self.net.closed_at(j).is_empty() && !towards {
+                    if self.net.closed_at(self.model, j).is_empty() && !towards {
                         self.net.mode[j] = TankMode::Normal;
                         self.events.push(Event { time: self.t, kind: EventKind::TankReleased { tank: node } });
                     }
@@ -712,7 +759,7 @@ impl<'m> Engine<'m> {
                 _ => None,
             });
             if mode != TankMode::Normal && logged != Some(mode) {
-                let closed = self.net.closed_at(j);
+                let closed = self.net.closed_at(self.model, j);
                 let kind = if mode == TankMode::Full {
                     EventKind::TankFull { tank: node, closed }
                 } else {
@@ -749,12 +796,12 @@ impl<'m> Engine<'m> {
             self.series.pop();
         }
         let sol = &self.k1.solution;
-        let work = self.net.model();
+        let conditions = self.net.conditions();
         let snapshot = Snapshot {
             time: self.t,
             head: sol.head.clone(),
             pressure: sol.pressure.clone(),
-            demand: work.nodes().iter().map(|n| n.demand()).collect(),
+            demand: conditions.demands().to_vec(),
             flow: sol.flow.clone(),
             status: sol.link_state.iter().map(|s| s.status_label()).collect(),
             level: (0..self.net.tanks.len()).map(|j| self.level(j, &self.volumes)).collect(),
@@ -774,7 +821,7 @@ impl<'m> Engine<'m> {
                 .pumps
                 .iter()
                 .zip(&self.k1.pumps)
-                .map(|(&k, p)| if p[0] > 0.0 { work.links()[k].as_pump().map_or(0.0, |p| p.speed) } else { 0.0 })
+                .map(|(&k, p)| if p[0] > 0.0 { conditions.pump_speed(k) } else { 0.0 })
                 .collect(),
             pump_power: self.k1.pumps.iter().map(|p| p[2]).collect(),
             price: self.price(),

@@ -1,7 +1,8 @@
-//! The network during a run: a working copy of the model whose time-varying values (demands,
-//! reservoir heads, pump speeds, valve settings, link statuses, tank levels) are set before each
-//! hydraulic solve, one reused [`Solver`], and the rule that keeps a full tank from taking water
-//! and an empty one from giving it.
+//! The network during a run: the [`Conditions`] whose time-varying values (demands, reservoir
+//! heads, pump speeds, valve settings, link statuses, tank levels) are set before each hydraulic
+//! solve, one reused [`Solver`] (which rebuilds only the laws of pumps whose speed changed), and
+//! the rule that keeps a full tank from taking water and an empty one from giving it. The model
+//! itself is never copied or changed.
 //!
 //! Tank limits: while a tank is full, every link that would carry water into it is closed for
 //! the solve (and reopened as soon as the heads would drive water out through it); while it is
@@ -12,7 +13,7 @@
 use super::SimulateError;
 use crate::model::time::{TimeData, VolumeCurve};
 use crate::model::{LinkKind, LinkStatus, Model, NodeKind};
-use crate::solve::{LinkState, Solution, SolveOptions, Solver};
+use crate::solve::{Conditions, LinkState, Solution, SolveOptions, Solver};
 use crate::{Element, ModelError};
 
 /// Largest number of rounds of tank-limit closures in one evaluation.
@@ -128,7 +129,8 @@ impl LinkSettings {
 /// The working network of a run.
 #[derive(Debug)]
 pub struct Network {
-    work: Model,
+    /// The values of the next solve.
+    conditions: Conditions,
     solver: Solver,
     options: SolveOptions,
     /// Tanks, in node order.
@@ -151,7 +153,6 @@ impl Network {
         model.validate()?;
         let time = &model.time;
         check_attachments(model, time)?;
-        let mut work = model.clone();
         let mut tanks = Vec::new();
         let mut tank_of_node = vec![usize::MAX; model.nodes().len()];
         for (i, n) in model.nodes().iter().enumerate() {
@@ -176,20 +177,15 @@ impl Network {
                 max_level: t.max_level,
                 shape,
             });
-            // The limits are enforced here; the working copy must accept any trial level.
-            let mut node = n.clone();
-            if let NodeKind::Tank(wt) = &mut node.kind {
-                wt.min_level = 0.0;
-                wt.max_level = None;
-            }
-            work.replace_node(i, node)?;
         }
         let pumps = model.links().iter().enumerate().filter(|(_, l)| l.as_pump().is_some()).map(|(k, _)| k).collect();
-        let solver = Solver::new(&work)?;
+        // The limits are enforced here; the conditions accept any trial level of zero or more.
+        let conditions = Conditions::from_model(model);
+        let solver = Solver::new(model)?;
         let options = SolveOptions { warm_start: true, ..SolveOptions::from_model(model) };
         let n_tanks = tanks.len();
         Ok(Network {
-            work,
+            conditions,
             solver,
             options,
             tanks,
@@ -201,9 +197,9 @@ impl Network {
         })
     }
 
-    /// The working model (values as last set).
-    pub fn model(&self) -> &Model {
-        &self.work
+    /// The values as last set.
+    pub fn conditions(&self) -> &Conditions {
+        &self.conditions
     }
 
     /// Sets the values that stay constant over a stretch between events: demands, reservoir
@@ -212,57 +208,48 @@ impl Network {
     pub fn configure(&mut self, model: &Model, settings: &LinkSettings, clock: f64) -> Result<(), ModelError> {
         let time = &model.time;
         let mult = |p: Option<usize>| p.map_or(1.0, |p| time.patterns[p].at(clock));
+        let c = &mut self.conditions;
         for (&i, demands) in &time.demands {
             let d: f64 = demands.iter().map(|d| d.base * mult(d.pattern)).sum();
-            self.work.set_demand(i, d)?;
+            c.set_demand(model, i, d)?;
         }
         for (&i, &p) in &time.head_patterns {
             if let NodeKind::Reservoir { head } = model.nodes()[i].kind {
-                let mut node = self.work.nodes()[i].clone();
-                node.kind = NodeKind::Reservoir { head: head * mult(Some(p)) };
-                self.work.replace_node(i, node)?;
+                c.set_reservoir_head(model, i, head * mult(Some(p)))?;
             }
         }
         for (k, l) in model.links().iter().enumerate() {
             match &l.kind {
                 LinkKind::Pump(_) => {
                     let s = settings.speed[k] * mult(time.speed_patterns.get(&k).copied());
-                    if self.work.links()[k].as_pump().is_some_and(|p| p.speed != s) {
-                        self.work.set_pump_speed(k, s)?;
-                    }
+                    c.set_pump_speed(model, k, s)?;
                 }
                 LinkKind::Valve(_) => {
                     let s = settings.setting[k] * mult(time.setting_patterns.get(&k).copied());
-                    let mut link = self.work.links()[k].clone();
-                    if let LinkKind::Valve(v) = &mut link.kind {
-                        if v.setting != s || v.automatic != settings.automatic[k] {
-                            v.setting = s;
-                            v.automatic = settings.automatic[k];
-                            self.work.replace_link(k, link)?;
-                        }
-                    }
+                    c.set_valve_setting(model, k, s)?;
+                    c.set_valve_automatic(model, k, settings.automatic[k])?;
                 }
                 _ => {}
             }
         }
         for (k, &s) in settings.status.iter().enumerate() {
-            self.work.set_status(k, s)?;
+            c.set_status(model, k, s)?;
         }
         Ok(())
     }
 
     /// Solves the network with tank volumes `volumes` (statuses as configured, tank limits
     /// applied by mode) and returns what the integrator needs. `time` is for error messages.
-    pub fn evaluate(&mut self, volumes: &[f64], settings: &LinkSettings, time: f64) -> Result<Stage, SimulateError> {
+    pub fn evaluate(
+        &mut self,
+        model: &Model,
+        volumes: &[f64],
+        settings: &LinkSettings,
+        time: f64,
+    ) -> Result<Stage, SimulateError> {
         for (j, t) in self.tanks.iter().enumerate() {
             let level = t.level(volumes[j]).max(0.0);
-            let mut node = self.work.nodes()[t.node].clone();
-            if let NodeKind::Tank(wt) = &mut node.kind {
-                if wt.level != level {
-                    wt.level = level;
-                    self.work.replace_node(t.node, node)?;
-                }
-            }
+            self.conditions.set_tank_level(model, t.node, level)?;
         }
         if !self.mode.iter().any(|m| *m != TankMode::Normal) {
             self.limit_closed.iter_mut().for_each(|c| *c = false);
@@ -270,25 +257,25 @@ impl Network {
         for round in 0.. {
             for (k, &s) in settings.status.iter().enumerate() {
                 let s = if self.limit_closed[k] { LinkStatus::Closed } else { s };
-                if self.work.links()[k].status != s {
-                    self.work.set_status(k, s)?;
+                if self.conditions.status(k) != s {
+                    self.conditions.set_status(model, k, s)?;
                 }
             }
             let solution = self
                 .solver
-                .solve_with(&self.work, &self.options)
+                .solve(model, &self.conditions, &self.options)
                 .map_err(|error| SimulateError::Solve { time, error })?;
             self.solves += 1;
-            let changed = self.update_limits(&solution, settings);
+            let changed = self.update_limits(model, &solution, settings);
             if !changed {
-                return Ok(self.stage(solution));
+                return Ok(self.stage(model, solution));
             }
             if round >= LIMIT_ROUNDS {
                 let tank = self
                     .mode
                     .iter()
                     .position(|m| *m != TankMode::Normal)
-                    .map(|j| self.work.nodes()[self.tanks[j].node].id.to_string())
+                    .map(|j| model.nodes()[self.tanks[j].node].id.to_string())
                     .unwrap_or_default();
                 return Err(SimulateError::TankLimits { time, tank });
             }
@@ -297,9 +284,9 @@ impl Network {
     }
 
     /// One round of the tank-limit rule; returns whether a closure changed.
-    fn update_limits(&mut self, s: &Solution, settings: &LinkSettings) -> bool {
+    fn update_limits(&mut self, model: &Model, s: &Solution, settings: &LinkSettings) -> bool {
         let mut changed = false;
-        for (k, l) in self.work.links().iter().enumerate() {
+        for (k, l) in model.links().iter().enumerate() {
             if settings.status[k] == LinkStatus::Closed {
                 if self.limit_closed[k] {
                     self.limit_closed[k] = false;
@@ -347,8 +334,7 @@ impl Network {
         changed
     }
 
-    fn stage(&self, solution: Solution) -> Stage {
-        let model = &self.work;
+    fn stage(&self, model: &Model, solution: Solution) -> Stage {
         let mut tank_inflow = vec![0.0; self.tanks.len()];
         let mut supplied = 0.0;
         for (l, &q) in model.links().iter().zip(&solution.flow) {
@@ -364,10 +350,11 @@ impl Network {
         let (mut delivered, mut unsupplied) = (0.0, 0.0);
         for (i, n) in model.nodes().iter().enumerate() {
             if n.fixed_head().is_none() {
+                let demand = self.conditions.demand(i);
                 if solution.connected[i] {
-                    delivered += n.demand();
+                    delivered += demand;
                 } else {
-                    unsupplied += n.demand();
+                    unsupplied += demand;
                 }
             }
         }
@@ -387,9 +374,9 @@ impl Network {
     }
 
     /// Links closed by the limit rule at tank `j` right now.
-    pub fn closed_at(&self, j: usize) -> Vec<usize> {
+    pub fn closed_at(&self, model: &Model, j: usize) -> Vec<usize> {
         let node = self.tanks[j].node;
-        self.work
+        model
             .links()
             .iter()
             .enumerate()

@@ -1,14 +1,14 @@
 //! Phase 2, every Newton step: numeric Cholesky factorization of the refilled matrix and the two
 //! triangular solves, in buffers sized once.
 
-use super::pattern::{numeric_scratch, Pattern};
+use super::structure::{numeric_scratch, Structure};
 use faer::dyn_stack::{MemBuffer, MemStack};
 use faer::linalg::cholesky::llt::factor::LltRegularization;
 use faer::sparse::linalg::cholesky::simplicial::{self, SimplicialLltRef};
 use faer::sparse::SparseColMatRef;
 use faer::{Conj, MatMut, Par};
 
-/// Numeric workspace for one pattern.
+/// Numeric workspace for one structure.
 pub struct Factor {
     /// Matrix values, in the pattern's slot order (upper triangle, permuted).
     pub values: Vec<f64>,
@@ -44,34 +44,34 @@ pub struct NotPositive {
 }
 
 impl Factor {
-    /// Buffers for `pattern`.
-    pub fn new(pattern: &Pattern) -> Self {
+    /// Buffers for `structure`.
+    pub fn new(structure: &Structure) -> Self {
         Factor {
-            values: vec![0.0; pattern.nnz()],
-            l_values: vec![0.0; pattern.factor_nnz()],
-            mem: MemBuffer::new(numeric_scratch(pattern.n)),
-            n: pattern.n,
+            values: vec![0.0; structure.nnz()],
+            l_values: vec![0.0; structure.factor_nnz()],
+            mem: MemBuffer::new(numeric_scratch(structure.n)),
+            n: structure.n,
         }
     }
 
     /// Factors the current `values` and solves `A x = rhs` in place.
-    pub fn factor_and_solve(&mut self, pattern: &Pattern, rhs: &mut [f64]) -> Result<(), NotPositive> {
-        self.factor(pattern)?;
-        self.solve(pattern, rhs);
+    pub fn factor_and_solve(&mut self, structure: &Structure, rhs: &mut [f64]) -> Result<(), NotPositive> {
+        self.factor(structure)?;
+        self.solve(structure, rhs);
         Ok(())
     }
 
     /// Numeric factorization of `values`.
-    pub fn factor(&mut self, pattern: &Pattern) -> Result<(), NotPositive> {
-        if pattern.n == 0 {
+    pub fn factor(&mut self, structure: &Structure) -> Result<(), NotPositive> {
+        if structure.n == 0 {
             return Ok(());
         }
-        let a = SparseColMatRef::new(pattern.matrix(), &self.values);
+        let a = SparseColMatRef::new(structure.matrix(), &self.values);
         simplicial::factorize_simplicial_numeric_llt(
             &mut self.l_values,
             a,
             LltRegularization::default(),
-            &pattern.symbolic,
+            &structure.symbolic,
             MemStack::new(&mut self.mem),
         )
         .map(|_| ())
@@ -81,12 +81,12 @@ impl Factor {
     }
 
     /// Solves with the current factor.
-    pub fn solve(&mut self, pattern: &Pattern, rhs: &mut [f64]) {
-        if pattern.n == 0 {
+    pub fn solve(&mut self, structure: &Structure, rhs: &mut [f64]) {
+        if structure.n == 0 {
             return;
         }
-        let llt = SimplicialLltRef::new(&pattern.symbolic, &self.l_values);
-        let rhs = MatMut::from_column_major_slice_mut(rhs, pattern.n, 1);
+        let llt = SimplicialLltRef::new(&structure.symbolic, &self.l_values);
+        let rhs = MatMut::from_column_major_slice_mut(rhs, structure.n, 1);
         llt.solve_in_place_with_conj(Conj::No, rhs, Par::Seq, MemStack::new(&mut self.mem));
     }
 }

@@ -22,8 +22,9 @@
 //! A Hazen–Williams pipe whose fittings have no Reynolds-number part (the equivalent-length
 //! method, bends, entrances and exits under it) keeps the inline Hazen–Williams law.
 
+use super::Conditions;
 use crate::model::{HeadLossLaw, Link, LinkKind, Model, PumpDrive, ValveType};
-use crate::physics::fittings::{total_k_parts, KParts};
+use crate::physics::fittings::{total_k_parts, Fitting, KParts};
 use crate::physics::pump::HeadCurve;
 use crate::physics::{minor_loss_coefficient, Friction, WaterProperties};
 use crate::units::GRAVITY;
@@ -98,7 +99,49 @@ impl LinkLaw {
     /// Like [`LinkLaw::new`] with the model's water properties computed once by the caller
     /// (they take a few hundred floating-point operations, more than the law itself).
     pub fn with_water(model: &Model, link: &Link, water: &WaterProperties) -> Self {
-        let fittings = model.fittings_of(link);
+        let inputs = match &link.kind {
+            LinkKind::Pipe(p) => LawInputs {
+                diameter: p.diameter,
+                roughness: p.roughness,
+                minor_loss: p.minor_loss,
+                setting: f64::NAN,
+                automatic: false,
+            },
+            LinkKind::Valve(v) => LawInputs {
+                diameter: v.diameter,
+                roughness: f64::NAN,
+                minor_loss: v.minor_loss,
+                setting: v.setting,
+                automatic: v.automatic,
+            },
+            LinkKind::Pump(p) => LawInputs {
+                diameter: f64::NAN,
+                roughness: f64::NAN,
+                minor_loss: f64::NAN,
+                setting: p.speed,
+                automatic: false,
+            },
+        };
+        LinkLaw::build(model, &link.kind, model.fittings_of(link), &inputs, water)
+    }
+
+    /// The law of link `k` of `model` at the values of `conditions` (the link's kind, length and
+    /// pump curve from the model, everything that varies from the conditions).
+    pub fn from_conditions(model: &Model, k: usize, conditions: &Conditions, water: &WaterProperties) -> Self {
+        let inputs = LawInputs {
+            diameter: conditions.diameter(k),
+            roughness: conditions.roughness(k),
+            minor_loss: conditions.minor_loss(k),
+            setting: conditions.valve_setting(k),
+            automatic: conditions.automatic(k),
+        };
+        LinkLaw::build(model, &model.links()[k].kind, model.fittings(k), &inputs, water)
+    }
+
+    /// The law of a link of `kind` with its named `fittings` at the values `v`; the model gives
+    /// the head-loss law and the fittings method.
+    fn build(model: &Model, kind: &LinkKind, fittings: &[Fitting], v: &LawInputs, water: &WaterProperties) -> Self {
+        let headloss = model.options.headloss;
         let resistance = |friction: Option<(Friction, f64)>, k: f64, d: f64| {
             let area = PI * d * d / 4.0;
             let parts = total_k_parts(fittings, model.options.fittings_method, d);
@@ -114,29 +157,38 @@ impl LinkLaw {
             law.min_slope = law.evaluate_exact(REGULARISATION_VELOCITY * area).1.max(MIN_SLOPE);
             law
         };
-        match &link.kind {
+        match kind {
             LinkKind::Pipe(p) => {
-                let friction = pipe_friction(model, p, water);
-                resistance(Some((friction, p.length)), p.minor_loss, p.diameter)
+                let friction = match headloss {
+                    HeadLossLaw::HazenWilliams => Friction::hazen_williams(p.length, v.diameter, v.roughness),
+                    HeadLossLaw::DarcyWeisbach => {
+                        Friction::darcy_weisbach(p.length, v.diameter, v.roughness, water.kinematic_viscosity)
+                    }
+                };
+                resistance(Some((friction, p.length)), v.minor_loss, v.diameter)
             }
-            LinkKind::Valve(v) => resistance(None, valve_k(v), v.diameter),
+            LinkKind::Valve(valve) => {
+                let k = if valve.valve == ValveType::Throttle && v.automatic { v.setting } else { v.minor_loss };
+                resistance(None, k, v.diameter)
+            }
             LinkKind::Pump(p) => {
-                if p.speed <= 0.0 {
+                let speed = v.setting;
+                if speed <= 0.0 {
                     return LinkLaw { kind: Kind::Stopped, min_slope: MIN_SLOPE };
                 }
                 match &p.drive {
                     PumpDrive::Curve { curve, .. } => {
-                        let q_char = characteristic_flow(curve, p.speed);
+                        let q_char = characteristic_flow(curve, speed);
                         let law = LinkLaw {
-                            kind: Kind::Curve { curve: Box::new(curve.clone()), speed: p.speed },
+                            kind: Kind::Curve { curve: Box::new(curve.clone()), speed: speed },
                             min_slope: 0.0,
                         };
                         // Floor: the mean slope shutoff-to-run-out, times 1e-3.
-                        let shutoff = curve.shutoff() * p.speed * p.speed;
+                        let shutoff = curve.shutoff() * speed * speed;
                         LinkLaw { min_slope: (1e-3 * shutoff / q_char.max(1e-9)).max(MIN_SLOPE), ..law }
                     }
                     PumpDrive::Power(watts) => {
-                        let power_over_rho_g = watts * p.speed.powi(3) / (water.density * GRAVITY);
+                        let power_over_rho_g = watts * speed.powi(3) / (water.density * GRAVITY);
                         let q_c = power_over_rho_g / POWER_PUMP_HEAD_LIMIT;
                         LinkLaw { kind: Kind::Power { power_over_rho_g, q_c }, min_slope: MIN_SLOPE }
                     }
@@ -145,13 +197,13 @@ impl LinkLaw {
         }
     }
 
-    /// Flow to start from on a cold start, m³/s, for this law of `link` (computed when asked:
-    /// it is needed once per cold start, and a field would cost 8 bytes per link for the whole
-    /// solve).
-    pub fn initial_flow(&self, link: &Link) -> f64 {
+    /// Flow to start from on a cold start, m³/s, for this law of a link of flow area `area` (m²;
+    /// computed when asked: it is needed once per cold start, and a field would cost 8 bytes per
+    /// link for the whole solve).
+    pub fn initial_flow(&self, area: f64) -> f64 {
         match &self.kind {
             Kind::HazenWilliams { .. } | Kind::DarcyWeisbach(_) | Kind::Minor { .. } | Kind::Fitted(_) => {
-                INITIAL_VELOCITY * flow_area(link)
+                INITIAL_VELOCITY * area
             }
             Kind::Curve { curve, speed } => 0.5 * characteristic_flow(curve, *speed),
             // The flow at which it would lift 30 m.
@@ -236,6 +288,16 @@ pub fn hazen_williams(r: f64, m: f64, q: f64) -> (f64, f64) {
         (h.copysign(q), crate::physics::friction::HW_FLOW_EXPONENT * h / a)
     };
     (h + m * q * a, d + 2.0 * m * a)
+}
+
+/// What a link's law depends on that may vary between solves (see [`Conditions`]).
+struct LawInputs {
+    diameter: f64,
+    roughness: f64,
+    minor_loss: f64,
+    /// Valve setting, or pump relative speed.
+    setting: f64,
+    automatic: bool,
 }
 
 /// The law of a pipe (with its friction) or of a valve (without), plus the minor losses `m`.

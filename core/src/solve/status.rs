@@ -26,6 +26,7 @@
 //! condition is violated most — which is the active-set strategy; a set that comes back even then
 //! is reported as an error naming the devices, never an endless loop.
 
+use super::Conditions;
 use crate::model::{LinkKind, LinkStatus, Model, ValveType};
 use std::collections::HashSet;
 
@@ -157,13 +158,12 @@ impl Ending {
 }
 
 impl StatusTracker {
-    /// Initial states from the model: user closures, stopped pumps, automatic valves active.
-    /// `status` is the user status of every link (the model's, or a scenario's).
-    pub fn new(model: &Model, status: &[LinkStatus]) -> Self {
+    /// Initial states from `conditions`: user closures, stopped pumps, automatic valves active.
+    pub fn new(model: &Model, conditions: &Conditions) -> Self {
         let mut state = Vec::with_capacity(model.links().len());
         let mut devices = Vec::new();
         for (k, l) in model.links().iter().enumerate() {
-            let s = if status[k] == LinkStatus::Closed {
+            let s = if conditions.status(k) == LinkStatus::Closed {
                 LinkState::Closed
             } else {
                 match &l.kind {
@@ -173,8 +173,8 @@ impl StatusTracker {
                         }
                         LinkState::Open
                     }
-                    LinkKind::Pump(p) => {
-                        if p.speed <= 0.0 {
+                    LinkKind::Pump(_) => {
+                        if conditions.pump_speed(k) <= 0.0 {
                             LinkState::PumpStopped
                         } else {
                             devices.push(k);
@@ -182,7 +182,7 @@ impl StatusTracker {
                         }
                     }
                     LinkKind::Valve(v) => {
-                        if !v.automatic || v.valve == ValveType::Throttle {
+                        if !conditions.automatic(k) || v.valve == ValveType::Throttle {
                             LinkState::Open
                         } else {
                             devices.push(k);
@@ -224,10 +224,10 @@ impl StatusTracker {
 
     /// Applies the rules to a converged solution. Returns the number of changes made, or the
     /// links involved when states cycle even one device at a time.
-    pub fn update(&mut self, model: &Model, seen: &Observed<'_>) -> Result<u32, Vec<usize>> {
+    pub fn update(&mut self, model: &Model, conditions: &Conditions, seen: &Observed<'_>) -> Result<u32, Vec<usize>> {
         let mut proposals: Vec<(usize, LinkState, f64)> = Vec::new();
         for &k in &self.devices {
-            if let Some((next, violation)) = self.rule(model, k, seen) {
+            if let Some((next, violation)) = self.rule(model, conditions, k, seen) {
                 proposals.push((k, next, violation));
             }
         }
@@ -269,7 +269,7 @@ impl StatusTracker {
     }
 
     /// The state device `k` should move to, with the size of the violated condition (m or m³/s).
-    fn rule(&self, model: &Model, k: usize, o: &Observed<'_>) -> Option<(LinkState, f64)> {
+    fn rule(&self, model: &Model, conditions: &Conditions, k: usize, o: &Observed<'_>) -> Option<(LinkState, f64)> {
         let l = &model.links()[k];
         let (a, b) = (l.from, l.to);
         let q = o.flow[k];
@@ -312,7 +312,7 @@ impl StatusTracker {
                 let fixed_from = model.nodes()[a].fixed_head().is_some();
                 match v.valve {
                     ValveType::PressureReducing => {
-                        let set = model.nodes()[b].elevation + v.setting;
+                        let set = model.nodes()[b].elevation + conditions.valve_setting(k);
                         match state {
                             LinkState::Active if q < 0.0 => Some((LinkState::ValveClosed, -q)),
                             // Another device holds the downstream head above this setting.
@@ -335,7 +335,7 @@ impl StatusTracker {
                         }
                     }
                     ValveType::PressureSustaining => {
-                        let set = model.nodes()[a].elevation + v.setting;
+                        let set = model.nodes()[a].elevation + conditions.valve_setting(k);
                         match state {
                             LinkState::Active if q < 0.0 => Some((LinkState::ValveClosed, -q)),
                             // Another device holds the upstream head above this setting.
@@ -356,7 +356,7 @@ impl StatusTracker {
                         }
                     }
                     ValveType::FlowControl => {
-                        let set = v.setting;
+                        let set = conditions.valve_setting(k);
                         match state {
                             LinkState::Active => {
                                 let needed = (o.open_loss)(k, set);

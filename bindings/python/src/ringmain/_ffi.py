@@ -6,7 +6,8 @@ This is the only module that knows the C signatures. ``tests/test_declarations.p
 The library is looked for, in order:
 
 1. the file named by the environment variable ``RINGMAIN_LIBRARY``;
-2. beside the package: in the package directory, then in the directory that holds it;
+2. inside the package, where ``pip install`` puts it (``libringmain*.so``), then beside it: the
+   package directory, then the directory that holds it;
 3. in the Cargo workspace the package sits in (found by walking up from the package directory to
    a ``Cargo.toml`` with a ``[workspace]`` table): ``$CARGO_TARGET_DIR/release`` when that
    variable is set, else ``target/release``.
@@ -25,6 +26,7 @@ LIBRARY_NAME = {"darwin": "libringmain.dylib", "win32": "ringmain.dll"}.get(sys.
 status = c_uint32
 model_p = c_void_p
 results_p = c_void_p
+run_p = c_void_p
 out_handle = POINTER(c_void_p)
 size_p = POINTER(c_size_t)
 u32_p = POINTER(c_uint32)
@@ -102,6 +104,37 @@ FUNCTIONS: dict[str, tuple[object, list[object]]] = {
     "ringmain_model_set_solver_options": (status, [model_p, c_uint32, c_double, c_double]),
     "ringmain_model_set_warm_start": (status, [model_p, c_bool]),
     "ringmain_model_solve": (status, [model_p, out_handle]),
+    "ringmain_set_threads": (status, [c_size_t]),
+    "ringmain_get_threads": (status, [size_p]),
+    "ringmain_model_set_demands": (status, [model_p, double_p, c_size_t]),
+    "ringmain_model_get_demands": (status, [model_p, double_p, c_size_t, size_p]),
+    "ringmain_model_set_reservoir_heads": (status, [model_p, double_p, c_size_t]),
+    "ringmain_model_get_reservoir_heads": (status, [model_p, double_p, c_size_t, size_p]),
+    "ringmain_model_set_pump_speeds": (status, [model_p, double_p, c_size_t]),
+    "ringmain_model_get_pump_speeds": (status, [model_p, double_p, c_size_t, size_p]),
+    "ringmain_model_set_valve_settings": (status, [model_p, double_p, c_size_t]),
+    "ringmain_model_get_valve_settings": (status, [model_p, double_p, c_size_t, size_p]),
+    "ringmain_model_set_pipe_roughnesses": (status, [model_p, double_p, c_size_t]),
+    "ringmain_model_get_pipe_roughnesses": (status, [model_p, double_p, c_size_t, size_p]),
+    "ringmain_model_set_pipe_diameters": (status, [model_p, double_p, c_size_t]),
+    "ringmain_model_get_pipe_diameters": (status, [model_p, double_p, c_size_t, size_p]),
+    "ringmain_model_set_link_statuses": (status, [model_p, u32_p, c_size_t]),
+    "ringmain_model_get_link_statuses": (status, [model_p, u32_p, c_size_t, size_p]),
+    "ringmain_model_node_ids": (status, [model_p, c_char_p, c_size_t, size_p]),
+    "ringmain_model_link_ids": (status, [model_p, c_char_p, c_size_t, size_p]),
+    "ringmain_model_node_zones": (status, [model_p, c_char_p, c_size_t, size_p]),
+    "ringmain_model_node_kinds": (status, [model_p, u32_p, c_size_t, size_p]),
+    "ringmain_model_link_kinds": (status, [model_p, u32_p, c_size_t, size_p]),
+    "ringmain_model_elevations": (status, [model_p, double_p, c_size_t, size_p]),
+    "ringmain_model_link_ends": (status, [model_p, size_p, size_p, c_size_t, size_p]),
+    "ringmain_model_coordinates": (status, [model_p, double_p, double_p, c_size_t, size_p]),
+    "ringmain_model_simulate": (status, [model_p, out_handle]),
+    "ringmain_run_free": (None, [run_p]),
+    "ringmain_run_get_summary": (status, [run_p, c_void_p]),
+    "ringmain_run_times": (status, [run_p, double_p, c_size_t, size_p]),
+    "ringmain_run_columns": (status, [run_p, c_uint32, size_p, c_size_t, size_p]),
+    "ringmain_run_series": (status, [run_p, c_uint32, double_p, c_size_t, size_p]),
+    "ringmain_run_event": (status, [run_p, c_size_t, double_p, c_char_p, c_size_t, size_p]),
     "ringmain_results_free": (None, [results_p]),
     "ringmain_results_node_count": (status, [results_p, size_p]),
     "ringmain_results_link_count": (status, [results_p, size_p]),
@@ -213,7 +246,41 @@ CONSTANTS: dict[str, dict[str, int]] = {
         "RINGMAIN_STATE_VALVE_CLOSED": 10,
         "RINGMAIN_STATE_OTHER": 255,
     },
+    "ringmain_series": {
+        "RINGMAIN_SERIES_HEAD": 0,
+        "RINGMAIN_SERIES_PRESSURE": 1,
+        "RINGMAIN_SERIES_DEMAND": 2,
+        "RINGMAIN_SERIES_FLOW": 3,
+        "RINGMAIN_SERIES_STATUS": 4,
+        "RINGMAIN_SERIES_LEVEL": 5,
+        "RINGMAIN_SERIES_VOLUME": 6,
+        "RINGMAIN_SERIES_PUMP_SPEED": 7,
+        "RINGMAIN_SERIES_PUMP_POWER": 8,
+    },
 }
+
+
+class RunSummary(ctypes.Structure):
+    """``struct ringmain_run_summary`` of the header."""
+
+    _fields_ = [
+        ("duration", c_double),
+        ("start_clock", c_double),
+        ("times", c_size_t),
+        ("events", c_size_t),
+        ("supplied", c_double),
+        ("delivered", c_double),
+        ("storage_change", c_double),
+        ("not_delivered", c_double),
+        ("discrepancy", c_double),
+        ("has_lowest_pressure", c_bool),
+        ("lowest_pressure_node", c_size_t),
+        ("lowest_pressure", c_double),
+        ("lowest_pressure_time", c_double),
+        ("steps", ctypes.c_uint64),
+        ("rejected_steps", ctypes.c_uint64),
+        ("solves", ctypes.c_uint64),
+    ]
 
 OK = CONSTANTS["ringmain_status"]["RINGMAIN_OK"]
 BUFFER_TOO_SMALL = CONSTANTS["ringmain_status"]["RINGMAIN_BUFFER_TOO_SMALL"]
@@ -238,13 +305,22 @@ def _workspace_release_dirs(start: Path) -> list[Path]:
     return []
 
 
+def _in_package(here: Path) -> list[Path]:
+    """The library installed inside the package by `pip install` (its name carries the
+    interpreter's extension suffix, e.g. libringmain.cpython-311-x86_64-linux-gnu.so)."""
+    stem = LIBRARY_NAME.rsplit(".", 1)[0]
+    suffix = LIBRARY_NAME.rsplit(".", 1)[1]
+    return sorted(p for p in here.glob(f"{stem}*.{suffix}") if p.is_file())
+
+
 def candidates() -> list[tuple[str, Path]]:
     """Where the library is looked for, in order, each with the rule that gave it."""
     given = os.environ.get("RINGMAIN_LIBRARY")
     if given:
         return [("RINGMAIN_LIBRARY", Path(given))]
     here = Path(__file__).resolve().parent
-    found = [("beside the package", here / LIBRARY_NAME), ("beside the package", here.parent / LIBRARY_NAME)]
+    found = [("inside the package", p) for p in _in_package(here)]
+    found += [("beside the package", here / LIBRARY_NAME), ("beside the package", here.parent / LIBRARY_NAME)]
     found += [("the Cargo workspace", d / LIBRARY_NAME) for d in _workspace_release_dirs(here)]
     return found
 
@@ -262,8 +338,8 @@ def load_library() -> ctypes.CDLL:
         where += "\n  - no Cargo workspace above the package directory"
     raise LibraryNotFound(
         f"cannot find the ringmain library {LIBRARY_NAME}; looked at:\n{where}\n"
-        "Build it with `cargo build --release` in the ringmain workspace, or set RINGMAIN_LIBRARY "
-        "to the path of the library file."
+        "Install the package with `pip install ./bindings/python` (it builds the library), build it with "
+        "`cargo build --release` in the ringmain workspace, or set RINGMAIN_LIBRARY to the library file."
     )
 
 

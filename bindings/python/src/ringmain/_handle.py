@@ -2,7 +2,13 @@
 
 from __future__ import annotations
 
+import sys
 from typing import Any, Callable, ClassVar
+
+if sys.version_info >= (3, 11):
+    from typing import Self
+else:  # pragma: no cover
+    from typing_extensions import Self
 
 
 class Handle:
@@ -33,7 +39,7 @@ class Handle:
         if pointer is not None:
             type(self)._free(pointer)
 
-    def __enter__(self):
+    def __enter__(self) -> Self:
         return self
 
     def __exit__(self, *exc: object) -> None:

@@ -4,28 +4,30 @@ from __future__ import annotations
 
 import math
 from ctypes import byref, c_bool, c_char_p, c_double, c_size_t, c_uint32
-from typing import TYPE_CHECKING, Any, Union
+from typing import TYPE_CHECKING, Any, NamedTuple, NoReturn, Union
 
-from . import _ffi
+import numpy as np
+from numpy.typing import NDArray
+
+from . import _args, _ffi
 from ._handle import Handle
 from .errors import check
 
-try:  # numpy is optional: arrays are numpy arrays when it is installed, lists otherwise
-    import numpy as _np
-except ImportError:  # pragma: no cover - exercised only without numpy
-    _np = None
-
 if TYPE_CHECKING:
+    import pandas
+
     from ._model import Layout
 
 lib = _ffi.lib
-Element = Union[str, int]
+Element = Union[str, int, np.integer[Any]]
+FloatArray = NDArray[np.float64]
 _STATE_TEXT: dict[int, tuple[str, str]] = {}
 
 
 def state_text(state: int) -> tuple[str, str]:
     """The status word ("open", "closed" or "active") and the reason ("" when the word says all)
     of a link state code."""
+    state = int(state)
     if state not in _STATE_TEXT:
         word, reason = c_char_p(), c_char_p()
         check(lib.ringmain_link_state_text(state, byref(word), byref(reason)))
@@ -37,40 +39,110 @@ def _finite_or_none(v: float) -> float | None:
     return v if math.isfinite(v) else None
 
 
+def geo_features(
+    layout: Layout, values: tuple[dict[str, FloatArray], dict[str, FloatArray]] | None
+) -> list[dict[str, Any]]:
+    """GeoJSON-like features of a network: a Point per node, a LineString per link (from its start
+    node to its end node), ``geometry`` None where coordinates are missing; ``values`` adds result
+    arrays (node and link quantities) to the properties."""
+    features: list[dict[str, Any]] = []
+    x, y = layout.x, layout.y
+    has = ~(np.isnan(x) | np.isnan(y)) if x.shape[0] else np.zeros(0, dtype=bool)
+    for i, node in enumerate(layout.node_ids):
+        props: dict[str, Any] = {
+            "id": node,
+            "element": "node",
+            "kind": layout.node_kinds[i],
+            "elevation": layout.elevations[i],
+        }
+        if layout.zones and layout.zones[i]:
+            props["zone"] = layout.zones[i]
+        if values is not None:
+            for name, array in values[0].items():
+                props[name] = _finite_or_none(float(array[i]))
+        geometry = {"type": "Point", "coordinates": (float(x[i]), float(y[i]))} if has[i] else None
+        features.append({"type": "Feature", "id": node, "geometry": geometry, "properties": props})
+    for k, link in enumerate(layout.link_ids):
+        a, b = int(layout.link_start[k]), int(layout.link_end[k])
+        props = {
+            "id": link,
+            "element": "link",
+            "kind": layout.link_kinds[k],
+            "from": layout.link_from[k],
+            "to": layout.link_to[k],
+        }
+        if values is not None:
+            for name, array in values[1].items():
+                props[name] = _finite_or_none(float(array[k]))
+        geometry = (
+            {"type": "LineString", "coordinates": ((float(x[a]), float(y[a])), (float(x[b]), float(y[b])))}
+            if has[a] and has[b]
+            else None
+        )
+        features.append({"type": "Feature", "id": link, "geometry": geometry, "properties": props})
+    return features
+
+
+class Tables(NamedTuple):
+    """The results as two pandas DataFrames, indexed by id."""
+
+    nodes: pandas.DataFrame
+    links: pandas.DataFrame
+
+
 class Results(Handle):
-    """One solved snapshot, in the units of its model (``units``). Independent of the model: it
-    stays valid when the model changes or is closed. Arrays (``heads``, ``flows``...) are numpy
-    arrays when numpy is installed, else lists, in node or link order."""
+    """One solved snapshot, in the units of its model (:attr:`units`). Independent of the model: it
+    stays valid when the model changes or is closed. Whole-network arrays (:attr:`heads`,
+    :attr:`flows`...) are read-only numpy arrays in node or link order, read straight from the
+    library into numpy's memory.
+
+    Results cannot be copied or pickled (``TypeError``): they own a native handle. Keep the
+    arrays, or :meth:`to_pandas`, instead.
+    """
 
     _free = staticmethod(lib.ringmain_results_free)
     _what = "results object"
 
-    def __init__(self, pointer: int, layout: "Layout") -> None:
+    def __init__(self, pointer: int, layout: Layout) -> None:
         super().__init__(pointer)
         self._layout = layout
         self._cache: dict[str, Any] = {}
 
+    def __copy__(self) -> NoReturn:
+        raise TypeError("ringmain.Results cannot be copied (it owns a native handle); keep its arrays or to_pandas()")
+
+    def __deepcopy__(self, memo: dict[int, Any]) -> NoReturn:
+        self.__copy__()
+
+    def __reduce__(self) -> NoReturn:
+        raise TypeError(
+            "ringmain.Results cannot be pickled (it owns a native handle); pickle its arrays or "
+            "to_pandas(), or the model and solve again"
+        )
+
     # -- statistics ---------------------------------------------------------------------------
 
-    def _stat(self, call, ctype):
-        value = ctype()
+    def _stat_int(self, call: Any) -> int:
+        value = c_uint32()
         check(call(self._ptr, byref(value)))
         return value.value
 
     @property
     def converged(self) -> bool:
         """Always True for results (a solve that does not converge raises ``SolveError``)."""
-        return bool(self._stat(lib.ringmain_results_converged, c_bool))
+        value = c_bool()
+        check(lib.ringmain_results_converged(self._ptr, byref(value)))
+        return bool(value.value)
 
     @property
     def iterations(self) -> int:
         """Newton iterations (linear solves) of the solve."""
-        return self._stat(lib.ringmain_results_iterations, c_uint32)
+        return self._stat_int(lib.ringmain_results_iterations)
 
     @property
     def status_changes(self) -> int:
         """Device state changes (check valves, pumps, control valves) made during the solve."""
-        return self._stat(lib.ringmain_results_status_changes, c_uint32)
+        return self._stat_int(lib.ringmain_results_status_changes)
 
     @property
     def residuals(self) -> tuple[float, float]:
@@ -94,23 +166,22 @@ class Results(Handle):
     @property
     def warnings(self) -> list[str]:
         """Things an engineer should look at, each naming its element."""
-        from ._model import _text
+        from ._model import _one_text
 
-        n = self._stat(lib.ringmain_results_warning_count, c_size_t)
-        return [_text(lib.ringmain_results_warning, self._ptr, i) for i in range(n)]
+        n = c_size_t()
+        check(lib.ringmain_results_warning_count(self._ptr, byref(n)))
+        return [_one_text(lib.ringmain_results_warning, self._ptr, i) for i in range(n.value)]
 
     # -- whole-network arrays -------------------------------------------------------------------
 
-    def _array(self, name: str, call, count: int, ctype=c_double):
+    def _array(self, name: str, call: Any, count: int, dtype: type[Any] = np.float64) -> Any:
         if name not in self._cache:
-            buf = (ctype * count)()
+            out = np.empty(count, dtype=dtype)
             n = c_size_t()
-            check(call(self._ptr, buf, count, byref(n)))
-            if _np is not None and ctype is c_double:
-                self._cache[name] = _np.array(buf, dtype=float)
-                self._cache[name].setflags(write=False)
-            else:
-                self._cache[name] = list(buf)
+            pointer: Any = {np.float64: _ffi.double_p, np.uint32: _ffi.u32_p, np.bool_: _ffi.bool_p}[dtype]
+            check(call(self._ptr, out.ctypes.data_as(pointer), count, byref(n)))
+            out.setflags(write=False)
+            self._cache[name] = out
         return self._cache[name]
 
     @property
@@ -124,68 +195,76 @@ class Results(Handle):
         return self._layout.link_ids
 
     @property
-    def heads(self):
+    def heads(self) -> FloatArray:
         """Head of every node (length unit; NaN where cut off from every source)."""
-        return self._array("heads", lib.ringmain_results_heads, len(self.node_ids))
+        result: FloatArray = self._array("heads", lib.ringmain_results_heads, len(self.node_ids))
+        return result
 
     @property
-    def pressures(self):
+    def pressures(self) -> FloatArray:
         """Pressure of every node (pressure unit; NaN where cut off)."""
-        return self._array("pressures", lib.ringmain_results_pressures, len(self.node_ids))
+        result: FloatArray = self._array("pressures", lib.ringmain_results_pressures, len(self.node_ids))
+        return result
 
     @property
-    def demands(self):
+    def demands(self) -> FloatArray:
         """Demand of every node (flow unit)."""
-        return self._array("demands", lib.ringmain_results_demands, len(self.node_ids))
+        result: FloatArray = self._array("demands", lib.ringmain_results_demands, len(self.node_ids))
+        return result
 
     @property
-    def connected(self) -> list[bool]:
+    def connected(self) -> NDArray[np.bool_]:
         """Whether each node has an open path to a reservoir or tank."""
-        return self._array("connected", lib.ringmain_results_connected, len(self.node_ids), c_bool)
+        result: NDArray[np.bool_] = self._array(
+            "connected", lib.ringmain_results_connected, len(self.node_ids), np.bool_
+        )
+        return result
 
     @property
-    def flows(self):
+    def flows(self) -> FloatArray:
         """Flow of every link (flow unit; positive from its start node to its end node)."""
-        return self._array("flows", lib.ringmain_results_flows, len(self.link_ids))
+        result: FloatArray = self._array("flows", lib.ringmain_results_flows, len(self.link_ids))
+        return result
 
     @property
-    def velocities(self):
+    def velocities(self) -> FloatArray:
         """Mean velocity of every link (length unit per second)."""
-        return self._array("velocities", lib.ringmain_results_velocities, len(self.link_ids))
+        result: FloatArray = self._array("velocities", lib.ringmain_results_velocities, len(self.link_ids))
+        return result
 
     @property
-    def headlosses(self):
+    def headlosses(self) -> FloatArray:
         """Head difference across every link (length unit; NaN where an end is cut off)."""
-        return self._array("headlosses", lib.ringmain_results_headlosses, len(self.link_ids))
+        result: FloatArray = self._array("headlosses", lib.ringmain_results_headlosses, len(self.link_ids))
+        return result
 
     @property
-    def link_states(self) -> list[int]:
-        """State code of every link (see ``state_text``)."""
-        return self._array("states", lib.ringmain_results_link_states, len(self.link_ids), c_uint32)
+    def link_states(self) -> NDArray[np.uint32]:
+        """State code of every link (see :func:`state_text`)."""
+        result: NDArray[np.uint32] = self._array(
+            "states", lib.ringmain_results_link_states, len(self.link_ids), np.uint32
+        )
+        return result
 
     # -- one element ----------------------------------------------------------------------------
 
     def node_index(self, node: Element) -> int:
-        """Index of a node in these results."""
-        if isinstance(node, int):
-            if not 0 <= node < len(self.node_ids):
-                raise IndexError(f"node index {node} is out of range ({len(self.node_ids)} nodes)")
-            return node
-        i = c_size_t()
-        check(lib.ringmain_results_node_index(self._ptr, node.encode("utf-8"), byref(i)))
-        return i.value
+        """Index of a node in these results (errors as :meth:`Model.node_index`)."""
+        if isinstance(node, str):
+            i = c_size_t()
+            check(lib.ringmain_results_node_index(self._ptr, _args.text_id(node, "node"), byref(i)))
+            return i.value
+        return _args.index(node, "node", len(self.node_ids), "node")
 
     def link_index(self, link: Element) -> int:
         """Index of a link in these results."""
-        if isinstance(link, int):
-            if not 0 <= link < len(self.link_ids):
-                raise IndexError(f"link index {link} is out of range ({len(self.link_ids)} links)")
-            return link
-        k = c_size_t()
-        check(lib.ringmain_results_link_index(self._ptr, link.encode("utf-8"), byref(k)))
-        return k.value
+        if isinstance(link, str):
+            k = c_size_t()
+            check(lib.ringmain_results_link_index(self._ptr, _args.text_id(link, "link"), byref(k)))
+            return k.value
+        return _args.index(link, "link", len(self.link_ids), "link")
 
-    def _one(self, call, index: int) -> float:
+    def _one(self, call: Any, index: int) -> float:
         v = c_double()
         check(call(self._ptr, index, byref(v)))
         return v.value
@@ -255,15 +334,16 @@ class Results(Handle):
         """Every node as a dict with the keys of the command-line program's JSON results: id, kind,
         elevation, head, pressure, demand, connected (None for a head or pressure that is NaN)."""
         layout = self._layout
+        heads, pressures, demands, connected = self.heads, self.pressures, self.demands, self.connected
         return [
             {
                 "id": layout.node_ids[i],
                 "kind": layout.node_kinds[i],
                 "elevation": layout.elevations[i],
-                "head": _finite_or_none(float(self.heads[i])),
-                "pressure": _finite_or_none(float(self.pressures[i])),
-                "demand": float(self.demands[i]),
-                "connected": bool(self.connected[i]),
+                "head": _finite_or_none(float(heads[i])),
+                "pressure": _finite_or_none(float(pressures[i])),
+                "demand": float(demands[i]),
+                "connected": bool(connected[i]),
             }
             for i in range(len(layout.node_ids))
         ]
@@ -274,8 +354,9 @@ class Results(Handle):
         for pumps head_gain, efficiency, hydraulic_power and shaft_power."""
         layout = self._layout
         out = []
+        states = self.link_states
         for k in range(len(layout.link_ids)):
-            word, reason = state_text(self.link_states[k])
+            word, reason = state_text(int(states[k]))
             item: dict[str, Any] = {
                 "id": layout.link_ids[k],
                 "kind": layout.link_kinds[k],
@@ -297,9 +378,54 @@ class Results(Handle):
             out.append(item)
         return out
 
+    def to_pandas(self) -> Tables:
+        """The results as pandas DataFrames (pandas is needed for this call only).
+
+        Returns
+        -------
+        Tables
+            ``nodes``: indexed by node id, columns kind, elevation, head, pressure, demand,
+            connected; ``links``: indexed by link id, columns kind, from, to, flow, velocity,
+            headloss, status. Values in the model's units (:attr:`units`).
+        """
+        import pandas as pd
+
+        layout = self._layout
+        nodes = pd.DataFrame(
+            {
+                "kind": list(layout.node_kinds),
+                "elevation": np.asarray(layout.elevations),
+                "head": self.heads,
+                "pressure": self.pressures,
+                "demand": self.demands,
+                "connected": self.connected,
+            },
+            index=pd.Index(list(layout.node_ids), name="id"),
+        )
+        links = pd.DataFrame(
+            {
+                "kind": list(layout.link_kinds),
+                "from": list(layout.link_from),
+                "to": list(layout.link_to),
+                "flow": self.flows,
+                "velocity": self.velocities,
+                "headloss": self.headlosses,
+                "status": [state_text(int(s))[0] for s in self.link_states],
+            },
+            index=pd.Index(list(layout.link_ids), name="id"),
+        )
+        return Tables(nodes, links)
+
+    @property
+    def __geo_interface__(self) -> dict[str, Any]:
+        """The solved network as a GeoJSON-like FeatureCollection: nodes as points with head,
+        pressure and demand, links as lines between their end nodes with flow, velocity and head
+        loss (``geometry`` None where coordinates are missing)."""
+        node_values = {"head": self.heads, "pressure": self.pressures, "demand": self.demands}
+        link_values = {"flow": self.flows, "velocity": self.velocities, "headloss": self.headlosses}
+        return {"type": "FeatureCollection", "features": geo_features(self._layout, (node_values, link_values))}
+
     def __repr__(self) -> str:
         if self.closed:
             return "<ringmain.Results (closed)>"
         return f"<ringmain.Results: {len(self.node_ids)} nodes, {len(self.link_ids)} links, {self.iterations} iterations>"
-
-

@@ -10,7 +10,7 @@
 //! sweep. The trees are found by peeling: a junction with a single remaining link is a leaf; it
 //! is removed with that link, which may make its neighbour a leaf, and so on. Only plain pipes
 //! (no check valve) are peeled, so every device stays in the core and its state logic sees the
-//! core's heads; a closed tree pipe simply cuts off what lies beyond it. [`Pattern::trees`] lists
+//! core's heads; a closed tree pipe simply cuts off what lies beyond it. [`Structure::trees`] lists
 //! the tree pipes leaves first: flows accumulate in that order, heads in the reverse.
 //!
 //! # Why faer's simplicial Cholesky with AMD
@@ -79,7 +79,7 @@ impl CoreLink {
 
 /// The analysed structure of a network's head matrix.
 #[derive(Debug)]
-pub struct Pattern {
+pub struct Structure {
     /// Number of unknown heads.
     pub n: usize,
     /// For each node, its permuted unknown index, or `NONE` for fixed-head nodes.
@@ -88,7 +88,7 @@ pub struct Pattern {
     pub node_of_unknown: Vec<u32>,
     /// Upper-triangular CSC pattern of the permuted matrix, rows sorted within each column
     /// (checked once here, not at every factorization).
-    structure: SymbolicSparseColMat<u32>,
+    upper: SymbolicSparseColMat<u32>,
     /// Value slot of each permuted unknown's diagonal entry.
     pub diag_slot: Vec<u32>,
     /// Links of the core, ordered by the matrix column they write to (for locality).
@@ -156,11 +156,11 @@ pub fn numeric_scratch(n: usize) -> StackReq {
     simplicial::factorize_simplicial_numeric_llt_scratch::<u32, f64>(n)
 }
 
-impl Pattern {
+impl Structure {
     /// Analyses the structure of `model`; `None` when the matrix or its factor would have more
     /// entries than 32-bit indices can number (some four thousand million, far beyond any
     /// network a computer of today could hold).
-    pub fn analyse(model: &Model) -> Option<Pattern> {
+    pub fn analyse(model: &Model) -> Option<Structure> {
         if u32::try_from(model.nodes().len() + model.links().len()).is_err() {
             return None;
         }
@@ -315,11 +315,11 @@ impl Pattern {
             rayon::join(scatter, || symbolic_factor(n, &col_ptr, &row_idx, &mut symbolic_work));
         let symbolic = symbolic?;
         let ends = model.links().iter().map(|l| (l.from as u32, l.to as u32)).collect();
-        Some(Pattern {
+        Some(Structure {
             n,
             unknown_of_node,
             node_of_unknown,
-            structure: SymbolicSparseColMat::new_checked(n, n, col_ptr, None, row_idx),
+            upper: SymbolicSparseColMat::new_checked(n, n, col_ptr, None, row_idx),
             diag_slot,
             core,
             core_position,
@@ -350,7 +350,7 @@ impl Pattern {
 
     /// Number of stored entries of the upper triangle.
     pub fn nnz(&self) -> usize {
-        self.structure.row_idx().len()
+        self.upper.row_idx().len()
     }
 
     /// Non-zeros of the Cholesky factor.
@@ -360,7 +360,7 @@ impl Pattern {
 
     /// The symbolic view of the matrix for faer.
     pub fn matrix(&self) -> SymbolicSparseColMatRef<'_, u32> {
-        self.structure.as_ref()
+        self.upper.as_ref()
     }
 }
 
@@ -483,7 +483,7 @@ mod tests {
     #[test]
     fn core_links_are_in_column_order_then_link_order() {
         let m = network();
-        let p = Pattern::analyse(&m).unwrap();
+        let p = Structure::analyse(&m).unwrap();
         let keys: Vec<(u32, u32)> = p.core.iter().map(|c| (c.column(), c.link)).collect();
         assert!(keys.windows(2).all(|w| w[0] < w[1]), "{keys:?}");
         for (i, c) in p.core.iter().enumerate() {
@@ -494,7 +494,7 @@ mod tests {
     #[test]
     fn dead_end_pipes_are_peeled_and_devices_stay_in_the_core() {
         let m = network();
-        let p = Pattern::analyse(&m).unwrap();
+        let p = Structure::analyse(&m).unwrap();
         let tree: Vec<usize> = (0..m.nodes().len()).filter(|&i| p.in_tree[i]).collect();
         // J3 and the branch J7, J6; then J2, left with its one link to J1. Behind the check valve
         // and the pump nothing is peeled, and the loop J1 – J4 – J5 stays.
@@ -523,7 +523,7 @@ mod tests {
             m.add_node(Node::junction(format!("J{i}"), 0.0, 1e-3)).unwrap();
             m.add_link(pipe(&format!("P{i}"), i - 1, i, false)).unwrap();
         }
-        let p = Pattern::analyse(&m).unwrap();
+        let p = Structure::analyse(&m).unwrap();
         assert_eq!((p.n, p.tree_junctions(), p.core.len()), (0, 4, 0));
         let s = crate::solve::solve(&m).unwrap();
         // Each pipe carries the demand beyond it: 4, 3, 2, 1 L/s.
@@ -536,7 +536,7 @@ mod tests {
     #[test]
     fn changing_a_pipe_into_a_check_valve_redoes_the_analysis() {
         let mut m = network();
-        let p = Pattern::analyse(&m).unwrap();
+        let p = Structure::analyse(&m).unwrap();
         let k = m.link_index("P7").unwrap();
         let mut link = m.links()[k].clone();
         if let LinkKind::Pipe(pipe) = &mut link.kind {
@@ -544,6 +544,6 @@ mod tests {
         }
         m.replace_link(k, link).unwrap();
         assert!(!p.fits(&m));
-        assert!(!Pattern::analyse(&m).unwrap().in_tree[7]);
+        assert!(!Structure::analyse(&m).unwrap().in_tree[7]);
     }
 }

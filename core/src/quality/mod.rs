@@ -1,0 +1,749 @@
+//! Water quality over time: water age, source blending and reacting substances, carried by the
+//! flows of an extended-period simulation.
+//!
+//! Entry point: [`simulate`] runs the hydraulic simulation ([`crate::simulate`]) with a
+//! [`QualityEngine`] watching every hydraulic step, and returns both results. The engine only
+//! consumes link flows: over each hydraulic interval `[t_i, t_{i+1}]` it takes the mean of the
+//! flows at its two ends (the trapezoidal rule; node demands and tank inflows follow from the
+//! flows by continuity, so the water balance of the transport holds to round-off), cuts the
+//! interval into transport steps no longer than `[simulation] transport_step`, and advances the
+//! water in every pipe and tank by each of them.
+//!
+//! # A transport step
+//! 1. Reactions: every pipe's water reacts at its first-order rate ([`reaction`]), every tank's
+//!    in the bulk; ages grow by the step.
+//! 2. Tanks give their outflow value for the step ([`tanks`]).
+//! 3. Nodes are swept in flow order (a topological order of the directed flow graph, reservoirs
+//!    and tanks first): a junction's value is the flow-weighted mean of what arrives along its
+//!    inflowing links and any water it injects; a booster raises it to its floor; the node then
+//!    sends its water into its outflowing links, each of which gives out at its far end the
+//!    same volume ([`transport`]). Sweeping in flow order lets water cross several short pipes
+//!    in one step. (A loop of flow, possible only through a pump, is swept in index order; what
+//!    arrives late is mixed at the next step.)
+//! 4. Tanks take in what arrived.
+//!
+//! Reported values are the water at each node at the reported instant, resolved to the transport
+//! step: a junction reports the mix of the water that reached it in the last transport step, a
+//! tank its contents at its outlet, a reservoir its source value. A link reports the mean over
+//! its volume.
+//!
+//! # Mass balance
+//! For each constituent, over the run: stored at the start + in from sources + added by boosters
+//! + gained by reaction = out with demands + stored at the end + discrepancy. For ages the
+//! "reaction" is the ageing of the stored water (volume × time); for source traces there is
+//! none. Every term is summed as it happens, so the discrepancy measures the round-off of the
+//! transport (see [`balance`]).
+
+pub mod balance;
+pub mod constituents;
+pub mod criteria;
+pub mod reaction;
+pub mod tanks;
+pub mod transport;
+
+use crate::model::{LinkKind, Model, NodeKind};
+use crate::simulate::{Run, SimulateError, SimulateOptions, StepObserver};
+use crate::solve::Solution;
+pub use balance::MassBalance;
+pub use constituents::{Constituent, ConstituentKind, Mixing, QualityData, Reaction, SourceValue};
+use tanks::TankState;
+use transport::{Merge, Segments, Transform};
+
+/// Default longest transport step, s, and the fraction of the hydraulic step used when that is
+/// shorter.
+pub const TRANSPORT_STEP: f64 = 300.0;
+/// The default transport step is at most the hydraulic step divided by this.
+pub const STEPS_PER_HYDRAULIC_STEP: f64 = 12.0;
+/// Default merge tolerance (relative to the larger value; for ages, of [`AGE_SCALE`]).
+pub const TOLERANCE: f64 = 1e-3;
+/// The age difference that [`TOLERANCE`] is a fraction of, s (10 h: ages merge within 36 s).
+pub const AGE_SCALE: f64 = 36_000.0;
+/// Flows smaller than this (m³/s) carry no water in the transport.
+pub const FLOW_EPS: f64 = 1e-9;
+
+/// Values at one reported time.
+#[derive(Clone, Debug, PartialEq)]
+pub struct QualityRecord {
+    /// Elapsed time, s.
+    pub time: f64,
+    /// Per constituent, per node: value (internal units).
+    pub node: Vec<Vec<f64>>,
+    /// Per constituent, per link: mean value over the link's water (internal units).
+    pub link: Vec<Vec<f64>>,
+}
+
+/// The results of a water-quality run.
+#[derive(Clone, Debug, PartialEq)]
+pub struct QualityRun {
+    /// The constituents, in model order.
+    pub constituents: Vec<Constituent>,
+    /// Values at every reported time (the same times as the hydraulic run's reports).
+    pub records: Vec<QualityRecord>,
+    /// Mass balance per constituent.
+    pub balance: Vec<MassBalance>,
+    /// Largest number of segments held at once (pipes and layered tanks).
+    pub max_segments: usize,
+    /// Segments held at the end.
+    pub end_segments: usize,
+    /// Transport steps taken.
+    pub steps: u64,
+    /// The longest transport step used, s.
+    pub transport_step: f64,
+}
+
+impl QualityRun {
+    /// The record at elapsed time `t`, if it was reported.
+    pub fn at(&self, t: f64) -> Option<&QualityRecord> {
+        self.records.iter().find(|r| r.time == t)
+    }
+}
+
+/// Runs the model's `[simulation]` with its `[[quality]]` constituents.
+pub fn simulate(
+    model: &Model,
+    options: &SimulateOptions,
+    progress: &mut dyn FnMut(f64),
+) -> Result<(Run, QualityRun), SimulateError> {
+    let mut engine = QualityEngine::new(model)?;
+    let run = crate::simulate::simulate_observed(model, options, progress, &mut engine)?;
+    Ok((run, engine.finish()))
+}
+
+/// The transport of every constituent through the network; a [`StepObserver`] of a simulation.
+#[derive(Debug)]
+pub struct QualityEngine<'m> {
+    model: &'m Model,
+    q: &'m QualityData,
+    nc: usize,
+    transforms: Vec<Transform>,
+    seg: Segments,
+    /// Tank index per node (`usize::MAX`: not a tank).
+    tank_of: Vec<usize>,
+    tank_nodes: Vec<usize>,
+    tanks: Vec<TankState>,
+    /// Node → incident links (compressed rows).
+    adj_start: Vec<u32>,
+    adj: Vec<u32>,
+    /// Current value per node and constituent (`n * nc + c`).
+    value: Vec<f64>,
+    /// Mass and volume arrived at each node in the step (kept when they arrive after the sweep
+    /// passed the node).
+    acc_mass: Vec<f64>,
+    acc_vol: Vec<f64>,
+    /// Flows of the interval, thresholded.
+    flow: Vec<f64>,
+    /// Per link and constituent: first-order rate of the interval, 1/s.
+    rate: Vec<f64>,
+    order: Vec<u32>,
+    indeg: Vec<u32>,
+    t: f64,
+    step_max: f64,
+    report_interval: f64,
+    duration: f64,
+    start_clock: f64,
+    balance: Vec<MassBalance>,
+    records: Vec<QualityRecord>,
+    max_segments: usize,
+    steps: u64,
+    nu: f64,
+    scratch: Vec<f64>,
+}
+
+impl<'m> QualityEngine<'m> {
+    /// Prepares the transport of `model`'s constituents (which must have a `[simulation]`).
+    pub fn new(model: &'m Model) -> Result<Self, SimulateError> {
+        let sim = model.time.simulation.ok_or_else(|| {
+            crate::ModelError::at(
+                Some(crate::Element::Table("simulation".into())),
+                None,
+                "the model has no [simulation] table; add one with at least duration = \"24h\"",
+            )
+        })?;
+        let q = &model.time.quality;
+        let nc = q.constituents.len();
+        let nodes = model.nodes();
+        let links = model.links();
+        let tolerance = sim.quality_tolerance.unwrap_or(TOLERANCE);
+        let transforms: Vec<Transform> = q
+            .constituents
+            .iter()
+            .map(|c| match c.kind {
+                ConstituentKind::Age => Transform::Age,
+                ConstituentKind::Source { .. } => Transform::Plain,
+                ConstituentKind::Substance(r) if r.bulk_rate == 0.0 && r.wall_rate == 0.0 => Transform::Plain,
+                ConstituentKind::Substance(_) => Transform::Decay,
+            })
+            .collect();
+        let merge: Vec<Merge> = (0..nc)
+            .map(|c| match q.constituents[c].kind {
+                ConstituentKind::Age => Merge { relative: 0.0, absolute: tolerance * AGE_SCALE },
+                ConstituentKind::Source { .. } => Merge { relative: tolerance, absolute: tolerance * 1e-3 * 100.0 },
+                ConstituentKind::Substance(_) => {
+                    let scale = substance_scale(q, c);
+                    Merge { relative: tolerance, absolute: tolerance * 1e-3 * scale }
+                }
+            })
+            .collect();
+        // Starting values: nodes as given, pipes the mean of their two ends.
+        let mut value = vec![0.0; nodes.len() * nc];
+        for i in 0..nodes.len() {
+            for c in 0..nc {
+                value[i * nc + c] = q.initial_at(i, c);
+            }
+        }
+        let volume: Vec<f64> = links
+            .iter()
+            .map(|l| match &l.kind {
+                LinkKind::Pipe(p) => std::f64::consts::PI * p.diameter * p.diameter / 4.0 * p.length,
+                _ => 0.0,
+            })
+            .collect();
+        let initial: Vec<Vec<f64>> = links
+            .iter()
+            .map(|l| (0..nc).map(|c| 0.5 * (value[l.from * nc + c] + value[l.to * nc + c])).collect())
+            .collect();
+        let seg = Segments::new(transforms.clone(), merge.clone(), volume, &initial);
+        // Tanks at their starting volumes.
+        let net = crate::simulate::network::Network::new(model)?;
+        let mut tank_of = vec![usize::MAX; nodes.len()];
+        let mut tank_nodes = Vec::new();
+        let mut tanks = Vec::new();
+        for info in &net.tanks {
+            let NodeKind::Tank(t) = &nodes[info.node].kind else { continue };
+            let v0 = info.volume(t.level);
+            let init: Vec<f64> = (0..nc).map(|c| value[info.node * nc + c]).collect();
+            let state = match q.mixing_of(info.node) {
+                Mixing::Complete => TankState::complete(v0, &init),
+                Mixing::TwoZone(f) => TankState::two_zone(f, v0, &init),
+                Mixing::PlugFlow => TankState::layered(false, v0, &init, transforms.clone(), merge.clone()),
+                Mixing::Stacked => TankState::layered(true, v0, &init, transforms.clone(), merge.clone()),
+            };
+            tank_of[info.node] = tanks.len();
+            tank_nodes.push(info.node);
+            tanks.push(state);
+        }
+        // Incidence lists.
+        let mut deg = vec![0u32; nodes.len() + 1];
+        for l in links {
+            deg[l.from + 1] += 1;
+            deg[l.to + 1] += 1;
+        }
+        for i in 0..nodes.len() {
+            deg[i + 1] += deg[i];
+        }
+        let mut fill = deg.clone();
+        let mut adj = vec![0u32; 2 * links.len()];
+        for (k, l) in links.iter().enumerate() {
+            for n in [l.from, l.to] {
+                adj[fill[n] as usize] = k as u32;
+                fill[n] += 1;
+            }
+        }
+        let step_max =
+            sim.transport_step.unwrap_or((sim.hydraulic_step / STEPS_PER_HYDRAULIC_STEP).min(TRANSPORT_STEP));
+        let mut engine = QualityEngine {
+            model,
+            q,
+            nc,
+            transforms,
+            seg,
+            tank_of,
+            tank_nodes,
+            tanks,
+            adj_start: deg,
+            adj,
+            value,
+            acc_mass: vec![0.0; nodes.len() * nc],
+            acc_vol: vec![0.0; nodes.len()],
+            flow: vec![0.0; links.len()],
+            rate: vec![0.0; links.len() * nc],
+            order: Vec::with_capacity(nodes.len()),
+            indeg: vec![0; nodes.len()],
+            t: 0.0,
+            step_max,
+            report_interval: sim.report_interval,
+            duration: sim.duration,
+            start_clock: sim.start_clock,
+            balance: vec![MassBalance::default(); nc],
+            records: Vec::new(),
+            max_segments: 0,
+            steps: 0,
+            nu: model.options.water_properties().kinematic_viscosity,
+            scratch: vec![0.0; nc],
+        };
+        engine.set_fixed_values();
+        for c in 0..nc {
+            engine.balance[c].stored_start = engine.stored(c);
+        }
+        engine.max_segments = engine.segments();
+        engine.record();
+        Ok(engine)
+    }
+
+    /// Segments held now by pipes and layered tanks.
+    pub fn segments(&self) -> usize {
+        self.seg.count() + self.tanks.iter().map(TankState::segments).sum::<usize>()
+    }
+
+    fn traced(&self, c: usize) -> Option<usize> {
+        match self.q.constituents[c].kind {
+            ConstituentKind::Source { node } => Some(node),
+            _ => None,
+        }
+    }
+
+    /// Whether tank `node`'s water is outside the balance of constituent `c`: a source trace at a
+    /// tank that some trace follows. Water leaving such a tank is 100 % its own and 0 % of every
+    /// other source (it starts again from there), so percentages still add up to 100.
+    fn outside(&self, c: usize, node: usize) -> bool {
+        matches!(self.q.constituents[c].kind, ConstituentKind::Source { .. })
+            && self.q.constituents.iter().any(|k| k.kind == ConstituentKind::Source { node })
+    }
+
+    fn own_value(&self, c: usize, node: usize) -> f64 {
+        if self.traced(c) == Some(node) {
+            100.0
+        } else {
+            0.0
+        }
+    }
+
+    /// Mass of constituent `c` stored in pipes and tanks (a traced tank's own water is outside).
+    fn stored(&self, c: usize) -> f64 {
+        let pipes: f64 = (0..self.model.links().len()).map(|p| self.seg.mass(p, c, self.t)).sum();
+        let tanks: f64 = self
+            .tanks
+            .iter()
+            .zip(&self.tank_nodes)
+            .filter(|(_, &n)| !self.outside(c, n))
+            .map(|(s, _)| s.mass(c, self.t))
+            .sum();
+        pipes + tanks
+    }
+
+    /// The value a source node gives constituent `c` now (reservoirs and injecting junctions).
+    fn source_value(&self, node: usize, c: usize) -> f64 {
+        match self.q.constituents[c].kind {
+            ConstituentKind::Age => 0.0,
+            ConstituentKind::Source { node: n } => {
+                if n == node {
+                    100.0
+                } else {
+                    0.0
+                }
+            }
+            ConstituentKind::Substance(_) => {
+                let Some(list) = self.q.sources.get(&node) else { return 0.0 };
+                let Some(s) = list.iter().find(|s| s.constituent == c) else { return 0.0 };
+                let clock = self.start_clock + self.t;
+                s.value * s.pattern.map_or(1.0, |p| self.model.time.patterns[p].at(clock))
+            }
+        }
+    }
+
+    /// Reservoirs report their source values and tanks their contents.
+    fn set_fixed_values(&mut self) {
+        let nc = self.nc;
+        for (i, n) in self.model.nodes().iter().enumerate() {
+            match n.kind {
+                NodeKind::Reservoir { .. } => {
+                    for c in 0..nc {
+                        self.value[i * nc + c] = self.source_value(i, c);
+                    }
+                }
+                NodeKind::Tank(_) => {
+                    let j = self.tank_of[i];
+                    for c in 0..nc {
+                        if self.outside(c, i) {
+                            self.value[i * nc + c] = self.own_value(c, i);
+                        } else if let Some(v) = self.tanks[j].value(c, self.t) {
+                            self.value[i * nc + c] = v;
+                        }
+                    }
+                }
+                _ => {}
+            }
+        }
+    }
+
+    fn is_report_time(&self, t: f64) -> bool {
+        let ri = self.report_interval;
+        let k = (t / ri).round();
+        (t - k * ri).abs() < 1e-6 || t >= self.duration
+    }
+
+    fn record(&mut self) {
+        if self.records.last().is_some_and(|r| r.time == self.t) {
+            self.records.pop();
+        }
+        let nc = self.nc;
+        let nn = self.model.nodes().len();
+        let node: Vec<Vec<f64>> = (0..nc).map(|c| (0..nn).map(|i| self.value[i * nc + c]).collect()).collect();
+        let link: Vec<Vec<f64>> = (0..nc)
+            .map(|c| {
+                self.model
+                    .links()
+                    .iter()
+                    .enumerate()
+                    .map(|(k, l)| {
+                        if self.seg.volume[k] > 0.0 {
+                            self.seg.mean(k, c, self.t)
+                        } else {
+                            let up = if self.flow[k] < 0.0 { l.to } else { l.from };
+                            self.value[up * nc + c]
+                        }
+                    })
+                    .collect()
+            })
+            .collect();
+        self.records.push(QualityRecord { time: self.t, node, link });
+    }
+
+    /// Sets the flows and rates of an interval and the order of the sweep.
+    fn prepare(&mut self, start: &Solution, end: &Solution) {
+        let links = self.model.links();
+        for k in 0..links.len() {
+            let q = 0.5 * (start.flow[k] + end.flow[k]);
+            self.flow[k] = if q.abs() < FLOW_EPS || !q.is_finite() { 0.0 } else { q };
+        }
+        let nc = self.nc;
+        for (c, con) in self.q.constituents.iter().enumerate() {
+            let ConstituentKind::Substance(r) = con.kind else { continue };
+            for (k, l) in links.iter().enumerate() {
+                self.rate[k * nc + c] = match &l.kind {
+                    LinkKind::Pipe(p) => reaction::pipe_rate(&r, p.diameter, p.length, self.flow[k], self.nu),
+                    _ => 0.0,
+                };
+            }
+        }
+        // Kahn's algorithm on the directed flow graph; reservoirs and tanks start it.
+        let nodes = self.model.nodes();
+        self.order.clear();
+        for (i, n) in nodes.iter().enumerate() {
+            let mut d = 0;
+            if matches!(n.kind, NodeKind::Junction { .. }) {
+                for &k in self.incident(i) {
+                    if self.downstream(k as usize) == Some(i) {
+                        d += 1;
+                    }
+                }
+            }
+            self.indeg[i] = d;
+            if self.indeg[i] == 0 {
+                self.order.push(i as u32);
+            }
+        }
+        let mut head = 0;
+        while head < self.order.len() {
+            let n = self.order[head] as usize;
+            head += 1;
+            for a in self.adj_start[n] as usize..self.adj_start[n + 1] as usize {
+                let k = self.adj[a] as usize;
+                if self.upstream(k) != Some(n) {
+                    continue;
+                }
+                let w = self.other(k, n);
+                if matches!(nodes[w].kind, NodeKind::Junction { .. }) && self.indeg[w] > 0 {
+                    self.indeg[w] -= 1;
+                    if self.indeg[w] == 0 {
+                        self.order.push(w as u32);
+                    }
+                }
+            }
+        }
+        if self.order.len() < nodes.len() {
+            // A loop of flow (through a pump): the rest in index order.
+            for i in 0..nodes.len() {
+                if self.indeg[i] > 0 {
+                    self.order.push(i as u32);
+                }
+            }
+        }
+    }
+
+    fn incident(&self, n: usize) -> &[u32] {
+        &self.adj[self.adj_start[n] as usize..self.adj_start[n + 1] as usize]
+    }
+
+    fn other(&self, k: usize, n: usize) -> usize {
+        let l = &self.model.links()[k];
+        if l.from == n {
+            l.to
+        } else {
+            l.from
+        }
+    }
+
+    fn upstream(&self, k: usize) -> Option<usize> {
+        let l = &self.model.links()[k];
+        match self.flow[k] {
+            q if q > 0.0 => Some(l.from),
+            q if q < 0.0 => Some(l.to),
+            _ => None,
+        }
+    }
+
+    fn downstream(&self, k: usize) -> Option<usize> {
+        let l = &self.model.links()[k];
+        match self.flow[k] {
+            q if q > 0.0 => Some(l.to),
+            q if q < 0.0 => Some(l.from),
+            _ => None,
+        }
+    }
+
+    /// One transport step of length `dt` with the interval's flows.
+    fn transport(&mut self, dt: f64) {
+        let nc = self.nc;
+        let nodes = self.model.nodes();
+        let links = self.model.links();
+        // 1. Reactions and ageing over the step; then the clock moves on.
+        let t_new = self.t + dt;
+        for c in 0..nc {
+            match self.q.constituents[c].kind {
+                ConstituentKind::Age => {
+                    let pipes: f64 = self.seg.volume.iter().sum();
+                    self.balance[c].reacted += pipes * dt;
+                }
+                ConstituentKind::Substance(_) if self.transforms[c] == Transform::Decay => {
+                    let mut gained = 0.0;
+                    for p in 0..links.len() {
+                        let k = self.rate[p * nc + c];
+                        if k != 0.0 && self.seg.volume[p] > 0.0 {
+                            gained += self.seg.react(p, c, k, dt, self.t);
+                        }
+                    }
+                    self.balance[c].reacted += gained;
+                }
+                _ => {}
+            }
+        }
+        for j in 0..self.tanks.len() {
+            let node = self.tank_nodes[j];
+            for c in 0..nc {
+                let (k, age) = match self.q.constituents[c].kind {
+                    ConstituentKind::Age => (0.0, true),
+                    ConstituentKind::Substance(r) => (r.bulk_rate, false),
+                    ConstituentKind::Source { .. } => continue,
+                };
+                if k == 0.0 && !age {
+                    continue;
+                }
+                let g = self.tanks[j].react(c, k, age, dt, self.t);
+                if !self.outside(c, node) {
+                    self.balance[c].reacted += g;
+                }
+            }
+        }
+        self.t = t_new;
+        let t = self.t;
+        // 2. Tanks' outflows.
+        let mut tank_out_value = vec![0.0; self.tanks.len() * nc];
+        let mut tank_in_vol = vec![0.0; self.tanks.len()];
+        for j in 0..self.tanks.len() {
+            let node = self.tank_nodes[j];
+            let (mut v_in, mut v_out) = (0.0, 0.0);
+            for &k in self.incident(node) {
+                let k = k as usize;
+                let v = self.flow[k].abs() * dt;
+                if self.upstream(k) == Some(node) {
+                    v_out += v;
+                } else if self.downstream(k) == Some(node) {
+                    v_in += v;
+                }
+            }
+            tank_in_vol[j] = v_in;
+            let mut out = vec![0.0; nc];
+            self.tanks[j].outflow(v_in, v_out, dt, &mut out, t);
+            for c in 0..nc {
+                let v = if self.outside(c, node) {
+                    let v = self.own_value(c, node);
+                    self.balance[c].inflow += v * v_out;
+                    v
+                } else if v_out > 0.0 {
+                    out[c] / v_out
+                } else {
+                    self.tanks[j].value(c, t).unwrap_or(self.value[node * nc + c])
+                };
+                tank_out_value[j * nc + c] = v;
+            }
+        }
+        // 3. The sweep.
+        let mut x = std::mem::take(&mut self.scratch);
+        for oi in 0..self.order.len() {
+            let n = self.order[oi] as usize;
+            let (mut v_in, mut v_out) = (0.0, 0.0);
+            for &k in self.incident(n) {
+                let k = k as usize;
+                let v = self.flow[k].abs() * dt;
+                if self.upstream(k) == Some(n) {
+                    v_out += v;
+                } else if self.downstream(k) == Some(n) {
+                    v_in += v;
+                }
+            }
+            match nodes[n].kind {
+                NodeKind::Reservoir { .. } => {
+                    for c in 0..nc {
+                        x[c] = self.source_value(n, c);
+                        self.balance[c].inflow += x[c] * v_out;
+                    }
+                }
+                NodeKind::Tank(_) => {
+                    let j = self.tank_of[n];
+                    x.copy_from_slice(&tank_out_value[j * nc..(j + 1) * nc]);
+                }
+                _ => {
+                    // Injection (negative demand) by continuity.
+                    let inject = (v_out - v_in).max(0.0);
+                    let vol = self.acc_vol[n] + inject;
+                    for c in 0..nc {
+                        if vol > 0.0 {
+                            let s = if inject > 0.0 { self.source_value(n, c) } else { 0.0 };
+                            self.balance[c].inflow += s * inject;
+                            x[c] = (self.acc_mass[n * nc + c] + s * inject) / vol;
+                        } else {
+                            x[c] = self.value[n * nc + c];
+                        }
+                        self.acc_mass[n * nc + c] = 0.0;
+                    }
+                    self.acc_vol[n] = 0.0;
+                }
+            }
+            let junction = self.tank_of[n] == usize::MAX && !matches!(nodes[n].kind, NodeKind::Reservoir { .. });
+            let demand = if junction { (v_in - v_out).max(0.0) } else { 0.0 };
+            // Boosters raise the water leaving the node.
+            if let Some(list) = self.q.boosters.get(&n) {
+                for &(c, floor) in list {
+                    if x[c] < floor {
+                        self.balance[c].boosted += (floor - x[c]) * (v_out + demand);
+                        x[c] = floor;
+                    }
+                }
+            }
+            if demand > 0.0 {
+                for c in 0..nc {
+                    self.balance[c].outflow += x[c] * demand;
+                }
+            }
+            self.value[n * nc..(n + 1) * nc].copy_from_slice(&x);
+            // Into the outflowing links, out at their far ends.
+            for a in self.adj_start[n] as usize..self.adj_start[n + 1] as usize {
+                let k = self.adj[a] as usize;
+                if self.upstream(k) != Some(n) {
+                    continue;
+                }
+                let w = self.other(k, n);
+                let vol = self.flow[k].abs() * dt;
+                if self.seg.volume[k] > 0.0 {
+                    let forward = self.flow[k] > 0.0;
+                    self.seg.push(k, forward, vol, &x, t);
+                    let m = &mut self.acc_mass[w * nc..(w + 1) * nc];
+                    let taken = self.seg.pop(k, !forward, vol, m, t);
+                    if taken < vol {
+                        for c in 0..nc {
+                            m[c] += x[c] * (vol - taken);
+                        }
+                    }
+                } else {
+                    for c in 0..nc {
+                        self.acc_mass[w * nc + c] += x[c] * vol;
+                    }
+                }
+                self.acc_vol[w] += vol;
+            }
+        }
+        self.scratch = x;
+        // 4. Reservoirs and tanks take in what arrived.
+        for (i, node) in nodes.iter().enumerate() {
+            match node.kind {
+                NodeKind::Reservoir { .. } => {
+                    for c in 0..nc {
+                        self.balance[c].outflow += self.acc_mass[i * nc + c];
+                        self.acc_mass[i * nc + c] = 0.0;
+                    }
+                    self.acc_vol[i] = 0.0;
+                }
+                NodeKind::Tank(_) => {
+                    let j = self.tank_of[i];
+                    let m: Vec<f64> = self.acc_mass[i * nc..(i + 1) * nc].to_vec();
+                    self.tanks[j].settle(tank_in_vol[j], &m, t);
+                    for c in 0..nc {
+                        if self.outside(c, i) {
+                            self.balance[c].outflow += m[c];
+                        }
+                        self.acc_mass[i * nc + c] = 0.0;
+                    }
+                    self.acc_vol[i] = 0.0;
+                }
+                _ => {}
+            }
+        }
+        self.set_fixed_values();
+        self.steps += 1;
+    }
+
+    /// Ends the run: the closing balance.
+    pub fn finish(mut self) -> QualityRun {
+        self.seg.resum();
+        for c in 0..self.nc {
+            self.balance[c].stored_end = self.stored(c);
+        }
+        let end_segments = self.segments();
+        QualityRun {
+            constituents: self.q.constituents.clone(),
+            records: self.records,
+            balance: self.balance,
+            max_segments: self.max_segments.max(end_segments),
+            end_segments,
+            steps: self.steps,
+            transport_step: self.step_max,
+        }
+    }
+}
+
+impl StepObserver for QualityEngine<'_> {
+    fn interval(&mut self, t0: f64, t1: f64, start: &Solution, end: &Solution) {
+        debug_assert!((t0 - self.t).abs() < 1e-6 * t1.max(1.0));
+        let length = t1 - t0;
+        if length <= 0.0 {
+            return;
+        }
+        self.prepare(start, end);
+        let n = (length / self.step_max - 1e-9).ceil().max(1.0);
+        let dt = length / n;
+        for _ in 0..n as u64 {
+            self.transport(dt);
+        }
+        self.t = t1;
+        if self.steps % 64 < n as u64 {
+            // Now and then: the stored sums from the segments, and the segment count.
+            self.seg.resum();
+        }
+        self.max_segments = self.max_segments.max(self.segments());
+        if self.is_report_time(t1) {
+            self.record();
+        }
+    }
+}
+
+/// The scale of a substance's values: the largest value any node gives it (1 if none).
+fn substance_scale(q: &QualityData, c: usize) -> f64 {
+    let mut scale = q.constituents[c].initial.abs();
+    for list in q.sources.values() {
+        for s in list.iter().filter(|s| s.constituent == c) {
+            scale = scale.max(s.value.abs());
+        }
+    }
+    for list in q.initial.values().chain(q.boosters.values()) {
+        for &(k, v) in list.iter().filter(|(k, _)| *k == c) {
+            let _ = k;
+            scale = scale.max(v.abs());
+        }
+    }
+    if scale > 0.0 {
+        scale
+    } else {
+        1.0
+    }
+}

@@ -1,0 +1,248 @@
+//! Assembly: each core link's linearisation (`p = 1/g`, `c`) and its scatter into the head
+//! matrix and right-hand side, in one pass per iteration (see the [solver's docs](super)).
+
+use super::structure::NONE;
+use super::{links, Pinned, Solver};
+use crate::model::Model;
+
+// How a core link enters the current iteration (the low two bits of its mode byte), which of its
+// ends are free unknowns, and whether its law is evaluated through its `LinkLaw` (the bits above).
+/// Closed, or cut off: not in the matrix.
+pub(super) const MODE_CLOSED: u8 = 0;
+/// On its law.
+pub(super) const MODE_LAW: u8 = 1;
+/// A known flow (an active flow-control valve).
+pub(super) const MODE_FIXED_FLOW: u8 = 2;
+/// An active pressure valve: its flow comes from the balance of the node it pins.
+pub(super) const MODE_PINNED: u8 = 3;
+/// The bits of the four modes above.
+pub(super) const MODE_MASK: u8 = 3;
+/// Its `from` end is a free unknown.
+pub(super) const FREE_FROM: u8 = 4;
+/// Its `to` end is a free unknown.
+pub(super) const FREE_TO: u8 = 8;
+/// Its law is not an inline Hazen–Williams pipe: evaluate it through its [`LinkLaw`](super::LinkLaw).
+/// Set when the laws are built and kept when the device states change the bits below.
+pub(super) const LAW_GENERAL: u8 = 16;
+/// Steps of a cold start taken with secant slopes (see `Solver::linearise`).
+pub(super) const SECANT_STEPS: u32 = 1;
+
+/// A core link's law in the form the iteration evaluates: Hazen–Williams pipes inline from these
+/// three numbers, anything else through its [`LinkLaw`](super::LinkLaw) (the [`LAW_GENERAL`]
+/// bit of its mode, which keeps this per-link array at 24 bytes; `r` and `minor` are then zero).
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub(super) struct HotLaw {
+    /// Hazen–Williams resistance `r` in `h = r |Q|^n sign(Q) + m Q|Q|`.
+    pub r: f64,
+    /// Minor-loss coefficient `m` in the same.
+    pub minor: f64,
+    /// Smallest slope used in the matrix (see [`LinkLaw::min_slope`](super::LinkLaw::min_slope)).
+    pub min_slope: f64,
+}
+
+impl Solver {
+    /// Head of a core link's end: its unknown's, or the node's fixed head.
+    #[inline]
+    pub(super) fn end_head(&self, unknown: u32, node: u32) -> f64 {
+        if unknown == NONE {
+            self.head[node as usize]
+        } else {
+            self.unknown_head[unknown as usize]
+        }
+    }
+
+    /// Linearises every core link at its current flow and the current heads.
+    ///
+    /// With `secant`, pipes take the secant `h(Q)/Q` through the origin instead of the tangent:
+    /// the first step of the linear theory method (Wood & Charles 1972, "Hydraulic network
+    /// analysis using linear theory", J. Hydraul. Div. 98(HY7)). A Newton step on
+    /// `h = r|Q|^n` from a flow far above the answer shrinks it by at most the factor `1 − 1/n`
+    /// ≈ 0.46, so a cold start from a common velocity several times too high costs a handful of
+    /// iterations; the secant step's flows do not depend on the starting flows' scale (scaling
+    /// every resistance alike leaves the flows of a linear network unchanged), and Newton's
+    /// method takes over from there.
+    pub(super) fn linearise(&mut self, secant: bool) {
+        for i in 0..self.structure.core.len() {
+            if self.mode[i] & MODE_MASK == MODE_LAW {
+                let c = &self.structure.core[i];
+                let dh = self.end_head(c.slots.from, c.from) - self.end_head(c.slots.to, c.to);
+                let q = self.cq[i];
+                let (p, cc, _) = if secant { self.secant(i, q, dh) } else { self.coefficients(i, q, dh) };
+                self.cp[i] = p;
+                self.cc[i] = cc;
+            } else {
+                self.cp[i] = 0.0;
+                self.cc[i] = self.cq[i];
+            }
+        }
+    }
+
+    /// Like [`Solver::coefficients`], with the secant slope `h(Q)/Q` for Hazen–Williams pipes.
+    pub(super) fn secant(&self, i: usize, q: f64, dh: f64) -> (f64, f64, f64) {
+        let hot = self.hot[i];
+        if self.mode[i] & LAW_GENERAL != 0 || q == 0.0 {
+            return self.coefficients(i, q, dh);
+        }
+        let (y, _) = links::hazen_williams(hot.r, hot.minor, q);
+        let p = 1.0 / (y / q).max(hot.min_slope);
+        (p, q + p * (dh - y), (y - dh).abs())
+    }
+
+    /// Conductance p, constant c and energy residual of core link `i` at flow `q` and head
+    /// difference `dh`.
+    #[inline]
+    pub(super) fn coefficients(&self, i: usize, q: f64, dh: f64) -> (f64, f64, f64) {
+        let hot = self.hot[i];
+        let (y, g) = if self.mode[i] & LAW_GENERAL != 0 {
+            let (y, g) = self.laws[self.structure.core[i].link as usize].evaluate_exact(q);
+            (y, g.max(hot.min_slope))
+        } else {
+            let (y, g) = links::hazen_williams(hot.r, hot.minor, q);
+            (y, g.max(hot.min_slope))
+        };
+        let p = 1.0 / g;
+        (p, q + p * (dh - y), (y - dh).abs())
+    }
+
+    /// New flows of the core links from the head corrections in `rhs`, linearised at once for
+    /// the next step (one pass: each law evaluated once per iteration). Returns the relative
+    /// flow change Σ|ΔQ| / Σ|Q| and the largest energy residual of the core links on their law
+    /// (tree pipes meet theirs exactly by construction).
+    ///
+    /// Links on their law follow `Q = c + p (δ_from − δ_to)`. An active flow-control valve holds
+    /// its setting. An active pressure valve's flow is whatever the mass balance of the node it
+    /// pins requires; that flow enters the other node's balance at the next step, so at
+    /// convergence both balances hold.
+    pub(super) fn update_links(&mut self, model: &Model, secant: bool) -> (f64, f64) {
+        let (mut sum_dq, mut sum_q, mut residual) = (0.0, self.tree_flow_sum, 0.0f64);
+        // One pass with the fields borrowed apart, so that the loop runs over plain slices.
+        let structure = &*self.structure;
+        let (laws, delta, unknown_head, head) = (&self.laws, &self.delta, &self.unknown_head, &self.head);
+        let (values, rhs) = (&mut self.factor.values, &mut self.rhs);
+        let states = self.hot.iter().zip(&self.mode).zip(self.cq.iter_mut().zip(&mut self.cp).zip(&mut self.cc));
+        for (c, ((hot, &mode), ((cq, cp), cc))) in structure.core.iter().zip(states) {
+            match mode & MODE_MASK {
+                MODE_LAW => {
+                    let s = c.slots;
+                    let (d_from, h_from) = if s.from == NONE {
+                        (0.0, head[c.from as usize])
+                    } else {
+                        (delta[s.from as usize], unknown_head[s.from as usize])
+                    };
+                    let (d_to, h_to) = if s.to == NONE {
+                        (0.0, head[c.to as usize])
+                    } else {
+                        (delta[s.to as usize], unknown_head[s.to as usize])
+                    };
+                    let q = *cc + *cp * (d_from - d_to);
+                    let dh = h_from - h_to;
+                    let general = mode & LAW_GENERAL != 0;
+                    let (y, g) = if general {
+                        laws[c.link as usize].evaluate_exact(q)
+                    } else {
+                        links::hazen_williams(hot.r, hot.minor, q)
+                    };
+                    let g = if secant && !general && q != 0.0 { y / q } else { g };
+                    let p = 1.0 / g.max(hot.min_slope);
+                    residual = residual.max((y - dh).abs());
+                    sum_dq += (q - *cq).abs();
+                    sum_q += q.abs();
+                    *cq = q;
+                    *cp = p;
+                    *cc = q + p * (dh - y);
+                }
+                MODE_FIXED_FLOW => sum_q += cq.abs(),
+                _ => continue,
+            }
+            let (p, c_value) = (*cp, *cc);
+            if mode & FREE_FROM != 0 {
+                values[c.diag_from as usize] += p;
+                rhs[c.slots.from as usize] -= c_value;
+            }
+            if mode & FREE_TO != 0 {
+                values[c.diag_to as usize] += p;
+                rhs[c.slots.to as usize] += c_value;
+            }
+            if mode & (FREE_FROM | FREE_TO) == FREE_FROM | FREE_TO {
+                values[c.slots.off as usize] -= p;
+            }
+        }
+        if !self.pinned.is_empty() {
+            let links = model.links();
+            for v in 0..self.pinned.len() {
+                let Pinned { core, link, node, sign, .. } = self.pinned[v];
+                let (core, node) = (core as usize, node as usize);
+                // Net inflow the pinned node needs from this valve: its demand plus its outflow
+                // through every other link, minus its inflow through them.
+                let mut need = self.demand[node];
+                for &j in self.structure.adjacency.of(node) {
+                    if j == link {
+                        continue;
+                    }
+                    let position = self.structure.core_position[j as usize];
+                    let q = if position == NONE { self.flow[j as usize] } else { self.cq[position as usize] };
+                    if links[j as usize].from == node {
+                        need += q;
+                    } else {
+                        need -= q;
+                    }
+                }
+                // A pressure-sustaining valve pins its upstream node: its flow is what leaves it.
+                let q = sign * need;
+                sum_dq += (q - self.cq[core]).abs();
+                sum_q += q.abs();
+                self.pinned[v].change = (q - self.cq[core]).abs();
+                self.cq[core] = q;
+                self.cc[core] = q;
+                self.scatter(core);
+            }
+        }
+        // Relative to the water moving; a network with (almost) no flow is measured against the
+        // total demand, or an absolute floor of 1 L/s, so that round-off in flows of nothing
+        // does not count as change.
+        (sum_dq / sum_q.max(self.demand_scale), residual)
+    }
+
+    /// Starts filling the matrix and right-hand side of the head corrections δ,
+    /// `Σ p δ_i − Σ p δ_j = −d_i + Σ_in c − Σ_out c`: zero values, demands on the right.
+    pub(super) fn begin_assembly(&mut self) {
+        self.factor.values.iter_mut().for_each(|v| *v = 0.0);
+        for (r, &d) in self.rhs.iter_mut().zip(&self.unknown_demand) {
+            *r = -d;
+        }
+    }
+
+    /// Adds core link `i`, with its current `p` and `c`, to the matrix and right-hand side.
+    #[inline]
+    pub(super) fn scatter(&mut self, i: usize) {
+        let mode = self.mode[i];
+        if mode & MODE_MASK == MODE_CLOSED {
+            return;
+        }
+        let (p, cc) = (self.cp[i], self.cc[i]);
+        let c = &self.structure.core[i];
+        let values = &mut self.factor.values;
+        if mode & FREE_FROM != 0 {
+            values[c.diag_from as usize] += p;
+            self.rhs[c.slots.from as usize] -= cc;
+        }
+        if mode & FREE_TO != 0 {
+            values[c.diag_to as usize] += p;
+            self.rhs[c.slots.to as usize] += cc;
+        }
+        if mode & (FREE_FROM | FREE_TO) == FREE_FROM | FREE_TO {
+            values[c.slots.off as usize] -= p;
+        }
+    }
+
+    /// Ends the assembly: unit rows for pinned and cut-off unknowns (their δ is zero).
+    pub(super) fn end_assembly(&mut self) {
+        let structure = &*self.structure;
+        for u in 0..structure.n {
+            if !self.free[u] {
+                self.factor.values[structure.diag_slot[u] as usize] = 1.0;
+                self.rhs[u] = 0.0;
+            }
+        }
+    }
+}

@@ -1,0 +1,344 @@
+//! The Newton iteration: factor, solve, correct the heads, reassemble; device states applied
+//! before and examined after each converged inner solve; the diagnosis of a case that does not
+//! converge.
+
+use super::assemble::*;
+use super::solution::energy_residuals;
+use super::status::{self, LinkState, StatusTracker};
+use super::structure::NONE;
+use super::{topology, Conditions, Pinned, Solution, SolveOptions, Solver, STALLED_ITERATIONS};
+use crate::error::{Offender, SolveError};
+use crate::model::{LinkKind, Model, ValveType};
+use std::time::Instant;
+
+impl Solver {
+    /// Iterates from the prepared laws, outflows and starting values to a solution whose device
+    /// states all hold (see the [solver's docs](super) and [`status`]).
+    pub(super) fn iterate(
+        &mut self,
+        model: &Model,
+        conditions: &Conditions,
+        options: &SolveOptions,
+        warm: bool,
+    ) -> Result<Solution, SolveError> {
+        let nodes = model.nodes();
+        let links = model.links();
+        let clock = Instant::now();
+        let mut tracker = StatusTracker::new(model, conditions);
+        self.timings.status += clock.elapsed();
+        let mut iterations = 0u32;
+        let mut status_changes = 0u32;
+        let mut head_change = f64::INFINITY;
+        let mut flow_change = f64::INFINITY;
+        let mut states_stale = true;
+        let mut since_change = 0u32;
+
+        loop {
+            if states_stale {
+                let clock = Instant::now();
+                self.apply_states(model, conditions, &mut tracker);
+                self.timings.status += clock.elapsed();
+                let clock = Instant::now();
+                self.tree_flows();
+                self.timings.forest += clock.elapsed();
+                let clock = Instant::now();
+                // The secant start only on a cold start's first step.
+                self.linearise(iterations < SECANT_STEPS && !warm);
+                self.begin_assembly();
+                for i in 0..self.structure.core.len() {
+                    self.scatter(i);
+                }
+                self.end_assembly();
+                self.timings.assembly += clock.elapsed();
+                states_stale = false;
+            }
+            if iterations >= options.max_iterations {
+                self.sync_flows();
+                self.tree_heads();
+                return Err(self.not_converged(model, iterations, head_change, flow_change));
+            }
+            iterations += 1;
+            since_change += 1;
+            if since_change > STALLED_ITERATIONS {
+                // An active pressure valve whose pinned head cannot be held (no sink for the flow
+                // it would pass, or a head it cannot reach) makes its flow drift without a fixed
+                // point. Such a valve cannot regulate: it closes, and the status logic decides
+                // again from the next converged solution.
+                if let Some(k) = self.drifting_pressure_valve() {
+                    self.sync_flows();
+                    tracker.state[k] = LinkState::ValveClosed;
+                    status_changes += 1;
+                    states_stale = true;
+                    since_change = 0;
+                    head_change = f64::INFINITY;
+                    continue;
+                }
+            }
+            let assembled = Instant::now();
+            let factored = self.factor.factor(&self.structure);
+            let clock = Instant::now();
+            self.timings.factorization += clock - assembled;
+            factored.map_err(|e| SolveError::Numerical {
+                iteration: iterations,
+                detail: match self.structure.node_of_unknown.get(e.unknown) {
+                    Some(&node) => format!("pivot of node '{}' is not positive", nodes[node as usize].id),
+                    None => "a pivot is not positive".to_owned(),
+                },
+            })?;
+            self.factor.solve(&self.structure, &mut self.rhs);
+            let solved = Instant::now();
+            self.timings.solves += solved - clock;
+            std::mem::swap(&mut self.rhs, &mut self.delta);
+            head_change = 0.0;
+            let mut finite = true;
+            for (u, &delta) in self.delta.iter().enumerate() {
+                if self.free[u] {
+                    finite &= delta.is_finite();
+                    head_change = head_change.max(delta.abs());
+                    self.unknown_head[u] += delta;
+                }
+            }
+            if iterations == 1 {
+                // No previous iterate to compare with.
+                head_change = f64::INFINITY;
+            }
+            // The next step's matrix is filled as the new flows are computed.
+            self.begin_assembly();
+            let (change, energy_residual) = self.update_links(model, !warm && iterations < SECANT_STEPS);
+            self.end_assembly();
+            flow_change = change;
+            self.timings.assembly += solved.elapsed();
+            if !finite || !flow_change.is_finite() {
+                return Err(SolveError::Numerical {
+                    iteration: iterations,
+                    detail: "heads or flows became NaN".into(),
+                });
+            }
+            let heads_settled = head_change <= options.head_tolerance
+                // Heads that still move by more than a tight tolerance while every energy
+                // equation already holds to it (possible when the tolerance is near the
+                // floating-point floor of a large network): the energy residual decides.
+                || (flow_change <= options.flow_tolerance && iterations > 1 && energy_residual <= options.head_tolerance);
+            if heads_settled && flow_change <= options.flow_tolerance {
+                if !tracker.has_devices() {
+                    break;
+                }
+                let clock = Instant::now();
+                self.sync_flows();
+                let laws = &self.laws;
+                let open_loss = |k: usize, q: f64| laws[k].evaluate_exact(q).0;
+                let shutoff = |k: usize| laws[k].shutoff_head().unwrap_or(f64::INFINITY);
+                let seen = status::Observed {
+                    flow: &self.flow,
+                    head: &self.head,
+                    connected: &self.connected,
+                    open_loss: &open_loss,
+                    shutoff: &shutoff,
+                    tolerance: options.head_tolerance,
+                };
+                let update = tracker.update(model, conditions, &seen);
+                self.timings.status += clock.elapsed();
+                match update {
+                    Ok(0) => break,
+                    Ok(n) => {
+                        status_changes += n;
+                        states_stale = true;
+                        since_change = 0;
+                        head_change = f64::INFINITY;
+                    }
+                    Err(cycling) => {
+                        return Err(SolveError::StatusCycle {
+                            iterations,
+                            links: cycling.into_iter().map(|k| links[k].id.to_string()).collect(),
+                        })
+                    }
+                }
+            }
+        }
+        self.sync_flows();
+        let clock = Instant::now();
+        self.tree_heads();
+        self.timings.forest += clock.elapsed();
+        let clock = Instant::now();
+        let ending = tracker.ending(status_changes);
+        let solution =
+            self.finish(model, conditions, iterations, status_changes, head_change, flow_change, &tracker, ending);
+        self.timings.results += clock.elapsed();
+        self.timings.iterations = iterations;
+        Ok(solution)
+    }
+
+    /// Recomputes, for the current device states, which links carry flow, which nodes a fixed
+    /// head reaches, which heads are pinned by active pressure valves, and how every core link
+    /// enters the iteration.
+    fn apply_states(&mut self, model: &Model, conditions: &Conditions, tracker: &mut StatusTracker) {
+        let links = model.links();
+        let nodes = model.nodes();
+        loop {
+            for (k, s) in tracker.state.iter().enumerate() {
+                self.open[k] = s.carries_flow();
+            }
+            let structure = &*self.structure;
+            topology::mark_connected(
+                model,
+                &structure.adjacency,
+                &structure.ends,
+                &self.open,
+                &mut self.connected,
+                &mut self.stack,
+            );
+            for (i, known) in self.known_head.iter_mut().enumerate() {
+                *known = conditions.fixed_head(i).unwrap_or(f64::NAN);
+            }
+            for (k, &(from, to)) in self.structure.ends.iter().enumerate() {
+                self.open[k] &= self.connected[from as usize] && self.connected[to as usize];
+                self.on_law[k] = self.open[k] && tracker.state[k].uses_law();
+                if !self.open[k] {
+                    self.flow[k] = 0.0;
+                    continue;
+                }
+                if tracker.state[k] == LinkState::Active {
+                    let l = &links[k];
+                    if let LinkKind::Valve(v) = &l.kind {
+                        match v.valve {
+                            ValveType::PressureReducing => {
+                                self.known_head[l.to] = nodes[l.to].elevation + conditions.valve_setting(k);
+                            }
+                            ValveType::PressureSustaining => {
+                                self.known_head[l.from] = nodes[l.from].elevation + conditions.valve_setting(k);
+                            }
+                            ValveType::FlowControl => self.flow[k] = conditions.valve_setting(k),
+                            ValveType::Throttle => {}
+                        }
+                    }
+                }
+            }
+            // A group of junctions joined to every known head only through regulating valves has
+            // no head the equations can fix (its matrix block would be singular), and a valve
+            // cannot regulate a branch whose demand alone sets its flow: such a valve is fully open.
+            // (Nothing to look for when no valve is regulating.)
+            if !tracker.state.contains(&LinkState::Active) {
+                break;
+            }
+            topology::mark_reached(
+                &self.structure.adjacency,
+                &self.structure.ends,
+                &self.on_law,
+                self.known_head.iter().map(|h| !h.is_nan()),
+                &mut self.anchored,
+                &mut self.stack,
+            );
+            let mut forced = false;
+            for i in 0..nodes.len() {
+                if !self.connected[i] || self.anchored[i] {
+                    continue;
+                }
+                let adjacent = self.structure.adjacency.of(i);
+                if let Some(&k) = adjacent.iter().find(|&&k| tracker.state[k as usize] == LinkState::Active) {
+                    tracker.hold_open(model, k as usize);
+                    forced = true;
+                    break;
+                }
+            }
+            if !forced {
+                break;
+            }
+        }
+        // Heads: pinned ones at their setting, cut-off ones undefined, newly reached ones from
+        // any finite value (the mean of the others would do as well as this one).
+        let fallback = self.head.iter().copied().find(|h| h.is_finite()).unwrap_or(0.0);
+        for i in 0..nodes.len() {
+            if !self.connected[i] {
+                self.head[i] = f64::NAN;
+            } else if !self.known_head[i].is_nan() {
+                self.head[i] = self.known_head[i];
+            } else if !self.head[i].is_finite() {
+                self.head[i] = fallback;
+            }
+        }
+        for (u, &node) in self.structure.node_of_unknown.iter().enumerate() {
+            let node = node as usize;
+            self.free[u] = self.connected[node] && self.known_head[node].is_nan();
+            self.unknown_head[u] = self.head[node];
+        }
+        self.pinned.clear();
+        for (i, c) in self.structure.core.iter().enumerate() {
+            let k = c.link as usize;
+            self.cq[i] = self.flow[k];
+            let mut mode = if !self.open[k] {
+                MODE_CLOSED
+            } else if self.on_law[k] {
+                MODE_LAW
+            } else {
+                MODE_FIXED_FLOW
+            };
+            if mode == MODE_FIXED_FLOW {
+                let l = &links[k];
+                let pinned = match l.as_valve().map(|v| v.valve) {
+                    Some(ValveType::PressureReducing) => Some((l.to, 1.0)),
+                    Some(ValveType::PressureSustaining) => Some((l.from, -1.0)),
+                    _ => None,
+                };
+                if let Some((node, sign)) = pinned {
+                    self.pinned.push(Pinned { core: i as u32, link: c.link, node: node as u32, sign, change: 0.0 });
+                    mode = MODE_PINNED;
+                }
+            }
+            if mode != MODE_CLOSED {
+                let s = c.slots;
+                if s.from != NONE && self.free[s.from as usize] {
+                    mode |= FREE_FROM;
+                }
+                if s.to != NONE && self.free[s.to as usize] {
+                    mode |= FREE_TO;
+                }
+            }
+            // The law bit stays as the laws were built.
+            self.mode[i] = mode | (self.mode[i] & LAW_GENERAL);
+        }
+    }
+
+    /// The active pressure valve whose flow changed most in the last step, if any.
+    pub(super) fn drifting_pressure_valve(&self) -> Option<usize> {
+        self.pinned.iter().max_by(|a, b| a.change.total_cmp(&b.change)).map(|v| v.link as usize)
+    }
+
+    pub(super) fn not_converged(
+        &self,
+        model: &Model,
+        iterations: u32,
+        head_change: f64,
+        flow_change: f64,
+    ) -> SolveError {
+        let energy: Vec<f64> =
+            energy_residuals(&self.structure.ends, &self.laws, &self.flow, &self.head, &self.on_law).collect();
+        // The last head corrections are still in `delta`.
+        let mut worst_nodes: Vec<Offender> = (0..self.structure.n)
+            .filter(|&u| self.free[u])
+            .map(|u| {
+                let node = self.structure.node_of_unknown[u] as usize;
+                Offender { id: model.nodes()[node].id.to_string(), value: self.delta[u].abs() }
+            })
+            .filter(|o| o.value.is_finite())
+            .collect();
+        worst_nodes.sort_by(|a, b| b.value.total_cmp(&a.value));
+        worst_nodes.truncate(5);
+        let mut worst_links: Vec<Offender> = model
+            .links()
+            .iter()
+            .enumerate()
+            .filter(|(k, _)| self.on_law[*k])
+            .map(|(k, l)| Offender { id: l.id.to_string(), value: energy[k] })
+            .collect();
+        worst_links.sort_by(|a, b| b.value.total_cmp(&a.value));
+        worst_links.truncate(5);
+        SolveError::NotConverged {
+            iterations,
+            head_change,
+            flow_change,
+            energy_residual: energy.iter().copied().fold(0.0, f64::max),
+            worst_nodes,
+            worst_links,
+        }
+    }
+}
