@@ -179,10 +179,8 @@ impl LinkLaw {
                 match &p.drive {
                     PumpDrive::Curve { curve, .. } => {
                         let q_char = characteristic_flow(curve, speed);
-                        let law = LinkLaw {
-                            kind: Kind::Curve { curve: Box::new(curve.clone()), speed: speed },
-                            min_slope: 0.0,
-                        };
+                        let law =
+                            LinkLaw { kind: Kind::Curve { curve: Box::new(curve.clone()), speed }, min_slope: 0.0 };
                         // Floor: the mean slope shutoff-to-run-out, times 1e-3.
                         let shutoff = curve.shutoff() * speed * speed;
                         LinkLaw { min_slope: (1e-3 * shutoff / q_char.max(1e-9)).max(MIN_SLOPE), ..law }
