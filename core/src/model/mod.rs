@@ -515,9 +515,9 @@ impl PartialEq for Model {
             options,
             time,
             criteria,
-            fittings,
             outflow,
             map,
+            fittings,
             nodes,
             links,
             node_index: _,
@@ -641,13 +641,11 @@ pub(crate) fn check_fittings(link: &Link, fittings: &[Fitting]) -> Result<(), Mo
                     return fail("angle", format!("must be above 0 and at most 180 degrees, found {}", f.angle));
                 }
             }
-            FittingKind::GateValve => {
-                if !(f.opening.is_finite() && f.opening > 0.0 && f.opening <= 1.0) {
-                    return fail(
-                        "opening",
-                        format!("must be above 0 and at most 1 (the fraction open), found {}", f.opening),
-                    );
-                }
+            FittingKind::GateValve if !(f.opening.is_finite() && f.opening > 0.0 && f.opening <= 1.0) => {
+                return fail(
+                    "opening",
+                    format!("must be above 0 and at most 1 (the fraction open), found {}", f.opening),
+                );
             }
             _ => {}
         }
