@@ -282,14 +282,14 @@ fn pair_model(first: usize, second: usize, series: bool, far_head: f64, main_dia
 #[test]
 fn pressure_reducing_valves_in_parallel_hold_the_higher_setting_and_every_device_pair_settles() {
     let mut failures = Vec::new();
-    for first in 0..PAIR_DEVICES.len() {
-        for second in 0..PAIR_DEVICES.len() {
+    for (first, first_name) in PAIR_DEVICES.iter().enumerate() {
+        for (second, second_name) in PAIR_DEVICES.iter().enumerate() {
             for series in [false, true] {
                 for (far_head, main_diameter) in [(60.0, 0.3), (0.0, 0.15)] {
                     let label = format!(
                         "{} + {} {} (far reservoir {far_head} m)",
-                        PAIR_DEVICES[first],
-                        PAIR_DEVICES[second],
+                        first_name,
+                        second_name,
                         if series { "in series" } else { "side by side" }
                     );
                     let m = pair_model(first, second, series, far_head, main_diameter);

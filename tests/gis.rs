@@ -120,7 +120,8 @@ fn round_trip_of_an_invented_network_keeps_connectivity_lengths_and_paths() {
     // triangles: drawn lengths are exact sums of whole numbers.
     let nodes = [("SRC", [0.0, 0.0]), ("A", [300.0, 400.0]), ("B", [800.0, 1600.0]), ("C", [500.0, 1200.0])];
     // (id, from, to, interior vertices, length = sum of segment lengths)
-    let links: [(&str, &str, &str, Vec<[f64; 2]>, f64); 4] = [
+    type Drawn<'a> = (&'a str, &'a str, &'a str, Vec<[f64; 2]>, f64);
+    let links: [Drawn; 4] = [
         ("P1", "SRC", "A", vec![[3.0, 4.0], [6.0, 8.0]], 500.0),
         ("P2", "A", "B", vec![[500.0, 880.0]], 13.0 * 40.0 + 300.0f64.hypot(720.0)),
         ("P3", "B", "C", vec![], 500.0),

@@ -322,7 +322,7 @@ fn errors_are_printed_once_with_their_snippet_in_check_and_solve() {
         let out = ringmain(&[command.as_ref(), path.as_os_str()]);
         assert_eq!(out.status.code(), Some(2));
         let err = text(&out.stderr);
-        assert_eq!(err.matches("lots").count() + err.matches("demand").count() >= 2, true, "{err}");
+        assert!(err.matches("lots").count() + err.matches("demand").count() >= 2, "{err}");
         let mentions = err.lines().filter(|l| l.to_ascii_lowercase().contains("error")).count();
         assert_eq!(mentions, 1, "{command}: the error must be printed once:\n{err}");
         assert!(err.lines().next().unwrap().starts_with("error: "), "{err}");
