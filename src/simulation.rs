@@ -421,7 +421,11 @@ impl<'a> RunReport<'a> {
                 "pumps": pumps,
                 "lowest_pressure": r.lowest_pressure.map(|(n, p, t)| json!({
                     "node": m.nodes()[n].id, "pressure": self.pressure(p), "time_s": t,
+                    "over": "every solved instant",
                 })),
+                "without_water": r.without_water.iter().map(|d| json!({
+                    "node": m.nodes()[d.node].id, "first_time_s": d.first, "hours": d.time / 3600.0,
+                })).collect::<Vec<_>>(),
                 "volume_balance": {
                     "supplied": self.volume(b.supplied), "delivered": self.volume(b.delivered),
                     "storage_change": self.volume(b.storage_change), "discrepancy": self.volume(b.discrepancy()),
