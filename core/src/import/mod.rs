@@ -4,7 +4,7 @@
 //! collections into a [`Model`] and an [`ImportReport`] of every decision taken.
 //!
 //! The phases, in order (the conventions are those of the README's import section):
-//! 1. **Read** every feature and its mapped attributes ([`features`]); a null attribute is "not
+//! 1. **Read** every feature and its mapped attributes (`features.rs`); a null attribute is "not
 //!    given", an absent one or one of the wrong type is an error naming the file, the feature
 //!    (index and id) and the attribute.
 //! 2. **Drop** zero-length pipes, and duplicates: features whose vertices agree within the snap

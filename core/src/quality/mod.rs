@@ -1,7 +1,7 @@
 //! Water quality over time: water age, source blending and reacting substances, carried by the
 //! flows of an extended-period simulation.
 //!
-//! Entry point: [`simulate`] runs the hydraulic simulation ([`crate::simulate`]) with a
+//! Entry point: [`simulate`] runs the hydraulic simulation ([`mod@crate::simulate`]) with a
 //! [`QualityEngine`] watching every hydraulic step, and returns both results. The engine only
 //! consumes link flows: over each hydraulic interval `[t_i, t_{i+1}]` it takes the mean of the
 //! flows at its two ends (the trapezoidal rule; node demands and tank inflows follow from the
