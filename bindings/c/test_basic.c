@@ -85,11 +85,13 @@ static void check_balances(const ringmain_model *m, const arrays *a) {
         OK(ringmain_model_link_nodes(m, k, &from, &to));
         net[to] += a->flow[k];
         net[from] -= a->flow[k];
-        if (a->connected[from] && a->connected[to]) {
-            EXPECT_NEAR(a->headloss[k], fabs(a->head[from] - a->head[to]), 1e-9);
-        }
         uint32_t kind;
         OK(ringmain_model_link_kind(m, k, &kind));
+        if (a->connected[from] && a->connected[to]) {
+            /* Pumps report H_from - H_to (a gain is a negative loss), other links |H_from - H_to|. */
+            double difference = a->head[from] - a->head[to];
+            EXPECT_NEAR(a->headloss[k], kind == RINGMAIN_LINK_PUMP ? difference : fabs(difference), 1e-9);
+        }
         if (kind == RINGMAIN_LINK_PIPE) {
             /* Mean velocity V = Q / (pi D^2 / 4): flow in L/s, diameter in mm, velocity in m/s. */
             double d;

@@ -2052,7 +2052,8 @@ ringmain_status ringmain_results_velocities(const ringmain_results *results,
 
 /**
  * Copies the head difference across every link (length unit; |H_from − H_to|, for a closed link
- * the difference it holds; NaN when an end is cut off) into `buf`, as `ringmain_results_heads`.
+ * the difference it holds; for a pump signed, H_from − H_to, negative where it lifts the water;
+ * NaN when an end is cut off) into `buf`, as `ringmain_results_heads`.
  *
  * # Safety
  * As `ringmain_results_heads`.
@@ -2133,8 +2134,8 @@ ringmain_status ringmain_results_link_velocity(const ringmain_results *results,
                                                double *out);
 
 /**
- * Writes the head difference across link `link` (length unit) to `*out`. Errors:
- * `RINGMAIN_OUT_OF_RANGE`.
+ * Writes the head difference across link `link` (length unit; for a pump signed, H_from − H_to,
+ * as `ringmain_results_headlosses`) to `*out`. Errors: `RINGMAIN_OUT_OF_RANGE`.
  *
  * # Safety
  * As `ringmain_results_node_head`.

@@ -59,7 +59,22 @@ impl ringmain_results {
             demand: map(&s.demand, Units::flow_out),
             flow: map(&s.flow, Units::flow_out),
             velocity: map(&s.velocity, Units::length_out),
-            headloss: map(&s.headloss, Units::length_out),
+            // As the command-line program reports it: pumps signed, H_from − H_to (a head gain is a
+            // negative loss), every other link |H_from − H_to|.
+            headloss: model
+                .links()
+                .iter()
+                .zip(&s.headloss)
+                .map(
+                    |(l, &h)| {
+                        if l.as_pump().is_some() {
+                            u.length_out(s.head[l.from] - s.head[l.to])
+                        } else {
+                            u.length_out(h)
+                        }
+                    },
+                )
+                .collect(),
             state: s.link_state.iter().map(|&st| ringmain_link_state::of(st) as u32).collect(),
             connected: s.connected.clone(),
             converged: s.converged,
@@ -421,7 +436,8 @@ pub unsafe extern "C" fn ringmain_results_velocities(
 }
 
 /// Copies the head difference across every link (length unit; |H_from − H_to|, for a closed link
-/// the difference it holds; NaN when an end is cut off) into `buf`, as `ringmain_results_heads`.
+/// the difference it holds; for a pump signed, H_from − H_to, negative where it lifts the water;
+/// NaN when an end is cut off) into `buf`, as `ringmain_results_heads`.
 ///
 /// # Safety
 /// As `ringmain_results_heads`.
@@ -558,8 +574,8 @@ pub unsafe extern "C" fn ringmain_results_link_velocity(
     ffi_boundary! { unsafe { link_value(results, link, out, |r| &r.velocity) } }
 }
 
-/// Writes the head difference across link `link` (length unit) to `*out`. Errors:
-/// `RINGMAIN_OUT_OF_RANGE`.
+/// Writes the head difference across link `link` (length unit; for a pump signed, H_from − H_to,
+/// as `ringmain_results_headlosses`) to `*out`. Errors: `RINGMAIN_OUT_OF_RANGE`.
 ///
 /// # Safety
 /// As `ringmain_results_node_head`.
