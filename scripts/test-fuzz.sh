@@ -33,10 +33,10 @@ scripts/fuzz-seed.sh
 log="$PWD/target/fuzz-read_model.log"
 mkdir -p target
 cd fuzz
-cargo fuzz build --locked read_model
+cargo fuzz build read_model
 mkdir -p artifacts/read_model
 # -max_len: large enough for the seed models; -rss_limit_mb: the machine's memory is shared.
-if ! cargo fuzz run --locked read_model corpus/read_model -- \
+if ! cargo fuzz run read_model corpus/read_model -- \
   -max_total_time="$seconds" -max_len=65536 -rss_limit_mb=2048 -print_final_stats=1 >"$log" 2>&1; then
   tail -n 60 "$log" >&2
   echo "the fuzzer found a crash; the whole log is in $log" >&2
