@@ -222,12 +222,10 @@ impl<'a> RunReport<'a> {
         out
     }
 
-    pub fn to_json(&self) -> Value {
-        let m = self.model;
+    /// The per-tank summary in JSON (every JSON writer of a run uses it).
+    fn tanks_json(&self) -> Vec<Value> {
         let r = self.run;
-        let u = &m.units;
-        let tanks: Vec<Value> = r
-            .tank_summary
+        r.tank_summary
             .iter()
             .enumerate()
             .map(|(j, s)| {
@@ -239,9 +237,13 @@ impl<'a> RunReport<'a> {
                     "hours_full": s.time_full / 3600.0, "hours_empty": s.time_empty / 3600.0,
                 })
             })
-            .collect();
-        let pumps: Vec<Value> = r
-            .pump_summary
+            .collect()
+    }
+
+    /// The per-pump summary in JSON (every JSON writer of a run uses it).
+    fn pumps_json(&self) -> Vec<Value> {
+        let r = self.run;
+        r.pump_summary
             .iter()
             .enumerate()
             .map(|(i, p)| {
@@ -253,7 +255,15 @@ impl<'a> RunReport<'a> {
                     "kwh_per_m3": finite_or_null(p.kwh_per_m3()),
                 })
             })
-            .collect();
+            .collect()
+    }
+
+    pub fn to_json(&self) -> Value {
+        let m = self.model;
+        let r = self.run;
+        let u = &m.units;
+        let tanks = self.tanks_json();
+        let pumps = self.pumps_json();
         let b = &r.balance;
         let series: Vec<Value> = r
             .series
@@ -386,34 +396,8 @@ impl<'a> RunReport<'a> {
     fn json_tail(&self) -> Value {
         let m = self.model;
         let r = self.run;
-        let tanks: Vec<Value> = r
-            .tank_summary
-            .iter()
-            .enumerate()
-            .map(|(j, s)| {
-                json!({
-                    "id": self.tank_id(j),
-                    "min_level": self.len(s.min_level.0), "min_level_time_s": s.min_level.1,
-                    "max_level": self.len(s.max_level.0), "max_level_time_s": s.max_level.1,
-                    "start_level": self.len(s.start_level), "end_level": self.len(s.end_level),
-                    "hours_full": s.time_full / 3600.0, "hours_empty": s.time_empty / 3600.0,
-                })
-            })
-            .collect();
-        let pumps: Vec<Value> = r
-            .pump_summary
-            .iter()
-            .enumerate()
-            .map(|(i, p)| {
-                json!({
-                    "id": self.pump_id(i), "hours": p.hours(), "starts": p.starts,
-                    "volume": self.volume(p.volume), "energy_kwh": p.kwh(), "cost": p.cost,
-                    "peak_power_kw": p.peak_power / 1e3,
-                    "mean_efficiency": finite_or_null(p.mean_efficiency() * 100.0),
-                    "kwh_per_m3": finite_or_null(p.kwh_per_m3()),
-                })
-            })
-            .collect();
+        let tanks = self.tanks_json();
+        let pumps = self.pumps_json();
         let b = &r.balance;
         let mut doc = json!({
             "summary": {
