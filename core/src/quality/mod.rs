@@ -145,7 +145,7 @@ pub struct QualityEngine<'m> {
     /// `out_links[out_start[i]..out_start[i + 1]]` (set per interval, so that a transport step
     /// visits only links that carry water).
     out_start: Vec<u32>,
-    out_links: Vec<u32>,
+    out_links: Vec<Outflow>,
     indeg: Vec<u32>,
     /// Per node: what it is to the transport.
     role: Vec<Role>,
@@ -535,9 +535,16 @@ impl<'m> QualityEngine<'m> {
             self.out_start.push(self.out_links.len() as u32);
             let n = self.order[oi];
             for a in self.adj_start[n as usize] as usize..self.adj_start[n as usize + 1] as usize {
-                let k = self.adj[a];
-                if self.up[k as usize] == n {
-                    self.out_links.push(k);
+                let k = self.adj[a] as usize;
+                if self.up[k] == n {
+                    let q = self.flow[k];
+                    self.out_links.push(Outflow {
+                        link: k as u32,
+                        down: self.down[k],
+                        forward: q > 0.0,
+                        piped: self.seg.volume[k] > 0.0,
+                        flow: q.abs(),
+                    });
                 }
             }
         }
@@ -681,15 +688,16 @@ impl<'m> QualityEngine<'m> {
                     self.balance[c].outflow += x[c] * demand;
                 }
             }
-            self.value[n * nc..(n + 1) * nc].copy_from_slice(&x);
+            for c in 0..nc {
+                self.value[n * nc + c] = x[c];
+            }
             // Into the outflowing links, out at their far ends.
             for a in self.out_start[oi] as usize..self.out_start[oi + 1] as usize {
-                let k = self.out_links[a] as usize;
-                let w = self.down[k] as usize;
-                let vol = self.flow[k].abs() * dt;
+                let Outflow { link: k, down: w, forward, piped, flow } = self.out_links[a];
+                let (k, w) = (k as usize, w as usize);
+                let vol = flow * dt;
                 let m = &mut self.acc_mass[w * nc..(w + 1) * nc];
-                if self.seg.volume[k] > 0.0 {
-                    let forward = self.flow[k] > 0.0;
+                if piped {
                     self.seg.push(k, forward, vol, &x, t);
                     let taken = self.seg.pop(k, !forward, vol, m, t);
                     if taken < vol {
@@ -775,6 +783,20 @@ impl StepObserver for QualityEngine<'_> {
             self.record();
         }
     }
+}
+
+/// A link the sweep sends water into (its data gathered in the order of the sweep).
+#[derive(Clone, Copy, Debug)]
+struct Outflow {
+    link: u32,
+    /// The node it delivers to.
+    down: u32,
+    /// Whether it flows from its `from` node to its `to` node.
+    forward: bool,
+    /// Whether it holds water (a pipe) or passes it through at once (pumps, valves).
+    piped: bool,
+    /// |Q|, m³/s.
+    flow: f64,
 }
 
 /// What a node is to the transport.

@@ -51,22 +51,25 @@ pub struct Segments {
     merge: Vec<Merge>,
     /// Per link: its segments.
     rings: Vec<Ring>,
-    /// Per link and constituent: `Σ s · v` over the segments.
-    stored: Vec<f64>,
-    /// Per link and constituent: `exp(Λ)` (decay constituents only; 1 otherwise).
-    lam: Vec<f64>,
+    /// Per link: for each constituent `Σ s · v` over the segments, then for each constituent
+    /// `exp(Λ)` (decay constituents only; 1 otherwise); side by side, so that a pipe's step
+    /// touches one short run of memory.
+    meta: Vec<f64>,
     /// Per link: its volume, m³ (0: passes water through at once).
     pub volume: Vec<f64>,
-    /// Per link: the volume its segments hold (the pipe's volume up to round-off; a layered
-    /// tank's contents).
-    held: Vec<f64>,
 }
 
 /// One pipe's segments: a ring buffer of records `[volume, s_0 .. s_{nc−1}]`, record 0 at the
 /// pipe's `from` end. Water enters at one end and leaves at the other, so a ring (rather than
 /// one growable queue of numbers) makes both a push and a pop a few stores, with no moves; its
 /// capacity is a power of two, grown by doubling, so memory stays within twice the segments held.
+///
+/// The ring also keeps what a step needs of its pipe beside it (the volume held, and the
+/// pipe's volume for the round-off threshold), one cache line per pipe: a step visits the pipes
+/// in the order of the flow, not of their indices, and on networks of thousands of pipes the
+/// time goes into fetching memory, not into arithmetic.
 #[derive(Clone, Debug, Default)]
+#[repr(align(64))]
 struct Ring {
     /// `cap × stride` numbers.
     buf: Vec<f64>,
@@ -76,6 +79,11 @@ struct Ring {
     len: u32,
     /// Records the buffer can hold (0 or a power of two).
     cap: u32,
+    /// The volume the segments hold, m³ (the pipe's volume up to round-off; a layered tank's
+    /// contents).
+    held: f64,
+    /// Below this a segment's remaining volume is round-off, m³.
+    crumb: f64,
 }
 
 impl Ring {
@@ -151,16 +159,12 @@ impl Segments {
     pub fn new(transforms: Vec<Transform>, merge: Vec<Merge>, volume: Vec<f64>, initial: &[Vec<f64>]) -> Self {
         let nc = transforms.len();
         let n = volume.len();
-        let mut s = Segments {
-            nc,
-            transforms,
-            merge,
-            rings: vec![Ring::default(); n],
-            stored: vec![0.0; n * nc],
-            lam: vec![1.0; n * nc],
-            held: vec![0.0; n],
-            volume,
-        };
+        let mut meta = vec![0.0; n * 2 * nc];
+        for p in 0..n {
+            meta[p * 2 * nc + nc..(p + 1) * 2 * nc].fill(1.0);
+        }
+        let rings = volume.iter().map(|v| Ring { crumb: 1e-14 * v, ..Ring::default() }).collect();
+        let mut s = Segments { nc, transforms, merge, rings, meta, volume };
         for p in 0..n {
             if s.volume[p] > 0.0 {
                 let v = s.volume[p];
@@ -190,7 +194,7 @@ impl Segments {
         match self.transforms[c] {
             Transform::Age => x - t,
             Transform::Plain => x,
-            Transform::Decay => x / self.lam[p * self.nc + c],
+            Transform::Decay => x / self.meta[(2 * p + 1) * self.nc + c],
         }
     }
 
@@ -199,7 +203,7 @@ impl Segments {
         match self.transforms[c] {
             Transform::Age => s + t,
             Transform::Plain => s,
-            Transform::Decay => s * self.lam[p * self.nc + c],
+            Transform::Decay => s * self.meta[(2 * p + 1) * self.nc + c],
         }
     }
 
@@ -210,13 +214,13 @@ impl Segments {
         match self.transforms[c] {
             Transform::Age => stored + t * vol,
             Transform::Plain => stored,
-            Transform::Decay => stored * self.lam[p * self.nc + c],
+            Transform::Decay => stored * self.meta[(2 * p + 1) * self.nc + c],
         }
     }
 
     /// Current mass of constituent `c` held in pipe `p`.
     pub fn mass(&self, p: usize, c: usize, t: f64) -> f64 {
-        self.mass_of(p, c, self.stored[p * self.nc + c], self.held[p], t)
+        self.mass_of(p, c, self.meta[2 * p * self.nc + c], self.rings[p].held, t)
     }
 
     /// Puts `vol` of water with current values `x` into pipe `p` at its `from` end (or its `to`
@@ -225,7 +229,7 @@ impl Segments {
         if vol <= 0.0 {
             return;
         }
-        self.held[p] += vol;
+        self.rings[p].held += vol;
         let nc = self.nc;
         let stride = nc + 1;
         let mut rec = [0.0f64; STACK];
@@ -238,7 +242,7 @@ impl Segments {
         };
         for c in 0..nc {
             s_new[c] = self.to_stored(p, c, x[c], t);
-            self.stored[p * nc + c] += s_new[c] * vol;
+            self.meta[2 * p * nc + c] += s_new[c] * vol;
         }
         let ring = &self.rings[p];
         if ring.len > 0 {
@@ -281,8 +285,8 @@ impl Segments {
             &mut heap
         };
         let mut taken = 0.0;
-        let crumb = 1e-14 * self.volume[p];
         let ring = &mut self.rings[p];
+        let crumb = ring.crumb;
         while need > 0.0 && ring.len > 0 {
             let e = ring.end(at_from, stride);
             let v = ring.buf[e];
@@ -299,16 +303,11 @@ impl Segments {
             }
         }
         let empty = ring.len == 0;
+        ring.held = if empty { 0.0 } else { ring.held - taken };
         for c in 0..nc {
-            self.stored[p * nc + c] -= acc[c];
             mass[c] += self.mass_of(p, c, acc[c], taken, t);
-        }
-        self.held[p] -= taken;
-        if empty {
-            self.held[p] = 0.0;
-            for c in 0..nc {
-                self.stored[p * nc + c] = 0.0;
-            }
+            let stored = &mut self.meta[2 * p * nc + c];
+            *stored = if empty { 0.0 } else { *stored - acc[c] };
         }
         taken
     }
@@ -328,17 +327,18 @@ impl Segments {
             return 0.0;
         }
         let before = self.mass(p, c, t);
-        let i = p * self.nc + c;
-        self.lam[i] *= growth;
-        if !(FACTOR_LOW..=FACTOR_HIGH).contains(&self.lam[i]) {
+        let i = (2 * p + 1) * self.nc + c;
+        self.meta[i] *= growth;
+        if !(FACTOR_LOW..=FACTOR_HIGH).contains(&self.meta[i]) {
             self.renormalise(p, c);
         }
         before * em1
     }
 
     fn renormalise(&mut self, p: usize, c: usize) {
-        let i = p * self.nc + c;
-        let f = self.lam[i];
+        let nc = self.nc;
+        let (i, l) = (2 * p * nc + c, (2 * p + 1) * nc + c);
+        let f = self.meta[l];
         let stride = self.nc + 1;
         let ring = &mut self.rings[p];
         let mut sum = 0.0;
@@ -347,8 +347,8 @@ impl Segments {
             ring.buf[e + 1 + c] *= f;
             sum += ring.buf[e + 1 + c] * ring.buf[e];
         }
-        self.stored[i] = sum;
-        self.lam[i] = 1.0;
+        self.meta[i] = sum;
+        self.meta[l] = 1.0;
     }
 
     /// Recomputes the stored sums of every pipe from its segments (removes the round-off that
@@ -356,10 +356,10 @@ impl Segments {
     pub fn resum(&mut self) {
         let nc = self.nc;
         let stride = nc + 1;
-        for (p, ring) in self.rings.iter().enumerate() {
-            self.held[p] = ring.offsets(stride).map(|e| ring.buf[e]).sum();
+        for (p, ring) in self.rings.iter_mut().enumerate() {
+            ring.held = ring.offsets(stride).map(|e| ring.buf[e]).sum();
             for c in 0..nc {
-                self.stored[p * nc + c] = ring.offsets(stride).map(|e| ring.buf[e + 1 + c] * ring.buf[e]).sum();
+                self.meta[2 * p * nc + c] = ring.offsets(stride).map(|e| ring.buf[e + 1 + c] * ring.buf[e]).sum();
             }
         }
     }
@@ -376,7 +376,7 @@ impl Segments {
 
     /// Volume-weighted mean of constituent `c` in pipe `p`.
     pub fn mean(&self, p: usize, c: usize, t: f64) -> f64 {
-        let v = self.held[p];
+        let v = self.rings[p].held;
         if v > 0.0 {
             self.mass(p, c, t) / v
         } else {
