@@ -929,11 +929,11 @@ fn simulate(
         }
     }
     let with_quality = !model.time.quality.constituents.is_empty();
-    // The whole series is kept where what comes after the run needs it: the charts, the
-    // water-quality results (written whole) and the map formats. Otherwise it streams.
-    let keep = plot_dir.is_some() || with_quality || format == OutputFormat::Geojson;
+    // The whole series is kept where what comes after the run needs it: the charts and the map
+    // formats. Otherwise it streams, water-quality values beside the hydraulics.
+    let keep = plot_dir.is_some() || format == OutputFormat::Geojson;
     // Where the series goes, opened before the run so that it streams as the run goes.
-    let streamed = !with_quality && matches!(format, OutputFormat::Json | OutputFormat::Csv | OutputFormat::Parquet);
+    let streamed = matches!(format, OutputFormat::Json | OutputFormat::Csv | OutputFormat::Parquet);
     let mut part = None;
     let mut files = Vec::new();
     let sink: Option<Box<dyn Write>> = match (streamed, format, output) {
@@ -979,23 +979,34 @@ fn simulate(
     let options = ringmain_core::SimulateOptions::default();
     let mut failure: Option<std::io::Error> = None;
     let mut reports = 0usize;
-    let result = if with_quality {
-        ringmain_core::quality::simulate(&model, &options, &mut |f| progress.update(f)).map(|(r, q)| (r, Some(q)))
-    } else if keep {
-        ringmain_core::simulate::simulate_with(&model, &options, &mut |f| progress.update(f)).map(|r| (r, None))
-    } else {
-        ringmain_core::simulate::simulate_streaming(&model, &options, &mut |f| progress.update(f), &mut |s| {
-            reports += 1;
-            match writer.as_mut().map_or(Ok(()), |w| w.snapshot(s)) {
-                Ok(()) => Ok(()),
-                Err(e) => {
-                    let message = e.to_string();
-                    failure = Some(e);
-                    Err(message)
-                }
+    let mut sink = |s: &ringmain_core::simulate::Snapshot, q: Option<&ringmain_core::quality::QualityRecord>| {
+        reports += 1;
+        match writer.as_mut().map_or(Ok(()), |w| w.snapshot(s, q)) {
+            Ok(()) => Ok(()),
+            Err(e) => {
+                let message = e.to_string();
+                failure = Some(e);
+                Err(message)
             }
-        })
-        .map(|r| (r, None))
+        }
+    };
+    let result = match (with_quality, keep) {
+        (true, true) => {
+            ringmain_core::quality::simulate(&model, &options, &mut |f| progress.update(f)).map(|(r, q)| (r, Some(q)))
+        }
+        (true, false) => {
+            ringmain_core::quality::simulate_streaming(&model, &options, &mut |f| progress.update(f), &mut sink)
+                .map(|(r, q)| (r, Some(q)))
+        }
+        (false, true) => {
+            ringmain_core::simulate::simulate_with(&model, &options, &mut |f| progress.update(f)).map(|r| (r, None))
+        }
+        (false, false) => {
+            ringmain_core::simulate::simulate_streaming(&model, &options, &mut |f| progress.update(f), &mut |s| {
+                sink(s, None)
+            })
+            .map(|r| (r, None))
+        }
     };
     progress.finish();
     let (run, quality) = match result {
@@ -1026,7 +1037,7 @@ fn simulate(
     if let (true, Some(w)) = (keep, writer.as_mut()) {
         for s in &run.series {
             reports += 1;
-            if let Err(e) = w.snapshot(s) {
+            if let Err(e) = w.snapshot(s, quality.as_ref().and_then(|q| q.at(s.time))) {
                 if e.kind() == std::io::ErrorKind::BrokenPipe {
                     return ExitCode::SUCCESS;
                 }
@@ -1076,7 +1087,8 @@ fn simulate(
         if report.checks.iter().any(|c| !c.passed()) { ExitCode::from(check::EXIT_FAILED) } else { ExitCode::SUCCESS };
     let finished = match writer.as_mut() {
         Some(w) => w.finish(&report),
-        None if format == OutputFormat::Table => {
+        // The table (every other format has a writer, GeoJSON returned above).
+        None => {
             let code = match output {
                 None => write_out(&report.to_table(), None),
                 Some(out) => {
@@ -1088,26 +1100,6 @@ fn simulate(
                 }
             };
             return if code == ExitCode::SUCCESS { failed } else { code };
-        }
-        None => {
-            // Water quality: the series written whole, with the constituents beside it.
-            let written = write_with("the results", output, |out| match format {
-                OutputFormat::Json => {
-                    serde_json::to_writer_pretty(&mut *out, &report.to_json())?;
-                    out.write_all(b"\n")
-                }
-                _ => out.write_all(report.to_csv().as_bytes()),
-            });
-            if written != ExitCode::SUCCESS {
-                return written;
-            }
-            if let Some(out) = output {
-                let mut text = report.to_table();
-                text.push_str(&format!("wrote {}\n", out.display()));
-                let code = write_out(&text, None);
-                return if code == ExitCode::SUCCESS { failed } else { code };
-            }
-            return failed;
         }
     };
     drop(writer);

@@ -452,3 +452,115 @@ proptest! {
         }
     }
 }
+
+/// A model with a tank (so that links carry water both ways over the day) for the writers.
+fn streamed_model() -> String {
+    random_model(7, "complete")
+}
+
+/// The expected value of every constituent at every node and link at every reported time, in
+/// reported units: the engine's own records (what the writers must hand on, unchanged).
+fn engine_values(model: &Model) -> Vec<(f64, Vec<Vec<f64>>, Vec<Vec<f64>>)> {
+    let (_, q) = run(model);
+    q.records
+        .iter()
+        .map(|r| {
+            let scaled = |v: &Vec<Vec<f64>>| {
+                v.iter()
+                    .zip(&q.constituents)
+                    .map(|(x, c)| x.iter().map(|x| x * c.report_scale()).collect())
+                    .collect::<Vec<Vec<f64>>>()
+            };
+            (r.time, scaled(&r.node), scaled(&r.link))
+        })
+        .collect()
+}
+
+fn close(a: f64, b: f64) -> bool {
+    (a - b).abs() <= 1e-6 * a.abs().max(b.abs()).max(1e-3)
+}
+
+/// Water-quality series streamed as the run goes (JSON, CSV, Parquet) carry every
+/// constituent's value at every node and link at every reported time, equal to the engine's
+/// records and to the series kept whole (`--plot`). The class: a writer of a quality run that
+/// drops, shifts or rescales a value.
+#[test]
+fn quality_series_streamed_in_every_format_equal_the_engine() {
+    let dir = scratch("streamed");
+    let text = streamed_model();
+    std::fs::write(dir.join("m.toml"), &text).unwrap();
+    let model = read(&text);
+    let ids: Vec<String> = model.time.quality.constituents.iter().map(|c| c.id.to_string()).collect();
+    let expected = engine_values(&model);
+    // JSON, streamed and kept.
+    let mut docs = Vec::new();
+    for extra in [&[][..], &["--plot", "charts"][..]] {
+        let mut args = vec!["simulate", "m.toml", "--format", "json", "--output", "s.json", "--force"];
+        args.extend_from_slice(extra);
+        let out = ringmain(&args, &dir);
+        assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
+        let v: serde_json::Value = serde_json::from_slice(&std::fs::read(dir.join("s.json")).unwrap()).unwrap();
+        let series = v["series"].as_array().unwrap().clone();
+        assert_eq!(series.len(), expected.len());
+        for (s, (t, node, link)) in series.iter().zip(&expected) {
+            assert_eq!(s["time_s"].as_f64().unwrap(), *t);
+            for (key, values) in [("nodes", node), ("links", link)] {
+                for (i, item) in s[key].as_array().unwrap().iter().enumerate() {
+                    for (c, id) in ids.iter().enumerate() {
+                        let got = item["quality"][id].as_f64().unwrap_or(f64::NAN);
+                        assert!(close(got, values[c][i]), "{key} {i} {id} at {t}: {got} vs {}", values[c][i]);
+                    }
+                }
+            }
+        }
+        docs.push(series);
+    }
+    assert_eq!(docs[0], docs[1], "streamed and kept series differ");
+    // CSV: one row per value, quantity = constituent id.
+    let out = ringmain(&["simulate", "m.toml", "--format", "csv", "--output", "s.csv", "--force"], &dir);
+    assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
+    let csv = std::fs::read_to_string(dir.join("s.csv")).unwrap();
+    let mut seen = 0;
+    for line in csv.lines().skip(1) {
+        let f: Vec<&str> = line.split(',').collect();
+        let Some(c) = ids.iter().position(|id| id == f[4]) else { continue };
+        let t = f[0].parse::<f64>().unwrap() * 3600.0;
+        let (_, node, link) = expected.iter().find(|e| (e.0 - t).abs() < 1e-3).expect("a reported time");
+        let (values, index) = match f[2] {
+            "node" => (node, model.node_index(f[3]).unwrap()),
+            _ => (link, model.link_index(f[3]).unwrap()),
+        };
+        let got: f64 = f[5].parse().unwrap();
+        // Seven significant digits in CSV.
+        assert!((got - values[c][index]).abs() <= 1e-6 * values[c][index].abs().max(1e-3), "{line}");
+        seen += 1;
+    }
+    assert_eq!(seen, expected.len() * ids.len() * (model.nodes().len() + model.links().len()));
+    // Parquet: a column `quality.<id>` in the node and link tables.
+    let out = ringmain(&["simulate", "m.toml", "--format", "parquet", "--output", "pq", "--force"], &dir);
+    assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
+    for (table, count) in [("nodes", model.nodes().len()), ("links", model.links().len())] {
+        let file = std::fs::File::open(dir.join("pq").join(format!("{table}.parquet"))).unwrap();
+        let reader =
+            parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder::try_new(file).unwrap().build().unwrap();
+        let mut row = 0;
+        for batch in reader {
+            let batch = batch.unwrap();
+            let time = batch.column_by_name("time_s").unwrap();
+            let time = time.as_any().downcast_ref::<arrow_array::Float64Array>().unwrap();
+            for (c, id) in ids.iter().enumerate() {
+                let col = batch.column_by_name(&format!("quality.{id}")).unwrap_or_else(|| panic!("{table} {id}"));
+                let col = col.as_any().downcast_ref::<arrow_array::Float64Array>().unwrap();
+                for r in 0..batch.num_rows() {
+                    let (t, node, link) = &expected[(row + r) / count];
+                    assert_eq!(time.value(r), *t);
+                    let values = if table == "nodes" { node } else { link };
+                    let want = values[c][(row + r) % count];
+                    assert!(close(col.value(r), want), "{table} {id} row {}: {} vs {want}", row + r, col.value(r));
+                }
+            }
+            row += batch.num_rows();
+        }
+        assert_eq!(row, expected.len() * count);
+    }
+}

@@ -113,6 +113,45 @@ pub fn simulate(
     Ok((run, engine.finish()))
 }
 
+/// Where [`simulate_streaming`] sends each reported state, with the water-quality values of
+/// that instant (`None` only if the transport has no record of it, which its report times
+/// agreeing with the hydraulics' rule out). An error stops the run as in
+/// [`crate::simulate::simulate_streaming`].
+pub type QualitySink<'s> = dyn FnMut(&crate::simulate::Snapshot, Option<&QualityRecord>) -> Result<(), String> + 's;
+
+/// Runs the model's `[simulation]` with its `[[quality]]` constituents and hands every reported
+/// state to `sink` with its water-quality values as soon as it is final, instead of keeping the
+/// series. The returned [`Run`] has no series; the [`QualityRun`] keeps of each reported time
+/// only the node values (what the summary, the criteria and the charts read: one number per
+/// node and constituent a report), the link values being dropped once handed on.
+pub fn simulate_streaming(
+    model: &Model,
+    options: &SimulateOptions,
+    progress: &mut dyn FnMut(f64),
+    sink: &mut QualitySink<'_>,
+) -> Result<(Run, QualityRun), SimulateError> {
+    let engine = std::cell::RefCell::new(QualityEngine::new(model)?);
+    // The run calls the observer and the sink in turn, never one inside the other, so each
+    // borrow of the engine ends before the next begins.
+    struct Shared<'a, 'm>(&'a std::cell::RefCell<QualityEngine<'m>>);
+    impl StepObserver for Shared<'_, '_> {
+        fn interval(&mut self, t0: f64, t1: f64, start: &Solution, end: &Solution) {
+            self.0.borrow_mut().interval(t0, t1, start, end);
+        }
+    }
+    let mut observer = Shared(&engine);
+    let run = crate::simulate::simulate_streaming_observed(model, options, progress, &mut observer, &mut |s| {
+        let mut e = engine.borrow_mut();
+        let found = e.records.iter().rposition(|r| (r.time - s.time).abs() <= 1e-6 * s.time.max(1.0));
+        let result = sink(s, found.map(|i| &e.records[i]));
+        if let Some(i) = found {
+            e.records[i].link = Vec::new();
+        }
+        result
+    })?;
+    Ok((run, engine.into_inner().finish()))
+}
+
 /// The transport of every constituent through the network; a [`StepObserver`] of a simulation.
 #[derive(Debug)]
 pub struct QualityEngine<'m> {
