@@ -1049,6 +1049,7 @@ fn simulate(
     }
     let mut report = simulation::RunReport::new(&model, &run);
     report.quality = quality.as_ref();
+    report.criteria = criteria.as_ref();
     if let Some(criteria) = criteria.as_ref().filter(|c| c.has_quality_limits()) {
         let Some(q) = quality.as_ref() else {
             eprintln!(

@@ -26,6 +26,8 @@ pub struct RunReport<'a> {
     pub quality: Option<&'a QualityRun>,
     /// Criteria checked over the run (water quality).
     pub checks: Vec<CheckResult>,
+    /// The criteria the run was checked against, when any (the charts draw their limits).
+    pub criteria: Option<&'a ringmain_core::analysis::Criteria>,
 }
 
 pub(crate) fn finite_or_null(v: f64) -> Value {
@@ -38,7 +40,14 @@ pub(crate) fn finite_or_null(v: f64) -> Value {
 
 impl<'a> RunReport<'a> {
     pub fn new(model: &'a Model, run: &'a Run) -> Self {
-        RunReport { model, run, density: model.options.water_properties().density, quality: None, checks: Vec::new() }
+        RunReport {
+            model,
+            run,
+            density: model.options.water_properties().density,
+            quality: None,
+            checks: Vec::new(),
+            criteria: None,
+        }
     }
 
     pub fn len(&self, v: f64) -> f64 {

@@ -965,6 +965,8 @@ impl<'m> Engine<'m> {
                 .map(|(&k, p)| if p[0] > 0.0 { conditions.pump_speed(k) } else { 0.0 })
                 .collect(),
             pump_power: self.k1.pumps.iter().map(|p| p[2]).collect(),
+            pump_energy: self.totals.pumps.iter().map(|p| p[2]).collect(),
+            pump_cost: self.cost.clone(),
             price: self.price(),
         };
         if sink.is_some() {
