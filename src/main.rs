@@ -156,7 +156,8 @@ enum Command {
         /// The model file (.toml or .json); its nodes need coordinates.
         model: PathBuf,
         /// The quantity to colour by: pressure, head, demand, delivered, elevation (nodes);
-        /// flow, velocity, headloss, unit_headloss (links).
+        /// flow, velocity, headloss, unit_headloss (links); a water-quality constituent's id
+        /// (nodes: at --at, or each node's worst over the run).
         #[arg(long, default_value = "pressure")]
         quantity: String,
         /// A reported instant of the simulation (elapsed time such as "6h").
@@ -842,7 +843,14 @@ fn results_for_map<'a>(path: &Path, model: &'a Model, at: Option<f64>) -> Result
         ExitCode::from(EXIT_INVALID)
     };
     if model.time.simulation.is_some() {
-        let run = match ringmain_core::simulate::simulate(model) {
+        // With water-quality constituents the run carries them, and the map can colour by them.
+        let options = ringmain_core::SimulateOptions::default();
+        let run = if model.time.quality.constituents.is_empty() {
+            ringmain_core::simulate::simulate(model).map(|r| (r, None))
+        } else {
+            ringmain_core::quality::simulate(model, &options, &mut |_| {}).map(|(r, q)| (r, Some(q)))
+        };
+        let (run, quality) = match run {
             Ok(r) => r,
             Err(ringmain_core::SimulateError::Model(e)) => return Err(fail(e)),
             Err(e) => {
@@ -850,7 +858,11 @@ fn results_for_map<'a>(path: &Path, model: &'a Model, at: Option<f64>) -> Result
                 return Err(ExitCode::from(EXIT_NOT_CONVERGED));
             }
         };
-        return gis::GisResults::from_run(model, &run, at).map_err(fail);
+        let mut results = gis::GisResults::from_run(model, &run, at).map_err(fail)?;
+        if let Some(q) = &quality {
+            results.add_quality(q, at).map_err(fail)?;
+        }
+        return Ok(results);
     }
     if at.is_some() {
         eprintln!("error: --at: {} has no [simulation] table; a snapshot has no instants", path.display());
@@ -1031,7 +1043,13 @@ fn simulate(
         }
     };
     if format == OutputFormat::Geojson {
-        return write_geojson(path, output, gis::GisResults::from_run(&model, &run, at));
+        let results = gis::GisResults::from_run(&model, &run, at).and_then(|mut r| {
+            if let Some(q) = &quality {
+                r.add_quality(q, at)?;
+            }
+            Ok(r)
+        });
+        return write_geojson(path, output, results);
     }
     // A kept series goes through the same writers, state by state.
     if let (true, Some(w)) = (keep, writer.as_mut()) {

@@ -564,3 +564,155 @@ fn quality_series_streamed_in_every_format_equal_the_engine() {
         assert_eq!(row, expected.len() * count);
     }
 }
+
+/// A small looped network with map coordinates, two sources of different strength, age and
+/// chlorine (an invented scenario).
+const MAPPED: &str = r#"
+[simulation]
+duration = "24h"
+hydraulic_step = "1h"
+report_interval = "2h"
+[[quality]]
+id = "age"
+kind = "age"
+[[quality]]
+id = "chlorine"
+kind = "substance"
+bulk_rate = -0.8
+[[nodes]]
+id = "North Works"
+kind = "reservoir"
+head = 60
+x = 0
+y = 1000
+quality = { chlorine = 1.0 }
+[[nodes]]
+id = "South Works"
+kind = "reservoir"
+head = 58
+x = 0
+y = 0
+quality = { chlorine = 0.6 }
+[[nodes]]
+id = "Mill Row"
+elevation = 5
+demand = 6
+x = 800
+y = 1000
+[[nodes]]
+id = "Ford End"
+elevation = 5
+demand = 4
+x = 800
+y = 0
+[[nodes]]
+id = "Far Green"
+elevation = 8
+demand = 5
+x = 1600
+y = 500
+[[links]]
+id = "N1"
+from = "North Works"
+to = "Mill Row"
+length = 800
+diameter = 200
+roughness = 120
+[[links]]
+id = "S1"
+from = "South Works"
+to = "Ford End"
+length = 800
+diameter = 200
+roughness = 120
+[[links]]
+id = "C1"
+from = "Mill Row"
+to = "Ford End"
+length = 1000
+diameter = 100
+roughness = 110
+[[links]]
+id = "E1"
+from = "Mill Row"
+to = "Far Green"
+length = 900
+diameter = 150
+roughness = 120
+[[links]]
+id = "E2"
+from = "Ford End"
+to = "Far Green"
+length = 900
+diameter = 100
+roughness = 120
+"#;
+
+/// `map --quantity <constituent>` colours nodes by the constituent at the reported instant:
+/// each node's tooltip carries the value the simulation reports there, the lowest value takes
+/// the colour ramp's first colour and the highest its last; GeoJSON results carry the same
+/// values. The class: a constituent not drawn, or drawn from another instant.
+#[test]
+fn map_and_geojson_colour_nodes_by_a_constituent_at_a_reported_instant() {
+    let dir = scratch("map");
+    std::fs::write(dir.join("m.toml"), MAPPED).unwrap();
+    let out = ringmain(&["simulate", "m.toml", "--format", "json", "--output", "s.json"], &dir);
+    assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
+    let v: serde_json::Value = serde_json::from_slice(&std::fs::read(dir.join("s.json")).unwrap()).unwrap();
+    let at = v["series"].as_array().unwrap().iter().find(|s| s["time_s"] == 43_200.0).unwrap().clone();
+    for id in ["age", "chlorine"] {
+        let expected: Vec<(String, f64)> = at["nodes"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|n| (n["id"].as_str().unwrap().to_owned(), n["quality"][id].as_f64().unwrap()))
+            .collect();
+        let name = format!("{id}.svg");
+        let out = ringmain(&["map", "m.toml", "--quantity", id, "--at", "12h", "--output", &name], &dir);
+        assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
+        let svg = std::fs::read_to_string(dir.join(&name)).unwrap();
+        let stops: Vec<&str> = svg.split("stop-color=\"").skip(1).map(|s| &s[..7]).collect();
+        let nodes = svg.split("<g id=\"nodes\"").nth(1).unwrap().split("</g>").next().unwrap();
+        let mut seen = 0;
+        for circle in nodes.split("<circle ").skip(1) {
+            let fill = circle.split("fill=\"").nth(1).unwrap().split('"').next().unwrap();
+            let title = circle.split("<title>").nth(1).unwrap().split("</title>").next().unwrap();
+            let (node, want) = expected.iter().find(|(n, _)| title.contains(&format!(" {n}\n"))).unwrap();
+            let line = title.lines().find(|l| l.starts_with(&format!("{id}: "))).unwrap();
+            let got: f64 = line.split_whitespace().nth(1).unwrap().parse().unwrap();
+            assert!((got - want).abs() <= 5e-3 * want.abs().max(0.1), "{node}: {got} vs {want}");
+            let lo = expected.iter().map(|e| e.1).fold(f64::INFINITY, f64::min);
+            let hi = expected.iter().map(|e| e.1).fold(f64::NEG_INFINITY, f64::max);
+            if *want == lo {
+                assert_eq!(fill, stops[0], "{id}: lowest at {node}");
+            }
+            if *want == hi {
+                assert_eq!(fill, *stops.last().unwrap(), "{id}: highest at {node}");
+            }
+            seen += 1;
+        }
+        assert_eq!(seen, expected.len());
+        // GeoJSON of the same instant: the same values as properties.
+        let out = ringmain(
+            &["simulate", "m.toml", "--format", "geojson", "--at", "12h", "--output", "m.geojson", "--force"],
+            &dir,
+        );
+        assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
+        let g: serde_json::Value = serde_json::from_slice(&std::fs::read(dir.join("m.geojson")).unwrap()).unwrap();
+        for (node, want) in &expected {
+            let f = g["features"].as_array().unwrap().iter().find(|f| f["id"] == node.as_str()).unwrap();
+            let got = f["properties"][id].as_f64().unwrap();
+            assert!((got - want).abs() <= 1e-9 * want.abs().max(1.0), "{node}: {got} vs {want}");
+        }
+    }
+    // Without --at: each node's worst over the run, said in the title.
+    let out = ringmain(&["map", "m.toml", "--quantity", "age", "--output", "worst.svg"], &dir);
+    assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
+    let svg = std::fs::read_to_string(dir.join("worst.svg")).unwrap();
+    assert!(svg.contains("highest age"), "{}", &svg[..400]);
+    // An unknown quantity names the constituents among the choices.
+    let out = ringmain(&["map", "m.toml", "--quantity", "agee", "--output", "bad.svg"], &dir);
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(2), "{err}");
+    assert!(err.contains("age") && err.contains("chlorine"), "{err}");
+}
