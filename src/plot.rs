@@ -393,7 +393,7 @@ fn pattern_changes(report: &RunReport<'_>, p: usize) -> Vec<f64> {
     let mut clock = start;
     loop {
         let next = pattern.next_boundary(clock);
-        if !(next < end) || next <= clock {
+        if next.is_nan() || next >= end || next <= clock {
             break;
         }
         if pattern.at(next) != pattern.at(clock) {

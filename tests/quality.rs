@@ -458,9 +458,12 @@ fn streamed_model() -> String {
     random_model(7, "complete")
 }
 
+/// Per constituent, per element: a value.
+type Values = Vec<Vec<f64>>;
+
 /// The expected value of every constituent at every node and link at every reported time, in
 /// reported units: the engine's own records (what the writers must hand on, unchanged).
-fn engine_values(model: &Model) -> Vec<(f64, Vec<Vec<f64>>, Vec<Vec<f64>>)> {
+fn engine_values(model: &Model) -> Vec<(f64, Values, Values)> {
     let (_, q) = run(model);
     q.records
         .iter()
@@ -469,7 +472,7 @@ fn engine_values(model: &Model) -> Vec<(f64, Vec<Vec<f64>>, Vec<Vec<f64>>)> {
                 v.iter()
                     .zip(&q.constituents)
                     .map(|(x, c)| x.iter().map(|x| x * c.report_scale()).collect())
-                    .collect::<Vec<Vec<f64>>>()
+                    .collect::<Values>()
             };
             (r.time, scaled(&r.node), scaled(&r.link))
         })
