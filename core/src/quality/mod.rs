@@ -114,8 +114,8 @@ pub fn simulate(
 }
 
 /// Where [`simulate_streaming`] sends each reported state, with the water-quality values of
-/// that instant (`None` only if the transport has no record of it, which its report times
-/// agreeing with the hydraulics' rule out). An error stops the run as in
+/// that instant (always given: a state the transport has no values for stops the run with
+/// [`SimulateError::Output`]). An error stops the run as in
 /// [`crate::simulate::simulate_streaming`].
 pub type QualitySink<'s> = dyn FnMut(&crate::simulate::Snapshot, Option<&QualityRecord>) -> Result<(), String> + 's;
 
@@ -142,11 +142,13 @@ pub fn simulate_streaming(
     let mut observer = Shared(&engine);
     let run = crate::simulate::simulate_streaming_observed(model, options, progress, &mut observer, &mut |s| {
         let mut e = engine.borrow_mut();
-        let found = e.records.iter().rposition(|r| (r.time - s.time).abs() <= 1e-6 * s.time.max(1.0));
-        let result = sink(s, found.map(|i| &e.records[i]));
-        if let Some(i) = found {
-            e.records[i].link = Vec::new();
-        }
+        // The transport records at the same report times as the hydraulics; a reported state
+        // without its values would be written with blanks, so it stops the run instead.
+        let Some(i) = e.records.iter().rposition(|r| (r.time - s.time).abs() <= 1e-6 * s.time.max(1.0)) else {
+            return Err(format!("the water-quality transport has no values at {} s (an internal error)", s.time));
+        };
+        let result = sink(s, Some(&e.records[i]));
+        e.records[i].link = Vec::new();
         result
     })?;
     Ok((run, engine.into_inner().finish()))
