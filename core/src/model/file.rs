@@ -452,15 +452,34 @@ impl<'de> serde::de::Visitor<'de> for Elements<'_> {
 
 fn read_inner(text: &str, format: Format) -> Result<Model, ModelError> {
     if format == Format::Json {
-        if let Some(model) = read_json_one_pass(serde_json::Deserializer::from_str(text)) {
+        if let Some(model) = super::scan::json_from_slice(text.as_bytes()) {
             return Ok(model);
         }
     }
     read_tree(text, format)
 }
 
+/// The top-level table's fields (for the one-pass readers of [`super::scan`]).
+pub(super) fn top_fields(entries: Vec<(Key, Value)>) -> Fields {
+    Fields::new(None, entries)
+}
+
+/// The model with the settings of the top-level table, before any element, when every setting
+/// is valid and no other key is there (for the one-pass readers of [`super::scan`]).
+pub(super) fn settings_model(top: &mut Fields) -> Option<Model> {
+    let settings = Settings::take(top).ok()?;
+    let rest = std::mem::replace(top, Fields::new(None, Vec::new()));
+    rest.finish(TOP_KEYS).ok()?;
+    settings.into_model().ok()
+}
+
+/// [`finish`] for the one-pass readers: `None` on any error.
+pub(super) fn finish_model(model: Model, controls: Vec<Value>) -> Option<Model> {
+    finish(model, controls).ok()
+}
+
 /// The ordinary reader: the whole file as one value tree, then the model.
-fn read_tree(text: &str, format: Format) -> Result<Model, ModelError> {
+pub(super) fn read_tree(text: &str, format: Format) -> Result<Model, ModelError> {
     if text.trim().is_empty() {
         return Err(ModelError::new("the file is empty; a model needs at least [[nodes]] and [[links]]"));
     }
@@ -585,7 +604,7 @@ impl Settings {
 }
 
 /// Reads the `i`-th entry of `nodes` into the model.
-fn add_node_value(model: &mut Model, i: usize, value: Value) -> Result<(), ModelError> {
+pub(super) fn add_node_value(model: &mut Model, i: usize, value: Value) -> Result<(), ModelError> {
     let index = model.nodes().len();
     let units = model.units;
     let options = model.options;
@@ -598,7 +617,7 @@ fn add_node_value(model: &mut Model, i: usize, value: Value) -> Result<(), Model
 }
 
 /// Reads the `i`-th entry of `links` into the model.
-fn add_link_value(model: &mut Model, i: usize, value: Value) -> Result<(), ModelError> {
+pub(super) fn add_link_value(model: &mut Model, i: usize, value: Value) -> Result<(), ModelError> {
     let index = model.links().len();
     let (link, pattern, leakage_rate, path, fittings) = read_link(i, value, model)?;
     if let Some(rate) = leakage_rate {
@@ -633,7 +652,7 @@ fn finish(mut model: Model, controls: Vec<Value>) -> Result<Model, ModelError> {
 }
 
 /// The keys of one table being read, with what has been consumed.
-struct Fields {
+pub(super) struct Fields {
     element: Option<Element>,
     entries: Vec<(Key, Option<Value>)>,
     /// Written before every key in messages, for tables inside an element ("demands[2].").

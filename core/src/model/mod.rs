@@ -15,6 +15,7 @@ pub mod doc;
 pub mod file;
 mod index;
 pub mod outflow;
+pub mod scan;
 pub mod time;
 pub mod write;
 
