@@ -114,6 +114,14 @@ pub fn read_model(path: &Path) -> Result<(ringmain_core::Model, SourceText), (Mo
     let name = path.display().to_string();
     let limit = MAX_INPUT.load(Ordering::Relaxed);
     let file = std::fs::metadata(path).is_ok_and(|m| m.is_file() && m.len() <= limit);
+    if file && Format::from_path(path) == Some(Format::Toml) {
+        // TOML likewise: the `toml` crate builds the whole document first (some ten times the
+        // file's size in memory), so only what the fast reader gives up on goes that way.
+        let model = std::fs::File::open(path).ok().and_then(|f| ringmain_core::model::scan::toml_from_reader(f, limit));
+        if let Some(model) = model {
+            return Ok((model, SourceText { name, path: path.to_owned(), text: None, format: Format::Toml }));
+        }
+    }
     if file && Format::from_path(path) == Some(Format::Json) {
         // In one pass straight from the file, a chunk at a time (the model and one chunk in
         // memory); anything that reader is not sure of is read as one text below.

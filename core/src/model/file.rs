@@ -451,12 +451,14 @@ impl<'de> serde::de::Visitor<'de> for Elements<'_> {
 }
 
 fn read_inner(text: &str, format: Format) -> Result<Model, ModelError> {
-    if format == Format::Json {
-        if let Some(model) = super::scan::json_from_slice(text.as_bytes()) {
-            return Ok(model);
-        }
+    let fast = match format {
+        Format::Json => super::scan::json_from_slice(text.as_bytes()),
+        Format::Toml => super::scan::toml_from_slice(text.as_bytes()),
+    };
+    match fast {
+        Some(model) => Ok(model),
+        None => read_tree(text, format),
     }
-    read_tree(text, format)
 }
 
 /// The top-level table's fields (for the one-pass readers of [`super::scan`]).
