@@ -48,6 +48,7 @@ impl Solver {
                 for i in 0..self.structure.core.len() {
                     self.scatter(i);
                 }
+                self.scatter_relations();
                 self.end_assembly();
                 self.timings.assembly += clock.elapsed();
                 states_stale = false;
@@ -104,7 +105,8 @@ impl Solver {
             }
             // The next step's matrix is filled as the new flows are computed.
             self.begin_assembly();
-            let (change, energy_residual) = self.update_links(model, !warm && iterations < SECANT_STEPS);
+            let relations = self.update_relations();
+            let (change, energy_residual) = self.update_links(model, !warm && iterations < SECANT_STEPS, relations);
             self.end_assembly();
             flow_change = change;
             self.timings.assembly += solved.elapsed();
