@@ -114,7 +114,16 @@ impl Solver {
     /// its setting. An active pressure valve's flow is whatever the mass balance of the node it
     /// pins requires; that flow enters the other node's balance at the next step, so at
     /// convergence both balances hold.
-    pub(super) fn update_links(&mut self, model: &Model, secant: bool, relations: RelationChange) -> (f64, f64) {
+    ///
+    /// With `damping` α below one (see `iterate`) each link moves by α of its Newton step
+    /// (`Q + α (Q_newton − Q)`), the head corrections having been scaled by α already.
+    pub(super) fn update_links(
+        &mut self,
+        model: &Model,
+        secant: bool,
+        relations: RelationChange,
+        damping: f64,
+    ) -> (f64, f64) {
         let (mut sum_dq, mut sum_q, mut residual) =
             (relations.sum_dq, self.tree_flow_sum + relations.sum_q, relations.residual);
         // One pass with the fields borrowed apart, so that the loop runs over plain slices.
@@ -136,7 +145,12 @@ impl Solver {
                     } else {
                         (delta[s.to as usize], unknown_head[s.to as usize])
                     };
-                    let q = *cc + *cp * (d_from - d_to);
+                    let q = if damping == 1.0 {
+                        *cc + *cp * (d_from - d_to)
+                    } else {
+                        // The head corrections are α δ: the full step's flow is c + p δ.
+                        *cq + damping * (*cc + *cp * (d_from - d_to) / damping - *cq)
+                    };
                     let dh = h_from - h_to;
                     let general = mode & LAW_GENERAL != 0;
                     let (y, g) = if general {
@@ -256,7 +270,7 @@ pub(super) struct RelationChange {
     pub sum_dq: f64,
     /// Σ|q|, m³/s.
     pub sum_q: f64,
-    /// Largest |p − P(q)|, m.
+    /// Largest |p − P(q)| on the regularised relations, m.
     pub residual: f64,
 }
 
@@ -308,7 +322,7 @@ impl Solver {
 
     /// New flows of the relations from the head corrections in `delta` (the heads already
     /// corrected), linearised at once for the next step and added to the next matrix.
-    pub(super) fn update_relations(&mut self) -> RelationChange {
+    pub(super) fn update_relations(&mut self, damping: f64) -> RelationChange {
         let mut change = RelationChange::default();
         let w = self.relation_tolerance;
         for i in 0..self.relations.len() {
@@ -320,7 +334,12 @@ impl Solver {
             let delta = if u != NONE && self.free[u as usize] { self.delta[u as usize] } else { 0.0 };
             let p = self.iterate_head(node) - self.relations[i].elevation;
             let r = &mut self.relations[i];
-            let q = r.law.advance(r.step, delta, p);
+            let q = if damping == 1.0 {
+                r.law.advance(r.step, delta, p)
+            } else {
+                let full = r.law.advance(r.step, delta / damping, p - delta + delta / damping);
+                r.q + damping * (full - r.q)
+            };
             let inverse = r.law.inverse(q, w);
             let g = 1.0 / inverse.slope;
             change.sum_dq += (q - r.q).abs();

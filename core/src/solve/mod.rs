@@ -335,6 +335,25 @@ impl Solver {
         nodes::build(model, conditions, &mut self.demand, &mut self.relations);
         self.relation_tolerance = options.head_tolerance;
         let warm = options.warm_start && self.has_previous;
+        self.start_values(model, conditions, warm);
+        self.timings.preparation += start.elapsed();
+        let mut result = self.iterate(model, conditions, options, warm);
+        if warm && matches!(result, Err(SolveError::NotConverged { .. } | SolveError::StatusCycle { .. })) {
+            // A start far from the answer (a previous solution of very different conditions: a
+            // dry network before a full one) may not converge where a cold start does, whose
+            // first step does not depend on the starting flows' scale: start again, cold.
+            // (A solution refused by the last gates took the connectivity array.)
+            self.connected.resize(model.nodes().len(), false);
+            self.start_values(model, conditions, false);
+            result = self.iterate(model, conditions, options, false);
+        }
+        self.has_previous = result.is_ok();
+        result
+    }
+
+    /// Starting flows, heads and relation flows: from the previous solution on a warm start,
+    /// else from the laws' initial flows and the mean fixed head.
+    fn start_values(&mut self, model: &Model, conditions: &Conditions, warm: bool) {
         if !warm {
             for (k, (q, law)) in self.flow.iter_mut().zip(&self.laws).enumerate() {
                 *q = law.initial_flow(conditions.flow_area(k));
@@ -362,10 +381,6 @@ impl Solver {
         self.demand_scale = (self.demand.iter().map(|d| d.abs()).sum::<f64>()
             + self.relations.iter().map(|r| if r.law.capped { r.law.flow } else { r.q }).sum::<f64>())
         .max(1e-3);
-        self.timings.preparation += start.elapsed();
-        let result = self.iterate(model, conditions, options, warm);
-        self.has_previous = result.is_ok();
-        result
     }
 
     /// Takes `other`'s last solution (a solver of the same structure) as this solver's starting
