@@ -80,6 +80,8 @@ const TOP_KEYS: &[&str] = &[
     "criteria",
     "pressure_demand",
     "background_leakage",
+    // The same table under its short name, as the issue that specified it spells it.
+    "leakage",
     "simulation",
     "electricity",
     "map",
@@ -549,9 +551,17 @@ impl Settings {
             Some(v) => Some(read_pressure_demand(v, &units, &options)?),
             None => None,
         };
-        let leakage = match top.take("background_leakage") {
-            Some(v) => Some(read_leakage(v, &units, &options)?),
-            None => None,
+        let leakage = match (top.take("background_leakage"), top.take("leakage")) {
+            (Some(_), Some(_)) => {
+                return Err(ModelError::at(
+                    Some(Element::Table("leakage".into())),
+                    None,
+                    "the model has both [background_leakage] and its short name: keep one",
+                ))
+            }
+            (Some(v), None) => Some(read_leakage(v, "background_leakage", &units, &options)?),
+            (None, Some(v)) => Some(read_leakage(v, "leakage", &units, &options)?),
+            (None, None) => None,
         };
         let simulation = match top.take("simulation") {
             Some(v) => Some(read_simulation(v, &units)?),
@@ -1328,9 +1338,14 @@ fn read_pressure_demand(
     Ok(PressureDemand { full_pressure, zero_pressure: zero, exponent })
 }
 
-/// Reads `[background_leakage]`.
-fn read_leakage(value: Value, units: &UnitSystem, options: &HydraulicOptions) -> Result<Leakage, ModelError> {
-    let el = Element::Table("background_leakage".into());
+/// Reads `[background_leakage]` (or the same table under its short name, `table`).
+fn read_leakage(
+    value: Value,
+    table: &str,
+    units: &UnitSystem,
+    options: &HydraulicOptions,
+) -> Result<Leakage, ModelError> {
+    let el = Element::Table(table.into());
     let mut f = Fields::from_value(el.clone(), value)?;
     f.reject_unknown(LEAKAGE_KEYS)?;
     let density = options.water_properties().density;
