@@ -246,6 +246,34 @@ const LINK_KEYS: &[(&str, &[&str])] = &[
     ),
 ];
 
+/// Every key the reader accepts, by where it stands: `(place, kind, keys)`, the place being a
+/// path in the file (`""` the top level, `"nodes"`, `"nodes.outlet"`, `"controls.when"`...) and
+/// the kind the element's kind where keys depend on it (`""` otherwise). The writer's round-trip
+/// test checks each is written back.
+#[cfg(test)]
+pub(crate) fn accepted_keys() -> Vec<(&'static str, &'static str, &'static [&'static str])> {
+    let mut out: Vec<(&'static str, &'static str, &'static [&'static str])> = vec![
+        ("", "", TOP_KEYS),
+        ("units", "", UNIT_KEYS),
+        ("hydraulics", "", HYDRAULIC_KEYS),
+        ("pressure_demand", "", PRESSURE_DEMAND_KEYS),
+        ("background_leakage", "", LEAKAGE_KEYS),
+        ("map", "", MAP_KEYS),
+        ("simulation", "", SIMULATION_KEYS),
+        ("electricity", "", ENERGY_KEYS),
+        ("patterns", "", PATTERN_KEYS),
+        ("nodes.demands", "", DEMAND_KEYS),
+        ("nodes.outlet", "", OUTLET_KEYS),
+        ("links.fittings", "", FITTING_KEYS),
+        ("controls", "", CONTROL_KEYS),
+        ("controls.when", "", CONDITION_KEYS),
+    ];
+    out.extend(QUALITY_KEYS.iter().map(|(k, keys)| ("quality", *k, *keys)));
+    out.extend(NODE_KEYS.iter().map(|(k, keys)| ("nodes", *k, *keys)));
+    out.extend(LINK_KEYS.iter().map(|(k, keys)| ("links", *k, *keys)));
+    out
+}
+
 /// Reads a JSON model in one pass from `reader`, without holding the text: each node and link
 /// is parsed into a small tree, read into the model and dropped in turn, so that memory holds the
 /// model and one element's tree. The reader is buffered here.
