@@ -689,7 +689,10 @@ typedef uint32_t ringmain_series;
  * Made by `ringmain_model_new`, `ringmain_model_load`, `ringmain_model_from_toml`,
  * `ringmain_model_from_json` or `ringmain_model_clone`; owned by the caller, who frees it with
  * `ringmain_model_free` (once). It keeps the analysis of its network between solves, so changing
- * values and solving again is cheaper than loading again. Results made by `ringmain_model_solve`
+ * values and solving again is cheaper than loading again: the values the setters change
+ * (demands, reservoir heads, tank levels, link statuses, pump speeds, valve settings, pipe
+ * roughness and diameters) are the solver's input, kept beside the network, so that setting one
+ * copies nothing and the next solve rebuilds only what that value feeds. Results made by `ringmain_model_solve`
  * are separate handles that stay valid after the model changes or is freed.
  *
  * Threads: a model is not internally synchronised. It may be moved to another thread, and any

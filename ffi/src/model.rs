@@ -6,11 +6,13 @@ use crate::boundary::{
 };
 use crate::codes::*;
 use crate::convert::Units;
+use crate::inputs::{get_one, set_one, Input};
 use crate::results::ringmain_results;
 use ringmain_core::model::write::to_string;
-use ringmain_core::model::{HydraulicOptions, LinkControl, Pump, PumpDrive, Valve, WaterSpec};
+use ringmain_core::model::{HydraulicOptions, Pump, PumpDrive, Valve, WaterSpec};
 use ringmain_core::physics::pump::{Efficiency, HeadCurve};
 use ringmain_core::physics::WaterProperties;
+use ringmain_core::solve::Conditions;
 use ringmain_core::units::{suggest, UnitSystem};
 use ringmain_core::{
     read_bytes, Element, Format, Link, LinkKind, LinkStatus, Model, ModelError, Node, NodeKind, Pipe, SolveError,
@@ -26,7 +28,10 @@ use std::sync::Arc;
 /// Made by `ringmain_model_new`, `ringmain_model_load`, `ringmain_model_from_toml`,
 /// `ringmain_model_from_json` or `ringmain_model_clone`; owned by the caller, who frees it with
 /// `ringmain_model_free` (once). It keeps the analysis of its network between solves, so changing
-/// values and solving again is cheaper than loading again. Results made by `ringmain_model_solve`
+/// values and solving again is cheaper than loading again: the values the setters change
+/// (demands, reservoir heads, tank levels, link statuses, pump speeds, valve settings, pipe
+/// roughness and diameters) are the solver's input, kept beside the network, so that setting one
+/// copies nothing and the next solve rebuilds only what that value feeds. Results made by `ringmain_model_solve`
 /// are separate handles that stay valid after the model changes or is freed.
 ///
 /// Threads: a model is not internally synchronised. It may be moved to another thread, and any
@@ -35,7 +40,15 @@ use std::sync::Arc;
 /// `ringmain_model *` needs the model to itself. Distinct models may be used from distinct
 /// threads at the same time without any locking.
 pub struct ringmain_model {
+    /// The network, and its values as last brought up to date (see `inputs`).
     pub(crate) model: Model,
+    /// The values of the next solve: what the setters write and the getters read.
+    pub(crate) conditions: Conditions,
+    /// Tank levels set since the model last caught up, m, exactly as given (the conditions keep
+    /// the head, floor + level).
+    pub(crate) levels: HashMap<usize, f64>,
+    /// Whether the conditions hold values the model does not.
+    pub(crate) changed: bool,
     /// The file the model was read from, for error messages.
     pub(crate) source: Option<String>,
     pub(crate) solver: Option<Solver>,
@@ -84,8 +97,18 @@ pub(crate) fn out_of_range(what: &str, index: usize, count: usize) -> Failure {
 }
 
 impl ringmain_model {
-    fn from_model(model: Model, source: Option<String>) -> Self {
-        ringmain_model { model, source, solver: None, ids: None, warm_start: false }
+    pub(crate) fn from_model(model: Model, source: Option<String>) -> Self {
+        let conditions = Conditions::from_model(&model);
+        ringmain_model {
+            model,
+            conditions,
+            levels: HashMap::new(),
+            changed: false,
+            source,
+            solver: None,
+            ids: None,
+            warm_start: false,
+        }
     }
 
     pub(crate) fn units(&self) -> Units {
@@ -119,16 +142,32 @@ impl ringmain_model {
         })
     }
 
+    /// Adds a node: the model first catches up with the values set, and the new structure gets
+    /// its conditions.
     fn add_node(&mut self, node: Node) -> Result<usize, Failure> {
+        self.catch_up()?;
         let index = self.model.add_node(node)?;
-        self.ids = None;
+        self.structure_changed();
         Ok(index)
     }
 
+    /// Adds a link, as [`ringmain_model::add_node`] adds a node.
     fn add_link(&mut self, link: Link) -> Result<usize, Failure> {
+        self.catch_up()?;
         let index = self.model.add_link(link)?;
-        self.ids = None;
+        self.structure_changed();
         Ok(index)
+    }
+
+    /// Adds a node (tests of the other modules).
+    #[cfg(test)]
+    pub(crate) fn add_node_for_test(&mut self, node: Node) -> usize {
+        self.add_node(node).unwrap()
+    }
+
+    fn structure_changed(&mut self) {
+        self.conditions = Conditions::from_model(&self.model);
+        self.ids = None;
     }
 
     fn solve(&mut self) -> Result<ringmain_results, Failure> {
@@ -142,9 +181,9 @@ impl ringmain_model {
                 self.solver.insert(solver)
             }
         };
-        let model = &self.model;
-        let solution =
-            crate::threads::install(|| solver.solve_with(model, &options))?.map_err(|e| self.solve_failure(e))?;
+        let (model, conditions) = (&self.model, &self.conditions);
+        let solution = crate::threads::install(|| solver.solve(model, conditions, &options))?
+            .map_err(|e| self.solve_failure(e))?;
         let ids = self.ids();
         Ok(ringmain_results::new(&self.model, &solution, ids))
     }
@@ -312,7 +351,7 @@ pub unsafe extern "C" fn ringmain_model_clone(
     ffi_boundary! {
         // SAFETY: the caller's contract above.
         let (m, out) = unsafe { (handle(model, "model")?, self::out(out, "out")?) };
-        let mut copy = ringmain_model::from_model(m.model.clone(), m.source.clone());
+        let mut copy = ringmain_model::from_model(m.current()?.into_owned(), m.source.clone());
         copy.warm_start = m.warm_start;
         give(out, copy);
         Ok(())
@@ -380,7 +419,7 @@ pub unsafe extern "C" fn ringmain_model_save(model: *const ringmain_model, path:
         })?;
         let io_error = |e: std::io::Error| Failure::new(ringmain_status::RINGMAIN_IO, format!("{path}: cannot write the file: {e}"));
         let file = std::fs::File::create(path).map_err(io_error)?;
-        ringmain_core::model::write::write_to(&m.model, format, file).map_err(io_error)?;
+        ringmain_core::model::write::write_to(&*m.current()?, format, file).map_err(io_error)?;
         Ok(())
     }
 }
@@ -409,7 +448,7 @@ pub unsafe extern "C" fn ringmain_model_write(
             ringmain_format::RINGMAIN_FORMAT_TOML => Format::Toml,
             ringmain_format::RINGMAIN_FORMAT_JSON => Format::Json,
         };
-        let text = model_text(&m.model, format)?;
+        let text = model_text(&*m.current()?, format)?;
         // SAFETY: the caller's contract above.
         unsafe { copy_text(&text, buf, len, needed) }
     }
@@ -711,20 +750,6 @@ unsafe fn node_value(
     Ok(())
 }
 
-/// Reads one value of link `index`: the shared body of the link getters.
-unsafe fn link_value(
-    model: *const ringmain_model,
-    index: usize,
-    out: *mut f64,
-    value: impl FnOnce(&Link, &Units) -> Result<f64, Failure>,
-) -> Result<(), Failure> {
-    // SAFETY: forwarded from the exported functions' contracts.
-    let (m, out) = unsafe { (handle(model, "model")?, self::out(out, "out")?) };
-    let v = value(m.link(index)?, &m.units())?;
-    out.write(v);
-    Ok(())
-}
-
 /// Writes the elevation of node `index` (length unit) to `*out`: ground level of a junction, floor
 /// of a tank, water surface of a reservoir unless given otherwise.
 ///
@@ -755,12 +780,7 @@ pub unsafe extern "C" fn ringmain_model_get_demand(
 ) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
-        unsafe {
-            node_value(model, node, out, |n, u| match n.kind {
-                NodeKind::Junction { demand } => Ok(u.flow_out(demand)),
-                _ => Err(wrong_kind(Element::Node(n.id.to_string()), "demand", "junctions", n.kind.label())),
-            })
-        }
+        unsafe { get_one(model, Input::Demand, node, out) }
     }
 }
 
@@ -777,12 +797,7 @@ pub unsafe extern "C" fn ringmain_model_get_reservoir_head(
 ) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
-        unsafe {
-            node_value(model, node, out, |n, u| match n.kind {
-                NodeKind::Reservoir { head } => Ok(u.length_out(head)),
-                _ => Err(wrong_kind(Element::Node(n.id.to_string()), "head", "reservoirs", n.kind.label())),
-            })
-        }
+        unsafe { get_one(model, Input::ReservoirHead, node, out) }
     }
 }
 
@@ -800,12 +815,7 @@ pub unsafe extern "C" fn ringmain_model_get_tank_level(
 ) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
-        unsafe {
-            node_value(model, node, out, |n, u| match &n.kind {
-                NodeKind::Tank(t) => Ok(u.length_out(t.level)),
-                _ => Err(wrong_kind(Element::Node(n.id.to_string()), "level", "tanks", n.kind.label())),
-            })
-        }
+        unsafe { get_one(model, Input::TankLevel, node, out) }
     }
 }
 
@@ -824,13 +834,8 @@ pub unsafe extern "C" fn ringmain_model_get_link_status(
     ffi_boundary! {
         // SAFETY: the caller's contract above.
         let (m, out) = unsafe { (handle(model, "model")?, self::out(out, "out")?) };
-        let l = m.link(link)?;
-        let status = match (l.status, &l.kind) {
-            (LinkStatus::Closed, _) => ringmain_link_status::RINGMAIN_STATUS_CLOSED,
-            (LinkStatus::Open, LinkKind::Valve(v)) if v.automatic => ringmain_link_status::RINGMAIN_STATUS_AUTOMATIC,
-            (LinkStatus::Open, _) => ringmain_link_status::RINGMAIN_STATUS_OPEN,
-        };
-        out.write(status as u32);
+        m.link(link)?;
+        out.write(m.link_status(link) as u32);
         Ok(())
     }
 }
@@ -849,12 +854,7 @@ pub unsafe extern "C" fn ringmain_model_get_pump_speed(
 ) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
-        unsafe {
-            link_value(model, link, out, |l, _| match &l.kind {
-                LinkKind::Pump(p) => Ok(p.speed),
-                other => Err(wrong_kind(Element::Link(l.id.to_string()), "speed", "pumps", other.label())),
-            })
-        }
+        unsafe { get_one(model, Input::PumpSpeed, link, out) }
     }
 }
 
@@ -873,12 +873,7 @@ pub unsafe extern "C" fn ringmain_model_get_valve_setting(
 ) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
-        unsafe {
-            link_value(model, link, out, |l, u| match &l.kind {
-                LinkKind::Valve(v) => Ok(u.setting_out(v.valve, v.setting)),
-                other => Err(wrong_kind(Element::Link(l.id.to_string()), "setting", "valves", other.label())),
-            })
-        }
+        unsafe { get_one(model, Input::ValveSetting, link, out) }
     }
 }
 
@@ -920,12 +915,7 @@ pub unsafe extern "C" fn ringmain_model_get_pipe_roughness(
 ) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
-        unsafe {
-            link_value(model, link, out, |l, u| match &l.kind {
-                LinkKind::Pipe(p) => Ok(u.roughness_out(p.roughness)),
-                other => Err(wrong_kind(Element::Link(l.id.to_string()), "roughness", "pipes", other.label())),
-            })
-        }
+        unsafe { get_one(model, Input::PipeRoughness, link, out) }
     }
 }
 
@@ -943,12 +933,7 @@ pub unsafe extern "C" fn ringmain_model_get_pipe_diameter(
 ) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
-        unsafe {
-            link_value(model, link, out, |l, u| match &l.kind {
-                LinkKind::Pipe(p) => Ok(u.diameter_out(p.diameter)),
-                other => Err(wrong_kind(Element::Link(l.id.to_string()), "diameter", "pipes", other.label())),
-            })
-        }
+        unsafe { get_one(model, Input::PipeDiameter, link, out) }
     }
 }
 
@@ -1257,20 +1242,6 @@ pub unsafe extern "C" fn ringmain_model_add_valve(
 // Changing values between solves
 // ---------------------------------------------------------------------------------------------
 
-/// Changes node `index` through `change` (which works on a copy in SI), then checks and stores it.
-unsafe fn change_node(
-    model: *mut ringmain_model,
-    index: usize,
-    change: impl FnOnce(&mut Node, &Units) -> Result<(), Failure>,
-) -> Result<(), Failure> {
-    // SAFETY: forwarded from the exported functions' contracts.
-    let m = unsafe { handle_mut(model, "model") }?;
-    let mut node = m.node(index)?.clone();
-    change(&mut node, &m.units())?;
-    m.model.replace_node(index, node)?;
-    Ok(())
-}
-
 /// Changes link `index` through `change` (which works on a copy in SI), then checks and stores it.
 unsafe fn change_link(
     model: *mut ringmain_model,
@@ -1299,15 +1270,7 @@ pub unsafe extern "C" fn ringmain_model_set_demand(
 ) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
-        unsafe {
-            change_node(model, node, |n, u| match &mut n.kind {
-                NodeKind::Junction { demand: d } => {
-                    *d = u.flow_in(demand);
-                    Ok(())
-                }
-                other => Err(wrong_kind(Element::Node(n.id.to_string()), "demand", "junctions", other.label())),
-            })
-        }
+        unsafe { set_one(model, Input::Demand, node, demand) }
     }
 }
 
@@ -1325,15 +1288,7 @@ pub unsafe extern "C" fn ringmain_model_set_reservoir_head(
 ) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
-        unsafe {
-            change_node(model, node, |n, u| match &mut n.kind {
-                NodeKind::Reservoir { head: h } => {
-                    *h = u.length_in(head);
-                    Ok(())
-                }
-                other => Err(wrong_kind(Element::Node(n.id.to_string()), "head", "reservoirs", other.label())),
-            })
-        }
+        unsafe { set_one(model, Input::ReservoirHead, node, head) }
     }
 }
 
@@ -1351,15 +1306,7 @@ pub unsafe extern "C" fn ringmain_model_set_tank_level(
 ) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
-        unsafe {
-            change_node(model, node, |n, u| match &mut n.kind {
-                NodeKind::Tank(t) => {
-                    t.level = u.length_in(level);
-                    Ok(())
-                }
-                other => Err(wrong_kind(Element::Node(n.id.to_string()), "level", "tanks", other.label())),
-            })
-        }
+        unsafe { set_one(model, Input::TankLevel, node, level) }
     }
 }
 
@@ -1381,16 +1328,8 @@ pub unsafe extern "C" fn ringmain_model_set_link_status(
     ffi_boundary! {
         let status = ringmain_link_status::from_code(status, "status")?;
         // SAFETY: the caller's contract above.
-        unsafe {
-            change_link(model, link, |l, _| {
-                let control = match status {
-                    ringmain_link_status::RINGMAIN_STATUS_OPEN => LinkControl::Open,
-                    ringmain_link_status::RINGMAIN_STATUS_CLOSED => LinkControl::Closed,
-                    ringmain_link_status::RINGMAIN_STATUS_AUTOMATIC => LinkControl::Automatic,
-                };
-                l.set_control(control).map_err(|e| Failure::invalid(e.to_string()))
-            })
-        }
+        let m = unsafe { handle_mut(model, "model") }?;
+        m.set_link_status(link, status)
     }
 }
 
@@ -1408,15 +1347,7 @@ pub unsafe extern "C" fn ringmain_model_set_pump_speed(
 ) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
-        unsafe {
-            change_link(model, link, |l, _| match &mut l.kind {
-                LinkKind::Pump(p) => {
-                    p.speed = speed;
-                    Ok(())
-                }
-                other => Err(wrong_kind(Element::Link(l.id.to_string()), "speed", "pumps", other.label())),
-            })
-        }
+        unsafe { set_one(model, Input::PumpSpeed, link, speed) }
     }
 }
 
@@ -1499,15 +1430,7 @@ pub unsafe extern "C" fn ringmain_model_set_valve_setting(
 ) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
-        unsafe {
-            change_link(model, link, |l, u| match &mut l.kind {
-                LinkKind::Valve(v) => {
-                    v.setting = u.setting_in(v.valve, setting);
-                    Ok(())
-                }
-                other => Err(wrong_kind(Element::Link(l.id.to_string()), "setting", "valves", other.label())),
-            })
-        }
+        unsafe { set_one(model, Input::ValveSetting, link, setting) }
     }
 }
 
@@ -1525,15 +1448,7 @@ pub unsafe extern "C" fn ringmain_model_set_pipe_roughness(
 ) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
-        unsafe {
-            change_link(model, link, |l, u| match &mut l.kind {
-                LinkKind::Pipe(p) => {
-                    p.roughness = u.roughness_in(roughness);
-                    Ok(())
-                }
-                other => Err(wrong_kind(Element::Link(l.id.to_string()), "roughness", "pipes", other.label())),
-            })
-        }
+        unsafe { set_one(model, Input::PipeRoughness, link, roughness) }
     }
 }
 
@@ -1551,15 +1466,7 @@ pub unsafe extern "C" fn ringmain_model_set_pipe_diameter(
 ) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
-        unsafe {
-            change_link(model, link, |l, u| match &mut l.kind {
-                LinkKind::Pipe(p) => {
-                    p.diameter = u.diameter_in(diameter);
-                    Ok(())
-                }
-                other => Err(wrong_kind(Element::Link(l.id.to_string()), "diameter", "pipes", other.label())),
-            })
-        }
+        unsafe { set_one(model, Input::PipeDiameter, link, diameter) }
     }
 }
 

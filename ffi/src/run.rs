@@ -241,7 +241,9 @@ pub unsafe extern "C" fn ringmain_model_simulate(
     ffi_boundary! {
         // SAFETY: the caller's contract above.
         let (m, out) = unsafe { (handle_mut(model, "model")?, self::out(out, "out")?) };
-        let model = &m.model;
+        // The model with the values set since it was loaded or built (a copy only if some were).
+        let current = m.current()?;
+        let model = &*current;
         let with_quality = !model.time.quality.constituents.is_empty();
         let result = crate::threads::install(|| {
             if with_quality {
@@ -265,7 +267,7 @@ pub unsafe extern "C" fn ringmain_model_simulate(
             };
             Failure::new(status, message)
         })?;
-        out.write(into_handle(ringmain_run::new(&m.model, &run, quality.as_ref()), &LIVE_RUNS));
+        out.write(into_handle(ringmain_run::new(model, &run, quality.as_ref()), &LIVE_RUNS));
         Ok(())
     }
 }
