@@ -19,6 +19,8 @@ use std::path::{Path, PathBuf};
 /// The JSON report's top level (fields in alphabetical order, as the keys are written).
 #[derive(Serialize)]
 struct JsonReport<'r, 'a> {
+    /// Always true: a report is written for a solution only, and a solve that does not converge
+    /// is an error. The key stays for the readers of the format.
     converged: bool,
     iterations: u32,
     links: JsonLinks<'r, 'a>,
@@ -267,7 +269,7 @@ impl<'a> Report<'a> {
             .map(|(i, q)| json!({"id": m.nodes()[i].id, "kind": m.nodes()[i].kind.label(), "supply": q}))
             .collect();
         let report = JsonReport {
-            converged: s.converged,
+            converged: true,
             iterations: s.iterations,
             links: JsonLinks(self),
             nodes: JsonNodes(self),
@@ -445,7 +447,8 @@ impl<'a> Report<'a> {
                 let mut item = |what: &str, id: Option<&str>, value: f64, unit: &str| {
                     row(&[Text(Some(what)), Text(id), Num(value), Text(Some(unit))])
                 };
-                item("converged", None, if s.converged { 1.0 } else { 0.0 }, "")?;
+                // Always 1 (see `JsonReport::converged`).
+                item("converged", None, 1.0, "")?;
                 item("iterations", None, s.iterations.into(), "")?;
                 item("status_changes", None, s.status_changes.into(), "")?;
                 item("max_mass_residual", None, self.flow(s.max_mass_residual), qu)?;

@@ -1916,17 +1916,6 @@ ringmain_status ringmain_results_link_index(const ringmain_results *results,
                                             size_t *out);
 
 /**
- * Writes whether the solve converged to `*out`. Always true: a solve that does not converge
- * returns `RINGMAIN_NOT_CONVERGED` and makes no results.
- *
- * # Safety
- * `results` is NULL or live results; `out` is NULL or writable.
- */
-RINGMAIN_MUST_USE
-ringmain_status ringmain_results_converged(const ringmain_results *results,
-                                           bool *out);
-
-/**
  * Writes the number of Newton iterations (linear solves) of the solve to `*out`.
  *
  * # Safety

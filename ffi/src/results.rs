@@ -27,7 +27,6 @@ pub struct ringmain_results {
     headloss: Vec<f64>,
     state: Vec<u32>,
     connected: Vec<bool>,
-    converged: bool,
     iterations: u32,
     status_changes: u32,
     max_mass_residual: f64,
@@ -77,7 +76,6 @@ impl ringmain_results {
                 .collect(),
             state: s.link_state.iter().map(|&st| ringmain_link_state::of(st) as u32).collect(),
             connected: s.connected.clone(),
-            converged: s.converged,
             iterations: s.iterations,
             status_changes: s.status_changes,
             max_mass_residual: u.flow_out(s.max_mass_residual),
@@ -224,21 +222,6 @@ pub unsafe extern "C" fn ringmain_results_link_index(
         out.write(r.ids.find_link(id)?);
         Ok(())
     }
-}
-
-/// Writes whether the solve converged to `*out`. Always true: a solve that does not converge
-/// returns `RINGMAIN_NOT_CONVERGED` and makes no results.
-///
-/// # Safety
-/// `results` is NULL or live results; `out` is NULL or writable.
-#[no_mangle]
-#[must_use]
-pub unsafe extern "C" fn ringmain_results_converged(
-    results: *const ringmain_results,
-    out: *mut bool,
-) -> ringmain_status {
-    // SAFETY: the caller's contract above.
-    ffi_boundary! { unsafe { statistic(results, out, |r| r.converged) } }
 }
 
 /// Writes the number of Newton iterations (linear solves) of the solve to `*out`.
