@@ -8,7 +8,7 @@ use ringmain_core::model::PumpDrive;
 use ringmain_core::physics::fittings::{
     crane_turbulent_friction, method_source, FittingKind, FittingsMethod, GATE_VALVE_CURVE,
 };
-use ringmain_core::units::HORSEPOWER;
+use ringmain_core::units::{Converter, Quantity};
 use ringmain_core::Model;
 use serde_json::{json, Value};
 use std::fmt::Write as _;
@@ -95,7 +95,7 @@ pub fn run(args: Args) -> ExitCode {
             return ExitCode::from(crate::EXIT_NOT_CONVERGED);
         }
     };
-    let view = View { model: &model, analysis: &analysis, flows: &flows_user };
+    let view = View { model: &model, analysis: &analysis, flows: &flows_user, units: model.converter() };
     if let Some(plot) = &args.plot {
         if let Err(e) = write_atomically(plot, &view.svg()) {
             eprintln!("error: cannot write the chart to {}: {e}", plot.display());
@@ -130,6 +130,8 @@ struct View<'a> {
     analysis: &'a DutyAnalysis,
     /// The system curve's flows in the model's unit, as given or made (no round trip via SI).
     flows: &'a [f64],
+    /// The converter to the model's units.
+    units: Converter,
 }
 
 impl View<'_> {
@@ -141,24 +143,16 @@ impl View<'_> {
         }
     }
     fn q(&self, v: f64) -> f64 {
-        self.model.units.flow.from_si(v)
+        self.units.from_si(Quantity::Flow, v)
     }
     fn h(&self, v: f64) -> f64 {
-        self.model.units.length.from_si(v)
+        self.units.from_si(Quantity::Length, v)
     }
     fn power(&self, watts: f64) -> f64 {
-        if self.model.units.is_us_customary() {
-            watts / HORSEPOWER
-        } else {
-            watts / 1e3
-        }
+        self.units.from_si(Quantity::Power, watts)
     }
     fn power_label(&self) -> &'static str {
-        if self.model.units.is_us_customary() {
-            "hp"
-        } else {
-            "kW"
-        }
+        self.units.label(Quantity::Power)
     }
     fn pump_id(&self) -> &str {
         &self.model.links()[self.analysis.pump].id

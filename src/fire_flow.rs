@@ -4,7 +4,8 @@
 
 use crate::{EXIT_INVALID, EXIT_NOT_CONVERGED, EXIT_WRITE};
 use ringmain_core::analysis::fire_flow::{fire_flows, FireFlow, FireFlowOptions};
-use ringmain_core::units::{suggest, PressureUnit};
+use ringmain_core::units::did_you_mean;
+use ringmain_core::units::{Converter, PressureUnit, Quantity};
 use ringmain_core::{Model, NodeKind, SolveError};
 use serde_json::json;
 use std::io::Write;
@@ -39,9 +40,7 @@ fn parse_pressure(text: &str, model: &Model) -> Result<f64, String> {
     let unit = match unit.trim() {
         "" => model.units.pressure,
         u => PressureUnit::parse(u).ok_or_else(|| {
-            let hint = suggest(u, PressureUnit::ALL.iter().map(|p| p.label()))
-                .map(|s| format!(" (did you mean \"{s}\"?)"))
-                .unwrap_or_default();
+            let hint = did_you_mean(u, PressureUnit::ALL.iter().map(|p| p.label()), '"');
             format!(
                 "--residual \"{text}\": unknown pressure unit \"{u}\"{hint}; expected one of {}",
                 PressureUnit::choices()
@@ -56,9 +55,7 @@ fn hydrants(args: &Args, model: &Model) -> Result<Vec<usize>, String> {
     let mut chosen = vec![false; model.nodes().len()];
     for id in &args.at {
         let Some(i) = model.node_index(id) else {
-            let hint = suggest(id, model.nodes().iter().map(|n| n.id.as_str()))
-                .map(|s| format!(" (did you mean '{s}'?)"))
-                .unwrap_or_default();
+            let hint = did_you_mean(id, model.nodes().iter().map(|n| n.id.as_str()), '\'');
             return Err(format!("--at '{id}': no node has this id{hint}"));
         };
         if !matches!(model.nodes()[i].kind, NodeKind::Junction { .. }) {
@@ -136,7 +133,7 @@ pub fn run(args: Args) -> ExitCode {
             return ExitCode::from(EXIT_NOT_CONVERGED);
         }
     };
-    let view = View { model: &model, density: model.options.water_properties().density };
+    let view = View { model: &model, units: model.converter() };
     let text = match args.format {
         crate::OutputFormat::Json => view.json(&results, residual, args.demand_factor),
         crate::OutputFormat::Csv => view.csv(&results),
@@ -176,15 +173,15 @@ fn write_whole(path: &Path, text: &str) -> ExitCode {
 /// Results in the model's units.
 struct View<'a> {
     model: &'a Model,
-    density: f64,
+    units: Converter,
 }
 
 impl View<'_> {
     fn flow(&self, q: f64) -> f64 {
-        self.model.units.flow.from_si(q)
+        self.units.from_si(Quantity::Flow, q)
     }
     fn pressure(&self, head: f64) -> f64 {
-        self.model.units.pressure.from_head(head, self.density)
+        self.units.from_si(Quantity::Pressure, head)
     }
     fn id(&self, i: usize) -> &str {
         &self.model.nodes()[i].id

@@ -5,11 +5,11 @@
 use crate::columnar::{Column, Kind, Table};
 use crate::csv;
 use ringmain_core::model::write::write_element_per_line;
-use ringmain_core::model::{LinkKind, Valve, ValveType};
+use ringmain_core::model::{LinkKind, Valve};
 use ringmain_core::physics::WaterProperties;
 use ringmain_core::solve::links::{minor_losses, LinkLaw};
 use ringmain_core::solve::{PumpResult, Warning};
-use ringmain_core::units::HORSEPOWER;
+use ringmain_core::units::{Converter, Quantity};
 use ringmain_core::{Model, NodeKind, Solution};
 use serde::{Serialize, Serializer};
 use serde_json::{json, Value};
@@ -111,54 +111,39 @@ struct JsonLink<'a> {
 pub struct Report<'a> {
     model: &'a Model,
     solution: &'a Solution,
-    density: f64,
     water: WaterProperties,
+    /// The converter to the model's units.
+    units: Converter,
 }
 
 impl<'a> Report<'a> {
     pub fn new(model: &'a Model, solution: &'a Solution) -> Self {
         let water = model.options.water_properties();
-        Report { model, solution, density: water.density, water }
+        Report { model, solution, water, units: model.converter() }
     }
 
     fn len(&self, v: f64) -> f64 {
-        self.model.units.length.from_si(v)
+        self.units.from_si(Quantity::Length, v)
     }
     fn flow(&self, v: f64) -> f64 {
-        self.model.units.flow.from_si(v)
+        self.units.from_si(Quantity::Flow, v)
     }
     fn pressure(&self, head: f64) -> f64 {
-        self.model.units.pressure.from_head(head, self.density)
+        self.units.from_si(Quantity::Pressure, head)
     }
     /// Power in kW (SI models) or hp (US-customary models).
     fn power(&self, watts: f64) -> f64 {
-        if self.model.units.is_us_customary() {
-            watts / HORSEPOWER
-        } else {
-            watts / 1e3
-        }
+        self.units.from_si(Quantity::Power, watts)
     }
     fn power_label(&self) -> &'static str {
-        if self.model.units.is_us_customary() {
-            "hp"
-        } else {
-            "kW"
-        }
+        self.units.label(Quantity::Power)
     }
     /// A valve's setting in the model's units.
     fn setting(&self, v: &Valve) -> f64 {
-        match v.valve {
-            ValveType::PressureReducing | ValveType::PressureSustaining => self.pressure(v.setting),
-            ValveType::FlowControl => self.flow(v.setting),
-            ValveType::Throttle => v.setting,
-        }
+        self.units.from_si(v.valve.setting_quantity(), v.setting)
     }
     fn setting_unit(&self, v: &Valve) -> String {
-        match v.valve {
-            ValveType::PressureReducing | ValveType::PressureSustaining => self.model.units.pressure.label().into(),
-            ValveType::FlowControl => self.model.units.flow.label().into(),
-            ValveType::Throttle => "K".into(),
-        }
+        self.units.label(v.valve.setting_quantity()).into()
     }
 
     /// Supply of every fixed-head node (positive: into the network), in flow units.

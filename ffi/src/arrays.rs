@@ -15,6 +15,7 @@
 
 use crate::boundary::{copy_out, handle, handle_mut, out_opt, slice, Failure, Out};
 use crate::codes::*;
+use crate::convert::Quantity;
 use crate::inputs::{get_all, set_all, Input};
 use crate::model::ringmain_model;
 use ringmain_core::Node;
@@ -494,7 +495,7 @@ pub unsafe extern "C" fn ringmain_model_elevations(
 ) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
-        unsafe { get_node_values(model, buf, len, count, "elevations", |n, u| Some(u.length_out(n.elevation))) }
+        unsafe { get_node_values(model, buf, len, count, "elevations", |n, u| Some(u.from_si(Quantity::Length, n.elevation))) }
     }
 }
 

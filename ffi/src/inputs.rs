@@ -18,7 +18,7 @@
 
 use crate::boundary::{copy_out, handle, handle_mut, out, out_opt, slice, Failure};
 use crate::codes::ringmain_link_status;
-use crate::convert::Units;
+use crate::convert::{Quantity, Units};
 use crate::model::{out_of_range, ringmain_model, wrong_kind};
 use ringmain_core::{Element, LinkKind, LinkStatus, Model, ModelError, NodeKind};
 use std::borrow::Cow;
@@ -163,34 +163,29 @@ impl Input {
         Ok(())
     }
 
+    /// The quantity of element `index`'s value (checked): a valve's setting is a pressure, a
+    /// flow or a loss coefficient by its type.
+    fn quantity(self, model: &Model, index: usize) -> Quantity {
+        match self {
+            Input::Demand => Quantity::Flow,
+            Input::ReservoirHead | Input::TankLevel => Quantity::Length,
+            Input::PumpSpeed => Quantity::Number,
+            Input::ValveSetting => {
+                model.links()[index].as_valve().map_or(Quantity::Number, |v| v.valve.setting_quantity())
+            }
+            Input::PipeRoughness => Quantity::PipeRoughness,
+            Input::PipeDiameter => Quantity::Diameter,
+        }
+    }
+
     /// `v` (SI) of element `index` in the model's units.
     fn to_model_units(self, model: &Model, u: &Units, index: usize, v: f64) -> f64 {
-        match self {
-            Input::Demand => u.flow_out(v),
-            Input::ReservoirHead | Input::TankLevel => u.length_out(v),
-            Input::PumpSpeed => v,
-            Input::ValveSetting => match &model.links()[index].kind {
-                LinkKind::Valve(valve) => u.setting_out(valve.valve, v),
-                _ => f64::NAN,
-            },
-            Input::PipeRoughness => u.roughness_out(v),
-            Input::PipeDiameter => u.diameter_out(v),
-        }
+        u.from_si(self.quantity(model, index), v)
     }
 
     /// `v` (model's units) of element `index` in SI.
     fn to_si(self, model: &Model, u: &Units, index: usize, v: f64) -> f64 {
-        match self {
-            Input::Demand => u.flow_in(v),
-            Input::ReservoirHead | Input::TankLevel => u.length_in(v),
-            Input::PumpSpeed => v,
-            Input::ValveSetting => match &model.links()[index].kind {
-                LinkKind::Valve(valve) => u.setting_in(valve.valve, v),
-                _ => f64::NAN,
-            },
-            Input::PipeRoughness => u.roughness_in(v),
-            Input::PipeDiameter => u.diameter_in(v),
-        }
+        u.to_si(self.quantity(model, index), v)
     }
 }
 

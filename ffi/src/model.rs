@@ -5,7 +5,7 @@ use crate::boundary::{
     LIVE_RESULTS,
 };
 use crate::codes::*;
-use crate::convert::Units;
+use crate::convert::{Quantity, Units};
 use crate::inputs::{get_one, set_one, Input};
 use crate::results::ringmain_results;
 use ringmain_core::model::write::to_string;
@@ -13,7 +13,8 @@ use ringmain_core::model::{HydraulicOptions, Pump, PumpDrive, Valve, WaterSpec};
 use ringmain_core::physics::pump::{Efficiency, HeadCurve};
 use ringmain_core::physics::WaterProperties;
 use ringmain_core::solve::Conditions;
-use ringmain_core::units::{suggest, UnitSystem};
+use ringmain_core::units::did_you_mean;
+use ringmain_core::units::UnitSystem;
 use ringmain_core::{
     read_bytes, Element, Format, Link, LinkKind, LinkStatus, Model, ModelError, Node, NodeKind, Pipe, SolveError,
     SolveOptions, Solver, Tank,
@@ -84,7 +85,7 @@ impl Ids {
 }
 
 fn not_found<'a>(what: &str, id: &str, ids: impl Iterator<Item = &'a str>) -> Failure {
-    let hint = suggest(id, ids).map(|s| format!(" (did you mean '{s}'?)")).unwrap_or_default();
+    let hint = did_you_mean(id, ids, '\'');
     Failure::new(
         ringmain_status::RINGMAIN_NOT_FOUND,
         format!("no {what} has the id '{}'{hint}", ringmain_core::error::printable(id)),
@@ -112,7 +113,7 @@ impl ringmain_model {
     }
 
     pub(crate) fn units(&self) -> Units {
-        Units::of(&self.model)
+        self.model.converter()
     }
 
     fn node(&self, index: usize) -> Result<&Node, Failure> {
@@ -130,9 +131,7 @@ impl ringmain_model {
     /// The index of an end node of a new link.
     fn end(&self, link_id: &str, key: &str, node_id: &str) -> Result<usize, Failure> {
         self.model.node_index(node_id).ok_or_else(|| {
-            let hint = suggest(node_id, self.model.nodes().iter().map(|n| n.id.as_str()))
-                .map(|s| format!(" (did you mean '{s}'?)"))
-                .unwrap_or_default();
+            let hint = did_you_mean(node_id, self.model.nodes().iter().map(|n| n.id.as_str()), '\'');
             let e = ModelError::at(
                 Some(Element::Link(link_id.to_owned())),
                 Some(key),
@@ -704,18 +703,15 @@ pub unsafe extern "C" fn ringmain_model_unit_label(
         // SAFETY: the caller's contract above.
         let (m, needed) = unsafe { (handle(model, "model")?, out_opt(needed, "needed")?) };
         let u = m.units();
-        let label = match ringmain_quantity::from_code(quantity, "quantity")? {
-            ringmain_quantity::RINGMAIN_QUANTITY_LENGTH => u.system.length.label(),
-            ringmain_quantity::RINGMAIN_QUANTITY_DIAMETER => u.system.diameter.label(),
-            ringmain_quantity::RINGMAIN_QUANTITY_FLOW => u.system.flow.label(),
-            ringmain_quantity::RINGMAIN_QUANTITY_PRESSURE => u.system.pressure.label(),
-            ringmain_quantity::RINGMAIN_QUANTITY_ROUGHNESS => match u.headloss {
-                ringmain_core::HeadLossLaw::HazenWilliams => "",
-                ringmain_core::HeadLossLaw::DarcyWeisbach => u.system.roughness.label(),
-            },
-            ringmain_quantity::RINGMAIN_QUANTITY_VELOCITY => u.system.velocity_label(),
-            ringmain_quantity::RINGMAIN_QUANTITY_POWER => u.power_label(),
-        };
+        let label = u.label(match ringmain_quantity::from_code(quantity, "quantity")? {
+            ringmain_quantity::RINGMAIN_QUANTITY_LENGTH => Quantity::Length,
+            ringmain_quantity::RINGMAIN_QUANTITY_DIAMETER => Quantity::Diameter,
+            ringmain_quantity::RINGMAIN_QUANTITY_FLOW => Quantity::Flow,
+            ringmain_quantity::RINGMAIN_QUANTITY_PRESSURE => Quantity::Pressure,
+            ringmain_quantity::RINGMAIN_QUANTITY_ROUGHNESS => Quantity::PipeRoughness,
+            ringmain_quantity::RINGMAIN_QUANTITY_VELOCITY => Quantity::Velocity,
+            ringmain_quantity::RINGMAIN_QUANTITY_POWER => Quantity::Power,
+        });
         // SAFETY: the caller's contract above.
         unsafe { copy_text(label, buf, len, needed) }
     }
@@ -763,7 +759,7 @@ pub unsafe extern "C" fn ringmain_model_get_elevation(
     out: *mut f64,
 ) -> ringmain_status {
     // SAFETY: the caller's contract above.
-    ffi_boundary! { unsafe { node_value(model, node, out, |n, u| Ok(u.length_out(n.elevation))) } }
+    ffi_boundary! { unsafe { node_value(model, node, out, |n, u| Ok(u.from_si(Quantity::Length, n.elevation))) } }
 }
 
 /// Writes the demand of junction `node` (flow unit) to `*out`. Errors: `RINGMAIN_WRONG_KIND` for
@@ -1010,7 +1006,7 @@ pub unsafe extern "C" fn ringmain_model_add_junction(
         // SAFETY: the caller's contract above.
         unsafe {
             add_node_with(model, id, out_index, |id, u| {
-                Node::junction(id, u.length_in(elevation), u.flow_in(demand))
+                Node::junction(id, u.to_si(Quantity::Length, elevation), u.to_si(Quantity::Flow, demand))
             })
         }
     }
@@ -1031,7 +1027,7 @@ pub unsafe extern "C" fn ringmain_model_add_reservoir(
 ) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
-        unsafe { add_node_with(model, id, out_index, |id, u| Node::reservoir(id, u.length_in(head))) }
+        unsafe { add_node_with(model, id, out_index, |id, u| Node::reservoir(id, u.to_si(Quantity::Length, head))) }
     }
 }
 
@@ -1061,14 +1057,14 @@ pub unsafe extern "C" fn ringmain_model_add_tank(
         unsafe {
             add_node_with(model, id, out_index, |id, u| Node {
                 id: id.into(),
-                elevation: u.length_in(elevation),
+                elevation: u.to_si(Quantity::Length, elevation),
                 coordinates: None,
                 zone: None,
                 kind: NodeKind::Tank(Box::new(Tank {
-                    level: u.length_in(level),
-                    min_level: u.length_in(min_level),
-                    max_level: optional(max_level).map(|v| u.length_in(v)),
-                    diameter: optional(diameter).map(|v| u.length_in(v)),
+                    level: u.to_si(Quantity::Length, level),
+                    min_level: u.to_si(Quantity::Length, min_level),
+                    max_level: optional(max_level).map(|v| u.to_si(Quantity::Length, v)),
+                    diameter: optional(diameter).map(|v| u.to_si(Quantity::Length, v)),
                 })),
             })
         }
@@ -1106,9 +1102,9 @@ pub unsafe extern "C" fn ringmain_model_add_pipe(
         unsafe {
             add_link_with(model, id, from, to, out_index, |_, u| {
                 let pipe = Pipe {
-                    length: u.length_in(length),
-                    diameter: u.diameter_in(diameter),
-                    roughness: u.roughness_in(roughness),
+                    length: u.to_si(Quantity::Length, length),
+                    diameter: u.to_si(Quantity::Diameter, diameter),
+                    roughness: u.to_si(Quantity::PipeRoughness, roughness),
                     minor_loss,
                     check_valve,
                 };
@@ -1160,7 +1156,7 @@ pub unsafe extern "C" fn ringmain_model_add_pump_curve(
         unsafe {
             add_link_with(model, id, from, to, out_index, |id, u| {
                 let points: Vec<(f64, f64)> =
-                    flows.iter().zip(heads).map(|(&q, &h)| (u.flow_in(q), u.length_in(h))).collect();
+                    flows.iter().zip(heads).map(|(&q, &h)| (u.to_si(Quantity::Flow, q), u.to_si(Quantity::Length, h))).collect();
                 let curve = HeadCurve::fit(&points)
                     .map_err(|e| ModelError::at(Some(Element::Link(id.to_owned())), Some("head_curve"), e.0))?;
                 Ok((pump(PumpDrive::Curve { points, curve }, speed), LinkStatus::Open))
@@ -1190,7 +1186,7 @@ pub unsafe extern "C" fn ringmain_model_add_pump_power(
         // SAFETY: the caller's contract above.
         unsafe {
             add_link_with(model, id, from, to, out_index, |_, u| {
-                Ok((pump(PumpDrive::Power(u.power_in(power)), speed), LinkStatus::Open))
+                Ok((pump(PumpDrive::Power(u.to_si(Quantity::Power, power)), speed), LinkStatus::Open))
             })
         }
     }
@@ -1227,8 +1223,8 @@ pub unsafe extern "C" fn ringmain_model_add_valve(
             add_link_with(model, id, from, to, out_index, |_, u| {
                 let v = Valve {
                     valve,
-                    diameter: u.diameter_in(diameter),
-                    setting: u.setting_in(valve, setting),
+                    diameter: u.to_si(Quantity::Diameter, diameter),
+                    setting: u.to_si(valve.setting_quantity(), setting),
                     minor_loss,
                     automatic: true,
                 };
@@ -1403,7 +1399,7 @@ pub unsafe extern "C" fn ringmain_model_set_pump_efficiency_curve(
             change_link(model, link, |l, u| match &mut l.kind {
                 LinkKind::Pump(p) => {
                     let points: Vec<(f64, f64)> =
-                        flows.iter().zip(percents).map(|(&q, &e)| (u.flow_in(q), e / 100.0)).collect();
+                        flows.iter().zip(percents).map(|(&q, &e)| (u.to_si(Quantity::Flow, q), e / 100.0)).collect();
                     p.efficiency = Efficiency::fit(&points).map_err(|e| {
                         ModelError::at(Some(Element::Link(l.id.to_string())), Some("efficiency_curve"), e.0)
                     })?;
@@ -1531,7 +1527,7 @@ pub unsafe extern "C" fn ringmain_model_set_solver_options(
         }
         let u = m.units();
         m.model.options.max_iterations = max_iterations;
-        m.model.options.head_tolerance = u.length_in(head_tolerance);
+        m.model.options.head_tolerance = u.to_si(Quantity::Length, head_tolerance);
         m.model.options.flow_tolerance = flow_tolerance;
         Ok(())
     }
