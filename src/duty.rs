@@ -97,7 +97,7 @@ pub fn run(args: Args) -> ExitCode {
     };
     let view = View { model: &model, analysis: &analysis, flows: &flows_user, units: model.converter() };
     if let Some(plot) = &args.plot {
-        if let Err(e) = write_atomically(plot, &view.svg()) {
+        if let Err(e) = crate::output::write_text(plot, &view.svg()) {
             eprintln!("error: cannot write the chart to {}: {e}", plot.display());
             return ExitCode::from(crate::EXIT_WRITE);
         }
@@ -117,11 +117,6 @@ pub fn run(args: Args) -> ExitCode {
 /// Whether two paths name the same existing file, by identity (see [`crate::output::same_file`]).
 fn same_file(a: &Path, b: &Path) -> bool {
     crate::output::same_file(a, b)
-}
-
-/// Writes `text` whole or not at all (see [`crate::output::write_file`]).
-fn write_atomically(path: &Path, text: &str) -> std::io::Result<()> {
-    crate::output::write_file(path, |out| out.write_all(text.as_bytes()))
 }
 
 /// An analysis in the model's units.

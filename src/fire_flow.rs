@@ -8,7 +8,6 @@ use ringmain_core::units::did_you_mean;
 use ringmain_core::units::{Converter, PressureUnit, Quantity};
 use ringmain_core::{Model, NodeKind, SolveError};
 use serde_json::json;
-use std::io::Write;
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
@@ -154,16 +153,9 @@ pub fn run(args: Args) -> ExitCode {
 /// Writes `text` to a new file beside `path` and renames it into place: a failed run leaves no
 /// half-written file.
 fn write_whole(path: &Path, text: &str) -> ExitCode {
-    let mut partial = path.as_os_str().to_owned();
-    partial.push(".partial");
-    let partial = PathBuf::from(partial);
-    let written = std::fs::File::create(&partial)
-        .and_then(|mut f| f.write_all(text.as_bytes()).and_then(|()| f.sync_all()))
-        .and_then(|()| std::fs::rename(&partial, path));
-    match written {
+    match crate::output::write_text(path, text) {
         Ok(()) => ExitCode::SUCCESS,
         Err(e) => {
-            let _ = std::fs::remove_file(&partial);
             eprintln!("error: cannot write the results to {}: {e}", path.display());
             ExitCode::from(EXIT_WRITE)
         }

@@ -723,37 +723,6 @@ fn same_file(a: &Path, b: &Path) -> bool {
     }
 }
 
-/// A file written under a temporary name beside its final one and renamed when complete: a
-/// failed run leaves no half-written file (and never a truncated earlier one).
-struct PartFile {
-    temporary: PathBuf,
-    path: PathBuf,
-    done: bool,
-}
-
-impl PartFile {
-    fn create(path: &Path) -> std::io::Result<(PartFile, std::fs::File)> {
-        let name = path.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
-        let temporary = path.with_file_name(format!(".{name}.{}.part", std::process::id()));
-        let file = std::fs::File::create(&temporary)?;
-        Ok((PartFile { temporary, path: path.to_owned(), done: false }, file))
-    }
-
-    fn commit(mut self) -> std::io::Result<()> {
-        std::fs::rename(&self.temporary, &self.path)?;
-        self.done = true;
-        Ok(())
-    }
-}
-
-impl Drop for PartFile {
-    fn drop(&mut self) {
-        if !self.done {
-            let _ = std::fs::remove_file(&self.temporary);
-        }
-    }
-}
-
 /// Writes per-element results as GeoJSON (no partial file on failure).
 fn write_geojson(
     path: &Path,
@@ -769,7 +738,7 @@ fn write_geojson(
     };
     match output {
         None => write_with("the results", None, |out| results.write_geojson(out)),
-        Some(file) => match import_cmd::write_atomically(file, |out| results.write_geojson(out)) {
+        Some(file) => match output::write_file(file, |out| results.write_geojson(out)) {
             Ok(()) => ExitCode::SUCCESS,
             Err(e) => {
                 eprintln!("error: cannot write the results to {}: {e}", file.display());
@@ -819,7 +788,7 @@ fn draw_map(path: &Path, quantity: &str, at: Option<&str>, output: &Path) -> Exi
         );
         return ExitCode::from(EXIT_INVALID);
     }
-    let written = import_cmd::write_atomically(output, |out| {
+    let written = output::write_file(output, |out| {
         if svg {
             map::write_svg(&results, quantity, out)
         } else {
@@ -939,7 +908,7 @@ fn simulate(
     let sink: Option<Box<dyn Write>> = match (streamed, format, output) {
         (false, _, _) | (_, OutputFormat::Parquet, _) => None,
         (_, _, None) => Some(Box::new(BufWriter::with_capacity(1 << 16, std::io::stdout().lock()))),
-        (_, _, Some(out)) => match PartFile::create(out) {
+        (_, _, Some(out)) => match output::OutputFile::create(out) {
             Ok((p, file)) => {
                 part = Some(p);
                 files.push(out.to_owned());
@@ -1111,7 +1080,7 @@ fn simulate(
         }
     };
     drop(writer);
-    let committed = finished.and_then(|()| part.map_or(Ok(()), PartFile::commit));
+    let committed = finished.and_then(|()| part.map_or(Ok(()), output::OutputFile::commit));
     match committed {
         Ok(()) => {}
         Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => return ExitCode::SUCCESS,
