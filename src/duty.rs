@@ -39,8 +39,8 @@ fn invalid(message: impl std::fmt::Display) -> ExitCode {
 
 /// Runs `ringmain duty`.
 pub fn run(args: Args) -> ExitCode {
-    if args.format == crate::OutputFormat::Geojson {
-        return invalid("--format geojson applies to solve and simulate (results on a map); use table, json or csv");
+    if let Some(refusal) = crate::format_refusal(args.format) {
+        return invalid(refusal);
     }
     let tank_levels = match args.tank_levels.replace(' ', "").as_str() {
         "current" => TankLevels::Current,
@@ -612,8 +612,8 @@ fn render_xy(title: &str, x_label: &str, x_max: f64, panels: &[XyPanel]) -> Stri
 /// Runs `ringmain fittings`: the kinds, their parameters, their values under each method and
 /// the sources.
 pub fn list_fittings(format: crate::OutputFormat) -> ExitCode {
-    if format == crate::OutputFormat::Geojson {
-        return invalid("--format geojson applies to solve and simulate (results on a map); use table, json or csv");
+    if let Some(refusal) = crate::format_refusal(format) {
+        return invalid(refusal);
     }
     let text = match format {
         crate::OutputFormat::Json => {

@@ -137,11 +137,8 @@ pub fn run(args: Args) -> ExitCode {
         crate::OutputFormat::Json => view.json(&results, residual, args.demand_factor),
         crate::OutputFormat::Csv => view.csv(&results),
         crate::OutputFormat::Table => view.table(&results, residual, args.demand_factor),
-        crate::OutputFormat::Geojson => {
-            return invalid("--format geojson applies to solve and simulate (results on a map)".into())
-        }
-        crate::OutputFormat::Parquet => {
-            return invalid("--format parquet applies to solve and simulate; use table, json or csv".into())
+        crate::OutputFormat::Geojson | crate::OutputFormat::Parquet => {
+            return invalid(crate::format_refusal(args.format).unwrap_or_default().into())
         }
     };
     match &args.output {

@@ -8,6 +8,7 @@ mod check_report;
 mod columnar;
 mod csv;
 mod duty;
+mod exit;
 mod fire_flow;
 mod gis;
 mod import_cmd;
@@ -319,9 +320,18 @@ pub(crate) enum OutputFormat {
     Parquet,
 }
 
-pub(crate) const EXIT_INVALID: u8 = 2;
-pub(crate) const EXIT_NOT_CONVERGED: u8 = 3;
-pub(crate) const EXIT_WRITE: u8 = 4;
+pub(crate) use exit::{EXIT_INVALID, EXIT_NOT_CONVERGED, EXIT_WRITE};
+
+/// Why a command that writes tables, JSON and CSV only cannot write `format`, or `None` when it
+/// can: the one place these formats are refused (GeoJSON and Parquet are written by `solve` and
+/// `simulate`, whose results are per element).
+pub(crate) fn format_refusal(format: OutputFormat) -> Option<&'static str> {
+    match format {
+        OutputFormat::Table | OutputFormat::Json | OutputFormat::Csv => None,
+        OutputFormat::Geojson => Some("--format geojson applies to solve and simulate (results on a map)"),
+        OutputFormat::Parquet => Some("--format parquet applies to solve and simulate; use table, json or csv"),
+    }
+}
 
 fn main() -> ExitCode {
     let cli = Cli::parse();
@@ -368,20 +378,14 @@ fn main() -> ExitCode {
                 keep: offenders,
             })
         }
-        Command::WaterProperties { format: OutputFormat::Geojson, .. }
-        | Command::FrictionFactor { format: OutputFormat::Geojson, .. }
-        | Command::Duty { format: OutputFormat::Geojson, .. }
-        | Command::FireFlow { format: OutputFormat::Geojson, .. }
-        | Command::Fittings { format: OutputFormat::Geojson } => {
-            eprintln!("error: --format geojson applies to solve and simulate (results on a map)");
-            ExitCode::from(EXIT_INVALID)
-        }
-        Command::WaterProperties { format: OutputFormat::Parquet, .. }
-        | Command::FrictionFactor { format: OutputFormat::Parquet, .. }
-        | Command::Duty { format: OutputFormat::Parquet, .. }
-        | Command::FireFlow { format: OutputFormat::Parquet, .. }
-        | Command::Fittings { format: OutputFormat::Parquet } => {
-            eprintln!("error: --format parquet applies to solve and simulate; use table, json or csv");
+        Command::WaterProperties { format, .. }
+        | Command::FrictionFactor { format, .. }
+        | Command::Duty { format, .. }
+        | Command::FireFlow { format, .. }
+        | Command::Fittings { format }
+            if format_refusal(format).is_some() =>
+        {
+            eprintln!("error: {}", format_refusal(format).unwrap_or_default());
             ExitCode::from(EXIT_INVALID)
         }
         Command::Duty { model, pump, flows, speeds, motor_margin, npsh_margin, tank_levels, format, plot } => {
@@ -1042,7 +1046,7 @@ fn simulate(
         }
     }
     let failed =
-        if report.checks.iter().any(|c| !c.passed()) { ExitCode::from(check::EXIT_FAILED) } else { ExitCode::SUCCESS };
+        if report.checks.iter().any(|c| !c.passed()) { ExitCode::from(exit::EXIT_FAILED) } else { ExitCode::SUCCESS };
     let finished = match writer.as_mut() {
         Some(w) => w.finish(&report),
         None if format == OutputFormat::Table => {
