@@ -22,14 +22,8 @@ use std::process::ExitCode;
 use std::sync::atomic::{AtomicU64, Ordering};
 use std::time::Instant;
 
-/// Exit codes of `check` (documented in `--help` and docs/check.md).
-pub const EXIT_FAILED: u8 = 1;
-/// Invalid model, criteria file or arguments.
-pub const EXIT_INVALID: u8 = 2;
-/// A scenario did not solve.
-pub const EXIT_NOT_CONVERGED: u8 = 3;
-/// A report could not be written.
-pub const EXIT_WRITE: u8 = 4;
+/// Exit codes of `check` (documented in `--help` and docs/check.md): the program's one set.
+pub use crate::exit::{EXIT_FAILED, EXIT_INVALID, EXIT_NOT_CONVERGED, EXIT_WRITE};
 
 /// What `check` was asked to do.
 pub struct Args {

@@ -5,11 +5,11 @@
 use crate::columnar::{Column, Kind, Table};
 use crate::csv;
 use ringmain_core::model::write::write_element_per_line;
-use ringmain_core::model::{LinkKind, Valve, ValveType};
+use ringmain_core::model::{LinkKind, Valve};
 use ringmain_core::physics::WaterProperties;
 use ringmain_core::solve::links::{minor_losses, LinkLaw};
 use ringmain_core::solve::{PumpResult, Warning};
-use ringmain_core::units::HORSEPOWER;
+use ringmain_core::units::{Converter, Quantity};
 use ringmain_core::{Model, NodeKind, Solution};
 use serde::{Serialize, Serializer};
 use serde_json::{json, Value};
@@ -22,6 +22,8 @@ pub const LARGEST_SHORTFALLS: usize = 10;
 /// The JSON report's top level (fields in alphabetical order, as the keys are written).
 #[derive(Serialize)]
 struct JsonReport<'r, 'a> {
+    /// Always true: a report is written for a solution only, and a solve that does not converge
+    /// is an error. The key stays for the readers of the format.
     converged: bool,
     iterations: u32,
     links: JsonLinks<'r, 'a>,
@@ -119,54 +121,39 @@ struct JsonLink<'a> {
 pub struct Report<'a> {
     model: &'a Model,
     solution: &'a Solution,
-    density: f64,
     water: WaterProperties,
+    /// The converter to the model's units.
+    units: Converter,
 }
 
 impl<'a> Report<'a> {
     pub fn new(model: &'a Model, solution: &'a Solution) -> Self {
         let water = model.options.water_properties();
-        Report { model, solution, density: water.density, water }
+        Report { model, solution, water, units: model.converter() }
     }
 
     fn len(&self, v: f64) -> f64 {
-        self.model.units.length.from_si(v)
+        self.units.from_si(Quantity::Length, v)
     }
     fn flow(&self, v: f64) -> f64 {
-        self.model.units.flow.from_si(v)
+        self.units.from_si(Quantity::Flow, v)
     }
     fn pressure(&self, head: f64) -> f64 {
-        self.model.units.pressure.from_head(head, self.density)
+        self.units.from_si(Quantity::Pressure, head)
     }
     /// Power in kW (SI models) or hp (US-customary models).
     fn power(&self, watts: f64) -> f64 {
-        if self.model.units.is_us_customary() {
-            watts / HORSEPOWER
-        } else {
-            watts / 1e3
-        }
+        self.units.from_si(Quantity::Power, watts)
     }
     fn power_label(&self) -> &'static str {
-        if self.model.units.is_us_customary() {
-            "hp"
-        } else {
-            "kW"
-        }
+        self.units.label(Quantity::Power)
     }
     /// A valve's setting in the model's units.
     fn setting(&self, v: &Valve) -> f64 {
-        match v.valve {
-            ValveType::PressureReducing | ValveType::PressureSustaining => self.pressure(v.setting),
-            ValveType::FlowControl => self.flow(v.setting),
-            ValveType::Throttle => v.setting,
-        }
+        self.units.from_si(v.valve.setting_quantity(), v.setting)
     }
     fn setting_unit(&self, v: &Valve) -> String {
-        match v.valve {
-            ValveType::PressureReducing | ValveType::PressureSustaining => self.model.units.pressure.label().into(),
-            ValveType::FlowControl => self.model.units.flow.label().into(),
-            ValveType::Throttle => "K".into(),
-        }
+        self.units.label(v.valve.setting_quantity()).into()
     }
 
     /// Supply of every fixed-head node (positive: into the network), in flow units.
@@ -316,7 +303,7 @@ impl<'a> Report<'a> {
             .map(|(i, q)| json!({"id": m.nodes()[i].id, "kind": m.nodes()[i].kind.label(), "supply": q}))
             .collect();
         let report = JsonReport {
-            converged: s.converged,
+            converged: true,
             iterations: s.iterations,
             links: JsonLinks(self),
             nodes: JsonNodes(self),
@@ -510,7 +497,8 @@ impl<'a> Report<'a> {
                 let mut item = |what: &str, id: Option<&str>, value: f64, unit: &str| {
                     row(&[Text(Some(what)), Text(id), Num(value), Text(Some(unit))])
                 };
-                item("converged", None, if s.converged { 1.0 } else { 0.0 }, "")?;
+                // Always 1 (see `JsonReport::converged`).
+                item("converged", None, 1.0, "")?;
                 item("iterations", None, s.iterations.into(), "")?;
                 item("status_changes", None, s.status_changes.into(), "")?;
                 item("max_mass_residual", None, self.flow(s.max_mass_residual), qu)?;

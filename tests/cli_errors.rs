@@ -904,3 +904,31 @@ speed = {speed}
         }
     }
 }
+
+/// Every command that writes tables, JSON and CSV only refuses GeoJSON and Parquet the same way
+/// (exit code 2, a message naming the format and the commands that write it) before doing any
+/// work: the refusal has one home, `format_refusal` in the program.
+#[test]
+fn formats_a_command_cannot_write_are_refused_alike_by_every_command() {
+    let model = concat!(env!("CARGO_MANIFEST_DIR"), "/examples/hillside.toml");
+    let commands: [&[&str]; 5] = [
+        &["water-properties", "--temperature", "20"],
+        &["friction-factor", "--reynolds", "1e5", "--relative-roughness", "1e-4"],
+        &["duty", "--pump", "no-such-pump", model],
+        &["fire-flow", "--residual", "20", model],
+        &["fittings"],
+    ];
+    for command in commands {
+        for (format, says) in [
+            ("geojson", "--format geojson applies to solve and simulate"),
+            ("parquet", "--format parquet applies to solve and simulate"),
+        ] {
+            let mut args: Vec<&std::ffi::OsStr> = command.iter().map(std::ffi::OsStr::new).collect();
+            args.extend([std::ffi::OsStr::new("--format"), std::ffi::OsStr::new(format)]);
+            let r = run(&args);
+            assert_eq!(r.code, Some(2), "{command:?} --format {format}: {}", r.stderr);
+            assert!(r.stderr.contains(says), "{command:?} --format {format}: {}", r.stderr);
+            assert!(r.stdout.is_empty(), "{command:?} --format {format} printed: {}", r.stdout);
+        }
+    }
+}

@@ -23,7 +23,7 @@ use crate::error::{Element, ModelError};
 use crate::physics::fittings::{Fitting, FittingKind, FittingsMethod};
 use crate::physics::pump::{Efficiency, HeadCurve};
 use crate::physics::WaterProperties;
-use crate::units::UnitSystem;
+use crate::units::{Converter, Quantity, UnitSystem};
 use index::{IdIndex, Insert};
 use std::collections::BTreeMap;
 
@@ -291,6 +291,16 @@ pub enum ValveType {
 }
 
 impl ValveType {
+    /// What the setting of this type of valve is: a pressure (pressure-reducing and
+    /// pressure-sustaining), a flow (flow-control) or a loss coefficient (throttle).
+    pub fn setting_quantity(self) -> Quantity {
+        match self {
+            ValveType::PressureReducing | ValveType::PressureSustaining => Quantity::Pressure,
+            ValveType::FlowControl => Quantity::Flow,
+            ValveType::Throttle => Quantity::LossCoefficient,
+        }
+    }
+
     /// Every valve type.
     pub const ALL: &'static [ValveType] =
         &[ValveType::PressureReducing, ValveType::PressureSustaining, ValveType::FlowControl, ValveType::Throttle];
@@ -730,6 +740,16 @@ impl Model {
     /// An empty model with the given units and options.
     pub fn new(units: UnitSystem, options: HydraulicOptions) -> Self {
         Model { units, options, ..Model::default() }
+    }
+
+    /// The converter between SI and this model's units (its unit system, its water's density
+    /// for pressures, its friction formula for pipe roughness).
+    pub fn converter(&self) -> Converter {
+        Converter::new(
+            self.units,
+            self.options.water_properties().density,
+            self.options.headloss == HeadLossLaw::HazenWilliams,
+        )
     }
 
     /// All nodes, in the order they were added.

@@ -19,7 +19,8 @@
 //! # Validation
 //! Every setter checks its value (finite, in range, the right kind of element) and returns a
 //! [`ModelError`] naming the element's id and the key, so that [`Solver::solve`](super::Solver::solve)
-//! does not have to check the arrays again. The setters take the model for the element's kind and
+//! does not have to check the arrays again. The values obey the rules the model reader applies
+//! (the same checks, the same messages). The setters take the model for the element's kind and
 //! id (the conditions themselves keep values only).
 //!
 //! # Which laws are stale
@@ -34,7 +35,7 @@
 
 use super::nodes::NodeLaw;
 use crate::error::{Element, ModelError};
-use crate::model::{HeadLossLaw, LinkKind, LinkStatus, Model, NodeKind, ValveType};
+use crate::model::{check_value, HeadLossLaw, LinkKind, LinkStatus, Model, NodeKind, Rule, ValveType};
 use std::sync::atomic::{AtomicU64, Ordering};
 
 /// Source of the identities of conditions (see the module docs).
@@ -241,7 +242,7 @@ impl Conditions {
                 format!("only junctions have a demand; this node is a {}", node.kind.label()),
             ));
         }
-        finite(demand).map_err(|m| at_node(model, i, "demand", m))?;
+        check_value(node, "demand", demand, Rule::Finite)?;
         self.demand[i] = demand;
         Ok(())
     }
@@ -258,7 +259,9 @@ impl Conditions {
         }
         for (i, (&d, n)) in demands.iter().zip(model.nodes()).enumerate() {
             match n.kind {
-                NodeKind::Junction { .. } => finite(d).map_err(|m| at_node(model, i, "demand", m))?,
+                NodeKind::Junction { .. } => {
+                    check_value(n, "demand", d, Rule::Finite)?;
+                }
                 _ if d != 0.0 => {
                     return Err(at_node(
                         model,
@@ -298,7 +301,7 @@ impl Conditions {
                 format!("only reservoirs have a head; this node is a {}", node.kind.label()),
             ));
         }
-        finite(head).map_err(|m| at_node(model, i, "head", m))?;
+        check_value(node, "head", head, Rule::Finite)?;
         self.fixed_head[i] = head;
         Ok(())
     }
@@ -315,9 +318,7 @@ impl Conditions {
                 format!("only tanks have a level; this node is a {}", node.kind.label()),
             ));
         }
-        if !(level.is_finite() && level >= 0.0) {
-            return Err(at_node(model, i, "level", format!("must be a finite number, zero or more, found {level}")));
-        }
+        check_value(node, "level", level, Rule::NonNegative)?;
         self.fixed_head[i] = node.elevation + level;
         Ok(())
     }
@@ -360,9 +361,7 @@ impl Conditions {
                 format!("only pumps have a speed; this link is a {}", l.kind.label()),
             ));
         }
-        if !(speed.is_finite() && speed >= 0.0) {
-            return Err(at_link(model, k, "speed", format!("must be a finite number, zero or more, found {speed}")));
-        }
+        check_value(l, "speed", speed, Rule::NonNegative)?;
         if self.setting[k] != speed {
             self.setting[k] = speed;
             self.journal(k);
@@ -382,11 +381,11 @@ impl Conditions {
                 format!("only valves have a setting; this link is a {}", l.kind.label()),
             ));
         };
-        match v.valve {
-            ValveType::PressureReducing | ValveType::PressureSustaining => finite(setting),
-            ValveType::FlowControl | ValveType::Throttle => non_negative(setting),
-        }
-        .map_err(|m| at_link(model, k, "setting", m))?;
+        let rule = match v.valve {
+            ValveType::PressureReducing | ValveType::PressureSustaining => Rule::Finite,
+            ValveType::FlowControl | ValveType::Throttle => Rule::NonNegative,
+        };
+        check_value(l, "setting", setting, rule)?;
         if self.setting[k] != setting {
             self.setting[k] = setting;
             if v.valve == ValveType::Throttle {
@@ -402,9 +401,7 @@ impl Conditions {
         if l.as_pump().is_some() {
             return Err(at_link(model, k, "diameter", "pumps have no diameter"));
         }
-        if !(diameter.is_finite() && diameter > 0.0) {
-            return Err(at_link(model, k, "diameter", format!("must be a finite number above zero, found {diameter}")));
-        }
+        check_value(l, "diameter", diameter, Rule::Positive)?;
         if self.diameter[k] != diameter {
             self.diameter[k] = diameter;
             self.journal(k);
@@ -424,14 +421,7 @@ impl Conditions {
                 format!("only pipes have a roughness; this link is a {}", l.kind.label()),
             ));
         }
-        if !(roughness.is_finite() && roughness > 0.0) {
-            return Err(at_link(
-                model,
-                k,
-                "roughness",
-                format!("must be a finite number above zero, found {roughness}"),
-            ));
-        }
+        check_value(l, "roughness", roughness, Rule::Positive)?;
         if model.options.headloss == HeadLossLaw::HazenWilliams && roughness < 1.0 {
             return Err(at_link(
                 model,
@@ -456,7 +446,7 @@ impl Conditions {
         if l.as_pump().is_some() {
             return Err(at_link(model, k, "minor_loss", "pumps have no minor-loss coefficient"));
         }
-        non_negative(minor_loss).map_err(|m| at_link(model, k, "minor_loss", m))?;
+        check_value(l, "minor_loss", minor_loss, Rule::NonNegative)?;
         if self.minor_loss[k] != minor_loss {
             self.minor_loss[k] = minor_loss;
             self.journal(k);
@@ -568,20 +558,4 @@ fn at_node(model: &Model, i: usize, key: &str, message: impl Into<String>) -> Mo
 
 fn at_link(model: &Model, k: usize, key: &str, message: impl Into<String>) -> ModelError {
     ModelError::at(Some(Element::Link(model.links()[k].id.to_string())), Some(key), message)
-}
-
-fn finite(v: f64) -> Result<(), String> {
-    if v.is_finite() {
-        Ok(())
-    } else {
-        Err(format!("must be a finite number, found {v}"))
-    }
-}
-
-fn non_negative(v: f64) -> Result<(), String> {
-    if v.is_finite() && v >= 0.0 {
-        Ok(())
-    } else {
-        Err(format!("must be a finite number, zero or more, found {v}"))
-    }
 }

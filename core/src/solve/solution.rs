@@ -37,8 +37,6 @@ pub struct Warning {
 /// A solved snapshot, SI units (pressures as pressure head in m of the model's water).
 #[derive(Clone, Debug, PartialEq)]
 pub struct Solution {
-    /// Always true for a returned solution (non-convergence is an error).
-    pub converged: bool,
     /// Newton iterations done (linear solves).
     pub iterations: u32,
     /// Device state changes made on the way (check valves, pumps, control valves).
@@ -328,7 +326,6 @@ impl Solver {
             }
         }
         Solution {
-            converged: true,
             iterations,
             status_changes,
             ending,
