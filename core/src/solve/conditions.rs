@@ -472,7 +472,7 @@ impl Conditions {
                 format!("applies to junctions only; this node is a {}", node.kind.label()),
             ));
         }
-        finite(draw).map_err(|m| at_node(model, i, "draw", m))?;
+        check_value(node, "draw", draw, Rule::Finite)?;
         match self.draws.iter_mut().find(|(j, _)| *j as usize == i) {
             Some(entry) => entry.1 = draw,
             None => self.draws.push((i as u32, draw)),
