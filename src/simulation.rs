@@ -210,10 +210,19 @@ impl<'a> RunReport<'a> {
             self.volume(b.discrepancy()),
             b.relative_discrepancy()
         );
+        if b.leaked > 0.0 || b.outlets > 0.0 {
+            let _ = writeln!(
+                out,
+                "Also leaving the network ({v}): leakage {:.3}, outlets {:.3}: supplied = delivered + leakage + \
+                 outlets + change in storage + discrepancy",
+                self.volume(b.leaked),
+                self.volume(b.outlets)
+            );
+        }
         if b.unsupplied > 0.0 {
             let _ = writeln!(
                 out,
-                "Not delivered: {:.3} {v} of demand at junctions cut off from every source",
+                "Not delivered: {:.3} {v} of demand asked (junctions cut off from every source, or short of pressure)",
                 self.volume(b.unsupplied)
             );
         }
@@ -289,6 +298,7 @@ impl<'a> RunReport<'a> {
                     "supplied": self.volume(b.supplied), "delivered": self.volume(b.delivered),
                     "storage_change": self.volume(b.storage_change), "discrepancy": self.volume(b.discrepancy()),
                     "relative_discrepancy": b.relative_discrepancy(), "not_delivered": self.volume(b.unsupplied),
+                    "leaked": self.volume(b.leaked), "outlets": self.volume(b.outlets),
                 },
                 "statistics": {
                     "steps": r.statistics.steps, "rejected": r.statistics.rejected,
