@@ -26,17 +26,29 @@ for n in m["nodes"]:
         n["quality"] = {"chlorine": 1.0}
 json.dump(m, open(f"{d}/quality.json", "w"))
 PY
-t0=$(date +%s.%N)
-"$bin" simulate "$dir/hydraulics.json" >/dev/null
-t1=$(date +%s.%N)
-"$bin" simulate "$dir/quality.json" --format json --output "$dir/out.json"
-t2=$(date +%s.%N)
-python3 - "$dir" "$t0" "$t1" "$t2" <<'PY'
+# Each run under /usr/bin/time: wall time, CPU (user) time and peak memory (max RSS).
+measure() {
+    local label=$1
+    shift
+    /usr/bin/time -f "$label|%e|%U|%M" -o "$dir/time" "$@" >/dev/null 2>"$dir/err" || {
+        cat "$dir/err" >&2
+        exit 1
+    }
+    cat "$dir/time" >>"$dir/times"
+}
+measure "hydraulics only (reference), summary" "$bin" simulate "$dir/hydraulics.json"
+measure "hydraulics + age + chlorine, summary" "$bin" simulate "$dir/quality.json"
+measure "hydraulics + age + chlorine, JSON of every 6 h written" \
+    "$bin" simulate "$dir/quality.json" --format json --output "$dir/out.json"
+python3 - "$dir" <<'PY'
 import json, sys
-d, t0, t1, t2 = sys.argv[1], *map(float, sys.argv[2:])
+d = sys.argv[1]
+print("| run | wall | CPU (user) | peak memory |")
+print("| --- | --- | --- | --- |")
+for line in open(f"{d}/times"):
+    label, wall, user, rss = line.strip().split("|")
+    print(f"| {label} | {float(wall):.2f} s | {float(user):.2f} s | {int(rss) / 1024:.0f} MB |")
 q = json.load(open(f"{d}/out.json"))["summary"]["quality"]
-print(f"hydraulics only: {t1 - t0:.2f} s")
-print(f"with age and chlorine (JSON of every 6 h written): {t2 - t1:.2f} s")
 print(f"segments: at most {q['segments']['max']}, at the end {q['segments']['end']}; "
       f"{q['transport_steps']} transport steps")
 for c in q["constituents"]:

@@ -37,15 +37,16 @@ pub enum Kind {
 }
 
 /// One column of a table: its name, type and unit (empty: none).
+#[derive(Clone)]
 pub struct Column {
-    pub name: &'static str,
+    pub name: std::borrow::Cow<'static, str>,
     pub kind: Kind,
     pub unit: String,
 }
 
 impl Column {
-    pub fn new(name: &'static str, kind: Kind, unit: impl Into<String>) -> Self {
-        Column { name, kind, unit: unit.into() }
+    pub fn new(name: impl Into<std::borrow::Cow<'static, str>>, kind: Kind, unit: impl Into<String>) -> Self {
+        Column { name: name.into(), kind, unit: unit.into() }
     }
 }
 
@@ -84,9 +85,9 @@ impl Table {
                     Kind::Text => (DataType::Utf8, true),
                     Kind::Bool => (DataType::Boolean, false),
                 };
-                let mut field = Field::new(c.name, dt, nullable);
+                let mut field = Field::new(c.name.as_ref(), dt, nullable);
                 if !c.unit.is_empty() {
-                    units.insert(c.name.to_owned(), c.unit.clone().into());
+                    units.insert(c.name.to_string(), c.unit.clone().into());
                     field = field.with_metadata(HashMap::from([("unit".to_owned(), c.unit.clone())]));
                 }
                 field

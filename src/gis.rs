@@ -10,6 +10,7 @@
 use ringmain_core::analysis::Criteria;
 use ringmain_core::model::time::{format_duration, parse_duration};
 use ringmain_core::model::MapCoordinates;
+use ringmain_core::quality::QualityRun;
 use ringmain_core::simulate::Run;
 use ringmain_core::{Model, ModelError, NodeKind, Solution};
 use serde_json::json;
@@ -17,8 +18,9 @@ use std::io::{self, Write};
 
 /// One quantity of nodes or links.
 pub struct Quantity {
-    /// Its name (property name, `--quantity` value).
-    pub name: &'static str,
+    /// Its name (property name, `--quantity` value): a result's name, or a water-quality
+    /// constituent's id.
+    pub name: String,
     /// Its unit, as written.
     pub unit: String,
     /// Whether it belongs to links (else nodes).
@@ -117,7 +119,12 @@ impl<'a> GisResults<'a> {
         let len = |v: f64| u.length.from_si(v);
         let slope: Vec<f64> =
             (0..model.links().len()).map(|k| pipe_length(model, k).map_or(f64::NAN, |l| s.headloss[k] / l)).collect();
-        let q = |name, unit: &str, on_links, values| Quantity { name, unit: unit.to_owned(), on_links, values };
+        let q = |name: &str, unit: &str, on_links, values| Quantity {
+            name: name.to_owned(),
+            unit: unit.to_owned(),
+            on_links,
+            values,
+        };
         let quantities = vec![
             q("elevation", u.length.label(), false, model.nodes().iter().map(|n| len(n.elevation)).collect()),
             q("demand", u.flow.label(), false, s.demand.iter().map(|&d| u.flow.from_si(d)).collect()),
@@ -229,7 +236,12 @@ impl<'a> GisResults<'a> {
             })
             .collect();
         let slope: Vec<f64> = (0..nl).map(|k| pipe_length(model, k).map_or(f64::NAN, |l| headloss_si[k] / l)).collect();
-        let q = |name, unit: &str, on_links, values| Quantity { name, unit: unit.to_owned(), on_links, values };
+        let q = |name: &str, unit: &str, on_links, values| Quantity {
+            name: name.to_owned(),
+            unit: unit.to_owned(),
+            on_links,
+            values,
+        };
         let quantities = vec![
             q("elevation", u.length.label(), false, model.nodes().iter().map(|n| len(n.elevation)).collect()),
             q("demand", u.flow.label(), false, (0..nn).map(|n| u.flow.from_si(sn(n).demand[n])).collect()),
@@ -260,6 +272,56 @@ impl<'a> GisResults<'a> {
         })
     }
 
+    /// Adds each water-quality constituent of the run as a node quantity named by its id, in its
+    /// reported unit: at the reported instant `at` (s), or else per node its worst value over the
+    /// reported times (the highest age, the lowest value of a substance, the highest share of a
+    /// source), which the basis then says. A constituent whose id is already a result's name is
+    /// an error naming it (the map could not tell them apart).
+    pub fn add_quality(&mut self, q: &QualityRun, at: Option<f64>) -> Result<(), ModelError> {
+        use ringmain_core::quality::ConstituentKind;
+        if q.constituents.is_empty() {
+            return Ok(());
+        }
+        let record = match at {
+            Some(t) => Some(q.records.iter().find(|r| (r.time - t).abs() < 1e-6).ok_or_else(|| {
+                ModelError::at(None, Some("--at"), format!("{} has no water-quality values", format_duration(t)))
+            })?),
+            None => None,
+        };
+        let nn = self.model.nodes().len();
+        for (c, con) in q.constituents.iter().enumerate() {
+            if self.quantity(&con.id).is_some() {
+                return Err(ModelError::at(
+                    Some(ringmain_core::Element::Constituent(con.id.clone())),
+                    Some("id"),
+                    format!("'{}' is also the name of a result; rename the constituent to map it", con.id),
+                ));
+            }
+            let scale = con.report_scale();
+            let highest = !matches!(con.kind, ConstituentKind::Substance(_));
+            let values = match record {
+                Some(r) => r.node[c].iter().map(|v| v * scale).collect(),
+                None => (0..nn)
+                    .map(|i| {
+                        let all = q.records.iter().map(|r| r.node[c][i]).filter(|v| v.is_finite());
+                        let v = if highest { all.fold(f64::NAN, f64::max) } else { all.fold(f64::NAN, f64::min) };
+                        v * scale
+                    })
+                    .collect(),
+            };
+            self.quantities.push(Quantity {
+                name: con.id.clone(),
+                unit: con.report_unit().to_owned(),
+                on_links: false,
+                values,
+            });
+        }
+        if at.is_none() {
+            self.basis.push_str("; water quality: per node its highest age, lowest substance, highest source share");
+        }
+        Ok(())
+    }
+
     /// Checks that every node has coordinates (GeoJSON and maps need them).
     pub fn check_coordinates(&self) -> Result<(), ModelError> {
         if let Some(n) = self.model.nodes().iter().find(|n| n.coordinates.is_none()) {
@@ -278,8 +340,8 @@ impl<'a> GisResults<'a> {
     }
 
     /// The names of the quantities, for messages.
-    pub fn names(&self) -> Vec<&'static str> {
-        self.quantities.iter().map(|q| q.name).collect()
+    pub fn names(&self) -> Vec<&str> {
+        self.quantities.iter().map(|q| q.name.as_str()).collect()
     }
 
     /// Writes the GeoJSON FeatureCollection, feature by feature.
@@ -287,7 +349,7 @@ impl<'a> GisResults<'a> {
         let m = self.model;
         let lonlat = m.map.coordinates == MapCoordinates::LonLat;
         let mut units: serde_json::Map<String, serde_json::Value> =
-            self.quantities.iter().map(|q| (q.name.to_owned(), json!(q.unit))).collect();
+            self.quantities.iter().map(|q| (q.name.clone(), json!(q.unit))).collect();
         units.insert("length".into(), json!(m.units.length.label()));
         units.insert("diameter".into(), json!(m.units.diameter.label()));
         let mut head = serde_json::Map::new();
@@ -317,7 +379,7 @@ impl<'a> GisResults<'a> {
             p.insert("element".into(), json!("node"));
             p.insert("kind".into(), json!(n.kind.label()));
             for q in self.quantities.iter().filter(|q| !q.on_links) {
-                p.insert(q.name.into(), num(q.values[i]));
+                p.insert(q.name.clone(), num(q.values[i]));
             }
             if let Some(t) = &self.node_time {
                 p.insert("time".into(), json!(format_duration(t[i])));
@@ -347,7 +409,7 @@ impl<'a> GisResults<'a> {
             }
             p.insert("status".into(), json!(self.link_status[k]));
             for q in self.quantities.iter().filter(|q| q.on_links) {
-                p.insert(q.name.into(), num(q.values[k]));
+                p.insert(q.name.clone(), num(q.values[k]));
             }
             if let Some(t) = &self.link_time {
                 p.insert("time".into(), json!(format_duration(t[k])));

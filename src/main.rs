@@ -157,7 +157,8 @@ enum Command {
         /// The model file (.toml or .json); its nodes need coordinates.
         model: PathBuf,
         /// The quantity to colour by: pressure, head, demand, delivered, elevation (nodes);
-        /// flow, velocity, headloss, unit_headloss (links).
+        /// flow, velocity, headloss, unit_headloss (links); a water-quality constituent's id
+        /// (nodes: at --at, or each node's worst over the run).
         #[arg(long, default_value = "pressure")]
         quantity: String,
         /// A reported instant of the simulation (elapsed time such as "6h").
@@ -815,7 +816,14 @@ fn results_for_map<'a>(path: &Path, model: &'a Model, at: Option<f64>) -> Result
         ExitCode::from(EXIT_INVALID)
     };
     if model.time.simulation.is_some() {
-        let run = match ringmain_core::simulate::simulate(model) {
+        // With water-quality constituents the run carries them, and the map can colour by them.
+        let options = ringmain_core::SimulateOptions::default();
+        let run = if model.time.quality.constituents.is_empty() {
+            ringmain_core::simulate::simulate(model).map(|r| (r, None))
+        } else {
+            ringmain_core::quality::simulate(model, &options, &mut |_| {}).map(|(r, q)| (r, Some(q)))
+        };
+        let (run, quality) = match run {
             Ok(r) => r,
             Err(ringmain_core::SimulateError::Model(e)) => return Err(fail(e)),
             Err(e) => {
@@ -823,7 +831,11 @@ fn results_for_map<'a>(path: &Path, model: &'a Model, at: Option<f64>) -> Result
                 return Err(ExitCode::from(EXIT_NOT_CONVERGED));
             }
         };
-        return gis::GisResults::from_run(model, &run, at).map_err(fail);
+        let mut results = gis::GisResults::from_run(model, &run, at).map_err(fail)?;
+        if let Some(q) = &quality {
+            results.add_quality(q, at).map_err(fail)?;
+        }
+        return Ok(results);
     }
     if at.is_some() {
         eprintln!("error: --at: {} has no [simulation] table; a snapshot has no instants", path.display());
@@ -902,11 +914,11 @@ fn simulate(
         }
     }
     let with_quality = !model.time.quality.constituents.is_empty();
-    // The whole series is kept where what comes after the run needs it: the charts, the
-    // water-quality results (written whole) and the map formats. Otherwise it streams.
-    let keep = plot_dir.is_some() || with_quality || format == OutputFormat::Geojson;
+    // The whole series is kept where what comes after the run needs it: the charts and the map
+    // formats. Otherwise it streams, water-quality values beside the hydraulics.
+    let keep = plot_dir.is_some() || format == OutputFormat::Geojson;
     // Where the series goes, opened before the run so that it streams as the run goes.
-    let streamed = !with_quality && matches!(format, OutputFormat::Json | OutputFormat::Csv | OutputFormat::Parquet);
+    let streamed = matches!(format, OutputFormat::Json | OutputFormat::Csv | OutputFormat::Parquet);
     let mut part = None;
     let mut files = Vec::new();
     let sink: Option<Box<dyn Write>> = match (streamed, format, output) {
@@ -952,23 +964,34 @@ fn simulate(
     let options = ringmain_core::SimulateOptions::default();
     let mut failure: Option<std::io::Error> = None;
     let mut reports = 0usize;
-    let result = if with_quality {
-        ringmain_core::quality::simulate(&model, &options, &mut |f| progress.update(f)).map(|(r, q)| (r, Some(q)))
-    } else if keep {
-        ringmain_core::simulate::simulate_with(&model, &options, &mut |f| progress.update(f)).map(|r| (r, None))
-    } else {
-        ringmain_core::simulate::simulate_streaming(&model, &options, &mut |f| progress.update(f), &mut |s| {
-            reports += 1;
-            match writer.as_mut().map_or(Ok(()), |w| w.snapshot(s)) {
-                Ok(()) => Ok(()),
-                Err(e) => {
-                    let message = e.to_string();
-                    failure = Some(e);
-                    Err(message)
-                }
+    let mut sink = |s: &ringmain_core::simulate::Snapshot, q: Option<&ringmain_core::quality::QualityRecord>| {
+        reports += 1;
+        match writer.as_mut().map_or(Ok(()), |w| w.snapshot(s, q)) {
+            Ok(()) => Ok(()),
+            Err(e) => {
+                let message = e.to_string();
+                failure = Some(e);
+                Err(message)
             }
-        })
-        .map(|r| (r, None))
+        }
+    };
+    let result = match (with_quality, keep) {
+        (true, true) => {
+            ringmain_core::quality::simulate(&model, &options, &mut |f| progress.update(f)).map(|(r, q)| (r, Some(q)))
+        }
+        (true, false) => {
+            ringmain_core::quality::simulate_streaming(&model, &options, &mut |f| progress.update(f), &mut sink)
+                .map(|(r, q)| (r, Some(q)))
+        }
+        (false, true) => {
+            ringmain_core::simulate::simulate_with(&model, &options, &mut |f| progress.update(f)).map(|r| (r, None))
+        }
+        (false, false) => {
+            ringmain_core::simulate::simulate_streaming(&model, &options, &mut |f| progress.update(f), &mut |s| {
+                sink(s, None)
+            })
+            .map(|r| (r, None))
+        }
     };
     progress.finish();
     let (run, quality) = match result {
@@ -993,13 +1016,19 @@ fn simulate(
         }
     };
     if format == OutputFormat::Geojson {
-        return write_geojson(path, output, gis::GisResults::from_run(&model, &run, at));
+        let results = gis::GisResults::from_run(&model, &run, at).and_then(|mut r| {
+            if let Some(q) = &quality {
+                r.add_quality(q, at)?;
+            }
+            Ok(r)
+        });
+        return write_geojson(path, output, results);
     }
     // A kept series goes through the same writers, state by state.
     if let (true, Some(w)) = (keep, writer.as_mut()) {
         for s in &run.series {
             reports += 1;
-            if let Err(e) = w.snapshot(s) {
+            if let Err(e) = w.snapshot(s, quality.as_ref().and_then(|q| q.at(s.time))) {
                 if e.kind() == std::io::ErrorKind::BrokenPipe {
                     return ExitCode::SUCCESS;
                 }
@@ -1011,6 +1040,7 @@ fn simulate(
     }
     let mut report = simulation::RunReport::new(&model, &run);
     report.quality = quality.as_ref();
+    report.criteria = criteria.as_ref();
     if let Some(criteria) = criteria.as_ref().filter(|c| c.has_quality_limits()) {
         let Some(q) = quality.as_ref() else {
             eprintln!(
@@ -1049,7 +1079,8 @@ fn simulate(
         if report.checks.iter().any(|c| !c.passed()) { ExitCode::from(exit::EXIT_FAILED) } else { ExitCode::SUCCESS };
     let finished = match writer.as_mut() {
         Some(w) => w.finish(&report),
-        None if format == OutputFormat::Table => {
+        // The table (every other format has a writer, GeoJSON returned above).
+        None => {
             let code = match output {
                 None => write_out(&report.to_table(), None),
                 Some(out) => {
@@ -1061,26 +1092,6 @@ fn simulate(
                 }
             };
             return if code == ExitCode::SUCCESS { failed } else { code };
-        }
-        None => {
-            // Water quality: the series written whole, with the constituents beside it.
-            let written = write_with("the results", output, |out| match format {
-                OutputFormat::Json => {
-                    serde_json::to_writer_pretty(&mut *out, &report.to_json())?;
-                    out.write_all(b"\n")
-                }
-                _ => out.write_all(report.to_csv().as_bytes()),
-            });
-            if written != ExitCode::SUCCESS {
-                return written;
-            }
-            if let Some(out) = output {
-                let mut text = report.to_table();
-                text.push_str(&format!("wrote {}\n", out.display()));
-                let code = write_out(&text, None);
-                return if code == ExitCode::SUCCESS { failed } else { code };
-            }
-            return failed;
         }
     };
     drop(writer);

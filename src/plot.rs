@@ -1,19 +1,33 @@
 //! SVG charts of a simulation, written by hand: tank levels, pump flows and states, and the
 //! pressures of the worst nodes, over the run. Low-tariff hours are shaded on every chart.
+//!
+//! Switch-overs are drawn as steps at the instants they happen, not as ramps between reported
+//! times: a pump started or stopped by a control or a full tank, a tank at a limit, a speed or
+//! a price pattern changing its multiplier. Between two reported times with such an instant
+//! inside, a stepped quantity keeps its earlier reported value up to the instant and takes its
+//! later one from there (the run reports no value at the instant itself); the price and the
+//! low-tariff shading are drawn from the tariff pattern itself, exact at every boundary.
+//! Thresholds are drawn as dashed lines: tank limits and the levels at which controls act on
+//! the tank chart, the pressure criteria and the pressures at which controls act on the
+//! pressure chart, a water-quality criterion on its chart. Every axis carries its unit.
 
 use crate::simulation::RunReport;
-use ringmain_core::model::time::{format_clock, DAY, HOUR};
+use ringmain_core::model::time::{format_clock, Condition, DAY, HOUR};
+use ringmain_core::simulate::EventKind;
 use std::fmt::Write as _;
 use std::path::Path;
 
-const WIDTH: f64 = 960.0;
+const WIDTH: f64 = 1120.0;
 const LEFT: f64 = 72.0;
-const RIGHT: f64 = 190.0;
+/// Room for the legend, whose labels name controls, nodes and thresholds.
+const RIGHT: f64 = 350.0;
 const TOP_TITLE: f64 = 44.0;
 const PANEL_GAP: f64 = 46.0;
 const BOTTOM: f64 = 40.0;
 const PALETTE: [&str; 6] = ["#1d5fa8", "#c8412b", "#2f8f46", "#7a4fa3", "#d08a12", "#4a4a4a"];
 const TARIFF_FILL: &str = "#f3ead0";
+/// The label of every time axis.
+const TIME_AXIS: &str = "time (clock hh:mm; day n at midnight)";
 
 /// A line on a panel.
 struct Line {
@@ -98,7 +112,8 @@ impl Chart {
         let mut s = String::new();
         let _ = writeln!(
             s,
-            r#"<svg xmlns="http://www.w3.org/2000/svg" width="{WIDTH}" height="{total_h}" viewBox="0 0 {WIDTH} {total_h}" font-family="DejaVu Sans, Helvetica, Arial, sans-serif" font-size="12">"#
+            r#"<svg xmlns="http://www.w3.org/2000/svg" width="{WIDTH}" height="{total_h}" viewBox="0 0 {WIDTH} {total_h}" font-family="DejaVu Sans, Helvetica, Arial, sans-serif" font-size="12" data-plot-left="{LEFT}" data-plot-width="{plot_w}" data-hours="{}">"#,
+            self.hours
         );
         let _ = writeln!(s, r#"<rect width="100%" height="100%" fill="white"/>"#);
         let _ = writeln!(s, r#"<text x="{LEFT}" y="22" font-size="16" font-weight="bold">{}</text>"#, esc(&self.title));
@@ -164,6 +179,13 @@ impl Chart {
                 );
                 h += tick;
             }
+            let _ = writeln!(
+                s,
+                r##"<text class="x-axis" x="{:.1}" y="{:.1}" text-anchor="middle" fill="#333">{}</text>"##,
+                LEFT + plot_w / 2.0,
+                bottom + 30.0,
+                esc(TIME_AXIS)
+            );
             if panel.strips.is_empty() {
                 self.render_lines(&mut s, panel, top, x_of);
             } else {
@@ -255,7 +277,7 @@ impl Chart {
         let mid = top + panel.height / 2.0;
         let _ = writeln!(
             s,
-            r##"<text x="16" y="{mid:.1}" text-anchor="middle" transform="rotate(-90 16 {mid:.1})" fill="#333">{}</text>"##,
+            r##"<text class="y-axis" x="16" y="{mid:.1}" text-anchor="middle" transform="rotate(-90 16 {mid:.1})" fill="#333">{}</text>"##,
             esc(&panel.y_label)
         );
         for line in &panel.lines {
@@ -273,7 +295,8 @@ impl Chart {
             let dash = if line.dash { r#" stroke-dasharray="6 4""# } else { "" };
             let _ = writeln!(
                 s,
-                r#"<path d="{}" fill="none" stroke="{}" stroke-width="{}" stroke-linejoin="round"{dash}/>"#,
+                r#"<path data-label="{}" d="{}" fill="none" stroke="{}" stroke-width="{}" stroke-linejoin="round"{dash}/>"#,
+                esc(&line.label),
                 d.trim_end(),
                 line.color,
                 line.width
@@ -284,6 +307,12 @@ impl Chart {
     fn render_strips(&self, s: &mut String, panel: &Panel, top: f64, x_of: impl Fn(f64) -> f64) {
         let rows = panel.strips.len() as f64;
         let row_h = panel.height / rows;
+        let mid = top + panel.height / 2.0;
+        let _ = writeln!(
+            s,
+            r##"<text class="y-axis" x="16" y="{mid:.1}" text-anchor="middle" transform="rotate(-90 16 {mid:.1})" fill="#333">{}</text>"##,
+            esc(&panel.y_label)
+        );
         for (r, (label, color, runs)) in panel.strips.iter().enumerate() {
             let y = top + r as f64 * row_h;
             let _ = writeln!(
@@ -296,7 +325,8 @@ impl Chart {
             for &(a, b) in runs {
                 let _ = writeln!(
                     s,
-                    r#"<rect x="{:.1}" y="{:.1}" width="{:.1}" height="{:.1}" fill="{color}"/>"#,
+                    r#"<rect data-strip="{}" data-from-h="{a}" data-to-h="{b}" x="{:.1}" y="{:.1}" width="{:.1}" height="{:.1}" fill="{color}"/>"#,
+                    esc(label),
                     x_of(a),
                     y + row_h * 0.2,
                     (x_of(b) - x_of(a)).max(0.8),
@@ -307,15 +337,25 @@ impl Chart {
     }
 }
 
-/// Stretches (in hours) where `on(i)` holds over the reported times.
-fn stretches(times: &[f64], on: impl Fn(usize) -> bool) -> Vec<(f64, f64)> {
+/// The first switch-over instant in `(a, b]` (hours; `switches` sorted).
+fn switch_in(switches: &[f64], a: f64, b: f64) -> Option<f64> {
+    let eps = 1e-9 * b.abs().max(1.0);
+    let i = switches.partition_point(|&s| s <= a + eps);
+    switches.get(i).copied().filter(|&s| s <= b + eps)
+}
+
+/// Stretches (in hours) where `on(i)` holds over the reported times; a change between two
+/// reported times happens at the first switch-over instant between them (else at the later
+/// reported time).
+fn stretches(times: &[f64], switches: &[f64], on: impl Fn(usize) -> bool) -> Vec<(f64, f64)> {
     let mut out = Vec::new();
     let mut start = None;
     for (i, &t) in times.iter().enumerate() {
+        let at = if i > 0 { switch_in(switches, times[i - 1], t).unwrap_or(t) } else { t };
         match (on(i), start) {
-            (true, None) => start = Some(t),
+            (true, None) => start = Some(at),
             (false, Some(a)) => {
-                out.push((a, t));
+                out.push((a, at));
                 start = None;
             }
             _ => {}
@@ -327,15 +367,157 @@ fn stretches(times: &[f64], on: impl Fn(usize) -> bool) -> Vec<(f64, f64)> {
     out
 }
 
+/// A quantity over the reported times as points of a line, stepped at the switch-over instants
+/// (hours, sorted): between two reported times with an instant inside, the earlier value holds
+/// up to the instant and the later one from there.
+fn stepped(times: &[f64], values: &[f64], switches: &[f64]) -> Vec<(f64, f64)> {
+    let mut out = Vec::with_capacity(times.len() + 2 * switches.len());
+    for (i, (&t, &v)) in times.iter().zip(values).enumerate() {
+        if i > 0 {
+            if let Some(s) = switch_in(switches, times[i - 1], t) {
+                out.push((s, values[i - 1]));
+                out.push((s, v));
+            }
+        }
+        out.push((t, v));
+    }
+    out
+}
+
+/// The instants (hours from the start, sorted) within the run where pattern `p` changes its
+/// multiplier.
+fn pattern_changes(report: &RunReport<'_>, p: usize) -> Vec<f64> {
+    let pattern = &report.model.time.patterns[p];
+    let (start, end) = (report.run.start_clock, report.run.start_clock + report.run.duration);
+    let mut out = Vec::new();
+    let mut clock = start;
+    loop {
+        let next = pattern.next_boundary(clock);
+        if next.is_nan() || next >= end || next <= clock {
+            break;
+        }
+        if pattern.at(next) != pattern.at(clock) {
+            out.push((next - start) / HOUR);
+        }
+        clock = next;
+    }
+    out
+}
+
+/// The energy price as a step function over the run (hours, price per kWh), exact at every
+/// boundary of the tariff pattern.
+fn price_steps(report: &RunReport<'_>) -> Vec<(f64, f64)> {
+    let e = &report.model.time.energy;
+    let price_at = |h: f64| {
+        let clock = report.run.start_clock + h * HOUR;
+        e.price * e.tariff.map_or(1.0, |p| report.model.time.patterns[p].at(clock))
+    };
+    let changes = e.tariff.map(|p| pattern_changes(report, p)).unwrap_or_default();
+    let mut out = vec![(0.0, price_at(0.0))];
+    for &h in &changes {
+        out.push((h, out.last().map_or(0.0, |p| p.1)));
+        out.push((h, price_at(h)));
+    }
+    out.push((report.hours(), out.last().map_or(0.0, |p| p.1)));
+    out
+}
+
+/// The instants (hours, sorted) where link `k` may switch: controls acting on it, tanks at a
+/// limit closing it or released, its speed pattern changing.
+fn link_switches(report: &RunReport<'_>, k: usize) -> Vec<f64> {
+    let model = report.model;
+    let l = &model.links()[k];
+    let mut out: Vec<f64> = report
+        .run
+        .events
+        .iter()
+        .filter(|e| match &e.kind {
+            EventKind::Control { link, .. } => *link == k,
+            EventKind::TankFull { closed, .. } | EventKind::TankEmpty { closed, .. } => closed.contains(&k),
+            EventKind::TankReleased { tank } => *tank == l.from || *tank == l.to,
+            _ => false,
+        })
+        .map(|e| e.time / HOUR)
+        .collect();
+    if let Some(&p) = model.time.speed_patterns.get(&k) {
+        out.extend(pattern_changes(report, p));
+    }
+    out.sort_by(f64::total_cmp);
+    out
+}
+
+/// Every switch-over instant of the run (hours, sorted): every event, every change of a speed
+/// pattern. Pressures jump at each.
+fn all_switches(report: &RunReport<'_>) -> Vec<f64> {
+    let mut out: Vec<f64> = report.run.events.iter().map(|e| e.time / HOUR).collect();
+    for &p in report.model.time.speed_patterns.values() {
+        out.extend(pattern_changes(report, p));
+    }
+    out.sort_by(f64::total_cmp);
+    out.dedup();
+    out
+}
+
+/// The switch-over instants of tank `node` reaching or leaving a limit (hours, sorted).
+fn tank_switches(report: &RunReport<'_>, node: usize) -> Vec<f64> {
+    report
+        .run
+        .events
+        .iter()
+        .filter(|e| match &e.kind {
+            EventKind::TankFull { tank, .. } | EventKind::TankEmpty { tank, .. } | EventKind::TankReleased { tank } => {
+                *tank == node
+            }
+            _ => false,
+        })
+        .map(|e| e.time / HOUR)
+        .collect()
+}
+
+/// Thresholds of the controls' conditions: `(control id, node, value in m, above)` for every
+/// tank level (`tank = true`) or node pressure condition, nested ones included.
+fn control_thresholds(report: &RunReport<'_>, tank: bool) -> Vec<(String, usize, f64, bool)> {
+    fn walk(c: &Condition, tank: bool, id: &str, out: &mut Vec<(String, usize, f64, bool)>) {
+        match *c {
+            Condition::LevelAbove { tank: n, level } if tank => out.push((id.to_owned(), n, level, true)),
+            Condition::LevelBelow { tank: n, level } if tank => out.push((id.to_owned(), n, level, false)),
+            Condition::PressureAbove { node, pressure } if !tank => out.push((id.to_owned(), node, pressure, true)),
+            Condition::PressureBelow { node, pressure } if !tank => out.push((id.to_owned(), node, pressure, false)),
+            Condition::All(ref parts) | Condition::Any(ref parts) => {
+                for p in parts {
+                    walk(p, tank, id, out);
+                }
+            }
+            _ => {}
+        }
+    }
+    let mut out = Vec::new();
+    for c in &report.model.time.controls {
+        walk(&c.when, tank, &c.id, &mut out);
+    }
+    out
+}
+
+/// A dashed horizontal line across the run.
+fn threshold(report: &RunReport<'_>, label: String, color: &'static str, v: f64) -> Line {
+    Line { label, color, points: vec![(0.0, v), (report.hours(), v)], dash: true, width: 1.4 }
+}
+
 fn chart(report: &RunReport<'_>, what: &str) -> Chart {
     let run = report.run;
-    let times: Vec<f64> = run.series.iter().map(|s| s.time / HOUR).collect();
-    let max_price = run.series.iter().map(|s| s.price).fold(0.0, f64::max);
-    let tariff = if run.series.iter().any(|s| s.price < max_price) {
-        stretches(&times, |i| run.series[i].price < max_price)
-    } else {
-        Vec::new()
-    };
+    let price = price_steps(report);
+    let max_price = price.iter().map(|p| p.1).fold(0.0, f64::max);
+    // Stretches of the step function below its highest price.
+    let mut tariff: Vec<(f64, f64)> = Vec::new();
+    for w in price.windows(2) {
+        let ((a, pa), (b, _)) = (w[0], w[1]);
+        if pa < max_price && b > a {
+            match tariff.last_mut() {
+                Some(last) if (last.1 - a).abs() < 1e-9 => last.1 = b,
+                _ => tariff.push((a, b)),
+            }
+        }
+    }
     let model_title = report.model.title.as_deref().map(|t| format!("{t}. ")).unwrap_or_default();
     Chart {
         title: what.to_owned(),
@@ -356,10 +538,10 @@ fn pump_strip(report: &RunReport<'_>, times: &[f64]) -> Option<Panel> {
     if run.pumps.is_empty() {
         return None;
     }
-    let mut p = Panel::new("Pumps running", "");
+    let mut p = Panel::new("Pumps running", "pump (bar: running)");
     p.height = 26.0 * run.pumps.len() as f64;
     for (i, &k) in run.pumps.iter().enumerate() {
-        let runs = stretches(times, |t| run.series[t].status[k] == "open");
+        let runs = stretches(times, &link_switches(report, k), |t| run.series[t].status[k] == "open");
         p.strips.push((report.model.links()[k].id.to_string(), PALETTE[i % PALETTE.len()], runs));
     }
     Some(p)
@@ -399,11 +581,21 @@ pub fn tanks_svg(report: &RunReport<'_>) -> String {
                 width: 1.4,
             });
         }
-        let full = stretches(&times, |i| run.series[i].tank_state[j] == "full");
+        // The levels at which controls act on this tank.
+        for (n, (control, _, level, above)) in
+            control_thresholds(report, true).into_iter().filter(|c| c.1 == node).enumerate()
+        {
+            let v = report.len(level);
+            let word = if above { "above" } else { "below" };
+            let color = PALETTE[[2, 3, 4][n % 3]];
+            p.lines.push(threshold(report, format!("control '{control}': {word} {v:.2} {unit}"), color, v));
+        }
+        let switches = tank_switches(report, node);
+        let full = stretches(&times, &switches, |i| run.series[i].tank_state[j] == "full");
         if !full.is_empty() {
             p.bands.push(("full".into(), full.into_iter().map(|(x0, x1)| Band { x0, x1, color: "#5aa05a" }).collect()));
         }
-        let empty = stretches(&times, |i| run.series[i].tank_state[j] == "empty");
+        let empty = stretches(&times, &switches, |i| run.series[i].tank_state[j] == "empty");
         if !empty.is_empty() {
             p.bands
                 .push(("empty".into(), empty.into_iter().map(|(x0, x1)| Band { x0, x1, color: "#d05050" }).collect()));
@@ -421,23 +613,53 @@ pub fn pumps_svg(report: &RunReport<'_>) -> String {
     let times: Vec<f64> = run.series.iter().map(|s| s.time / HOUR).collect();
     let mut c = chart(report, "Pumps");
     let unit = model.units.flow.label();
+    let currency = report.currency().to_owned();
     for (i, &k) in run.pumps.iter().enumerate() {
-        let mut p = Panel::new(format!("Pump '{}'", model.links()[k].id), format!("flow ({unit})"));
+        let id = &model.links()[k].id;
+        let switches = link_switches(report, k);
+        let series =
+            |f: &dyn Fn(&ringmain_core::simulate::Snapshot) -> f64| -> Vec<f64> { run.series.iter().map(f).collect() };
+        let mut p = Panel::new(format!("Pump '{id}'"), format!("flow ({unit})"));
         p.height = 170.0;
-        let points = times.iter().zip(&run.series).map(|(&t, s)| (t, report.flow(s.flow[k]))).collect();
+        let points = stepped(&times, &series(&|s| report.flow(s.flow[k])), &switches);
         p.lines.push(Line { label: "flow".into(), color: PALETTE[i % PALETTE.len()], points, dash: false, width: 2.2 });
-        let power = times.iter().zip(&run.series).map(|(&t, s)| (t, s.pump_power[i] / 1e3)).collect();
-        let mut q = Panel::new(format!("Pump '{}': shaft power", model.links()[k].id), "kW");
+        let power = stepped(&times, &series(&|s| s.pump_power[i] / 1e3), &switches);
+        let mut q = Panel::new(format!("Pump '{id}': shaft power"), "shaft power (kW)");
         q.height = 120.0;
         q.lines.push(Line { label: "shaft power".into(), color: PALETTE[5], points: power, dash: false, width: 1.8 });
-        c.panels.push(p);
-        c.panels.push(q);
+        // Cumulative energy and cost, each on its own axis (integrated over every step).
+        let mut e = Panel::new(format!("Pump '{id}': shaft energy since the start"), "energy (kWh)");
+        e.height = 110.0;
+        let energy = times.iter().zip(&run.series).map(|(&t, s)| (t, s.pump_energy[i] / 3.6e6)).collect();
+        e.lines.push(Line {
+            label: "cumulative energy".into(),
+            color: PALETTE[3],
+            points: energy,
+            dash: false,
+            width: 2.0,
+        });
+        let mut m = Panel::new(format!("Pump '{id}': energy cost since the start"), format!("cost ({currency})"));
+        m.height = 110.0;
+        let cost = times.iter().zip(&run.series).map(|(&t, s)| (t, s.pump_cost[i])).collect();
+        m.lines.push(Line {
+            label: "cumulative cost".into(),
+            color: PALETTE[4],
+            points: cost,
+            dash: false,
+            width: 2.0,
+        });
+        c.panels.extend([p, q, e, m]);
     }
     c.panels.extend(pump_strip(report, &times));
-    let mut price = Panel::new("Energy price", format!("{}/kWh", report.currency()));
+    let mut price = Panel::new("Energy price", format!("price ({currency}/kWh)"));
     price.height = 110.0;
-    let points = times.iter().zip(&run.series).map(|(&t, s)| (t, s.price)).collect();
-    price.lines.push(Line { label: "price".into(), color: PALETTE[4], points, dash: false, width: 2.0 });
+    price.lines.push(Line {
+        label: "price".into(),
+        color: PALETTE[4],
+        points: price_steps(report),
+        dash: false,
+        width: 2.0,
+    });
     c.panels.push(price);
     c.render()
 }
@@ -457,8 +679,10 @@ pub fn pressures_svg(report: &RunReport<'_>, count: usize) -> String {
     let mut p =
         Panel::new(format!("The {} junctions with the lowest pressure", nodes.len()), format!("pressure ({unit})"));
     p.height = 300.0;
+    let switches = all_switches(report);
     for (n, &i) in nodes.iter().enumerate() {
-        let points = times.iter().zip(&run.series).map(|(&t, s)| (t, report.pressure(s.pressure[i]))).collect();
+        let values: Vec<f64> = run.series.iter().map(|s| report.pressure(s.pressure[i])).collect();
+        let points = stepped(&times, &values, &switches);
         p.lines.push(Line {
             label: format!("{} (min {:.1})", model.nodes()[i].id, report.pressure(run.node_min_pressure[i])),
             color: PALETTE[n % PALETTE.len()],
@@ -466,6 +690,21 @@ pub fn pressures_svg(report: &RunReport<'_>, count: usize) -> String {
             dash: false,
             width: 2.0,
         });
+    }
+    // The pressure criteria and the pressures at which controls act.
+    if let Some(criteria) = report.criteria {
+        for (name, limit) in [("min_pressure", criteria.min_pressure), ("max_pressure", criteria.max_pressure)] {
+            if let Some(v) = limit {
+                let v = report.pressure(v);
+                p.lines.push(threshold(report, format!("criterion {name} {v:.1} {unit}"), PALETTE[1], v));
+            }
+        }
+    }
+    for (n, (control, node, pressure, above)) in control_thresholds(report, false).into_iter().enumerate() {
+        let v = report.pressure(pressure);
+        let word = if above { "above" } else { "below" };
+        let label = format!("control '{control}': '{}' {word} {v:.1} {unit}", model.nodes()[node].id);
+        p.lines.push(threshold(report, label, PALETTE[[2, 3, 4][n % 3]], v));
     }
     c.panels.push(p);
     c.render()
@@ -505,13 +744,7 @@ pub fn quality_svg(report: &RunReport<'_>, c: usize, count: usize) -> Option<Str
     let name = if highest { "max_age".to_owned() } else { format!("min_residual.{}", con.id) };
     if let Some(check) = report.checks.iter().find(|k| k.name == name || k.name == format!("max_age.{}", con.id)) {
         let v = check.limit * scale;
-        p.lines.push(Line {
-            label: format!("{name} {v:.2} {unit}"),
-            color: PALETTE[1],
-            points: vec![(0.0, v), (report.hours(), v)],
-            dash: true,
-            width: 1.4,
-        });
+        p.lines.push(threshold(report, format!("criterion {name} {v:.2} {unit}"), PALETTE[1], v));
     }
     chart.panels.push(p);
     Some(chart.render())

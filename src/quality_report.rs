@@ -2,10 +2,10 @@
 //! entry, the summary per constituent (lowest and highest, where and when), the mass balance,
 //! the segment counts and the criteria checked over the run.
 
-use crate::simulation::{finite_or_null, RunReport};
-use ringmain_core::quality::{QualityRecord, QualityRun};
+use crate::simulation::RunReport;
+use ringmain_core::quality::QualityRun;
 use ringmain_core::NodeKind;
-use serde_json::{json, Map, Value};
+use serde_json::{json, Value};
 use std::fmt::Write as _;
 
 /// Extremes of one constituent over the run at junctions and tanks: (value, node, time).
@@ -35,20 +35,6 @@ pub fn extremes(
         }
     }
     (lo, hi)
-}
-
-/// Adds `"quality": {id: value}` to every node and link entry of a reported time.
-pub fn add_to_series(q: &QualityRun, rec: &QualityRecord, entry: &mut Value) {
-    for (key, values) in [("nodes", &rec.node), ("links", &rec.link)] {
-        let Some(items) = entry.get_mut(key).and_then(Value::as_array_mut) else { continue };
-        for (i, item) in items.iter_mut().enumerate() {
-            let mut map = Map::new();
-            for (c, con) in q.constituents.iter().enumerate() {
-                map.insert(con.id.clone(), finite_or_null(values[c][i] * con.report_scale()));
-            }
-            item["quality"] = Value::Object(map);
-        }
-    }
 }
 
 fn where_when(report: &RunReport<'_>, x: Option<(f64, usize, f64)>, scale: f64) -> Value {

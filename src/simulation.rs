@@ -1,14 +1,14 @@
 //! Writers of simulation results: a readable summary, JSON (summary, events and the reported
 //! time series) and CSV (the time series, one value a row), all in the model's own units. The
-//! series writers ([`SeriesWriter`]) take the reported states one by one as the run makes them;
-//! a run with water quality is written whole by [`RunReport::to_json`] and
-//! [`RunReport::to_csv`].
+//! series writers ([`SeriesWriter`]) take the reported states one by one as the run makes them,
+//! with the water-quality values of each reported time beside them when the model has
+//! constituents.
 
 use crate::columnar::{self, Column, Table};
 use crate::csv;
 use ringmain_core::analysis::CheckResult;
 use ringmain_core::model::time::{format_clock, format_duration, DAY};
-use ringmain_core::quality::QualityRun;
+use ringmain_core::quality::{Constituent, QualityRecord, QualityRun};
 use ringmain_core::simulate::{Run, Snapshot};
 use ringmain_core::units::{Converter, Quantity};
 use ringmain_core::{HeadLossLaw, Model, NodeKind};
@@ -27,6 +27,8 @@ pub struct RunReport<'a> {
     pub quality: Option<&'a QualityRun>,
     /// Criteria checked over the run (water quality).
     pub checks: Vec<CheckResult>,
+    /// The criteria the run was checked against, when any (the charts draw their limits).
+    pub criteria: Option<&'a ringmain_core::analysis::Criteria>,
 }
 
 pub(crate) fn finite_or_null(v: f64) -> Value {
@@ -37,15 +39,16 @@ pub(crate) fn finite_or_null(v: f64) -> Value {
     }
 }
 
-/// A text cell of CSV, quoted when needed and neutralised against formula injection (see
-/// [`crate::csv::text`]).
-pub(crate) fn csv_field(text: &str) -> String {
-    csv::text(text).into_owned()
-}
-
 impl<'a> RunReport<'a> {
     pub fn new(model: &'a Model, run: &'a Run) -> Self {
-        RunReport { model, run, density: model.options.water_properties().density, quality: None, checks: Vec::new() }
+        RunReport {
+            model,
+            run,
+            density: model.options.water_properties().density,
+            quality: None,
+            checks: Vec::new(),
+            criteria: None,
+        }
     }
 
     pub fn len(&self, v: f64) -> f64 {
@@ -263,139 +266,6 @@ impl<'a> RunReport<'a> {
             .collect()
     }
 
-    pub fn to_json(&self) -> Value {
-        let m = self.model;
-        let r = self.run;
-        let u = &m.units;
-        let tanks = self.tanks_json();
-        let pumps = self.pumps_json();
-        let b = &r.balance;
-        let series: Vec<Value> = r
-            .series
-            .iter()
-            .map(|s| {
-                let rec = self.quality.and_then(|q| q.at(s.time));
-                let mut entry = json!({
-                    "time_s": s.time,
-                    "clock": format_clock(r.start_clock + s.time),
-                    "price": s.price,
-                    "tanks": (0..r.tanks.len()).map(|j| json!({
-                        "id": self.tank_id(j), "level": self.len(s.level[j]),
-                        "volume": self.volume(s.volume[j]), "state": s.tank_state[j],
-                    })).collect::<Vec<_>>(),
-                    "pumps": (0..r.pumps.len()).map(|i| json!({
-                        "id": self.pump_id(i), "flow": self.flow(s.flow[r.pumps[i]]),
-                        "speed": s.pump_speed[i], "shaft_power_kw": s.pump_power[i] / 1e3,
-                        "status": s.status[r.pumps[i]],
-                    })).collect::<Vec<_>>(),
-                    "nodes": m.nodes().iter().enumerate().map(|(i, n)| json!({
-                        "id": n.id, "head": finite_or_null(self.len(s.head[i])),
-                        "pressure": finite_or_null(self.pressure(s.pressure[i])), "demand": self.flow(s.demand[i]),
-                    })).collect::<Vec<_>>(),
-                    "links": m.links().iter().enumerate().map(|(k, l)| json!({
-                        "id": l.id, "flow": self.flow(s.flow[k]), "status": s.status[k],
-                    })).collect::<Vec<_>>(),
-                });
-                if let (Some(q), Some(rec)) = (self.quality, rec) {
-                    crate::quality_report::add_to_series(q, rec, &mut entry);
-                }
-                entry
-            })
-            .collect();
-        let mut doc = json!({
-            "title": m.title,
-            "units": {
-                "length": u.length.label(), "flow": u.flow.label(), "pressure": u.pressure.label(),
-                "volume": self.volume_label(), "energy": "kWh", "currency": self.currency(),
-            },
-            "start_clock": format_clock(r.start_clock),
-            "duration_s": r.duration,
-            "summary": {
-                "tanks": tanks,
-                "pumps": pumps,
-                "lowest_pressure": r.lowest_pressure.map(|(n, p, t)| json!({
-                    "node": m.nodes()[n].id, "pressure": self.pressure(p), "time_s": t,
-                    "over": "every solved instant",
-                })),
-                "without_water": r.without_water.iter().map(|d| json!({
-                    "node": m.nodes()[d.node].id, "first_time_s": d.first, "hours": d.time / 3600.0,
-                })).collect::<Vec<_>>(),
-                "volume_balance": {
-                    "supplied": self.volume(b.supplied), "delivered": self.volume(b.delivered),
-                    "storage_change": self.volume(b.storage_change), "discrepancy": self.volume(b.discrepancy()),
-                    "relative_discrepancy": b.relative_discrepancy(), "not_delivered": self.volume(b.unsupplied),
-                },
-                "statistics": {
-                    "steps": r.statistics.steps, "rejected": r.statistics.rejected,
-                    "locating": r.statistics.locating, "hydraulic_solves": r.statistics.solves,
-                },
-            },
-            "events": r.events.iter().map(|e| json!({
-                "time_s": e.time, "clock": format_clock(r.start_clock + e.time), "what": e.describe(m),
-            })).collect::<Vec<_>>(),
-            "series": series,
-        });
-        crate::quality_report::add_to_json(self, &mut doc);
-        doc
-    }
-
-    /// The time series, one value a row: `time_h,clock,kind,id,quantity,value,unit`.
-    pub fn to_csv(&self) -> String {
-        let m = self.model;
-        let r = self.run;
-        let u = &m.units;
-        let mut out = String::from("time_h,clock,kind,id,quantity,value,unit\n");
-        let cell = csv::number;
-        for s in &r.series {
-            let head = format!("{},{}", s.time / 3600.0, format_clock(r.start_clock + s.time));
-            let mut row = |kind: &str, id: &str, q: &str, v: String, unit: &str| {
-                let _ = writeln!(out, "{head},{kind},{},{q},{v},{unit}", csv_field(id));
-            };
-            for j in 0..r.tanks.len() {
-                row("tank", self.tank_id(j), "level", cell(self.len(s.level[j])), u.length.label());
-                row("tank", self.tank_id(j), "volume", cell(self.volume(s.volume[j])), &self.volume_label());
-            }
-            for i in 0..r.pumps.len() {
-                row("pump", self.pump_id(i), "speed", cell(s.pump_speed[i]), "");
-                row("pump", self.pump_id(i), "shaft_power", cell(s.pump_power[i] / 1e3), "kW");
-            }
-            for (i, n) in m.nodes().iter().enumerate() {
-                row("node", &n.id, "head", cell(self.len(s.head[i])), u.length.label());
-                row("node", &n.id, "pressure", cell(self.pressure(s.pressure[i])), u.pressure.label());
-                row("node", &n.id, "demand", cell(self.flow(s.demand[i])), u.flow.label());
-            }
-            for (k, l) in m.links().iter().enumerate() {
-                row("link", &l.id, "flow", cell(self.flow(s.flow[k])), u.flow.label());
-                row("link", &l.id, "status", s.status[k].to_owned(), "");
-            }
-            if let Some((q, rec)) = self.quality.and_then(|q| q.at(s.time).map(|r| (q, r))) {
-                for (c, con) in q.constituents.iter().enumerate() {
-                    let scale = con.report_scale();
-                    for (i, n) in m.nodes().iter().enumerate() {
-                        row(
-                            "node",
-                            &n.id,
-                            &csv_field(&con.id),
-                            cell(rec.node[c][i] * scale),
-                            &csv_field(con.report_unit()),
-                        );
-                    }
-                    for (k, l) in m.links().iter().enumerate() {
-                        row(
-                            "link",
-                            &l.id,
-                            &csv_field(&con.id),
-                            cell(rec.link[c][k] * scale),
-                            &csv_field(con.report_unit()),
-                        );
-                    }
-                }
-            }
-            row("energy", "", "price", cell(s.price), &format!("{}/kWh", self.currency()));
-        }
-        out
-    }
-
     /// Everything of the JSON results but the series: the summary and the event log, as the
     /// members that follow `"series"` in [`JsonSeries`].
     fn json_tail(&self) -> Value {
@@ -479,8 +349,8 @@ impl<'a> Units<'a> {
 /// Each format is one implementation; a new quantity in [`Snapshot`] is one more member or
 /// column in each. Nothing the size of the series is held.
 pub trait SeriesWriter {
-    /// Writes one reported state.
-    fn snapshot(&mut self, s: &Snapshot) -> io::Result<()>;
+    /// Writes one reported state, with its water-quality values when the run has constituents.
+    fn snapshot(&mut self, s: &Snapshot, q: Option<&QualityRecord>) -> io::Result<()>;
     /// Writes what follows the series (the summary and events, where the format has them) and
     /// flushes.
     fn finish(&mut self, report: &RunReport) -> io::Result<()>;
@@ -494,6 +364,30 @@ pub struct JsonSeries<'a, W: Write> {
     tanks: Vec<usize>,
     pumps: Vec<usize>,
     first: bool,
+}
+
+/// The model's water-quality constituents, as the series writers report them.
+fn constituents(model: &Model) -> &[Constituent] {
+    &model.time.quality.constituents
+}
+
+/// `{"<id>": value, ...}` of one node or link at one reported time, in the reported units.
+struct QualityValues<'r> {
+    constituents: &'r [Constituent],
+    values: &'r [Vec<f64>],
+    index: usize,
+}
+
+impl Serialize for QualityValues<'_> {
+    fn serialize<S: Serializer>(&self, ser: S) -> Result<S::Ok, S::Error> {
+        use serde::ser::SerializeMap;
+        let mut map = ser.serialize_map(Some(self.constituents.len()))?;
+        for (c, con) in self.constituents.iter().enumerate() {
+            let v = self.values.get(c).and_then(|v| v.get(self.index)).copied().unwrap_or(f64::NAN);
+            map.serialize_entry(&con.id, &Num(v * con.report_scale()))?;
+        }
+        map.end()
+    }
 }
 
 impl<'a, W: Write> JsonSeries<'a, W> {
@@ -527,6 +421,7 @@ struct JsonSnapshot<'r, 'a> {
     pumps: &'r [usize],
     s: &'r Snapshot,
     start_clock: f64,
+    quality: Option<&'r QualityRecord>,
 }
 
 /// A number, or null where it is not finite (a node cut off from every source).
@@ -568,13 +463,21 @@ impl Serialize for JsonSnapshot<'_, '_> {
             head: Num,
             pressure: Num,
             demand: Num,
+            #[serde(skip_serializing_if = "Option::is_none")]
+            quality: Option<QualityValues<'x>>,
         }
         #[derive(Serialize)]
         struct Link<'x> {
             id: &'x str,
             flow: Num,
             status: &'static str,
+            #[serde(skip_serializing_if = "Option::is_none")]
+            quality: Option<QualityValues<'x>>,
         }
+        let cons = constituents(m);
+        let quality = |values: fn(&QualityRecord) -> &[Vec<f64>], index: usize| {
+            self.quality.map(|q| QualityValues { constituents: cons, values: values(q), index })
+        };
         let mut map = ser.serialize_map(None)?;
         map.serialize_entry("time_s", &s.time)?;
         map.serialize_entry("clock", &format_clock(self.start_clock + s.time))?;
@@ -605,6 +508,7 @@ impl Serialize for JsonSnapshot<'_, '_> {
                 head: Num(u.len(s.head[i])),
                 pressure: Num(u.pressure(s.pressure[i])),
                 demand: Num(u.flow(s.demand[i])),
+                quality: quality(|q| &q.node, i),
             })),
         )?;
         map.serialize_entry(
@@ -613,6 +517,7 @@ impl Serialize for JsonSnapshot<'_, '_> {
                 id: &l.id,
                 flow: Num(u.flow(s.flow[k])),
                 status: s.status[k],
+                quality: quality(|q| &q.link, k),
             })),
         )?;
         map.end()
@@ -629,11 +534,12 @@ impl<I: Iterator<Item = T> + Clone, T: Serialize> Serialize for Seq<I> {
 }
 
 impl<W: Write> SeriesWriter for JsonSeries<'_, W> {
-    fn snapshot(&mut self, s: &Snapshot) -> io::Result<()> {
+    fn snapshot(&mut self, s: &Snapshot, quality: Option<&QualityRecord>) -> io::Result<()> {
         self.out.write_all(if self.first { b"\n" } else { b",\n" })?;
         self.first = false;
         let start_clock = self.units.model.time.simulation.map_or(0.0, |sim| sim.start_clock);
-        let entry = JsonSnapshot { units: &self.units, tanks: &self.tanks, pumps: &self.pumps, s, start_clock };
+        let entry =
+            JsonSnapshot { units: &self.units, tanks: &self.tanks, pumps: &self.pumps, s, start_clock, quality };
         serde_json::to_writer(&mut self.out, &entry)?;
         Ok(())
     }
@@ -677,7 +583,7 @@ impl<'a, W: Write> CsvSeries<'a, W> {
 }
 
 impl<W: Write> SeriesWriter for CsvSeries<'_, W> {
-    fn snapshot(&mut self, s: &Snapshot) -> io::Result<()> {
+    fn snapshot(&mut self, s: &Snapshot, quality: Option<&QualityRecord>) -> io::Result<()> {
         let u = self.units;
         let m = u.model;
         let start_clock = m.time.simulation.map_or(0.0, |sim| sim.start_clock);
@@ -725,6 +631,18 @@ impl<W: Write> SeriesWriter for CsvSeries<'_, W> {
             row(out, "link", &l.id, "flow", Some(u.flow(s.flow[k])), "", flow)?;
             row(out, "link", &l.id, "status", None, s.status[k], "")?;
         }
+        if let Some(q) = quality {
+            for (c, con) in constituents(m).iter().enumerate() {
+                let (id, unit, scale) = (csv::text(&con.id), csv::text(con.report_unit()), con.report_scale());
+                for (i, n) in m.nodes().iter().enumerate() {
+                    row(out, "node", &n.id, &id, Some(q.node[c][i] * scale), "", &unit)?;
+                }
+                for (k, l) in m.links().iter().enumerate() {
+                    let v = q.link.get(c).map_or(f64::NAN, |v| v[k]);
+                    row(out, "link", &l.id, &id, Some(v * scale), "", &unit)?;
+                }
+            }
+        }
         row(out, "energy", "", "price", Some(s.price), "", price)
     }
 
@@ -734,7 +652,8 @@ impl<W: Write> SeriesWriter for CsvSeries<'_, W> {
 }
 
 /// Parquet: long tables with a time column, one file each in a directory: `nodes.parquet`
-/// (`time_s, id, head, pressure, demand`), `links.parquet` (`time_s, id, flow, status`),
+/// (`time_s, id, head, pressure, demand`, then `quality.<id>` per water-quality constituent),
+/// `links.parquet` (`time_s, id, flow, status`, then the same),
 /// `tanks.parquet` (`time_s, id, level, volume, state`), `pumps.parquet`
 /// (`time_s, id, flow, speed, shaft_power`), and `series.parquet` (`time_s, clock, price`).
 pub struct ParquetSeries<'a> {
@@ -767,18 +686,26 @@ impl<'a> ParquetSeries<'a> {
                 dir,
                 "nodes",
                 &[
-                    time(),
-                    id(),
-                    Column::new("head", F64, l),
-                    Column::new("pressure", F64, p),
-                    Column::new("demand", F64, q),
-                ],
+                    vec![
+                        time(),
+                        id(),
+                        Column::new("head", F64, l),
+                        Column::new("pressure", F64, p),
+                        Column::new("demand", F64, q),
+                    ],
+                    quality_columns(model),
+                ]
+                .concat(),
                 &meta,
             )?,
             Table::create(
                 dir,
                 "links",
-                &[time(), id(), Column::new("flow", F64, q), Column::new("status", Text, "")],
+                &[
+                    vec![time(), id(), Column::new("flow", F64, q), Column::new("status", Text, "")],
+                    quality_columns(model),
+                ]
+                .concat(),
                 &meta,
             )?,
             Table::create(
@@ -825,17 +752,34 @@ impl<'a> ParquetSeries<'a> {
     }
 }
 
+/// The water-quality columns of the node and link tables: `quality.<id>`, one per constituent,
+/// in its reported unit.
+fn quality_columns(model: &Model) -> Vec<Column> {
+    constituents(model)
+        .iter()
+        .map(|c| Column::new(format!("quality.{}", c.id), columnar::Kind::F64, c.report_unit()))
+        .collect()
+}
+
 impl SeriesWriter for ParquetSeries<'_> {
-    fn snapshot(&mut self, s: &Snapshot) -> io::Result<()> {
+    fn snapshot(&mut self, s: &Snapshot, quality: Option<&QualityRecord>) -> io::Result<()> {
         let u = self.units;
         let m = u.model;
+        let cons = constituents(m);
         let [nodes, links, tanks, pumps, series] = &mut self.tables;
+        // A constituent's value, or null where the record lacks it.
+        let value = |values: Option<&Vec<Vec<f64>>>, c: usize, i: usize| {
+            values.and_then(|v| v.get(c)).map_or(f64::NAN, |v| v[i] * cons[c].report_scale())
+        };
         for (i, n) in m.nodes().iter().enumerate() {
             nodes.f64(0, s.time);
             nodes.text(1, Some(&n.id));
             nodes.f64(2, u.len(s.head[i]));
             nodes.f64(3, u.pressure(s.pressure[i]));
             nodes.f64(4, u.flow(s.demand[i]));
+            for c in 0..cons.len() {
+                nodes.f64(5 + c, value(quality.map(|q| &q.node), c, i));
+            }
             nodes.end_row()?;
         }
         for (k, l) in m.links().iter().enumerate() {
@@ -843,6 +787,9 @@ impl SeriesWriter for ParquetSeries<'_> {
             links.text(1, Some(&l.id));
             links.f64(2, u.flow(s.flow[k]));
             links.text(3, Some(s.status[k]));
+            for c in 0..cons.len() {
+                links.f64(4 + c, value(quality.map(|q| &q.link), c, k));
+            }
             links.end_row()?;
         }
         for (j, &i) in self.tanks.iter().enumerate() {

@@ -448,3 +448,270 @@ proptest! {
         }
     }
 }
+
+/// A model with a tank (so that links carry water both ways over the day) for the writers.
+fn streamed_model() -> String {
+    random_model(7, "complete")
+}
+
+/// Per constituent, per element: a value.
+type Values = Vec<Vec<f64>>;
+
+/// The expected value of every constituent at every node and link at every reported time, in
+/// reported units: the engine's own records (what the writers must hand on, unchanged).
+fn engine_values(model: &Model) -> Vec<(f64, Values, Values)> {
+    let (_, q) = run(model);
+    q.records
+        .iter()
+        .map(|r| {
+            let scaled = |v: &Vec<Vec<f64>>| {
+                v.iter()
+                    .zip(&q.constituents)
+                    .map(|(x, c)| x.iter().map(|x| x * c.report_scale()).collect())
+                    .collect::<Values>()
+            };
+            (r.time, scaled(&r.node), scaled(&r.link))
+        })
+        .collect()
+}
+
+fn close(a: f64, b: f64) -> bool {
+    (a - b).abs() <= 1e-6 * a.abs().max(b.abs()).max(1e-3)
+}
+
+/// Water-quality series streamed as the run goes (JSON, CSV, Parquet) carry every
+/// constituent's value at every node and link at every reported time, equal to the engine's
+/// records and to the series kept whole (`--plot`). The class: a writer of a quality run that
+/// drops, shifts or rescales a value.
+#[test]
+fn quality_series_streamed_in_every_format_equal_the_engine() {
+    let dir = scratch("streamed");
+    let text = streamed_model();
+    std::fs::write(dir.join("m.toml"), &text).unwrap();
+    let model = read(&text);
+    let ids: Vec<String> = model.time.quality.constituents.iter().map(|c| c.id.to_string()).collect();
+    let expected = engine_values(&model);
+    // JSON, streamed and kept.
+    let mut docs = Vec::new();
+    for extra in [&[][..], &["--plot", "charts"][..]] {
+        let mut args = vec!["simulate", "m.toml", "--format", "json", "--output", "s.json", "--force"];
+        args.extend_from_slice(extra);
+        let out = ringmain(&args, &dir);
+        assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
+        let v: serde_json::Value = serde_json::from_slice(&std::fs::read(dir.join("s.json")).unwrap()).unwrap();
+        let series = v["series"].as_array().unwrap().clone();
+        assert_eq!(series.len(), expected.len());
+        for (s, (t, node, link)) in series.iter().zip(&expected) {
+            assert_eq!(s["time_s"].as_f64().unwrap(), *t);
+            for (key, values) in [("nodes", node), ("links", link)] {
+                for (i, item) in s[key].as_array().unwrap().iter().enumerate() {
+                    for (c, id) in ids.iter().enumerate() {
+                        let got = item["quality"][id].as_f64().unwrap_or(f64::NAN);
+                        assert!(close(got, values[c][i]), "{key} {i} {id} at {t}: {got} vs {}", values[c][i]);
+                    }
+                }
+            }
+        }
+        docs.push(series);
+    }
+    assert_eq!(docs[0], docs[1], "streamed and kept series differ");
+    // CSV: one row per value, quantity = constituent id.
+    let out = ringmain(&["simulate", "m.toml", "--format", "csv", "--output", "s.csv", "--force"], &dir);
+    assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
+    let csv = std::fs::read_to_string(dir.join("s.csv")).unwrap();
+    let mut seen = 0;
+    for line in csv.lines().skip(1) {
+        let f: Vec<&str> = line.split(',').collect();
+        let Some(c) = ids.iter().position(|id| id == f[4]) else { continue };
+        let t = f[0].parse::<f64>().unwrap() * 3600.0;
+        let (_, node, link) = expected.iter().find(|e| (e.0 - t).abs() < 1e-3).expect("a reported time");
+        let (values, index) = match f[2] {
+            "node" => (node, model.node_index(f[3]).unwrap()),
+            _ => (link, model.link_index(f[3]).unwrap()),
+        };
+        let got: f64 = f[5].parse().unwrap();
+        // Seven significant digits in CSV.
+        assert!((got - values[c][index]).abs() <= 1e-6 * values[c][index].abs().max(1e-3), "{line}");
+        seen += 1;
+    }
+    assert_eq!(seen, expected.len() * ids.len() * (model.nodes().len() + model.links().len()));
+    // Parquet: a column `quality.<id>` in the node and link tables.
+    let out = ringmain(&["simulate", "m.toml", "--format", "parquet", "--output", "pq", "--force"], &dir);
+    assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
+    for (table, count) in [("nodes", model.nodes().len()), ("links", model.links().len())] {
+        let file = std::fs::File::open(dir.join("pq").join(format!("{table}.parquet"))).unwrap();
+        let reader =
+            parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder::try_new(file).unwrap().build().unwrap();
+        let mut row = 0;
+        for batch in reader {
+            let batch = batch.unwrap();
+            let time = batch.column_by_name("time_s").unwrap();
+            let time = time.as_any().downcast_ref::<arrow_array::Float64Array>().unwrap();
+            for (c, id) in ids.iter().enumerate() {
+                let col = batch.column_by_name(&format!("quality.{id}")).unwrap_or_else(|| panic!("{table} {id}"));
+                let col = col.as_any().downcast_ref::<arrow_array::Float64Array>().unwrap();
+                for r in 0..batch.num_rows() {
+                    let (t, node, link) = &expected[(row + r) / count];
+                    assert_eq!(time.value(r), *t);
+                    let values = if table == "nodes" { node } else { link };
+                    let want = values[c][(row + r) % count];
+                    assert!(close(col.value(r), want), "{table} {id} row {}: {} vs {want}", row + r, col.value(r));
+                }
+            }
+            row += batch.num_rows();
+        }
+        assert_eq!(row, expected.len() * count);
+    }
+}
+
+/// A small looped network with map coordinates, two sources of different strength, age and
+/// chlorine (an invented scenario).
+const MAPPED: &str = r#"
+[simulation]
+duration = "24h"
+hydraulic_step = "1h"
+report_interval = "2h"
+[[quality]]
+id = "age"
+kind = "age"
+[[quality]]
+id = "chlorine"
+kind = "substance"
+bulk_rate = -0.8
+[[nodes]]
+id = "North Works"
+kind = "reservoir"
+head = 60
+x = 0
+y = 1000
+quality = { chlorine = 1.0 }
+[[nodes]]
+id = "South Works"
+kind = "reservoir"
+head = 58
+x = 0
+y = 0
+quality = { chlorine = 0.6 }
+[[nodes]]
+id = "Mill Row"
+elevation = 5
+demand = 6
+x = 800
+y = 1000
+[[nodes]]
+id = "Ford End"
+elevation = 5
+demand = 4
+x = 800
+y = 0
+[[nodes]]
+id = "Far Green"
+elevation = 8
+demand = 5
+x = 1600
+y = 500
+[[links]]
+id = "N1"
+from = "North Works"
+to = "Mill Row"
+length = 800
+diameter = 200
+roughness = 120
+[[links]]
+id = "S1"
+from = "South Works"
+to = "Ford End"
+length = 800
+diameter = 200
+roughness = 120
+[[links]]
+id = "C1"
+from = "Mill Row"
+to = "Ford End"
+length = 1000
+diameter = 100
+roughness = 110
+[[links]]
+id = "E1"
+from = "Mill Row"
+to = "Far Green"
+length = 900
+diameter = 150
+roughness = 120
+[[links]]
+id = "E2"
+from = "Ford End"
+to = "Far Green"
+length = 900
+diameter = 100
+roughness = 120
+"#;
+
+/// `map --quantity <constituent>` colours nodes by the constituent at the reported instant:
+/// each node's tooltip carries the value the simulation reports there, the lowest value takes
+/// the colour ramp's first colour and the highest its last; GeoJSON results carry the same
+/// values. The class: a constituent not drawn, or drawn from another instant.
+#[test]
+fn map_and_geojson_colour_nodes_by_a_constituent_at_a_reported_instant() {
+    let dir = scratch("map");
+    std::fs::write(dir.join("m.toml"), MAPPED).unwrap();
+    let out = ringmain(&["simulate", "m.toml", "--format", "json", "--output", "s.json"], &dir);
+    assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
+    let v: serde_json::Value = serde_json::from_slice(&std::fs::read(dir.join("s.json")).unwrap()).unwrap();
+    let at = v["series"].as_array().unwrap().iter().find(|s| s["time_s"] == 43_200.0).unwrap().clone();
+    for id in ["age", "chlorine"] {
+        let expected: Vec<(String, f64)> = at["nodes"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|n| (n["id"].as_str().unwrap().to_owned(), n["quality"][id].as_f64().unwrap()))
+            .collect();
+        let name = format!("{id}.svg");
+        let out = ringmain(&["map", "m.toml", "--quantity", id, "--at", "12h", "--output", &name], &dir);
+        assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
+        let svg = std::fs::read_to_string(dir.join(&name)).unwrap();
+        let stops: Vec<&str> = svg.split("stop-color=\"").skip(1).map(|s| &s[..7]).collect();
+        let nodes = svg.split("<g id=\"nodes\"").nth(1).unwrap().split("</g>").next().unwrap();
+        let mut seen = 0;
+        for circle in nodes.split("<circle ").skip(1) {
+            let fill = circle.split("fill=\"").nth(1).unwrap().split('"').next().unwrap();
+            let title = circle.split("<title>").nth(1).unwrap().split("</title>").next().unwrap();
+            let (node, want) = expected.iter().find(|(n, _)| title.contains(&format!(" {n}\n"))).unwrap();
+            let line = title.lines().find(|l| l.starts_with(&format!("{id}: "))).unwrap();
+            let got: f64 = line.split_whitespace().nth(1).unwrap().parse().unwrap();
+            assert!((got - want).abs() <= 5e-3 * want.abs().max(0.1), "{node}: {got} vs {want}");
+            let lo = expected.iter().map(|e| e.1).fold(f64::INFINITY, f64::min);
+            let hi = expected.iter().map(|e| e.1).fold(f64::NEG_INFINITY, f64::max);
+            if *want == lo {
+                assert_eq!(fill, stops[0], "{id}: lowest at {node}");
+            }
+            if *want == hi {
+                assert_eq!(fill, *stops.last().unwrap(), "{id}: highest at {node}");
+            }
+            seen += 1;
+        }
+        assert_eq!(seen, expected.len());
+        // GeoJSON of the same instant: the same values as properties.
+        let out = ringmain(
+            &["simulate", "m.toml", "--format", "geojson", "--at", "12h", "--output", "m.geojson", "--force"],
+            &dir,
+        );
+        assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
+        let g: serde_json::Value = serde_json::from_slice(&std::fs::read(dir.join("m.geojson")).unwrap()).unwrap();
+        for (node, want) in &expected {
+            let f = g["features"].as_array().unwrap().iter().find(|f| f["id"] == node.as_str()).unwrap();
+            let got = f["properties"][id].as_f64().unwrap();
+            assert!((got - want).abs() <= 1e-9 * want.abs().max(1.0), "{node}: {got} vs {want}");
+        }
+    }
+    // Without --at: each node's worst over the run, said in the title.
+    let out = ringmain(&["map", "m.toml", "--quantity", "age", "--output", "worst.svg"], &dir);
+    assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
+    let svg = std::fs::read_to_string(dir.join("worst.svg")).unwrap();
+    assert!(svg.contains("highest age"), "{}", &svg[..400]);
+    // An unknown quantity names the constituents among the choices.
+    let out = ringmain(&["map", "m.toml", "--quantity", "agee", "--output", "bad.svg"], &dir);
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(2), "{err}");
+    assert!(err.contains("age") && err.contains("chlorine"), "{err}");
+}

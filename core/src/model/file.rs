@@ -81,6 +81,8 @@ const TOP_KEYS: &[&str] = &[
     "criteria",
     "pressure_demand",
     "background_leakage",
+    // The same table under its short name, as the issue that specified it spells it.
+    "leakage",
     "simulation",
     "electricity",
     "map",
@@ -244,6 +246,34 @@ const LINK_KEYS: &[(&str, &[&str])] = &[
         ],
     ),
 ];
+
+/// Every key the reader accepts, by where it stands: `(place, kind, keys)`, the place being a
+/// path in the file (`""` the top level, `"nodes"`, `"nodes.outlet"`, `"controls.when"`...) and
+/// the kind the element's kind where keys depend on it (`""` otherwise). The writer's round-trip
+/// test checks each is written back.
+#[cfg(test)]
+pub(crate) fn accepted_keys() -> Vec<(&'static str, &'static str, &'static [&'static str])> {
+    let mut out: Vec<(&'static str, &'static str, &'static [&'static str])> = vec![
+        ("", "", TOP_KEYS),
+        ("units", "", UNIT_KEYS),
+        ("hydraulics", "", HYDRAULIC_KEYS),
+        ("pressure_demand", "", PRESSURE_DEMAND_KEYS),
+        ("background_leakage", "", LEAKAGE_KEYS),
+        ("map", "", MAP_KEYS),
+        ("simulation", "", SIMULATION_KEYS),
+        ("electricity", "", ENERGY_KEYS),
+        ("patterns", "", PATTERN_KEYS),
+        ("nodes.demands", "", DEMAND_KEYS),
+        ("nodes.outlet", "", OUTLET_KEYS),
+        ("links.fittings", "", FITTING_KEYS),
+        ("controls", "", CONTROL_KEYS),
+        ("controls.when", "", CONDITION_KEYS),
+    ];
+    out.extend(QUALITY_KEYS.iter().map(|(k, keys)| ("quality", *k, *keys)));
+    out.extend(NODE_KEYS.iter().map(|(k, keys)| ("nodes", *k, *keys)));
+    out.extend(LINK_KEYS.iter().map(|(k, keys)| ("links", *k, *keys)));
+    out
+}
 
 /// Reads a JSON model in one pass from `reader`, without holding the text: each node and link
 /// is parsed into a small tree, read into the model and dropped in turn, so that memory holds the
@@ -452,16 +482,37 @@ impl<'de> serde::de::Visitor<'de> for Elements<'_> {
 }
 
 fn read_inner(text: &str, format: Format) -> Result<Model, ModelError> {
-    if format == Format::Json {
-        if let Some(model) = read_json_one_pass(serde_json::Deserializer::from_str(text)) {
-            return Ok(model);
-        }
+    let fast = match format {
+        Format::Json => super::scan::json_from_slice(text.as_bytes()),
+        Format::Toml => super::scan::toml_from_slice(text.as_bytes()),
+    };
+    match fast {
+        Some(model) => Ok(model),
+        None => read_tree(text, format),
     }
-    read_tree(text, format)
+}
+
+/// The top-level table's fields (for the one-pass readers of [`super::scan`]).
+pub(super) fn top_fields(entries: Vec<(Key, Value)>) -> Fields {
+    Fields::new(None, entries)
+}
+
+/// The model with the settings of the top-level table, before any element, when every setting
+/// is valid and no other key is there (for the one-pass readers of [`super::scan`]).
+pub(super) fn settings_model(top: &mut Fields) -> Option<Model> {
+    let settings = Settings::take(top).ok()?;
+    let rest = std::mem::replace(top, Fields::new(None, Vec::new()));
+    rest.finish(TOP_KEYS).ok()?;
+    settings.into_model().ok()
+}
+
+/// [`finish`] for the one-pass readers: `None` on any error.
+pub(super) fn finish_model(model: Model, controls: Vec<Value>) -> Option<Model> {
+    finish(model, controls).ok()
 }
 
 /// The ordinary reader: the whole file as one value tree, then the model.
-fn read_tree(text: &str, format: Format) -> Result<Model, ModelError> {
+pub(super) fn read_tree(text: &str, format: Format) -> Result<Model, ModelError> {
     if text.trim().is_empty() {
         return Err(ModelError::new("the file is empty; a model needs at least [[nodes]] and [[links]]"));
     }
@@ -529,9 +580,17 @@ impl Settings {
             Some(v) => Some(read_pressure_demand(v, &units, &options)?),
             None => None,
         };
-        let leakage = match top.take("background_leakage") {
-            Some(v) => Some(read_leakage(v, &units, &options)?),
-            None => None,
+        let leakage = match (top.take("background_leakage"), top.take("leakage")) {
+            (Some(_), Some(_)) => {
+                return Err(ModelError::at(
+                    Some(Element::Table("leakage".into())),
+                    None,
+                    "the model has both [background_leakage] and its short name: keep one",
+                ))
+            }
+            (Some(v), None) => Some(read_leakage(v, "background_leakage", &units, &options)?),
+            (None, Some(v)) => Some(read_leakage(v, "leakage", &units, &options)?),
+            (None, None) => None,
         };
         let simulation = match top.take("simulation") {
             Some(v) => Some(read_simulation(v, &units)?),
@@ -586,7 +645,7 @@ impl Settings {
 }
 
 /// Reads the `i`-th entry of `nodes` into the model.
-fn add_node_value(model: &mut Model, i: usize, value: Value) -> Result<(), ModelError> {
+pub(super) fn add_node_value(model: &mut Model, i: usize, value: Value) -> Result<(), ModelError> {
     let index = model.nodes().len();
     let units = model.units;
     let options = model.options;
@@ -599,7 +658,7 @@ fn add_node_value(model: &mut Model, i: usize, value: Value) -> Result<(), Model
 }
 
 /// Reads the `i`-th entry of `links` into the model.
-fn add_link_value(model: &mut Model, i: usize, value: Value) -> Result<(), ModelError> {
+pub(super) fn add_link_value(model: &mut Model, i: usize, value: Value) -> Result<(), ModelError> {
     let index = model.links().len();
     let (link, pattern, leakage_rate, path, fittings) = read_link(i, value, model)?;
     if let Some(rate) = leakage_rate {
@@ -634,7 +693,7 @@ fn finish(mut model: Model, controls: Vec<Value>) -> Result<Model, ModelError> {
 }
 
 /// The keys of one table being read, with what has been consumed.
-struct Fields {
+pub(super) struct Fields {
     element: Option<Element>,
     entries: Vec<(Key, Option<Value>)>,
     /// Written before every key in messages, for tables inside an element ("demands[2].").
@@ -1296,9 +1355,14 @@ fn read_pressure_demand(
     Ok(PressureDemand { full_pressure, zero_pressure: zero, exponent })
 }
 
-/// Reads `[background_leakage]`.
-fn read_leakage(value: Value, units: &UnitSystem, options: &HydraulicOptions) -> Result<Leakage, ModelError> {
-    let el = Element::Table("background_leakage".into());
+/// Reads `[background_leakage]` (or the same table under its short name, `table`).
+fn read_leakage(
+    value: Value,
+    table: &str,
+    units: &UnitSystem,
+    options: &HydraulicOptions,
+) -> Result<Leakage, ModelError> {
+    let el = Element::Table(table.into());
     let mut f = Fields::from_value(el.clone(), value)?;
     f.reject_unknown(LEAKAGE_KEYS)?;
     let density = options.water_properties().density;

@@ -113,6 +113,45 @@ pub fn simulate(
     Ok((run, engine.finish()))
 }
 
+/// Where [`simulate_streaming`] sends each reported state, with the water-quality values of
+/// that instant (`None` only if the transport has no record of it, which its report times
+/// agreeing with the hydraulics' rule out). An error stops the run as in
+/// [`crate::simulate::simulate_streaming`].
+pub type QualitySink<'s> = dyn FnMut(&crate::simulate::Snapshot, Option<&QualityRecord>) -> Result<(), String> + 's;
+
+/// Runs the model's `[simulation]` with its `[[quality]]` constituents and hands every reported
+/// state to `sink` with its water-quality values as soon as it is final, instead of keeping the
+/// series. The returned [`Run`] has no series; the [`QualityRun`] keeps of each reported time
+/// only the node values (what the summary, the criteria and the charts read: one number per
+/// node and constituent a report), the link values being dropped once handed on.
+pub fn simulate_streaming(
+    model: &Model,
+    options: &SimulateOptions,
+    progress: &mut dyn FnMut(f64),
+    sink: &mut QualitySink<'_>,
+) -> Result<(Run, QualityRun), SimulateError> {
+    let engine = std::cell::RefCell::new(QualityEngine::new(model)?);
+    // The run calls the observer and the sink in turn, never one inside the other, so each
+    // borrow of the engine ends before the next begins.
+    struct Shared<'a, 'm>(&'a std::cell::RefCell<QualityEngine<'m>>);
+    impl StepObserver for Shared<'_, '_> {
+        fn interval(&mut self, t0: f64, t1: f64, start: &Solution, end: &Solution) {
+            self.0.borrow_mut().interval(t0, t1, start, end);
+        }
+    }
+    let mut observer = Shared(&engine);
+    let run = crate::simulate::simulate_streaming_observed(model, options, progress, &mut observer, &mut |s| {
+        let mut e = engine.borrow_mut();
+        let found = e.records.iter().rposition(|r| (r.time - s.time).abs() <= 1e-6 * s.time.max(1.0));
+        let result = sink(s, found.map(|i| &e.records[i]));
+        if let Some(i) = found {
+            e.records[i].link = Vec::new();
+        }
+        result
+    })?;
+    Ok((run, engine.into_inner().finish()))
+}
+
 /// The transport of every constituent through the network; a [`StepObserver`] of a simulation.
 #[derive(Debug)]
 pub struct QualityEngine<'m> {
@@ -141,7 +180,23 @@ pub struct QualityEngine<'m> {
     /// Per link and constituent: `exp(k Δt) − 1` for the interval's transport step.
     em1: Vec<f64>,
     order: Vec<u32>,
+    /// The sweep's links: the links flowing out of `order[i]` are
+    /// `out_links[out_start[i]..out_start[i + 1]]` (set per interval, so that a transport step
+    /// visits only links that carry water).
+    out_start: Vec<u32>,
+    out_links: Vec<Outflow>,
     indeg: Vec<u32>,
+    /// Per node: what it is to the transport.
+    role: Vec<Role>,
+    /// Reservoirs and tanks (their values are fixed or come from their contents).
+    fixed_nodes: Vec<u32>,
+    /// Per node: whether it has a booster.
+    boosted: Vec<bool>,
+    /// Total volume of the pipes, m³ (the ageing of their water per second).
+    pipe_volume: f64,
+    /// Per tank and constituent: the value of its outflow in the step; per tank, the volume in.
+    tank_out_value: Vec<f64>,
+    tank_in_vol: Vec<f64>,
     /// Per link: upstream and downstream node of the interval's flow (`u32::MAX`: no flow).
     up: Vec<u32>,
     down: Vec<u32>,
@@ -251,6 +306,18 @@ impl<'m> QualityEngine<'m> {
                 fill[n] += 1;
             }
         }
+        let role: Vec<Role> = nodes
+            .iter()
+            .map(|n| match n.kind {
+                NodeKind::Reservoir { .. } => Role::Reservoir,
+                NodeKind::Tank(_) => Role::Tank,
+                _ => Role::Junction,
+            })
+            .collect();
+        let fixed_nodes: Vec<u32> = (0..nodes.len()).filter(|&i| role[i] != Role::Junction).map(|i| i as u32).collect();
+        let boosted: Vec<bool> = (0..nodes.len()).map(|i| q.boosters.contains_key(&i)).collect();
+        let pipe_volume = seg.volume.iter().sum();
+        let ntanks = tanks.len();
         let step_max =
             sim.transport_step.unwrap_or((sim.hydraulic_step / STEPS_PER_HYDRAULIC_STEP).min(TRANSPORT_STEP));
         let mut engine = QualityEngine {
@@ -271,7 +338,15 @@ impl<'m> QualityEngine<'m> {
             rate: vec![0.0; links.len() * nc],
             em1: vec![0.0; links.len() * nc],
             order: Vec::with_capacity(nodes.len()),
+            out_start: Vec::with_capacity(nodes.len() + 1),
+            out_links: Vec::with_capacity(links.len()),
             indeg: vec![0; nodes.len()],
+            role,
+            fixed_nodes,
+            boosted,
+            pipe_volume,
+            tank_out_value: vec![0.0; ntanks * nc],
+            tank_in_vol: vec![0.0; ntanks],
             up: vec![u32::MAX; links.len()],
             down: vec![u32::MAX; links.len()],
             q_in: vec![0.0; nodes.len()],
@@ -361,8 +436,10 @@ impl<'m> QualityEngine<'m> {
     /// Reservoirs report their source values and tanks their contents.
     fn set_fixed_values(&mut self) {
         let nc = self.nc;
-        for (i, n) in self.model.nodes().iter().enumerate() {
-            match n.kind {
+        let nodes = self.model.nodes();
+        for &i in &self.fixed_nodes {
+            let i = i as usize;
+            match nodes[i].kind {
                 NodeKind::Reservoir { .. } => {
                     for c in 0..nc {
                         self.value[i * nc + c] = self.source_value(i, c);
@@ -490,6 +567,27 @@ impl<'m> QualityEngine<'m> {
                 }
             }
         }
+        // The links each node sends water into, in the order of the sweep.
+        self.out_start.clear();
+        self.out_links.clear();
+        for oi in 0..self.order.len() {
+            self.out_start.push(self.out_links.len() as u32);
+            let n = self.order[oi];
+            for a in self.adj_start[n as usize] as usize..self.adj_start[n as usize + 1] as usize {
+                let k = self.adj[a] as usize;
+                if self.up[k] == n {
+                    let q = self.flow[k];
+                    self.out_links.push(Outflow {
+                        link: k as u32,
+                        down: self.down[k],
+                        forward: q > 0.0,
+                        piped: self.seg.volume[k] > 0.0,
+                        flow: q.abs(),
+                    });
+                }
+            }
+        }
+        self.out_start.push(self.out_links.len() as u32);
     }
 
     fn incident(&self, n: usize) -> &[u32] {
@@ -518,19 +616,17 @@ impl<'m> QualityEngine<'m> {
     /// One transport step of length `dt` with the interval's flows.
     fn transport(&mut self, dt: f64) {
         let nc = self.nc;
-        let nodes = self.model.nodes();
-        let links = self.model.links();
+        let nlinks = self.model.links().len();
         // 1. Reactions and ageing over the step; then the clock moves on.
         let t_new = self.t + dt;
         for c in 0..nc {
             match self.q.constituents[c].kind {
                 ConstituentKind::Age => {
-                    let pipes: f64 = self.seg.volume.iter().sum();
-                    self.balance[c].reacted += pipes * dt;
+                    self.balance[c].reacted += self.pipe_volume * dt;
                 }
                 ConstituentKind::Substance(_) if self.transforms[c] == Transform::Decay => {
                     let mut gained = 0.0;
-                    for p in 0..links.len() {
+                    for p in 0..nlinks {
                         let em1 = self.em1[p * nc + c];
                         if em1 != 0.0 && self.seg.volume[p] > 0.0 {
                             gained += self.seg.react_by(p, c, em1 + 1.0, em1, self.t);
@@ -561,44 +657,43 @@ impl<'m> QualityEngine<'m> {
         self.t = t_new;
         let t = self.t;
         // 2. Tanks' outflows.
-        let mut tank_out_value = vec![0.0; self.tanks.len() * nc];
-        let mut tank_in_vol = vec![0.0; self.tanks.len()];
+        let mut x = std::mem::take(&mut self.scratch);
         for j in 0..self.tanks.len() {
             let node = self.tank_nodes[j];
             let (v_in, v_out) = (self.q_in[node] * dt, self.q_out[node] * dt);
-            tank_in_vol[j] = v_in;
-            let mut out = vec![0.0; nc];
-            self.tanks[j].outflow(v_in, v_out, dt, &mut out, t);
+            self.tank_in_vol[j] = v_in;
+            x.iter_mut().for_each(|m| *m = 0.0);
+            self.tanks[j].outflow(v_in, v_out, dt, &mut x, t);
             for c in 0..nc {
                 let v = if self.outside(c, node) {
                     let v = self.own_value(c, node);
                     self.balance[c].inflow += v * v_out;
                     v
                 } else if v_out > 0.0 {
-                    out[c] / v_out
+                    x[c] / v_out
                 } else {
                     self.tanks[j].value(c, t).unwrap_or(self.value[node * nc + c])
                 };
-                tank_out_value[j * nc + c] = v;
+                self.tank_out_value[j * nc + c] = v;
             }
         }
         // 3. The sweep.
-        let mut x = std::mem::take(&mut self.scratch);
         for oi in 0..self.order.len() {
             let n = self.order[oi] as usize;
             let (v_in, v_out) = (self.q_in[n] * dt, self.q_out[n] * dt);
-            match nodes[n].kind {
-                NodeKind::Reservoir { .. } => {
+            let role = self.role[n];
+            match role {
+                Role::Reservoir => {
                     for c in 0..nc {
                         x[c] = self.source_value(n, c);
                         self.balance[c].inflow += x[c] * v_out;
                     }
                 }
-                NodeKind::Tank(_) => {
+                Role::Tank => {
                     let j = self.tank_of[n];
-                    x.copy_from_slice(&tank_out_value[j * nc..(j + 1) * nc]);
+                    x.copy_from_slice(&self.tank_out_value[j * nc..(j + 1) * nc]);
                 }
-                _ => {
+                Role::Junction => {
                     // Injection (negative demand) by continuity.
                     let inject = (v_out - v_in).max(0.0);
                     let vol = self.acc_vol[n] + inject;
@@ -615,14 +710,15 @@ impl<'m> QualityEngine<'m> {
                     self.acc_vol[n] = 0.0;
                 }
             }
-            let junction = self.tank_of[n] == usize::MAX && !matches!(nodes[n].kind, NodeKind::Reservoir { .. });
-            let demand = if junction { (v_in - v_out).max(0.0) } else { 0.0 };
+            let demand = if role == Role::Junction { (v_in - v_out).max(0.0) } else { 0.0 };
             // Boosters raise the water leaving the node.
-            if let Some(list) = self.q.boosters.get(&n) {
-                for &(c, floor) in list {
-                    if x[c] < floor {
-                        self.balance[c].boosted += (floor - x[c]) * (v_out + demand);
-                        x[c] = floor;
+            if self.boosted[n] {
+                if let Some(list) = self.q.boosters.get(&n) {
+                    for &(c, floor) in list {
+                        if x[c] < floor {
+                            self.balance[c].boosted += (floor - x[c]) * (v_out + demand);
+                            x[c] = floor;
+                        }
                     }
                 }
             }
@@ -631,19 +727,17 @@ impl<'m> QualityEngine<'m> {
                     self.balance[c].outflow += x[c] * demand;
                 }
             }
-            self.value[n * nc..(n + 1) * nc].copy_from_slice(&x);
+            for c in 0..nc {
+                self.value[n * nc + c] = x[c];
+            }
             // Into the outflowing links, out at their far ends.
-            for a in self.adj_start[n] as usize..self.adj_start[n + 1] as usize {
-                let k = self.adj[a] as usize;
-                if self.up[k] != n as u32 {
-                    continue;
-                }
-                let w = self.down[k] as usize;
-                let vol = self.flow[k].abs() * dt;
-                if self.seg.volume[k] > 0.0 {
-                    let forward = self.flow[k] > 0.0;
+            for a in self.out_start[oi] as usize..self.out_start[oi + 1] as usize {
+                let Outflow { link: k, down: w, forward, piped, flow } = self.out_links[a];
+                let (k, w) = (k as usize, w as usize);
+                let vol = flow * dt;
+                let m = &mut self.acc_mass[w * nc..(w + 1) * nc];
+                if piped {
                     self.seg.push(k, forward, vol, &x, t);
-                    let m = &mut self.acc_mass[w * nc..(w + 1) * nc];
                     let taken = self.seg.pop(k, !forward, vol, m, t);
                     if taken < vol {
                         for c in 0..nc {
@@ -652,38 +746,33 @@ impl<'m> QualityEngine<'m> {
                     }
                 } else {
                     for c in 0..nc {
-                        self.acc_mass[w * nc + c] += x[c] * vol;
+                        m[c] += x[c] * vol;
                     }
                 }
                 self.acc_vol[w] += vol;
             }
         }
-        self.scratch = x;
         // 4. Reservoirs and tanks take in what arrived.
-        for (i, node) in nodes.iter().enumerate() {
-            match node.kind {
-                NodeKind::Reservoir { .. } => {
-                    for c in 0..nc {
-                        self.balance[c].outflow += self.acc_mass[i * nc + c];
-                        self.acc_mass[i * nc + c] = 0.0;
+        for f in 0..self.fixed_nodes.len() {
+            let i = self.fixed_nodes[f] as usize;
+            if self.role[i] == Role::Tank {
+                let j = self.tank_of[i];
+                x.copy_from_slice(&self.acc_mass[i * nc..(i + 1) * nc]);
+                self.tanks[j].settle(self.tank_in_vol[j], &x, t);
+                for c in 0..nc {
+                    if self.outside(c, i) {
+                        self.balance[c].outflow += x[c];
                     }
-                    self.acc_vol[i] = 0.0;
                 }
-                NodeKind::Tank(_) => {
-                    let j = self.tank_of[i];
-                    let m: Vec<f64> = self.acc_mass[i * nc..(i + 1) * nc].to_vec();
-                    self.tanks[j].settle(tank_in_vol[j], &m, t);
-                    for c in 0..nc {
-                        if self.outside(c, i) {
-                            self.balance[c].outflow += m[c];
-                        }
-                        self.acc_mass[i * nc + c] = 0.0;
-                    }
-                    self.acc_vol[i] = 0.0;
+            } else {
+                for c in 0..nc {
+                    self.balance[c].outflow += self.acc_mass[i * nc + c];
                 }
-                _ => {}
             }
+            self.acc_mass[i * nc..(i + 1) * nc].iter_mut().for_each(|m| *m = 0.0);
+            self.acc_vol[i] = 0.0;
         }
+        self.scratch = x;
         self.set_fixed_values();
         self.steps += 1;
     }
@@ -733,6 +822,31 @@ impl StepObserver for QualityEngine<'_> {
             self.record();
         }
     }
+}
+
+/// A link the sweep sends water into (its data gathered in the order of the sweep).
+#[derive(Clone, Copy, Debug)]
+struct Outflow {
+    link: u32,
+    /// The node it delivers to.
+    down: u32,
+    /// Whether it flows from its `from` node to its `to` node.
+    forward: bool,
+    /// Whether it holds water (a pipe) or passes it through at once (pumps, valves).
+    piped: bool,
+    /// |Q|, m³/s.
+    flow: f64,
+}
+
+/// What a node is to the transport.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+enum Role {
+    /// Mixes what arrives (and what it injects), sends it on, delivers its demand.
+    Junction,
+    /// Gives its source values, takes in what arrives.
+    Reservoir,
+    /// Gives its contents, takes in what arrives.
+    Tank,
 }
 
 /// The scale of a substance's values: the largest value any node gives it (1 if none).

@@ -232,6 +232,22 @@ pub fn simulate_streaming(
     run_engine(model, options, progress, Some(sink))
 }
 
+/// [`simulate_streaming`] telling `observer` about every step (the water-quality transport
+/// streams its values beside the hydraulics this way).
+pub fn simulate_streaming_observed(
+    model: &Model,
+    options: &SimulateOptions,
+    progress: &mut dyn FnMut(f64),
+    observer: &mut dyn StepObserver,
+    sink: &mut SeriesSink<'_>,
+) -> Result<Run, SimulateError> {
+    let sim = simulation_settings(model)?;
+    check_options(options)?;
+    let mut engine = Engine::new(model, sim, *options)?;
+    engine.observer = Some(observer);
+    engine.run(progress, Some(sink))
+}
+
 fn run_engine(
     model: &Model,
     options: &SimulateOptions,
@@ -949,6 +965,8 @@ impl<'m> Engine<'m> {
                 .map(|(&k, p)| if p[0] > 0.0 { conditions.pump_speed(k) } else { 0.0 })
                 .collect(),
             pump_power: self.k1.pumps.iter().map(|p| p[2]).collect(),
+            pump_energy: self.totals.pumps.iter().map(|p| p[2]).collect(),
+            pump_cost: self.cost.clone(),
             price: self.price(),
         };
         if sink.is_some() {

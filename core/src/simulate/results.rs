@@ -29,6 +29,12 @@ pub struct Snapshot {
     pub pump_speed: Vec<f64>,
     /// Per pump: shaft power, W.
     pub pump_power: Vec<f64>,
+    /// Per pump: shaft energy since the start, J (integrated over every step, as the run's
+    /// pump summary is; it ends at that summary's total).
+    pub pump_energy: Vec<f64>,
+    /// Per pump: cost of that energy since the start at the prices in force, in the model's
+    /// currency.
+    pub pump_cost: Vec<f64>,
     /// Energy price in force, per kWh.
     pub price: f64,
 }

@@ -66,6 +66,8 @@ pub struct Conditions {
     minor_loss: Vec<f64>,
     /// How junctions draw water.
     node_law: NodeLaw,
+    /// Draws at junctions that do not follow pressure (a fire draw), m³/s, by node.
+    draws: Vec<(u32, f64)>,
     identity: u64,
     /// Links whose law inputs changed, in order (see the module docs).
     journal: Vec<u32>,
@@ -85,6 +87,7 @@ impl Clone for Conditions {
             roughness: self.roughness.clone(),
             minor_loss: self.minor_loss.clone(),
             node_law: self.node_law,
+            draws: self.draws.clone(),
             identity: fresh_identity(),
             journal: Vec::new(),
         }
@@ -113,7 +116,8 @@ impl Conditions {
             diameter: Vec::with_capacity(links.len()),
             roughness: Vec::with_capacity(links.len()),
             minor_loss: Vec::with_capacity(links.len()),
-            node_law: NodeLaw::FixedDemand,
+            node_law: NodeLaw::of_model(model),
+            draws: Vec::new(),
             identity: fresh_identity(),
             journal: Vec::new(),
         };
@@ -208,6 +212,11 @@ impl Conditions {
     /// How junctions draw water.
     pub fn node_law(&self) -> NodeLaw {
         self.node_law
+    }
+
+    /// The fixed draws at junctions (node index, m³/s), in the order they were set.
+    pub fn fixed_draws(&self) -> &[(u32, f64)] {
+        &self.draws
     }
 
     /// Flow area of pipe or valve `k` at its current diameter, m² (zero for pumps).
@@ -450,6 +459,28 @@ impl Conditions {
         self.node_law = law;
     }
 
+    /// Sets a draw at junction `i` that does not follow pressure, m³/s, on top of its demand (a
+    /// fire draw at a hydrant: the flow the fire engine takes, whatever the pressure); zero
+    /// removes it. Unlike the demand it is not scaled by pressure-dependent demand.
+    pub fn set_fixed_draw(&mut self, model: &Model, i: usize, draw: f64) -> Result<(), ModelError> {
+        let node = node(model, i)?;
+        if !matches!(node.kind, NodeKind::Junction { .. }) {
+            return Err(at_node(
+                model,
+                i,
+                "draw",
+                format!("applies to junctions only; this node is a {}", node.kind.label()),
+            ));
+        }
+        check_value(node, "draw", draw, Rule::Finite)?;
+        match self.draws.iter_mut().find(|(j, _)| *j as usize == i) {
+            Some(entry) => entry.1 = draw,
+            None => self.draws.push((i as u32, draw)),
+        }
+        self.draws.retain(|&(_, q)| q != 0.0);
+        Ok(())
+    }
+
     /// Copies every value of `other` (conditions of the same network) into these, logging the
     /// links whose law inputs differ: how a worker returns to a base case after a scenario
     /// without rebuilding the laws of links that did not change.
@@ -474,6 +505,7 @@ impl Conditions {
         self.roughness.copy_from_slice(&other.roughness);
         self.minor_loss.copy_from_slice(&other.minor_loss);
         self.node_law = other.node_law;
+        self.draws.clone_from(&other.draws);
     }
 
     // ---- law staleness -------------------------------------------------------------------
