@@ -10,7 +10,9 @@
 
 use serde_json::Value;
 use std::path::{Path, PathBuf};
-use std::process::Command;
+
+mod common;
+use common::{run, scratch, Run};
 
 /// A small valid model: one reservoir, two junctions, one loop.
 const BASE: &str = r#"title = "cli base model"
@@ -70,32 +72,6 @@ const BASE_JSON: &str = r#"{
   ]
 }
 "#;
-
-/// What one run of the program gave.
-struct Run {
-    code: Option<i32>,
-    stdout: String,
-    stderr: String,
-}
-
-/// A fresh, empty directory for one test, under Cargo's scratch directory for integration tests.
-fn scratch(test: &str) -> PathBuf {
-    let dir = Path::new(env!("CARGO_TARGET_TMPDIR")).join("cli_errors").join(test);
-    let _ = std::fs::remove_dir_all(&dir);
-    std::fs::create_dir_all(&dir).expect("create scratch directory");
-    dir
-}
-
-fn run(args: &[&std::ffi::OsStr]) -> Run {
-    let out = Command::new(env!("CARGO_BIN_EXE_ringmain")).args(args).output().expect("start ringmain");
-    let run = Run {
-        code: out.status.code(),
-        stdout: String::from_utf8_lossy(&out.stdout).into_owned(),
-        stderr: String::from_utf8_lossy(&out.stderr).into_owned(),
-    };
-    assert!(!run.stderr.contains("panicked") && !run.stdout.contains("panicked"), "ringmain panicked:\n{}", run.stderr);
-    run
-}
 
 /// Writes `contents` as `file` in the test's scratch directory and runs `ringmain solve` on it.
 fn solve_file(test: &str, file: &str, contents: &[u8], extra: &[&str]) -> (PathBuf, Run) {
