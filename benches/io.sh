@@ -6,6 +6,8 @@
 #   cargo build --release
 #   benches/io.sh [WORK_DIR]          # 1e4, 1e5; add RINGMAIN_BENCH_MILLION=1 for 1e6
 #   PEER_PYTHON=/path/to/python benches/io.sh   # a Python with numpy, scipy, scikit-sparse
+#   BASE_BIN=/path/to/older/ringmain benches/io.sh   # an earlier build, measured in the same run
+#   SERIES=0 benches/io.sh            # without the time series part
 #
 # Each figure is the least wall time of REPEAT runs (default 3) and the peak resident memory of
 # that run (GNU time's "maximum resident set size"). Nothing here is a test: CI does not run it.
@@ -15,6 +17,7 @@ BIN="$PWD/target/release/ringmain"
 WORK="${1:-${TMPDIR:-/tmp}/ringmain-io-bench}"
 REPEAT="${REPEAT:-3}"
 PEER_PYTHON="${PEER_PYTHON:-}"
+BASE_BIN="${BASE_BIN:-}"
 mkdir -p "$WORK"
 [ -x "$BIN" ] || { echo "build first: cargo build --release" >&2; exit 1; }
 [ -x /usr/bin/time ] || { echo "needs GNU time (/usr/bin/time)" >&2; exit 1; }
@@ -62,6 +65,13 @@ for n in $sizes; do
        "writing: $(phase 'writing the results' "$BIN" solve "$json" --format json --output "$WORK/r$n.json") ms"
   measure "solve $n TOML -> JSON file (whole process)" "$BIN" solve "$toml" --format json --output "$WORK/r$n.json"
   echo "  reading TOML: $(phase 'reading the model' "$BIN" solve "$toml" --format json --output "$WORK/r$n.json") ms"
+  if [ -n "$BASE_BIN" ]; then
+    measure "before: solve $n JSON -> JSON file" "$BASE_BIN" solve "$json" --format json --output "$WORK/b$n.json"
+    echo "  before, reading JSON: $(phase 'reading the model' "$BASE_BIN" solve "$json" --format json --output "$WORK/b$n.json") ms;" \
+         "writing: $(phase 'writing the results' "$BASE_BIN" solve "$json" --format json --output "$WORK/b$n.json") ms"
+    measure "before: solve $n TOML -> JSON file" "$BASE_BIN" solve "$toml" --format json --output "$WORK/b$n.json"
+    echo "  before, reading TOML: $(phase 'reading the model' "$BASE_BIN" solve "$toml" --format json --output "$WORK/b$n.json") ms"
+  fi
   measure "solve $n JSON -> Parquet directory" "$BIN" solve "$json" --format parquet --output "$WORK/p$n"
   echo "  writing Parquet: $(phase 'writing the results' "$BIN" solve "$json" --format parquet --output "$WORK/p$n") ms;" \
        "results: JSON $(du -k "$WORK/r$n.json" | cut -f1) kB, Parquet $(du -sk "$WORK/p$n" | cut -f1) kB"
@@ -70,6 +80,7 @@ for n in $sizes; do
   fi
 done
 
+[ "${SERIES:-1}" = 0 ] && exit 0
 # Time series: the 1e4 network over 7 days (and 30 in Parquet), hourly pattern and reports.
 base="$WORK/g10000.json"
 for days in 7 30; do

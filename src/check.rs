@@ -22,14 +22,8 @@ use std::process::ExitCode;
 use std::sync::atomic::{AtomicU64, Ordering};
 use std::time::Instant;
 
-/// Exit codes of `check` (documented in `--help` and docs/check.md).
-pub const EXIT_FAILED: u8 = 1;
-/// Invalid model, criteria file or arguments.
-pub const EXIT_INVALID: u8 = 2;
-/// A scenario did not solve.
-pub const EXIT_NOT_CONVERGED: u8 = 3;
-/// A report could not be written.
-pub const EXIT_WRITE: u8 = 4;
+/// Exit codes of `check` (documented in `--help` and docs/check.md): the program's one set.
+pub use crate::exit::{EXIT_FAILED, EXIT_INVALID, EXIT_NOT_CONVERGED, EXIT_WRITE};
 
 /// What `check` was asked to do.
 pub struct Args {
@@ -101,26 +95,37 @@ pub fn read_source(path: &Path) -> Result<(SourceText, Vec<u8>), ModelError> {
     Ok((SourceText { name, path: path.to_owned(), text: None, format }, bytes))
 }
 
-/// JSON model files larger than this are read straight from the file instead of as one text.
+/// JSON model files larger than this that the fast reader gives up on are read by serde_json
+/// straight from the file instead of as one text.
 const STREAM_ABOVE_BYTES: u64 = 64 << 20;
 
-/// Reads a model file. A large JSON file is first read in one pass straight from the file,
-/// without holding its text (a network of a million junctions takes some 300 MB of JSON); any
-/// other file, or a JSON file that reader gives up on (an error, or keys in an order it cannot
-/// take in one pass), is read as one text, so that every error comes with its position. (Parsing
-/// a text in memory is about twice as fast as parsing from a file, so smaller files are read so.)
+/// Reads a model file. A JSON file is first read in one pass straight from the file, a chunk at
+/// a time, by the fast reader of `ringmain_core::model::scan` (a network of a million junctions
+/// takes some 300 MB of JSON, never held whole); any other file, or a JSON file that reader gives
+/// up on (an error, an escape, keys in an order it cannot take in one pass), is read as one text,
+/// so that every error comes with its position.
 pub fn read_model(path: &Path) -> Result<(ringmain_core::Model, SourceText), (ModelError, Option<SourceText>)> {
     let name = path.display().to_string();
     let limit = MAX_INPUT.load(Ordering::Relaxed);
-    let large = std::fs::metadata(path).is_ok_and(|m| m.is_file() && m.len() > STREAM_ABOVE_BYTES && m.len() <= limit);
-    if large && Format::from_path(path) == Some(Format::Json) {
-        // First line by line (the layout ringmain writes: each line parsed from memory), then
-        // in one pass from the file (any layout, keys in reading order).
-        let lines = std::fs::File::open(path)
-            .ok()
-            .and_then(|f| ringmain_core::model::file::read_json_lines(std::io::BufReader::with_capacity(1 << 20, f)));
-        let model =
-            lines.or_else(|| std::fs::File::open(path).ok().and_then(ringmain_core::model::file::read_json_stream));
+    let file = std::fs::metadata(path).is_ok_and(|m| m.is_file() && m.len() <= limit);
+    if file && Format::from_path(path) == Some(Format::Toml) {
+        // TOML likewise: the `toml` crate builds the whole document first (some ten times the
+        // file's size in memory), so only what the fast reader gives up on goes that way.
+        let model = std::fs::File::open(path).ok().and_then(|f| ringmain_core::model::scan::toml_from_reader(f, limit));
+        if let Some(model) = model {
+            return Ok((model, SourceText { name, path: path.to_owned(), text: None, format: Format::Toml }));
+        }
+    }
+    if file && Format::from_path(path) == Some(Format::Json) {
+        // In one pass straight from the file, a chunk at a time (the model and one chunk in
+        // memory); anything that reader is not sure of is read as one text below.
+        let model = std::fs::File::open(path).ok().and_then(|f| ringmain_core::model::scan::json_from_reader(f, limit));
+        // A large file it gave up on (an escape in a string, say): serde_json's one-pass reader
+        // from the file, which takes any JSON but is several times slower.
+        let large = std::fs::metadata(path).is_ok_and(|m| m.len() > STREAM_ABOVE_BYTES);
+        let model = model.or_else(|| {
+            large.then(|| std::fs::File::open(path).ok().and_then(ringmain_core::model::file::read_json_stream))?
+        });
         if let Some(model) = model {
             return Ok((model, SourceText { name, path: path.to_owned(), text: None, format: Format::Json }));
         }

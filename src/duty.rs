@@ -8,7 +8,7 @@ use ringmain_core::model::PumpDrive;
 use ringmain_core::physics::fittings::{
     crane_turbulent_friction, method_source, FittingKind, FittingsMethod, GATE_VALVE_CURVE,
 };
-use ringmain_core::units::HORSEPOWER;
+use ringmain_core::units::{Converter, Quantity};
 use ringmain_core::Model;
 use serde_json::{json, Value};
 use std::fmt::Write as _;
@@ -39,8 +39,8 @@ fn invalid(message: impl std::fmt::Display) -> ExitCode {
 
 /// Runs `ringmain duty`.
 pub fn run(args: Args) -> ExitCode {
-    if args.format == crate::OutputFormat::Geojson {
-        return invalid("--format geojson applies to solve and simulate (results on a map); use table, json or csv");
+    if let Some(refusal) = crate::format_refusal(args.format) {
+        return invalid(refusal);
     }
     let tank_levels = match args.tank_levels.replace(' ', "").as_str() {
         "current" => TankLevels::Current,
@@ -95,9 +95,9 @@ pub fn run(args: Args) -> ExitCode {
             return ExitCode::from(crate::EXIT_NOT_CONVERGED);
         }
     };
-    let view = View { model: &model, analysis: &analysis, flows: &flows_user };
+    let view = View { model: &model, analysis: &analysis, flows: &flows_user, units: model.converter() };
     if let Some(plot) = &args.plot {
-        if let Err(e) = write_atomically(plot, &view.svg()) {
+        if let Err(e) = crate::output::write_text(plot, &view.svg()) {
             eprintln!("error: cannot write the chart to {}: {e}", plot.display());
             return ExitCode::from(crate::EXIT_WRITE);
         }
@@ -119,17 +119,14 @@ fn same_file(a: &Path, b: &Path) -> bool {
     crate::output::same_file(a, b)
 }
 
-/// Writes `text` whole or not at all (see [`crate::output::write_file`]).
-fn write_atomically(path: &Path, text: &str) -> std::io::Result<()> {
-    crate::output::write_file(path, |out| out.write_all(text.as_bytes()))
-}
-
 /// An analysis in the model's units.
 struct View<'a> {
     model: &'a Model,
     analysis: &'a DutyAnalysis,
     /// The system curve's flows in the model's unit, as given or made (no round trip via SI).
     flows: &'a [f64],
+    /// The converter to the model's units.
+    units: Converter,
 }
 
 impl View<'_> {
@@ -141,24 +138,16 @@ impl View<'_> {
         }
     }
     fn q(&self, v: f64) -> f64 {
-        self.model.units.flow.from_si(v)
+        self.units.from_si(Quantity::Flow, v)
     }
     fn h(&self, v: f64) -> f64 {
-        self.model.units.length.from_si(v)
+        self.units.from_si(Quantity::Length, v)
     }
     fn power(&self, watts: f64) -> f64 {
-        if self.model.units.is_us_customary() {
-            watts / HORSEPOWER
-        } else {
-            watts / 1e3
-        }
+        self.units.from_si(Quantity::Power, watts)
     }
     fn power_label(&self) -> &'static str {
-        if self.model.units.is_us_customary() {
-            "hp"
-        } else {
-            "kW"
-        }
+        self.units.label(Quantity::Power)
     }
     fn pump_id(&self) -> &str {
         &self.model.links()[self.analysis.pump].id
@@ -623,8 +612,8 @@ fn render_xy(title: &str, x_label: &str, x_max: f64, panels: &[XyPanel]) -> Stri
 /// Runs `ringmain fittings`: the kinds, their parameters, their values under each method and
 /// the sources.
 pub fn list_fittings(format: crate::OutputFormat) -> ExitCode {
-    if format == crate::OutputFormat::Geojson {
-        return invalid("--format geojson applies to solve and simulate (results on a map); use table, json or csv");
+    if let Some(refusal) = crate::format_refusal(format) {
+        return invalid(refusal);
     }
     let text = match format {
         crate::OutputFormat::Json => {

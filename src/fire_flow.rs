@@ -4,10 +4,10 @@
 
 use crate::{EXIT_INVALID, EXIT_NOT_CONVERGED, EXIT_WRITE};
 use ringmain_core::analysis::fire_flow::{fire_flows, FireFlow, FireFlowOptions};
-use ringmain_core::units::{suggest, PressureUnit};
+use ringmain_core::units::did_you_mean;
+use ringmain_core::units::{Converter, PressureUnit, Quantity};
 use ringmain_core::{Model, NodeKind, SolveError};
 use serde_json::json;
-use std::io::Write;
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
@@ -39,9 +39,7 @@ fn parse_pressure(text: &str, model: &Model) -> Result<f64, String> {
     let unit = match unit.trim() {
         "" => model.units.pressure,
         u => PressureUnit::parse(u).ok_or_else(|| {
-            let hint = suggest(u, PressureUnit::ALL.iter().map(|p| p.label()))
-                .map(|s| format!(" (did you mean \"{s}\"?)"))
-                .unwrap_or_default();
+            let hint = did_you_mean(u, PressureUnit::ALL.iter().map(|p| p.label()), '"');
             format!(
                 "--residual \"{text}\": unknown pressure unit \"{u}\"{hint}; expected one of {}",
                 PressureUnit::choices()
@@ -56,9 +54,7 @@ fn hydrants(args: &Args, model: &Model) -> Result<Vec<usize>, String> {
     let mut chosen = vec![false; model.nodes().len()];
     for id in &args.at {
         let Some(i) = model.node_index(id) else {
-            let hint = suggest(id, model.nodes().iter().map(|n| n.id.as_str()))
-                .map(|s| format!(" (did you mean '{s}'?)"))
-                .unwrap_or_default();
+            let hint = did_you_mean(id, model.nodes().iter().map(|n| n.id.as_str()), '\'');
             return Err(format!("--at '{id}': no node has this id{hint}"));
         };
         if !matches!(model.nodes()[i].kind, NodeKind::Junction { .. }) {
@@ -136,16 +132,13 @@ pub fn run(args: Args) -> ExitCode {
             return ExitCode::from(EXIT_NOT_CONVERGED);
         }
     };
-    let view = View { model: &model, density: model.options.water_properties().density };
+    let view = View { model: &model, units: model.converter() };
     let text = match args.format {
         crate::OutputFormat::Json => view.json(&results, residual, args.demand_factor),
         crate::OutputFormat::Csv => view.csv(&results),
         crate::OutputFormat::Table => view.table(&results, residual, args.demand_factor),
-        crate::OutputFormat::Geojson => {
-            return invalid("--format geojson applies to solve and simulate (results on a map)".into())
-        }
-        crate::OutputFormat::Parquet => {
-            return invalid("--format parquet applies to solve and simulate; use table, json or csv".into())
+        crate::OutputFormat::Geojson | crate::OutputFormat::Parquet => {
+            return invalid(crate::format_refusal(args.format).unwrap_or_default().into())
         }
     };
     match &args.output {
@@ -157,16 +150,9 @@ pub fn run(args: Args) -> ExitCode {
 /// Writes `text` to a new file beside `path` and renames it into place: a failed run leaves no
 /// half-written file.
 fn write_whole(path: &Path, text: &str) -> ExitCode {
-    let mut partial = path.as_os_str().to_owned();
-    partial.push(".partial");
-    let partial = PathBuf::from(partial);
-    let written = std::fs::File::create(&partial)
-        .and_then(|mut f| f.write_all(text.as_bytes()).and_then(|()| f.sync_all()))
-        .and_then(|()| std::fs::rename(&partial, path));
-    match written {
+    match crate::output::write_text(path, text) {
         Ok(()) => ExitCode::SUCCESS,
         Err(e) => {
-            let _ = std::fs::remove_file(&partial);
             eprintln!("error: cannot write the results to {}: {e}", path.display());
             ExitCode::from(EXIT_WRITE)
         }
@@ -176,15 +162,15 @@ fn write_whole(path: &Path, text: &str) -> ExitCode {
 /// Results in the model's units.
 struct View<'a> {
     model: &'a Model,
-    density: f64,
+    units: Converter,
 }
 
 impl View<'_> {
     fn flow(&self, q: f64) -> f64 {
-        self.model.units.flow.from_si(q)
+        self.units.from_si(Quantity::Flow, q)
     }
     fn pressure(&self, head: f64) -> f64 {
-        self.model.units.pressure.from_head(head, self.density)
+        self.units.from_si(Quantity::Pressure, head)
     }
     fn id(&self, i: usize) -> &str {
         &self.model.nodes()[i].id

@@ -2,7 +2,6 @@
 
 use crate::{EXIT_INVALID, EXIT_WRITE};
 use ringmain_core::import::{self, ImportOptions, Source};
-use std::io::Write;
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
@@ -29,12 +28,6 @@ fn read(path: &Path) -> Result<Vec<u8>, ExitCode> {
 /// identity, so hard and symbolic links count (see [`crate::output::same_file`]).
 pub fn same_file(a: &Path, b: &Path) -> bool {
     crate::output::same_file(a, b)
-}
-
-/// Writes a file whole or not at all (see [`crate::output::write_file`]: a temporary file beside
-/// it, renamed at the end; devices such as /dev/null written in place).
-pub fn write_atomically(path: &Path, write: impl FnOnce(&mut dyn Write) -> std::io::Result<()>) -> std::io::Result<()> {
-    crate::output::write_file(path, write)
 }
 
 pub fn run(args: Args) -> ExitCode {
@@ -118,7 +111,7 @@ pub fn run(args: Args) -> ExitCode {
     drop(points_bytes);
     eprint!("{}", report.summary());
     if let Some(path) = &args.report {
-        let written = write_atomically(path, |out| {
+        let written = crate::output::write_file(path, |out| {
             serde_json::to_writer_pretty(&mut *out, &report)?;
             out.write_all(b"\n")
         });
@@ -128,13 +121,15 @@ pub fn run(args: Args) -> ExitCode {
         }
     }
     let code = match &args.output {
-        Some(path) => match write_atomically(path, |out| ringmain_core::model::write::write_to(&model, format, out)) {
-            Ok(()) => ExitCode::SUCCESS,
-            Err(e) => {
-                eprintln!("error: cannot write the model to {}: {e}", path.display());
-                ExitCode::from(EXIT_WRITE)
+        Some(path) => {
+            match crate::output::write_file(path, |out| ringmain_core::model::write::write_to(&model, format, out)) {
+                Ok(()) => ExitCode::SUCCESS,
+                Err(e) => {
+                    eprintln!("error: cannot write the model to {}: {e}", path.display());
+                    ExitCode::from(EXIT_WRITE)
+                }
             }
-        },
+        }
         None => crate::write_with("the model", None, |out| ringmain_core::model::write::write_to(&model, format, out)),
     };
     std::mem::forget(model);

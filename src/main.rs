@@ -8,6 +8,7 @@ mod check_report;
 mod columnar;
 mod csv;
 mod duty;
+mod exit;
 mod fire_flow;
 mod gis;
 mod import_cmd;
@@ -320,9 +321,18 @@ pub(crate) enum OutputFormat {
     Parquet,
 }
 
-pub(crate) const EXIT_INVALID: u8 = 2;
-pub(crate) const EXIT_NOT_CONVERGED: u8 = 3;
-pub(crate) const EXIT_WRITE: u8 = 4;
+pub(crate) use exit::{EXIT_INVALID, EXIT_NOT_CONVERGED, EXIT_WRITE};
+
+/// Why a command that writes tables, JSON and CSV only cannot write `format`, or `None` when it
+/// can: the one place these formats are refused (GeoJSON and Parquet are written by `solve` and
+/// `simulate`, whose results are per element).
+pub(crate) fn format_refusal(format: OutputFormat) -> Option<&'static str> {
+    match format {
+        OutputFormat::Table | OutputFormat::Json | OutputFormat::Csv => None,
+        OutputFormat::Geojson => Some("--format geojson applies to solve and simulate (results on a map)"),
+        OutputFormat::Parquet => Some("--format parquet applies to solve and simulate; use table, json or csv"),
+    }
+}
 
 fn main() -> ExitCode {
     let cli = Cli::parse();
@@ -369,20 +379,14 @@ fn main() -> ExitCode {
                 keep: offenders,
             })
         }
-        Command::WaterProperties { format: OutputFormat::Geojson, .. }
-        | Command::FrictionFactor { format: OutputFormat::Geojson, .. }
-        | Command::Duty { format: OutputFormat::Geojson, .. }
-        | Command::FireFlow { format: OutputFormat::Geojson, .. }
-        | Command::Fittings { format: OutputFormat::Geojson } => {
-            eprintln!("error: --format geojson applies to solve and simulate (results on a map)");
-            ExitCode::from(EXIT_INVALID)
-        }
-        Command::WaterProperties { format: OutputFormat::Parquet, .. }
-        | Command::FrictionFactor { format: OutputFormat::Parquet, .. }
-        | Command::Duty { format: OutputFormat::Parquet, .. }
-        | Command::FireFlow { format: OutputFormat::Parquet, .. }
-        | Command::Fittings { format: OutputFormat::Parquet } => {
-            eprintln!("error: --format parquet applies to solve and simulate; use table, json or csv");
+        Command::WaterProperties { format, .. }
+        | Command::FrictionFactor { format, .. }
+        | Command::Duty { format, .. }
+        | Command::FireFlow { format, .. }
+        | Command::Fittings { format }
+            if format_refusal(format).is_some() =>
+        {
+            eprintln!("error: {}", format_refusal(format).unwrap_or_default());
             ExitCode::from(EXIT_INVALID)
         }
         Command::Duty { model, pump, flows, speeds, motor_margin, npsh_margin, tank_levels, format, plot } => {
@@ -724,37 +728,6 @@ fn same_file(a: &Path, b: &Path) -> bool {
     }
 }
 
-/// A file written under a temporary name beside its final one and renamed when complete: a
-/// failed run leaves no half-written file (and never a truncated earlier one).
-struct PartFile {
-    temporary: PathBuf,
-    path: PathBuf,
-    done: bool,
-}
-
-impl PartFile {
-    fn create(path: &Path) -> std::io::Result<(PartFile, std::fs::File)> {
-        let name = path.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
-        let temporary = path.with_file_name(format!(".{name}.{}.part", std::process::id()));
-        let file = std::fs::File::create(&temporary)?;
-        Ok((PartFile { temporary, path: path.to_owned(), done: false }, file))
-    }
-
-    fn commit(mut self) -> std::io::Result<()> {
-        std::fs::rename(&self.temporary, &self.path)?;
-        self.done = true;
-        Ok(())
-    }
-}
-
-impl Drop for PartFile {
-    fn drop(&mut self) {
-        if !self.done {
-            let _ = std::fs::remove_file(&self.temporary);
-        }
-    }
-}
-
 /// Writes per-element results as GeoJSON (no partial file on failure).
 fn write_geojson(
     path: &Path,
@@ -770,7 +743,7 @@ fn write_geojson(
     };
     match output {
         None => write_with("the results", None, |out| results.write_geojson(out)),
-        Some(file) => match import_cmd::write_atomically(file, |out| results.write_geojson(out)) {
+        Some(file) => match output::write_file(file, |out| results.write_geojson(out)) {
             Ok(()) => ExitCode::SUCCESS,
             Err(e) => {
                 eprintln!("error: cannot write the results to {}: {e}", file.display());
@@ -820,7 +793,7 @@ fn draw_map(path: &Path, quantity: &str, at: Option<&str>, output: &Path) -> Exi
         );
         return ExitCode::from(EXIT_INVALID);
     }
-    let written = import_cmd::write_atomically(output, |out| {
+    let written = output::write_file(output, |out| {
         if svg {
             map::write_svg(&results, quantity, out)
         } else {
@@ -951,7 +924,7 @@ fn simulate(
     let sink: Option<Box<dyn Write>> = match (streamed, format, output) {
         (false, _, _) | (_, OutputFormat::Parquet, _) => None,
         (_, _, None) => Some(Box::new(BufWriter::with_capacity(1 << 16, std::io::stdout().lock()))),
-        (_, _, Some(out)) => match PartFile::create(out) {
+        (_, _, Some(out)) => match output::OutputFile::create(out) {
             Ok((p, file)) => {
                 part = Some(p);
                 files.push(out.to_owned());
@@ -1103,7 +1076,7 @@ fn simulate(
         }
     }
     let failed =
-        if report.checks.iter().any(|c| !c.passed()) { ExitCode::from(check::EXIT_FAILED) } else { ExitCode::SUCCESS };
+        if report.checks.iter().any(|c| !c.passed()) { ExitCode::from(exit::EXIT_FAILED) } else { ExitCode::SUCCESS };
     let finished = match writer.as_mut() {
         Some(w) => w.finish(&report),
         // The table (every other format has a writer, GeoJSON returned above).
@@ -1122,7 +1095,7 @@ fn simulate(
         }
     };
     drop(writer);
-    let committed = finished.and_then(|()| part.map_or(Ok(()), PartFile::commit));
+    let committed = finished.and_then(|()| part.map_or(Ok(()), output::OutputFile::commit));
     match committed {
         Ok(()) => {}
         Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => return ExitCode::SUCCESS,

@@ -78,33 +78,67 @@ impl Drop for Partial {
     }
 }
 
-/// Writes what `write` writes to `path`, all or nothing (see the module docs).
-pub fn write_file(path: &Path, write: impl FnOnce(&mut dyn Write) -> io::Result<()>) -> io::Result<()> {
-    const BUFFER: usize = 1 << 16;
-    let existing = std::fs::metadata(path).ok();
-    if existing.as_ref().is_some_and(|m| !m.is_file()) {
+/// An output file written as a run goes (a streamed series), all or nothing: [`OutputFile::create`]
+/// gives the file to write, under a temporary name beside its destination; [`OutputFile::commit`]
+/// makes it durable and renames it into place. Dropped without a commit (an error, a panic), it
+/// removes the temporary file and leaves the destination as it was. A destination that is not a
+/// regular file (a device, a named pipe) is written in place.
+pub struct OutputFile {
+    /// The temporary file, or `None` when the destination is written in place.
+    partial: Option<Partial>,
+    path: PathBuf,
+}
+
+impl OutputFile {
+    /// Opens the file to write for `path` (see the type's docs).
+    pub fn create(path: &Path) -> io::Result<(OutputFile, File)> {
+        let existing = std::fs::metadata(path).ok();
         if existing.as_ref().is_some_and(|m| m.is_dir()) {
             return Err(io::Error::other("it is a directory"));
         }
-        // A device or a pipe: written in place.
-        let mut out = BufWriter::with_capacity(BUFFER, OpenOptions::new().write(true).open(path)?);
-        write(&mut out)?;
-        return out.flush();
+        if existing.as_ref().is_some_and(|m| !m.is_file()) {
+            let file = OpenOptions::new().write(true).open(path)?;
+            return Ok((OutputFile { partial: None, path: path.to_owned() }, file));
+        }
+        let partial = Partial { path: temporary_path(path), done: false };
+        let file = OpenOptions::new().write(true).create_new(true).open(&partial.path)?;
+        if let Some(m) = &existing {
+            // A replaced file keeps its permissions.
+            let _ = file.set_permissions(m.permissions());
+        }
+        Ok((OutputFile { partial: Some(partial), path: path.to_owned() }, file))
     }
-    let mut partial = Partial { path: temporary_path(path), done: false };
-    let file = OpenOptions::new().write(true).create_new(true).open(&partial.path)?;
-    if let Some(m) = &existing {
-        // A replaced file keeps its permissions.
-        let _ = file.set_permissions(m.permissions());
+
+    /// Puts the written file in place: once everything written to it has been flushed (and its
+    /// handle closed), makes it durable and renames it over the destination.
+    pub fn commit(mut self) -> io::Result<()> {
+        if let Some(partial) = &mut self.partial {
+            File::open(&partial.path)?.sync_all()?;
+            std::fs::rename(&partial.path, &self.path)?;
+            partial.done = true;
+        }
+        Ok(())
     }
+}
+
+/// Writes what `write` writes to `path`, all or nothing (see the module docs): the one path
+/// every whole file of the program goes through.
+pub fn write_file(path: &Path, write: impl FnOnce(&mut dyn Write) -> io::Result<()>) -> io::Result<()> {
+    const BUFFER: usize = 1 << 16;
+    let (output, file) = OutputFile::create(path)?;
     let mut out = BufWriter::with_capacity(BUFFER, file);
     write(&mut out)?;
     let file: File = out.into_inner().map_err(|e| e.into_error())?;
-    file.sync_all()?;
+    if output.partial.is_some() {
+        file.sync_all()?;
+    }
     drop(file);
-    std::fs::rename(&partial.path, path)?;
-    partial.done = true;
-    Ok(())
+    output.commit()
+}
+
+/// Writes `text` to `path`, all or nothing.
+pub fn write_text(path: &Path, text: &str) -> io::Result<()> {
+    write_file(path, |out| out.write_all(text.as_bytes()))
 }
 
 #[cfg(test)]
@@ -124,6 +158,28 @@ mod tests {
             .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
             .filter(|n| n.ends_with(".partial"))
             .collect()
+    }
+
+    #[test]
+    fn streamed_file_is_put_in_place_only_when_committed() {
+        let dir = scratch("streamed");
+        let path = dir.join("series.csv");
+        std::fs::write(&path, "old").unwrap();
+        // Written, then abandoned (an error in the middle of a run): nothing changes.
+        let (output, mut file) = OutputFile::create(&path).unwrap();
+        file.write_all(b"half of a ser").unwrap();
+        drop(file);
+        drop(output);
+        assert_eq!(std::fs::read_to_string(&path).unwrap(), "old");
+        assert!(leftovers(&dir).is_empty(), "{:?}", leftovers(&dir));
+        // Written whole and committed: replaced.
+        let (output, mut file) = OutputFile::create(&path).unwrap();
+        file.write_all(b"new").unwrap();
+        drop(file);
+        output.commit().unwrap();
+        assert_eq!(std::fs::read_to_string(&path).unwrap(), "new");
+        assert!(leftovers(&dir).is_empty());
+        assert!(OutputFile::create(&dir).is_err(), "a directory is not an output file");
     }
 
     #[test]

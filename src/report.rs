@@ -5,20 +5,25 @@
 use crate::columnar::{Column, Kind, Table};
 use crate::csv;
 use ringmain_core::model::write::write_element_per_line;
-use ringmain_core::model::{LinkKind, Valve, ValveType};
+use ringmain_core::model::{LinkKind, Valve};
 use ringmain_core::physics::WaterProperties;
 use ringmain_core::solve::links::{minor_losses, LinkLaw};
 use ringmain_core::solve::{PumpResult, Warning};
-use ringmain_core::units::HORSEPOWER;
+use ringmain_core::units::{Converter, Quantity};
 use ringmain_core::{Model, NodeKind, Solution};
 use serde::{Serialize, Serializer};
 use serde_json::{json, Value};
 use std::io::{self, Write};
 use std::path::{Path, PathBuf};
 
+/// How many junctions of largest shortfall the summaries list.
+pub const LARGEST_SHORTFALLS: usize = 10;
+
 /// The JSON report's top level (fields in alphabetical order, as the keys are written).
 #[derive(Serialize)]
 struct JsonReport<'r, 'a> {
+    /// Always true: a report is written for a solution only, and a solve that does not converge
+    /// is an error. The key stays for the readers of the format.
     converged: bool,
     iterations: u32,
     links: JsonLinks<'r, 'a>,
@@ -55,15 +60,22 @@ impl Serialize for JsonLinks<'_, '_> {
     }
 }
 
-/// One node of the JSON report; numbers that are not finite are written as null.
+/// One node of the JSON report; numbers that are not finite are written as null. `delivered`,
+/// `leakage` and `outlet` only for models whose outflows depend on pressure.
 #[derive(Serialize)]
 struct JsonNode<'a> {
     connected: bool,
     demand: f64,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    delivered: Option<f64>,
     elevation: f64,
     head: f64,
     id: &'a str,
     kind: &'static str,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    leakage: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    outlet: Option<f64>,
     pressure: f64,
 }
 
@@ -109,54 +121,39 @@ struct JsonLink<'a> {
 pub struct Report<'a> {
     model: &'a Model,
     solution: &'a Solution,
-    density: f64,
     water: WaterProperties,
+    /// The converter to the model's units.
+    units: Converter,
 }
 
 impl<'a> Report<'a> {
     pub fn new(model: &'a Model, solution: &'a Solution) -> Self {
         let water = model.options.water_properties();
-        Report { model, solution, density: water.density, water }
+        Report { model, solution, water, units: model.converter() }
     }
 
     fn len(&self, v: f64) -> f64 {
-        self.model.units.length.from_si(v)
+        self.units.from_si(Quantity::Length, v)
     }
     fn flow(&self, v: f64) -> f64 {
-        self.model.units.flow.from_si(v)
+        self.units.from_si(Quantity::Flow, v)
     }
     fn pressure(&self, head: f64) -> f64 {
-        self.model.units.pressure.from_head(head, self.density)
+        self.units.from_si(Quantity::Pressure, head)
     }
     /// Power in kW (SI models) or hp (US-customary models).
     fn power(&self, watts: f64) -> f64 {
-        if self.model.units.is_us_customary() {
-            watts / HORSEPOWER
-        } else {
-            watts / 1e3
-        }
+        self.units.from_si(Quantity::Power, watts)
     }
     fn power_label(&self) -> &'static str {
-        if self.model.units.is_us_customary() {
-            "hp"
-        } else {
-            "kW"
-        }
+        self.units.label(Quantity::Power)
     }
     /// A valve's setting in the model's units.
     fn setting(&self, v: &Valve) -> f64 {
-        match v.valve {
-            ValveType::PressureReducing | ValveType::PressureSustaining => self.pressure(v.setting),
-            ValveType::FlowControl => self.flow(v.setting),
-            ValveType::Throttle => v.setting,
-        }
+        self.units.from_si(v.valve.setting_quantity(), v.setting)
     }
     fn setting_unit(&self, v: &Valve) -> String {
-        match v.valve {
-            ValveType::PressureReducing | ValveType::PressureSustaining => self.model.units.pressure.label().into(),
-            ValveType::FlowControl => self.model.units.flow.label().into(),
-            ValveType::Throttle => "K".into(),
-        }
+        self.units.label(v.valve.setting_quantity()).into()
     }
 
     /// Supply of every fixed-head node (positive: into the network), in flow units.
@@ -178,6 +175,40 @@ impl<'a> Report<'a> {
             .collect()
     }
 
+    /// Whether the model's outflows depend on pressure (then delivered, leakage and outlet flows
+    /// are reported).
+    fn pressure_dependent(&self) -> bool {
+        self.model.outflow.is_active()
+    }
+
+    /// The JSON summary's entries of a pressure-dependent solve.
+    fn outflow_json(&self, summary: &mut serde_json::Map<String, Value>) {
+        if !self.pressure_dependent() {
+            return;
+        }
+        let o = self.solution.outflow_summary(LARGEST_SHORTFALLS);
+        let m = self.model;
+        summary.insert("demand_asked".into(), json!(self.flow(o.asked)));
+        summary.insert("demand_delivered".into(), json!(self.flow(o.delivered)));
+        summary.insert("shortfall".into(), json!(self.flow(o.shortfall)));
+        summary.insert("shortfall_percent".into(), json!(o.shortfall_percent()));
+        summary.insert("leakage_total".into(), json!(self.flow(o.leakage)));
+        summary.insert("outlet_total".into(), json!(self.flow(o.outlet)));
+        let largest: Vec<Value> = o
+            .largest
+            .iter()
+            .map(|&(i, lack)| {
+                json!({
+                    "id": m.nodes()[i].id,
+                    "demand": self.flow(self.solution.demand[i]),
+                    "delivered": self.flow(self.solution.delivered(i)),
+                    "shortfall": self.flow(lack),
+                })
+            })
+            .collect();
+        summary.insert("largest_shortfalls".into(), Value::Array(largest));
+    }
+
     fn total_demand(&self) -> f64 {
         self.flow(self.model.nodes().iter().map(|n| n.demand()).sum())
     }
@@ -186,13 +217,18 @@ impl<'a> Report<'a> {
         let m = self.model;
         let s = self.solution;
         let n = &m.nodes()[i];
+        let outflows = self.pressure_dependent();
+        let value = |v: f64| outflows.then(|| self.flow(v));
         JsonNode {
             connected: s.connected[i],
             demand: self.flow(s.demand[i]),
+            delivered: value(s.delivered(i)),
             elevation: self.len(n.elevation),
             head: self.len(s.head[i]),
             id: &n.id,
             kind: n.kind.label(),
+            leakage: value(s.leakage(i)),
+            outlet: value(s.outlet(i)),
             pressure: self.pressure(s.pressure[i]),
         }
     }
@@ -267,18 +303,21 @@ impl<'a> Report<'a> {
             .map(|(i, q)| json!({"id": m.nodes()[i].id, "kind": m.nodes()[i].kind.label(), "supply": q}))
             .collect();
         let report = JsonReport {
-            converged: s.converged,
+            converged: true,
             iterations: s.iterations,
             links: JsonLinks(self),
             nodes: JsonNodes(self),
             status_changes: s.status_changes,
             status_ending: s.ending.describe(),
-            summary: json!({
-                "max_mass_residual": self.flow(s.max_mass_residual),
-                "max_energy_residual": self.len(s.max_energy_residual),
-                "total_demand": self.total_demand(),
-                "sources": sources,
-            }),
+            summary: {
+                let mut summary = serde_json::Map::new();
+                summary.insert("max_mass_residual".into(), json!(self.flow(s.max_mass_residual)));
+                summary.insert("max_energy_residual".into(), json!(self.len(s.max_energy_residual)));
+                summary.insert("total_demand".into(), json!(self.total_demand()));
+                summary.insert("sources".into(), Value::Array(sources));
+                self.outflow_json(&mut summary);
+                Value::Object(summary)
+            },
             title: m.title.as_deref(),
             units: json!({
                 "length": u.length.label(), "flow": u.flow.label(), "pressure": u.pressure.label(),
@@ -321,7 +360,15 @@ impl<'a> Report<'a> {
                     c("pressure", F64, p),
                     c("demand", F64, q),
                     c("connected", Bool, ""),
-                ],
+                ]
+                .into_iter()
+                .chain(
+                    self.pressure_dependent()
+                        .then(|| [c("delivered", F64, q), c("leakage", F64, q), c("outlet", F64, q)])
+                        .into_iter()
+                        .flatten(),
+                )
+                .collect(),
             },
             TableSpec {
                 name: "links",
@@ -380,8 +427,9 @@ impl<'a> Report<'a> {
         let txt = |v: &'a str| Text(Some(v));
         match t {
             0 => {
+                let outflows = self.pressure_dependent();
                 for (i, n) in m.nodes().iter().enumerate() {
-                    row(&[
+                    let cells = [
                         txt(&n.id),
                         txt(n.kind.label()),
                         Num(self.len(n.elevation)),
@@ -389,7 +437,11 @@ impl<'a> Report<'a> {
                         Num(self.pressure(s.pressure[i])),
                         Num(self.flow(s.demand[i])),
                         Flag(s.connected[i]),
-                    ])?;
+                        Num(self.flow(s.delivered(i))),
+                        Num(self.flow(s.leakage(i))),
+                        Num(self.flow(s.outlet(i))),
+                    ];
+                    row(if outflows { &cells } else { &cells[..7] })?;
                 }
             }
             1 => {
@@ -445,7 +497,8 @@ impl<'a> Report<'a> {
                 let mut item = |what: &str, id: Option<&str>, value: f64, unit: &str| {
                     row(&[Text(Some(what)), Text(id), Num(value), Text(Some(unit))])
                 };
-                item("converged", None, if s.converged { 1.0 } else { 0.0 }, "")?;
+                // Always 1 (see `JsonReport::converged`).
+                item("converged", None, 1.0, "")?;
                 item("iterations", None, s.iterations.into(), "")?;
                 item("status_changes", None, s.status_changes.into(), "")?;
                 item("max_mass_residual", None, self.flow(s.max_mass_residual), qu)?;
@@ -456,6 +509,18 @@ impl<'a> Report<'a> {
                 }
                 if let Some(i) = self.lowest_pressure_node() {
                     item("lowest_pressure", Some(&m.nodes()[i].id), self.pressure(s.pressure[i]), pu)?;
+                }
+                if self.pressure_dependent() {
+                    let o = s.outflow_summary(LARGEST_SHORTFALLS);
+                    item("demand_asked", None, self.flow(o.asked), qu)?;
+                    item("demand_delivered", None, self.flow(o.delivered), qu)?;
+                    item("shortfall", None, self.flow(o.shortfall), qu)?;
+                    item("shortfall_percent", None, o.shortfall_percent(), "%")?;
+                    item("leakage_total", None, self.flow(o.leakage), qu)?;
+                    item("outlet_total", None, self.flow(o.outlet), qu)?;
+                    for &(i, lack) in &o.largest {
+                        item("largest_shortfall", Some(&m.nodes()[i].id), self.flow(lack), qu)?;
+                    }
                 }
             }
         }
@@ -610,8 +675,9 @@ impl<'a> Report<'a> {
         if let Some(t) = &m.title {
             writeln!(out, "{t}\n")?;
         }
+        let outflows = self.pressure_dependent();
         writeln!(out, "Nodes")?;
-        writeln!(
+        write!(
             out,
             "{:<idw$}  {:<9}  {:>10}  {:>10}  {:>10}  {:>10}",
             "id",
@@ -621,8 +687,18 @@ impl<'a> Report<'a> {
             format!("pres {}", u.pressure),
             format!("dem {}", u.flow)
         )?;
+        if outflows {
+            write!(
+                out,
+                "  {:>10}  {:>10}  {:>10}",
+                format!("got {}", u.flow),
+                format!("leak {}", u.flow),
+                format!("outl {}", u.flow)
+            )?;
+        }
+        writeln!(out)?;
         for (i, n) in m.nodes().iter().enumerate() {
-            writeln!(
+            write!(
                 out,
                 "{:<idw$}  {:<9}  {}  {}  {}  {}",
                 n.id,
@@ -632,6 +708,16 @@ impl<'a> Report<'a> {
                 num(self.pressure(s.pressure[i]), 10, 2),
                 num(self.flow(s.demand[i]), 10, 3)
             )?;
+            if outflows {
+                write!(
+                    out,
+                    "  {}  {}  {}",
+                    num(self.flow(s.delivered(i)), 10, 3),
+                    num(self.flow(s.leakage(i)), 10, 3),
+                    num(self.flow(s.outlet(i)), 10, 3)
+                )?;
+            }
+            writeln!(out)?;
         }
         writeln!(out, "\nLinks")?;
         writeln!(
@@ -732,6 +818,33 @@ impl<'a> Report<'a> {
         writeln!(out, "  largest mass residual     {:.3e} {}", self.flow(s.max_mass_residual), u.flow)?;
         writeln!(out, "  largest energy residual   {:.3e} {}", self.len(s.max_energy_residual), u.length)?;
         writeln!(out, "  total demand              {:.3} {}", self.total_demand(), u.flow)?;
+        if outflows {
+            let o = s.outflow_summary(LARGEST_SHORTFALLS);
+            writeln!(out, "  demand asked              {:.3} {}", self.flow(o.asked), u.flow)?;
+            writeln!(out, "  demand delivered          {:.3} {}", self.flow(o.delivered), u.flow)?;
+            writeln!(
+                out,
+                "  shortfall                 {:.3} {} ({:.2} % of the demand asked)",
+                self.flow(o.shortfall),
+                u.flow,
+                o.shortfall_percent()
+            )?;
+            writeln!(out, "  leakage                   {:.3} {}", self.flow(o.leakage), u.flow)?;
+            writeln!(out, "  outlets                   {:.3} {}", self.flow(o.outlet), u.flow)?;
+            if !o.largest.is_empty() {
+                writeln!(out, "  largest shortfalls")?;
+                for &(i, lack) in &o.largest {
+                    writeln!(
+                        out,
+                        "    {:<idw$}  {:.3} of {:.3} {} short",
+                        m.nodes()[i].id,
+                        self.flow(lack),
+                        self.flow(s.demand[i]),
+                        u.flow
+                    )?;
+                }
+            }
+        }
         for (i, q) in self.sources() {
             let n = &m.nodes()[i];
             let what = match (&n.kind, q >= 0.0) {

@@ -10,7 +10,8 @@ use ringmain_core::analysis::CheckResult;
 use ringmain_core::model::time::{format_clock, format_duration, DAY};
 use ringmain_core::quality::{Constituent, QualityRecord, QualityRun};
 use ringmain_core::simulate::{Run, Snapshot};
-use ringmain_core::{Model, NodeKind};
+use ringmain_core::units::{Converter, Quantity};
+use ringmain_core::{HeadLossLaw, Model, NodeKind};
 use serde::{Serialize, Serializer};
 use serde_json::{json, Value};
 use std::fmt::Write as _;
@@ -51,23 +52,27 @@ impl<'a> RunReport<'a> {
     }
 
     pub fn len(&self, v: f64) -> f64 {
-        self.model.units.length.from_si(v)
+        self.converter().from_si(Quantity::Length, v)
     }
     pub fn flow(&self, v: f64) -> f64 {
-        self.model.units.flow.from_si(v)
+        self.converter().from_si(Quantity::Flow, v)
     }
     pub fn pressure(&self, head: f64) -> f64 {
-        self.model.units.pressure.from_head(head, self.density)
+        self.converter().from_si(Quantity::Pressure, head)
     }
     /// Volume in the length unit cubed.
     pub fn volume(&self, v: f64) -> f64 {
-        v / self.model.units.length.to_si(1.0).powi(3)
+        self.converter().from_si(Quantity::Volume, v)
+    }
+    /// The converter to the model's units (with the density this report was made with).
+    fn converter(&self) -> Converter {
+        Converter::new(self.model.units, self.density, self.model.options.headloss == HeadLossLaw::HazenWilliams)
     }
     pub fn hours(&self) -> f64 {
         self.run.duration / 3600.0
     }
     pub fn volume_label(&self) -> String {
-        format!("{}3", self.model.units.length.label())
+        self.converter().label(Quantity::Volume).to_owned()
     }
     pub fn currency(&self) -> &str {
         self.model.time.energy.currency.as_deref().unwrap_or("cost units")
@@ -205,10 +210,19 @@ impl<'a> RunReport<'a> {
             self.volume(b.discrepancy()),
             b.relative_discrepancy()
         );
+        if b.leaked > 0.0 || b.outlets > 0.0 {
+            let _ = writeln!(
+                out,
+                "Also leaving the network ({v}): leakage {:.3}, outlets {:.3}: supplied = delivered + leakage + \
+                 outlets + change in storage + discrepancy",
+                self.volume(b.leaked),
+                self.volume(b.outlets)
+            );
+        }
         if b.unsupplied > 0.0 {
             let _ = writeln!(
                 out,
-                "Not delivered: {:.3} {v} of demand at junctions cut off from every source",
+                "Not delivered: {:.3} {v} of demand asked (junctions cut off from every source, or short of pressure)",
                 self.volume(b.unsupplied)
             );
         }
@@ -284,6 +298,7 @@ impl<'a> RunReport<'a> {
                     "supplied": self.volume(b.supplied), "delivered": self.volume(b.delivered),
                     "storage_change": self.volume(b.storage_change), "discrepancy": self.volume(b.discrepancy()),
                     "relative_discrepancy": b.relative_discrepancy(), "not_delivered": self.volume(b.unsupplied),
+                    "leaked": self.volume(b.leaked), "outlets": self.volume(b.outlets),
                 },
                 "statistics": {
                     "steps": r.statistics.steps, "rejected": r.statistics.rejected,
@@ -303,27 +318,27 @@ impl<'a> RunReport<'a> {
 #[derive(Clone, Copy)]
 pub struct Units<'a> {
     model: &'a Model,
-    density: f64,
+    units: Converter,
 }
 
 impl<'a> Units<'a> {
     pub fn new(model: &'a Model) -> Self {
-        Units { model, density: model.options.water_properties().density }
+        Units { model, units: model.converter() }
     }
     fn len(&self, v: f64) -> f64 {
-        self.model.units.length.from_si(v)
+        self.units.from_si(Quantity::Length, v)
     }
     fn flow(&self, v: f64) -> f64 {
-        self.model.units.flow.from_si(v)
+        self.units.from_si(Quantity::Flow, v)
     }
     fn pressure(&self, head: f64) -> f64 {
-        self.model.units.pressure.from_head(head, self.density)
+        self.units.from_si(Quantity::Pressure, head)
     }
     fn volume(&self, v: f64) -> f64 {
-        v / self.model.units.length.to_si(1.0).powi(3)
+        self.units.from_si(Quantity::Volume, v)
     }
     fn volume_label(&self) -> String {
-        format!("{}3", self.model.units.length.label())
+        self.units.label(Quantity::Volume).to_owned()
     }
     fn currency(&self) -> &'a str {
         self.model.time.energy.currency.as_deref().unwrap_or("cost units")

@@ -10,7 +10,9 @@
 
 use serde_json::Value;
 use std::path::{Path, PathBuf};
-use std::process::Command;
+
+mod common;
+use common::{run, scratch, Run};
 
 /// A small valid model: one reservoir, two junctions, one loop.
 const BASE: &str = r#"title = "cli base model"
@@ -70,32 +72,6 @@ const BASE_JSON: &str = r#"{
   ]
 }
 "#;
-
-/// What one run of the program gave.
-struct Run {
-    code: Option<i32>,
-    stdout: String,
-    stderr: String,
-}
-
-/// A fresh, empty directory for one test, under Cargo's scratch directory for integration tests.
-fn scratch(test: &str) -> PathBuf {
-    let dir = Path::new(env!("CARGO_TARGET_TMPDIR")).join("cli_errors").join(test);
-    let _ = std::fs::remove_dir_all(&dir);
-    std::fs::create_dir_all(&dir).expect("create scratch directory");
-    dir
-}
-
-fn run(args: &[&std::ffi::OsStr]) -> Run {
-    let out = Command::new(env!("CARGO_BIN_EXE_ringmain")).args(args).output().expect("start ringmain");
-    let run = Run {
-        code: out.status.code(),
-        stdout: String::from_utf8_lossy(&out.stdout).into_owned(),
-        stderr: String::from_utf8_lossy(&out.stderr).into_owned(),
-    };
-    assert!(!run.stderr.contains("panicked") && !run.stdout.contains("panicked"), "ringmain panicked:\n{}", run.stderr);
-    run
-}
 
 /// Writes `contents` as `file` in the test's scratch directory and runs `ringmain solve` on it.
 fn solve_file(test: &str, file: &str, contents: &[u8], extra: &[&str]) -> (PathBuf, Run) {
@@ -901,6 +877,34 @@ speed = {speed}
         let all = format!("{}{}", out.stderr, out.stdout);
         for e in expected {
             assert!(!all.contains(e), "{command}: a plausible model warned {e:?}:\n{all}");
+        }
+    }
+}
+
+/// Every command that writes tables, JSON and CSV only refuses GeoJSON and Parquet the same way
+/// (exit code 2, a message naming the format and the commands that write it) before doing any
+/// work: the refusal has one home, `format_refusal` in the program.
+#[test]
+fn formats_a_command_cannot_write_are_refused_alike_by_every_command() {
+    let model = concat!(env!("CARGO_MANIFEST_DIR"), "/examples/hillside.toml");
+    let commands: [&[&str]; 5] = [
+        &["water-properties", "--temperature", "20"],
+        &["friction-factor", "--reynolds", "1e5", "--relative-roughness", "1e-4"],
+        &["duty", "--pump", "no-such-pump", model],
+        &["fire-flow", "--residual", "20", model],
+        &["fittings"],
+    ];
+    for command in commands {
+        for (format, says) in [
+            ("geojson", "--format geojson applies to solve and simulate"),
+            ("parquet", "--format parquet applies to solve and simulate"),
+        ] {
+            let mut args: Vec<&std::ffi::OsStr> = command.iter().map(std::ffi::OsStr::new).collect();
+            args.extend([std::ffi::OsStr::new("--format"), std::ffi::OsStr::new(format)]);
+            let r = run(&args);
+            assert_eq!(r.code, Some(2), "{command:?} --format {format}: {}", r.stderr);
+            assert!(r.stderr.contains(says), "{command:?} --format {format}: {}", r.stderr);
+            assert!(r.stdout.is_empty(), "{command:?} --format {format} printed: {}", r.stdout);
         }
     }
 }

@@ -24,7 +24,16 @@ fn check(junctions: usize, seed: u64) {
         "{junctions} junctions, seed {seed}: {} iterations, pressures {min:.1} / {mean:.1} / {max:.1} m, residuals {:.1e} m3/s {:.1e} m",
         s.iterations, s.max_mass_residual, s.max_energy_residual
     );
-    assert!(s.converged);
+    // Converged by the solver's own rule (a solve that does not converge is an error): the last
+    // flow change within the flow tolerance, and the heads settled or every energy equation
+    // within the head tolerance.
+    assert!(s.last_flow_change <= m.options.flow_tolerance, "flow change {}", s.last_flow_change);
+    assert!(
+        s.last_head_change <= m.options.head_tolerance || s.max_energy_residual <= m.options.head_tolerance,
+        "head change {} m, energy residual {} m",
+        s.last_head_change,
+        s.max_energy_residual
+    );
     assert!(s.iterations <= 12, "{} iterations", s.iterations);
     assert!(min >= 20.0 && max <= 80.0, "pressures {min} .. {max} m");
     assert!(s.connected.iter().all(|&c| c));

@@ -10,15 +10,11 @@ use serde_json::{json, Value};
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output};
 
+mod common;
+use common::scratch;
+
 fn bin() -> &'static str {
     env!("CARGO_BIN_EXE_ringmain")
-}
-
-fn scratch(name: &str) -> PathBuf {
-    let dir = std::env::temp_dir().join(format!("ringmain-gis-{}-{name}", std::process::id()));
-    let _ = std::fs::remove_dir_all(&dir);
-    std::fs::create_dir_all(&dir).unwrap();
-    dir
 }
 
 /// A fields file of projected metres, Hazen–Williams, with every point key mapped.

@@ -11,6 +11,9 @@ use ringmain_core::quality::{self, ConstituentKind, QualityRun};
 use ringmain_core::{read_str, Format, Model, Run, SimulateOptions};
 use std::process::{Command, Output};
 
+mod common;
+use common::scratch;
+
 fn read(text: &str) -> Model {
     read_str(text, Format::Toml, "test.toml").unwrap_or_else(|e| panic!("{e}"))
 }
@@ -251,13 +254,6 @@ fn source_percentages_sum_to_100_once_the_start_water_is_gone() {
 
 fn ringmain(args: &[&str], dir: &std::path::Path) -> Output {
     Command::new(env!("CARGO_BIN_EXE_ringmain")).args(args).current_dir(dir).output().expect("start ringmain")
-}
-
-fn scratch(name: &str) -> std::path::PathBuf {
-    let dir = std::env::temp_dir().join(format!("ringmain-quality-{}-{name}", std::process::id()));
-    let _ = std::fs::remove_dir_all(&dir);
-    std::fs::create_dir_all(&dir).unwrap();
-    dir
 }
 
 /// Bad input of every new key: exit 2, the message names the file, the element and the key.

@@ -3,19 +3,15 @@
 use std::path::PathBuf;
 use std::process::{Command, Output};
 
+mod common;
+use common::scratch;
+
 fn demo() -> PathBuf {
     PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("examples/hillside-day.toml")
 }
 
 fn ringmain(args: &[&std::ffi::OsStr]) -> Output {
     Command::new(env!("CARGO_BIN_EXE_ringmain")).args(args).output().expect("start ringmain")
-}
-
-fn scratch(name: &str) -> PathBuf {
-    let dir = std::env::temp_dir().join(format!("ringmain-simulate-{}-{name}", std::process::id()));
-    let _ = std::fs::remove_dir_all(&dir);
-    std::fs::create_dir_all(&dir).unwrap();
-    dir
 }
 
 #[test]

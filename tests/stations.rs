@@ -11,7 +11,9 @@ use ringmain_core::solve::links::{minor_losses, LinkLaw};
 use ringmain_core::{read_str, Format, Model};
 use serde_json::Value;
 use std::path::{Path, PathBuf};
-use std::process::Command;
+
+mod common;
+use common::{run, scratch, Run};
 
 /// An invented lift station: a sump, a suction pipe, a pump, a rising main to a hilltop tank,
 /// and a branch with a valve.
@@ -87,30 +89,6 @@ diameter = 80
 setting = 2.0
 fittings = [{ kind = "tee-branch" }, { kind = "globe-valve" }]
 "#;
-
-struct Run {
-    code: Option<i32>,
-    stdout: String,
-    stderr: String,
-}
-
-fn scratch(test: &str) -> PathBuf {
-    let dir = Path::new(env!("CARGO_TARGET_TMPDIR")).join("stations").join(test);
-    let _ = std::fs::remove_dir_all(&dir);
-    std::fs::create_dir_all(&dir).expect("create scratch directory");
-    dir
-}
-
-fn run(args: &[&str]) -> Run {
-    let out = Command::new(env!("CARGO_BIN_EXE_ringmain")).args(args).output().expect("start ringmain");
-    let run = Run {
-        code: out.status.code(),
-        stdout: String::from_utf8_lossy(&out.stdout).into_owned(),
-        stderr: String::from_utf8_lossy(&out.stderr).into_owned(),
-    };
-    assert!(!run.stderr.contains("panicked"), "ringmain panicked:\n{}", run.stderr);
-    run
-}
 
 /// [`STATION`] with `old` replaced by `new` (which must occur exactly once), written to a file.
 fn station_with(test: &str, old: &str, new: &str) -> PathBuf {

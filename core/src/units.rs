@@ -12,6 +12,9 @@
 //! `p / (ρ g)`. A pressure given as "m" or "ft" is that head directly; a pressure in kPa, bar or
 //! psi is divided by `ρ g` with ρ the water density at the model's temperature. This is why the
 //! pressure conversion needs the density.
+//!
+//! [`Converter`] converts every [`Quantity`] between SI and one model's units, and labels it:
+//! the one path every writer, reader of model-unit values, the C library and the criteria use.
 
 use std::fmt;
 
@@ -254,6 +257,133 @@ impl UnitSystem {
     }
 }
 
+/// A quantity as a model's units express it: what a [`Converter`] converts and labels.
+///
+/// The match in each method is exhaustive, so a new quantity cannot be added without saying how
+/// it converts and what its label is.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Quantity {
+    /// Lengths, elevations, heads, levels and head losses: m; the length unit.
+    Length,
+    /// Pipe and valve diameters: m; the diameter unit.
+    Diameter,
+    /// Flows and demands: m³/s; the flow unit.
+    Flow,
+    /// Pressures: inside, pressure head in m of the model's water; the pressure unit.
+    Pressure,
+    /// Velocities: m/s; the length unit per second.
+    Velocity,
+    /// A pipe's roughness as its friction formula reads it: the Hazen–Williams coefficient C (no
+    /// unit), or the absolute roughness under Darcy–Weisbach (m; the roughness unit).
+    PipeRoughness,
+    /// Power: W; kW, or hp when lengths are in feet.
+    Power,
+    /// Volumes: m³; the length unit cubed.
+    Volume,
+    /// Head loss per length: m/m; per 1000 of the length unit (m/km, ft/kft).
+    Gradient,
+    /// Durations such as water age: s; hours.
+    Age,
+    /// A loss coefficient K (a throttle valve's setting): no unit, labelled "K".
+    LossCoefficient,
+    /// Numbers without a unit (speeds, counts, ratios): unchanged, no label.
+    Number,
+}
+
+/// Converts values between SI and one model's units: built once from the model's unit system,
+/// its water's density (pressures are carried as head of that water) and its friction formula
+/// (which decides what a pipe roughness is). Every writer, the reader of values given in the
+/// model's units, the C library and the criteria convert through it.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Converter {
+    /// The model's unit system.
+    pub units: UnitSystem,
+    /// Density of the model's water, kg/m³.
+    pub density: f64,
+    /// Whether pipe roughness is the Hazen–Williams coefficient C (else an absolute roughness).
+    pub roughness_is_coefficient: bool,
+}
+
+impl Converter {
+    /// A converter for `units`, water of `density` (kg/m³), and pipe roughness given as the
+    /// Hazen–Williams C (`roughness_is_coefficient`) or as an absolute roughness.
+    pub fn new(units: UnitSystem, density: f64, roughness_is_coefficient: bool) -> Self {
+        Converter { units, density, roughness_is_coefficient }
+    }
+
+    /// `value` of quantity `q` given in the model's units, in SI.
+    pub fn to_si(&self, q: Quantity, value: f64) -> f64 {
+        let u = &self.units;
+        match q {
+            Quantity::Length | Quantity::Velocity => u.length.to_si(value),
+            Quantity::Diameter => u.diameter.to_si(value),
+            Quantity::Flow => u.flow.to_si(value),
+            Quantity::Pressure => u.pressure.to_head(value, self.density),
+            Quantity::PipeRoughness if self.roughness_is_coefficient => value,
+            Quantity::PipeRoughness => u.roughness.to_si(value),
+            Quantity::Power if u.is_us_customary() => value * HORSEPOWER,
+            Quantity::Power => value * 1e3,
+            Quantity::Volume => value * u.length.to_si(1.0).powi(3),
+            Quantity::Gradient => value / 1000.0,
+            Quantity::Age => value * 3600.0,
+            Quantity::LossCoefficient | Quantity::Number => value,
+        }
+    }
+
+    /// `value` of quantity `q` in SI, in the model's units.
+    pub fn from_si(&self, q: Quantity, value: f64) -> f64 {
+        let u = &self.units;
+        match q {
+            Quantity::Length | Quantity::Velocity => u.length.from_si(value),
+            Quantity::Diameter => u.diameter.from_si(value),
+            Quantity::Flow => u.flow.from_si(value),
+            Quantity::Pressure => u.pressure.from_head(value, self.density),
+            Quantity::PipeRoughness if self.roughness_is_coefficient => value,
+            Quantity::PipeRoughness => u.roughness.from_si(value),
+            Quantity::Power if u.is_us_customary() => value / HORSEPOWER,
+            Quantity::Power => value / 1e3,
+            Quantity::Volume => value / u.length.to_si(1.0).powi(3),
+            Quantity::Gradient => value * 1000.0,
+            Quantity::Age => value / 3600.0,
+            Quantity::LossCoefficient | Quantity::Number => value,
+        }
+    }
+
+    /// The label of quantity `q` in the model's units ("" for a number without unit).
+    pub fn label(&self, q: Quantity) -> &'static str {
+        let u = &self.units;
+        match q {
+            Quantity::Length => u.length.label(),
+            Quantity::Velocity => u.velocity_label(),
+            Quantity::Diameter => u.diameter.label(),
+            Quantity::Flow => u.flow.label(),
+            Quantity::Pressure => u.pressure.label(),
+            Quantity::PipeRoughness if self.roughness_is_coefficient => "",
+            Quantity::PipeRoughness => u.roughness.label(),
+            Quantity::Power if u.is_us_customary() => "hp",
+            Quantity::Power => "kW",
+            Quantity::Volume => match u.length {
+                LengthUnit::Metre => "m3",
+                LengthUnit::Foot => "ft3",
+            },
+            Quantity::Gradient => match u.length {
+                LengthUnit::Metre => "m/km",
+                LengthUnit::Foot => "ft/kft",
+            },
+            Quantity::Age => "h",
+            Quantity::LossCoefficient => "K",
+            Quantity::Number => "",
+        }
+    }
+}
+
+/// The suggestion of an error message for a misspelt name: ` (did you mean 'x'?)` with the
+/// closest accepted name (see [`suggest`]), or an empty string when none is close. `quote` is
+/// the quotation mark the message uses around names (`'` or `"`).
+pub fn did_you_mean<'a>(given: &str, choices: impl IntoIterator<Item = &'a str>, quote: char) -> String {
+    suggest(given, choices).map(|s| format!(" (did you mean {quote}{s}{quote}?)")).unwrap_or_default()
+}
+
 /// Suggests the closest accepted name for a misspelt one (edit distance at most 2, ignoring case).
 pub fn suggest<'a>(given: &str, choices: impl IntoIterator<Item = &'a str>) -> Option<&'a str> {
     let given_low = given.to_ascii_lowercase();
@@ -284,6 +414,68 @@ pub(crate) fn edit_distance(a: &str, b: &str) -> usize {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// Every quantity, for the exhaustive checks below.
+    const QUANTITIES: [Quantity; 12] = [
+        Quantity::Length,
+        Quantity::Diameter,
+        Quantity::Flow,
+        Quantity::Pressure,
+        Quantity::Velocity,
+        Quantity::PipeRoughness,
+        Quantity::Power,
+        Quantity::Volume,
+        Quantity::Gradient,
+        Quantity::Age,
+        Quantity::LossCoefficient,
+        Quantity::Number,
+    ];
+
+    #[test]
+    fn converter_round_trips_every_quantity_and_uses_the_exact_factors() {
+        let us = UnitSystem {
+            length: LengthUnit::Foot,
+            diameter: DiameterUnit::Inch,
+            flow: FlowUnit::GallonPerMinute,
+            pressure: PressureUnit::Psi,
+            roughness: RoughnessUnit::Foot,
+        };
+        // 998.2 kg/m³: water at 20 °C (IAPWS-IF97, rounded; any density serves the round trip).
+        for c in [Converter::new(us, 998.2, false), Converter::new(UnitSystem::default(), 998.2, true)] {
+            for q in QUANTITIES {
+                for v in [0.0, 1.5, -3.25, 1234.5] {
+                    let back = c.from_si(q, c.to_si(q, v));
+                    assert!((back - v).abs() <= 1e-12 * v.abs().max(1.0), "{q:?}: {v} -> {back}");
+                }
+            }
+        }
+        let c = Converter::new(us, 998.2, false);
+        // 1 ft = 0.3048 m exactly (international foot); 1 in = 0.0254 m exactly; 1 hp
+        // (mechanical, 550 ft·lbf/s) = 745.69987158227022 W; 1 US gal = 3.785411784 L exactly.
+        assert_eq!(c.to_si(Quantity::Length, 1.0), 0.3048);
+        assert_eq!(c.to_si(Quantity::Diameter, 1.0), 0.0254);
+        assert!((c.to_si(Quantity::Power, 1.0) - 745.699_871_582_270_2).abs() < 1e-9);
+        assert!((c.to_si(Quantity::Volume, 1.0) - 0.3048_f64.powi(3)).abs() < 1e-15);
+        assert!((c.to_si(Quantity::Flow, 1.0) - 3.785_411_784e-3 / 60.0).abs() < 1e-15);
+        // Pressure as head of the model's water: 1 psi / (ρ g).
+        assert!((c.to_si(Quantity::Pressure, 1.0) - PSI / (998.2 * GRAVITY)).abs() < 1e-12);
+        assert_eq!(c.label(Quantity::Power), "hp");
+        assert_eq!(c.label(Quantity::Volume), "ft3");
+        assert_eq!(c.label(Quantity::Gradient), "ft/kft");
+        assert_eq!(c.label(Quantity::LossCoefficient), "K");
+        // Under Hazen–Williams a pipe's roughness is C, a number without unit.
+        let hw = Converter::new(us, 998.2, true);
+        assert_eq!(hw.to_si(Quantity::PipeRoughness, 120.0), 120.0);
+        assert_eq!(hw.label(Quantity::PipeRoughness), "");
+        assert_eq!(c.to_si(Quantity::PipeRoughness, 1.0), 0.3048);
+    }
+
+    #[test]
+    fn did_you_mean_quotes_the_closest_name_or_says_nothing() {
+        assert_eq!(did_you_mean("diamter", ["diameter", "length"], '\''), " (did you mean 'diameter'?)");
+        assert_eq!(did_you_mean("lenght", ["diameter", "length"], '"'), " (did you mean \"length\"?)");
+        assert_eq!(did_you_mean("colour", ["diameter", "length"], '\''), "");
+    }
 
     #[test]
     fn exact_flow_factors() {

@@ -689,7 +689,10 @@ typedef uint32_t ringmain_series;
  * Made by `ringmain_model_new`, `ringmain_model_load`, `ringmain_model_from_toml`,
  * `ringmain_model_from_json` or `ringmain_model_clone`; owned by the caller, who frees it with
  * `ringmain_model_free` (once). It keeps the analysis of its network between solves, so changing
- * values and solving again is cheaper than loading again. Results made by `ringmain_model_solve`
+ * values and solving again is cheaper than loading again: the values the setters change
+ * (demands, reservoir heads, tank levels, link statuses, pump speeds, valve settings, pipe
+ * roughness and diameters) are the solver's input, kept beside the network, so that setting one
+ * copies nothing and the next solve rebuilds only what that value feeds. Results made by `ringmain_model_solve`
  * are separate handles that stay valid after the model changes or is freed.
  *
  * Threads: a model is not internally synchronised. It may be moved to another thread, and any
@@ -1911,17 +1914,6 @@ RINGMAIN_MUST_USE
 ringmain_status ringmain_results_link_index(const ringmain_results *results,
                                             const char *id,
                                             size_t *out);
-
-/**
- * Writes whether the solve converged to `*out`. Always true: a solve that does not converge
- * returns `RINGMAIN_NOT_CONVERGED` and makes no results.
- *
- * # Safety
- * `results` is NULL or live results; `out` is NULL or writable.
- */
-RINGMAIN_MUST_USE
-ringmain_status ringmain_results_converged(const ringmain_results *results,
-                                           bool *out);
 
 /**
  * Writes the number of Newton iterations (linear solves) of the solve to `*out`.

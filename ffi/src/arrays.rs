@@ -7,109 +7,20 @@
 //! the pump speeds) is NaN: the getters write NaN there, and the setters skip NaN entries
 //! (so a NaN also leaves an element of the right kind unchanged) and refuse a number there with
 //! `RINGMAIN_WRONG_KIND`. A setter changes all the values or none: on any error the model is as
-//! it was.
+//! it was. The values set are the solver's input, kept beside the model (see the `inputs`
+//! module): one generic path serves every quantity, and setting them costs no copy of the model.
 //!
 //! Text arrays (ids, zones) are written back to back into one buffer, each NUL-terminated, in
 //! index order; the size output counts every byte, NULs included.
 
 use crate::boundary::{copy_out, handle, handle_mut, out_opt, slice, Failure, Out};
 use crate::codes::*;
-use crate::model::{ringmain_model, wrong_kind};
-use ringmain_core::model::LinkControl;
-use ringmain_core::{Element, Link, LinkKind, LinkStatus, ModelError, Node, NodeKind};
+use crate::convert::Quantity;
+use crate::inputs::{get_all, set_all, Input};
+use crate::model::ringmain_model;
+use ringmain_core::Node;
 use std::ffi::c_char;
 use std::ptr::NonNull;
-
-/// Checks that a value buffer has one entry per element.
-fn same_length(len: usize, count: usize, what: &str) -> Result<(), Failure> {
-    if len == count {
-        Ok(())
-    } else {
-        Err(Failure::new(
-            ringmain_status::RINGMAIN_OUT_OF_RANGE,
-            format!("argument 'len': the buffer holds {len} values; the model has {count} {what}s (one value each)"),
-        ))
-    }
-}
-
-/// Sets one value of every node from `values` (see the module documentation).
-///
-/// `set(node, value)` writes the value (converted to SI) into the node and returns the old value,
-/// or an error when the node is of the wrong kind.
-unsafe fn set_node_values(
-    model: *mut ringmain_model,
-    values: *const f64,
-    len: usize,
-    set: impl Fn(&mut Node, f64, &crate::convert::Units) -> Result<f64, Failure>,
-    restore: impl Fn(&mut Node, f64),
-) -> Result<(), Failure> {
-    // SAFETY: forwarded from the exported functions' contracts.
-    let m = unsafe { handle_mut(model, "model") }?;
-    // SAFETY: forwarded.
-    let values = unsafe { slice(values, len, "values") }?;
-    same_length(len, m.model.nodes().len(), "node")?;
-    let units = m.units();
-    let mut failure: Option<Failure> = None;
-    let result = m.model.change_nodes(
-        |i, node| {
-            let v = values[i];
-            if v.is_nan() {
-                return Ok(None);
-            }
-            match set(node, v, &units) {
-                Ok(old) => Ok(Some(old)),
-                Err(f) => {
-                    failure = Some(f);
-                    Err(ModelError::new(""))
-                }
-            }
-        },
-        restore,
-    );
-    match (result, failure) {
-        (Ok(()), _) => Ok(()),
-        (Err(_), Some(f)) => Err(f),
-        (Err(e), None) => Err(e.into()),
-    }
-}
-
-/// Sets one value of every link from `values`, as [`set_node_values`] does for nodes.
-unsafe fn set_link_values(
-    model: *mut ringmain_model,
-    values: *const f64,
-    len: usize,
-    set: impl Fn(&mut Link, f64, &crate::convert::Units) -> Result<f64, Failure>,
-    restore: impl Fn(&mut Link, f64),
-) -> Result<(), Failure> {
-    // SAFETY: forwarded from the exported functions' contracts.
-    let m = unsafe { handle_mut(model, "model") }?;
-    // SAFETY: forwarded.
-    let values = unsafe { slice(values, len, "values") }?;
-    same_length(len, m.model.links().len(), "link")?;
-    let units = m.units();
-    let mut failure: Option<Failure> = None;
-    let result = m.model.change_links(
-        |k, link| {
-            let v = values[k];
-            if v.is_nan() {
-                return Ok(None);
-            }
-            match set(link, v, &units) {
-                Ok(old) => Ok(Some(old)),
-                Err(f) => {
-                    failure = Some(f);
-                    Err(ModelError::new(""))
-                }
-            }
-        },
-        restore,
-    );
-    match (result, failure) {
-        (Ok(()), _) => Ok(()),
-        (Err(_), Some(f)) => Err(f),
-        (Err(e), None) => Err(e.into()),
-    }
-}
 
 /// Writes one value of every node (NaN where `get` gives none) into the caller's buffer.
 unsafe fn get_node_values(
@@ -133,31 +44,6 @@ unsafe fn get_node_values(
     unsafe { copy_out(&values, buf, len, count, what) }
 }
 
-/// Writes one value of every link (NaN where `get` gives none) into the caller's buffer.
-unsafe fn get_link_values(
-    model: *const ringmain_model,
-    buf: *mut f64,
-    len: usize,
-    count: *mut usize,
-    what: &str,
-    get: impl Fn(&Link, &crate::convert::Units) -> Option<f64>,
-) -> Result<(), Failure> {
-    // SAFETY: forwarded from the exported functions' contracts.
-    let (m, count) = unsafe { (handle(model, "model")?, out_opt(count, "count")?) };
-    let u = m.units();
-    let values: Vec<f64> = m.model.links().iter().map(|link| get(link, &u).unwrap_or(f64::NAN)).collect();
-    // SAFETY: forwarded.
-    unsafe { copy_out(&values, buf, len, count, what) }
-}
-
-fn node_element(n: &Node) -> Element {
-    Element::Node(n.id.to_string())
-}
-
-fn link_element(l: &Link) -> Element {
-    Element::Link(l.id.to_string())
-}
-
 /// Sets the demand of every junction from `values` (`len` = the number of nodes, flow unit; NaN
 /// for reservoirs and tanks, and for junctions to leave unchanged).
 ///
@@ -177,22 +63,7 @@ pub unsafe extern "C" fn ringmain_model_set_demands(
 ) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
-        unsafe {
-            set_node_values(
-                model,
-                values,
-                len,
-                |n, v, u| match &mut n.kind {
-                    NodeKind::Junction { demand } => Ok(std::mem::replace(demand, u.flow_in(v))),
-                    _ => Err(wrong_kind(node_element(n), "demand", "junctions", n.kind.label())),
-                },
-                |n, old| {
-                    if let NodeKind::Junction { demand } = &mut n.kind {
-                        *demand = old;
-                    }
-                },
-            )
-        }
+        unsafe { set_all(model, Input::Demand, values, len) }
     }
 }
 
@@ -213,12 +84,7 @@ pub unsafe extern "C" fn ringmain_model_get_demands(
 ) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
-        unsafe {
-            get_node_values(model, buf, len, count, "demands", |n, u| match n.kind {
-                NodeKind::Junction { demand } => Some(u.flow_out(demand)),
-                _ => None,
-            })
-        }
+        unsafe { get_all(model, Input::Demand, buf, len, count, "demands") }
     }
 }
 
@@ -237,22 +103,7 @@ pub unsafe extern "C" fn ringmain_model_set_reservoir_heads(
 ) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
-        unsafe {
-            set_node_values(
-                model,
-                values,
-                len,
-                |n, v, u| match &mut n.kind {
-                    NodeKind::Reservoir { head } => Ok(std::mem::replace(head, u.length_in(v))),
-                    _ => Err(wrong_kind(node_element(n), "head", "reservoirs", n.kind.label())),
-                },
-                |n, old| {
-                    if let NodeKind::Reservoir { head } = &mut n.kind {
-                        *head = old;
-                    }
-                },
-            )
-        }
+        unsafe { set_all(model, Input::ReservoirHead, values, len) }
     }
 }
 
@@ -271,12 +122,7 @@ pub unsafe extern "C" fn ringmain_model_get_reservoir_heads(
 ) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
-        unsafe {
-            get_node_values(model, buf, len, count, "reservoir heads", |n, u| match n.kind {
-                NodeKind::Reservoir { head } => Some(u.length_out(head)),
-                _ => None,
-            })
-        }
+        unsafe { get_all(model, Input::ReservoirHead, buf, len, count, "reservoir heads") }
     }
 }
 
@@ -295,22 +141,7 @@ pub unsafe extern "C" fn ringmain_model_set_pump_speeds(
 ) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
-        unsafe {
-            set_link_values(
-                model,
-                values,
-                len,
-                |l, v, _| match &mut l.kind {
-                    LinkKind::Pump(p) => Ok(std::mem::replace(&mut p.speed, v)),
-                    _ => Err(wrong_kind(link_element(l), "speed", "pumps", l.kind.label())),
-                },
-                |l, old| {
-                    if let LinkKind::Pump(p) = &mut l.kind {
-                        p.speed = old;
-                    }
-                },
-            )
-        }
+        unsafe { set_all(model, Input::PumpSpeed, values, len) }
     }
 }
 
@@ -329,9 +160,7 @@ pub unsafe extern "C" fn ringmain_model_get_pump_speeds(
 ) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
-        unsafe {
-            get_link_values(model, buf, len, count, "pump speeds", |l, _| l.as_pump().map(|p| p.speed))
-        }
+        unsafe { get_all(model, Input::PumpSpeed, buf, len, count, "pump speeds") }
     }
 }
 
@@ -350,22 +179,7 @@ pub unsafe extern "C" fn ringmain_model_set_valve_settings(
 ) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
-        unsafe {
-            set_link_values(
-                model,
-                values,
-                len,
-                |l, v, u| match &mut l.kind {
-                    LinkKind::Valve(valve) => Ok(std::mem::replace(&mut valve.setting, u.setting_in(valve.valve, v))),
-                    _ => Err(wrong_kind(link_element(l), "setting", "valves", l.kind.label())),
-                },
-                |l, old| {
-                    if let LinkKind::Valve(v) = &mut l.kind {
-                        v.setting = old;
-                    }
-                },
-            )
-        }
+        unsafe { set_all(model, Input::ValveSetting, values, len) }
     }
 }
 
@@ -384,11 +198,7 @@ pub unsafe extern "C" fn ringmain_model_get_valve_settings(
 ) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
-        unsafe {
-            get_link_values(model, buf, len, count, "valve settings", |l, u| {
-                l.as_valve().map(|v| u.setting_out(v.valve, v.setting))
-            })
-        }
+        unsafe { get_all(model, Input::ValveSetting, buf, len, count, "valve settings") }
     }
 }
 
@@ -407,22 +217,7 @@ pub unsafe extern "C" fn ringmain_model_set_pipe_roughnesses(
 ) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
-        unsafe {
-            set_link_values(
-                model,
-                values,
-                len,
-                |l, v, u| match &mut l.kind {
-                    LinkKind::Pipe(p) => Ok(std::mem::replace(&mut p.roughness, u.roughness_in(v))),
-                    _ => Err(wrong_kind(link_element(l), "roughness", "pipes", l.kind.label())),
-                },
-                |l, old| {
-                    if let LinkKind::Pipe(p) = &mut l.kind {
-                        p.roughness = old;
-                    }
-                },
-            )
-        }
+        unsafe { set_all(model, Input::PipeRoughness, values, len) }
     }
 }
 
@@ -441,11 +236,7 @@ pub unsafe extern "C" fn ringmain_model_get_pipe_roughnesses(
 ) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
-        unsafe {
-            get_link_values(model, buf, len, count, "pipe roughnesses", |l, u| {
-                l.as_pipe().map(|p| u.roughness_out(p.roughness))
-            })
-        }
+        unsafe { get_all(model, Input::PipeRoughness, buf, len, count, "pipe roughnesses") }
     }
 }
 
@@ -464,22 +255,7 @@ pub unsafe extern "C" fn ringmain_model_set_pipe_diameters(
 ) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
-        unsafe {
-            set_link_values(
-                model,
-                values,
-                len,
-                |l, v, u| match &mut l.kind {
-                    LinkKind::Pipe(p) => Ok(std::mem::replace(&mut p.diameter, u.diameter_in(v))),
-                    _ => Err(wrong_kind(link_element(l), "diameter", "pipes", l.kind.label())),
-                },
-                |l, old| {
-                    if let LinkKind::Pipe(p) = &mut l.kind {
-                        p.diameter = old;
-                    }
-                },
-            )
-        }
+        unsafe { set_all(model, Input::PipeDiameter, values, len) }
     }
 }
 
@@ -498,11 +274,7 @@ pub unsafe extern "C" fn ringmain_model_get_pipe_diameters(
 ) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
-        unsafe {
-            get_link_values(model, buf, len, count, "pipe diameters", |l, u| {
-                l.as_pipe().map(|p| u.diameter_out(p.diameter))
-            })
-        }
+        unsafe { get_all(model, Input::PipeDiameter, buf, len, count, "pipe diameters") }
     }
 }
 
@@ -526,42 +298,7 @@ pub unsafe extern "C" fn ringmain_model_set_link_statuses(
     ffi_boundary! {
         // SAFETY: the caller's contract above.
         let (m, statuses) = unsafe { (handle_mut(model, "model")?, slice(statuses, len, "statuses")?) };
-        same_length(len, m.model.links().len(), "link")?;
-        let mut controls = Vec::with_capacity(len);
-        for (k, &code) in statuses.iter().enumerate() {
-            let status = ringmain_link_status::from_code(code, "statuses").map_err(|f| {
-                Failure::new(f.status, format!("link '{}': {}", m.model.links()[k].id, f.message))
-            })?;
-            controls.push(match status {
-                ringmain_link_status::RINGMAIN_STATUS_OPEN => LinkControl::Open,
-                ringmain_link_status::RINGMAIN_STATUS_CLOSED => LinkControl::Closed,
-                ringmain_link_status::RINGMAIN_STATUS_AUTOMATIC => LinkControl::Automatic,
-            });
-        }
-        let mut failure: Option<Failure> = None;
-        let result = m.model.change_links(
-            |k, l| {
-                let old = (l.status, l.as_valve().map(|v| v.automatic));
-                match l.set_control(controls[k]) {
-                    Ok(()) => Ok(Some(old)),
-                    Err(e) => {
-                        failure = Some(Failure::invalid(e.to_string()));
-                        Err(e)
-                    }
-                }
-            },
-            |l, (status, automatic): (LinkStatus, Option<bool>)| {
-                l.status = status;
-                if let (LinkKind::Valve(v), Some(a)) = (&mut l.kind, automatic) {
-                    v.automatic = a;
-                }
-            },
-        );
-        match (result, failure) {
-            (Ok(()), _) => Ok(()),
-            (Err(_), Some(f)) => Err(f),
-            (Err(e), None) => Err(e.into()),
-        }
+        m.set_link_statuses(statuses)
     }
 }
 
@@ -583,18 +320,9 @@ pub unsafe extern "C" fn ringmain_model_get_link_statuses(
     ffi_boundary! {
         // SAFETY: the caller's contract above.
         let (m, count) = unsafe { (handle(model, "model")?, out_opt(count, "count")?) };
-        let codes: Vec<u32> = m.model.links().iter().map(|l| link_status_code(l) as u32).collect();
+        let codes: Vec<u32> = (0..m.model.links().len()).map(|k| m.link_status(k) as u32).collect();
         // SAFETY: the caller's contract above.
         unsafe { copy_out(&codes, buf, len, count, "link statuses") }
-    }
-}
-
-/// The status a link is set to, as its code.
-pub(crate) fn link_status_code(l: &Link) -> ringmain_link_status {
-    match (&l.kind, l.status) {
-        (_, LinkStatus::Closed) => ringmain_link_status::RINGMAIN_STATUS_CLOSED,
-        (LinkKind::Valve(v), _) if v.automatic => ringmain_link_status::RINGMAIN_STATUS_AUTOMATIC,
-        _ => ringmain_link_status::RINGMAIN_STATUS_OPEN,
     }
 }
 
@@ -767,7 +495,7 @@ pub unsafe extern "C" fn ringmain_model_elevations(
 ) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
-        unsafe { get_node_values(model, buf, len, count, "elevations", |n, u| Some(u.length_out(n.elevation))) }
+        unsafe { get_node_values(model, buf, len, count, "elevations", |n, u| Some(u.from_si(Quantity::Length, n.elevation))) }
     }
 }
 

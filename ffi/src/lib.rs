@@ -28,6 +28,7 @@ pub mod boundary;
 pub mod arrays;
 pub mod codes;
 pub mod convert;
+mod inputs;
 pub mod model;
 pub mod results;
 pub mod run;

@@ -5,13 +5,16 @@ use crate::boundary::{
     LIVE_RESULTS,
 };
 use crate::codes::*;
-use crate::convert::Units;
+use crate::convert::{Quantity, Units};
+use crate::inputs::{get_one, set_one, Input};
 use crate::results::ringmain_results;
 use ringmain_core::model::write::to_string;
-use ringmain_core::model::{HydraulicOptions, LinkControl, Pump, PumpDrive, Valve, WaterSpec};
+use ringmain_core::model::{HydraulicOptions, Pump, PumpDrive, Valve, WaterSpec};
 use ringmain_core::physics::pump::{Efficiency, HeadCurve};
 use ringmain_core::physics::WaterProperties;
-use ringmain_core::units::{suggest, UnitSystem};
+use ringmain_core::solve::Conditions;
+use ringmain_core::units::did_you_mean;
+use ringmain_core::units::UnitSystem;
 use ringmain_core::{
     read_bytes, Element, Format, Link, LinkKind, LinkStatus, Model, ModelError, Node, NodeKind, Pipe, SolveError,
     SolveOptions, Solver, Tank,
@@ -26,7 +29,10 @@ use std::sync::Arc;
 /// Made by `ringmain_model_new`, `ringmain_model_load`, `ringmain_model_from_toml`,
 /// `ringmain_model_from_json` or `ringmain_model_clone`; owned by the caller, who frees it with
 /// `ringmain_model_free` (once). It keeps the analysis of its network between solves, so changing
-/// values and solving again is cheaper than loading again. Results made by `ringmain_model_solve`
+/// values and solving again is cheaper than loading again: the values the setters change
+/// (demands, reservoir heads, tank levels, link statuses, pump speeds, valve settings, pipe
+/// roughness and diameters) are the solver's input, kept beside the network, so that setting one
+/// copies nothing and the next solve rebuilds only what that value feeds. Results made by `ringmain_model_solve`
 /// are separate handles that stay valid after the model changes or is freed.
 ///
 /// Threads: a model is not internally synchronised. It may be moved to another thread, and any
@@ -35,7 +41,15 @@ use std::sync::Arc;
 /// `ringmain_model *` needs the model to itself. Distinct models may be used from distinct
 /// threads at the same time without any locking.
 pub struct ringmain_model {
+    /// The network, and its values as last brought up to date (see `inputs`).
     pub(crate) model: Model,
+    /// The values of the next solve: what the setters write and the getters read.
+    pub(crate) conditions: Conditions,
+    /// Tank levels set since the model last caught up, m, exactly as given (the conditions keep
+    /// the head, floor + level).
+    pub(crate) levels: HashMap<usize, f64>,
+    /// Whether the conditions hold values the model does not.
+    pub(crate) changed: bool,
     /// The file the model was read from, for error messages.
     pub(crate) source: Option<String>,
     pub(crate) solver: Option<Solver>,
@@ -71,7 +85,7 @@ impl Ids {
 }
 
 fn not_found<'a>(what: &str, id: &str, ids: impl Iterator<Item = &'a str>) -> Failure {
-    let hint = suggest(id, ids).map(|s| format!(" (did you mean '{s}'?)")).unwrap_or_default();
+    let hint = did_you_mean(id, ids, '\'');
     Failure::new(
         ringmain_status::RINGMAIN_NOT_FOUND,
         format!("no {what} has the id '{}'{hint}", ringmain_core::error::printable(id)),
@@ -84,12 +98,22 @@ pub(crate) fn out_of_range(what: &str, index: usize, count: usize) -> Failure {
 }
 
 impl ringmain_model {
-    fn from_model(model: Model, source: Option<String>) -> Self {
-        ringmain_model { model, source, solver: None, ids: None, warm_start: false }
+    pub(crate) fn from_model(model: Model, source: Option<String>) -> Self {
+        let conditions = Conditions::from_model(&model);
+        ringmain_model {
+            model,
+            conditions,
+            levels: HashMap::new(),
+            changed: false,
+            source,
+            solver: None,
+            ids: None,
+            warm_start: false,
+        }
     }
 
     pub(crate) fn units(&self) -> Units {
-        Units::of(&self.model)
+        self.model.converter()
     }
 
     fn node(&self, index: usize) -> Result<&Node, Failure> {
@@ -107,9 +131,7 @@ impl ringmain_model {
     /// The index of an end node of a new link.
     fn end(&self, link_id: &str, key: &str, node_id: &str) -> Result<usize, Failure> {
         self.model.node_index(node_id).ok_or_else(|| {
-            let hint = suggest(node_id, self.model.nodes().iter().map(|n| n.id.as_str()))
-                .map(|s| format!(" (did you mean '{s}'?)"))
-                .unwrap_or_default();
+            let hint = did_you_mean(node_id, self.model.nodes().iter().map(|n| n.id.as_str()), '\'');
             let e = ModelError::at(
                 Some(Element::Link(link_id.to_owned())),
                 Some(key),
@@ -119,16 +141,32 @@ impl ringmain_model {
         })
     }
 
+    /// Adds a node: the model first catches up with the values set, and the new structure gets
+    /// its conditions.
     fn add_node(&mut self, node: Node) -> Result<usize, Failure> {
+        self.catch_up()?;
         let index = self.model.add_node(node)?;
-        self.ids = None;
+        self.structure_changed();
         Ok(index)
     }
 
+    /// Adds a link, as [`ringmain_model::add_node`] adds a node.
     fn add_link(&mut self, link: Link) -> Result<usize, Failure> {
+        self.catch_up()?;
         let index = self.model.add_link(link)?;
-        self.ids = None;
+        self.structure_changed();
         Ok(index)
+    }
+
+    /// Adds a node (tests of the other modules).
+    #[cfg(test)]
+    pub(crate) fn add_node_for_test(&mut self, node: Node) -> usize {
+        self.add_node(node).unwrap()
+    }
+
+    fn structure_changed(&mut self) {
+        self.conditions = Conditions::from_model(&self.model);
+        self.ids = None;
     }
 
     fn solve(&mut self) -> Result<ringmain_results, Failure> {
@@ -142,9 +180,9 @@ impl ringmain_model {
                 self.solver.insert(solver)
             }
         };
-        let model = &self.model;
-        let solution =
-            crate::threads::install(|| solver.solve_with(model, &options))?.map_err(|e| self.solve_failure(e))?;
+        let (model, conditions) = (&self.model, &self.conditions);
+        let solution = crate::threads::install(|| solver.solve(model, conditions, &options))?
+            .map_err(|e| self.solve_failure(e))?;
         let ids = self.ids();
         Ok(ringmain_results::new(&self.model, &solution, ids))
     }
@@ -312,7 +350,7 @@ pub unsafe extern "C" fn ringmain_model_clone(
     ffi_boundary! {
         // SAFETY: the caller's contract above.
         let (m, out) = unsafe { (handle(model, "model")?, self::out(out, "out")?) };
-        let mut copy = ringmain_model::from_model(m.model.clone(), m.source.clone());
+        let mut copy = ringmain_model::from_model(m.current()?.into_owned(), m.source.clone());
         copy.warm_start = m.warm_start;
         give(out, copy);
         Ok(())
@@ -380,7 +418,7 @@ pub unsafe extern "C" fn ringmain_model_save(model: *const ringmain_model, path:
         })?;
         let io_error = |e: std::io::Error| Failure::new(ringmain_status::RINGMAIN_IO, format!("{path}: cannot write the file: {e}"));
         let file = std::fs::File::create(path).map_err(io_error)?;
-        ringmain_core::model::write::write_to(&m.model, format, file).map_err(io_error)?;
+        ringmain_core::model::write::write_to(&*m.current()?, format, file).map_err(io_error)?;
         Ok(())
     }
 }
@@ -409,7 +447,7 @@ pub unsafe extern "C" fn ringmain_model_write(
             ringmain_format::RINGMAIN_FORMAT_TOML => Format::Toml,
             ringmain_format::RINGMAIN_FORMAT_JSON => Format::Json,
         };
-        let text = model_text(&m.model, format)?;
+        let text = model_text(&*m.current()?, format)?;
         // SAFETY: the caller's contract above.
         unsafe { copy_text(&text, buf, len, needed) }
     }
@@ -665,18 +703,15 @@ pub unsafe extern "C" fn ringmain_model_unit_label(
         // SAFETY: the caller's contract above.
         let (m, needed) = unsafe { (handle(model, "model")?, out_opt(needed, "needed")?) };
         let u = m.units();
-        let label = match ringmain_quantity::from_code(quantity, "quantity")? {
-            ringmain_quantity::RINGMAIN_QUANTITY_LENGTH => u.system.length.label(),
-            ringmain_quantity::RINGMAIN_QUANTITY_DIAMETER => u.system.diameter.label(),
-            ringmain_quantity::RINGMAIN_QUANTITY_FLOW => u.system.flow.label(),
-            ringmain_quantity::RINGMAIN_QUANTITY_PRESSURE => u.system.pressure.label(),
-            ringmain_quantity::RINGMAIN_QUANTITY_ROUGHNESS => match u.headloss {
-                ringmain_core::HeadLossLaw::HazenWilliams => "",
-                ringmain_core::HeadLossLaw::DarcyWeisbach => u.system.roughness.label(),
-            },
-            ringmain_quantity::RINGMAIN_QUANTITY_VELOCITY => u.system.velocity_label(),
-            ringmain_quantity::RINGMAIN_QUANTITY_POWER => u.power_label(),
-        };
+        let label = u.label(match ringmain_quantity::from_code(quantity, "quantity")? {
+            ringmain_quantity::RINGMAIN_QUANTITY_LENGTH => Quantity::Length,
+            ringmain_quantity::RINGMAIN_QUANTITY_DIAMETER => Quantity::Diameter,
+            ringmain_quantity::RINGMAIN_QUANTITY_FLOW => Quantity::Flow,
+            ringmain_quantity::RINGMAIN_QUANTITY_PRESSURE => Quantity::Pressure,
+            ringmain_quantity::RINGMAIN_QUANTITY_ROUGHNESS => Quantity::PipeRoughness,
+            ringmain_quantity::RINGMAIN_QUANTITY_VELOCITY => Quantity::Velocity,
+            ringmain_quantity::RINGMAIN_QUANTITY_POWER => Quantity::Power,
+        });
         // SAFETY: the caller's contract above.
         unsafe { copy_text(label, buf, len, needed) }
     }
@@ -711,20 +746,6 @@ unsafe fn node_value(
     Ok(())
 }
 
-/// Reads one value of link `index`: the shared body of the link getters.
-unsafe fn link_value(
-    model: *const ringmain_model,
-    index: usize,
-    out: *mut f64,
-    value: impl FnOnce(&Link, &Units) -> Result<f64, Failure>,
-) -> Result<(), Failure> {
-    // SAFETY: forwarded from the exported functions' contracts.
-    let (m, out) = unsafe { (handle(model, "model")?, self::out(out, "out")?) };
-    let v = value(m.link(index)?, &m.units())?;
-    out.write(v);
-    Ok(())
-}
-
 /// Writes the elevation of node `index` (length unit) to `*out`: ground level of a junction, floor
 /// of a tank, water surface of a reservoir unless given otherwise.
 ///
@@ -738,7 +759,7 @@ pub unsafe extern "C" fn ringmain_model_get_elevation(
     out: *mut f64,
 ) -> ringmain_status {
     // SAFETY: the caller's contract above.
-    ffi_boundary! { unsafe { node_value(model, node, out, |n, u| Ok(u.length_out(n.elevation))) } }
+    ffi_boundary! { unsafe { node_value(model, node, out, |n, u| Ok(u.from_si(Quantity::Length, n.elevation))) } }
 }
 
 /// Writes the demand of junction `node` (flow unit) to `*out`. Errors: `RINGMAIN_WRONG_KIND` for
@@ -755,12 +776,7 @@ pub unsafe extern "C" fn ringmain_model_get_demand(
 ) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
-        unsafe {
-            node_value(model, node, out, |n, u| match n.kind {
-                NodeKind::Junction { demand } => Ok(u.flow_out(demand)),
-                _ => Err(wrong_kind(Element::Node(n.id.to_string()), "demand", "junctions", n.kind.label())),
-            })
-        }
+        unsafe { get_one(model, Input::Demand, node, out) }
     }
 }
 
@@ -777,12 +793,7 @@ pub unsafe extern "C" fn ringmain_model_get_reservoir_head(
 ) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
-        unsafe {
-            node_value(model, node, out, |n, u| match n.kind {
-                NodeKind::Reservoir { head } => Ok(u.length_out(head)),
-                _ => Err(wrong_kind(Element::Node(n.id.to_string()), "head", "reservoirs", n.kind.label())),
-            })
-        }
+        unsafe { get_one(model, Input::ReservoirHead, node, out) }
     }
 }
 
@@ -800,12 +811,7 @@ pub unsafe extern "C" fn ringmain_model_get_tank_level(
 ) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
-        unsafe {
-            node_value(model, node, out, |n, u| match &n.kind {
-                NodeKind::Tank(t) => Ok(u.length_out(t.level)),
-                _ => Err(wrong_kind(Element::Node(n.id.to_string()), "level", "tanks", n.kind.label())),
-            })
-        }
+        unsafe { get_one(model, Input::TankLevel, node, out) }
     }
 }
 
@@ -824,13 +830,8 @@ pub unsafe extern "C" fn ringmain_model_get_link_status(
     ffi_boundary! {
         // SAFETY: the caller's contract above.
         let (m, out) = unsafe { (handle(model, "model")?, self::out(out, "out")?) };
-        let l = m.link(link)?;
-        let status = match (l.status, &l.kind) {
-            (LinkStatus::Closed, _) => ringmain_link_status::RINGMAIN_STATUS_CLOSED,
-            (LinkStatus::Open, LinkKind::Valve(v)) if v.automatic => ringmain_link_status::RINGMAIN_STATUS_AUTOMATIC,
-            (LinkStatus::Open, _) => ringmain_link_status::RINGMAIN_STATUS_OPEN,
-        };
-        out.write(status as u32);
+        m.link(link)?;
+        out.write(m.link_status(link) as u32);
         Ok(())
     }
 }
@@ -849,12 +850,7 @@ pub unsafe extern "C" fn ringmain_model_get_pump_speed(
 ) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
-        unsafe {
-            link_value(model, link, out, |l, _| match &l.kind {
-                LinkKind::Pump(p) => Ok(p.speed),
-                other => Err(wrong_kind(Element::Link(l.id.to_string()), "speed", "pumps", other.label())),
-            })
-        }
+        unsafe { get_one(model, Input::PumpSpeed, link, out) }
     }
 }
 
@@ -873,12 +869,7 @@ pub unsafe extern "C" fn ringmain_model_get_valve_setting(
 ) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
-        unsafe {
-            link_value(model, link, out, |l, u| match &l.kind {
-                LinkKind::Valve(v) => Ok(u.setting_out(v.valve, v.setting)),
-                other => Err(wrong_kind(Element::Link(l.id.to_string()), "setting", "valves", other.label())),
-            })
-        }
+        unsafe { get_one(model, Input::ValveSetting, link, out) }
     }
 }
 
@@ -920,12 +911,7 @@ pub unsafe extern "C" fn ringmain_model_get_pipe_roughness(
 ) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
-        unsafe {
-            link_value(model, link, out, |l, u| match &l.kind {
-                LinkKind::Pipe(p) => Ok(u.roughness_out(p.roughness)),
-                other => Err(wrong_kind(Element::Link(l.id.to_string()), "roughness", "pipes", other.label())),
-            })
-        }
+        unsafe { get_one(model, Input::PipeRoughness, link, out) }
     }
 }
 
@@ -943,12 +929,7 @@ pub unsafe extern "C" fn ringmain_model_get_pipe_diameter(
 ) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
-        unsafe {
-            link_value(model, link, out, |l, u| match &l.kind {
-                LinkKind::Pipe(p) => Ok(u.diameter_out(p.diameter)),
-                other => Err(wrong_kind(Element::Link(l.id.to_string()), "diameter", "pipes", other.label())),
-            })
-        }
+        unsafe { get_one(model, Input::PipeDiameter, link, out) }
     }
 }
 
@@ -1025,7 +1006,7 @@ pub unsafe extern "C" fn ringmain_model_add_junction(
         // SAFETY: the caller's contract above.
         unsafe {
             add_node_with(model, id, out_index, |id, u| {
-                Node::junction(id, u.length_in(elevation), u.flow_in(demand))
+                Node::junction(id, u.to_si(Quantity::Length, elevation), u.to_si(Quantity::Flow, demand))
             })
         }
     }
@@ -1046,7 +1027,7 @@ pub unsafe extern "C" fn ringmain_model_add_reservoir(
 ) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
-        unsafe { add_node_with(model, id, out_index, |id, u| Node::reservoir(id, u.length_in(head))) }
+        unsafe { add_node_with(model, id, out_index, |id, u| Node::reservoir(id, u.to_si(Quantity::Length, head))) }
     }
 }
 
@@ -1076,14 +1057,14 @@ pub unsafe extern "C" fn ringmain_model_add_tank(
         unsafe {
             add_node_with(model, id, out_index, |id, u| Node {
                 id: id.into(),
-                elevation: u.length_in(elevation),
+                elevation: u.to_si(Quantity::Length, elevation),
                 coordinates: None,
                 zone: None,
                 kind: NodeKind::Tank(Box::new(Tank {
-                    level: u.length_in(level),
-                    min_level: u.length_in(min_level),
-                    max_level: optional(max_level).map(|v| u.length_in(v)),
-                    diameter: optional(diameter).map(|v| u.length_in(v)),
+                    level: u.to_si(Quantity::Length, level),
+                    min_level: u.to_si(Quantity::Length, min_level),
+                    max_level: optional(max_level).map(|v| u.to_si(Quantity::Length, v)),
+                    diameter: optional(diameter).map(|v| u.to_si(Quantity::Length, v)),
                 })),
             })
         }
@@ -1121,9 +1102,9 @@ pub unsafe extern "C" fn ringmain_model_add_pipe(
         unsafe {
             add_link_with(model, id, from, to, out_index, |_, u| {
                 let pipe = Pipe {
-                    length: u.length_in(length),
-                    diameter: u.diameter_in(diameter),
-                    roughness: u.roughness_in(roughness),
+                    length: u.to_si(Quantity::Length, length),
+                    diameter: u.to_si(Quantity::Diameter, diameter),
+                    roughness: u.to_si(Quantity::PipeRoughness, roughness),
                     minor_loss,
                     check_valve,
                 };
@@ -1175,7 +1156,7 @@ pub unsafe extern "C" fn ringmain_model_add_pump_curve(
         unsafe {
             add_link_with(model, id, from, to, out_index, |id, u| {
                 let points: Vec<(f64, f64)> =
-                    flows.iter().zip(heads).map(|(&q, &h)| (u.flow_in(q), u.length_in(h))).collect();
+                    flows.iter().zip(heads).map(|(&q, &h)| (u.to_si(Quantity::Flow, q), u.to_si(Quantity::Length, h))).collect();
                 let curve = HeadCurve::fit(&points)
                     .map_err(|e| ModelError::at(Some(Element::Link(id.to_owned())), Some("head_curve"), e.0))?;
                 Ok((pump(PumpDrive::Curve { points, curve }, speed), LinkStatus::Open))
@@ -1205,7 +1186,7 @@ pub unsafe extern "C" fn ringmain_model_add_pump_power(
         // SAFETY: the caller's contract above.
         unsafe {
             add_link_with(model, id, from, to, out_index, |_, u| {
-                Ok((pump(PumpDrive::Power(u.power_in(power)), speed), LinkStatus::Open))
+                Ok((pump(PumpDrive::Power(u.to_si(Quantity::Power, power)), speed), LinkStatus::Open))
             })
         }
     }
@@ -1242,8 +1223,8 @@ pub unsafe extern "C" fn ringmain_model_add_valve(
             add_link_with(model, id, from, to, out_index, |_, u| {
                 let v = Valve {
                     valve,
-                    diameter: u.diameter_in(diameter),
-                    setting: u.setting_in(valve, setting),
+                    diameter: u.to_si(Quantity::Diameter, diameter),
+                    setting: u.to_si(valve.setting_quantity(), setting),
                     minor_loss,
                     automatic: true,
                 };
@@ -1256,20 +1237,6 @@ pub unsafe extern "C" fn ringmain_model_add_valve(
 // ---------------------------------------------------------------------------------------------
 // Changing values between solves
 // ---------------------------------------------------------------------------------------------
-
-/// Changes node `index` through `change` (which works on a copy in SI), then checks and stores it.
-unsafe fn change_node(
-    model: *mut ringmain_model,
-    index: usize,
-    change: impl FnOnce(&mut Node, &Units) -> Result<(), Failure>,
-) -> Result<(), Failure> {
-    // SAFETY: forwarded from the exported functions' contracts.
-    let m = unsafe { handle_mut(model, "model") }?;
-    let mut node = m.node(index)?.clone();
-    change(&mut node, &m.units())?;
-    m.model.replace_node(index, node)?;
-    Ok(())
-}
 
 /// Changes link `index` through `change` (which works on a copy in SI), then checks and stores it.
 unsafe fn change_link(
@@ -1299,15 +1266,7 @@ pub unsafe extern "C" fn ringmain_model_set_demand(
 ) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
-        unsafe {
-            change_node(model, node, |n, u| match &mut n.kind {
-                NodeKind::Junction { demand: d } => {
-                    *d = u.flow_in(demand);
-                    Ok(())
-                }
-                other => Err(wrong_kind(Element::Node(n.id.to_string()), "demand", "junctions", other.label())),
-            })
-        }
+        unsafe { set_one(model, Input::Demand, node, demand) }
     }
 }
 
@@ -1325,15 +1284,7 @@ pub unsafe extern "C" fn ringmain_model_set_reservoir_head(
 ) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
-        unsafe {
-            change_node(model, node, |n, u| match &mut n.kind {
-                NodeKind::Reservoir { head: h } => {
-                    *h = u.length_in(head);
-                    Ok(())
-                }
-                other => Err(wrong_kind(Element::Node(n.id.to_string()), "head", "reservoirs", other.label())),
-            })
-        }
+        unsafe { set_one(model, Input::ReservoirHead, node, head) }
     }
 }
 
@@ -1351,15 +1302,7 @@ pub unsafe extern "C" fn ringmain_model_set_tank_level(
 ) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
-        unsafe {
-            change_node(model, node, |n, u| match &mut n.kind {
-                NodeKind::Tank(t) => {
-                    t.level = u.length_in(level);
-                    Ok(())
-                }
-                other => Err(wrong_kind(Element::Node(n.id.to_string()), "level", "tanks", other.label())),
-            })
-        }
+        unsafe { set_one(model, Input::TankLevel, node, level) }
     }
 }
 
@@ -1381,16 +1324,8 @@ pub unsafe extern "C" fn ringmain_model_set_link_status(
     ffi_boundary! {
         let status = ringmain_link_status::from_code(status, "status")?;
         // SAFETY: the caller's contract above.
-        unsafe {
-            change_link(model, link, |l, _| {
-                let control = match status {
-                    ringmain_link_status::RINGMAIN_STATUS_OPEN => LinkControl::Open,
-                    ringmain_link_status::RINGMAIN_STATUS_CLOSED => LinkControl::Closed,
-                    ringmain_link_status::RINGMAIN_STATUS_AUTOMATIC => LinkControl::Automatic,
-                };
-                l.set_control(control).map_err(|e| Failure::invalid(e.to_string()))
-            })
-        }
+        let m = unsafe { handle_mut(model, "model") }?;
+        m.set_link_status(link, status)
     }
 }
 
@@ -1408,15 +1343,7 @@ pub unsafe extern "C" fn ringmain_model_set_pump_speed(
 ) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
-        unsafe {
-            change_link(model, link, |l, _| match &mut l.kind {
-                LinkKind::Pump(p) => {
-                    p.speed = speed;
-                    Ok(())
-                }
-                other => Err(wrong_kind(Element::Link(l.id.to_string()), "speed", "pumps", other.label())),
-            })
-        }
+        unsafe { set_one(model, Input::PumpSpeed, link, speed) }
     }
 }
 
@@ -1472,7 +1399,7 @@ pub unsafe extern "C" fn ringmain_model_set_pump_efficiency_curve(
             change_link(model, link, |l, u| match &mut l.kind {
                 LinkKind::Pump(p) => {
                     let points: Vec<(f64, f64)> =
-                        flows.iter().zip(percents).map(|(&q, &e)| (u.flow_in(q), e / 100.0)).collect();
+                        flows.iter().zip(percents).map(|(&q, &e)| (u.to_si(Quantity::Flow, q), e / 100.0)).collect();
                     p.efficiency = Efficiency::fit(&points).map_err(|e| {
                         ModelError::at(Some(Element::Link(l.id.to_string())), Some("efficiency_curve"), e.0)
                     })?;
@@ -1499,15 +1426,7 @@ pub unsafe extern "C" fn ringmain_model_set_valve_setting(
 ) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
-        unsafe {
-            change_link(model, link, |l, u| match &mut l.kind {
-                LinkKind::Valve(v) => {
-                    v.setting = u.setting_in(v.valve, setting);
-                    Ok(())
-                }
-                other => Err(wrong_kind(Element::Link(l.id.to_string()), "setting", "valves", other.label())),
-            })
-        }
+        unsafe { set_one(model, Input::ValveSetting, link, setting) }
     }
 }
 
@@ -1525,15 +1444,7 @@ pub unsafe extern "C" fn ringmain_model_set_pipe_roughness(
 ) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
-        unsafe {
-            change_link(model, link, |l, u| match &mut l.kind {
-                LinkKind::Pipe(p) => {
-                    p.roughness = u.roughness_in(roughness);
-                    Ok(())
-                }
-                other => Err(wrong_kind(Element::Link(l.id.to_string()), "roughness", "pipes", other.label())),
-            })
-        }
+        unsafe { set_one(model, Input::PipeRoughness, link, roughness) }
     }
 }
 
@@ -1551,15 +1462,7 @@ pub unsafe extern "C" fn ringmain_model_set_pipe_diameter(
 ) -> ringmain_status {
     ffi_boundary! {
         // SAFETY: the caller's contract above.
-        unsafe {
-            change_link(model, link, |l, u| match &mut l.kind {
-                LinkKind::Pipe(p) => {
-                    p.diameter = u.diameter_in(diameter);
-                    Ok(())
-                }
-                other => Err(wrong_kind(Element::Link(l.id.to_string()), "diameter", "pipes", other.label())),
-            })
-        }
+        unsafe { set_one(model, Input::PipeDiameter, link, diameter) }
     }
 }
 
@@ -1624,7 +1527,7 @@ pub unsafe extern "C" fn ringmain_model_set_solver_options(
         }
         let u = m.units();
         m.model.options.max_iterations = max_iterations;
-        m.model.options.head_tolerance = u.length_in(head_tolerance);
+        m.model.options.head_tolerance = u.to_si(Quantity::Length, head_tolerance);
         m.model.options.flow_tolerance = flow_tolerance;
         Ok(())
     }

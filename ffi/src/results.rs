@@ -2,7 +2,7 @@
 
 use crate::boundary::{copy_out, copy_text, free_handle, handle, out, out_opt, text, Failure, LIVE_RESULTS};
 use crate::codes::*;
-use crate::convert::Units;
+use crate::convert::Quantity;
 use crate::model::{out_of_range, Ids};
 use ringmain_core::{Model, Solution};
 use std::ffi::{c_char, CString};
@@ -27,7 +27,6 @@ pub struct ringmain_results {
     headloss: Vec<f64>,
     state: Vec<u32>,
     connected: Vec<bool>,
-    converged: bool,
     iterations: u32,
     status_changes: u32,
     max_mass_residual: f64,
@@ -50,39 +49,36 @@ struct PumpOut {
 
 impl ringmain_results {
     pub(crate) fn new(model: &Model, s: &Solution, ids: Arc<Ids>) -> Self {
-        let u = Units::of(model);
-        let map = |v: &[f64], f: fn(&Units, f64) -> f64| v.iter().map(|&x| f(&u, x)).collect::<Vec<f64>>();
+        let u = model.converter();
+        let map = |v: &[f64], q: Quantity| v.iter().map(|&x| u.from_si(q, x)).collect::<Vec<f64>>();
         ringmain_results {
             ids,
-            head: map(&s.head, Units::length_out),
-            pressure: map(&s.pressure, Units::pressure_out),
-            demand: map(&s.demand, Units::flow_out),
-            flow: map(&s.flow, Units::flow_out),
-            velocity: map(&s.velocity, Units::length_out),
+            head: map(&s.head, Quantity::Length),
+            pressure: map(&s.pressure, Quantity::Pressure),
+            demand: map(&s.demand, Quantity::Flow),
+            flow: map(&s.flow, Quantity::Flow),
+            velocity: map(&s.velocity, Quantity::Length),
             // As the command-line program reports it: pumps signed, H_from − H_to (a head gain is a
             // negative loss), every other link |H_from − H_to|.
             headloss: model
                 .links()
                 .iter()
                 .zip(&s.headloss)
-                .map(
-                    |(l, &h)| {
-                        if l.as_pump().is_some() {
-                            u.length_out(s.head[l.from] - s.head[l.to])
-                        } else {
-                            u.length_out(h)
-                        }
-                    },
-                )
+                .map(|(l, &h)| {
+                    if l.as_pump().is_some() {
+                        u.from_si(Quantity::Length, s.head[l.from] - s.head[l.to])
+                    } else {
+                        u.from_si(Quantity::Length, h)
+                    }
+                })
                 .collect(),
             state: s.link_state.iter().map(|&st| ringmain_link_state::of(st) as u32).collect(),
             connected: s.connected.clone(),
-            converged: s.converged,
             iterations: s.iterations,
             status_changes: s.status_changes,
-            max_mass_residual: u.flow_out(s.max_mass_residual),
-            max_energy_residual: u.length_out(s.max_energy_residual),
-            last_head_change: u.length_out(s.last_head_change),
+            max_mass_residual: u.from_si(Quantity::Flow, s.max_mass_residual),
+            max_energy_residual: u.from_si(Quantity::Length, s.max_energy_residual),
+            last_head_change: u.from_si(Quantity::Length, s.last_head_change),
             last_flow_change: s.last_flow_change,
             warnings: s
                 .warnings
@@ -97,9 +93,9 @@ impl ringmain_results {
                 .iter()
                 .map(|p| PumpOut {
                     link: p.link,
-                    head: u.length_out(p.head),
-                    hydraulic_power: u.power_out(p.hydraulic_power),
-                    shaft_power: u.power_out(p.shaft_power),
+                    head: u.from_si(Quantity::Length, p.head),
+                    hydraulic_power: u.from_si(Quantity::Power, p.hydraulic_power),
+                    shaft_power: u.from_si(Quantity::Power, p.shaft_power),
                     efficiency_percent: p.efficiency * 100.0,
                 })
                 .collect(),
@@ -224,21 +220,6 @@ pub unsafe extern "C" fn ringmain_results_link_index(
         out.write(r.ids.find_link(id)?);
         Ok(())
     }
-}
-
-/// Writes whether the solve converged to `*out`. Always true: a solve that does not converge
-/// returns `RINGMAIN_NOT_CONVERGED` and makes no results.
-///
-/// # Safety
-/// `results` is NULL or live results; `out` is NULL or writable.
-#[no_mangle]
-#[must_use]
-pub unsafe extern "C" fn ringmain_results_converged(
-    results: *const ringmain_results,
-    out: *mut bool,
-) -> ringmain_status {
-    // SAFETY: the caller's contract above.
-    ffi_boundary! { unsafe { statistic(results, out, |r| r.converged) } }
 }
 
 /// Writes the number of Newton iterations (linear solves) of the solve to `*out`.

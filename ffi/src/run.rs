@@ -3,7 +3,7 @@
 
 use crate::boundary::{copy_out, copy_text, free_handle, handle, handle_mut, into_handle, out, out_opt, Failure};
 use crate::codes::ringmain_status;
-use crate::convert::Units;
+use crate::convert::Quantity;
 use crate::model::{out_of_range, ringmain_model};
 use ringmain_core::quality::QualityRun;
 use ringmain_core::simulate::{simulate, Run, SimulateError, SimulateOptions};
@@ -130,7 +130,7 @@ struct QualitySeries {
 
 impl ringmain_run {
     fn new(model: &Model, run: &Run, quality: Option<&QualityRun>) -> Self {
-        let u = Units::of(model);
+        let u = model.converter();
         let volume = |v: f64| v / model.units.length.to_si(1.0).powi(3);
         let rows = run.series.len();
         let mut series: [Vec<f64>; 9] = Default::default();
@@ -142,23 +142,23 @@ impl ringmain_run {
             s.reserve_exact(rows * w);
         }
         for snap in &run.series {
-            series[0].extend(snap.head.iter().map(|&h| u.length_out(h)));
-            series[1].extend(snap.pressure.iter().map(|&p| u.pressure_out(p)));
-            series[2].extend(snap.demand.iter().map(|&q| u.flow_out(q)));
-            series[3].extend(snap.flow.iter().map(|&q| u.flow_out(q)));
+            series[0].extend(snap.head.iter().map(|&h| u.from_si(Quantity::Length, h)));
+            series[1].extend(snap.pressure.iter().map(|&p| u.from_si(Quantity::Pressure, p)));
+            series[2].extend(snap.demand.iter().map(|&q| u.from_si(Quantity::Flow, q)));
+            series[3].extend(snap.flow.iter().map(|&q| u.from_si(Quantity::Flow, q)));
             series[4].extend(snap.status.iter().map(|s| match *s {
                 "closed" => 1.0,
                 "active" => 2.0,
                 _ => 0.0,
             }));
-            series[5].extend(snap.level.iter().map(|&l| u.length_out(l)));
+            series[5].extend(snap.level.iter().map(|&l| u.from_si(Quantity::Length, l)));
             series[6].extend(snap.volume.iter().map(|&v| volume(v)));
             series[7].extend(snap.pump_speed.iter().copied());
-            series[8].extend(snap.pump_power.iter().map(|&w| u.power_out(w)));
+            series[8].extend(snap.pump_power.iter().map(|&w| u.from_si(Quantity::Power, w)));
         }
         let b = &run.balance;
         let (has_low, low_node, low_p, low_t) = match run.lowest_pressure {
-            Some((node, p, t)) => (true, node, u.pressure_out(p), t),
+            Some((node, p, t)) => (true, node, u.from_si(Quantity::Pressure, p), t),
             None => (false, 0, f64::NAN, f64::NAN),
         };
         let summary = ringmain_run_summary {
@@ -241,7 +241,9 @@ pub unsafe extern "C" fn ringmain_model_simulate(
     ffi_boundary! {
         // SAFETY: the caller's contract above.
         let (m, out) = unsafe { (handle_mut(model, "model")?, self::out(out, "out")?) };
-        let model = &m.model;
+        // The model with the values set since it was loaded or built (a copy only if some were).
+        let current = m.current()?;
+        let model = &*current;
         let with_quality = !model.time.quality.constituents.is_empty();
         let result = crate::threads::install(|| {
             if with_quality {
@@ -265,7 +267,7 @@ pub unsafe extern "C" fn ringmain_model_simulate(
             };
             Failure::new(status, message)
         })?;
-        out.write(into_handle(ringmain_run::new(&m.model, &run, quality.as_ref()), &LIVE_RUNS));
+        out.write(into_handle(ringmain_run::new(model, &run, quality.as_ref()), &LIVE_RUNS));
         Ok(())
     }
 }

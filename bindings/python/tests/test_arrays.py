@@ -82,7 +82,7 @@ def test_every_link_array_round_trips():
         m.set_link_statuses(statuses)
         assert m.link_statuses() == statuses
         with m.solve() as r:
-            assert r.converged
+            assert r.iterations >= 1  # an answer (a solve that does not converge raises SolveError)
 
 
 def test_the_structure_in_a_few_calls_matches_the_element_calls():

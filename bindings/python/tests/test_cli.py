@@ -36,7 +36,8 @@ def test_results_equal_the_command_line_program(path, cli_json):
 
 
 def _check_against_cli(results, units, expected):
-    assert results.converged is expected["converged"] is True
+    # Results exist only for a converged solve (else SolveError); the CLI still says so.
+    assert expected["converged"] is True
     assert results.iterations == expected["iterations"]
     assert results.status_changes == expected["status_changes"]
     for quantity, label in expected["units"].items():

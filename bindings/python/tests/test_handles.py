@@ -14,7 +14,7 @@ def test_open_and_close_many_models_leaks_nothing():
     for i in range(300):
         if i % 3 == 0:
             with ringmain.Model.load(HILLSIDE) as m, m.solve() as r:
-                assert r.converged
+                assert r.iterations >= 1  # an answer (a solve that does not converge raises SolveError)
         elif i % 3 == 1:
             m = ringmain.Model.load(HILLSIDE)
             r = m.solve()

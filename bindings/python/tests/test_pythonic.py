@@ -106,7 +106,7 @@ def test_results_refuse_copy_and_pickle():
             with pytest.raises(TypeError, match="cannot be"):
                 attempt(r)
         # Still usable, freed once.
-        assert r.converged
+        assert r.iterations >= 1  # an answer (a solve that does not converge raises SolveError)
 
 
 def test_errors_survive_pickling():

@@ -29,7 +29,7 @@ def test_a_loop_of_demand_scenarios_on_one_model():
             for j in junctions:
                 model.set_demand(index[j], base[j] * factor)
             with model.solve() as results:
-                assert results.converged
+                assert results.iterations >= 1  # an answer (a solve that does not converge raises SolveError)
                 mass, energy = results.residuals
                 assert mass < 1e-6 and energy < 1e-3
                 # The solved demands are the ones just set.

@@ -39,7 +39,8 @@ use super::DiagnosticKind;
 use crate::error::{printable, Element, ModelError};
 use crate::model::doc::{Key, Value};
 use crate::model::{Model, NodeKind};
-use crate::units::{suggest, FlowUnit, LengthUnit, PressureUnit, UnitSystem};
+use crate::units::did_you_mean;
+use crate::units::{Converter, FlowUnit, LengthUnit, PressureUnit, UnitSystem};
 
 /// The keys of a `[criteria]` table.
 pub const CRITERIA_KEYS: &[&str] = &[
@@ -160,25 +161,9 @@ impl Default for Criteria {
     }
 }
 
-/// What a limit measures, for parsing its unit and for writing it back.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
-#[non_exhaustive]
-pub enum Quantity {
-    /// Pressure head, m.
-    Pressure,
-    /// Velocity, m/s.
-    Velocity,
-    /// Head loss per length, m/m.
-    Gradient,
-    /// Flow, m³/s.
-    Flow,
-    /// Length or level, m.
-    Length,
-    /// Water age, s (shown in hours).
-    Age,
-    /// No unit (counts, yes/no, concentrations in their own unit).
-    None,
-}
+/// What a limit measures, for parsing its unit and for writing it back: the quantities of
+/// [`crate::units`], converted by its [`Converter`].
+pub use crate::units::Quantity;
 
 /// The accepted unit names of a quantity.
 fn unit_names(q: Quantity) -> Vec<&'static str> {
@@ -189,7 +174,12 @@ fn unit_names(q: Quantity) -> Vec<&'static str> {
         Quantity::Flow => FlowUnit::ALL.iter().map(|u| u.label()).collect(),
         Quantity::Length => LengthUnit::ALL.iter().map(|u| u.label()).collect(),
         Quantity::Age => vec!["h", "min", "d", "s"],
-        Quantity::None => Vec::new(),
+        Quantity::Diameter
+        | Quantity::PipeRoughness
+        | Quantity::Power
+        | Quantity::Volume
+        | Quantity::LossCoefficient
+        | Quantity::Number => Vec::new(),
     }
 }
 
@@ -212,24 +202,19 @@ fn to_si(q: Quantity, unit: &str, value: f64, density: f64) -> Option<f64> {
             "s" => value,
             _ => return None,
         },
-        Quantity::None => return None,
+        Quantity::Diameter
+        | Quantity::PipeRoughness
+        | Quantity::Power
+        | Quantity::Volume
+        | Quantity::LossCoefficient
+        | Quantity::Number => return None,
     })
 }
 
 /// The unit a bare number is read in: the model's.
 fn default_unit(q: Quantity, units: &UnitSystem) -> &'static str {
-    match q {
-        Quantity::Pressure => units.pressure.label(),
-        Quantity::Velocity => units.velocity_label(),
-        Quantity::Gradient => match units.length {
-            LengthUnit::Metre => "m/km",
-            LengthUnit::Foot => "ft/kft",
-        },
-        Quantity::Flow => units.flow.label(),
-        Quantity::Length => units.length.label(),
-        Quantity::Age => "h",
-        Quantity::None => "",
-    }
+    // Labels do not depend on the density or the friction formula.
+    Converter::new(*units, f64::NAN, false).label(q)
 }
 
 /// Splits `"20 m"` into the number and the unit (the unit may follow without a space).
@@ -286,8 +271,7 @@ impl Reader<'_> {
             return Err(self.error(key, format!("must be a finite number, found {number}")));
         }
         let Some(si) = to_si(q, unit, number, self.density) else {
-            let hint =
-                suggest(unit, names.iter().copied()).map(|s| format!(" (did you mean \"{s}\"?)")).unwrap_or_default();
+            let hint = did_you_mean(unit, names.iter().copied(), '"');
             let choices = names.iter().map(|n| format!("\"{n}\"")).collect::<Vec<_>>().join(", ");
             return Err(
                 self.error(key, format!("unknown unit \"{}\"{hint}; expected one of {choices}", printable(unit)))
@@ -335,12 +319,17 @@ fn example(q: Quantity) -> &'static str {
         Quantity::Flow => "120 L/s",
         Quantity::Length => "0.5 m",
         Quantity::Age => "72 h",
-        Quantity::None => "",
+        Quantity::Diameter
+        | Quantity::PipeRoughness
+        | Quantity::Power
+        | Quantity::Volume
+        | Quantity::LossCoefficient
+        | Quantity::Number => "",
     }
 }
 
 fn unknown_key(reader: &Reader<'_>, key: &str, known: &[&str]) -> ModelError {
-    let hint = suggest(key, known.iter().copied()).map(|s| format!(" (did you mean '{s}'?)")).unwrap_or_default();
+    let hint = did_you_mean(key, known.iter().copied(), '\'');
     reader.error(key, format!("is not a known criterion{hint}; known keys here: {}", known.join(", ")))
 }
 
@@ -440,9 +429,7 @@ fn read_residuals(r: &Reader<'_>, key: &str, v: &Value, model: &Model) -> Result
     for (id, value) in entries {
         let sub = format!("{key}.{}", id.as_ref());
         let Some(c) = q.index(id.as_ref()) else {
-            let hint = suggest(id.as_ref(), q.constituents.iter().map(|c| c.id.as_str()))
-                .map(|s| format!(" (did you mean '{s}'?)"))
-                .unwrap_or_default();
+            let hint = did_you_mean(id.as_ref(), q.constituents.iter().map(|c| c.id.as_str()), '\'');
             return Err(r.error(
                 &sub,
                 format!("names constituent '{}', which the model's [[quality]] does not define{hint}", printable(id)),
@@ -506,9 +493,7 @@ fn read_capacity(r: &Reader<'_>, key: &str, v: &Value, model: &Model) -> Result<
     for (id, cap) in table(r, key, v)? {
         let sub = format!("{key}.{id}");
         let Some(i) = model.node_index(id) else {
-            let hint = suggest(id, model.nodes().iter().map(|n| n.id.as_str()))
-                .map(|s| format!(" (did you mean '{s}'?)"))
-                .unwrap_or_default();
+            let hint = did_you_mean(id, model.nodes().iter().map(|n| n.id.as_str()), '\'');
             return Err(r.error(&sub, format!("refers to node '{}', which is not defined{hint}", printable(id))));
         };
         if matches!(model.nodes()[i].kind, NodeKind::Junction { .. }) {
@@ -530,8 +515,7 @@ fn read_fail_on(r: &Reader<'_>, key: &str, v: &Value) -> Result<Vec<DiagnosticKi
         .iter()
         .map(|s| {
             DiagnosticKind::parse(s).ok_or_else(|| {
-                let hint =
-                    suggest(s, names.iter().copied()).map(|n| format!(" (did you mean \"{n}\"?)")).unwrap_or_default();
+                let hint = did_you_mean(s, names.iter().copied(), '"');
                 r.error(
                     key,
                     format!(
@@ -614,15 +598,8 @@ pub fn format_in_units(q: Quantity, si: f64, units: &UnitSystem, density: f64) -
 
 /// An SI value of a quantity in the model's units, with the unit's label.
 pub fn to_units(q: Quantity, si: f64, units: &UnitSystem, density: f64) -> (f64, &'static str) {
-    match q {
-        Quantity::Pressure => (units.pressure.from_head(si, density), units.pressure.label()),
-        Quantity::Velocity => (units.length.from_si(si), units.velocity_label()),
-        Quantity::Gradient => (si * 1000.0, default_unit(q, units)),
-        Quantity::Flow => (units.flow.from_si(si), units.flow.label()),
-        Quantity::Length => (units.length.from_si(si), units.length.label()),
-        Quantity::Age => (si / 3600.0, "h"),
-        Quantity::None => (si, ""),
-    }
+    let c = Converter::new(*units, density, false);
+    (c.from_si(q, si), c.label(q))
 }
 
 #[cfg(test)]

@@ -225,7 +225,7 @@ pub fn warning_checks(criteria: &Criteria, diagnostics: &[Diagnostic], keep: usi
         .fail_on_warnings
         .iter()
         .map(|&kind| {
-            let mut c = CheckResult::new(format!("warnings.{}", kind.code()), Quantity::None, f64::NAN);
+            let mut c = CheckResult::new(format!("warnings.{}", kind.code()), Quantity::Number, f64::NAN);
             for d in diagnostics.iter().filter(|d| d.kind == kind) {
                 let finding = Finding {
                     element: d.element.clone(),

@@ -21,8 +21,9 @@
 //! (Dowell & Jarratt, 1971, BIT 11) inside a bracket grown by extrapolation. On a single main the
 //! first secant step is exact; on looped networks a few solves suffice. Every solve starts from
 //! the previous one (a warm start), and hydrants are spread over all cores, each thread with its
-//! own [`Conditions`] (only the hydrant's demand changes) and its own solver sharing one analysis
-//! of the network structure; the model is never copied.
+//! own [`Conditions`] (only the hydrant's fixed draw changes) and its own solver sharing one
+//! analysis of the network structure; the model is never copied. With `[pressure_demand]` the other
+//! junctions' demands (and the hydrant's own) follow their pressures while the fire draw is fixed.
 
 use crate::error::{Element, ModelError, SolveError};
 use crate::model::{Model, NodeKind};
@@ -140,14 +141,15 @@ struct Draw<'a> {
     solver: &'a mut Solver,
     options: SolveOptions,
     hydrant: usize,
-    demand: f64,
 }
 
 impl Draw<'_> {
+    /// The fire draw is a fixed draw on top of the hydrant's demand: it does not follow the
+    /// hydrant's pressure, whereas the demand may (`[pressure_demand]`).
     fn pressures(&mut self, q: f64) -> Result<Vec<f64>, SolveError> {
-        self.conditions.set_demand(self.model, self.hydrant, self.demand + q).map_err(SolveError::Model)?;
+        self.conditions.set_fixed_draw(self.model, self.hydrant, q).map_err(SolveError::Model)?;
         let solved = self.solver.solve(self.model, self.conditions, &self.options);
-        self.conditions.set_demand(self.model, self.hydrant, self.demand).map_err(SolveError::Model)?;
+        self.conditions.set_fixed_draw(self.model, self.hydrant, 0.0).map_err(SolveError::Model)?;
         Ok(solved?.pressure)
     }
 
@@ -244,14 +246,8 @@ fn one_hydrant(
         })
         .collect();
     let mut notes = Vec::new();
-    let mut draw = Draw {
-        demand: conditions.demand(h),
-        model,
-        conditions,
-        solver,
-        options: SolveOptions { warm_start: true, ..*solve_options },
-        hydrant: h,
-    };
+    let mut draw =
+        Draw { model, conditions, solver, options: SolveOptions { warm_start: true, ..*solve_options }, hydrant: h };
     let hydrant_limited = if static_pressure <= residual {
         notes.push("the hydrant is at or below the residual pressure without a fire draw".to_owned());
         0.0

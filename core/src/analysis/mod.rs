@@ -273,7 +273,7 @@ impl Outcome {
 fn convergence_check(criteria: &Criteria, model: &Model, error: Option<&Unsolved>) -> CheckResult {
     let mut c = CheckResult {
         name: "must_converge".into(),
-        quantity: Quantity::None,
+        quantity: Quantity::Number,
         limit: f64::NAN,
         checked: 1,
         failures: 0,

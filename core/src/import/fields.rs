@@ -8,6 +8,7 @@ use crate::error::{Element, ModelError};
 use crate::model::doc::{self, Value};
 use crate::model::file::{read_hydraulics, read_units};
 use crate::model::HydraulicOptions;
+use crate::units::did_you_mean;
 use crate::units::{LengthUnit, UnitSystem};
 
 /// The pipe attributes a fields file may map (model key → attribute name).
@@ -104,9 +105,7 @@ fn entries(value: Value, table: &str) -> Result<Vec<(doc::Key, Value)>, ModelErr
 }
 
 fn unknown(table: &str, key: &str, known: &[&str]) -> ModelError {
-    let hint = crate::units::suggest(key, known.iter().copied())
-        .map(|s| format!(" (did you mean '{s}'?)"))
-        .unwrap_or_default();
+    let hint = did_you_mean(key, known.iter().copied(), '\'');
     table_error(table, Some(key), format!("is not a known key{hint}; known keys here: {}", known.join(", ")))
 }
 

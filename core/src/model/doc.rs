@@ -14,7 +14,7 @@ pub const MAX_DEPTH: usize = 32;
 /// A key of a table. The keys that every node and link repeats are not copied for each one.
 pub type Key = std::borrow::Cow<'static, str>;
 
-fn key(text: &str) -> Key {
+pub(crate) fn key(text: &str) -> Key {
     // The keys of node and link entries (a large model has millions of them) are shared.
     match shared_key(text) {
         Some(k) => Key::Borrowed(k),

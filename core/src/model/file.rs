@@ -16,8 +16,9 @@ use crate::error::{Element, ModelError};
 use crate::physics::fittings::{Fitting, FittingKind, FittingsMethod};
 use crate::physics::pump::{Efficiency, HeadCurve};
 use crate::physics::WaterProperties;
-use crate::units::HORSEPOWER;
-use crate::units::{suggest, DiameterUnit, FlowUnit, LengthUnit, PressureUnit, RoughnessUnit, UnitSystem};
+use crate::units::did_you_mean;
+use crate::units::Quantity;
+use crate::units::{DiameterUnit, FlowUnit, LengthUnit, PressureUnit, RoughnessUnit, UnitSystem};
 use std::path::Path;
 use std::sync::OnceLock;
 
@@ -80,6 +81,8 @@ const TOP_KEYS: &[&str] = &[
     "criteria",
     "pressure_demand",
     "background_leakage",
+    // The same table under its short name, as the issue that specified it spells it.
+    "leakage",
     "simulation",
     "electricity",
     "map",
@@ -479,16 +482,37 @@ impl<'de> serde::de::Visitor<'de> for Elements<'_> {
 }
 
 fn read_inner(text: &str, format: Format) -> Result<Model, ModelError> {
-    if format == Format::Json {
-        if let Some(model) = read_json_one_pass(serde_json::Deserializer::from_str(text)) {
-            return Ok(model);
-        }
+    let fast = match format {
+        Format::Json => super::scan::json_from_slice(text.as_bytes()),
+        Format::Toml => super::scan::toml_from_slice(text.as_bytes()),
+    };
+    match fast {
+        Some(model) => Ok(model),
+        None => read_tree(text, format),
     }
-    read_tree(text, format)
+}
+
+/// The top-level table's fields (for the one-pass readers of [`super::scan`]).
+pub(super) fn top_fields(entries: Vec<(Key, Value)>) -> Fields {
+    Fields::new(None, entries)
+}
+
+/// The model with the settings of the top-level table, before any element, when every setting
+/// is valid and no other key is there (for the one-pass readers of [`super::scan`]).
+pub(super) fn settings_model(top: &mut Fields) -> Option<Model> {
+    let settings = Settings::take(top).ok()?;
+    let rest = std::mem::replace(top, Fields::new(None, Vec::new()));
+    rest.finish(TOP_KEYS).ok()?;
+    settings.into_model().ok()
+}
+
+/// [`finish`] for the one-pass readers: `None` on any error.
+pub(super) fn finish_model(model: Model, controls: Vec<Value>) -> Option<Model> {
+    finish(model, controls).ok()
 }
 
 /// The ordinary reader: the whole file as one value tree, then the model.
-fn read_tree(text: &str, format: Format) -> Result<Model, ModelError> {
+pub(super) fn read_tree(text: &str, format: Format) -> Result<Model, ModelError> {
     if text.trim().is_empty() {
         return Err(ModelError::new("the file is empty; a model needs at least [[nodes]] and [[links]]"));
     }
@@ -556,9 +580,17 @@ impl Settings {
             Some(v) => Some(read_pressure_demand(v, &units, &options)?),
             None => None,
         };
-        let leakage = match top.take("background_leakage") {
-            Some(v) => Some(read_leakage(v, &units, &options)?),
-            None => None,
+        let leakage = match (top.take("background_leakage"), top.take("leakage")) {
+            (Some(_), Some(_)) => {
+                return Err(ModelError::at(
+                    Some(Element::Table("leakage".into())),
+                    None,
+                    "the model has both [background_leakage] and its short name: keep one",
+                ))
+            }
+            (Some(v), None) => Some(read_leakage(v, "background_leakage", &units, &options)?),
+            (None, Some(v)) => Some(read_leakage(v, "leakage", &units, &options)?),
+            (None, None) => None,
         };
         let simulation = match top.take("simulation") {
             Some(v) => Some(read_simulation(v, &units)?),
@@ -613,7 +645,7 @@ impl Settings {
 }
 
 /// Reads the `i`-th entry of `nodes` into the model.
-fn add_node_value(model: &mut Model, i: usize, value: Value) -> Result<(), ModelError> {
+pub(super) fn add_node_value(model: &mut Model, i: usize, value: Value) -> Result<(), ModelError> {
     let index = model.nodes().len();
     let units = model.units;
     let options = model.options;
@@ -626,7 +658,7 @@ fn add_node_value(model: &mut Model, i: usize, value: Value) -> Result<(), Model
 }
 
 /// Reads the `i`-th entry of `links` into the model.
-fn add_link_value(model: &mut Model, i: usize, value: Value) -> Result<(), ModelError> {
+pub(super) fn add_link_value(model: &mut Model, i: usize, value: Value) -> Result<(), ModelError> {
     let index = model.links().len();
     let (link, pattern, leakage_rate, path, fittings) = read_link(i, value, model)?;
     if let Some(rate) = leakage_rate {
@@ -661,7 +693,7 @@ fn finish(mut model: Model, controls: Vec<Value>) -> Result<Model, ModelError> {
 }
 
 /// The keys of one table being read, with what has been consumed.
-struct Fields {
+pub(super) struct Fields {
     element: Option<Element>,
     entries: Vec<(Key, Option<Value>)>,
     /// Written before every key in messages, for tables inside an element ("demands[2].").
@@ -703,9 +735,7 @@ impl Fields {
         match time.pattern_index(&id) {
             Some(i) => Ok(Some(i)),
             None => {
-                let hint = suggest(&id, time.patterns.iter().map(|p| p.id.as_str()))
-                    .map(|s| format!(" (did you mean '{s}'?)"))
-                    .unwrap_or_default();
+                let hint = did_you_mean(&id, time.patterns.iter().map(|p| p.id.as_str()), '\'');
                 Err(self.error(
                     key,
                     format!(
@@ -843,8 +873,7 @@ impl Fields {
             return Ok(Some(u));
         }
         let choices = labels.iter().map(|l| format!("\"{l}\"")).collect::<Vec<_>>().join(", ");
-        let hint =
-            suggest(&text, labels.iter().copied()).map(|s| format!(" (did you mean \"{s}\"?)")).unwrap_or_default();
+        let hint = did_you_mean(&text, labels.iter().copied(), '"');
         Err(self.error(
             key,
             format!("unknown unit \"{}\"{hint}; expected one of {choices}", crate::error::printable(&text)),
@@ -856,8 +885,7 @@ impl Fields {
     fn reject_unknown(&self, known: &[&str]) -> Result<(), ModelError> {
         match self.entries.iter().find(|(k, v)| v.is_some() && !known.contains(&k.as_ref())) {
             Some((key, _)) => {
-                let hint =
-                    suggest(key, known.iter().copied()).map(|s| format!(" (did you mean '{s}'?)")).unwrap_or_default();
+                let hint = did_you_mean(key, known.iter().copied(), '\'');
                 Err(self.error(key, format!("is not a known key{hint}; known keys here: {}", known.join(", "))))
             }
             None => Ok(()),
@@ -882,8 +910,7 @@ impl Fields {
             } else if elsewhere.contains(&key.as_ref()) {
                 format!("does not apply to a {what}")
             } else {
-                let hint =
-                    suggest(key, known.iter().copied()).map(|s| format!(" (did you mean '{s}'?)")).unwrap_or_default();
+                let hint = did_you_mean(key, known.iter().copied(), '\'');
                 format!("is not a known key{hint}; known keys here: {}", known.join(", "))
             };
             return Err(self.error(key, message));
@@ -925,9 +952,7 @@ pub(crate) fn read_hydraulics(value: Value, units: &UnitSystem) -> Result<Hydrau
             "hazen-williams" => HeadLossLaw::HazenWilliams,
             "darcy-weisbach" => HeadLossLaw::DarcyWeisbach,
             other => {
-                let hint = suggest(other, ["hazen-williams", "darcy-weisbach"])
-                    .map(|s| format!(" (did you mean \"{s}\"?)"))
-                    .unwrap_or_default();
+                let hint = did_you_mean(other, ["hazen-williams", "darcy-weisbach"], '"');
                 return Err(f.error(
                     "headloss",
                     format!(
@@ -985,8 +1010,7 @@ pub(crate) fn read_hydraulics(value: Value, units: &UnitSystem) -> Result<Hydrau
     if let Some(text) = f.string("fittings_method")? {
         o.fittings_method = FittingsMethod::parse(&text).ok_or_else(|| {
             let names: Vec<&str> = FittingsMethod::ALL.iter().map(|m| m.label()).collect();
-            let hint =
-                suggest(&text, names.iter().copied()).map(|s| format!(" (did you mean \"{s}\"?)")).unwrap_or_default();
+            let hint = did_you_mean(&text, names.iter().copied(), '"');
             f.error(
                 "fittings_method",
                 format!(
@@ -1063,8 +1087,7 @@ fn identify(
     let kind = f.string("kind")?.unwrap_or_else(|| default_kind.to_owned());
     let Some(keys) = keys_for(kinds, &kind) else {
         let names: Vec<&str> = kinds.iter().map(|(k, _)| *k).collect();
-        let hint =
-            suggest(&kind, names.iter().copied()).map(|s| format!(" (did you mean \"{s}\"?)")).unwrap_or_default();
+        let hint = did_you_mean(&kind, names.iter().copied(), '"');
         return Err(f.error(
             "kind",
             format!("unknown kind \"{}\"{hint}; expected one of {}", crate::error::printable(&kind), names.join(", ")),
@@ -1192,9 +1215,7 @@ fn read_link(index: usize, value: Value, model: &Model) -> Result<LinkRead, Mode
     let end = |key: &str, f: &mut Fields| -> Result<usize, ModelError> {
         let id = f.string(key)?.ok_or_else(|| f.missing(key))?;
         model.node_index(&id).ok_or_else(|| {
-            let hint = suggest(&id, model.nodes().iter().map(|n| n.id.as_str()))
-                .map(|s| format!(" (did you mean '{s}'?)"))
-                .unwrap_or_default();
+            let hint = did_you_mean(&id, model.nodes().iter().map(|n| n.id.as_str()), '\'');
             f.error(key, format!("refers to node '{}', which is not defined{hint}", crate::error::printable(&id)))
         })
     };
@@ -1253,8 +1274,7 @@ fn read_fittings(f: &mut Fields) -> Result<Vec<Fitting>, ModelError> {
         let text = e.string("kind")?.ok_or_else(|| e.error("kind", "is missing"))?;
         let Some(kind) = FittingKind::parse(&text) else {
             let names: Vec<&str> = FittingKind::ALL.iter().map(|k| k.label()).collect();
-            let hint =
-                suggest(&text, names.iter().copied()).map(|s| format!(" (did you mean \"{s}\"?)")).unwrap_or_default();
+            let hint = did_you_mean(&text, names.iter().copied(), '"');
             return Err(e.error(
                 "kind",
                 format!(
@@ -1335,9 +1355,14 @@ fn read_pressure_demand(
     Ok(PressureDemand { full_pressure, zero_pressure: zero, exponent })
 }
 
-/// Reads `[background_leakage]`.
-fn read_leakage(value: Value, units: &UnitSystem, options: &HydraulicOptions) -> Result<Leakage, ModelError> {
-    let el = Element::Table("background_leakage".into());
+/// Reads `[background_leakage]` (or the same table under its short name, `table`).
+fn read_leakage(
+    value: Value,
+    table: &str,
+    units: &UnitSystem,
+    options: &HydraulicOptions,
+) -> Result<Leakage, ModelError> {
+    let el = Element::Table(table.into());
     let mut f = Fields::from_value(el.clone(), value)?;
     f.reject_unknown(LEAKAGE_KEYS)?;
     let density = options.water_properties().density;
@@ -1468,8 +1493,7 @@ fn read_pump(f: &mut Fields, model: &Model) -> Result<Pump, ModelError> {
         }
         (None, Some(p)) => {
             // kW in SI models, horsepower in US-customary models.
-            let watts = if units.is_us_customary() { p * HORSEPOWER } else { p * 1e3 };
-            PumpDrive::Power(watts)
+            PumpDrive::Power(model.converter().to_si(Quantity::Power, p))
         }
     };
     let eff_points = pairs(f, "efficiency_curve", "flow, percent")?;
@@ -1505,9 +1529,7 @@ fn read_valve(f: &mut Fields, model: &Model, automatic: bool) -> Result<Valve, M
         )
     })?;
     let Some(valve) = ValveType::parse(&text) else {
-        let hint = suggest(&text, ValveType::ALL.iter().map(|v| v.label()))
-            .map(|s| format!(" (did you mean \"{s}\"?)"))
-            .unwrap_or_default();
+        let hint = did_you_mean(&text, ValveType::ALL.iter().map(|v| v.label()), '"');
         return Err(f.error(
             "valve",
             format!(
@@ -1517,12 +1539,7 @@ fn read_valve(f: &mut Fields, model: &Model, automatic: bool) -> Result<Valve, M
         ));
     };
     let raw = f.required_number("setting")?;
-    let density = model.options.water_properties().density;
-    let setting = match valve {
-        ValveType::PressureReducing | ValveType::PressureSustaining => units.pressure.to_head(raw, density),
-        ValveType::FlowControl => units.flow.to_si(raw),
-        ValveType::Throttle => raw,
-    };
+    let setting = model.converter().to_si(valve.setting_quantity(), raw);
     Ok(Valve {
         valve,
         diameter: units.diameter.to_si(f.required_number("diameter")?),
@@ -1603,9 +1620,7 @@ fn resolve_sources(model: &mut Model) -> Result<(), ModelError> {
         let name = &con.unit;
         let el = Some(Element::Constituent(con.id.clone()));
         let Some(i) = model.node_index(name) else {
-            let hint = suggest(name, model.nodes().iter().map(|n| n.id.as_str()))
-                .map(|s| format!(" (did you mean '{s}'?)"))
-                .unwrap_or_default();
+            let hint = did_you_mean(name, model.nodes().iter().map(|n| n.id.as_str()), '\'');
             return Err(ModelError::at(
                 el,
                 Some("source"),
@@ -1653,9 +1668,7 @@ fn read_mixing(f: &mut Fields) -> Result<Option<crate::quality::Mixing>, ModelEr
         Some("plug-flow") => Some(Mixing::PlugFlow),
         Some("stacked") => Some(Mixing::Stacked),
         Some(other) => {
-            let hint = suggest(other, Mixing::LABELS.iter().copied())
-                .map(|s| format!(" (did you mean \"{s}\"?)"))
-                .unwrap_or_default();
+            let hint = did_you_mean(other, Mixing::LABELS.iter().copied(), '"');
             return Err(f.error(
                 "mixing",
                 format!(
@@ -1690,9 +1703,7 @@ fn read_node_quality(f: &mut Fields, node: usize, time: &mut TimeData) -> Result
         let mut out = Vec::new();
         for (k, v) in entries {
             let Some(c) = q.index(k.as_ref()) else {
-                let hint = suggest(k.as_ref(), q.constituents.iter().map(|c| c.id.as_str()))
-                    .map(|s| format!(" (did you mean '{s}'?)"))
-                    .unwrap_or_default();
+                let hint = did_you_mean(k.as_ref(), q.constituents.iter().map(|c| c.id.as_str()), '\'');
                 let known = if q.constituents.is_empty() {
                     "the model has no [[quality]] entries".to_owned()
                 } else {
@@ -1963,9 +1974,7 @@ fn read_control(index: usize, value: Value, model: &Model) -> Result<Control, Mo
     }
     let link_id = f.string("link")?.ok_or_else(|| f.missing("link"))?;
     let Some(link) = model.link_index(&link_id) else {
-        let hint = suggest(&link_id, model.links().iter().map(|l| l.id.as_str()))
-            .map(|s| format!(" (did you mean '{s}'?)"))
-            .unwrap_or_default();
+        let hint = did_you_mean(&link_id, model.links().iter().map(|l| l.id.as_str()), '\'');
         return Err(f.error(
             "link",
             format!("refers to link '{}', which is not defined{hint}", crate::error::printable(&link_id)),
@@ -2009,14 +2018,7 @@ fn read_control(index: usize, value: Value, model: &Model) -> Result<Control, Mo
                     format!("only valves have a setting; link '{link_id}' is a {}", l.kind.label()),
                 ));
             };
-            let units = &model.units;
-            let si = match valve.valve {
-                ValveType::PressureReducing | ValveType::PressureSustaining => {
-                    units.pressure.to_head(v, model.options.water_properties().density)
-                }
-                ValveType::FlowControl => units.flow.to_si(v),
-                ValveType::Throttle => v,
-            };
+            let si = model.converter().to_si(valve.valve.setting_quantity(), v);
             let ok = match valve.valve {
                 ValveType::PressureReducing | ValveType::PressureSustaining => si.is_finite(),
                 _ => si.is_finite() && si >= 0.0,
@@ -2050,9 +2052,7 @@ fn read_condition(parent: &Fields, prefix: String, value: Value, model: &Model) 
         match model.node_index(&id) {
             Some(i) => Ok(Some(i)),
             None => {
-                let hint = suggest(&id, model.nodes().iter().map(|n| n.id.as_str()))
-                    .map(|s| format!(" (did you mean '{s}'?)"))
-                    .unwrap_or_default();
+                let hint = did_you_mean(&id, model.nodes().iter().map(|n| n.id.as_str()), '\'');
                 Err(f.error(
                     key,
                     format!("refers to node '{}', which is not defined{hint}", crate::error::printable(&id)),

@@ -15,6 +15,7 @@ pub mod doc;
 pub mod file;
 mod index;
 pub mod outflow;
+pub mod scan;
 pub mod time;
 pub mod write;
 
@@ -22,7 +23,7 @@ use crate::error::{Element, ModelError};
 use crate::physics::fittings::{Fitting, FittingKind, FittingsMethod};
 use crate::physics::pump::{Efficiency, HeadCurve};
 use crate::physics::WaterProperties;
-use crate::units::UnitSystem;
+use crate::units::{Converter, Quantity, UnitSystem};
 use index::{IdIndex, Insert};
 use std::collections::BTreeMap;
 
@@ -290,6 +291,16 @@ pub enum ValveType {
 }
 
 impl ValveType {
+    /// What the setting of this type of valve is: a pressure (pressure-reducing and
+    /// pressure-sustaining), a flow (flow-control) or a loss coefficient (throttle).
+    pub fn setting_quantity(self) -> Quantity {
+        match self {
+            ValveType::PressureReducing | ValveType::PressureSustaining => Quantity::Pressure,
+            ValveType::FlowControl => Quantity::Flow,
+            ValveType::Throttle => Quantity::LossCoefficient,
+        }
+    }
+
     /// Every valve type.
     pub const ALL: &'static [ValveType] =
         &[ValveType::PressureReducing, ValveType::PressureSustaining, ValveType::FlowControl, ValveType::Throttle];
@@ -731,6 +742,16 @@ impl Model {
         Model { units, options, ..Model::default() }
     }
 
+    /// The converter between SI and this model's units (its unit system, its water's density
+    /// for pressures, its friction formula for pipe roughness).
+    pub fn converter(&self) -> Converter {
+        Converter::new(
+            self.units,
+            self.options.water_properties().density,
+            self.options.headloss == HeadLossLaw::HazenWilliams,
+        )
+    }
+
     /// All nodes, in the order they were added.
     pub fn nodes(&self) -> &[Node] {
         &self.nodes
@@ -1139,12 +1160,9 @@ impl Model {
         Ok(())
     }
 
-    /// Checks that the model can be solved: [`Model::check_data`], and no outflow that depends
-    /// on pressure, which this version reads and writes but does not solve yet (solving as if
-    /// every junction drew its fixed demand would give wrong answers exactly where they matter).
+    /// Checks that the model can be solved ([`Model::check_data`]).
     pub fn validate(&self) -> Result<(), ModelError> {
-        self.check_data()?;
-        self.outflow.check_solvable(self)
+        self.check_data()
     }
 
     /// Checks the whole network: at least one node with a fixed head, plausible water, and

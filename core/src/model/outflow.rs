@@ -114,12 +114,19 @@ impl NodeOutflow {
     }
 }
 
-/// The laws of a model's junctions (only junctions with a relation have an entry); demands not
-/// given a law stay fixed.
+/// The laws of a model's junctions (only junctions with a relation have an entry, in node
+/// order); demands not given a law stay fixed.
 #[derive(Clone, Debug, PartialEq, Default)]
 pub struct OutflowLaws {
-    /// Node index → its relations.
-    pub nodes: BTreeMap<usize, NodeOutflow>,
+    /// (node index, its relations), by node index.
+    pub nodes: Vec<(usize, NodeOutflow)>,
+}
+
+impl OutflowLaws {
+    /// The relations of node `i`, if it has any.
+    pub fn get(&self, i: usize) -> Option<&NodeOutflow> {
+        self.nodes.binary_search_by_key(&i, |(j, _)| *j).ok().map(|at| &self.nodes[at].1)
+    }
 }
 
 impl OutflowData {
@@ -149,62 +156,51 @@ impl OutflowData {
     /// demands, inflows, stay fixed). Pipe leaks go half to each end, driven by that end's
     /// pressure; halves at a reservoir or tank are not modelled; closed pipes leak too.
     pub fn laws(&self, model: &Model, demands: &[f64]) -> OutflowLaws {
-        let mut nodes: BTreeMap<usize, NodeOutflow> = BTreeMap::new();
-        if self.pressure_demand.is_some() {
-            for (i, n) in model.nodes().iter().enumerate() {
-                let d = demands[i];
-                if matches!(n.kind, NodeKind::Junction { .. }) && d > 0.0 {
-                    if let Some(v) = self.demand_values(i) {
-                        nodes.entry(i).or_default().demand =
-                            Some(PowerLaw::demand(d, v.zero_pressure, v.full_pressure, v.exponent));
-                    }
-                }
-            }
-        }
-        for (&i, j) in &self.junctions {
-            if let Some(o) = j.outlet.filter(|o| o.coefficient > 0.0) {
-                nodes.entry(i).or_default().outlet = Some(PowerLaw::orifice(o.coefficient, o.exponent));
-            }
-        }
+        let nodes = model.nodes();
+        let mut leak: Vec<f64> = Vec::new();
         if let Some(table) = self.leakage {
-            let mut leak: BTreeMap<usize, f64> = BTreeMap::new();
+            leak.resize(nodes.len(), 0.0);
             for (k, l) in model.links().iter().enumerate() {
                 let Some(pipe) = l.as_pipe() else { continue };
-                let rate = self.leakage_rate(k).unwrap_or(table.rate);
-                let half = 0.5 * rate * pipe.length;
-                if half <= 0.0 {
-                    continue;
-                }
-                for end in [l.from, l.to] {
-                    if matches!(model.nodes()[end].kind, NodeKind::Junction { .. }) {
-                        *leak.entry(end).or_default() += half;
-                    }
+                let half = 0.5 * self.leakage_rates.get(&k).copied().unwrap_or(table.rate) * pipe.length;
+                if half > 0.0 {
+                    leak[l.from] += half;
+                    leak[l.to] += half;
                 }
             }
-            for (i, c) in leak {
-                nodes.entry(i).or_default().leakage =
-                    Some(PowerLaw::leakage(c, table.reference_pressure, table.exponent));
+        }
+        let mut outlets = self.junctions.iter().filter_map(|(&i, j)| j.outlet.map(|o| (i, o))).peekable();
+        let mut laws = Vec::new();
+        for (i, n) in nodes.iter().enumerate() {
+            let mut here = NodeOutflow::default();
+            while let Some(&(j, o)) = outlets.peek() {
+                if j > i {
+                    break;
+                }
+                outlets.next();
+                if j == i && o.coefficient > 0.0 {
+                    here.outlet = Some(PowerLaw::orifice(o.coefficient, o.exponent));
+                }
+            }
+            if !matches!(n.kind, NodeKind::Junction { .. }) {
+                continue;
+            }
+            let d = demands[i];
+            if d > 0.0 {
+                if let Some(v) = self.demand_values(i) {
+                    here.demand = Some(PowerLaw::demand(d, v.zero_pressure, v.full_pressure, v.exponent));
+                }
+            }
+            if let (Some(table), Some(&c)) = (self.leakage, leak.get(i)) {
+                if c > 0.0 {
+                    here.leakage = Some(PowerLaw::leakage(c, table.reference_pressure, table.exponent));
+                }
+            }
+            if !here.is_empty() {
+                laws.push((i, here));
             }
         }
-        OutflowLaws { nodes }
-    }
-
-    /// Refuses a model whose outflows depend on pressure: this version reads and writes them but
-    /// its solver does not compute them yet.
-    pub fn check_solvable(&self, model: &Model) -> Result<(), ModelError> {
-        const WHY: &str = "pressure-dependent outflows are read and written by this version of ringmain, but its \
-                           solver does not compute them yet (solving with fixed demands would give wrong answers)";
-        if self.pressure_demand.is_some() {
-            return Err(ModelError::at(Some(Element::Table("pressure_demand".into())), None, WHY));
-        }
-        if self.leakage.is_some() {
-            return Err(ModelError::at(Some(Element::Table("background_leakage".into())), None, WHY));
-        }
-        if let Some((&i, _)) = self.junctions.iter().find(|(_, j)| j.outlet.is_some()) {
-            let id = model.nodes().get(i).map(|n| n.id.to_string()).unwrap_or_default();
-            return Err(ModelError::at(Some(Element::Node(id)), Some("outlet"), WHY));
-        }
-        Ok(())
+        OutflowLaws { nodes: laws }
     }
 
     /// Checks the whole: overrides only with `[pressure_demand]`, per-pipe rates only with

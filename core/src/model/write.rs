@@ -14,10 +14,10 @@
 
 use super::file::Format;
 use super::time::{self as tm, Action, Condition};
-use super::{HeadLossLaw, LinkKind, LinkStatus, Model, NodeKind, PumpDrive, ValveType, WaterSpec};
+use super::{LinkKind, LinkStatus, Model, NodeKind, PumpDrive, ValveType, WaterSpec};
 use crate::physics::fittings::Fitting;
 use crate::physics::pump::Efficiency;
-use crate::units::HORSEPOWER;
+use crate::units::{Converter, Quantity};
 use serde::ser::{SerializeMap, Serializer};
 use serde::Serialize;
 use std::io::{self, Write};
@@ -160,28 +160,30 @@ impl serde_json::ser::Formatter for ElementPerLine {
     }
 }
 
-/// What every part of the file needs: the model and its water density (for pressures).
+/// What every part of the file needs: the model, and the converter to its units.
 #[derive(Clone, Copy)]
 struct Ctx<'a> {
     model: &'a Model,
     density: f64,
+    units: Converter,
 }
 
 impl<'a> Ctx<'a> {
     fn new(model: &'a Model) -> Self {
-        Ctx { model, density: model.options.water_properties().density }
+        let units = model.converter();
+        Ctx { model, density: units.density, units }
     }
     fn len(self, v: f64) -> f64 {
-        self.model.units.length.from_si(v)
+        self.units.from_si(Quantity::Length, v)
     }
     fn flow(self, v: f64) -> f64 {
-        self.model.units.flow.from_si(v)
+        self.units.from_si(Quantity::Flow, v)
     }
     fn diameter(self, v: f64) -> f64 {
-        self.model.units.diameter.from_si(v)
+        self.units.from_si(Quantity::Diameter, v)
     }
     fn pressure(self, head: f64) -> f64 {
-        self.model.units.pressure.from_head(head, self.density)
+        self.units.from_si(Quantity::Pressure, head)
     }
     fn pattern(self, i: usize) -> &'a str {
         &self.model.time.patterns[i].id
@@ -191,11 +193,7 @@ impl<'a> Ctx<'a> {
     }
     /// A valve setting (or a control's new setting) in the model's units.
     fn setting(self, valve: Option<ValveType>, s: f64) -> f64 {
-        match valve {
-            Some(ValveType::PressureReducing | ValveType::PressureSustaining) => self.pressure(s),
-            Some(ValveType::FlowControl) => self.flow(s),
-            Some(ValveType::Throttle) | None => s,
-        }
+        valve.map_or(s, |v| self.units.from_si(v.setting_quantity(), s))
     }
     fn axis(self, axis: Axis, v: f64) -> f64 {
         match axis {
@@ -766,7 +764,6 @@ fn fitting_entries(fittings: &[Fitting]) -> Option<Vec<FittingEntry>> {
 
 fn link_entry(c: Ctx<'_>, k: usize) -> LinkEntry<'_> {
     let m = c.model;
-    let u = &m.units;
     let l = &m.links()[k];
     let time = &m.time;
     let mut e = LinkEntry {
@@ -782,10 +779,7 @@ fn link_entry(c: Ctx<'_>, k: usize) -> LinkEntry<'_> {
         LinkKind::Pipe(p) => {
             e.length = Some(c.len(p.length));
             e.diameter = Some(c.diameter(p.diameter));
-            e.roughness = Some(match m.options.headloss {
-                HeadLossLaw::HazenWilliams => p.roughness,
-                HeadLossLaw::DarcyWeisbach => u.roughness.from_si(p.roughness),
-            });
+            e.roughness = Some(c.units.from_si(Quantity::PipeRoughness, p.roughness));
             e.minor_loss = Some(p.minor_loss);
             e.fittings = fitting_entries(m.fittings(k));
             e.check_valve = Some(p.check_valve);
@@ -796,7 +790,7 @@ fn link_entry(c: Ctx<'_>, k: usize) -> LinkEntry<'_> {
                 PumpDrive::Curve { points, .. } => {
                     e.head_curve = Some(Points { ctx: c, points, x: Axis::Flow, y: Axis::Length });
                 }
-                PumpDrive::Power(w) => e.power = Some(if u.is_us_customary() { w / HORSEPOWER } else { w / 1e3 }),
+                PumpDrive::Power(w) => e.power = Some(c.units.from_si(Quantity::Power, *w)),
             }
             match (&p.efficiency_points, &p.efficiency) {
                 (Some(points), _) => {

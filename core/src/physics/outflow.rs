@@ -198,12 +198,27 @@ impl PowerLaw {
     /// would climb back only slowly (the barrier's conductance is tiny). Convex inverses
     /// (exponents up to one) converge from the right monotonically and are left alone. The
     /// safeguard changes the path of the iteration, not the solution (a point on the relation).
+    /// At or below `base` it is not applied: there the regularised relation's flow is a hair
+    /// below zero (the barrier), and holding it at zero would leave the relation off its curve.
     pub fn advance(&self, step: Step, delta: f64, p_new: f64) -> f64 {
         let next = step.constant + step.conductance * delta;
-        if self.exponent > 1.0 {
+        if self.exponent > 1.0 && p_new > self.base {
             next.max(self.flow(p_new))
         } else {
             next
+        }
+    }
+
+    /// Distance in pressure head of the point `(q, p)` from the exact relation's graph (its
+    /// vertical parts included: any pressure at or below the zero pressure with no flow, any
+    /// pressure at or above full pressure with the whole demand), m.
+    pub fn distance(&self, q: f64, p: f64) -> f64 {
+        if q <= 0.0 {
+            (p - self.base).max(0.0)
+        } else if self.capped && q >= self.flow {
+            (self.base + self.scale - p).max(0.0)
+        } else {
+            (p - self.pressure(q)).abs()
         }
     }
 }

@@ -98,7 +98,7 @@ pub fn evaluate(
                 "names a constituent the run does not have",
             ));
         }
-        let mut check = CheckResult::new(format!("min_residual.{}", run.constituents[c].id), Quantity::None, limit);
+        let mut check = CheckResult::new(format!("min_residual.{}", run.constituents[c].id), Quantity::Number, limit);
         for w in worst_per_junction(model, run, c, false, criteria.after) {
             check.checked += 1;
             if w.value < limit {

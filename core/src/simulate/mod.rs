@@ -275,6 +275,8 @@ struct Sums {
     supplied: f64,
     delivered: f64,
     unsupplied: f64,
+    leaked: f64,
+    outlets: f64,
     /// Per pump: seconds running, m³ pumped, shaft J, hydraulic J.
     pumps: Vec<[f64; 4]>,
 }
@@ -292,6 +294,8 @@ impl Sums {
             s.supplied += hw * st.supplied;
             s.delivered += hw * st.delivered;
             s.unsupplied += hw * st.unsupplied;
+            s.leaked += hw * st.leaked;
+            s.outlets += hw * st.outlets;
             for (acc, p) in s.pumps.iter_mut().zip(&st.pumps) {
                 acc[0] += hw * p[0];
                 acc[1] += hw * p[1];
@@ -306,6 +310,8 @@ impl Sums {
         self.supplied += o.supplied;
         self.delivered += o.delivered;
         self.unsupplied += o.unsupplied;
+        self.leaked += o.leaked;
+        self.outlets += o.outlets;
         for (a, b) in self.pumps.iter_mut().zip(&o.pumps) {
             for i in 0..4 {
                 a[i] += b[i];
@@ -1018,6 +1024,8 @@ impl<'m> Engine<'m> {
                 delivered: self.totals.delivered,
                 storage_change,
                 unsupplied: self.totals.unsupplied,
+                leaked: self.totals.leaked,
+                outlets: self.totals.outlets,
             },
             events: self.events,
             statistics: self.stats,

@@ -93,8 +93,13 @@ pub struct Stage {
     pub supplied: f64,
     /// Demand met at connected junctions, m³/s.
     pub delivered: f64,
-    /// Demand of junctions cut off from every source, m³/s.
+    /// Demand asked but not delivered (junctions cut off from every source, or short of
+    /// pressure where demand follows pressure), m³/s.
     pub unsupplied: f64,
+    /// Background leakage, m³/s.
+    pub leaked: f64,
+    /// Flow of the outlets, m³/s.
+    pub outlets: f64,
     /// Per pump (in the order of [`Network::pumps`]): running (1 or 0), flow m³/s, shaft power W,
     /// hydraulic power W.
     pub pumps: Vec<[f64; 4]>,
@@ -368,15 +373,16 @@ impl Network {
                 }
             }
         }
-        let (mut delivered, mut unsupplied) = (0.0, 0.0);
+        let (mut delivered, mut unsupplied, mut leaked, mut outlets) = (0.0, 0.0, 0.0, 0.0);
         for (i, n) in model.nodes().iter().enumerate() {
             if n.fixed_head().is_none() {
-                let demand = self.conditions.demand(i);
-                if solution.connected[i] {
-                    delivered += demand;
-                } else {
-                    unsupplied += demand;
-                }
+                // What the junction received, and what it asked but did not get (cut off, or its
+                // pressure too low where demand follows pressure).
+                let got = solution.delivered(i);
+                delivered += got;
+                unsupplied += solution.demand[i] - got;
+                leaked += solution.leakage(i);
+                outlets += solution.outlet(i);
             }
         }
         let pumps = self
@@ -391,7 +397,7 @@ impl Network {
                 }
             })
             .collect();
-        Stage { tank_inflow, supplied, delivered, unsupplied, pumps, solution }
+        Stage { tank_inflow, supplied, delivered, unsupplied, leaked, outlets, pumps, solution }
     }
 
     /// Takes tank `j` out of its limit mode and reopens the links closed for it.

@@ -109,7 +109,8 @@ impl PumpSummary {
     }
 }
 
-/// The volume balance of the whole run, m³: supplied = delivered + change in storage + discrepancy.
+/// The volume balance of the whole run, m³: supplied = delivered + leaked + outlets + change in
+/// storage + discrepancy.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct Balance {
     /// Net volume the reservoirs gave the network.
@@ -118,14 +119,19 @@ pub struct Balance {
     pub delivered: f64,
     /// Increase of the volume stored in tanks (end minus start).
     pub storage_change: f64,
-    /// Demand of junctions cut off from every source, not delivered.
+    /// Demand asked but not delivered: at junctions cut off from every source, or short of
+    /// pressure where demand follows pressure.
     pub unsupplied: f64,
+    /// Volume of background leakage.
+    pub leaked: f64,
+    /// Volume through outlets.
+    pub outlets: f64,
 }
 
 impl Balance {
-    /// supplied − delivered − change in storage, m³.
+    /// supplied − delivered − leaked − outlets − change in storage, m³.
     pub fn discrepancy(&self) -> f64 {
-        self.supplied - self.delivered - self.storage_change
+        self.supplied - self.delivered - self.leaked - self.outlets - self.storage_change
     }
 
     /// The discrepancy relative to the larger of the volumes supplied and delivered.

@@ -4,6 +4,7 @@
 use super::structure::NONE;
 use super::{links, Pinned, Solver};
 use crate::model::Model;
+use crate::physics::outflow::Step;
 
 // How a core link enters the current iteration (the low two bits of its mode byte), which of its
 // ends are free unknowns, and whether its law is evaluated through its `LinkLaw` (the bits above).
@@ -113,8 +114,18 @@ impl Solver {
     /// its setting. An active pressure valve's flow is whatever the mass balance of the node it
     /// pins requires; that flow enters the other node's balance at the next step, so at
     /// convergence both balances hold.
-    pub(super) fn update_links(&mut self, model: &Model, secant: bool) -> (f64, f64) {
-        let (mut sum_dq, mut sum_q, mut residual) = (0.0, self.tree_flow_sum, 0.0f64);
+    ///
+    /// With `damping` α below one (see `iterate`) each link moves by α of its Newton step
+    /// (`Q + α (Q_newton − Q)`), the head corrections having been scaled by α already.
+    pub(super) fn update_links(
+        &mut self,
+        model: &Model,
+        secant: bool,
+        relations: RelationChange,
+        damping: f64,
+    ) -> (f64, f64) {
+        let (mut sum_dq, mut sum_q, mut residual) =
+            (relations.sum_dq, self.tree_flow_sum + relations.sum_q, relations.residual);
         // One pass with the fields borrowed apart, so that the loop runs over plain slices.
         let structure = &*self.structure;
         let (laws, delta, unknown_head, head) = (&self.laws, &self.delta, &self.unknown_head, &self.head);
@@ -134,7 +145,12 @@ impl Solver {
                     } else {
                         (delta[s.to as usize], unknown_head[s.to as usize])
                     };
-                    let q = *cc + *cp * (d_from - d_to);
+                    let q = if damping == 1.0 {
+                        *cc + *cp * (d_from - d_to)
+                    } else {
+                        // The head corrections are α δ: the full step's flow is c + p δ.
+                        *cq + damping * (*cc + *cp * (d_from - d_to) / damping - *cq)
+                    };
                     let dh = h_from - h_to;
                     let general = mode & LAW_GENERAL != 0;
                     let (y, g) = if general {
@@ -174,7 +190,7 @@ impl Solver {
                 let (core, node) = (core as usize, node as usize);
                 // Net inflow the pinned node needs from this valve: its demand plus its outflow
                 // through every other link, minus its inflow through them.
-                let mut need = self.demand[node];
+                let mut need = self.demand[node] + self.relation_outflow(node);
                 for &j in self.structure.adjacency.of(node) {
                     if j == link {
                         continue;
@@ -244,5 +260,95 @@ impl Solver {
                 self.rhs[u] = 0.0;
             }
         }
+    }
+}
+
+/// What the relations of pressure contributed to an iteration's convergence measures.
+#[derive(Clone, Copy, Debug, Default)]
+pub(super) struct RelationChange {
+    /// Σ|Δq|, m³/s.
+    pub sum_dq: f64,
+    /// Σ|q|, m³/s.
+    pub sum_q: f64,
+    /// Largest |p − P(q)| on the regularised relations, m.
+    pub residual: f64,
+}
+
+impl Solver {
+    /// Head of junction `node` in the iteration.
+    #[inline]
+    fn iterate_head(&self, node: usize) -> f64 {
+        match self.structure.unknown_of_node[node] {
+            NONE => self.head[node],
+            u => self.unknown_head[u as usize],
+        }
+    }
+
+    /// The flow of the relations of pressure at junction `node`, m³/s.
+    pub(super) fn relation_outflow(&self, node: usize) -> f64 {
+        let start = self.relations.partition_point(|r| (r.node as usize) < node);
+        self.relations[start..].iter().take_while(|r| r.node as usize == node).map(|r| r.q).sum()
+    }
+
+    /// Linearises every relation of pressure at its flow and its junction's head, and adds it to
+    /// the matrix (after [`Solver::begin_assembly`]). Relations of cut-off junctions pass nothing.
+    pub(super) fn scatter_relations(&mut self) {
+        let w = self.relation_tolerance;
+        for i in 0..self.relations.len() {
+            let node = self.relations[i].node as usize;
+            if !self.connected[node] {
+                let r = &mut self.relations[i];
+                r.q = 0.0;
+                r.step = Step { conductance: 0.0, constant: 0.0 };
+                continue;
+            }
+            let p = self.iterate_head(node) - self.relations[i].elevation;
+            let r = &mut self.relations[i];
+            r.step = r.law.step(r.q, p, w);
+            self.scatter_relation(i);
+        }
+    }
+
+    /// Adds relation `i`'s linearisation to its junction's row, if the junction is free.
+    #[inline]
+    fn scatter_relation(&mut self, i: usize) {
+        let r = &self.relations[i];
+        let u = self.structure.unknown_of_node[r.node as usize];
+        if u != NONE && self.free[u as usize] {
+            self.factor.values[self.structure.diag_slot[u as usize] as usize] += r.step.conductance;
+            self.rhs[u as usize] -= r.step.constant;
+        }
+    }
+
+    /// New flows of the relations from the head corrections in `delta` (the heads already
+    /// corrected), linearised at once for the next step and added to the next matrix.
+    pub(super) fn update_relations(&mut self, damping: f64) -> RelationChange {
+        let mut change = RelationChange::default();
+        let w = self.relation_tolerance;
+        for i in 0..self.relations.len() {
+            let node = self.relations[i].node as usize;
+            if !self.connected[node] {
+                continue;
+            }
+            let u = self.structure.unknown_of_node[node];
+            let delta = if u != NONE && self.free[u as usize] { self.delta[u as usize] } else { 0.0 };
+            let p = self.iterate_head(node) - self.relations[i].elevation;
+            let r = &mut self.relations[i];
+            let q = if damping == 1.0 {
+                r.law.advance(r.step, delta, p)
+            } else {
+                let full = r.law.advance(r.step, delta / damping, p - delta + delta / damping);
+                r.q + damping * (full - r.q)
+            };
+            let inverse = r.law.inverse(q, w);
+            let g = 1.0 / inverse.slope;
+            change.sum_dq += (q - r.q).abs();
+            change.sum_q += q.abs();
+            change.residual = change.residual.max((p - inverse.pressure).abs());
+            r.q = q;
+            r.step = Step { conductance: g, constant: q + g * (p - inverse.pressure) };
+            self.scatter_relation(i);
+        }
+        change
     }
 }

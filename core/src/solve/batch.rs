@@ -14,6 +14,7 @@
 use super::{Conditions, Solution, SolveOptions, Solver};
 use crate::error::{printable, Element, ModelError, SolveError};
 use crate::model::{LinkStatus, Model};
+use crate::units::did_you_mean;
 
 /// A change of a network's conditions: some links' user status set, every junction's demand
 /// scaled. What the criteria checks call a what-if case, the each-pipe-closed sweep a closure,
@@ -40,9 +41,7 @@ impl Scenario {
         let mut statuses = Vec::with_capacity(close.len());
         for id in close {
             let Some(k) = model.link_index(id) else {
-                let hint = crate::units::suggest(id, model.links().iter().map(|l| l.id.as_str()))
-                    .map(|s| format!(" (did you mean '{s}'?)"))
-                    .unwrap_or_default();
+                let hint = did_you_mean(id, model.links().iter().map(|l| l.id.as_str()), '\'');
                 return Err(ModelError::at(
                     Some(Element::Link(id.clone())),
                     None,

@@ -19,7 +19,8 @@
 //! # Validation
 //! Every setter checks its value (finite, in range, the right kind of element) and returns a
 //! [`ModelError`] naming the element's id and the key, so that [`Solver::solve`](super::Solver::solve)
-//! does not have to check the arrays again. The setters take the model for the element's kind and
+//! does not have to check the arrays again. The values obey the rules the model reader applies
+//! (the same checks, the same messages). The setters take the model for the element's kind and
 //! id (the conditions themselves keep values only).
 //!
 //! # Which laws are stale
@@ -34,7 +35,7 @@
 
 use super::nodes::NodeLaw;
 use crate::error::{Element, ModelError};
-use crate::model::{HeadLossLaw, LinkKind, LinkStatus, Model, NodeKind, ValveType};
+use crate::model::{check_value, HeadLossLaw, LinkKind, LinkStatus, Model, NodeKind, Rule, ValveType};
 use std::sync::atomic::{AtomicU64, Ordering};
 
 /// Source of the identities of conditions (see the module docs).
@@ -65,6 +66,8 @@ pub struct Conditions {
     minor_loss: Vec<f64>,
     /// How junctions draw water.
     node_law: NodeLaw,
+    /// Draws at junctions that do not follow pressure (a fire draw), m³/s, by node.
+    draws: Vec<(u32, f64)>,
     identity: u64,
     /// Links whose law inputs changed, in order (see the module docs).
     journal: Vec<u32>,
@@ -84,6 +87,7 @@ impl Clone for Conditions {
             roughness: self.roughness.clone(),
             minor_loss: self.minor_loss.clone(),
             node_law: self.node_law,
+            draws: self.draws.clone(),
             identity: fresh_identity(),
             journal: Vec::new(),
         }
@@ -112,7 +116,8 @@ impl Conditions {
             diameter: Vec::with_capacity(links.len()),
             roughness: Vec::with_capacity(links.len()),
             minor_loss: Vec::with_capacity(links.len()),
-            node_law: NodeLaw::FixedDemand,
+            node_law: NodeLaw::of_model(model),
+            draws: Vec::new(),
             identity: fresh_identity(),
             journal: Vec::new(),
         };
@@ -209,6 +214,11 @@ impl Conditions {
         self.node_law
     }
 
+    /// The fixed draws at junctions (node index, m³/s), in the order they were set.
+    pub fn fixed_draws(&self) -> &[(u32, f64)] {
+        &self.draws
+    }
+
     /// Flow area of pipe or valve `k` at its current diameter, m² (zero for pumps).
     pub fn flow_area(&self, k: usize) -> f64 {
         let d = self.diameter[k];
@@ -232,7 +242,7 @@ impl Conditions {
                 format!("only junctions have a demand; this node is a {}", node.kind.label()),
             ));
         }
-        finite(demand).map_err(|m| at_node(model, i, "demand", m))?;
+        check_value(node, "demand", demand, Rule::Finite)?;
         self.demand[i] = demand;
         Ok(())
     }
@@ -249,7 +259,9 @@ impl Conditions {
         }
         for (i, (&d, n)) in demands.iter().zip(model.nodes()).enumerate() {
             match n.kind {
-                NodeKind::Junction { .. } => finite(d).map_err(|m| at_node(model, i, "demand", m))?,
+                NodeKind::Junction { .. } => {
+                    check_value(n, "demand", d, Rule::Finite)?;
+                }
                 _ if d != 0.0 => {
                     return Err(at_node(
                         model,
@@ -289,7 +301,7 @@ impl Conditions {
                 format!("only reservoirs have a head; this node is a {}", node.kind.label()),
             ));
         }
-        finite(head).map_err(|m| at_node(model, i, "head", m))?;
+        check_value(node, "head", head, Rule::Finite)?;
         self.fixed_head[i] = head;
         Ok(())
     }
@@ -306,9 +318,7 @@ impl Conditions {
                 format!("only tanks have a level; this node is a {}", node.kind.label()),
             ));
         }
-        if !(level.is_finite() && level >= 0.0) {
-            return Err(at_node(model, i, "level", format!("must be a finite number, zero or more, found {level}")));
-        }
+        check_value(node, "level", level, Rule::NonNegative)?;
         self.fixed_head[i] = node.elevation + level;
         Ok(())
     }
@@ -351,9 +361,7 @@ impl Conditions {
                 format!("only pumps have a speed; this link is a {}", l.kind.label()),
             ));
         }
-        if !(speed.is_finite() && speed >= 0.0) {
-            return Err(at_link(model, k, "speed", format!("must be a finite number, zero or more, found {speed}")));
-        }
+        check_value(l, "speed", speed, Rule::NonNegative)?;
         if self.setting[k] != speed {
             self.setting[k] = speed;
             self.journal(k);
@@ -373,11 +381,11 @@ impl Conditions {
                 format!("only valves have a setting; this link is a {}", l.kind.label()),
             ));
         };
-        match v.valve {
-            ValveType::PressureReducing | ValveType::PressureSustaining => finite(setting),
-            ValveType::FlowControl | ValveType::Throttle => non_negative(setting),
-        }
-        .map_err(|m| at_link(model, k, "setting", m))?;
+        let rule = match v.valve {
+            ValveType::PressureReducing | ValveType::PressureSustaining => Rule::Finite,
+            ValveType::FlowControl | ValveType::Throttle => Rule::NonNegative,
+        };
+        check_value(l, "setting", setting, rule)?;
         if self.setting[k] != setting {
             self.setting[k] = setting;
             if v.valve == ValveType::Throttle {
@@ -393,9 +401,7 @@ impl Conditions {
         if l.as_pump().is_some() {
             return Err(at_link(model, k, "diameter", "pumps have no diameter"));
         }
-        if !(diameter.is_finite() && diameter > 0.0) {
-            return Err(at_link(model, k, "diameter", format!("must be a finite number above zero, found {diameter}")));
-        }
+        check_value(l, "diameter", diameter, Rule::Positive)?;
         if self.diameter[k] != diameter {
             self.diameter[k] = diameter;
             self.journal(k);
@@ -415,14 +421,7 @@ impl Conditions {
                 format!("only pipes have a roughness; this link is a {}", l.kind.label()),
             ));
         }
-        if !(roughness.is_finite() && roughness > 0.0) {
-            return Err(at_link(
-                model,
-                k,
-                "roughness",
-                format!("must be a finite number above zero, found {roughness}"),
-            ));
-        }
+        check_value(l, "roughness", roughness, Rule::Positive)?;
         if model.options.headloss == HeadLossLaw::HazenWilliams && roughness < 1.0 {
             return Err(at_link(
                 model,
@@ -447,7 +446,7 @@ impl Conditions {
         if l.as_pump().is_some() {
             return Err(at_link(model, k, "minor_loss", "pumps have no minor-loss coefficient"));
         }
-        non_negative(minor_loss).map_err(|m| at_link(model, k, "minor_loss", m))?;
+        check_value(l, "minor_loss", minor_loss, Rule::NonNegative)?;
         if self.minor_loss[k] != minor_loss {
             self.minor_loss[k] = minor_loss;
             self.journal(k);
@@ -458,6 +457,28 @@ impl Conditions {
     /// Sets how junctions draw water.
     pub fn set_node_law(&mut self, law: NodeLaw) {
         self.node_law = law;
+    }
+
+    /// Sets a draw at junction `i` that does not follow pressure, m³/s, on top of its demand (a
+    /// fire draw at a hydrant: the flow the fire engine takes, whatever the pressure); zero
+    /// removes it. Unlike the demand it is not scaled by pressure-dependent demand.
+    pub fn set_fixed_draw(&mut self, model: &Model, i: usize, draw: f64) -> Result<(), ModelError> {
+        let node = node(model, i)?;
+        if !matches!(node.kind, NodeKind::Junction { .. }) {
+            return Err(at_node(
+                model,
+                i,
+                "draw",
+                format!("applies to junctions only; this node is a {}", node.kind.label()),
+            ));
+        }
+        check_value(node, "draw", draw, Rule::Finite)?;
+        match self.draws.iter_mut().find(|(j, _)| *j as usize == i) {
+            Some(entry) => entry.1 = draw,
+            None => self.draws.push((i as u32, draw)),
+        }
+        self.draws.retain(|&(_, q)| q != 0.0);
+        Ok(())
     }
 
     /// Copies every value of `other` (conditions of the same network) into these, logging the
@@ -484,6 +505,7 @@ impl Conditions {
         self.roughness.copy_from_slice(&other.roughness);
         self.minor_loss.copy_from_slice(&other.minor_loss);
         self.node_law = other.node_law;
+        self.draws.clone_from(&other.draws);
     }
 
     // ---- law staleness -------------------------------------------------------------------
@@ -536,20 +558,4 @@ fn at_node(model: &Model, i: usize, key: &str, message: impl Into<String>) -> Mo
 
 fn at_link(model: &Model, k: usize, key: &str, message: impl Into<String>) -> ModelError {
     ModelError::at(Some(Element::Link(model.links()[k].id.to_string())), Some(key), message)
-}
-
-fn finite(v: f64) -> Result<(), String> {
-    if v.is_finite() {
-        Ok(())
-    } else {
-        Err(format!("must be a finite number, found {v}"))
-    }
-}
-
-fn non_negative(v: f64) -> Result<(), String> {
-    if v.is_finite() && v >= 0.0 {
-        Ok(())
-    } else {
-        Err(format!("must be a finite number, zero or more, found {v}"))
-    }
 }

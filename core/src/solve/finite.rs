@@ -35,8 +35,12 @@ pub fn check(model: &Model, s: &Solution) -> Result<(), SolveError> {
         if !s.pressure[i].is_finite() {
             return Err(node(i, "pressure", s.pressure[i]));
         }
-        if !s.demand[i].is_finite() {
-            return Err(node(i, "demand", s.demand[i]));
+        for (quantity, value) in
+            [("demand", s.demand[i]), ("delivered", s.delivered(i)), ("leakage", s.leakage(i)), ("outlet", s.outlet(i))]
+        {
+            if !value.is_finite() {
+                return Err(node(i, quantity, value));
+            }
         }
     }
     for (k, l) in links.iter().enumerate() {

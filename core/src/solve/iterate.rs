@@ -11,6 +11,13 @@ use crate::error::{Element, Offender, SolveError};
 use crate::model::{LinkKind, Model, ValveType};
 use std::time::Instant;
 
+/// Largest mass residual of an answer, relative to the flow scale of the solve.
+const MASS_GATE: f64 = 1e-7;
+
+/// Full Newton steps after a change of device states before damped ones (with relations of
+/// pressure only; see `iterate`).
+const DAMPING_AFTER: u32 = 12;
+
 impl Solver {
     /// Iterates from the prepared laws, outflows and starting values to a solution whose device
     /// states all hold (see the [solver's docs](super) and [`status`]).
@@ -48,6 +55,7 @@ impl Solver {
                 for i in 0..self.structure.core.len() {
                     self.scatter(i);
                 }
+                self.scatter_relations();
                 self.end_assembly();
                 self.timings.assembly += clock.elapsed();
                 states_stale = false;
@@ -91,11 +99,21 @@ impl Solver {
             std::mem::swap(&mut self.rhs, &mut self.delta);
             head_change = 0.0;
             let mut finite = true;
-            for (u, &delta) in self.delta.iter().enumerate() {
+            // Relations of pressure make the Newton step's slopes span many orders of magnitude;
+            // an iteration that has not settled after a dozen full steps takes damped ones.
+            let damping = if self.relations.is_empty() || since_change <= DAMPING_AFTER {
+                1.0
+            } else if since_change <= 4 * DAMPING_AFTER {
+                0.5
+            } else {
+                0.25
+            };
+            for (u, delta) in self.delta.iter_mut().enumerate() {
                 if self.free[u] {
+                    *delta *= damping;
                     finite &= delta.is_finite();
                     head_change = head_change.max(delta.abs());
-                    self.unknown_head[u] += delta;
+                    self.unknown_head[u] += *delta;
                 }
             }
             if iterations == 1 {
@@ -104,7 +122,9 @@ impl Solver {
             }
             // The next step's matrix is filled as the new flows are computed.
             self.begin_assembly();
-            let (change, energy_residual) = self.update_links(model, !warm && iterations < SECANT_STEPS);
+            let relations = self.update_relations(damping);
+            let (change, energy_residual) =
+                self.update_links(model, !warm && iterations < SECANT_STEPS, relations, damping);
             self.end_assembly();
             flow_change = change;
             self.timings.assembly += solved.elapsed();
@@ -185,6 +205,42 @@ impl Solver {
         self.timings.results += clock.elapsed();
         self.timings.iterations = iterations;
         super::finite::check(model, &solution)?;
+        // The last gate: the mass balance holds to round-off (of the flows moving, or of the
+        // demand); an iteration that stopped elsewhere is not an answer.
+        // And every relation of pressure on its exact curve, within the smoothing (the iteration
+        // may stop at a point the smoothing cannot explain only by failing: never an answer).
+        let w = 10.0 * self.relation_tolerance;
+        let off_curve = self.relations.iter().find(|r| {
+            let i = r.node as usize;
+            if !solution.connected[i] {
+                return false;
+            }
+            let p = solution.pressure[i];
+            let q = if r.law.capped { r.q.clamp(0.0, r.law.flow) } else { r.q.max(0.0) };
+            // The flow tolerance allows each flow to move by its share of the relative change.
+            let slack = 1e-9 * r.law.flow + 10.0 * options.flow_tolerance * self.demand_scale;
+            q < r.law.flow(p - w) - slack || q > r.law.flow(p + w) + slack
+        });
+        if let Some(r) = off_curve {
+            return Err(SolveError::NotConverged {
+                iterations,
+                head_change,
+                flow_change,
+                energy_residual: solution.max_energy_residual,
+                worst_nodes: vec![Offender { id: nodes[r.node as usize].id.to_string(), value: head_change }],
+                worst_links: Vec::new(),
+            });
+        }
+        if solution.max_mass_residual > MASS_GATE * self.demand_scale {
+            return Err(SolveError::NotConverged {
+                iterations,
+                head_change,
+                flow_change,
+                energy_residual: solution.max_energy_residual,
+                worst_nodes: Vec::new(),
+                worst_links: Vec::new(),
+            });
+        }
         Ok(solution)
     }
 

@@ -90,8 +90,8 @@ pub mod topology;
 
 pub use batch::Scenario;
 pub use conditions::Conditions;
-pub use nodes::{NodeLaw, Outflow};
-pub use solution::{PumpResult, Solution, Warning};
+pub use nodes::{NodeLaw, Relation};
+pub use solution::{OutflowSummary, PumpResult, Solution, Warning};
 pub use timings::Timings;
 
 use crate::error::{ModelError, SolveError};
@@ -210,8 +210,13 @@ pub struct Solver {
     // Per node.
     connected: Vec<bool>,
     known_head: Vec<f64>,
-    /// Outflow of every node in this solve (its law evaluated; zero for fixed heads).
+    /// Fixed outflow of every node in this solve (its demand when it does not follow pressure,
+    /// and fixed draws; zero for fixed heads).
     demand: Vec<f64>,
+    /// The junctions' relations of pressure, by node (see [`nodes`]).
+    relations: Vec<nodes::NodeRelation>,
+    /// Pressure tolerance of the relations' regularisation, m (the head tolerance).
+    relation_tolerance: f64,
     subtree: Vec<f64>,
     pinned: Vec<Pinned>,
     /// Σ|Q| over the tree pipes (constant for a set of device states).
@@ -267,6 +272,8 @@ impl Solver {
             connected: vec![false; n_nodes],
             known_head: vec![f64::NAN; n_nodes],
             demand: vec![0.0; n_nodes],
+            relations: Vec::new(),
+            relation_tolerance: model.options.head_tolerance,
             subtree: vec![0.0; n_nodes],
             pinned: Vec::new(),
             tree_flow_sum: 0.0,
@@ -324,13 +331,29 @@ impl Solver {
         // The last solution took these two arrays.
         self.demand.resize(model.nodes().len(), 0.0);
         self.connected.resize(model.nodes().len(), false);
-        // The junctions' outflow law, evaluated where the demand enters the mass balance (see
-        // `nodes`): a head-independent law once per solve.
-        let law = conditions.node_law();
-        for (i, n) in model.nodes().iter().enumerate() {
-            self.demand[i] = law.outflow(conditions.demand(i), n.elevation, self.head[i]).flow;
-        }
+        // The junctions' fixed outflows and their relations of pressure (see `nodes`).
+        nodes::build(model, conditions, &mut self.demand, &mut self.relations);
+        self.relation_tolerance = options.head_tolerance;
         let warm = options.warm_start && self.has_previous;
+        self.start_values(model, conditions, warm);
+        self.timings.preparation += start.elapsed();
+        let mut result = self.iterate(model, conditions, options, warm);
+        if warm && matches!(result, Err(SolveError::NotConverged { .. } | SolveError::StatusCycle { .. })) {
+            // A start far from the answer (a previous solution of very different conditions: a
+            // dry network before a full one) may not converge where a cold start does, whose
+            // first step does not depend on the starting flows' scale: start again, cold.
+            // (A solution refused by the last gates took the connectivity array.)
+            self.connected.resize(model.nodes().len(), false);
+            self.start_values(model, conditions, false);
+            result = self.iterate(model, conditions, options, false);
+        }
+        self.has_previous = result.is_ok();
+        result
+    }
+
+    /// Starting flows, heads and relation flows: from the previous solution on a warm start,
+    /// else from the laws' initial flows and the mean fixed head.
+    fn start_values(&mut self, model: &Model, conditions: &Conditions, warm: bool) {
         if !warm {
             for (k, (q, law)) in self.flow.iter_mut().zip(&self.laws).enumerate() {
                 *q = law.initial_flow(conditions.flow_area(k));
@@ -350,11 +373,14 @@ impl Solver {
                 None => start_head,
             };
         }
-        self.demand_scale = self.demand.iter().map(|d| d.abs()).sum::<f64>().max(1e-3);
-        self.timings.preparation += start.elapsed();
-        let result = self.iterate(model, conditions, options, warm);
-        self.has_previous = result.is_ok();
-        result
+        // Relations start on their exact flow at the starting pressure.
+        for r in &mut self.relations {
+            let p = self.head[r.node as usize] - r.elevation;
+            r.q = if p.is_finite() { r.law.flow(p) } else { 0.0 };
+        }
+        self.demand_scale = (self.demand.iter().map(|d| d.abs()).sum::<f64>()
+            + self.relations.iter().map(|r| if r.law.capped { r.law.flow } else { r.q }).sum::<f64>())
+        .max(1e-3);
     }
 
     /// Takes `other`'s last solution (a solver of the same structure) as this solver's starting

@@ -1,65 +1,162 @@
-//! How a junction draws water: its outflow as a law of its head.
+//! How a junction draws water: its outflow as a law of its pressure.
 //!
-//! In the mass balance of junction `i` the outflow `q_i` is what leaves the network there. Today
-//! it is the demand as given, whatever the pressure ([`NodeLaw::FixedDemand`]). A law that makes
-//! the outflow depend on the pressure (a pressure-dependent demand) enters the same Newton system
-//! without breaking its symmetry: linearised at the current head `H_i`,
+//! In the mass balance of junction `i` the outflow is what leaves the network there. In a
+//! demand-driven analysis ([`NodeLaw::FixedDemand`]) it is the demand as given, whatever the
+//! pressure. With [`NodeLaw::PressureDependent`] a junction's outflow is the sum of
 //!
-//! ```text
-//! q_i(H') ≈ q_i(H) + s_i (H' − H),   s_i = dq_i/dH_i ≥ 0,
-//! ```
+//! * a fixed part: a negative demand (an inflow), a demand with no `[pressure_demand]`, and any
+//!   fixed draw of the conditions (a fire draw, [`Conditions::set_fixed_draw`]);
+//! * up to three relations of its pressure ([`crate::physics::outflow`]): the demand following
+//!   pressure (Wagner, Shamir & Marks 1988), an outlet (the orifice law) and the leak of the pipe
+//!   halves ending there (Germanopoulos 1985).
 //!
-//! so in the head-correction form (see the [solver's docs](super)) junction `i`'s row gains `s_i`
-//! on its diagonal and its right-hand side takes `−q_i(H)` where it now takes `−d_i`. The matrix
-//! stays symmetric and positive definite as long as every slope is zero or more (an outflow that
-//! never falls when the pressure rises).
+//! # How the relations enter the Newton step
+//! Each relation is handled like a link from the junction to the atmosphere at the junction's
+//! elevation, in the inverse (pressure-from-flow) form compared by Todini et al. (2021, J. Water
+//! Resour. Plann. Manage. 147(8)): the relation's own flow `q` is an unknown beside the heads, its
+//! "head loss" is the pressure `P(q)` that passes it, regularised within the head tolerance (see
+//! [`PowerLaw::inverse`]). Linearised at `(q, p)`, its next flow is `q' = c + g δ` with `g =
+//! 1/P'(q)` and `c = q + g (p − P(q))` ([`PowerLaw::step`]), where `δ` is the junction's head
+//! correction; so the junction's row of the head matrix gains `g` on its diagonal and its
+//! right-hand side takes `−c`, exactly like a link to a fixed head. The matrix stays symmetric
+//! positive definite. `P` is strictly increasing, so the content of the whole network (the
+//! links' contents plus `∫P dq` of every relation) is strictly convex and the problem has exactly
+//! one solution, which the iteration reaches from any start (shown by
+//! `tests/pressure_solver.rs`).
 //!
-//! # Where a law is evaluated (the hook)
-//! [`Solver`](super::Solver) asks [`NodeLaw::outflow`] for every junction once per set of device
-//! states, in the forest phase (`forest.rs`, `Solver::tree_flows`), where the outflows of tree
-//! junctions are summed towards their roots and the core unknowns' outflows are set. A law with
-//! [`NodeLaw::depends_on_head`] true must instead be evaluated at every iteration:
-//! * in `assemble.rs`, `Solver::begin_assembly` fills the right-hand side from the unknowns'
-//!   outflows and is where `s_i` goes onto the diagonal slot `structure.diag_slot[u]` of each
-//!   free unknown `u`;
-//! * tree junctions' outflows then depend on their heads, which follow from their roots' only
-//!   after the core converges: such a law either keeps trees in the core (analyse with no
-//!   peeling) or iterates the forest sweep with the core;
-//! * the mass residual reported in the solution must use `q_i(H)` at the final heads.
+//! A junction with a relation stays in the core of the matrix: the dead-end trees (see
+//! [`structure`](super::structure)) are peeled only through junctions whose outflow is fixed,
+//! since a tree's flows are summed from its outflows before its heads are known.
+//!
+//! [`Conditions::set_fixed_draw`]: super::Conditions::set_fixed_draw
 
-/// The outflow law of the junctions.
+use super::Conditions;
+use crate::model::{Model, NodeKind};
+use crate::physics::outflow::{PowerLaw, Step};
+
+/// How the junctions draw water.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Default)]
 #[non_exhaustive]
 pub enum NodeLaw {
-    /// The outflow is the demand as given, at any pressure (a demand-driven analysis).
+    /// The outflow is the demand as given, at any pressure (a demand-driven analysis), even when
+    /// the model has pressure-dependent data.
     #[default]
     FixedDemand,
-}
-
-/// A junction's outflow and its slope at one head.
-#[derive(Clone, Copy, Debug, PartialEq)]
-pub struct Outflow {
-    /// Outflow, m³/s.
-    pub flow: f64,
-    /// dq/dH, m²/s (zero or more).
-    pub slope: f64,
+    /// Demands, outlets and leakage follow pressure as the model's outflow data say
+    /// (`[pressure_demand]`, node `outlet`, background leakage).
+    PressureDependent,
 }
 
 impl NodeLaw {
-    /// Outflow of a junction with demand `demand` (m³/s) and elevation `elevation` (m) at head
-    /// `head` (m).
-    #[inline]
-    pub fn outflow(self, demand: f64, elevation: f64, head: f64) -> Outflow {
-        let _ = (elevation, head);
-        match self {
-            NodeLaw::FixedDemand => Outflow { flow: demand, slope: 0.0 },
+    /// The law a model asks for: pressure-dependent when it has any outflow data that depends
+    /// on pressure.
+    pub fn of_model(model: &Model) -> Self {
+        if model.outflow.is_active() {
+            NodeLaw::PressureDependent
+        } else {
+            NodeLaw::FixedDemand
         }
     }
 
-    /// Whether the outflow changes with the head (and must then be evaluated every iteration).
+    /// Whether outflows depend on the head (and are then evaluated at every iteration).
     pub fn depends_on_head(self) -> bool {
         match self {
             NodeLaw::FixedDemand => false,
+            NodeLaw::PressureDependent => true,
+        }
+    }
+}
+
+/// Which relation of a junction.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Relation {
+    /// Demand following pressure.
+    Demand,
+    /// An outlet to atmosphere.
+    Outlet,
+    /// Background leakage of the pipe halves ending at the junction.
+    Leakage,
+}
+
+/// One relation of one junction, with its state in the iteration.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub(super) struct NodeRelation {
+    /// The junction.
+    pub node: u32,
+    /// Its elevation, m.
+    pub elevation: f64,
+    /// Which relation.
+    pub relation: Relation,
+    /// The relation.
+    pub law: PowerLaw,
+    /// Its current flow, m³/s.
+    pub q: f64,
+    /// Its linearisation at the current flow and pressure.
+    pub step: Step,
+}
+
+/// Junctions that must stay in the core of the matrix (their outflow may depend on pressure).
+pub(super) fn pressure_nodes(model: &Model) -> Vec<bool> {
+    let nodes = model.nodes();
+    let junction = |i: usize| matches!(nodes[i].kind, NodeKind::Junction { .. });
+    let data = &model.outflow;
+    let mut keep = vec![false; nodes.len()];
+    if data.pressure_demand.is_some() {
+        // Any junction may be given a positive demand by the conditions.
+        for (i, k) in keep.iter_mut().enumerate() {
+            *k = junction(i);
+        }
+    }
+    for (&i, j) in &data.junctions {
+        if j.outlet.is_some() && i < keep.len() {
+            keep[i] = junction(i);
+        }
+    }
+    if data.leakage.is_some() {
+        for l in model.links() {
+            if l.as_pipe().is_some() {
+                for end in [l.from, l.to] {
+                    keep[end] = junction(end);
+                }
+            }
+        }
+    }
+    keep
+}
+
+/// Builds the relations of every junction under `conditions` into `out` (by node, in node
+/// order), and each junction's fixed outflow into `fixed` (m³/s, per node).
+pub(super) fn build(model: &Model, conditions: &Conditions, fixed: &mut [f64], out: &mut Vec<NodeRelation>) {
+    out.clear();
+    for (i, f) in fixed.iter_mut().enumerate() {
+        *f = conditions.demand(i);
+    }
+    for &(i, q) in conditions.fixed_draws() {
+        fixed[i as usize] += q;
+    }
+    if conditions.node_law() == NodeLaw::FixedDemand || !model.outflow.is_active() {
+        return;
+    }
+    let nodes = model.nodes();
+    for (i, laws) in model.outflow.laws(model, conditions.demands()).nodes {
+        let relation = |relation: Relation, law: PowerLaw| NodeRelation {
+            node: i as u32,
+            elevation: nodes[i].elevation,
+            relation,
+            law,
+            q: 0.0,
+            step: Step { conductance: 0.0, constant: 0.0 },
+        };
+        if let Some(law) = laws.demand {
+            // The demand follows pressure: it leaves the fixed part.
+            fixed[i] -= conditions.demand(i);
+            out.push(relation(Relation::Demand, law));
+        }
+        if let Some(law) = laws.outlet {
+            out.push(relation(Relation::Outlet, law));
+        }
+        if let Some(law) = laws.leakage {
+            out.push(relation(Relation::Leakage, law));
         }
     }
 }
@@ -69,11 +166,10 @@ mod tests {
     use super::*;
 
     #[test]
-    fn a_fixed_demand_ignores_the_head() {
-        for head in [-10.0, 0.0, 35.0, 1e4] {
-            let o = NodeLaw::FixedDemand.outflow(0.012, 20.0, head);
-            assert_eq!(o, Outflow { flow: 0.012, slope: 0.0 });
-        }
+    fn a_model_without_outflow_data_is_demand_driven() {
+        let m = Model::new(crate::units::UnitSystem::default(), crate::model::HydraulicOptions::default());
+        assert_eq!(NodeLaw::of_model(&m), NodeLaw::FixedDemand);
         assert!(!NodeLaw::FixedDemand.depends_on_head());
+        assert!(NodeLaw::PressureDependent.depends_on_head());
     }
 }

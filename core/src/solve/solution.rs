@@ -37,8 +37,6 @@ pub struct Warning {
 /// A solved snapshot, SI units (pressures as pressure head in m of the model's water).
 #[derive(Clone, Debug, PartialEq)]
 pub struct Solution {
-    /// Always true for a returned solution (non-convergence is an error).
-    pub converged: bool,
     /// Newton iterations done (linear solves).
     pub iterations: u32,
     /// Device state changes made on the way (check valves, pumps, control valves).
@@ -51,8 +49,19 @@ pub struct Solution {
     pub head: Vec<f64>,
     /// Pressure head per node, m; NaN for disconnected junctions.
     pub pressure: Vec<f64>,
-    /// Demand per node (m³/s) as supplied; zero for fixed-head nodes.
+    /// Demand per node (m³/s) as asked (fixed draws included); zero for fixed-head nodes.
     pub demand: Vec<f64>,
+    /// Demand delivered per node, m³/s: the demand asked where it does not follow pressure, what
+    /// the pressure gives where it does (Wagner, Shamir & Marks); zero at cut-off junctions.
+    /// Empty when no outflow followed pressure in this solve: read it with
+    /// [`Solution::delivered`].
+    pub delivered: Vec<f64>,
+    /// Background leakage leaving at each node, m³/s; empty as `delivered` (read it with
+    /// [`Solution::leakage`]).
+    pub leakage: Vec<f64>,
+    /// Flow of each node's outlet, m³/s; empty as `delivered` (read it with
+    /// [`Solution::outlet`]).
+    pub outlet: Vec<f64>,
     /// Whether a fixed head reaches the node through open links.
     pub connected: Vec<bool>,
     /// Flow per link, m³/s, positive from `from` to `to`.
@@ -76,7 +85,83 @@ pub struct Solution {
     pub warnings: Vec<Warning>,
 }
 
+/// What the junctions asked for and received (SI): the summary of a pressure-dependent solve.
+#[derive(Clone, Debug, PartialEq)]
+pub struct OutflowSummary {
+    /// Σ of the positive demands asked at junctions, m³/s.
+    pub asked: f64,
+    /// Σ of the demand delivered at those junctions, m³/s.
+    pub delivered: f64,
+    /// `asked − delivered`, m³/s (never below zero).
+    pub shortfall: f64,
+    /// Background leakage in total, m³/s.
+    pub leakage: f64,
+    /// Flow of every outlet in total, m³/s.
+    pub outlet: f64,
+    /// The junctions of largest shortfall (node index, shortfall m³/s), largest first; only
+    /// junctions that lack something.
+    pub largest: Vec<(usize, f64)>,
+}
+
+impl OutflowSummary {
+    /// The shortfall as a percentage of the demand asked (zero when nothing is asked).
+    pub fn shortfall_percent(&self) -> f64 {
+        if self.asked > 0.0 {
+            100.0 * self.shortfall / self.asked
+        } else {
+            0.0
+        }
+    }
+}
+
 impl Solution {
+    /// Demand delivered at node `i`, m³/s (see [`Solution::delivered`](field@Solution::delivered)).
+    pub fn delivered(&self, i: usize) -> f64 {
+        match self.delivered.get(i) {
+            Some(&q) => q,
+            None if self.connected[i] => self.demand[i],
+            None => 0.0,
+        }
+    }
+
+    /// Background leakage at node `i`, m³/s.
+    pub fn leakage(&self, i: usize) -> f64 {
+        self.leakage.get(i).copied().unwrap_or(0.0)
+    }
+
+    /// Outlet flow at node `i`, m³/s.
+    pub fn outlet(&self, i: usize) -> f64 {
+        self.outlet.get(i).copied().unwrap_or(0.0)
+    }
+
+    /// Totals of demand asked and delivered, leakage and outlets, and the `count` junctions of
+    /// largest shortfall (a shortfall below 1e-9 of the demand asked there is round-off).
+    pub fn outflow_summary(&self, count: usize) -> OutflowSummary {
+        let (mut asked, mut delivered) = (0.0, 0.0);
+        let mut short: Vec<(usize, f64)> = Vec::new();
+        for (i, &d) in self.demand.iter().enumerate() {
+            if d > 0.0 {
+                let q = self.delivered(i);
+                asked += d;
+                delivered += q;
+                let lack = d - q;
+                if lack > 1e-9 * d {
+                    short.push((i, lack));
+                }
+            }
+        }
+        short.sort_by(|a, b| b.1.total_cmp(&a.1).then(a.0.cmp(&b.0)));
+        short.truncate(count);
+        OutflowSummary {
+            asked,
+            delivered,
+            shortfall: (asked - delivered).max(0.0),
+            leakage: self.leakage.iter().sum(),
+            outlet: self.outlet.iter().sum(),
+            largest: short,
+        }
+    }
+
     /// Net outflow of a node into the network, m³/s (positive: the node supplies water).
     pub fn net_outflow(&self, model: &Model, node: usize) -> f64 {
         model
@@ -118,8 +203,46 @@ impl Solver {
         let max_energy_residual =
             energy_residuals(&self.structure.ends, &self.laws, &self.flow, &self.head, &self.on_law)
                 .fold(0.0, f64::max);
+        // Per node: what is asked and what leaves (fixed outflows and relations of pressure).
+        let n_nodes = nodes.len();
+        let mut demand: Vec<f64> = conditions.demands().to_vec();
+        for &(i, q) in conditions.fixed_draws() {
+            demand[i as usize] += q;
+        }
+        // Arrays of the relations only when there are relations (a million-junction demand-driven
+        // solve does not carry three more arrays of copies and zeros).
+        let relations = !self.relations.is_empty();
+        let mut delivered: Vec<f64> = if relations {
+            (0..n_nodes).map(|i| if self.connected[i] { self.demand[i] } else { 0.0 }).collect()
+        } else {
+            Vec::new()
+        };
+        let (mut leakage, mut outlet) =
+            if relations { (vec![0.0; n_nodes], vec![0.0; n_nodes]) } else { (Vec::new(), Vec::new()) };
+        // The mass balance takes the relations' flows as iterated; the values reported are held
+        // within the relation's range (a flow a hair beyond the demand, or below zero, is the
+        // regularisation's barrier at work: a few 1e-10 of the flow).
+        let mut outflow: Vec<f64> = delivered.clone();
+        for r in &self.relations {
+            let i = r.node as usize;
+            if !self.connected[i] {
+                continue;
+            }
+            outflow[i] += r.q;
+            let q = if r.law.capped { r.q.clamp(0.0, r.law.flow) } else { r.q.max(0.0) };
+            match r.relation {
+                super::Relation::Demand => delivered[i] += q,
+                super::Relation::Outlet => outlet[i] += q,
+                super::Relation::Leakage => leakage[i] += q,
+            }
+        }
         let max_mass_residual = {
-            let mut balance: Vec<f64> = self.demand.iter().map(|d| -d).collect();
+            let mut balance: Vec<f64> = if relations {
+                outflow.iter().map(|q| -q).collect()
+            } else {
+                (0..n_nodes).map(|i| if self.connected[i] { -self.demand[i] } else { 0.0 }).collect()
+            };
+            drop(outflow);
             for (&(from, to), &q) in self.structure.ends.iter().zip(&self.flow) {
                 balance[to as usize] += q;
                 balance[from as usize] -= q;
@@ -176,7 +299,7 @@ impl Solver {
         let mut warnings = Vec::new();
         let cut_off: Vec<usize> = (0..nodes.len()).filter(|&i| !self.connected[i]).collect();
         for &i in &cut_off {
-            let message = if self.demand[i] != 0.0 {
+            let message = if demand[i] != 0.0 {
                 "cut off from every reservoir and tank by closed links; its demand is not supplied".to_owned()
             } else {
                 "cut off from every reservoir and tank by closed links; it has no head".to_owned()
@@ -184,7 +307,8 @@ impl Solver {
             warnings.push(Warning { element: Some(Element::Node(nodes[i].id.to_string())), message });
         }
         for (i, n) in nodes.iter().enumerate() {
-            if n.fixed_head().is_none() && self.connected[i] && pressure[i] < 0.0 {
+            // Where the outflow follows pressure, a negative pressure delivers nothing, as it should.
+            if n.fixed_head().is_none() && self.connected[i] && pressure[i] < 0.0 && self.demand[i] > 0.0 {
                 warnings.push(Warning {
                     element: Some(Element::Node(n.id.to_string())),
                     message: "negative pressure: the demand cannot really be delivered at this head (consider a \
@@ -202,13 +326,15 @@ impl Solver {
             }
         }
         Solution {
-            converged: true,
             iterations,
             status_changes,
             ending,
             pumps,
-            // Taken, not copied: a solve rebuilds both from the model before using them.
-            demand: std::mem::take(&mut self.demand),
+            demand,
+            delivered,
+            leakage,
+            outlet,
+            // Taken, not copied: a solve rebuilds it from the model before using it.
             connected: std::mem::take(&mut self.connected),
             head,
             pressure,

@@ -10,7 +10,9 @@
 //! sweep. The trees are found by peeling: a junction with a single remaining link is a leaf; it
 //! is removed with that link, which may make its neighbour a leaf, and so on. Only plain pipes
 //! (no check valve) are peeled, so every device stays in the core and its state logic sees the
-//! core's heads; a closed tree pipe simply cuts off what lies beyond it. [`Structure::trees`] lists
+//! core's heads; a closed tree pipe simply cuts off what lies beyond it. Junctions whose outflow
+//! may depend on pressure (see [`nodes`](super::nodes)) are not peeled either: a tree's flows are
+//! summed from fixed outflows. [`Structure::trees`] lists
 //! the tree pipes leaves first: flows accumulate in that order, heads in the reverse.
 //!
 //! # Why faer's simplicial Cholesky with AMD
@@ -110,6 +112,9 @@ pub struct Structure {
     fixed: Vec<bool>,
     /// Whether each link could be peeled into a tree (a plain pipe) at analysis time.
     peelable: Vec<bool>,
+    /// Junctions kept in the core because their outflow may depend on pressure (empty when
+    /// none is).
+    kept: Vec<bool>,
 }
 
 /// Whether a link may belong to a dead-end tree: a pipe without a check valve, whatever its
@@ -120,14 +125,22 @@ fn peelable(kind: &LinkKind) -> bool {
 
 /// Peels the dead-end trees off the network; returns the tree links, leaves first, and which
 /// nodes are tree junctions.
-fn peel(model: &Model, adjacency: &Adjacency, fixed: &[bool], peelable: &[bool]) -> (Vec<TreeLink>, Vec<bool>) {
+fn peel(
+    model: &Model,
+    adjacency: &Adjacency,
+    fixed: &[bool],
+    peelable: &[bool],
+    kept: &[bool],
+) -> (Vec<TreeLink>, Vec<bool>) {
+    let kept = |i: usize| kept.get(i).copied().unwrap_or(false);
     let links = model.links();
     let n = model.nodes().len();
     let mut degree: Vec<u32> = (0..n).map(|i| adjacency.of(i).len() as u32).collect();
     let mut removed = vec![false; links.len()];
     let mut in_tree = vec![false; n];
     let mut trees = Vec::new();
-    let mut stack: Vec<u32> = (0..n as u32).filter(|&i| !fixed[i as usize] && degree[i as usize] == 1).collect();
+    let mut stack: Vec<u32> =
+        (0..n as u32).filter(|&i| !fixed[i as usize] && !kept(i as usize) && degree[i as usize] == 1).collect();
     while let Some(leaf) = stack.pop() {
         let leaf = leaf as usize;
         if in_tree[leaf] || degree[leaf] != 1 {
@@ -144,11 +157,20 @@ fn peel(model: &Model, adjacency: &Adjacency, fixed: &[bool], peelable: &[bool])
         degree[leaf] = 0;
         degree[parent] -= 1;
         trees.push(TreeLink { link: k, parent: parent as u32, child: leaf as u32, downstream: l.from == parent });
-        if !fixed[parent] && degree[parent] == 1 {
+        if !fixed[parent] && !kept(parent) && degree[parent] == 1 {
             stack.push(parent as u32);
         }
     }
     (trees, in_tree)
+}
+
+/// Junctions that stay in the core (empty when the model has no pressure-dependent outflow).
+fn kept_nodes(model: &Model) -> Vec<bool> {
+    if model.outflow.is_active() {
+        super::nodes::pressure_nodes(model)
+    } else {
+        Vec::new()
+    }
 }
 
 /// Scratch size of the numeric factorization and solve for an `n`-unknown matrix.
@@ -168,7 +190,8 @@ impl Structure {
         let fixed: Vec<bool> = nodes.iter().map(|n| n.fixed_head().is_some()).collect();
         let peelable: Vec<bool> = model.links().iter().map(|l| peelable(&l.kind)).collect();
         let adjacency = Adjacency::new(model);
-        let (trees, in_tree) = peel(model, &adjacency, &fixed, &peelable);
+        let kept = kept_nodes(model);
+        let (trees, in_tree) = peel(model, &adjacency, &fixed, &peelable, &kept);
         let mut is_tree_link = vec![false; model.links().len()];
         for t in &trees {
             is_tree_link[t.link as usize] = true;
@@ -330,6 +353,7 @@ impl Structure {
             ends,
             fixed,
             peelable,
+            kept,
         })
     }
 
@@ -341,6 +365,7 @@ impl Structure {
             && model.nodes().iter().zip(&self.fixed).all(|(n, &f)| n.fixed_head().is_some() == f)
             && model.links().iter().zip(&self.ends).all(|(l, &(a, b))| l.from as u32 == a && l.to as u32 == b)
             && model.links().iter().zip(&self.peelable).all(|(l, &p)| peelable(&l.kind) == p)
+            && kept_nodes(model) == self.kept
     }
 
     /// Number of junctions in dead-end trees (outside the matrix).

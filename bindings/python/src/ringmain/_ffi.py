@@ -143,7 +143,6 @@ FUNCTIONS: dict[str, tuple[object, list[object]]] = {
     "ringmain_results_link_count": (status, [results_p, size_p]),
     "ringmain_results_node_index": (status, [results_p, c_char_p, size_p]),
     "ringmain_results_link_index": (status, [results_p, c_char_p, size_p]),
-    "ringmain_results_converged": (status, [results_p, bool_p]),
     "ringmain_results_iterations": (status, [results_p, u32_p]),
     "ringmain_results_status_changes": (status, [results_p, u32_p]),
     "ringmain_results_residuals": (status, [results_p, double_p, double_p]),

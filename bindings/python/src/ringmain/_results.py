@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import math
-from ctypes import byref, c_bool, c_char_p, c_double, c_size_t, c_uint32
+from ctypes import byref, c_char_p, c_double, c_size_t, c_uint32
 from typing import TYPE_CHECKING, Any, NamedTuple, NoReturn, Union
 
 import numpy as np
@@ -126,13 +126,6 @@ class Results(Handle):
         value = c_uint32()
         check(call(self._ptr, byref(value)))
         return value.value
-
-    @property
-    def converged(self) -> bool:
-        """Always True for results (a solve that does not converge raises ``SolveError``)."""
-        value = c_bool()
-        check(lib.ringmain_results_converged(self._ptr, byref(value)))
-        return bool(value.value)
 
     @property
     def iterations(self) -> int:

@@ -1,0 +1,1430 @@
+//! Fast readers of model files in one pass: JSON and TOML parsed straight from bytes (a slice in
+//! memory, or a file read in large chunks), element by element, into the model.
+//!
+//! These readers are an accelerator, never a judge. Each knows the common shape of a model file
+//! and **gives up** (`None`) on anything it is not sure of: a syntax error, an escape in a
+//! string, a number it cannot read exactly as the whole-text reader does, a duplicate key, keys
+//! in an order one pass cannot take, any model error. The caller then reads the file with the
+//! whole-text reader ([`super::file::read_str`]), which accepts everything valid and gives every
+//! error with its line and column. A model read here equals the one the whole-text reader builds
+//! from the same text (the tests compare them), so which reader ran is invisible.
+//!
+//! Why not a general parser: serde_json's reader goes through a visitor per value and reads
+//! about 80–100 MB/s on model files; the `toml` crate builds the whole document (with spans)
+//! before anything can be read from it, some 10 times the file's size in memory. A model file
+//! is a few levels deep and its elements are small tables, so a direct parser of bytes into the
+//! same value tree, one element at a time, is both simpler and several times faster.
+//!
+//! Numbers: integers of up to 18 digits are exact; other numbers are read by the standard
+//! library's correctly rounded `f64` parser, the same result serde_json gives with its
+//! `float_roundtrip` feature (enabled in this workspace for that reason) and the `toml` crate
+//! gives.
+
+use super::doc::{self, Value, MAX_DEPTH};
+use super::file;
+use super::{HeadLossLaw, Link, LinkKind, LinkStatus, Model, Node, NodeKind, Pipe};
+use std::io::Read;
+
+/// Why a step stopped.
+#[derive(Debug)]
+enum Stop {
+    /// Anything this reader does not take: the caller falls back to the whole-text reader.
+    GiveUp,
+    /// The bytes ran out before the end of the text (read more and try the step again).
+    More,
+}
+
+type Step<T> = Result<T, Stop>;
+
+/// Initial table capacity: the most keys a node or link of a written model has.
+const TABLE_CAPACITY: usize = 10;
+
+/// A position in the bytes read so far.
+struct Cursor<'a> {
+    b: &'a [u8],
+    i: usize,
+    /// Whether `b` ends where the text ends.
+    end: bool,
+}
+
+impl<'a> Cursor<'a> {
+    /// Stops at the end of the bytes: the text is cut short, or more must be read.
+    fn out(&self) -> Stop {
+        if self.end {
+            Stop::GiveUp
+        } else {
+            Stop::More
+        }
+    }
+
+    /// JSON white space: space, tab, line feed, carriage return.
+    #[inline]
+    fn json_space(&mut self) -> Step<u8> {
+        loop {
+            match self.b.get(self.i) {
+                Some(b' ' | b'\n' | b'\r' | b'\t') => self.i += 1,
+                Some(&c) => return Ok(c),
+                None => return Err(self.out()),
+            }
+        }
+    }
+
+    fn expect(&mut self, c: u8) -> Step<()> {
+        if self.json_space()? == c {
+            self.i += 1;
+            Ok(())
+        } else {
+            Err(Stop::GiveUp)
+        }
+    }
+
+    /// A string without escapes (the opening quote is at the cursor); its text.
+    fn plain_string(&mut self) -> Step<&'a str> {
+        let start = self.i + 1;
+        let mut j = start;
+        let mut ascii = true;
+        loop {
+            match self.b.get(j) {
+                Some(b'"') => break,
+                // An escape or a control character: left to the whole-text reader.
+                Some(b'\\' | 0..=0x1f) => return Err(Stop::GiveUp),
+                Some(&c) => {
+                    ascii &= c < 0x80;
+                    j += 1;
+                }
+                None => return Err(self.out()),
+            }
+        }
+        let bytes = &self.b[start..j];
+        self.i = j + 1;
+        if ascii {
+            // SAFETY: every byte is ASCII, so the bytes are UTF-8.
+            Ok(unsafe { std::str::from_utf8_unchecked(bytes) })
+        } else {
+            std::str::from_utf8(bytes).map_err(|_| Stop::GiveUp)
+        }
+    }
+
+    /// A JSON number at the cursor.
+    fn json_number(&mut self) -> Step<Value> {
+        let start = self.i;
+        let b = self.b;
+        let mut j = start;
+        let negative = b.get(j) == Some(&b'-');
+        if negative {
+            j += 1;
+        }
+        let digits = |j: &mut usize| -> Step<usize> {
+            let from = *j;
+            while let Some(c) = b.get(*j) {
+                if !c.is_ascii_digit() {
+                    return Ok(*j - from);
+                }
+                *j += 1;
+            }
+            Err(self.out())
+        };
+        let int_start = j;
+        let n_int = digits(&mut j)?;
+        if n_int == 0 || (n_int > 1 && b[int_start] == b'0') {
+            return Err(Stop::GiveUp);
+        }
+        let mut float = false;
+        if b.get(j) == Some(&b'.') {
+            j += 1;
+            if digits(&mut j)? == 0 {
+                return Err(Stop::GiveUp);
+            }
+            float = true;
+        }
+        if matches!(b.get(j), Some(b'e' | b'E')) {
+            j += 1;
+            if matches!(b.get(j), Some(b'+' | b'-')) {
+                j += 1;
+            }
+            if digits(&mut j)? == 0 {
+                return Err(Stop::GiveUp);
+            }
+            float = true;
+        }
+        // The number must be followed by something (more digits may still be unread).
+        if j == b.len() && !self.end {
+            return Err(Stop::More);
+        }
+        self.i = j;
+        let text = &b[start..j];
+        if !float {
+            // Up to 18 digits fit in i64 exactly; longer ones (rare) are left to the other reader,
+            // as is "-0" (a float there).
+            if n_int > 18 {
+                return Err(Stop::GiveUp);
+            }
+            let mut v: i64 = 0;
+            for &c in &b[int_start..j] {
+                v = v * 10 + i64::from(c - b'0');
+            }
+            if negative {
+                if v == 0 {
+                    return Err(Stop::GiveUp);
+                }
+                v = -v;
+            }
+            return Ok(Value::Int(v));
+        }
+        float_of(text)
+    }
+}
+
+/// A decimal number's text (JSON or TOML syntax without underscores) as `f64`, correctly
+/// rounded; gives up where the other readers refuse or differ (out of range).
+fn float_of(text: &[u8]) -> Step<Value> {
+    // SAFETY: the callers pass digits, signs, '.', 'e' and 'E' only: ASCII.
+    let s = unsafe { std::str::from_utf8_unchecked(text) };
+    let v: f64 = s.parse().map_err(|_| Stop::GiveUp)?;
+    if !v.is_finite() || (v == 0.0 && mantissa_nonzero(text)) {
+        return Err(Stop::GiveUp);
+    }
+    Ok(Value::Float(v))
+}
+
+/// Whether the digits before the exponent are not all zero (an underflow to zero is left to the
+/// other reader).
+fn mantissa_nonzero(text: &[u8]) -> bool {
+    text.iter().take_while(|c| !matches!(c, b'e' | b'E')).any(|c| (b'1'..=b'9').contains(c))
+}
+
+/// A JSON value into the same tree serde_json gives through [`doc::Seed`].
+fn json_value(c: &mut Cursor, depth: usize) -> Step<Value> {
+    match c.json_space()? {
+        b'"' => Ok(Value::Str(c.plain_string()?.to_owned())),
+        b'{' => {
+            if depth >= MAX_DEPTH {
+                return Err(Stop::GiveUp);
+            }
+            c.i += 1;
+            let mut entries: Vec<(doc::Key, Value)> = Vec::with_capacity(TABLE_CAPACITY);
+            if c.json_space()? == b'}' {
+                c.i += 1;
+                return Ok(Value::Table(entries));
+            }
+            loop {
+                if c.json_space()? != b'"' {
+                    return Err(Stop::GiveUp);
+                }
+                let key = c.plain_string()?;
+                // Duplicates (an error), and the TOML date marker, are the other reader's.
+                if key.starts_with('$') || entries.iter().any(|(k, _)| k == key) || entries.len() > 64 {
+                    return Err(Stop::GiveUp);
+                }
+                let key = doc::key(key);
+                c.expect(b':')?;
+                let value = json_value(c, depth + 1)?;
+                entries.push((key, value));
+                match c.json_space()? {
+                    b',' => c.i += 1,
+                    b'}' => {
+                        c.i += 1;
+                        return Ok(Value::Table(entries));
+                    }
+                    _ => return Err(Stop::GiveUp),
+                }
+            }
+        }
+        b'[' => {
+            if depth >= MAX_DEPTH {
+                return Err(Stop::GiveUp);
+            }
+            c.i += 1;
+            let mut items = Vec::new();
+            if c.json_space()? == b']' {
+                c.i += 1;
+                return Ok(Value::Array(items));
+            }
+            loop {
+                items.push(json_value(c, depth + 1)?);
+                match c.json_space()? {
+                    b',' => c.i += 1,
+                    b']' => {
+                        c.i += 1;
+                        return Ok(Value::Array(items));
+                    }
+                    _ => return Err(Stop::GiveUp),
+                }
+            }
+        }
+        b't' => word(c, b"true", Value::Bool(true)),
+        b'f' => word(c, b"false", Value::Bool(false)),
+        b'-' | b'0'..=b'9' => c.json_number(),
+        _ => Err(Stop::GiveUp),
+    }
+}
+
+fn word(c: &mut Cursor, w: &[u8], v: Value) -> Step<Value> {
+    let have = &c.b[c.i..];
+    if have.len() < w.len() {
+        return if w.starts_with(have) { Err(c.out()) } else { Err(Stop::GiveUp) };
+    }
+    if &have[..w.len()] != w {
+        return Err(Stop::GiveUp);
+    }
+    c.i += w.len();
+    Ok(v)
+}
+
+/// Bytes to parse: a slice held whole, or a file read in chunks.
+trait Feed {
+    /// Runs `f` from the current position; on [`Stop::More`] reads more and runs it again from
+    /// the same position. `None`: give up.
+    fn step<T>(&mut self, f: impl FnMut(&mut Cursor) -> Step<T>) -> Option<T>;
+}
+
+struct SliceFeed<'a> {
+    b: &'a [u8],
+    i: usize,
+}
+
+impl Feed for SliceFeed<'_> {
+    fn step<T>(&mut self, mut f: impl FnMut(&mut Cursor) -> Step<T>) -> Option<T> {
+        let mut c = Cursor { b: self.b, i: self.i, end: true };
+        let v = f(&mut c).ok()?;
+        self.i = c.i;
+        Some(v)
+    }
+}
+
+/// Chunk read from a file at a time (a step longer than this grows the buffer).
+const CHUNK: usize = 4 << 20;
+
+struct ReadFeed<R> {
+    src: R,
+    buf: Vec<u8>,
+    i: usize,
+    end: bool,
+    /// Bytes read in all; more than `limit` is given up (the caller's size limit then speaks).
+    total: u64,
+    limit: u64,
+    chunk: usize,
+}
+
+impl<R: Read> ReadFeed<R> {
+    fn new(src: R, limit: u64, chunk: usize) -> Self {
+        ReadFeed { src, buf: Vec::new(), i: 0, end: false, total: 0, limit, chunk }
+    }
+
+    /// Keeps the unread bytes and reads at least one more chunk (or to the end).
+    fn refill(&mut self) -> Option<()> {
+        self.buf.drain(..self.i);
+        self.i = 0;
+        let keep = self.buf.len();
+        let want = keep + self.chunk;
+        self.buf.resize(want, 0);
+        let mut have = keep;
+        while have < want {
+            match self.src.read(&mut self.buf[have..]) {
+                Ok(0) => {
+                    self.end = true;
+                    break;
+                }
+                Ok(n) => have += n,
+                Err(e) if e.kind() == std::io::ErrorKind::Interrupted => {}
+                Err(_) => return None,
+            }
+        }
+        self.buf.truncate(have);
+        self.total += (have - keep) as u64;
+        (self.total <= self.limit).then_some(())
+    }
+}
+
+impl<R: Read> Feed for ReadFeed<R> {
+    fn step<T>(&mut self, mut f: impl FnMut(&mut Cursor) -> Step<T>) -> Option<T> {
+        loop {
+            let mut c = Cursor { b: &self.buf, i: self.i, end: self.end };
+            match f(&mut c) {
+                Ok(v) => {
+                    self.i = c.i;
+                    return Some(v);
+                }
+                Err(Stop::GiveUp) => return None,
+                Err(Stop::More) if self.end => return None,
+                Err(Stop::More) => self.refill()?,
+            }
+        }
+    }
+}
+
+/// Reads a JSON model from a text in memory in one pass; `None`: give up (see the module docs).
+pub(crate) fn json_from_slice(text: &[u8]) -> Option<Model> {
+    let text = text.strip_prefix("\u{feff}".as_bytes()).unwrap_or(text);
+    json_model(&mut SliceFeed { b: text, i: 0 })
+}
+
+/// Reads a JSON model from `src` in one pass, a chunk at a time (memory holds the model and a
+/// chunk); gives up beyond `limit` bytes. `None`: give up (see the module docs).
+pub fn json_from_reader<R: Read>(src: R, limit: u64) -> Option<Model> {
+    json_from_chunks(src, limit, CHUNK)
+}
+
+fn json_from_chunks<R: Read>(src: R, limit: u64, chunk: usize) -> Option<Model> {
+    let mut feed = ReadFeed::new(src, limit, chunk);
+    // A byte-order mark is not part of the text.
+    feed.step(|c| {
+        if c.b.len() - c.i < 3 && !c.end {
+            return Err(Stop::More);
+        }
+        if c.b[c.i..].starts_with("\u{feff}".as_bytes()) {
+            c.i += 3;
+        }
+        Ok(())
+    })?;
+    json_model(&mut feed)
+}
+
+/// The top-level object: settings, then `nodes`, then `links` (and `controls` anywhere), the order
+/// [`super::write`] writes; any other order gives up.
+fn json_model(feed: &mut impl Feed) -> Option<Model> {
+    feed.step(|c| c.expect(b'{'))?;
+    let mut settings: Vec<(doc::Key, Value)> = Vec::new();
+    let mut model: Option<Model> = None;
+    let mut controls: Option<Value> = None;
+    let mut seen: Vec<String> = Vec::new();
+    let mut first = true;
+    loop {
+        // `}` or (`,` unless first) then a key and its colon.
+        let key = feed.step(|c| {
+            let t = c.json_space()?;
+            if t == b'}' {
+                c.i += 1;
+                return Ok(None);
+            }
+            if !first {
+                // `{ ..., }` (a trailing comma) is the other reader's error.
+                if t != b',' {
+                    return Err(Stop::GiveUp);
+                }
+                c.i += 1;
+            }
+            if c.json_space()? != b'"' {
+                return Err(Stop::GiveUp);
+            }
+            let k = c.plain_string()?.to_owned();
+            c.expect(b':')?;
+            Ok(Some(k))
+        })?;
+        let Some(key) = key else { break };
+        first = false;
+        if seen.contains(&key) {
+            return None;
+        }
+        match key.as_str() {
+            "nodes" => {
+                let mut top = file::top_fields(std::mem::take(&mut settings));
+                let mut m = file::settings_model(&mut top)?;
+                json_elements(feed, &mut m, true)?;
+                model = Some(m);
+            }
+            "links" => {
+                let m = model.as_mut()?;
+                json_elements(feed, m, false)?;
+            }
+            "controls" => controls = Some(feed.step(|c| json_value(c, 1))?),
+            _ if model.is_some() => return None,
+            _ => {
+                let v = feed.step(|c| json_value(c, 1))?;
+                settings.push((doc::Key::Owned(key.clone()), v));
+            }
+        }
+        seen.push(key);
+    }
+    // Nothing but white space after the object.
+    feed.step(|c| loop {
+        match c.b.get(c.i) {
+            Some(b' ' | b'\n' | b'\r' | b'\t') => c.i += 1,
+            Some(_) => return Err(Stop::GiveUp),
+            None if c.end => return Ok(()),
+            None => return Err(Stop::More),
+        }
+    })?;
+    let model = model?;
+    let controls = match controls {
+        None => Vec::new(),
+        Some(Value::Array(items)) => items,
+        Some(_) => return None,
+    };
+    file::finish_model(model, controls)
+}
+
+/// The `nodes` or `links` array, element by element into the model.
+fn json_elements(feed: &mut impl Feed, model: &mut Model, nodes: bool) -> Option<()> {
+    feed.step(|c| c.expect(b'['))?;
+    let empty = feed.step(|c| {
+        if c.json_space()? == b']' {
+            c.i += 1;
+            Ok(true)
+        } else {
+            Ok(false)
+        }
+    })?;
+    if empty {
+        return Some(());
+    }
+    let mut i = 0;
+    loop {
+        // The commonest elements (a plain junction, a plain pipe) straight into the model; any
+        // other, or one that is not quite plain, through the value tree and the model reader.
+        let direct = feed.step(|c| {
+            let start = c.i;
+            let Some(flat) = flat_element(c)? else {
+                c.i = start;
+                return Ok(None);
+            };
+            let element = if nodes {
+                plain_junction(&flat, model).map(Direct::Node)
+            } else {
+                plain_pipe(&flat, model).map(Direct::Link)
+            };
+            let Some(element) = element else {
+                c.i = start;
+                return Ok(None);
+            };
+            Ok(Some((element, after_element(c)?)))
+        })?;
+        let more = match direct {
+            Some((element, more)) => {
+                add_direct(model, element)?;
+                more
+            }
+            None => {
+                let (value, more) = feed.step(|c| Ok((json_value(c, 2)?, after_element(c)?)))?;
+                if nodes {
+                    file::add_node_value(model, i, value).ok()?;
+                } else {
+                    file::add_link_value(model, i, value).ok()?;
+                }
+                more
+            }
+        };
+        i += 1;
+        if !more {
+            return Some(());
+        }
+    }
+}
+
+/// What follows an element of an array: `,` (more follow, `true`) or `]`.
+fn after_element(c: &mut Cursor) -> Step<bool> {
+    match c.json_space()? {
+        b',' => {
+            c.i += 1;
+            Ok(true)
+        }
+        b']' => {
+            c.i += 1;
+            Ok(false)
+        }
+        _ => Err(Stop::GiveUp),
+    }
+}
+
+enum Direct {
+    Node(Node),
+    Link(Link),
+}
+
+/// The plain junction or pipe of a flat element, if it is one.
+fn direct(flat: &FlatElement, model: &Model, nodes: bool) -> Option<Direct> {
+    if nodes {
+        plain_junction(flat, model).map(Direct::Node)
+    } else {
+        plain_pipe(flat, model).map(Direct::Link)
+    }
+}
+
+/// Adds a plain element to the model (with every check of the model: ranges, duplicate ids).
+fn add_direct(model: &mut Model, element: Direct) -> Option<()> {
+    match element {
+        Direct::Node(node) => model.add_node(node).ok().map(drop),
+        Direct::Link(link) => model.add_link(link).ok().map(drop),
+    }
+}
+
+/// A value of a flat element: a string, a number or a boolean.
+#[derive(Clone, Copy)]
+enum Flat<'a> {
+    Str(&'a str),
+    Num(f64),
+    Bool(bool),
+}
+
+/// The keys a plain junction or pipe may have, by position in [`FlatElement::values`].
+const FLAT_KEYS: [&str; 13] = [
+    "id",
+    "kind",
+    "elevation",
+    "demand",
+    "x",
+    "y",
+    "zone",
+    "from",
+    "to",
+    "length",
+    "diameter",
+    "roughness",
+    "minor_loss",
+];
+const STATUS: usize = FLAT_KEYS.len();
+const CHECK_VALVE: usize = FLAT_KEYS.len() + 1;
+
+/// An element table whose keys are among [`FLAT_KEYS`], `status` and `check_valve`, each once,
+/// with plain values.
+struct FlatElement<'a> {
+    values: [Option<Flat<'a>>; FLAT_KEYS.len() + 2],
+}
+
+impl<'a> FlatElement<'a> {
+    fn str(&self, k: usize) -> Option<Option<&'a str>> {
+        match self.values[k] {
+            None => Some(None),
+            Some(Flat::Str(s)) => Some(Some(s)),
+            Some(_) => None,
+        }
+    }
+
+    /// A number within the readers' magnitude bounds (others are the model reader's to refuse).
+    fn num(&self, k: usize) -> Option<Option<f64>> {
+        match self.values[k] {
+            None => Some(None),
+            Some(Flat::Num(v)) => {
+                let size = v.abs();
+                let fine = size <= super::LARGEST_INPUT && (size == 0.0 || size >= super::SMALLEST_INPUT);
+                fine.then_some(Some(v))
+            }
+            Some(_) => None,
+        }
+    }
+}
+
+/// An id every check takes: printable ASCII without spaces (anything else goes the long way).
+fn plain_id(id: &str) -> bool {
+    !id.is_empty() && id.bytes().all(|b| (0x21..=0x7e).contains(&b))
+}
+
+/// The position of a flat key in [`FlatElement::values`].
+fn flat_key(key: &str) -> Option<usize> {
+    Some(match key {
+        "id" => 0,
+        "kind" => 1,
+        "elevation" => 2,
+        "demand" => 3,
+        "x" => 4,
+        "y" => 5,
+        "zone" => 6,
+        "from" => 7,
+        "to" => 8,
+        "length" => 9,
+        "diameter" => 10,
+        "roughness" => 11,
+        "minor_loss" => 12,
+        "status" => STATUS,
+        "check_valve" => CHECK_VALVE,
+        _ => return None,
+    })
+}
+
+/// Reads an element table with only flat keys (`None`, cursor anywhere: not such an element).
+fn flat_element<'a>(c: &mut Cursor<'a>) -> Step<Option<FlatElement<'a>>> {
+    let mut e = FlatElement { values: [None; FLAT_KEYS.len() + 2] };
+    if c.json_space()? != b'{' {
+        return Ok(None);
+    }
+    c.i += 1;
+    if c.json_space()? == b'}' {
+        return Ok(None);
+    }
+    loop {
+        if c.json_space()? != b'"' {
+            return Ok(None);
+        }
+        let key = c.plain_string()?;
+        let Some(k) = flat_key(key) else { return Ok(None) };
+        if e.values[k].is_some() {
+            return Ok(None);
+        }
+        c.expect(b':')?;
+        let v = match c.json_space()? {
+            b'"' => Flat::Str(c.plain_string()?),
+            b't' => {
+                word(c, b"true", Value::Bool(true))?;
+                Flat::Bool(true)
+            }
+            b'f' => {
+                word(c, b"false", Value::Bool(false))?;
+                Flat::Bool(false)
+            }
+            b'-' | b'0'..=b'9' => match c.json_number()? {
+                Value::Int(i) => Flat::Num(i as f64),
+                Value::Float(f) => Flat::Num(f),
+                _ => return Ok(None),
+            },
+            _ => return Ok(None),
+        };
+        e.values[k] = Some(v);
+        match c.json_space()? {
+            b',' => c.i += 1,
+            b'}' => {
+                c.i += 1;
+                return Ok(Some(e));
+            }
+            _ => return Err(Stop::GiveUp),
+        }
+    }
+}
+
+/// A junction with an id, an elevation and optionally a demand, coordinates and a zone: the
+/// node the model reader would build (`None`: not plain; the model reader decides).
+fn plain_junction(e: &FlatElement, model: &Model) -> Option<Node> {
+    const NODE_ONLY: [usize; 6] = [0, 1, 2, 3, 4, 5];
+    if e.values.iter().enumerate().any(|(k, v)| v.is_some() && !NODE_ONLY.contains(&k) && k != 6) {
+        return None;
+    }
+    let id = e.str(0)??;
+    if !plain_id(id) || !matches!(e.str(1)?, None | Some("junction")) {
+        return None;
+    }
+    let elevation = e.num(2)??;
+    let demand = e.num(3)?.unwrap_or(0.0);
+    let coordinates = match (e.num(4)?, e.num(5)?) {
+        (Some(x), Some(y)) => Some((x, y)),
+        (None, None) => None,
+        _ => return None,
+    };
+    let zone = e.str(6)?.map(str::to_owned);
+    let units = &model.units;
+    Some(Node {
+        id: id.into(),
+        elevation: units.length.to_si(elevation),
+        coordinates,
+        zone,
+        kind: NodeKind::Junction { demand: units.flow.to_si(demand) },
+    })
+}
+
+/// A pipe with an id, its ends, length, diameter and roughness, and optionally a minor loss, a
+/// status and a check valve: the link the model reader would build (`None`: not plain).
+fn plain_pipe(e: &FlatElement, model: &Model) -> Option<Link> {
+    const PIPE_KEYS: [usize; 9] = [0, 1, 7, 8, 9, 10, 11, 12, STATUS];
+    if e.values.iter().enumerate().any(|(k, v)| v.is_some() && !PIPE_KEYS.contains(&k) && k != CHECK_VALVE) {
+        return None;
+    }
+    let id = e.str(0)??;
+    if !plain_id(id) || !matches!(e.str(1)?, None | Some("pipe")) {
+        return None;
+    }
+    let from = model.node_index(e.str(7)??)?;
+    let to = model.node_index(e.str(8)??)?;
+    let status = match e.str(STATUS)? {
+        None | Some("open") => LinkStatus::Open,
+        Some("closed") => LinkStatus::Closed,
+        Some(_) => return None,
+    };
+    let check_valve = match e.values[CHECK_VALVE] {
+        None => false,
+        Some(Flat::Bool(b)) => b,
+        Some(_) => return None,
+    };
+    let units = &model.units;
+    let roughness = e.num(11)??;
+    let pipe = Pipe {
+        length: units.length.to_si(e.num(9)??),
+        diameter: units.diameter.to_si(e.num(10)??),
+        roughness: match model.options.headloss {
+            HeadLossLaw::HazenWilliams => roughness,
+            HeadLossLaw::DarcyWeisbach => units.roughness.to_si(roughness),
+        },
+        minor_loss: e.num(12)?.unwrap_or(0.0),
+        check_valve,
+    };
+    Some(Link { id: id.into(), from, to, status, kind: LinkKind::Pipe(pipe) })
+}
+
+// ---------------------------------------------------------------------------------------------
+// TOML
+
+/// TOML white space within a line: space and tab.
+fn toml_blank(c: &mut Cursor) {
+    while matches!(c.b.get(c.i), Some(b' ' | b'\t')) {
+        c.i += 1;
+    }
+}
+
+/// The end of a line after a value: blanks, an optional comment, then a line break or the end of
+/// the text.
+fn toml_line_end(c: &mut Cursor) -> Step<()> {
+    toml_blank(c);
+    if c.b.get(c.i) == Some(&b'#') {
+        toml_comment(c)?;
+    }
+    match c.b.get(c.i) {
+        Some(b'\n') => {
+            c.i += 1;
+            Ok(())
+        }
+        Some(b'\r') => match c.b.get(c.i + 1) {
+            Some(b'\n') => {
+                c.i += 2;
+                Ok(())
+            }
+            Some(_) => Err(Stop::GiveUp),
+            None => Err(c.out()),
+        },
+        Some(_) => Err(Stop::GiveUp),
+        None if c.end => Ok(()),
+        None => Err(Stop::More),
+    }
+}
+
+/// A comment (at `#`) up to the line break: text without control characters but tab.
+fn toml_comment(c: &mut Cursor) -> Step<()> {
+    let start = c.i;
+    let mut ascii = true;
+    loop {
+        match c.b.get(c.i) {
+            Some(b'\n' | b'\r') => break,
+            Some(&b) if (b < 0x20 && b != b'\t') || b == 0x7f => return Err(Stop::GiveUp),
+            Some(&b) => {
+                ascii &= b < 0x80;
+                c.i += 1;
+            }
+            None if c.end => break,
+            None => return Err(Stop::More),
+        }
+    }
+    if !ascii && std::str::from_utf8(&c.b[start..c.i]).is_err() {
+        return Err(Stop::GiveUp);
+    }
+    Ok(())
+}
+
+/// Blank lines and comment lines, up to the first character of the next line with content;
+/// `None` at the end of the text.
+fn toml_next_line(c: &mut Cursor) -> Step<Option<u8>> {
+    loop {
+        toml_blank(c);
+        match c.b.get(c.i) {
+            Some(b'#') => toml_comment(c)?,
+            Some(b'\n') => c.i += 1,
+            Some(b'\r') => match c.b.get(c.i + 1) {
+                Some(b'\n') => c.i += 2,
+                Some(_) => return Err(Stop::GiveUp),
+                None => return Err(c.out()),
+            },
+            Some(&b) => return Ok(Some(b)),
+            None if c.end => return Ok(None),
+            None => return Err(Stop::More),
+        }
+    }
+}
+
+/// A bare key (letters, digits, `_`, `-`); quoted and dotted keys are the other reader's.
+fn toml_key<'a>(c: &mut Cursor<'a>) -> Step<&'a str> {
+    let start = c.i;
+    while let Some(&b) = c.b.get(c.i) {
+        if b.is_ascii_alphanumeric() || b == b'_' || b == b'-' {
+            c.i += 1;
+        } else {
+            break;
+        }
+    }
+    if c.i == c.b.len() && !c.end {
+        return Err(Stop::More);
+    }
+    if c.i == start {
+        return Err(Stop::GiveUp);
+    }
+    // SAFETY: ASCII only.
+    Ok(unsafe { std::str::from_utf8_unchecked(&c.b[start..c.i]) })
+}
+
+/// `key =` of a key/value line; the key.
+fn toml_key_eq<'a>(c: &mut Cursor<'a>) -> Step<&'a str> {
+    let key = toml_key(c)?;
+    toml_blank(c);
+    match c.b.get(c.i) {
+        Some(b'=') => c.i += 1,
+        Some(_) => return Err(Stop::GiveUp),
+        None => return Err(c.out()),
+    }
+    toml_blank(c);
+    Ok(key)
+}
+
+/// Checks that a value ends where TOML lets it end (more digits may still be unread).
+fn toml_after_value(c: &Cursor) -> Step<()> {
+    match c.b.get(c.i) {
+        Some(b' ' | b'\t' | b'\r' | b'\n' | b'#' | b',' | b']' | b'}') => Ok(()),
+        Some(_) => Err(Stop::GiveUp),
+        None if c.end => Ok(()),
+        None => Err(Stop::More),
+    }
+}
+
+/// A basic string (at `"`) without escapes; TOML refuses DEL in it, JSON does not.
+fn toml_basic<'a>(c: &mut Cursor<'a>) -> Step<&'a str> {
+    let s = c.plain_string()?;
+    if s.as_bytes().contains(&0x7f) {
+        return Err(Stop::GiveUp);
+    }
+    Ok(s)
+}
+
+/// A literal string (at `'`): no escapes, no control characters but tab.
+fn toml_literal<'a>(c: &mut Cursor<'a>) -> Step<&'a str> {
+    let start = c.i + 1;
+    let mut j = start;
+    loop {
+        match c.b.get(j) {
+            Some(b'\'') => break,
+            Some(&b) if (b < 0x20 && b != b'\t') || b == 0x7f => return Err(Stop::GiveUp),
+            Some(_) => j += 1,
+            None => return Err(c.out()),
+        }
+    }
+    c.i = j + 1;
+    std::str::from_utf8(&c.b[start..j]).map_err(|_| Stop::GiveUp)
+}
+
+/// A number: the JSON grammar, which TOML's decimal numbers share, without `+`, underscores,
+/// `inf`, `nan`, hexadecimal or dates (the other reader's).
+fn toml_number(c: &mut Cursor) -> Step<Value> {
+    let v = c.json_number()?;
+    toml_after_value(c)?;
+    Ok(v)
+}
+
+/// A TOML value into the same tree the `toml` crate gives through [`doc::Seed`].
+fn toml_value(c: &mut Cursor, depth: usize) -> Step<Value> {
+    if depth >= MAX_DEPTH {
+        return Err(Stop::GiveUp);
+    }
+    let b = match c.b.get(c.i) {
+        Some(&b) => b,
+        None => return Err(c.out()),
+    };
+    let v = match b {
+        b'"' => {
+            // (`"""`: a multi-line string, left to the other reader by the check after it.)
+            let s = toml_basic(c)?.to_owned();
+            toml_after_value(c)?;
+            Value::Str(s)
+        }
+        b'\'' => {
+            let s = toml_literal(c)?.to_owned();
+            toml_after_value(c)?;
+            Value::Str(s)
+        }
+        b't' => {
+            word(c, b"true", Value::Bool(true))?;
+            toml_after_value(c)?;
+            Value::Bool(true)
+        }
+        b'f' => {
+            word(c, b"false", Value::Bool(false))?;
+            toml_after_value(c)?;
+            Value::Bool(false)
+        }
+        b'-' | b'0'..=b'9' => toml_number(c)?,
+        b'[' => {
+            c.i += 1;
+            let mut items = Vec::new();
+            loop {
+                // Line breaks and comments may come between the items of an array.
+                match toml_next_line(c)? {
+                    Some(b']') => {
+                        c.i += 1;
+                        break;
+                    }
+                    Some(_) => {}
+                    None => return Err(Stop::GiveUp),
+                }
+                items.push(toml_value(c, depth + 1)?);
+                match toml_next_line(c)? {
+                    Some(b',') => c.i += 1,
+                    Some(b']') => {
+                        c.i += 1;
+                        break;
+                    }
+                    _ => return Err(Stop::GiveUp),
+                }
+            }
+            Value::Array(items)
+        }
+        b'{' => {
+            // An inline table: one line, no trailing comma.
+            c.i += 1;
+            let mut entries: Vec<(doc::Key, Value)> = Vec::with_capacity(TABLE_CAPACITY);
+            toml_blank(c);
+            if c.b.get(c.i) == Some(&b'}') {
+                c.i += 1;
+            } else {
+                loop {
+                    toml_blank(c);
+                    let key = toml_key_eq(c)?;
+                    if entries.iter().any(|(k, _)| k == key) || entries.len() > 64 {
+                        return Err(Stop::GiveUp);
+                    }
+                    let key = doc::key(key);
+                    let value = toml_value(c, depth + 1)?;
+                    entries.push((key, value));
+                    toml_blank(c);
+                    match c.b.get(c.i) {
+                        Some(b',') => c.i += 1,
+                        Some(b'}') => {
+                            c.i += 1;
+                            break;
+                        }
+                        Some(_) => return Err(Stop::GiveUp),
+                        None => return Err(c.out()),
+                    }
+                }
+            }
+            Value::Table(entries)
+        }
+        _ => return Err(Stop::GiveUp),
+    };
+    Ok(v)
+}
+
+/// The key/value lines of a table, up to the next header or the end of the text.
+fn toml_body(c: &mut Cursor, depth: usize) -> Step<Vec<(doc::Key, Value)>> {
+    let mut entries: Vec<(doc::Key, Value)> = Vec::with_capacity(TABLE_CAPACITY);
+    loop {
+        match toml_next_line(c)? {
+            None | Some(b'[') => return Ok(entries),
+            Some(_) => {}
+        }
+        let key = toml_key_eq(c)?;
+        if entries.iter().any(|(k, _)| k == key) || key.starts_with('$') {
+            return Err(Stop::GiveUp);
+        }
+        let key = doc::key(key);
+        let value = toml_value(c, depth + 1)?;
+        toml_line_end(c)?;
+        entries.push((key, value));
+    }
+}
+
+/// The key/value lines of an element with only flat keys and values (`None`: not such an
+/// element; the cursor is then anywhere).
+fn toml_flat_body<'a>(c: &mut Cursor<'a>) -> Step<Option<FlatElement<'a>>> {
+    let mut e = FlatElement { values: [None; FLAT_KEYS.len() + 2] };
+    let mut any = false;
+    loop {
+        match toml_next_line(c)? {
+            None | Some(b'[') => return Ok(any.then_some(e)),
+            Some(_) => {}
+        }
+        let key = toml_key_eq(c)?;
+        let Some(k) = flat_key(key) else { return Ok(None) };
+        if e.values[k].is_some() {
+            return Ok(None);
+        }
+        let v = match c.b.get(c.i) {
+            Some(b'"') => Flat::Str(toml_basic(c)?),
+            Some(b't') => {
+                word(c, b"true", Value::Bool(true))?;
+                Flat::Bool(true)
+            }
+            Some(b'f') => {
+                word(c, b"false", Value::Bool(false))?;
+                Flat::Bool(false)
+            }
+            Some(b'-' | b'0'..=b'9') => match c.json_number()? {
+                Value::Int(i) => Flat::Num(i as f64),
+                Value::Float(f) => Flat::Num(f),
+                _ => return Ok(None),
+            },
+            Some(_) => return Ok(None),
+            None => return Err(c.out()),
+        };
+        toml_after_value(c)?;
+        toml_line_end(c)?;
+        e.values[k] = Some(v);
+        any = true;
+    }
+}
+
+/// A table header at `[`: the name and whether it is an array of tables (`[[name]]`). Dotted
+/// and quoted names are the other reader's.
+fn toml_header<'a>(c: &mut Cursor<'a>) -> Step<(&'a str, bool)> {
+    c.i += 1;
+    let array = match c.b.get(c.i) {
+        Some(b'[') => {
+            c.i += 1;
+            true
+        }
+        Some(_) => false,
+        None => return Err(c.out()),
+    };
+    toml_blank(c);
+    let name = toml_key(c)?;
+    toml_blank(c);
+    let close: &[u8] = if array { b"]]" } else { b"]" };
+    let have = &c.b[c.i..];
+    if have.len() < close.len() && !c.end {
+        return Err(Stop::More);
+    }
+    if !have.starts_with(close) {
+        return Err(Stop::GiveUp);
+    }
+    c.i += close.len();
+    toml_line_end(c)?;
+    Ok((name, array))
+}
+
+/// Reads a TOML model from a text in memory in one pass; `None`: give up (see the module docs).
+pub(crate) fn toml_from_slice(text: &[u8]) -> Option<Model> {
+    let text = text.strip_prefix("\u{feff}".as_bytes()).unwrap_or(text);
+    toml_model(&mut SliceFeed { b: text, i: 0 })
+}
+
+/// Reads a TOML model from `src` in one pass, a chunk at a time (memory holds the model and a
+/// chunk); gives up beyond `limit` bytes. `None`: give up (see the module docs).
+pub fn toml_from_reader<R: Read>(src: R, limit: u64) -> Option<Model> {
+    toml_from_chunks(src, limit, CHUNK)
+}
+
+fn toml_from_chunks<R: Read>(src: R, limit: u64, chunk: usize) -> Option<Model> {
+    let mut feed = ReadFeed::new(src, limit, chunk);
+    feed.step(|c| {
+        if c.b.len() - c.i < 3 && !c.end {
+            return Err(Stop::More);
+        }
+        if c.b[c.i..].starts_with("\u{feff}".as_bytes()) {
+            c.i += 3;
+        }
+        Ok(())
+    })?;
+    toml_model(&mut feed)
+}
+
+/// The file: top-level keys, setting tables and arrays of tables, then `[[nodes]]`, then
+/// `[[links]]` (and `[[controls]]` anywhere); any other order gives up.
+fn toml_model(feed: &mut impl Feed) -> Option<Model> {
+    // Top-level keys and setting tables, by name; arrays of tables gather their entries.
+    let mut settings: Vec<(doc::Key, Value)> = feed.step(|c| toml_body(c, 0))?;
+    let mut arrays: Vec<(String, Vec<Value>)> = Vec::new();
+    let mut controls: Vec<Value> = Vec::new();
+    let mut model: Option<Model> = None;
+    let mut section = 0; // 0 settings, 1 nodes, 2 links
+    let (mut nodes, mut links) = (0, 0);
+    loop {
+        let header = feed.step(|c| match toml_next_line(c)? {
+            None => Ok(None),
+            Some(b'[') => Ok(Some(toml_header(c).map(|(n, a)| (n.to_owned(), a))?)),
+            Some(_) => Err(Stop::GiveUp),
+        })?;
+        let Some((name, array)) = header else { break };
+        match (name.as_str(), array) {
+            ("controls", true) => controls.push(Value::Table(feed.step(|c| toml_body(c, 1))?)),
+            ("nodes", true) | ("links", true) => {
+                let want = if name == "nodes" { 1 } else { 2 };
+                if section > want || (want == 2 && section == 0) {
+                    return None;
+                }
+                if section == 0 {
+                    // The settings are complete: the model starts. (Elements written as keys of
+                    // the top level, `nodes = [...]`, are the other reader's.)
+                    if settings.iter().any(|(k, _)| matches!(k.as_ref(), "nodes" | "links" | "controls")) {
+                        return None;
+                    }
+                    for (k, items) in arrays.drain(..) {
+                        if settings.iter().any(|(s, _)| *s == k) {
+                            return None;
+                        }
+                        settings.push((doc::Key::Owned(k), Value::Array(items)));
+                    }
+                    let mut top = file::top_fields(std::mem::take(&mut settings));
+                    model = Some(file::settings_model(&mut top)?);
+                }
+                section = want;
+                let m = model.as_mut()?;
+                let is_nodes = want == 1;
+                let i = if is_nodes { &mut nodes } else { &mut links };
+                let done = feed.step(|c| {
+                    let start = c.i;
+                    let Some(flat) = toml_flat_body(c)? else {
+                        c.i = start;
+                        return Ok(None);
+                    };
+                    match direct(&flat, m, is_nodes) {
+                        Some(element) => Ok(Some(element)),
+                        None => {
+                            c.i = start;
+                            Ok(None)
+                        }
+                    }
+                })?;
+                match done {
+                    Some(element) => add_direct(m, element)?,
+                    None => {
+                        let entries = feed.step(|c| toml_body(c, 2))?;
+                        if is_nodes {
+                            file::add_node_value(m, *i, Value::Table(entries)).ok()?;
+                        } else {
+                            file::add_link_value(m, *i, Value::Table(entries)).ok()?;
+                        }
+                    }
+                }
+                *i += 1;
+            }
+            _ if section > 0 => return None,
+            (_, true) => {
+                if settings.iter().any(|(k, _)| *k == name) {
+                    return None;
+                }
+                let entry = Value::Table(feed.step(|c| toml_body(c, 1))?);
+                match arrays.iter_mut().find(|(k, _)| *k == name) {
+                    Some((_, items)) => items.push(entry),
+                    None => arrays.push((name, vec![entry])),
+                }
+            }
+            (_, false) => {
+                if settings.iter().any(|(k, _)| *k == name) || arrays.iter().any(|(k, _)| *k == name) {
+                    return None;
+                }
+                let entries = feed.step(|c| toml_body(c, 1))?;
+                settings.push((doc::Key::Owned(name), Value::Table(entries)));
+            }
+        }
+    }
+    file::finish_model(model?, controls)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::super::file::{read_str, read_tree, Format};
+    use super::super::write;
+    use super::*;
+
+    /// Models of every shape the repository has: the demo models (patterns, controls, tanks,
+    /// pumps, valves, quality, fittings...), the published test networks, generated networks in
+    /// other units and laws.
+    fn models() -> Vec<Model> {
+        let root = concat!(env!("CARGO_MANIFEST_DIR"), "/..");
+        let mut models = Vec::new();
+        for dir in ["examples", "tests/data"] {
+            let mut files: Vec<_> =
+                std::fs::read_dir(format!("{root}/{dir}")).unwrap().flatten().map(|e| e.path()).collect();
+            files.sort();
+            for path in files.iter().filter(|p| p.extension().is_some_and(|e| e == "toml")) {
+                let text = std::fs::read_to_string(path).unwrap();
+                if let Ok(m) = read_str(&text, Format::Toml, "model") {
+                    models.push(m);
+                }
+            }
+        }
+        assert!(models.len() >= 6, "the demo models were found");
+        let mut g = crate::generate::generate(&crate::generate::NetworkSpec::new(1_200, 11)).unwrap();
+        models.push(g.clone());
+        use crate::units::{DiameterUnit, FlowUnit, LengthUnit};
+        g.units.flow = FlowUnit::parse("gpm").unwrap();
+        g.units.length = LengthUnit::parse("ft").unwrap();
+        g.units.diameter = DiameterUnit::parse("in").unwrap();
+        models.push(g);
+        models
+    }
+
+    /// A reader that hands out at most `n` bytes a call, so that every element is cut across
+    /// chunk ends somewhere.
+    struct Trickle<'a>(&'a [u8], usize);
+    impl Read for Trickle<'_> {
+        fn read(&mut self, out: &mut [u8]) -> std::io::Result<usize> {
+            let n = self.1.min(out.len()).min(self.0.len());
+            out[..n].copy_from_slice(&self.0[..n]);
+            self.0 = &self.0[n..];
+            Ok(n)
+        }
+    }
+
+    /// The fast reader builds the very model the whole-text reader (serde_json into the value
+    /// tree) builds, from memory and from chunks of any size, for every written model.
+    #[test]
+    fn fast_json_reader_builds_the_same_model_as_the_tree_reader() {
+        for model in models() {
+            let text = write::to_string(&model, Format::Json);
+            let tree = read_tree(&text, Format::Json).unwrap();
+            assert_eq!(json_from_slice(text.as_bytes()).as_ref(), Some(&tree));
+            for chunk in [1, 7, 64, 4096] {
+                let m = json_from_chunks(Trickle(text.as_bytes(), chunk.max(3) / 2 + 1), u64::MAX, chunk);
+                assert_eq!(m.as_ref(), Some(&tree), "chunks of {chunk} bytes");
+            }
+            // Compact and spread-out layouts, keys sorted within each element.
+            let value: serde_json::Value = serde_json::from_str(&text).unwrap();
+            let compact = serde_json::to_string(&value).unwrap();
+            if let Some(m) = json_from_slice(compact.as_bytes()) {
+                assert_eq!(m, tree);
+            }
+            let pretty = serde_json::to_string_pretty(&value).unwrap();
+            if let Some(m) = json_from_slice(pretty.as_bytes()) {
+                assert_eq!(m, tree);
+            }
+            // A byte-order mark is not part of the text.
+            assert_eq!(json_from_slice(format!("\u{feff}{text}").as_bytes()).as_ref(), Some(&tree));
+            assert_eq!(json_from_chunks(format!("\u{feff}{text}").as_bytes(), u64::MAX, 2).as_ref(), Some(&tree));
+            // Beyond the size limit: give up (the caller's limit speaks).
+            assert!(json_from_chunks(text.as_bytes(), text.len() as u64 / 2, 64).is_none());
+        }
+    }
+
+    /// The class of fault this reader could bring: accepting what the whole-text reader refuses,
+    /// or reading something else than it does. Every edit of a written model at many places (a
+    /// byte dropped, doubled or replaced by each of a set of troublesome bytes) is either given
+    /// up, or read as the whole-text reader reads it.
+    #[test]
+    fn fast_json_reader_never_accepts_what_the_tree_reader_refuses() {
+        let mut small = crate::generate::generate(&crate::generate::NetworkSpec::new(12, 2)).unwrap();
+        small.set_status(0, LinkStatus::Closed).unwrap();
+        let text = write::to_string(&small, Format::Json);
+        let bytes = text.as_bytes();
+        let mut accepted = 0;
+        let mut tried = 0;
+        let subs: &[u8] = b"{}[],:\"0-.e+ tfn1\\\n\x01";
+        for at in (0..bytes.len()).step_by(3) {
+            let mut edits: Vec<Vec<u8>> = vec![[&bytes[..at], &bytes[at + 1..]].concat()];
+            edits.push([&bytes[..=at], &bytes[at..]].concat());
+            for &b in subs {
+                edits.push([&bytes[..at], &[b], &bytes[at + 1..]].concat());
+            }
+            for edit in edits {
+                tried += 1;
+                let fast = json_from_slice(&edit);
+                let tree = std::str::from_utf8(&edit).ok().and_then(|t| read_str(t, Format::Json, "edit").ok());
+                if let Some(m) = fast {
+                    accepted += 1;
+                    assert_eq!(Some(&m), tree.as_ref(), "edit at byte {at}: {}", String::from_utf8_lossy(&edit));
+                }
+            }
+        }
+        assert!(accepted > 0 && accepted < tried, "{accepted} of {tried}");
+    }
+
+    /// Numbers come out as serde_json (with correct rounding) reads them: integers exactly,
+    /// decimals correctly rounded, from the shortest form to seventeen digits and beyond.
+    #[test]
+    fn numbers_are_read_as_serde_json_reads_them() {
+        let cases = [
+            "0",
+            "7",
+            "-7",
+            "123456789012345678",
+            "0.1",
+            "0.30000000000000004",
+            "0.10742707159363658",
+            "0.034389341362837125",
+            "1e-6",
+            "1E5",
+            "2.5e+3",
+            "-0.0",
+            "0.0",
+            "9007199254740993.0",
+            "2.2250738585072014e-308",
+            "1.7976931348623157e308",
+            "4.9e-324",
+            "1e-100",
+            "1e100",
+            "3.141592653589793238462643383279",
+            "120.00000000000001",
+        ];
+        for case in cases {
+            let text = format!("[{case}]");
+            let mut c = Cursor { b: text.as_bytes(), i: 0, end: true };
+            let fast = json_value(&mut c, 0);
+            let reference = doc::parse_json(&text).unwrap();
+            match fast {
+                Ok(v) => assert_eq!(
+                    format!("{v:?}"),
+                    format!("{reference:?}"),
+                    "{case}: the bits must agree, not only the values"
+                ),
+                Err(Stop::GiveUp) => {} // left to serde_json
+                Err(Stop::More) => panic!("{case}: the whole text was there"),
+            }
+        }
+    }
+
+    /// The demo models as written by hand (comments, inline tables, arrays over several lines,
+    /// controls, patterns, tanks, pumps and valves) and every model as the writer writes it: the
+    /// fast TOML reader builds the model the `toml` crate's document gives, or gives up.
+    #[test]
+    fn fast_toml_reader_builds_the_same_model_as_the_tree_reader() {
+        let root = concat!(env!("CARGO_MANIFEST_DIR"), "/..");
+        let mut texts = Vec::new();
+        for dir in ["examples", "tests/data"] {
+            for e in std::fs::read_dir(format!("{root}/{dir}")).unwrap().flatten() {
+                let p = e.path();
+                if p.extension().is_some_and(|e| e == "toml") && p.file_name().is_some_and(|n| n != "FIELDS.toml") {
+                    texts.push(std::fs::read_to_string(p).unwrap());
+                }
+            }
+        }
+        let mut direct = 0;
+        for text in &texts {
+            if let Ok(tree) = read_tree(text, Format::Toml) {
+                if let Some(m) = toml_from_slice(text.as_bytes()) {
+                    assert_eq!(m, tree);
+                    direct += 1;
+                }
+            }
+        }
+        assert!(direct >= 3, "the hand-written demo models are read in one pass ({direct})");
+        for model in models() {
+            let text = write::to_string(&model, Format::Toml);
+            let tree = read_tree(&text, Format::Toml).unwrap();
+            // Tables inside elements (`[[links.fittings]]`, as the `toml` crate writes a pump's or
+            // a fitting's tables) are the other reader's; everything else is read here.
+            let nested = text.lines().any(|l| l.trim_start().starts_with('[') && l.contains('.'));
+            let expected = if nested { None } else { Some(&tree) };
+            assert_eq!(toml_from_slice(text.as_bytes()).as_ref(), expected);
+            for chunk in [1, 7, 64, 4096] {
+                let m = toml_from_chunks(Trickle(text.as_bytes(), chunk.max(3) / 2 + 1), u64::MAX, chunk);
+                assert_eq!(m.as_ref(), expected, "chunks of {chunk} bytes");
+            }
+            let crlf = text.replace('\n', "\r\n");
+            assert_eq!(toml_from_slice(crlf.as_bytes()).as_ref(), expected);
+            assert_eq!(toml_from_slice(format!("\u{feff}{text}").as_bytes()).as_ref(), expected);
+        }
+    }
+
+    /// As for JSON: no edit of a TOML model is read differently from the `toml` crate's reading,
+    /// and none it refuses is accepted.
+    #[test]
+    fn fast_toml_reader_never_accepts_what_the_tree_reader_refuses() {
+        let demo = std::fs::read_to_string(concat!(env!("CARGO_MANIFEST_DIR"), "/../examples/hillside.toml")).unwrap();
+        let mut small = crate::generate::generate(&crate::generate::NetworkSpec::new(12, 2)).unwrap();
+        small.set_status(0, LinkStatus::Closed).unwrap();
+        let mut accepted = 0;
+        let mut tried = 0;
+        let subs: &[u8] = b"[]{},=\"'#0-.e+ \t\n\rtf_\\x7f\x01";
+        for text in [write::to_string(&small, Format::Toml), demo] {
+            let bytes = text.as_bytes();
+            let step = (bytes.len() / 80).max(1);
+            for at in (0..bytes.len()).step_by(step) {
+                let mut edits: Vec<Vec<u8>> = vec![[&bytes[..at], &bytes[at + 1..]].concat()];
+                edits.push([&bytes[..=at], &bytes[at..]].concat());
+                for &b in subs {
+                    edits.push([&bytes[..at], &[b], &bytes[at + 1..]].concat());
+                }
+                for edit in edits {
+                    tried += 1;
+                    let fast = toml_from_slice(&edit);
+                    let tree = std::str::from_utf8(&edit).ok().and_then(|t| read_tree(t, Format::Toml).ok());
+                    if let Some(m) = fast {
+                        accepted += 1;
+                        assert_eq!(Some(&m), tree.as_ref(), "edit at byte {at}: {}", String::from_utf8_lossy(&edit));
+                    }
+                }
+            }
+        }
+        assert!(accepted > 0 && accepted < tried, "{accepted} of {tried}");
+    }
+}

@@ -1,0 +1,87 @@
+//! The worked example's and the demo models' outputs, byte for byte as committed.
+//!
+//! Refactoring must not change an answer or a digit of the program's output: this test runs the
+//! commands of the README's worked example (`examples/orchard-close.toml`) and of the demo
+//! models (`examples/hillside.toml`, `examples/hillside-day.toml`) and compares what they print
+//! with the copies committed in `tests/data/expected/`. The simulation's JSON (3 MB) is compared
+//! through its length and its 64-bit FNV-1a digest (Fowler–Noll–Vo, offset basis
+//! 0xcbf29ce484222325, prime 0x100000001b3, as published by its authors).
+//!
+//! The copies were made by the program of commit 6d297d5 and checked identical to this branch's
+//! output. A deliberate change of output is blessed with `RINGMAIN_BLESS=1 cargo test --release
+//! --test unchanged_outputs`, which rewrites the copies; the diff then shows what changed.
+
+use std::path::{Path, PathBuf};
+use std::process::Command;
+
+fn root() -> PathBuf {
+    PathBuf::from(env!("CARGO_MANIFEST_DIR"))
+}
+
+fn run(args: &[&str]) -> Vec<u8> {
+    let out =
+        Command::new(env!("CARGO_BIN_EXE_ringmain")).args(args).current_dir(root()).output().expect("start ringmain");
+    assert!(out.status.success(), "ringmain {args:?} failed: {}", String::from_utf8_lossy(&out.stderr));
+    out.stdout
+}
+
+fn bless() -> bool {
+    std::env::var_os("RINGMAIN_BLESS").is_some()
+}
+
+fn expected(name: &str) -> PathBuf {
+    root().join("tests/data/expected").join(name)
+}
+
+/// Compares `actual` with the committed copy `name`, naming the first line that differs.
+fn same_as_committed(name: &str, actual: &[u8]) {
+    let path = expected(name);
+    if bless() {
+        std::fs::write(&path, actual).expect("write the copy");
+        return;
+    }
+    let committed = std::fs::read(&path).unwrap_or_else(|e| panic!("{}: {e}", path.display()));
+    if committed != actual {
+        let (a, c) = (String::from_utf8_lossy(actual), String::from_utf8_lossy(&committed));
+        let line = a.lines().zip(c.lines()).position(|(x, y)| x != y).map_or_else(
+            || format!("the outputs differ in length ({} bytes now, {} committed)", actual.len(), committed.len()),
+            |i| {
+                format!(
+                    "line {}:\n  now:       {}\n  committed: {}",
+                    i + 1,
+                    a.lines().nth(i).unwrap_or(""),
+                    c.lines().nth(i).unwrap_or("")
+                )
+            },
+        );
+        panic!("{} changed; {line}", Path::new(name).display());
+    }
+}
+
+fn fnv1a64(bytes: &[u8]) -> u64 {
+    bytes.iter().fold(0xcbf2_9ce4_8422_2325_u64, |h, &b| (h ^ u64::from(b)).wrapping_mul(0x0100_0000_01b3))
+}
+
+#[test]
+fn fnv1a64_matches_the_published_test_vectors() {
+    // Test vectors of the FNV reference page (Noll): "" and "a" (the second from memory).
+    assert_eq!(fnv1a64(b""), 0xcbf2_9ce4_8422_2325);
+    assert_eq!(fnv1a64(b"a"), 0xaf63_dc4c_8601_ec8c);
+}
+
+#[test]
+fn the_worked_example_prints_what_it_printed() {
+    same_as_committed("orchard-close.txt", &run(&["solve", "examples/orchard-close.toml"]));
+    same_as_committed("orchard-close.json", &run(&["solve", "examples/orchard-close.toml", "--format", "json"]));
+    same_as_committed("orchard-close.csv", &run(&["solve", "examples/orchard-close.toml", "--format", "csv"]));
+}
+
+#[test]
+fn the_demo_models_print_what_they_printed() {
+    same_as_committed("hillside.txt", &run(&["solve", "examples/hillside.toml"]));
+    same_as_committed("hillside.json", &run(&["solve", "examples/hillside.toml", "--format", "json"]));
+    same_as_committed("hillside-day.txt", &run(&["simulate", "examples/hillside-day.toml"]));
+    let series = run(&["simulate", "examples/hillside-day.toml", "--format", "json"]);
+    let digest = format!("{:016x} {}\n", fnv1a64(&series), series.len());
+    same_as_committed("hillside-day.json.fnv1a64", digest.as_bytes());
+}
