@@ -7,8 +7,10 @@
 //! through its length and its 64-bit FNV-1a digest (Fowler–Noll–Vo, offset basis
 //! 0xcbf29ce484222325, prime 0x100000001b3, as published by its authors).
 //!
-//! The copies were made by the program of commit 6d297d5 and checked identical to this branch's
-//! output. A deliberate change of output is blessed with `RINGMAIN_BLESS=1 cargo test --release
+//! The copies were made by the program of commit 6d297d5 and checked identical to the refactored
+//! program's output. The simulation's digest was blessed again after commit 17e7c08, which added
+//! two keys to the JSON summary's volume balance (`leaked` and `outlets`, 0.0 for this model):
+//! every other byte was checked unchanged. A deliberate change of output is blessed with `RINGMAIN_BLESS=1 cargo test --release
 //! --test unchanged_outputs`, which rewrites the copies; the diff then shows what changed.
 
 use std::path::{Path, PathBuf};
