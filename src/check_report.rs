@@ -81,14 +81,20 @@ fn exit_meaning(code: u8) -> &'static str {
 
 /// `min_pressure >= 20.00 m`.
 fn criterion_text(run: &Run<'_>, c: &CheckResult) -> String {
-    let op = if c.name.ends_with("min_pressure") || c.name == "min_tank_reserve" {
+    let op = if c.name.ends_with("min_pressure")
+        || c.name == "min_tank_reserve"
+        || c.name.starts_with("min_delivered")
+        || c.name.ends_with("min_fire_flow")
+    {
         ">="
     } else if c.name == "min_supply_margin" {
         return format!("{} (supply within capacity less the margin)", c.name);
     } else {
         "<="
     };
-    if c.limit.is_finite() && c.name != "all_demands_supplied" {
+    if c.name.starts_with("min_delivered") {
+        format!("{} {op} {:.3} % of the demand asked", c.name, c.limit)
+    } else if c.limit.is_finite() && c.name != "all_demands_supplied" {
         format!("{} {op} {}", c.name, run.value(c.quantity, c.limit))
     } else {
         c.name.clone()

@@ -455,3 +455,60 @@ fn an_inflow_stays_fixed() {
     let s = solve(&m);
     assert_eq!(s.delivered(b), -1.5e-3);
 }
+
+/// `min_delivered` (per junction and in total) and `min_fire_flow` for a group, through
+/// `ringmain check`: the values are the solver's own delivered demand and the fire-flow search's
+/// available flow, here checked against the same model solved by the library.
+#[test]
+fn check_reads_and_applies_min_delivered_and_min_fire_flow() {
+    let m = devices();
+    let s = solve(&m);
+    let o = s.outflow_summary(10);
+    let total = 100.0 * o.delivered / o.asked;
+    assert!(total < 99.0, "the scenario is meant to fall short: {total} %");
+    let dir = std::env::temp_dir().join(format!("ringmain-pressure-check-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let run = |criteria: &str| {
+        let path = dir.join("model.toml");
+        std::fs::write(&path, format!("{DEVICES}\n{criteria}")).unwrap();
+        let out = std::process::Command::new(env!("CARGO_BIN_EXE_ringmain"))
+            .args(["check", path.to_str().unwrap(), "--format", "json"])
+            .output()
+            .unwrap();
+        (
+            out.status.code(),
+            String::from_utf8_lossy(&out.stdout).into_owned(),
+            String::from_utf8_lossy(&out.stderr).into_owned(),
+        )
+    };
+    // Just above the network's share: the total fails; far below every junction's: it passes.
+    let (code_high, stdout, _) = run(&format!("[criteria]\nmin_delivered = \"{} %\"\n", total + 0.5));
+    assert_eq!(code_high, Some(1), "{stdout}");
+    assert!(stdout.contains("min_delivered.total"), "{stdout}");
+    let lowest = (0..m.nodes().len())
+        .filter(|&i| s.demand[i] > 0.0)
+        .map(|i| 100.0 * s.delivered(i) / s.demand[i])
+        .fold(f64::INFINITY, f64::min);
+    if lowest > 1.0 {
+        let (code_low, out_low, _) = run(&format!("[criteria]\nmin_delivered = \"{} %\"\n", 0.5 * lowest));
+        assert_eq!(code_low, Some(0), "{out_low}");
+    }
+    // A bad share is refused naming the key.
+    let (code_bad, _, err_bad) = run("[criteria]\nmin_delivered = \"140 %\"\n");
+    assert_eq!(code_bad, Some(2), "{err_bad}");
+    assert!(err_bad.contains("min_delivered"), "{err_bad}");
+    // min_fire_flow: E's available flow from the library's own search at 20 psi.
+    let e = m.node_index("E").unwrap();
+    let residual =
+        ringmain_core::analysis::criteria::fire_residual(&ringmain_core::analysis::criteria::Criteria::default(), &m);
+    let options = ringmain_core::analysis::fire_flow::FireFlowOptions { residual, demand_factor: 1.0 };
+    let available = ringmain_core::analysis::fire_flow::fire_flows(&m, &[e], &options).unwrap()[0].available();
+    let group = |limit: f64| {
+        format!("[[criteria.groups]]\nname = \"hydrant E\"\nids = \"E\"\nmin_fire_flow = \"{} L/s\"\n", limit * 1e3)
+    };
+    let (pass, out_pass, _) = run(&group(0.9 * available));
+    let (fail, out_fail, _) = run(&group(1.1 * available));
+    assert_eq!((pass, fail), (Some(0), Some(1)), "{out_pass}\n{out_fail}");
+    assert!(out_fail.contains("groups.hydrant E.min_fire_flow"), "{out_fail}");
+    let _ = std::fs::remove_dir_all(&dir);
+}

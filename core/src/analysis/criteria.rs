@@ -16,6 +16,10 @@
 //! max_headloss = "3 m/km"         # head loss per length of pipe, friction and minor losses
 //! min_supply_margin = "10 %"      # headroom below each source's capacity (or a flow, "5 L/s")
 //! min_tank_reserve = "0.5 m"      # each tank's level above its min_level
+//! min_delivered = "95 %"          # share of its demand each junction receives, and of the
+//!                                 # total (meaningful with [pressure_demand])
+//! fire_residual = "20 psi"        # residual pressure of min_fire_flow (default 20 psi, common
+//!                                 # practice in North America)
 //! fail_on_warnings = ["parallel-pipes"]   # model warnings that count as failures (or true: all)
 //!
 //! [criteria.source_capacity]      # what each source can deliver; supply = net outflow
@@ -32,6 +36,8 @@
 //! zone = "high"                   # nodes with this zone tag (a string or a list)
 //! ids = "HZ-*"                    # and/or ids matching a pattern (* any text, ? one character)
 //! min_pressure = "15 m"
+//! min_fire_flow = "25 L/s"        # each junction of the group gives at least this fire flow
+//!                                 # at the residual pressure (see `ringmain fire-flow`)
 //! ```
 
 use super::glob_match;
@@ -53,6 +59,8 @@ pub const CRITERIA_KEYS: &[&str] = &[
     "min_supply_margin",
     "source_capacity",
     "min_tank_reserve",
+    "min_delivered",
+    "fire_residual",
     "fail_on_warnings",
     "groups",
     "max_age",
@@ -61,7 +69,12 @@ pub const CRITERIA_KEYS: &[&str] = &[
 ];
 
 /// The keys of one `[[criteria.groups]]` entry.
-pub const GROUP_KEYS: &[&str] = &["name", "zone", "ids", "min_pressure", "max_pressure"];
+pub const GROUP_KEYS: &[&str] = &["name", "zone", "ids", "min_pressure", "max_pressure", "min_fire_flow"];
+
+/// The residual pressure of `min_fire_flow` when the criteria do not give one: 20 psi, common
+/// practice in North America (as pressure head of water at 1000 kg/m³ this is 14.06 m; here it is
+/// converted with the model's water like every pressure).
+pub const FIRE_RESIDUAL_PSI: f64 = 20.0;
 
 /// How much headroom a source must keep below its capacity.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -95,6 +108,8 @@ pub struct Group {
     pub min_pressure: Option<f64>,
     /// Highest pressure head allowed, m.
     pub max_pressure: Option<f64>,
+    /// Smallest available fire flow at each of its junctions, m³/s.
+    pub min_fire_flow: Option<f64>,
 }
 
 impl Group {
@@ -127,6 +142,10 @@ pub struct Criteria {
     pub source_capacity: Vec<(usize, f64)>,
     /// Lowest tank level above its `min_level`, m.
     pub min_tank_reserve: Option<f64>,
+    /// Smallest share of its demand every junction receives, and of the total, as a fraction.
+    pub min_delivered: Option<f64>,
+    /// Residual pressure head of `min_fire_flow`, m (`None`: 20 psi).
+    pub fire_residual: Option<f64>,
     /// Model warnings that count as failures.
     pub fail_on_warnings: Vec<DiagnosticKind>,
     /// Limits for groups of nodes.
@@ -152,6 +171,8 @@ impl Default for Criteria {
             min_supply_margin: None,
             source_capacity: Vec::new(),
             min_tank_reserve: None,
+            min_delivered: None,
+            fire_residual: None,
             fail_on_warnings: Vec::new(),
             groups: Vec::new(),
             max_age: None,
@@ -369,6 +390,8 @@ impl Criteria {
                 "max_headloss" => next.max_headloss = Some(r.limit(key, v, Quantity::Gradient, true)?),
                 "min_tank_reserve" => next.min_tank_reserve = Some(r.limit(key, v, Quantity::Length, true)?),
                 "min_supply_margin" => next.min_supply_margin = Some(read_margin(r, key, v)?),
+                "min_delivered" => next.min_delivered = Some(read_share(r, key, v)?),
+                "fire_residual" => next.fire_residual = Some(r.limit(key, v, Quantity::Pressure, false)?),
                 "source_capacity" => next.source_capacity = read_capacity(r, key, v, model)?,
                 "fail_on_warnings" => next.fail_on_warnings = read_fail_on(r, key, v)?,
                 "groups" => next.groups = read_groups(r, key, v)?,
@@ -410,6 +433,7 @@ impl Criteria {
             || self.min_supply_margin.is_some()
             || !self.source_capacity.is_empty()
             || self.min_tank_reserve.is_some()
+            || self.min_delivered.is_some()
             || !self.groups.is_empty()
             || self.has_quality_limits()
     }
@@ -469,6 +493,36 @@ fn read_residuals(r: &Reader<'_>, key: &str, v: &Value, model: &Model) -> Result
         out.push((c, number));
     }
     Ok(out)
+}
+
+/// Reads a share such as `"95 %"` (or a bare number of percent) as a fraction in (0, 1].
+fn read_share(r: &Reader<'_>, key: &str, v: &Value) -> Result<f64, ModelError> {
+    let percent = match v {
+        Value::Int(i) => *i as f64,
+        Value::Float(f) => *f,
+        Value::Str(s) => match s.trim().strip_suffix('%').and_then(split_number) {
+            Some((number, "")) => number,
+            _ => {
+                return Err(
+                    r.error(key, format!("\"{}\" is not a percentage; write for example \"95 %\"", printable(s)))
+                )
+            }
+        },
+        other => return Err(r.error(key, format!("must be a percentage such as \"95 %\", found {}", other.kind()))),
+    };
+    if !(percent > 0.0 && percent <= 100.0) {
+        return Err(r.error(key, format!("must be above 0 % and at most 100 %, found {percent} %")));
+    }
+    Ok(percent / 100.0)
+}
+
+/// The residual pressure head of `min_fire_flow`, m: the criteria's, else 20 psi converted with
+/// the model's water.
+pub fn fire_residual(criteria: &Criteria, model: &Model) -> f64 {
+    criteria.fire_residual.unwrap_or_else(|| {
+        let density = model.options.water_properties().density;
+        PressureUnit::Psi.to_head(FIRE_RESIDUAL_PSI, density)
+    })
 }
 
 fn read_margin(r: &Reader<'_>, key: &str, v: &Value) -> Result<SupplyMargin, ModelError> {
@@ -548,6 +602,7 @@ fn read_groups(r: &Reader<'_>, key: &str, v: &Value) -> Result<Vec<Group>, Model
             ids: Vec::new(),
             min_pressure: None,
             max_pressure: None,
+            min_fire_flow: None,
         };
         for (k, v) in entries {
             match k.as_ref() {
@@ -560,14 +615,15 @@ fn read_groups(r: &Reader<'_>, key: &str, v: &Value) -> Result<Vec<Group>, Model
                 "ids" => g.ids = sub.strings(k, v)?,
                 "min_pressure" => g.min_pressure = Some(sub.limit(k, v, Quantity::Pressure, false)?),
                 "max_pressure" => g.max_pressure = Some(sub.limit(k, v, Quantity::Pressure, false)?),
+                "min_fire_flow" => g.min_fire_flow = Some(sub.limit(k, v, Quantity::Flow, true)?),
                 _ => return Err(unknown_key(&sub, k, GROUP_KEYS)),
             }
         }
         if g.zones.is_empty() && g.ids.is_empty() {
             return Err(sub.error("zone", "a group needs 'zone' or 'ids' (or both) to select its nodes"));
         }
-        if g.min_pressure.is_none() && g.max_pressure.is_none() {
-            return Err(sub.error("min_pressure", "a group needs min_pressure or max_pressure (or both)"));
+        if g.min_pressure.is_none() && g.max_pressure.is_none() && g.min_fire_flow.is_none() {
+            return Err(sub.error("min_pressure", "a group needs min_pressure, max_pressure or min_fire_flow"));
         }
         if let (Some(lo), Some(hi)) = (g.min_pressure, g.max_pressure) {
             if lo > hi {

@@ -204,6 +204,39 @@ pub fn evaluate(criteria: &Criteria, model: &Model, solution: &Solution, keep: u
         }
         out.push(c);
     }
+    if let Some(share) = criteria.min_delivered {
+        // Per junction asking for water, and in total; values in percent of the demand asked.
+        let limit = 100.0 * share;
+        let mut c = CheckResult::new("min_delivered", Quantity::Number, limit);
+        let (mut asked, mut got) = (0.0, 0.0);
+        for (i, n) in nodes.iter().enumerate() {
+            let d = solution.demand[i];
+            if !matches!(n.kind, NodeKind::Junction { .. }) || d <= 0.0 {
+                continue;
+            }
+            c.checked += 1;
+            let q = solution.delivered(i);
+            asked += d;
+            got += q;
+            let percent = 100.0 * q / d;
+            if percent < limit {
+                c.add(Finding::over(Element::Node(n.id.to_string()), percent, limit, limit - percent), keep);
+            }
+        }
+        let mut total = CheckResult::new("min_delivered.total", Quantity::Number, limit);
+        if asked > 0.0 {
+            total.checked = 1;
+            let percent = 100.0 * got / asked;
+            if percent < limit {
+                let element = Element::Table(model.title.clone().unwrap_or_else(|| "network".into()));
+                let mut finding = Finding::over(element, percent, limit, limit - percent);
+                finding.detail = Some(format!("the network delivers {percent:.2} % of the demand asked"));
+                total.add(finding, keep);
+            }
+        }
+        out.push(c);
+        out.push(total);
+    }
     if let Some(limit) = criteria.min_tank_reserve {
         let mut c = CheckResult::new("min_tank_reserve", Quantity::Length, limit);
         for n in nodes {

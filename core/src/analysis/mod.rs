@@ -324,6 +324,11 @@ fn judge(
     let error = demand_delivered(model, solution, options.keep).err();
     let mut checks = vec![convergence_check(criteria, model, error.as_ref())];
     checks.extend(evaluate(criteria, model, solution, options.keep));
+    // Fire flows on the scenarios themselves, not on each closure of a sweep (a search of
+    // several solves per junction).
+    if reference.is_none() {
+        checks.extend(fire_flow_checks(criteria, model, options.keep));
+    }
     let lost_supply = reference.map(|r| lost_supply(model, r, &solution.connected, options.keep)).unwrap_or_default();
     Outcome {
         error,
@@ -333,6 +338,56 @@ fn judge(
         connected: solution.connected.clone(),
         repeated_from_base: 0,
     }
+}
+
+/// `min_fire_flow` of every group that sets it: the available fire flow at each of the group's
+/// junctions at the criteria's residual pressure (see [`fire_flow`]).
+fn fire_flow_checks(criteria: &Criteria, model: &Model, keep: usize) -> Vec<CheckResult> {
+    let residual = criteria::fire_residual(criteria, model);
+    let mut out = Vec::new();
+    for g in criteria.groups.iter().filter(|g| g.min_fire_flow.is_some()) {
+        let limit = g.min_fire_flow.unwrap_or(0.0);
+        let mut c = CheckResult::new(format!("groups.{}.min_fire_flow", g.name), Quantity::Flow, limit);
+        let hydrants: Vec<usize> = model
+            .nodes()
+            .iter()
+            .enumerate()
+            .filter(|(_, n)| matches!(n.kind, NodeKind::Junction { .. }) && g.selects(&n.id, n.zone.as_deref()))
+            .map(|(i, _)| i)
+            .collect();
+        c.checked = hydrants.len();
+        let options = fire_flow::FireFlowOptions { residual, demand_factor: 1.0 };
+        // All the group's hydrants in one parallel search over one analysis.
+        match fire_flow::fire_flows(model, &hydrants, &options) {
+            Ok(flows) => {
+                for (&h, f) in hydrants.iter().zip(&flows) {
+                    let available = f.available();
+                    if available < limit {
+                        let id = Element::Node(model.nodes()[h].id.to_string());
+                        c.add(Finding::over(id, available, limit, limit - available), keep);
+                    }
+                }
+            }
+            Err(e) => {
+                let element = match &e {
+                    SolveError::Model(m) => m.element.clone(),
+                    _ => None,
+                };
+                c.add(
+                    Finding {
+                        element: element.unwrap_or_else(|| Element::Table(format!("groups.{}", g.name))),
+                        value: f64::NAN,
+                        limit,
+                        excess: limit,
+                        detail: Some(format!("no fire flow could be found: {e}")),
+                    },
+                    keep,
+                );
+            }
+        }
+        out.push(c);
+    }
+    out
 }
 
 /// The outcome of a scenario the solver could not finish.
