@@ -147,24 +147,65 @@ impl PowerLaw {
 
     /// The regularised inverse `P(q)` for pressure tolerance `w` (m): see the module docs.
     pub fn inverse(&self, q: f64, w: f64) -> Inverse {
+        self.smoothed(w).inverse(q)
+    }
+
+    /// The pieces of the regularised inverse for tolerance `w`, computed once (the solver
+    /// evaluates a relation at every iteration: one power per evaluation instead of six).
+    pub fn smoothed(&self, w: f64) -> Smoothed {
         let m = self.barrier_slope(w);
         let q0 = self.secant_end(w);
         let s0 = (self.pressure(q0) - self.base) / q0;
         // Kink at q = 0 between the barrier (left) and the secant (right).
         let h0 = w / (m - s0);
-        if q < q0 {
-            return fillet(self.base, 0.0, m, s0, h0, q);
-        }
-        if self.capped {
+        let cap = self.capped.then(|| {
             // Kink at the cap between the power law's tangent and the barrier.
             let a = self.pressure_slope(self.flow);
-            let h1 = (w / (m - a)).min(0.25 * (self.flow - q0));
-            let top = self.base + self.scale;
-            if q >= self.flow - h1 {
-                return fillet(top, self.flow, a, m, h1, q);
+            (a, (w / (m - a)).min(0.25 * (self.flow - q0)))
+        });
+        Smoothed { law: *self, m, q0, s0, h0, cap }
+    }
+}
+
+/// The regularised inverse of one [`PowerLaw`] for one tolerance, its pieces computed once:
+/// barrier slope `m`, secant end `q0` and slope `s0`, the half-widths of the fillets at zero
+/// (`h0`) and at the cap (with the power law's slope there).
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Smoothed {
+    /// The relation.
+    pub law: PowerLaw,
+    m: f64,
+    q0: f64,
+    s0: f64,
+    h0: f64,
+    /// (slope of the power law at the cap, half-width of the fillet there), when capped.
+    cap: Option<(f64, f64)>,
+}
+
+impl Smoothed {
+    /// The regularised inverse at `q`.
+    #[inline]
+    pub fn inverse(&self, q: f64) -> Inverse {
+        let law = &self.law;
+        if q < self.q0 {
+            return fillet(law.base, 0.0, self.m, self.s0, self.h0, q);
+        }
+        if let Some((a, h1)) = self.cap {
+            if q >= law.flow - h1 {
+                return fillet(law.base + law.scale, law.flow, a, self.m, h1, q);
             }
         }
-        Inverse { pressure: self.pressure(q), slope: self.pressure_slope(q) }
+        // P = base + scale (q/flow)^(1/e) and dP/dq = (P − base)/(e q), with one power.
+        let rise = law.scale * (q / law.flow).powf(1.0 / law.exponent);
+        Inverse { pressure: law.base + rise, slope: rise / (law.exponent * q) }
+    }
+
+    /// The Newton step at outflow `q` and pressure head `p` (see [`Step`]).
+    #[inline]
+    pub fn step(&self, q: f64, p: f64) -> Step {
+        let r = self.inverse(q);
+        let g = 1.0 / r.slope;
+        Step { conductance: g, constant: q + g * (p - r.pressure) }
     }
 }
 
@@ -186,9 +227,7 @@ pub struct Step {
 impl PowerLaw {
     /// The Newton step at outflow `q` and pressure head `p`, for pressure tolerance `w`.
     pub fn step(&self, q: f64, p: f64, w: f64) -> Step {
-        let r = self.inverse(q, w);
-        let g = 1.0 / r.slope;
-        Step { conductance: g, constant: q + g * (p - r.pressure) }
+        self.smoothed(w).step(q, p)
     }
 
     /// The new outflow after head correction `delta`, given the new pressure head `p_new`, with

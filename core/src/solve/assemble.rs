@@ -293,7 +293,6 @@ impl Solver {
     /// Linearises every relation of pressure at its flow and its junction's head, and adds it to
     /// the matrix (after [`Solver::begin_assembly`]). Relations of cut-off junctions pass nothing.
     pub(super) fn scatter_relations(&mut self) {
-        let w = self.relation_tolerance;
         for i in 0..self.relations.len() {
             let node = self.relations[i].node as usize;
             if !self.connected[node] {
@@ -304,7 +303,7 @@ impl Solver {
             }
             let p = self.iterate_head(node) - self.relations[i].elevation;
             let r = &mut self.relations[i];
-            r.step = r.law.step(r.q, p, w);
+            r.step = r.smooth.step(r.q, p);
             self.scatter_relation(i);
         }
     }
@@ -324,7 +323,6 @@ impl Solver {
     /// corrected), linearised at once for the next step and added to the next matrix.
     pub(super) fn update_relations(&mut self, damping: f64) -> RelationChange {
         let mut change = RelationChange::default();
-        let w = self.relation_tolerance;
         for i in 0..self.relations.len() {
             let node = self.relations[i].node as usize;
             if !self.connected[node] {
@@ -340,7 +338,7 @@ impl Solver {
                 let full = r.law.advance(r.step, delta / damping, p - delta + delta / damping);
                 r.q + damping * (full - r.q)
             };
-            let inverse = r.law.inverse(q, w);
+            let inverse = r.smooth.inverse(q);
             let g = 1.0 / inverse.slope;
             change.sum_dq += (q - r.q).abs();
             change.sum_q += q.abs();

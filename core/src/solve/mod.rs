@@ -332,7 +332,7 @@ impl Solver {
         self.demand.resize(model.nodes().len(), 0.0);
         self.connected.resize(model.nodes().len(), false);
         // The junctions' fixed outflows and their relations of pressure (see `nodes`).
-        nodes::build(model, conditions, &mut self.demand, &mut self.relations);
+        nodes::build(model, conditions, options.head_tolerance, &mut self.demand, &mut self.relations);
         self.relation_tolerance = options.head_tolerance;
         let warm = options.warm_start && self.has_previous;
         self.start_values(model, conditions, warm);

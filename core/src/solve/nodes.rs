@@ -32,7 +32,7 @@
 
 use super::Conditions;
 use crate::model::{Model, NodeKind};
-use crate::physics::outflow::{PowerLaw, Step};
+use crate::physics::outflow::{PowerLaw, Smoothed, Step};
 
 /// How the junctions draw water.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Default)]
@@ -89,6 +89,8 @@ pub(super) struct NodeRelation {
     pub relation: Relation,
     /// The relation.
     pub law: PowerLaw,
+    /// Its regularised inverse for the solve's tolerance (set by the solver before iterating).
+    pub smooth: Smoothed,
     /// Its current flow, m³/s.
     pub q: f64,
     /// Its linearisation at the current flow and pressure.
@@ -125,8 +127,9 @@ pub(super) fn pressure_nodes(model: &Model) -> Vec<bool> {
 }
 
 /// Builds the relations of every junction under `conditions` into `out` (by node, in node
-/// order), and each junction's fixed outflow into `fixed` (m³/s, per node).
-pub(super) fn build(model: &Model, conditions: &Conditions, fixed: &mut [f64], out: &mut Vec<NodeRelation>) {
+/// order), each regularised within the pressure tolerance `w` (m), and each junction's fixed
+/// outflow into `fixed` (m³/s, per node).
+pub(super) fn build(model: &Model, conditions: &Conditions, w: f64, fixed: &mut [f64], out: &mut Vec<NodeRelation>) {
     out.clear();
     for (i, f) in fixed.iter_mut().enumerate() {
         *f = conditions.demand(i);
@@ -144,6 +147,7 @@ pub(super) fn build(model: &Model, conditions: &Conditions, fixed: &mut [f64], o
             elevation: nodes[i].elevation,
             relation,
             law,
+            smooth: law.smoothed(w),
             q: 0.0,
             step: Step { conductance: 0.0, constant: 0.0 },
         };
