@@ -166,13 +166,38 @@ fn short_failure(run: &Run<'_>, c: &CheckResult) -> String {
     }
 }
 
-/// Sort key of a closure: did not solve, then lost demand, then failed criteria; worst first.
-fn severity(o: &Outcome) -> (bool, f64, usize, usize) {
-    (!o.converged(), o.lost_supply.demand, o.failed().count(), o.lost_supply.count)
+/// Sort key of a closure: did not solve, then lost demand (with `[pressure_demand]`: the
+/// shortfall the closure causes, cut-off junctions included), then failed criteria; worst first.
+fn severity(run: &Run<'_>, o: &Outcome) -> (bool, f64, usize, usize) {
+    let lost = if pressure_dependent(run) { caused_shortfall(run, o) } else { o.lost_supply.demand };
+    (!o.converged(), lost, o.failed().count(), o.lost_supply.count)
 }
 
-fn worst_first(a: &(usize, &Outcome), b: &(usize, &Outcome)) -> std::cmp::Ordering {
-    let (sa, sb) = (severity(a.1), severity(b.1));
+/// Whether the model's demands follow pressure (then a sweep ranks by shortfall).
+fn pressure_dependent(run: &Run<'_>) -> bool {
+    run.model.outflow.pressure_demand.is_some()
+}
+
+/// The shortfall a closure adds to the base case's, m³/s.
+fn caused_shortfall(run: &Run<'_>, o: &Outcome) -> f64 {
+    if o.converged() {
+        o.shortfall - run.base.shortfall
+    } else {
+        0.0
+    }
+}
+
+/// Whether a closure is listed: it breaks a criterion, cuts off supply, or (with
+/// `[pressure_demand]`) takes away more than a millionth of the demand asked.
+fn listed(run: &Run<'_>, o: &Outcome) -> bool {
+    let asked: f64 = run.model.nodes().iter().map(|n| n.demand().max(0.0)).sum();
+    !o.passed()
+        || o.lost_supply.count > 0
+        || (pressure_dependent(run) && caused_shortfall(run, o) > 1e-6 * asked.max(1e-9))
+}
+
+fn worst_first(run: &Run<'_>, a: &(usize, &Outcome), b: &(usize, &Outcome)) -> std::cmp::Ordering {
+    let (sa, sb) = (severity(run, a.1), severity(run, b.1));
     sb.0.cmp(&sa.0).then(sb.1.total_cmp(&sa.1)).then(sb.2.cmp(&sa.2)).then(sb.3.cmp(&sa.3)).then(a.0.cmp(&b.0))
 }
 
@@ -223,7 +248,7 @@ pub fn to_table(run: &Run<'_>, code: u8) -> String {
 
     if let Some(sweep) = run.sweep {
         let failing: Vec<(usize, &Outcome)> =
-            sweep.iter().filter(|(_, o)| !o.passed() || o.lost_supply.count > 0).map(|(k, o)| (*k, o)).collect();
+            sweep.iter().filter(|(_, o)| listed(run, o)).map(|(k, o)| (*k, o)).collect();
         let broken = sweep.iter().filter(|(_, o)| !o.passed()).count();
         let unsolved = sweep.iter().filter(|(_, o)| !o.converged()).count();
         let cut = sweep.iter().filter(|(_, o)| o.lost_supply.count > 0).count();
@@ -237,11 +262,12 @@ pub fn to_table(run: &Run<'_>, code: u8) -> String {
         let _ = writeln!(
             out,
             "  (relative to the base case: failures it already has are not repeated{}; worst first: no \
-             answer, then supply lost, then new failures)",
-            if repeated > 0 { format!(", {repeated} finding(s) left out") } else { String::new() }
+             answer, then {}, then new failures)",
+            if repeated > 0 { format!(", {repeated} finding(s) left out") } else { String::new() },
+            if pressure_dependent(run) { "the shortfall of demand caused" } else { "supply lost" }
         );
         let mut sorted = failing.clone();
-        sorted.sort_by(worst_first);
+        sorted.sort_by(|a, b| worst_first(run, a, b));
         for (k, o) in sorted.iter().take(CLOSURES_SHOWN) {
             let id = printable(&run.model.links()[*k].id);
             let mut parts: Vec<String> = o.failed().map(|c| short_failure(run, c)).collect();
@@ -249,6 +275,14 @@ pub fn to_table(run: &Run<'_>, code: u8) -> String {
                 parts.push("criteria met".into());
             }
             let _ = writeln!(out, "  {id:<16} {}", parts.join("; "));
+            if pressure_dependent(run) && o.converged() {
+                let _ = writeln!(
+                    out,
+                    "  {:<16} shortfall caused: {} of demand not delivered (cut off or short of pressure)",
+                    "",
+                    run.value(Quantity::Flow, caused_shortfall(run, o))
+                );
+            }
             if o.lost_supply.count > 0 {
                 let names: Vec<String> =
                     o.lost_supply.nodes.iter().map(|&i| printable(&run.model.nodes()[i].id)).collect();
@@ -341,6 +375,9 @@ fn outcome_json(run: &Run<'_>, o: &Outcome) -> Value {
     if let Some(e) = &o.error {
         v["error"] = json!(e.to_string());
     }
+    if pressure_dependent(run) && o.converged() {
+        v["shortfall"] = json!(run.model.units.flow.from_si(o.shortfall));
+    }
     if o.lost_supply.count > 0 {
         v["lost_supply"] = json!({
             "count": o.lost_supply.count,
@@ -383,8 +420,8 @@ pub fn to_json(run: &Run<'_>, code: u8) -> Value {
     });
     if let Some(sweep) = run.sweep {
         let mut listed: Vec<(usize, &Outcome)> =
-            sweep.iter().filter(|(_, o)| !o.passed() || o.lost_supply.count > 0).map(|(k, o)| (*k, o)).collect();
-        listed.sort_by(worst_first);
+            sweep.iter().filter(|(_, o)| listed(run, o)).map(|(k, o)| (*k, o)).collect();
+        listed.sort_by(|a, b| worst_first(run, a, b));
         v["each_pipe_closed"] = json!({
             "closures": sweep.len(),
             "failed": sweep.iter().filter(|(_, o)| !o.passed()).count(),
@@ -396,6 +433,9 @@ pub fn to_json(run: &Run<'_>, code: u8) -> Value {
                 let mut r = outcome_json(run, o);
                 r["closed"] = json!(run.model.links()[*k].id);
                 r["repeated_from_base"] = json!(o.repeated_from_base);
+                if pressure_dependent(run) {
+                    r["shortfall_caused"] = json!(run.model.units.flow.from_si(caused_shortfall(run, o)));
+                }
                 r["checks"] = json!(o.failed().map(|c| check_json(run, c)).collect::<Vec<_>>());
                 r
             }).collect::<Vec<_>>(),

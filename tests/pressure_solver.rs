@@ -512,3 +512,36 @@ fn check_reads_and_applies_min_delivered_and_min_fire_flow() {
     assert!(out_fail.contains("groups.hydrant E.min_fire_flow"), "{out_fail}");
     let _ = std::fs::remove_dir_all(&dir);
 }
+
+/// The each-pipe-closed sweep with `[pressure_demand]`: every closure's `shortfall_caused` is the
+/// shortfall of the network with that pipe closed (solved on its own by the library) less the
+/// base case's, and the closures are listed largest first.
+#[test]
+fn the_sweep_ranks_closures_by_the_shortfall_they_cause() {
+    let m = devices();
+    let base = solve(&m).outflow_summary(0).shortfall;
+    let dir = std::env::temp_dir().join(format!("ringmain-pressure-sweep-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let path = dir.join("model.toml");
+    std::fs::write(&path, DEVICES).unwrap();
+    let out = std::process::Command::new(env!("CARGO_BIN_EXE_ringmain"))
+        .args(["check", path.to_str().unwrap(), "--each-pipe-closed", "--format", "json"])
+        .output()
+        .unwrap();
+    let text = String::from_utf8_lossy(&out.stdout);
+    let v: serde_json::Value = serde_json::from_str(&text).unwrap_or_else(|e| panic!("{e}: {text}"));
+    let results = v["each_pipe_closed"]["results"].as_array().unwrap();
+    assert!(!results.is_empty(), "{text}");
+    let mut previous = f64::INFINITY;
+    for r in results {
+        let caused = r["shortfall_caused"].as_f64().unwrap() * 1e-3; // L/s in the model
+        assert!(caused <= previous + 1e-12, "not largest first: {text}");
+        previous = caused;
+        let id = r["closed"].as_str().unwrap();
+        let mut closed = m.clone();
+        closed.set_status(m.link_index(id).unwrap(), LinkStatus::Closed).unwrap();
+        let own = solve(&closed).outflow_summary(0).shortfall - base;
+        assert!((caused - own).abs() < 1e-9, "{id}: {caused} vs {own}");
+    }
+    let _ = std::fs::remove_dir_all(&dir);
+}

@@ -250,6 +250,9 @@ pub struct Outcome {
     /// In a sweep: findings left out because the base case has them too (the same element
     /// failing the same criterion); zero elsewhere.
     pub repeated_from_base: usize,
+    /// Demand asked but not delivered, m³/s: at junctions cut off, and where demand follows
+    /// pressure, what low pressure takes away (zero when the solve failed).
+    pub shortfall: f64,
 }
 
 impl Outcome {
@@ -337,6 +340,7 @@ fn judge(
         lost_supply,
         connected: solution.connected.clone(),
         repeated_from_base: 0,
+        shortfall: solution.outflow_summary(0).shortfall,
     }
 }
 
@@ -400,6 +404,7 @@ fn unsolved(criteria: &Criteria, model: &Model, e: Unsolved) -> Outcome {
         lost_supply: LostSupply::default(),
         connected: Vec::new(),
         repeated_from_base: 0,
+        shortfall: 0.0,
     }
 }
 
