@@ -30,6 +30,15 @@
 //! are added to their roots; after the core has converged one sweep from the roots gives the
 //! tree heads on the exact laws.
 //!
+//! # Outflows that follow pressure
+//! A junction's demand, outlet and leakage may be relations of its pressure ([`nodes`]). Each is
+//! handled like a link from the junction to the atmosphere, in the inverse form (the pressure that
+//! passes a flow), smoothed within the head tolerance: its conductance joins the junction's
+//! diagonal and its constant the right-hand side, so the matrix stays symmetric positive
+//! definite. Such junctions stay in the core. After a dozen full Newton steps in one set of
+//! device states the steps are damped; an answer leaves only when every relation lies on its exact
+//! curve (within the tolerances) and the mass balance holds to round-off.
+//!
 //! # One pass per iteration
 //! Per step: factor and solve (`factor`), apply the corrections, then one pass over the core
 //! links in matrix-column order that computes each new flow, evaluates its law once (value and
