@@ -200,9 +200,16 @@ impl<'a> RunReport<'a> {
         }
         let b = &r.balance;
         let v = self.volume_label();
+        // Leakage and outlets appear in the equation only where the model has them (every other
+        // report stays as it was).
+        let leaving = if b.leaked > 0.0 || b.outlets > 0.0 {
+            format!(" + leakage {:.3} + outlets {:.3}", self.volume(b.leaked), self.volume(b.outlets))
+        } else {
+            String::new()
+        };
         let _ = writeln!(
             out,
-            "\nVolume balance ({v}): supplied {:.3} = delivered {:.3} + change in storage {:.3}; \
+            "\nVolume balance ({v}): supplied {:.3} = delivered {:.3}{leaving} + change in storage {:.3}; \
              discrepancy {:.3e} (relative {:.1e})",
             self.volume(b.supplied),
             self.volume(b.delivered),
@@ -210,15 +217,6 @@ impl<'a> RunReport<'a> {
             self.volume(b.discrepancy()),
             b.relative_discrepancy()
         );
-        if b.leaked > 0.0 || b.outlets > 0.0 {
-            let _ = writeln!(
-                out,
-                "Also leaving the network ({v}): leakage {:.3}, outlets {:.3}: supplied = delivered + leakage + \
-                 outlets + change in storage + discrepancy",
-                self.volume(b.leaked),
-                self.volume(b.outlets)
-            );
-        }
         if b.unsupplied > 0.0 {
             let _ = writeln!(
                 out,
