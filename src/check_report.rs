@@ -187,13 +187,15 @@ fn caused_shortfall(run: &Run<'_>, o: &Outcome) -> f64 {
     }
 }
 
-/// Whether a closure is listed: it breaks a criterion, cuts off supply, or (with
-/// `[pressure_demand]`) takes away more than a millionth of the demand asked.
-fn listed(run: &Run<'_>, o: &Outcome) -> bool {
+/// The closures a sweep lists, in sweep order: those that break a criterion, cut off supply, or
+/// (with `[pressure_demand]`) take away more than a millionth of the demand asked.
+fn listed<'o>(run: &Run<'_>, sweep: &'o [(usize, Outcome)]) -> Vec<(usize, &'o Outcome)> {
     let asked: f64 = run.model.nodes().iter().map(|n| n.demand().max(0.0)).sum();
-    !o.passed()
-        || o.lost_supply.count > 0
-        || (pressure_dependent(run) && caused_shortfall(run, o) > 1e-6 * asked.max(1e-9))
+    let floor = 1e-6 * asked.max(1e-9);
+    let shown = |o: &Outcome| {
+        !o.passed() || o.lost_supply.count > 0 || (pressure_dependent(run) && caused_shortfall(run, o) > floor)
+    };
+    sweep.iter().filter(|(_, o)| shown(o)).map(|(k, o)| (*k, o)).collect()
 }
 
 fn worst_first(run: &Run<'_>, a: &(usize, &Outcome), b: &(usize, &Outcome)) -> std::cmp::Ordering {
@@ -247,8 +249,7 @@ pub fn to_table(run: &Run<'_>, code: u8) -> String {
     outcome_section(&mut out, run, run.base);
 
     if let Some(sweep) = run.sweep {
-        let failing: Vec<(usize, &Outcome)> =
-            sweep.iter().filter(|(_, o)| listed(run, o)).map(|(k, o)| (*k, o)).collect();
+        let failing = listed(run, sweep);
         let broken = sweep.iter().filter(|(_, o)| !o.passed()).count();
         let unsolved = sweep.iter().filter(|(_, o)| !o.converged()).count();
         let cut = sweep.iter().filter(|(_, o)| o.lost_supply.count > 0).count();
@@ -419,8 +420,7 @@ pub fn to_json(run: &Run<'_>, code: u8) -> Value {
         "exit_code": code,
     });
     if let Some(sweep) = run.sweep {
-        let mut listed: Vec<(usize, &Outcome)> =
-            sweep.iter().filter(|(_, o)| listed(run, o)).map(|(k, o)| (*k, o)).collect();
+        let mut listed = listed(run, sweep);
         listed.sort_by(|a, b| worst_first(run, a, b));
         v["each_pipe_closed"] = json!({
             "closures": sweep.len(),

@@ -17,6 +17,8 @@
 //! * the problem has one solution (its content function is strictly convex), reached from any start;
 //! * devices (pumps, check valves, pressure-reducing valves) keep working, without cycling.
 
+mod common;
+
 use proptest::prelude::*;
 use proptest::test_runner::{Config, RngSeed};
 use ringmain_core::model::outflow::{JunctionOutflow, Leakage, Outlet, PressureDemand};
@@ -466,20 +468,12 @@ fn check_reads_and_applies_min_delivered_and_min_fire_flow() {
     let o = s.outflow_summary(10);
     let total = 100.0 * o.delivered / o.asked;
     assert!(total < 99.0, "the scenario is meant to fall short: {total} %");
-    let dir = std::env::temp_dir().join(format!("ringmain-pressure-check-{}", std::process::id()));
-    std::fs::create_dir_all(&dir).unwrap();
+    let dir = common::scratch("check");
     let run = |criteria: &str| {
         let path = dir.join("model.toml");
         std::fs::write(&path, format!("{DEVICES}\n{criteria}")).unwrap();
-        let out = std::process::Command::new(env!("CARGO_BIN_EXE_ringmain"))
-            .args(["check", path.to_str().unwrap(), "--format", "json"])
-            .output()
-            .unwrap();
-        (
-            out.status.code(),
-            String::from_utf8_lossy(&out.stdout).into_owned(),
-            String::from_utf8_lossy(&out.stderr).into_owned(),
-        )
+        let r = common::run(&["check", path.to_str().unwrap(), "--format", "json"]);
+        (r.code, r.stdout, r.stderr)
     };
     // Just above the network's share: the total fails; far below every junction's: it passes.
     let (code_high, stdout, _) = run(&format!("[criteria]\nmin_delivered = \"{} %\"\n", total + 0.5));
@@ -510,7 +504,6 @@ fn check_reads_and_applies_min_delivered_and_min_fire_flow() {
     let (fail, out_fail, _) = run(&group(1.1 * available));
     assert_eq!((pass, fail), (Some(0), Some(1)), "{out_pass}\n{out_fail}");
     assert!(out_fail.contains("groups.hydrant E.min_fire_flow"), "{out_fail}");
-    let _ = std::fs::remove_dir_all(&dir);
 }
 
 /// The each-pipe-closed sweep with `[pressure_demand]`: every closure's `shortfall_caused` is the
@@ -520,15 +513,9 @@ fn check_reads_and_applies_min_delivered_and_min_fire_flow() {
 fn the_sweep_ranks_closures_by_the_shortfall_they_cause() {
     let m = devices();
     let base = solve(&m).outflow_summary(0).shortfall;
-    let dir = std::env::temp_dir().join(format!("ringmain-pressure-sweep-{}", std::process::id()));
-    std::fs::create_dir_all(&dir).unwrap();
-    let path = dir.join("model.toml");
+    let path = common::scratch("sweep").join("model.toml");
     std::fs::write(&path, DEVICES).unwrap();
-    let out = std::process::Command::new(env!("CARGO_BIN_EXE_ringmain"))
-        .args(["check", path.to_str().unwrap(), "--each-pipe-closed", "--format", "json"])
-        .output()
-        .unwrap();
-    let text = String::from_utf8_lossy(&out.stdout);
+    let text = common::run(&["check", path.to_str().unwrap(), "--each-pipe-closed", "--format", "json"]).stdout;
     let v: serde_json::Value = serde_json::from_str(&text).unwrap_or_else(|e| panic!("{e}: {text}"));
     let results = v["each_pipe_closed"]["results"].as_array().unwrap();
     assert!(!results.is_empty(), "{text}");
@@ -543,7 +530,6 @@ fn the_sweep_ranks_closures_by_the_shortfall_they_cause() {
         let own = solve(&closed).outflow_summary(0).shortfall - base;
         assert!((caused - own).abs() < 1e-9, "{id}: {caused} vs {own}");
     }
-    let _ = std::fs::remove_dir_all(&dir);
 }
 
 /// The simulation's volume balance with outflows that follow pressure: the volumes supplied equal
@@ -553,19 +539,12 @@ fn the_sweep_ranks_closures_by_the_shortfall_they_cause() {
 fn the_simulation_balance_counts_leakage_outlets_and_shortfall() {
     let model =
         format!("{}\n[simulation]\nduration = \"6h\"\nhydraulic_step = \"1h\"\nreport_interval = \"1h\"\n", DEVICES);
-    let dir = std::env::temp_dir().join(format!("ringmain-pressure-sim-{}", std::process::id()));
-    std::fs::create_dir_all(&dir).unwrap();
-    let path = dir.join("model.toml");
+    let path = common::scratch("simulation").join("model.toml");
     std::fs::write(&path, model).unwrap();
-    let out = std::process::Command::new(env!("CARGO_BIN_EXE_ringmain"))
-        .args(["simulate", path.to_str().unwrap(), "--format", "json"])
-        .output()
-        .unwrap();
-    let text = String::from_utf8_lossy(&out.stdout);
-    assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
-    let v: serde_json::Value = serde_json::from_str(&text).unwrap_or_else(|e| panic!("{e}"));
-    let b = v["summary"]["volume_balance"].clone();
-    let b = if b.is_null() { v["volume_balance"].clone() } else { b };
+    let out = common::run(&["simulate", path.to_str().unwrap(), "--format", "json"]);
+    assert_eq!(out.code, Some(0), "{}", out.stderr);
+    let v: serde_json::Value = serde_json::from_str(&out.stdout).unwrap_or_else(|e| panic!("{e}"));
+    let b = &v["summary"]["volume_balance"];
     let f = |k: &str| b[k].as_f64().unwrap_or_else(|| panic!("no {k}: {b}"));
     let (supplied, delivered, leaked, outlets, storage) =
         (f("supplied"), f("delivered"), f("leaked"), f("outlets"), f("storage_change"));
@@ -576,5 +555,4 @@ fn the_simulation_balance_counts_leakage_outlets_and_shortfall() {
     assert!(residual.abs() <= 1e-6 * supplied.abs().max(1.0), "{b}");
     assert!((residual - f("discrepancy")).abs() <= 1e-9 * supplied.abs().max(1.0), "{b}");
     assert!(f("not_delivered") > 0.0, "the scenario falls short of pressure: {b}");
-    let _ = std::fs::remove_dir_all(&dir);
 }

@@ -247,19 +247,6 @@ impl PowerLaw {
             next
         }
     }
-
-    /// Distance in pressure head of the point `(q, p)` from the exact relation's graph (its
-    /// vertical parts included: any pressure at or below the zero pressure with no flow, any
-    /// pressure at or above full pressure with the whole demand), m.
-    pub fn distance(&self, q: f64, p: f64) -> f64 {
-        if q <= 0.0 {
-            (p - self.base).max(0.0)
-        } else if self.capped && q >= self.flow {
-            (self.base + self.scale - p).max(0.0)
-        } else {
-            (p - self.pressure(q)).abs()
-        }
-    }
 }
 
 /// Two lines through `(x0, y0)` with slopes `m1` left and `m2` right, joined over

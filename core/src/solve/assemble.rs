@@ -333,9 +333,9 @@ impl Solver {
             let p = self.iterate_head(node) - self.relations[i].elevation;
             let r = &mut self.relations[i];
             let q = if damping == 1.0 {
-                r.law.advance(r.step, delta, p)
+                r.smooth.law.advance(r.step, delta, p)
             } else {
-                let full = r.law.advance(r.step, delta / damping, p - delta + delta / damping);
+                let full = r.smooth.law.advance(r.step, delta / damping, p - delta + delta / damping);
                 r.q + damping * (full - r.q)
             };
             let inverse = r.smooth.inverse(q);

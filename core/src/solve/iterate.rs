@@ -216,10 +216,10 @@ impl Solver {
                 return false;
             }
             let p = solution.pressure[i];
-            let q = if r.law.capped { r.q.clamp(0.0, r.law.flow) } else { r.q.max(0.0) };
+            let (q, law) = (r.reported(), r.law());
             // The flow tolerance allows each flow to move by its share of the relative change.
-            let slack = 1e-9 * r.law.flow + 10.0 * options.flow_tolerance * self.demand_scale;
-            q < r.law.flow(p - w) - slack || q > r.law.flow(p + w) + slack
+            let slack = 1e-9 * law.flow + 10.0 * options.flow_tolerance * self.demand_scale;
+            q < law.flow(p - w) - slack || q > law.flow(p + w) + slack
         });
         if let Some(r) = off_curve {
             return Err(SolveError::NotConverged {

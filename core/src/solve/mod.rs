@@ -385,10 +385,10 @@ impl Solver {
         // Relations start on their exact flow at the starting pressure.
         for r in &mut self.relations {
             let p = self.head[r.node as usize] - r.elevation;
-            r.q = if p.is_finite() { r.law.flow(p) } else { 0.0 };
+            r.q = if p.is_finite() { r.law().flow(p) } else { 0.0 };
         }
         self.demand_scale = (self.demand.iter().map(|d| d.abs()).sum::<f64>()
-            + self.relations.iter().map(|r| if r.law.capped { r.law.flow } else { r.q }).sum::<f64>())
+            + self.relations.iter().map(|r| if r.law().capped { r.law().flow } else { r.q }).sum::<f64>())
         .max(1e-3);
     }
 

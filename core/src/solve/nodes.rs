@@ -21,8 +21,9 @@
 //! right-hand side takes `−c`, exactly like a link to a fixed head. The matrix stays symmetric
 //! positive definite. `P` is strictly increasing, so the content of the whole network (the
 //! links' contents plus `∫P dq` of every relation) is strictly convex and the problem has exactly
-//! one solution, which the iteration reaches from any start (shown by
-//! `tests/pressure_solver.rs`).
+//! one solution. The iteration reaches it from the starts `tests/pressure_solver.rs` tries; where
+//! it stops short (networks of very small pipes asked for large demands), the last gates of
+//! `iterate.rs` make that an error, never an answer.
 //!
 //! A junction with a relation stays in the core of the matrix: the dead-end trees (see
 //! [`structure`](super::structure)) are peeled only through junctions whose outflow is fixed,
@@ -87,14 +88,32 @@ pub(super) struct NodeRelation {
     pub elevation: f64,
     /// Which relation.
     pub relation: Relation,
-    /// The relation.
-    pub law: PowerLaw,
-    /// Its regularised inverse for the solve's tolerance (set by the solver before iterating).
+    /// The relation and its regularised inverse for the solve's tolerance.
     pub smooth: Smoothed,
     /// Its current flow, m³/s.
     pub q: f64,
     /// Its linearisation at the current flow and pressure.
     pub step: Step,
+}
+
+impl NodeRelation {
+    /// The relation.
+    #[inline]
+    pub fn law(&self) -> &PowerLaw {
+        &self.smooth.law
+    }
+
+    /// The flow reported for it, m³/s: the iterated flow held within the relation's range (a flow
+    /// a hair beyond the demand, or below zero, is the smoothing's barrier at work: a few 1e-10 of
+    /// the flow).
+    pub fn reported(&self) -> f64 {
+        let law = self.law();
+        if law.capped {
+            self.q.clamp(0.0, law.flow)
+        } else {
+            self.q.max(0.0)
+        }
+    }
 }
 
 /// Junctions that must stay in the core of the matrix (their outflow may depend on pressure).
@@ -146,7 +165,6 @@ pub(super) fn build(model: &Model, conditions: &Conditions, w: f64, fixed: &mut 
             node: i as u32,
             elevation: nodes[i].elevation,
             relation,
-            law,
             smooth: law.smoothed(w),
             q: 0.0,
             step: Step { conductance: 0.0, constant: 0.0 },

@@ -220,8 +220,7 @@ impl Solver {
         let (mut leakage, mut outlet) =
             if relations { (vec![0.0; n_nodes], vec![0.0; n_nodes]) } else { (Vec::new(), Vec::new()) };
         // The mass balance takes the relations' flows as iterated; the values reported are held
-        // within the relation's range (a flow a hair beyond the demand, or below zero, is the
-        // regularisation's barrier at work: a few 1e-10 of the flow).
+        // within the relation's range (`NodeRelation::reported`).
         let mut outflow: Vec<f64> = delivered.clone();
         for r in &self.relations {
             let i = r.node as usize;
@@ -229,7 +228,7 @@ impl Solver {
                 continue;
             }
             outflow[i] += r.q;
-            let q = if r.law.capped { r.q.clamp(0.0, r.law.flow) } else { r.q.max(0.0) };
+            let q = r.reported();
             match r.relation {
                 super::Relation::Demand => delivered[i] += q,
                 super::Relation::Outlet => outlet[i] += q,
