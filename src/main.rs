@@ -12,6 +12,7 @@ mod exit;
 mod fire_flow;
 mod gis;
 mod import_cmd;
+mod json_text;
 mod map;
 mod output;
 mod plot;

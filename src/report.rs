@@ -4,6 +4,7 @@
 
 use crate::columnar::{Column, Kind, Table};
 use crate::csv;
+use crate::json_text;
 use ringmain_core::model::write::write_element_per_line;
 use ringmain_core::model::{LinkKind, Valve};
 use ringmain_core::physics::WaterProperties;
@@ -11,7 +12,7 @@ use ringmain_core::solve::links::{minor_losses, LinkLaw};
 use ringmain_core::solve::{PumpResult, Warning};
 use ringmain_core::units::{Converter, Quantity};
 use ringmain_core::{Model, NodeKind, Solution};
-use serde::{Serialize, Serializer};
+use serde::Serialize;
 use serde_json::{json, Value};
 use std::io::{self, Write};
 use std::path::{Path, PathBuf};
@@ -19,45 +20,17 @@ use std::path::{Path, PathBuf};
 /// How many junctions of largest shortfall the summaries list.
 pub const LARGEST_SHORTFALLS: usize = 10;
 
-/// The JSON report's top level (fields in alphabetical order, as the keys are written).
+/// The JSON report's top level after the nodes (fields in alphabetical order, as the keys are
+/// written); the keys before it (`converged`, `iterations`, `links`, `nodes`) are written by
+/// [`Report::write_json`].
 #[derive(Serialize)]
-struct JsonReport<'r, 'a> {
-    /// Always true: a report is written for a solution only, and a solve that does not converge
-    /// is an error. The key stays for the readers of the format.
-    converged: bool,
-    iterations: u32,
-    links: JsonLinks<'r, 'a>,
-    nodes: JsonNodes<'r, 'a>,
+struct JsonTail<'a> {
     status_changes: u32,
     status_ending: &'static str,
     summary: Value,
     title: Option<&'a str>,
     units: Value,
     warnings: Vec<String>,
-}
-
-/// Every node of the report, serialized one at a time.
-struct JsonNodes<'r, 'a>(&'r Report<'a>);
-
-impl Serialize for JsonNodes<'_, '_> {
-    fn serialize<S: Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
-        s.collect_seq((0..self.0.model.nodes().len()).map(|i| self.0.json_node(i)))
-    }
-}
-
-/// Every link of the report, serialized one at a time.
-struct JsonLinks<'r, 'a>(&'r Report<'a>);
-
-impl Serialize for JsonLinks<'_, '_> {
-    fn serialize<S: Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
-        let r = self.0;
-        // The pumps' results are in link order: walked beside the links, not looked up.
-        let mut pumps = r.solution.pumps.iter().peekable();
-        s.collect_seq((0..r.model.links().len()).map(|k| {
-            let pump = pumps.next_if(|p| p.link == k);
-            r.json_link(k, pump)
-        }))
-    }
 }
 
 /// One node of the JSON report; numbers that are not finite are written as null. `delivered`,
@@ -77,6 +50,24 @@ struct JsonNode<'a> {
     #[serde(skip_serializing_if = "Option::is_none")]
     outlet: Option<f64>,
     pressure: f64,
+}
+
+impl JsonNode<'_> {
+    /// Appends the node as serde_json writes it on one line (see [`crate::json_text`]).
+    fn push_to(&self, buf: &mut Vec<u8>) {
+        let mut l = json_text::Line::open(buf);
+        l.flag("connected", self.connected);
+        l.num("demand", self.demand);
+        l.opt_num("delivered", self.delivered);
+        l.num("elevation", self.elevation);
+        l.num("head", self.head);
+        l.text("id", self.id);
+        l.text("kind", self.kind);
+        l.opt_num("leakage", self.leakage);
+        l.opt_num("outlet", self.outlet);
+        l.num("pressure", self.pressure);
+        l.close();
+    }
 }
 
 /// One link of the JSON report; pump and valve fields only for pumps and valves.
@@ -115,6 +106,33 @@ struct JsonLink<'a> {
     #[serde(skip_serializing_if = "Option::is_none")]
     valve: Option<&'static str>,
     velocity: f64,
+}
+
+impl JsonLink<'_> {
+    /// Appends the link as serde_json writes it on one line (see [`crate::json_text`]).
+    fn push_to(&self, buf: &mut Vec<u8>) {
+        let mut l = json_text::Line::open(buf);
+        l.opt_flag("beyond_curve", self.beyond_curve);
+        l.opt_num("efficiency", self.efficiency);
+        l.num("flow", self.flow);
+        l.text("from", self.from);
+        l.opt_num("head_gain", self.head_gain);
+        l.num("headloss", self.headloss);
+        l.opt_num("hydraulic_power", self.hydraulic_power);
+        l.text("id", self.id);
+        l.opt_nullable("k_total", self.k_total);
+        l.text("kind", self.kind);
+        l.opt_nullable("minor_share", self.minor_share);
+        l.opt_text("reason", self.reason);
+        l.opt_num("setting", self.setting);
+        l.opt_num("shaft_power", self.shaft_power);
+        l.opt_num("speed", self.speed);
+        l.text("status", self.status);
+        l.text("to", self.to);
+        l.opt_text("valve", self.valve);
+        l.num("velocity", self.velocity);
+        l.close();
+    }
 }
 
 /// A solution converted into the model's units, ready for any writer.
@@ -291,9 +309,39 @@ impl<'a> Report<'a> {
         }
     }
 
-    /// Writes the JSON report to `out`, one node or link a line, each serialized as it is
-    /// reached (nothing the size of the network is built first); `out` is flushed at the end.
-    pub fn write_json<W: Write>(&self, out: W) -> io::Result<()> {
+    /// Writes the JSON report to `out`, one node or link a line; `out` is flushed at the end.
+    ///
+    /// The arrays of nodes and links are formatted by hand ([`crate::json_text`]), in parallel
+    /// chunks on large networks, and written as they are formatted (nothing the size of the
+    /// network is built first); the rest goes through serde. The text is byte for byte the one
+    /// serde_json writes for [`JsonReport`] (the tests compare them).
+    pub fn write_json<W: Write>(&self, mut out: W) -> io::Result<()> {
+        let m = self.model;
+        let s = self.solution;
+        write!(out, "{{\n  \"converged\": true,\n  \"iterations\": {},\n  \"links\": ", s.iterations)?;
+        // The pumps' results are in link order: found by bisection (a linear search if not).
+        let sorted = s.pumps.windows(2).all(|w| w[0].link < w[1].link);
+        let pump = |k: usize| {
+            if sorted {
+                s.pumps.binary_search_by_key(&k, |p| p.link).ok().map(|i| &s.pumps[i])
+            } else {
+                s.pumps.iter().find(|p| p.link == k)
+            }
+        };
+        json_text::write_array(&mut out, m.links().len(), |k, buf| self.json_link(k, pump(k)).push_to(buf))?;
+        out.write_all(b",\n  \"nodes\": ")?;
+        json_text::write_array(&mut out, m.nodes().len(), |i, buf| self.json_node(i).push_to(buf))?;
+        // The rest of the top level, written as its own element-per-line object whose opening
+        // brace gives way to the comma after the nodes.
+        let mut tail = Vec::with_capacity(4096);
+        write_element_per_line(&mut tail, &self.json_tail())?;
+        out.write_all(b",")?;
+        out.write_all(tail.get(1..).unwrap_or_default())?;
+        out.flush()
+    }
+
+    /// The JSON report's top-level keys after the nodes.
+    fn json_tail(&self) -> JsonTail<'a> {
         let m = self.model;
         let s = self.solution;
         let u = &m.units;
@@ -302,11 +350,7 @@ impl<'a> Report<'a> {
             .into_iter()
             .map(|(i, q)| json!({"id": m.nodes()[i].id, "kind": m.nodes()[i].kind.label(), "supply": q}))
             .collect();
-        let report = JsonReport {
-            converged: true,
-            iterations: s.iterations,
-            links: JsonLinks(self),
-            nodes: JsonNodes(self),
+        JsonTail {
             status_changes: s.status_changes,
             status_ending: s.ending.describe(),
             summary: {
@@ -324,8 +368,7 @@ impl<'a> Report<'a> {
                 "velocity": u.velocity_label(), "diameter": u.diameter.label(), "power": self.power_label(),
             }),
             warnings: s.warnings.iter().map(warning_text).collect(),
-        };
-        write_element_per_line(out, &report)
+        }
     }
 
     /// A link's head loss as reported: `|H_from − H_to|` in the direction of flow, except for
@@ -921,5 +964,204 @@ fn push_cell(line: &mut String, cell: &Cell) {
         Cell::Text(Some(t)) => line.push_str(&csv::text(t)),
         Cell::Text(None) => {}
         Cell::Flag(b) => line.push_str(if b { "true" } else { "false" }),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use ringmain_core::Format;
+    use serde::Serializer;
+
+    /// The whole report as serde_json writes it through the element-per-line layout: the
+    /// reference the hand-written [`Report::write_json`] must equal byte for byte.
+    #[derive(Serialize)]
+    struct Reference<'r, 'a> {
+        converged: bool,
+        iterations: u32,
+        links: Links<'r, 'a>,
+        nodes: Nodes<'r, 'a>,
+        #[serde(flatten)]
+        tail: JsonTail<'a>,
+    }
+
+    struct Nodes<'r, 'a>(&'r Report<'a>);
+
+    impl Serialize for Nodes<'_, '_> {
+        fn serialize<S: Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+            s.collect_seq((0..self.0.model.nodes().len()).map(|i| self.0.json_node(i)))
+        }
+    }
+
+    struct Links<'r, 'a>(&'r Report<'a>);
+
+    impl Serialize for Links<'_, '_> {
+        fn serialize<S: Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+            let r = self.0;
+            let mut pumps = r.solution.pumps.iter().peekable();
+            s.collect_seq((0..r.model.links().len()).map(|k| {
+                let pump = pumps.next_if(|p| p.link == k);
+                r.json_link(k, pump)
+            }))
+        }
+    }
+
+    fn reference(report: &Report) -> Vec<u8> {
+        let whole = Reference {
+            converged: true,
+            iterations: report.solution.iterations,
+            links: Links(report),
+            nodes: Nodes(report),
+            tail: report.json_tail(),
+        };
+        let mut out = Vec::new();
+        write_element_per_line(&mut out, &whole).unwrap_or_else(|e| panic!("{e}"));
+        out
+    }
+
+    fn same_as_serde(model: &Model, what: &str) {
+        let solution = ringmain_core::Solver::new(model)
+            .and_then(|mut s| s.solve_model(model))
+            .unwrap_or_else(|e| panic!("{what}: {e}"));
+        let report = Report::new(model, &solution);
+        let mut ours = Vec::new();
+        report.write_json(&mut ours).unwrap_or_else(|e| panic!("{e}"));
+        let expected = reference(&report);
+        if ours != expected {
+            let (a, b) = (String::from_utf8_lossy(&ours), String::from_utf8_lossy(&expected));
+            let line = a.lines().zip(b.lines()).position(|(x, y)| x != y).unwrap_or(0);
+            panic!(
+                "{what}: line {}\n  ours:  {}\n  serde: {}",
+                line + 1,
+                a.lines().nth(line).unwrap_or("(end)"),
+                b.lines().nth(line).unwrap_or("(end)")
+            );
+        }
+    }
+
+    /// Pumps, a pressure-reducing valve, a check valve, outflows that follow pressure (delivered,
+    /// leakage and outlet columns), ids that need escapes and ids beyond ASCII: every optional
+    /// key of a node and a link. An invented zone.
+    const EVERY_KEY: &str = r#"
+title = "Quote \" and backslash \\ in a title"
+[units]
+flow = "L/s"
+[hydraulics]
+head_tolerance = 1e-6
+[pressure_demand]
+full_pressure = 20.0
+zero_pressure = 2.0
+[background_leakage]
+rate = 0.02
+reference_pressure = 30.0
+exponent = 1.18
+
+[[nodes]]
+id = "Low \"Well\""
+kind = "reservoir"
+head = 40.0
+[[nodes]]
+id = "A\\1"
+elevation = 30.0
+demand = 3.0
+[[nodes]]
+id = "Bé 中"
+elevation = 25.0
+demand = 4.0
+[[nodes]]
+id = "C"
+elevation = 10.0
+demand = 6.0
+[[nodes]]
+id = "D"
+elevation = 12.0
+demand = 2.0
+outlet = { coefficient = 0.8, exponent = 0.5 }
+[[nodes]]
+id = "Hill Tank"
+kind = "tank"
+elevation = 60.0
+level = 2.0
+min_level = 0.0
+max_level = 6.0
+diameter = 12.0
+
+[[links]]
+id = "Booster / 1"
+kind = "pump"
+from = "Low \"Well\""
+to = "A\\1"
+head_curve = [[0.0, 55.0], [20.0, 45.0], [40.0, 20.0]]
+[[links]]
+id = "A-B"
+from = "A\\1"
+to = "Bé 中"
+length = 600
+diameter = 150
+roughness = 120
+minor_loss = 2.5
+[[links]]
+id = "B-Tank"
+from = "Bé 中"
+to = "Hill Tank"
+length = 400
+diameter = 150
+roughness = 120
+check_valve = true
+[[links]]
+id = "A-Tank"
+from = "A\\1"
+to = "Hill Tank"
+length = 900
+diameter = 100
+roughness = 110
+[[links]]
+id = "Reducer"
+kind = "valve"
+valve = "pressure-reducing"
+from = "Bé 中"
+to = "C"
+diameter = 100
+setting = 28.0
+[[links]]
+id = "C-D"
+from = "C"
+to = "D"
+length = 300
+diameter = 100
+roughness = 120
+[[links]]
+id = "Shut"
+from = "C"
+to = "D"
+length = 300
+diameter = 100
+roughness = 120
+status = "closed"
+"#;
+
+    #[test]
+    fn json_report_written_by_hand_equals_serde_json_on_every_model() {
+        let root = Path::new(env!("CARGO_MANIFEST_DIR"));
+        let mut files: Vec<PathBuf> = ["examples", "tests/data"]
+            .iter()
+            .flat_map(|d| std::fs::read_dir(root.join(d)).into_iter().flatten().flatten().map(|e| e.path()))
+            .filter(|p| p.extension().is_some_and(|e| e == "toml") && !p.ends_with("FIELDS.toml"))
+            .collect();
+        files.sort();
+        assert!(files.len() >= 5, "{files:?}");
+        for path in files {
+            let text = std::fs::read_to_string(&path).unwrap_or_default();
+            let model = ringmain_core::read_str(&text, Format::Toml, &path.display().to_string())
+                .unwrap_or_else(|e| panic!("{e}"));
+            same_as_serde(&model, &path.display().to_string());
+        }
+        let model =
+            ringmain_core::read_str(EVERY_KEY, Format::Toml, "every-key.toml").unwrap_or_else(|e| panic!("{e}"));
+        same_as_serde(&model, "every key");
+        // Large enough for the arrays to be formatted in parallel chunks.
+        let spec = ringmain_core::generate::NetworkSpec::new(6000, 3);
+        let model = ringmain_core::generate::generate(&spec).unwrap_or_else(|e| panic!("{e}"));
+        same_as_serde(&model, "generated 6000");
     }
 }
