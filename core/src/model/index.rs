@@ -9,6 +9,7 @@
 //! does not go back to the ids scattered through the element list (at a million elements that
 //! took half a second); [`IdIndex::settle`] drops them once the model is read.
 
+use hashbrown::hash_table::Entry;
 use hashbrown::{DefaultHashBuilder, HashTable};
 use std::hash::BuildHasher;
 
@@ -59,15 +60,18 @@ impl IdIndex {
     pub(crate) fn insert<'a>(&mut self, id: &str, position: usize, ids: impl Fn(usize) -> &'a str) -> Insert {
         let Ok(stored) = u32::try_from(position) else { return Insert::Full };
         let h = self.short_hash(id);
-        if self.table.find(spread(h), |&k| ids(k as usize) == id).is_some() {
-            return Insert::Duplicate;
-        }
         let (hasher, hashes) = (&self.hasher, &self.hashes);
         let rehash = |&k: &u32| match hashes.get(k as usize) {
             Some(&hk) => spread(hk),
             None => spread((hasher.hash_one(ids(k as usize)) >> 32) as u32),
         };
-        self.table.insert_unique(spread(h), stored, rehash);
+        // One probe sequence both looks for the id and finds the free slot.
+        match self.table.entry(spread(h), |&k| ids(k as usize) == id, rehash) {
+            Entry::Occupied(_) => return Insert::Duplicate,
+            Entry::Vacant(slot) => {
+                slot.insert(stored);
+            }
+        }
         if self.hashes.len() == position {
             self.hashes.push(h);
         }

@@ -178,6 +178,9 @@ impl<'a> Cursor<'a> {
 /// A decimal number's text (JSON or TOML syntax without underscores) as `f64`, correctly
 /// rounded; gives up where the other readers refuse or differ (out of range).
 fn float_of(text: &[u8]) -> Step<Value> {
+    if let Some(v) = exact_float(text) {
+        return Ok(Value::Float(v));
+    }
     // SAFETY: the callers pass digits, signs, '.', 'e' and 'E' only: ASCII.
     let s = unsafe { std::str::from_utf8_unchecked(text) };
     let v: f64 = s.parse().map_err(|_| Stop::GiveUp)?;
@@ -185,6 +188,92 @@ fn float_of(text: &[u8]) -> Step<Value> {
         return Err(Stop::GiveUp);
     }
     Ok(Value::Float(v))
+}
+
+/// The powers of ten that are exact in `f64` (up to 10^22 = 2^22 · 5^22, and 5^22 < 2^53).
+const EXACT_POWERS: [f64; 23] = [
+    1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10, 1e11, 1e12, 1e13, 1e14, 1e15, 1e16, 1e17, 1e18, 1e19, 1e20,
+    1e21, 1e22,
+];
+
+/// A decimal number's value by the fast path of Clinger (1990, "How to read floating point
+/// numbers accurately", PLDI): when its digits, read as an integer `m`, are at most 2^53 and its
+/// decimal exponent `e` is within ±22, both `m` and 10^|e| are exact in `f64`, so the one product
+/// or quotient `m · 10^e` is the correctly rounded value (IEEE 754 rounds each operation
+/// correctly), the same `f64` the standard library's parser gives. `None`: not on the fast
+/// path (the caller parses it in full). `text` is the grammar of [`Cursor::json_number`].
+#[inline]
+fn exact_float(text: &[u8]) -> Option<f64> {
+    let (negative, digits) = match text.split_first() {
+        Some((b'-', rest)) => (true, rest),
+        _ => (false, text),
+    };
+    let mut m: u64 = 0;
+    let mut count = 0usize;
+    let mut scale: i64 = 0;
+    let mut i = 0;
+    let mut fraction = false;
+    while let Some(&c) = digits.get(i) {
+        match c {
+            b'0'..=b'9' => {
+                // Leading zeros add no digit that could overflow.
+                if m != 0 || c != b'0' {
+                    count += 1;
+                }
+                if count > 19 {
+                    return None;
+                }
+                m = m * 10 + u64::from(c - b'0');
+                if fraction {
+                    scale -= 1;
+                }
+            }
+            b'.' => fraction = true,
+            b'e' | b'E' => break,
+            _ => return None,
+        }
+        i += 1;
+    }
+    if i < digits.len() {
+        // The exponent: a sign and at most four digits (longer ones are the full parser's).
+        let mut exp = &digits[i + 1..];
+        let minus = match exp.first() {
+            Some(b'-') => {
+                exp = &exp[1..];
+                true
+            }
+            Some(b'+') => {
+                exp = &exp[1..];
+                false
+            }
+            _ => false,
+        };
+        if exp.is_empty() || exp.len() > 4 {
+            return None;
+        }
+        let mut e: i64 = 0;
+        for &c in exp {
+            if !c.is_ascii_digit() {
+                return None;
+            }
+            e = e * 10 + i64::from(c - b'0');
+        }
+        scale += if minus { -e } else { e };
+    }
+    const MAX_EXACT: u64 = 1 << 53;
+    if m > MAX_EXACT {
+        return None;
+    }
+    let v = if m == 0 {
+        0.0
+    } else if (0..=22).contains(&scale) {
+        m as f64 * EXACT_POWERS[scale as usize]
+    } else if (-22..0).contains(&scale) {
+        m as f64 / EXACT_POWERS[(-scale) as usize]
+    } else {
+        return None;
+    };
+    Some(if negative { -v } else { v })
 }
 
 /// Whether the digits before the exponent are not all zero (an underflow to zero is left to the
@@ -469,6 +558,7 @@ fn json_elements(feed: &mut impl Feed, model: &mut Model, nodes: bool) -> Option
         return Some(());
     }
     let mut i = 0;
+    let mut ends = Ends::default();
     loop {
         // The commonest elements (a plain junction, a plain pipe) straight into the model; any
         // other, or one that is not quite plain, through the value tree and the model reader.
@@ -481,7 +571,7 @@ fn json_elements(feed: &mut impl Feed, model: &mut Model, nodes: bool) -> Option
             let element = if nodes {
                 plain_junction(&flat, model).map(Direct::Node)
             } else {
-                plain_pipe(&flat, model).map(Direct::Link)
+                plain_pipe(&flat, model, &mut ends).map(Direct::Link)
             };
             let Some(element) = element else {
                 c.i = start;
@@ -532,11 +622,11 @@ enum Direct {
 }
 
 /// The plain junction or pipe of a flat element, if it is one.
-fn direct(flat: &FlatElement, model: &Model, nodes: bool) -> Option<Direct> {
+fn direct(flat: &FlatElement, model: &Model, nodes: bool, ends: &mut Ends) -> Option<Direct> {
     if nodes {
         plain_junction(flat, model).map(Direct::Node)
     } else {
-        plain_pipe(flat, model).map(Direct::Link)
+        plain_pipe(flat, model, ends).map(Direct::Link)
     }
 }
 
@@ -709,9 +799,44 @@ fn plain_junction(e: &FlatElement, model: &Model) -> Option<Node> {
     })
 }
 
+/// Where the last links' ends were, to find the next ends without the id index.
+///
+/// Files list links near the nodes just named: a link usually starts at the node the last one
+/// started at or the one after it, and ends at the node after its start or after an end of
+/// the last two links (a street grid's next block). Checking those few nodes' ids (in memory
+/// just touched) spares most lookups in the id index, whose probes at a million nodes miss the
+/// caches. A guess is only taken when the node's id is the one asked for, so the answer is the
+/// index's answer (ids are unique).
+#[derive(Default)]
+struct Ends {
+    from: usize,
+    to: [usize; 2],
+}
+
+impl Ends {
+    #[inline]
+    fn guess(model: &Model, id: &str, candidates: [usize; 3]) -> Option<usize> {
+        let nodes = model.nodes();
+        candidates.into_iter().find(|&k| nodes.get(k).is_some_and(|n| n.id.as_str() == id))
+    }
+
+    fn from(&mut self, model: &Model, id: &str) -> Option<usize> {
+        let f = self.from;
+        let k = Self::guess(model, id, [f, f + 1, self.to[0] + 1]).or_else(|| model.node_index(id))?;
+        self.from = k;
+        Some(k)
+    }
+
+    fn to(&mut self, model: &Model, id: &str, from: usize) -> Option<usize> {
+        let k = Self::guess(model, id, [from + 1, self.to[0] + 1, self.to[1] + 1]).or_else(|| model.node_index(id))?;
+        self.to = [k, self.to[0]];
+        Some(k)
+    }
+}
+
 /// A pipe with an id, its ends, length, diameter and roughness, and optionally a minor loss, a
 /// status and a check valve: the link the model reader would build (`None`: not plain).
-fn plain_pipe(e: &FlatElement, model: &Model) -> Option<Link> {
+fn plain_pipe(e: &FlatElement, model: &Model, ends: &mut Ends) -> Option<Link> {
     const PIPE_KEYS: [usize; 9] = [0, 1, 7, 8, 9, 10, 11, 12, STATUS];
     if e.values.iter().enumerate().any(|(k, v)| v.is_some() && !PIPE_KEYS.contains(&k) && k != CHECK_VALVE) {
         return None;
@@ -720,8 +845,8 @@ fn plain_pipe(e: &FlatElement, model: &Model) -> Option<Link> {
     if !plain_id(id) || !matches!(e.str(1)?, None | Some("pipe")) {
         return None;
     }
-    let from = model.node_index(e.str(7)??)?;
-    let to = model.node_index(e.str(8)??)?;
+    let from = ends.from(model, e.str(7)??)?;
+    let to = ends.to(model, e.str(8)??, from)?;
     let status = match e.str(STATUS)? {
         None | Some("open") => LinkStatus::Open,
         Some("closed") => LinkStatus::Closed,
@@ -1116,6 +1241,7 @@ fn toml_model(feed: &mut impl Feed) -> Option<Model> {
     let mut controls: Vec<Value> = Vec::new();
     let mut model: Option<Model> = None;
     let mut section = 0; // 0 settings, 1 nodes, 2 links
+    let mut ends = Ends::default();
     let (mut nodes, mut links) = (0, 0);
     loop {
         let header = feed.step(|c| match toml_next_line(c)? {
@@ -1156,7 +1282,7 @@ fn toml_model(feed: &mut impl Feed) -> Option<Model> {
                         c.i = start;
                         return Ok(None);
                     };
-                    match direct(&flat, m, is_nodes) {
+                    match direct(&flat, m, is_nodes, &mut ends) {
                         Some(element) => Ok(Some(element)),
                         None => {
                             c.i = start;
@@ -1232,6 +1358,52 @@ mod tests {
         g.units.diameter = DiameterUnit::parse("in").unwrap();
         models.push(g);
         models
+    }
+
+    /// Clinger's fast path gives the standard library's correctly rounded value wherever it
+    /// answers, and answers on the numbers model files are made of.
+    #[test]
+    fn fast_path_numbers_equal_the_correctly_rounded_parse() {
+        let mut x: u64 = 0x9e37_79b9_7f4a_7c15;
+        let mut next = || {
+            x = x.wrapping_mul(6_364_136_223_846_793_005).wrapping_add(1_442_695_040_888_963_407);
+            x >> 11
+        };
+        let mut answered = 0;
+        for _ in 0..200_000 {
+            let digits = 1 + next() % 20;
+            let mut text = String::new();
+            if next() % 3 == 0 {
+                text.push('-');
+            }
+            let point = next() % (digits + 1);
+            for d in 0..digits {
+                if d == point && d > 0 {
+                    text.push('.');
+                }
+                let c = if d == 0 && digits > 1 && point != 1 { 1 + next() % 9 } else { next() % 10 };
+                text.push(char::from(b'0' + c as u8));
+            }
+            if next() % 2 == 0 {
+                let e = next() % 60;
+                text.push_str(&format!("e{}{e}", ["", "-", "+"][(next() % 3) as usize]));
+            }
+            let expected: f64 = text.parse().unwrap();
+            if let Some(v) = exact_float(text.as_bytes()) {
+                answered += 1;
+                assert_eq!(v.to_bits(), expected.to_bits(), "{text}");
+            }
+        }
+        assert!(answered > 50_000, "{answered}");
+        for (text, v) in
+            [("9.2", 9.2), ("133.86", 133.86), ("0.0001", 1e-4), ("1e-6", 1e-6), ("-0.0", -0.0), ("120.0", 120.0)]
+        {
+            assert_eq!(exact_float(text.as_bytes()).map(f64::to_bits), Some(f64::to_bits(v)), "{text}");
+        }
+        // 17 significant digits, and exponents beyond ±22: the full parser's.
+        for text in ["0.10742707159363658", "1e23", "1e-23", "9007199254740993", "1e99999"] {
+            assert_eq!(exact_float(text.as_bytes()), None, "{text}");
+        }
     }
 
     /// A reader that hands out at most `n` bytes a call, so that every element is cut across
