@@ -126,14 +126,73 @@ impl OutputFile {
 pub fn write_file(path: &Path, write: impl FnOnce(&mut dyn Write) -> io::Result<()>) -> io::Result<()> {
     const BUFFER: usize = 1 << 16;
     let (output, file) = OutputFile::create(path)?;
-    let mut out = BufWriter::with_capacity(BUFFER, file);
+    let durable = output.partial.is_some();
+    let mut out = BufWriter::with_capacity(BUFFER, EarlyWriteback::new(file, durable));
     write(&mut out)?;
-    let file: File = out.into_inner().map_err(|e| e.into_error())?;
-    if output.partial.is_some() {
+    let file: File = out.into_inner().map_err(|e| e.into_error())?.file;
+    if durable {
         file.sync_all()?;
     }
     drop(file);
     output.commit()
+}
+
+/// A file whose written bytes start on their way to the disk as the writing goes: every
+/// [`EarlyWriteback::STEP`] bytes, the write-back of what was written since is started without
+/// waiting for it (Linux's `sync_file_range` with `SYNC_FILE_RANGE_WRITE`), so that the
+/// `sync_all` that makes the file durable before its rename waits for the last part only, not
+/// for the whole file (at a million junctions the results are 400 MB: a quarter of a second of
+/// the disk's time, overlapped with the formatting instead of after it). Elsewhere, or for a
+/// destination written in place (a device, a pipe), it is the plain file.
+pub struct EarlyWriteback {
+    pub file: File,
+    /// Whether to start write-back at all.
+    enabled: bool,
+    written: u64,
+    started: u64,
+}
+
+impl EarlyWriteback {
+    const STEP: u64 = 8 << 20;
+
+    pub fn new(file: File, enabled: bool) -> Self {
+        EarlyWriteback { file, enabled, written: 0, started: 0 }
+    }
+
+    #[cfg(target_os = "linux")]
+    fn start(&mut self) {
+        use std::os::fd::AsRawFd;
+        let (Ok(offset), Ok(len)) = (i64::try_from(self.started), i64::try_from(self.written - self.started)) else {
+            return;
+        };
+        // SAFETY: the descriptor is the open file this value owns; the call reads no memory of
+        // ours. It is advice: a failure (an old kernel, a file system without it) is ignored, and
+        // the final `sync_all` still makes the whole file durable.
+        unsafe {
+            libc::sync_file_range(self.file.as_raw_fd(), offset, len, libc::SYNC_FILE_RANGE_WRITE);
+        }
+        self.started = self.written;
+    }
+
+    #[cfg(not(target_os = "linux"))]
+    fn start(&mut self) {
+        self.started = self.written;
+    }
+}
+
+impl Write for EarlyWriteback {
+    fn write(&mut self, buf: &[u8]) -> io::Result<usize> {
+        let n = self.file.write(buf)?;
+        self.written += n as u64;
+        if self.enabled && self.written - self.started >= Self::STEP {
+            self.start();
+        }
+        Ok(n)
+    }
+
+    fn flush(&mut self) -> io::Result<()> {
+        self.file.flush()
+    }
 }
 
 /// Writes `text` to `path`, all or nothing.
