@@ -18,8 +18,8 @@ use rayon::prelude::*;
 use std::io::{self, Write};
 use std::ops::Range;
 
-/// Elements formatted per chunk (some 300 to 700 kB of text for nodes and links).
-const CHUNK: usize = 2048;
+/// Elements formatted per chunk (some 150 to 350 kB of text for nodes and links).
+const CHUNK: usize = 1024;
 
 /// Appends `v` as serde_json writes an `f64`: its shortest round-trip text, `null` when it is not
 /// finite.

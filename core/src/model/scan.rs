@@ -365,6 +365,9 @@ trait Feed {
     /// Runs `f` from the current position; on [`Stop::More`] reads more and runs it again from
     /// the same position. `None`: give up.
     fn step<T>(&mut self, f: impl FnMut(&mut Cursor) -> Step<T>) -> Option<T>;
+
+    /// Whether the text is large enough to be read by two threads (see [`json_elements`]).
+    fn large(&self) -> bool;
 }
 
 struct SliceFeed<'a> {
@@ -373,6 +376,10 @@ struct SliceFeed<'a> {
 }
 
 impl Feed for SliceFeed<'_> {
+    fn large(&self) -> bool {
+        self.b.len() >= TWO_THREADS_ABOVE
+    }
+
     fn step<T>(&mut self, mut f: impl FnMut(&mut Cursor) -> Step<T>) -> Option<T> {
         let mut c = Cursor { b: self.b, i: self.i, end: true };
         let v = f(&mut c).ok()?;
@@ -426,6 +433,11 @@ impl<R: Read> ReadFeed<R> {
 }
 
 impl<R: Read> Feed for ReadFeed<R> {
+    /// Large: more than what is already read remains, or what is read is large.
+    fn large(&self) -> bool {
+        !self.end || self.buf.len() - self.i >= TWO_THREADS_ABOVE
+    }
+
     fn step<T>(&mut self, mut f: impl FnMut(&mut Cursor) -> Step<T>) -> Option<T> {
         loop {
             let mut c = Cursor { b: &self.buf, i: self.i, end: self.end };
@@ -544,6 +556,13 @@ fn json_model(feed: &mut impl Feed) -> Option<Model> {
 }
 
 /// The `nodes` or `links` array, element by element into the model.
+///
+/// In a large text two threads share the work: this one parses the text into elements (the
+/// commonest ones, a plain junction or a plain pipe, straight into the model's structs; any
+/// other into a value tree), a helper adds them to the model in batches (the id index, the
+/// links' ends, the model's checks). At a million elements the two halves take about as long
+/// as each other. Anything either side gives up on stops both. A small text is read on this
+/// thread alone, the same way.
 fn json_elements(feed: &mut impl Feed, model: &mut Model, nodes: bool) -> Option<()> {
     feed.step(|c| c.expect(b'['))?;
     let empty = feed.step(|c| {
@@ -557,11 +576,53 @@ fn json_elements(feed: &mut impl Feed, model: &mut Model, nodes: bool) -> Option
     if empty {
         return Some(());
     }
-    let mut i = 0;
-    let mut ends = Ends::default();
+    let reading = Reading { units: model.units, headloss: model.options.headloss };
+    let mut adder = Adder { ends: Ends::default(), i: 0, nodes };
+    if !feed.large() {
+        return parse_elements(feed, &reading, nodes, |batch| adder.add(model, batch));
+    }
+    let (send, receive) = std::sync::mpsc::sync_channel::<Vec<Parsed>>(BATCHES_IN_FLIGHT);
+    std::thread::scope(|scope| {
+        let builder = scope.spawn(move || receive.into_iter().try_for_each(|batch| adder.add(model, batch)));
+        let parsed = parse_elements(feed, &reading, nodes, |batch| send.send(batch).ok());
+        drop(send);
+        let built = builder.join().ok().flatten();
+        parsed.and(built)
+    })
+}
+
+/// Texts from this size on are read by two threads (see [`json_elements`]).
+const TWO_THREADS_ABOVE: usize = 1 << 20;
+
+/// Elements parsed per batch handed to the builder, and batches parsed ahead of it at most.
+const BATCH: usize = 1024;
+const BATCHES_IN_FLIGHT: usize = 4;
+
+/// What the elements' values are read in.
+struct Reading {
+    units: crate::units::UnitSystem,
+    headloss: HeadLossLaw,
+}
+
+/// An element as parsed, before it is added to the model.
+enum Parsed {
+    Node(Node),
+    /// A plain pipe and the ids of its ends (the link's `from` and `to` are set on adding).
+    Pipe(Link, super::Id, super::Id),
+    /// Any other element, as its value tree.
+    Value(Value),
+}
+
+/// Parses the array's elements (after `[`, up to and including `]`), sending them in batches.
+/// `None`: give up (the builder learns it from the channel's closing early).
+fn parse_elements(
+    feed: &mut impl Feed,
+    reading: &Reading,
+    nodes: bool,
+    mut send: impl FnMut(Vec<Parsed>) -> Option<()>,
+) -> Option<()> {
+    let mut batch = Vec::with_capacity(BATCH);
     loop {
-        // The commonest elements (a plain junction, a plain pipe) straight into the model; any
-        // other, or one that is not quite plain, through the value tree and the model reader.
         let direct = feed.step(|c| {
             let start = c.i;
             let Some(flat) = flat_element(c)? else {
@@ -569,9 +630,10 @@ fn json_elements(feed: &mut impl Feed, model: &mut Model, nodes: bool) -> Option
                 return Ok(None);
             };
             let element = if nodes {
-                plain_junction(&flat, model).map(Direct::Node)
+                plain_junction(&flat, &reading.units).map(Parsed::Node)
             } else {
-                plain_pipe(&flat, model, &mut ends).map(Direct::Link)
+                plain_pipe(&flat, &reading.units, reading.headloss)
+                    .map(|(link, from, to)| Parsed::Pipe(link, from.into(), to.into()))
             };
             let Some(element) = element else {
                 c.i = start;
@@ -579,25 +641,46 @@ fn json_elements(feed: &mut impl Feed, model: &mut Model, nodes: bool) -> Option
             };
             Ok(Some((element, after_element(c)?)))
         })?;
-        let more = match direct {
-            Some((element, more)) => {
-                add_direct(model, element)?;
-                more
-            }
-            None => {
-                let (value, more) = feed.step(|c| Ok((json_value(c, 2)?, after_element(c)?)))?;
-                if nodes {
-                    file::add_node_value(model, i, value).ok()?;
-                } else {
-                    file::add_link_value(model, i, value).ok()?;
-                }
-                more
-            }
+        let (element, more) = match direct {
+            Some(found) => found,
+            None => feed.step(|c| Ok((Parsed::Value(json_value(c, 2)?), after_element(c)?)))?,
         };
-        i += 1;
+        batch.push(element);
+        if batch.len() == BATCH || !more {
+            send(std::mem::replace(&mut batch, Vec::with_capacity(BATCH)))?;
+        }
         if !more {
             return Some(());
         }
+    }
+}
+
+/// Adds parsed elements to the model, in order.
+struct Adder {
+    ends: Ends,
+    /// The next element's position in its array.
+    i: usize,
+    nodes: bool,
+}
+
+impl Adder {
+    /// Adds a batch; `None`: give up (an element the model refuses, or a link end that is no
+    /// node: the whole-text reader then says which).
+    fn add(&mut self, model: &mut Model, batch: Vec<Parsed>) -> Option<()> {
+        for element in batch {
+            match element {
+                Parsed::Node(node) => model.add_node(node).ok().map(drop)?,
+                Parsed::Pipe(mut link, from, to) => {
+                    link.from = self.ends.from(model, &from)?;
+                    link.to = self.ends.to(model, &to, link.from)?;
+                    model.add_link(link).ok().map(drop)?;
+                }
+                Parsed::Value(value) if self.nodes => file::add_node_value(model, self.i, value).ok()?,
+                Parsed::Value(value) => file::add_link_value(model, self.i, value).ok()?,
+            }
+            self.i += 1;
+        }
+        Some(())
     }
 }
 
@@ -624,9 +707,12 @@ enum Direct {
 /// The plain junction or pipe of a flat element, if it is one.
 fn direct(flat: &FlatElement, model: &Model, nodes: bool, ends: &mut Ends) -> Option<Direct> {
     if nodes {
-        plain_junction(flat, model).map(Direct::Node)
+        plain_junction(flat, &model.units).map(Direct::Node)
     } else {
-        plain_pipe(flat, model, ends).map(Direct::Link)
+        let (mut link, from, to) = plain_pipe(flat, &model.units, model.options.headloss)?;
+        link.from = ends.from(model, from)?;
+        link.to = ends.to(model, to, link.from)?;
+        Some(Direct::Link(link))
     }
 }
 
@@ -772,7 +858,7 @@ fn flat_element<'a>(c: &mut Cursor<'a>) -> Step<Option<FlatElement<'a>>> {
 
 /// A junction with an id, an elevation and optionally a demand, coordinates and a zone: the
 /// node the model reader would build (`None`: not plain; the model reader decides).
-fn plain_junction(e: &FlatElement, model: &Model) -> Option<Node> {
+fn plain_junction(e: &FlatElement, units: &crate::units::UnitSystem) -> Option<Node> {
     const NODE_ONLY: [usize; 6] = [0, 1, 2, 3, 4, 5];
     if e.values.iter().enumerate().any(|(k, v)| v.is_some() && !NODE_ONLY.contains(&k) && k != 6) {
         return None;
@@ -789,7 +875,6 @@ fn plain_junction(e: &FlatElement, model: &Model) -> Option<Node> {
         _ => return None,
     };
     let zone = e.str(6)?.map(str::to_owned);
-    let units = &model.units;
     Some(Node {
         id: id.into(),
         elevation: units.length.to_si(elevation),
@@ -802,15 +887,17 @@ fn plain_junction(e: &FlatElement, model: &Model) -> Option<Node> {
 /// Where the last links' ends were, to find the next ends without the id index.
 ///
 /// Files list links near the nodes just named: a link usually starts at the node the last one
-/// started at or the one after it, and ends at the node after its start or after an end of
-/// the last two links (a street grid's next block). Checking those few nodes' ids (in memory
-/// just touched) spares most lookups in the id index, whose probes at a million nodes miss the
-/// caches. A guess is only taken when the node's id is the one asked for, so the answer is the
-/// index's answer (ids are unique).
+/// started at or the one after it, and ends at the node after its start or as far from its
+/// start as one of the last two links' ends were from theirs (a street grid's next block, a
+/// main's next branch). Checking those few nodes' ids (in memory just touched) spares most
+/// lookups in the id index, whose probes at a million nodes miss the caches. A guess is taken
+/// only when the node's id is the one asked for, so the answer is the index's answer (ids are
+/// unique).
 #[derive(Default)]
 struct Ends {
     from: usize,
-    to: [usize; 2],
+    /// The last two links' `to − from`, in node positions.
+    offsets: [isize; 2],
 }
 
 impl Ends {
@@ -822,21 +909,31 @@ impl Ends {
 
     fn from(&mut self, model: &Model, id: &str) -> Option<usize> {
         let f = self.from;
-        let k = Self::guess(model, id, [f, f + 1, self.to[0] + 1]).or_else(|| model.node_index(id))?;
+        let k = Self::guess(model, id, [f, f + 1, f + 2]).or_else(|| model.node_index(id))?;
         self.from = k;
         Some(k)
     }
 
     fn to(&mut self, model: &Model, id: &str, from: usize) -> Option<usize> {
-        let k = Self::guess(model, id, [from + 1, self.to[0] + 1, self.to[1] + 1]).or_else(|| model.node_index(id))?;
-        self.to = [k, self.to[0]];
+        let [a, b] = self.offsets;
+        let candidates = [from.wrapping_add(1), from.wrapping_add_signed(a), from.wrapping_add_signed(b)];
+        let k = Self::guess(model, id, candidates).or_else(|| model.node_index(id))?;
+        let offset = (k as isize).wrapping_sub(from as isize);
+        if offset != a {
+            self.offsets = [offset, a];
+        }
         Some(k)
     }
 }
 
 /// A pipe with an id, its ends, length, diameter and roughness, and optionally a minor loss, a
-/// status and a check valve: the link the model reader would build (`None`: not plain).
-fn plain_pipe(e: &FlatElement, model: &Model, ends: &mut Ends) -> Option<Link> {
+/// status and a check valve: the link the model reader would build, but for its ends, and the
+/// ids of its ends (`None`: not plain).
+fn plain_pipe<'a>(
+    e: &FlatElement<'a>,
+    units: &crate::units::UnitSystem,
+    headloss: HeadLossLaw,
+) -> Option<(Link, &'a str, &'a str)> {
     const PIPE_KEYS: [usize; 9] = [0, 1, 7, 8, 9, 10, 11, 12, STATUS];
     if e.values.iter().enumerate().any(|(k, v)| v.is_some() && !PIPE_KEYS.contains(&k) && k != CHECK_VALVE) {
         return None;
@@ -845,8 +942,7 @@ fn plain_pipe(e: &FlatElement, model: &Model, ends: &mut Ends) -> Option<Link> {
     if !plain_id(id) || !matches!(e.str(1)?, None | Some("pipe")) {
         return None;
     }
-    let from = ends.from(model, e.str(7)??)?;
-    let to = ends.to(model, e.str(8)??, from)?;
+    let (from, to) = (e.str(7)??, e.str(8)??);
     let status = match e.str(STATUS)? {
         None | Some("open") => LinkStatus::Open,
         Some("closed") => LinkStatus::Closed,
@@ -857,19 +953,19 @@ fn plain_pipe(e: &FlatElement, model: &Model, ends: &mut Ends) -> Option<Link> {
         Some(Flat::Bool(b)) => b,
         Some(_) => return None,
     };
-    let units = &model.units;
     let roughness = e.num(11)??;
     let pipe = Pipe {
         length: units.length.to_si(e.num(9)??),
         diameter: units.diameter.to_si(e.num(10)??),
-        roughness: match model.options.headloss {
+        roughness: match headloss {
             HeadLossLaw::HazenWilliams => roughness,
             HeadLossLaw::DarcyWeisbach => units.roughness.to_si(roughness),
         },
         minor_loss: e.num(12)?.unwrap_or(0.0),
         check_valve,
     };
-    Some(Link { id: id.into(), from, to, status, kind: LinkKind::Pipe(pipe) })
+    // The ends are set when the link is added (`from` and `to` are the ids' positions).
+    Some((Link { id: id.into(), from: 0, to: 0, status, kind: LinkKind::Pipe(pipe) }, from, to))
 }
 
 // ---------------------------------------------------------------------------------------------
@@ -1358,6 +1454,33 @@ mod tests {
         g.units.diameter = DiameterUnit::parse("in").unwrap();
         models.push(g);
         models
+    }
+
+    /// A text large enough to be read by two threads builds the model the tree reader builds,
+    /// and anything the model refuses in it (a link's end that is no node, a duplicate id, a
+    /// bad value) makes both threads give up, from memory and from chunks.
+    #[test]
+    fn two_thread_reader_builds_the_same_model_and_gives_up_as_one() {
+        let model = crate::generate::generate(&crate::generate::NetworkSpec::new(6_000, 5)).unwrap();
+        let text = write::to_string(&model, Format::Json);
+        assert!(text.len() >= TWO_THREADS_ABOVE, "{} bytes", text.len());
+        let tree = read_tree(&text, Format::Json).unwrap();
+        assert_eq!(json_from_slice(text.as_bytes()).as_ref(), Some(&tree));
+        assert_eq!(json_from_chunks(text.as_bytes(), u64::MAX, 64 << 10).as_ref(), Some(&tree));
+        let last_pipe = text.rfind("\"to\": \"J").unwrap();
+        let edits = [
+            (text.replacen("\"to\": \"J17\"", "\"to\": \"J999999\"", 1), "an end that is no node"),
+            (format!("{}\"to\": \"Jx{}", &text[..last_pipe], &text[last_pipe + 8..]), "the last link's end"),
+            (text.replacen("\"id\": \"J12\"", "\"id\": \"J11\"", 1), "a duplicate node id"),
+            (text.replacen("\"id\": \"P40\"", "\"id\": \"P39\"", 1), "a duplicate link id"),
+            (text.replacen("\"length\": ", "\"length\": -", 1), "a negative length"),
+        ];
+        for (edit, what) in edits {
+            assert_ne!(edit, text, "{what}");
+            assert!(json_from_slice(edit.as_bytes()).is_none(), "{what}");
+            assert!(json_from_chunks(edit.as_bytes(), u64::MAX, 64 << 10).is_none(), "{what}");
+            assert!(read_tree(&edit, Format::Json).is_err(), "{what}");
+        }
     }
 
     /// Clinger's fast path gives the standard library's correctly rounded value wherever it
