@@ -393,7 +393,10 @@ const CHUNK: usize = 4 << 20;
 
 struct ReadFeed<R> {
     src: R,
+    /// The bytes read and not yet dropped are `buf[..len]`; the rest is room to read into,
+    /// zeroed once when the buffer grows rather than at every read.
     buf: Vec<u8>,
+    len: usize,
     i: usize,
     end: bool,
     /// Bytes read in all; more than `limit` is given up (the caller's size limit then speaks).
@@ -404,16 +407,19 @@ struct ReadFeed<R> {
 
 impl<R: Read> ReadFeed<R> {
     fn new(src: R, limit: u64, chunk: usize) -> Self {
-        ReadFeed { src, buf: Vec::new(), i: 0, end: false, total: 0, limit, chunk }
+        ReadFeed { src, buf: Vec::new(), len: 0, i: 0, end: false, total: 0, limit, chunk }
     }
 
     /// Keeps the unread bytes and reads at least one more chunk (or to the end).
     fn refill(&mut self) -> Option<()> {
-        self.buf.drain(..self.i);
+        self.buf.copy_within(self.i..self.len, 0);
+        self.len -= self.i;
         self.i = 0;
-        let keep = self.buf.len();
+        let keep = self.len;
         let want = keep + self.chunk;
-        self.buf.resize(want, 0);
+        if self.buf.len() < want {
+            self.buf.resize(want, 0);
+        }
         let mut have = keep;
         while have < want {
             match self.src.read(&mut self.buf[have..]) {
@@ -426,7 +432,7 @@ impl<R: Read> ReadFeed<R> {
                 Err(_) => return None,
             }
         }
-        self.buf.truncate(have);
+        self.len = have;
         self.total += (have - keep) as u64;
         (self.total <= self.limit).then_some(())
     }
@@ -435,12 +441,12 @@ impl<R: Read> ReadFeed<R> {
 impl<R: Read> Feed for ReadFeed<R> {
     /// Large: more than what is already read remains, or what is read is large.
     fn large(&self) -> bool {
-        !self.end || self.buf.len() - self.i >= TWO_THREADS_ABOVE
+        !self.end || self.len - self.i >= TWO_THREADS_ABOVE
     }
 
     fn step<T>(&mut self, mut f: impl FnMut(&mut Cursor) -> Step<T>) -> Option<T> {
         loop {
-            let mut c = Cursor { b: &self.buf, i: self.i, end: self.end };
+            let mut c = Cursor { b: &self.buf[..self.len], i: self.i, end: self.end };
             match f(&mut c) {
                 Ok(v) => {
                     self.i = c.i;
