@@ -15,10 +15,15 @@
 //! is a few levels deep and its elements are small tables, so a direct parser of bytes into the
 //! same value tree, one element at a time, is both simpler and several times faster.
 //!
-//! Numbers: integers of up to 18 digits are exact; other numbers are read by the standard
-//! library's correctly rounded `f64` parser, the same result serde_json gives with its
-//! `float_roundtrip` feature (enabled in this workspace for that reason) and the `toml` crate
-//! gives.
+//! Numbers: integers of up to 18 digits are exact; decimals of up to 2^53 in their digits and a
+//! decimal exponent within ±22 (nearly every number of a model file) by Clinger's exact fast
+//! path (`exact_float`); other numbers by the standard library's correctly rounded `f64`
+//! parser. Both give the result serde_json gives with its `float_roundtrip` feature (enabled in
+//! this workspace for that reason) and the `toml` crate gives.
+//!
+//! A large JSON text is read by two threads (see `json_elements`): this one parses, a helper
+//! adds the elements to the model in the order of the file, so that the model, and every
+//! message of the reader it falls back to, is the same as one thread's.
 
 use super::doc::{self, Value, MAX_DEPTH};
 use super::file;
