@@ -636,10 +636,12 @@ fn parse_elements(
     loop {
         let direct = feed.step(|c| {
             let start = c.i;
-            let Some(flat) = flat_element(c)? else {
+            // Filled in place: the table of values is some 360 bytes, not worth a copy.
+            let mut flat = FlatElement { values: [None; FLAT_KEYS.len() + 2] };
+            if !flat_element(c, &mut flat)? {
                 c.i = start;
                 return Ok(None);
-            };
+            }
             let element = if nodes {
                 plain_junction(&flat, &reading.units).map(Parsed::Node)
             } else {
@@ -818,24 +820,24 @@ fn flat_key(key: &str) -> Option<usize> {
     })
 }
 
-/// Reads an element table with only flat keys (`None`, cursor anywhere: not such an element).
-fn flat_element<'a>(c: &mut Cursor<'a>) -> Step<Option<FlatElement<'a>>> {
-    let mut e = FlatElement { values: [None; FLAT_KEYS.len() + 2] };
+/// Reads an element table with only flat keys into `e`, whose values are all `None` at the
+/// start (`false`, cursor anywhere: not such an element).
+fn flat_element<'a>(c: &mut Cursor<'a>, e: &mut FlatElement<'a>) -> Step<bool> {
     if c.json_space()? != b'{' {
-        return Ok(None);
+        return Ok(false);
     }
     c.i += 1;
     if c.json_space()? == b'}' {
-        return Ok(None);
+        return Ok(false);
     }
     loop {
         if c.json_space()? != b'"' {
-            return Ok(None);
+            return Ok(false);
         }
         let key = c.plain_string()?;
-        let Some(k) = flat_key(key) else { return Ok(None) };
+        let Some(k) = flat_key(key) else { return Ok(false) };
         if e.values[k].is_some() {
-            return Ok(None);
+            return Ok(false);
         }
         c.expect(b':')?;
         let v = match c.json_space()? {
@@ -851,16 +853,16 @@ fn flat_element<'a>(c: &mut Cursor<'a>) -> Step<Option<FlatElement<'a>>> {
             b'-' | b'0'..=b'9' => match c.json_number()? {
                 Value::Int(i) => Flat::Num(i as f64),
                 Value::Float(f) => Flat::Num(f),
-                _ => return Ok(None),
+                _ => return Ok(false),
             },
-            _ => return Ok(None),
+            _ => return Ok(false),
         };
         e.values[k] = Some(v);
         match c.json_space()? {
             b',' => c.i += 1,
             b'}' => {
                 c.i += 1;
-                return Ok(Some(e));
+                return Ok(true);
             }
             _ => return Err(Stop::GiveUp),
         }
