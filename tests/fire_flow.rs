@@ -88,6 +88,8 @@ fn hydrant_and_system_limits_on_a_single_main_match_the_closed_form() {
     assert_eq!(row["limiting_node"], "Mid");
     assert_eq!(row["limit"], if hydrant < system { "hydrant" } else { "system" });
     assert!((row["static_pressure"].as_f64().unwrap() - 56.0).abs() < 1e-6);
+    // The stated accuracy, 0.1 L/s, in the model's flow unit.
+    assert!((v["flow_tolerance"].as_f64().unwrap() - 0.1).abs() < 1e-12, "{v}");
     assert!((row["available"].as_f64().unwrap() - hydrant.min(system)).abs() < 1e-5 * system);
     // With Mid on a hill (elevation 40 m, 30 m static) and a residual of 25 m, Mid reaches the
     // residual first: the system limit binds.
