@@ -231,11 +231,21 @@ impl Context<'_> {
     /// there; `None` when a held solve cannot answer (see the module docs).
     fn held(&self, solver: &mut Solver, hydrant: usize, node: usize, start: f64) -> Option<(f64, Vec<f64>)> {
         let model = self.model;
-        let held =
+        let mut held =
             HeldHead { draw_at: hydrant, node, head: model.nodes()[node].elevation + self.options.residual, start };
         let mut options = self.solve_options;
         for _ in 0..2 {
-            let (solution, draw) = solver.solve_holding(model, self.conditions, &options, held).ok()?;
+            let (solution, draw) = match solver.solve_holding(model, self.conditions, &options, held) {
+                Ok(solved) => solved,
+                // A start from a neighbour's answer far from this one (a trunk main's draw at the
+                // end of a small branch): once more from no draw and a cold start.
+                Err(_) if held.start != 0.0 => {
+                    held.start = 0.0;
+                    options.warm_start = false;
+                    solver.solve_holding(model, self.conditions, &options, held).ok()?
+                }
+                Err(_) => return None,
+            };
             if !(0.0..=MAX_DRAW).contains(&draw) {
                 return None;
             }
