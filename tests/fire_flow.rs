@@ -308,3 +308,27 @@ fn held_solves_equal_the_search_with_pumps_valves_and_a_tank() {
     held_equals_search(&m, &hydrants, 14.0, 1.0);
     held_equals_search(&m, &hydrants, 25.0, 1.5);
 }
+
+#[test]
+fn held_solves_equal_the_search_when_each_hydrant_starts_from_a_very_different_neighbour() {
+    // Hydrants in a chunk start from their predecessor's answer: order them largest, smallest,
+    // next largest, ... fire flow, so that every start is as far from its answer as the network
+    // allows (a trunk main's draw at the end of a small branch, and back).
+    let m = street_network(400, 3);
+    let sample: Vec<usize> = junctions(&m).into_iter().step_by(4).collect();
+    let options = FireFlowOptions { residual: 14.0, demand_factor: 1.0 };
+    let mut found = fire_flows(&m, &sample, &options).unwrap();
+    found.sort_by(|a, b| a.hydrant_limited.total_cmp(&b.hydrant_limited));
+    assert!(found[found.len() - 1].hydrant_limited > 5.0 * found[0].hydrant_limited);
+    let mut order = Vec::new();
+    let (mut lo, mut hi) = (0, found.len());
+    while lo < hi {
+        hi -= 1;
+        order.push(found[hi].node);
+        if lo < hi {
+            order.push(found[lo].node);
+            lo += 1;
+        }
+    }
+    held_equals_search(&m, &order, 14.0, 1.0);
+}
