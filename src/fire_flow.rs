@@ -3,7 +3,7 @@
 //! units.
 
 use crate::{EXIT_INVALID, EXIT_NOT_CONVERGED, EXIT_WRITE};
-use ringmain_core::analysis::fire_flow::{fire_flows, FireFlow, FireFlowOptions};
+use ringmain_core::analysis::fire_flow::{fire_flows, FireFlow, FireFlowOptions, FLOW_TOLERANCE};
 use ringmain_core::units::did_you_mean;
 use ringmain_core::units::{Converter, PressureUnit, Quantity};
 use ringmain_core::{Model, NodeKind, SolveError};
@@ -197,6 +197,7 @@ impl View<'_> {
             "title": self.model.title,
             "residual": self.pressure(residual),
             "demand_factor": factor,
+            "flow_tolerance": self.flow(FLOW_TOLERANCE),
             "units": {"flow": u.flow.label(), "pressure": u.pressure.label()},
             "hydrants": rows,
             "caution": CAUTION,
@@ -267,6 +268,11 @@ impl View<'_> {
                 out.push_str(&format!("{:<width$}  note: {note}\n", ""));
             }
         }
+        out.push_str(&format!(
+            "\nEvery flow is within {:.3} {} of the draw at which its limiting pressure equals the residual.\n",
+            self.flow(FLOW_TOLERANCE),
+            u.flow
+        ));
         out.push('\n');
         out.push_str(CAUTION);
         out.push('\n');

@@ -88,6 +88,8 @@ fn hydrant_and_system_limits_on_a_single_main_match_the_closed_form() {
     assert_eq!(row["limiting_node"], "Mid");
     assert_eq!(row["limit"], if hydrant < system { "hydrant" } else { "system" });
     assert!((row["static_pressure"].as_f64().unwrap() - 56.0).abs() < 1e-6);
+    // The stated accuracy, 0.1 L/s, in the model's flow unit.
+    assert!((v["flow_tolerance"].as_f64().unwrap() - 0.1).abs() < 1e-12, "{v}");
     assert!((row["available"].as_f64().unwrap() - hydrant.min(system)).abs() < 1e-5 * system);
     // With Mid on a hill (elevation 40 m, 30 m static) and a residual of 25 m, Mid reaches the
     // residual first: the system limit binds.
@@ -189,4 +191,144 @@ fn bad_fire_flow_arguments_exit_2_naming_what_is_wrong() {
     }
     // The model is untouched.
     assert_eq!(std::fs::read_to_string(&path).unwrap(), LINE);
+}
+
+// ---------------------------------------------------------------------------------------------
+// The held solves against the search on the draw.
+//
+// `fire_flows` answers each limit by one solve in which the draw is an unknown and one head is
+// held at the residual; `fire_flows_by_search` by the search on the draw alone (whole solves
+// until the pressure is within 1e-7 m of the residual). Both must give the same answers within
+// the stated `FLOW_TOLERANCE` (0.1 L/s), the same limiting junctions and the same notes: on
+// hydrants in the core and on dead-end branches, hydrants already below the residual, hydrants
+// with no protected junction, with `[pressure_demand]`, and with pumps, a pressure-reducing
+// valve and a tank.
+
+use ringmain_core::analysis::fire_flow::{fire_flows, fire_flows_by_search, FireFlow, FireFlowOptions, FLOW_TOLERANCE};
+use ringmain_core::generate::{generate, NetworkSpec};
+use ringmain_core::{Format, Model, NodeKind, Solver};
+
+fn junctions(model: &Model) -> Vec<usize> {
+    (0..model.nodes().len()).filter(|&i| matches!(model.nodes()[i].kind, NodeKind::Junction { .. })).collect()
+}
+
+/// Asserts that the held solves and the search agree on `hydrants`; returns the held answers.
+fn held_equals_search(model: &Model, hydrants: &[usize], residual: f64, demand_factor: f64) -> Vec<FireFlow> {
+    let options = FireFlowOptions { residual, demand_factor };
+    let fast = fire_flows(model, hydrants, &options).unwrap();
+    let slow = fire_flows_by_search(model, hydrants, &options).unwrap();
+    assert_eq!(fast.len(), hydrants.len());
+    // The held solves answer (almost) every hydrant themselves: this compares two methods, not
+    // the search with itself. (The search is kept where a held head does not follow the draw:
+    // behind a pressure-reducing valve, for one.)
+    let searched = fast.iter().filter(|f| f.searched).count();
+    assert!(searched * 10 <= hydrants.len(), "{searched} of {} hydrants searched", hydrants.len());
+    for (f, s) in fast.iter().zip(&slow) {
+        let id = &model.nodes()[f.node].id;
+        assert_eq!(f.node, s.node);
+        assert_eq!(f.static_pressure, s.static_pressure, "{id}");
+        assert!((f.hydrant_limited - s.hydrant_limited).abs() <= FLOW_TOLERANCE, "{id}: {f:?} vs {s:?}");
+        match (f.system_limited, s.system_limited) {
+            (Some(a), Some(b)) => assert!((a - b).abs() <= FLOW_TOLERANCE, "{id}: {f:?} vs {s:?}"),
+            (None, None) => {}
+            _ => panic!("{id}: {f:?} vs {s:?}"),
+        }
+        assert_eq!(f.limiting_node, s.limiting_node, "{id}: {f:?} vs {s:?}");
+        assert_eq!(f.notes, s.notes, "{id}");
+        if (f.hydrant_limited - f.system_limited.unwrap_or(f64::INFINITY)).abs() > 2.0 * FLOW_TOLERANCE {
+            assert_eq!(f.limit, s.limit, "{id}");
+        }
+    }
+    fast
+}
+
+/// A generated street network (`ringmain generate`'s networks: a grid with dead-end branches).
+fn street_network(junctions: usize, seed: u64) -> Model {
+    generate(&NetworkSpec::new(junctions, seed)).unwrap()
+}
+
+#[test]
+fn held_solves_equal_the_search_on_core_and_dead_end_hydrants() {
+    let m = street_network(400, 11);
+    let hydrants: Vec<usize> = junctions(&m).into_iter().step_by(5).collect();
+    let solver = Solver::new(&m).unwrap();
+    let in_tree = hydrants.iter().filter(|&&h| solver.structure().in_tree[h]).count();
+    assert!(in_tree > 5 && in_tree + 5 < hydrants.len(), "{in_tree} of {} on dead-end branches", hydrants.len());
+    // 20 psi (about 14 m of head) is common practice in North America.
+    let found = held_equals_search(&m, &hydrants, 14.0, 1.0);
+    assert!(found.iter().any(|f| f.limit == ringmain_core::analysis::fire_flow::Limit::System));
+    assert!(found.iter().any(|f| f.limit == ringmain_core::analysis::fire_flow::Limit::Hydrant));
+    // Twice the demands.
+    held_equals_search(&m, &hydrants, 14.0, 2.0);
+}
+
+#[test]
+fn held_solves_equal_the_search_below_the_residual_and_without_protected_junctions() {
+    let m = street_network(300, 5);
+    let base = ringmain_core::solve(&m).unwrap();
+    let all = junctions(&m);
+    let mut pressures: Vec<f64> = all.iter().map(|&i| base.pressure[i]).collect();
+    pressures.sort_by(f64::total_cmp);
+    let hydrants: Vec<usize> = all.iter().copied().step_by(9).collect();
+    // The median: about half the hydrants are below it already.
+    let median = pressures[pressures.len() / 2];
+    let found = held_equals_search(&m, &hydrants, median, 1.0);
+    assert!(found.iter().any(|f| f.hydrant_limited == 0.0) && found.iter().any(|f| f.hydrant_limited > 0.0));
+    // Between the two highest pressures: only the highest junction is above the residual; it has
+    // no protected junction, and every other hydrant has that one alone.
+    let (top, second) = (pressures[pressures.len() - 1], pressures[pressures.len() - 2]);
+    assert!(top > second);
+    let highest = *all.iter().find(|&&i| base.pressure[i] == top).unwrap();
+    let mut chosen = hydrants.clone();
+    chosen.push(highest);
+    let found = held_equals_search(&m, &chosen, 0.5 * (top + second), 1.0);
+    let last = found.last().unwrap();
+    assert!(last.system_limited.is_none() && last.hydrant_limited > 0.0, "{last:?}");
+    assert!(found.iter().filter(|f| f.node != highest).all(|f| f.limiting_node == Some(highest)));
+}
+
+#[test]
+fn held_solves_equal_the_search_with_pressure_dependent_demand() {
+    let m = street_network(300, 8);
+    let mut doc: serde_json::Value =
+        serde_json::from_str(&ringmain_core::model::write::to_string(&m, Format::Json)).unwrap();
+    doc["pressure_demand"] = serde_json::json!({ "full_pressure": 40.0, "zero_pressure": 5.0, "exponent": 0.5 });
+    let pdd = ringmain_core::read_str(&doc.to_string(), Format::Json, "pdd.json").unwrap();
+    assert!(pdd.outflow.is_active());
+    let hydrants: Vec<usize> = junctions(&pdd).into_iter().step_by(7).collect();
+    let found = held_equals_search(&pdd, &hydrants, 14.0, 3.0);
+    assert!(found.iter().all(|f| f.available() > 0.0));
+}
+
+#[test]
+fn held_solves_equal_the_search_with_pumps_valves_and_a_tank() {
+    let path = concat!(env!("CARGO_MANIFEST_DIR"), "/examples/hillside.toml");
+    let m = ringmain_core::read_str(&std::fs::read_to_string(path).unwrap(), Format::Toml, path).unwrap();
+    let hydrants = junctions(&m);
+    held_equals_search(&m, &hydrants, 14.0, 1.0);
+    held_equals_search(&m, &hydrants, 25.0, 1.5);
+}
+
+#[test]
+fn held_solves_equal_the_search_when_each_hydrant_starts_from_a_very_different_neighbour() {
+    // Hydrants in a chunk start from their predecessor's answer: order them largest, smallest,
+    // next largest, ... fire flow, so that every start is as far from its answer as the network
+    // allows (a trunk main's draw at the end of a small branch, and back).
+    let m = street_network(400, 3);
+    let sample: Vec<usize> = junctions(&m).into_iter().step_by(4).collect();
+    let options = FireFlowOptions { residual: 14.0, demand_factor: 1.0 };
+    let mut found = fire_flows(&m, &sample, &options).unwrap();
+    found.sort_by(|a, b| a.hydrant_limited.total_cmp(&b.hydrant_limited));
+    assert!(found[found.len() - 1].hydrant_limited > 5.0 * found[0].hydrant_limited);
+    let mut order = Vec::new();
+    let (mut lo, mut hi) = (0, found.len());
+    while lo < hi {
+        hi -= 1;
+        order.push(found[hi].node);
+        if lo < hi {
+            order.push(found[lo].node);
+            lo += 1;
+        }
+    }
+    held_equals_search(&m, &order, 14.0, 1.0);
 }

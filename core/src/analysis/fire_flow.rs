@@ -15,20 +15,33 @@
 //! not exist. A residual of 20 psi (about 140 kPa) is common practice in North America.
 //!
 //! # Method
-//! Pressures fall as the draw grows. Along one main with the Hazen–Williams law the pressure at
-//! the draw is `p_s − R Q^1.852`, a straight line in `x = Q^1.852`; the root of
-//! `p(Q) − p_residual` is therefore sought in `x`, by the Illinois variant of regula falsi
-//! (Dowell & Jarratt, 1971, BIT 11) inside a bracket grown by extrapolation. On a single main the
-//! first secant step is exact; on looped networks a few solves suffice. Every solve starts from
-//! the previous one (a warm start), and hydrants are spread over all cores, each thread with its
-//! own [`Conditions`] (only the hydrant's fixed draw changes) and its own solver sharing one
-//! analysis of the network structure; the model is never copied. With `[pressure_demand]` the other
-//! junctions' demands (and the hydrant's own) follow their pressures while the fire draw is fixed.
+//! The draw is not searched for. Each limit is one solve of the network in which the draw at the
+//! hydrant is an unknown and the head at one junction is held at its elevation plus the residual
+//! (the bordered Newton step of [`crate::solve::hold`], [`Solver::solve_holding`]): the
+//! hydrant's own for (a); for (b) the protected junction expected to reach the residual first
+//! (estimated from the pressures without the draw and at a second draw, along the
+//! Hazen–Williams power `p(Q) ≈ p(0) − k Q^1.852`). When, at the answer, another protected
+//! junction lies below the residual, it is held instead (from there, warm); pressures fall as the
+//! draw grows, so the draws only decrease and the junctions held are few (one in most cases).
+//! Every hydrant starts from the solution without a fire draw; the hydrants are spread over all
+//! cores, each thread with its own solver sharing one analysis of the network structure and
+//! one set of [`Conditions`], which no hydrant changes; the model is never copied. With
+//! `[pressure_demand]` the other junctions' demands (and the hydrant's own) follow their
+//! pressures while the fire draw is fixed. A draw that changes in its last step by more than
+//! [`FLOW_TOLERANCE`] is solved again with a hundredfold tighter head tolerance.
+//!
+//! When the held solve cannot answer (a held head that does not follow the draw: a check valve
+//! or a regulating valve between them; a draw that would be negative or above [`MAX_DRAW`]),
+//! that limit falls back to the search on the draw ([`fire_flows_by_search`], also the reference
+//! the held solves are tested against): the root of `p(Q) − p_residual` sought in
+//! `x = Q^1.852` (a straight line along one Hazen–Williams main) by the Illinois variant of
+//! regula falsi (Dowell & Jarratt, 1971, BIT 11) inside a bracket grown by extrapolation, every
+//! solve warm-started from the previous one.
 
 use crate::error::{Element, ModelError, SolveError};
 use crate::model::{Model, NodeKind};
 use crate::physics::friction::HW_FLOW_EXPONENT;
-use crate::solve::{Conditions, SolveOptions, Solver};
+use crate::solve::{Conditions, HeldHead, Solution, SolveOptions, Solver};
 
 /// What limits the available fire flow.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -76,6 +89,9 @@ pub struct FireFlow {
     pub limit: Limit,
     /// Things the reader should know about this hydrant.
     pub notes: Vec<String>,
+    /// Whether a limit was found by the search on the draw (always with
+    /// [`fire_flows_by_search`]; with [`fire_flows`] only where a held solve cannot answer).
+    pub searched: bool,
 }
 
 impl FireFlow {
@@ -96,8 +112,46 @@ pub const MAX_DRAW: f64 = 100.0;
 /// Solves allowed for one root.
 const MAX_SOLVES: usize = 60;
 
-/// The available fire flow at each hydrant (node indices, junctions), in parallel.
+/// The accuracy of every fire flow, m³/s (0.1 L/s, finer than a hydrant flow test reads): each
+/// draw is within this of the draw at which its limiting pressure equals the residual.
+pub const FLOW_TOLERANCE: f64 = 1e-4;
+/// A protected pressure below the residual by less than this at an answer is a tie, not a
+/// junction that reaches the residual first, m.
+const TIE: f64 = 1e-6;
+/// Protected junctions held in turn for one system limit before the search takes over.
+const MAX_HELD: usize = 12;
+
+/// How the limits are found.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+enum Method {
+    /// One held solve per limit (the search only where it cannot answer).
+    Held,
+    /// The search on the draw, a whole solve per trial.
+    Search,
+}
+
+/// The available fire flow at each hydrant (node indices, junctions), in parallel, by held
+/// solves (see the [module docs](self)).
 pub fn fire_flows(model: &Model, hydrants: &[usize], options: &FireFlowOptions) -> Result<Vec<FireFlow>, SolveError> {
+    fire_flows_with(model, hydrants, options, Method::Held)
+}
+
+/// The same answers as [`fire_flows`] by the search on the draw alone: some ten solves per limit
+/// where [`fire_flows`] takes one. The reference its answers are tested against.
+pub fn fire_flows_by_search(
+    model: &Model,
+    hydrants: &[usize],
+    options: &FireFlowOptions,
+) -> Result<Vec<FireFlow>, SolveError> {
+    fire_flows_with(model, hydrants, options, Method::Search)
+}
+
+fn fire_flows_with(
+    model: &Model,
+    hydrants: &[usize],
+    options: &FireFlowOptions,
+    method: Method,
+) -> Result<Vec<FireFlow>, SolveError> {
     use rayon::prelude::*;
     let check = |key: &str, v: f64, ok: bool| {
         if ok {
@@ -118,20 +172,252 @@ pub fn fire_flows(model: &Model, hydrants: &[usize], options: &FireFlowOptions) 
             )));
         }
     }
-    // The conditions with the demands scaled once; every hydrant changes only its own demand.
+    // The conditions with the demands scaled once; no hydrant changes them (the search's trial
+    // draws go into a worker's own copy, made when it first needs one).
     let mut conditions = Conditions::from_model(model);
     conditions.scale_demands(options.demand_factor).map_err(SolveError::Model)?;
     let mut solver = Solver::new(model)?;
     let solve_options = SolveOptions::from_model(model);
     let without = solver.solve(model, &conditions, &solve_options)?;
-    let (solver, conditions) = (&solver, &conditions);
-    hydrants
-        .par_iter()
-        .map_init(
-            || (conditions.clone(), solver.clone()),
-            |(conditions, solver), &h| one_hydrant(model, conditions, solver, &without, h, options, &solve_options),
-        )
-        .collect()
+    let context = Context {
+        model,
+        conditions: &conditions,
+        without: &without,
+        options: *options,
+        solve_options: SolveOptions { warm_start: true, ..solve_options },
+        method,
+    };
+    // Chunks of neighbouring hydrants (in the order given), each on one thread: a hydrant starts
+    // from its predecessor's solution and draw, whose flows are of the size of its own (about
+    // a third fewer iterations than from the case without a draw); the chunks, not the threads,
+    // decide every start, so the answers do not depend on the number of threads.
+    let chunks: Vec<Result<Vec<FireFlow>, SolveError>> = hydrants
+        .par_chunks(CHUNK)
+        .map(|chunk| {
+            let mut worker = Worker { solver: solver.clone(), conditions: None, last: 0.0 };
+            chunk.iter().map(|&h| context.hydrant(&mut worker, h)).collect()
+        })
+        .collect();
+    let mut out = Vec::with_capacity(hydrants.len());
+    for chunk in chunks {
+        out.extend(chunk?);
+    }
+    Ok(out)
+}
+
+/// Hydrants per chunk of [`fire_flows`]: enough to chain warm starts, small enough to spread over
+/// the cores.
+const CHUNK: usize = 32;
+
+/// What every hydrant of one analysis shares.
+struct Context<'a> {
+    model: &'a Model,
+    conditions: &'a Conditions,
+    without: &'a Solution,
+    options: FireFlowOptions,
+    solve_options: SolveOptions,
+    method: Method,
+}
+
+/// One thread's own solver, and its copy of the conditions for the search (made on first use).
+struct Worker {
+    solver: Solver,
+    conditions: Option<Conditions>,
+    last: f64,
+}
+
+impl Context<'_> {
+    /// The draw at `hydrant` that holds the pressure at `node` at the residual, with the pressures
+    /// there; `None` when a held solve cannot answer (see the module docs).
+    fn held(&self, solver: &mut Solver, hydrant: usize, node: usize, start: f64) -> Option<(f64, Vec<f64>)> {
+        let model = self.model;
+        let mut held =
+            HeldHead { draw_at: hydrant, node, head: model.nodes()[node].elevation + self.options.residual, start };
+        let mut options = self.solve_options;
+        for _ in 0..2 {
+            let (solution, draw) = match solver.solve_holding(model, self.conditions, &options, held) {
+                Ok(solved) => solved,
+                // A start from a neighbour's answer far from this one (a trunk main's draw at the
+                // end of a small branch): once more from no draw and a cold start.
+                Err(_) if held.start != 0.0 => {
+                    held.start = 0.0;
+                    options.warm_start = false;
+                    solver.solve_holding(model, self.conditions, &options, held).ok()?
+                }
+                Err(_) => return None,
+            };
+            if !(0.0..=MAX_DRAW).contains(&draw) {
+                return None;
+            }
+            if solver.held_draw_step() <= FLOW_TOLERANCE {
+                return Some((draw, solution.pressure));
+            }
+            options.head_tolerance *= 1e-2;
+        }
+        None
+    }
+
+    fn hydrant(&self, worker: &mut Worker, h: usize) -> Result<FireFlow, SolveError> {
+        let model = self.model;
+        let without = self.without;
+        let id = model.nodes()[h].id.to_string();
+        let named = |message: String| SolveError::Model(ModelError::at(Some(Element::Node(id.clone())), None, message));
+        if !without.connected[h] {
+            return Err(named("no reservoir or tank reaches this hydrant: it has no fire flow".into()));
+        }
+        let static_pressure = without.pressure[h];
+        let residual = self.options.residual;
+        let protected: Vec<usize> = (0..model.nodes().len())
+            .filter(|&i| {
+                i != h
+                    && matches!(model.nodes()[i].kind, NodeKind::Junction { .. })
+                    && without.connected[i]
+                    && without.pressure[i] >= residual
+            })
+            .collect();
+        let lowest = |p: &[f64]| -> (usize, f64) {
+            protected.iter().map(|&i| (i, p[i])).fold((usize::MAX, f64::INFINITY), |a, b| if b.1 < a.1 { b } else { a })
+        };
+        let held = self.method == Method::Held;
+        let mut notes = Vec::new();
+        let mut searched = false;
+        // A draw and the pressures there, beside those without a draw: where the system limit's
+        // first held junction is estimated from.
+        let mut sample: Option<(f64, Vec<f64>)> = None;
+        // The solver starts from its last solution (the previous hydrant's, or the case without
+        // a draw for a chunk's first) and the draw from the previous hydrant's.
+        let start = worker.last;
+        let hydrant_limited = if static_pressure <= residual {
+            notes.push("the hydrant is at or below the residual pressure without a fire draw".to_owned());
+            0.0
+        } else {
+            let fast = if held { self.held(&mut worker.solver, h, h, start).filter(|(q, _)| *q > 0.0) } else { None };
+            match fast {
+                Some((q, p)) => {
+                    sample = Some((q, p));
+                    worker.last = q;
+                    q
+                }
+                None => match self
+                    .search(worker, h, static_pressure, &mut searched, &|p: &[f64]| p[h])
+                    .map_err(|e| named(format!("hydrant limit: {e}")))?
+                {
+                    Some((q, _)) => q,
+                    None => {
+                        return Err(named(format!(
+                            "its pressure stays above the residual at every draw up to {MAX_DRAW} m3/s; check the model"
+                        )))
+                    }
+                },
+            }
+        };
+        let (system_limited, limiting_node) = if protected.is_empty() {
+            notes.push("no other junction is at or above the residual pressure without a fire draw".to_owned());
+            (None, None)
+        } else {
+            let (first, at_zero) = lowest(&without.pressure);
+            if at_zero <= residual {
+                // Exactly at the residual already: nothing can be drawn.
+                (Some(0.0), Some(first))
+            } else {
+                let fast = if held { self.held_system(worker, h, &protected, sample) } else { None };
+                match fast {
+                    Some((q, node)) => (Some(q), Some(node)),
+                    None => match self
+                        .search(worker, h, at_zero, &mut searched, &|p: &[f64]| lowest(p).1)
+                        .map_err(|e| named(format!("system limit: {e}")))?
+                    {
+                        Some((q, p)) => (Some(q), Some(lowest(&p).0)),
+                        None => {
+                            notes.push(format!(
+                                "no protected junction falls to the residual pressure at any draw up to {MAX_DRAW} m3/s \
+                                 (the hydrant is cut off from them, e.g. by a check valve)"
+                            ));
+                            (None, None)
+                        }
+                    },
+                }
+            }
+        };
+        let limit = match system_limited {
+            Some(s) if s < hydrant_limited => Limit::System,
+            _ => Limit::Hydrant,
+        };
+        Ok(FireFlow {
+            node: h,
+            static_pressure,
+            hydrant_limited,
+            system_limited,
+            limiting_node,
+            limit,
+            notes,
+            searched,
+        })
+    }
+
+    /// The system limit by held solves: the draw and the protected junction that sets it, or
+    /// `None` when the search must answer.
+    fn held_system(
+        &self,
+        worker: &mut Worker,
+        h: usize,
+        protected: &[usize],
+        sample: Option<(f64, Vec<f64>)>,
+    ) -> Option<(f64, usize)> {
+        let residual = self.options.residual;
+        let p0 = &self.without.pressure;
+        // The draw at which junction i reaches the residual, along p(Q) = p(0) − k Q^1.852
+        // through the sample (q, p); infinite when it does not fall.
+        let estimate = |q: f64, p: &[f64], i: usize| {
+            let fall = p0[i] - p[i];
+            if fall > 0.0 && q > 0.0 {
+                q * ((p0[i] - residual) / fall).powf(1.0 / HW_FLOW_EXPONENT)
+            } else {
+                f64::INFINITY
+            }
+        };
+        let first_of = |q: f64, p: &[f64], candidates: &mut dyn Iterator<Item = usize>| {
+            candidates
+                .map(|i| (i, estimate(q, p, i)))
+                .filter(|(_, e)| e.is_finite())
+                .min_by(|a, b| a.1.total_cmp(&b.1))
+                .map(|(i, _)| i)
+        };
+        let mut node = match &sample {
+            Some((q, p)) => first_of(*q, p, &mut protected.iter().copied())?,
+            // No draw yet (the hydrant is below the residual): the lowest protected junction.
+            None => protected.iter().copied().min_by(|&a, &b| p0[a].total_cmp(&p0[b]))?,
+        };
+        for _ in 0..MAX_HELD {
+            let start = sample.as_ref().map_or(0.0, |s| s.0);
+            let (q, p) = self.held(&mut worker.solver, h, node, start)?;
+            let (lowest, at) =
+                protected.iter().map(|&i| (i, p[i])).fold((node, p[node]), |a, b| if b.1 < a.1 { b } else { a });
+            if at >= residual - TIE {
+                return Some((q, lowest));
+            }
+            // Another junction reached the residual at a smaller draw: hold the first of those.
+            node = first_of(q, &p, &mut protected.iter().copied().filter(|&i| p[i] < residual - TIE))?;
+        }
+        None
+    }
+
+    /// The search on the draw for the root of `measure(pressures) = residual`, from `at_zero`
+    /// without a draw, in the worker's own conditions.
+    fn search(
+        &self,
+        worker: &mut Worker,
+        h: usize,
+        at_zero: f64,
+        searched: &mut bool,
+        measure: &dyn Fn(&[f64]) -> f64,
+    ) -> Result<Option<(f64, Vec<f64>)>, SolveError> {
+        *searched = true;
+        let conditions = worker.conditions.get_or_insert_with(|| self.conditions.clone());
+        let mut draw =
+            Draw { model: self.model, conditions, solver: &mut worker.solver, options: self.solve_options, hydrant: h };
+        draw.root(at_zero, self.options.residual, measure)
+    }
 }
 
 /// The pressure heads of `model` with extra draw `q` at `hydrant`.
@@ -219,81 +505,4 @@ impl Draw<'_> {
         }
         Err(SolveError::Model(ModelError::new("the search for the residual pressure did not settle")))
     }
-}
-
-fn one_hydrant(
-    model: &Model,
-    conditions: &mut Conditions,
-    solver: &mut Solver,
-    without: &crate::solve::Solution,
-    h: usize,
-    options: &FireFlowOptions,
-    solve_options: &SolveOptions,
-) -> Result<FireFlow, SolveError> {
-    let id = model.nodes()[h].id.to_string();
-    let named = |message: String| SolveError::Model(ModelError::at(Some(Element::Node(id.clone())), None, message));
-    if !without.connected[h] {
-        return Err(named("no reservoir or tank reaches this hydrant: it has no fire flow".into()));
-    }
-    let static_pressure = without.pressure[h];
-    let residual = options.residual;
-    let protected: Vec<usize> = (0..model.nodes().len())
-        .filter(|&i| {
-            i != h
-                && matches!(model.nodes()[i].kind, NodeKind::Junction { .. })
-                && without.connected[i]
-                && without.pressure[i] >= residual
-        })
-        .collect();
-    let mut notes = Vec::new();
-    let mut draw =
-        Draw { model, conditions, solver, options: SolveOptions { warm_start: true, ..*solve_options }, hydrant: h };
-    let hydrant_limited = if static_pressure <= residual {
-        notes.push("the hydrant is at or below the residual pressure without a fire draw".to_owned());
-        0.0
-    } else {
-        match draw
-            .root(static_pressure, residual, &|p: &[f64]| p[h])
-            .map_err(|e| named(format!("hydrant limit: {e}")))?
-        {
-            Some((q, _)) => q,
-            None => {
-                return Err(named(format!(
-                    "its pressure stays above the residual at every draw up to {MAX_DRAW} m3/s; check the model"
-                )))
-            }
-        }
-    };
-    let lowest = |p: &[f64]| -> (usize, f64) {
-        protected.iter().map(|&i| (i, p[i])).fold((usize::MAX, f64::INFINITY), |a, b| if b.1 < a.1 { b } else { a })
-    };
-    let (system_limited, limiting_node) = if protected.is_empty() {
-        notes.push("no other junction is at or above the residual pressure without a fire draw".to_owned());
-        (None, None)
-    } else {
-        let at_zero = lowest(&without.pressure).1;
-        if at_zero <= residual {
-            // Exactly at the residual already: nothing can be drawn.
-            (Some(0.0), Some(lowest(&without.pressure).0))
-        } else {
-            match draw
-                .root(at_zero, residual, &|p: &[f64]| lowest(p).1)
-                .map_err(|e| named(format!("system limit: {e}")))?
-            {
-                Some((q, p)) => (Some(q), Some(lowest(&p).0)),
-                None => {
-                    notes.push(format!(
-                        "no protected junction falls to the residual pressure at any draw up to {MAX_DRAW} m3/s (the \
-                         hydrant is cut off from them, e.g. by a check valve)"
-                    ));
-                    (None, None)
-                }
-            }
-        }
-    };
-    let limit = match system_limited {
-        Some(s) if s < hydrant_limited => Limit::System,
-        _ => Limit::Hydrant,
-    };
-    Ok(FireFlow { node: h, static_pressure, hydrant_limited, system_limited, limiting_node, limit, notes })
 }

@@ -102,6 +102,8 @@ impl Solver {
             let solved = Instant::now();
             self.timings.solves += solved - clock;
             std::mem::swap(&mut self.rhs, &mut self.delta);
+            // A held head (`hold.rs`): the draw's step, and its share of the corrections.
+            let draw_step = self.hold_step(model, iterations)?;
             head_change = 0.0;
             let mut finite = true;
             // Relations of pressure make the Newton step's slopes span many orders of magnitude;
@@ -125,13 +127,14 @@ impl Solver {
                 // No previous iterate to compare with.
                 head_change = f64::INFINITY;
             }
+            self.hold_apply(damping * draw_step);
             // The next step's matrix is filled as the new flows are computed.
             self.begin_assembly();
             let relations = self.update_relations(damping);
             let (change, energy_residual) =
                 self.update_links(model, !warm && iterations < SECANT_STEPS, relations, damping);
             self.end_assembly();
-            flow_change = change;
+            flow_change = change.max(self.hold_change());
             self.timings.assembly += solved.elapsed();
             if !finite || !flow_change.is_finite() {
                 // Name the element whose value overflowed: the first head, then the first flow.

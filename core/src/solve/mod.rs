@@ -88,6 +88,7 @@ pub mod conditions;
 pub mod factor;
 pub mod finite;
 mod forest;
+pub mod hold;
 mod iterate;
 pub mod links;
 pub mod nodes;
@@ -99,6 +100,7 @@ pub mod topology;
 
 pub use batch::Scenario;
 pub use conditions::Conditions;
+pub use hold::HeldHead;
 pub use nodes::{NodeLaw, Relation};
 pub use solution::{OutflowSummary, PumpResult, Solution, Warning};
 pub use timings::Timings;
@@ -235,6 +237,8 @@ pub struct Solver {
     /// Σ|demand| floored at 1e-3 m³/s: the scale of relative flow changes.
     demand_scale: f64,
     stack: Vec<u32>,
+    /// A head held by a draw the solve finds ([`Solver::solve_holding`]), with its scratch.
+    hold: Option<Box<hold::Hold>>,
     timings: Timings,
     analysis_time: Duration,
 }
@@ -289,6 +293,7 @@ impl Solver {
             anchored: vec![false; n_nodes],
             demand_scale: 0.0,
             stack: Vec::new(),
+            hold: None,
             timings: Timings { analysis: analysis_time, ..Timings::default() },
             analysis_time,
             structure,
@@ -382,6 +387,8 @@ impl Solver {
                 None => start_head,
             };
         }
+        // A held head's draw starts from zero on every start.
+        self.reset_hold();
         // Relations start on their exact flow at the starting pressure.
         for r in &mut self.relations {
             let p = self.head[r.node as usize] - r.elevation;

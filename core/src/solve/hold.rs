@@ -1,0 +1,390 @@
+//! A head held at one junction by a draw found at another: the bordered Newton step behind the
+//! fire-flow analysis.
+//!
+//! The question "how much can be drawn at junction `a` before the head at junction `t` falls to
+//! `T`?" is usually answered by a search on the draw, each trial a whole solve. Here the draw `Q`
+//! is one more unknown of the Newton iteration and `H_t = T` one more equation: the system for
+//! the head corrections is bordered,
+//!
+//! ```text
+//! [ A    e_a ] [ δ  ]   [ r               ]
+//! [ e_tᵀ  0  ] [ ΔQ ] = [ T − H_t (+ …)   ]
+//! ```
+//!
+//! and solved with the factor the step already has: `δ₀ = A⁻¹ r` (the plain step) and
+//! `w = A⁻¹ e_a` (one more pair of triangular solves); then
+//! `ΔQ = (H_t + δ₀_t − T) / (w_t + L′)` and `δ = δ₀ − ΔQ w`. The answer is the draw and the
+//! network state of one solve (about as many iterations as a plain warm-started solve), where a
+//! search needs several. `A` is a weighted graph Laplacian with the fixed heads removed, an
+//! M-matrix, so `A⁻¹ ≥ 0` and `w_t ≥ 0`; `w_t + L′ = 0` means the held head does not follow the
+//! draw at all (a check valve or a regulating valve between them), which is an error, never an
+//! answer.
+//!
+//! Dead-end trees stay outside the matrix: a draw at a tree junction reaches the core at its
+//! tree's root (the unknown `e_a` is the root's) and adds `Q` to the flow of every tree pipe on
+//! its way there; a held tree junction's head is its root's minus the losses on its path, and
+//! `L′` is the sum of the slopes `dh/dQ` of the tree pipes its path shares with the draw's (zero
+//! when they are in different trees).
+//!
+//! Device states and relations of pressure work as in a plain solve: the border only changes the
+//! step's corrections and the draw; the damping of the iteration damps the draw's step as well.
+
+use super::structure::NONE;
+use super::{Solution, SolveOptions, Solver};
+use crate::error::{Element, ModelError, SolveError};
+use crate::model::{Model, NodeKind};
+use crate::solve::Conditions;
+
+/// What to hold: the head at junction `node` at `head` (m), by a draw at junction `draw_at`
+/// (m³/s, on top of its outflows under the conditions) that the solve finds.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct HeldHead {
+    /// The junction where the draw is taken.
+    pub draw_at: usize,
+    /// The junction whose head is held.
+    pub node: usize,
+    /// The head held there, m.
+    pub head: f64,
+    /// The draw to start from, m³/s (zero, or a guess: the draw found at a neighbouring
+    /// junction). It does not change the answer.
+    pub start: f64,
+}
+
+/// The border of the current solve, and its scratch (sized once per solver).
+#[derive(Clone, Debug)]
+pub(super) struct Hold {
+    pub held: HeldHead,
+    /// The extra draw found so far, m³/s (already in the solver's `demand[draw_at]`).
+    pub draw: f64,
+    /// |ΔQ| of the last step, m³/s.
+    pub change: f64,
+    /// The unknown where the draw enters the matrix (the draw junction's, or its tree root's).
+    draw_unknown: u32,
+    /// The held junction's tree root (itself in the core) and its unknown (`NONE` for a fixed
+    /// head).
+    target_root: u32,
+    target_unknown: u32,
+    /// The tree pipes from the held junction to its root: (tree link position, shared with the
+    /// draw's path).
+    target_path: Vec<(u32, bool)>,
+    /// `A⁻¹ e_a`.
+    w: Vec<f64>,
+    /// For each node, the position in `Structure::trees` of the tree pipe to its parent
+    /// (`NONE` for core nodes); made once per solver.
+    parent: Vec<u32>,
+}
+
+impl Solver {
+    /// Solves `model` under `conditions` with the head at `held.node` held at `held.head` by a
+    /// draw at `held.draw_at` that the solve finds (see the [module docs](self)). Returns the
+    /// solution (whose `demand` at `draw_at` includes the draw) and the draw, m³/s.
+    ///
+    /// Warm starts (`options.warm_start`) start from this solver's last solution, with the draw
+    /// at zero. Errors: the two nodes must be junctions the network reaches; a held head that
+    /// does not follow the draw is a [`SolveError::Numerical`] naming both.
+    pub fn solve_holding(
+        &mut self,
+        model: &Model,
+        conditions: &Conditions,
+        options: &SolveOptions,
+        held: HeldHead,
+    ) -> Result<(Solution, f64), SolveError> {
+        for (i, key) in [(held.draw_at, "draw_at"), (held.node, "node")] {
+            let node = model.nodes().get(i).ok_or_else(|| ModelError::at(None, Some(key), format!("no node {i}")))?;
+            if !matches!(node.kind, NodeKind::Junction { .. }) {
+                return Err(ModelError::at(
+                    Some(Element::Node(node.id.to_string())),
+                    Some(key),
+                    format!("must be a junction; this node is a {}", node.kind.label()),
+                )
+                .into());
+            }
+        }
+        if !held.head.is_finite() {
+            let id = model.nodes()[held.node].id.to_string();
+            return Err(
+                ModelError::at(Some(Element::Node(id)), Some("head"), format!("is not finite: {}", held.head)).into()
+            );
+        }
+        let (w, parent) = match self.hold.take() {
+            Some(h) => (h.w, h.parent),
+            None => (Vec::new(), Vec::new()),
+        };
+        if !held.start.is_finite() {
+            let id = model.nodes()[held.draw_at].id.to_string();
+            return Err(ModelError::at(
+                Some(Element::Node(id)),
+                Some("draw"),
+                format!("is not finite: {}", held.start),
+            )
+            .into());
+        }
+        self.hold = Some(Box::new(Hold {
+            held,
+            draw: 0.0,
+            change: 0.0,
+            draw_unknown: NONE,
+            target_root: NONE,
+            target_unknown: NONE,
+            target_path: Vec::new(),
+            w,
+            parent,
+        }));
+        let result = self.solve(model, conditions, options);
+        let draw = self.hold.as_ref().map_or(0.0, |h| h.draw);
+        // The scratch stays for the next call; the border does not.
+        if let Some(h) = self.hold.as_mut() {
+            h.held = HeldHead { draw_at: usize::MAX, ..h.held };
+        }
+        let mut solution = result?;
+        solution.demand[held.draw_at] += draw;
+        Ok((solution, draw))
+    }
+
+    /// The draw's last step in the last [`Solver::solve_holding`], m³/s: how far the draw found
+    /// may still be from the one that holds the head exactly (infinite before any).
+    pub fn held_draw_step(&self) -> f64 {
+        self.hold.as_ref().map_or(f64::INFINITY, |h| h.change)
+    }
+
+    /// Whether a border is active (a [`Solver::solve_holding`] in progress).
+    pub(super) fn holding(&self) -> bool {
+        self.hold.as_ref().is_some_and(|h| h.held.draw_at != usize::MAX)
+    }
+
+    /// Drops a border's draw (a fresh start of the iteration) and finds the paths of its two
+    /// junctions in the current structure.
+    pub(super) fn reset_hold(&mut self) {
+        if !self.holding() {
+            return;
+        }
+        let structure = &*self.structure;
+        let Some(hold) = self.hold.as_mut() else { return };
+        self.demand[hold.held.draw_at] += hold.held.start - hold.draw;
+        hold.draw = hold.held.start;
+        hold.change = 0.0;
+        let n_nodes = structure.unknown_of_node.len();
+        if hold.parent.len() != n_nodes {
+            hold.parent.clear();
+            hold.parent.resize(n_nodes, NONE);
+            for (position, t) in structure.trees.iter().enumerate() {
+                hold.parent[t.child as usize] = position as u32;
+            }
+        }
+        hold.w.resize(structure.n, 0.0);
+        let root = |mut i: usize| {
+            while hold.parent[i] != NONE {
+                i = structure.trees[hold.parent[i] as usize].parent as usize;
+            }
+            i
+        };
+        let draw_root = root(hold.held.draw_at);
+        hold.draw_unknown = structure.unknown_of_node[draw_root];
+        let target_root = root(hold.held.node);
+        hold.target_root = target_root as u32;
+        hold.target_unknown = structure.unknown_of_node[target_root];
+        // The draw's path, then the held junction's, each pipe marked when both share it.
+        hold.target_path.clear();
+        let mut i = hold.held.node;
+        while hold.parent[i] != NONE {
+            let position = hold.parent[i];
+            hold.target_path.push((position, false));
+            i = structure.trees[position as usize].parent as usize;
+        }
+        let mut i = hold.held.draw_at;
+        while hold.parent[i] != NONE {
+            let position = hold.parent[i];
+            if let Some(entry) = hold.target_path.iter_mut().find(|(p, _)| *p == position) {
+                entry.1 = true;
+            }
+            i = structure.trees[position as usize].parent as usize;
+        }
+    }
+
+    /// The bordered correction of one Newton step: with the plain corrections `δ₀` in `delta`
+    /// (undamped), finds the draw's step `ΔQ` and subtracts `ΔQ w` from `delta`. Returns `ΔQ`
+    /// (zero without a border).
+    pub(super) fn hold_step(&mut self, model: &Model, iteration: u32) -> Result<f64, SolveError> {
+        if !self.holding() {
+            return Ok(0.0);
+        }
+        let Some(mut hold) = self.hold.take() else { return Ok(0.0) };
+        let result = self.hold_step_with(model, iteration, &mut hold);
+        self.hold = Some(hold);
+        result
+    }
+
+    fn hold_step_with(&mut self, model: &Model, iteration: u32, hold: &mut Hold) -> Result<f64, SolveError> {
+        let nodes = model.nodes();
+        for i in [hold.held.draw_at, hold.held.node] {
+            if !self.connected[i] {
+                return Err(SolveError::Model(ModelError::at(
+                    Some(Element::Node(nodes[i].id.to_string())),
+                    None,
+                    "no reservoir or tank reaches this junction: no head can be held by a draw here".to_owned(),
+                )));
+            }
+        }
+        let structure = &*self.structure;
+        let (u, v) = (hold.draw_unknown, hold.target_unknown);
+        let ends_free = |x: u32| x != NONE && self.free[x as usize];
+        // w = A⁻¹ e_u: the heads' response to one unit more outflow at u (zero where u is not an
+        // unknown the matrix solves for: a draw from a tree on a fixed head).
+        hold.w.iter_mut().for_each(|x| *x = 0.0);
+        if ends_free(u) {
+            hold.w[u as usize] = 1.0;
+            self.factor.solve(structure, &mut hold.w);
+        }
+        // The held junction's head now and its corrections: its root's, less its path's losses.
+        let root = hold.target_root as usize;
+        let (mut head, delta0, w_v) = if v == NONE {
+            (self.head[root], 0.0, 0.0)
+        } else if self.free[v as usize] {
+            (self.unknown_head[v as usize], self.delta[v as usize], hold.w[v as usize])
+        } else {
+            (self.unknown_head[v as usize], 0.0, 0.0)
+        };
+        let mut slope = 0.0;
+        for &(position, shared) in &hold.target_path {
+            let t = structure.trees[position as usize];
+            let (loss, g) = self.laws[t.link as usize].evaluate_exact(self.flow[t.link as usize]);
+            head += if t.downstream { -loss } else { loss };
+            if shared {
+                slope += g;
+            }
+        }
+        let response = w_v + slope;
+        if !(response > 0.0 && response.is_finite()) {
+            return Err(SolveError::Numerical {
+                iteration,
+                detail: format!(
+                    "the head held at '{}' does not follow the draw at '{}' (nothing joins them through links that \
+                     carry flow)",
+                    nodes[hold.held.node].id, nodes[hold.held.draw_at].id
+                ),
+            });
+        }
+        let dq = (head + delta0 - hold.held.head) / response;
+        if dq != 0.0 {
+            for (d, (w, &free)) in self.delta.iter_mut().zip(hold.w.iter().zip(&self.free)) {
+                if free {
+                    *d -= dq * w;
+                }
+            }
+        }
+        Ok(dq)
+    }
+
+    /// Takes the draw's step (already damped): the draw junction's outflow, and the tree flows
+    /// and the outflow each unknown carries with it.
+    pub(super) fn hold_apply(&mut self, dq: f64) {
+        if !self.holding() {
+            return;
+        }
+        let Some(hold) = self.hold.as_mut() else { return };
+        hold.draw += dq;
+        hold.change = dq.abs();
+        self.demand[hold.held.draw_at] += dq;
+        if dq != 0.0 {
+            self.tree_flows();
+        }
+    }
+
+    /// The draw's last step relative to the draw (or the flow scale of the solve), for the
+    /// convergence test.
+    pub(super) fn hold_change(&self) -> f64 {
+        match self.hold.as_ref() {
+            Some(h) if self.holding() => h.change / h.draw.abs().max(self.demand_scale),
+            _ => 0.0,
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::model::{HydraulicOptions, Link, LinkKind, LinkStatus, Node, Pipe};
+    use crate::units::UnitSystem;
+
+    fn pipe(id: &str, from: usize, to: usize, length: f64, diameter: f64, roughness: f64, check_valve: bool) -> Link {
+        Link {
+            id: id.into(),
+            from,
+            to,
+            status: LinkStatus::Open,
+            kind: LinkKind::Pipe(Pipe { length, diameter, roughness, minor_loss: 0.0, check_valve }),
+        }
+    }
+
+    /// Hazen–Williams resistance r in h = r Q^1.852 (SI) from its velocity form
+    /// V = 0.849 C R^0.63 S^0.54 with R = D/4 (any hydraulics handbook).
+    fn resistance(length: f64, d: f64, c: f64) -> f64 {
+        let area = std::f64::consts::PI * d * d / 4.0;
+        let k = 0.849 * c * area * (d / 4.0).powf(0.63);
+        length / k.powf(1.0 / 0.54)
+    }
+
+    /// Reservoir R (70 m) – A – B – C in a line (all dead-end tree), and a loop A – D – E – A
+    /// (core), no demands.
+    fn network(check_valve: bool) -> Model {
+        let mut m = Model::new(UnitSystem::default(), HydraulicOptions { head_tolerance: 1e-8, ..Default::default() });
+        m.add_node(Node::reservoir("R", 70.0)).unwrap();
+        for (id, z) in [("A", 10.0), ("B", 14.0), ("C", 12.0), ("D", 11.0), ("E", 9.0)] {
+            m.add_node(Node::junction(id, z, 0.0)).unwrap();
+        }
+        m.add_link(pipe("RA", 0, 1, 600.0, 0.2, 120.0, false)).unwrap();
+        m.add_link(pipe("AB", 1, 2, 500.0, 0.15, 110.0, false)).unwrap();
+        m.add_link(pipe("BC", 2, 3, 300.0, 0.1, 100.0, check_valve)).unwrap();
+        m.add_link(pipe("AD", 1, 4, 400.0, 0.15, 120.0, false)).unwrap();
+        m.add_link(pipe("DE", 4, 5, 400.0, 0.15, 120.0, false)).unwrap();
+        m.add_link(pipe("EA", 5, 1, 400.0, 0.15, 120.0, false)).unwrap();
+        m
+    }
+
+    fn hold(m: &Model, draw_at: &str, node: &str, head: f64) -> Result<(Solution, f64), SolveError> {
+        let mut solver = Solver::new(m).unwrap();
+        let options = SolveOptions::from_model(m);
+        let held =
+            HeldHead { draw_at: m.node_index(draw_at).unwrap(), node: m.node_index(node).unwrap(), head, start: 0.0 };
+        solver.solve_holding(m, &Conditions::from_model(m), &options, held)
+    }
+
+    #[test]
+    fn a_draw_on_a_dead_end_line_holds_heads_by_the_closed_form() {
+        let m = network(false);
+        let (r1, r2) = (resistance(600.0, 0.2, 120.0), resistance(500.0, 0.15, 110.0));
+        // C's head held at 40 m by a draw at C: 30 m lost over RA, AB and BC.
+        let r3 = resistance(300.0, 0.1, 100.0);
+        let (s, q) = hold(&m, "C", "C", 40.0).unwrap();
+        let want = (30.0 / (r1 + r2 + r3)).powf(0.54);
+        assert!((q - want).abs() < 1e-9 * want, "{q} vs {want}");
+        assert!((s.head[3] - 40.0).abs() < 1e-7);
+        // B's head held at 50 m by the same draw at C (a shared path): 20 m over RA and AB.
+        let (_, q) = hold(&m, "C", "B", 50.0).unwrap();
+        let want = (20.0 / (r1 + r2)).powf(0.54);
+        assert!((q - want).abs() < 1e-9 * want, "{q} vs {want}");
+        // A draw in the core loop (at E) holding B on the branch: only RA carries it.
+        let (s, q) = hold(&m, "E", "B", 50.0).unwrap();
+        let want = (20.0 / r1).powf(0.54);
+        assert!((q - want).abs() < 1e-9 * want, "{q} vs {want}");
+        assert_eq!(s.demand[5], q);
+    }
+
+    #[test]
+    fn a_held_head_that_does_not_follow_the_draw_is_an_error_naming_both() {
+        // X hangs off a reservoir of its own: a draw at B does not reach its head.
+        let mut m = network(false);
+        let r2 = m.add_node(Node::reservoir("R2", 60.0)).unwrap();
+        let x = m.add_node(Node::junction("X", 5.0, 0.0)).unwrap();
+        m.add_link(pipe("R2X", r2, x, 100.0, 0.1, 100.0, false)).unwrap();
+        let err = hold(&m, "B", "X", 40.0).unwrap_err().to_string();
+        assert!(err.contains("'X'") && err.contains("'B'") && err.contains("does not follow"), "{err}");
+        // A check valve that lets water towards the draw (BC) is no obstacle: C is peeled no
+        // more (devices stay in the core), and its draw is found as before.
+        let m = network(true);
+        let (_, q) = hold(&m, "C", "C", 40.0).unwrap();
+        assert!(q > 0.0);
+        let err = hold(&m, "B", "R", 40.0).unwrap_err().to_string();
+        assert!(err.contains("must be a junction"), "{err}");
+    }
+}
