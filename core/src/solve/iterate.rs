@@ -3,6 +3,7 @@
 //! converge.
 
 use super::assemble::*;
+use super::chord::{Chord, CHORD_CONTRACTION, CHORD_MARGIN, CHORD_STEPS};
 use super::solution::energy_residuals;
 use super::status::{self, LinkState, StatusTracker};
 use super::structure::NONE;
@@ -39,6 +40,11 @@ impl Solver {
         let mut flow_change = f64::INFINITY;
         let mut states_stale = true;
         let mut since_change = 0u32;
+        // Chord steps on a base case's factor (see `chord.rs`): whether the next step is one,
+        // how many were taken, and the largest head correction of the last one.
+        let mut chord = Chord::Off;
+        let mut chord_steps = 0u32;
+        let mut chord_change = f64::INFINITY;
 
         loop {
             if states_stale {
@@ -57,6 +63,7 @@ impl Solver {
                 }
                 self.scatter_relations();
                 self.end_assembly();
+                chord = if chord_steps < CHORD_STEPS { self.chord_eligible() } else { Chord::Off };
                 self.timings.assembly += clock.elapsed();
                 states_stale = false;
             }
@@ -82,20 +89,29 @@ impl Solver {
                     continue;
                 }
             }
-            let assembled = Instant::now();
-            let factored = self.factor.factor(&self.structure);
-            let clock = Instant::now();
-            self.timings.factorization += clock - assembled;
-            factored.map_err(|e| SolveError::Numerical {
-                iteration: iterations,
-                detail: match self.structure.node_of_unknown.get(e.unknown) {
-                    Some(&node) => format!("pivot of node '{}' is not positive", nodes[node as usize].id),
-                    None => "a pivot is not positive".to_owned(),
-                },
-            })?;
-            self.factor.solve(&self.structure, &mut self.rhs);
+            let chord_step = chord != Chord::Off;
+            if let Chord::On(rank_one) = chord {
+                let clock = Instant::now();
+                self.chord_solve(rank_one);
+                chord_steps += 1;
+                self.timings.solves += clock.elapsed();
+            } else {
+                let assembled = Instant::now();
+                let factored = self.factor.factor(&self.structure);
+                let clock = Instant::now();
+                self.timings.factorization += clock - assembled;
+                self.timings.factorizations += 1;
+                factored.map_err(|e| SolveError::Numerical {
+                    iteration: iterations,
+                    detail: match self.structure.node_of_unknown.get(e.unknown) {
+                        Some(&node) => format!("pivot of node '{}' is not positive", nodes[node as usize].id),
+                        None => "a pivot is not positive".to_owned(),
+                    },
+                })?;
+                self.factor.solve(&self.structure, &mut self.rhs);
+                self.timings.solves += clock.elapsed();
+            }
             let solved = Instant::now();
-            self.timings.solves += solved - clock;
             std::mem::swap(&mut self.rhs, &mut self.delta);
             head_change = 0.0;
             let mut finite = true;
@@ -116,6 +132,21 @@ impl Solver {
                     self.unknown_head[u] += *delta;
                 }
             }
+            // A chord step after the first (which is a Newton step) converges linearly: it may
+            // end the iteration only if it contracted by CHORD_CONTRACTION at least, and with its
+            // changes within CHORD_MARGIN of the tolerances. Newton steps take over when the
+            // chord contracts too slowly (or too long).
+            let mut share = 1.0;
+            if chord_step {
+                let stalled = chord_steps > 1 && !(head_change <= CHORD_CONTRACTION * chord_change);
+                if stalled || chord_steps >= CHORD_STEPS {
+                    chord = Chord::Off;
+                }
+                if chord_steps > 1 {
+                    share = if stalled { 0.0 } else { CHORD_MARGIN };
+                }
+                chord_change = head_change;
+            }
             if iterations == 1 {
                 // No previous iterate to compare with.
                 head_change = f64::INFINITY;
@@ -124,7 +155,7 @@ impl Solver {
             self.begin_assembly();
             let relations = self.update_relations(damping);
             let (change, energy_residual) =
-                self.update_links(model, !warm && iterations < SECANT_STEPS, relations, damping);
+                self.update_links(model, !warm && iterations < SECANT_STEPS, relations, damping, chord != Chord::Off);
             self.end_assembly();
             flow_change = change;
             self.timings.assembly += solved.elapsed();
@@ -153,12 +184,13 @@ impl Solver {
                     detail: "heads or flows became NaN".into(),
                 });
             }
-            let heads_settled = head_change <= options.head_tolerance
+            let (head_tolerance, flow_tolerance) = (share * options.head_tolerance, share * options.flow_tolerance);
+            let heads_settled = head_change <= head_tolerance
                 // Heads that still move by more than a tight tolerance while every energy
                 // equation already holds to it (possible when the tolerance is near the
                 // floating-point floor of a large network): the energy residual decides.
-                || (flow_change <= options.flow_tolerance && iterations > 1 && energy_residual <= options.head_tolerance);
-            if heads_settled && flow_change <= options.flow_tolerance {
+                || (flow_change <= flow_tolerance && iterations > 1 && energy_residual <= head_tolerance);
+            if heads_settled && flow_change <= flow_tolerance {
                 if !tracker.has_devices() {
                     break;
                 }

@@ -84,6 +84,7 @@
 
 mod assemble;
 pub mod batch;
+mod chord;
 pub mod conditions;
 pub mod factor;
 pub mod finite;
@@ -235,6 +236,10 @@ pub struct Solver {
     /// Σ|demand| floored at 1e-3 m³/s: the scale of relative flow changes.
     demand_scale: f64,
     stack: Vec<u32>,
+    /// The base case's factor for chord steps (batches near a base case; see `chord.rs`).
+    chord: Option<Arc<chord::ChordBase>>,
+    /// `A₀⁻¹ u` of the link a chord iteration closes.
+    chord_w: Vec<f64>,
     timings: Timings,
     analysis_time: Duration,
 }
@@ -289,6 +294,8 @@ impl Solver {
             anchored: vec![false; n_nodes],
             demand_scale: 0.0,
             stack: Vec::new(),
+            chord: None,
+            chord_w: Vec::new(),
             timings: Timings { analysis: analysis_time, ..Timings::default() },
             analysis_time,
             structure,
