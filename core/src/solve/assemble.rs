@@ -117,16 +117,12 @@ impl Solver {
     ///
     /// With `damping` α below one (see `iterate`) each link moves by α of its Newton step
     /// (`Q + α (Q_newton − Q)`), the head corrections having been scaled by α already.
-    ///
-    /// With `chord`, the next step is a chord step on the base case's factor (see `chord.rs`):
-    /// every link keeps its conductance `p`, and `c` is made with it.
     pub(super) fn update_links(
         &mut self,
         model: &Model,
         secant: bool,
         relations: RelationChange,
         damping: f64,
-        chord: bool,
     ) -> (f64, f64) {
         let (mut sum_dq, mut sum_q, mut residual) =
             (relations.sum_dq, self.tree_flow_sum + relations.sum_q, relations.residual);
@@ -163,7 +159,7 @@ impl Solver {
                         links::hazen_williams(hot.r, hot.minor, q)
                     };
                     let g = if secant && !general && q != 0.0 { y / q } else { g };
-                    let p = if chord { *cp } else { 1.0 / g.max(hot.min_slope) };
+                    let p = 1.0 / g.max(hot.min_slope);
                     residual = residual.max((y - dh).abs());
                     sum_dq += (q - *cq).abs();
                     sum_q += q.abs();

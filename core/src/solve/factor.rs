@@ -95,14 +95,9 @@ impl Factor {
         &self.l_values
     }
 
-    /// Solves with another factor of the same structure (`l_values` as [`Factor::l_values`]
-    /// gave them), in this workspace's scratch space.
-    pub fn solve_with(&mut self, structure: &Structure, l_values: &[f64], rhs: &mut [f64]) {
-        if structure.n == 0 {
-            return;
-        }
-        let llt = SimplicialLltRef::new(&structure.symbolic, l_values);
-        let rhs = MatMut::from_column_major_slice_mut(rhs, structure.n, 1);
-        llt.solve_in_place_with_conj(Conj::No, rhs, Par::Seq, MemStack::new(&mut self.mem));
+    /// The values of the factor, to write (tests).
+    #[cfg(test)]
+    pub(crate) fn l_values_mut(&mut self) -> &mut [f64] {
+        &mut self.l_values
     }
 }

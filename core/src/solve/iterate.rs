@@ -55,15 +55,19 @@ impl Solver {
                 self.tree_flows();
                 self.timings.forest += clock.elapsed();
                 let clock = Instant::now();
-                // The secant start only on a cold start's first step.
-                self.linearise(iterations < SECANT_STEPS && !warm);
-                self.begin_assembly();
-                for i in 0..self.structure.core.len() {
-                    self.scatter(i);
+                // Chord steps from the base case's point take its linearisation as it is;
+                // anything else is linearised here.
+                chord = if chord_steps < CHORD_STEPS { self.chord_start() } else { Chord::Off };
+                if chord == Chord::Off {
+                    // The secant start only on a cold start's first step.
+                    self.linearise(iterations < SECANT_STEPS && !warm);
+                    self.begin_assembly();
+                    for i in 0..self.structure.core.len() {
+                        self.scatter(i);
+                    }
+                    self.scatter_relations();
+                    self.end_assembly();
                 }
-                self.scatter_relations();
-                self.end_assembly();
-                chord = if chord_steps < CHORD_STEPS { self.chord_eligible() } else { Chord::Off };
                 self.timings.assembly += clock.elapsed();
                 states_stale = false;
             }
@@ -151,12 +155,18 @@ impl Solver {
                 // No previous iterate to compare with.
                 head_change = f64::INFINITY;
             }
-            // The next step's matrix is filled as the new flows are computed.
-            self.begin_assembly();
-            let relations = self.update_relations(damping);
-            let (change, energy_residual) =
-                self.update_links(model, !warm && iterations < SECANT_STEPS, relations, damping, chord != Chord::Off);
-            self.end_assembly();
+            let (change, energy_residual) = if chord == Chord::Off {
+                // The next step's matrix is filled as the new flows are computed.
+                self.begin_assembly();
+                let relations = self.update_relations(damping);
+                let secant = !warm && iterations < SECANT_STEPS;
+                let result = self.update_links(model, secant, relations, damping);
+                self.end_assembly();
+                result
+            } else {
+                // The next step is a chord step: its matrix is the base case's.
+                self.chord_update()
+            };
             flow_change = change;
             self.timings.assembly += solved.elapsed();
             if !finite || !flow_change.is_finite() {
