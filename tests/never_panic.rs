@@ -8,6 +8,8 @@
 mod snippet;
 
 use proptest::prelude::*;
+
+mod common;
 use ringmain_core::analysis::{diagnose_model, run_scenario, CheckOptions, Criteria};
 use ringmain_core::{Format, SolveOptions, Solver};
 
@@ -125,7 +127,7 @@ fn mutate(base: &str, mutations: &[Mutation]) -> Vec<u8> {
 }
 
 proptest! {
-    #![proptest_config(ProptestConfig { cases: 256, ..ProptestConfig::default() })]
+    #![proptest_config(common::property_config(256))]
 
     #[test]
     fn arbitrary_bytes_never_panic(bytes in proptest::collection::vec(any::<u8>(), 0..2048)) {

@@ -20,7 +20,6 @@
 mod common;
 
 use proptest::prelude::*;
-use proptest::test_runner::{Config, RngSeed};
 use ringmain_core::model::outflow::{JunctionOutflow, Leakage, Outlet, PressureDemand};
 use ringmain_core::model::HydraulicOptions;
 use ringmain_core::solve::{Conditions, NodeLaw};
@@ -128,19 +127,11 @@ fn network() -> impl Strategy<Value = Net> {
         })
 }
 
-/// A fixed seed, so that CI runs the same networks every time; `PROPTEST_CASES` (and
-/// `PROPTEST_RNG_SEED`) widen the search by hand. Known limit, measured with 400 random cases: a
-/// few networks of very small pipes asked for large demands (pressures far below zero at most
-/// junctions) stop with a "did not converge" error naming a junction — never with a wrong
-/// answer: the solver's last gate checks every relation against its exact curve.
-fn config() -> Config {
-    let cases = std::env::var("PROPTEST_CASES").ok().and_then(|s| s.parse().ok()).unwrap_or(64);
-    let rng_seed = std::env::var("PROPTEST_RNG_SEED")
-        .ok()
-        .and_then(|s| s.parse().ok())
-        .map_or(RngSeed::Fixed(20_261_202), RngSeed::Fixed);
-    Config { cases, failure_persistence: None, rng_seed, ..Config::default() }
-}
+// The property tests below run from a fixed seed (`common::property_config`). Known limit,
+// measured with 400 random cases: a few networks of very small pipes asked for large demands
+// (pressures far below zero at most junctions) stop with a "did not converge" error naming a
+// junction — never with a wrong answer: the solver's last gate checks every relation against its
+// exact curve.
 
 fn solve(m: &Model) -> Solution {
     ringmain_core::solve(m).unwrap_or_else(|e| panic!("{e}"))
@@ -179,7 +170,7 @@ fn check_relations(net: &Net, m: &Model, s: &Solution) -> Result<(), TestCaseErr
 }
 
 proptest! {
-    #![proptest_config(config())]
+    #![proptest_config(common::property_config(64))]
 
     #[test]
     fn relations_and_mass_balance_hold(net in network()) {

@@ -31,8 +31,9 @@
 //! The number of cases is 64 per property (set `PROPTEST_CASES` to run more). Failing cases are
 //! not persisted to files; proptest prints the minimal failing network.
 
+mod common;
+
 use proptest::prelude::*;
-use proptest::test_runner::Config;
 use ringmain_core::model::{HydraulicOptions, WaterSpec};
 use ringmain_core::{solve, HeadLossLaw, Link, LinkKind, LinkStatus, Model, Node, Pipe, Solution, UnitSystem};
 use std::f64::consts::PI;
@@ -235,11 +236,6 @@ fn network() -> impl Strategy<Value = Net> {
         })
 }
 
-fn config() -> Config {
-    let cases = std::env::var("PROPTEST_CASES").ok().and_then(|s| s.parse().ok()).unwrap_or(64);
-    Config { cases, failure_persistence: None, ..Config::default() }
-}
-
 // --- Independent head-loss laws ---------------------------------------------------------------
 
 /// Colebrook–White, `1/√f = −2 log10(ε/(3.7 D) + 2.51/(Re √f))`, by fixed-point iteration on
@@ -372,7 +368,7 @@ fn permutation(n: usize, seed: u64) -> Vec<usize> {
 // --- Properties -------------------------------------------------------------------------------
 
 proptest! {
-    #![proptest_config(config())]
+    #![proptest_config(common::property_config(64))]
 
     /// (a) Σ inflow − Σ outflow = demand at every junction.
     #[test]

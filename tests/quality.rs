@@ -423,7 +423,7 @@ fn random_model(seed: u64, mixing: &str) -> String {
 }
 
 proptest! {
-    #![proptest_config(ProptestConfig { cases: 16, ..ProptestConfig::default() })]
+    #![proptest_config(common::property_config(16))]
 
     /// Stored at the start + in + boosted + reacted = out + stored at the end, for every
     /// constituent, on random networks with each tank mixing model.

@@ -2,6 +2,8 @@
 //! order, events at their exact times, patterns, controls, limits and the volume balance.
 
 use proptest::prelude::*;
+
+mod common;
 use ringmain_core::model::time::HOUR;
 use ringmain_core::simulate::{simulate_with, EventKind, Run, SimulateOptions};
 use ringmain_core::{read_str, simulate, Format, Model};
@@ -563,7 +565,7 @@ diameter = 5
 }
 
 proptest! {
-    #![proptest_config(ProptestConfig { cases: 12, .. ProptestConfig::default() })]
+    #![proptest_config(common::property_config(12))]
 
     #[test]
     fn volume_balance_holds_on_random_networks(

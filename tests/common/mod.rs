@@ -36,3 +36,14 @@ pub fn scratch(name: &str) -> PathBuf {
     std::fs::create_dir_all(&dir).expect("create scratch directory");
     dir
 }
+
+/// The configuration of every property test: `cases` cases from a fixed seed, so that CI runs
+/// the same cases every time (a random seed once failed CI on a network nobody had run before;
+/// it is now a named test in tests/device_properties.rs). `PROPTEST_CASES` and
+/// `PROPTEST_RNG_SEED` widen the search by hand; failures are printed, not saved to files.
+pub fn property_config(cases: u32) -> proptest::test_runner::Config {
+    use proptest::test_runner::{Config, RngSeed};
+    let cases = std::env::var("PROPTEST_CASES").ok().and_then(|s| s.parse().ok()).unwrap_or(cases);
+    let seed = std::env::var("PROPTEST_RNG_SEED").ok().and_then(|s| s.parse().ok()).unwrap_or(20_261_202);
+    Config { cases, failure_persistence: None, rng_seed: RngSeed::Fixed(seed), ..Config::default() }
+}

@@ -18,6 +18,12 @@ pub(super) const MODE_FIXED_FLOW: u8 = 2;
 pub(super) const MODE_PINNED: u8 = 3;
 /// The bits of the four modes above.
 pub(super) const MODE_MASK: u8 = 3;
+/// Share of a bypass's conductance an active pressure valve takes back in the matrix (see
+/// `update_links`). All of it is exact Newton, but it leaves the matrix singular when the node
+/// beyond the valve is fed by nothing but the valve and its bypass (the valve's split of that
+/// node's demand is then free); nine tenths keep the matrix definite and cut the lag's rate
+/// tenfold.
+const BYPASS_SHARE: f64 = 0.9;
 /// Its `from` end is a free unknown.
 pub(super) const FREE_FROM: u8 = 4;
 /// Its `to` end is a free unknown.
@@ -113,7 +119,15 @@ impl Solver {
     /// Links on their law follow `Q = c + p (δ_from − δ_to)`. An active flow-control valve holds
     /// its setting. An active pressure valve's flow is whatever the mass balance of the node it
     /// pins requires; that flow enters the other node's balance at the next step, so at
-    /// convergence both balances hold.
+    /// convergence both balances hold. Links that join the same two nodes as the valve (a bypass
+    /// pipe, a standby valve opened by hand) enter that balance exactly: whatever they carry
+    /// between the two nodes the valve gives back, so the valve takes their conductance with the
+    /// opposite sign and the other node's row no longer feels them — nine tenths of them
+    /// ([`BYPASS_SHARE`]). Without it the lagged valve flow is a fixed-point iteration whose rate
+    /// is the bypass's share of that node's conductance (slow when the bypass dominates); links
+    /// reaching the pinned node from elsewhere keep the lag, which the stopping test of
+    /// `iterate` waits out. Only the matrix changes, never the equations a converged answer
+    /// meets.
     ///
     /// With `damping` α below one (see `iterate`) each link moves by α of its Newton step
     /// (`Q + α (Q_newton − Q)`), the head corrections having been scaled by α already.
@@ -209,7 +223,9 @@ impl Solver {
                 sum_q += q.abs();
                 self.pinned[v].change = (q - self.cq[core]).abs();
                 self.cq[core] = q;
-                self.cc[core] = q;
+                let (p, c) = self.bypass(core, link, node);
+                self.cp[core] = -p;
+                self.cc[core] = q + sign * c;
                 self.scatter(core);
             }
         }
@@ -217,6 +233,36 @@ impl Solver {
         // total demand, or an absolute floor of 1 L/s, so that round-off in flows of nothing
         // does not count as change.
         (sum_dq / sum_q.max(self.demand_scale), residual)
+    }
+
+    /// For the active pressure valve at core position `core` (link `link`, pinning `node`):
+    /// [`BYPASS_SHARE`] of the summed conductance `Σ p` of the links on their law joining the same
+    /// two nodes, and of the summed change `Σ ±(c − Q)` of their flows at the next step's zero
+    /// correction (+ for a link leaving the pinned node). Zero when the other node's head is not
+    /// an unknown.
+    fn bypass(&self, core: usize, link: u32, node: usize) -> (f64, f64) {
+        let c = &self.structure.core[core];
+        let mode = self.mode[core];
+        let (other, free) =
+            if c.from as usize == node { (c.to, mode & FREE_TO != 0) } else { (c.from, mode & FREE_FROM != 0) };
+        if !free {
+            return (0.0, 0.0);
+        }
+        let (mut p, mut change) = (0.0, 0.0);
+        for &j in self.structure.adjacency.of(node) {
+            let position = self.structure.core_position[j as usize];
+            if j == link || position == NONE || self.mode[position as usize] & MODE_MASK != MODE_LAW {
+                continue;
+            }
+            let (i, cj) = (position as usize, &self.structure.core[position as usize]);
+            let leaves = cj.from as usize == node;
+            if (if leaves { cj.to } else { cj.from }) != other {
+                continue;
+            }
+            p += self.cp[i];
+            change += if leaves { 1.0 } else { -1.0 } * (self.cc[i] - self.cq[i]);
+        }
+        (BYPASS_SHARE * p, BYPASS_SHARE * change)
     }
 
     /// Starts filling the matrix and right-hand side of the head corrections δ,
