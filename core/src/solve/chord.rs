@@ -184,7 +184,7 @@ impl Solver {
         let denominator = 1.0 - p * self.chord_w.iter().map(|z| z * z).sum::<f64>();
         // A closure that left the matrix singular would cut junctions off, which the comparison
         // of free unknowns above has excluded; the guard keeps round-off out.
-        if !(denominator > 1e-9) {
+        if denominator.is_nan() || denominator <= 1e-9 {
             return Chord::Off;
         }
         Chord::On(Some(RankOne { p, denominator }))
@@ -272,7 +272,7 @@ impl Taylor {
     #[inline]
     fn at(&self, q: f64) -> Option<f64> {
         let d = q - self.q0;
-        (d.abs() <= TAYLOR_REACH * self.q0.abs()).then(|| self.h0 + d * (self.g0 + self.half_h2 * d))
+        (d.abs() <= TAYLOR_REACH * self.q0.abs()).then_some(self.h0 + d * (self.g0 + self.half_h2 * d))
     }
 }
 

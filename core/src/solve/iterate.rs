@@ -142,7 +142,9 @@ impl Solver {
             // chord contracts too slowly (or too long).
             let mut share = 1.0;
             if chord_step {
-                let stalled = chord_steps > 1 && !(head_change <= CHORD_CONTRACTION * chord_change);
+                // (A NaN change stalls it too.)
+                let stalled =
+                    chord_steps > 1 && (head_change.is_nan() || head_change > CHORD_CONTRACTION * chord_change);
                 if stalled || chord_steps >= CHORD_STEPS {
                     chord = Chord::Off;
                 }
