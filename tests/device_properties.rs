@@ -479,3 +479,31 @@ fn pressure_valves_with_a_bypass_settle_with_water_conserved() {
     }
     assert!(failures.is_empty(), "{}", failures.join("\n"));
 }
+
+/// Fault: the same property test, widened by hand (seed 20, 3,000 cases): two pressure-sustaining
+/// valves in series, the first unable to reach its setting (it closes), the second holding its
+/// upstream junction, which the loop then feeds.
+#[test]
+fn two_sustaining_valves_in_series_the_first_unable_to_reach_its_setting_settle() {
+    let c = Case {
+        junctions: vec![
+            (36.12102822463219, 0.0),
+            (0.0, 4.0277447549067595),
+            (0.0, 1.5045772379631295),
+            (0.0, 4.819309161991271),
+            (0.0, 2.3640156856528),
+            (0.0, 0.03507054838630652),
+        ],
+        tree_parent: vec![0, 0, 1, 1, 2],
+        loops: vec![(1, 2)],
+        devices: vec![(2, 2, 0.05, 0.12933761293381918), (0, 2, 0.9284093808786441, 4.663471733908654)],
+        reservoir_heads: vec![89.43491615499232],
+        pump: None,
+    };
+    let m = build(&c);
+    match solve(&m) {
+        Ok(s) => check_conditions(&m, &s).unwrap(),
+        Err(SolveError::StatusCycle { links, .. }) => assert!(!links.is_empty()),
+        Err(e) => panic!("{e}"),
+    }
+}

@@ -6,7 +6,7 @@ References, named beside each check:
   entrance 0.5 and the exit 1.0 are common practice.
 * Friction factor: Colebrook-White solved here with `scipy.optimize.brentq`.
 * Water: `iapws` (IAPWS-IF97 density and saturation pressure).
-* Air: ISO 2533:1975 standard atmosphere, table values (from memory).
+* Air: ISO 2533:1975 standard atmosphere, computed by fluids' ATMOSPHERE_1976 (the same model).
 * Motor ratings: IEC 60072-1 preferred rated outputs (from memory).
 
 The scenarios are invented. Results are only as good as the model and its data; designs must be
@@ -20,6 +20,7 @@ import math
 
 import pytest
 from fluids import fittings as F
+from fluids.atmosphere import ATMOSPHERE_1976
 from fluids.friction import Colebrook
 from iapws import IAPWS97
 from iapws.iapws97 import _PSat_T
@@ -281,10 +282,11 @@ def test_system_curve_operating_point_npsh_and_motor(tmp_path, ringmain_json):
     assert [p[0] for p in got["system_curve"]] == pytest.approx([5.0 * i for i in range(17)])
     for q_ls, head in got["system_curve"]:
         assert head == pytest.approx(system_head(q_ls * 1e-3, nu), rel=1e-6, abs=1e-9), f"Q = {q_ls} L/s"
-    # ISO 2533: 84 556 Pa at 1 500 m geopotential (table value, from memory); the site's 1 500 m
-    # geometric is 0.35 m lower in geopotential, about 4 Pa more.
-    p_atm = 84_556.0
-    assert got["atmospheric_pressure_kpa"] * 1e3 == pytest.approx(p_atm, abs=10.0)
+    # ISO 2533 standard atmosphere (identical to the U.S. Standard Atmosphere 1976 below 32 km),
+    # computed by fluids' ATMOSPHERE_1976 at the site's geometric elevation (84 559.7 Pa at
+    # 1 500 m; 84 556 Pa is the table value at 1 500 m geopotential).
+    p_atm = ATMOSPHERE_1976(Z=SITE).P
+    assert got["atmospheric_pressure_kpa"] * 1e3 == pytest.approx(p_atm, abs=1.0)
     p_atm = got["atmospheric_pressure_kpa"] * 1e3
     assert got["vapour_pressure_kpa"] * 1e3 == pytest.approx(p_v, rel=1e-9)
     for point in got["operating_points"]:
@@ -322,3 +324,13 @@ def test_vapour_pressure_against_iapws(ringmain_json, celsius):
     got = ringmain_json("water-properties", "--temperature", repr(celsius))
     want = _PSat_T(celsius + ZERO_C) * 1e6  # IF97 region 4 saturation pressure (iapws), Pa
     assert got["vapour_pressure"] == pytest.approx(want, rel=1e-10)
+
+
+@pytest.mark.parametrize("site", [-100.0, 0.0, 400.0, 1500.0, 2800.0, 4000.0])
+def test_atmospheric_pressure_follows_the_standard_atmosphere_at_every_site(tmp_path, ringmain_json, site):
+    # ISO 2533 / U.S. Standard Atmosphere 1976, computed by fluids' ATMOSPHERE_1976 at the
+    # geometric elevation of the site (the class of the check above, across the elevations
+    # where water is pumped).
+    path = write_json_model(tmp_path, station_model(site))
+    got = ringmain_json("duty", path, "--pump", "PU-1", "--flows", "0:80:5", "--speeds", "1.0")
+    assert got["atmospheric_pressure_kpa"] * 1e3 == pytest.approx(ATMOSPHERE_1976(Z=site).P, abs=1.0)

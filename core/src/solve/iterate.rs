@@ -15,6 +15,11 @@ use std::time::Instant;
 /// Largest mass residual of an answer, relative to the flow scale of the solve.
 const MASS_GATE: f64 = 1e-7;
 
+/// Largest head change (m) the stopping test puts down to the floating-point floor of the heads
+/// (heads of a network are at most some thousand metres; their round-off, even at a million
+/// unknowns, is many orders of magnitude below this).
+const FLOOR_HEAD_CHANGE: f64 = 1.0;
+
 /// Full Newton steps after a change of device states before damped ones (with relations of
 /// pressure only; see `iterate`).
 const DAMPING_AFTER: u32 = 12;
@@ -200,8 +205,14 @@ impl Solver {
             let heads_settled = head_change <= head_tolerance
                 // Heads that still move by more than a tight tolerance while every energy
                 // equation already holds to it (possible when the tolerance is near the
-                // floating-point floor of a large network): the energy residual decides.
-                || (flow_change <= flow_tolerance && iterations > 1 && energy_residual <= head_tolerance);
+                // floating-point floor of a large network): the energy residual decides. Not
+                // after a step of a metre or more, which no floor explains (a step that large, just
+                // after a change of device states, leaves the round-off of its own size in the
+                // balances; the next step clears it).
+                || (flow_change <= flow_tolerance
+                    && iterations > 1
+                    && energy_residual <= head_tolerance
+                    && head_change < FLOOR_HEAD_CHANGE);
             // An active pressure valve's flow enters the other node's balance one step late (see
             // `update_links`): its last change is that node's mass residual, which must be a tenth
             // of the last gate's before the iteration may stop.
