@@ -68,6 +68,7 @@ fn print_split(n: usize, model: &Model) {
                 forest: b.forest.min(s.forest),
                 results: b.results.min(s.results),
                 iterations: s.iterations,
+                factorizations: s.factorizations,
             },
         });
     }

@@ -66,6 +66,110 @@ fn each_closure_of_the_sweep_equals_a_fresh_solve_of_the_closed_model() {
     }
 }
 
+/// Every kind of closure a batch near a base case meets (its first steps are chord steps on
+/// the base case's factor; see `solve/chord.rs`), each compared with a fresh solve of the closed
+/// model: dead-end pipes (their subtree cut off, the core's matrix unchanged), grid pipes (a
+/// loop opened: a rank-one change), the mains that join a tank or a reservoir (a source cut
+/// off), and closures of devices and of pipes next to them: check-valve pipes (closures that
+/// reverse a flow make them shut: device states that differ from the base case's) and a
+/// pressure-reducing valve that regulates in the base case (an active valve: no chord steps).
+#[test]
+fn every_kind_of_closure_in_a_batch_equals_a_fresh_solve_of_the_closed_model() {
+    use ringmain_core::model::{Valve, ValveType};
+    let mut m = network(500, 5);
+    let base_solution = solve(&m).expect("the generated network solves");
+    // Grid pipes: both ends with three links or more.
+    let mut degree = vec![0usize; m.nodes().len()];
+    for l in m.links() {
+        degree[l.from] += 1;
+        degree[l.to] += 1;
+    }
+    let grid: Vec<usize> = (0..m.links().len())
+        .filter(|&k| {
+            let l = &m.links()[k];
+            matches!(l.kind, LinkKind::Pipe(_)) && degree[l.from] >= 3 && degree[l.to] >= 3
+        })
+        .collect();
+    // Every 20th grid pipe gets a check valve, oriented with its base flow.
+    for &k in grid.iter().step_by(20) {
+        let mut link = m.links()[k].clone();
+        if base_solution.flow[k] < 0.0 {
+            std::mem::swap(&mut link.from, &mut link.to);
+        }
+        if let LinkKind::Pipe(p) = &mut link.kind {
+            p.check_valve = true;
+        }
+        m.replace_link(k, link).expect("a check-valve pipe");
+    }
+    // The pipe into a dead-end branch of two or more junctions (fed through it alone) becomes a
+    // pressure-reducing valve, set 3 m below the pressure it had downstream: it regulates.
+    let analysed = Solver::new(&m).expect("analysis");
+    let trees = &analysed.structure().trees;
+    let in_tree = &analysed.structure().in_tree;
+    let k = trees
+        .iter()
+        .find(|t| {
+            !in_tree[t.parent as usize]
+                && trees.iter().any(|u| u.parent == t.child)
+                && base_solution.flow[t.link as usize].abs() > 1e-4
+        })
+        .map(|t| t.link as usize)
+        .expect("a pipe into a branch");
+    let mut link = m.links()[k].clone();
+    if base_solution.flow[k] < 0.0 {
+        std::mem::swap(&mut link.from, &mut link.to);
+    }
+    let diameter = link.diameter().expect("a pipe has a diameter");
+    let setting = base_solution.pressure[link.to] - 3.0;
+    link.kind = LinkKind::Valve(Valve {
+        valve: ValveType::PressureReducing,
+        diameter,
+        setting,
+        minor_loss: 0.0,
+        automatic: true,
+    });
+    m.replace_link(k, link).expect("a pressure-reducing valve");
+    let prv = k;
+
+    let conditions = Conditions::from_model(&m);
+    let mut solver = Solver::new(&m).expect("analysis");
+    let cold = SolveOptions::from_model(&m);
+    let base = solver.solve(&m, &conditions, &cold).expect("the base solves");
+    assert_eq!(base.link_state[prv], ringmain_core::LinkState::Active, "the valve must regulate in the base case");
+    let structure = solver.structure();
+    let links: Vec<usize> = (0..m.links().len()).collect();
+    let dead_ends = links.iter().filter(|&&k| structure.core_position[k] == u32::MAX).count();
+    let source_mains = links
+        .iter()
+        .filter(|&&k| {
+            let l = &m.links()[k];
+            m.nodes()[l.from].fixed_head().is_some() || m.nodes()[l.to].fixed_head().is_some()
+        })
+        .count();
+    assert!(dead_ends > 20 && source_mains >= 2, "{dead_ends} dead-end pipes, {source_mains} source mains");
+    let scenarios: Vec<Scenario> =
+        links.iter().map(|&k| Scenario { statuses: vec![(k, LinkStatus::Closed)], ..Scenario::default() }).collect();
+    let warm = SolveOptions { warm_start: true, ..cold };
+    let batch = solver.solve_batch(&m, &conditions, &warm, &scenarios);
+    let mut state_changes = 0;
+    for (&k, got) in links.iter().zip(&batch) {
+        let mut closed = m.clone();
+        closed.set_status(k, LinkStatus::Closed).expect("closes");
+        let what = format!("link {} closed", m.links()[k].id);
+        match (got, solve(&closed)) {
+            (Ok(got), Ok(want)) => {
+                assert_same(got, &want, &what);
+                state_changes += usize::from(got.link_state.iter().zip(&base.link_state).any(|(a, b)| {
+                    a != b && *a != ringmain_core::LinkState::Closed && *a != ringmain_core::LinkState::Disconnected
+                }));
+            }
+            (Err(_), Err(_)) => {}
+            (got, want) => panic!("{what}: batch {:?} vs fresh {:?}", got.as_ref().err(), want.err()),
+        }
+    }
+    assert!(state_changes > 0, "some closure must change a device's state");
+}
+
 #[test]
 fn every_solving_path_gives_the_answer_of_the_edited_model() {
     let m = network(600, 4);

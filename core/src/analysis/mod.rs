@@ -18,8 +18,11 @@
 //! in which each worker thread changes its own copy of the conditions (no model is cloned) and
 //! evaluates the criteria of each closure as soon as it is solved (no solution is kept). Every
 //! closure starts from the base case's solution (a warm start), which is close to the answer
-//! since one pipe differs, so results agree with a cold-started solve of the closed model to the
-//! solver's tolerances, not bit for bit, and are the same from run to run.
+//! since one pipe differs, and takes its first steps on the base case's Cholesky factor (chord
+//! steps, the closed pipe's rank-one change by Sherman–Morrison: see `solve/chord.rs`), with
+//! Newton steps where the chord contracts too slowly; results agree with a cold-started solve of
+//! the closed model to the solver's tolerances, not bit for bit, and are the same from run to
+//! run.
 //!
 //! A node *loses supply* in a closure when a fixed head reached it in the base scenario and none
 //! does with the pipe closed.

@@ -9,7 +9,9 @@
 //! every scenario starts from that solver's last solution, whichever thread takes it: scenarios
 //! near the base case then converge in a few iterations, and every answer is the same from run to
 //! run (it does not depend on which scenario a thread solved before). Without either, every
-//! scenario starts cold.
+//! scenario starts cold. Warm scenarios also share the base case's factor: their first steps
+//! are chord steps on it (see `chord.rs`), and each ends with Newton steps and the solver's own
+//! convergence test.
 
 use super::{Conditions, Solution, SolveOptions, Solver};
 use crate::error::{printable, Element, ModelError, SolveError};
@@ -192,12 +194,16 @@ impl Solver {
         }
         let warm = options.warm_start && base.has_previous;
         let scenario_options = SolveOptions { warm_start: warm, ..*options };
+        // Warm scenarios start at the base case's solution, where its factor is the first
+        // Newton step's (see `chord.rs`).
+        let chord = if warm { base.chord_base() } else { None };
         scenarios
             .par_iter()
             .enumerate()
             .map_init(
                 || {
                     let mut solver = base.clone();
+                    solver.use_chord(chord.clone());
                     let local = conditions.clone();
                     // The copy has its own identity; the base solver's laws, if they are up to
                     // date with `conditions`, are up to date with it too.

@@ -89,4 +89,15 @@ impl Factor {
         let rhs = MatMut::from_column_major_slice_mut(rhs, structure.n, 1);
         llt.solve_in_place_with_conj(Conj::No, rhs, Par::Seq, MemStack::new(&mut self.mem));
     }
+
+    /// The values of the current factor.
+    pub fn l_values(&self) -> &[f64] {
+        &self.l_values
+    }
+
+    /// The values of the factor, to write (tests).
+    #[cfg(test)]
+    pub(crate) fn l_values_mut(&mut self) -> &mut [f64] {
+        &mut self.l_values
+    }
 }

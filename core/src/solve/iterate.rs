@@ -3,6 +3,7 @@
 //! converge.
 
 use super::assemble::*;
+use super::chord::{Chord, CHORD_CONTRACTION, CHORD_MARGIN, CHORD_STEPS};
 use super::solution::energy_residuals;
 use super::status::{self, LinkState, StatusTracker};
 use super::structure::NONE;
@@ -44,6 +45,11 @@ impl Solver {
         let mut flow_change = f64::INFINITY;
         let mut states_stale = true;
         let mut since_change = 0u32;
+        // Chord steps on a base case's factor (see `chord.rs`): whether the next step is one,
+        // how many were taken, and the largest head correction of the last one.
+        let mut chord = Chord::Off;
+        let mut chord_steps = 0u32;
+        let mut chord_change = f64::INFINITY;
 
         loop {
             if states_stale {
@@ -54,14 +60,19 @@ impl Solver {
                 self.tree_flows();
                 self.timings.forest += clock.elapsed();
                 let clock = Instant::now();
-                // The secant start only on a cold start's first step.
-                self.linearise(iterations < SECANT_STEPS && !warm);
-                self.begin_assembly();
-                for i in 0..self.structure.core.len() {
-                    self.scatter(i);
+                // Chord steps from the base case's point take its linearisation as it is;
+                // anything else is linearised here.
+                chord = if chord_steps < CHORD_STEPS { self.chord_start() } else { Chord::Off };
+                if chord == Chord::Off {
+                    // The secant start only on a cold start's first step.
+                    self.linearise(iterations < SECANT_STEPS && !warm);
+                    self.begin_assembly();
+                    for i in 0..self.structure.core.len() {
+                        self.scatter(i);
+                    }
+                    self.scatter_relations();
+                    self.end_assembly();
                 }
-                self.scatter_relations();
-                self.end_assembly();
                 self.timings.assembly += clock.elapsed();
                 states_stale = false;
             }
@@ -87,20 +98,29 @@ impl Solver {
                     continue;
                 }
             }
-            let assembled = Instant::now();
-            let factored = self.factor.factor(&self.structure);
-            let clock = Instant::now();
-            self.timings.factorization += clock - assembled;
-            factored.map_err(|e| SolveError::Numerical {
-                iteration: iterations,
-                detail: match self.structure.node_of_unknown.get(e.unknown) {
-                    Some(&node) => format!("pivot of node '{}' is not positive", nodes[node as usize].id),
-                    None => "a pivot is not positive".to_owned(),
-                },
-            })?;
-            self.factor.solve(&self.structure, &mut self.rhs);
+            let chord_step = chord != Chord::Off;
+            if let Chord::On(rank_one) = chord {
+                let clock = Instant::now();
+                self.chord_solve(rank_one);
+                chord_steps += 1;
+                self.timings.solves += clock.elapsed();
+            } else {
+                let assembled = Instant::now();
+                let factored = self.factor.factor(&self.structure);
+                let clock = Instant::now();
+                self.timings.factorization += clock - assembled;
+                self.timings.factorizations += 1;
+                factored.map_err(|e| SolveError::Numerical {
+                    iteration: iterations,
+                    detail: match self.structure.node_of_unknown.get(e.unknown) {
+                        Some(&node) => format!("pivot of node '{}' is not positive", nodes[node as usize].id),
+                        None => "a pivot is not positive".to_owned(),
+                    },
+                })?;
+                self.factor.solve(&self.structure, &mut self.rhs);
+                self.timings.solves += clock.elapsed();
+            }
             let solved = Instant::now();
-            self.timings.solves += solved - clock;
             std::mem::swap(&mut self.rhs, &mut self.delta);
             // A held head (`hold.rs`): the draw's step, and its share of the corrections.
             let draw_step = self.hold_step(model, iterations)?;
@@ -123,17 +143,40 @@ impl Solver {
                     self.unknown_head[u] += *delta;
                 }
             }
+            // A chord step after the first (which is a Newton step) converges linearly: it may
+            // end the iteration only if it contracted by CHORD_CONTRACTION at least, and with its
+            // changes within CHORD_MARGIN of the tolerances. Newton steps take over when the
+            // chord contracts too slowly (or too long).
+            let mut share = 1.0;
+            if chord_step {
+                // (A NaN change stalls it too.)
+                let stalled =
+                    chord_steps > 1 && (head_change.is_nan() || head_change > CHORD_CONTRACTION * chord_change);
+                if stalled || chord_steps >= CHORD_STEPS {
+                    chord = Chord::Off;
+                }
+                if chord_steps > 1 {
+                    share = if stalled { 0.0 } else { CHORD_MARGIN };
+                }
+                chord_change = head_change;
+            }
             if iterations == 1 {
                 // No previous iterate to compare with.
                 head_change = f64::INFINITY;
             }
             self.hold_apply(damping * draw_step);
-            // The next step's matrix is filled as the new flows are computed.
-            self.begin_assembly();
-            let relations = self.update_relations(damping);
-            let (change, energy_residual) =
-                self.update_links(model, !warm && iterations < SECANT_STEPS, relations, damping);
-            self.end_assembly();
+            let (change, energy_residual) = if chord == Chord::Off {
+                // The next step's matrix is filled as the new flows are computed.
+                self.begin_assembly();
+                let relations = self.update_relations(damping);
+                let secant = !warm && iterations < SECANT_STEPS;
+                let result = self.update_links(model, secant, relations, damping);
+                self.end_assembly();
+                result
+            } else {
+                // The next step is a chord step: its matrix is the base case's.
+                self.chord_update()
+            };
             flow_change = change.max(self.hold_change());
             self.timings.assembly += solved.elapsed();
             if !finite || !flow_change.is_finite() {
@@ -161,22 +204,23 @@ impl Solver {
                     detail: "heads or flows became NaN".into(),
                 });
             }
-            let heads_settled = head_change <= options.head_tolerance
+            let (head_tolerance, flow_tolerance) = (share * options.head_tolerance, share * options.flow_tolerance);
+            let heads_settled = head_change <= head_tolerance
                 // Heads that still move by more than a tight tolerance while every energy
                 // equation already holds to it (possible when the tolerance is near the
                 // floating-point floor of a large network): the energy residual decides. Not
                 // after a step of a metre or more, which no floor explains (a step that large, just
                 // after a change of device states, leaves the round-off of its own size in the
                 // balances; the next step clears it).
-                || (flow_change <= options.flow_tolerance
+                || (flow_change <= flow_tolerance
                     && iterations > 1
-                    && energy_residual <= options.head_tolerance
+                    && energy_residual <= head_tolerance
                     && head_change < FLOOR_HEAD_CHANGE);
             // An active pressure valve's flow enters the other node's balance one step late (see
             // `update_links`): its last change is that node's mass residual, which must be a tenth
             // of the last gate's before the iteration may stop.
             let lag_settled = self.pinned.iter().all(|v| v.change <= 0.1 * MASS_GATE * self.demand_scale);
-            if heads_settled && flow_change <= options.flow_tolerance && lag_settled {
+            if heads_settled && flow_change <= flow_tolerance && lag_settled {
                 if !tracker.has_devices() {
                     break;
                 }

@@ -84,6 +84,7 @@
 
 mod assemble;
 pub mod batch;
+mod chord;
 pub mod conditions;
 pub mod factor;
 pub mod finite;
@@ -239,6 +240,10 @@ pub struct Solver {
     stack: Vec<u32>,
     /// A head held by a draw the solve finds ([`Solver::solve_holding`]), with its scratch.
     hold: Option<Box<hold::Hold>>,
+    /// The base case's factor for chord steps (batches near a base case; see `chord.rs`).
+    chord: Option<Arc<chord::ChordBase>>,
+    /// `A₀⁻¹ u` of the link a chord iteration closes.
+    chord_w: Vec<f64>,
     timings: Timings,
     analysis_time: Duration,
 }
@@ -294,6 +299,8 @@ impl Solver {
             demand_scale: 0.0,
             stack: Vec::new(),
             hold: None,
+            chord: None,
+            chord_w: Vec::new(),
             timings: Timings { analysis: analysis_time, ..Timings::default() },
             analysis_time,
             structure,

@@ -24,6 +24,9 @@ pub struct Timings {
     pub results: Duration,
     /// Newton iterations done.
     pub iterations: u32,
+    /// Numeric factorizations done (fewer than the iterations when chord steps reused a base
+    /// case's factor).
+    pub factorizations: u32,
 }
 
 impl Timings {
