@@ -211,6 +211,22 @@ proptest! {
     }
 }
 
+/// Solves `m` and checks every device's conditions; a failure of either goes into `failures`
+/// under `label`, and only a solution (even one whose conditions failed) comes back.
+fn settled(m: &Model, label: &str, failures: &mut Vec<String>) -> Option<ringmain_core::Solution> {
+    let s = match solve(m) {
+        Ok(s) => s,
+        Err(e) => {
+            failures.push(format!("{label}: {e}"));
+            return None;
+        }
+    };
+    if let Err(e) = check_conditions(m, &s) {
+        failures.push(format!("{label}: {e}"));
+    }
+    Some(s)
+}
+
 /// The devices of the pair tests, by name: check valve, pump, and the four valves.
 const PAIR_DEVICES: [&str; 6] =
     ["check valve", "pump", "pressure-reducing", "pressure-sustaining", "flow-control", "throttle"];
@@ -295,16 +311,7 @@ fn pressure_reducing_valves_in_parallel_hold_the_higher_setting_and_every_device
                         if series { "in series" } else { "side by side" }
                     );
                     let m = pair_model(first, second, series, far_head, main_diameter);
-                    let s = match solve(&m) {
-                        Ok(s) => s,
-                        Err(e) => {
-                            failures.push(format!("{label}: {e}"));
-                            continue;
-                        }
-                    };
-                    if let Err(e) = check_conditions(&m, &s) {
-                        failures.push(format!("{label}: {e}"));
-                    }
+                    let Some(s) = settled(&m, &label, &mut failures) else { continue };
                     for (i, n) in m.nodes().iter().enumerate() {
                         if n.fixed_head().is_some() {
                             continue;
@@ -457,16 +464,7 @@ fn pressure_valves_with_a_bypass_settle_with_water_conserved() {
                 let far = m.add_node(Node::reservoir("Far", 40.0)).unwrap();
                 add(&mut m, "far main", c, far, pipe(1000.0, 0.15, 120.0, false));
                 let label = format!("{valve:?}, bypass {bypass} m, loop {loop_diameter} m");
-                let s = match solve(&m) {
-                    Ok(s) => s,
-                    Err(e) => {
-                        failures.push(format!("{label}: {e}"));
-                        continue;
-                    }
-                };
-                if let Err(e) = check_conditions(&m, &s) {
-                    failures.push(format!("{label}: {e}"));
-                }
+                let Some(s) = settled(&m, &label, &mut failures) else { continue };
                 // A tenth of the solver's last gate (1e-7 of the total demand asked, 35 L/s).
                 if s.max_mass_residual > 1e-8 * 0.035 {
                     failures.push(format!("{label}: mass residual {} m3/s", s.max_mass_residual));

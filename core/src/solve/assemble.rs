@@ -1,7 +1,7 @@
 //! Assembly: each core link's linearisation (`p = 1/g`, `c`) and its scatter into the head
 //! matrix and right-hand side, in one pass per iteration (see the [solver's docs](super)).
 
-use super::structure::NONE;
+use super::structure::{CoreLink, NONE};
 use super::{links, Pinned, Solver};
 use crate::model::Model;
 use crate::physics::outflow::Step;
@@ -45,6 +45,20 @@ pub(super) struct HotLaw {
     pub minor: f64,
     /// Smallest slope used in the matrix (see [`LinkLaw::min_slope`](super::LinkLaw::min_slope)).
     pub min_slope: f64,
+}
+
+/// The head correction and the head at each end of core link `c`, `(from, to)`: an unknown's
+/// from `delta` and `unknown_head`; a known head's with a zero correction.
+#[inline]
+pub(super) fn link_ends(c: &CoreLink, delta: &[f64], unknown_head: &[f64], head: &[f64]) -> ((f64, f64), (f64, f64)) {
+    let end = |slot: u32, node: u32| {
+        if slot == NONE {
+            (0.0, head[node as usize])
+        } else {
+            (delta[slot as usize], unknown_head[slot as usize])
+        }
+    };
+    (end(c.slots.from, c.from), end(c.slots.to, c.to))
 }
 
 impl Solver {
@@ -148,17 +162,7 @@ impl Solver {
         for (c, ((hot, &mode), ((cq, cp), cc))) in structure.core.iter().zip(states) {
             match mode & MODE_MASK {
                 MODE_LAW => {
-                    let s = c.slots;
-                    let (d_from, h_from) = if s.from == NONE {
-                        (0.0, head[c.from as usize])
-                    } else {
-                        (delta[s.from as usize], unknown_head[s.from as usize])
-                    };
-                    let (d_to, h_to) = if s.to == NONE {
-                        (0.0, head[c.to as usize])
-                    } else {
-                        (delta[s.to as usize], unknown_head[s.to as usize])
-                    };
+                    let ((d_from, h_from), (d_to, h_to)) = link_ends(c, delta, unknown_head, head);
                     let q = if damping == 1.0 {
                         *cc + *cp * (d_from - d_to)
                     } else {

@@ -33,8 +33,7 @@
 //! solver's own test passes. Either way the answer is the one a fresh solve converges to,
 //! within the tolerances (`tests/conditions.rs` compares them closure by closure).
 
-use super::assemble::{FREE_FROM, FREE_TO, LAW_GENERAL, MODE_CLOSED, MODE_FIXED_FLOW, MODE_LAW, MODE_MASK};
-use super::structure::NONE;
+use super::assemble::{link_ends, FREE_FROM, FREE_TO, LAW_GENERAL, MODE_CLOSED, MODE_FIXED_FLOW, MODE_LAW, MODE_MASK};
 use super::Solver;
 use std::sync::Arc;
 
@@ -297,17 +296,7 @@ impl Solver {
             match mode & MODE_MASK {
                 MODE_LAW => {
                     let c = &structure.core[i];
-                    let s = c.slots;
-                    let (d_from, h_from) = if s.from == NONE {
-                        (0.0, head[c.from as usize])
-                    } else {
-                        (delta[s.from as usize], unknown_head[s.from as usize])
-                    };
-                    let (d_to, h_to) = if s.to == NONE {
-                        (0.0, head[c.to as usize])
-                    } else {
-                        (delta[s.to as usize], unknown_head[s.to as usize])
-                    };
+                    let ((d_from, h_from), (d_to, h_to)) = link_ends(c, delta, unknown_head, head);
                     let p = self.cp[i];
                     let q = self.cc[i] + p * (d_from - d_to);
                     let dh = h_from - h_to;
@@ -380,6 +369,7 @@ fn backward(structure: &super::Structure, l: &[f64], x: &mut [f64]) {
 mod tests {
     use super::*;
     use crate::generate::{generate, NetworkSpec};
+    use crate::solve::structure::NONE;
     use crate::solve::{Conditions, SolveOptions};
 
     /// The chord steps' own triangular solves agree with faer's solve of the same factor (the
