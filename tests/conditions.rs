@@ -44,11 +44,26 @@ fn each_closure_of_the_sweep_equals_a_fresh_solve_of_the_closed_model() {
     // As the sweep solves them: warm from the base case, on every thread.
     let warm = SolveOptions { warm_start: true, ..cold };
     let batch = solver.solve_batch(&m, &conditions, &warm, &scenarios);
-    for (&k, got) in pipes.iter().zip(&batch) {
+    // And as the sweep solves them now: one closure at a time on the base case's factor, with a
+    // Woodbury correction or Newton's steps where the chord is slow (`solve/sweep.rs`).
+    let mut fresh_base = Solver::new(&m).expect("analysis");
+    let (base_result, closures) =
+        fresh_base.solve_closures(&m, &conditions, &cold, &pipes, &mut |_| {}, &|_, r| r.cloned());
+    assert_same(&base_result.expect("the base solves"), &solve(&m).expect("the base solves"), "base");
+    for ((&k, got), swept) in pipes.iter().zip(&batch).zip(&closures) {
         let mut closed = m.clone();
         closed.set_status(k, LinkStatus::Closed).expect("closes");
         let want = solve(&closed).expect("the closed model solves");
-        assert_same(got.as_ref().expect("the closure solves"), &want, &format!("pipe {} closed", m.links()[k].id));
+        let what = format!("pipe {} closed", m.links()[k].id);
+        assert_same(got.as_ref().expect("the closure solves"), &want, &what);
+        let swept = swept.as_ref().expect("the closure solves");
+        assert_same(swept, &want, &format!("{what}, one closure at a time"));
+        for (a, b) in swept.pressure.iter().zip(&want.pressure) {
+            assert!((a - b).abs() <= 1e-6 || (a.is_nan() && b.is_nan()), "{what}: pressure {a} vs {b}");
+        }
+        for (a, b) in swept.velocity.iter().zip(&want.velocity) {
+            assert!((a - b).abs() <= 1e-7 || (a.is_nan() && b.is_nan()), "{what}: velocity {a} vs {b}");
+        }
     }
     // And the sweep's verdicts are those of single runs of the closed models.
     let criteria = Criteria { min_pressure: Some(25.0), ..Criteria::default() };
@@ -151,11 +166,19 @@ fn every_kind_of_closure_in_a_batch_equals_a_fresh_solve_of_the_closed_model() {
         links.iter().map(|&k| Scenario { statuses: vec![(k, LinkStatus::Closed)], ..Scenario::default() }).collect();
     let warm = SolveOptions { warm_start: true, ..cold };
     let batch = solver.solve_batch(&m, &conditions, &warm, &scenarios);
+    // One closure at a time as the sweep solves them (devices in the base case: every closure
+    // takes the general solve from the base case's solution).
+    let (_, one_by_one) = solver.solve_closures(&m, &conditions, &cold, &links, &mut |_| {}, &|_, r| r.cloned());
     let mut state_changes = 0;
-    for (&k, got) in links.iter().zip(&batch) {
+    for ((&k, got), swept) in links.iter().zip(&batch).zip(&one_by_one) {
         let mut closed = m.clone();
         closed.set_status(k, LinkStatus::Closed).expect("closes");
         let what = format!("link {} closed", m.links()[k].id);
+        match (swept, &solve(&closed)) {
+            (Ok(got), Ok(want)) => assert_same(got, want, &format!("{what}, one closure at a time")),
+            (Err(_), Err(_)) => {}
+            (got, want) => panic!("{what}: one at a time {:?} vs fresh {:?}", got.as_ref().err(), want.as_ref().err()),
+        }
         match (got, solve(&closed)) {
             (Ok(got), Ok(want)) => {
                 assert_same(got, &want, &what);

@@ -14,15 +14,16 @@
 //! # The sweep
 //! Closing a pipe changes only its status, so the analysis of the head matrix (ordering and
 //! symbolic factorization, see `solve::structure`) and every link's law stay valid: the sweep is
-//! one [`Solver::solve_batch_map`] of one-closure [`Scenario`]s over the model's [`Conditions`],
-//! in which each worker thread changes its own copy of the conditions (no model is cloned) and
-//! evaluates the criteria of each closure as soon as it is solved (no solution is kept). Every
-//! closure starts from the base case's solution (a warm start), which is close to the answer
-//! since one pipe differs, and takes its first steps on the base case's Cholesky factor (chord
-//! steps, the closed pipe's rank-one change by Sherman–Morrison: see `solve/chord.rs`), with
-//! Newton steps where the chord contracts too slowly; results agree with a cold-started solve of
-//! the closed model to the solver's tolerances, not bit for bit, and are the same from run to
-//! run.
+//! one [`Solver::solve_closures`] over the model's [`Conditions`] (no model is cloned), which
+//! solves the base case, then each closure on every core, handing each solution to the criteria
+//! as soon as it is found (no solution is kept). A closure starts from the base case's solution
+//! on the base case's Cholesky factor (the closed pipe's rank-one change by Sherman–Morrison, a
+//! Woodbury correction of the links that moved most where the chord is slow, Newton's steps
+//! where it diverges: see `solve/sweep.rs`), with connectivity from a bridge table and the
+//! dead-end trees from the base case; closures the fast path does not serve (devices with state
+//! rules, core bridges) take the general solve from the base case's solution. Results agree with
+//! a cold-started solve of the closed model to the solver's tolerances, not bit for bit, and are
+//! the same from run to run.
 //!
 //! A node *loses supply* in a closure when a fixed head reached it in the base scenario and none
 //! does with the pipe closed.
@@ -347,6 +348,29 @@ fn judge(
     }
 }
 
+/// [`judge`] for a closure of a sweep: no fire flows, and the closure's connectivity is not
+/// copied (the sweep keeps only what it reports).
+fn judge_closure(
+    model: &Model,
+    criteria: &Criteria,
+    solution: &Solution,
+    reference: &[bool],
+    options: &CheckOptions,
+) -> Outcome {
+    let error = demand_delivered(model, solution, options.keep).err();
+    let mut checks = vec![convergence_check(criteria, model, error.as_ref())];
+    checks.extend(evaluate(criteria, model, solution, options.keep));
+    Outcome {
+        error,
+        iterations: solution.iterations,
+        checks,
+        lost_supply: lost_supply(model, reference, &solution.connected, options.keep),
+        connected: Vec::new(),
+        repeated_from_base: 0,
+        shortfall: solution.outflow_summary(0).shortfall,
+    }
+}
+
 /// `min_fire_flow` of every group that sets it: the available fire flow at each of the group's
 /// junctions at the criteria's residual pressure (see [`fire_flow`]).
 fn fire_flow_checks(criteria: &Criteria, model: &Model, keep: usize) -> Vec<CheckResult> {
@@ -518,27 +542,31 @@ pub fn sweep_pipes(
         }
     };
     let conditions = Conditions::from_model(model);
-    let cold = SolveOptions::from_model(model);
+    let options_all = CheckOptions { keep: usize::MAX };
     // The base case, from which every closure starts (a base that does not solve leaves every
-    // closure a cold start), and what it already fails: every finding, not only the worst.
-    let all = CheckOptions { keep: usize::MAX };
-    let base_failures = match solver.solve(model, &conditions, &cold) {
-        Ok(base) => BaseFailures::of(&judge(model, criteria, &base, None, &all)),
-        Err(_) => BaseFailures::default(),
+    // closure a cold start), and what it already fails: every finding, not only the worst. The
+    // closures are judged as they are solved (their solutions live only that long).
+    let base_failures = std::sync::OnceLock::new();
+    let mut on_base = |base: &Result<Solution, SolveError>| {
+        let failures = match base {
+            Ok(base) => BaseFailures::of(&judge(model, criteria, base, None, &options_all)),
+            Err(_) => BaseFailures::default(),
+        };
+        let _ = base_failures.set(failures);
     };
-    let scenarios: Vec<Scenario> =
-        pipes.iter().map(|&k| Scenario { statuses: vec![(k, LinkStatus::Closed)], ..Scenario::default() }).collect();
-    let warm = SolveOptions { warm_start: true, ..cold };
-    let outcomes = solver.solve_batch_map(model, &conditions, &warm, &scenarios, &|_, result| {
+    let solve_options = SolveOptions::from_model(model);
+    let (_, outcomes) = solver.solve_closures(model, &conditions, &solve_options, pipes, &mut on_base, &|_, result| {
         let mut outcome = match result {
             Ok(solution) => {
-                let mut o = judge(model, criteria, &solution, Some(reference), &all);
-                base_failures.remove_from(&mut o, options.keep);
+                let mut o = judge_closure(model, criteria, solution, reference, &options_all);
+                if let Some(base) = base_failures.get() {
+                    base.remove_from(&mut o, options.keep);
+                }
                 o
             }
             Err(e) => unsolved(criteria, model, Unsolved::Solver(e)),
         };
-        outcome.connected = Vec::new(); // not needed per closure; saves memory on large sweeps
+        outcome.connected = Vec::new();
         progress(done.fetch_add(1, Ordering::Relaxed) + 1, total);
         outcome
     });

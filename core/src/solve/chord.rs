@@ -34,6 +34,7 @@
 //! within the tolerances (`tests/conditions.rs` compares them closure by closure).
 
 use super::assemble::{link_ends, FREE_FROM, FREE_TO, LAW_GENERAL, MODE_CLOSED, MODE_FIXED_FLOW, MODE_LAW, MODE_MASK};
+use super::structure::NONE;
 use super::Solver;
 use std::sync::Arc;
 
@@ -54,22 +55,25 @@ pub(super) const CHORD_MARGIN: f64 = 0.5;
 #[derive(Debug)]
 pub(super) struct ChordBase {
     /// Values of the Cholesky factor of the base case's matrix.
-    l_values: Vec<f64>,
+    pub(super) l_values: Vec<f64>,
     /// Conductance of every core link in that matrix.
-    cp: Vec<f64>,
+    pub(super) cp: Vec<f64>,
     /// Mode byte of every core link (see `assemble.rs`).
-    mode: Vec<u8>,
+    pub(super) mode: Vec<u8>,
     /// Which unknowns were free.
-    free: Vec<bool>,
+    pub(super) free: Vec<bool>,
     /// Flow of every core link at the base case's point.
-    q0: Vec<f64>,
+    pub(super) q0: Vec<f64>,
     /// Head of every unknown at that point.
-    head0: Vec<f64>,
+    pub(super) head0: Vec<f64>,
     /// Constant `c` of every core link there.
-    cc: Vec<f64>,
+    pub(super) cc: Vec<f64>,
     /// Per core link, the expansion of its law around the base flow (Hazen–Williams pipes on
     /// their law with a flow).
-    taylor: Vec<Option<Taylor>>,
+    pub(super) taylor: Vec<Option<Taylor>>,
+    /// Parent of every column in the factor's elimination tree (`NONE` for a root): the columns
+    /// `L⁻¹ e_j` touches are `j`'s ancestors.
+    pub(super) parent: Vec<u32>,
 }
 
 /// The rank-one change of one scenario: the closed link's base conductance `p`, and
@@ -115,7 +119,17 @@ impl Solver {
                 Taylor::new(s.hot[i].r, s.hot[i].minor, s.cq[i])
             })
             .collect();
+        let (col_ptr, row_idx) = (s.structure.symbolic.col_ptr(), s.structure.symbolic.row_idx());
+        let parent = (0..s.structure.n)
+            .map(|j| {
+                // The smallest row below the diagonal (the rows are stored in order; taking the
+                // least does not depend on it).
+                let (start, end) = (col_ptr[j] as usize, col_ptr[j + 1] as usize);
+                row_idx[start + 1..end].iter().copied().min().unwrap_or(NONE)
+            })
+            .collect();
         Some(Arc::new(ChordBase {
+            parent,
             taylor,
             l_values: s.factor.l_values().to_vec(),
             cp: s.cp.clone(),
@@ -192,7 +206,7 @@ impl Solver {
 
     /// The right-hand side of a chord step from the current constants `c` (the matrix is the
     /// base case's).
-    fn fill_chord_rhs(&mut self) {
+    pub(super) fn fill_chord_rhs(&mut self) {
         for (r, &d) in self.rhs.iter_mut().zip(&self.unknown_demand) {
             *r = -d;
         }
@@ -238,21 +252,25 @@ impl Solver {
 }
 
 /// Taylor expansion of a Hazen–Williams pipe's head loss around the base case's flow, for the
-/// chord steps' passes: `h(q₀ + Δ) ≈ h₀ + g₀ Δ + ½ h₂ Δ²` where `|Δ| ≤ TAYLOR_REACH |q₀|`. The
-/// next term is `h‴ Δ³ / 6 = n (n−1) (n−2) / 6 · h (Δ/q)³` (n = 1.852: about 0.04 h (Δ/q)³), so
-/// within the reach the expansion is exact to some 4e-11 of the head loss, far inside any
-/// head tolerance; the step that ends the iteration is judged on these values, and the reported
-/// residuals are evaluated exactly from the answer (`solution.rs`).
+/// chord steps' passes: `h(q₀ + Δ) ≈ h₀ + g₀ Δ + ½ h₂ Δ² + ⅙ h₃ Δ³` where
+/// `|Δ| ≤ TAYLOR_REACH |q₀|`. The next term is `h⁗ Δ⁴ / 24 = n (n−1) (n−2) (n−3) / 24 · h (Δ/q)⁴`
+/// of the friction part (n = 1.852: about 0.011 h (Δ/q)⁴; the minor-loss part `m q|q|` is a
+/// quadratic, exact already), so within the reach of 1 % the expansion is exact to some 1e-10
+/// of the head loss, far inside any head tolerance; the step that ends the iteration is judged on
+/// these values, and the reported residuals are evaluated exactly from the answer
+/// (`solution.rs`). The slope's error is some 5e-8 of the slope, which moves only the rate of
+/// the chord steps, never their fixed point.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub(super) struct Taylor {
     q0: f64,
     h0: f64,
     g0: f64,
     half_h2: f64,
+    sixth_h3: f64,
 }
 
 /// Largest |Δq / q₀| the expansion of [`Taylor`] serves.
-const TAYLOR_REACH: f64 = 1e-3;
+const TAYLOR_REACH: f64 = 1e-2;
 
 impl Taylor {
     /// The expansion of `h = r |q|^n sign(q) + m q|q|` around `q0`; `None` at zero flow.
@@ -263,16 +281,39 @@ impl Taylor {
         let (h0, g0) = super::links::hazen_williams(r, m, q0);
         let n = crate::physics::friction::HW_FLOW_EXPONENT;
         let a = q0.abs();
-        // h'' = (n − 1) g_hw / q + 2 m sign(q), with g_hw = n r |q|^(n−1) the friction slope.
-        let h2 = (n - 1.0) * (g0 - 2.0 * m * a) / q0 + 2.0 * m * q0.signum();
-        Some(Taylor { q0, h0, g0, half_h2: 0.5 * h2 })
+        // With g_hw = n r |q|^(n−1) the friction slope: the second derivative is
+        // (n − 1) g_hw / q + 2 m sign(q), the third (n − 2) / q times the friction part of the
+        // second (the minor loss adds nothing past the second derivative).
+        let h2_friction = (n - 1.0) * (g0 - 2.0 * m * a) / q0;
+        let h2 = h2_friction + 2.0 * m * q0.signum();
+        let h3 = (n - 2.0) * h2_friction / q0;
+        Some(Taylor { q0, h0, g0, half_h2: 0.5 * h2, sixth_h3: h3 / 6.0 })
+    }
+
+    /// The slope `dh/dQ` at `q`, when `q` is within reach.
+    #[inline]
+    pub(super) fn slope_at(&self, q: f64) -> Option<f64> {
+        let d = q - self.q0;
+        (d.abs() <= TAYLOR_REACH * self.q0.abs())
+            .then_some(self.g0 + d * (2.0 * self.half_h2 + 3.0 * self.sixth_h3 * d))
     }
 
     /// The head loss at `q`, when `q` is within reach.
     #[inline]
     fn at(&self, q: f64) -> Option<f64> {
         let d = q - self.q0;
-        (d.abs() <= TAYLOR_REACH * self.q0.abs()).then_some(self.h0 + d * (self.g0 + self.half_h2 * d))
+        (d.abs() <= TAYLOR_REACH * self.q0.abs())
+            .then_some(self.h0 + d * (self.g0 + d * (self.half_h2 + d * self.sixth_h3)))
+    }
+
+    /// The head loss and slope at `q`, when `q` is within reach.
+    #[inline]
+    pub(super) fn both_at(&self, q: f64) -> Option<(f64, f64)> {
+        let d = q - self.q0;
+        (d.abs() <= TAYLOR_REACH * self.q0.abs()).then_some((
+            self.h0 + d * (self.g0 + d * (self.half_h2 + d * self.sixth_h3)),
+            self.g0 + d * (2.0 * self.half_h2 + 3.0 * self.sixth_h3 * d),
+        ))
     }
 }
 
@@ -362,6 +403,208 @@ fn backward(structure: &super::Structure, l: &[f64], x: &mut [f64]) {
             v -= l[p] * x[row_idx[p] as usize];
         }
         x[j] = v / l[start];
+    }
+}
+
+/// A Woodbury correction of the base factor for a few core links: the matrix
+/// `A = A₀ + U D Uᵀ`, each column of `U` a link's `e_from − e_to` (its free ends only) and `D`
+/// the change of its conductance (`−p₀` for a closed link). With `A₀ = L Lᵀ`, `Z = L⁻¹ U` and
+/// `C = D⁻¹ + Zᵀ Z`,
+///
+/// ```text
+/// A⁻¹ r = L⁻ᵀ (y − Z C⁻¹ Zᵀ y),   y = L⁻¹ r.
+/// ```
+///
+/// `L⁻¹ e_j` is non-zero only on the ancestors of column `j` in the elimination tree (some tens
+/// of columns in a street network), so `Z` is kept dense over the union of those paths only, and
+/// `C` (at most a dozen rows) is factored by Gaussian elimination with partial pivoting. With the
+/// closed link alone this is the Sherman–Morrison step of [`Solver::chord_solve`].
+#[derive(Clone, Debug, Default)]
+pub(super) struct Correction {
+    /// Core positions of the links, and their conductance changes.
+    pub(super) links: Vec<u32>,
+    pub(super) change: Vec<f64>,
+    /// The columns `Z` touches (closed under elimination-tree ancestors), in order.
+    rows: Vec<u32>,
+    /// `Z`, link by link over `rows`.
+    z: Vec<f64>,
+    /// LU factors of `C` (row-major) and their row order.
+    lu: Vec<f64>,
+    order: Vec<usize>,
+    /// Scratch: `Zᵀ y`, `C⁻¹ Zᵀ y`, and the place of each column in `rows` (`NONE` elsewhere; reset after
+    /// each build).
+    t: Vec<f64>,
+    s: Vec<f64>,
+    place: Vec<u32>,
+}
+
+/// Smallest pivot of `C`, relative to its largest entry, before a correction is refused.
+const PIVOT_FLOOR: f64 = 1e-13;
+
+impl Correction {
+    /// Empties the correction.
+    pub(super) fn clear(&mut self) {
+        self.links.clear();
+        self.change.clear();
+        self.rows.clear();
+    }
+
+    /// Adds core link `i` with conductance change `d` (not zero).
+    pub(super) fn push(&mut self, i: usize, d: f64) {
+        self.links.push(i as u32);
+        self.change.push(d);
+    }
+
+    /// Computes `Z` and factors `C` for the links pushed, on `base`'s factor with the free ends
+    /// of `mode`; false when `C` is singular to working precision.
+    #[allow(clippy::needless_range_loop)] // dense LU elimination reads best with indices
+    pub(super) fn build(&mut self, structure: &super::Structure, base: &ChordBase, mode: &[u8]) -> bool {
+        let m = self.links.len();
+        self.place.resize(structure.n, NONE);
+        self.rows.clear();
+        // The union of the ends' elimination-tree paths.
+        for &i in &self.links {
+            let (c, bits) = (&structure.core[i as usize], mode[i as usize]);
+            for (free, slot) in [(FREE_FROM, c.slots.from), (FREE_TO, c.slots.to)] {
+                if bits & free == 0 {
+                    continue;
+                }
+                let mut j = slot;
+                while j != NONE && self.place[j as usize] == NONE {
+                    self.place[j as usize] = 0;
+                    self.rows.push(j);
+                    j = base.parent[j as usize];
+                }
+            }
+        }
+        self.rows.sort_unstable();
+        for (at, &j) in self.rows.iter().enumerate() {
+            self.place[j as usize] = at as u32;
+        }
+        let r = self.rows.len();
+        self.z.clear();
+        self.z.resize(m * r, 0.0);
+        for (col, &i) in self.links.iter().enumerate() {
+            let (c, bits) = (&structure.core[i as usize], mode[i as usize]);
+            if bits & FREE_FROM != 0 {
+                self.z[col * r + self.place[c.slots.from as usize] as usize] = 1.0;
+            }
+            if bits & FREE_TO != 0 {
+                self.z[col * r + self.place[c.slots.to as usize] as usize] = -1.0;
+            }
+        }
+        // Z = L⁻¹ U over the rows (every row below a column of the union is in the union).
+        let (col_ptr, row_idx) = (structure.symbolic.col_ptr(), structure.symbolic.row_idx());
+        let l = &base.l_values;
+        for at in 0..r {
+            let j = self.rows[at] as usize;
+            let (start, end) = (col_ptr[j] as usize, col_ptr[j + 1] as usize);
+            for col in 0..m {
+                let zc = &mut self.z[col * r..(col + 1) * r];
+                if zc[at] == 0.0 {
+                    continue;
+                }
+                let v = zc[at] / l[start];
+                zc[at] = v;
+                for p in start + 1..end {
+                    zc[self.place[row_idx[p] as usize] as usize] -= l[p] * v;
+                }
+            }
+        }
+        for &j in &self.rows {
+            self.place[j as usize] = NONE;
+        }
+        // C = D⁻¹ + Zᵀ Z, then its LU factors with partial pivoting.
+        self.lu.clear();
+        self.lu.resize(m * m, 0.0);
+        for a in 0..m {
+            for b in a..m {
+                let za = &self.z[a * r..(a + 1) * r];
+                let zb = &self.z[b * r..(b + 1) * r];
+                let dot: f64 = za.iter().zip(zb).map(|(x, y)| x * y).sum();
+                self.lu[a * m + b] = dot;
+                self.lu[b * m + a] = dot;
+            }
+            self.lu[a * m + a] += 1.0 / self.change[a];
+        }
+        let scale = self.lu.iter().fold(0.0f64, |s, x| s.max(x.abs()));
+        self.order.clear();
+        self.order.extend(0..m);
+        for k in 0..m {
+            let p = (k..m).max_by(|&a, &b| self.lu[a * m + k].abs().total_cmp(&self.lu[b * m + k].abs())).unwrap_or(k);
+            let pivot = self.lu[p * m + k];
+            if pivot.is_nan() || pivot.abs() <= PIVOT_FLOOR * scale {
+                return false;
+            }
+            if p != k {
+                for c in 0..m {
+                    self.lu.swap(k * m + c, p * m + c);
+                }
+                self.order.swap(k, p);
+            }
+            for row in k + 1..m {
+                let f = self.lu[row * m + k] / pivot;
+                self.lu[row * m + k] = f;
+                for c in k + 1..m {
+                    self.lu[row * m + c] -= f * self.lu[k * m + c];
+                }
+            }
+        }
+        self.t.resize(m, 0.0);
+        true
+    }
+
+    /// `y ← y − Z C⁻¹ Zᵀ y` (between the two triangular solves).
+    #[allow(clippy::needless_range_loop)] // dense LU substitution reads best with indices
+    pub(super) fn apply(&mut self, y: &mut [f64]) {
+        let (m, r) = (self.links.len(), self.rows.len());
+        if m == 0 {
+            return;
+        }
+        // t = Zᵀ y; then L U s = P t.
+        for col in 0..m {
+            let zc = &self.z[col * r..(col + 1) * r];
+            self.t[col] = self.rows.iter().zip(zc).map(|(&j, z)| z * y[j as usize]).sum();
+        }
+        let (t, s) = (&self.t, &mut self.s);
+        s.clear();
+        s.extend(self.order.iter().map(|&o| t[o]));
+        for row in 0..m {
+            let mut v = s[row];
+            for c in 0..row {
+                v -= self.lu[row * m + c] * s[c];
+            }
+            s[row] = v;
+        }
+        for row in (0..m).rev() {
+            let mut v = s[row];
+            for c in row + 1..m {
+                v -= self.lu[row * m + c] * s[c];
+            }
+            s[row] = v / self.lu[row * m + row];
+        }
+        for (col, &s) in self.s.iter().enumerate() {
+            let zc = &self.z[col * r..(col + 1) * r];
+            for (&j, z) in self.rows.iter().zip(zc) {
+                y[j as usize] -= z * s;
+            }
+        }
+    }
+}
+
+impl Solver {
+    /// Solves a chord step's system in place in `rhs` with the base factor and `correction`
+    /// (see [`Correction`]).
+    pub(super) fn correction_solve(&mut self, base: &ChordBase, correction: &mut Correction) {
+        forward(&self.structure, &base.l_values, &mut self.rhs, 0);
+        correction.apply(&mut self.rhs);
+        backward(&self.structure, &base.l_values, &mut self.rhs);
+    }
+
+    /// Solves a chord step's system in place in `rhs` with this solver's own factor.
+    pub(super) fn own_factor_solve(&mut self) {
+        forward(&self.structure, self.factor.l_values(), &mut self.rhs, 0);
+        backward(&self.structure, self.factor.l_values(), &mut self.rhs);
     }
 }
 

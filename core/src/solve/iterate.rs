@@ -13,12 +13,12 @@ use crate::model::{LinkKind, Model, ValveType};
 use std::time::Instant;
 
 /// Largest mass residual of an answer, relative to the flow scale of the solve.
-const MASS_GATE: f64 = 1e-7;
+pub(super) const MASS_GATE: f64 = 1e-7;
 
 /// Largest head change (m) the stopping test puts down to the floating-point floor of the heads
 /// (heads of a network are at most some thousand metres; their round-off, even at a million
 /// unknowns, is many orders of magnitude below this).
-const FLOOR_HEAD_CHANGE: f64 = 1.0;
+pub(super) const FLOOR_HEAD_CHANGE: f64 = 1.0;
 
 /// Full Newton steps after a change of device states before damped ones (with relations of
 /// pressure only; see `iterate`).

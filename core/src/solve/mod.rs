@@ -96,6 +96,7 @@ pub mod nodes;
 mod solution;
 pub mod status;
 pub mod structure;
+mod sweep;
 mod timings;
 pub mod topology;
 

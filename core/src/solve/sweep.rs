@@ -1,0 +1,960 @@
+//! Closures one link at a time on a base case's factor: the engine of the each-pipe-closed
+//! sweep ([`Solver::solve_closures`]).
+//!
+//! # Why a path of its own
+//! A closure of one link in a network whose base case is solved is a small change: the base
+//! case's Cholesky factor with a rank-one correction (Sherman–Morrison, see `chord.rs`) gives
+//! its first Newton step, and chord steps on the same factor give the rest. What a general solve
+//! adds around those steps (device states applied, which nodes a fixed head reaches, the tree
+//! sweeps, every link's energy residual evaluated again, a new `Solution` of ten network-sized
+//! arrays) cost more than the steps themselves. Here each worker keeps its buffers and a
+//! `Solution` that it rewrites closure after closure, and the work that does not depend on the
+//! closure is done once:
+//!
+//! * **Connectivity from a bridge table.** Closing a link that is not a bridge of the graph of
+//!   open links (Tarjan's bridges, linear time, made once) cuts nobody off. A pipe of a dead-end
+//!   tree is a bridge whose far side (its subtree, which holds no fixed head) is what it cuts
+//!   off. A core link that is a bridge goes the general way.
+//! * **Dead-end trees from the base case.** A tree pipe's flow is the demand beyond it and its
+//!   head loss depends on nothing else, so a tree junction's head is the base case's plus the
+//!   change of its core root's head; only the pipes between a closed tree pipe and the core
+//!   carry a new flow (less by the demand cut off), and only the junctions below them take a
+//!   further change of head.
+//! * **A rank-k correction where the chord stalls.** When a chord step contracts by less than
+//!   [`CHORD_CONTRACTION`], the links whose Newton conductance moved most from the base case's
+//!   (scored by the flow their linearisation misses) join the closed link in a Woodbury
+//!   correction of the base factor (at most [`WOODBURY_LINKS`] of them, chosen afresh at most
+//!   [`WOODBURY_ROUNDS`] times), and the chord steps go on with that matrix.
+//!
+//! # When it serves, and when the general solve takes over
+//! Only where the answer is that of the general solve by construction: the base case solved
+//! with no device that has state rules (check valves, running pumps, regulating valves), no
+//! pump, no relation of pressure and no held head; the closed link open, on its law and with
+//! both ends supplied in the base case; a core link only when it is not a bridge. Every other
+//! closure, and every closure whose chord does not settle, is solved by [`Solver::solve`] from
+//! the base case's solution (warm, with its own chord and Newton steps). The acceptance test is
+//! the general solve's chord test (the first step is an exact Newton step; a later one must have
+//! contracted by [`CHORD_CONTRACTION`] and ends the iteration within [`CHORD_MARGIN`] of each
+//! tolerance), followed by the same last gates (every value finite, mass balance to round-off).
+//! `tests/conditions.rs` compares every closure with a fresh solve of the closed model.
+
+use super::assemble::{link_ends, FREE_FROM, FREE_TO, LAW_GENERAL, MODE_CLOSED, MODE_LAW, MODE_MASK};
+use super::chord::{ChordBase, Correction, CHORD_CONTRACTION, CHORD_MARGIN, CHORD_STEPS};
+use super::iterate::{FLOOR_HEAD_CHANGE, MASS_GATE};
+use super::status::{LinkState, StatusTracker};
+use super::structure::NONE;
+use super::{Conditions, Solution, SolveOptions, Solver};
+use crate::error::SolveError;
+use crate::model::{LinkStatus, Model};
+use std::sync::Arc;
+
+/// Most links (besides the closed one) in a closure's Woodbury correction.
+pub(super) const WOODBURY_LINKS: usize = 12;
+
+/// How many times a closure may choose its Woodbury links afresh before it takes a
+/// factorization of its own.
+pub(super) const WOODBURY_ROUNDS: u32 = 3;
+
+/// What every closure of a sweep shares: the base case's factor and linearisation, its
+/// solution, the bridge table and the dead-end trees' layout.
+#[derive(Debug)]
+pub(super) struct SweepBase {
+    chord: Arc<ChordBase>,
+    /// The base case's solution, which each worker rewrites closure by closure.
+    solution: Solution,
+    /// Per core position: whether the link is a bridge of the base case's open links.
+    bridge: Vec<bool>,
+    /// Per link: its index in `structure.trees`, or `NONE`.
+    tree_index: Vec<u32>,
+    /// Per node: the tree links whose parent it is (`child_start` indexes `child_trees`).
+    child_start: Vec<u32>,
+    child_trees: Vec<u32>,
+    /// Per node: the tree link whose child it is, or `NONE`.
+    tree_above: Vec<u32>,
+    /// Per tree link: the base case's outflow beyond it (its flow's size, signed by demand).
+    beyond: Vec<f64>,
+    /// Per node: the core unknown whose head change a tree junction (or the unknown itself)
+    /// follows, or `NONE` (fixed heads, trees hanging off a fixed head).
+    root_unknown: Vec<u32>,
+    /// Per unknown: the outflow it carries in the base case (its own and its trees').
+    unknown_demand: Vec<f64>,
+    /// Σ|Q| over the tree pipes in the base case.
+    tree_flow_sum: f64,
+    /// Σ|demand| floored (the scale of relative flow changes).
+    demand_scale: f64,
+    /// Per link: flow area, m² (zero for pumps).
+    area: Vec<f64>,
+    /// Per node: elevation, m.
+    elevation: Vec<f64>,
+}
+
+/// A worker's state between closures: its solver (the base case's buffers), the `Solution` it
+/// rewrites, the conditions the general solve changes, and what the last closure changed.
+struct Worker {
+    solver: Solver,
+    solution: Solution,
+    conditions: Conditions,
+    /// The general solve ran since the buffers were last reset from the base case.
+    dirty: bool,
+    /// Nodes and links the last closure changed in `solution` beyond the full passes.
+    touched_nodes: Vec<u32>,
+    touched_links: Vec<u32>,
+    /// Scratch: a tree walk's stack, and the tree pipes above a closed one.
+    stack: Vec<u32>,
+    above: Vec<u32>,
+    /// The Woodbury correction of the current closure.
+    correction: Correction,
+    /// Closures settled on the base factor alone, with a Woodbury correction, with Newton's
+    /// steps, with both (for the tests).
+    paths: [u32; 4],
+}
+
+/// How a closure's steps ended: its iterations, its last head and flow changes, how many times
+/// it chose a Woodbury correction and whether it took Newton's steps.
+#[derive(Clone, Copy, Debug)]
+struct Settled {
+    iterations: u32,
+    head_change: f64,
+    flow_change: f64,
+    rounds: u32,
+    newton: bool,
+}
+
+/// How a closure enters the fast path.
+enum Closure {
+    /// A core link (its core position), not a bridge.
+    Core(usize),
+    /// A dead-end tree pipe (its tree index).
+    Tree(usize),
+}
+
+impl Solver {
+    /// Solves `model` under `conditions` (the base case, a cold start), then the closure of each
+    /// link of `links`, one at a time, on every thread of rayon's pool, each handed to `reduce`
+    /// with its position in `links` on the thread that solved it. `on_base` sees the base case's
+    /// result before any closure is solved. Returns the base case's result and `reduce`'s values
+    /// in the order of `links`.
+    ///
+    /// Every closure's answer is that of a fresh solve of the model with that link closed, within
+    /// the tolerances of `options` (see the [module docs](self) for how it is found). The
+    /// `Solution` handed to `reduce` lives only during the call: heads, pressures, flows,
+    /// velocities, head differences, link states, connectivity and demands are the closure's;
+    /// it carries no warnings, and pump results only where the general solve gave them.
+    pub fn solve_closures<T: Send>(
+        &mut self,
+        model: &Model,
+        conditions: &Conditions,
+        options: &SolveOptions,
+        links: &[usize],
+        on_base: &mut dyn FnMut(&Result<Solution, SolveError>),
+        reduce: &(dyn Fn(usize, Result<&Solution, SolveError>) -> T + Sync),
+    ) -> (Result<Solution, SolveError>, Vec<T>) {
+        use rayon::prelude::*;
+        let cold = SolveOptions { warm_start: false, ..*options };
+        let base = self.solve(model, conditions, &cold);
+        on_base(&base);
+        let warm = SolveOptions { warm_start: true, ..cold };
+        let Ok(solution) = &base else {
+            // No base case to start from: every closure is a cold general solve.
+            let out = links
+                .par_iter()
+                .enumerate()
+                .map_init(
+                    || (self.clone(), conditions.clone()),
+                    |(solver, local), (i, &k)| hand(i, general(solver, model, local, conditions, &cold, k), reduce),
+                )
+                .collect();
+            return (base, out);
+        };
+        let sweep = self.sweep_base(model, conditions, solution).map(Arc::new);
+        let chord = sweep.as_ref().map(|s| s.chord.clone()).or_else(|| self.chord_base());
+        let this = &*self;
+        let out = links
+            .par_iter()
+            .enumerate()
+            .map_init(
+                || {
+                    let mut solver = this.clone();
+                    solver.use_chord(chord.clone());
+                    Worker::new(solver, solution.clone(), conditions.clone())
+                },
+                |w, (i, &k)| {
+                    if let Some(sweep) = &sweep {
+                        if w.close(this, sweep, k, &warm) {
+                            let value = reduce(i, Ok(&w.solution));
+                            w.restore(sweep);
+                            return value;
+                        }
+                    }
+                    w.solver.start_from(this);
+                    w.dirty = true;
+                    hand(i, general(&mut w.solver, model, &mut w.conditions, conditions, &warm, k), reduce)
+                },
+            )
+            .collect();
+        (base, out)
+    }
+
+    /// What the closures of a sweep share, from this solver's base case (`solution` its last
+    /// answer); `None` when the fast path does not serve this base case (see the module docs).
+    fn sweep_base(&self, model: &Model, conditions: &Conditions, solution: &Solution) -> Option<SweepBase> {
+        if !self.has_previous || !self.relations.is_empty() || !self.pinned.is_empty() || self.holding() {
+            return None;
+        }
+        if model.links().iter().any(|l| l.as_pump().is_some()) || StatusTracker::new(model, conditions).has_devices() {
+            return None;
+        }
+        let chord = self.chord_base()?;
+        let structure = &*self.structure;
+        let (n_nodes, n_links) = (model.nodes().len(), model.links().len());
+        let open: Vec<bool> = solution.link_state.iter().map(|s| s.carries_flow()).collect();
+        let is_bridge = bridges(n_nodes, &structure.ends, &open);
+        let bridge = structure.core.iter().map(|c| is_bridge[c.link as usize]).collect();
+        let mut tree_index = vec![NONE; n_links];
+        let mut tree_above = vec![NONE; n_nodes];
+        let mut child_start = vec![0u32; n_nodes + 1];
+        for (t, tree) in structure.trees.iter().enumerate() {
+            tree_index[tree.link as usize] = t as u32;
+            tree_above[tree.child as usize] = t as u32;
+            child_start[tree.parent as usize + 1] += 1;
+        }
+        for i in 0..n_nodes {
+            child_start[i + 1] += child_start[i];
+        }
+        let mut fill: Vec<u32> = child_start[..n_nodes].to_vec();
+        let mut child_trees = vec![0u32; structure.trees.len()];
+        for (t, tree) in structure.trees.iter().enumerate() {
+            child_trees[fill[tree.parent as usize] as usize] = t as u32;
+            fill[tree.parent as usize] += 1;
+        }
+        // Beyond each tree pipe, leaves first (as `tree_flows` sums them).
+        let mut beyond = vec![0.0; structure.trees.len()];
+        let mut subtree = vec![0.0; n_nodes];
+        for (t, tree) in structure.trees.iter().enumerate() {
+            if !open[tree.link as usize] {
+                continue;
+            }
+            let b = self.demand[tree.child as usize] + subtree[tree.child as usize];
+            subtree[tree.parent as usize] += b;
+            beyond[t] = b;
+        }
+        // Roots, root first (the trees are stored leaves first).
+        let mut root_unknown: Vec<u32> = structure.unknown_of_node.clone();
+        for tree in structure.trees.iter().rev() {
+            root_unknown[tree.child as usize] = root_unknown[tree.parent as usize];
+        }
+        Some(SweepBase {
+            chord,
+            solution: solution.clone(),
+            bridge,
+            tree_index,
+            child_start,
+            child_trees,
+            tree_above,
+            beyond,
+            root_unknown,
+            unknown_demand: self.unknown_demand.clone(),
+            tree_flow_sum: self.tree_flow_sum,
+            demand_scale: self.demand_scale,
+            area: (0..n_links).map(|k| conditions.flow_area(k)).collect(),
+            elevation: model.nodes().iter().map(|n| n.elevation).collect(),
+        })
+    }
+}
+
+/// Hands an owned result to `reduce` as a borrowed one.
+fn hand<T>(
+    i: usize,
+    result: Result<Solution, SolveError>,
+    reduce: &dyn Fn(usize, Result<&Solution, SolveError>) -> T,
+) -> T {
+    match result {
+        Ok(solution) => reduce(i, Ok(&solution)),
+        Err(e) => reduce(i, Err(e)),
+    }
+}
+
+/// The general solve of the closure of link `k`: `local` (a copy of `base`) changed for it and
+/// changed back.
+fn general(
+    solver: &mut Solver,
+    model: &Model,
+    local: &mut Conditions,
+    base: &Conditions,
+    options: &SolveOptions,
+    k: usize,
+) -> Result<Solution, SolveError> {
+    if let Err(e) = local.set_status(model, k, LinkStatus::Closed) {
+        return Err(SolveError::Model(e));
+    }
+    let result = solver.solve(model, local, options);
+    if local.set_status(model, k, base.status(k)).is_err() {
+        local.restore_from(base);
+    }
+    result
+}
+
+impl Worker {
+    fn new(solver: Solver, solution: Solution, conditions: Conditions) -> Self {
+        Worker {
+            solver,
+            solution,
+            conditions,
+            dirty: true,
+            touched_nodes: Vec::new(),
+            touched_links: Vec::new(),
+            stack: Vec::new(),
+            above: Vec::new(),
+            correction: Correction::default(),
+            paths: [0; 4],
+        }
+    }
+
+    /// Solves the closure of link `k` on the fast path into `self.solution`; false when the
+    /// fast path does not serve it (the worker's solution is then as the base case's).
+    fn close(&mut self, base: &Solver, sweep: &SweepBase, k: usize, options: &SolveOptions) -> bool {
+        let structure = base.structure.clone();
+        let chord = &sweep.chord;
+        let solution = &sweep.solution;
+        let (from, to) = structure.ends[k];
+        if solution.link_state[k] != LinkState::Open
+            || !solution.connected[from as usize]
+            || !solution.connected[to as usize]
+        {
+            return false;
+        }
+        let closure = match structure.core_position[k] {
+            NONE => match sweep.tree_index[k] {
+                NONE => return false,
+                t => Closure::Tree(t as usize),
+            },
+            i => {
+                let i = i as usize;
+                if chord.mode[i] & MODE_MASK != MODE_LAW || sweep.bridge[i] {
+                    return false;
+                }
+                Closure::Core(i)
+            }
+        };
+        if self.dirty {
+            self.solver.reset_from(base, sweep);
+            self.dirty = false;
+        }
+        // The closure's change of the base case's equations.
+        let s = &mut self.solver;
+        let (mut cut_demand, mut root) = (0.0, NONE);
+        s.tree_flow_sum = sweep.tree_flow_sum;
+        self.above.clear();
+        match closure {
+            Closure::Core(i) => s.mode[i] = MODE_CLOSED,
+            Closure::Tree(t) => {
+                let tree = structure.trees[t];
+                cut_demand = sweep.beyond[t];
+                // The pipes between it and the core carry the demand cut off less.
+                let mut node = tree.parent;
+                s.tree_flow_sum -= sweep.beyond[t].abs();
+                while sweep.tree_above[node as usize] != NONE {
+                    let a = sweep.tree_above[node as usize];
+                    self.above.push(a);
+                    let b = sweep.beyond[a as usize];
+                    s.tree_flow_sum += (b - cut_demand).abs() - b.abs();
+                    node = structure.trees[a as usize].parent;
+                }
+                // Pipes cut off carry nothing (they no longer count in the flow scale).
+                self.stack.clear();
+                self.stack.push(tree.child);
+                while let Some(v) = self.stack.pop() {
+                    let v = v as usize;
+                    let children = sweep.child_start[v] as usize..sweep.child_start[v + 1] as usize;
+                    for &c in &sweep.child_trees[children] {
+                        s.tree_flow_sum -= sweep.beyond[c as usize].abs();
+                        self.stack.push(structure.trees[c as usize].child);
+                    }
+                }
+                root = structure.unknown_of_node[node as usize];
+                if root != NONE {
+                    s.unknown_demand[root as usize] -= cut_demand;
+                }
+            }
+        }
+        let answer = s.closure_steps(chord, &closure, &mut self.correction, options);
+        let written = match answer {
+            Some(Settled { iterations, head_change, flow_change, rounds, newton }) => {
+                self.paths[usize::from(rounds > 0) + 2 * usize::from(newton)] += 1;
+                self.write(&structure, sweep, k, &closure, cut_demand, iterations, head_change, flow_change)
+            }
+            None => false,
+        };
+        // Back to the base case's equations.
+        let s = &mut self.solver;
+        match closure {
+            Closure::Core(i) => s.mode[i] = chord.mode[i],
+            Closure::Tree(_) => {
+                if root != NONE {
+                    s.unknown_demand[root as usize] = sweep.unknown_demand[root as usize];
+                }
+            }
+        }
+        if !written {
+            self.restore(sweep);
+        }
+        written
+    }
+
+    /// Writes the closure's answer into `self.solution` (the base case's, changed); false when a
+    /// value is not finite or the mass balance does not hold (the general solve then decides).
+    #[allow(clippy::too_many_arguments)]
+    fn write(
+        &mut self,
+        structure: &super::Structure,
+        sweep: &SweepBase,
+        k: usize,
+        closure: &Closure,
+        cut_demand: f64,
+        iterations: u32,
+        head_change: f64,
+        flow_change: f64,
+    ) -> bool {
+        let s = &mut self.solver;
+        let out = &mut self.solution;
+        let chord = &sweep.chord;
+        // The last gate of the general solve: the mass balance of every free unknown (the tree
+        // pipes' flows are in its outflow) holds to round-off.
+        for (r, &d) in s.rhs.iter_mut().zip(&s.unknown_demand) {
+            *r = -d;
+        }
+        for (i, c) in structure.core.iter().enumerate() {
+            let mode = s.mode[i];
+            if mode & MODE_MASK == MODE_CLOSED {
+                continue;
+            }
+            let q = s.cq[i];
+            if mode & FREE_FROM != 0 {
+                s.rhs[c.slots.from as usize] -= q;
+            }
+            if mode & FREE_TO != 0 {
+                s.rhs[c.slots.to as usize] += q;
+            }
+        }
+        let mut worst = 0.0f64;
+        for (r, &free) in s.rhs.iter().zip(&s.free) {
+            if free {
+                worst = worst.max(r.abs());
+            }
+        }
+        if worst.is_nan() || worst > MASS_GATE * sweep.demand_scale {
+            return false;
+        }
+        // Heads: tree junctions follow their core root; the unknowns are the iteration's.
+        for (i, h) in out.head.iter_mut().enumerate() {
+            let base_head = sweep.solution.head[i];
+            *h = match sweep.root_unknown[i] {
+                NONE => base_head,
+                u => base_head + (s.unknown_head[u as usize] - chord.head0[u as usize]),
+            };
+        }
+        for (&node, &h) in structure.node_of_unknown.iter().zip(&s.unknown_head) {
+            out.head[node as usize] = h;
+        }
+        out.flow[k] = 0.0;
+        out.link_state[k] = LinkState::Closed;
+        self.touched_links.push(k as u32);
+        if let Closure::Tree(t) = *closure {
+            let tree = structure.trees[t];
+            // The junctions beyond it are cut off, their pipes carry nothing.
+            self.stack.clear();
+            self.stack.push(tree.child);
+            while let Some(v) = self.stack.pop() {
+                let v = v as usize;
+                out.connected[v] = false;
+                out.head[v] = f64::NAN;
+                self.touched_nodes.push(v as u32);
+                let children = sweep.child_start[v] as usize..sweep.child_start[v + 1] as usize;
+                for &c in &sweep.child_trees[children] {
+                    let tc = structure.trees[c as usize];
+                    let l = tc.link as usize;
+                    out.flow[l] = 0.0;
+                    if out.link_state[l].carries_flow() {
+                        out.link_state[l] = LinkState::Disconnected;
+                    }
+                    self.touched_links.push(l as u32);
+                    self.stack.push(tc.child);
+                }
+            }
+            // The pipes above it carry the demand cut off less: new flows and head losses, and
+            // every junction below each of them moves by its change of head loss.
+            for &a in &self.above {
+                let ta = structure.trees[a as usize];
+                let l = ta.link as usize;
+                let b = sweep.beyond[a as usize] - cut_demand;
+                let q = if ta.downstream { b } else { -b };
+                let old = sweep.solution.flow[l];
+                out.flow[l] = q;
+                self.touched_links.push(l as u32);
+                let change = s.laws[l].evaluate_exact(q).0 - s.laws[l].evaluate_exact(old).0;
+                // head[child] = head[parent] − h(Q) when the pipe points away from the core.
+                let shift = if ta.downstream { -change } else { change };
+                self.stack.clear();
+                self.stack.push(ta.child);
+                while let Some(v) = self.stack.pop() {
+                    let v = v as usize;
+                    if !out.connected[v] {
+                        continue;
+                    }
+                    out.head[v] += shift;
+                    let children = sweep.child_start[v] as usize..sweep.child_start[v + 1] as usize;
+                    for &c in &sweep.child_trees[children] {
+                        self.stack.push(structure.trees[c as usize].child);
+                    }
+                }
+            }
+        }
+        // Core flows.
+        for (i, c) in structure.core.iter().enumerate() {
+            let l = c.link as usize;
+            if l != k {
+                out.flow[l] = s.cq[i];
+            }
+        }
+        // Pressures, velocities and head differences; every value finite where it is defined.
+        for (i, (p, &h)) in out.pressure.iter_mut().zip(&out.head).enumerate() {
+            *p = h - sweep.elevation[i];
+            if out.connected[i] && !p.is_finite() {
+                return false;
+            }
+        }
+        for (l, &(a, b)) in structure.ends.iter().enumerate() {
+            let q = out.flow[l];
+            let area = sweep.area[l];
+            out.velocity[l] = if area > 0.0 { q / area } else { f64::NAN };
+            out.headloss[l] = (out.head[a as usize] - out.head[b as usize]).abs();
+            if !q.is_finite() || (area > 0.0 && !out.velocity[l].is_finite()) {
+                return false;
+            }
+        }
+        out.iterations = iterations;
+        out.last_head_change = head_change;
+        out.last_flow_change = flow_change;
+        out.max_mass_residual = worst;
+        true
+    }
+
+    /// Undoes what the last closure changed in `self.solution` beyond the full passes.
+    fn restore(&mut self, sweep: &SweepBase) {
+        let base = &sweep.solution;
+        for &v in &self.touched_nodes {
+            self.solution.connected[v as usize] = base.connected[v as usize];
+        }
+        for &l in &self.touched_links {
+            let l = l as usize;
+            self.solution.link_state[l] = base.link_state[l];
+            self.solution.flow[l] = base.flow[l];
+        }
+        self.touched_nodes.clear();
+        self.touched_links.clear();
+    }
+}
+
+impl Solver {
+    /// Back to the base case's iteration state after a general solve used these buffers.
+    fn reset_from(&mut self, base: &Solver, sweep: &SweepBase) {
+        let chord = &sweep.chord;
+        self.mode.copy_from_slice(&chord.mode);
+        self.cp.copy_from_slice(&chord.cp);
+        self.free.copy_from_slice(&chord.free);
+        self.head.copy_from_slice(&base.head);
+        self.unknown_demand.copy_from_slice(&sweep.unknown_demand);
+        self.demand_scale = sweep.demand_scale;
+    }
+
+    /// The chord steps of one closure from the base case's point (its change of the equations
+    /// already made): `(iterations, last head change, last flow change)`, or `None` when they do
+    /// not settle. Every conductance the correction changed is the base case's again after it.
+    fn closure_steps(
+        &mut self,
+        chord: &ChordBase,
+        closure: &Closure,
+        correction: &mut Correction,
+        options: &SolveOptions,
+    ) -> Option<Settled> {
+        self.cq.copy_from_slice(&chord.q0);
+        self.cc.copy_from_slice(&chord.cc);
+        self.unknown_head.copy_from_slice(&chord.head0);
+        self.fill_chord_rhs();
+        correction.clear();
+        if let Closure::Core(i) = *closure {
+            correction.push(i, -chord.cp[i]);
+        }
+        let result = if correction.build(&self.structure, chord, &chord.mode) {
+            self.chord_loop(chord, closure, correction, options)
+        } else {
+            None
+        };
+        // The conductances a correction or a factorization changed.
+        self.cp.copy_from_slice(&chord.cp);
+        result
+    }
+
+    /// The loop of [`Solver::closure_steps`]: the general solve's chord test on the base factor,
+    /// with a Woodbury correction chosen afresh where the chord contracts too slowly, and a
+    /// factorization of its own at the current point where it diverges or the correction does
+    /// not help (then Newton's step, and chord steps on that factor).
+    fn chord_loop(
+        &mut self,
+        chord: &ChordBase,
+        closure: &Closure,
+        correction: &mut Correction,
+        options: &SolveOptions,
+    ) -> Option<Settled> {
+        let mut iterations = 0u32;
+        // Steps on the current matrix, and the largest head correction of the last one.
+        let mut on_matrix = 0u32;
+        let mut previous = f64::INFINITY;
+        let mut rounds = 0u32;
+        let mut own = false;
+        loop {
+            if iterations >= options.max_iterations {
+                return None;
+            }
+            if !own && iterations >= CHORD_STEPS {
+                // A chord that ran its course without settling: Newton's steps.
+                if !self.refactor(chord) {
+                    return None;
+                }
+                own = true;
+                on_matrix = 0;
+                previous = f64::INFINITY;
+            }
+            iterations += 1;
+            if own {
+                self.own_factor_solve();
+            } else {
+                self.correction_solve(chord, correction);
+            }
+            std::mem::swap(&mut self.rhs, &mut self.delta);
+            let mut head_change = 0.0f64;
+            for (u, &d) in self.delta.iter().enumerate() {
+                if self.free[u] {
+                    if !d.is_finite() {
+                        return None;
+                    }
+                    head_change = head_change.max(d.abs());
+                    self.unknown_head[u] += d;
+                }
+            }
+            on_matrix += 1;
+            // An exact Newton step (the first, or the first on a factor of its own) ends the
+            // iteration on the solver's own test; a later one only if it contracted on its
+            // matrix, within CHORD_MARGIN of the tolerances (see `chord.rs`).
+            let stalled = on_matrix > 1 && head_change > CHORD_CONTRACTION * previous;
+            let diverging = on_matrix > 1 && head_change > previous;
+            let share = if on_matrix == 1 && (iterations == 1 || own) {
+                1.0
+            } else if on_matrix > 1 && !stalled {
+                CHORD_MARGIN
+            } else {
+                0.0
+            };
+            previous = head_change;
+            if iterations == 1 {
+                // No previous iterate to compare with.
+                head_change = f64::INFINITY;
+            }
+            let (flow_change, residual) = self.chord_update();
+            if !flow_change.is_finite() {
+                return None;
+            }
+            let (head_tolerance, flow_tolerance) = (share * options.head_tolerance, share * options.flow_tolerance);
+            let heads_settled = head_change <= head_tolerance
+                || (flow_change <= flow_tolerance
+                    && iterations > 1
+                    && residual <= head_tolerance
+                    && head_change < FLOOR_HEAD_CHANGE);
+            if heads_settled && flow_change <= flow_tolerance {
+                return Some(Settled { iterations, head_change, flow_change, rounds, newton: own });
+            }
+            if own {
+                // Newton's steps from here on: a chord on a factor of the closure's own point
+                // contracts slowly where the closure moved flows far (flows reversed in mains).
+                if !self.refactor(chord) {
+                    return None;
+                }
+                on_matrix = 0;
+                previous = f64::INFINITY;
+            } else if stalled {
+                // A chord that contracts slowly takes a Woodbury correction of the links that
+                // moved most; one that diverges, or is still slow after it, takes Newton's steps.
+                let corrected = !diverging && rounds < WOODBURY_ROUNDS && {
+                    rounds += 1;
+                    self.reselect(chord, closure, correction)
+                };
+                if !corrected {
+                    if !self.refactor(chord) {
+                        return None;
+                    }
+                    own = true;
+                }
+                on_matrix = 0;
+                previous = f64::INFINITY;
+            }
+        }
+    }
+
+    /// Linearises every link on its law at the current point (Newton's conductances, the
+    /// [`Taylor`](super::chord) expansion where it serves) and factors the matrix, the closed
+    /// link left out; the right-hand side is filled to match. False when it does not factor.
+    fn refactor(&mut self, chord: &ChordBase) -> bool {
+        let structure = self.structure.clone();
+        for (i, c) in structure.core.iter().enumerate() {
+            let mode = self.mode[i];
+            if mode & MODE_MASK != MODE_LAW {
+                continue;
+            }
+            let q = self.cq[i];
+            let hot = self.hot[i];
+            let (y, g) = match chord.taylor[i].and_then(|t| t.both_at(q)) {
+                Some(v) => v,
+                None if mode & LAW_GENERAL != 0 => self.laws[c.link as usize].evaluate_exact(q),
+                None => super::links::hazen_williams(hot.r, hot.minor, q),
+            };
+            let p = 1.0 / g.max(hot.min_slope);
+            let dh = self.end_head(c.slots.from, c.from) - self.end_head(c.slots.to, c.to);
+            self.cp[i] = p;
+            self.cc[i] = q + p * (dh - y);
+        }
+        self.begin_assembly();
+        for i in 0..structure.core.len() {
+            self.scatter(i);
+        }
+        self.end_assembly();
+        self.factor.factor(&structure).is_ok()
+    }
+
+    /// Chooses the links of the Woodbury correction afresh at the current point: the
+    /// [`WOODBURY_LINKS`] whose Newton conductance `1/h'(Q)` differs most from the base case's,
+    /// scored by the flow their linearisation misses over the last step (`Δp (δ_from − δ_to)`);
+    /// their conductances and constants are changed with the right-hand side, so that the next
+    /// step is consistent with the new matrix. False when the correction cannot be factored.
+    fn reselect(&mut self, chord: &ChordBase, closure: &Closure, correction: &mut Correction) -> bool {
+        let mut best = [(0.0f64, NONE, 0.0f64); WOODBURY_LINKS];
+        let structure = &*self.structure;
+        for (i, c) in structure.core.iter().enumerate() {
+            let mode = self.mode[i];
+            if mode & MODE_MASK != MODE_LAW {
+                continue;
+            }
+            let q = self.cq[i];
+            let hot = self.hot[i];
+            let g = match chord.taylor[i].and_then(|t| t.slope_at(q)) {
+                Some(g) => g,
+                None if mode & LAW_GENERAL != 0 => self.laws[c.link as usize].evaluate_exact(q).1,
+                None => super::links::hazen_williams(hot.r, hot.minor, q).1,
+            };
+            let d = 1.0 / g.max(hot.min_slope) - chord.cp[i];
+            let ((d_from, _), (d_to, _)) = link_ends(c, &self.delta, &self.unknown_head, &self.head);
+            let score = (d * (d_from - d_to)).abs();
+            if score > best[WOODBURY_LINKS - 1].0 {
+                let at = best.partition_point(|b| b.0 >= score);
+                best.copy_within(at..WOODBURY_LINKS - 1, at + 1);
+                best[at] = (score, i as u32, d);
+            }
+        }
+        // The previous links back to the base case's conductance, the new ones to theirs.
+        let closed = match *closure {
+            Closure::Core(i) => i as u32,
+            Closure::Tree(_) => NONE,
+        };
+        for at in 0..correction.links.len() {
+            let i = correction.links[at];
+            if i != closed {
+                self.set_conductance(i as usize, chord.cp[i as usize]);
+            }
+        }
+        correction.clear();
+        if closed != NONE {
+            correction.push(closed as usize, -chord.cp[closed as usize]);
+        }
+        for &(score, i, d) in &best {
+            if i == NONE || score == 0.0 || d.abs() <= 1e-12 * chord.cp[i as usize] {
+                continue;
+            }
+            self.set_conductance(i as usize, chord.cp[i as usize] + d);
+            correction.push(i as usize, d);
+        }
+        correction.build(&self.structure, chord, &chord.mode)
+    }
+
+    /// Sets core link `i`'s conductance in a chord iteration, with its constant
+    /// `c = Q + p (ΔH − h(Q))` and the right-hand side to match.
+    fn set_conductance(&mut self, i: usize, p: f64) {
+        let (q, old_p, old_c) = (self.cq[i], self.cp[i], self.cc[i]);
+        let c = q + p * (old_c - q) / old_p;
+        self.cp[i] = p;
+        self.cc[i] = c;
+        let (mode, slots) = (self.mode[i], self.structure.core[i].slots);
+        if mode & FREE_FROM != 0 {
+            self.rhs[slots.from as usize] -= c - old_c;
+        }
+        if mode & FREE_TO != 0 {
+            self.rhs[slots.to as usize] += c - old_c;
+        }
+    }
+}
+
+/// Which links of a graph with `nodes` nodes and links `ends` are bridges among the links with
+/// `open[k]` (Tarjan's algorithm, iterative: a link is a bridge when no path of other open links
+/// joins its ends).
+fn bridges(nodes: usize, ends: &[(u32, u32)], open: &[bool]) -> Vec<bool> {
+    // Adjacency of the open links.
+    let mut start = vec![0u32; nodes + 1];
+    for (k, &(a, b)) in ends.iter().enumerate() {
+        if open[k] && a != b {
+            start[a as usize + 1] += 1;
+            start[b as usize + 1] += 1;
+        }
+    }
+    for i in 0..nodes {
+        start[i + 1] += start[i];
+    }
+    let mut fill: Vec<u32> = start[..nodes].to_vec();
+    let mut adjacent = vec![0u32; start[nodes] as usize];
+    for (k, &(a, b)) in ends.iter().enumerate() {
+        if open[k] && a != b {
+            adjacent[fill[a as usize] as usize] = k as u32;
+            fill[a as usize] += 1;
+            adjacent[fill[b as usize] as usize] = k as u32;
+            fill[b as usize] += 1;
+        }
+    }
+    let mut bridge = vec![false; ends.len()];
+    let mut order = vec![u32::MAX; nodes];
+    let mut low = vec![0u32; nodes];
+    // (node, the link it was reached by, next adjacency position)
+    let mut stack: Vec<(u32, u32, u32)> = Vec::new();
+    let mut counter = 0u32;
+    for root in 0..nodes {
+        if order[root] != u32::MAX {
+            continue;
+        }
+        order[root] = counter;
+        low[root] = counter;
+        counter += 1;
+        stack.push((root as u32, NONE, start[root]));
+        while let Some(top) = stack.last_mut() {
+            let (v, via, next) = *top;
+            if next < start[v as usize + 1] {
+                top.2 += 1;
+                let k = adjacent[next as usize];
+                if k == via {
+                    continue;
+                }
+                let (a, b) = ends[k as usize];
+                let w = if a == v { b } else { a };
+                if order[w as usize] == u32::MAX {
+                    order[w as usize] = counter;
+                    low[w as usize] = counter;
+                    counter += 1;
+                    stack.push((w, k, start[w as usize]));
+                } else {
+                    low[v as usize] = low[v as usize].min(order[w as usize]);
+                }
+            } else {
+                stack.pop();
+                if let Some(&(parent, _, _)) = stack.last() {
+                    low[parent as usize] = low[parent as usize].min(low[v as usize]);
+                    if low[v as usize] > order[parent as usize] {
+                        bridge[via as usize] = true;
+                    }
+                }
+            }
+        }
+    }
+    bridge
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::generate::{generate, NetworkSpec};
+
+    /// Every closure of a generated network (invented: see `crate::generate`) that the fast path
+    /// serves equals a fresh solve of the closed model (heads to 1e-6 m, flows to 1e-9 m³/s,
+    /// connectivity and link states exactly), with tolerances tight enough that every path is
+    /// taken: dead-end tree pipes, core pipes on the base factor alone, with a Woodbury
+    /// correction, and with Newton's steps.
+    #[test]
+    fn each_closure_on_the_fast_path_equals_a_fresh_solve() {
+        let mut m = generate(&NetworkSpec::new(400, 11)).unwrap();
+        m.options.head_tolerance = 1e-9;
+        m.options.flow_tolerance = 1e-12;
+        let conditions = Conditions::from_model(&m);
+        let options = SolveOptions::from_model(&m);
+        let mut base = Solver::new(&m).unwrap();
+        let solution = base.solve(&m, &conditions, &options).unwrap();
+        let sweep = base.sweep_base(&m, &conditions, &solution).expect("the fast path serves this base case");
+        let mut solver = base.clone();
+        solver.use_chord(Some(sweep.chord.clone()));
+        let mut w = Worker::new(solver, solution.clone(), conditions.clone());
+        let warm = SolveOptions { warm_start: true, ..options };
+        let (mut fast, mut trees) = (0, 0);
+        for k in 0..m.links().len() {
+            if !w.close(&base, &sweep, k, &warm) {
+                continue;
+            }
+            fast += 1;
+            trees += usize::from(base.structure.core_position[k] == NONE);
+            let mut closed = m.clone();
+            closed.set_status(k, LinkStatus::Closed).unwrap();
+            let want = crate::solve::solve(&closed).unwrap();
+            let got = &w.solution;
+            let id = &m.links()[k].id;
+            for (i, (a, b)) in got.head.iter().zip(&want.head).enumerate() {
+                assert!((a - b).abs() <= 1e-6 || (a.is_nan() && b.is_nan()), "{id} closed: head of {i}: {a} vs {b}");
+            }
+            for (i, (a, b)) in got.pressure.iter().zip(&want.pressure).enumerate() {
+                assert!(
+                    (a - b).abs() <= 1e-6 || (a.is_nan() && b.is_nan()),
+                    "{id} closed: pressure of {i}: {a} vs {b}"
+                );
+            }
+            for (j, (a, b)) in got.flow.iter().zip(&want.flow).enumerate() {
+                assert!((a - b).abs() <= 1e-9, "{id} closed: flow of {j}: {a} vs {b}");
+            }
+            for (j, (a, b)) in got.velocity.iter().zip(&want.velocity).enumerate() {
+                assert!((a - b).abs() <= 1e-7, "{id} closed: velocity of {j}: {a} vs {b}");
+            }
+            for (j, (a, b)) in got.headloss.iter().zip(&want.headloss).enumerate() {
+                assert!(
+                    (a - b).abs() <= 2e-6 || (a.is_nan() && b.is_nan()),
+                    "{id} closed: head loss of {j}: {a} vs {b}"
+                );
+            }
+            assert_eq!(got.connected, want.connected, "{id} closed");
+            assert_eq!(got.link_state, want.link_state, "{id} closed");
+            assert!(got.max_mass_residual <= 1e-7 * 1e-3f64.max(want.demand.iter().map(|d| d.abs()).sum()));
+            w.restore(&sweep);
+            // Restored: the next closure starts from the base case's solution.
+            assert_eq!(w.solution.connected, solution.connected);
+            assert_eq!(w.solution.link_state, solution.link_state);
+        }
+        let n = m.links().len();
+        assert!(fast * 10 >= n * 9, "{fast} of {n} closures on the fast path");
+        assert!(trees > 20, "{trees} tree pipes");
+        let p = w.paths;
+        assert!(p[0] > 0 && p[1] + p[3] > 0 && p[2] + p[3] > 0, "paths taken: {p:?}");
+    }
+
+    /// Tarjan's bridges on small graphs worked by hand: a triangle with a tail, parallel links
+    /// (never bridges) and a closed link (not a link of the graph).
+    #[test]
+    fn bridges_of_small_graphs() {
+        // 0-1-2-0 triangle, 2-3 tail, 3-4 twice (parallel), 4-5 closed.
+        let ends = [(0, 1), (1, 2), (2, 0), (2, 3), (3, 4), (4, 3), (4, 5)];
+        let open = [true, true, true, true, true, true, false];
+        let b = bridges(6, &ends, &open);
+        assert_eq!(b, [false, false, false, true, false, false, false]);
+        // A path: every link a bridge.
+        let ends = [(0, 1), (1, 2), (2, 3)];
+        assert_eq!(bridges(4, &ends, &[true; 3]), [true, true, true]);
+    }
+}
