@@ -116,6 +116,8 @@ struct Settled {
     iterations: u32,
     head_change: f64,
     flow_change: f64,
+    /// The largest energy residual of the core links at the answer, m.
+    residual: f64,
     rounds: u32,
     newton: bool,
 }
@@ -176,7 +178,8 @@ impl Solver {
                 || {
                     let mut solver = this.clone();
                     solver.use_chord(chord.clone());
-                    Worker::new(solver, solution.clone(), conditions.clone())
+                    let start = sweep.as_ref().map_or(solution, |s| &s.solution).clone();
+                    Worker::new(solver, start, conditions.clone())
                 },
                 |w, (i, &k)| {
                     if let Some(sweep) = &sweep {
@@ -243,9 +246,13 @@ impl Solver {
         for tree in structure.trees.iter().rev() {
             root_unknown[tree.child as usize] = root_unknown[tree.parent as usize];
         }
+        // What a closure's solution carries of the base case's: no warnings (see
+        // `solve_closures`).
+        let mut solution = solution.clone();
+        solution.warnings.clear();
         Some(SweepBase {
             chord,
-            solution: solution.clone(),
+            solution,
             bridge,
             tree_index,
             child_start,
@@ -379,9 +386,9 @@ impl Worker {
         }
         let answer = s.closure_steps(chord, &closure, &mut self.correction, options);
         let written = match answer {
-            Some(Settled { iterations, head_change, flow_change, rounds, newton }) => {
-                self.paths[usize::from(rounds > 0) + 2 * usize::from(newton)] += 1;
-                self.write(&structure, sweep, k, &closure, cut_demand, iterations, head_change, flow_change)
+            Some(settled) => {
+                self.paths[usize::from(settled.rounds > 0) + 2 * usize::from(settled.newton)] += 1;
+                self.write(&structure, sweep, k, &closure, cut_demand, &settled)
             }
             None => false,
         };
@@ -411,9 +418,7 @@ impl Worker {
         k: usize,
         closure: &Closure,
         cut_demand: f64,
-        iterations: u32,
-        head_change: f64,
-        flow_change: f64,
+        settled: &Settled,
     ) -> bool {
         let s = &mut self.solver;
         let out = &mut self.solution;
@@ -532,10 +537,12 @@ impl Worker {
                 return false;
             }
         }
-        out.iterations = iterations;
-        out.last_head_change = head_change;
-        out.last_flow_change = flow_change;
+        out.iterations = settled.iterations;
+        out.last_head_change = settled.head_change;
+        out.last_flow_change = settled.flow_change;
         out.max_mass_residual = worst;
+        // Tree pipes meet their energy equations exactly by construction.
+        out.max_energy_residual = settled.residual;
         true
     }
 
@@ -671,7 +678,7 @@ impl Solver {
                     && residual <= head_tolerance
                     && head_change < FLOOR_HEAD_CHANGE);
             if heads_settled && flow_change <= flow_tolerance {
-                return Some(Settled { iterations, head_change, flow_change, rounds, newton: own });
+                return Some(Settled { iterations, head_change, flow_change, residual, rounds, newton: own });
             }
             if own {
                 // Newton's steps from here on: a chord on a factor of the closure's own point
@@ -929,6 +936,8 @@ mod tests {
                     "{id} closed: head loss of {j}: {a} vs {b}"
                 );
             }
+            assert!((got.max_energy_residual - want.max_energy_residual).abs() <= 1e-6, "{id} closed: energy residual");
+            assert!(got.warnings.is_empty(), "{id} closed: a closure's solution carries no warnings");
             assert_eq!(got.connected, want.connected, "{id} closed");
             assert_eq!(got.link_state, want.link_state, "{id} closed");
             assert!(got.max_mass_residual <= 1e-7 * 1e-3f64.max(want.demand.iter().map(|d| d.abs()).sum()));
