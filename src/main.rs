@@ -12,7 +12,6 @@ mod exit;
 mod fire_flow;
 mod gis;
 mod import_cmd;
-mod json_text;
 mod map;
 mod output;
 mod plot;

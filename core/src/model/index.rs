@@ -79,6 +79,17 @@ impl IdIndex {
         Insert::Added
     }
 
+    /// Makes room for `additional` more ids without growing (and so without hashing every id
+    /// again) while they are added. `ids(k)` as for [`IdIndex::insert`].
+    pub(crate) fn reserve<'a>(&mut self, additional: usize, ids: impl Fn(usize) -> &'a str) {
+        let (hasher, hashes) = (&self.hasher, &self.hashes);
+        self.table.reserve(additional, |&k| match hashes.get(k as usize) {
+            Some(&hk) => spread(hk),
+            None => spread((hasher.hash_one(ids(k as usize)) >> 32) as u32),
+        });
+        self.hashes.reserve(additional);
+    }
+
     /// Drops the hashes kept while the model grew (lookups are unchanged).
     pub(crate) fn settle(&mut self) {
         self.hashes = Vec::new();
@@ -118,14 +129,16 @@ impl ReleasableIndex {
         self.0.get_mut().expect("the index was just made")
     }
 
+    /// Makes room for `additional` more ids in the index, unless it is released (it is then
+    /// made at its full size when next used).
+    pub(crate) fn reserve<'a>(&mut self, additional: usize, ids: impl Fn(usize) -> &'a str) {
+        if let Some(index) = self.0.get_mut() {
+            index.reserve(additional, ids);
+        }
+    }
+
     /// Frees the index.
     pub(crate) fn release(&mut self) {
         self.0 = OnceLock::new();
-    }
-
-    /// Whether the index is held (not released).
-    #[cfg(test)]
-    pub(crate) fn is_held(&self) -> bool {
-        self.0.get().is_some()
     }
 }

@@ -773,6 +773,17 @@ impl Model {
         self.link_index.get_mut(links.len(), |k| &links[k].id).settle();
     }
 
+    /// Makes room for `nodes` more nodes and `links` more links, in the element lists and the id
+    /// indices, so that adding them grows neither (a generator or an importer that knows its
+    /// counts: at a million elements each growth of an index hashes and moves every entry).
+    pub fn reserve(&mut self, nodes: usize, links: usize) {
+        self.nodes.reserve_exact(nodes);
+        self.links.reserve_exact(links);
+        let (all_nodes, all_links) = (&self.nodes, &self.links);
+        self.node_index.reserve(nodes, |k| &all_nodes[k].id);
+        self.link_index.reserve(links, |k| &all_links[k].id);
+    }
+
     /// Frees the id → position indices of the nodes and links (at a million elements some 20
     /// MB) for a caller that looks up no id, or few, from now on: the command-line `solve`
     /// frees them before solving. The first lookup or addition afterwards makes them again from
@@ -956,6 +967,34 @@ impl Model {
             Insert::Full => return Err(ModelError::at(Some(node.element()), None, "too many nodes in one model")),
         }
         self.nodes.push(node);
+        Ok(index)
+    }
+
+    /// [`Model::add_node`] for a node whose id the caller knows to be unused (the generator's
+    /// numbered ids): its values are checked, its id is not looked up. The id indices are freed
+    /// and made again at the next lookup (as after [`Model::release_id_index`]), so that a
+    /// million additions do not each probe an index far larger than the caches.
+    pub(crate) fn add_node_with_new_id(&mut self, node: Node) -> Result<usize, ModelError> {
+        Self::check_node(&node)?;
+        let index = self.nodes.len();
+        if u32::try_from(index).is_err() {
+            return Err(ModelError::at(Some(node.element()), None, "too many nodes in one model"));
+        }
+        self.node_index.release();
+        self.nodes.push(node);
+        Ok(index)
+    }
+
+    /// [`Model::add_link`] for a link whose id the caller knows to be unused (see
+    /// [`Model::add_node_with_new_id`]); its values and end nodes are checked.
+    pub(crate) fn add_link_with_new_id(&mut self, link: Link) -> Result<usize, ModelError> {
+        self.check_link(&link)?;
+        let index = self.links.len();
+        if u32::try_from(index).is_err() {
+            return Err(ModelError::at(Some(link.element()), None, "too many links in one model"));
+        }
+        self.link_index.release();
+        self.links.push(link);
         Ok(index)
     }
 
