@@ -41,7 +41,7 @@
 use crate::error::{Element, ModelError, SolveError};
 use crate::model::{Model, NodeKind};
 use crate::physics::friction::HW_FLOW_EXPONENT;
-use crate::solve::{Conditions, HeldHead, Solution, SolveOptions, Solver};
+use crate::solve::{Conditions, HeldHead, LightBase, Solution, SolveOptions, Solver};
 
 /// What limits the available fire flow.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -179,7 +179,9 @@ fn fire_flows_with(
     let mut solver = Solver::new(model)?;
     let solve_options = SolveOptions::from_model(model);
     let without = solver.solve(model, &conditions, &solve_options)?;
+    let light = if method == Method::Held { solver.light_base(model, &conditions, &without) } else { None };
     let context = Context {
+        light: light.as_ref(),
         model,
         conditions: &conditions,
         without: &without,
@@ -194,7 +196,7 @@ fn fire_flows_with(
     let chunks: Vec<Result<Vec<FireFlow>, SolveError>> = hydrants
         .par_chunks(CHUNK)
         .map(|chunk| {
-            let mut worker = Worker { solver: solver.clone(), conditions: None, last: 0.0 };
+            let mut worker = Worker { solver: solver.clone(), conditions: None, last: 0.0, from_base: true };
             chunk.iter().map(|&h| context.hydrant(&mut worker, h)).collect()
         })
         .collect();
@@ -217,6 +219,8 @@ struct Context<'a> {
     options: FireFlowOptions,
     solve_options: SolveOptions,
     method: Method,
+    /// The base case of light held solves, where they serve the network.
+    light: Option<&'a LightBase>,
 }
 
 /// One thread's own solver, and its copy of the conditions for the search (made on first use).
@@ -224,12 +228,22 @@ struct Worker {
     solver: Solver,
     conditions: Option<Conditions>,
     last: f64,
+    /// Whether the next light held solve starts from the base case (the solver's last point
+    /// is not a light solve's answer).
+    from_base: bool,
 }
 
 impl Context<'_> {
     /// The draw at `hydrant` that holds the pressure at `node` at the residual, with the pressures
     /// there; `None` when a held solve cannot answer (see the module docs).
-    fn held(&self, solver: &mut Solver, hydrant: usize, node: usize, start: f64) -> Option<(f64, Vec<f64>)> {
+    fn held(&self, worker: &mut Worker, hydrant: usize, node: usize, start: f64) -> Option<(f64, Vec<f64>)> {
+        if let Some(base) = self.light {
+            if let Some(found) = self.held_light(worker, base, hydrant, node, start) {
+                return Some(found);
+            }
+        }
+        worker.from_base = true;
+        let solver = &mut worker.solver;
         let model = self.model;
         let mut held =
             HeldHead { draw_at: hydrant, node, head: model.nodes()[node].elevation + self.options.residual, start };
@@ -253,6 +267,48 @@ impl Context<'_> {
                 return Some((draw, solution.pressure));
             }
             options.head_tolerance *= 1e-2;
+        }
+        None
+    }
+
+    /// [`Context::held`] by light held solves, each from the worker's last answer (or from the
+    /// base case after anything else).
+    fn held_light(
+        &self,
+        worker: &mut Worker,
+        base: &LightBase,
+        hydrant: usize,
+        node: usize,
+        start: f64,
+    ) -> Option<(f64, Vec<f64>)> {
+        let model = self.model;
+        let mut held =
+            HeldHead { draw_at: hydrant, node, head: model.nodes()[node].elevation + self.options.residual, start };
+        let mut options = self.solve_options;
+        let mut pressure = Vec::with_capacity(model.nodes().len());
+        for _ in 0..3 {
+            let from_base = worker.from_base;
+            match worker.solver.solve_holding_light(model, base, &options, held, from_base, &mut pressure) {
+                Ok(draw) => {
+                    worker.from_base = false;
+                    if !(0.0..=MAX_DRAW).contains(&draw) {
+                        return None;
+                    }
+                    if worker.solver.held_draw_step() <= FLOW_TOLERANCE {
+                        return Some((draw, pressure));
+                    }
+                    // Once more from there, to a hundredfold tighter head tolerance.
+                    held.start = draw;
+                    options.head_tolerance *= 1e-2;
+                }
+                // A start from a neighbour's answer far from this one: once more from the base
+                // case without a draw.
+                Err(_) if !from_base => {
+                    worker.from_base = true;
+                    held.start = 0.0;
+                }
+                Err(_) => return None,
+            }
         }
         None
     }
@@ -291,7 +347,7 @@ impl Context<'_> {
             notes.push("the hydrant is at or below the residual pressure without a fire draw".to_owned());
             0.0
         } else {
-            let fast = if held { self.held(&mut worker.solver, h, h, start).filter(|(q, _)| *q > 0.0) } else { None };
+            let fast = if held { self.held(worker, h, h, start).filter(|(q, _)| *q > 0.0) } else { None };
             match fast {
                 Some((q, p)) => {
                     sample = Some((q, p));
@@ -390,7 +446,7 @@ impl Context<'_> {
         };
         for _ in 0..MAX_HELD {
             let start = sample.as_ref().map_or(0.0, |s| s.0);
-            let (q, p) = self.held(&mut worker.solver, h, node, start)?;
+            let (q, p) = self.held(worker, h, node, start)?;
             let (lowest, at) =
                 protected.iter().map(|&i| (i, p[i])).fold((node, p[node]), |a, b| if b.1 < a.1 { b } else { a });
             if at >= residual - TIE {
@@ -413,6 +469,7 @@ impl Context<'_> {
         measure: &dyn Fn(&[f64]) -> f64,
     ) -> Result<Option<(f64, Vec<f64>)>, SolveError> {
         *searched = true;
+        worker.from_base = true;
         let conditions = worker.conditions.get_or_insert_with(|| self.conditions.clone());
         let mut draw =
             Draw { model: self.model, conditions, solver: &mut worker.solver, options: self.solve_options, hydrant: h };
