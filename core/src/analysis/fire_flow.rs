@@ -288,7 +288,18 @@ impl Context<'_> {
         let mut pressure = Vec::with_capacity(model.nodes().len());
         for _ in 0..3 {
             let from_base = worker.from_base;
-            match worker.solver.solve_holding_light(model, base, &options, held, from_base, &mut pressure) {
+            // The hydrant's own limit may end on its draw's tolerance: its pressures only
+            // estimate which junction the system limit holds first.
+            let draw_tolerance = if node == hydrant { 0.1 * FLOW_TOLERANCE } else { 0.0 };
+            match worker.solver.solve_holding_light(
+                model,
+                base,
+                &options,
+                held,
+                from_base,
+                draw_tolerance,
+                &mut pressure,
+            ) {
                 Ok(draw) => {
                     worker.from_base = false;
                     if !(0.0..=MAX_DRAW).contains(&draw) {

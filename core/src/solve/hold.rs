@@ -29,7 +29,9 @@
 //! Device states and relations of pressure work as in a plain solve: the border only changes the
 //! step's corrections and the draw; the damping of the iteration damps the draw's step as well.
 
-use super::assemble::RelationChange;
+use super::assemble::{
+    link_ends, RelationChange, FREE_FROM, FREE_TO, LAW_GENERAL, MODE_FIXED_FLOW, MODE_LAW, MODE_MASK,
+};
 use super::chord::{backward, forward};
 use super::iterate::MASS_GATE;
 use super::status::StatusTracker;
@@ -75,6 +77,10 @@ pub(super) struct Hold {
     w: Vec<f64>,
     /// A light solve's `L⁻¹ e_t` (the held junction's unknown).
     z: Vec<f64>,
+    /// The conductances of the core links in the solver's current factor (light solves), and
+    /// whether that factor is one of a light solve that succeeded.
+    cp_factored: Vec<f64>,
+    factored: bool,
     /// For each node, the position in `Structure::trees` of the tree pipe to its parent
     /// (`NONE` for core nodes); made once per solver.
     parent: Vec<u32>,
@@ -100,9 +106,9 @@ impl Solver {
                 ModelError::at(Some(Element::Node(id)), Some("head"), format!("is not finite: {}", held.head)).into()
             );
         }
-        let (w, z, parent) = match self.hold.take() {
-            Some(h) => (h.w, h.z, h.parent),
-            None => (Vec::new(), Vec::new(), Vec::new()),
+        let (w, z, parent, cp_factored, factored) = match self.hold.take() {
+            Some(h) => (h.w, h.z, h.parent, h.cp_factored, h.factored),
+            None => (Vec::new(), Vec::new(), Vec::new(), Vec::new(), false),
         };
         if !held.start.is_finite() {
             let id = model.nodes()[held.draw_at].id.to_string();
@@ -124,6 +130,8 @@ impl Solver {
             w,
             z,
             parent,
+            cp_factored,
+            factored,
         }));
         Ok(())
     }
@@ -320,6 +328,18 @@ impl Solver {
     }
 }
 
+/// Largest head change (m) of a light solve's step after which the next steps are chord steps
+/// on its factor: conductances move by well under a percent in such a step.
+pub const CHORD_HEAD: f64 = 0.05;
+/// Largest ratio of a chord step's head change to the step before's for the chord to go on.
+pub const CHORD_CONTRACTION: f64 = 0.5;
+/// Share of the tolerances within which a chord step's changes must be to end the iteration.
+pub const CHORD_MARGIN: f64 = 0.5;
+/// Most chord steps in a row.
+const CHORD_STEPS: u32 = 20;
+/// Largest head change (m) of the step that ends a light solve on its draw's tolerance.
+pub const LOOSE_HEAD: f64 = 1e-2;
+
 /// The base case of light held solves ([`Solver::solve_holding_light`]): its solution's flows
 /// and heads, where a light solve may start, its fixed outflows and which junctions it reaches
 /// (no draw changes them: the network it serves has no device states and no relations of
@@ -374,6 +394,21 @@ impl Solver {
     /// The solve starts from the base case's point (`from_base`) or from this solver's last
     /// point (the answer at a neighbouring hydrant: flows of the size of its own), with the draw
     /// at `held.start`. On an error the solver is put back at the base case's point.
+    ///
+    /// Steps near the answer reuse the last factor (chord steps, as `chord.rs` takes them: the
+    /// conductances of that factor in the matrix and in the constants alike, so that their fixed
+    /// point is the exact solution): a step whose heads moved by at most [`CHORD_HEAD`] is
+    /// followed by chord steps while each shrinks the head change to at most
+    /// [`CHORD_CONTRACTION`] of the step before; one that does not gives way to Newton steps. A
+    /// chord step may end the iteration with its changes within [`CHORD_MARGIN`] of the
+    /// tolerances (the distance to the fixed point is then at most its last change). A solve
+    /// that continues from the last light solve's answer starts with chord steps on its factor.
+    ///
+    /// With `draw_tolerance` above zero the iteration also ends once the draw's step is within it,
+    /// the heads' change within [`LOOSE_HEAD`] and at most a fifth of the step before (the
+    /// iteration converging faster than linearly): the draw is then within a fraction of its
+    /// last step of the held answer, and the heads within a fraction of their last change.
+    #[allow(clippy::too_many_arguments)]
     pub fn solve_holding_light(
         &mut self,
         model: &Model,
@@ -381,6 +416,7 @@ impl Solver {
         options: &SolveOptions,
         held: HeldHead,
         from_base: bool,
+        draw_tolerance: f64,
         pressure: &mut Vec<f64>,
     ) -> Result<f64, SolveError> {
         self.set_hold(model, held)?;
@@ -396,13 +432,23 @@ impl Solver {
         self.reset_hold();
         self.demand_scale = self.demand.iter().map(|d| d.abs()).sum::<f64>().max(1e-3);
         self.tree_flows();
-        self.linearise(false);
-        self.begin_assembly();
-        for i in 0..self.structure.core.len() {
-            self.scatter(i);
+        let chord =
+            !from_base && self.hold.as_ref().is_some_and(|h| h.factored && h.cp_factored.len() == self.cp.len());
+        if chord {
+            self.light_chord_start();
+        } else {
+            self.linearise(false);
+            self.begin_assembly();
+            for i in 0..self.structure.core.len() {
+                self.scatter(i);
+            }
+            self.end_assembly();
         }
-        self.end_assembly();
-        let result = self.light_iterate(model, options).and_then(|()| self.light_answer(model, pressure));
+        let result =
+            self.light_iterate(model, options, chord, draw_tolerance).and_then(|()| self.light_answer(model, pressure));
+        if let Some(h) = self.hold.as_mut() {
+            h.factored &= result.is_ok();
+        }
         let draw = self.hold.as_ref().map_or(0.0, |h| h.draw);
         if let Some(h) = self.hold.as_mut() {
             h.held = HeldHead { draw_at: usize::MAX, ..h.held };
@@ -424,11 +470,20 @@ impl Solver {
         self.unknown_head.copy_from_slice(&base.unknown_head);
     }
 
-    /// The bordered Newton steps of a light held solve, from the assembled first step to the
-    /// solver's convergence test (as `iterate`'s, the draw's change included).
-    fn light_iterate(&mut self, model: &Model, options: &SolveOptions) -> Result<(), SolveError> {
+    /// The bordered steps of a light held solve (Newton steps, chord steps near the answer),
+    /// from the assembled first step to the solver's convergence test (as `iterate`'s, the
+    /// draw's change included; see [`Solver::solve_holding_light`]).
+    fn light_iterate(
+        &mut self,
+        model: &Model,
+        options: &SolveOptions,
+        mut chord: bool,
+        draw_tolerance: f64,
+    ) -> Result<(), SolveError> {
         let structure = self.structure.clone();
         let mut iterations = 0u32;
+        let mut chord_steps = 0u32;
+        let mut last_step = f64::INFINITY;
         loop {
             if iterations >= options.max_iterations {
                 return Err(SolveError::Numerical {
@@ -437,30 +492,52 @@ impl Solver {
                 });
             }
             iterations += 1;
-            self.factor.factor(&structure).map_err(|_| SolveError::Numerical {
-                iteration: iterations,
-                detail: "a pivot is not positive".to_owned(),
-            })?;
+            if chord {
+                chord_steps += 1;
+            } else {
+                chord_steps = 0;
+                self.factor.factor(&structure).map_err(|_| SolveError::Numerical {
+                    iteration: iterations,
+                    detail: "a pivot is not positive".to_owned(),
+                })?;
+                if let Some(h) = self.hold.as_mut() {
+                    h.cp_factored.clear();
+                    h.cp_factored.extend_from_slice(&self.cp);
+                    h.factored = true;
+                }
+            }
             forward(&structure, self.factor.l_values(), &mut self.rhs, 0);
             let dq = self.light_border(model, iterations)?;
             backward(&structure, self.factor.l_values(), &mut self.rhs);
             std::mem::swap(&mut self.rhs, &mut self.delta);
-            let mut head_change = 0.0f64;
+            let mut step = 0.0f64;
             let mut finite = true;
             for (u, &delta) in self.delta.iter().enumerate() {
                 if self.free[u] {
                     finite &= delta.is_finite();
-                    head_change = head_change.max(delta.abs());
+                    step = step.max(delta.abs());
                     self.unknown_head[u] += delta;
                 }
             }
-            if iterations == 1 {
-                head_change = f64::INFINITY;
-            }
+            let head_change = if iterations == 1 { f64::INFINITY } else { step };
             self.hold_apply(dq);
-            self.begin_assembly();
-            let (change, energy_residual) = self.update_links(model, false, RelationChange::default(), 1.0);
-            self.end_assembly();
+            // A chord step that contracted too little (or a NaN) stalls the chord; it may not end
+            // the iteration, and Newton steps follow.
+            let contracted = step <= CHORD_CONTRACTION * last_step;
+            let share = match (chord, contracted) {
+                (false, _) => 1.0,
+                (true, true) => CHORD_MARGIN,
+                (true, false) => 0.0,
+            };
+            chord = (!chord || contracted) && step <= CHORD_HEAD && chord_steps < CHORD_STEPS;
+            let (change, energy_residual) = if chord {
+                self.light_chord_update()
+            } else {
+                self.begin_assembly();
+                let result = self.update_links(model, false, RelationChange::default(), 1.0);
+                self.end_assembly();
+                result
+            };
             let flow_change = change.max(self.hold_change());
             if !finite || !flow_change.is_finite() {
                 return Err(SolveError::Numerical {
@@ -468,7 +545,7 @@ impl Solver {
                     detail: "heads or flows became NaN".into(),
                 });
             }
-            let (head_tolerance, flow_tolerance) = (options.head_tolerance, options.flow_tolerance);
+            let (head_tolerance, flow_tolerance) = (share * options.head_tolerance, share * options.flow_tolerance);
             // As `iterate`'s test (its floor clause included).
             let heads_settled = head_change <= head_tolerance
                 || (flow_change <= flow_tolerance
@@ -478,7 +555,107 @@ impl Solver {
             if heads_settled && flow_change <= flow_tolerance {
                 return Ok(());
             }
+            let draw_step = self.hold.as_ref().map_or(f64::INFINITY, |h| h.change);
+            if draw_tolerance > 0.0
+                && iterations > 1
+                && draw_step <= draw_tolerance
+                && step <= LOOSE_HEAD
+                && step <= 0.2 * last_step
+            {
+                return Ok(());
+            }
+            last_step = step;
         }
+    }
+
+    /// The first step of a light solve that continues from the last one's answer, on its factor:
+    /// the conductances of that factor, the constants `c = Q + p (ΔH − h(Q))` from them at the
+    /// current point, and the right-hand side.
+    fn light_chord_start(&mut self) {
+        if let Some(h) = self.hold.as_ref() {
+            self.cp.copy_from_slice(&h.cp_factored);
+        }
+        for (r, &d) in self.rhs.iter_mut().zip(&self.unknown_demand) {
+            *r = -d;
+        }
+        let structure = &*self.structure;
+        for (i, c) in structure.core.iter().enumerate() {
+            let mode = self.mode[i];
+            match mode & MODE_MASK {
+                MODE_LAW => {
+                    let ((_, h_from), (_, h_to)) = link_ends(c, &self.delta, &self.unknown_head, &self.head);
+                    let q = self.cq[i];
+                    let y = self.light_loss(i, q);
+                    self.cc[i] = q + self.cp[i] * (h_from - h_to - y);
+                }
+                MODE_FIXED_FLOW => self.cc[i] = self.cq[i],
+                _ => continue,
+            }
+            if mode & FREE_FROM != 0 {
+                self.rhs[c.slots.from as usize] -= self.cc[i];
+            }
+            if mode & FREE_TO != 0 {
+                self.rhs[c.slots.to as usize] += self.cc[i];
+            }
+        }
+        for (r, &free) in self.rhs.iter_mut().zip(&self.free) {
+            if !free {
+                *r = 0.0;
+            }
+        }
+    }
+
+    /// Head loss of core link `i` at flow `q`.
+    #[inline]
+    fn light_loss(&self, i: usize, q: f64) -> f64 {
+        if self.mode[i] & LAW_GENERAL != 0 {
+            self.laws[self.structure.core[i].link as usize].evaluate_exact(q).0
+        } else {
+            let hot = self.hot[i];
+            super::links::hazen_williams(hot.r, hot.minor, q).0
+        }
+    }
+
+    /// The pass after a step that prepares a chord step (as `update_links`, but every link keeps
+    /// the conductance of the factor, and only the right-hand side is filled). Returns the
+    /// relative flow change and the largest energy residual.
+    fn light_chord_update(&mut self) -> (f64, f64) {
+        let (mut sum_dq, mut sum_q, mut residual) = (0.0, self.tree_flow_sum, 0.0f64);
+        for (r, &d) in self.rhs.iter_mut().zip(&self.unknown_demand) {
+            *r = -d;
+        }
+        let structure = self.structure.clone();
+        for (i, c) in structure.core.iter().enumerate() {
+            let mode = self.mode[i];
+            match mode & MODE_MASK {
+                MODE_LAW => {
+                    let ((d_from, h_from), (d_to, h_to)) = link_ends(c, &self.delta, &self.unknown_head, &self.head);
+                    let p = self.cp[i];
+                    let q = self.cc[i] + p * (d_from - d_to);
+                    let dh = h_from - h_to;
+                    let y = self.light_loss(i, q);
+                    residual = residual.max((y - dh).abs());
+                    sum_dq += (q - self.cq[i]).abs();
+                    sum_q += q.abs();
+                    self.cq[i] = q;
+                    self.cc[i] = q + p * (dh - y);
+                }
+                MODE_FIXED_FLOW => sum_q += self.cq[i].abs(),
+                _ => continue,
+            }
+            if mode & FREE_FROM != 0 {
+                self.rhs[c.slots.from as usize] -= self.cc[i];
+            }
+            if mode & FREE_TO != 0 {
+                self.rhs[c.slots.to as usize] += self.cc[i];
+            }
+        }
+        for (r, &free) in self.rhs.iter_mut().zip(&self.free) {
+            if !free {
+                *r = 0.0;
+            }
+        }
+        (sum_dq / sum_q.max(self.demand_scale), residual)
     }
 
     /// A light step's border, between the halves of the plain step's solve: with `y = L⁻¹ r` in
@@ -701,12 +878,12 @@ mod tests {
             let head = m.nodes()[t].elevation + 14.0;
             let held = HeldHead { draw_at: h, node: t, head, start: 0.0 };
             let want = solver.clone().solve_holding(&m, &conditions, &options, held);
-            let got = light.solve_holding_light(&m, &base, &options, held, from_base, &mut pressure);
+            let got = light.solve_holding_light(&m, &base, &options, held, from_base, 0.0, &mut pressure);
             match (want, got) {
                 (Ok((s, q)), Ok(g)) => {
                     assert!((q - g).abs() <= 1e-7 * q.abs().max(1e-2), "{h} {t}: {q} vs {g}");
                     for (a, b) in s.pressure.iter().zip(&pressure) {
-                        assert!((a - b).abs() <= 1e-5, "{h} {t}: {a} vs {b}");
+                        assert!((a - b).abs() <= 1e-5 * a.abs().max(1.0), "{h} {t}: {a} vs {b}");
                     }
                     from_base = k % 3 == 0;
                     answered += 1;
