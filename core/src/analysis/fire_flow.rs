@@ -30,6 +30,15 @@
 //! pressures while the fire draw is fixed. A draw that changes in its last step by more than
 //! [`FLOW_TOLERANCE`] is solved again with a hundredfold tighter head tolerance.
 //!
+//! Where the network has no device states and no relations of pressure (a draw then changes
+//! neither which links carry flow nor which junctions the sources reach), each held solve is a
+//! light one ([`Solver::solve_holding_light`]): no device logic, no full solution (only the
+//! pressures the analysis reads), the border from two sparse forward solves, and chord steps on
+//! the last factor near the answer; the hydrant's own limit may end once its draw's step is a
+//! tenth of [`FLOW_TOLERANCE`] (its pressures serve only to estimate which junction the system
+//! limit holds first). Elsewhere, and wherever a light solve fails, the general held solve
+//! answers.
+//!
 //! When the held solve cannot answer (a held head that does not follow the draw: a check valve
 //! or a regulating valve between them; a draw that would be negative or above [`MAX_DRAW`]),
 //! that limit falls back to the search on the draw ([`fire_flows_by_search`], also the reference

@@ -183,7 +183,7 @@ impl Factor {
                 d -= lkj * lkj;
                 l[slot] = lkj;
             }
-            if !(d > 0.0) {
+            if d.is_nan() || d <= 0.0 {
                 // As faer reports it (the position after the pivot's).
                 return Err(NotPositive { unknown: k + 1 });
             }

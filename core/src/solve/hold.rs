@@ -746,7 +746,7 @@ impl Solver {
             .filter(|(n, _)| n.fixed_head().is_none())
             .map(|(_, b)| b.abs())
             .fold(0.0, f64::max);
-        if !(worst <= MASS_GATE * self.demand_scale) {
+        if worst.is_nan() || worst > MASS_GATE * self.demand_scale {
             return Err(SolveError::Numerical {
                 iteration: 0,
                 detail: format!("the held solve's mass balance is off by {worst} m3/s"),
