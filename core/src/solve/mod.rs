@@ -93,6 +93,7 @@ pub mod hold;
 mod iterate;
 pub mod links;
 pub mod nodes;
+mod search;
 mod solution;
 pub mod status;
 pub mod structure;
