@@ -13,7 +13,7 @@ use crate::model::{LinkKind, Model, ValveType};
 use std::time::Instant;
 
 /// Largest mass residual of an answer, relative to the flow scale of the solve.
-const MASS_GATE: f64 = 1e-7;
+pub(super) const MASS_GATE: f64 = 1e-7;
 
 /// Largest head change (m) the stopping test puts down to the floating-point floor of the heads
 /// (heads of a network are at most some thousand metres; their round-off, even at a million
