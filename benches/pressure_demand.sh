@@ -6,10 +6,10 @@
 # iterations, the solver's own time (`--timings`, best of three) and the share of junctions below
 # full pressure of each. Target: the pressure-dependent solve takes at most twice the iterations
 # and twice the time of the demand-driven one.
-# Usage: benches/pressure_demand.sh [N] [FACTOR]   (needs `cargo build --release` first)
+# Usage: [BIN=path/to/ringmain] benches/pressure_demand.sh [N] [FACTOR]   (needs `cargo build --release` first)
 set -euo pipefail
 cd "$(dirname "$0")/.."
-bin=target/release/ringmain
+bin=${BIN:-target/release/ringmain}
 n=${1:-100000}
 factor=${2:-2.5}
 dir=$(mktemp -d)

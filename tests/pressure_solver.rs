@@ -127,11 +127,11 @@ fn network() -> impl Strategy<Value = Net> {
         })
 }
 
-// The property tests below run from a fixed seed (`common::property_config`). Known limit,
-// measured with 400 random cases: a few networks of very small pipes asked for large demands
-// (pressures far below zero at most junctions) stop with a "did not converge" error naming a
-// junction — never with a wrong answer: the solver's last gate checks every relation against its
-// exact curve.
+// The property tests below run from a fixed seed (`common::property_config`). Widened by hand to
+// 1,000 cases × 3 seeds (`PROPTEST_CASES=1000 PROPTEST_RNG_SEED=1..3`), every random network
+// converges, in 2 to 41 iterations (median 6). Before the line search of `search.rs`, a few
+// networks of very small pipes asked for large demands stopped with "did not converge" errors,
+// or short of the relations' curves (see the test named after that fault below).
 
 fn solve(m: &Model) -> Solution {
     ringmain_core::solve(m).unwrap_or_else(|e| panic!("{e}"))
@@ -170,7 +170,7 @@ fn check_relations(net: &Net, m: &Model, s: &Solution) -> Result<(), TestCaseErr
 }
 
 proptest! {
-    #![proptest_config(common::property_config(64))]
+    #![proptest_config(common::property_config(128))]
 
     #[test]
     fn relations_and_mass_balance_hold(net in network()) {
@@ -217,8 +217,13 @@ proptest! {
             prop_assert!((pressure.head[i] - driven.head[i]).abs() <= 1e-5, "head {i}: {} vs {}", pressure.head[i], driven.head[i]);
             prop_assert!((pressure.delivered(i) - driven.demand[i]).abs() <= 1e-9 * driven.demand[i].abs().max(1e-6));
         }
+        // Each solve stops when its flows move by at most 1e-6 of all the water moving (the
+        // relative flow tolerance, Σ|ΔQ|/Σ|Q|): a small flow in a loop is known to that share of
+        // the total, not of itself.
+        let total: f64 = net.junctions.iter().map(|j| j.1).sum();
         for k in 0..m.links().len() {
-            prop_assert!((pressure.flow[k] - driven.flow[k]).abs() <= 1e-6 * driven.flow[k].abs().max(1e-3));
+            let bound = 1e-6 * driven.flow[k].abs().max(total);
+            prop_assert!((pressure.flow[k] - driven.flow[k]).abs() <= bound, "flow {k}: {} vs {}", pressure.flow[k], driven.flow[k]);
         }
     }
 
@@ -546,4 +551,34 @@ fn the_simulation_balance_counts_leakage_outlets_and_shortfall() {
     assert!(residual.abs() <= 1e-6 * supplied.abs().max(1.0), "{b}");
     assert!((residual - f("discrepancy")).abs() <= 1e-9 * supplied.abs().max(1.0), "{b}");
     assert!(f("not_delivered") > 0.0, "the scenario falls short of pressure: {b}");
+}
+
+/// The fault this names: a junction whose demand (exponent 1.5) and outlet took turns crossing
+/// their kinks, full Newton steps throwing one into its barrier and back for ten steps; damped
+/// after a dozen, the iteration then stopped on a head change of 1e-6 m with the outlet still
+/// 5e-6 m off its curve (beyond the four tolerances `check_relations` allows). With the step
+/// length chosen on the content function and the stopping test asking every relation to be on its
+/// curve, it converges quadratically in a handful of steps.
+#[test]
+fn a_demand_and_an_outlet_crossing_their_kinks_in_turn_settle_on_their_curves() {
+    let small = (0.0, 0.0005, 0.0);
+    let net = Net {
+        head: 68.26577387807941,
+        junctions: vec![small, small, small, small, (0.0, 0.01038046187782691, 0.000631069117265206)],
+        pipes: vec![
+            (0, 1, 100.0, 0.05, 80.0),
+            (0, 2, 100.0, 0.05, 80.0),
+            (0, 3, 100.0, 0.05, 80.0),
+            (0, 4, 100.0, 0.05, 80.0),
+            (0, 5, 832.893942216794, 0.06756480862773827, 110.39208935209618),
+        ],
+        relation: (28.234948937082358, 4.967492064908513, 1.5),
+        leakage: (0.0, 20.0, 0.5),
+    };
+    let m = net.build();
+    let s = solve(&m);
+    check_relations(&net, &m, &s).unwrap();
+    // 23 iterations before the line search, and an answer off its curve; now 12 full steps, one
+    // to rebalance and one searched.
+    assert!(s.iterations <= 16, "{} iterations", s.iterations);
 }

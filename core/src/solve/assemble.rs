@@ -322,7 +322,16 @@ pub(super) struct RelationChange {
     pub sum_q: f64,
     /// Largest |p − P(q)| on the regularised relations, m.
     pub residual: f64,
+    /// Largest |p − P(q)| of the relations whose flow is off its curve by more than round-off
+    /// ([`RELATION_ROUNDOFF`] of it), m. On a barrier (slopes up to 10¹⁴ s/m² and more) one unit
+    /// in the last place of the flow is worth 10⁻⁵ m of pressure: no head tolerance can be asked
+    /// there, and none needs to be (the flow is exact to round-off).
+    pub unsettled: f64,
 }
+
+/// Relative change of a relation's flow below which it counts as round-off (a few units in the
+/// last place).
+pub(super) const RELATION_ROUNDOFF: f64 = 1e-14;
 
 impl Solver {
     /// Head of junction `node` in the iteration.
@@ -371,7 +380,12 @@ impl Solver {
 
     /// New flows of the relations from the head corrections in `delta` (the heads already
     /// corrected), linearised at once for the next step and added to the next matrix.
-    pub(super) fn update_relations(&mut self, damping: f64) -> RelationChange {
+    ///
+    /// With `guard`, an exponent above one keeps the outflow at or above the exact outflow at the
+    /// new pressure ([`PowerLaw::advance`](crate::physics::outflow::PowerLaw::advance)); without
+    /// it (a step whose length the line search chose, see `search.rs`) the outflow follows the
+    /// Newton step, which keeps the mass balance the line search relies on.
+    pub(super) fn update_relations(&mut self, damping: f64, guard: bool) -> RelationChange {
         let mut change = RelationChange::default();
         for i in 0..self.relations.len() {
             let node = self.relations[i].node as usize;
@@ -382,7 +396,9 @@ impl Solver {
             let delta = if u != NONE && self.free[u as usize] { self.delta[u as usize] } else { 0.0 };
             let p = self.iterate_head(node) - self.relations[i].elevation;
             let r = &mut self.relations[i];
-            let q = if damping == 1.0 {
+            let q = if !guard {
+                r.q + damping * (r.step.constant + r.step.conductance * (delta / damping) - r.q)
+            } else if damping == 1.0 {
                 r.smooth.law.advance(r.step, delta, p)
             } else {
                 let full = r.smooth.law.advance(r.step, delta / damping, p - delta + delta / damping);
@@ -392,7 +408,11 @@ impl Solver {
             let g = 1.0 / inverse.slope;
             change.sum_dq += (q - r.q).abs();
             change.sum_q += q.abs();
-            change.residual = change.residual.max((p - inverse.pressure).abs());
+            let residual = (p - inverse.pressure).abs();
+            change.residual = change.residual.max(residual);
+            if residual > RELATION_ROUNDOFF * inverse.slope * q.abs() {
+                change.unsettled = change.unsettled.max(residual);
+            }
             r.q = q;
             r.step = Step { conductance: g, constant: q + g * (p - inverse.pressure) };
             self.scatter_relation(i);

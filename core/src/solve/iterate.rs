@@ -13,7 +13,7 @@ use crate::model::{LinkKind, Model, ValveType};
 use std::time::Instant;
 
 /// Largest mass residual of an answer, relative to the flow scale of the solve.
-const MASS_GATE: f64 = 1e-7;
+pub(super) const MASS_GATE: f64 = 1e-7;
 
 /// Largest head change (m) the stopping test puts down to the floating-point floor of the heads
 /// (heads of a network are at most some thousand metres; their round-off, even at a million
@@ -126,9 +126,19 @@ impl Solver {
             let draw_step = self.hold_step(model, iterations)?;
             head_change = 0.0;
             let mut finite = true;
-            // Relations of pressure make the Newton step's slopes span many orders of magnitude;
-            // an iteration that has not settled after a dozen full steps takes damped ones.
-            let damping = if self.relations.is_empty() || since_change <= DAMPING_AFTER {
+            // Relations of pressure make the Newton step's slopes span many orders of magnitude.
+            // Full Newton steps first: a relation thrown across its kink comes back in one step
+            // (its barrier is a straight line). An iteration that has not settled after a dozen
+            // of them has its step length chosen on the content function from then on
+            // (`search.rs`), after one full step without the outflow guard of
+            // `update_relations`, which restores the mass balance the search relies on; where
+            // the search's premises do not hold, it takes damped steps.
+            let slow = !self.relations.is_empty() && since_change > DAMPING_AFTER;
+            let unguarded = slow && self.searches_line(chord_step);
+            let searched = unguarded && since_change > DAMPING_AFTER + 1;
+            let damping = if searched {
+                self.line_search().0
+            } else if !slow || unguarded {
                 1.0
             } else if since_change <= 4 * DAMPING_AFTER {
                 0.5
@@ -165,10 +175,14 @@ impl Solver {
                 head_change = f64::INFINITY;
             }
             self.hold_apply(damping * draw_step);
+            // The largest |p − P(q)| of the relations of pressure at the new point, beyond
+            // round-off (none in chord steps, which run without them).
+            let mut relation_residual = 0.0;
             let (change, energy_residual) = if chord == Chord::Off {
                 // The next step's matrix is filled as the new flows are computed.
                 self.begin_assembly();
-                let relations = self.update_relations(damping);
+                let relations = self.update_relations(damping, !unguarded);
+                relation_residual = relations.unsettled;
                 let secant = !warm && iterations < SECANT_STEPS;
                 let result = self.update_links(model, secant, relations, damping);
                 self.end_assembly();
@@ -204,6 +218,12 @@ impl Solver {
                     detail: "heads or flows became NaN".into(),
                 });
             }
+            if damping < 1.0 {
+                // A shortened step's own size understates how far the iterate still is from the
+                // answer: the stopping test takes the full step's.
+                head_change /= damping;
+                flow_change /= damping;
+            }
             let (head_tolerance, flow_tolerance) = (share * options.head_tolerance, share * options.flow_tolerance);
             let heads_settled = head_change <= head_tolerance
                 // Heads that still move by more than a tight tolerance while every energy
@@ -220,7 +240,11 @@ impl Solver {
             // `update_links`): its last change is that node's mass residual, which must be a tenth
             // of the last gate's before the iteration may stop.
             let lag_settled = self.pinned.iter().all(|v| v.change <= 0.1 * MASS_GATE * self.demand_scale);
-            if heads_settled && flow_change <= flow_tolerance && lag_settled {
+            // Every relation of pressure on its (regularised) curve to the head tolerance: its flow
+            // may be tiny beside the network's flows, so the relative flow change alone does not
+            // show that it has settled (the last step's linearisation error stays in it).
+            let relations_settled = relation_residual <= options.head_tolerance;
+            if heads_settled && flow_change <= flow_tolerance && lag_settled && relations_settled {
                 if !tracker.has_devices() {
                     break;
                 }

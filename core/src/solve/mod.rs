@@ -94,6 +94,7 @@ pub mod hold;
 mod iterate;
 pub mod links;
 pub mod nodes;
+mod search;
 mod solution;
 pub mod status;
 pub mod structure;
@@ -102,7 +103,7 @@ pub mod topology;
 
 pub use batch::Scenario;
 pub use conditions::Conditions;
-pub use hold::HeldHead;
+pub use hold::{HeldHead, LightBase};
 pub use nodes::{NodeLaw, Relation};
 pub use solution::{OutflowSummary, PumpResult, Solution, Warning};
 pub use timings::Timings;

@@ -21,9 +21,11 @@
 //! right-hand side takes `−c`, exactly like a link to a fixed head. The matrix stays symmetric
 //! positive definite. `P` is strictly increasing, so the content of the whole network (the
 //! links' contents plus `∫P dq` of every relation) is strictly convex and the problem has exactly
-//! one solution. The iteration reaches it from the starts `tests/pressure_solver.rs` tries; where
-//! it stops short (networks of very small pipes asked for large demands), the last gates of
-//! `iterate.rs` make that an error, never an answer.
+//! one solution. The iteration takes full Newton steps first; one that has not settled after a
+//! dozen chooses its step lengths on that content function (`search.rs`), which makes it
+//! converge from any start, and it stops only with every relation on its curve to the head
+//! tolerance. Should it still stop short, the last gates of `iterate.rs` make that an error,
+//! never an answer.
 //!
 //! A junction with a relation stays in the core of the matrix: the dead-end trees (see
 //! [`structure`](super::structure)) are peeled only through junctions whose outflow is fixed,
