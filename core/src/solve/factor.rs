@@ -137,6 +137,9 @@ impl Factor {
         self.values = Vec::new();
         self.l_values = Vec::new();
         self.mem = MemBuffer::new(faer::dyn_stack::StackReq::EMPTY);
+        self.schedule = None;
+        self.x = Vec::new();
+        self.next = Vec::new();
     }
 
     /// Factors the current `values` and solves `A x = rhs` in place.
