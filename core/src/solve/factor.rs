@@ -131,6 +131,14 @@ impl Factor {
         }
     }
 
+    /// Frees the buffers (a one-off solve that has converged; a solver makes new ones before
+    /// it factors again).
+    pub(crate) fn release(&mut self) {
+        self.values = Vec::new();
+        self.l_values = Vec::new();
+        self.mem = MemBuffer::new(faer::dyn_stack::StackReq::EMPTY);
+    }
+
     /// Factors the current `values` and solves `A x = rhs` in place.
     pub fn factor_and_solve(&mut self, structure: &Structure, rhs: &mut [f64]) -> Result<(), NotPositive> {
         self.factor(structure)?;
