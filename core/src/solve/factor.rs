@@ -6,7 +6,7 @@
 //! Cholesky, operation for operation (so its values are the same to the last bit): row `k` of
 //! `L` is found by a sparse triangular solve whose pattern is the *reach* of column `k` of the
 //! matrix in the elimination tree. faer finds that pattern afresh at every call; here it is found
-//! once per structure, in faer's own order, and kept ([`Schedule`], shared by the clones of a
+//! once per structure, in faer's own order, and kept (`Schedule`, shared by the clones of a
 //! factor): a Newton iteration factors the same pattern many times. It takes one 32-bit index
 //! per off-diagonal entry of the factor (about 1 MB at 10⁵ junctions).
 
@@ -150,7 +150,7 @@ impl Factor {
     }
 
     /// Numeric factorization of `values`: faer's up-looking simplicial algorithm with the reach
-    /// of every row from the [`Schedule`] (see the [module docs](self)).
+    /// of every row kept from the first call (see the [module docs](self)).
     pub fn factor(&mut self, structure: &Structure) -> Result<(), NotPositive> {
         let n = structure.n;
         if n == 0 {
