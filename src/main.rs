@@ -12,7 +12,6 @@ mod exit;
 mod fire_flow;
 mod gis;
 mod import_cmd;
-mod json_text;
 mod map;
 mod output;
 mod plot;
@@ -473,13 +472,16 @@ fn solve(path: &Path, format: OutputFormat, output: Option<&Path>, timings: bool
     if let Err(code) = refuse_overwrite(path, &[("--output", output)]) {
         return code;
     }
-    let Ok(model) = load(path) else { return ExitCode::from(EXIT_INVALID) };
+    let Ok(mut model) = load(path) else { return ExitCode::from(EXIT_INVALID) };
     let reading = clock.elapsed();
+    // Nothing below looks an id up: the id indices' memory is the solve's (it would come back
+    // at the first lookup).
+    model.release_id_index();
     // Shown before solving: a typing mistake is most worth knowing when the solve then fails.
     let mut plausible = plausibility_warnings(&model);
     print_warnings(&plausible);
     let mut solver = None;
-    let solved = ringmain_core::Solver::new(&model).and_then(|s| solver.insert(s).solve_model(&model));
+    let solved = ringmain_core::Solver::new(&model).and_then(|s| solver.insert(s).solve_once(&model));
     let mut solution = match solved {
         Ok(s) => s,
         Err(SolveError::Model(e)) => {

@@ -4,7 +4,7 @@
 
 use crate::columnar::{Column, Kind, Table};
 use crate::csv;
-use crate::json_text;
+use ringmain_core::json_text;
 use ringmain_core::model::write::write_element_per_line;
 use ringmain_core::model::{LinkKind, Valve};
 use ringmain_core::physics::WaterProperties;
@@ -53,7 +53,7 @@ struct JsonNode<'a> {
 }
 
 impl JsonNode<'_> {
-    /// Appends the node as serde_json writes it on one line (see [`crate::json_text`]).
+    /// Appends the node as serde_json writes it on one line (see [`ringmain_core::json_text`]).
     fn push_to(&self, buf: &mut Vec<u8>) {
         let mut l = json_text::Line::open(buf);
         l.flag("connected", self.connected);
@@ -109,7 +109,7 @@ struct JsonLink<'a> {
 }
 
 impl JsonLink<'_> {
-    /// Appends the link as serde_json writes it on one line (see [`crate::json_text`]).
+    /// Appends the link as serde_json writes it on one line (see [`ringmain_core::json_text`]).
     fn push_to(&self, buf: &mut Vec<u8>) {
         let mut l = json_text::Line::open(buf);
         l.opt_flag("beyond_curve", self.beyond_curve);
@@ -311,7 +311,7 @@ impl<'a> Report<'a> {
 
     /// Writes the JSON report to `out`, one node or link a line; `out` is flushed at the end.
     ///
-    /// The arrays of nodes and links are formatted by hand ([`crate::json_text`]), in parallel
+    /// The arrays of nodes and links are formatted by hand ([`ringmain_core::json_text`]), in parallel
     /// chunks on large networks, and written as they are formatted (nothing the size of the
     /// network is built first); the rest goes through serde. The text is byte for byte the one
     /// serde_json writes for [`JsonReport`] (the tests compare them).

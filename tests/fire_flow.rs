@@ -301,6 +301,26 @@ fn held_solves_equal_the_search_with_pressure_dependent_demand() {
 }
 
 #[test]
+fn held_solves_equal_the_search_with_outlets_and_leakage() {
+    // Background leakage on every main (0.05 L/s per km at 50 m, exponent 1.18: a commonly quoted
+    // network average) and an orifice to atmosphere at every eleventh junction (0.1 L/s at 1 m,
+    // exponent 0.5: the orifice law); invented values. The outflows follow pressure, so the
+    // general held solve answers (the light one serves fixed outflows only).
+    let m = street_network(300, 4);
+    let mut doc: serde_json::Value =
+        serde_json::from_str(&ringmain_core::model::write::to_string(&m, Format::Json)).unwrap();
+    doc["leakage"] = serde_json::json!({ "rate": 0.05, "reference_pressure": 50.0, "exponent": 1.18 });
+    let nodes = doc["nodes"].as_array_mut().unwrap();
+    for node in nodes.iter_mut().filter(|n| n["kind"] == "junction").step_by(11) {
+        node["outlet"] = serde_json::json!({ "coefficient": 0.1, "exponent": 0.5 });
+    }
+    let leaky = ringmain_core::read_str(&doc.to_string(), Format::Json, "leaky.json").unwrap();
+    let hydrants: Vec<usize> = junctions(&leaky).into_iter().step_by(6).collect();
+    let found = held_equals_search(&leaky, &hydrants, 14.0, 1.0);
+    assert!(found.iter().all(|f| f.available() > 0.0));
+}
+
+#[test]
 fn held_solves_equal_the_search_with_pumps_valves_and_a_tank() {
     let path = concat!(env!("CARGO_MANIFEST_DIR"), "/examples/hillside.toml");
     let m = ringmain_core::read_str(&std::fs::read_to_string(path).unwrap(), Format::Toml, path).unwrap();

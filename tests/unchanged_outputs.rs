@@ -10,7 +10,10 @@
 //! The copies were made by the program of commit 6d297d5 and checked identical to the refactored
 //! program's output. The simulation's digest was blessed again after commit 17e7c08, which added
 //! two keys to the JSON summary's volume balance (`leaked` and `outlets`, 0.0 for this model):
-//! every other byte was checked unchanged. A deliberate change of output is blessed with `RINGMAIN_BLESS=1 cargo test --release
+//! every other byte was checked unchanged. The generator's model files (`ringmain generate`,
+//! 20 000 junctions as JSON and 2 000 as TOML, seed 7) are compared the same way, through their
+//! digests; those were made by the program of commit 67ec53d, whose JSON model writer was still
+//! serde_json's, before the writer formatted nodes and links by hand. A deliberate change of output is blessed with `RINGMAIN_BLESS=1 cargo test --release
 //! --test unchanged_outputs`, which rewrites the copies; the diff then shows what changed.
 
 use std::path::{Path, PathBuf};
@@ -86,4 +89,22 @@ fn the_demo_models_print_what_they_printed() {
     let series = run(&["simulate", "examples/hillside-day.toml", "--format", "json"]);
     let digest = format!("{:016x} {}\n", fnv1a64(&series), series.len());
     same_as_committed("hillside-day.json.fnv1a64", digest.as_bytes());
+}
+
+/// The generator's model files, byte for byte as the program wrote them before its JSON writer
+/// formatted nodes and links by hand (more than one batch of parallel chunks at 20 000
+/// junctions) and before it made ids and reserved its lists itself.
+#[test]
+fn the_generator_writes_what_it_wrote() {
+    let dir = PathBuf::from(env!("CARGO_TARGET_TMPDIR")).join("unchanged_outputs_generator");
+    let _ = std::fs::remove_dir_all(&dir);
+    std::fs::create_dir_all(&dir).expect("create scratch directory");
+    for (junctions, file) in [("20000", "generated-20000-seed7.json"), ("2000", "generated-2000-seed7.toml")] {
+        let path = dir.join(file);
+        let path_text = path.display().to_string();
+        run(&["generate", "--junctions", junctions, "--seed", "7", "--output", &path_text]);
+        let text = std::fs::read(&path).unwrap_or_else(|e| panic!("{path_text}: {e}"));
+        let digest = format!("{:016x} {}\n", fnv1a64(&text), text.len());
+        same_as_committed(&format!("{file}.fnv1a64"), digest.as_bytes());
+    }
 }

@@ -32,7 +32,7 @@
 //! Ids are `J<n>` for junctions, `R<n>` and `T<n>` for sources, `P<n>` for pipes.
 
 use crate::error::ModelError;
-use crate::model::{HydraulicOptions, Link, LinkKind, LinkStatus, Model, Node, NodeKind, Pipe, Tank};
+use crate::model::{HydraulicOptions, Id, Link, LinkKind, LinkStatus, Model, Node, NodeKind, Pipe, Tank};
 use crate::units::UnitSystem;
 
 /// Parameters of a generated network. [`NetworkSpec::new`] gives the documented defaults.
@@ -219,8 +219,8 @@ struct Builder {
 impl Builder {
     fn pipe(&mut self, from: usize, to: usize, length: f64, diameter: f64, c: f64) -> Result<(), ModelError> {
         self.links += 1;
-        self.model.add_link(Link {
-            id: compact_str::format_compact!("P{}", self.links),
+        self.model.add_link_with_new_id(Link {
+            id: numbered(b'P', self.links),
             from,
             to,
             status: LinkStatus::Open,
@@ -253,6 +253,11 @@ pub fn generate(spec: &NetworkSpec) -> Result<Model, ModelError> {
 
     let mut model = Model::new(UnitSystem::default(), HydraulicOptions::default());
     model.title = Some(format!("generated street network: {n} junctions, seed {}", spec.seed));
+    // Every count is known before the elements are added (the sources' below): no list grows.
+    // The ids are numbered, so unique by construction: they are not looked up as they are added
+    // (the model makes its id index at its first lookup).
+    let n_sources = n.div_ceil(spec.junctions_per_source).max(2);
+    model.reserve(n + n_sources, 0);
     let mut b = Builder { model, rng, links: 0 };
 
     // Grid junctions, row by row; the last row may be short.
@@ -272,8 +277,8 @@ pub fn generate(spec: &NetworkSpec) -> Result<Model, ModelError> {
     for (g, &(x, y)) in coords.iter().enumerate() {
         let elevation = ground(x, y, spec.terrain_relief, phase) + b.rng.range(-0.5, 0.5);
         let d = demand(&mut b.rng);
-        let node = Node { coordinates: Some((x, y)), ..Node::junction(format!("J{}", g + 1), round2(elevation), d) };
-        b.model.add_node(node)?;
+        let node = Node { coordinates: Some((x, y)), ..Node::junction(numbered(b'J', g + 1), round2(elevation), d) };
+        b.model.add_node_with_new_id(node)?;
     }
 
     // Streets: trunk lines always, the others unless missing; then the fewest missing streets
@@ -314,6 +319,7 @@ pub fn generate(spec: &NetworkSpec) -> Result<Model, ModelError> {
         }
     }
     kept.sort_unstable();
+    b.model.reserve(0, kept.len() + n_branch + n_sources);
     for (a, o, line) in kept {
         let is_trunk = line % trunk == 0;
         let (diameter, c) = if is_trunk {
@@ -362,9 +368,9 @@ pub fn generate(spec: &NetworkSpec) -> Result<Model, ModelError> {
             coords.push((x, y));
             let elevation = ground(x, y, spec.terrain_relief, phase) + b.rng.range(-0.5, 0.5);
             let d = demand(&mut b.rng);
-            b.model.add_node(Node {
+            b.model.add_node_with_new_id(Node {
                 coordinates: Some((x, y)),
-                ..Node::junction(format!("J{}", index + 1), round2(elevation), d)
+                ..Node::junction(numbered(b'J', index + 1), round2(elevation), d)
             })?;
             let diameter = if b.rng.unit() < 0.3 { 0.080 } else { 0.100 };
             let c = b.rng.range(100.0, 140.0);
@@ -375,7 +381,6 @@ pub fn generate(spec: &NetworkSpec) -> Result<Model, ModelError> {
     }
 
     // Sources on a lattice over the grid, each joined to the nearest trunk crossing.
-    let n_sources = n.div_ceil(spec.junctions_per_source).max(2);
     let sx = ((n_sources as f64 * nx as f64 / ny as f64).sqrt().round() as usize).clamp(1, n_sources);
     let sy = n_sources.div_ceil(sx);
     let mean_ground = spec.terrain_relief * 0.5;
@@ -408,22 +413,42 @@ pub fn generate(spec: &NetworkSpec) -> Result<Model, ModelError> {
                         max_level: Some(9.0),
                         diameter: Some(30.0),
                     })),
-                    ..Node::junction(format!("T{}", sources / 3 + 1), round2(floor), 0.0)
+                    ..Node::junction(numbered(b'T', sources / 3 + 1), round2(floor), 0.0)
                 }
             } else {
                 let head = mean_ground + spec.service_head;
                 Node {
                     coordinates: Some((x, y)),
-                    ..Node::reservoir(format!("R{}", sources - sources / 3 + 1), round2(head))
+                    ..Node::reservoir(numbered(b'R', sources - sources / 3 + 1), round2(head))
                 }
             };
-            let index = b.model.add_node(node)?;
+            let index = b.model.add_node_with_new_id(node)?;
             let c = b.rng.range(125.0, 140.0);
             b.pipe(index, target, 175.0, 0.600, c)?;
             sources += 1;
         }
     }
     Ok(b.model)
+}
+
+/// The id `prefix` followed by `n` in decimal (`J17`), made inline without formatting machinery
+/// (a million ids of each kind).
+fn numbered(prefix: u8, n: usize) -> Id {
+    let mut text = [0u8; 24];
+    let mut at = text.len();
+    let mut rest = n;
+    loop {
+        at -= 1;
+        text[at] = b'0' + (rest % 10) as u8;
+        rest /= 10;
+        if rest == 0 {
+            break;
+        }
+    }
+    at -= 1;
+    text[at] = prefix;
+    // ASCII digits after an ASCII prefix: always UTF-8.
+    Id::from(std::str::from_utf8(&text[at..]).unwrap_or_default())
 }
 
 fn round2(v: f64) -> f64 {
@@ -433,6 +458,36 @@ fn round2(v: f64) -> f64 {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// The numbered ids are unique (they are added without a lookup), and the model's id index,
+    /// made at the first lookup, finds each where it is.
+    #[test]
+    fn generated_ids_are_unique_and_found() {
+        let m = generate(&NetworkSpec::new(3_000, 2)).unwrap();
+        let nodes: std::collections::HashSet<&str> = m.nodes().iter().map(|n| n.id.as_str()).collect();
+        let links: std::collections::HashSet<&str> = m.links().iter().map(|l| l.id.as_str()).collect();
+        assert_eq!((nodes.len(), links.len()), (m.nodes().len(), m.links().len()));
+        for (i, n) in m.nodes().iter().enumerate() {
+            assert_eq!(m.node_index(&n.id), Some(i));
+        }
+        for (k, l) in m.links().iter().enumerate() {
+            assert_eq!(m.link_index(&l.id), Some(k));
+        }
+    }
+
+    /// The ids made without formatting machinery are those `format!` makes.
+    #[test]
+    fn numbered_ids_are_the_formatted_ones() {
+        let mut n = 0usize;
+        while n < usize::MAX / 3 {
+            for m in [n, n + 1, n + 9, n.saturating_sub(1)] {
+                assert_eq!(numbered(b'J', m), format!("J{m}"));
+            }
+            n = n * 3 + 1;
+        }
+        assert_eq!(numbered(b'P', usize::MAX), format!("P{}", usize::MAX));
+        assert_eq!(numbered(b'R', 0), "R0");
+    }
 
     #[test]
     fn xoshiro_reference_values() {

@@ -38,6 +38,7 @@ pub mod duty;
 pub mod error;
 pub mod generate;
 pub mod import;
+pub mod json_text;
 pub mod model;
 pub mod physics;
 pub mod quality;

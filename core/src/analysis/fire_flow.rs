@@ -30,6 +30,15 @@
 //! pressures while the fire draw is fixed. A draw that changes in its last step by more than
 //! [`FLOW_TOLERANCE`] is solved again with a hundredfold tighter head tolerance.
 //!
+//! Where the network has no device states and no relations of pressure (a draw then changes
+//! neither which links carry flow nor which junctions the sources reach), each held solve is a
+//! light one ([`Solver::solve_holding_light`]): no device logic, no full solution (only the
+//! pressures the analysis reads), the border from two sparse forward solves, and chord steps on
+//! the last factor near the answer; the hydrant's own limit may end once its draw's step is a
+//! tenth of [`FLOW_TOLERANCE`] (its pressures serve only to estimate which junction the system
+//! limit holds first). Elsewhere, and wherever a light solve fails, the general held solve
+//! answers.
+//!
 //! When the held solve cannot answer (a held head that does not follow the draw: a check valve
 //! or a regulating valve between them; a draw that would be negative or above [`MAX_DRAW`]),
 //! that limit falls back to the search on the draw ([`fire_flows_by_search`], also the reference
@@ -41,7 +50,7 @@
 use crate::error::{Element, ModelError, SolveError};
 use crate::model::{Model, NodeKind};
 use crate::physics::friction::HW_FLOW_EXPONENT;
-use crate::solve::{Conditions, HeldHead, Solution, SolveOptions, Solver};
+use crate::solve::{Conditions, HeldHead, LightBase, Solution, SolveOptions, Solver};
 
 /// What limits the available fire flow.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -179,7 +188,9 @@ fn fire_flows_with(
     let mut solver = Solver::new(model)?;
     let solve_options = SolveOptions::from_model(model);
     let without = solver.solve(model, &conditions, &solve_options)?;
+    let light = if method == Method::Held { solver.light_base(model, &conditions, &without) } else { None };
     let context = Context {
+        light: light.as_ref(),
         model,
         conditions: &conditions,
         without: &without,
@@ -194,7 +205,7 @@ fn fire_flows_with(
     let chunks: Vec<Result<Vec<FireFlow>, SolveError>> = hydrants
         .par_chunks(CHUNK)
         .map(|chunk| {
-            let mut worker = Worker { solver: solver.clone(), conditions: None, last: 0.0 };
+            let mut worker = Worker { solver: solver.clone(), conditions: None, last: 0.0, from_base: true };
             chunk.iter().map(|&h| context.hydrant(&mut worker, h)).collect()
         })
         .collect();
@@ -217,6 +228,8 @@ struct Context<'a> {
     options: FireFlowOptions,
     solve_options: SolveOptions,
     method: Method,
+    /// The base case of light held solves, where they serve the network.
+    light: Option<&'a LightBase>,
 }
 
 /// One thread's own solver, and its copy of the conditions for the search (made on first use).
@@ -224,12 +237,22 @@ struct Worker {
     solver: Solver,
     conditions: Option<Conditions>,
     last: f64,
+    /// Whether the next light held solve starts from the base case (the solver's last point
+    /// is not a light solve's answer).
+    from_base: bool,
 }
 
 impl Context<'_> {
     /// The draw at `hydrant` that holds the pressure at `node` at the residual, with the pressures
     /// there; `None` when a held solve cannot answer (see the module docs).
-    fn held(&self, solver: &mut Solver, hydrant: usize, node: usize, start: f64) -> Option<(f64, Vec<f64>)> {
+    fn held(&self, worker: &mut Worker, hydrant: usize, node: usize, start: f64) -> Option<(f64, Vec<f64>)> {
+        if let Some(base) = self.light {
+            if let Some(found) = self.held_light(worker, base, hydrant, node, start) {
+                return Some(found);
+            }
+        }
+        worker.from_base = true;
+        let solver = &mut worker.solver;
         let model = self.model;
         let mut held =
             HeldHead { draw_at: hydrant, node, head: model.nodes()[node].elevation + self.options.residual, start };
@@ -253,6 +276,59 @@ impl Context<'_> {
                 return Some((draw, solution.pressure));
             }
             options.head_tolerance *= 1e-2;
+        }
+        None
+    }
+
+    /// [`Context::held`] by light held solves, each from the worker's last answer (or from the
+    /// base case after anything else).
+    fn held_light(
+        &self,
+        worker: &mut Worker,
+        base: &LightBase,
+        hydrant: usize,
+        node: usize,
+        start: f64,
+    ) -> Option<(f64, Vec<f64>)> {
+        let model = self.model;
+        let mut held =
+            HeldHead { draw_at: hydrant, node, head: model.nodes()[node].elevation + self.options.residual, start };
+        let mut options = self.solve_options;
+        let mut pressure = Vec::with_capacity(model.nodes().len());
+        for _ in 0..3 {
+            let from_base = worker.from_base;
+            // The hydrant's own limit may end on its draw's tolerance: its pressures only
+            // estimate which junction the system limit holds first.
+            let draw_tolerance = if node == hydrant { 0.1 * FLOW_TOLERANCE } else { 0.0 };
+            match worker.solver.solve_holding_light(
+                model,
+                base,
+                &options,
+                held,
+                from_base,
+                draw_tolerance,
+                &mut pressure,
+            ) {
+                Ok(draw) => {
+                    worker.from_base = false;
+                    if !(0.0..=MAX_DRAW).contains(&draw) {
+                        return None;
+                    }
+                    if worker.solver.held_draw_step() <= FLOW_TOLERANCE {
+                        return Some((draw, pressure));
+                    }
+                    // Once more from there, to a hundredfold tighter head tolerance.
+                    held.start = draw;
+                    options.head_tolerance *= 1e-2;
+                }
+                // A start from a neighbour's answer far from this one: once more from the base
+                // case without a draw.
+                Err(_) if !from_base => {
+                    worker.from_base = true;
+                    held.start = 0.0;
+                }
+                Err(_) => return None,
+            }
         }
         None
     }
@@ -291,7 +367,7 @@ impl Context<'_> {
             notes.push("the hydrant is at or below the residual pressure without a fire draw".to_owned());
             0.0
         } else {
-            let fast = if held { self.held(&mut worker.solver, h, h, start).filter(|(q, _)| *q > 0.0) } else { None };
+            let fast = if held { self.held(worker, h, h, start).filter(|(q, _)| *q > 0.0) } else { None };
             match fast {
                 Some((q, p)) => {
                     sample = Some((q, p));
@@ -390,7 +466,7 @@ impl Context<'_> {
         };
         for _ in 0..MAX_HELD {
             let start = sample.as_ref().map_or(0.0, |s| s.0);
-            let (q, p) = self.held(&mut worker.solver, h, node, start)?;
+            let (q, p) = self.held(worker, h, node, start)?;
             let (lowest, at) =
                 protected.iter().map(|&i| (i, p[i])).fold((node, p[node]), |a, b| if b.1 < a.1 { b } else { a });
             if at >= residual - TIE {
@@ -413,6 +489,7 @@ impl Context<'_> {
         measure: &dyn Fn(&[f64]) -> f64,
     ) -> Result<Option<(f64, Vec<f64>)>, SolveError> {
         *searched = true;
+        worker.from_base = true;
         let conditions = worker.conditions.get_or_insert_with(|| self.conditions.clone());
         let mut draw =
             Draw { model: self.model, conditions, solver: &mut worker.solver, options: self.solve_options, hydrant: h };

@@ -12,6 +12,7 @@
 use hashbrown::hash_table::Entry;
 use hashbrown::{DefaultHashBuilder, HashTable};
 use std::hash::BuildHasher;
+use std::sync::OnceLock;
 
 /// What [`IdIndex::insert`] did.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -78,8 +79,66 @@ impl IdIndex {
         Insert::Added
     }
 
+    /// Makes room for `additional` more ids without growing (and so without hashing every id
+    /// again) while they are added. `ids(k)` as for [`IdIndex::insert`].
+    pub(crate) fn reserve<'a>(&mut self, additional: usize, ids: impl Fn(usize) -> &'a str) {
+        let (hasher, hashes) = (&self.hasher, &self.hashes);
+        self.table.reserve(additional, |&k| match hashes.get(k as usize) {
+            Some(&hk) => spread(hk),
+            None => spread((hasher.hash_one(ids(k as usize)) >> 32) as u32),
+        });
+        self.hashes.reserve(additional);
+    }
+
     /// Drops the hashes kept while the model grew (lookups are unchanged).
     pub(crate) fn settle(&mut self) {
         self.hashes = Vec::new();
+    }
+
+    /// The index of the `len` ids `ids(0)`, `ids(1)`, ... (which are unique).
+    fn build<'a>(len: usize, ids: impl Fn(usize) -> &'a str) -> Self {
+        let mut index = IdIndex { table: HashTable::with_capacity(len), ..IdIndex::default() };
+        index.hashes.reserve_exact(len);
+        for k in 0..len {
+            // The ids of a model are unique (its `add_*` refused duplicates), and `len` fits:
+            // every answer is `Added`.
+            index.insert(ids(k), k, &ids);
+        }
+        index.settle();
+        index
+    }
+}
+
+/// An [`IdIndex`] that may be freed ([`ReleasableIndex::release`]) and is then made again from
+/// the elements' ids at its first use.
+#[derive(Clone, Debug, Default)]
+pub(crate) struct ReleasableIndex(OnceLock<IdIndex>);
+
+impl ReleasableIndex {
+    /// The index of the `len` ids `ids(k)`, made again if it was released.
+    pub(crate) fn get<'a>(&self, len: usize, ids: impl Fn(usize) -> &'a str) -> &IdIndex {
+        self.0.get_or_init(|| IdIndex::build(len, ids))
+    }
+
+    /// [`ReleasableIndex::get`], to change.
+    pub(crate) fn get_mut<'a>(&mut self, len: usize, ids: impl Fn(usize) -> &'a str) -> &mut IdIndex {
+        if self.0.get().is_none() {
+            self.0 = OnceLock::from(IdIndex::build(len, ids));
+        }
+        // Set just above when it was not.
+        self.0.get_mut().expect("the index was just made")
+    }
+
+    /// Makes room for `additional` more ids in the index, unless it is released (it is then
+    /// made at its full size when next used).
+    pub(crate) fn reserve<'a>(&mut self, additional: usize, ids: impl Fn(usize) -> &'a str) {
+        if let Some(index) = self.0.get_mut() {
+            index.reserve(additional, ids);
+        }
+    }
+
+    /// Frees the index.
+    pub(crate) fn release(&mut self) {
+        self.0 = OnceLock::new();
     }
 }

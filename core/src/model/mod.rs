@@ -24,7 +24,7 @@ use crate::physics::fittings::{Fitting, FittingKind, FittingsMethod};
 use crate::physics::pump::{Efficiency, HeadCurve};
 use crate::physics::WaterProperties;
 use crate::units::{Converter, Quantity, UnitSystem};
-use index::{IdIndex, Insert};
+use index::{Insert, ReleasableIndex};
 use std::collections::BTreeMap;
 
 /// Friction law used for every pipe of a model.
@@ -513,8 +513,8 @@ pub struct Model {
     pub map: MapData,
     nodes: Vec<Node>,
     links: Vec<Link>,
-    node_index: IdIndex,
-    link_index: IdIndex,
+    node_index: ReleasableIndex,
+    link_index: ReleasableIndex,
 }
 
 /// Two models are equal when their data are; the id indices follow from the elements.
@@ -768,18 +768,41 @@ impl Model {
     pub fn shrink_to_fit(&mut self) {
         self.nodes.shrink_to_fit();
         self.links.shrink_to_fit();
-        self.node_index.settle();
-        self.link_index.settle();
+        let (nodes, links) = (&self.nodes, &self.links);
+        self.node_index.get_mut(nodes.len(), |k| &nodes[k].id).settle();
+        self.link_index.get_mut(links.len(), |k| &links[k].id).settle();
+    }
+
+    /// Makes room for `nodes` more nodes and `links` more links, in the element lists and the id
+    /// indices, so that adding them grows neither (a generator or an importer that knows its
+    /// counts: at a million elements each growth of an index hashes and moves every entry).
+    pub fn reserve(&mut self, nodes: usize, links: usize) {
+        self.nodes.reserve_exact(nodes);
+        self.links.reserve_exact(links);
+        let (all_nodes, all_links) = (&self.nodes, &self.links);
+        self.node_index.reserve(nodes, |k| &all_nodes[k].id);
+        self.link_index.reserve(links, |k| &all_links[k].id);
+    }
+
+    /// Frees the id → position indices of the nodes and links (at a million elements some 20
+    /// MB) for a caller that looks up no id, or few, from now on: the command-line `solve`
+    /// frees them before solving. The first lookup or addition afterwards makes them again from
+    /// the elements' ids (a tenth of a second at a million elements); answers never change.
+    pub fn release_id_index(&mut self) {
+        self.node_index.release();
+        self.link_index.release();
     }
 
     /// Index of a node by id.
     pub fn node_index(&self, id: &str) -> Option<usize> {
-        self.node_index.find(id, |k| &self.nodes[k].id)
+        let nodes = &self.nodes;
+        self.node_index.get(nodes.len(), |k| &nodes[k].id).find(id, |k| &nodes[k].id)
     }
 
     /// Index of a link by id.
     pub fn link_index(&self, id: &str) -> Option<usize> {
-        self.link_index.find(id, |k| &self.links[k].id)
+        let links = &self.links;
+        self.link_index.get(links.len(), |k| &links[k].id).find(id, |k| &links[k].id)
     }
 
     /// Checks one node's values (used when adding and after changes).
@@ -925,10 +948,11 @@ impl Model {
         Self::check_node(&node)?;
         let index = self.nodes.len();
         let nodes = &self.nodes;
-        match self.node_index.insert(&node.id, index, |k| &nodes[k].id) {
+        let ids = self.node_index.get_mut(index, |k| &nodes[k].id);
+        match ids.insert(&node.id, index, |k| &nodes[k].id) {
             Insert::Added => {}
             Insert::Duplicate => {
-                let first = self.node_index.find(&node.id, |k| &self.nodes[k].id).unwrap_or(0);
+                let first = ids.find(&node.id, |k| &nodes[k].id).unwrap_or(0);
                 return Err(ModelError::at(
                     Some(node.element()),
                     Some("id"),
@@ -946,15 +970,44 @@ impl Model {
         Ok(index)
     }
 
+    /// [`Model::add_node`] for a node whose id the caller knows to be unused (the generator's
+    /// numbered ids): its values are checked, its id is not looked up. The id indices are freed
+    /// and made again at the next lookup (as after [`Model::release_id_index`]), so that a
+    /// million additions do not each probe an index far larger than the caches.
+    pub(crate) fn add_node_with_new_id(&mut self, node: Node) -> Result<usize, ModelError> {
+        Self::check_node(&node)?;
+        let index = self.nodes.len();
+        if u32::try_from(index).is_err() {
+            return Err(ModelError::at(Some(node.element()), None, "too many nodes in one model"));
+        }
+        self.node_index.release();
+        self.nodes.push(node);
+        Ok(index)
+    }
+
+    /// [`Model::add_link`] for a link whose id the caller knows to be unused (see
+    /// [`Model::add_node_with_new_id`]); its values and end nodes are checked.
+    pub(crate) fn add_link_with_new_id(&mut self, link: Link) -> Result<usize, ModelError> {
+        self.check_link(&link)?;
+        let index = self.links.len();
+        if u32::try_from(index).is_err() {
+            return Err(ModelError::at(Some(link.element()), None, "too many links in one model"));
+        }
+        self.link_index.release();
+        self.links.push(link);
+        Ok(index)
+    }
+
     /// Adds a link after checking its values and its end nodes; returns its index.
     pub fn add_link(&mut self, link: Link) -> Result<usize, ModelError> {
         self.check_link(&link)?;
         let index = self.links.len();
         let links = &self.links;
-        match self.link_index.insert(&link.id, index, |k| &links[k].id) {
+        let ids = self.link_index.get_mut(index, |k| &links[k].id);
+        match ids.insert(&link.id, index, |k| &links[k].id) {
             Insert::Added => {}
             Insert::Duplicate => {
-                let first = self.link_index.find(&link.id, |k| &self.links[k].id).unwrap_or(0);
+                let first = ids.find(&link.id, |k| &links[k].id).unwrap_or(0);
                 return Err(ModelError::at(
                     Some(link.element()),
                     Some("id"),

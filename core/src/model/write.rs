@@ -15,6 +15,7 @@
 use super::file::Format;
 use super::time::{self as tm, Action, Condition};
 use super::{LinkKind, LinkStatus, Model, NodeKind, PumpDrive, ValveType, WaterSpec};
+use crate::json_text::{self, Line};
 use crate::physics::fittings::Fitting;
 use crate::physics::pump::Efficiency;
 use crate::units::{Converter, Quantity};
@@ -25,9 +26,173 @@ use std::io::{self, Write};
 /// Writes the model as a JSON model file, element by element, one element a line.
 ///
 /// Nothing of the file is held in memory: the output is buffered here, so pass the file itself.
-/// `out` is flushed at the end.
+/// `out` is flushed at the end. The arrays of nodes and links are formatted by hand
+/// ([`crate::json_text`]), in parallel chunks when they are large; the text is byte for byte what
+/// serde_json writes of the whole file through [`ElementPerLine`] (the tests compare them).
 pub fn write_json<W: Write>(model: &Model, out: W) -> io::Result<()> {
-    write_element_per_line(out, &ModelFile(Ctx::new(model)))
+    let c = Ctx::new(model);
+    let mut out = io::BufWriter::with_capacity(1 << 16, out);
+    // The entries before the nodes, as an element-per-line object whose closing `\n}` gives
+    // way to the nodes.
+    let mut head = Vec::with_capacity(4096);
+    write_value(&mut head, &ModelFile(c, Part::Head), ElementPerLine::default())?;
+    match head.strip_suffix(b"\n}") {
+        Some(entries) => {
+            out.write_all(entries)?;
+            out.write_all(b",")?;
+        }
+        // No entry before the nodes: `{}`.
+        None => out.write_all(b"{")?,
+    }
+    out.write_all(b"\n  \"nodes\": ")?;
+    json_text::try_write_array(&mut out, model.nodes().len(), |i, buf| write_node(c, i, buf))?;
+    out.write_all(b",\n  \"links\": ")?;
+    json_text::try_write_array(&mut out, model.links().len(), |k, buf| write_link(c, k, buf))?;
+    if model.time.controls.is_empty() {
+        out.write_all(b"\n}")?;
+    } else {
+        // The entries after the links, as their own object whose opening brace gives way to the
+        // comma after the links.
+        let mut tail = Vec::with_capacity(4096);
+        write_value(&mut tail, &ModelFile(c, Part::Tail), ElementPerLine::default())?;
+        out.write_all(b",")?;
+        out.write_all(tail.get(1..).unwrap_or_default())?;
+    }
+    out.write_all(b"\n")?;
+    out.flush()
+}
+
+/// Serializes `value` into `out` with the layout `format`.
+fn write_value<T: Serialize + ?Sized>(out: &mut Vec<u8>, value: &T, format: ElementPerLine) -> io::Result<()> {
+    let mut serializer = serde_json::Serializer::with_formatter(out, format);
+    value.serialize(&mut serializer).map_err(io::Error::from)
+}
+
+/// Appends a value nested in a node or a link (a curve, a table of demands) as serde_json writes
+/// it there: on the element's line.
+fn write_nested<T: Serialize>(out: &mut Vec<u8>, value: T) -> io::Result<()> {
+    write_value(out, &value, ElementPerLine::inside_element())
+}
+
+/// The text of node `i` on its line, as serde_json writes its [`NodeEntry`].
+fn write_node(c: Ctx<'_>, i: usize, out: &mut Vec<u8>) -> io::Result<()> {
+    // Every field, in the order of the struct (a field added there and not here does not
+    // compile; the order is the tests' to check).
+    let NodeEntry {
+        id,
+        kind,
+        head,
+        elevation,
+        demand,
+        pattern,
+        demands,
+        full_pressure,
+        zero_pressure,
+        exponent,
+        outlet,
+        level,
+        min_level,
+        max_level,
+        diameter,
+        volume_curve,
+        head_pattern,
+        x,
+        y,
+        zone,
+        quality,
+        quality_pattern,
+        initial_quality,
+        booster,
+        mixing,
+        mixing_fraction,
+    } = node_entry(c, i);
+    let mut l = Line::open(out);
+    l.text("id", id);
+    l.text("kind", kind);
+    l.opt_num("head", head);
+    l.num("elevation", elevation);
+    l.opt_num("demand", demand);
+    l.opt_text("pattern", pattern);
+    l.opt_with("demands", demands, write_nested)?;
+    l.opt_num("full_pressure", full_pressure);
+    l.opt_num("zero_pressure", zero_pressure);
+    l.opt_num("exponent", exponent);
+    l.opt_with("outlet", outlet, write_nested)?;
+    l.opt_num("level", level);
+    l.opt_num("min_level", min_level);
+    l.opt_num("max_level", max_level);
+    l.opt_num("diameter", diameter);
+    l.opt_with("volume_curve", volume_curve, write_nested)?;
+    l.opt_text("head_pattern", head_pattern);
+    l.opt_num("x", x);
+    l.opt_num("y", y);
+    l.opt_text("zone", zone);
+    l.opt_with("quality", quality, write_nested)?;
+    l.opt_with("quality_pattern", quality_pattern, write_nested)?;
+    l.opt_with("initial_quality", initial_quality, write_nested)?;
+    l.opt_with("booster", booster, write_nested)?;
+    l.opt_text("mixing", mixing);
+    l.opt_num("mixing_fraction", mixing_fraction);
+    l.close();
+    Ok(())
+}
+
+/// The text of link `k` on its line, as serde_json writes its [`LinkEntry`].
+fn write_link(c: Ctx<'_>, k: usize, out: &mut Vec<u8>) -> io::Result<()> {
+    // Every field, in the order of the struct (see `write_node`).
+    let LinkEntry {
+        id,
+        kind,
+        from,
+        to,
+        valve,
+        length,
+        diameter,
+        roughness,
+        head_curve,
+        power,
+        efficiency_curve,
+        efficiency,
+        speed,
+        speed_pattern,
+        setting,
+        setting_pattern,
+        minor_loss,
+        fittings,
+        elevation,
+        npsh_required_curve,
+        status,
+        check_valve,
+        leakage_rate,
+        path,
+    } = link_entry(c, k);
+    let mut l = Line::open(out);
+    l.text("id", id);
+    l.text("kind", kind);
+    l.text("from", from);
+    l.text("to", to);
+    l.opt_text("valve", valve);
+    l.opt_num("length", length);
+    l.opt_num("diameter", diameter);
+    l.opt_num("roughness", roughness);
+    l.opt_with("head_curve", head_curve, write_nested)?;
+    l.opt_num("power", power);
+    l.opt_with("efficiency_curve", efficiency_curve, write_nested)?;
+    l.opt_num("efficiency", efficiency);
+    l.opt_num("speed", speed);
+    l.opt_text("speed_pattern", speed_pattern);
+    l.opt_num("setting", setting);
+    l.opt_text("setting_pattern", setting_pattern);
+    l.opt_num("minor_loss", minor_loss);
+    l.opt_with("fittings", fittings, write_nested)?;
+    l.opt_num("elevation", elevation);
+    l.opt_with("npsh_required_curve", npsh_required_curve, write_nested)?;
+    l.opt_text("status", status);
+    l.opt_flag("check_valve", check_valve);
+    l.opt_num("leakage_rate", leakage_rate);
+    l.opt_with("path", path, write_nested)?;
+    l.close();
+    Ok(())
 }
 
 /// Writes the model in `format` to `out`: JSON streamed by [`write_json`], TOML as one text.
@@ -52,7 +217,7 @@ pub fn to_string(model: &Model, format: Format) -> String {
         }
         // Tables, arrays of tables, strings, numbers and booleans always have a TOML form; the
         // fallback is unreachable in practice.
-        Format::Toml => toml::to_string(&ModelFile(Ctx::new(model))).unwrap_or_default(),
+        Format::Toml => toml::to_string(&ModelFile(Ctx::new(model), Part::Whole)).unwrap_or_default(),
     }
 }
 
@@ -86,6 +251,11 @@ pub struct ElementPerLine {
 impl ElementPerLine {
     /// Objects and arrays opened at this depth or less are written one entry a line.
     const LINE_DEPTH: usize = 2;
+
+    /// The layout inside an element of the top-level arrays: everything on the element's line.
+    fn inside_element() -> Self {
+        ElementPerLine { depth: Self::LINE_DEPTH + 1, has_value: false }
+    }
 
     fn one_entry_a_line(&self) -> bool {
         self.depth <= Self::LINE_DEPTH
@@ -229,8 +399,18 @@ impl Serialize for Points<'_> {
     }
 }
 
-/// The whole file.
-struct ModelFile<'a>(Ctx<'a>);
+/// Which top-level entries of the file [`ModelFile`] serializes.
+#[derive(Clone, Copy, PartialEq, Eq)]
+enum Part {
+    Whole,
+    /// Those before the nodes.
+    Head,
+    /// Those after the links.
+    Tail,
+}
+
+/// The file, or a part of it.
+struct ModelFile<'a>(Ctx<'a>, Part);
 
 impl Serialize for ModelFile<'_> {
     fn serialize<S: Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
@@ -238,6 +418,25 @@ impl Serialize for ModelFile<'_> {
         let m = c.model;
         let time = &m.time;
         let mut top = s.serialize_map(None)?;
+        if self.1 != Part::Tail {
+            self.head(c, &mut top)?;
+        }
+        if self.1 == Part::Whole {
+            top.serialize_entry("nodes", &Nodes(c))?;
+            top.serialize_entry("links", &Links(c))?;
+        }
+        if self.1 != Part::Head && !time.controls.is_empty() {
+            top.serialize_entry("controls", &Controls(c))?;
+        }
+        top.end()
+    }
+}
+
+impl ModelFile<'_> {
+    /// The top-level entries before the nodes.
+    fn head<M: SerializeMap>(&self, c: Ctx<'_>, top: &mut M) -> Result<(), M::Error> {
+        let m = c.model;
+        let time = &m.time;
         if let Some(t) = &m.title {
             top.serialize_entry("title", t)?;
         }
@@ -327,12 +526,7 @@ impl Serialize for ModelFile<'_> {
         if !time.quality.constituents.is_empty() {
             top.serialize_entry("quality", &Constituents(c))?;
         }
-        top.serialize_entry("nodes", &Nodes(c))?;
-        top.serialize_entry("links", &Links(c))?;
-        if !time.controls.is_empty() {
-            top.serialize_entry("controls", &Controls(c))?;
-        }
-        top.end()
+        Ok(())
     }
 }
 
@@ -907,6 +1101,8 @@ impl Serialize for Conditions<'_> {
 mod tests {
     use super::*;
     use crate::model::file::read_str;
+    use crate::model::{HydraulicOptions, Link, Node};
+    use crate::units::UnitSystem;
 
     #[test]
     fn time_data_round_trips() {
@@ -1212,6 +1408,92 @@ mod tests {
         setting = 25
         when = { after = "3h" }
     "#;
+
+    /// The JSON text serde_json writes of the whole file through [`ElementPerLine`]: the reference
+    /// the hand-written text must equal byte for byte.
+    fn serde_json_text(model: &Model) -> String {
+        let mut out = Vec::new();
+        write_element_per_line(&mut out, &ModelFile(Ctx::new(model), Part::Whole)).unwrap_or_else(|e| panic!("{e}"));
+        String::from_utf8(out).unwrap_or_else(|e| panic!("{e}"))
+    }
+
+    fn assert_json_as_serde_writes_it(model: &Model, what: &str) {
+        let ours = to_string(model, Format::Json);
+        let reference = serde_json_text(model);
+        if ours != reference {
+            let at = ours
+                .bytes()
+                .zip(reference.bytes())
+                .position(|(a, b)| a != b)
+                .unwrap_or(ours.len().min(reference.len()));
+            let from = at.saturating_sub(80);
+            panic!(
+                "{what}: the text differs from serde_json's at byte {at}:\n ours: {:?}\n serde: {:?}",
+                ours.get(from..(at + 80).min(ours.len())),
+                reference.get(from..(at + 80).min(reference.len()))
+            );
+        }
+    }
+
+    /// The model file written by hand is serde_json's text byte for byte: on a model with every
+    /// key (two variants), the time-data model, every demo and test model of the repository, a
+    /// generated network large enough for the parallel chunks, strings that need escapes, and
+    /// the smallest models (no nodes, no title, no controls).
+    #[test]
+    fn json_written_by_hand_is_serde_json_text_byte_for_byte() {
+        let viscosity = EVERY_KEY.replace("water_temperature = 15", "kinematic_viscosity = 1.25e-6");
+        for (what, text) in [("every key", EVERY_KEY), ("every key, viscosity", viscosity.as_str())] {
+            let model = read_str(text, Format::Toml, "every.toml").unwrap_or_else(|e| panic!("{e}"));
+            assert!(!model.time.controls.is_empty() && model.title.is_some());
+            assert_json_as_serde_writes_it(&model, what);
+        }
+        let root = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("..");
+        let mut files = 0;
+        for dir in ["examples", "tests/data"] {
+            for entry in std::fs::read_dir(root.join(dir)).unwrap_or_else(|e| panic!("{dir}: {e}")) {
+                let path = entry.unwrap_or_else(|e| panic!("{e}")).path();
+                let name = path.display().to_string();
+                if path.extension().is_some_and(|e| e == "toml") && !name.ends_with("FIELDS.toml") {
+                    let text = std::fs::read_to_string(&path).unwrap_or_else(|e| panic!("{name}: {e}"));
+                    let model = read_str(&text, Format::Toml, &name).unwrap_or_else(|e| panic!("{e}"));
+                    assert_json_as_serde_writes_it(&model, &name);
+                    files += 1;
+                }
+            }
+        }
+        assert!(files >= 6, "{files} demo models");
+        let mut big = crate::generate::generate(&crate::generate::NetworkSpec::new(5_000, 11)).unwrap();
+        assert!(big.nodes().len() > 4 * 1024, "more than one batch of chunks");
+        assert_json_as_serde_writes_it(&big, "generated");
+        // Strings that need escapes, and the smallest models.
+        let mut escapes = Model::new(UnitSystem::default(), HydraulicOptions::default());
+        escapes.title = Some("tab\there \"quoted\" back\\slash é".into());
+        escapes.add_node(Node::reservoir("R \"one\"", 50.0)).unwrap();
+        let mut j = Node::junction("J\\2 é 中", 10.0, 1e-3);
+        j.zone = Some("north\nline \u{1}".into());
+        escapes.add_node(j).unwrap();
+        escapes
+            .add_link(Link {
+                id: "P/\"1\"".into(),
+                from: 0,
+                to: 1,
+                status: LinkStatus::Closed,
+                kind: LinkKind::Pipe(crate::model::Pipe {
+                    length: 100.0,
+                    diameter: 0.1,
+                    roughness: 120.0,
+                    minor_loss: 0.0,
+                    check_valve: true,
+                }),
+            })
+            .unwrap();
+        assert_json_as_serde_writes_it(&escapes, "escapes");
+        escapes.title = None;
+        assert_json_as_serde_writes_it(&escapes, "no title");
+        big.time.controls.clear();
+        assert_json_as_serde_writes_it(&big, "no controls");
+        assert_json_as_serde_writes_it(&Model::default(), "empty");
+    }
 
     /// The keys written, as `(place, kind, key)` (see `file::accepted_keys`).
     fn written_keys(v: &serde_json::Value) -> std::collections::BTreeSet<(String, String, String)> {

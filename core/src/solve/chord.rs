@@ -378,7 +378,7 @@ impl Solver {
 /// Solves `L y = x` in place (`L` the factor with values `l`, in faer's simplicial layout: each
 /// column's diagonal first, then the rows below it), skipping the columns before `first` (all
 /// zero in `x`) and those whose value is zero.
-fn forward(structure: &super::Structure, l: &[f64], x: &mut [f64], first: usize) {
+pub(super) fn forward(structure: &super::Structure, l: &[f64], x: &mut [f64], first: usize) {
     let (col_ptr, row_idx) = (structure.symbolic.col_ptr(), structure.symbolic.row_idx());
     for j in first..structure.n {
         if x[j] == 0.0 {
@@ -394,7 +394,7 @@ fn forward(structure: &super::Structure, l: &[f64], x: &mut [f64], first: usize)
 }
 
 /// Solves `Lᵀ x = y` in place (layout as in [`forward`]).
-fn backward(structure: &super::Structure, l: &[f64], x: &mut [f64]) {
+pub(super) fn backward(structure: &super::Structure, l: &[f64], x: &mut [f64]) {
     let (col_ptr, row_idx) = (structure.symbolic.col_ptr(), structure.symbolic.row_idx());
     for j in (0..structure.n).rev() {
         let (start, end) = (col_ptr[j] as usize, col_ptr[j + 1] as usize);

@@ -105,6 +105,18 @@ pub(crate) struct LawsSeen {
 impl Conditions {
     /// The values written in `model`.
     pub fn from_model(model: &Model) -> Self {
+        Conditions::of_model(model, true)
+    }
+
+    /// The values written in `model` but the pipes' roughness and minor-loss coefficients,
+    /// which only the links' laws read: for a solve whose laws are built from the model itself
+    /// (`Solver::solve_once`; at a million links the two arrays are 20 MB). Nothing may read
+    /// those two values from these conditions, nor set them.
+    pub(crate) fn from_model_without_law_inputs(model: &Model) -> Self {
+        Conditions::of_model(model, false)
+    }
+
+    fn of_model(model: &Model, law_inputs: bool) -> Self {
         let nodes = model.nodes();
         let links = model.links();
         let mut c = Conditions {
@@ -114,8 +126,8 @@ impl Conditions {
             automatic: links.iter().map(|l| l.as_valve().is_some_and(|v| v.automatic)).collect(),
             setting: Vec::with_capacity(links.len()),
             diameter: Vec::with_capacity(links.len()),
-            roughness: Vec::with_capacity(links.len()),
-            minor_loss: Vec::with_capacity(links.len()),
+            roughness: Vec::with_capacity(if law_inputs { links.len() } else { 0 }),
+            minor_loss: Vec::with_capacity(if law_inputs { links.len() } else { 0 }),
             node_law: NodeLaw::of_model(model),
             draws: Vec::new(),
             identity: fresh_identity(),
@@ -129,8 +141,10 @@ impl Conditions {
             };
             c.setting.push(setting);
             c.diameter.push(diameter);
-            c.roughness.push(roughness);
-            c.minor_loss.push(minor);
+            if law_inputs {
+                c.roughness.push(roughness);
+                c.minor_loss.push(minor);
+            }
         }
         c
     }

@@ -29,6 +29,12 @@
 //! Device states and relations of pressure work as in a plain solve: the border only changes the
 //! step's corrections and the draw; the damping of the iteration damps the draw's step as well.
 
+use super::assemble::{
+    link_ends, RelationChange, FREE_FROM, FREE_TO, LAW_GENERAL, MODE_FIXED_FLOW, MODE_LAW, MODE_MASK,
+};
+use super::chord::{backward, forward};
+use super::iterate::MASS_GATE;
+use super::status::StatusTracker;
 use super::structure::NONE;
 use super::{Solution, SolveOptions, Solver};
 use crate::error::{Element, ModelError, SolveError};
@@ -67,28 +73,22 @@ pub(super) struct Hold {
     /// The tree pipes from the held junction to its root: (tree link position, shared with the
     /// draw's path).
     target_path: Vec<(u32, bool)>,
-    /// `A⁻¹ e_a`.
+    /// `A⁻¹ e_a` (a light solve: `L⁻¹ e_a`).
     w: Vec<f64>,
+    /// A light solve's `L⁻¹ e_t` (the held junction's unknown).
+    z: Vec<f64>,
+    /// The conductances of the core links in the solver's current factor (light solves), and
+    /// whether that factor is one of a light solve that succeeded.
+    cp_factored: Vec<f64>,
+    factored: bool,
     /// For each node, the position in `Structure::trees` of the tree pipe to its parent
     /// (`NONE` for core nodes); made once per solver.
     parent: Vec<u32>,
 }
 
 impl Solver {
-    /// Solves `model` under `conditions` with the head at `held.node` held at `held.head` by a
-    /// draw at `held.draw_at` that the solve finds (see the [module docs](self)). Returns the
-    /// solution (whose `demand` at `draw_at` includes the draw) and the draw, m³/s.
-    ///
-    /// Warm starts (`options.warm_start`) start from this solver's last solution, with the draw
-    /// at zero. Errors: the two nodes must be junctions the network reaches; a held head that
-    /// does not follow the draw is a [`SolveError::Numerical`] naming both.
-    pub fn solve_holding(
-        &mut self,
-        model: &Model,
-        conditions: &Conditions,
-        options: &SolveOptions,
-        held: HeldHead,
-    ) -> Result<(Solution, f64), SolveError> {
+    /// Checks `held` and makes it the border of the next solve (scratch kept from the last).
+    fn set_hold(&mut self, model: &Model, held: HeldHead) -> Result<(), SolveError> {
         for (i, key) in [(held.draw_at, "draw_at"), (held.node, "node")] {
             let node = model.nodes().get(i).ok_or_else(|| ModelError::at(None, Some(key), format!("no node {i}")))?;
             if !matches!(node.kind, NodeKind::Junction { .. }) {
@@ -106,9 +106,9 @@ impl Solver {
                 ModelError::at(Some(Element::Node(id)), Some("head"), format!("is not finite: {}", held.head)).into()
             );
         }
-        let (w, parent) = match self.hold.take() {
-            Some(h) => (h.w, h.parent),
-            None => (Vec::new(), Vec::new()),
+        let (w, z, parent, cp_factored, factored) = match self.hold.take() {
+            Some(h) => (h.w, h.z, h.parent, h.cp_factored, h.factored),
+            None => (Vec::new(), Vec::new(), Vec::new(), Vec::new(), false),
         };
         if !held.start.is_finite() {
             let id = model.nodes()[held.draw_at].id.to_string();
@@ -128,8 +128,29 @@ impl Solver {
             target_unknown: NONE,
             target_path: Vec::new(),
             w,
+            z,
             parent,
+            cp_factored,
+            factored,
         }));
+        Ok(())
+    }
+
+    /// Solves `model` under `conditions` with the head at `held.node` held at `held.head` by a
+    /// draw at `held.draw_at` that the solve finds (see the [module docs](self)). Returns the
+    /// solution (whose `demand` at `draw_at` includes the draw) and the draw, m³/s.
+    ///
+    /// Warm starts (`options.warm_start`) start from this solver's last solution, with the draw
+    /// at zero. Errors: the two nodes must be junctions the network reaches; a held head that
+    /// does not follow the draw is a [`SolveError::Numerical`] naming both.
+    pub fn solve_holding(
+        &mut self,
+        model: &Model,
+        conditions: &Conditions,
+        options: &SolveOptions,
+        held: HeldHead,
+    ) -> Result<(Solution, f64), SolveError> {
+        self.set_hold(model, held)?;
         let result = self.solve(model, conditions, options);
         let draw = self.hold.as_ref().map_or(0.0, |h| h.draw);
         // The scratch stays for the next call; the border does not.
@@ -172,6 +193,7 @@ impl Solver {
             }
         }
         hold.w.resize(structure.n, 0.0);
+        hold.z.resize(structure.n, 0.0);
         let root = |mut i: usize| {
             while hold.parent[i] != NONE {
                 i = structure.trees[hold.parent[i] as usize].parent as usize;
@@ -235,15 +257,28 @@ impl Solver {
             hold.w[u as usize] = 1.0;
             self.factor.solve(structure, &mut hold.w);
         }
-        // The held junction's head now and its corrections: its root's, less its path's losses.
+        let v_free = v != NONE && self.free[v as usize];
+        let (delta0, w_v) = if v_free { (self.delta[v as usize], hold.w[v as usize]) } else { (0.0, 0.0) };
+        let dq = self.border(model, iteration, hold, delta0, w_v)?;
+        if dq != 0.0 {
+            for (d, (w, &free)) in self.delta.iter_mut().zip(hold.w.iter().zip(&self.free)) {
+                if free {
+                    *d -= dq * w;
+                }
+            }
+        }
+        Ok(dq)
+    }
+
+    /// The border's equation: the draw's step `ΔQ` that brings the held junction's head to its
+    /// target, given the plain correction `δ₀_v` of the held junction's unknown and the response
+    /// `w_v = (A⁻¹ e_u)_v` of its head to the draw. The held junction's head is its root's less
+    /// its path's losses; `L′` adds the slopes of the tree pipes its path shares with the draw's.
+    fn border(&self, model: &Model, iteration: u32, hold: &Hold, delta0: f64, w_v: f64) -> Result<f64, SolveError> {
+        let structure = &*self.structure;
+        let v = hold.target_unknown;
         let root = hold.target_root as usize;
-        let (mut head, delta0, w_v) = if v == NONE {
-            (self.head[root], 0.0, 0.0)
-        } else if self.free[v as usize] {
-            (self.unknown_head[v as usize], self.delta[v as usize], hold.w[v as usize])
-        } else {
-            (self.unknown_head[v as usize], 0.0, 0.0)
-        };
+        let mut head = if v == NONE { self.head[root] } else { self.unknown_head[v as usize] };
         let mut slope = 0.0;
         for &(position, shared) in &hold.target_path {
             let t = structure.trees[position as usize];
@@ -255,6 +290,7 @@ impl Solver {
         }
         let response = w_v + slope;
         if !(response > 0.0 && response.is_finite()) {
+            let nodes = model.nodes();
             return Err(SolveError::Numerical {
                 iteration,
                 detail: format!(
@@ -264,15 +300,7 @@ impl Solver {
                 ),
             });
         }
-        let dq = (head + delta0 - hold.held.head) / response;
-        if dq != 0.0 {
-            for (d, (w, &free)) in self.delta.iter_mut().zip(hold.w.iter().zip(&self.free)) {
-                if free {
-                    *d -= dq * w;
-                }
-            }
-        }
-        Ok(dq)
+        Ok((head + delta0 - hold.held.head) / response)
     }
 
     /// Takes the draw's step (already damped): the draw junction's outflow, and the tree flows
@@ -297,6 +325,434 @@ impl Solver {
             Some(h) if self.holding() => h.change / h.draw.abs().max(self.demand_scale),
             _ => 0.0,
         }
+    }
+}
+
+/// Largest head change (m) of a light solve's step after which the next steps are chord steps
+/// on its factor: conductances move by well under a percent in such a step.
+pub const CHORD_HEAD: f64 = 0.05;
+/// Largest ratio of a chord step's head change to the step before's for the chord to go on.
+pub const CHORD_CONTRACTION: f64 = 0.5;
+/// Share of the tolerances within which a chord step's changes must be to end the iteration.
+pub const CHORD_MARGIN: f64 = 0.5;
+/// Most chord steps in a row.
+const CHORD_STEPS: u32 = 20;
+/// Largest head change (m) of the step that ends a light solve on its draw's tolerance.
+pub const LOOSE_HEAD: f64 = 1e-2;
+
+/// The base case of light held solves ([`Solver::solve_holding_light`]): its solution's flows
+/// and heads, where a light solve may start, its fixed outflows and which junctions it reaches
+/// (no draw changes them: the network it serves has no device states and no relations of
+/// pressure). Made once per analysis by [`Solver::light_base`], shared by every worker.
+#[derive(Clone, Debug)]
+pub struct LightBase {
+    demand: Vec<f64>,
+    connected: Vec<bool>,
+    flow: Vec<f64>,
+    head: Vec<f64>,
+    cq: Vec<f64>,
+    unknown_head: Vec<f64>,
+}
+
+impl Solver {
+    /// The base case of light held solves, from this solver's last solution (`base`, solved
+    /// under `conditions`): `None` when light solves do not serve this network. They serve
+    /// networks whose links have no state to decide (no check valves, no running pumps, no
+    /// automatic control valves) and whose junctions draw fixed outflows only (no
+    /// `[pressure_demand]`, outlets or leakage): there a draw changes neither which links carry
+    /// flow nor which junctions the sources reach, and the Newton iteration needs no device
+    /// logic, no damping and no full [`Solution`]. Elsewhere [`Solver::solve_holding`] answers.
+    pub fn light_base(&self, model: &Model, conditions: &Conditions, base: &Solution) -> Option<LightBase> {
+        if !self.has_previous
+            || !self.relations.is_empty()
+            || !self.pinned.is_empty()
+            || self.holding()
+            || base.connected.len() != model.nodes().len()
+            || StatusTracker::new(model, conditions).has_devices()
+        {
+            return None;
+        }
+        Some(LightBase {
+            demand: self.demand.clone(),
+            connected: base.connected.clone(),
+            flow: self.flow.clone(),
+            head: self.head.clone(),
+            cq: self.cq.clone(),
+            unknown_head: self.unknown_head.clone(),
+        })
+    }
+
+    /// A held solve as [`Solver::solve_holding`] (the same bordered Newton steps to the same
+    /// tolerances), on a network that `base` ([`Solver::light_base`]) serves, without the
+    /// general solve's per-solve work: the device states, the connectivity and the fixed
+    /// outflows are the base case's, and the answer is the draw (m³/s) and the pressure head at
+    /// every node (written into `pressure`; NaN where no source reaches), with no [`Solution`].
+    /// Each step's border takes two sparse forward solves (`L⁻¹ e_a`, `L⁻¹ e_t`, along the
+    /// elimination tree from those unknowns) between the halves of the plain step's solve,
+    /// instead of a second full solve.
+    ///
+    /// The solve starts from the base case's point (`from_base`) or from this solver's last
+    /// point (the answer at a neighbouring hydrant: flows of the size of its own), with the draw
+    /// at `held.start`. On an error the solver is put back at the base case's point.
+    ///
+    /// Steps near the answer reuse the last factor (chord steps, as `chord.rs` takes them: the
+    /// conductances of that factor in the matrix and in the constants alike, so that their fixed
+    /// point is the exact solution): a step whose heads moved by at most [`CHORD_HEAD`] is
+    /// followed by chord steps while each shrinks the head change to at most
+    /// [`CHORD_CONTRACTION`] of the step before; one that does not gives way to Newton steps. A
+    /// chord step may end the iteration with its changes within [`CHORD_MARGIN`] of the
+    /// tolerances (the distance to the fixed point is then at most its last change). A solve
+    /// that continues from the last light solve's answer starts with chord steps on its factor.
+    ///
+    /// With `draw_tolerance` above zero the iteration also ends once the draw's step is within it,
+    /// the heads' change within [`LOOSE_HEAD`] and at most a fifth of the step before (the
+    /// iteration converging faster than linearly): the draw is then within a fraction of its
+    /// last step of the held answer, and the heads within a fraction of their last change.
+    #[allow(clippy::too_many_arguments)]
+    pub fn solve_holding_light(
+        &mut self,
+        model: &Model,
+        base: &LightBase,
+        options: &SolveOptions,
+        held: HeldHead,
+        from_base: bool,
+        draw_tolerance: f64,
+        pressure: &mut Vec<f64>,
+    ) -> Result<f64, SolveError> {
+        self.set_hold(model, held)?;
+        if base.demand.len() != self.demand.len() || base.cq.len() != self.cq.len() {
+            return Err(SolveError::Model(ModelError::new("the light base case is of another network")));
+        }
+        self.demand.copy_from_slice(&base.demand);
+        self.connected.clear();
+        self.connected.extend_from_slice(&base.connected);
+        if from_base {
+            self.restore(base);
+        }
+        self.reset_hold();
+        self.demand_scale = self.demand.iter().map(|d| d.abs()).sum::<f64>().max(1e-3);
+        self.tree_flows();
+        let chord =
+            !from_base && self.hold.as_ref().is_some_and(|h| h.factored && h.cp_factored.len() == self.cp.len());
+        if chord {
+            self.light_chord_start();
+        } else {
+            self.linearise(false);
+            self.begin_assembly();
+            for i in 0..self.structure.core.len() {
+                self.scatter(i);
+            }
+            self.end_assembly();
+        }
+        let result =
+            self.light_iterate(model, options, chord, draw_tolerance).and_then(|()| self.light_answer(model, pressure));
+        if let Some(h) = self.hold.as_mut() {
+            h.factored &= result.is_ok();
+        }
+        let draw = self.hold.as_ref().map_or(0.0, |h| h.draw);
+        if let Some(h) = self.hold.as_mut() {
+            h.held = HeldHead { draw_at: usize::MAX, ..h.held };
+        }
+        match result {
+            Ok(()) => Ok(draw),
+            Err(e) => {
+                self.restore(base);
+                Err(e)
+            }
+        }
+    }
+
+    /// Puts this solver at the base case's point.
+    fn restore(&mut self, base: &LightBase) {
+        self.flow.copy_from_slice(&base.flow);
+        self.head.copy_from_slice(&base.head);
+        self.cq.copy_from_slice(&base.cq);
+        self.unknown_head.copy_from_slice(&base.unknown_head);
+    }
+
+    /// The bordered steps of a light held solve (Newton steps, chord steps near the answer),
+    /// from the assembled first step to the solver's convergence test (as `iterate`'s, the
+    /// draw's change included; see [`Solver::solve_holding_light`]).
+    fn light_iterate(
+        &mut self,
+        model: &Model,
+        options: &SolveOptions,
+        mut chord: bool,
+        draw_tolerance: f64,
+    ) -> Result<(), SolveError> {
+        let structure = self.structure.clone();
+        let mut iterations = 0u32;
+        let mut chord_steps = 0u32;
+        let mut last_step = f64::INFINITY;
+        loop {
+            if iterations >= options.max_iterations {
+                return Err(SolveError::Numerical {
+                    iteration: iterations,
+                    detail: "the held solve did not converge".to_owned(),
+                });
+            }
+            iterations += 1;
+            if chord {
+                chord_steps += 1;
+            } else {
+                chord_steps = 0;
+                self.factor.factor(&structure).map_err(|_| SolveError::Numerical {
+                    iteration: iterations,
+                    detail: "a pivot is not positive".to_owned(),
+                })?;
+                if let Some(h) = self.hold.as_mut() {
+                    h.cp_factored.clear();
+                    h.cp_factored.extend_from_slice(&self.cp);
+                    h.factored = true;
+                }
+            }
+            forward(&structure, self.factor.l_values(), &mut self.rhs, 0);
+            let dq = self.light_border(model, iterations)?;
+            backward(&structure, self.factor.l_values(), &mut self.rhs);
+            std::mem::swap(&mut self.rhs, &mut self.delta);
+            let mut step = 0.0f64;
+            let mut finite = true;
+            for (u, &delta) in self.delta.iter().enumerate() {
+                if self.free[u] {
+                    finite &= delta.is_finite();
+                    step = step.max(delta.abs());
+                    self.unknown_head[u] += delta;
+                }
+            }
+            let head_change = if iterations == 1 { f64::INFINITY } else { step };
+            self.hold_apply(dq);
+            // A chord step that contracted too little (or a NaN) stalls the chord; it may not end
+            // the iteration, and Newton steps follow.
+            let contracted = step <= CHORD_CONTRACTION * last_step;
+            let share = match (chord, contracted) {
+                (false, _) => 1.0,
+                (true, true) => CHORD_MARGIN,
+                (true, false) => 0.0,
+            };
+            chord = (!chord || contracted) && step <= CHORD_HEAD && chord_steps < CHORD_STEPS;
+            let (change, energy_residual) = if chord {
+                self.light_chord_update()
+            } else {
+                self.begin_assembly();
+                let result = self.update_links(model, false, RelationChange::default(), 1.0);
+                self.end_assembly();
+                result
+            };
+            let flow_change = change.max(self.hold_change());
+            if !finite || !flow_change.is_finite() {
+                return Err(SolveError::Numerical {
+                    iteration: iterations,
+                    detail: "heads or flows became NaN".into(),
+                });
+            }
+            let (head_tolerance, flow_tolerance) = (share * options.head_tolerance, share * options.flow_tolerance);
+            // As `iterate`'s test (its floor clause included).
+            let heads_settled = head_change <= head_tolerance
+                || (flow_change <= flow_tolerance
+                    && iterations > 1
+                    && energy_residual <= head_tolerance
+                    && head_change < 1.0);
+            if heads_settled && flow_change <= flow_tolerance {
+                return Ok(());
+            }
+            let draw_step = self.hold.as_ref().map_or(f64::INFINITY, |h| h.change);
+            if draw_tolerance > 0.0
+                && iterations > 1
+                && draw_step <= draw_tolerance
+                && step <= LOOSE_HEAD
+                && step <= 0.2 * last_step
+            {
+                return Ok(());
+            }
+            last_step = step;
+        }
+    }
+
+    /// The first step of a light solve that continues from the last one's answer, on its factor:
+    /// the conductances of that factor, the constants `c = Q + p (ΔH − h(Q))` from them at the
+    /// current point, and the right-hand side.
+    fn light_chord_start(&mut self) {
+        if let Some(h) = self.hold.as_ref() {
+            self.cp.copy_from_slice(&h.cp_factored);
+        }
+        for (r, &d) in self.rhs.iter_mut().zip(&self.unknown_demand) {
+            *r = -d;
+        }
+        let structure = &*self.structure;
+        for (i, c) in structure.core.iter().enumerate() {
+            let mode = self.mode[i];
+            match mode & MODE_MASK {
+                MODE_LAW => {
+                    let ((_, h_from), (_, h_to)) = link_ends(c, &self.delta, &self.unknown_head, &self.head);
+                    let q = self.cq[i];
+                    let y = self.light_loss(i, q);
+                    self.cc[i] = q + self.cp[i] * (h_from - h_to - y);
+                }
+                MODE_FIXED_FLOW => self.cc[i] = self.cq[i],
+                _ => continue,
+            }
+            if mode & FREE_FROM != 0 {
+                self.rhs[c.slots.from as usize] -= self.cc[i];
+            }
+            if mode & FREE_TO != 0 {
+                self.rhs[c.slots.to as usize] += self.cc[i];
+            }
+        }
+        for (r, &free) in self.rhs.iter_mut().zip(&self.free) {
+            if !free {
+                *r = 0.0;
+            }
+        }
+    }
+
+    /// Head loss of core link `i` at flow `q`.
+    #[inline]
+    fn light_loss(&self, i: usize, q: f64) -> f64 {
+        if self.mode[i] & LAW_GENERAL != 0 {
+            self.laws[self.structure.core[i].link as usize].evaluate_exact(q).0
+        } else {
+            let hot = self.hot[i];
+            super::links::hazen_williams(hot.r, hot.minor, q).0
+        }
+    }
+
+    /// The pass after a step that prepares a chord step (as `update_links`, but every link keeps
+    /// the conductance of the factor, and only the right-hand side is filled). Returns the
+    /// relative flow change and the largest energy residual.
+    fn light_chord_update(&mut self) -> (f64, f64) {
+        let (mut sum_dq, mut sum_q, mut residual) = (0.0, self.tree_flow_sum, 0.0f64);
+        for (r, &d) in self.rhs.iter_mut().zip(&self.unknown_demand) {
+            *r = -d;
+        }
+        let structure = self.structure.clone();
+        for (i, c) in structure.core.iter().enumerate() {
+            let mode = self.mode[i];
+            match mode & MODE_MASK {
+                MODE_LAW => {
+                    let ((d_from, h_from), (d_to, h_to)) = link_ends(c, &self.delta, &self.unknown_head, &self.head);
+                    let p = self.cp[i];
+                    let q = self.cc[i] + p * (d_from - d_to);
+                    let dh = h_from - h_to;
+                    let y = self.light_loss(i, q);
+                    residual = residual.max((y - dh).abs());
+                    sum_dq += (q - self.cq[i]).abs();
+                    sum_q += q.abs();
+                    self.cq[i] = q;
+                    self.cc[i] = q + p * (dh - y);
+                }
+                MODE_FIXED_FLOW => sum_q += self.cq[i].abs(),
+                _ => continue,
+            }
+            if mode & FREE_FROM != 0 {
+                self.rhs[c.slots.from as usize] -= self.cc[i];
+            }
+            if mode & FREE_TO != 0 {
+                self.rhs[c.slots.to as usize] += self.cc[i];
+            }
+        }
+        for (r, &free) in self.rhs.iter_mut().zip(&self.free) {
+            if !free {
+                *r = 0.0;
+            }
+        }
+        (sum_dq / sum_q.max(self.demand_scale), residual)
+    }
+
+    /// A light step's border, between the halves of the plain step's solve: with `y = L⁻¹ r` in
+    /// `rhs`, `z_a = L⁻¹ e_a` and `z_t = L⁻¹ e_t`, the plain correction at the held unknown is
+    /// `z_tᵀ y` and its response to the draw `z_tᵀ z_a`; the draw's step `ΔQ` then leaves
+    /// `y − ΔQ z_a` for the backward half (`δ = L⁻ᵀ (y − ΔQ z_a) = A⁻¹ (r − ΔQ e_a)`).
+    fn light_border(&mut self, model: &Model, iteration: u32) -> Result<f64, SolveError> {
+        let Some(mut hold) = self.hold.take() else { return Ok(0.0) };
+        let result = self.light_border_with(model, iteration, &mut hold);
+        self.hold = Some(hold);
+        result
+    }
+
+    fn light_border_with(&mut self, model: &Model, iteration: u32, hold: &mut Hold) -> Result<f64, SolveError> {
+        let nodes = model.nodes();
+        for i in [hold.held.draw_at, hold.held.node] {
+            if !self.connected[i] {
+                return Err(SolveError::Model(ModelError::at(
+                    Some(Element::Node(nodes[i].id.to_string())),
+                    None,
+                    "no reservoir or tank reaches this junction: no head can be held by a draw here".to_owned(),
+                )));
+            }
+        }
+        let structure = &*self.structure;
+        let l = self.factor.l_values();
+        let (u, v) = (hold.draw_unknown, hold.target_unknown);
+        let u_free = u != NONE && self.free[u as usize];
+        let v_free = v != NONE && self.free[v as usize];
+        let dot = |a: &[f64], b: &[f64]| a.iter().zip(b).map(|(x, y)| x * y).sum::<f64>();
+        hold.w.iter_mut().for_each(|x| *x = 0.0);
+        if u_free {
+            hold.w[u as usize] = 1.0;
+            forward(structure, l, &mut hold.w, u as usize);
+        }
+        let (delta0, w_v) = if !v_free {
+            (0.0, 0.0)
+        } else if v == u {
+            (dot(&hold.w, &self.rhs), dot(&hold.w, &hold.w))
+        } else {
+            hold.z.iter_mut().for_each(|x| *x = 0.0);
+            hold.z[v as usize] = 1.0;
+            forward(structure, l, &mut hold.z, v as usize);
+            (dot(&hold.z, &self.rhs), if u_free { dot(&hold.z, &hold.w) } else { 0.0 })
+        };
+        let dq = self.border(model, iteration, hold, delta0, w_v)?;
+        if dq != 0.0 && u_free {
+            for (y, z) in self.rhs.iter_mut().zip(&hold.w) {
+                *y -= dq * z;
+            }
+        }
+        Ok(dq)
+    }
+
+    /// The end of a converged light solve: flows and heads of every link and node, the pressure
+    /// heads into `pressure`, and the solver's last gates (every value finite, the mass balance
+    /// to round-off).
+    fn light_answer(&mut self, model: &Model, pressure: &mut Vec<f64>) -> Result<(), SolveError> {
+        self.sync_flows();
+        self.tree_heads();
+        let nodes = model.nodes();
+        pressure.clear();
+        pressure.extend(nodes.iter().zip(&self.head).zip(&self.connected).map(|((n, h), &c)| {
+            if c {
+                h - n.elevation
+            } else {
+                f64::NAN
+            }
+        }));
+        if let Some(i) = (0..nodes.len()).find(|&i| self.connected[i] && !pressure[i].is_finite()) {
+            return Err(SolveError::NonFinite {
+                element: Element::Node(nodes[i].id.to_string()),
+                quantity: "head",
+                value: self.head[i],
+            });
+        }
+        let balance = &mut self.subtree;
+        for (b, (&d, &c)) in balance.iter_mut().zip(self.demand.iter().zip(&self.connected)) {
+            *b = if c { -d } else { 0.0 };
+        }
+        for (&(from, to), &q) in self.structure.ends.iter().zip(&self.flow) {
+            balance[to as usize] += q;
+            balance[from as usize] -= q;
+        }
+        let worst = nodes
+            .iter()
+            .zip(balance.iter())
+            .filter(|(n, _)| n.fixed_head().is_none())
+            .map(|(_, b)| b.abs())
+            .fold(0.0, f64::max);
+        if worst.is_nan() || worst > MASS_GATE * self.demand_scale {
+            return Err(SolveError::Numerical {
+                iteration: 0,
+                detail: format!("the held solve's mass balance is off by {worst} m3/s"),
+            });
+        }
+        Ok(())
     }
 }
 
@@ -386,5 +842,56 @@ mod tests {
         assert!(q > 0.0);
         let err = hold(&m, "B", "R", 40.0).unwrap_err().to_string();
         assert!(err.contains("must be a junction"), "{err}");
+    }
+
+    #[test]
+    fn light_held_solves_serve_only_networks_without_device_states_or_relations() {
+        let base = |m: &Model| {
+            let mut solver = Solver::new(m).unwrap();
+            let c = Conditions::from_model(m);
+            let s = solver.solve(m, &c, &SolveOptions::from_model(m)).unwrap();
+            solver.light_base(m, &c, &s)
+        };
+        assert!(base(&network(false)).is_some());
+        assert!(base(&network(true)).is_none());
+    }
+
+    /// Light held solves give the general held solve's draw and pressures, from the base case
+    /// and from the last hydrant's answer, holding the hydrant's own head and another's.
+    #[test]
+    fn light_held_solves_equal_the_general_ones() {
+        let m = crate::generate::generate(&crate::generate::NetworkSpec::new(400, 11)).unwrap();
+        let conditions = Conditions::from_model(&m);
+        let options = SolveOptions::from_model(&m);
+        let mut solver = Solver::new(&m).unwrap();
+        let solved = solver.solve(&m, &conditions, &options).unwrap();
+        let base = solver.light_base(&m, &conditions, &solved).expect("no devices, no relations");
+        let junctions: Vec<usize> = (0..m.nodes().len())
+            .filter(|&i| matches!(m.nodes()[i].kind, NodeKind::Junction { .. }))
+            .step_by(9)
+            .collect();
+        let in_tree = junctions.iter().filter(|&&h| solver.structure.in_tree[h]).count();
+        assert!(in_tree > 3 && in_tree + 3 < junctions.len());
+        let (mut light, mut pressure, mut from_base, mut answered) = (solver.clone(), Vec::new(), true, 0);
+        for (k, &h) in junctions.iter().enumerate() {
+            let t = if k % 2 == 0 { h } else { junctions[(k + 3) % junctions.len()] };
+            let head = m.nodes()[t].elevation + 14.0;
+            let held = HeldHead { draw_at: h, node: t, head, start: 0.0 };
+            let want = solver.clone().solve_holding(&m, &conditions, &options, held);
+            let got = light.solve_holding_light(&m, &base, &options, held, from_base, 0.0, &mut pressure);
+            match (want, got) {
+                (Ok((s, q)), Ok(g)) => {
+                    assert!((q - g).abs() <= 1e-7 * q.abs().max(1e-2), "{h} {t}: {q} vs {g}");
+                    for (a, b) in s.pressure.iter().zip(&pressure) {
+                        assert!((a - b).abs() <= 1e-5 * a.abs().max(1.0), "{h} {t}: {a} vs {b}");
+                    }
+                    from_base = k % 3 == 0;
+                    answered += 1;
+                }
+                (Err(_), Err(_)) => from_base = true,
+                (a, b) => panic!("{h} {t}: {a:?} vs {b:?}"),
+            }
+        }
+        assert!(answered * 10 >= junctions.len() * 9, "{answered} of {}", junctions.len());
     }
 }

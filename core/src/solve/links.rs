@@ -99,30 +99,14 @@ impl LinkLaw {
     /// Like [`LinkLaw::new`] with the model's water properties computed once by the caller
     /// (they take a few hundred floating-point operations, more than the law itself).
     pub fn with_water(model: &Model, link: &Link, water: &WaterProperties) -> Self {
-        let inputs = match &link.kind {
-            LinkKind::Pipe(p) => LawInputs {
-                diameter: p.diameter,
-                roughness: p.roughness,
-                minor_loss: p.minor_loss,
-                setting: f64::NAN,
-                automatic: false,
-            },
-            LinkKind::Valve(v) => LawInputs {
-                diameter: v.diameter,
-                roughness: f64::NAN,
-                minor_loss: v.minor_loss,
-                setting: v.setting,
-                automatic: v.automatic,
-            },
-            LinkKind::Pump(p) => LawInputs {
-                diameter: f64::NAN,
-                roughness: f64::NAN,
-                minor_loss: f64::NAN,
-                setting: p.speed,
-                automatic: false,
-            },
-        };
-        LinkLaw::build(model, &link.kind, model.fittings_of(link), &inputs, water)
+        LinkLaw::build(model, &link.kind, model.fittings_of(link), &LawInputs::of(link), water)
+    }
+
+    /// The law of link `k` of `model` as written (the same law as [`LinkLaw::from_conditions`]
+    /// with the model's own conditions), its fittings found by position rather than by id.
+    pub(crate) fn of_model_link(model: &Model, k: usize, water: &WaterProperties) -> Self {
+        let link = &model.links()[k];
+        LinkLaw::build(model, &link.kind, model.fittings(k), &LawInputs::of(link), water)
     }
 
     /// The law of link `k` of `model` at the values of `conditions` (the link's kind, length and
@@ -296,6 +280,35 @@ struct LawInputs {
     /// Valve setting, or pump relative speed.
     setting: f64,
     automatic: bool,
+}
+
+impl LawInputs {
+    /// The values written in the model (those `Conditions::from_model` takes).
+    fn of(link: &Link) -> Self {
+        match &link.kind {
+            LinkKind::Pipe(p) => LawInputs {
+                diameter: p.diameter,
+                roughness: p.roughness,
+                minor_loss: p.minor_loss,
+                setting: f64::NAN,
+                automatic: false,
+            },
+            LinkKind::Valve(v) => LawInputs {
+                diameter: v.diameter,
+                roughness: f64::NAN,
+                minor_loss: v.minor_loss,
+                setting: v.setting,
+                automatic: v.automatic,
+            },
+            LinkKind::Pump(p) => LawInputs {
+                diameter: f64::NAN,
+                roughness: f64::NAN,
+                minor_loss: f64::NAN,
+                setting: p.speed,
+                automatic: false,
+            },
+        }
+    }
 }
 
 /// The law of a pipe (with its friction) or of a valve (without), plus the minor losses `m`.

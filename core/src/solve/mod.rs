@@ -70,7 +70,8 @@
 //! the laws; [`Solver::solve_batch`] / [`Solver::solve_batch_map`] for scenarios in parallel;
 //! [`Solver::timings`] for where the time went. [`Solver::solve_model`] and
 //! [`Solver::solve_with`] solve a model as written (they make its conditions afresh, so every law
-//! is rebuilt: use them for one-off solves).
+//! is rebuilt: use them for one-off solves); [`Solver::solve_once`] does the same for a caller
+//! that will not solve again, freeing the iteration's memory before the solution is made.
 //!
 //! # Convergence
 //! A step is accepted as converged when the relative flow change `Σ|ΔQ| / Σ|Q|` is at most the
@@ -103,7 +104,7 @@ pub mod topology;
 
 pub use batch::Scenario;
 pub use conditions::Conditions;
-pub use hold::HeldHead;
+pub use hold::{HeldHead, LightBase};
 pub use nodes::{NodeLaw, Relation};
 pub use solution::{OutflowSummary, PumpResult, Solution, Warning};
 pub use timings::Timings;
@@ -153,7 +154,7 @@ pub use status::{Ending, LinkState};
 
 /// Solves one snapshot of `model` as written, with its own options.
 pub fn solve(model: &Model) -> Result<Solution, SolveError> {
-    Solver::new(model)?.solve_model(model)
+    Solver::new(model)?.solve_once(model)
 }
 
 /// An active pressure valve: its core position and the node whose head it pins.
@@ -248,6 +249,11 @@ pub struct Solver {
     chord_w: Vec<f64>,
     timings: Timings,
     analysis_time: Duration,
+    /// Set during [`Solver::solve_once`]: the solve frees the iteration's work arrays before the
+    /// solution's arrays are made, and the solution takes the flows and heads.
+    one_off: bool,
+    /// A one-off solve freed the work arrays: the next solve makes them afresh.
+    released: bool,
 }
 
 impl Solver {
@@ -305,6 +311,8 @@ impl Solver {
             chord_w: Vec::new(),
             timings: Timings { analysis: analysis_time, ..Timings::default() },
             analysis_time,
+            one_off: false,
+            released: false,
             structure,
         }
     }
@@ -331,6 +339,27 @@ impl Solver {
         self.solve(model, &Conditions::from_model(model), options)
     }
 
+    /// Solves `model` as written, with the options in its `[hydraulics]`, for a caller that will
+    /// not solve with this solver again (the command-line `solve`, [`solve`]): the peak memory
+    /// of a one-off solve of a large network is the iteration's, not the iteration's and the
+    /// solution's together. The laws are built from the model itself, so its conditions are made
+    /// without the pipes' roughness and minor-loss arrays; once the iteration has converged,
+    /// the factor, the laws and every work array are freed before the solution's arrays are
+    /// made, and the
+    /// solution takes this solver's flows and heads instead of copying them (at a million
+    /// junctions some 150 MB, a quarter of the process). The answer is the same, bit for bit,
+    /// as [`Solver::solve_model`]'s. A later solve with this solver still works: it makes its
+    /// work arrays and laws afresh and starts cold.
+    pub fn solve_once(&mut self, model: &Model) -> Result<Solution, SolveError> {
+        let options = SolveOptions::from_model(model);
+        let conditions = Conditions::from_model_without_law_inputs(model);
+        let start = self.prepare(model, &conditions, true)?;
+        self.one_off = true;
+        let result = self.run(model, &conditions, &options, start);
+        self.one_off = false;
+        result
+    }
+
     /// Solves `model` under `conditions`. Only the laws of links whose inputs changed since this
     /// solver last saw these conditions are rebuilt; nothing of the model is validated again
     /// ([`Solver::new`] and the setters of [`Conditions`] did it), but a model whose structure no
@@ -341,16 +370,53 @@ impl Solver {
         conditions: &Conditions,
         options: &SolveOptions,
     ) -> Result<Solution, SolveError> {
+        let start = self.prepare(model, conditions, false)?;
+        self.run(model, conditions, options, start)
+    }
+
+    /// The first part of a solve: checks that `conditions` and the analysis fit `model`, makes
+    /// the work arrays a one-off solve freed, and brings the laws up to date: from the model
+    /// itself when `laws_from_model` (`conditions` are then the model's own, without the law
+    /// inputs), else from `conditions`. Returns when the preparation started.
+    fn prepare(
+        &mut self,
+        model: &Model,
+        conditions: &Conditions,
+        laws_from_model: bool,
+    ) -> Result<Instant, SolveError> {
         if !conditions.fits(model) {
             return Err(SolveError::Model(conditions.mismatch(model)));
         }
         if !self.structure.fits(model) {
             *self = Solver::new(model)?;
         }
+        if self.released {
+            // As a new solver of this structure (the analysis is kept, and its time not counted
+            // again).
+            *self = Solver::with_structure(model, Arc::clone(&self.structure), Duration::ZERO);
+        }
         let start = Instant::now();
         self.timings = Timings { analysis: self.analysis_time, ..Timings::default() };
         self.analysis_time = Duration::ZERO;
-        self.refresh_laws(model, conditions);
+        if laws_from_model {
+            let water = model.options.water_properties();
+            self.rebuild_laws(model, |k| LinkLaw::of_model_link(model, k, &water));
+            // Built from no conditions: any later solve rebuilds them.
+            self.laws_seen = None;
+        } else {
+            self.refresh_laws(model, conditions);
+        }
+        Ok(start)
+    }
+
+    /// The rest of a solve, after [`Solver::prepare`]: outflows, starting values, the iteration.
+    fn run(
+        &mut self,
+        model: &Model,
+        conditions: &Conditions,
+        options: &SolveOptions,
+        start: Instant,
+    ) -> Result<Solution, SolveError> {
         // The last solution took these two arrays.
         self.demand.resize(model.nodes().len(), 0.0);
         self.connected.resize(model.nodes().len(), false);
@@ -361,7 +427,10 @@ impl Solver {
         self.start_values(model, conditions, warm);
         self.timings.preparation += start.elapsed();
         let mut result = self.iterate(model, conditions, options, warm);
-        if warm && matches!(result, Err(SolveError::NotConverged { .. } | SolveError::StatusCycle { .. })) {
+        if warm
+            && !self.released
+            && matches!(result, Err(SolveError::NotConverged { .. } | SolveError::StatusCycle { .. }))
+        {
             // A start far from the answer (a previous solution of very different conditions: a
             // dry network before a full one) may not converge where a cold start does, whose
             // first step does not depend on the starting flows' scale: start again, cold.
@@ -370,8 +439,37 @@ impl Solver {
             self.start_values(model, conditions, false);
             result = self.iterate(model, conditions, options, false);
         }
-        self.has_previous = result.is_ok();
+        self.has_previous = result.is_ok() && !self.released;
         result
+    }
+
+    /// Frees the factor, the laws and the work arrays of the iteration (a one-off solve, once
+    /// the solution no longer needs them; see [`Solver::solve_once`]).
+    fn release_workspaces(&mut self) {
+        self.factor.release();
+        for v in [
+            &mut self.cq,
+            &mut self.cp,
+            &mut self.cc,
+            &mut self.rhs,
+            &mut self.delta,
+            &mut self.unknown_head,
+            &mut self.unknown_demand,
+            &mut self.known_head,
+            &mut self.subtree,
+            &mut self.chord_w,
+        ] {
+            *v = Vec::new();
+        }
+        for v in [&mut self.free, &mut self.open, &mut self.on_law, &mut self.anchored] {
+            *v = Vec::new();
+        }
+        self.laws = Vec::new();
+        self.laws_seen = None;
+        self.hot = Vec::new();
+        self.mode = Vec::new();
+        self.stack = Vec::new();
+        self.released = true;
     }
 
     /// Starting flows, heads and relation flows: from the previous solution on a warm start,
@@ -437,28 +535,32 @@ impl Solver {
                 }
             }
             None => {
-                self.water = model.options.water_properties();
-                if self.laws.len() != model.links().len() {
-                    // In the room reserved when the solver was made: no second array at any time.
-                    self.laws.clear();
-                    self.laws.resize(model.links().len(), LinkLaw::STOPPED);
-                }
-                let water = self.water;
-                let law_of =
-                    |(k, law): (usize, &mut LinkLaw)| *law = LinkLaw::from_conditions(model, k, conditions, &water);
-                if model.links().len() >= PARALLEL_LAWS {
-                    use rayon::prelude::*;
-                    self.laws.par_iter_mut().enumerate().for_each(law_of);
-                } else {
-                    self.laws.iter_mut().enumerate().for_each(law_of);
-                }
-                for i in 0..self.structure.core.len() {
-                    self.set_hot(i);
-                }
-                self.law_basis = Some(basis);
+                let water = model.options.water_properties();
+                self.rebuild_laws(model, |k| LinkLaw::from_conditions(model, k, conditions, &water));
             }
         }
         self.laws_seen = Some(conditions.laws_seen());
+    }
+
+    /// Builds every link's law with `law_of` (of the link's index), and their inline forms.
+    fn rebuild_laws(&mut self, model: &Model, law_of: impl Fn(usize) -> LinkLaw + Sync) {
+        self.water = model.options.water_properties();
+        if self.laws.len() != model.links().len() {
+            // In the room reserved when the solver was made: no second array at any time.
+            self.laws.clear();
+            self.laws.resize(model.links().len(), LinkLaw::STOPPED);
+        }
+        let fill = |(k, law): (usize, &mut LinkLaw)| *law = law_of(k);
+        if model.links().len() >= PARALLEL_LAWS {
+            use rayon::prelude::*;
+            self.laws.par_iter_mut().enumerate().for_each(fill);
+        } else {
+            self.laws.iter_mut().enumerate().for_each(fill);
+        }
+        for i in 0..self.structure.core.len() {
+            self.set_hot(i);
+        }
+        self.law_basis = Some((model.options.headloss, model.options.water));
     }
 
     /// The inline form of core link `i`'s law, and its law bit.

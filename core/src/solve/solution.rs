@@ -198,11 +198,46 @@ impl Solver {
     ) -> Solution {
         let nodes = model.nodes();
         let links = model.links();
-        // The mass balance's work array is dropped before the solution's arrays are made (at a
-        // million junctions it is some 8 MB at the moment of the process's peak memory).
+        // First what needs the laws and the iteration's arrays; then, in a one-off solve, they
+        // are freed before the solution's arrays are made (see `Solver::solve_once`).
         let max_energy_residual =
             energy_residuals(&self.structure.ends, &self.laws, &self.flow, &self.head, &self.on_law)
                 .fold(0.0, f64::max);
+        let link_state: Vec<LinkState> = tracker
+            .state
+            .iter()
+            .enumerate()
+            .map(|(k, &s)| if s.carries_flow() && !self.open[k] { LinkState::Disconnected } else { s })
+            .collect();
+        let rho_g = self.water.density * crate::units::GRAVITY;
+        let pumps: Vec<PumpResult> = links
+            .iter()
+            .enumerate()
+            .filter_map(|(k, l)| {
+                let pump = l.as_pump()?;
+                let q = self.flow[k];
+                let lift = self.head[l.to] - self.head[l.from];
+                let running = link_state[k] == LinkState::Open;
+                let speed = conditions.pump_speed(k);
+                let efficiency = pump.efficiency.at(q, speed);
+                let hydraulic_power = if running { rho_g * q * lift } else { 0.0 };
+                Some(PumpResult {
+                    link: k,
+                    head: if running { lift } else { 0.0 },
+                    speed,
+                    efficiency,
+                    hydraulic_power,
+                    shaft_power: hydraulic_power / efficiency,
+                    beyond_curve: running && self.laws[k].beyond_curve(q),
+                })
+            })
+            .collect();
+        let (head, flow) = if self.one_off {
+            self.release_workspaces();
+            (std::mem::take(&mut self.head), std::mem::take(&mut self.flow))
+        } else {
+            (self.head.clone(), self.flow.clone())
+        };
         // Per node: what is asked and what leaves (fixed outflows and relations of pressure).
         let n_nodes = nodes.len();
         let mut demand: Vec<f64> = conditions.demands().to_vec();
@@ -235,6 +270,7 @@ impl Solver {
                 super::Relation::Leakage => leakage[i] += q,
             }
         }
+        // The mass balance's work array is dropped before the solution's last arrays are made.
         let max_mass_residual = {
             let mut balance: Vec<f64> = if relations {
                 outflow.iter().map(|q| -q).collect()
@@ -242,7 +278,7 @@ impl Solver {
                 (0..n_nodes).map(|i| if self.connected[i] { -self.demand[i] } else { 0.0 }).collect()
             };
             drop(outflow);
-            for (&(from, to), &q) in self.structure.ends.iter().zip(&self.flow) {
+            for (&(from, to), &q) in self.structure.ends.iter().zip(&flow) {
                 balance[to as usize] += q;
                 balance[from as usize] -= q;
             }
@@ -253,10 +289,8 @@ impl Solver {
                 .map(|(i, _)| balance[i].abs())
                 .fold(0.0, f64::max)
         };
-        let head = self.head.clone();
         let pressure: Vec<f64> = nodes.iter().zip(&head).map(|(n, h)| h - n.elevation).collect();
-        let velocity: Vec<f64> = self
-            .flow
+        let velocity: Vec<f64> = flow
             .iter()
             .enumerate()
             .map(|(k, q)| match conditions.flow_area(k) {
@@ -266,35 +300,6 @@ impl Solver {
             .collect();
         let headloss: Vec<f64> =
             self.structure.ends.iter().map(|&(from, to)| (head[from as usize] - head[to as usize]).abs()).collect();
-        let link_state: Vec<LinkState> = tracker
-            .state
-            .iter()
-            .enumerate()
-            .map(|(k, &s)| if s.carries_flow() && !self.open[k] { LinkState::Disconnected } else { s })
-            .collect();
-        let rho_g = self.water.density * crate::units::GRAVITY;
-        let pumps: Vec<PumpResult> = links
-            .iter()
-            .enumerate()
-            .filter_map(|(k, l)| {
-                let pump = l.as_pump()?;
-                let q = self.flow[k];
-                let lift = head[l.to] - head[l.from];
-                let running = link_state[k] == LinkState::Open;
-                let speed = conditions.pump_speed(k);
-                let efficiency = pump.efficiency.at(q, speed);
-                let hydraulic_power = if running { rho_g * q * lift } else { 0.0 };
-                Some(PumpResult {
-                    link: k,
-                    head: if running { lift } else { 0.0 },
-                    speed,
-                    efficiency,
-                    hydraulic_power,
-                    shaft_power: hydraulic_power / efficiency,
-                    beyond_curve: running && self.laws[k].beyond_curve(q),
-                })
-            })
-            .collect();
         let mut warnings = Vec::new();
         let cut_off: Vec<usize> = (0..nodes.len()).filter(|&i| !self.connected[i]).collect();
         for &i in &cut_off {
@@ -337,7 +342,7 @@ impl Solver {
             connected: std::mem::take(&mut self.connected),
             head,
             pressure,
-            flow: self.flow.clone(),
+            flow,
             velocity,
             headloss,
             link_state,

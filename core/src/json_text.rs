@@ -1,13 +1,15 @@
-//! JSON text of results written by hand, at the speed of copying bytes: the per-element arrays
-//! of a report (a million nodes and a million links at the largest sizes) are formatted straight
-//! into large buffers, in parallel chunks when they are large, and written in order.
+//! JSON text written by hand, at the speed of copying bytes: the per-element arrays of a results
+//! report and of a model file (a million nodes and a million links at the largest sizes) are
+//! formatted straight into large buffers, in parallel chunks when they are large, and written in
+//! order.
 //!
 //! The text is byte for byte what serde_json writes through
-//! [`ringmain_core::model::write::ElementPerLine`]: numbers are formatted by the same shortest
+//! [`crate::model::write::ElementPerLine`]: numbers are formatted by the same shortest
 //! round-trip formatter serde_json itself uses (the `zmij` crate: the shortest digits that read
 //! back to the same `f64`), non-finite numbers are `null`, and strings are escaped as serde_json
 //! escapes them (a string that needs an escape at all, which no id of a written model has, is
-//! handed to serde_json itself). The report's tests compare both writers on every demo model.
+//! handed to serde_json itself). The report's and the model writer's tests compare the text with
+//! serde_json's on every demo model.
 //!
 //! Why by hand: serde's serializer makes a call per punctuation mark through the layout
 //! formatter; at 1e5 elements that was 70 ms of the 130 ms of writing. Chunks of elements are
@@ -55,6 +57,7 @@ pub struct Line<'b> {
 }
 
 impl<'b> Line<'b> {
+    /// Opens the object, `{`.
     pub fn open(out: &'b mut Vec<u8>) -> Self {
         out.push(b'{');
         Line { out, first: true }
@@ -99,6 +102,7 @@ impl<'b> Line<'b> {
         }
     }
 
+    /// A string.
     #[inline]
     pub fn text(&mut self, key: &str, v: &str) {
         self.key(key);
@@ -113,6 +117,7 @@ impl<'b> Line<'b> {
         }
     }
 
+    /// A boolean.
     #[inline]
     pub fn flag(&mut self, key: &str, v: bool) {
         self.key(key);
@@ -127,6 +132,24 @@ impl<'b> Line<'b> {
         }
     }
 
+    /// A value that `write` appends (a nested array or object), or no entry at all.
+    #[inline]
+    pub fn opt_with<T>(
+        &mut self,
+        key: &str,
+        v: Option<T>,
+        write: impl FnOnce(&mut Vec<u8>, T) -> io::Result<()>,
+    ) -> io::Result<()> {
+        match v {
+            Some(v) => {
+                self.key(key);
+                write(self.out, v)
+            }
+            None => Ok(()),
+        }
+    }
+
+    /// Closes the object, `}`.
     pub fn close(self) {
         self.out.push(b'}');
     }
@@ -144,7 +167,20 @@ pub fn write_array<W: Write + ?Sized>(
     count: usize,
     element: impl Fn(usize, &mut Vec<u8>) + Sync,
 ) -> io::Result<()> {
-    write_array_in_chunks(out, count, CHUNK, element)
+    try_write_array_in_chunks(out, count, CHUNK, |i, buf| {
+        element(i, buf);
+        Ok(())
+    })
+}
+
+/// [`write_array`] with an element writer that may fail: the first error is returned, and
+/// nothing of the batch it is in is written.
+pub fn try_write_array<W: Write + ?Sized>(
+    out: &mut W,
+    count: usize,
+    element: impl Fn(usize, &mut Vec<u8>) -> io::Result<()> + Sync,
+) -> io::Result<()> {
+    try_write_array_in_chunks(out, count, CHUNK, element)
 }
 
 /// [`write_array`] with chunks of `chunk` elements (the tests make them small).
@@ -154,52 +190,69 @@ pub fn write_array_in_chunks<W: Write + ?Sized>(
     chunk: usize,
     element: impl Fn(usize, &mut Vec<u8>) + Sync,
 ) -> io::Result<()> {
+    try_write_array_in_chunks(out, count, chunk, |i, buf| {
+        element(i, buf);
+        Ok(())
+    })
+}
+
+/// [`try_write_array`] with chunks of `chunk` elements.
+pub fn try_write_array_in_chunks<W: Write + ?Sized>(
+    out: &mut W,
+    count: usize,
+    chunk: usize,
+    element: impl Fn(usize, &mut Vec<u8>) -> io::Result<()> + Sync,
+) -> io::Result<()> {
     if count == 0 {
         return out.write_all(b"[]");
     }
     out.write_all(b"[")?;
     let chunk = chunk.max(1);
-    let format = |range: Range<usize>, buf: &mut Vec<u8>| {
+    let format = |range: Range<usize>, buf: &mut Vec<u8>| -> io::Result<()> {
         buf.clear();
         for i in range {
             if i > 0 {
                 buf.push(b',');
             }
             buf.extend_from_slice(b"\n    ");
-            element(i, buf);
+            element(i, buf)?;
         }
+        Ok(())
     };
     if count <= chunk {
         let mut buf = Vec::new();
-        format(0..count, &mut buf);
+        format(0..count, &mut buf)?;
         out.write_all(&buf)?;
     } else {
         // Enough chunks per batch to keep every thread busy while one batch is written.
         let per_batch = 4 * rayon::current_num_threads().max(1);
         let batch = chunk * per_batch;
-        let format_batch = |start: usize, bufs: &mut Vec<Vec<u8>>| {
+        let format_batch = |start: usize, bufs: &mut Vec<Vec<u8>>| -> io::Result<()> {
             bufs.resize_with(per_batch, Vec::new);
-            bufs.par_iter_mut().enumerate().for_each(|(c, buf)| {
+            bufs.par_iter_mut().enumerate().try_for_each(|(c, buf)| {
                 let from = (start + c * chunk).min(count);
-                format(from..(from + chunk).min(count), buf);
-            });
+                format(from..(from + chunk).min(count), buf)
+            })
         };
         let mut current = Vec::new();
         let mut next = Vec::new();
-        format_batch(0, &mut current);
+        format_batch(0, &mut current)?;
         let mut start = batch;
         loop {
             let more = start < count;
             let mut written = Ok(());
+            let mut formatted = Ok(());
             rayon::in_place_scope(|s| {
                 if more {
                     let next = &mut next;
                     let format_batch = &format_batch;
-                    s.spawn(move |_| format_batch(start, next));
+                    let formatted = &mut formatted;
+                    s.spawn(move |_| *formatted = format_batch(start, next));
                 }
                 written = current.iter().try_for_each(|b| out.write_all(b));
             });
             written?;
+            formatted?;
             if !more {
                 break;
             }
