@@ -138,7 +138,7 @@ impl Solver {
     /// in the order of `links`.
     ///
     /// Every closure's answer is that of a fresh solve of the model with that link closed, within
-    /// the tolerances of `options` (see the [module docs](self) for how it is found). The
+    /// the tolerances of `options` (see the docs of `solve/sweep.rs` for how it is found). The
     /// `Solution` handed to `reduce` lives only during the call: heads, pressures, flows,
     /// velocities, head differences, link states, connectivity and demands are the closure's;
     /// it carries no warnings, and pump results only where the general solve gave them.
