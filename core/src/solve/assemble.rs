@@ -109,19 +109,24 @@ impl Solver {
         (p, q + p * (dh - y), (y - dh).abs())
     }
 
+    /// Exact head loss and slope of core link `i` at flow `q`: Hazen–Williams inline, any other
+    /// law through its [`LinkLaw`](super::LinkLaw).
+    #[inline]
+    pub(super) fn core_law(&self, i: usize, q: f64) -> (f64, f64) {
+        if self.mode[i] & LAW_GENERAL != 0 {
+            self.laws[self.structure.core[i].link as usize].evaluate_exact(q)
+        } else {
+            let hot = &self.hot[i];
+            links::hazen_williams(hot.r, hot.minor, q)
+        }
+    }
+
     /// Conductance p, constant c and energy residual of core link `i` at flow `q` and head
     /// difference `dh`.
     #[inline]
     pub(super) fn coefficients(&self, i: usize, q: f64, dh: f64) -> (f64, f64, f64) {
-        let hot = self.hot[i];
-        let (y, g) = if self.mode[i] & LAW_GENERAL != 0 {
-            let (y, g) = self.laws[self.structure.core[i].link as usize].evaluate_exact(q);
-            (y, g.max(hot.min_slope))
-        } else {
-            let (y, g) = links::hazen_williams(hot.r, hot.minor, q);
-            (y, g.max(hot.min_slope))
-        };
-        let p = 1.0 / g;
+        let (y, g) = self.core_law(i, q);
+        let p = 1.0 / g.max(self.hot[i].min_slope);
         (p, q + p * (dh - y), (y - dh).abs())
     }
 

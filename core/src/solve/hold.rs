@@ -29,9 +29,7 @@
 //! Device states and relations of pressure work as in a plain solve: the border only changes the
 //! step's corrections and the draw; the damping of the iteration damps the draw's step as well.
 
-use super::assemble::{
-    link_ends, RelationChange, FREE_FROM, FREE_TO, LAW_GENERAL, MODE_FIXED_FLOW, MODE_LAW, MODE_MASK,
-};
+use super::assemble::{link_ends, RelationChange, FREE_FROM, FREE_TO, MODE_FIXED_FLOW, MODE_LAW, MODE_MASK};
 use super::chord::{backward, forward};
 use super::iterate::MASS_GATE;
 use super::status::StatusTracker;
@@ -236,17 +234,22 @@ impl Solver {
         result
     }
 
-    fn hold_step_with(&mut self, model: &Model, iteration: u32, hold: &mut Hold) -> Result<f64, SolveError> {
-        let nodes = model.nodes();
-        for i in [hold.held.draw_at, hold.held.node] {
+    /// An error naming the draw's junction or the held one if no fixed head reaches it.
+    fn held_ends_reached(&self, model: &Model, held: &HeldHead) -> Result<(), SolveError> {
+        for i in [held.draw_at, held.node] {
             if !self.connected[i] {
                 return Err(SolveError::Model(ModelError::at(
-                    Some(Element::Node(nodes[i].id.to_string())),
+                    Some(Element::Node(model.nodes()[i].id.to_string())),
                     None,
                     "no reservoir or tank reaches this junction: no head can be held by a draw here".to_owned(),
                 )));
             }
         }
+        Ok(())
+    }
+
+    fn hold_step_with(&mut self, model: &Model, iteration: u32, hold: &mut Hold) -> Result<f64, SolveError> {
+        self.held_ends_reached(model, &hold.held)?;
         let structure = &*self.structure;
         let (u, v) = (hold.draw_unknown, hold.target_unknown);
         let ends_free = |x: u32| x != NONE && self.free[x as usize];
@@ -585,7 +588,7 @@ impl Solver {
                 MODE_LAW => {
                     let ((_, h_from), (_, h_to)) = link_ends(c, &self.delta, &self.unknown_head, &self.head);
                     let q = self.cq[i];
-                    let y = self.light_loss(i, q);
+                    let y = self.core_law(i, q).0;
                     self.cc[i] = q + self.cp[i] * (h_from - h_to - y);
                 }
                 MODE_FIXED_FLOW => self.cc[i] = self.cq[i],
@@ -602,17 +605,6 @@ impl Solver {
             if !free {
                 *r = 0.0;
             }
-        }
-    }
-
-    /// Head loss of core link `i` at flow `q`.
-    #[inline]
-    fn light_loss(&self, i: usize, q: f64) -> f64 {
-        if self.mode[i] & LAW_GENERAL != 0 {
-            self.laws[self.structure.core[i].link as usize].evaluate_exact(q).0
-        } else {
-            let hot = self.hot[i];
-            super::links::hazen_williams(hot.r, hot.minor, q).0
         }
     }
 
@@ -633,7 +625,7 @@ impl Solver {
                     let p = self.cp[i];
                     let q = self.cc[i] + p * (d_from - d_to);
                     let dh = h_from - h_to;
-                    let y = self.light_loss(i, q);
+                    let y = self.core_law(i, q).0;
                     residual = residual.max((y - dh).abs());
                     sum_dq += (q - self.cq[i]).abs();
                     sum_q += q.abs();
@@ -670,16 +662,7 @@ impl Solver {
     }
 
     fn light_border_with(&mut self, model: &Model, iteration: u32, hold: &mut Hold) -> Result<f64, SolveError> {
-        let nodes = model.nodes();
-        for i in [hold.held.draw_at, hold.held.node] {
-            if !self.connected[i] {
-                return Err(SolveError::Model(ModelError::at(
-                    Some(Element::Node(nodes[i].id.to_string())),
-                    None,
-                    "no reservoir or tank reaches this junction: no head can be held by a draw here".to_owned(),
-                )));
-            }
-        }
+        self.held_ends_reached(model, &hold.held)?;
         let structure = &*self.structure;
         let l = self.factor.l_values();
         let (u, v) = (hold.draw_unknown, hold.target_unknown);

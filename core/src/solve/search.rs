@@ -53,9 +53,9 @@
 //! balance by a step), no held head (`hold.rs`) and no chord step. Elsewhere the iteration damps
 //! as before (see `iterate.rs`).
 
-use super::assemble::{link_ends, LAW_GENERAL, MODE_LAW, MODE_MASK};
+use super::assemble::{link_ends, MODE_LAW, MODE_MASK};
 use super::structure::NONE;
-use super::{links, Solver};
+use super::Solver;
 
 /// Most passes over the laws one line search takes after the full step's.
 pub(super) const SEARCH_PASSES: u32 = 8;
@@ -128,12 +128,7 @@ impl Solver {
                 continue;
             }
             let q = cq + alpha * d;
-            let loss = if mode & LAW_GENERAL != 0 {
-                self.laws[c.link as usize].evaluate_exact(q).0
-            } else {
-                let hot = &self.hot[i];
-                links::hazen_williams(hot.r, hot.minor, q).0
-            };
+            let loss = self.core_law(i, q).0;
             let dh = (h_from + alpha * d_from) - (h_to + alpha * d_to);
             slope += (loss - dh) * d;
         }

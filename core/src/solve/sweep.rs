@@ -38,7 +38,7 @@
 //! tolerance), followed by the same last gates (every value finite, mass balance to round-off).
 //! `tests/conditions.rs` compares every closure with a fresh solve of the closed model.
 
-use super::assemble::{link_ends, FREE_FROM, FREE_TO, LAW_GENERAL, MODE_CLOSED, MODE_LAW, MODE_MASK};
+use super::assemble::{link_ends, FREE_FROM, FREE_TO, MODE_CLOSED, MODE_LAW, MODE_MASK};
 use super::chord::{ChordBase, Correction, CHORD_CONTRACTION, CHORD_MARGIN, CHORD_STEPS};
 use super::iterate::{FLOOR_HEAD_CHANGE, MASS_GATE};
 use super::status::{LinkState, StatusTracker};
@@ -718,13 +718,8 @@ impl Solver {
                 continue;
             }
             let q = self.cq[i];
-            let hot = self.hot[i];
-            let (y, g) = match chord.taylor[i].and_then(|t| t.both_at(q)) {
-                Some(v) => v,
-                None if mode & LAW_GENERAL != 0 => self.laws[c.link as usize].evaluate_exact(q),
-                None => super::links::hazen_williams(hot.r, hot.minor, q),
-            };
-            let p = 1.0 / g.max(hot.min_slope);
+            let (y, g) = chord.taylor[i].and_then(|t| t.both_at(q)).unwrap_or_else(|| self.core_law(i, q));
+            let p = 1.0 / g.max(self.hot[i].min_slope);
             let dh = self.end_head(c.slots.from, c.from) - self.end_head(c.slots.to, c.to);
             self.cp[i] = p;
             self.cc[i] = q + p * (dh - y);
@@ -751,13 +746,8 @@ impl Solver {
                 continue;
             }
             let q = self.cq[i];
-            let hot = self.hot[i];
-            let g = match chord.taylor[i].and_then(|t| t.slope_at(q)) {
-                Some(g) => g,
-                None if mode & LAW_GENERAL != 0 => self.laws[c.link as usize].evaluate_exact(q).1,
-                None => super::links::hazen_williams(hot.r, hot.minor, q).1,
-            };
-            let d = 1.0 / g.max(hot.min_slope) - chord.cp[i];
+            let g = chord.taylor[i].and_then(|t| t.slope_at(q)).unwrap_or_else(|| self.core_law(i, q).1);
+            let d = 1.0 / g.max(self.hot[i].min_slope) - chord.cp[i];
             let ((d_from, _), (d_to, _)) = link_ends(c, &self.delta, &self.unknown_head, &self.head);
             let score = (d * (d_from - d_to)).abs();
             if score > best[WOODBURY_LINKS - 1].0 {
