@@ -137,7 +137,7 @@ impl Solver {
             let unguarded = slow && self.searches_line(chord_step);
             let searched = unguarded && since_change > DAMPING_AFTER + 1;
             let damping = if searched {
-                self.line_search().0
+                self.line_search()
             } else if !slow || unguarded {
                 1.0
             } else if since_change <= 4 * DAMPING_AFTER {

@@ -58,7 +58,7 @@ use super::structure::NONE;
 use super::Solver;
 
 /// Most passes over the laws one line search takes after the full step's.
-pub(super) const SEARCH_PASSES: u32 = 8;
+const SEARCH_PASSES: u32 = 8;
 
 /// The full step is taken when the content's slope there is at most this share of its slope at
 /// the start (positive: a step a little past the minimum along the line).
@@ -77,14 +77,13 @@ impl Solver {
         !self.relations.is_empty() && self.pinned.is_empty() && !self.holding() && !chord_step
     }
 
-    /// The step length α ∈ [`SHORTEST`, 1] for the Newton corrections in `delta` (not yet applied),
-    /// and the number of passes over the laws it took.
-    pub(super) fn line_search(&self) -> (f64, u32) {
+    /// The step length α ∈ [`SHORTEST`, 1] for the Newton corrections in `delta` (not yet applied).
+    pub(super) fn line_search(&self) -> f64 {
         let slope0 = self.content_slope(0.0);
         let slope1 = self.content_slope(1.0);
         if slope0.is_nan() || slope0 >= 0.0 || slope1 <= FULL_STEP_SLOPE * -slope0 {
             // Not a descent (round-off at the answer), or a full step that does not overshoot.
-            return (1.0, 1);
+            return 1.0;
         }
         // (A slope that is not finite is past the minimum too.)
         let slope1 = if slope1.is_finite() { slope1 } else { f64::MAX };
@@ -94,12 +93,12 @@ impl Solver {
         // and the secant point would creep along the flat part).
         let (mut a, mut fa, mut b, mut fb) = (0.0, slope0, 1.0, slope1);
         let mut alpha = 1.0;
-        for pass in 1..=SEARCH_PASSES {
+        for _ in 0..SEARCH_PASSES {
             let lopsided = fb > 10.0 * -fa || -fa > 10.0 * fb;
             alpha = if lopsided { 0.5 * (a + b) } else { a - fa * (b - a) / (fb - fa) }.clamp(SHORTEST, 1.0);
             let f = self.content_slope(alpha);
             if f.is_finite() && f.abs() <= ACCEPT_SLOPE * -slope0 {
-                return (alpha, pass + 1);
+                return alpha;
             }
             if f < 0.0 {
                 (a, fa) = (alpha, f);
@@ -108,7 +107,11 @@ impl Solver {
             }
         }
         // The end where the content still falls, or the last point if that end is the start.
-        (if a > 0.0 { a.max(SHORTEST) } else { alpha }, SEARCH_PASSES + 1)
+        if a > 0.0 {
+            a.max(SHORTEST)
+        } else {
+            alpha
+        }
     }
 
     /// The content's slope `φ'(α)` along the Newton step (see the module docs).
