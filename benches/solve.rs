@@ -18,8 +18,8 @@
 //!   `Solver::solve_batch`, on a rayon pool of 1 and of 2 threads.
 
 use criterion::{criterion_group, criterion_main, BenchmarkId, Criterion, Throughput};
+use ringmain_core::format::write;
 use ringmain_core::generate::{generate, NetworkSpec};
-use ringmain_core::model::write;
 use ringmain_core::solve::{Conditions, Scenario, SolveOptions, Solver};
 use ringmain_core::{Format, LinkStatus, Model};
 use std::path::PathBuf;

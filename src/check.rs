@@ -14,7 +14,7 @@ use ringmain_core::analysis::{
     diagnose_model, diagnose_solution, run_scenario, supplied_by_topology, sweep_candidates, sweep_pipes,
     warning_checks, what_if_model, CheckOptions, Criteria, Scenario,
 };
-use ringmain_core::model::doc::{self, Value};
+use ringmain_core::format::tree::{self, Value};
 use ringmain_core::{Format, ModelError, NodeKind, SolveError, SolveOptions, Solver};
 use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
@@ -100,7 +100,7 @@ pub fn read_source(path: &Path) -> Result<(SourceText, Vec<u8>), ModelError> {
 const STREAM_ABOVE_BYTES: u64 = 64 << 20;
 
 /// Reads a model file. A JSON file is first read in one pass straight from the file, a chunk at
-/// a time, by the fast reader of `ringmain_core::model::scan` (a network of a million junctions
+/// a time, by the fast reader of `ringmain_core::format::one_pass` (a network of a million junctions
 /// takes some 300 MB of JSON, never held whole); any other file, or a JSON file that reader gives
 /// up on (an error, an escape, keys in an order it cannot take in one pass), is read as one text,
 /// so that every error comes with its position.
@@ -111,7 +111,8 @@ pub fn read_model(path: &Path) -> Result<(ringmain_core::Model, SourceText), (Mo
     if file && Format::from_path(path) == Some(Format::Toml) {
         // TOML likewise: the `toml` crate builds the whole document first (some ten times the
         // file's size in memory), so only what the fast reader gives up on goes that way.
-        let model = std::fs::File::open(path).ok().and_then(|f| ringmain_core::model::scan::toml_from_reader(f, limit));
+        let model =
+            std::fs::File::open(path).ok().and_then(|f| ringmain_core::format::one_pass::toml_from_reader(f, limit));
         if let Some(model) = model {
             return Ok((model, SourceText { name, path: path.to_owned(), text: None, format: Format::Toml }));
         }
@@ -119,12 +120,13 @@ pub fn read_model(path: &Path) -> Result<(ringmain_core::Model, SourceText), (Mo
     if file && Format::from_path(path) == Some(Format::Json) {
         // In one pass straight from the file, a chunk at a time (the model and one chunk in
         // memory); anything that reader is not sure of is read as one text below.
-        let model = std::fs::File::open(path).ok().and_then(|f| ringmain_core::model::scan::json_from_reader(f, limit));
+        let model =
+            std::fs::File::open(path).ok().and_then(|f| ringmain_core::format::one_pass::json_from_reader(f, limit));
         // A large file it gave up on (an escape in a string, say): serde_json's one-pass reader
         // from the file, which takes any JSON but is several times slower.
         let large = std::fs::metadata(path).is_ok_and(|m| m.len() > STREAM_ABOVE_BYTES);
         let model = model.or_else(|| {
-            large.then(|| std::fs::File::open(path).ok().and_then(ringmain_core::model::file::read_json_stream))?
+            large.then(|| std::fs::File::open(path).ok().and_then(ringmain_core::format::read::read_json_stream))?
         });
         if let Some(model) = model {
             return Ok((model, SourceText { name, path: path.to_owned(), text: None, format: Format::Json }));
@@ -166,8 +168,8 @@ fn read_criteria_file(path: &Path) -> Result<(SourceText, Value), (ModelError, O
         return Err((e, Some(source)));
     };
     let parsed = match source.format {
-        Format::Toml => doc::parse_toml(text),
-        Format::Json => doc::parse_json(text),
+        Format::Toml => tree::parse_toml(text),
+        Format::Json => tree::parse_json(text),
     };
     let tree = match parsed {
         Ok(t) => t,

@@ -122,7 +122,7 @@ pub fn run(args: Args) -> ExitCode {
     }
     let code = match &args.output {
         Some(path) => {
-            match crate::output::write_file(path, |out| ringmain_core::model::write::write_to(&model, format, out)) {
+            match crate::output::write_file(path, |out| ringmain_core::format::write::write_to(&model, format, out)) {
                 Ok(()) => ExitCode::SUCCESS,
                 Err(e) => {
                     eprintln!("error: cannot write the model to {}: {e}", path.display());
@@ -130,7 +130,7 @@ pub fn run(args: Args) -> ExitCode {
                 }
             }
         }
-        None => crate::write_with("the model", None, |out| ringmain_core::model::write::write_to(&model, format, out)),
+        None => crate::write_with("the model", None, |out| ringmain_core::format::write::write_to(&model, format, out)),
     };
     std::mem::forget(model);
     code

@@ -645,7 +645,7 @@ fn generate(junctions: usize, seed: u64, output: &Path) -> ExitCode {
             return ExitCode::from(EXIT_INVALID);
         }
     };
-    let code = write_with("the model", Some(output), |out| ringmain_core::model::write::write_to(&model, format, out));
+    let code = write_with("the model", Some(output), |out| ringmain_core::format::write::write_to(&model, format, out));
     // As in `solve`: the process ends here, the operating system takes the memory back at once.
     std::mem::forget(model);
     code

@@ -4,8 +4,8 @@
 
 use crate::columnar::{Column, Kind, Table};
 use crate::csv;
+use ringmain_core::format::write::write_element_per_line;
 use ringmain_core::json_text;
-use ringmain_core::model::write::write_element_per_line;
 use ringmain_core::model::{LinkKind, Valve};
 use ringmain_core::physics::WaterProperties;
 use ringmain_core::solve::links::{minor_losses, LinkLaw};

@@ -291,7 +291,7 @@ fn held_solves_equal_the_search_below_the_residual_and_without_protected_junctio
 fn held_solves_equal_the_search_with_pressure_dependent_demand() {
     let m = street_network(300, 8);
     let mut doc: serde_json::Value =
-        serde_json::from_str(&ringmain_core::model::write::to_string(&m, Format::Json)).unwrap();
+        serde_json::from_str(&ringmain_core::format::write::to_string(&m, Format::Json)).unwrap();
     doc["pressure_demand"] = serde_json::json!({ "full_pressure": 40.0, "zero_pressure": 5.0, "exponent": 0.5 });
     let pdd = ringmain_core::read_str(&doc.to_string(), Format::Json, "pdd.json").unwrap();
     assert!(pdd.outflow.is_active());
@@ -308,7 +308,7 @@ fn held_solves_equal_the_search_with_outlets_and_leakage() {
     // general held solve answers (the light one serves fixed outflows only).
     let m = street_network(300, 4);
     let mut doc: serde_json::Value =
-        serde_json::from_str(&ringmain_core::model::write::to_string(&m, Format::Json)).unwrap();
+        serde_json::from_str(&ringmain_core::format::write::to_string(&m, Format::Json)).unwrap();
     doc["leakage"] = serde_json::json!({ "rate": 0.05, "reference_pressure": 50.0, "exponent": 1.18 });
     let nodes = doc["nodes"].as_array_mut().unwrap();
     for node in nodes.iter_mut().filter(|n| n["kind"] == "junction").step_by(11) {

@@ -63,7 +63,7 @@ fn generated_networks_of_ten_and_a_hundred_thousand_junctions_solve() {
 fn generated_model_file_reads_back() {
     let m = generate(&NetworkSpec::new(2_000, 5)).expect("generated");
     for format in [ringmain_core::Format::Json, ringmain_core::Format::Toml] {
-        let text = ringmain_core::model::write::to_string(&m, format);
+        let text = ringmain_core::format::write::to_string(&m, format);
         let back = ringmain_core::read_str(&text, format, "generated").expect("reads back");
         assert_eq!(back.nodes().len(), m.nodes().len());
         assert_eq!(back.links().len(), m.links().len());

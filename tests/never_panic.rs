@@ -18,7 +18,7 @@ const EXAMPLE: &str = include_str!("../examples/larchfield.toml");
 /// The example as JSON, written by the model writer (so both formats start from a valid model).
 fn example_json() -> String {
     let model = ringmain_core::read_str(EXAMPLE, Format::Toml, "example").unwrap();
-    ringmain_core::model::write::to_string(&model, Format::Json)
+    ringmain_core::format::write::to_string(&model, Format::Json)
 }
 
 /// Everything the check command does with a file, minus the process.

@@ -6,8 +6,8 @@
 //! Pa, 1 ft = 0.3048 m, 1 US gallon = 3.785411784 L); the water density at 20 °C, 998.2067 kg/m³,
 //! is the IAPWS-95 value the library computes (checked in tests/python against `iapws`).
 
-use ringmain_core::model::file::{read_str, Format};
-use ringmain_core::model::write::to_string;
+use ringmain_core::format::write::to_string;
+use ringmain_core::format::{read_str, Format};
 use std::path::PathBuf;
 use std::process::Command;
 

@@ -100,7 +100,7 @@ fn the_demo_round_trips_through_the_writer() {
     let text = std::fs::read_to_string(demo()).unwrap();
     let model = ringmain_core::read_str(&text, ringmain_core::Format::Toml, "demo").unwrap();
     for format in [ringmain_core::Format::Toml, ringmain_core::Format::Json] {
-        let out = ringmain_core::model::write::to_string(&model, format);
+        let out = ringmain_core::format::write::to_string(&model, format);
         let back = ringmain_core::read_str(&out, format, "written").unwrap_or_else(|e| panic!("{e}"));
         assert_eq!(back.time.controls, model.time.controls);
         assert_eq!(back.time.patterns, model.time.patterns);

@@ -305,7 +305,7 @@ fn the_law_holds_the_fittings_head_loss() {
 
 #[test]
 fn fittings_round_trip_through_the_writer() {
-    use ringmain_core::model::write::to_string;
+    use ringmain_core::format::write::to_string;
     let m = model();
     for format in [Format::Toml, Format::Json] {
         let text = to_string(&m, format);

@@ -4,7 +4,7 @@
 //! order.
 //!
 //! The text is byte for byte what serde_json writes through
-//! [`crate::model::write::ElementPerLine`]: numbers are formatted by the same shortest
+//! [`crate::format::write::ElementPerLine`]: numbers are formatted by the same shortest
 //! round-trip formatter serde_json itself uses (the `zmij` crate: the shortest digits that read
 //! back to the same `f64`), non-finite numbers are `null`, and strings are escaped as serde_json
 //! escapes them (a string that needs an escape at all, which no id of a written model has, is

@@ -1,6 +1,6 @@
 //! ringmain-core: flows and pressures in looped water-distribution networks.
 //!
-//! Data flows one way: a model file is read into a [`Model`] ([`model::file`]), the gradient
+//! Data flows one way: a model file is read into a [`Model`] ([`mod@format`]), the gradient
 //! method of Todini & Pilati solves it ([`mod@solve`]), and the [`Solution`] goes to writers (in the
 //! command-line program and the C library). SI units inside; [`units`] converts at the edges.
 //!
@@ -36,6 +36,7 @@
 pub mod analysis;
 pub mod duty;
 pub mod error;
+pub mod format;
 pub mod generate;
 pub mod import;
 pub mod json_text;
@@ -47,7 +48,7 @@ pub mod solve;
 pub mod units;
 
 pub use error::{Element, ModelError, SolveError};
-pub use model::file::{read_bytes, read_str, Format};
+pub use format::{read_bytes, read_str, Format};
 pub use model::{HeadLossLaw, Link, LinkKind, LinkStatus, Model, Node, NodeKind, Pipe, Tank};
 pub use simulate::{simulate, Run, SimulateError, SimulateOptions};
 pub use solve::{solve, LinkState, Solution, SolveOptions, Solver};

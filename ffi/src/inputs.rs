@@ -557,7 +557,7 @@ setting = 30.0
     }
 
     fn text_of(model: &Model) -> String {
-        ringmain_core::model::write::to_string(model, Format::Toml)
+        ringmain_core::format::write::to_string(model, Format::Toml)
     }
 
     #[test]

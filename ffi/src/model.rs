@@ -8,7 +8,7 @@ use crate::codes::*;
 use crate::convert::{Quantity, Units};
 use crate::inputs::{get_one, set_one, Input};
 use crate::results::ringmain_results;
-use ringmain_core::model::write::to_string;
+use ringmain_core::format::write::to_string;
 use ringmain_core::model::{HydraulicOptions, Pump, PumpDrive, Valve, WaterSpec};
 use ringmain_core::physics::pump::{Efficiency, HeadCurve};
 use ringmain_core::physics::WaterProperties;
@@ -418,7 +418,7 @@ pub unsafe extern "C" fn ringmain_model_save(model: *const ringmain_model, path:
         })?;
         let io_error = |e: std::io::Error| Failure::new(ringmain_status::RINGMAIN_IO, format!("{path}: cannot write the file: {e}"));
         let file = std::fs::File::create(path).map_err(io_error)?;
-        ringmain_core::model::write::write_to(&*m.current()?, format, file).map_err(io_error)?;
+        ringmain_core::format::write::write_to(&*m.current()?, format, file).map_err(io_error)?;
         Ok(())
     }
 }

@@ -43,7 +43,7 @@
 use super::glob_match;
 use super::DiagnosticKind;
 use crate::error::{printable, Element, ModelError};
-use crate::model::doc::{Key, Value};
+use crate::format::tree::{Key, Value};
 use crate::model::{Model, NodeKind};
 use crate::units::did_you_mean;
 use crate::units::{Converter, FlowUnit, LengthUnit, PressureUnit, UnitSystem};
@@ -661,7 +661,7 @@ pub fn to_units(q: Quantity, si: f64, units: &UnitSystem, density: f64) -> (f64,
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::model::doc::parse_toml;
+    use crate::format::tree::parse_toml;
     use crate::model::Node;
     use crate::units::PSI;
 

@@ -5,8 +5,8 @@
 //! suggestion), so that a misspelt attribute mapping never silently drops data.
 
 use crate::error::{Element, ModelError};
-use crate::model::doc::{self, Value};
-use crate::model::file::{read_hydraulics, read_units};
+use crate::format::read::{read_hydraulics, read_units};
+use crate::format::tree::{self, Value};
 use crate::model::HydraulicOptions;
 use crate::units::did_you_mean;
 use crate::units::{LengthUnit, UnitSystem};
@@ -97,7 +97,7 @@ fn table_error(table: &str, key: Option<&str>, message: impl Into<String>) -> Mo
     ModelError::at(Some(Element::Table(table.into())), key, message)
 }
 
-fn entries(value: Value, table: &str) -> Result<Vec<(doc::Key, Value)>, ModelError> {
+fn entries(value: Value, table: &str) -> Result<Vec<(tree::Key, Value)>, ModelError> {
     match value {
         Value::Table(entries) => Ok(entries),
         other => Err(table_error(table, None, format!("must be a table, found {}", other.kind()))),
@@ -136,7 +136,7 @@ pub fn read_fields(text: &str, file: &str) -> Result<FieldMap, ModelError> {
 }
 
 fn read_inner(text: &str) -> Result<FieldMap, ModelError> {
-    let tree = doc::parse_toml(text).map_err(|e| ModelError {
+    let tree = tree::parse_toml(text).map_err(|e| ModelError {
         position: e.position,
         ..ModelError::new(format!("TOML syntax error: {}", e.message))
     })?;

@@ -1,6 +1,6 @@
 //! The network model: nodes, links, options, in SI units.
 //!
-//! A [`Model`] is built either by [`file::read_str`] from a model file (TOML or JSON, see the
+//! A [`Model`] is built either by [`crate::format::read_str`] from a model file (TOML or JSON, see the
 //! README for the format) or element by element with [`Model::add_node`] and
 //! [`Model::add_link`]. Every value is checked as it enters; [`Model::validate`] checks what
 //! only the whole network can say (a fixed head to anchor the heads). Values are SI inside:
@@ -8,16 +8,12 @@
 //! results can be written back the same way.
 //!
 //! Adding a new kind of element: add a variant to [`NodeKind`] or [`LinkKind`] (both are
-//! `#[non_exhaustive]`), read it in [`mod@file`], give it a head-loss law in `solve::links`, and
+//! `#[non_exhaustive]`), read it in [`crate::format`] (its kind in `format::schema`), give it a head-loss law in `solve::links`, and
 //! write it in the reports. DEVELOPERS.md walks through the steps.
 
-pub mod doc;
-pub mod file;
 mod index;
 pub mod outflow;
-pub mod scan;
 pub mod time;
-pub mod write;
 
 use crate::error::{Element, ModelError};
 use crate::physics::fittings::{Fitting, FittingKind, FittingsMethod};
@@ -502,7 +498,7 @@ pub struct Model {
     pub time: time::TimeData,
     /// The `[criteria]` table as written, unchecked; [`crate::analysis::Criteria::apply`]
     /// reads it (only the commands that check criteria need it to be valid).
-    pub criteria: Option<doc::Value>,
+    pub criteria: Option<crate::format::tree::Value>,
     /// Named fittings of pipes and valves: link index → its list (set through
     /// [`Model::set_fittings`], which checks them). Kept beside the links rather than in them:
     /// few links list fittings, and every link of a large network stays small.
@@ -715,7 +711,7 @@ fn invisible(c: char) -> bool {
     )
 }
 
-fn check_id(id: &str, element: &impl Named) -> Result<(), ModelError> {
+pub(crate) fn check_id(id: &str, element: &impl Named) -> Result<(), ModelError> {
     if id.trim().is_empty() {
         return Err(ModelError::at(Some(element.element()), Some("id"), "must not be empty"));
     }

@@ -12,10 +12,10 @@
 //! and `ringmain generate` makes and writes a million junctions in under 2 s and 270 MB
 //! (benches/RESULTS.md).
 
-use super::file::Format;
-use super::time::{self as tm, Action, Condition};
-use super::{LinkKind, LinkStatus, Model, NodeKind, PumpDrive, ValveType, WaterSpec};
+use super::Format;
 use crate::json_text::{self, Line};
+use crate::model::time::{self as tm, Action, Condition};
+use crate::model::{LinkKind, LinkStatus, Model, NodeKind, PumpDrive, ValveType, WaterSpec};
 use crate::physics::fittings::Fitting;
 use crate::physics::pump::Efficiency;
 use crate::units::{Converter, Quantity};
@@ -492,7 +492,7 @@ impl ModelFile<'_> {
                 },
             )?;
         }
-        if m.map.coordinates != super::MapCoordinates::default() {
+        if m.map.coordinates != crate::model::MapCoordinates::default() {
             top.serialize_entry("map", &MapTable { coordinates: m.map.coordinates.label() })?;
         }
         if let Some(sim) = &time.simulation {
@@ -598,11 +598,11 @@ struct Simulation {
 }
 
 /// A value of the file kept as written (the `[criteria]` table).
-struct Raw<'a>(&'a super::doc::Value);
+struct Raw<'a>(&'a super::tree::Value);
 
 impl Serialize for Raw<'_> {
     fn serialize<S: Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
-        use super::doc::Value;
+        use super::tree::Value;
         match self.0 {
             Value::Bool(b) => s.serialize_bool(*b),
             Value::Int(i) => s.serialize_i64(*i),
@@ -1100,7 +1100,7 @@ impl Serialize for Conditions<'_> {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::model::file::read_str;
+    use crate::format::read::read_str;
     use crate::model::{HydraulicOptions, Link, Node};
     use crate::units::UnitSystem;
 
@@ -1495,7 +1495,7 @@ mod tests {
         assert_json_as_serde_writes_it(&Model::default(), "empty");
     }
 
-    /// The keys written, as `(place, kind, key)` (see `file::accepted_keys`).
+    /// The keys written, as `(place, kind, key)` (see `schema::accepted_keys`).
     fn written_keys(v: &serde_json::Value) -> std::collections::BTreeSet<(String, String, String)> {
         use serde_json::Value;
         let mut out = std::collections::BTreeSet::new();
@@ -1563,8 +1563,8 @@ mod tests {
             written.extend(written_keys(&json));
             // The one-pass readers take what the writer writes.
             let out = to_string(&model, Format::Json);
-            assert_eq!(crate::model::file::read_json_stream(out.as_bytes()).as_ref(), Some(&model));
-            assert_eq!(crate::model::file::read_json_lines(out.as_bytes()).as_ref(), Some(&model));
+            assert_eq!(crate::format::read::read_json_stream(out.as_bytes()).as_ref(), Some(&model));
+            assert_eq!(crate::format::read::read_json_lines(out.as_bytes()).as_ref(), Some(&model));
         }
         // Keys the reader takes under a second name, written under the first.
         let alias = |place: &str, key: &'static str| -> &'static str {
@@ -1574,7 +1574,7 @@ mod tests {
             }
         };
         let mut missing = Vec::new();
-        for (place, kind, keys) in crate::model::file::accepted_keys() {
+        for (place, kind, keys) in crate::format::schema::accepted_keys() {
             for key in keys {
                 let key = alias(place, key);
                 if !written.contains(&(place.to_owned(), kind.to_owned(), key.to_owned())) {

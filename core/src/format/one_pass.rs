@@ -5,7 +5,7 @@
 //! and **gives up** (`None`) on anything it is not sure of: a syntax error, an escape in a
 //! string, a number it cannot read exactly as the whole-text reader does, a duplicate key, keys
 //! in an order one pass cannot take, any model error. The caller then reads the file with the
-//! whole-text reader ([`super::file::read_str`]), which accepts everything valid and gives every
+//! whole-text reader ([`super::read::read_str`]), which accepts everything valid and gives every
 //! error with its line and column. A model read here equals the one the whole-text reader builds
 //! from the same text (the tests compare them), so which reader ran is invisible.
 //!
@@ -25,9 +25,9 @@
 //! adds the elements to the model in the order of the file, so that the model, and every
 //! message of the reader it falls back to, is the same as one thread's.
 
-use super::doc::{self, Value, MAX_DEPTH};
-use super::file;
-use super::{HeadLossLaw, Link, LinkKind, LinkStatus, Model, Node, NodeKind, Pipe};
+use super::read;
+use super::tree::{self, Value, MAX_DEPTH};
+use crate::model::{HeadLossLaw, Link, LinkKind, LinkStatus, Model, Node, NodeKind, Pipe};
 use std::io::Read;
 
 /// Why a step stopped.
@@ -287,7 +287,7 @@ fn mantissa_nonzero(text: &[u8]) -> bool {
     text.iter().take_while(|c| !matches!(c, b'e' | b'E')).any(|c| (b'1'..=b'9').contains(c))
 }
 
-/// A JSON value into the same tree serde_json gives through [`doc::Seed`].
+/// A JSON value into the same tree serde_json gives through [`tree::Seed`].
 fn json_value(c: &mut Cursor, depth: usize) -> Step<Value> {
     match c.json_space()? {
         b'"' => Ok(Value::Str(c.plain_string()?.to_owned())),
@@ -296,7 +296,7 @@ fn json_value(c: &mut Cursor, depth: usize) -> Step<Value> {
                 return Err(Stop::GiveUp);
             }
             c.i += 1;
-            let mut entries: Vec<(doc::Key, Value)> = Vec::with_capacity(TABLE_CAPACITY);
+            let mut entries: Vec<(tree::Key, Value)> = Vec::with_capacity(TABLE_CAPACITY);
             if c.json_space()? == b'}' {
                 c.i += 1;
                 return Ok(Value::Table(entries));
@@ -310,7 +310,7 @@ fn json_value(c: &mut Cursor, depth: usize) -> Step<Value> {
                 if key.starts_with('$') || entries.iter().any(|(k, _)| k == key) || entries.len() > 64 {
                     return Err(Stop::GiveUp);
                 }
-                let key = doc::key(key);
+                let key = tree::key(key);
                 c.expect(b':')?;
                 let value = json_value(c, depth + 1)?;
                 entries.push((key, value));
@@ -496,7 +496,7 @@ fn json_from_chunks<R: Read>(src: R, limit: u64, chunk: usize) -> Option<Model> 
 /// [`super::write`] writes; any other order gives up.
 fn json_model(feed: &mut impl Feed) -> Option<Model> {
     feed.step(|c| c.expect(b'{'))?;
-    let mut settings: Vec<(doc::Key, Value)> = Vec::new();
+    let mut settings: Vec<(tree::Key, Value)> = Vec::new();
     let mut model: Option<Model> = None;
     let mut controls: Option<Value> = None;
     let mut seen: Vec<String> = Vec::new();
@@ -530,8 +530,8 @@ fn json_model(feed: &mut impl Feed) -> Option<Model> {
         }
         match key.as_str() {
             "nodes" => {
-                let mut top = file::top_fields(std::mem::take(&mut settings));
-                let mut m = file::settings_model(&mut top)?;
+                let mut top = read::top_fields(std::mem::take(&mut settings));
+                let mut m = read::settings_model(&mut top)?;
                 json_elements(feed, &mut m, true)?;
                 model = Some(m);
             }
@@ -543,7 +543,7 @@ fn json_model(feed: &mut impl Feed) -> Option<Model> {
             _ if model.is_some() => return None,
             _ => {
                 let v = feed.step(|c| json_value(c, 1))?;
-                settings.push((doc::Key::Owned(key.clone()), v));
+                settings.push((tree::Key::Owned(key.clone()), v));
             }
         }
         seen.push(key);
@@ -563,7 +563,7 @@ fn json_model(feed: &mut impl Feed) -> Option<Model> {
         Some(Value::Array(items)) => items,
         Some(_) => return None,
     };
-    file::finish_model(model, controls)
+    read::finish_model(model, controls)
 }
 
 /// The `nodes` or `links` array, element by element into the model.
@@ -619,7 +619,7 @@ struct Reading {
 enum Parsed {
     Node(Node),
     /// A plain pipe and the ids of its ends (the link's `from` and `to` are set on adding).
-    Pipe(Link, super::Id, super::Id),
+    Pipe(Link, crate::model::Id, crate::model::Id),
     /// Any other element, as its value tree.
     Value(Value),
 }
@@ -688,8 +688,8 @@ impl Adder {
                     link.to = self.ends.to(model, &to, link.from)?;
                     model.add_link(link).ok().map(drop)?;
                 }
-                Parsed::Value(value) if self.nodes => file::add_node_value(model, self.i, value).ok()?,
-                Parsed::Value(value) => file::add_link_value(model, self.i, value).ok()?,
+                Parsed::Value(value) if self.nodes => read::add_node_value(model, self.i, value).ok()?,
+                Parsed::Value(value) => read::add_link_value(model, self.i, value).ok()?,
             }
             self.i += 1;
         }
@@ -785,7 +785,7 @@ impl<'a> FlatElement<'a> {
             None => Some(None),
             Some(Flat::Num(v)) => {
                 let size = v.abs();
-                let fine = size <= super::LARGEST_INPUT && (size == 0.0 || size >= super::SMALLEST_INPUT);
+                let fine = size <= crate::model::LARGEST_INPUT && (size == 0.0 || size >= crate::model::SMALLEST_INPUT);
                 fine.then_some(Some(v))
             }
             Some(_) => None,
@@ -1135,7 +1135,7 @@ fn toml_number(c: &mut Cursor) -> Step<Value> {
     Ok(v)
 }
 
-/// A TOML value into the same tree the `toml` crate gives through [`doc::Seed`].
+/// A TOML value into the same tree the `toml` crate gives through [`tree::Seed`].
 fn toml_value(c: &mut Cursor, depth: usize) -> Step<Value> {
     if depth >= MAX_DEPTH {
         return Err(Stop::GiveUp);
@@ -1195,7 +1195,7 @@ fn toml_value(c: &mut Cursor, depth: usize) -> Step<Value> {
         b'{' => {
             // An inline table: one line, no trailing comma.
             c.i += 1;
-            let mut entries: Vec<(doc::Key, Value)> = Vec::with_capacity(TABLE_CAPACITY);
+            let mut entries: Vec<(tree::Key, Value)> = Vec::with_capacity(TABLE_CAPACITY);
             toml_blank(c);
             if c.b.get(c.i) == Some(&b'}') {
                 c.i += 1;
@@ -1206,7 +1206,7 @@ fn toml_value(c: &mut Cursor, depth: usize) -> Step<Value> {
                     if entries.iter().any(|(k, _)| k == key) || entries.len() > 64 {
                         return Err(Stop::GiveUp);
                     }
-                    let key = doc::key(key);
+                    let key = tree::key(key);
                     let value = toml_value(c, depth + 1)?;
                     entries.push((key, value));
                     toml_blank(c);
@@ -1229,8 +1229,8 @@ fn toml_value(c: &mut Cursor, depth: usize) -> Step<Value> {
 }
 
 /// The key/value lines of a table, up to the next header or the end of the text.
-fn toml_body(c: &mut Cursor, depth: usize) -> Step<Vec<(doc::Key, Value)>> {
-    let mut entries: Vec<(doc::Key, Value)> = Vec::with_capacity(TABLE_CAPACITY);
+fn toml_body(c: &mut Cursor, depth: usize) -> Step<Vec<(tree::Key, Value)>> {
+    let mut entries: Vec<(tree::Key, Value)> = Vec::with_capacity(TABLE_CAPACITY);
     loop {
         match toml_next_line(c)? {
             None | Some(b'[') => return Ok(entries),
@@ -1240,7 +1240,7 @@ fn toml_body(c: &mut Cursor, depth: usize) -> Step<Vec<(doc::Key, Value)>> {
         if entries.iter().any(|(k, _)| k == key) || key.starts_with('$') {
             return Err(Stop::GiveUp);
         }
-        let key = doc::key(key);
+        let key = tree::key(key);
         let value = toml_value(c, depth + 1)?;
         toml_line_end(c)?;
         entries.push((key, value));
@@ -1345,7 +1345,7 @@ fn toml_from_chunks<R: Read>(src: R, limit: u64, chunk: usize) -> Option<Model> 
 /// `[[links]]` (and `[[controls]]` anywhere); any other order gives up.
 fn toml_model(feed: &mut impl Feed) -> Option<Model> {
     // Top-level keys and setting tables, by name; arrays of tables gather their entries.
-    let mut settings: Vec<(doc::Key, Value)> = feed.step(|c| toml_body(c, 0))?;
+    let mut settings: Vec<(tree::Key, Value)> = feed.step(|c| toml_body(c, 0))?;
     let mut arrays: Vec<(String, Vec<Value>)> = Vec::new();
     let mut controls: Vec<Value> = Vec::new();
     let mut model: Option<Model> = None;
@@ -1376,10 +1376,10 @@ fn toml_model(feed: &mut impl Feed) -> Option<Model> {
                         if settings.iter().any(|(s, _)| *s == k) {
                             return None;
                         }
-                        settings.push((doc::Key::Owned(k), Value::Array(items)));
+                        settings.push((tree::Key::Owned(k), Value::Array(items)));
                     }
-                    let mut top = file::top_fields(std::mem::take(&mut settings));
-                    model = Some(file::settings_model(&mut top)?);
+                    let mut top = read::top_fields(std::mem::take(&mut settings));
+                    model = Some(read::settings_model(&mut top)?);
                 }
                 section = want;
                 let m = model.as_mut()?;
@@ -1404,9 +1404,9 @@ fn toml_model(feed: &mut impl Feed) -> Option<Model> {
                     None => {
                         let entries = feed.step(|c| toml_body(c, 2))?;
                         if is_nodes {
-                            file::add_node_value(m, *i, Value::Table(entries)).ok()?;
+                            read::add_node_value(m, *i, Value::Table(entries)).ok()?;
                         } else {
-                            file::add_link_value(m, *i, Value::Table(entries)).ok()?;
+                            read::add_link_value(m, *i, Value::Table(entries)).ok()?;
                         }
                     }
                 }
@@ -1428,17 +1428,18 @@ fn toml_model(feed: &mut impl Feed) -> Option<Model> {
                     return None;
                 }
                 let entries = feed.step(|c| toml_body(c, 1))?;
-                settings.push((doc::Key::Owned(name), Value::Table(entries)));
+                settings.push((tree::Key::Owned(name), Value::Table(entries)));
             }
         }
     }
-    file::finish_model(model?, controls)
+    read::finish_model(model?, controls)
 }
 
 #[cfg(test)]
 mod tests {
-    use super::super::file::{read_str, read_tree, Format};
+    use super::super::read::{read_str, read_tree};
     use super::super::write;
+    use super::super::Format;
     use super::*;
 
     /// Models of every shape the repository has: the demo models (patterns, controls, tanks,
@@ -1647,7 +1648,7 @@ mod tests {
             let text = format!("[{case}]");
             let mut c = Cursor { b: text.as_bytes(), i: 0, end: true };
             let fast = json_value(&mut c, 0);
-            let reference = doc::parse_json(&text).unwrap();
+            let reference = tree::parse_json(&text).unwrap();
             match fast {
                 Ok(v) => assert_eq!(
                     format!("{v:?}"),

@@ -5,51 +5,25 @@
 //! range, and units are converted into SI here and nowhere else. Errors name the file, the
 //! element id and the key.
 
-use super::doc::{self, Key, Value};
-use super::outflow::{JunctionOutflow, Leakage, Outlet, PressureDemand};
-use super::time::{self as tm, Action, Condition, Control, Demand, Energy, SimulationSettings, TimeData, TimePattern};
-use super::{
+use super::schema::*;
+use super::tree::{self, Key, Value};
+use super::Format;
+use crate::error::{Element, ModelError};
+use crate::model::outflow::{JunctionOutflow, Leakage, Outlet, PressureDemand};
+use crate::model::time::{
+    self as tm, Action, Condition, Control, Demand, Energy, SimulationSettings, TimeData, TimePattern,
+};
+use crate::model::{
     HeadLossLaw, HydraulicOptions, Link, LinkKind, LinkStatus, MapCoordinates, Model, Node, NodeKind, Pipe, Pump,
     PumpDrive, Tank, Valve, ValveType, WaterSpec,
 };
-use crate::error::{Element, ModelError};
 use crate::physics::fittings::{Fitting, FittingKind, FittingsMethod};
 use crate::physics::pump::{Efficiency, HeadCurve};
 use crate::physics::WaterProperties;
 use crate::units::did_you_mean;
 use crate::units::Quantity;
 use crate::units::{DiameterUnit, FlowUnit, LengthUnit, PressureUnit, RoughnessUnit, UnitSystem};
-use std::path::Path;
 use std::sync::OnceLock;
-
-/// The syntax of a model file.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
-pub enum Format {
-    /// TOML (`.toml`).
-    Toml,
-    /// JSON (`.json`).
-    Json,
-}
-
-impl Format {
-    /// The format a file name's extension says, if any.
-    pub fn from_path(path: &Path) -> Option<Format> {
-        match path.extension()?.to_str()?.to_ascii_lowercase().as_str() {
-            "toml" => Some(Format::Toml),
-            "json" => Some(Format::Json),
-            _ => None,
-        }
-    }
-
-    /// Guesses from the text: JSON starts with `{`.
-    pub fn sniff(text: &str) -> Format {
-        if text.trim_start().starts_with('{') {
-            Format::Json
-        } else {
-            Format::Toml
-        }
-    }
-}
 
 /// Parses a model from text. `source` names the text in error messages (usually the file name).
 pub fn read_str(text: &str, format: Format, source: &str) -> Result<Model, ModelError> {
@@ -64,7 +38,7 @@ pub fn read_bytes(bytes: &[u8], format: Format, source: &str) -> Result<Model, M
     match std::str::from_utf8(bytes) {
         Ok(text) => read_str(text, format, source),
         Err(e) => {
-            let (line, col) = doc::line_column(&String::from_utf8_lossy(&bytes[..e.valid_up_to()]), usize::MAX);
+            let (line, col) = tree::line_column(&String::from_utf8_lossy(&bytes[..e.valid_up_to()]), usize::MAX);
             Err(ModelError {
                 position: Some((line, col)),
                 ..ModelError::new("the file is not UTF-8 text (is it a binary file?)")
@@ -72,207 +46,6 @@ pub fn read_bytes(bytes: &[u8], format: Format, source: &str) -> Result<Model, M
             .in_file(source))
         }
     }
-}
-
-const TOP_KEYS: &[&str] = &[
-    "title",
-    "units",
-    "hydraulics",
-    "criteria",
-    "pressure_demand",
-    "background_leakage",
-    // The same table under its short name, as the issue that specified it spells it.
-    "leakage",
-    "simulation",
-    "electricity",
-    "map",
-    "patterns",
-    "nodes",
-    "links",
-    "controls",
-    "quality",
-];
-const SIMULATION_KEYS: &[&str] = &[
-    "duration",
-    "hydraulic_step",
-    "report_interval",
-    "start_clock",
-    "level_tolerance",
-    "transport_step",
-    "quality_tolerance",
-];
-/// Keys of a `[[quality]]` entry by kind.
-const QUALITY_KEYS: &[(&str, &[&str])] = &[
-    ("age", &["id", "kind", "initial"]),
-    ("source", &["id", "kind", "source", "initial"]),
-    ("substance", &["id", "kind", "unit", "bulk_rate", "wall_rate", "diffusivity", "initial"]),
-];
-const ENERGY_KEYS: &[&str] = &["price_per_kwh", "tariff_pattern", "currency"];
-const PATTERN_KEYS: &[&str] = &["id", "step", "multipliers"];
-const DEMAND_KEYS: &[&str] = &["base", "pattern"];
-const CONTROL_KEYS: &[&str] = &["id", "link", "status", "speed", "setting", "when", "priority"];
-const CONDITION_KEYS: &[&str] =
-    &["tank", "level_above", "level_below", "node", "pressure_above", "pressure_below", "clock", "after", "all", "any"];
-const PRESSURE_DEMAND_KEYS: &[&str] = &["full_pressure", "zero_pressure", "exponent"];
-const LEAKAGE_KEYS: &[&str] = &["rate", "reference_pressure", "exponent"];
-const OUTLET_KEYS: &[&str] = &["coefficient", "exponent"];
-const MAP_KEYS: &[&str] = &["coordinates"];
-const UNIT_KEYS: &[&str] = &["length", "diameter", "flow", "pressure", "roughness"];
-const HYDRAULIC_KEYS: &[&str] = &[
-    "headloss",
-    "kinematic_viscosity",
-    "water_temperature",
-    "max_iterations",
-    "head_tolerance",
-    "flow_tolerance",
-    "fittings_method",
-    "site_elevation",
-];
-const FITTING_KEYS: &[&str] = &["kind", "count", "radius", "angle", "opening"];
-const NODE_KEYS: &[(&str, &[&str])] = &[
-    (
-        "junction",
-        &[
-            "id",
-            "kind",
-            "elevation",
-            "demand",
-            "pattern",
-            "demands",
-            "full_pressure",
-            "zero_pressure",
-            "exponent",
-            "outlet",
-            "x",
-            "y",
-            "zone",
-            "quality",
-            "quality_pattern",
-            "initial_quality",
-            "booster",
-        ],
-    ),
-    (
-        "reservoir",
-        &[
-            "id",
-            "kind",
-            "head",
-            "head_pattern",
-            "elevation",
-            "x",
-            "y",
-            "zone",
-            "quality",
-            "quality_pattern",
-            "initial_quality",
-            "booster",
-        ],
-    ),
-    (
-        "tank",
-        &[
-            "id",
-            "kind",
-            "elevation",
-            "level",
-            "min_level",
-            "max_level",
-            "diameter",
-            "volume_curve",
-            "x",
-            "y",
-            "zone",
-            "initial_quality",
-            "booster",
-            "mixing",
-            "mixing_fraction",
-        ],
-    ),
-];
-const LINK_KEYS: &[(&str, &[&str])] = &[
-    (
-        "pipe",
-        &[
-            "id",
-            "kind",
-            "from",
-            "to",
-            "length",
-            "diameter",
-            "roughness",
-            "minor_loss",
-            "fittings",
-            "status",
-            "check_valve",
-            "leakage_rate",
-            "path",
-        ],
-    ),
-    (
-        "pump",
-        &[
-            "id",
-            "kind",
-            "from",
-            "to",
-            "head_curve",
-            "power",
-            "efficiency_curve",
-            "efficiency",
-            "speed",
-            "speed_pattern",
-            "elevation",
-            "npsh_required_curve",
-            "status",
-            "path",
-        ],
-    ),
-    (
-        "valve",
-        &[
-            "id",
-            "kind",
-            "valve",
-            "from",
-            "to",
-            "diameter",
-            "setting",
-            "setting_pattern",
-            "minor_loss",
-            "fittings",
-            "status",
-            "path",
-        ],
-    ),
-];
-
-/// Every key the reader accepts, by where it stands: `(place, kind, keys)`, the place being a
-/// path in the file (`""` the top level, `"nodes"`, `"nodes.outlet"`, `"controls.when"`...) and
-/// the kind the element's kind where keys depend on it (`""` otherwise). The writer's round-trip
-/// test checks each is written back.
-#[cfg(test)]
-pub(crate) fn accepted_keys() -> Vec<(&'static str, &'static str, &'static [&'static str])> {
-    let mut out: Vec<(&'static str, &'static str, &'static [&'static str])> = vec![
-        ("", "", TOP_KEYS),
-        ("units", "", UNIT_KEYS),
-        ("hydraulics", "", HYDRAULIC_KEYS),
-        ("pressure_demand", "", PRESSURE_DEMAND_KEYS),
-        ("background_leakage", "", LEAKAGE_KEYS),
-        ("map", "", MAP_KEYS),
-        ("simulation", "", SIMULATION_KEYS),
-        ("electricity", "", ENERGY_KEYS),
-        ("patterns", "", PATTERN_KEYS),
-        ("nodes.demands", "", DEMAND_KEYS),
-        ("nodes.outlet", "", OUTLET_KEYS),
-        ("links.fittings", "", FITTING_KEYS),
-        ("controls", "", CONTROL_KEYS),
-        ("controls.when", "", CONDITION_KEYS),
-    ];
-    out.extend(QUALITY_KEYS.iter().map(|(k, keys)| ("quality", *k, *keys)));
-    out.extend(NODE_KEYS.iter().map(|(k, keys)| ("nodes", *k, *keys)));
-    out.extend(LINK_KEYS.iter().map(|(k, keys)| ("links", *k, *keys)));
-    out
 }
 
 /// Reads a JSON model in one pass from `reader`, without holding the text: each node and link
@@ -318,7 +91,7 @@ pub fn read_json_lines<R: std::io::BufRead>(mut reader: R) -> Option<Model> {
         head.pop();
     }
     head.push(b'}');
-    let Value::Table(entries) = doc::parse_json(std::str::from_utf8(&head).ok()?).ok()? else { return None };
+    let Value::Table(entries) = tree::parse_json(std::str::from_utf8(&head).ok()?).ok()? else { return None };
     if entries.iter().any(|(k, _)| matches!(k.as_ref(), "nodes" | "links" | "controls")) {
         return None;
     }
@@ -350,7 +123,7 @@ pub fn read_json_lines<R: std::io::BufRead>(mut reader: R) -> Option<Model> {
             };
             more = comma;
             let mut de = serde_json::Deserializer::from_slice(value);
-            let value = serde::de::DeserializeSeed::deserialize(doc::Seed { depth: 2 }, &mut de).ok()?;
+            let value = serde::de::DeserializeSeed::deserialize(tree::Seed { depth: 2 }, &mut de).ok()?;
             de.end().ok()?;
             match section {
                 0 => add_node_value(&mut model, i, value).ok()?,
@@ -431,9 +204,9 @@ impl<'de> serde::de::Visitor<'de> for OnePass {
                     let Some(m) = model.as_mut() else { return Err(A::Error::custom("links before nodes")) };
                     map.next_value_seed(Elements { model: m, nodes: false })?;
                 }
-                "controls" => controls = Some(map.next_value_seed(doc::Seed { depth: 1 })?),
+                "controls" => controls = Some(map.next_value_seed(tree::Seed { depth: 1 })?),
                 _ if model.is_some() => return Err(A::Error::custom("a setting after the nodes")),
-                _ => entries.push((Key::Owned(key.clone()), map.next_value_seed(doc::Seed { depth: 1 })?)),
+                _ => entries.push((Key::Owned(key.clone()), map.next_value_seed(tree::Seed { depth: 1 })?)),
             }
             seen.push(key);
         }
@@ -469,7 +242,7 @@ impl<'de> serde::de::Visitor<'de> for Elements<'_> {
 
     fn visit_seq<A: serde::de::SeqAccess<'de>>(self, mut seq: A) -> Result<(), A::Error> {
         let mut i = 0;
-        while let Some(value) = seq.next_element_seed(doc::Seed { depth: 2 })? {
+        while let Some(value) = seq.next_element_seed(tree::Seed { depth: 2 })? {
             if self.nodes {
                 add_node_value(self.model, i, value).map_err(give_up)?;
             } else {
@@ -483,8 +256,8 @@ impl<'de> serde::de::Visitor<'de> for Elements<'_> {
 
 fn read_inner(text: &str, format: Format) -> Result<Model, ModelError> {
     let fast = match format {
-        Format::Json => super::scan::json_from_slice(text.as_bytes()),
-        Format::Toml => super::scan::toml_from_slice(text.as_bytes()),
+        Format::Json => super::one_pass::json_from_slice(text.as_bytes()),
+        Format::Toml => super::one_pass::toml_from_slice(text.as_bytes()),
     };
     match fast {
         Some(model) => Ok(model),
@@ -492,13 +265,13 @@ fn read_inner(text: &str, format: Format) -> Result<Model, ModelError> {
     }
 }
 
-/// The top-level table's fields (for the one-pass readers of [`super::scan`]).
+/// The top-level table's fields (for the one-pass readers of [`super::one_pass`]).
 pub(super) fn top_fields(entries: Vec<(Key, Value)>) -> Fields {
     Fields::new(None, entries)
 }
 
 /// The model with the settings of the top-level table, before any element, when every setting
-/// is valid and no other key is there (for the one-pass readers of [`super::scan`]).
+/// is valid and no other key is there (for the one-pass readers of [`super::one_pass`]).
 pub(super) fn settings_model(top: &mut Fields) -> Option<Model> {
     let settings = Settings::take(top).ok()?;
     let rest = std::mem::replace(top, Fields::new(None, Vec::new()));
@@ -517,8 +290,8 @@ pub(super) fn read_tree(text: &str, format: Format) -> Result<Model, ModelError>
         return Err(ModelError::new("the file is empty; a model needs at least [[nodes]] and [[links]]"));
     }
     let tree = match format {
-        Format::Toml => doc::parse_toml(text),
-        Format::Json => doc::parse_json(text),
+        Format::Toml => tree::parse_toml(text),
+        Format::Json => tree::parse_json(text),
     }
     .map_err(|e| ModelError {
         position: e.position,
@@ -787,24 +560,24 @@ impl Fields {
     /// rules of each key judge them with their own words.
     fn magnitude(&self, key: &str, v: f64) -> Result<f64, ModelError> {
         let size = v.abs();
-        if size.is_finite() && size > super::LARGEST_INPUT {
+        if size.is_finite() && size > crate::model::LARGEST_INPUT {
             return Err(self.error(
                 key,
                 format!(
                     "is too large: {} (no physical value in any unit is beyond {:e} in size)",
-                    super::show(v),
-                    super::LARGEST_INPUT
+                    crate::model::show(v),
+                    crate::model::LARGEST_INPUT
                 ),
             ));
         }
-        if size > 0.0 && size < super::SMALLEST_INPUT {
+        if size > 0.0 && size < crate::model::SMALLEST_INPUT {
             return Err(self.error(
                 key,
                 format!(
                     "is too small: {} (no physical value in any unit is this close to zero: below {:e} in size; \
                      write 0 if zero is meant)",
-                    super::show(v),
-                    super::SMALLEST_INPUT
+                    crate::model::show(v),
+                    crate::model::SMALLEST_INPUT
                 ),
             ));
         }
@@ -970,7 +743,7 @@ pub(crate) fn read_hydraulics(value: Value, units: &UnitSystem) -> Result<Hydrau
             return Err(f.error("water_temperature", "give either kinematic_viscosity or water_temperature, not both"))
         }
         (Some(nu), None) => {
-            let nu = super::check_value(&el, "kinematic_viscosity", nu, super::Rule::Positive)?;
+            let nu = crate::model::check_value(&el, "kinematic_viscosity", nu, crate::model::Rule::Positive)?;
             if !(1e-7..=1e-4).contains(&nu) {
                 return Err(f.error(
                     "kinematic_viscosity",
@@ -980,7 +753,7 @@ pub(crate) fn read_hydraulics(value: Value, units: &UnitSystem) -> Result<Hydrau
             WaterSpec::KinematicViscosity(nu)
         }
         (None, Some(t)) => {
-            let t = super::check_value(&el, "water_temperature", t, super::Rule::Finite)?;
+            let t = crate::model::check_value(&el, "water_temperature", t, crate::model::Rule::Finite)?;
             if !(WaterProperties::MIN_CELSIUS..=WaterProperties::MAX_CELSIUS).contains(&t) {
                 return Err(f.error(
                     "water_temperature",
@@ -1002,10 +775,11 @@ pub(crate) fn read_hydraulics(value: Value, units: &UnitSystem) -> Result<Hydrau
         o.max_iterations = n as u32;
     }
     if let Some(t) = f.number("head_tolerance")? {
-        o.head_tolerance = units.length.to_si(super::check_value(&el, "head_tolerance", t, super::Rule::Positive)?);
+        o.head_tolerance =
+            units.length.to_si(crate::model::check_value(&el, "head_tolerance", t, crate::model::Rule::Positive)?);
     }
     if let Some(t) = f.number("flow_tolerance")? {
-        o.flow_tolerance = super::check_value(&el, "flow_tolerance", t, super::Rule::Positive)?;
+        o.flow_tolerance = crate::model::check_value(&el, "flow_tolerance", t, crate::model::Rule::Positive)?;
     }
     if let Some(text) = f.string("fittings_method")? {
         o.fittings_method = FittingsMethod::parse(&text).ok_or_else(|| {
@@ -1022,7 +796,7 @@ pub(crate) fn read_hydraulics(value: Value, units: &UnitSystem) -> Result<Hydrau
         })?;
     }
     if let Some(z) = f.number("site_elevation")? {
-        let z = units.length.to_si(super::check_value(&el, "site_elevation", z, super::Rule::Finite)?);
+        let z = units.length.to_si(crate::model::check_value(&el, "site_elevation", z, crate::model::Rule::Finite)?);
         if !(crate::physics::atmosphere::MIN_ELEVATION..=crate::physics::atmosphere::MAX_ELEVATION).contains(&z) {
             return Err(f.error(
                 "site_elevation",
@@ -1040,37 +814,13 @@ pub(crate) fn read_hydraulics(value: Value, units: &UnitSystem) -> Result<Hydrau
     Ok(o)
 }
 
-fn keys_for(table: &[(&str, &'static [&'static str])], kind: &str) -> Option<&'static [&'static str]> {
-    table.iter().find(|(k, _)| *k == kind).map(|(_, keys)| *keys)
-}
-
-/// Every key of node and link entries, sorted: the keys [`doc`] shares instead of copying.
-pub(super) fn element_keys() -> &'static [&'static str] {
-    static KEYS: OnceLock<Vec<&'static str>> = OnceLock::new();
-    KEYS.get_or_init(|| {
-        let mut keys = all_keys(NODE_KEYS);
-        keys.extend(all_keys(LINK_KEYS));
-        keys.sort_unstable();
-        keys.dedup();
-        keys
-    })
-}
-
-fn all_keys(table: &[(&str, &'static [&'static str])]) -> Vec<&'static str> {
-    let mut keys: Vec<&str> = table.iter().flat_map(|(_, k)| k.iter().copied()).collect();
-    keys.sort_unstable();
-    keys.dedup();
-    keys
-}
-
-/// Reads `id` and `kind` of a node or link entry; returns the element, the fields and the kind.
-fn identify(
+/// Reads `id` and `kind` of a node, link or `[[quality]]` entry; returns the fields, the keys its
+/// kind accepts and the kind.
+fn identify<K: EntryKind>(
     value: Value,
     entry: Element,
     make: fn(String) -> Element,
-    kinds: &[(&str, &'static [&'static str])],
-    default_kind: &'static str,
-) -> Result<(Fields, &'static [&'static str], String), ModelError> {
+) -> Result<(Fields, &'static [&'static str], K), ModelError> {
     let mut f = Fields::from_value(entry.clone(), value)?;
     let id = match f.take("id") {
         Some(Value::Str(s)) => s,
@@ -1082,18 +832,24 @@ fn identify(
         }
         None => return Err(ModelError::at(Some(entry), Some("id"), "is missing")),
     };
-    super::check_id(&id, &entry)?;
+    crate::model::check_id(&id, &entry)?;
     f.element = Some(make(id));
-    let kind = f.string("kind")?.unwrap_or_else(|| default_kind.to_owned());
-    let Some(keys) = keys_for(kinds, &kind) else {
-        let names: Vec<&str> = kinds.iter().map(|(k, _)| *k).collect();
-        let hint = did_you_mean(&kind, names.iter().copied(), '"');
-        return Err(f.error(
-            "kind",
-            format!("unknown kind \"{}\"{hint}; expected one of {}", crate::error::printable(&kind), names.join(", ")),
-        ));
+    let kind = match f.string("kind")? {
+        None => K::DEFAULT,
+        Some(name) => K::from_name(&name).ok_or_else(|| {
+            let names: Vec<&str> = K::ALL.iter().map(|k| k.name()).collect();
+            let hint = did_you_mean(&name, names.iter().copied(), '"');
+            f.error(
+                "kind",
+                format!(
+                    "unknown kind \"{}\"{hint}; expected one of {}",
+                    crate::error::printable(&name),
+                    names.join(", ")
+                ),
+            )
+        })?,
     };
-    Ok((f, keys, kind))
+    Ok((f, kind.keys(), kind))
 }
 
 /// Reads a node; also returns a junction's outflow data, if it has any.
@@ -1105,7 +861,7 @@ fn read_node(
     node_index: usize,
     time: &mut TimeData,
 ) -> Result<(Node, Option<JunctionOutflow>), ModelError> {
-    let (mut f, keys, kind) = identify(value, Element::NodeEntry(index), Element::Node, NODE_KEYS, "junction")?;
+    let (mut f, keys, kind) = identify::<NodeEntry>(value, Element::NodeEntry(index), Element::Node)?;
     let len = |v: f64| units.length.to_si(v);
     let coordinates = match (f.number("x")?, f.number("y")?) {
         (Some(x), Some(y)) => Some((x, y)),
@@ -1115,8 +871,8 @@ fn read_node(
     };
     let zone = f.string("zone")?;
     let mut outflow = None;
-    let (elevation, kind) = match kind.as_str() {
-        "junction" => {
+    let (elevation, kind) = match kind {
+        NodeEntry::Junction => {
             let elevation = len(f.required_number("elevation")?);
             let single = f.number("demand")?;
             let pattern = f.pattern("pattern", time)?;
@@ -1143,7 +899,7 @@ fn read_node(
             outflow = read_junction_outflow(&mut f, units, options)?;
             (elevation, NodeKind::Junction { demand })
         }
-        "reservoir" => {
+        NodeEntry::Reservoir => {
             let head = len(f.required_number("head")?);
             let elevation = f.number("elevation")?.map(len).unwrap_or(head);
             if let Some(p) = f.pattern("head_pattern", time)? {
@@ -1151,7 +907,7 @@ fn read_node(
             }
             (elevation, NodeKind::Reservoir { head })
         }
-        _ => {
+        NodeEntry::Tank => {
             let elevation = len(f.required_number("elevation")?);
             let level = len(f.required_number("level")?);
             let tank = Tank {
@@ -1180,7 +936,7 @@ fn read_node(
     let element = f.element.clone();
     let Some(Element::Node(id)) = element else { unreachable!("identify sets the element") };
     static ALL_NODE_KEYS: OnceLock<Vec<&'static str>> = OnceLock::new();
-    f.finish_with(keys, ALL_NODE_KEYS.get_or_init(|| all_keys(NODE_KEYS)), kind.label())?;
+    f.finish_with(keys, ALL_NODE_KEYS.get_or_init(NodeEntry::all_keys), kind.label())?;
     Ok((Node { id: id.into(), elevation, coordinates, zone, kind }, outflow))
 }
 
@@ -1211,7 +967,7 @@ type LinkRead = (Link, Option<usize>, Option<f64>, Option<Vec<(f64, f64)>>, Vec<
 /// own leakage rate, if it has one, the interior vertices of its drawn alignment and its named
 /// fittings.
 fn read_link(index: usize, value: Value, model: &Model) -> Result<LinkRead, ModelError> {
-    let (mut f, keys, kind) = identify(value, Element::LinkEntry(index), Element::Link, LINK_KEYS, "pipe")?;
+    let (mut f, keys, kind) = identify::<LinkEntry>(value, Element::LinkEntry(index), Element::Link)?;
     let end = |key: &str, f: &mut Fields| -> Result<usize, ModelError> {
         let id = f.string(key)?.ok_or_else(|| f.missing(key))?;
         model.node_index(&id).ok_or_else(|| {
@@ -1223,36 +979,36 @@ fn read_link(index: usize, value: Value, model: &Model) -> Result<LinkRead, Mode
     let to = end("to", &mut f)?;
     let status_text = f.string("status")?;
     let path = pairs(&mut f, "path", "x, y")?;
-    let pattern = match kind.as_str() {
-        "pump" => f.pattern("speed_pattern", &model.time)?,
-        "valve" => f.pattern("setting_pattern", &model.time)?,
-        _ => None,
+    let pattern = match kind {
+        LinkEntry::Pump => f.pattern("speed_pattern", &model.time)?,
+        LinkEntry::Valve => f.pattern("setting_pattern", &model.time)?,
+        LinkEntry::Pipe => None,
     };
-    let fittings = match kind.as_str() {
-        "pipe" | "valve" => read_fittings(&mut f)?,
-        _ => Vec::new(),
+    let fittings = match kind {
+        LinkEntry::Pipe | LinkEntry::Valve => read_fittings(&mut f)?,
+        LinkEntry::Pump => Vec::new(),
     };
     let mut leakage_rate = None;
-    let (kind, status) = match kind.as_str() {
-        "pipe" => {
+    let (kind, status) = match kind {
+        LinkEntry::Pipe => {
             if let Some(rate) = f.number("leakage_rate")? {
                 let el = f.element.clone().unwrap_or(Element::LinkEntry(index));
-                let rate = super::check_value(&el, "leakage_rate", rate, super::Rule::NonNegative)?;
+                let rate = crate::model::check_value(&el, "leakage_rate", rate, crate::model::Rule::NonNegative)?;
                 leakage_rate = Some(leakage_rate_to_si(&model.units, rate));
             }
             (LinkKind::Pipe(read_pipe(&mut f, model)?), link_status(&f, status_text.as_deref(), false)?.0)
         }
-        "pump" => {
+        LinkEntry::Pump => {
             (LinkKind::Pump(Box::new(read_pump(&mut f, model)?)), link_status(&f, status_text.as_deref(), false)?.0)
         }
-        _ => {
+        LinkEntry::Valve => {
             let (status, automatic) = link_status(&f, status_text.as_deref(), true)?;
             (LinkKind::Valve(read_valve(&mut f, model, automatic)?), status)
         }
     };
     let Some(Element::Link(id)) = f.element.clone() else { unreachable!("identify sets the element") };
     static ALL_LINK_KEYS: OnceLock<Vec<&'static str>> = OnceLock::new();
-    f.finish_with(keys, ALL_LINK_KEYS.get_or_init(|| all_keys(LINK_KEYS)), kind.label())?;
+    f.finish_with(keys, ALL_LINK_KEYS.get_or_init(LinkEntry::all_keys), kind.label())?;
     Ok((Link { id: id.into(), from, to, status, kind }, pattern, leakage_rate, path, fittings))
 }
 
@@ -1334,13 +1090,20 @@ fn read_pressure_demand(
     let mut f = Fields::from_value(el.clone(), value)?;
     f.reject_unknown(PRESSURE_DEMAND_KEYS)?;
     let density = options.water_properties().density;
-    let full = super::check_value(&el, "full_pressure", f.required_number("full_pressure")?, super::Rule::Finite)?;
+    let full = crate::model::check_value(
+        &el,
+        "full_pressure",
+        f.required_number("full_pressure")?,
+        crate::model::Rule::Finite,
+    )?;
     let zero = match f.number("zero_pressure")? {
-        Some(z) => units.pressure.to_head(super::check_value(&el, "zero_pressure", z, super::Rule::Finite)?, density),
+        Some(z) => units
+            .pressure
+            .to_head(crate::model::check_value(&el, "zero_pressure", z, crate::model::Rule::Finite)?, density),
         None => PressureDemand::ZERO_PRESSURE,
     };
     let exponent = match f.number("exponent")? {
-        Some(e) => super::check_value(&el, "exponent", e, super::Rule::Positive)?,
+        Some(e) => crate::model::check_value(&el, "exponent", e, crate::model::Rule::Positive)?,
         None => PressureDemand::EXPONENT,
     };
     f.finish(PRESSURE_DEMAND_KEYS)?;
@@ -1367,13 +1130,15 @@ fn read_leakage(
     f.reject_unknown(LEAKAGE_KEYS)?;
     let density = options.water_properties().density;
     let rate = match f.number("rate")? {
-        Some(r) => leakage_rate_to_si(units, super::check_value(&el, "rate", r, super::Rule::NonNegative)?),
+        Some(r) => {
+            leakage_rate_to_si(units, crate::model::check_value(&el, "rate", r, crate::model::Rule::NonNegative)?)
+        }
         None => 0.0,
     };
     let reference = f.required_number("reference_pressure")?;
-    let reference = super::check_value(&el, "reference_pressure", reference, super::Rule::Positive)?;
+    let reference = crate::model::check_value(&el, "reference_pressure", reference, crate::model::Rule::Positive)?;
     let exponent = match f.number("exponent")? {
-        Some(e) => super::check_value(&el, "exponent", e, super::Rule::Positive)?,
+        Some(e) => crate::model::check_value(&el, "exponent", e, crate::model::Rule::Positive)?,
         None => Leakage::EXPONENT,
     };
     f.finish(LEAKAGE_KEYS)?;
@@ -1396,22 +1161,27 @@ fn read_junction_outflow(
     let el = f.element.clone().unwrap_or(Element::Table("nodes".into()));
     let density = options.water_properties().density;
     let pressure = |key: &str, v: Option<f64>| -> Result<Option<f64>, ModelError> {
-        v.map(|v| super::check_value(&el, key, v, super::Rule::Finite).map(|v| units.pressure.to_head(v, density)))
-            .transpose()
+        v.map(|v| {
+            crate::model::check_value(&el, key, v, crate::model::Rule::Finite)
+                .map(|v| units.pressure.to_head(v, density))
+        })
+        .transpose()
     };
     let mut j = JunctionOutflow {
         full_pressure: pressure("full_pressure", full)?,
         zero_pressure: pressure("zero_pressure", zero)?,
-        exponent: exponent.map(|e| super::check_value(&el, "exponent", e, super::Rule::Positive)).transpose()?,
+        exponent: exponent
+            .map(|e| crate::model::check_value(&el, "exponent", e, crate::model::Rule::Positive))
+            .transpose()?,
         outlet: None,
     };
     if let Some(value) = outlet {
         let mut o = f.nested("outlet.".into(), value)?;
         o.reject_unknown(OUTLET_KEYS)?;
         let c = o.required_number("coefficient")?;
-        let c = super::check_value(&el, "outlet.coefficient", c, super::Rule::NonNegative)?;
+        let c = crate::model::check_value(&el, "outlet.coefficient", c, crate::model::Rule::NonNegative)?;
         let e = match o.number("exponent")? {
-            Some(e) => super::check_value(&el, "outlet.exponent", e, super::Rule::Positive)?,
+            Some(e) => crate::model::check_value(&el, "outlet.exponent", e, crate::model::Rule::Positive)?,
             None => Outlet::EXPONENT,
         };
         o.finish(OUTLET_KEYS)?;
@@ -1558,44 +1328,44 @@ fn read_constituent(
 ) -> Result<crate::quality::Constituent, ModelError> {
     use crate::quality::{Constituent, ConstituentKind, Reaction};
     let (mut f, keys, kind) =
-        identify(value, Element::Entry("quality".into(), index), Element::Constituent, QUALITY_KEYS, "substance")?;
+        identify::<QualityEntry>(value, Element::Entry("quality".into(), index), Element::Constituent)?;
     let Some(Element::Constituent(id)) = f.element.clone() else { unreachable!("identify sets the element") };
     if known.index(&id).is_some() {
         return Err(f.error("id", "is used by another [[quality]] entry; constituent ids must be unique"));
     }
     let el = Element::Constituent(id.clone());
-    let number = |f: &mut Fields, key: &str, rule: super::Rule| -> Result<Option<f64>, ModelError> {
+    let number = |f: &mut Fields, key: &str, rule: crate::model::Rule| -> Result<Option<f64>, ModelError> {
         match f.number(key)? {
-            Some(v) => Ok(Some(super::check_value(&el, key, v, rule)?)),
+            Some(v) => Ok(Some(crate::model::check_value(&el, key, v, rule)?)),
             None => Ok(None),
         }
     };
     let per_day = 1.0 / tm::DAY;
-    let (kind, unit, initial) = match kind.as_str() {
-        "age" => {
-            let initial = number(&mut f, "initial", super::Rule::NonNegative)?.unwrap_or(0.0) * tm::HOUR;
+    let (kind, unit, initial) = match kind {
+        QualityEntry::Age => {
+            let initial = number(&mut f, "initial", crate::model::Rule::NonNegative)?.unwrap_or(0.0) * tm::HOUR;
             (ConstituentKind::Age, "h".to_owned(), initial)
         }
-        "source" => {
+        QualityEntry::Source => {
             let source = f.string("source")?.ok_or_else(|| f.missing("source"))?;
-            let initial = number(&mut f, "initial", super::Rule::NonNegative)?.unwrap_or(0.0);
+            let initial = number(&mut f, "initial", crate::model::Rule::NonNegative)?.unwrap_or(0.0);
             if initial > 100.0 {
                 return Err(f.error("initial", format!("is a percentage, at most 100, found {initial}")));
             }
             // The node is found in `resolve_sources`; until then its name waits in `unit`.
             (ConstituentKind::Source { node: usize::MAX }, source, initial)
         }
-        _ => {
+        QualityEntry::Substance => {
             let unit = f.string("unit")?.unwrap_or_else(|| "mg/L".to_owned());
             if unit.trim().is_empty() || unit.chars().any(char::is_control) {
                 return Err(f.error("unit", "must be a label such as \"mg/L\""));
             }
-            let bulk = number(&mut f, "bulk_rate", super::Rule::Finite)?.unwrap_or(0.0) * per_day;
-            let wall =
-                number(&mut f, "wall_rate", super::Rule::Finite)?.map_or(0.0, |w| units.length.to_si(w) * per_day);
-            let diffusivity = number(&mut f, "diffusivity", super::Rule::NonNegative)?
+            let bulk = number(&mut f, "bulk_rate", crate::model::Rule::Finite)?.unwrap_or(0.0) * per_day;
+            let wall = number(&mut f, "wall_rate", crate::model::Rule::Finite)?
+                .map_or(0.0, |w| units.length.to_si(w) * per_day);
+            let diffusivity = number(&mut f, "diffusivity", crate::model::Rule::NonNegative)?
                 .unwrap_or(crate::quality::constituents::DIFFUSIVITY);
-            let initial = number(&mut f, "initial", super::Rule::NonNegative)?.unwrap_or(0.0);
+            let initial = number(&mut f, "initial", crate::model::Rule::NonNegative)?.unwrap_or(0.0);
             (ConstituentKind::Substance(Reaction { bulk_rate: bulk, wall_rate: wall, diffusivity }), unit, initial)
         }
     };
@@ -1605,7 +1375,7 @@ fn read_constituent(
         ConstituentKind::Source { .. } => "source trace",
         ConstituentKind::Substance(_) => "substance",
     };
-    f.finish_with(keys, ALL.get_or_init(|| all_keys(QUALITY_KEYS)), label)?;
+    f.finish_with(keys, ALL.get_or_init(QualityEntry::all_keys), label)?;
     Ok(Constituent { id, kind, unit, initial })
 }
 
@@ -1848,7 +1618,9 @@ fn read_simulation(value: Value, units: &UnitSystem) -> Result<SimulationSetting
         None => 0.0,
     };
     let level_tolerance = match f.number("level_tolerance")? {
-        Some(t) => units.length.to_si(super::check_value(&el, "level_tolerance", t, super::Rule::Positive)?),
+        Some(t) => {
+            units.length.to_si(crate::model::check_value(&el, "level_tolerance", t, crate::model::Rule::Positive)?)
+        }
         None => SimulationSettings::LEVEL_TOLERANCE,
     };
     let transport_step = match f.duration("transport_step")? {
@@ -1857,7 +1629,7 @@ fn read_simulation(value: Value, units: &UnitSystem) -> Result<SimulationSetting
     };
     let quality_tolerance = match f.number("quality_tolerance")? {
         Some(t) => {
-            let t = super::check_value(&el, "quality_tolerance", t, super::Rule::NonNegative)?;
+            let t = crate::model::check_value(&el, "quality_tolerance", t, crate::model::Rule::NonNegative)?;
             if t >= 1.0 {
                 return Err(f.error("quality_tolerance", format!("is a relative tolerance, below 1, found {t}")));
             }
@@ -1881,7 +1653,7 @@ fn read_energy(value: Value, time: &TimeData) -> Result<Energy, ModelError> {
     let el = Element::Table("electricity".into());
     let mut f = Fields::from_value(el.clone(), value)?;
     let price = match f.number("price_per_kwh")? {
-        Some(p) => super::check_value(&el, "price_per_kwh", p, super::Rule::NonNegative)?,
+        Some(p) => crate::model::check_value(&el, "price_per_kwh", p, crate::model::Rule::NonNegative)?,
         None => 0.0,
     };
     let tariff = f.pattern("tariff_pattern", time)?;
@@ -1900,7 +1672,7 @@ fn entry_id(f: &mut Fields, table: &str, index: usize, make: fn(String) -> Eleme
         }
         None => return Err(ModelError::at(Some(entry), Some("id"), "is missing")),
     };
-    super::check_id(&id, &entry)?;
+    crate::model::check_id(&id, &entry)?;
     f.element = Some(make(id.clone()));
     Ok(id)
 }
@@ -2163,12 +1935,13 @@ mod tests {
 
     #[test]
     fn every_element_key_is_shared_not_copied() {
-        let parsed_key = |text: &str| match doc::parse_json(text).unwrap() {
+        let parsed_key = |text: &str| match tree::parse_json(text).unwrap() {
             Value::Table(mut entries) => entries.remove(0).0,
             other => panic!("{other:?}"),
         };
-        for (_, keys) in NODE_KEYS.iter().chain(LINK_KEYS) {
-            for key in *keys {
+        let kinds = NodeEntry::ALL.iter().map(|k| k.keys()).chain(LinkEntry::ALL.iter().map(|k| k.keys()));
+        for keys in kinds {
+            for key in keys {
                 let parsed = parsed_key(&format!("{{\"{key}\": 1}}"));
                 assert!(matches!(parsed, Key::Borrowed(k) if k == *key), "{key} was copied: {parsed:?}");
             }

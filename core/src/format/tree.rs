@@ -1,7 +1,7 @@
 //! A model file's syntax tree, the same for TOML and JSON.
 //!
 //! The file is first parsed into a [`Value`] tree (syntax errors carry line and column), then
-//! [`super::file`] walks the tree and builds the model, so that every later error can name the
+//! [`super::read`] walks the tree and builds the model, so that every later error can name the
 //! element and the key. Parsing into our own tree also lets us reject what the generic parsers
 //! accept silently: duplicate keys in JSON objects, and nesting deeper than any model needs.
 
@@ -40,7 +40,7 @@ fn key_slot(text: &[u8]) -> usize {
 /// the reading time). Keys whose slot is taken by another key are found by a binary search.
 fn shared_key(text: &str) -> Option<&'static str> {
     static TABLE: std::sync::OnceLock<[Option<&'static str>; KEY_SLOTS]> = std::sync::OnceLock::new();
-    let shared = super::file::element_keys();
+    let shared = super::schema::element_keys();
     let table = TABLE.get_or_init(|| {
         let mut table = [None; KEY_SLOTS];
         for &k in shared {
@@ -277,7 +277,7 @@ mod tests {
     /// slot another key took) and nothing else.
     #[test]
     fn shared_keys_are_found_by_hash_or_search() {
-        for &k in super::super::file::element_keys() {
+        for &k in super::super::schema::element_keys() {
             assert_eq!(shared_key(k), Some(k));
             assert!(matches!(key(k), Key::Borrowed(b) if b == k));
         }
