@@ -480,8 +480,10 @@ fn solve(path: &Path, format: OutputFormat, output: Option<&Path>, timings: bool
     // Shown before solving: a typing mistake is most worth knowing when the solve then fails.
     let mut plausible = plausibility_warnings(&model);
     print_warnings(&plausible);
-    let mut solver = None;
-    let solved = ringmain_core::Solver::new(&model).and_then(|s| solver.insert(s).solve_once(&model));
+    if let Some(path) = output {
+        output::forget_replaced_pages(path);
+    }
+    let (solver, solved) = ringmain_core::Solver::analyse_and_solve_once(&model);
     let mut solution = match solved {
         Ok(s) => s,
         Err(SolveError::Model(e)) => {

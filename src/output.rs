@@ -195,6 +195,32 @@ impl Write for EarlyWriteback {
     }
 }
 
+/// Starts, on a thread of its own, dropping from memory the cached pages of the regular file an
+/// output will replace: replacing a file frees its pages in the rename that puts the new one in
+/// place (at 1e5 junctions some 10–25 ms for the 39 MB of results), while a core may well be
+/// idle before that (the solver's iteration is one thread's work). Advice only: the file's
+/// contents and its place are untouched, so a run that fails still leaves it as it was, and
+/// reading it again merely reads the disk. Elsewhere than Linux, and for anything but an
+/// existing regular file, nothing is done.
+pub fn forget_replaced_pages(path: &Path) {
+    #[cfg(target_os = "linux")]
+    if std::fs::metadata(path).is_ok_and(|m| m.is_file()) {
+        let path = path.to_owned();
+        let _ = std::thread::Builder::new().spawn(move || {
+            use std::os::fd::AsRawFd;
+            if let Ok(file) = File::open(&path) {
+                // SAFETY: the descriptor is the open file this closure owns; the call reads no
+                // memory of ours. Its failure changes nothing.
+                unsafe {
+                    libc::posix_fadvise(file.as_raw_fd(), 0, 0, libc::POSIX_FADV_DONTNEED);
+                }
+            }
+        });
+    }
+    #[cfg(not(target_os = "linux"))]
+    let _ = path;
+}
+
 /// Writes `text` to `path`, all or nothing.
 pub fn write_text(path: &Path, text: &str) -> io::Result<()> {
     write_file(path, |out| out.write_all(text.as_bytes()))

@@ -1,5 +1,5 @@
-//! A one-off solve (`Solver::solve_once`, what `ringmain solve` and `ringmain_core::solve` use:
-//! it frees the solver's work arrays before the solution is made) gives the answer of an
+//! A one-off solve (`Solver::solve_once`, and `Solver::analyse_and_solve_once`, which
+//! `ringmain solve` and `ringmain_core::solve` use: it frees the solver's work arrays before the solution is made) gives the answer of an
 //! ordinary solve bit for bit, on every demo model and on generated networks with and without
 //! outflows that follow pressure; the solver still solves afterwards; and a model whose id
 //! indices were freed (`Model::release_id_index`) answers every lookup as before and still
@@ -88,6 +88,14 @@ fn check_one_off(model: &Model, what: &str) {
     assert_identical(&once_more, &want, &format!("{what}, once more"));
     // The free function is the one-off path too.
     assert_identical(&ringmain_core::solve(model).unwrap(), &want, &format!("{what}, solve()"));
+    // The analysis beside the laws and conditions (what `ringmain solve` runs); the solver it
+    // gives back solves again.
+    let (solver, got) = Solver::analyse_and_solve_once(model);
+    assert_identical(&got.unwrap_or_else(|e| panic!("{what}: {e}")), &want, &format!("{what}, side by side"));
+    let mut solver = solver.unwrap_or_else(|| panic!("{what}: no solver"));
+    assert!(solver.timings().iterations > 0, "{what}");
+    let again = solver.solve_model(model).unwrap_or_else(|e| panic!("{what}, side by side, again: {e}"));
+    assert_identical(&again, &want, &format!("{what}, side by side, solved again"));
 }
 
 #[test]

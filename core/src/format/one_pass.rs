@@ -180,6 +180,66 @@ impl<'a> Cursor<'a> {
     }
 }
 
+impl Cursor<'_> {
+    /// A JSON number at the cursor as `f64`: the value [`Cursor::json_number`] gives (an integer
+    /// converted exactly), read in one pass when it has the common short form (an optional minus,
+    /// an integer part without a leading zero, an optional fraction, no exponent, at most 19
+    /// digits whose integer is at most 2^53: Clinger's fast path of [`exact_float`], one
+    /// correctly rounded quotient). Anything else is read again by `json_number`.
+    #[inline]
+    fn flat_number(&mut self) -> Step<f64> {
+        let b = self.b;
+        let start = self.i;
+        let negative = b.get(start) == Some(&b'-');
+        let int_start = start + usize::from(negative);
+        let mut j = int_start;
+        let mut m: u64 = 0;
+        // Wrapping: a long run of digits is refused below by its count, whatever `m` became.
+        let mut digits = |j: &mut usize| {
+            let from = *j;
+            while let Some(d) = b.get(*j).map(|c| c.wrapping_sub(b'0')).filter(|&d| d <= 9) {
+                m = m.wrapping_mul(10).wrapping_add(u64::from(d));
+                *j += 1;
+            }
+            *j - from
+        };
+        let n_int = digits(&mut j);
+        let dot = b.get(j) == Some(&b'.');
+        let n_frac = if dot {
+            j += 1;
+            digits(&mut j)
+        } else {
+            0
+        };
+        let short = n_int >= 1
+            && (n_int == 1 || b[int_start] != b'0')
+            && (!dot || n_frac >= 1)
+            && n_int + n_frac <= 19
+            && m <= 1 << 53
+            // "-0" is an integer the other readers take as a float: `json_number` gives it up.
+            && (dot || !negative || m != 0);
+        match b.get(j) {
+            Some(&t) if short && t != b'e' && t != b'E' => {
+                self.i = j;
+                // n_frac ≤ 19 < 23: the power is exact.
+                let v = if dot { m as f64 / EXACT_POWERS[n_frac] } else { m as f64 };
+                Ok(if negative { -v } else { v })
+            }
+            // More digits may follow in bytes not yet read (anything else at the end of the
+            // bytes is the general reader's to judge).
+            None if short && !self.end => Err(Stop::More),
+            _ => {
+                self.i = start;
+                match self.json_number()? {
+                    Value::Int(i) => Ok(i as f64),
+                    Value::Float(f) => Ok(f),
+                    _ => Err(Stop::GiveUp),
+                }
+            }
+        }
+    }
+}
+
 /// A decimal number's text (JSON or TOML syntax without underscores) as `f64`, correctly
 /// rounded; gives up where the other readers refuse or differ (out of range).
 fn float_of(text: &[u8]) -> Step<Value> {
@@ -633,12 +693,13 @@ fn parse_elements(
     mut send: impl FnMut(Vec<Parsed>) -> Option<()>,
 ) -> Option<()> {
     let mut batch = Vec::with_capacity(BATCH);
+    let mut layout = Layout::default();
     loop {
         let direct = feed.step(|c| {
             let start = c.i;
             // Filled in place: the table of values is some 360 bytes, not worth a copy.
             let mut flat = FlatElement { values: [None; FLAT_KEYS.len() + 2] };
-            if !flat_element(c, &mut flat)? {
+            if !flat_element(c, &mut flat, &mut layout)? {
                 c.i = start;
                 return Ok(None);
             }
@@ -820,26 +881,98 @@ fn flat_key(key: &str) -> Option<usize> {
     })
 }
 
-/// Reads an element table with only flat keys into `e`, whose values are all `None` at the
-/// start (`false`, cursor anywhere: not such an element).
-fn flat_element<'a>(c: &mut Cursor<'a>, e: &mut FlatElement<'a>) -> Step<bool> {
-    if c.json_space()? != b'{' {
-        return Ok(false);
-    }
-    c.i += 1;
-    if c.json_space()? == b'}' {
-        return Ok(false);
-    }
-    loop {
-        if c.json_space()? != b'"' {
-            return Ok(false);
+/// The layout of the last flat element read: for each of its keys in order, the key's position
+/// in [`FlatElement::values`] and the exact bytes from the end of the value before it (or from
+/// where the element's reading began) to the start of its value, such as `, "elevation": `.
+///
+/// Elements of a written model repeat one layout, so the next element's keys are predicted:
+/// where the text at the cursor is byte for byte the recorded stretch, the key is the recorded
+/// one (the stretch holds its quoted name, and its punctuation is what the general path would
+/// have read), and its value is read at once; anywhere else the general path reads the key and
+/// records the new layout from there on. A prediction never decides anything the text does not
+/// say, so a layout left by a step that stopped half-way (more bytes to read, or not a flat
+/// element) is still a right one.
+#[derive(Default)]
+struct Layout {
+    /// Per key: its position in `values`, and the end of its stretch in `text`.
+    keys: Vec<(usize, usize)>,
+    /// The stretches, one after the other.
+    text: Vec<u8>,
+}
+
+impl Layout {
+    /// The key at `p` if the bytes at the cursor are its recorded stretch; moves past them.
+    #[inline]
+    fn predicted(&self, p: usize, c: &mut Cursor) -> Option<usize> {
+        let &(k, end) = self.keys.get(p)?;
+        let from = if p == 0 { 0 } else { self.keys[p - 1].1 };
+        let stretch = &self.text[from..end];
+        if c.b[c.i..].starts_with(stretch) {
+            c.i += stretch.len();
+            Some(k)
+        } else {
+            None
         }
-        let key = c.plain_string()?;
-        let Some(k) = flat_key(key) else { return Ok(false) };
+    }
+
+    /// Keeps the first `p` keys only.
+    fn truncate(&mut self, p: usize) {
+        self.keys.truncate(p);
+        self.text.truncate(self.keys.last().map_or(0, |&(_, end)| end));
+    }
+
+    /// Records key `k` at `p` (the keys before it kept) with its stretch.
+    fn record(&mut self, p: usize, k: usize, stretch: &[u8]) {
+        self.truncate(p);
+        self.text.extend_from_slice(stretch);
+        self.keys.push((k, self.text.len()));
+    }
+}
+
+/// Reads an element table with only flat keys into `e`, whose values are all `None` at the
+/// start (`false`, cursor anywhere: not such an element). `layout` is the last element's (see
+/// [`Layout`]); it becomes this one's.
+fn flat_element<'a>(c: &mut Cursor<'a>, e: &mut FlatElement<'a>, layout: &mut Layout) -> Step<bool> {
+    let mut p = 0;
+    loop {
+        let from = c.i;
+        let k = match layout.predicted(p, c) {
+            Some(k) => k,
+            None => {
+                let t = c.json_space()?;
+                if p == 0 {
+                    if t != b'{' {
+                        return Ok(false);
+                    }
+                    c.i += 1;
+                    if c.json_space()? == b'}' {
+                        return Ok(false);
+                    }
+                } else {
+                    match t {
+                        b',' => c.i += 1,
+                        b'}' => {
+                            c.i += 1;
+                            layout.truncate(p);
+                            return Ok(true);
+                        }
+                        _ => return Err(Stop::GiveUp),
+                    }
+                }
+                if c.json_space()? != b'"' {
+                    return Ok(false);
+                }
+                let key = c.plain_string()?;
+                let Some(k) = flat_key(key) else { return Ok(false) };
+                c.expect(b':')?;
+                c.json_space()?;
+                layout.record(p, k, &c.b[from..c.i]);
+                k
+            }
+        };
         if e.values[k].is_some() {
             return Ok(false);
         }
-        c.expect(b':')?;
         let v = match c.json_space()? {
             b'"' => Flat::Str(c.plain_string()?),
             b't' => {
@@ -850,21 +983,15 @@ fn flat_element<'a>(c: &mut Cursor<'a>, e: &mut FlatElement<'a>) -> Step<bool> {
                 word(c, b"false", Value::Bool(false))?;
                 Flat::Bool(false)
             }
-            b'-' | b'0'..=b'9' => match c.json_number()? {
-                Value::Int(i) => Flat::Num(i as f64),
-                Value::Float(f) => Flat::Num(f),
-                _ => return Ok(false),
-            },
+            b'-' | b'0'..=b'9' => Flat::Num(c.flat_number()?),
             _ => return Ok(false),
         };
         e.values[k] = Some(v);
-        match c.json_space()? {
-            b',' => c.i += 1,
-            b'}' => {
-                c.i += 1;
-                return Ok(true);
-            }
-            _ => return Err(Stop::GiveUp),
+        p += 1;
+        // The commonest end: the last recorded key's value closes the element.
+        if p == layout.keys.len() && c.b.get(c.i) == Some(&b'}') {
+            c.i += 1;
+            return Ok(true);
         }
     }
 }
@@ -1497,34 +1624,46 @@ mod tests {
         }
     }
 
-    /// Clinger's fast path gives the standard library's correctly rounded value wherever it
-    /// answers, and answers on the numbers model files are made of.
-    #[test]
-    fn fast_path_numbers_equal_the_correctly_rounded_parse() {
-        let mut x: u64 = 0x9e37_79b9_7f4a_7c15;
+    /// `count` decimals of 1 to `max_digits` digits from a fixed seed: a sign one time in three,
+    /// a decimal point anywhere, an exponent (of either sign, up to 59) one time in two; a
+    /// leading zero only before the point unless `leading_zeros`.
+    fn decimals(seed: u64, count: usize, max_digits: u64, leading_zeros: bool) -> Vec<String> {
+        let mut x = seed;
         let mut next = || {
             x = x.wrapping_mul(6_364_136_223_846_793_005).wrapping_add(1_442_695_040_888_963_407);
             x >> 11
         };
-        let mut answered = 0;
-        for _ in 0..200_000 {
-            let digits = 1 + next() % 20;
-            let mut text = String::new();
-            if next() % 3 == 0 {
-                text.push('-');
-            }
-            let point = next() % (digits + 1);
-            for d in 0..digits {
-                if d == point && d > 0 {
-                    text.push('.');
+        (0..count)
+            .map(|_| {
+                let digits = 1 + next() % max_digits;
+                let mut text = String::new();
+                if next() % 3 == 0 {
+                    text.push('-');
                 }
-                let c = if d == 0 && digits > 1 && point != 1 { 1 + next() % 9 } else { next() % 10 };
-                text.push(char::from(b'0' + c as u8));
-            }
-            if next() % 2 == 0 {
-                let e = next() % 60;
-                text.push_str(&format!("e{}{e}", ["", "-", "+"][(next() % 3) as usize]));
-            }
+                let point = next() % (digits + 1);
+                for d in 0..digits {
+                    if d == point && d > 0 {
+                        text.push('.');
+                    }
+                    let nonzero = d == 0 && digits > 1 && point != 1 && !leading_zeros;
+                    let c = if nonzero { 1 + next() % 9 } else { next() % 10 };
+                    text.push(char::from(b'0' + c as u8));
+                }
+                if next() % 2 == 0 {
+                    let e = next() % 60;
+                    text.push_str(&format!("e{}{e}", ["", "-", "+"][(next() % 3) as usize]));
+                }
+                text
+            })
+            .collect()
+    }
+
+    /// Clinger's fast path gives the standard library's correctly rounded value wherever it
+    /// answers, and answers on the numbers model files are made of.
+    #[test]
+    fn fast_path_numbers_equal_the_correctly_rounded_parse() {
+        let mut answered = 0;
+        for text in decimals(0x9e37_79b9_7f4a_7c15, 200_000, 20, false) {
             let expected: f64 = text.parse().unwrap();
             if let Some(v) = exact_float(text.as_bytes()) {
                 answered += 1;
@@ -1541,6 +1680,121 @@ mod tests {
         for text in ["0.10742707159363658", "1e23", "1e-23", "9007199254740993", "1e99999"] {
             assert_eq!(exact_float(text.as_bytes()), None, "{text}");
         }
+    }
+
+    /// The one-pass number reader of flat elements gives what the general one gives (the same
+    /// value, or giving up), on the generated decimals and on the edge cases of the grammar, and
+    /// asks for more bytes where a number may go on in bytes not yet read.
+    #[test]
+    fn flat_numbers_are_the_general_readers_numbers() {
+        let mut texts: Vec<String> = [
+            "0",
+            "-0",
+            "00",
+            "01",
+            "-01",
+            "1.",
+            "-",
+            "-.5",
+            ".5",
+            "0.5",
+            "-0.0",
+            "0.0",
+            "120",
+            "-7",
+            "9.2",
+            "9007199254740992",
+            "9007199254740993",
+            "900719925474099.3",
+            "1234567890123456789",
+            "12345678901234567890",
+            "123456789012345678901234",
+            "0.10742707159363658",
+            "1e5",
+            "1E-5",
+            "2.5e+3",
+            "0.0000000000000000000001",
+            "0.00000000000000000000001",
+            "1.5e",
+            "1e+",
+        ]
+        .map(String::from)
+        .into();
+        texts.extend(decimals(0x2545_f491_4f6c_dd1d, 100_000, 21, true));
+        let mut fast = 0;
+        for text in &texts {
+            for end in [",", "}", " "] {
+                let t = format!("{text}{end}");
+                let general = Cursor { b: t.as_bytes(), i: 0, end: true }.json_number().map(|v| match v {
+                    Value::Int(i) => i as f64,
+                    Value::Float(f) => f,
+                    _ => unreachable!(),
+                });
+                let mut c = Cursor { b: t.as_bytes(), i: 0, end: true };
+                let flat = c.flat_number();
+                match (&general, &flat) {
+                    (Ok(g), Ok(f)) => {
+                        assert_eq!(g.to_bits(), f.to_bits(), "{t}");
+                        assert_eq!(c.i, text.len(), "{t}");
+                        fast += 1;
+                    }
+                    (Err(Stop::GiveUp), Err(Stop::GiveUp)) => {}
+                    _ => panic!("{t}: {general:?} against {flat:?}"),
+                }
+            }
+            // Cut at the end of the bytes read so far: more may follow, unless what is there
+            // is already refused, as the general reader says.
+            let general = Cursor { b: text.as_bytes(), i: 0, end: false }.json_number();
+            let flat = Cursor { b: text.as_bytes(), i: 0, end: false }.flat_number();
+            assert!(
+                matches!(
+                    (&general, &flat),
+                    (Err(Stop::More), Err(Stop::More)) | (Err(Stop::GiveUp), Err(Stop::GiveUp))
+                ),
+                "{text}: {general:?} against {flat:?}"
+            );
+        }
+        assert!(fast > 60_000, "{fast}");
+    }
+
+    /// Elements whose layout changes from one to the next (key order, spaces, keys added or
+    /// left out) are read as the tree reader reads them: a predicted layout never decides.
+    #[test]
+    fn changing_layouts_are_read_as_the_tree_reader_reads_them() {
+        let model = crate::generate::generate(&crate::generate::NetworkSpec::new(3_000, 9)).unwrap();
+        let text = write::to_string(&model, Format::Json);
+        let mut edited = String::new();
+        for (i, line) in text.lines().enumerate() {
+            let element = line.trim_start().starts_with("{\"id\": ") && line.ends_with("},");
+            let line = if element && i % 5 == 1 {
+                // The id last.
+                let body = &line.trim_start()[1..line.trim_start().len() - 2];
+                let (id, rest) = body.split_once(", ").unwrap();
+                format!("    {{{rest}, {id}}},")
+            } else if element && i % 7 == 2 {
+                line.replace("\": ", "\":").replace(", \"", " ,\"")
+            } else if element && i % 11 == 3 && line.contains("\"junction\"") {
+                line.replace("\"kind\": \"junction\", ", "\"zone\": \"north\", ")
+            } else if element && i % 13 == 4 {
+                line.replace("\"kind\": \"junction\", ", "").replace("\"kind\": \"pipe\", ", "")
+            } else {
+                line.to_owned()
+            };
+            edited.push_str(&line);
+            edited.push('\n');
+        }
+        assert_ne!(edited, text);
+        let tree = read_tree(&edited, Format::Json).unwrap();
+        assert_eq!(json_from_slice(edited.as_bytes()).as_ref(), Some(&tree));
+        for chunk in [13, 4096] {
+            let m = json_from_chunks(Trickle(edited.as_bytes(), chunk / 2 + 1), u64::MAX, chunk);
+            assert_eq!(m.as_ref(), Some(&tree), "chunks of {chunk} bytes");
+        }
+        // A duplicate key where the layout predicts another: given up, as the tree reader
+        // refuses it.
+        let duplicate = edited.replacen("\"elevation\": ", "\"id\": \"Jx\", \"elevation\": ", 1);
+        assert!(read_tree(&duplicate, Format::Json).is_err());
+        assert!(json_from_slice(duplicate.as_bytes()).is_none());
     }
 
     /// A reader that hands out at most `n` bytes a call, so that every element is cut across

@@ -154,7 +154,7 @@ pub use status::{Ending, LinkState};
 
 /// Solves one snapshot of `model` as written, with its own options.
 pub fn solve(model: &Model) -> Result<Solution, SolveError> {
-    Solver::new(model)?.solve_once(model)
+    Solver::analyse_and_solve_once(model).1
 }
 
 /// An active pressure valve: its core position and the node whose head it pins.
@@ -172,6 +172,27 @@ struct Pinned {
 /// Networks with at least this many links compute their links' laws on all cores (a few
 /// percent of a solve; below it the threads' start costs more than they save).
 const PARALLEL_LAWS: usize = 50_000;
+
+/// Makes `laws` the `n` links' laws, `law_of` of each link's index, in the room `laws` already
+/// has when it is enough (a solver's reserved room: no second array at any time).
+fn fill_laws(laws: &mut Vec<LinkLaw>, n: usize, law_of: impl Fn(usize) -> LinkLaw + Sync) {
+    if laws.len() != n {
+        laws.clear();
+        laws.resize(n, LinkLaw::STOPPED);
+    }
+    let fill = |(k, law): (usize, &mut LinkLaw)| *law = law_of(k);
+    if n >= PARALLEL_LAWS {
+        use rayon::prelude::*;
+        laws.par_iter_mut().enumerate().for_each(fill);
+    } else {
+        laws.iter_mut().enumerate().for_each(fill);
+    }
+}
+
+/// The error of a network whose matrix 32-bit indices cannot number.
+fn too_large() -> SolveError {
+    SolveError::Model(ModelError::new("the network is too large for the solver's 32-bit matrix indices"))
+}
 
 /// A reusable solver: the analysis of one network structure, the laws of its links and its
 /// workspaces.
@@ -261,22 +282,59 @@ impl Solver {
     pub fn new(model: &Model) -> Result<Self, SolveError> {
         model.validate()?;
         let start = Instant::now();
-        let structure = Structure::analyse(model).ok_or_else(|| {
-            SolveError::Model(ModelError::new("the network is too large for the solver's 32-bit matrix indices"))
-        })?;
-        let structure = Arc::new(structure);
+        let structure = Structure::analyse(model).ok_or_else(too_large)?;
         let analysis_time = start.elapsed();
-        Ok(Solver::with_structure(model, structure, analysis_time))
+        // Filled by the first solve, in this room.
+        let laws = Vec::with_capacity(model.links().len());
+        Ok(Solver::with_structure(model, Arc::new(structure), analysis_time, laws))
     }
 
-    fn with_structure(model: &Model, structure: Arc<Structure>, analysis_time: Duration) -> Self {
+    /// Validates `model`, analyses it and solves it once, as [`Solver::new`] then
+    /// [`Solver::solve_once`] do, with the same answer, bit for bit, and the same errors; but the
+    /// solve's conditions and its links' laws, which need no analysis, are made on the second
+    /// core while this one analyses (the ordering, a quarter of a first solve of a large
+    /// network, is one thread's work). The solver comes back once the analysis is done (for its
+    /// [`Solver::timings`]); its `preparation` time counts what was left after the analysis.
+    pub fn analyse_and_solve_once(model: &Model) -> (Option<Solver>, Result<Solution, SolveError>) {
+        if let Err(e) = model.validate() {
+            return (None, Err(e.into()));
+        }
+        let water = model.options.water_properties();
+        let prepare = || {
+            let mut laws = Vec::new();
+            fill_laws(&mut laws, model.links().len(), |k| LinkLaw::of_model_link(model, k, &water));
+            (Conditions::from_model_without_law_inputs(model), laws)
+        };
+        // The analysis on this thread: its temporaries, freed here, are room for the iteration's
+        // arrays (freed on a helper thread they stayed resident in its heap: +13 MB at the peak
+        // of a million junctions). Without a helper thread, one after the other.
+        let start = Instant::now();
+        let (structure, analysis_time, (conditions, laws)) = std::thread::scope(|scope| {
+            let helper = std::thread::Builder::new().spawn_scoped(scope, prepare).ok();
+            let structure = Structure::analyse(model);
+            let analysis_time = start.elapsed();
+            let prepared = helper.and_then(|h| h.join().ok());
+            (structure, analysis_time, prepared.unwrap_or_else(prepare))
+        });
+        // The preparation's time: from the end of the analysis (a wait for the helper included).
+        let start = start + analysis_time;
+        let Some(structure) = structure else { return (None, Err(too_large())) };
+        let mut solver = Solver::with_structure(model, Arc::new(structure), analysis_time, Vec::new());
+        // The structure is this model's own: nothing to check again.
+        solver.timings = Timings { analysis: analysis_time, ..Timings::default() };
+        solver.analysis_time = Duration::ZERO;
+        solver.install_laws(model, laws);
+        let result = solver.finish_once(model, &conditions, start);
+        (Some(solver), result)
+    }
+
+    fn with_structure(model: &Model, structure: Arc<Structure>, analysis_time: Duration, laws: Vec<LinkLaw>) -> Self {
         let n_links = model.links().len();
         let n_nodes = model.nodes().len();
         let n_core = structure.core.len();
         Solver {
             factor: Factor::new(&structure),
-            // Filled by the first solve.
-            laws: Vec::with_capacity(n_links),
+            laws,
             laws_seen: None,
             law_basis: None,
             water: model.options.water_properties(),
@@ -351,11 +409,17 @@ impl Solver {
     /// as [`Solver::solve_model`]'s. A later solve with this solver still works: it makes its
     /// work arrays and laws afresh and starts cold.
     pub fn solve_once(&mut self, model: &Model) -> Result<Solution, SolveError> {
-        let options = SolveOptions::from_model(model);
         let conditions = Conditions::from_model_without_law_inputs(model);
         let start = self.prepare(model, &conditions, true)?;
+        self.finish_once(model, &conditions, start)
+    }
+
+    /// The rest of a one-off solve once the laws are built from the model (see
+    /// [`Solver::solve_once`]).
+    fn finish_once(&mut self, model: &Model, conditions: &Conditions, start: Instant) -> Result<Solution, SolveError> {
+        let options = SolveOptions::from_model(model);
         self.one_off = true;
-        let result = self.run(model, &conditions, &options, start);
+        let result = self.run(model, conditions, &options, start);
         self.one_off = false;
         result
     }
@@ -393,7 +457,8 @@ impl Solver {
         if self.released {
             // As a new solver of this structure (the analysis is kept, and its time not counted
             // again).
-            *self = Solver::with_structure(model, Arc::clone(&self.structure), Duration::ZERO);
+            let laws = Vec::with_capacity(model.links().len());
+            *self = Solver::with_structure(model, Arc::clone(&self.structure), Duration::ZERO, laws);
         }
         let start = Instant::now();
         self.timings = Timings { analysis: self.analysis_time, ..Timings::default() };
@@ -544,19 +609,16 @@ impl Solver {
 
     /// Builds every link's law with `law_of` (of the link's index), and their inline forms.
     fn rebuild_laws(&mut self, model: &Model, law_of: impl Fn(usize) -> LinkLaw + Sync) {
+        let mut laws = std::mem::take(&mut self.laws);
+        fill_laws(&mut laws, model.links().len(), law_of);
+        self.install_laws(model, laws);
+    }
+
+    /// Takes `laws` (every link's, built from `model` or its conditions) as this solver's, with
+    /// their inline forms.
+    fn install_laws(&mut self, model: &Model, laws: Vec<LinkLaw>) {
         self.water = model.options.water_properties();
-        if self.laws.len() != model.links().len() {
-            // In the room reserved when the solver was made: no second array at any time.
-            self.laws.clear();
-            self.laws.resize(model.links().len(), LinkLaw::STOPPED);
-        }
-        let fill = |(k, law): (usize, &mut LinkLaw)| *law = law_of(k);
-        if model.links().len() >= PARALLEL_LAWS {
-            use rayon::prelude::*;
-            self.laws.par_iter_mut().enumerate().for_each(fill);
-        } else {
-            self.laws.iter_mut().enumerate().for_each(fill);
-        }
+        self.laws = laws;
         for i in 0..self.structure.core.len() {
             self.set_hot(i);
         }
