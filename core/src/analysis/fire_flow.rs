@@ -33,11 +33,15 @@
 //! Where the network has no device states and no relations of pressure (a draw then changes
 //! neither which links carry flow nor which junctions the sources reach), each held solve is a
 //! light one ([`Solver::solve_holding_light`]): no device logic, no full solution (only the
-//! pressures the analysis reads), the border from two sparse forward solves, and chord steps on
-//! the last factor near the answer; the hydrant's own limit may end once its draw's step is a
-//! tenth of [`FLOW_TOLERANCE`] (its pressures serve only to estimate which junction the system
-//! limit holds first). Elsewhere, and wherever a light solve fails, the general held solve
-//! answers.
+//! pressures the analysis reads), the border from two sparse forward solves, chord steps on
+//! the last factor near the answer, and the draw's step taken along the Hazen–Williams power;
+//! each held solve may end once its draw's step is a tenth of [`FLOW_TOLERANCE`] and its heads
+//! converge faster than linearly. The hydrant's own limit then needs nothing more (its pressures
+//! serve only to estimate which junction the system limit holds first). For the system limit the
+//! heads are then known to within their last change: where that error could change the decision
+//! (another protected pressure within it of the held one, or of the residual less a tie
+//! allowance), the held solve goes on from there to the solver's own tolerances. Elsewhere, and
+//! wherever a light solve fails, the general held solve answers.
 //!
 //! When the held solve cannot answer (a held head that does not follow the draw: a check valve
 //! or a regulating valve between them; a draw that would be negative or above [`MAX_DRAW`]),
@@ -244,10 +248,12 @@ struct Worker {
 
 impl Context<'_> {
     /// The draw at `hydrant` that holds the pressure at `node` at the residual, with the pressures
-    /// there; `None` when a held solve cannot answer (see the module docs).
-    fn held(&self, worker: &mut Worker, hydrant: usize, node: usize, start: f64) -> Option<(f64, Vec<f64>)> {
+    /// there; `None` when a held solve cannot answer (see the module docs). With `loose`, a light
+    /// solve may end once its draw's step is a tenth of [`FLOW_TOLERANCE`], its heads then within
+    /// the answer's `error` of the held answer's.
+    fn held(&self, worker: &mut Worker, hydrant: usize, node: usize, start: f64, loose: bool) -> Option<Held> {
         if let Some(base) = self.light {
-            if let Some(found) = self.held_light(worker, base, hydrant, node, start) {
+            if let Some(found) = self.held_light(worker, base, hydrant, node, start, loose) {
                 return Some(found);
             }
         }
@@ -273,7 +279,7 @@ impl Context<'_> {
                 return None;
             }
             if solver.held_draw_step() <= FLOW_TOLERANCE {
-                return Some((draw, solution.pressure));
+                return Some(Held { draw, pressure: solution.pressure, error: 0.0 });
             }
             options.head_tolerance *= 1e-2;
         }
@@ -289,7 +295,8 @@ impl Context<'_> {
         hydrant: usize,
         node: usize,
         start: f64,
-    ) -> Option<(f64, Vec<f64>)> {
+        loose: bool,
+    ) -> Option<Held> {
         let model = self.model;
         let mut held =
             HeldHead { draw_at: hydrant, node, head: model.nodes()[node].elevation + self.options.residual, start };
@@ -297,9 +304,7 @@ impl Context<'_> {
         let mut pressure = Vec::with_capacity(model.nodes().len());
         for _ in 0..3 {
             let from_base = worker.from_base;
-            // The hydrant's own limit may end on its draw's tolerance: its pressures only
-            // estimate which junction the system limit holds first.
-            let draw_tolerance = if node == hydrant { 0.1 * FLOW_TOLERANCE } else { 0.0 };
+            let draw_tolerance = if loose { 0.1 * FLOW_TOLERANCE } else { 0.0 };
             match worker.solver.solve_holding_light(
                 model,
                 base,
@@ -315,7 +320,7 @@ impl Context<'_> {
                         return None;
                     }
                     if worker.solver.held_draw_step() <= FLOW_TOLERANCE {
-                        return Some((draw, pressure));
+                        return Some(Held { draw, pressure, error: worker.solver.held_head_error() });
                     }
                     // Once more from there, to a hundredfold tighter head tolerance.
                     held.start = draw;
@@ -367,9 +372,11 @@ impl Context<'_> {
             notes.push("the hydrant is at or below the residual pressure without a fire draw".to_owned());
             0.0
         } else {
-            let fast = if held { self.held(worker, h, h, start).filter(|(q, _)| *q > 0.0) } else { None };
+            // The hydrant's own limit may end on its draw's tolerance: its pressures only
+            // estimate which junction the system limit holds first.
+            let fast = if held { self.held(worker, h, h, start, true).filter(|a| a.draw > 0.0) } else { None };
             match fast {
-                Some((q, p)) => {
+                Some(Held { draw: q, pressure: p, .. }) => {
                     sample = Some((q, p));
                     worker.last = q;
                     q
@@ -466,7 +473,13 @@ impl Context<'_> {
         };
         for _ in 0..MAX_HELD {
             let start = sample.as_ref().map_or(0.0, |s| s.0);
-            let (q, p) = self.held(worker, h, node, start)?;
+            let mut answer = self.held(worker, h, node, start, true)?;
+            if !settled(&answer, node, protected, residual) {
+                // Another protected pressure within the answer's error of a tie: the held solve
+                // again from there, to the solver's own tolerances.
+                answer = self.held(worker, h, node, answer.draw, false)?;
+            }
+            let Held { draw: q, pressure: p, .. } = answer;
             let (lowest, at) =
                 protected.iter().map(|&i| (i, p[i])).fold((node, p[node]), |a, b| if b.1 < a.1 { b } else { a });
             if at >= residual - TIE {
@@ -495,6 +508,27 @@ impl Context<'_> {
             Draw { model: self.model, conditions, solver: &mut worker.solver, options: self.solve_options, hydrant: h };
         draw.root(at_zero, self.options.residual, measure)
     }
+}
+
+/// A held solve's answer: the draw, the pressure heads there, and how far those heads may be
+/// from the held answer's (m; zero when the solve ended on the solver's own tolerances).
+struct Held {
+    draw: f64,
+    pressure: Vec<f64>,
+    error: f64,
+}
+
+/// Whether a held answer for the system limit at `node` decides it as the exact answer would:
+/// every other protected pressure is either clearly above the held one (then `node` sets the
+/// limit) or one of them clearly below the residual less [`TIE`] (then another junction is held
+/// next), each by more than the answer's head error.
+fn settled(answer: &Held, node: usize, protected: &[usize], residual: f64) -> bool {
+    let (p, e) = (&answer.pressure, answer.error);
+    if e == 0.0 {
+        return true;
+    }
+    let others = protected.iter().filter(|&&i| i != node).map(|&i| p[i]).fold(f64::INFINITY, f64::min);
+    others - e > p[node] + e || others + e < residual - TIE
 }
 
 /// The pressure heads of `model` with extra draw `q` at `hydrant`.
@@ -581,5 +615,31 @@ impl Draw<'_> {
             }
         }
         Err(SolveError::Model(ModelError::new("the search for the residual pressure did not settle")))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn answer(pressure: Vec<f64>, error: f64) -> Held {
+        Held { draw: 0.1, pressure, error }
+    }
+
+    #[test]
+    fn a_loose_system_answer_is_settled_only_when_its_error_cannot_change_the_decision() {
+        // Junction 0 held at the residual 14 m; 1 and 2 protected; 3 not protected.
+        let protected = [0, 1, 2];
+        // Exact answers always settle.
+        assert!(settled(&answer(vec![14.0, 14.0, 30.0, 0.0], 0.0), 0, &protected, 14.0));
+        // The others clearly above the held junction: it sets the limit.
+        assert!(settled(&answer(vec![14.0, 14.1, 30.0, 0.0], 1e-3), 0, &protected, 14.0));
+        // One clearly below the residual: another junction is held next.
+        assert!(settled(&answer(vec![14.0, 13.9, 30.0, 0.0], 1e-3), 0, &protected, 14.0));
+        // One within the error of the held pressure, above or below it: not settled.
+        assert!(!settled(&answer(vec![14.0, 14.001, 30.0, 0.0], 1e-3), 0, &protected, 14.0));
+        assert!(!settled(&answer(vec![14.0, 13.9995, 30.0, 0.0], 1e-3), 0, &protected, 14.0));
+        // A junction that is not protected does not count.
+        assert!(settled(&answer(vec![14.0, 14.1, 30.0, 14.0], 1e-3), 0, &protected, 14.0));
     }
 }

@@ -37,6 +37,7 @@ use super::structure::NONE;
 use super::{Solution, SolveOptions, Solver};
 use crate::error::{Element, ModelError, SolveError};
 use crate::model::{Model, NodeKind};
+use crate::physics::friction::HW_FLOW_EXPONENT;
 use crate::solve::Conditions;
 
 /// What to hold: the head at junction `node` at `head` (m), by a draw at junction `draw_at`
@@ -62,6 +63,9 @@ pub(super) struct Hold {
     pub draw: f64,
     /// |ΔQ| of the last step, m³/s.
     pub change: f64,
+    /// The largest head change of the last step when a light solve ended on its draw's
+    /// tolerance (a bound on how far its heads may be from the held answer's), else zero, m.
+    loose: f64,
     /// The unknown where the draw enters the matrix (the draw junction's, or its tree root's).
     draw_unknown: u32,
     /// The held junction's tree root (itself in the core) and its unknown (`NONE` for a fixed
@@ -121,6 +125,7 @@ impl Solver {
             held,
             draw: 0.0,
             change: 0.0,
+            loose: 0.0,
             draw_unknown: NONE,
             target_root: NONE,
             target_unknown: NONE,
@@ -166,6 +171,14 @@ impl Solver {
         self.hold.as_ref().map_or(f64::INFINITY, |h| h.change)
     }
 
+    /// How far the heads of the last [`Solver::solve_holding_light`] may be from those of its
+    /// held answer, m: zero when it ended on the solver's own test, else the largest head change
+    /// of its last step (it ended on its draw's tolerance, converging faster than linearly, so
+    /// the distance left is a fraction of that change).
+    pub fn held_head_error(&self) -> f64 {
+        self.hold.as_ref().map_or(f64::INFINITY, |h| h.loose)
+    }
+
     /// Whether a border is active (a [`Solver::solve_holding`] in progress).
     pub(super) fn holding(&self) -> bool {
         self.hold.as_ref().is_some_and(|h| h.held.draw_at != usize::MAX)
@@ -182,6 +195,7 @@ impl Solver {
         self.demand[hold.held.draw_at] += hold.held.start - hold.draw;
         hold.draw = hold.held.start;
         hold.change = 0.0;
+        hold.loose = 0.0;
         let n_nodes = structure.unknown_of_node.len();
         if hold.parent.len() != n_nodes {
             hold.parent.clear();
@@ -331,6 +345,24 @@ impl Solver {
     }
 }
 
+/// The draw's step `ΔQ` of a light solve from the draw `q0`, given the step `linear` of the
+/// bordered Newton step: where the draw is under way, the held head taken to fall as
+/// `H(Q) = H₀ − k Q^n` (n the Hazen–Williams exponent; exact on a main that carries the draw
+/// alone), with `k` from the step's own slope at `q0`. Newton's step on the draw falls short
+/// by about half from a draw far above the answer (the loss grows as `Q^1.852`) and overshoots
+/// from one far below; this one lands on the answer of such a main at once. The two agree to
+/// second order in `ΔQ`, so the iteration converges as fast as Newton's near the answer, and
+/// to the same point (the step is zero where the held head is met). A linear step that would
+/// take the draw below `(1 − 1/n) q0`, which the power cannot reach, stays linear.
+fn along_power(q0: f64, linear: f64) -> f64 {
+    let x = HW_FLOW_EXPONENT * linear / q0;
+    if q0 > 0.0 && x > -1.0 && x.is_finite() {
+        q0 * (x.ln_1p() / HW_FLOW_EXPONENT).exp_m1()
+    } else {
+        linear
+    }
+}
+
 /// Largest head change (m) of a light solve's step after which the next steps are chord steps
 /// on its factor: conductances move by well under a percent in such a step.
 pub const CHORD_HEAD: f64 = 0.05;
@@ -406,6 +438,8 @@ impl Solver {
     /// chord step may end the iteration with its changes within [`CHORD_MARGIN`] of the
     /// tolerances (the distance to the fixed point is then at most its last change). A solve
     /// that continues from the last light solve's answer starts with chord steps on its factor.
+    /// The draw's step of each is taken along the Hazen–Williams power from the draw so far (see
+    /// `along_power`): the same fixed point, fewer steps from a neighbour's draw far from it.
     ///
     /// With `draw_tolerance` above zero the iteration also ends once the draw's step is within it,
     /// the heads' change within [`LOOSE_HEAD`] and at most a fifth of the step before (the
@@ -565,6 +599,9 @@ impl Solver {
                 && step <= LOOSE_HEAD
                 && step <= 0.2 * last_step
             {
+                if let Some(h) = self.hold.as_mut() {
+                    h.loose = step;
+                }
                 return Ok(());
             }
             last_step = step;
@@ -684,7 +721,7 @@ impl Solver {
             forward(structure, l, &mut hold.z, v as usize);
             (dot(&hold.z, &self.rhs), if u_free { dot(&hold.z, &hold.w) } else { 0.0 })
         };
-        let dq = self.border(model, iteration, hold, delta0, w_v)?;
+        let dq = along_power(hold.draw, self.border(model, iteration, hold, delta0, w_v)?);
         if dq != 0.0 && u_free {
             for (y, z) in self.rhs.iter_mut().zip(&hold.w) {
                 *y -= dq * z;
@@ -825,6 +862,30 @@ mod tests {
         assert!(q > 0.0);
         let err = hold(&m, "B", "R", 40.0).unwrap_err().to_string();
         assert!(err.contains("must be a junction"), "{err}");
+    }
+
+    /// On a main that carries the draw alone, `H(Q) = H₀ − k Q^n`: from any draw the step along
+    /// the power lands on the held head at once, where Newton's step (`linear`) falls short from
+    /// above and overshoots from below; near the answer the two agree.
+    #[test]
+    fn the_step_along_the_power_lands_on_a_single_mains_answer() {
+        let n = HW_FLOW_EXPONENT;
+        let (h0, k, target): (f64, f64, f64) = (70.0, 900.0, 40.0);
+        let answer = ((h0 - target) / k).powf(1.0 / n);
+        for q0 in [0.2 * answer, 0.7 * answer, 1.5 * answer, 4.0 * answer] {
+            let (head, slope) = (h0 - k * q0.powf(n), n * k * q0.powf(n - 1.0));
+            let linear = (head - target) / slope;
+            let step = along_power(q0, linear);
+            assert!((q0 + step - answer).abs() < 1e-12 * answer, "{q0}: {} vs {answer}", q0 + step);
+            assert!((q0 + linear - answer).abs() > 0.01 * answer, "{q0}");
+        }
+        let q0 = answer * (1.0 + 1e-6);
+        let linear = (h0 - k * q0.powf(n) - target) / (n * k * q0.powf(n - 1.0));
+        assert!((along_power(q0, linear) - linear).abs() < 1e-5 * linear.abs());
+        // No draw yet, or a linear step below what the power reaches: the linear step.
+        assert_eq!(along_power(0.0, 0.3), 0.3);
+        assert_eq!(along_power(1.0, -0.6), -0.6);
+        assert_eq!(along_power(1.0, 0.0), 0.0);
     }
 
     #[test]
