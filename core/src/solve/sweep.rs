@@ -25,6 +25,11 @@
 //!   (scored by the flow their linearisation misses) join the closed link in a Woodbury
 //!   correction of the base factor (at most [`WOODBURY_LINKS`] of them, chosen afresh at most
 //!   [`WOODBURY_ROUNDS`] times), and the chord steps go on with that matrix.
+//! * **Newton's steps where the chord cannot serve.** A closure whose first step moved the
+//!   flows of more than [`NEWTON_AT_ONCE`] links far (more than a Woodbury correction covers)
+//!   factors at its own point at once; one whose chord diverges or stays slow does so later.
+//!   Once its steps are within [`OWN_CHORD_REACH`] head tolerances, it keeps its own factor for
+//!   chord steps, and factors again only where one contracts too slowly.
 //!
 //! # When it serves, and when the general solve takes over
 //! Only where the answer is that of the general solve by construction: the base case solved
