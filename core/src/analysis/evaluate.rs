@@ -70,8 +70,42 @@ impl CheckResult {
     }
 }
 
-/// The pressure limits that apply to a junction: its groups' where they set the key, else global.
-fn pressure_checks(criteria: &Criteria, model: &Model, solution: &Solution, keep: usize) -> Vec<CheckResult> {
+/// The nodes the criteria read, found once per model: a sweep evaluates thousands of solutions
+/// of one model, and reading every node's record for each of them cost more than the checks.
+#[derive(Clone, Debug, Default)]
+pub struct NodeIndex {
+    /// The junctions, in the model's order.
+    pub(crate) junctions: Vec<u32>,
+    /// The junctions with a demand above zero, in the model's order.
+    pub(crate) demanding: Vec<u32>,
+}
+
+impl NodeIndex {
+    /// The index of `model`'s nodes.
+    pub fn new(model: &Model) -> Self {
+        let mut index = NodeIndex::default();
+        for (i, n) in model.nodes().iter().enumerate() {
+            if matches!(n.kind, NodeKind::Junction { .. }) {
+                index.junctions.push(i as u32);
+                if n.demand() > 0.0 {
+                    index.demanding.push(i as u32);
+                }
+            }
+        }
+        index
+    }
+}
+
+/// The pressure limits that apply to a junction: its groups' where they set the key, else global;
+/// their results pushed to `out`.
+fn pressure_checks(
+    out: &mut Vec<CheckResult>,
+    criteria: &Criteria,
+    model: &Model,
+    index: &NodeIndex,
+    solution: &Solution,
+    keep: usize,
+) {
     let mut global_min = criteria.min_pressure.map(|l| CheckResult::new("min_pressure", Quantity::Pressure, l));
     let mut global_max = criteria.max_pressure.map(|l| CheckResult::new("max_pressure", Quantity::Pressure, l));
     let mut groups: Vec<(Option<CheckResult>, Option<CheckResult>)> = criteria
@@ -86,10 +120,9 @@ fn pressure_checks(criteria: &Criteria, model: &Model, solution: &Solution, keep
             )
         })
         .collect();
-    for (i, node) in model.nodes().iter().enumerate() {
-        if !matches!(node.kind, NodeKind::Junction { .. }) {
-            continue;
-        }
+    let nodes = model.nodes();
+    for &i in &index.junctions {
+        let (i, node) = (i as usize, &nodes[i as usize]);
         let p = solution.pressure[i];
         // Disconnected junctions have no pressure; `all_demands_supplied` reports them.
         let connected = solution.connected[i] && p.is_finite();
@@ -120,12 +153,11 @@ fn pressure_checks(criteria: &Criteria, model: &Model, solution: &Solution, keep
             check_pressure(c, &node.id, p, false, keep);
         }
     }
-    let mut out: Vec<CheckResult> = global_min.into_iter().chain(global_max).collect();
+    out.extend(global_min.into_iter().chain(global_max));
     for (lo, hi) in groups {
         out.extend(lo);
         out.extend(hi);
     }
-    out
 }
 
 fn check_pressure(c: &mut CheckResult, id: &str, p: f64, is_min: bool, keep: usize) {
@@ -139,30 +171,40 @@ fn check_pressure(c: &mut CheckResult, id: &str, p: f64, is_min: bool, keep: usi
 /// Evaluates every criterion but `must_converge` on a solved scenario. `keep` is how many of the
 /// worst findings each result lists (all are counted).
 pub fn evaluate(criteria: &Criteria, model: &Model, solution: &Solution, keep: usize) -> Vec<CheckResult> {
+    evaluate_indexed(criteria, model, &NodeIndex::new(model), solution, keep)
+}
+
+/// [`evaluate()`] with the index of `model`'s nodes made once (a sweep's many solutions).
+pub fn evaluate_indexed(
+    criteria: &Criteria,
+    model: &Model,
+    index: &NodeIndex,
+    solution: &Solution,
+    keep: usize,
+) -> Vec<CheckResult> {
     let nodes = model.nodes();
     let links = model.links();
     let mut out = Vec::new();
     if criteria.all_demands_supplied {
         let mut c = CheckResult::new("all_demands_supplied", Quantity::Flow, 0.0);
-        for (i, n) in nodes.iter().enumerate() {
-            if matches!(n.kind, NodeKind::Junction { .. }) && n.demand() > 0.0 {
-                c.checked += 1;
-                if !solution.connected[i] {
-                    let detail = Some("cut off from every reservoir and tank; its demand is not supplied".to_owned());
-                    let finding = Finding {
-                        element: Element::Node(n.id.to_string()),
-                        value: n.demand(),
-                        limit: 0.0,
-                        excess: n.demand(),
-                        detail,
-                    };
-                    c.add(finding, keep);
-                }
+        for &i in &index.demanding {
+            let (i, n) = (i as usize, &nodes[i as usize]);
+            c.checked += 1;
+            if !solution.connected[i] {
+                let detail = Some("cut off from every reservoir and tank; its demand is not supplied".to_owned());
+                let finding = Finding {
+                    element: Element::Node(n.id.to_string()),
+                    value: n.demand(),
+                    limit: 0.0,
+                    excess: n.demand(),
+                    detail,
+                };
+                c.add(finding, keep);
             }
         }
         out.push(c);
     }
-    out.extend(pressure_checks(criteria, model, solution, keep));
+    pressure_checks(&mut out, criteria, model, index, solution, keep);
     if let Some(limit) = criteria.max_velocity {
         let mut c = CheckResult::new("max_velocity", Quantity::Velocity, limit);
         for (k, l) in links.iter().enumerate() {

@@ -35,7 +35,7 @@ pub mod fire_flow;
 
 pub use criteria::{Criteria, Group, Quantity, SupplyMargin};
 pub use diagnostics::{diagnose_model, diagnose_solution, plausibility, Diagnostic, DiagnosticKind};
-pub use evaluate::{evaluate, warning_checks, CheckResult, Finding};
+pub use evaluate::{evaluate, evaluate_indexed, warning_checks, CheckResult, Finding, NodeIndex};
 
 pub use crate::solve::Scenario;
 
@@ -159,6 +159,16 @@ impl std::fmt::Display for Unsolved {
 
 /// Checks that a converged solution delivers every demand: see [`Unsolved::DemandNotDelivered`].
 pub fn demand_delivered(model: &Model, solution: &Solution, keep: usize) -> Result<(), Unsolved> {
+    demand_delivered_indexed(model, &NodeIndex::new(model), solution, keep)
+}
+
+/// [`demand_delivered`] with the index of `model`'s nodes made once (a sweep's many solutions).
+pub fn demand_delivered_indexed(
+    model: &Model,
+    index: &NodeIndex,
+    solution: &Solution,
+    keep: usize,
+) -> Result<(), Unsolved> {
     use crate::solve::LinkState;
     let nodes = model.nodes();
     let links = model.links();
@@ -185,11 +195,11 @@ pub fn demand_delivered(model: &Model, solution: &Solution, keep: usize) -> Resu
         );
         reach
     };
-    let mut bad: Vec<(usize, f64)> = nodes
+    let mut bad: Vec<(usize, f64)> = index
+        .demanding
         .iter()
-        .enumerate()
-        .filter(|(_, n)| matches!(n.kind, NodeKind::Junction { .. }) && n.demand() > 0.0)
-        .filter_map(|(i, _)| {
+        .map(|&i| i as usize)
+        .filter_map(|i| {
             let p = solution.pressure[i];
             if solution.connected[i] {
                 (p < 0.0).then_some((i, p))
@@ -348,18 +358,18 @@ fn judge(
     }
 }
 
-/// [`judge`] for a closure of a sweep: no fire flows, and the closure's connectivity is not
-/// copied (the sweep keeps only what it reports).
+/// [`judge`] for a closure of a sweep: no fire flows, the closure's connectivity is not copied
+/// (the sweep keeps only what it reports), and the index of the model's nodes is the sweep's.
 fn judge_closure(
-    model: &Model,
+    (model, index): (&Model, &NodeIndex),
     criteria: &Criteria,
     solution: &Solution,
     reference: &[bool],
     options: &CheckOptions,
 ) -> Outcome {
-    let error = demand_delivered(model, solution, options.keep).err();
+    let error = demand_delivered_indexed(model, index, solution, options.keep).err();
     let mut checks = vec![convergence_check(criteria, model, error.as_ref())];
-    checks.extend(evaluate(criteria, model, solution, options.keep));
+    checks.extend(evaluate_indexed(criteria, model, index, solution, options.keep));
     Outcome {
         error,
         iterations: solution.iterations,
@@ -555,10 +565,11 @@ pub fn sweep_pipes(
         let _ = base_failures.set(failures);
     };
     let solve_options = SolveOptions::from_model(model);
+    let index = NodeIndex::new(model);
     let (_, outcomes) = solver.solve_closures(model, &conditions, &solve_options, pipes, &mut on_base, &|_, result| {
         let mut outcome = match result {
             Ok(solution) => {
-                let mut o = judge_closure(model, criteria, solution, reference, &options_all);
+                let mut o = judge_closure((model, &index), criteria, solution, reference, &options_all);
                 if let Some(base) = base_failures.get() {
                     base.remove_from(&mut o, options.keep);
                 }
@@ -620,6 +631,17 @@ mod tests {
         m.add_link(pipe("CA", 3, 1)).unwrap();
         m.add_link(pipe("CD", 3, 4)).unwrap();
         m
+    }
+
+    /// The node index a sweep makes once lists the junctions and, of them, those with a demand,
+    /// in the model's order (a reservoir and a junction without demand left out of the second).
+    #[test]
+    fn the_node_index_lists_junctions_and_demands() {
+        let mut m = network();
+        m.add_node(Node::junction("E", 10.0, 0.0)).unwrap();
+        let index = NodeIndex::new(&m);
+        assert_eq!(index.junctions, [1, 2, 3, 4, 5]);
+        assert_eq!(index.demanding, [1, 2, 3, 4]);
     }
 
     #[test]
