@@ -71,7 +71,9 @@
 //! [`Solver::timings`] for where the time went. [`Solver::solve_model`] and
 //! [`Solver::solve_with`] solve a model as written (they make its conditions afresh, so every law
 //! is rebuilt: use them for one-off solves); [`Solver::solve_once`] does the same for a caller
-//! that will not solve again, freeing the iteration's memory before the solution is made.
+//! that will not solve again, freeing the iteration's memory before the solution is made, and
+//! [`Solver::analyse_and_solve_once`] analyses and solves a model in one call, making the
+//! conditions and the links' laws on a second thread while this one analyses the structure.
 //!
 //! # Convergence
 //! A step is accepted as converged when the relative flow change `Σ|ΔQ| / Σ|Q|` is at most the
