@@ -5,7 +5,7 @@
 //! and **gives up** (`None`) on anything it is not sure of: a syntax error, an escape in a
 //! string, a number it cannot read exactly as the whole-text reader does, a duplicate key, keys
 //! in an order one pass cannot take, any model error. The caller then reads the file with the
-//! whole-text reader ([`super::read::read_str`]), which accepts everything valid and gives every
+//! whole-text reader ([`super::read_str`]), which accepts everything valid and gives every
 //! error with its line and column. A model read here equals the one the whole-text reader builds
 //! from the same text (the tests compare them), so which reader ran is invisible.
 //!
@@ -1564,7 +1564,8 @@ fn toml_model(feed: &mut impl Feed) -> Option<Model> {
 
 #[cfg(test)]
 mod tests {
-    use super::super::read::{read_str, read_tree};
+    use super::super::read::read_tree;
+    use super::super::read_str;
     use super::super::write;
     use super::super::Format;
     use super::*;

@@ -25,29 +25,6 @@ use crate::units::Quantity;
 use crate::units::{DiameterUnit, FlowUnit, LengthUnit, PressureUnit, RoughnessUnit, UnitSystem};
 use std::sync::OnceLock;
 
-/// Parses a model from text. `source` names the text in error messages (usually the file name).
-pub fn read_str(text: &str, format: Format, source: &str) -> Result<Model, ModelError> {
-    // A byte-order mark (some editors on Windows write one) is not part of the text, in JSON as
-    // in TOML.
-    let text = text.strip_prefix('\u{feff}').unwrap_or(text);
-    read_inner(text, format).map_err(|e| e.in_file(source))
-}
-
-/// Parses a model from bytes (checks that they are UTF-8 text first).
-pub fn read_bytes(bytes: &[u8], format: Format, source: &str) -> Result<Model, ModelError> {
-    match std::str::from_utf8(bytes) {
-        Ok(text) => read_str(text, format, source),
-        Err(e) => {
-            let (line, col) = tree::line_column(&String::from_utf8_lossy(&bytes[..e.valid_up_to()]), usize::MAX);
-            Err(ModelError {
-                position: Some((line, col)),
-                ..ModelError::new("the file is not UTF-8 text (is it a binary file?)")
-            }
-            .in_file(source))
-        }
-    }
-}
-
 /// Reads a JSON model in one pass from `reader`, without holding the text: each node and link
 /// is parsed into a small tree, read into the model and dropped in turn, so that memory holds the
 /// model and one element's tree. The reader is buffered here.
@@ -55,7 +32,7 @@ pub fn read_bytes(bytes: &[u8], format: Format, source: &str) -> Result<Model, M
 /// It gives up (`None`) at the first problem of any kind, and also when the file's top-level keys
 /// are not in the order a one-pass read needs: every setting (units, hydraulics, patterns...)
 /// before `nodes`, `nodes` before `links` — the order [`super::write`] writes them in. The caller
-/// then reads the whole text with [`read_str`] (or [`read_bytes`]), which accepts any order and
+/// then reads the whole text with [`read_str`](super::read_str) (or [`read_bytes`](super::read_bytes)), which accepts any order and
 /// whose errors carry their positions; a model read this way equals the one `read_str` builds
 /// from the same text.
 pub fn read_json_stream<R: std::io::Read>(reader: R) -> Option<Model> {
@@ -70,7 +47,7 @@ pub fn read_json_stream<R: std::io::Read>(reader: R) -> Option<Model> {
 ///
 /// It gives up (`None`) on anything else: another layout, a syntax or model error, keys in an
 /// order one pass cannot take. The caller then tries [`read_json_stream`] or reads the whole
-/// text; a model read this way equals the one [`read_str`] builds from the same text.
+/// text; a model read this way equals the one [`read_str`](super::read_str) builds from the same text.
 pub fn read_json_lines<R: std::io::BufRead>(mut reader: R) -> Option<Model> {
     let mut line = Vec::with_capacity(1 << 12);
     let mut next = |line: &mut Vec<u8>| -> Option<()> {
@@ -251,17 +228,6 @@ impl<'de> serde::de::Visitor<'de> for Elements<'_> {
             i += 1;
         }
         Ok(())
-    }
-}
-
-fn read_inner(text: &str, format: Format) -> Result<Model, ModelError> {
-    let fast = match format {
-        Format::Json => super::one_pass::json_from_slice(text.as_bytes()),
-        Format::Toml => super::one_pass::toml_from_slice(text.as_bytes()),
-    };
-    match fast {
-        Some(model) => Ok(model),
-        None => read_tree(text, format),
     }
 }
 
@@ -1932,6 +1898,7 @@ fn read_condition(parent: &Fields, prefix: String, value: Value, model: &Model) 
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::format::read_str;
 
     #[test]
     fn every_element_key_is_shared_not_copied() {

@@ -1100,7 +1100,7 @@ impl Serialize for Conditions<'_> {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::format::read::read_str;
+    use crate::format::read_str;
     use crate::model::{HydraulicOptions, Link, Node};
     use crate::units::UnitSystem;
 
