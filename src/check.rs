@@ -14,7 +14,7 @@ use ringmain_core::analysis::{
     diagnose_model, diagnose_solution, run_scenario, supplied_by_topology, sweep_candidates, sweep_pipes,
     warning_checks, what_if_model, CheckOptions, Criteria, Scenario,
 };
-use ringmain_core::format::tree::{self, Value};
+use ringmain_core::model::criteria::CriteriaTable;
 use ringmain_core::{Format, ModelError, NodeKind, SolveError, SolveOptions, Solver};
 use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
@@ -157,7 +157,10 @@ pub fn report_error(error: &ModelError, source: Option<&SourceText>) {
 }
 
 /// Reads a criteria file: a `[criteria]` table, or the criteria keys at the top level.
-fn read_criteria_file(path: &Path) -> Result<(SourceText, Value), (ModelError, Option<SourceText>)> {
+fn read_criteria_file(
+    path: &Path,
+    model: &ringmain_core::Model,
+) -> Result<(SourceText, CriteriaTable), (ModelError, Option<SourceText>)> {
     let (mut source, bytes) = read_source(path).map_err(|e| (e, None))?;
     let name = source.name.clone();
     source.text = String::from_utf8(bytes.clone()).ok();
@@ -167,24 +170,10 @@ fn read_criteria_file(path: &Path) -> Result<(SourceText, Value), (ModelError, O
             .unwrap_or_else(|| ModelError::new("the file is not UTF-8 text (is it a binary file?)").in_file(&name));
         return Err((e, Some(source)));
     };
-    let parsed = match source.format {
-        Format::Toml => tree::parse_toml(text),
-        Format::Json => tree::parse_json(text),
-    };
-    let tree = match parsed {
-        Ok(t) => t,
-        Err(e) => {
-            let kind = if source.format == Format::Json { "JSON" } else { "TOML" };
-            let mut error = ModelError::new(format!("{kind} syntax error: {}", e.message)).in_file(&name);
-            error.position = e.position;
-            return Err((error, Some(source)));
-        }
-    };
-    let value = match tree {
-        Value::Table(mut entries) if entries.len() == 1 && entries[0].0 == "criteria" => entries.remove(0).1,
-        other => other,
-    };
-    Ok((source, value))
+    match ringmain_core::format::criteria::read_file(text, source.format, model) {
+        Ok(table) => Ok((source, table)),
+        Err(e) => Err((e.in_file(&name), Some(source))),
+    }
 }
 
 /// The file whose criteria are in force for a note (the criteria file when one is given).
@@ -218,17 +207,17 @@ pub fn run(args: Args) -> ExitCode {
     };
 
     let mut criteria = Criteria::default();
-    if let Some(v) = &model.criteria {
-        if let Err(e) = criteria.apply(v, &model) {
+    if let Some(table) = &model.criteria {
+        if let Err(e) = criteria.apply(table, &model) {
             report_error(&e.in_file(&model_source.name), Some(&model_source));
             return exit(EXIT_INVALID);
         }
     }
     let mut criteria_source = None;
     if let Some(path) = &args.criteria {
-        match read_criteria_file(path) {
-            Ok((source, value)) => {
-                if let Err(e) = criteria.apply(&value, &model) {
+        match read_criteria_file(path, &model) {
+            Ok((source, table)) => {
+                if let Err(e) = criteria.apply(&table, &model) {
                     report_error(&e.in_file(&source.name), Some(&source));
                     return exit(EXIT_INVALID);
                 }
@@ -387,17 +376,17 @@ pub fn criteria_for(
 ) -> Result<Option<Criteria>, ()> {
     let mut criteria = Criteria::default();
     let mut any = false;
-    if let Some(v) = &model.criteria {
-        if let Err(e) = criteria.apply(v, model) {
+    if let Some(table) = &model.criteria {
+        if let Err(e) = criteria.apply(table, model) {
             report_error(&e.in_file(model_path.display().to_string()), None);
             return Err(());
         }
         any = true;
     }
     if let Some(path) = file {
-        match read_criteria_file(path) {
-            Ok((source, value)) => {
-                if let Err(e) = criteria.apply(&value, model) {
+        match read_criteria_file(path, model) {
+            Ok((source, table)) => {
+                if let Err(e) = criteria.apply(&table, model) {
                     report_error(&e.in_file(&source.name), Some(&source));
                     return Err(());
                 }

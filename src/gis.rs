@@ -56,11 +56,7 @@ fn unit_headloss_label(model: &Model) -> String {
 
 /// The criteria of the model's `[criteria]` table (none when absent).
 fn criteria(model: &Model) -> Result<Criteria, ModelError> {
-    let mut c = Criteria::default();
-    if let Some(v) = &model.criteria {
-        c.apply(v, model)?;
-    }
-    Ok(c)
+    Criteria::of_model(model)
 }
 
 /// Pressure head (m), velocity (m/s), unit head loss (m/m) per element → what it breaks.

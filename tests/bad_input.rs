@@ -273,6 +273,22 @@ fn bad_criteria_are_named_in_the_file_they_come_from() {
     let f = bad("inmodel.toml", &variant(BASE, "\n[[nodes]]", "\n[criteria]\nmax_pressure = \"eighty\"\n\n[[nodes]]"));
     names(&f, "inmodel.toml", "[criteria]", "max_pressure");
     snippet_line(&f, 4);
+    // It is read with the model, so every command that reads the model refuses it (here `solve`),
+    // and so is a source that names a junction.
+    for (name, table, key) in [
+        ("insolve.toml", "[criteria]\nmax_pressure = \"eighty\"\n", "max_pressure"),
+        ("junction-source.toml", "[criteria.source_capacity]\nJ1 = \"5 L/s\"\n", "source_capacity.J1"),
+    ] {
+        let path = d.join(name);
+        std::fs::write(&path, variant(BASE, "\n[[nodes]]", &format!("\n{table}\n[[nodes]]"))).unwrap();
+        let out =
+            Command::new(env!("CARGO_BIN_EXE_ringmain")).args(["solve", path.to_str().unwrap()]).output().unwrap();
+        let stderr = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(2), "{stderr}");
+        assert!(!stderr.contains("panicked"), "{stderr}");
+        let want = format!("{name}: [criteria]: key '{key}': ");
+        assert!(stderr.lines().next().unwrap_or("").contains(&want), "expected {want:?} in {stderr}");
+    }
 }
 
 #[test]

@@ -31,8 +31,8 @@ fn exercise(bytes: &[u8], format: Format) {
         Ok(mut model) => {
             model.options.max_iterations = model.options.max_iterations.min(25);
             let mut criteria = Criteria::default();
-            if let Some(v) = model.criteria.clone() {
-                if let Err(e) = criteria.apply(&v, &model) {
+            if let Some(table) = &model.criteria {
+                if let Err(e) = criteria.apply(table, &model) {
                     let _ = snippet::render(&e.in_file("input"), std::str::from_utf8(bytes).ok(), format, false);
                 }
             }

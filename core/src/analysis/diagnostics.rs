@@ -53,64 +53,7 @@ pub const PLAUSIBLE_HEAD_TOLERANCE: f64 = 1.0;
 /// Largest difference from the median elevation of a junction's neighbours, m (our own rule).
 pub const ELEVATION_OUTLIER: f64 = 100.0;
 
-/// The kinds of warning, each with a short code used in reports and in `fail_on_warnings`.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash)]
-#[non_exhaustive]
-pub enum DiagnosticKind {
-    /// A junction that no reservoir or tank reaches through any link, open or closed.
-    IsolatedJunction,
-    /// A junction with a demand that only closed links join to a source.
-    ClosedOffDemand,
-    /// Two pipes joining the same two nodes.
-    ParallelPipes,
-    /// Hazen–Williams C outside the plausible range.
-    RoughnessRange,
-    /// A diameter outside the plausible range.
-    DiameterRange,
-    /// An elevation far from its neighbours'.
-    ElevationOutlier,
-    /// A velocity above the plausible maximum in the solved base scenario.
-    HighVelocity,
-    /// A relative pump speed above the plausible maximum (an rpm typed as a relative speed?).
-    PumpSpeed,
-    /// A head tolerance above the plausible maximum.
-    HeadTolerance,
-}
-
-impl DiagnosticKind {
-    /// Every kind.
-    pub const ALL: &'static [DiagnosticKind] = &[
-        DiagnosticKind::IsolatedJunction,
-        DiagnosticKind::ClosedOffDemand,
-        DiagnosticKind::ParallelPipes,
-        DiagnosticKind::RoughnessRange,
-        DiagnosticKind::DiameterRange,
-        DiagnosticKind::ElevationOutlier,
-        DiagnosticKind::HighVelocity,
-        DiagnosticKind::PumpSpeed,
-        DiagnosticKind::HeadTolerance,
-    ];
-
-    /// The short code.
-    pub fn code(self) -> &'static str {
-        match self {
-            DiagnosticKind::IsolatedJunction => "isolated-junction",
-            DiagnosticKind::ClosedOffDemand => "closed-off-demand",
-            DiagnosticKind::ParallelPipes => "parallel-pipes",
-            DiagnosticKind::RoughnessRange => "roughness-range",
-            DiagnosticKind::DiameterRange => "diameter-range",
-            DiagnosticKind::ElevationOutlier => "elevation-outlier",
-            DiagnosticKind::HighVelocity => "high-velocity",
-            DiagnosticKind::PumpSpeed => "pump-speed",
-            DiagnosticKind::HeadTolerance => "head-tolerance",
-        }
-    }
-
-    /// Parses a code.
-    pub fn parse(code: &str) -> Option<Self> {
-        Self::ALL.iter().copied().find(|d| d.code() == code)
-    }
-}
+pub use crate::model::criteria::DiagnosticKind;
 
 /// One warning about one element.
 #[derive(Clone, Debug, PartialEq)]

@@ -6,11 +6,12 @@
 //!
 //! 1. [`schema`]: the kinds of element a file may hold, as enums matched exhaustively, and the
 //!    keys each accepts; the reader's unknown-key messages and suggestions take their lists from
-//!    here (the `[criteria]` table's keys stand with the criteria, in `analysis::criteria`).
+//!    here (the `[criteria]` table's too).
 //! 2. [`tree`]: the syntax tree, the same for TOML and JSON (syntax errors with line and column;
 //!    duplicate keys and absurd nesting refused).
 //! 3. [`read`]: the tree into a model, element by element, units converted into SI; every error
-//!    names the file, the element and the key.
+//!    names the file, the element and the key. [`criteria`] reads the `[criteria]` table (of a
+//!    model or of a criteria file) into its typed form.
 //! 4. [`one_pass`]: fast readers of the common shape of a file, straight from bytes, one element
 //!    at a time, adding each element through [`read`]'s element functions; they give up on
 //!    anything unusual.
@@ -20,6 +21,7 @@
 //!
 //! [`mod@write`] goes back: a model in its own units, keys in reading order, one element a line.
 
+pub mod criteria;
 pub mod one_pass;
 pub mod read;
 pub mod schema;

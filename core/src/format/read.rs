@@ -341,7 +341,8 @@ impl Settings {
             None => MapCoordinates::default(),
         };
         let patterns = top.array("patterns")?;
-        // Checked by `analysis::Criteria::apply`, which the commands that use it call.
+        // Read once the constituents are (a lowest residual names one); its sources are checked
+        // once the nodes are.
         let criteria = top.take("criteria");
         let quality = top.array("quality")?;
         Ok(Settings {
@@ -371,13 +372,15 @@ impl Settings {
         if let Some(v) = self.energy {
             model.time.energy = read_energy(v, &model.time)?;
         }
-        model.criteria = self.criteria;
         model.outflow.pressure_demand = self.pressure_demand;
         model.outflow.leakage = self.leakage;
         model.map.coordinates = self.map;
         for (i, v) in self.quality.into_iter().enumerate() {
             let c = read_constituent(i, v, &model.units, &model.time.quality)?;
             model.time.quality.constituents.push(c);
+        }
+        if let Some(v) = self.criteria {
+            model.criteria = Some(super::criteria::read_table(&v, &model)?);
         }
         Ok(model)
     }
@@ -422,6 +425,9 @@ pub(super) fn add_link_value(model: &mut Model, i: usize, value: Value) -> Resul
 /// The controls (they refer to nodes and links, so come last), then the whole-network checks.
 fn finish(mut model: Model, controls: Vec<Value>) -> Result<Model, ModelError> {
     resolve_sources(&mut model)?;
+    if let Some(criteria) = &model.criteria {
+        criteria.check(&model)?;
+    }
     for (i, v) in controls.into_iter().enumerate() {
         let control = read_control(i, v, &model)?;
         model.time.controls.push(control);

@@ -110,6 +110,29 @@ entry_kinds! {
     ],
 }
 
+/// The keys of a `[criteria]` table.
+pub const CRITERIA_KEYS: &[&str] = &[
+    "must_converge",
+    "all_demands_supplied",
+    "min_pressure",
+    "max_pressure",
+    "max_velocity",
+    "max_headloss",
+    "min_supply_margin",
+    "source_capacity",
+    "min_tank_reserve",
+    "min_delivered",
+    "fire_residual",
+    "fail_on_warnings",
+    "groups",
+    "max_age",
+    "min_residual",
+    "after",
+];
+
+/// The keys of one `[[criteria.groups]]` entry.
+pub const GROUP_KEYS: &[&str] = &["name", "zone", "ids", "min_pressure", "max_pressure", "min_fire_flow"];
+
 pub(crate) const TOP_KEYS: &[&str] = &[
     "title",
     "units",

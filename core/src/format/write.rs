@@ -467,9 +467,9 @@ impl ModelFile<'_> {
             site_elevation: o.site_elevation.map(|z| c.len(z)),
         };
         top.serialize_entry("hydraulics", &hydraulics)?;
-        // As written: only the commands that check criteria read them.
+        // Each value as written (a limit keeps its unit, "20 psi").
         if let Some(criteria) = &m.criteria {
-            top.serialize_entry("criteria", &Raw(criteria))?;
+            top.serialize_entry("criteria", &CriteriaOut(criteria))?;
         }
         let density = c.density;
         if let Some(pd) = &m.outflow.pressure_demand {
@@ -597,22 +597,83 @@ struct Simulation {
     quality_tolerance: Option<f64>,
 }
 
-/// A value of the file kept as written (the `[criteria]` table).
-struct Raw<'a>(&'a super::tree::Value);
+/// The `[criteria]` table, each value as it was written.
+struct CriteriaOut<'a>(&'a crate::model::criteria::CriteriaTable);
 
-impl Serialize for Raw<'_> {
+impl Serialize for CriteriaOut<'_> {
     fn serialize<S: Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
-        use super::tree::Value;
-        match self.0 {
-            Value::Bool(b) => s.serialize_bool(*b),
-            Value::Int(i) => s.serialize_i64(*i),
-            Value::Float(x) | Value::HugeInt(x) => s.serialize_f64(*x),
-            Value::Str(t) => s.serialize_str(t),
-            Value::Array(items) => s.collect_seq(items.iter().map(Raw)),
-            Value::Table(entries) => s.collect_map(entries.iter().map(|(k, v)| (k.as_ref(), Raw(v)))),
-            // A reader of this file refuses dates with the key that holds one.
-            Value::Date => Err(serde::ser::Error::custom("a date in [criteria] has no model-file form")),
+        use crate::model::criteria::{CriteriaEntry as E, GroupEntry as G, Limit, Written};
+        /// A value as written.
+        struct W<'a>(&'a Written);
+        impl Serialize for W<'_> {
+            fn serialize<S: Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+                match self.0 {
+                    Written::Bool(b) => s.serialize_bool(*b),
+                    Written::Number(x) => s.serialize_f64(*x),
+                    Written::Text(t) => s.serialize_str(t),
+                    Written::List(items) => s.collect_seq(items),
+                }
+            }
         }
+        /// Strings as written: one, or a list.
+        struct Strings<'a>(&'a [String], bool);
+        impl Serialize for Strings<'_> {
+            fn serialize<S: Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+                match self.0 {
+                    [one] if !self.1 => s.serialize_str(one),
+                    all => s.collect_seq(all),
+                }
+            }
+        }
+        /// A table of ids and limits.
+        struct ById<'a>(&'a [(String, Limit)]);
+        impl Serialize for ById<'_> {
+            fn serialize<S: Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+                s.collect_map(self.0.iter().map(|(id, l)| (id, W(&l.written))))
+            }
+        }
+        /// One group.
+        struct Group<'a>(&'a [G]);
+        impl Serialize for Group<'_> {
+            fn serialize<S: Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+                let mut map = s.serialize_map(Some(self.0.len()))?;
+                for entry in self.0 {
+                    match entry {
+                        G::Name(name) => map.serialize_entry(entry.key(), name)?,
+                        G::Zone(list, as_list) | G::Ids(list, as_list) => {
+                            map.serialize_entry(entry.key(), &Strings(list, *as_list))?
+                        }
+                        G::MinPressure(l) | G::MaxPressure(l) | G::MinFireFlow(l) => {
+                            map.serialize_entry(entry.key(), &W(&l.written))?
+                        }
+                    }
+                }
+                map.end()
+            }
+        }
+        let mut map = s.serialize_map(Some(self.0.entries.len()))?;
+        for entry in &self.0.entries {
+            let key = entry.key();
+            match entry {
+                E::MustConverge(b) | E::AllDemandsSupplied(b) => map.serialize_entry(key, b)?,
+                E::MinPressure(l)
+                | E::MaxPressure(l)
+                | E::MaxVelocity(l)
+                | E::MaxHeadloss(l)
+                | E::MinTankReserve(l)
+                | E::MinDelivered(l)
+                | E::FireResidual(l)
+                | E::MaxAge(l)
+                | E::After(l) => map.serialize_entry(key, &W(&l.written))?,
+                E::MinSupplyMargin(_, w) | E::FailOnWarnings(_, w) => map.serialize_entry(key, &W(w))?,
+                E::SourceCapacity(list) | E::MinResidual(list) => map.serialize_entry(key, &ById(list))?,
+                E::Groups(groups) => {
+                    let groups: Vec<Group<'_>> = groups.iter().map(|g| Group(&g.entries)).collect();
+                    map.serialize_entry(key, &groups)?
+                }
+            }
+        }
+        map.end()
     }
 }
 

@@ -11,6 +11,7 @@
 //! `#[non_exhaustive]`), read it in [`crate::format`] (its kind in `format::schema`), give it a head-loss law in `solve::links`, and
 //! write it in the reports. DEVELOPERS.md walks through the steps.
 
+pub mod criteria;
 mod index;
 pub mod outflow;
 pub mod time;
@@ -496,9 +497,9 @@ pub struct Model {
     pub options: HydraulicOptions,
     /// What only a simulation over time uses (patterns, controls, tank shapes, energy).
     pub time: time::TimeData,
-    /// The `[criteria]` table as written, unchecked; [`crate::analysis::Criteria::apply`]
-    /// reads it (only the commands that check criteria need it to be valid).
-    pub criteria: Option<crate::format::tree::Value>,
+    /// The `[criteria]` table, typed as read (see [`criteria`]); [`crate::analysis::Criteria::apply`]
+    /// turns it into the limits a check applies.
+    pub criteria: Option<criteria::CriteriaTable>,
     /// Named fittings of pipes and valves: link index → its list (set through
     /// [`Model::set_fittings`], which checks them). Kept beside the links rather than in them:
     /// few links list fittings, and every link of a large network stays small.
