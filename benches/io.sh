@@ -6,6 +6,7 @@
 #   cargo build --release
 #   benches/io.sh [WORK_DIR]          # 1e4, 1e5; add RINGMAIN_BENCH_MILLION=1 for 1e6
 #   PEER_PYTHON=/path/to/python benches/io.sh   # a Python with numpy, scipy, scikit-sparse
+#                                     # (benches/peer/setup.sh makes one, versions pinned)
 #   BASE_BIN=/path/to/older/ringmain benches/io.sh   # an earlier build, measured in the same run
 #   SERIES=0 benches/io.sh            # without the time series part
 #
