@@ -101,6 +101,9 @@ pub(super) struct SweepBase {
     /// Per node: the core unknown whose head change a tree junction (or the unknown itself)
     /// follows, or `NONE` (fixed heads, trees hanging off a fixed head).
     root_unknown: Vec<u32>,
+    /// Per node: whether it is an unknown of the matrix itself (its head is the iteration's; a
+    /// tree junction's is the base case's moved by its root's change).
+    is_unknown: Vec<bool>,
     /// Per unknown: the outflow it carries in the base case (its own and its trees').
     unknown_demand: Vec<f64>,
     /// Σ|Q| over the tree pipes in the base case.
@@ -304,6 +307,7 @@ impl Solver {
             child_trees,
             tree_above,
             beyond,
+            is_unknown: structure.unknown_of_node.iter().map(|&u| u != NONE).collect(),
             root_unknown,
             unknown_demand: self.unknown_demand.clone(),
             tree_flow_sum: self.tree_flow_sum,
@@ -502,16 +506,19 @@ impl Worker {
         if worst.is_nan() || worst > MASS_GATE * sweep.demand_scale {
             return false;
         }
-        // Heads: tree junctions follow their core root; the unknowns are the iteration's.
-        for (i, h) in out.head.iter_mut().enumerate() {
+        // Heads and pressures (one pass): tree junctions follow their core root; the unknowns
+        // are the iteration's. Every value finite where it is defined.
+        for (i, (h, p)) in out.head.iter_mut().zip(out.pressure.iter_mut()).enumerate() {
             let base_head = sweep.solution.head[i];
             *h = match sweep.root_unknown[i] {
                 NONE => base_head,
+                u if sweep.is_unknown[i] => s.unknown_head[u as usize],
                 u => base_head + (s.unknown_head[u as usize] - chord.head0[u as usize]),
             };
-        }
-        for (&node, &h) in structure.node_of_unknown.iter().zip(&s.unknown_head) {
-            out.head[node as usize] = h;
+            *p = *h - sweep.elevation[i];
+            if out.connected[i] && !p.is_finite() {
+                return false;
+            }
         }
         out.flow[k] = 0.0;
         out.link_state[k] = LinkState::Closed;
@@ -525,6 +532,7 @@ impl Worker {
                 let v = v as usize;
                 out.connected[v] = false;
                 out.head[v] = f64::NAN;
+                out.pressure[v] = f64::NAN;
                 self.touched_nodes.push(v as u32);
                 let children = sweep.child_start[v] as usize..sweep.child_start[v + 1] as usize;
                 for &c in &sweep.child_trees[children] {
@@ -559,6 +567,10 @@ impl Worker {
                         continue;
                     }
                     out.head[v] += shift;
+                    out.pressure[v] = out.head[v] - sweep.elevation[v];
+                    if !out.pressure[v].is_finite() {
+                        return false;
+                    }
                     let children = sweep.child_start[v] as usize..sweep.child_start[v + 1] as usize;
                     for &c in &sweep.child_trees[children] {
                         self.stack.push(structure.trees[c as usize].child);
@@ -566,21 +578,13 @@ impl Worker {
                 }
             }
         }
-        // Core flows.
-        for (i, c) in structure.core.iter().enumerate() {
-            let l = c.link as usize;
-            if l != k {
-                out.flow[l] = s.cq[i];
-            }
-        }
-        // Pressures, velocities and head differences; every value finite where it is defined.
-        for (i, (p, &h)) in out.pressure.iter_mut().zip(&out.head).enumerate() {
-            *p = h - sweep.elevation[i];
-            if out.connected[i] && !p.is_finite() {
-                return false;
-            }
-        }
+        // Core flows, velocities and head differences (one pass); every value finite where it
+        // is defined.
         for (l, &(a, b)) in structure.ends.iter().enumerate() {
+            let i = structure.core_position[l];
+            if i != NONE && l != k {
+                out.flow[l] = s.cq[i as usize];
+            }
             let q = out.flow[l];
             let area = sweep.area[l];
             out.velocity[l] = if area > 0.0 { q / area } else { f64::NAN };
