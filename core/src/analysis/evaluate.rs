@@ -160,11 +160,15 @@ fn pressure_checks(
     }
 }
 
-fn check_pressure(c: &mut CheckResult, id: &str, p: f64, is_min: bool, keep: usize) {
+/// Counts junction `id`'s pressure `p` against `c` and adds a finding where it fails. `id` is
+/// read only then: a sweep checks every junction of thousands of solutions, and reading each
+/// junction's id (its record) for the ones that pass cost more than the check.
+#[inline]
+fn check_pressure(c: &mut CheckResult, id: &crate::model::Id, p: f64, is_min: bool, keep: usize) {
     c.checked += 1;
     let excess = if is_min { c.limit - p } else { p - c.limit };
     if excess > 0.0 {
-        c.add(Finding::over(Element::Node(id.to_owned()), p, c.limit, excess), keep);
+        c.add(Finding::over(Element::Node(id.as_str().to_owned()), p, c.limit, excess), keep);
     }
 }
 

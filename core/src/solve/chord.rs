@@ -207,26 +207,7 @@ impl Solver {
     /// The right-hand side of a chord step from the current constants `c` (the matrix is the
     /// base case's).
     pub(super) fn fill_chord_rhs(&mut self) {
-        for (r, &d) in self.rhs.iter_mut().zip(&self.unknown_demand) {
-            *r = -d;
-        }
-        for (i, c) in self.structure.core.iter().enumerate() {
-            let mode = self.mode[i];
-            if mode & MODE_MASK == MODE_CLOSED {
-                continue;
-            }
-            if mode & FREE_FROM != 0 {
-                self.rhs[c.slots.from as usize] -= self.cc[i];
-            }
-            if mode & FREE_TO != 0 {
-                self.rhs[c.slots.to as usize] += self.cc[i];
-            }
-        }
-        for (r, &free) in self.rhs.iter_mut().zip(&self.free) {
-            if !free {
-                *r = 0.0;
-            }
-        }
+        chord_rhs(&self.structure, &self.mode, &self.cc, &self.unknown_demand, &self.free, &mut self.rhs);
     }
 
     /// Solves the chord step's system in place in `rhs`: with `y = L⁻¹ r` and `z = L⁻¹ u`,
@@ -372,6 +353,67 @@ impl Solver {
             }
         }
         (sum_dq / sum_q.max(self.demand_scale), residual)
+    }
+}
+
+/// The right-hand side of a chord step into `rhs`, from the links' modes and constants `c`, the
+/// unknowns' outflows and which unknowns are free (see [`Solver::fill_chord_rhs`]).
+pub(super) fn chord_rhs(
+    structure: &super::Structure,
+    mode: &[u8],
+    cc: &[f64],
+    unknown_demand: &[f64],
+    free: &[bool],
+    rhs: &mut [f64],
+) {
+    for (r, &d) in rhs.iter_mut().zip(unknown_demand) {
+        *r = -d;
+    }
+    for (i, c) in structure.core.iter().enumerate() {
+        let mode = mode[i];
+        if mode & MODE_MASK == MODE_CLOSED {
+            continue;
+        }
+        if mode & FREE_FROM != 0 {
+            rhs[c.slots.from as usize] -= cc[i];
+        }
+        if mode & FREE_TO != 0 {
+            rhs[c.slots.to as usize] += cc[i];
+        }
+    }
+    for (r, &free) in rhs.iter_mut().zip(free) {
+        if !free {
+            *r = 0.0;
+        }
+    }
+}
+
+/// Adds `value · L⁻¹ e_j` to `y` (`L` the factor with values `l`, `parent` its elimination
+/// tree): only the columns on the path from `j` to its root are touched. `scratch` holds zeros
+/// over the whole column range, and holds them again after the call.
+pub(super) fn forward_path(
+    structure: &super::Structure,
+    l: &[f64],
+    parent: &[u32],
+    y: &mut [f64],
+    scratch: &mut [f64],
+    j: usize,
+    value: f64,
+) {
+    let (col_ptr, row_idx) = (structure.symbolic.col_ptr(), structure.symbolic.row_idx());
+    scratch[j] = value;
+    let mut k = j as u32;
+    // Every row of column k lies on the path above it, so each is visited (and zeroed) later.
+    while k != NONE {
+        let ku = k as usize;
+        let (start, end) = (col_ptr[ku] as usize, col_ptr[ku + 1] as usize);
+        let v = scratch[ku] / l[start];
+        scratch[ku] = 0.0;
+        y[ku] += v;
+        for p in start + 1..end {
+            scratch[row_idx[p] as usize] -= l[p] * v;
+        }
+        k = parent[ku];
     }
 }
 
@@ -552,6 +594,14 @@ impl Correction {
         }
         self.t.resize(m, 0.0);
         true
+    }
+
+    /// `y ← y + scale · Z e_col`: the forward solve `L⁻¹ u` of link `col`'s columns, scaled.
+    pub(super) fn add_column(&self, col: usize, scale: f64, y: &mut [f64]) {
+        let r = self.rows.len();
+        for (&j, z) in self.rows.iter().zip(&self.z[col * r..(col + 1) * r]) {
+            y[j as usize] += scale * z;
+        }
     }
 
     /// `y ← y − Z C⁻¹ Zᵀ y` (between the two triangular solves).

@@ -145,7 +145,8 @@ impl Solution {
                 asked += d;
                 delivered += q;
                 let lack = d - q;
-                if lack > 1e-9 * d {
+                // None listed: nothing to collect or sort (a sweep asks for the totals only).
+                if count > 0 && lack > 1e-9 * d {
                     short.push((i, lack));
                 }
             }

@@ -44,7 +44,9 @@
 //! `tests/conditions.rs` compares every closure with a fresh solve of the closed model.
 
 use super::assemble::{link_ends, FREE_FROM, FREE_TO, MODE_CLOSED, MODE_LAW, MODE_MASK};
-use super::chord::{ChordBase, Correction, CHORD_CONTRACTION, CHORD_MARGIN, CHORD_STEPS};
+use super::chord::{
+    backward, chord_rhs, forward, forward_path, ChordBase, Correction, CHORD_CONTRACTION, CHORD_MARGIN, CHORD_STEPS,
+};
 use super::iterate::{FLOOR_HEAD_CHANGE, MASS_GATE};
 use super::status::{LinkState, StatusTracker};
 use super::structure::NONE;
@@ -99,6 +101,9 @@ pub(super) struct SweepBase {
     /// Per node: the core unknown whose head change a tree junction (or the unknown itself)
     /// follows, or `NONE` (fixed heads, trees hanging off a fixed head).
     root_unknown: Vec<u32>,
+    /// Per node: whether it is an unknown of the matrix itself (its head is the iteration's; a
+    /// tree junction's is the base case's moved by its root's change).
+    is_unknown: Vec<bool>,
     /// Per unknown: the outflow it carries in the base case (its own and its trees').
     unknown_demand: Vec<f64>,
     /// Σ|Q| over the tree pipes in the base case.
@@ -107,6 +112,12 @@ pub(super) struct SweepBase {
     demand_scale: f64,
     /// Per link: flow area, m² (zero for pumps).
     area: Vec<f64>,
+    /// `L⁻¹ r₀`, the forward solve of the base case's chord right-hand side `r₀`. A closure
+    /// changes `r₀` in one entry (a tree closure: its root's outflow) or along one link's
+    /// columns `u` (a core closure: the closed link's constant leaves the balance), so its first
+    /// step's forward solve is `y₀` plus a multiple of `L⁻¹ e_root` or `L⁻¹ u`, both non-zero
+    /// only on elimination-tree paths, instead of a forward solve over every column.
+    y0: Vec<f64>,
     /// Per node: elevation, m.
     elevation: Vec<f64>,
 }
@@ -125,6 +136,8 @@ struct Worker {
     /// Scratch: a tree walk's stack, and the tree pipes above a closed one.
     stack: Vec<u32>,
     above: Vec<u32>,
+    /// Scratch of the path solves (see [`forward_path`]): zeros between them.
+    path: Vec<f64>,
     /// The Woodbury correction of the current closure.
     correction: Correction,
     /// Closures settled on the base factor alone, with a Woodbury correction, with Newton's
@@ -281,7 +294,11 @@ impl Solver {
         // `solve_closures`).
         let mut solution = solution.clone();
         solution.warnings.clear();
+        let mut y0 = vec![0.0; structure.n];
+        chord_rhs(structure, &chord.mode, &chord.cc, &self.unknown_demand, &chord.free, &mut y0);
+        forward(structure, &chord.l_values, &mut y0, 0);
         Some(SweepBase {
+            y0,
             chord,
             solution,
             bridge,
@@ -290,6 +307,7 @@ impl Solver {
             child_trees,
             tree_above,
             beyond,
+            is_unknown: structure.unknown_of_node.iter().map(|&u| u != NONE).collect(),
             root_unknown,
             unknown_demand: self.unknown_demand.clone(),
             tree_flow_sum: self.tree_flow_sum,
@@ -343,6 +361,7 @@ impl Worker {
             touched_links: Vec::new(),
             stack: Vec::new(),
             above: Vec::new(),
+            path: Vec::new(),
             correction: Correction::default(),
             paths: [0; 4],
             at_once: 0,
@@ -417,7 +436,9 @@ impl Worker {
                 }
             }
         }
-        let answer = s.closure_steps(chord, &closure, &mut self.correction, options);
+        self.path.resize(structure.n, 0.0);
+        let answer =
+            s.closure_steps(sweep, &closure, (root, cut_demand), (&mut self.correction, &mut self.path), options);
         let written = match answer {
             Some(settled) => {
                 self.paths[usize::from(settled.rounds > 0) + 2 * usize::from(settled.newton)] += 1;
@@ -485,16 +506,19 @@ impl Worker {
         if worst.is_nan() || worst > MASS_GATE * sweep.demand_scale {
             return false;
         }
-        // Heads: tree junctions follow their core root; the unknowns are the iteration's.
-        for (i, h) in out.head.iter_mut().enumerate() {
+        // Heads and pressures (one pass): tree junctions follow their core root; the unknowns
+        // are the iteration's. Every value finite where it is defined.
+        for (i, (h, p)) in out.head.iter_mut().zip(out.pressure.iter_mut()).enumerate() {
             let base_head = sweep.solution.head[i];
             *h = match sweep.root_unknown[i] {
                 NONE => base_head,
+                u if sweep.is_unknown[i] => s.unknown_head[u as usize],
                 u => base_head + (s.unknown_head[u as usize] - chord.head0[u as usize]),
             };
-        }
-        for (&node, &h) in structure.node_of_unknown.iter().zip(&s.unknown_head) {
-            out.head[node as usize] = h;
+            *p = *h - sweep.elevation[i];
+            if out.connected[i] && !p.is_finite() {
+                return false;
+            }
         }
         out.flow[k] = 0.0;
         out.link_state[k] = LinkState::Closed;
@@ -508,6 +532,7 @@ impl Worker {
                 let v = v as usize;
                 out.connected[v] = false;
                 out.head[v] = f64::NAN;
+                out.pressure[v] = f64::NAN;
                 self.touched_nodes.push(v as u32);
                 let children = sweep.child_start[v] as usize..sweep.child_start[v + 1] as usize;
                 for &c in &sweep.child_trees[children] {
@@ -542,6 +567,10 @@ impl Worker {
                         continue;
                     }
                     out.head[v] += shift;
+                    out.pressure[v] = out.head[v] - sweep.elevation[v];
+                    if !out.pressure[v].is_finite() {
+                        return false;
+                    }
                     let children = sweep.child_start[v] as usize..sweep.child_start[v + 1] as usize;
                     for &c in &sweep.child_trees[children] {
                         self.stack.push(structure.trees[c as usize].child);
@@ -549,21 +578,13 @@ impl Worker {
                 }
             }
         }
-        // Core flows.
-        for (i, c) in structure.core.iter().enumerate() {
-            let l = c.link as usize;
-            if l != k {
-                out.flow[l] = s.cq[i];
-            }
-        }
-        // Pressures, velocities and head differences; every value finite where it is defined.
-        for (i, (p, &h)) in out.pressure.iter_mut().zip(&out.head).enumerate() {
-            *p = h - sweep.elevation[i];
-            if out.connected[i] && !p.is_finite() {
-                return false;
-            }
-        }
+        // Core flows, velocities and head differences (one pass); every value finite where it
+        // is defined.
         for (l, &(a, b)) in structure.ends.iter().enumerate() {
+            let i = structure.core_position[l];
+            if i != NONE && l != k {
+                out.flow[l] = s.cq[i as usize];
+            }
             let q = out.flow[l];
             let area = sweep.area[l];
             out.velocity[l] = if area > 0.0 { q / area } else { f64::NAN };
@@ -612,22 +633,42 @@ impl Solver {
     /// The chord steps of one closure from the base case's point (its change of the equations
     /// already made): `(iterations, last head change, last flow change)`, or `None` when they do
     /// not settle. Every conductance the correction changed is the base case's again after it.
+    ///
+    /// `(root, cut)` is a tree closure's core root (or `NONE`) and the outflow it no longer
+    /// carries; `path` is scratch for [`forward_path`] (zeros).
     fn closure_steps(
         &mut self,
-        chord: &ChordBase,
+        sweep: &SweepBase,
         closure: &Closure,
-        correction: &mut Correction,
+        (root, cut): (u32, f64),
+        (correction, path): (&mut Correction, &mut [f64]),
         options: &SolveOptions,
     ) -> Option<Settled> {
+        let chord = &*sweep.chord;
         self.cq.copy_from_slice(&chord.q0);
         self.cc.copy_from_slice(&chord.cc);
         self.unknown_head.copy_from_slice(&chord.head0);
-        self.fill_chord_rhs();
         correction.clear();
         if let Closure::Core(i) = *closure {
             correction.push(i, -chord.cp[i]);
         }
         let result = if correction.build(&self.structure, chord, &chord.mode) {
+            // The first step's forward solve (see `SweepBase::y0`): the closed link's constant
+            // leaves the balances of its free ends, or the root carries `cut` less.
+            self.rhs.copy_from_slice(&sweep.y0);
+            match *closure {
+                Closure::Core(i) => correction.add_column(0, chord.cc[i], &mut self.rhs),
+                Closure::Tree(_) if root != NONE && self.free[root as usize] => forward_path(
+                    &self.structure,
+                    &chord.l_values,
+                    &chord.parent,
+                    &mut self.rhs,
+                    path,
+                    root as usize,
+                    cut,
+                ),
+                Closure::Tree(_) => {}
+            }
             self.chord_loop(chord, closure, correction, options)
         } else {
             None
@@ -671,6 +712,10 @@ impl Solver {
             iterations += 1;
             if own {
                 self.own_factor_solve();
+            } else if iterations == 1 {
+                // Its forward solve is made already (`closure_steps`).
+                correction.apply(&mut self.rhs);
+                backward(&self.structure, &chord.l_values, &mut self.rhs);
             } else {
                 self.correction_solve(chord, correction);
             }
@@ -1022,6 +1067,71 @@ mod tests {
             w.at_once,
             w.own_chord
         );
+    }
+
+    /// The first step's forward solve from `SweepBase::y0` and a path solve equals the forward
+    /// solve of the closure's whole right-hand side, for every core and tree closure of a
+    /// generated network (invented: see `crate::generate`), to round-off.
+    #[test]
+    fn the_first_forward_solve_from_the_base_case_equals_the_whole_one() {
+        let m = generate(&NetworkSpec::new(400, 5)).unwrap();
+        let conditions = Conditions::from_model(&m);
+        let options = SolveOptions::from_model(&m);
+        let mut base = Solver::new(&m).unwrap();
+        let solution = base.solve(&m, &conditions, &options).unwrap();
+        let sweep = base.sweep_base(&m, &conditions, &solution).expect("the fast path serves this base case");
+        let chord = &*sweep.chord;
+        let structure = base.structure.clone();
+        let mut s = base.clone();
+        s.reset_from(&base, &sweep);
+        s.cc.copy_from_slice(&chord.cc);
+        let mut path = vec![0.0; structure.n];
+        let mut correction = Correction::default();
+        let (mut cores, mut trees) = (0, 0);
+        for k in 0..m.links().len() {
+            let mut want = vec![0.0; structure.n];
+            let mut got = sweep.y0.clone();
+            match (structure.core_position[k], sweep.tree_index[k]) {
+                (NONE, NONE) => continue,
+                (NONE, t) => {
+                    let root = sweep.root_unknown[structure.trees[t as usize].parent as usize];
+                    if root == NONE {
+                        continue;
+                    }
+                    let cut = sweep.beyond[t as usize];
+                    s.unknown_demand[root as usize] -= cut;
+                    chord_rhs(&structure, &s.mode, &s.cc, &s.unknown_demand, &s.free, &mut want);
+                    s.unknown_demand[root as usize] += cut;
+                    forward_path(&structure, &chord.l_values, &chord.parent, &mut got, &mut path, root as usize, cut);
+                    trees += 1;
+                }
+                (i, _) => {
+                    let i = i as usize;
+                    if chord.mode[i] & MODE_MASK != MODE_LAW {
+                        continue;
+                    }
+                    s.mode[i] = MODE_CLOSED;
+                    chord_rhs(&structure, &s.mode, &s.cc, &s.unknown_demand, &s.free, &mut want);
+                    s.mode[i] = chord.mode[i];
+                    correction.clear();
+                    correction.push(i, -chord.cp[i]);
+                    if !correction.build(&structure, chord, &chord.mode) {
+                        continue;
+                    }
+                    correction.add_column(0, chord.cc[i], &mut got);
+                    cores += 1;
+                }
+            }
+            forward(&structure, &chord.l_values, &mut want, 0);
+            // The right-hand side's entries are sums of link constants of the size of the
+            // flows that cancel to round-off: their round-off is relative to the flows.
+            let scale = chord.cc.iter().fold(0.0f64, |a, x| a.max(x.abs()));
+            for (j, (a, b)) in got.iter().zip(&want).enumerate() {
+                assert!((a - b).abs() <= 1e-12 * scale, "link {k}, column {j}: {a} vs {b}");
+            }
+            assert!(path.iter().all(|&x| x == 0.0), "link {k}: the scratch is zeros again");
+        }
+        assert!(cores > 100 && trees > 20, "{cores} core and {trees} tree closures");
     }
 
     /// Tarjan's bridges on small graphs worked by hand: a triangle with a tail, parallel links
