@@ -21,9 +21,10 @@
 //! parser. Both give the result serde_json gives with its `float_roundtrip` feature (enabled in
 //! this workspace for that reason) and the `toml` crate gives.
 //!
-//! A large JSON text is read by two threads (see `json_elements`): this one parses, a helper
-//! adds the elements to the model in the order of the file, so that the model, and every
-//! message of the reader it falls back to, is the same as one thread's.
+//! A large JSON text is read by three threads (see `json_elements`): this one and a helper
+//! parse the two halves of each round of text, a third adds the elements to the model in the
+//! order of the file, so that the model, and every message of the reader it falls back to, is
+//! the same as one thread's.
 
 use super::read;
 use super::tree::{self, Value, MAX_DEPTH};
@@ -658,11 +659,11 @@ fn json_model(feed: &mut impl Feed) -> Option<Model> {
 
 /// The `nodes` or `links` array, element by element into the model.
 ///
-/// In a large text two threads share the work: this one parses the text into elements (the
+/// In a large text threads share the work: this one parses the text into elements (the
 /// commonest ones, a plain junction or a plain pipe, straight into the model's structs; any
-/// other into a value tree), a helper adds them to the model in batches (the id index, the
-/// links' ends, the model's checks). At a million elements the two halves take about as long
-/// as each other. Anything either side gives up on stops both. A small text is read on this
+/// other into a value tree), with a second parsing the latter half of each round of text
+/// ([`parse_elements_split`]), and a helper adds them to the model in batches (the id index,
+/// the links' ends, the model's checks). Anything any of them gives up on stops them all. A small text is read on this
 /// thread alone, the same way.
 fn json_elements(feed: &mut impl Feed, model: &mut Model, nodes: bool) -> Option<()> {
     feed.step(|c| c.expect(b'['))?;
