@@ -35,10 +35,10 @@
 //! light one ([`Solver::solve_holding_light`]): no device logic, no full solution (only the
 //! pressures the analysis reads), the border from two sparse forward solves, chord steps on
 //! the last factor near the answer, and the draw's step taken along the Hazen–Williams power;
-//! each held solve may end once its draw's step is a tenth of [`FLOW_TOLERANCE`] and its heads
-//! converge faster than linearly. The hydrant's own limit then needs nothing more (its pressures
-//! serve only to estimate which junction the system limit holds first). For the system limit the
-//! heads are then known to within their last change: where that error could change the decision
+//! each held solve may end once its draw's step is a tenth of [`FLOW_TOLERANCE`] and its heads'
+//! change is at most half that of the step before. The hydrant's own limit then needs nothing
+//! more (its pressures serve only to estimate which junction the system limit holds first). For the system limit the
+//! heads are then known to within ten times their last change: where that error could change the decision
 //! (another protected pressure within it of the held one, or of the residual less a tie
 //! allowance), the held solve goes on from there to the solver's own tolerances. Elsewhere, and
 //! wherever a light solve fails, the general held solve answers.
