@@ -21,10 +21,9 @@
 //! parser. Both give the result serde_json gives with its `float_roundtrip` feature (enabled in
 //! this workspace for that reason) and the `toml` crate gives.
 //!
-//! A large JSON text is read by three threads (see `json_elements`): this one and a helper
-//! parse the two halves of each round of text, a third adds the elements to the model in the
-//! order of the file, so that the model, and every message of the reader it falls back to, is
-//! the same as one thread's.
+//! A large JSON text is read by two threads (see `json_elements`): this one parses, a helper
+//! adds the elements to the model in the order of the file, so that the model, and every
+//! message of the reader it falls back to, is the same as one thread's.
 
 use super::read;
 use super::tree::{self, Value, MAX_DEPTH};
@@ -434,15 +433,6 @@ trait Feed {
 
     /// Whether the text is large enough to be read by two threads (see [`json_elements`]).
     fn large(&self) -> bool;
-
-    /// The bytes from the current position, at least `bytes` of them unless the text ends
-    /// sooner (read ahead as needed), cut at `bytes`: `(b, i, end)` with the position `i` in
-    /// `b` and `end` whether `b` ends where the text ends. `None`: give up (a read failed, or
-    /// the size limit).
-    fn round(&mut self, bytes: usize) -> Option<(&[u8], usize, bool)>;
-
-    /// Moves the position to `i` (an index into the last [`Feed::round`]'s bytes).
-    fn seek(&mut self, i: usize);
 }
 
 struct SliceFeed<'a> {
@@ -460,15 +450,6 @@ impl Feed for SliceFeed<'_> {
         let v = f(&mut c).ok()?;
         self.i = c.i;
         Some(v)
-    }
-
-    fn round(&mut self, bytes: usize) -> Option<(&[u8], usize, bool)> {
-        let cut = self.b.len().min(self.i.saturating_add(bytes));
-        Some((&self.b[..cut], self.i, cut == self.b.len()))
-    }
-
-    fn seek(&mut self, i: usize) {
-        self.i = i;
     }
 }
 
@@ -541,18 +522,6 @@ impl<R: Read> Feed for ReadFeed<R> {
                 Err(Stop::More) => self.refill()?,
             }
         }
-    }
-
-    fn round(&mut self, bytes: usize) -> Option<(&[u8], usize, bool)> {
-        while !self.end && self.len - self.i < bytes {
-            self.refill()?;
-        }
-        let cut = self.len.min(self.i.saturating_add(bytes));
-        Some((&self.buf[..cut], self.i, self.end && cut == self.len))
-    }
-
-    fn seek(&mut self, i: usize) {
-        self.i = i;
     }
 }
 
@@ -659,11 +628,11 @@ fn json_model(feed: &mut impl Feed) -> Option<Model> {
 
 /// The `nodes` or `links` array, element by element into the model.
 ///
-/// In a large text threads share the work: this one parses the text into elements (the
+/// In a large text two threads share the work: this one parses the text into elements (the
 /// commonest ones, a plain junction or a plain pipe, straight into the model's structs; any
-/// other into a value tree), with a second parsing the latter half of each round of text
-/// ([`parse_elements_split`]), and a helper adds them to the model in batches (the id index,
-/// the links' ends, the model's checks). Anything any of them gives up on stops them all. A small text is read on this
+/// other into a value tree), a helper adds them to the model in batches (the id index, the
+/// links' ends, the model's checks). At a million elements the two halves take about as long
+/// as each other. Anything either side gives up on stops both. A small text is read on this
 /// thread alone, the same way.
 fn json_elements(feed: &mut impl Feed, model: &mut Model, nodes: bool) -> Option<()> {
     feed.step(|c| c.expect(b'['))?;
@@ -686,7 +655,7 @@ fn json_elements(feed: &mut impl Feed, model: &mut Model, nodes: bool) -> Option
     let (send, receive) = std::sync::mpsc::sync_channel::<Vec<Parsed>>(BATCHES_IN_FLIGHT);
     std::thread::scope(|scope| {
         let builder = scope.spawn(move || receive.into_iter().try_for_each(|batch| adder.add(model, batch)));
-        let parsed = parse_elements_split(feed, &reading, nodes, |batch| send.send(batch).ok());
+        let parsed = parse_elements(feed, &reading, nodes, |batch| send.send(batch).ok());
         drop(send);
         let built = builder.join().ok().flatten();
         parsed.and(built)
@@ -707,7 +676,6 @@ struct Reading {
 }
 
 /// An element as parsed, before it is added to the model.
-#[cfg_attr(test, derive(Debug, PartialEq))]
 enum Parsed {
     Node(Node),
     /// A plain pipe and the ids of its ends (the link's `from` and `to` are set on adding).
@@ -727,193 +695,36 @@ fn parse_elements(
     let mut batch = Vec::with_capacity(BATCH);
     let mut layout = Layout::default();
     loop {
-        let (element, more) = feed.step(|c| element(c, reading, nodes, &mut layout))?;
+        let direct = feed.step(|c| {
+            let start = c.i;
+            // Filled in place: the table of values is some 360 bytes, not worth a copy.
+            let mut flat = FlatElement { values: [None; FLAT_KEYS.len() + 2] };
+            if !flat_element(c, &mut flat, &mut layout)? {
+                c.i = start;
+                return Ok(None);
+            }
+            let element = if nodes {
+                plain_junction(&flat, &reading.units).map(Parsed::Node)
+            } else {
+                plain_pipe(&flat, &reading.units, reading.headloss)
+                    .map(|(link, from, to)| Parsed::Pipe(link, from.into(), to.into()))
+            };
+            let Some(element) = element else {
+                c.i = start;
+                return Ok(None);
+            };
+            Ok(Some((element, after_element(c)?)))
+        })?;
+        let (element, more) = match direct {
+            Some(found) => found,
+            None => feed.step(|c| Ok((Parsed::Value(json_value(c, 2)?), after_element(c)?)))?,
+        };
         batch.push(element);
         if batch.len() == BATCH || !more {
             send(std::mem::replace(&mut batch, Vec::with_capacity(BATCH)))?;
         }
         if !more {
             return Some(());
-        }
-    }
-}
-
-/// One element of the array at the cursor and what follows it (`true`: more elements follow).
-/// A plain junction or pipe is read straight into the model's structs, anything else as its
-/// value tree.
-fn element(c: &mut Cursor, reading: &Reading, nodes: bool, layout: &mut Layout) -> Step<(Parsed, bool)> {
-    let start = c.i;
-    // Filled in place: the table of values is some 360 bytes, not worth a copy.
-    let mut flat = FlatElement { values: [None; FLAT_KEYS.len() + 2] };
-    if flat_element(c, &mut flat, layout)? {
-        let element = if nodes {
-            plain_junction(&flat, &reading.units).map(Parsed::Node)
-        } else {
-            plain_pipe(&flat, &reading.units, reading.headloss)
-                .map(|(link, from, to)| Parsed::Pipe(link, from.into(), to.into()))
-        };
-        if let Some(element) = element {
-            return Ok((element, after_element(c)?));
-        }
-    }
-    c.i = start;
-    Ok((Parsed::Value(json_value(c, 2)?), after_element(c)?))
-}
-
-/// Bytes of text parsed per round of [`parse_elements_split`] (both halves together).
-const ROUND: usize = 4 << 20;
-
-/// A round shorter than this is parsed by one thread.
-const SPLIT_ABOVE: usize = 256 << 10;
-
-/// How a part of a round ended (see [`parse_part`]).
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
-enum PartEnd {
-    /// The next element starts exactly at the part's stop.
-    AtStop,
-    /// An element ran past the stop (the stop was not where an element starts).
-    PastStop,
-    /// The array's `]` was read.
-    ArrayEnd,
-    /// The round's bytes end inside the next element (read more to go on).
-    More,
-    /// Something this reader does not take.
-    GiveUp,
-}
-
-/// Parses elements from the cursor until the next one would start at or after `stop` (or the
-/// array ends), into `out`. The cursor is left where the next element starts (after any white
-/// space when the part stopped at `stop`).
-fn parse_part(
-    c: &mut Cursor,
-    stop: usize,
-    reading: &Reading,
-    nodes: bool,
-    layout: &mut Layout,
-    out: &mut Vec<Parsed>,
-) -> PartEnd {
-    loop {
-        let start = c.i;
-        if stop != usize::MAX {
-            match c.json_space() {
-                Ok(_) if c.i == stop => return PartEnd::AtStop,
-                Ok(_) if c.i > stop => return PartEnd::PastStop,
-                Ok(_) => {}
-                Err(Stop::More) => {
-                    c.i = start;
-                    return PartEnd::More;
-                }
-                Err(Stop::GiveUp) => return PartEnd::GiveUp,
-            }
-        }
-        match element(c, reading, nodes, layout) {
-            Ok((parsed, more)) => {
-                out.push(parsed);
-                if !more {
-                    return PartEnd::ArrayEnd;
-                }
-            }
-            Err(Stop::More) => {
-                c.i = start;
-                return PartEnd::More;
-            }
-            Err(Stop::GiveUp) => return PartEnd::GiveUp,
-        }
-    }
-}
-
-/// Where the second half of a round may start: the first `{` that begins a line at or after
-/// `from` (after a line feed and white space only), within 64 KiB; `None` if there is none. In
-/// valid JSON a line feed is never inside a string, so the `{` is a token; whether it starts an
-/// element of the array (rather than a table inside one) is known only when the first half
-/// reaches it ([`PartEnd::AtStop`]).
-fn split_point(b: &[u8], from: usize) -> Option<usize> {
-    let end = b.len().min(from + (64 << 10));
-    let mut j = from;
-    while j < end {
-        let newline = j + b[j..end].iter().position(|&x| x == b'\n')?;
-        let mut k = newline + 1;
-        while k < end && matches!(b[k], b' ' | b'\t' | b'\r') {
-            k += 1;
-        }
-        if k < end && b[k] == b'{' {
-            return Some(k);
-        }
-        j = k;
-    }
-    None
-}
-
-/// [`parse_elements`] on two threads: the text is taken in rounds of [`ROUND`] bytes, each cut
-/// in two at a line that starts with `{` ([`split_point`]); this thread parses the first half
-/// while a helper parses the second. The helper's elements are kept only when this thread's
-/// last element ends exactly where the helper began, so that the elements, in the file's
-/// order, and the first thing given up on, are those of one thread reading from the start:
-/// otherwise the helper's work is dropped and this thread goes on from where it is. Anything
-/// given up on in a kept half gives up the whole reading (the whole-text reader then says
-/// what and where).
-fn parse_elements_split(
-    feed: &mut impl Feed,
-    reading: &Reading,
-    nodes: bool,
-    mut send: impl FnMut(Vec<Parsed>) -> Option<()>,
-) -> Option<()> {
-    let mut layout = Layout::default();
-    let mut helper_layout = Layout::default();
-    loop {
-        let (b, i, end) = feed.round(ROUND)?;
-        let split = if b.len() - i >= SPLIT_ABOVE { split_point(b, i + (b.len() - i) / 2) } else { None };
-        let mut first = Vec::with_capacity(BATCH);
-        let mut c = Cursor { b, i, end };
-        let (mine, helper) = match split {
-            None => (parse_part(&mut c, usize::MAX, reading, nodes, &mut layout, &mut first), None),
-            Some(split) => std::thread::scope(|scope| {
-                let helper_layout = &mut helper_layout;
-                let helper = scope.spawn(move || {
-                    let mut second = Vec::with_capacity(BATCH);
-                    let mut c = Cursor { b, i: split, end };
-                    let ended = parse_part(&mut c, usize::MAX, reading, nodes, helper_layout, &mut second);
-                    (ended, c.i, second)
-                });
-                let mine = parse_part(&mut c, split, reading, nodes, &mut layout, &mut first);
-                // A panic of the helper's parsing is a bug; giving up falls back to the
-                // whole-text reader, which then decides.
-                (mine, helper.join().ok())
-            }),
-        };
-        let progressed = c.i > i || !first.is_empty();
-        let position = c.i;
-        if !first.is_empty() {
-            send(first)?;
-        }
-        match (mine, helper) {
-            (PartEnd::GiveUp, _) => return None,
-            (PartEnd::ArrayEnd, _) => {
-                feed.seek(position);
-                return Some(());
-            }
-            (PartEnd::AtStop, Some((ended, after, second))) => {
-                if ended == PartEnd::GiveUp {
-                    return None;
-                }
-                if !second.is_empty() {
-                    send(second)?;
-                }
-                feed.seek(after);
-                if ended == PartEnd::ArrayEnd {
-                    return Some(());
-                }
-            }
-            (PartEnd::More, _) if !progressed => {
-                // An element longer than a round: read it on its own (the feed reads on).
-                feed.seek(position);
-                let (element, more) = feed.step(|c| element(c, reading, nodes, &mut layout))?;
-                send(vec![element])?;
-                if !more {
-                    return Some(());
-                }
-            }
-            _ => feed.seek(position),
         }
     }
 }
@@ -1812,74 +1623,6 @@ mod tests {
             assert!(json_from_chunks(edit.as_bytes(), u64::MAX, 64 << 10).is_none(), "{what}");
             assert!(read_tree(&edit, Format::Json).is_err(), "{what}");
         }
-    }
-
-    /// The elements of an array (the text after its `[`) as parsed by one thread and by two
-    /// ([`parse_elements_split`]): the same elements in the same order, or both give up.
-    fn parsed_both_ways(text: &str, nodes: bool) -> (Option<Vec<Parsed>>, Option<Vec<Parsed>>) {
-        let reading = Reading { units: crate::units::UnitSystem::default(), headloss: HeadLossLaw::HazenWilliams };
-        let mut one = Vec::new();
-        let one = parse_elements(&mut SliceFeed { b: text.as_bytes(), i: 0 }, &reading, nodes, |batch| {
-            one.extend(batch);
-            Some(())
-        })
-        .map(|()| one);
-        let mut two = Vec::new();
-        let two = parse_elements_split(&mut SliceFeed { b: text.as_bytes(), i: 0 }, &reading, nodes, |batch| {
-            two.extend(batch);
-            Some(())
-        })
-        .map(|()| two);
-        (one, two)
-    }
-
-    /// Parsing a round's second half on a helper thread changes nothing: where the cut falls
-    /// on a table inside an element (a `{` that starts a line), the helper's work is dropped,
-    /// even when it gave up there; a give-up in a kept half gives up, as one thread does.
-    #[test]
-    fn elements_parsed_on_two_threads_are_those_of_one() {
-        let mut cuts = [0usize; 2];
-        for lead in 0..12 {
-            for nodes in [true, false] {
-                // Flat elements, and every third one with a table on a line of its own.
-                let mut text = " ".repeat(lead);
-                let count = 12_000 + 7 * lead;
-                for k in 1..=count {
-                    if nodes {
-                        text.push_str(&format!(
-                            "{{\"id\": \"J{k}\", \"kind\": \"junction\", \"elevation\": {}.25",
-                            k % 97
-                        ));
-                    } else {
-                        text.push_str(&format!(
-                            "{{\"id\": \"P{k}\", \"kind\": \"pipe\", \"from\": \"J{k}\", \"to\": \"J{}\", \"length\": 12.5, \"diameter\": 150.0, \"roughness\": 130.0",
-                            k + 1
-                        ));
-                    }
-                    if k % 3 == 0 {
-                        text.push_str(",\n  \"tag\":\n{\"a\": [1, 2], \"b\": {\"c\": true}}");
-                    }
-                    text.push_str(if k == count { "}\n]" } else { "},\n" });
-                }
-                let (one, two) = parsed_both_ways(&text, nodes);
-                let one = one.expect("one thread reads the array");
-                assert_eq!(one.len(), count);
-                assert_eq!(Some(&one), two.as_ref(), "lead {lead}, nodes {nodes}");
-                // Whether this text's cut fell on an element or inside one.
-                let half = text.len() / 2;
-                let cut = split_point(text.as_bytes(), half).unwrap();
-                cuts[usize::from(text[..cut].trim_end().ends_with(','))] += 1;
-                // Something given up on in either half, or at the end.
-                let last = text.rfind("\"id\"").unwrap();
-                for at in [text.len() / 4, 3 * text.len() / 4, last] {
-                    let at = at + text[at..].find("\"id\"").unwrap();
-                    let broken = format!("{}\"i\\d\"{}", &text[..at], &text[at + 4..]);
-                    let (one, two) = parsed_both_ways(&broken, nodes);
-                    assert!(one.is_none() && two.is_none(), "lead {lead}, nodes {nodes}, at {at}");
-                }
-            }
-        }
-        assert!(cuts.iter().all(|&n| n > 0), "cuts at elements and inside them: {cuts:?}");
     }
 
     /// `count` decimals of 1 to `max_digits` digits from a fixed seed: a sign one time in three,
