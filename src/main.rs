@@ -557,6 +557,7 @@ fn plausibility_warnings(model: &Model) -> Vec<ringmain_core::solve::Warning> {
     ringmain_core::analysis::plausibility(model)
         .into_iter()
         .map(|d| ringmain_core::solve::Warning {
+            kind: ringmain_core::solve::WarningKind::Model(d.kind),
             element: Some(d.element),
             message: match d.key {
                 Some(key) => format!("key '{key}': {}", d.message),

@@ -108,7 +108,7 @@ pub use batch::Scenario;
 pub use conditions::Conditions;
 pub use hold::{HeldHead, LightBase};
 pub use nodes::{NodeLaw, Relation};
-pub use solution::{OutflowSummary, PumpResult, Solution, Warning};
+pub use solution::{OutflowSummary, PumpResult, Solution, Warning, WarningKind};
 pub use timings::Timings;
 
 use crate::error::{ModelError, SolveError};

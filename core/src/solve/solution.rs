@@ -28,10 +28,38 @@ pub struct PumpResult {
 /// Something an engineer should look at in a solved network.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Warning {
+    /// What kind of warning (for programs; the message is for people).
+    pub kind: WarningKind,
     /// The element concerned.
     pub element: Option<Element>,
     /// What to look at.
     pub message: String,
+}
+
+/// The kinds of [`Warning`], each with a short code.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash)]
+#[non_exhaustive]
+pub enum WarningKind {
+    /// A node cut off from every reservoir and tank by closed links.
+    CutOff,
+    /// A junction drawing a fixed demand at a negative pressure.
+    NegativePressure,
+    /// A pump running past the end of its head curve.
+    PumpPastCurve,
+    /// A model warning of this kind (the plausibility checks of `analysis::diagnostics`).
+    Model(crate::model::criteria::DiagnosticKind),
+}
+
+impl WarningKind {
+    /// The short code (a model warning's is its own, as in `fail_on_warnings`).
+    pub fn code(self) -> &'static str {
+        match self {
+            WarningKind::CutOff => "cut-off",
+            WarningKind::NegativePressure => "negative-pressure",
+            WarningKind::PumpPastCurve => "pump-past-curve",
+            WarningKind::Model(kind) => kind.code(),
+        }
+    }
 }
 
 /// A solved snapshot, SI units (pressures as pressure head in m of the model's water).
@@ -309,12 +337,17 @@ impl Solver {
             } else {
                 "cut off from every reservoir and tank by closed links; it has no head".to_owned()
             };
-            warnings.push(Warning { element: Some(Element::Node(nodes[i].id.to_string())), message });
+            warnings.push(Warning {
+                kind: WarningKind::CutOff,
+                element: Some(Element::Node(nodes[i].id.to_string())),
+                message,
+            });
         }
         for (i, n) in nodes.iter().enumerate() {
             // Where the outflow follows pressure, a negative pressure delivers nothing, as it should.
             if n.fixed_head().is_none() && self.connected[i] && pressure[i] < 0.0 && self.demand[i] > 0.0 {
                 warnings.push(Warning {
+                    kind: WarningKind::NegativePressure,
                     element: Some(Element::Node(n.id.to_string())),
                     message: "negative pressure: the demand cannot really be delivered at this head (consider a \
                               pressure-driven analysis)"
@@ -325,6 +358,7 @@ impl Solver {
         for r in &pumps {
             if r.beyond_curve {
                 warnings.push(Warning {
+                    kind: WarningKind::PumpPastCurve,
                     element: Some(Element::Link(links[r.link].id.to_string())),
                     message: "runs past the end of its head curve (it adds no head and acts as a resistance)".into(),
                 });
