@@ -42,8 +42,10 @@
 //! ```
 
 use super::glob_match;
-use crate::error::{Element, ModelError};
-use crate::model::criteria::{source_node, substance, CriteriaEntry, CriteriaTable, GroupEntry, GroupTable};
+use crate::error::ModelError;
+use crate::model::criteria::{
+    source_node, substance, table_error, CriteriaEntry, CriteriaTable, GroupEntry, GroupTable,
+};
 pub use crate::model::criteria::{DiagnosticKind, SupplyMargin};
 use crate::model::Model;
 use crate::units::{Converter, PressureUnit, UnitSystem};
@@ -173,8 +175,6 @@ impl Criteria {
     /// Errors name the table and the key (a node or constituent `table` names that `model` does
     /// not have; a lowest pressure left above the highest); the caller adds the file.
     pub fn apply(&mut self, table: &CriteriaTable, model: &Model) -> Result<(), ModelError> {
-        let error =
-            |key: &str, message: String| ModelError::at(Some(Element::Table("criteria".into())), Some(key), message);
         let mut next = self.clone();
         for entry in &table.entries {
             match entry {
@@ -194,7 +194,7 @@ impl Criteria {
                         .map(|(id, l)| {
                             source_node(model, id)
                                 .map(|i| (i, l.si))
-                                .map_err(|m| error(&format!("source_capacity.{id}"), m))
+                                .map_err(|m| table_error(&format!("source_capacity.{id}"), m))
                         })
                         .collect::<Result<_, _>>()?
                 }
@@ -207,7 +207,9 @@ impl Criteria {
                     next.min_residual = list
                         .iter()
                         .map(|(id, l)| {
-                            substance(model, id).map(|c| (c, l.si)).map_err(|m| error(&format!("min_residual.{id}"), m))
+                            substance(model, id)
+                                .map(|c| (c, l.si))
+                                .map_err(|m| table_error(&format!("min_residual.{id}"), m))
                         })
                         .collect::<Result<_, _>>()?
                 }
@@ -218,7 +220,7 @@ impl Criteria {
             if lo > hi {
                 let given = table.entries.iter().any(|e| matches!(e, CriteriaEntry::MaxPressure(_)));
                 let key = if given { "max_pressure" } else { "min_pressure" };
-                return Err(error(key, "min_pressure is above max_pressure".into()));
+                return Err(table_error(key, "min_pressure is above max_pressure"));
             }
         }
         *self = next;

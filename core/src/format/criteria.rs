@@ -10,7 +10,8 @@ use super::tree::{self, Key, Value};
 use super::Format;
 use crate::error::{printable, Element, ModelError};
 use crate::model::criteria::{
-    substance, CriteriaEntry, CriteriaTable, DiagnosticKind, GroupEntry, GroupTable, Limit, SupplyMargin, Written,
+    substance, table_error, CriteriaEntry, CriteriaTable, DiagnosticKind, GroupEntry, GroupTable, Limit, SupplyMargin,
+    Written,
 };
 use crate::model::Model;
 use crate::units::did_you_mean;
@@ -93,7 +94,7 @@ struct Reader<'a> {
 
 impl Reader<'_> {
     fn error(&self, key: &str, message: impl Into<String>) -> ModelError {
-        ModelError::at(Some(Element::Table("criteria".into())), Some(&format!("{}{key}", self.prefix)), message)
+        table_error(&format!("{}{key}", self.prefix), message)
     }
 
     fn limit(&self, key: &str, value: &Value, q: Quantity, non_negative: bool) -> Result<Limit, ModelError> {

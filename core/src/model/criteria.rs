@@ -219,29 +219,25 @@ pub struct CriteriaTable {
 }
 
 impl CriteriaTable {
-    /// Checks what the table refers to in `model`: every `source_capacity` node is a reservoir
-    /// or a tank of it, every `min_residual` constituent one of its substances (not a water age).
-    /// Errors name the table and the key (`source_capacity.J1`); the caller adds the file.
+    /// Checks the sources the table names against `model`: every `source_capacity` node is a
+    /// reservoir or a tank of it (the reader cannot check them before the nodes are read; the
+    /// `min_residual` constituents it checks as it reads them). Errors name the table and the key
+    /// (`source_capacity.J1`); the caller adds the file.
     pub fn check(&self, model: &Model) -> Result<(), ModelError> {
-        let error =
-            |key: &str, message: String| ModelError::at(Some(Element::Table("criteria".into())), Some(key), message);
         for entry in &self.entries {
-            match entry {
-                CriteriaEntry::SourceCapacity(list) => {
-                    for (id, _) in list {
-                        source_node(model, id).map_err(|m| error(&format!("source_capacity.{id}"), m))?;
-                    }
+            if let CriteriaEntry::SourceCapacity(list) = entry {
+                for (id, _) in list {
+                    source_node(model, id).map_err(|m| table_error(&format!("source_capacity.{id}"), m))?;
                 }
-                CriteriaEntry::MinResidual(list) => {
-                    for (id, _) in list {
-                        substance(model, id).map_err(|m| error(&format!("min_residual.{id}"), m))?;
-                    }
-                }
-                _ => {}
             }
         }
         Ok(())
     }
+}
+
+/// An error of the `[criteria]` table at `key`.
+pub fn table_error(key: &str, message: impl Into<String>) -> ModelError {
+    ModelError::at(Some(Element::Table("criteria".into())), Some(key), message)
 }
 
 /// The index of source node `id` of `model`, or why it cannot supply.
