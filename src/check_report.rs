@@ -3,8 +3,9 @@
 
 use crate::check::{EXIT_FAILED, EXIT_NOT_CONVERGED};
 use ringmain_core::analysis::criteria::{format_in_units, to_units};
-use ringmain_core::analysis::{CheckResult, Criteria, Diagnostic, Finding, Outcome, Quantity, Scenario};
+use ringmain_core::analysis::{CheckResult, Criteria, Finding, Outcome, Quantity, Scenario};
 use ringmain_core::error::{printable, Element};
+use ringmain_core::warning::Warning;
 use ringmain_core::Model;
 use serde_json::{json, Value};
 use std::fmt::Write as _;
@@ -22,7 +23,7 @@ pub struct Run<'a> {
     pub scenario: &'a Scenario,
     pub base: &'a Outcome,
     pub sweep: Option<&'a [(usize, Outcome)]>,
-    pub warnings: &'a [Diagnostic],
+    pub warnings: &'a [Warning],
     pub notes: &'a [String],
     pub seconds: f64,
 }
@@ -309,7 +310,11 @@ pub fn to_table(run: &Run<'_>, code: u8) -> String {
     if !run.warnings.is_empty() {
         let _ = writeln!(out, "\nWarnings ({})", run.warnings.len());
         for w in run.warnings {
-            let _ = writeln!(out, "  {}: {}: {}", w.kind.code(), w.element, w.message);
+            match &w.element {
+                Some(e) => writeln!(out, "  {}: {e}: {}", w.kind.code(), w.message),
+                None => writeln!(out, "  {}: {}", w.kind.code(), w.message),
+            }
+            .ok();
         }
     }
     if !run.notes.is_empty() {
@@ -409,7 +414,7 @@ pub fn to_json(run: &Run<'_>, code: u8) -> Value {
         },
         "base": base,
         "warnings": run.warnings.iter().map(|w| {
-            let mut v = element_json(&w.element);
+            let mut v = w.element.as_ref().map_or_else(|| json!({}), element_json);
             v["code"] = json!(w.kind.code());
             v["key"] = json!(w.key);
             v["message"] = json!(w.message);

@@ -478,7 +478,7 @@ fn solve(path: &Path, format: OutputFormat, output: Option<&Path>, timings: bool
     // at the first lookup).
     model.release_id_index();
     // Shown before solving: a typing mistake is most worth knowing when the solve then fails.
-    let mut plausible = plausibility_warnings(&model);
+    let mut plausible = ringmain_core::analysis::plausibility(&model);
     print_warnings(&plausible);
     if let Some(path) = output {
         output::forget_replaced_pages(path);
@@ -551,29 +551,10 @@ fn solve(path: &Path, format: OutputFormat, output: Option<&Path>, timings: bool
     code
 }
 
-/// The model's plausibility warnings (see `ringmain_core::analysis::plausibility`) as solution
-/// warnings, each naming its key.
-fn plausibility_warnings(model: &Model) -> Vec<ringmain_core::solve::Warning> {
-    ringmain_core::analysis::plausibility(model)
-        .into_iter()
-        .map(|d| ringmain_core::solve::Warning {
-            kind: ringmain_core::solve::WarningKind::Model(d.kind),
-            element: Some(d.element),
-            message: match d.key {
-                Some(key) => format!("key '{key}': {}", d.message),
-                None => d.message,
-            },
-        })
-        .collect()
-}
-
 /// Prints warnings on standard error, one a line.
-fn print_warnings(warnings: &[ringmain_core::solve::Warning]) {
+fn print_warnings(warnings: &[ringmain_core::warning::Warning]) {
     for w in warnings {
-        match &w.element {
-            Some(e) => eprintln!("warning: {e}: {}", w.message),
-            None => eprintln!("warning: {}", w.message),
-        }
+        eprintln!("warning: {w}");
     }
 }
 
@@ -900,7 +881,7 @@ fn simulate(
         return ExitCode::from(EXIT_INVALID);
     }
     let Ok(model) = load(path) else { return ExitCode::from(EXIT_INVALID) };
-    print_warnings(&plausibility_warnings(&model));
+    print_warnings(&ringmain_core::analysis::plausibility(&model));
     let criteria = match check::criteria_for(&model, path, criteria_path) {
         Ok(c) => c,
         Err(()) => return ExitCode::from(EXIT_INVALID),

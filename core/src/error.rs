@@ -160,6 +160,9 @@ pub enum SolveError {
         worst_nodes: Vec<Offender>,
         /// Links with the largest energy-equation residual (m), worst first.
         worst_links: Vec<Offender>,
+        /// Junctions with the largest mass imbalance (m³/s), worst first: set when the iteration
+        /// stopped at a point whose mass balance does not close.
+        worst_balances: Vec<Offender>,
     },
     /// The status of devices kept changing between the same states.
     StatusCycle {
@@ -207,6 +210,7 @@ impl fmt::Display for SolveError {
                 energy_residual,
                 worst_nodes,
                 worst_links,
+                worst_balances,
             } => {
                 let plural = if *iterations == 1 { "" } else { "s" };
                 write!(f, "the solver did not converge in {iterations} iteration{plural}: ")?;
@@ -221,6 +225,9 @@ impl fmt::Display for SolveError {
                 }
                 if !worst_links.is_empty() {
                     write!(f, "; links with the largest energy residual: {}", list(worst_links, "m"))?;
+                }
+                if !worst_balances.is_empty() {
+                    write!(f, "; junctions whose mass balance does not close: {}", list(worst_balances, "m³/s"))?;
                 }
                 Ok(())
             }

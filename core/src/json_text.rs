@@ -29,10 +29,37 @@ const CHUNK: usize = 1024;
 pub fn push_f64(out: &mut Vec<u8>, v: f64) {
     if v.is_finite() {
         let mut b = zmij::Buffer::new();
-        out.extend_from_slice(b.format_finite(v).as_bytes());
+        push_bytes(out, b.format_finite(v).as_bytes());
     } else {
         out.extend_from_slice(b"null");
     }
+}
+
+/// Appends `bytes` to `out`, as `extend_from_slice` does. A number's text or an id is mostly 4
+/// to 32 bytes long; for those, `extend_from_slice` of a length not known when compiling calls
+/// the library's `memcpy` (a seventh of the formatting threads' time in a profile of the 1e6
+/// results), where two overlapping fixed-size moves into a 32-byte block, appended whole and
+/// cut back to length, do the same in place.
+#[inline]
+pub fn push_bytes(out: &mut Vec<u8>, bytes: &[u8]) {
+    let n = bytes.len();
+    let mut block = [0u8; 32];
+    if (16..=32).contains(&n) {
+        block[..16].copy_from_slice(&bytes[..16]);
+        block[n - 16..n].copy_from_slice(&bytes[n - 16..]);
+    } else if (8..16).contains(&n) {
+        block[..8].copy_from_slice(&bytes[..8]);
+        block[n - 8..n].copy_from_slice(&bytes[n - 8..]);
+    } else if (4..8).contains(&n) {
+        block[..4].copy_from_slice(&bytes[..4]);
+        block[n - 4..n].copy_from_slice(&bytes[n - 4..]);
+    } else {
+        out.extend_from_slice(bytes);
+        return;
+    }
+    let len = out.len();
+    out.extend_from_slice(&block);
+    out.truncate(len + n);
 }
 
 /// Appends `s` as a JSON string, escaped as serde_json escapes it.
@@ -40,7 +67,7 @@ pub fn push_f64(out: &mut Vec<u8>, v: f64) {
 pub fn push_str(out: &mut Vec<u8>, s: &str) {
     if s.bytes().all(|b| b >= 0x20 && b != b'"' && b != b'\\') {
         out.push(b'"');
-        out.extend_from_slice(s.as_bytes());
+        push_bytes(out, s.as_bytes());
         out.push(b'"');
     } else {
         // Quotes, backslashes or control characters: serde_json's own escaping (writing into
@@ -266,6 +293,20 @@ pub fn try_write_array_in_chunks<W: Write + ?Sized>(
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn short_runs_are_appended_as_extend_from_slice_appends_them() {
+        let text: Vec<u8> = (0..80u8).map(|b| b'!' + b).collect();
+        for before in [0, 1, 7, 31] {
+            for n in 0..=text.len() {
+                let mut expected = text[..before].to_vec();
+                let mut got = expected.clone();
+                expected.extend_from_slice(&text[before..before + n.min(text.len() - before)]);
+                push_bytes(&mut got, &text[before..before + n.min(text.len() - before)]);
+                assert_eq!(got, expected, "{before} {n}");
+            }
+        }
+    }
 
     /// Every finite and non-finite `f64` class, and strings needing every kind of escape, as
     /// serde_json writes them (the reference the hand-written text must equal byte for byte).

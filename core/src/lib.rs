@@ -46,6 +46,7 @@ pub mod quality;
 pub mod simulate;
 pub mod solve;
 pub mod units;
+pub mod warning;
 
 pub use error::{Element, ModelError, SolveError};
 pub use format::{read_bytes, read_str, Format};

@@ -80,14 +80,7 @@ impl ringmain_results {
             max_energy_residual: u.from_si(Quantity::Length, s.max_energy_residual),
             last_head_change: u.from_si(Quantity::Length, s.last_head_change),
             last_flow_change: s.last_flow_change,
-            warnings: s
-                .warnings
-                .iter()
-                .map(|w| match &w.element {
-                    Some(e) => format!("{e}: {}", w.message),
-                    None => w.message.clone(),
-                })
-                .collect(),
+            warnings: s.warnings.iter().map(|w| w.to_string()).collect(),
             pumps: s
                 .pumps
                 .iter()

@@ -44,7 +44,7 @@
 use super::glob_match;
 use crate::error::ModelError;
 use crate::model::criteria::{
-    source_node, substance, table_error, CriteriaEntry, CriteriaTable, GroupEntry, GroupTable,
+    source_node, substance, table_error, CriteriaEntry, CriteriaTable, GroupEntry, GroupTable, Limit,
 };
 pub use crate::model::criteria::{DiagnosticKind, SupplyMargin};
 use crate::model::Model;
@@ -189,14 +189,7 @@ impl Criteria {
                 CriteriaEntry::MinDelivered(l) => next.min_delivered = Some(l.si),
                 CriteriaEntry::FireResidual(l) => next.fire_residual = Some(l.si),
                 CriteriaEntry::SourceCapacity(list) => {
-                    next.source_capacity = list
-                        .iter()
-                        .map(|(id, l)| {
-                            source_node(model, id)
-                                .map(|i| (i, l.si))
-                                .map_err(|m| table_error(&format!("source_capacity.{id}"), m))
-                        })
-                        .collect::<Result<_, _>>()?
+                    next.source_capacity = resolve(list, "source_capacity", |id| source_node(model, id))?
                 }
                 CriteriaEntry::FailOnWarnings(kinds, _) => next.fail_on_warnings = kinds.clone(),
                 CriteriaEntry::Groups(groups) => {
@@ -204,14 +197,7 @@ impl Criteria {
                 }
                 CriteriaEntry::MaxAge(l) => next.max_age = Some(l.si),
                 CriteriaEntry::MinResidual(list) => {
-                    next.min_residual = list
-                        .iter()
-                        .map(|(id, l)| {
-                            substance(model, id)
-                                .map(|c| (c, l.si))
-                                .map_err(|m| table_error(&format!("min_residual.{id}"), m))
-                        })
-                        .collect::<Result<_, _>>()?
+                    next.min_residual = resolve(list, "min_residual", |id| substance(model, id))?
                 }
                 CriteriaEntry::After(l) => next.after = l.si,
             }
@@ -287,6 +273,18 @@ pub fn format_in_units(q: Quantity, si: f64, units: &UnitSystem, density: f64) -
 pub fn to_units(q: Quantity, si: f64, units: &UnitSystem, density: f64) -> (f64, &'static str) {
     let c = Converter::new(*units, density, false);
     (c.from_si(q, si), c.label(q))
+}
+
+/// A list of a criteria table keyed by id (`key.id = limit`), each id resolved by `lookup` to a
+/// position in the model; an id it refuses is an error naming `key.id`.
+fn resolve(
+    list: &[(String, Limit)],
+    key: &str,
+    lookup: impl Fn(&str) -> Result<usize, String>,
+) -> Result<Vec<(usize, f64)>, ModelError> {
+    list.iter()
+        .map(|(id, l)| lookup(id).map(|i| (i, l.si)).map_err(|m| table_error(&format!("{key}.{id}"), m)))
+        .collect()
 }
 
 #[cfg(test)]

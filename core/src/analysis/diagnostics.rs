@@ -54,22 +54,10 @@ pub const PLAUSIBLE_HEAD_TOLERANCE: f64 = 1.0;
 pub const ELEVATION_OUTLIER: f64 = 100.0;
 
 pub use crate::model::criteria::DiagnosticKind;
-
-/// One warning about one element.
-#[derive(Clone, Debug, PartialEq)]
-pub struct Diagnostic {
-    /// What kind of warning.
-    pub kind: DiagnosticKind,
-    /// The element concerned.
-    pub element: Element,
-    /// The key concerned, when one value is the cause.
-    pub key: Option<&'static str>,
-    /// What to look at, values in the model's units.
-    pub message: String,
-}
+use crate::warning::{Warning, WarningKind};
 
 /// Warnings about the model's data and structure (no solve needed).
-pub fn diagnose_model(model: &Model) -> Vec<Diagnostic> {
+pub fn diagnose_model(model: &Model) -> Vec<Warning> {
     let mut out = Vec::new();
     reachability(model, &mut out);
     parallel_pipes(model, &mut out);
@@ -83,7 +71,7 @@ pub fn diagnose_model(model: &Model) -> Vec<Diagnostic> {
 /// report too (beside `check`'s full list): a Darcy–Weisbach roughness comparable to the
 /// diameter, a relative pump speed above 2 (in the model, a control or a speed pattern), a head
 /// tolerance above 1 m. The ranges and their sources are in the module docs.
-pub fn plausibility(model: &Model) -> Vec<Diagnostic> {
+pub fn plausibility(model: &Model) -> Vec<Warning> {
     use crate::model::show;
     let u = &model.units;
     let mut out = Vec::new();
@@ -92,9 +80,9 @@ pub fn plausibility(model: &Model) -> Vec<Diagnostic> {
             let Some(p) = l.as_pipe() else { continue };
             let relative = p.roughness / p.diameter;
             if relative > PLAUSIBLE_RELATIVE_ROUGHNESS {
-                out.push(Diagnostic {
-                    kind: DiagnosticKind::RoughnessRange,
-                    element: Element::Link(l.id.to_string()),
+                out.push(Warning {
+                    kind: WarningKind::Model(DiagnosticKind::RoughnessRange),
+                    element: Some(Element::Link(l.id.to_string())),
                     key: Some("roughness"),
                     message: format!(
                         "Darcy-Weisbach roughness {} {} is {:.3} of the diameter; the Moody diagram ends at 0.05 \
@@ -107,9 +95,9 @@ pub fn plausibility(model: &Model) -> Vec<Diagnostic> {
             }
         }
     }
-    let speed_warning = |id: &str, where_: String, speed: f64| Diagnostic {
-        kind: DiagnosticKind::PumpSpeed,
-        element: Element::Link(id.to_owned()),
+    let speed_warning = |id: &str, where_: String, speed: f64| Warning {
+        kind: WarningKind::Model(DiagnosticKind::PumpSpeed),
+        element: Some(Element::Link(id.to_owned())),
         key: Some("speed"),
         message: format!(
             "relative speed {} {where_}is above {PLAUSIBLE_PUMP_SPEED} (common practice: drives run pumps near \
@@ -144,9 +132,9 @@ pub fn plausibility(model: &Model) -> Vec<Diagnostic> {
     }
     let tolerance = model.options.head_tolerance;
     if tolerance > PLAUSIBLE_HEAD_TOLERANCE {
-        out.push(Diagnostic {
-            kind: DiagnosticKind::HeadTolerance,
-            element: Element::Table("hydraulics".into()),
+        out.push(Warning {
+            kind: WarningKind::Model(DiagnosticKind::HeadTolerance),
+            element: Some(Element::Table("hydraulics".into())),
             key: Some("head_tolerance"),
             message: format!(
                 "a head tolerance of {} {} lets the iteration stop with head errors above {} {} (common practice: \
@@ -162,7 +150,7 @@ pub fn plausibility(model: &Model) -> Vec<Diagnostic> {
 }
 
 /// Warnings about a solved scenario of the model (velocities).
-pub fn diagnose_solution(model: &Model, solution: &Solution) -> Vec<Diagnostic> {
+pub fn diagnose_solution(model: &Model, solution: &Solution) -> Vec<Warning> {
     let u = &model.units;
     let mut out = Vec::new();
     for (k, l) in model.links().iter().enumerate() {
@@ -171,9 +159,9 @@ pub fn diagnose_solution(model: &Model, solution: &Solution) -> Vec<Diagnostic> 
         }
         let v = solution.velocity.get(k).copied().unwrap_or(0.0).abs();
         if v > PLAUSIBLE_VELOCITY {
-            out.push(Diagnostic {
-                kind: DiagnosticKind::HighVelocity,
-                element: Element::Link(l.id.to_string()),
+            out.push(Warning {
+                kind: WarningKind::Model(DiagnosticKind::HighVelocity),
+                element: Some(Element::Link(l.id.to_string())),
                 key: Some("diameter"),
                 message: format!(
                     "velocity {:.2} {} is above {:.1} {} (common practice): is the pipe undersized or a demand wrong?",
@@ -188,7 +176,7 @@ pub fn diagnose_solution(model: &Model, solution: &Solution) -> Vec<Diagnostic> 
     out
 }
 
-fn reachability(model: &Model, out: &mut Vec<Diagnostic>) {
+fn reachability(model: &Model, out: &mut Vec<Warning>) {
     let adjacency = Adjacency::new(model);
     let ends = crate::solve::topology::link_ends(model);
     let n = model.nodes().len();
@@ -204,16 +192,16 @@ fn reachability(model: &Model, out: &mut Vec<Diagnostic>) {
             continue;
         }
         if !any[i] {
-            out.push(Diagnostic {
-                kind: DiagnosticKind::IsolatedJunction,
-                element: Element::Node(node.id.to_string()),
+            out.push(Warning {
+                kind: WarningKind::Model(DiagnosticKind::IsolatedJunction),
+                element: Some(Element::Node(node.id.to_string())),
                 key: None,
                 message: "no reservoir or tank can reach it through any link, open or closed".into(),
             });
         } else if !open[i] && node.demand() != 0.0 {
-            out.push(Diagnostic {
-                kind: DiagnosticKind::ClosedOffDemand,
-                element: Element::Node(node.id.to_string()),
+            out.push(Warning {
+                kind: WarningKind::Model(DiagnosticKind::ClosedOffDemand),
+                element: Some(Element::Node(node.id.to_string())),
                 key: Some("demand"),
                 message: format!(
                     "has a demand of {:.3} {} but only closed links join it to a source",
@@ -225,7 +213,7 @@ fn reachability(model: &Model, out: &mut Vec<Diagnostic>) {
     }
 }
 
-fn parallel_pipes(model: &Model, out: &mut Vec<Diagnostic>) {
+fn parallel_pipes(model: &Model, out: &mut Vec<Warning>) {
     let mut first: HashMap<(usize, usize), usize> = HashMap::new();
     for (k, l) in model.links().iter().enumerate() {
         let Some(p) = l.as_pipe() else { continue };
@@ -241,9 +229,9 @@ fn parallel_pipes(model: &Model, out: &mut Vec<Diagnostic>) {
                     close(p.length, q.length) && close(p.diameter, q.diameter) && close(p.roughness, q.roughness)
                 });
                 let nodes = model.nodes();
-                out.push(Diagnostic {
-                    kind: DiagnosticKind::ParallelPipes,
-                    element: Element::Link(l.id.to_string()),
+                out.push(Warning {
+                    kind: WarningKind::Model(DiagnosticKind::ParallelPipes),
+                    element: Some(Element::Link(l.id.to_string())),
                     key: Some("to"),
                     message: if same {
                         format!(
@@ -263,15 +251,15 @@ fn parallel_pipes(model: &Model, out: &mut Vec<Diagnostic>) {
     }
 }
 
-fn ranges(model: &Model, out: &mut Vec<Diagnostic>) {
+fn ranges(model: &Model, out: &mut Vec<Warning>) {
     let u = &model.units;
     let d_text = |d: f64| format!("{} {}", u.diameter.from_si(d), u.diameter.label());
     for l in model.links() {
         if let Some(d) = l.diameter() {
             if !PLAUSIBLE_DIAMETER.contains(&d) {
-                out.push(Diagnostic {
-                    kind: DiagnosticKind::DiameterRange,
-                    element: Element::Link(l.id.to_string()),
+                out.push(Warning {
+                    kind: WarningKind::Model(DiagnosticKind::DiameterRange),
+                    element: Some(Element::Link(l.id.to_string())),
                     key: Some("diameter"),
                     message: format!(
                         "diameter {} is outside {} to {} (common practice): is the unit right?",
@@ -286,9 +274,9 @@ fn ranges(model: &Model, out: &mut Vec<Diagnostic>) {
             if model.options.headloss == HeadLossLaw::HazenWilliams
                 && !PLAUSIBLE_HAZEN_WILLIAMS_C.contains(&p.roughness)
             {
-                out.push(Diagnostic {
-                    kind: DiagnosticKind::RoughnessRange,
-                    element: Element::Link(l.id.to_string()),
+                out.push(Warning {
+                    kind: WarningKind::Model(DiagnosticKind::RoughnessRange),
+                    element: Some(Element::Link(l.id.to_string())),
                     key: Some("roughness"),
                     message: format!(
                         "Hazen-Williams C {} is outside {} to {} (common practice)",
@@ -302,7 +290,7 @@ fn ranges(model: &Model, out: &mut Vec<Diagnostic>) {
     }
 }
 
-fn elevations(model: &Model, out: &mut Vec<Diagnostic>) {
+fn elevations(model: &Model, out: &mut Vec<Warning>) {
     let nodes = model.nodes();
     let adjacency = Adjacency::new(model);
     let mut around = Vec::new();
@@ -325,9 +313,9 @@ fn elevations(model: &Model, out: &mut Vec<Diagnostic>) {
         if (node.elevation - median).abs() > ELEVATION_OUTLIER {
             let len = |v: f64| model.units.length.from_si(v);
             let unit = model.units.length.label();
-            out.push(Diagnostic {
-                kind: DiagnosticKind::ElevationOutlier,
-                element: Element::Node(node.id.to_string()),
+            out.push(Warning {
+                kind: WarningKind::Model(DiagnosticKind::ElevationOutlier),
+                element: Some(Element::Node(node.id.to_string())),
                 key: Some("elevation"),
                 message: format!(
                     "elevation {:.1} {unit} is {:.1} {unit} from the median of its neighbours ({:.1} {unit}): a \
@@ -378,8 +366,11 @@ mod tests {
         closed.status = LinkStatus::Closed;
         m.add_link(closed).unwrap();
         m.add_link(pipe("P4", 2, 5, 0.1, 120.0)).unwrap();
-        let found: Vec<(DiagnosticKind, String)> =
-            diagnose_model(&m).into_iter().map(|d| (d.kind, d.element.to_string())).collect();
+        // Every model warning names its element.
+        let found: Vec<(DiagnosticKind, String)> = diagnose_model(&m)
+            .into_iter()
+            .map(|d| (d.model_kind().unwrap(), d.element.as_ref().unwrap().to_string()))
+            .collect();
         let has = |k: DiagnosticKind, e: &str| found.iter().any(|(fk, fe)| *fk == k && fe == e);
         assert!(has(DiagnosticKind::IsolatedJunction, "node 'Lone'"), "{found:?}");
         assert!(has(DiagnosticKind::ClosedOffDemand, "node 'C'"), "{found:?}");

@@ -1,10 +1,10 @@
 //! Evaluating criteria on a solved scenario: one [`CheckResult`] per criterion, worst first.
 
 use super::criteria::{Criteria, Quantity};
-use super::diagnostics::Diagnostic;
 use crate::error::Element;
 use crate::model::{LinkKind, Model, NodeKind};
 use crate::solve::Solution;
+use crate::warning::Warning;
 
 /// One element that breaks a criterion.
 #[derive(Clone, Debug, PartialEq)]
@@ -299,20 +299,17 @@ pub fn evaluate_indexed(
 }
 
 /// The warnings the criteria turn into failures, one result per code listed.
-pub fn warning_checks(criteria: &Criteria, diagnostics: &[Diagnostic], keep: usize) -> Vec<CheckResult> {
+pub fn warning_checks(criteria: &Criteria, warnings: &[Warning], keep: usize) -> Vec<CheckResult> {
     criteria
         .fail_on_warnings
         .iter()
         .map(|&kind| {
             let mut c = CheckResult::new(format!("warnings.{}", kind.code()), Quantity::Number, f64::NAN);
-            for d in diagnostics.iter().filter(|d| d.kind == kind) {
-                let finding = Finding {
-                    element: d.element.clone(),
-                    value: f64::NAN,
-                    limit: f64::NAN,
-                    excess: 0.0,
-                    detail: Some(d.message.clone()),
-                };
+            // The model's warnings, each about one element.
+            let of_kind = warnings.iter().filter(|w| w.model_kind() == Some(kind));
+            for (w, element) in of_kind.filter_map(|w| Some((w, w.element.clone()?))) {
+                let finding =
+                    Finding { element, value: f64::NAN, limit: f64::NAN, excess: 0.0, detail: Some(w.message.clone()) };
                 c.add(finding, keep);
             }
             c.checked = c.failures;

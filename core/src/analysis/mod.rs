@@ -34,7 +34,7 @@ pub mod evaluate;
 pub mod fire_flow;
 
 pub use criteria::{Criteria, Group, Quantity, SupplyMargin};
-pub use diagnostics::{diagnose_model, diagnose_solution, plausibility, Diagnostic, DiagnosticKind};
+pub use diagnostics::{diagnose_model, diagnose_solution, plausibility, DiagnosticKind};
 pub use evaluate::{evaluate, evaluate_indexed, warning_checks, CheckResult, Finding, NodeIndex};
 
 pub use crate::solve::Scenario;
@@ -299,8 +299,11 @@ fn convergence_check(criteria: &Criteria, model: &Model, error: Option<&Unsolved
     if let (Some(e), true) = (error, criteria.must_converge) {
         c.failures = 1;
         let element = match e {
-            Unsolved::Solver(SolveError::NotConverged { worst_nodes, .. }) if !worst_nodes.is_empty() => {
-                Element::Node(worst_nodes[0].id.clone())
+            Unsolved::Solver(SolveError::NotConverged { worst_nodes, worst_balances, .. })
+                if !worst_nodes.is_empty() || !worst_balances.is_empty() =>
+            {
+                let first = if worst_nodes.is_empty() { &worst_balances[0] } else { &worst_nodes[0] };
+                Element::Node(first.id.clone())
             }
             Unsolved::Solver(SolveError::StatusCycle { links, .. }) if !links.is_empty() => {
                 Element::Link(links[0].clone())

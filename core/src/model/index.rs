@@ -44,6 +44,37 @@ fn spread(h: u32) -> u64 {
     u64::from(h).wrapping_mul(0x9e37_79b9_7f4a_7c15)
 }
 
+/// Whether two byte strings are equal (`a == b`), compared a word at a time in place. Ids and
+/// the reader's layout stretches are short, and `==` on slices calls the library's `memcmp`,
+/// which a profile of the 1e6 reading put at a tenth of the time of the thread that adds links
+/// (their ends' ids compared with the nodes' ids).
+#[inline]
+pub(crate) fn same_bytes(a: &[u8], b: &[u8]) -> bool {
+    let n = a.len();
+    if n != b.len() {
+        return false;
+    }
+    if n >= 8 {
+        // Whole words, then the last eight bytes (overlapping the last whole word).
+        let mut words = a.chunks_exact(8).zip(b.chunks_exact(8));
+        words.all(|(x, y)| word_of(x) == word_of(y)) && word_of(&a[n - 8..]) == word_of(&b[n - 8..])
+    } else if n >= 4 {
+        // The first and the last four bytes (overlapping when fewer than eight).
+        let half = |x: &[u8]| u32::from_le_bytes([x[0], x[1], x[2], x[3]]);
+        half(a) == half(b) && half(&a[n - 4..]) == half(&b[n - 4..])
+    } else {
+        a.iter().zip(b).all(|(x, y)| x == y)
+    }
+}
+
+/// The first eight bytes of `bytes` as one word, the first byte the lowest.
+#[inline]
+pub(crate) fn word_of(bytes: &[u8]) -> u64 {
+    let mut w = [0u8; 8];
+    w.copy_from_slice(&bytes[..8]);
+    u64::from_le_bytes(w)
+}
+
 impl IdIndex {
     fn short_hash(&self, id: &str) -> u32 {
         (self.hasher.hash_one(id) >> 32) as u32
@@ -52,7 +83,7 @@ impl IdIndex {
     /// The position of `id`; `ids(k)` is the id at position `k`.
     pub(crate) fn find<'a>(&self, id: &str, ids: impl Fn(usize) -> &'a str) -> Option<usize> {
         let h = self.short_hash(id);
-        self.table.find(spread(h), |&k| ids(k as usize) == id).map(|&k| k as usize)
+        self.table.find(spread(h), |&k| same_bytes(ids(k as usize).as_bytes(), id.as_bytes())).map(|&k| k as usize)
     }
 
     /// Records that `id` is at `position` (nothing is recorded unless the answer is `Added`).
@@ -67,7 +98,7 @@ impl IdIndex {
             None => spread((hasher.hash_one(ids(k as usize)) >> 32) as u32),
         };
         // One probe sequence both looks for the id and finds the free slot.
-        match self.table.entry(spread(h), |&k| ids(k as usize) == id, rehash) {
+        match self.table.entry(spread(h), |&k| same_bytes(ids(k as usize).as_bytes(), id.as_bytes()), rehash) {
             Entry::Occupied(_) => return Insert::Duplicate,
             Entry::Vacant(slot) => {
                 slot.insert(stored);
@@ -109,6 +140,65 @@ impl IdIndex {
     }
 }
 
+/// Ids gathered as they are added without an index, then checked all different at once
+/// ([`NewIds::all_different`]): the same answer as inserting each into an [`IdIndex`], with
+/// memory touched in order rather than at random (the hashes are taken while each id is in the
+/// caches, then sorted in parts that fit in them).
+#[derive(Default)]
+pub(crate) struct NewIds {
+    hasher: DefaultHashBuilder,
+    /// Each id's hash and position.
+    hashed: Vec<(u64, u32)>,
+}
+
+impl NewIds {
+    /// Records the id at `position` (below 2^32: the model's `add_*_with_new_id` refuse more).
+    pub(crate) fn push(&mut self, id: &str, position: usize) {
+        self.hashed.push((self.hasher.hash_one(id), position as u32));
+    }
+
+    /// Whether the ids recorded are all different; `ids(k)` is the id at position `k`.
+    pub(crate) fn all_different<'a>(self, ids: impl Fn(usize) -> &'a str) -> bool {
+        let n = self.hashed.len();
+        // Parts of some 512 to 1024 ids by the hashes' top bits (a counting sort: two passes in
+        // order), each sorted on its own and its neighbours compared.
+        let bits = (n / 512).max(1).ilog2();
+        let part = |h: u64| if bits == 0 { 0 } else { (h >> (64 - bits)) as usize };
+        let mut starts = vec![0usize; (1 << bits) + 1];
+        for &(h, _) in &self.hashed {
+            starts[part(h) + 1] += 1;
+        }
+        for p in 1..starts.len() {
+            starts[p] += starts[p - 1];
+        }
+        // In place (one pass of a radix sort by parts): each id moves at most once, straight to
+        // its part, and no second array of them is made (at a million links a copy would be
+        // 20 MB more at once, which the heap may keep after it is freed).
+        let mut placed = self.hashed;
+        let mut next = starts[..starts.len() - 1].to_vec();
+        for p in 0..next.len() {
+            while next[p] < starts[p + 1] {
+                let q = part(placed[next[p]].0);
+                if q == p {
+                    next[p] += 1;
+                } else {
+                    placed.swap(next[p], next[q]);
+                    next[q] += 1;
+                }
+            }
+        }
+        starts.windows(2).all(|w| {
+            let part = &mut placed[w[0]..w[1]];
+            part.sort_unstable();
+            // Ids of equal hashes (nearly always one pair, when two ids are the same) compared
+            // each with each.
+            part.chunk_by(|a, b| a.0 == b.0).all(|run| {
+                run.iter().enumerate().all(|(i, a)| run[i + 1..].iter().all(|b| ids(a.1 as usize) != ids(b.1 as usize)))
+            })
+        })
+    }
+}
+
 /// An [`IdIndex`] that may be freed ([`ReleasableIndex::release`]) and is then made again from
 /// the elements' ids at its first use.
 #[derive(Clone, Debug, Default)]
@@ -137,8 +227,70 @@ impl ReleasableIndex {
         }
     }
 
+    /// Drops the index's work space ([`IdIndex::settle`]); a released index stays released (it
+    /// is made settled at its first use).
+    pub(crate) fn settle(&mut self) {
+        if let Some(index) = self.0.get_mut() {
+            index.settle();
+        }
+    }
+
     /// Frees the index.
     pub(crate) fn release(&mut self) {
         self.0 = OnceLock::new();
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::{same_bytes, IdIndex, Insert, NewIds};
+
+    /// Whether the index takes every id ([`IdIndex::insert`] answers `Added` for each).
+    fn index_takes_all(ids: &[String]) -> bool {
+        let mut index = IdIndex::default();
+        ids.iter().enumerate().all(|(k, id)| index.insert(id, k, |j| &ids[j]) == Insert::Added)
+    }
+
+    #[test]
+    fn ids_checked_at_once_are_judged_as_the_index_judges_them() {
+        for n in [0usize, 1, 2, 3, 511, 512, 1025, 5000, 70_000] {
+            let ids: Vec<String> = (0..n).map(|k| format!("P{k}")).collect();
+            let all = |ids: &[String]| {
+                let mut new = NewIds::default();
+                ids.iter().enumerate().for_each(|(k, id)| new.push(id, k));
+                new.all_different(|k| &ids[k])
+            };
+            assert!(all(&ids) && index_takes_all(&ids), "{n}");
+            // One id repeated: first and last, neighbours, and far apart.
+            for (a, b) in [(0, n.saturating_sub(1)), (n / 2, n / 2 + 1), (n / 3, 2 * n / 3)] {
+                if a < b && b < n {
+                    let mut twice = ids.clone();
+                    twice[b] = twice[a].clone();
+                    assert!(!all(&twice) && !index_takes_all(&twice), "{n} {a} {b}");
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn bytes_compared_a_word_at_a_time_are_compared_as_slices() {
+        let text = b"J1234567 P98765432, \"elevation\": 12.5";
+        for n in 0..text.len() {
+            for m in 0..text.len() {
+                for from in [0, 1, 3] {
+                    let (a, b) = (&text[..n], &text[from.min(m)..m]);
+                    assert_eq!(same_bytes(a, b), a == b, "{n} {m} {from}");
+                }
+            }
+            // One byte changed at each place, and the same bytes elsewhere in memory.
+            let a = &text[..n];
+            for at in 0..n {
+                let mut b = a.to_vec();
+                b[at] ^= 0x01;
+                assert!(!same_bytes(a, &b), "{n} {at}");
+            }
+            let copy = a.to_vec();
+            assert!(same_bytes(a, &copy));
+        }
     }
 }

@@ -13,6 +13,7 @@
 
 pub mod criteria;
 mod index;
+pub(crate) use index::{same_bytes, word_of, NewIds};
 pub mod outflow;
 pub mod time;
 
@@ -713,6 +714,11 @@ fn invisible(c: char) -> bool {
 }
 
 pub(crate) fn check_id(id: &str, element: &impl Named) -> Result<(), ModelError> {
+    if plain_id(id) {
+        // Every check below passes: one pass over the bytes rather than three over the
+        // characters (a tenth of the time of adding a million nodes).
+        return Ok(());
+    }
     if id.trim().is_empty() {
         return Err(ModelError::at(Some(element.element()), Some("id"), "must not be empty"));
     }
@@ -731,6 +737,14 @@ pub(crate) fn check_id(id: &str, element: &impl Named) -> Result<(), ModelError>
         ));
     }
     Ok(())
+}
+
+/// An id every check of [`check_id`] takes: printable ASCII without spaces (no white space, no
+/// control or invisible character, not empty). The fast readers read elements with such ids
+/// straight into the model; other ids go the long way.
+#[inline]
+pub(crate) fn plain_id(id: &str) -> bool {
+    !id.is_empty() && id.bytes().all(|b| (0x21..=0x7e).contains(&b))
 }
 
 impl Model {
@@ -765,9 +779,8 @@ impl Model {
     pub fn shrink_to_fit(&mut self) {
         self.nodes.shrink_to_fit();
         self.links.shrink_to_fit();
-        let (nodes, links) = (&self.nodes, &self.links);
-        self.node_index.get_mut(nodes.len(), |k| &nodes[k].id).settle();
-        self.link_index.get_mut(links.len(), |k| &links[k].id).settle();
+        self.node_index.settle();
+        self.link_index.settle();
     }
 
     /// Makes room for `nodes` more nodes and `links` more links, in the element lists and the id

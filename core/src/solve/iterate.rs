@@ -4,7 +4,7 @@
 
 use super::assemble::*;
 use super::chord::{Chord, CHORD_CONTRACTION, CHORD_MARGIN, CHORD_STEPS};
-use super::solution::energy_residuals;
+use super::solution::{add_link_flows, energy_residuals};
 use super::status::{self, LinkState, StatusTracker};
 use super::structure::NONE;
 use super::{topology, Conditions, Pinned, Solution, SolveOptions, Solver, STALLED_ITERATIONS};
@@ -260,6 +260,7 @@ impl Solver {
                     open_loss: &open_loss,
                     shutoff: &shutoff,
                     tolerance: options.head_tolerance,
+                    reverse_floor: status::ROUND_OFF_FLOW * self.demand_scale,
                 };
                 let update = tracker.update(model, conditions, &seen);
                 self.timings.status += clock.elapsed();
@@ -315,17 +316,11 @@ impl Solver {
                 energy_residual: solution.max_energy_residual,
                 worst_nodes: vec![Offender { id: nodes[r.node as usize].id.to_string(), value: head_change }],
                 worst_links: Vec::new(),
+                worst_balances: Vec::new(),
             });
         }
         if solution.max_mass_residual > MASS_GATE * self.demand_scale {
-            return Err(SolveError::NotConverged {
-                iterations,
-                head_change,
-                flow_change,
-                energy_residual: solution.max_energy_residual,
-                worst_nodes: Vec::new(),
-                worst_links: Vec::new(),
-            });
+            return Err(self.unbalanced(model, &solution, iterations, head_change, flow_change));
         }
         Ok(solution)
     }
@@ -482,6 +477,39 @@ impl Solver {
         self.pinned.iter().max_by(|a, b| a.change.total_cmp(&b.change)).map(|v| v.link as usize)
     }
 
+    /// The error of a solution refused by the mass balance's gate, naming the junctions of the
+    /// largest imbalance (from the solution's flows: the solver's arrays are the solution's now).
+    fn unbalanced(
+        &self,
+        model: &Model,
+        solution: &Solution,
+        iterations: u32,
+        head_change: f64,
+        flow_change: f64,
+    ) -> SolveError {
+        let nodes = model.nodes();
+        let mut balance: Vec<f64> =
+            (0..nodes.len()).map(|i| -(solution.delivered(i) + solution.leakage(i) + solution.outlet(i))).collect();
+        add_link_flows(&self.structure.ends, &solution.flow, &mut balance);
+        let worst_balances = worst(
+            nodes
+                .iter()
+                .enumerate()
+                .filter(|&(i, n)| n.fixed_head().is_none() && solution.connected[i])
+                .map(|(i, n)| Offender { id: n.id.to_string(), value: balance[i].abs() })
+                .filter(|o| o.value > 0.0),
+        );
+        SolveError::NotConverged {
+            iterations,
+            head_change,
+            flow_change,
+            energy_residual: solution.max_energy_residual,
+            worst_nodes: Vec::new(),
+            worst_links: Vec::new(),
+            worst_balances,
+        }
+    }
+
     pub(super) fn not_converged(
         &self,
         model: &Model,
@@ -492,25 +520,18 @@ impl Solver {
         let energy: Vec<f64> =
             energy_residuals(&self.structure.ends, &self.laws, &self.flow, &self.head, &self.on_law).collect();
         // The last head corrections are still in `delta`.
-        let mut worst_nodes: Vec<Offender> = (0..self.structure.n)
-            .filter(|&u| self.free[u])
-            .map(|u| {
-                let node = self.structure.node_of_unknown[u] as usize;
-                Offender { id: model.nodes()[node].id.to_string(), value: self.delta[u].abs() }
-            })
-            .filter(|o| o.value.is_finite())
-            .collect();
-        worst_nodes.sort_by(|a, b| b.value.total_cmp(&a.value));
-        worst_nodes.truncate(5);
-        let mut worst_links: Vec<Offender> = model
-            .links()
-            .iter()
-            .enumerate()
-            .filter(|(k, _)| self.on_law[*k])
-            .map(|(k, l)| Offender { id: l.id.to_string(), value: energy[k] })
-            .collect();
-        worst_links.sort_by(|a, b| b.value.total_cmp(&a.value));
-        worst_links.truncate(5);
+        let worst_nodes = worst((0..self.structure.n).filter(|&u| self.free[u]).map(|u| {
+            let node = self.structure.node_of_unknown[u] as usize;
+            Offender { id: model.nodes()[node].id.to_string(), value: self.delta[u].abs() }
+        }));
+        let worst_links = worst(
+            model
+                .links()
+                .iter()
+                .enumerate()
+                .filter(|(k, _)| self.on_law[*k])
+                .map(|(k, l)| Offender { id: l.id.to_string(), value: energy[k] }),
+        );
         SolveError::NotConverged {
             iterations,
             head_change,
@@ -518,6 +539,15 @@ impl Solver {
             energy_residual: energy.iter().copied().fold(0.0, f64::max),
             worst_nodes,
             worst_links,
+            worst_balances: Vec::new(),
         }
     }
+}
+
+/// The five largest finite offenders, largest first.
+fn worst(offenders: impl Iterator<Item = Offender>) -> Vec<Offender> {
+    let mut all: Vec<Offender> = offenders.filter(|o| o.value.is_finite()).collect();
+    all.sort_by(|a, b| b.value.total_cmp(&a.value));
+    all.truncate(5);
+    all
 }

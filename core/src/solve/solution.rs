@@ -25,42 +25,7 @@ pub struct PumpResult {
     pub beyond_curve: bool,
 }
 
-/// Something an engineer should look at in a solved network.
-#[derive(Clone, Debug, PartialEq)]
-pub struct Warning {
-    /// What kind of warning (for programs; the message is for people).
-    pub kind: WarningKind,
-    /// The element concerned.
-    pub element: Option<Element>,
-    /// What to look at.
-    pub message: String,
-}
-
-/// The kinds of [`Warning`], each with a short code.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash)]
-#[non_exhaustive]
-pub enum WarningKind {
-    /// A node cut off from every reservoir and tank by closed links.
-    CutOff,
-    /// A junction drawing a fixed demand at a negative pressure.
-    NegativePressure,
-    /// A pump running past the end of its head curve.
-    PumpPastCurve,
-    /// A model warning of this kind (the plausibility checks of `analysis::diagnostics`).
-    Model(crate::model::criteria::DiagnosticKind),
-}
-
-impl WarningKind {
-    /// The short code (a model warning's is its own, as in `fail_on_warnings`).
-    pub fn code(self) -> &'static str {
-        match self {
-            WarningKind::CutOff => "cut-off",
-            WarningKind::NegativePressure => "negative-pressure",
-            WarningKind::PumpPastCurve => "pump-past-curve",
-            WarningKind::Model(kind) => kind.code(),
-        }
-    }
-}
+pub use crate::warning::{Warning, WarningKind};
 
 /// A solved snapshot, SI units (pressures as pressure head in m of the model's water).
 #[derive(Clone, Debug, PartialEq)]
@@ -307,10 +272,7 @@ impl Solver {
                 (0..n_nodes).map(|i| if self.connected[i] { -self.demand[i] } else { 0.0 }).collect()
             };
             drop(outflow);
-            for (&(from, to), &q) in self.structure.ends.iter().zip(&flow) {
-                balance[to as usize] += q;
-                balance[from as usize] -= q;
-            }
+            add_link_flows(&self.structure.ends, &flow, &mut balance);
             nodes
                 .iter()
                 .enumerate()
@@ -340,6 +302,7 @@ impl Solver {
             warnings.push(Warning {
                 kind: WarningKind::CutOff,
                 element: Some(Element::Node(nodes[i].id.to_string())),
+                key: None,
                 message,
             });
         }
@@ -352,6 +315,7 @@ impl Solver {
                     message: "negative pressure: the demand cannot really be delivered at this head (consider a \
                               pressure-driven analysis)"
                         .to_owned(),
+                    key: None,
                 });
             }
         }
@@ -360,6 +324,7 @@ impl Solver {
                 warnings.push(Warning {
                     kind: WarningKind::PumpPastCurve,
                     element: Some(Element::Link(links[r.link].id.to_string())),
+                    key: None,
                     message: "runs past the end of its head curve (it adds no head and acts as a resistance)".into(),
                 });
             }
@@ -387,6 +352,14 @@ impl Solver {
             last_flow_change,
             warnings,
         }
+    }
+}
+
+/// Adds each link's flow to the balance of its `to` node and takes it from its `from` node's.
+pub(super) fn add_link_flows(ends: &[(u32, u32)], flow: &[f64], balance: &mut [f64]) {
+    for (&(from, to), &q) in ends.iter().zip(flow) {
+        balance[to as usize] += q;
+        balance[from as usize] -= q;
     }
 }
 

@@ -18,7 +18,8 @@
 //! | | open | open-valve loss, `0 ≤ Q ≤ Q_set` | `Q > Q_set` → active; `Q < 0` → closed |
 //! | | closed | `Q = 0` | `H_from > H_to + τ` → open |
 //!
-//! (τ is the head tolerance.) The rules are applied only after the inner Newton iteration has
+//! (τ is the head tolerance; `Q < 0` means a reverse flow beyond round-off, see
+//! [`ROUND_OFF_FLOW`].) The rules are applied only after the inner Newton iteration has
 //! converged for the current states, so every decision is made on a solution of the network, not
 //! on an intermediate iterate. Each set of states is remembered. If a set comes back (the
 //! heuristic cycling that Deuerlein, Simpson & Dempe 2009 show can happen when every violated
@@ -197,7 +198,18 @@ pub struct Observed<'a> {
     pub shutoff: &'a dyn Fn(usize) -> f64,
     /// Head tolerance τ, m.
     pub tolerance: f64,
+    /// Largest reverse flow that is round-off, m³/s (see [`ROUND_OFF_FLOW`]).
+    pub reverse_floor: f64,
 }
+
+/// Share of the network's flow scale (its total demand, at least 1 L/s) below which a reverse
+/// flow is round-off, not reverse flow. A device that carries no flow at all (a check valve in
+/// front of a dead end without demand, a pump station's header with its pumps off) solves to a
+/// flow of zero give or take some 1e-27 m³/s, whose sign depends on the order of the
+/// factorization's operations; a rule that closed on any negative flow would cut such a node
+/// off on the sign of round-off. 1e-12 of the flow scale is ten orders of magnitude above that
+/// round-off and six below the flow tolerance.
+pub const ROUND_OFF_FLOW: f64 = 1e-12;
 
 /// Device states during one solve.
 #[derive(Debug)]
@@ -355,9 +367,11 @@ impl StatusTracker {
         let (ha, hb) = (o.head[a], o.head[b]);
         let both = o.connected[a] && o.connected[b];
         let state = self.state[k];
+        // Flowing backwards beyond round-off.
+        let reverse = q < -o.reverse_floor;
         match &l.kind {
             LinkKind::Pipe(_) => match state {
-                LinkState::Open if q < 0.0 => Some((LinkState::CheckValveClosed, -q)),
+                LinkState::Open if reverse => Some((LinkState::CheckValveClosed, -q)),
                 LinkState::CheckValveClosed => {
                     if both && ha - hb > tau {
                         Some((LinkState::Open, ha - hb))
@@ -370,7 +384,7 @@ impl StatusTracker {
                 _ => None,
             },
             LinkKind::Pump(_) => match state {
-                LinkState::Open if q < 0.0 => Some((LinkState::PumpShutoff, -q)),
+                LinkState::Open if reverse => Some((LinkState::PumpShutoff, -q)),
                 LinkState::PumpShutoff => {
                     let lift = hb - ha;
                     let shutoff = (o.shutoff)(k);
@@ -392,14 +406,14 @@ impl StatusTracker {
                     ValveType::PressureReducing => {
                         let set = model.nodes()[b].elevation + conditions.valve_setting(k);
                         match state {
-                            LinkState::Active if q < 0.0 => Some((LinkState::ValveClosed, -q)),
+                            LinkState::Active if reverse => Some((LinkState::ValveClosed, -q)),
                             // Another device holds the downstream head above this setting.
                             LinkState::Active if hb > set + tau => Some((LinkState::ValveClosed, hb - set)),
                             LinkState::Active => {
                                 let available = ha - (o.open_loss)(k, q);
                                 (available < set - tau).then_some((LinkState::OpenUpstreamLow, set - available))
                             }
-                            LinkState::OpenUpstreamLow if q < 0.0 => Some((LinkState::ValveClosed, -q)),
+                            LinkState::OpenUpstreamLow if reverse => Some((LinkState::ValveClosed, -q)),
                             LinkState::OpenUpstreamLow if hb > set + tau => {
                                 let next = if fixed_to { LinkState::ValveClosed } else { LinkState::Active };
                                 Some((next, hb - set))
@@ -415,14 +429,14 @@ impl StatusTracker {
                     ValveType::PressureSustaining => {
                         let set = model.nodes()[a].elevation + conditions.valve_setting(k);
                         match state {
-                            LinkState::Active if q < 0.0 => Some((LinkState::ValveClosed, -q)),
+                            LinkState::Active if reverse => Some((LinkState::ValveClosed, -q)),
                             // Another device holds the upstream head above this setting.
                             LinkState::Active if ha > set + tau => Some((LinkState::OpenAboveSetting, ha - set)),
                             LinkState::Active => {
                                 let needed = hb + (o.open_loss)(k, q);
                                 (needed > set + tau).then_some((LinkState::OpenAboveSetting, needed - set))
                             }
-                            LinkState::OpenAboveSetting if q < 0.0 => Some((LinkState::ValveClosed, -q)),
+                            LinkState::OpenAboveSetting if reverse => Some((LinkState::ValveClosed, -q)),
                             LinkState::OpenAboveSetting if ha < set - tau => {
                                 let next = if fixed_from { LinkState::ValveClosed } else { LinkState::Active };
                                 Some((next, set - ha))
@@ -440,7 +454,7 @@ impl StatusTracker {
                                 let needed = (o.open_loss)(k, set);
                                 (ha - hb < needed - tau).then_some((LinkState::OpenBelowSetting, needed - (ha - hb)))
                             }
-                            LinkState::OpenBelowSetting if q < 0.0 => Some((LinkState::ValveClosed, -q)),
+                            LinkState::OpenBelowSetting if reverse => Some((LinkState::ValveClosed, -q)),
                             LinkState::OpenBelowSetting if q > set * (1.0 + 1e-9) + 1e-12 => {
                                 Some((LinkState::Active, q - set))
                             }
@@ -452,5 +466,53 @@ impl StatusTracker {
                 }
             }
         }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::model::{HydraulicOptions, Link, Node, Pipe};
+    use crate::units::UnitSystem;
+
+    /// Fault: with one order of the factorization's operations, the check valve in front of a
+    /// pump station's header (no demand: its flow is zero give or take 1e-27 m³/s) closed on a
+    /// reverse flow of round-off and cut the header off. The class: every rule that closes a
+    /// device on reverse flow (check valves, pumps, regulating valves) takes a reverse flow within
+    /// round-off as none, and one beyond it as reverse flow.
+    #[test]
+    fn a_reverse_flow_of_round_off_closes_no_device() {
+        let mut m = Model::new(UnitSystem::default(), HydraulicOptions::default());
+        m.add_node(Node::reservoir("R", 50.0)).unwrap();
+        m.add_node(Node::junction("J1", 0.0, 1e-3)).unwrap();
+        m.add_node(Node::junction("Header", 0.0, 0.0)).unwrap();
+        let pipe = |id: &str, from, to, check_valve| Link {
+            id: id.into(),
+            from,
+            to,
+            status: LinkStatus::Open,
+            kind: LinkKind::Pipe(Pipe { length: 100.0, diameter: 0.1, roughness: 120.0, minor_loss: 0.0, check_valve }),
+        };
+        m.add_link(pipe("P1", 0, 1, false)).unwrap();
+        m.add_link(pipe("CV", 2, 1, true)).unwrap();
+        let conditions = Conditions::from_model(&m);
+        let decide = |reverse: f64| {
+            let mut tracker = StatusTracker::new(&m, &conditions);
+            let flow = [1e-3, -reverse];
+            let seen = Observed {
+                flow: &flow,
+                head: &[50.0, 49.9, 49.9],
+                connected: &[true, true, true],
+                open_loss: &|_, _| f64::NAN,
+                shutoff: &|_| f64::INFINITY,
+                tolerance: 1e-4,
+                reverse_floor: ROUND_OFF_FLOW * 1e-3,
+            };
+            let changes = tracker.update(&m, &conditions, &seen).unwrap();
+            (changes, tracker.state[1])
+        };
+        assert_eq!(decide(1e-27), (0, LinkState::Open));
+        assert_eq!(decide(0.9 * ROUND_OFF_FLOW * 1e-3), (0, LinkState::Open));
+        assert_eq!(decide(1e-9), (1, LinkState::CheckValveClosed));
     }
 }

@@ -15,7 +15,16 @@
 //! summed from fixed outflows. [`Structure::trees`] lists
 //! the tree pipes leaves first: flows accumulate in that order, heads in the reverse.
 //!
-//! # Why faer's simplicial Cholesky with AMD
+//! # Why faer's simplicial Cholesky, and the ordering
+//! The head matrix of a street network has about three entries per column and its factor about
+//! six to eight: too sparse for supernodes to pay (faer's supernodal factorization, tried on the
+//! same ordering at a million junctions, padded the factor from 4.25 to 7.69 million values and
+//! was slower). The fill-reducing ordering takes the unknowns with at most two neighbours first
+//! (some 40 % of a street network's core: junctions between two pipes), eliminated as minimum
+//! degree would eliminate them, and approximate minimum degree (AMD, faer's) for the graph they
+//! leave (see `ordering`): the factor is as small as with AMD alone, and AMD works on a smaller
+//! graph (measured at a million junctions: 340 ms instead of 521 ms, under load; the factor
+//! 4.13 million values instead of 4.20).
 use super::topology::Adjacency;
 use crate::model::{LinkKind, Model};
 use faer::dyn_stack::{MemBuffer, MemStack, StackReq};
@@ -389,8 +398,108 @@ impl Structure {
     }
 }
 
-/// AMD ordering of the pattern given as upper pairs (i < j); returns `perm_inv[old] = new`.
+/// Fill-reducing ordering of the pattern given as upper pairs (i < j); returns
+/// `perm_inv[old] = new`.
+///
+/// Unknowns with at most two neighbours come first, eliminated one after another as minimum
+/// degree would (see [`eliminate_simple`]); AMD orders the rest, on the graph those
+/// eliminations leave. In a street network's core some 40 % of the unknowns are junctions
+/// between two pipes, so AMD (the larger part of the analysis) works on a graph about that much
+/// smaller, and the factor is the same size: eliminating a node of degree two only joins its
+/// two neighbours, the least fill any order can give it.
 fn ordering(n: usize, pairs: &[(u32, u32)]) -> Vec<usize> {
+    if n == 0 {
+        return Vec::new();
+    }
+    let (first, rest, rest_pairs) = eliminate_simple(n, pairs);
+    let m = rest.len();
+    let mut perm_inv = vec![0usize; n];
+    for (new, &old) in first.iter().enumerate() {
+        perm_inv[old as usize] = new;
+    }
+    for (new, old) in amd_order(m, &rest_pairs).into_iter().enumerate() {
+        perm_inv[rest[old] as usize] = first.len() + new;
+    }
+    perm_inv
+}
+
+/// Greedy elimination of the unknowns with at most two neighbours (see [`ordering`]): a node
+/// of degree one or zero leaves no fill; one of degree two joins its two neighbours (their
+/// degrees stay as they were, or fall by one where they were already joined, which may make
+/// them eligible in turn). Returns the eliminated unknowns in order, the others in their
+/// original order, and the remaining graph's upper pairs numbered in that order.
+fn eliminate_simple(n: usize, pairs: &[(u32, u32)]) -> (Vec<u32>, Vec<u32>, Vec<(u32, u32)>) {
+    // Neighbour lists in one array; a list only shrinks or has an entry replaced, never grows.
+    let mut start = vec![0u32; n + 1];
+    for &(a, b) in pairs {
+        start[a as usize + 1] += 1;
+        start[b as usize + 1] += 1;
+    }
+    for j in 0..n {
+        start[j + 1] += start[j];
+    }
+    let mut len = vec![0u32; n];
+    let mut adj = vec![0u32; start[n] as usize];
+    for &(a, b) in pairs {
+        for (x, y) in [(a, b), (b, a)] {
+            adj[(start[x as usize] + len[x as usize]) as usize] = y;
+            len[x as usize] += 1;
+        }
+    }
+    let list = |len: &[u32], x: usize| (start[x] as usize, start[x] as usize + len[x] as usize);
+    let mut gone = vec![false; n];
+    let mut queued: Vec<u32> = (0..n as u32).filter(|&x| len[x as usize] <= 2).collect();
+    let mut first = Vec::with_capacity(queued.len());
+    // Removes `x` from `a`'s list, or puts `y` in its place when `a` and `y` are not yet joined.
+    let unlink = |adj: &mut [u32], len: &mut [u32], a: usize, x: u32, y: Option<u32>| {
+        let (s, e) = list(len, a);
+        let at = s + adj[s..e].iter().position(|&v| v == x).expect("symmetric lists");
+        match y {
+            Some(y) if !adj[s..e].contains(&y) => adj[at] = y,
+            _ => {
+                adj[at] = adj[e - 1];
+                len[a] -= 1;
+            }
+        }
+    };
+    while let Some(x) = queued.pop() {
+        let xu = x as usize;
+        if gone[xu] || len[xu] > 2 {
+            continue;
+        }
+        gone[xu] = true;
+        first.push(x);
+        let (s, e) = list(&len, xu);
+        let (a0, a1) = (adj[s..e].first().copied(), adj[s..e].get(1).copied());
+        for (a, other) in [(a0, a1), (a1, a0)] {
+            if let Some(a) = a {
+                unlink(&mut adj, &mut len, a as usize, x, other);
+                if len[a as usize] <= 2 && !gone[a as usize] {
+                    queued.push(a);
+                }
+            }
+        }
+    }
+    let rest: Vec<u32> = (0..n as u32).filter(|&x| !gone[x as usize]).collect();
+    let mut number = vec![NONE; n];
+    for (i, &x) in rest.iter().enumerate() {
+        number[x as usize] = i as u32;
+    }
+    let mut rest_pairs = Vec::new();
+    for &x in &rest {
+        let (s, e) = list(&len, x as usize);
+        for &y in &adj[s..e] {
+            let (a, b) = (number[x as usize], number[y as usize]);
+            if a < b {
+                rest_pairs.push((a, b));
+            }
+        }
+    }
+    (first, rest, rest_pairs)
+}
+
+/// AMD ordering of the pattern given as upper pairs (i < j); returns `order[new] = old`.
+fn amd_order(n: usize, pairs: &[(u32, u32)]) -> Vec<usize> {
     if n == 0 {
         return Vec::new();
     }
@@ -418,7 +527,7 @@ fn ordering(n: usize, pairs: &[(u32, u32)]) -> Vec<usize> {
     let mut perm_inv = vec![0usize; n];
     let mut mem = MemBuffer::new(amd::order_scratch::<usize>(n, row_idx.len()));
     match amd::order(&mut perm, &mut perm_inv, a, amd::Control::default(), MemStack::new(&mut mem)) {
-        Ok(_) => perm_inv,
+        Ok(_) => perm,
         // AMD only fails on index overflow, far beyond any network; fall back to the identity.
         Err(_) => (0..n).collect(),
     }
@@ -570,5 +679,113 @@ mod tests {
         m.replace_link(k, link).unwrap();
         assert!(!p.fits(&m));
         assert!(!Structure::analyse(&m).unwrap().in_tree[7]);
+    }
+
+    /// Factor non-zeros (diagonal included) of the pattern `pairs` eliminated in the order
+    /// `perm_inv[old] = new`, by the elimination game; also checks that each of the first
+    /// `simple` unknowns had at most two neighbours left when it was eliminated.
+    fn fill_of(n: usize, pairs: &[(u32, u32)], perm_inv: &[usize], simple: usize) -> usize {
+        use std::collections::BTreeSet;
+        let mut seen = vec![false; n];
+        for &p in perm_inv {
+            assert!(p < n && !seen[p], "the ordering is a permutation");
+            seen[p] = true;
+        }
+        let mut adj: Vec<BTreeSet<usize>> = vec![BTreeSet::new(); n];
+        for &(a, b) in pairs {
+            let (a, b) = (perm_inv[a as usize], perm_inv[b as usize]);
+            adj[a].insert(b);
+            adj[b].insert(a);
+        }
+        let mut nnz = 0;
+        for k in 0..n {
+            let later: Vec<usize> = adj[k].iter().copied().filter(|&j| j > k).collect();
+            if k < simple {
+                assert!(later.len() <= 2, "unknown {k}, eliminated first, had {} neighbours", later.len());
+            }
+            nnz += 1 + later.len();
+            for (i, &a) in later.iter().enumerate() {
+                for &b in &later[i + 1..] {
+                    adj[a].insert(b);
+                    adj[b].insert(a);
+                }
+            }
+        }
+        nnz
+    }
+
+    /// The upper pairs of a model's core, as `Structure::analyse` makes them.
+    fn core_pairs(model: &Model) -> (usize, Vec<(u32, u32)>) {
+        let s = Structure::analyse(model).unwrap();
+        let mut pairs: Vec<(u32, u32)> = s
+            .core
+            .iter()
+            .filter(|c| c.slots.from != NONE && c.slots.to != NONE)
+            .map(|c| {
+                let (a, b) = (s.node_of_unknown[c.slots.from as usize], s.node_of_unknown[c.slots.to as usize]);
+                (a.min(b), a.max(b))
+            })
+            .collect();
+        // Numbered as the analysis numbers them before ordering: core junctions in node order.
+        let mut number = vec![NONE; model.nodes().len()];
+        let mut sorted: Vec<u32> = s.node_of_unknown.clone();
+        sorted.sort_unstable();
+        for (i, &node) in sorted.iter().enumerate() {
+            number[node as usize] = i as u32;
+        }
+        for p in &mut pairs {
+            let (a, b) = (number[p.0 as usize], number[p.1 as usize]);
+            *p = (a.min(b), a.max(b));
+        }
+        pairs.sort_unstable();
+        pairs.dedup();
+        (s.n, pairs)
+    }
+
+    #[test]
+    fn simple_unknowns_are_eliminated_first_with_the_least_fill() {
+        // A ring of six, a path of four and a ladder of 2 × 5 (whose corners have two neighbours,
+        // and whose rungs become eligible as the corners go): fill by hand.
+        let ring: Vec<(u32, u32)> = (0..6).map(|i| (i, (i + 1) % 6)).map(|(a, b)| (a.min(b), a.max(b))).collect();
+        let (first, rest, _) = eliminate_simple(6, &ring);
+        assert_eq!((first.len(), rest.len()), (6, 0));
+        // Each of the first n − 3 joins its two neighbours (two entries below its diagonal), and
+        // the triangle left takes two, one and none: 2 (n − 3) + 3, plus n on the diagonal.
+        assert_eq!(fill_of(6, &ring, &ordering(6, &ring), 6), 6 + 2 * 3 + 3);
+        let path = [(0, 1), (1, 2), (2, 3)];
+        assert_eq!(fill_of(4, &path, &ordering(4, &path), 4), 4 + 3);
+        let mut ladder = Vec::new();
+        for i in 0..5u32 {
+            ladder.push((2 * i, 2 * i + 1));
+            if i < 4 {
+                ladder.push((2 * i, 2 * i + 2));
+                ladder.push((2 * i + 1, 2 * i + 3));
+            }
+        }
+        let (first, rest, _) = eliminate_simple(10, &ladder);
+        assert_eq!(first.len() + rest.len(), 10);
+        let order = ordering(10, &ladder);
+        let fill = fill_of(10, &ladder, &order, first.len());
+        // A ladder eliminated end to end keeps at most three entries per column.
+        assert!(fill <= 10 + 2 * 10, "{fill}");
+    }
+
+    #[test]
+    fn the_ordering_fills_no_more_than_amd_alone_on_street_networks() {
+        for (junctions, seed) in [(2_000, 7), (20_000, 1)] {
+            let model = crate::generate::generate(&crate::generate::NetworkSpec::new(junctions, seed)).unwrap();
+            let (n, pairs) = core_pairs(&model);
+            let (first, _, _) = eliminate_simple(n, &pairs);
+            assert!(first.len() * 5 > n, "{} of {n} unknowns are simple", first.len());
+            let ours = fill_of(n, &pairs, &ordering(n, &pairs), first.len());
+            let mut amd_alone = vec![0usize; n];
+            for (new, old) in amd_order(n, &pairs).into_iter().enumerate() {
+                amd_alone[old] = new;
+            }
+            let theirs = fill_of(n, &pairs, &amd_alone, 0);
+            assert!(ours as f64 <= 1.01 * theirs as f64, "{junctions} junctions: {ours} against AMD's {theirs}");
+            // And the analysis's symbolic factor is the one the game counts.
+            assert_eq!(Structure::analyse(&model).unwrap().factor_nnz(), ours);
+        }
     }
 }
