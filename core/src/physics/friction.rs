@@ -146,7 +146,7 @@ impl Friction {
                 if a == 0.0 {
                     return (0.0, 0.0);
                 }
-                let h = r * a.powf(HW_FLOW_EXPONENT);
+                let h = r * super::flow_power::hw_flow_power(a);
                 (h.copysign(q), HW_FLOW_EXPONENT * h / a)
             }
             Friction::DarcyWeisbach { k, re_per_flow, relative_roughness } => {

@@ -9,6 +9,7 @@
 
 pub mod atmosphere;
 pub mod fittings;
+pub mod flow_power;
 pub mod friction;
 pub mod outflow;
 pub mod pump;

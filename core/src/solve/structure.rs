@@ -407,7 +407,23 @@ impl Structure {
 /// between two pipes, so AMD (the larger part of the analysis) works on a graph about that much
 /// smaller, and the factor is the same size: eliminating a node of degree two only joins its
 /// two neighbours, the least fill any order can give it.
+///
+/// That order is then renumbered by a postorder of its elimination tree ([`postorder`]): the
+/// same factor, entry for entry, with every subtree's columns side by side. Measured on the
+/// generated networks (seed 7, under load, least of several runs): the numeric factorization
+/// 71 ms instead of 79 at 1e5 junctions and some 10 % less at 1e6, the triangular solves some
+/// 25 % less at 1e6; the postorder itself costs one pass over the pattern.
 fn ordering(n: usize, pairs: &[(u32, u32)]) -> Vec<usize> {
+    let mut perm_inv = minimum_degree_order(n, pairs);
+    let post = postorder(n, pairs, &perm_inv);
+    for p in perm_inv.iter_mut() {
+        *p = post[*p] as usize;
+    }
+    perm_inv
+}
+
+/// The order of [`ordering`] before its postorder: the simple unknowns first, then AMD's.
+fn minimum_degree_order(n: usize, pairs: &[(u32, u32)]) -> Vec<usize> {
     if n == 0 {
         return Vec::new();
     }
@@ -421,6 +437,90 @@ fn ordering(n: usize, pairs: &[(u32, u32)]) -> Vec<usize> {
         perm_inv[rest[old] as usize] = first.len() + new;
     }
     perm_inv
+}
+
+/// A postorder of the elimination tree of the pattern `pairs` numbered by `perm_inv`
+/// (`post[old] = new`, both in `perm_inv`'s numbering): every subtree's columns become one
+/// contiguous range ending at its root. The factor's pattern and size are unchanged (a
+/// postorder is an equivalent ordering: each column keeps its ancestors and descendants), but
+/// the columns a row of the factor reaches lie just before it, in memory the factorization and
+/// the triangular solves have touched last.
+fn postorder(n: usize, pairs: &[(u32, u32)], perm_inv: &[usize]) -> Vec<u32> {
+    // Lower neighbours of every column in the new numbering (rows i < j of column j).
+    let mut start = vec![0u32; n + 1];
+    for &(a, b) in pairs {
+        let (pa, pb) = (perm_inv[a as usize], perm_inv[b as usize]);
+        start[pa.max(pb) + 1] += 1;
+    }
+    for j in 0..n {
+        start[j + 1] += start[j];
+    }
+    let mut lower = vec![0u32; start[n] as usize];
+    let mut fill = start.clone();
+    for &(a, b) in pairs {
+        let (pa, pb) = (perm_inv[a as usize], perm_inv[b as usize]);
+        let (i, j) = (pa.min(pb), pa.max(pb));
+        lower[fill[j] as usize] = i as u32;
+        fill[j] += 1;
+    }
+    drop(fill);
+    // The elimination tree (Liu's algorithm with path compression through `ancestor`).
+    let mut parent = vec![NONE; n];
+    let mut ancestor = vec![NONE; n];
+    for j in 0..n {
+        for &i in &lower[start[j] as usize..start[j + 1] as usize] {
+            let mut i = i as usize;
+            while i != j {
+                let next = ancestor[i];
+                ancestor[i] = j as u32;
+                if next == NONE {
+                    parent[i] = j as u32;
+                    break;
+                }
+                i = next as usize;
+            }
+        }
+    }
+    drop(ancestor);
+    drop(lower);
+    // Children lists (in increasing order), then a depth-first walk from each root in turn.
+    let mut child_start = vec![0u32; n + 1];
+    for &p in &parent {
+        if p != NONE {
+            child_start[p as usize + 1] += 1;
+        }
+    }
+    for j in 0..n {
+        child_start[j + 1] += child_start[j];
+    }
+    let mut children = vec![0u32; child_start[n] as usize];
+    let mut fill = child_start.clone();
+    for (j, &p) in parent.iter().enumerate() {
+        if p != NONE {
+            children[fill[p as usize] as usize] = j as u32;
+            fill[p as usize] += 1;
+        }
+    }
+    drop(fill);
+    let mut post = vec![0u32; n];
+    let mut next = 0u32;
+    // (node, position of its next child to visit)
+    let mut stack: Vec<(u32, u32)> = Vec::new();
+    for root in (0..n).filter(|&j| parent[j] == NONE) {
+        stack.push((root as u32, child_start[root]));
+        while let Some(&mut (node, ref mut at)) = stack.last_mut() {
+            if *at < child_start[node as usize + 1] {
+                let child = children[*at as usize];
+                *at += 1;
+                stack.push((child, child_start[child as usize]));
+            } else {
+                post[node as usize] = next;
+                next += 1;
+                stack.pop();
+            }
+        }
+    }
+    post
 }
 
 /// Greedy elimination of the unknowns with at most two neighbours (see [`ordering`]): a node
@@ -751,9 +851,9 @@ mod tests {
         assert_eq!((first.len(), rest.len()), (6, 0));
         // Each of the first n − 3 joins its two neighbours (two entries below its diagonal), and
         // the triangle left takes two, one and none: 2 (n − 3) + 3, plus n on the diagonal.
-        assert_eq!(fill_of(6, &ring, &ordering(6, &ring), 6), 6 + 2 * 3 + 3);
+        assert_eq!(fill_of(6, &ring, &minimum_degree_order(6, &ring), 6), 6 + 2 * 3 + 3);
         let path = [(0, 1), (1, 2), (2, 3)];
-        assert_eq!(fill_of(4, &path, &ordering(4, &path), 4), 4 + 3);
+        assert_eq!(fill_of(4, &path, &minimum_degree_order(4, &path), 4), 4 + 3);
         let mut ladder = Vec::new();
         for i in 0..5u32 {
             ladder.push((2 * i, 2 * i + 1));
@@ -764,7 +864,7 @@ mod tests {
         }
         let (first, rest, _) = eliminate_simple(10, &ladder);
         assert_eq!(first.len() + rest.len(), 10);
-        let order = ordering(10, &ladder);
+        let order = minimum_degree_order(10, &ladder);
         let fill = fill_of(10, &ladder, &order, first.len());
         // A ladder eliminated end to end keeps at most three entries per column.
         assert!(fill <= 10 + 2 * 10, "{fill}");
@@ -777,7 +877,9 @@ mod tests {
             let (n, pairs) = core_pairs(&model);
             let (first, _, _) = eliminate_simple(n, &pairs);
             assert!(first.len() * 5 > n, "{} of {n} unknowns are simple", first.len());
-            let ours = fill_of(n, &pairs, &ordering(n, &pairs), first.len());
+            let ours = fill_of(n, &pairs, &minimum_degree_order(n, &pairs), first.len());
+            // The postorder changes no column's count, only where it stands.
+            assert_eq!(fill_of(n, &pairs, &ordering(n, &pairs), 0), ours);
             let mut amd_alone = vec![0usize; n];
             for (new, old) in amd_order(n, &pairs).into_iter().enumerate() {
                 amd_alone[old] = new;
@@ -786,6 +888,62 @@ mod tests {
             assert!(ours as f64 <= 1.01 * theirs as f64, "{junctions} junctions: {ours} against AMD's {theirs}");
             // And the analysis's symbolic factor is the one the game counts.
             assert_eq!(Structure::analyse(&model).unwrap().factor_nnz(), ours);
+        }
+    }
+
+    /// The ordering's elimination tree is postordered: every column's descendants are the
+    /// columns just before it (as many as its subtree holds), and every parent comes after its
+    /// child; checked on generated street networks, a ring and a path.
+    #[test]
+    fn the_ordering_is_a_postorder_of_its_elimination_tree() {
+        let ring: Vec<(u32, u32)> = (0..9).map(|i| (i, (i + 1) % 9)).map(|(a, b)| (a.min(b), a.max(b))).collect();
+        let path: Vec<(u32, u32)> = (0..7).map(|i| (i, i + 1)).collect();
+        let mut cases = vec![(9, ring), (8, path)];
+        for (junctions, seed) in [(500, 3), (3_000, 7)] {
+            let model = crate::generate::generate(&crate::generate::NetworkSpec::new(junctions, seed)).unwrap();
+            cases.push(core_pairs(&model));
+        }
+        for (n, pairs) in cases {
+            let perm_inv = ordering(n, &pairs);
+            // The elimination tree by the definition: a column's parent is the lowest row below
+            // its diagonal in the factor (the elimination game's first later neighbour).
+            use std::collections::BTreeSet;
+            let mut adj: Vec<BTreeSet<usize>> = vec![BTreeSet::new(); n];
+            for &(a, b) in &pairs {
+                let (a, b) = (perm_inv[a as usize], perm_inv[b as usize]);
+                adj[a].insert(b);
+                adj[b].insert(a);
+            }
+            let mut parent = vec![usize::MAX; n];
+            for k in 0..n {
+                let later: Vec<usize> = adj[k].iter().copied().filter(|&j| j > k).collect();
+                if let Some(&p) = later.first() {
+                    parent[k] = p;
+                }
+                for (i, &a) in later.iter().enumerate() {
+                    for &b in &later[i + 1..] {
+                        adj[a].insert(b);
+                        adj[b].insert(a);
+                    }
+                }
+            }
+            let mut size = vec![1usize; n];
+            for k in 0..n {
+                if parent[k] != usize::MAX {
+                    assert!(parent[k] > k);
+                    size[parent[k]] += size[k];
+                }
+            }
+            for (k, &size) in size.iter().enumerate() {
+                // Every column of k's subtree lies in [k + 1 − size, k]: walk up from each.
+                for j in k + 1 - size..k {
+                    let mut a = j;
+                    while a != usize::MAX && a < k {
+                        a = parent[a];
+                    }
+                    assert_eq!(a, k, "column {j} lies in the range of {k}'s subtree but is not in it (n {n})");
+                }
+            }
         }
     }
 }
