@@ -29,9 +29,10 @@
 //! Device states and relations of pressure work as in a plain solve: the border only changes the
 //! step's corrections and the draw; the damping of the iteration damps the draw's step as well.
 
-use super::assemble::{link_ends, RelationChange, FREE_FROM, FREE_TO, MODE_FIXED_FLOW, MODE_LAW, MODE_MASK};
+use super::assemble::{link_ends, FREE_FROM, FREE_TO, LAW_GENERAL, MODE_FIXED_FLOW, MODE_LAW, MODE_MASK};
 use super::chord::{backward, forward};
 use super::iterate::MASS_GATE;
+use super::links;
 use super::status::StatusTracker;
 use super::structure::NONE;
 use super::{Solution, SolveOptions, Solver};
@@ -87,6 +88,15 @@ pub(super) struct Hold {
     /// For each node, the position in `Structure::trees` of the tree pipe to its parent
     /// (`NONE` for core nodes); made once per solver.
     parent: Vec<u32>,
+    /// The last head loss a light solve evaluated on each core link's law, beside the flow it
+    /// was evaluated at (`[q, h(q)]`, the flow's bits compared before reuse): the last pass of a
+    /// solve evaluates every law at the flows the next solve starts from, so its first step
+    /// ([`Solver::light_chord_start`]) need not evaluate them again.
+    core_loss: Vec<[f64; 2]>,
+    /// The same for the tree pipes (`[Q, h(Q)]`): their flows are the fixed outflows beyond
+    /// them, the same at every answer but on the draw's path, so the tree heads of an answer
+    /// evaluate only the laws of the pipes whose flow changed.
+    tree_loss: Vec<[f64; 2]>,
 }
 
 impl Solver {
@@ -109,10 +119,6 @@ impl Solver {
                 ModelError::at(Some(Element::Node(id)), Some("head"), format!("is not finite: {}", held.head)).into()
             );
         }
-        let (w, z, parent, cp_factored, factored) = match self.hold.take() {
-            Some(h) => (h.w, h.z, h.parent, h.cp_factored, h.factored),
-            None => (Vec::new(), Vec::new(), Vec::new(), Vec::new(), false),
-        };
         if !held.start.is_finite() {
             let id = model.nodes()[held.draw_at].id.to_string();
             return Err(ModelError::at(
@@ -122,21 +128,36 @@ impl Solver {
             )
             .into());
         }
-        self.hold = Some(Box::new(Hold {
-            held,
-            draw: 0.0,
-            change: 0.0,
-            loose: 0.0,
-            draw_unknown: NONE,
-            target_root: NONE,
-            target_unknown: NONE,
-            target_path: Vec::new(),
-            w,
-            z,
-            parent,
-            cp_factored,
-            factored,
-        }));
+        // The scratch of the last held solve stays (its factor's conductances, the laws' last
+        // values); the border is new.
+        if let Some(h) = self.hold.as_mut() {
+            h.held = held;
+            h.draw = 0.0;
+            h.change = 0.0;
+            h.loose = 0.0;
+            h.draw_unknown = NONE;
+            h.target_root = NONE;
+            h.target_unknown = NONE;
+            h.target_path.clear();
+        } else {
+            self.hold = Some(Box::new(Hold {
+                held,
+                draw: 0.0,
+                change: 0.0,
+                loose: 0.0,
+                draw_unknown: NONE,
+                target_root: NONE,
+                target_unknown: NONE,
+                target_path: Vec::new(),
+                w: Vec::new(),
+                z: Vec::new(),
+                parent: Vec::new(),
+                cp_factored: Vec::new(),
+                factored: false,
+                core_loss: Vec::new(),
+                tree_loss: Vec::new(),
+            }));
+        }
         Ok(())
     }
 
@@ -480,6 +501,7 @@ impl Solver {
         if from_base {
             self.restore(base);
         }
+        self.keep_losses(from_base);
         self.reset_hold();
         self.demand_scale = self.demand.iter().map(|d| d.abs()).sum::<f64>().max(1e-3);
         self.tree_flows();
@@ -581,14 +603,7 @@ impl Solver {
                 (true, false) => 0.0,
             };
             chord = (!chord || contracted) && step <= CHORD_HEAD && chord_steps < CHORD_STEPS;
-            let (change, energy_residual) = if chord {
-                self.light_chord_update()
-            } else {
-                self.begin_assembly();
-                let result = self.update_links(model, false, RelationChange::default(), 1.0);
-                self.end_assembly();
-                result
-            };
+            let (change, energy_residual) = if chord { self.light_chord_update() } else { self.light_newton_update() };
             let flow_change = change.max(self.hold_change());
             if !finite || !flow_change.is_finite() {
                 return Err(SolveError::Numerical {
@@ -632,6 +647,7 @@ impl Solver {
         for (r, &d) in self.rhs.iter_mut().zip(&self.unknown_demand) {
             *r = -d;
         }
+        let losses = self.hold.as_ref().map_or(&[][..], |h| &h.core_loss[..]);
         let structure = &*self.structure;
         for (i, c) in structure.core.iter().enumerate() {
             let mode = self.mode[i];
@@ -639,7 +655,10 @@ impl Solver {
                 MODE_LAW => {
                     let ((_, h_from), (_, h_to)) = link_ends(c, &self.delta, &self.unknown_head, &self.head);
                     let q = self.cq[i];
-                    let y = self.core_law(i, q).0;
+                    let y = match losses.get(i) {
+                        Some(&[at, y]) if at.to_bits() == q.to_bits() => y,
+                        _ => self.core_law(i, q).0,
+                    };
                     self.cc[i] = q + self.cp[i] * (h_from - h_to - y);
                 }
                 MODE_FIXED_FLOW => self.cc[i] = self.cq[i],
@@ -668,6 +687,8 @@ impl Solver {
             *r = -d;
         }
         let structure = self.structure.clone();
+        let mut losses = self.hold.as_mut().map(|h| std::mem::take(&mut h.core_loss)).unwrap_or_default();
+        losses.resize(structure.core.len(), [f64::NAN; 2]);
         for (i, c) in structure.core.iter().enumerate() {
             let mode = self.mode[i];
             match mode & MODE_MASK {
@@ -677,6 +698,7 @@ impl Solver {
                     let q = self.cc[i] + p * (d_from - d_to);
                     let dh = h_from - h_to;
                     let y = self.core_law(i, q).0;
+                    losses[i] = [q, y];
                     residual = residual.max((y - dh).abs());
                     sum_dq += (q - self.cq[i]).abs();
                     sum_q += q.abs();
@@ -698,7 +720,107 @@ impl Solver {
                 *r = 0.0;
             }
         }
+        if let Some(h) = self.hold.as_mut() {
+            h.core_loss = losses;
+        }
         (sum_dq / sum_q.max(self.demand_scale), residual)
+    }
+
+    /// Keeps the laws' last values for this light solve, or drops them when it starts from
+    /// the base case (after anything but a light solve the laws may be others).
+    fn keep_losses(&mut self, from_base: bool) {
+        let (n_core, n_trees) = (self.structure.core.len(), self.structure.trees.len());
+        if let Some(h) = self.hold.as_mut() {
+            if from_base {
+                h.core_loss.clear();
+                h.tree_loss.clear();
+            }
+            h.core_loss.resize(n_core, [f64::NAN; 2]);
+            h.tree_loss.resize(n_trees, [f64::NAN; 2]);
+        }
+    }
+
+    /// The pass after a light Newton step: `update_links` for a network that light solves
+    /// serve (no relations, no pinned valves, no damping, Newton's slopes), in the same
+    /// operations, the matrix and right-hand side assembled; each law's value is also kept for
+    /// the next solve's first step. Returns the relative flow change and the largest energy
+    /// residual.
+    fn light_newton_update(&mut self) -> (f64, f64) {
+        self.begin_assembly();
+        let mut losses = self.hold.as_mut().map(|h| std::mem::take(&mut h.core_loss)).unwrap_or_default();
+        let structure = &*self.structure;
+        losses.resize(structure.core.len(), [f64::NAN; 2]);
+        let (mut sum_dq, mut sum_q, mut residual) = (0.0, self.tree_flow_sum + 0.0, 0.0f64);
+        let (laws, delta, unknown_head, head) = (&self.laws, &self.delta, &self.unknown_head, &self.head);
+        let (values, rhs) = (&mut self.factor.values, &mut self.rhs);
+        let states = self.hot.iter().zip(&self.mode).zip(self.cq.iter_mut().zip(&mut self.cp).zip(&mut self.cc));
+        for ((c, ((hot, &mode), ((cq, cp), cc))), loss) in structure.core.iter().zip(states).zip(losses.iter_mut()) {
+            match mode & MODE_MASK {
+                MODE_LAW => {
+                    let ((d_from, h_from), (d_to, h_to)) = link_ends(c, delta, unknown_head, head);
+                    let q = *cc + *cp * (d_from - d_to);
+                    let dh = h_from - h_to;
+                    let (y, g) = if mode & LAW_GENERAL != 0 {
+                        laws[c.link as usize].evaluate_exact(q)
+                    } else {
+                        links::hazen_williams(hot.r, hot.minor, q)
+                    };
+                    let p = 1.0 / g.max(hot.min_slope);
+                    *loss = [q, y];
+                    residual = residual.max((y - dh).abs());
+                    sum_dq += (q - *cq).abs();
+                    sum_q += q.abs();
+                    *cq = q;
+                    *cp = p;
+                    *cc = q + p * (dh - y);
+                }
+                MODE_FIXED_FLOW => sum_q += cq.abs(),
+                _ => continue,
+            }
+            let (p, c_value) = (*cp, *cc);
+            if mode & FREE_FROM != 0 {
+                values[c.diag_from as usize] += p;
+                rhs[c.slots.from as usize] -= c_value;
+            }
+            if mode & FREE_TO != 0 {
+                values[c.diag_to as usize] += p;
+                rhs[c.slots.to as usize] += c_value;
+            }
+            if mode & (FREE_FROM | FREE_TO) == FREE_FROM | FREE_TO {
+                values[c.slots.off as usize] -= p;
+            }
+        }
+        if let Some(h) = self.hold.as_mut() {
+            h.core_loss = losses;
+        }
+        self.end_assembly();
+        (sum_dq / sum_q.max(self.demand_scale), residual)
+    }
+
+    /// `tree_heads` in the same operations, a tree pipe's law evaluated only where its flow is
+    /// not the one of its last evaluation (the draw's path, in the analysis).
+    fn light_tree_heads(&mut self) {
+        let mut losses = self.hold.as_mut().map(|h| std::mem::take(&mut h.tree_loss)).unwrap_or_default();
+        losses.resize(self.structure.trees.len(), [f64::NAN; 2]);
+        for (t, loss) in self.structure.trees.iter().zip(losses.iter_mut()).rev() {
+            let (k, child, parent) = (t.link as usize, t.child as usize, t.parent as usize);
+            self.head[child] = if self.connected[child] {
+                let q = self.flow[k];
+                if loss[0].to_bits() != q.to_bits() {
+                    *loss = [q, self.laws[k].evaluate_exact(q).0];
+                }
+                if t.downstream {
+                    self.head[parent] - loss[1]
+                } else {
+                    self.head[parent] + loss[1]
+                }
+            } else {
+                f64::NAN
+            };
+        }
+        if let Some(h) = self.hold.as_mut() {
+            h.tree_loss = losses;
+        }
     }
 
     /// A light step's border, between the halves of the plain step's solve: with `y = L⁻¹ r` in
@@ -749,7 +871,7 @@ impl Solver {
     /// to round-off).
     fn light_answer(&mut self, model: &Model, pressure: &mut Vec<f64>) -> Result<(), SolveError> {
         self.sync_flows();
-        self.tree_heads();
+        self.light_tree_heads();
         let nodes = model.nodes();
         pressure.clear();
         pressure.extend(nodes.iter().zip(&self.head).zip(&self.connected).map(|((n, h), &c)| {
