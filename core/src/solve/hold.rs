@@ -81,6 +81,10 @@ pub(super) struct Hold {
     w: Vec<f64>,
     /// A light solve's `L⁻¹ e_t` (the held junction's unknown).
     z: Vec<f64>,
+    /// The columns of the elimination tree's paths up from the draw's unknown and from the
+    /// held one (where `w` and `z` of a light solve may differ from zero), ascending.
+    path_u: Vec<u32>,
+    path_v: Vec<u32>,
     /// The conductances of the core links in the solver's current factor (light solves), and
     /// whether that factor is one of a light solve that succeeded.
     cp_factored: Vec<f64>,
@@ -151,6 +155,8 @@ impl Solver {
                 target_path: Vec::new(),
                 w: Vec::new(),
                 z: Vec::new(),
+                path_u: Vec::new(),
+                path_v: Vec::new(),
                 parent: Vec::new(),
                 cp_factored: Vec::new(),
                 factored: false,
@@ -385,6 +391,31 @@ fn along_power(q0: f64, linear: f64) -> f64 {
     }
 }
 
+/// Solves `L y = e_j` in place, `x` holding `e_j` (zeros elsewhere): [`forward`] from column
+/// `j` on, but walking only the columns that can differ from zero, the path up the elimination
+/// tree from `j` (each column's parent is its first row below the diagonal), which is written
+/// into `path` in ascending order. The same operations as [`forward`] on those columns, so the
+/// same values.
+fn forward_up(structure: &super::Structure, l: &[f64], x: &mut [f64], j: usize, path: &mut Vec<u32>) {
+    let (col_ptr, row_idx) = (structure.symbolic.col_ptr(), structure.symbolic.row_idx());
+    let mut k = j;
+    loop {
+        path.push(k as u32);
+        let (start, end) = (col_ptr[k] as usize, col_ptr[k + 1] as usize);
+        if x[k] != 0.0 {
+            let v = x[k] / l[start];
+            x[k] = v;
+            for p in start + 1..end {
+                x[row_idx[p] as usize] -= l[p] * v;
+            }
+        }
+        if end <= start + 1 {
+            return;
+        }
+        k = row_idx[start + 1] as usize;
+    }
+}
+
 /// Largest head change (m) of a light solve's step after which the next steps are chord steps
 /// on its factor: conductances move by well under a percent in such a step.
 pub const CHORD_HEAD: f64 = 0.05;
@@ -503,6 +534,12 @@ impl Solver {
         }
         self.keep_losses(from_base);
         self.reset_hold();
+        // Zeros in the border's columns (a general held solve leaves them full); each light step
+        // leaves zeros behind.
+        if let Some(h) = self.hold.as_mut() {
+            h.w.fill(0.0);
+            h.z.fill(0.0);
+        }
         self.demand_scale = self.demand.iter().map(|d| d.abs()).sum::<f64>().max(1e-3);
         self.tree_flows();
         let chord =
@@ -841,28 +878,45 @@ impl Solver {
         let (u, v) = (hold.draw_unknown, hold.target_unknown);
         let u_free = u != NONE && self.free[u as usize];
         let v_free = v != NONE && self.free[v as usize];
-        let dot = |a: &[f64], b: &[f64]| a.iter().zip(b).map(|(x, y)| x * y).sum::<f64>();
-        hold.w.iter_mut().for_each(|x| *x = 0.0);
+        // The columns of `L⁻¹ e_u` and `L⁻¹ e_v` that are not zero lie on the elimination tree's
+        // paths up from u and from v: the solves, the dot products and the update of `rhs` walk
+        // those paths only (in ascending order, as the full loops would meet them), and leave
+        // zeros behind in `w` and `z`.
+        let (mut path_u, mut path_v) = (std::mem::take(&mut hold.path_u), std::mem::take(&mut hold.path_v));
+        path_u.clear();
+        path_v.clear();
+        let dot = |path: &[u32], a: &[f64], b: &[f64]| path.iter().map(|&k| a[k as usize] * b[k as usize]).sum::<f64>();
         if u_free {
             hold.w[u as usize] = 1.0;
-            forward(structure, l, &mut hold.w, u as usize);
+            forward_up(structure, l, &mut hold.w, u as usize, &mut path_u);
         }
         let (delta0, w_v) = if !v_free {
             (0.0, 0.0)
         } else if v == u {
-            (dot(&hold.w, &self.rhs), dot(&hold.w, &hold.w))
+            (dot(&path_u, &hold.w, &self.rhs), dot(&path_u, &hold.w, &hold.w))
         } else {
-            hold.z.iter_mut().for_each(|x| *x = 0.0);
             hold.z[v as usize] = 1.0;
-            forward(structure, l, &mut hold.z, v as usize);
-            (dot(&hold.z, &self.rhs), if u_free { dot(&hold.z, &hold.w) } else { 0.0 })
+            forward_up(structure, l, &mut hold.z, v as usize, &mut path_v);
+            (dot(&path_v, &hold.z, &self.rhs), if u_free { dot(&path_v, &hold.z, &hold.w) } else { 0.0 })
         };
-        let dq = along_power(hold.draw, self.border(model, iteration, hold, delta0, w_v)?);
+        let border = self.border(model, iteration, hold, delta0, w_v);
+        let dq = match border {
+            Ok(linear) => along_power(hold.draw, linear),
+            Err(_) => 0.0,
+        };
         if dq != 0.0 && u_free {
-            for (y, z) in self.rhs.iter_mut().zip(&hold.w) {
-                *y -= dq * z;
+            for &k in &path_u {
+                self.rhs[k as usize] -= dq * hold.w[k as usize];
             }
         }
+        for &k in &path_u {
+            hold.w[k as usize] = 0.0;
+        }
+        for &k in &path_v {
+            hold.z[k as usize] = 0.0;
+        }
+        (hold.path_u, hold.path_v) = (path_u, path_v);
+        border?;
         Ok(dq)
     }
 
