@@ -1142,6 +1142,31 @@ mod tests {
         assert!(loose_ends * 2 >= compared, "{loose_ends} of {compared} ended on the draw's tolerance");
     }
 
+    /// The path solve gives `forward`'s values to the bit, and its path holds every column
+    /// that is not zero, in ascending order.
+    #[test]
+    fn the_path_solve_is_the_forward_solve() {
+        let (_, _, solver, _) = generated_light(600, 7);
+        let (structure, l) = (&*solver.structure, solver.factor.l_values());
+        let n = structure.n;
+        let (mut path, mut compared) = (Vec::new(), 0);
+        for j in (0..n).step_by(7) {
+            let mut want = vec![0.0; n];
+            want[j] = 1.0;
+            forward(structure, l, &mut want, j);
+            let mut got = vec![0.0; n];
+            got[j] = 1.0;
+            path.clear();
+            forward_up(structure, l, &mut got, j, &mut path);
+            assert!(want.iter().zip(&got).all(|(a, b)| a.to_bits() == b.to_bits()), "column {j}");
+            assert!(path.windows(2).all(|p| p[0] < p[1]) && path[0] as usize == j, "column {j}: {path:?}");
+            let nonzero = (0..n).filter(|&k| got[k] != 0.0);
+            assert!(nonzero.into_iter().all(|k| path.contains(&(k as u32))), "column {j}");
+            compared += 1;
+        }
+        assert!(compared > 20 && n > 140, "{compared} of {n}");
+    }
+
     /// Light held solves give the general held solve's draw and pressures, from the base case
     /// and from the last hydrant's answer, holding the hydrant's own head and another's.
     #[test]
