@@ -630,7 +630,7 @@ impl Solver {
                 }
             }
             let head_change = if iterations == 1 { f64::INFINITY } else { step };
-            self.hold_apply(dq);
+            self.light_hold_apply(dq);
             // A chord step that contracted too little (or a NaN) stalls the chord; it may not end
             // the iteration, and Newton steps follow.
             let contracted = step <= CHORD_CONTRACTION * last_step;
@@ -672,6 +672,24 @@ impl Solver {
             }
             last_step = step;
         }
+    }
+
+    /// [`Solver::hold_apply`] in a light solve, whose tree flows are those of the draw so far
+    /// (`tree_flows` at its start and after every step): a draw in the core changes no tree flow
+    /// and no subtree, only its own unknown's outflow, which is set as `tree_flows` sets it; a
+    /// draw on a tree makes them again.
+    fn light_hold_apply(&mut self, dq: f64) {
+        let Some(hold) = self.hold.as_mut() else { return };
+        let node = hold.held.draw_at;
+        let u = self.structure.unknown_of_node[node];
+        if self.structure.in_tree[node] || u == NONE {
+            self.hold_apply(dq);
+            return;
+        }
+        hold.draw += dq;
+        hold.change = dq.abs();
+        self.demand[node] += dq;
+        self.unknown_demand[u as usize] = self.demand[node] + self.subtree[node];
     }
 
     /// The first step of a light solve that continues from the last one's answer, on its factor:
