@@ -450,18 +450,20 @@ impl Context<'_> {
         let residual = self.options.residual;
         let p0 = &self.without.pressure;
         // The draw at which junction i reaches the residual, along p(Q) = p(0) − k Q^1.852
-        // through the sample (q, p); infinite when it does not fall.
-        let estimate = |q: f64, p: &[f64], i: usize| {
+        // through the sample (q, p), is q ((p(0) − residual) / (p(0) − p))^(1/1.852): of one
+        // sample, the junction first there is the one of the least ratio (the power rises
+        // monotonically), found without a power per junction. None falls: infinite.
+        let ratio = |q: f64, p: &[f64], i: usize| {
             let fall = p0[i] - p[i];
             if fall > 0.0 && q > 0.0 {
-                q * ((p0[i] - residual) / fall).powf(1.0 / HW_FLOW_EXPONENT)
+                (p0[i] - residual) / fall
             } else {
                 f64::INFINITY
             }
         };
         let first_of = |q: f64, p: &[f64], candidates: &mut dyn Iterator<Item = usize>| {
             candidates
-                .map(|i| (i, estimate(q, p, i)))
+                .map(|i| (i, ratio(q, p, i)))
                 .filter(|(_, e)| e.is_finite())
                 .min_by(|a, b| a.1.total_cmp(&b.1))
                 .map(|(i, _)| i)

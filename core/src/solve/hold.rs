@@ -29,9 +29,10 @@
 //! Device states and relations of pressure work as in a plain solve: the border only changes the
 //! step's corrections and the draw; the damping of the iteration damps the draw's step as well.
 
-use super::assemble::{link_ends, RelationChange, FREE_FROM, FREE_TO, MODE_FIXED_FLOW, MODE_LAW, MODE_MASK};
+use super::assemble::{link_ends, FREE_FROM, FREE_TO, LAW_GENERAL, MODE_FIXED_FLOW, MODE_LAW, MODE_MASK};
 use super::chord::{backward, forward};
 use super::iterate::MASS_GATE;
+use super::links;
 use super::status::StatusTracker;
 use super::structure::NONE;
 use super::{Solution, SolveOptions, Solver};
@@ -80,6 +81,10 @@ pub(super) struct Hold {
     w: Vec<f64>,
     /// A light solve's `L⁻¹ e_t` (the held junction's unknown).
     z: Vec<f64>,
+    /// The columns of the elimination tree's paths up from the draw's unknown and from the
+    /// held one (where `w` and `z` of a light solve may differ from zero), ascending.
+    path_u: Vec<u32>,
+    path_v: Vec<u32>,
     /// The conductances of the core links in the solver's current factor (light solves), and
     /// whether that factor is one of a light solve that succeeded.
     cp_factored: Vec<f64>,
@@ -87,6 +92,15 @@ pub(super) struct Hold {
     /// For each node, the position in `Structure::trees` of the tree pipe to its parent
     /// (`NONE` for core nodes); made once per solver.
     parent: Vec<u32>,
+    /// The last head loss a light solve evaluated on each core link's law, beside the flow it
+    /// was evaluated at (`[q, h(q)]`, the flow's bits compared before reuse): the last pass of a
+    /// solve evaluates every law at the flows the next solve starts from, so its first step
+    /// ([`Solver::light_chord_start`]) need not evaluate them again.
+    core_loss: Vec<[f64; 2]>,
+    /// The same for the tree pipes (`[Q, h(Q)]`): their flows are the fixed outflows beyond
+    /// them, the same at every answer but on the draw's path, so the tree heads of an answer
+    /// evaluate only the laws of the pipes whose flow changed.
+    tree_loss: Vec<[f64; 2]>,
 }
 
 impl Solver {
@@ -109,10 +123,6 @@ impl Solver {
                 ModelError::at(Some(Element::Node(id)), Some("head"), format!("is not finite: {}", held.head)).into()
             );
         }
-        let (w, z, parent, cp_factored, factored) = match self.hold.take() {
-            Some(h) => (h.w, h.z, h.parent, h.cp_factored, h.factored),
-            None => (Vec::new(), Vec::new(), Vec::new(), Vec::new(), false),
-        };
         if !held.start.is_finite() {
             let id = model.nodes()[held.draw_at].id.to_string();
             return Err(ModelError::at(
@@ -122,21 +132,38 @@ impl Solver {
             )
             .into());
         }
-        self.hold = Some(Box::new(Hold {
-            held,
-            draw: 0.0,
-            change: 0.0,
-            loose: 0.0,
-            draw_unknown: NONE,
-            target_root: NONE,
-            target_unknown: NONE,
-            target_path: Vec::new(),
-            w,
-            z,
-            parent,
-            cp_factored,
-            factored,
-        }));
+        // The scratch of the last held solve stays (its factor's conductances, the laws' last
+        // values); the border is new.
+        if let Some(h) = self.hold.as_mut() {
+            h.held = held;
+            h.draw = 0.0;
+            h.change = 0.0;
+            h.loose = 0.0;
+            h.draw_unknown = NONE;
+            h.target_root = NONE;
+            h.target_unknown = NONE;
+            h.target_path.clear();
+        } else {
+            self.hold = Some(Box::new(Hold {
+                held,
+                draw: 0.0,
+                change: 0.0,
+                loose: 0.0,
+                draw_unknown: NONE,
+                target_root: NONE,
+                target_unknown: NONE,
+                target_path: Vec::new(),
+                w: Vec::new(),
+                z: Vec::new(),
+                path_u: Vec::new(),
+                path_v: Vec::new(),
+                parent: Vec::new(),
+                cp_factored: Vec::new(),
+                factored: false,
+                core_loss: Vec::new(),
+                tree_loss: Vec::new(),
+            }));
+        }
         Ok(())
     }
 
@@ -364,6 +391,31 @@ fn along_power(q0: f64, linear: f64) -> f64 {
     }
 }
 
+/// Solves `L y = e_j` in place, `x` holding `e_j` (zeros elsewhere): [`forward`] from column
+/// `j` on, but walking only the columns that can differ from zero, the path up the elimination
+/// tree from `j` (each column's parent is its first row below the diagonal), which is written
+/// into `path` in ascending order. The same operations as [`forward`] on those columns, so the
+/// same values.
+fn forward_up(structure: &super::Structure, l: &[f64], x: &mut [f64], j: usize, path: &mut Vec<u32>) {
+    let (col_ptr, row_idx) = (structure.symbolic.col_ptr(), structure.symbolic.row_idx());
+    let mut k = j;
+    loop {
+        path.push(k as u32);
+        let (start, end) = (col_ptr[k] as usize, col_ptr[k + 1] as usize);
+        if x[k] != 0.0 {
+            let v = x[k] / l[start];
+            x[k] = v;
+            for p in start + 1..end {
+                x[row_idx[p] as usize] -= l[p] * v;
+            }
+        }
+        if end <= start + 1 {
+            return;
+        }
+        k = row_idx[start + 1] as usize;
+    }
+}
+
 /// Largest head change (m) of a light solve's step after which the next steps are chord steps
 /// on its factor: conductances move by well under a percent in such a step.
 pub const CHORD_HEAD: f64 = 0.05;
@@ -480,7 +532,14 @@ impl Solver {
         if from_base {
             self.restore(base);
         }
+        self.keep_losses(from_base);
         self.reset_hold();
+        // Zeros in the border's columns (a general held solve leaves them full); each light step
+        // leaves zeros behind.
+        if let Some(h) = self.hold.as_mut() {
+            h.w.fill(0.0);
+            h.z.fill(0.0);
+        }
         self.demand_scale = self.demand.iter().map(|d| d.abs()).sum::<f64>().max(1e-3);
         self.tree_flows();
         let chord =
@@ -571,7 +630,7 @@ impl Solver {
                 }
             }
             let head_change = if iterations == 1 { f64::INFINITY } else { step };
-            self.hold_apply(dq);
+            self.light_hold_apply(dq);
             // A chord step that contracted too little (or a NaN) stalls the chord; it may not end
             // the iteration, and Newton steps follow.
             let contracted = step <= CHORD_CONTRACTION * last_step;
@@ -581,14 +640,7 @@ impl Solver {
                 (true, false) => 0.0,
             };
             chord = (!chord || contracted) && step <= CHORD_HEAD && chord_steps < CHORD_STEPS;
-            let (change, energy_residual) = if chord {
-                self.light_chord_update()
-            } else {
-                self.begin_assembly();
-                let result = self.update_links(model, false, RelationChange::default(), 1.0);
-                self.end_assembly();
-                result
-            };
+            let (change, energy_residual) = if chord { self.light_chord_update() } else { self.light_newton_update() };
             let flow_change = change.max(self.hold_change());
             if !finite || !flow_change.is_finite() {
                 return Err(SolveError::Numerical {
@@ -622,6 +674,24 @@ impl Solver {
         }
     }
 
+    /// [`Solver::hold_apply`] in a light solve, whose tree flows are those of the draw so far
+    /// (`tree_flows` at its start and after every step): a draw in the core changes no tree flow
+    /// and no subtree, only its own unknown's outflow, which is set as `tree_flows` sets it; a
+    /// draw on a tree makes them again.
+    fn light_hold_apply(&mut self, dq: f64) {
+        let Some(hold) = self.hold.as_mut() else { return };
+        let node = hold.held.draw_at;
+        let u = self.structure.unknown_of_node[node];
+        if self.structure.in_tree[node] || u == NONE {
+            self.hold_apply(dq);
+            return;
+        }
+        hold.draw += dq;
+        hold.change = dq.abs();
+        self.demand[node] += dq;
+        self.unknown_demand[u as usize] = self.demand[node] + self.subtree[node];
+    }
+
     /// The first step of a light solve that continues from the last one's answer, on its factor:
     /// the conductances of that factor, the constants `c = Q + p (ΔH − h(Q))` from them at the
     /// current point, and the right-hand side.
@@ -632,6 +702,7 @@ impl Solver {
         for (r, &d) in self.rhs.iter_mut().zip(&self.unknown_demand) {
             *r = -d;
         }
+        let losses = self.hold.as_ref().map_or(&[][..], |h| &h.core_loss[..]);
         let structure = &*self.structure;
         for (i, c) in structure.core.iter().enumerate() {
             let mode = self.mode[i];
@@ -639,7 +710,10 @@ impl Solver {
                 MODE_LAW => {
                     let ((_, h_from), (_, h_to)) = link_ends(c, &self.delta, &self.unknown_head, &self.head);
                     let q = self.cq[i];
-                    let y = self.core_law(i, q).0;
+                    let y = match losses.get(i) {
+                        Some(&[at, y]) if at.to_bits() == q.to_bits() => y,
+                        _ => self.core_law(i, q).0,
+                    };
                     self.cc[i] = q + self.cp[i] * (h_from - h_to - y);
                 }
                 MODE_FIXED_FLOW => self.cc[i] = self.cq[i],
@@ -668,6 +742,8 @@ impl Solver {
             *r = -d;
         }
         let structure = self.structure.clone();
+        let mut losses = self.hold.as_mut().map(|h| std::mem::take(&mut h.core_loss)).unwrap_or_default();
+        losses.resize(structure.core.len(), [f64::NAN; 2]);
         for (i, c) in structure.core.iter().enumerate() {
             let mode = self.mode[i];
             match mode & MODE_MASK {
@@ -677,6 +753,7 @@ impl Solver {
                     let q = self.cc[i] + p * (d_from - d_to);
                     let dh = h_from - h_to;
                     let y = self.core_law(i, q).0;
+                    losses[i] = [q, y];
                     residual = residual.max((y - dh).abs());
                     sum_dq += (q - self.cq[i]).abs();
                     sum_q += q.abs();
@@ -698,7 +775,107 @@ impl Solver {
                 *r = 0.0;
             }
         }
+        if let Some(h) = self.hold.as_mut() {
+            h.core_loss = losses;
+        }
         (sum_dq / sum_q.max(self.demand_scale), residual)
+    }
+
+    /// Keeps the laws' last values for this light solve, or drops them when it starts from
+    /// the base case (after anything but a light solve the laws may be others).
+    fn keep_losses(&mut self, from_base: bool) {
+        let (n_core, n_trees) = (self.structure.core.len(), self.structure.trees.len());
+        if let Some(h) = self.hold.as_mut() {
+            if from_base {
+                h.core_loss.clear();
+                h.tree_loss.clear();
+            }
+            h.core_loss.resize(n_core, [f64::NAN; 2]);
+            h.tree_loss.resize(n_trees, [f64::NAN; 2]);
+        }
+    }
+
+    /// The pass after a light Newton step: `update_links` for a network that light solves
+    /// serve (no relations, no pinned valves, no damping, Newton's slopes), in the same
+    /// operations, the matrix and right-hand side assembled; each law's value is also kept for
+    /// the next solve's first step. Returns the relative flow change and the largest energy
+    /// residual.
+    fn light_newton_update(&mut self) -> (f64, f64) {
+        self.begin_assembly();
+        let mut losses = self.hold.as_mut().map(|h| std::mem::take(&mut h.core_loss)).unwrap_or_default();
+        let structure = &*self.structure;
+        losses.resize(structure.core.len(), [f64::NAN; 2]);
+        let (mut sum_dq, mut sum_q, mut residual) = (0.0, self.tree_flow_sum + 0.0, 0.0f64);
+        let (laws, delta, unknown_head, head) = (&self.laws, &self.delta, &self.unknown_head, &self.head);
+        let (values, rhs) = (&mut self.factor.values, &mut self.rhs);
+        let states = self.hot.iter().zip(&self.mode).zip(self.cq.iter_mut().zip(&mut self.cp).zip(&mut self.cc));
+        for ((c, ((hot, &mode), ((cq, cp), cc))), loss) in structure.core.iter().zip(states).zip(losses.iter_mut()) {
+            match mode & MODE_MASK {
+                MODE_LAW => {
+                    let ((d_from, h_from), (d_to, h_to)) = link_ends(c, delta, unknown_head, head);
+                    let q = *cc + *cp * (d_from - d_to);
+                    let dh = h_from - h_to;
+                    let (y, g) = if mode & LAW_GENERAL != 0 {
+                        laws[c.link as usize].evaluate_exact(q)
+                    } else {
+                        links::hazen_williams(hot.r, hot.minor, q)
+                    };
+                    let p = 1.0 / g.max(hot.min_slope);
+                    *loss = [q, y];
+                    residual = residual.max((y - dh).abs());
+                    sum_dq += (q - *cq).abs();
+                    sum_q += q.abs();
+                    *cq = q;
+                    *cp = p;
+                    *cc = q + p * (dh - y);
+                }
+                MODE_FIXED_FLOW => sum_q += cq.abs(),
+                _ => continue,
+            }
+            let (p, c_value) = (*cp, *cc);
+            if mode & FREE_FROM != 0 {
+                values[c.diag_from as usize] += p;
+                rhs[c.slots.from as usize] -= c_value;
+            }
+            if mode & FREE_TO != 0 {
+                values[c.diag_to as usize] += p;
+                rhs[c.slots.to as usize] += c_value;
+            }
+            if mode & (FREE_FROM | FREE_TO) == FREE_FROM | FREE_TO {
+                values[c.slots.off as usize] -= p;
+            }
+        }
+        if let Some(h) = self.hold.as_mut() {
+            h.core_loss = losses;
+        }
+        self.end_assembly();
+        (sum_dq / sum_q.max(self.demand_scale), residual)
+    }
+
+    /// `tree_heads` in the same operations, a tree pipe's law evaluated only where its flow is
+    /// not the one of its last evaluation (the draw's path, in the analysis).
+    fn light_tree_heads(&mut self) {
+        let mut losses = self.hold.as_mut().map(|h| std::mem::take(&mut h.tree_loss)).unwrap_or_default();
+        losses.resize(self.structure.trees.len(), [f64::NAN; 2]);
+        for (t, loss) in self.structure.trees.iter().zip(losses.iter_mut()).rev() {
+            let (k, child, parent) = (t.link as usize, t.child as usize, t.parent as usize);
+            self.head[child] = if self.connected[child] {
+                let q = self.flow[k];
+                if loss[0].to_bits() != q.to_bits() {
+                    *loss = [q, self.laws[k].evaluate_exact(q).0];
+                }
+                if t.downstream {
+                    self.head[parent] - loss[1]
+                } else {
+                    self.head[parent] + loss[1]
+                }
+            } else {
+                f64::NAN
+            };
+        }
+        if let Some(h) = self.hold.as_mut() {
+            h.tree_loss = losses;
+        }
     }
 
     /// A light step's border, between the halves of the plain step's solve: with `y = L⁻¹ r` in
@@ -719,28 +896,45 @@ impl Solver {
         let (u, v) = (hold.draw_unknown, hold.target_unknown);
         let u_free = u != NONE && self.free[u as usize];
         let v_free = v != NONE && self.free[v as usize];
-        let dot = |a: &[f64], b: &[f64]| a.iter().zip(b).map(|(x, y)| x * y).sum::<f64>();
-        hold.w.iter_mut().for_each(|x| *x = 0.0);
+        // The columns of `L⁻¹ e_u` and `L⁻¹ e_v` that are not zero lie on the elimination tree's
+        // paths up from u and from v: the solves, the dot products and the update of `rhs` walk
+        // those paths only (in ascending order, as the full loops would meet them), and leave
+        // zeros behind in `w` and `z`.
+        let (mut path_u, mut path_v) = (std::mem::take(&mut hold.path_u), std::mem::take(&mut hold.path_v));
+        path_u.clear();
+        path_v.clear();
+        let dot = |path: &[u32], a: &[f64], b: &[f64]| path.iter().map(|&k| a[k as usize] * b[k as usize]).sum::<f64>();
         if u_free {
             hold.w[u as usize] = 1.0;
-            forward(structure, l, &mut hold.w, u as usize);
+            forward_up(structure, l, &mut hold.w, u as usize, &mut path_u);
         }
         let (delta0, w_v) = if !v_free {
             (0.0, 0.0)
         } else if v == u {
-            (dot(&hold.w, &self.rhs), dot(&hold.w, &hold.w))
+            (dot(&path_u, &hold.w, &self.rhs), dot(&path_u, &hold.w, &hold.w))
         } else {
-            hold.z.iter_mut().for_each(|x| *x = 0.0);
             hold.z[v as usize] = 1.0;
-            forward(structure, l, &mut hold.z, v as usize);
-            (dot(&hold.z, &self.rhs), if u_free { dot(&hold.z, &hold.w) } else { 0.0 })
+            forward_up(structure, l, &mut hold.z, v as usize, &mut path_v);
+            (dot(&path_v, &hold.z, &self.rhs), if u_free { dot(&path_v, &hold.z, &hold.w) } else { 0.0 })
         };
-        let dq = along_power(hold.draw, self.border(model, iteration, hold, delta0, w_v)?);
+        let border = self.border(model, iteration, hold, delta0, w_v);
+        let dq = match border {
+            Ok(linear) => along_power(hold.draw, linear),
+            Err(_) => 0.0,
+        };
         if dq != 0.0 && u_free {
-            for (y, z) in self.rhs.iter_mut().zip(&hold.w) {
-                *y -= dq * z;
+            for &k in &path_u {
+                self.rhs[k as usize] -= dq * hold.w[k as usize];
             }
         }
+        for &k in &path_u {
+            hold.w[k as usize] = 0.0;
+        }
+        for &k in &path_v {
+            hold.z[k as usize] = 0.0;
+        }
+        (hold.path_u, hold.path_v) = (path_u, path_v);
+        border?;
         Ok(dq)
     }
 
@@ -749,7 +943,7 @@ impl Solver {
     /// to round-off).
     fn light_answer(&mut self, model: &Model, pressure: &mut Vec<f64>) -> Result<(), SolveError> {
         self.sync_flows();
-        self.tree_heads();
+        self.light_tree_heads();
         let nodes = model.nodes();
         pressure.clear();
         pressure.extend(nodes.iter().zip(&self.head).zip(&self.connected).map(|((n, h), &c)| {
@@ -964,6 +1158,31 @@ mod tests {
         }
         assert!(compared * 10 >= junctions.len() / 3 * 9, "{compared}");
         assert!(loose_ends * 2 >= compared, "{loose_ends} of {compared} ended on the draw's tolerance");
+    }
+
+    /// The path solve gives `forward`'s values to the bit, and its path holds every column
+    /// that is not zero, in ascending order.
+    #[test]
+    fn the_path_solve_is_the_forward_solve() {
+        let (_, _, solver, _) = generated_light(600, 7);
+        let (structure, l) = (&*solver.structure, solver.factor.l_values());
+        let n = structure.n;
+        let (mut path, mut compared) = (Vec::new(), 0);
+        for j in (0..n).step_by(7) {
+            let mut want = vec![0.0; n];
+            want[j] = 1.0;
+            forward(structure, l, &mut want, j);
+            let mut got = vec![0.0; n];
+            got[j] = 1.0;
+            path.clear();
+            forward_up(structure, l, &mut got, j, &mut path);
+            assert!(want.iter().zip(&got).all(|(a, b)| a.to_bits() == b.to_bits()), "column {j}");
+            assert!(path.windows(2).all(|p| p[0] < p[1]) && path[0] as usize == j, "column {j}: {path:?}");
+            let nonzero = (0..n).filter(|&k| got[k] != 0.0);
+            assert!(nonzero.into_iter().all(|k| path.contains(&(k as u32))), "column {j}");
+            compared += 1;
+        }
+        assert!(compared > 20 && n > 140, "{compared} of {n}");
     }
 
     /// Light held solves give the general held solve's draw and pressures, from the base case
