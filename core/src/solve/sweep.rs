@@ -44,7 +44,7 @@
 //! tolerance), followed by the same last gates (every value finite, mass balance to round-off).
 //! `tests/conditions.rs` compares every closure with a fresh solve of the closed model.
 
-use super::assemble::{link_ends, FREE_FROM, FREE_TO, MODE_CLOSED, MODE_LAW, MODE_MASK};
+use super::assemble::{link_ends, FREE_FROM, FREE_TO, LAW_GENERAL, MODE_CLOSED, MODE_LAW, MODE_MASK};
 use super::chord::{
     backward_by_reciprocals, chord_rhs, forward, forward_path, ChordBase, Correction, CHORD_CONTRACTION, CHORD_MARGIN,
     CHORD_STEPS,
@@ -133,6 +133,75 @@ pub(super) struct SweepBase {
     y0: Vec<f64>,
     /// Per node: elevation, m.
     elevation: Vec<f64>,
+    /// Per unknown, the core links on their law whose free ends it is (see [`Incidence`]).
+    incidence: Incidence,
+}
+
+/// Per unknown, the core links on their law in the base case with a free end there, each with
+/// its sign in the unknown's balance (−1 for a link that leaves it, +1 for one that enters it).
+/// A closure's passes gather each balance from its links' values instead of scattering each
+/// link's value into its two ends: consecutive links of a street network share ends, and a
+/// scatter's read-modify-writes of one balance wait on each other through memory. The first
+/// [`INCIDENT`] links of an unknown sit in fixed places (unused places have sign 0), so that the
+/// gather takes no branch on how many there are; the rest (few: junctions where more than four
+/// pipes meet) are in `extra`.
+#[derive(Debug)]
+struct Incidence {
+    links: Vec<[u32; INCIDENT]>,
+    signs: Vec<[f64; INCIDENT]>,
+    /// `(unknown, link, sign)` beyond the first [`INCIDENT`] of an unknown.
+    extra: Vec<(u32, u32, f64)>,
+}
+
+/// Links of an unknown held in [`Incidence`]'s fixed places: a street network's junctions join
+/// at most four pipes but for a few.
+const INCIDENT: usize = 4;
+
+impl Incidence {
+    /// The incidence of the core links on their law under `mode` (the base case's).
+    fn new(structure: &super::Structure, mode: &[u8]) -> Incidence {
+        let n = structure.n;
+        let mut links = vec![[0u32; INCIDENT]; n];
+        let mut signs = vec![[0.0f64; INCIDENT]; n];
+        let mut count = vec![0usize; n];
+        let mut extra = Vec::new();
+        for (i, (c, &m)) in structure.core.iter().zip(mode).enumerate() {
+            if m & MODE_MASK != MODE_LAW {
+                continue;
+            }
+            for (bit, slot, sign) in [(FREE_FROM, c.slots.from, -1.0), (FREE_TO, c.slots.to, 1.0)] {
+                if m & bit == 0 {
+                    continue;
+                }
+                let u = slot as usize;
+                if count[u] < INCIDENT {
+                    links[u][count[u]] = i as u32;
+                    signs[u][count[u]] = sign;
+                    count[u] += 1;
+                } else {
+                    extra.push((slot, i as u32, sign));
+                }
+            }
+        }
+        Incidence { links, signs, extra }
+    }
+
+    /// `balance[u] = −outflow[u] − Σ value (links leaving u) + Σ value (links entering u)` for
+    /// every free unknown, zero for the others. Every value must be finite (an unused place
+    /// multiplies one by zero).
+    fn gather(&self, value: &[f64], outflow: &[f64], free: &[bool], balance: &mut [f64]) {
+        let places = self.links.iter().zip(&self.signs);
+        for ((b, (&d, &f)), (l, sg)) in balance.iter_mut().zip(outflow.iter().zip(free)).zip(places) {
+            let v = (sg[0] * value[l[0] as usize] + sg[1] * value[l[1] as usize])
+                + (sg[2] * value[l[2] as usize] + sg[3] * value[l[3] as usize]);
+            *b = if f { v - d } else { 0.0 };
+        }
+        for &(u, i, sign) in &self.extra {
+            if free[u as usize] {
+                balance[u as usize] += sign * value[i as usize];
+            }
+        }
+    }
 }
 
 /// A worker's state between closures: its solver (the base case's buffers), the `Solution` it
@@ -315,7 +384,6 @@ impl Solver {
         forward(structure, &chord.l_values, &mut y0, 0);
         Some(SweepBase {
             y0,
-            chord,
             solution,
             bridge,
             tree_index,
@@ -330,6 +398,8 @@ impl Solver {
             demand_scale: self.demand_scale,
             area: (0..n_links).map(|k| conditions.flow_area(k)).collect(),
             elevation: model.nodes().iter().map(|n| n.elevation).collect(),
+            incidence: Incidence::new(structure, &chord.mode),
+            chord,
         })
     }
 }
@@ -499,22 +569,11 @@ impl Worker {
         let chord = &sweep.chord;
         // The last gate of the general solve: the mass balance of every free unknown (the tree
         // pipes' flows are in its outflow) holds to round-off.
-        for (r, &d) in s.rhs.iter_mut().zip(&s.unknown_demand) {
-            *r = -d;
+        if let Closure::Core(i) = *closure {
+            // Closed: it carries nothing (its flow is the base case's until now).
+            s.cq[i] = 0.0;
         }
-        for (i, c) in structure.core.iter().enumerate() {
-            let mode = s.mode[i];
-            if mode & MODE_MASK == MODE_CLOSED {
-                continue;
-            }
-            let q = s.cq[i];
-            if mode & FREE_FROM != 0 {
-                s.rhs[c.slots.from as usize] -= q;
-            }
-            if mode & FREE_TO != 0 {
-                s.rhs[c.slots.to as usize] += q;
-            }
-        }
+        sweep.incidence.gather(&s.cq, &s.unknown_demand, &s.free, &mut s.rhs);
         let mut worst = 0.0f64;
         for (r, &free) in s.rhs.iter().zip(&s.free) {
             if free {
@@ -596,20 +655,38 @@ impl Worker {
                 }
             }
         }
-        // Core flows, velocities and head differences (one pass); every value finite where it
-        // is defined.
-        for (l, &(a, b)) in structure.ends.iter().enumerate() {
-            let i = structure.core_position[l];
-            if i != NONE && l != k {
-                out.flow[l] = s.cq[i as usize];
+        // Core flows and velocities (the tree pipes' are the base case's but for those the
+        // closure touched); every value finite where it is defined.
+        for (i, c) in structure.core.iter().enumerate() {
+            let l = c.link as usize;
+            if l != k {
+                out.flow[l] = s.cq[i];
             }
-            let q = out.flow[l];
+        }
+        let velocity = |l: usize, q: f64| {
             let area = sweep.area[l];
-            out.velocity[l] = if area > 0.0 { q / area } else { f64::NAN };
-            out.headloss[l] = (out.head[a as usize] - out.head[b as usize]).abs();
-            if !q.is_finite() || (area > 0.0 && !out.velocity[l].is_finite()) {
-                return false;
-            }
+            let v = if area > 0.0 { q / area } else { f64::NAN };
+            (v, q.is_finite() && (area <= 0.0 || v.is_finite()))
+        };
+        let mut finite = true;
+        for c in &structure.core {
+            let l = c.link as usize;
+            let (v, ok) = velocity(l, out.flow[l]);
+            out.velocity[l] = v;
+            finite &= ok;
+        }
+        for &l in &self.touched_links {
+            let l = l as usize;
+            let (v, ok) = velocity(l, out.flow[l]);
+            out.velocity[l] = v;
+            finite &= ok;
+        }
+        if !finite {
+            return false;
+        }
+        // Head differences: every junction's head moved.
+        for (h, &(a, b)) in out.headloss.iter_mut().zip(&structure.ends) {
+            *h = (out.head[a as usize] - out.head[b as usize]).abs();
         }
         out.iterations = settled.iterations;
         out.last_head_change = settled.head_change;
@@ -630,6 +707,7 @@ impl Worker {
             let l = l as usize;
             self.solution.link_state[l] = base.link_state[l];
             self.solution.flow[l] = base.flow[l];
+            self.solution.velocity[l] = base.velocity[l];
         }
         self.touched_nodes.clear();
         self.touched_links.clear();
@@ -669,6 +747,8 @@ impl Solver {
         correction.clear();
         if let Closure::Core(i) = *closure {
             correction.push(i, -chord.cp[i]);
+            // The closed link leaves the balances its constant is gathered into.
+            self.cc[i] = 0.0;
         }
         let result = if correction.build(&self.structure, chord, &chord.mode) {
             // The first step's forward solve (see `SweepBase::y0`): the closed link's constant
@@ -687,7 +767,7 @@ impl Solver {
                 ),
                 Closure::Tree(_) => {}
             }
-            self.chord_loop(chord, closure, correction, options)
+            self.chord_loop(chord, &sweep.incidence, closure, correction, options)
         } else {
             None
         };
@@ -703,6 +783,7 @@ impl Solver {
     fn chord_loop(
         &mut self,
         chord: &ChordBase,
+        incidence: &Incidence,
         closure: &Closure,
         correction: &mut Correction,
         options: &SolveOptions,
@@ -766,7 +847,8 @@ impl Solver {
                 // No previous iterate to compare with.
                 head_change = f64::INFINITY;
             }
-            let (flow_change, residual) = self.chord_update();
+            let (flow_change, residual) = self.closure_pass(chord);
+            incidence.gather(&self.cc, &self.unknown_demand, &self.free, &mut self.rhs);
             if !flow_change.is_finite() {
                 return None;
             }
@@ -844,6 +926,58 @@ impl Solver {
                 previous = f64::INFINITY;
             }
         }
+    }
+
+    /// The link pass after a closure's step: [`Solver::chord_pass`] without the scatter into
+    /// the right-hand side (the caller gathers it, see [`Incidence`]), its sums kept in two
+    /// halves (odd and even links) and the largest residual taken by a plain comparison, so that
+    /// the chains of dependent operations of consecutive links overlap. Returns the relative
+    /// flow change and the largest energy residual of the core links; a flow that is not a
+    /// number makes the flow change one (the caller's test then fails).
+    fn closure_pass(&mut self, chord: &ChordBase) -> (f64, f64) {
+        let structure = &*self.structure;
+        let n = structure.core.len();
+        let (laws, delta, unknown_head, head, hot) =
+            (&self.laws, &self.delta, &self.unknown_head, &self.head, &self.hot);
+        let (cp, cc, cq, mode, taylor) =
+            (&self.cp[..n], &mut self.cc[..n], &mut self.cq[..n], &self.mode[..n], &chord.taylor[..n]);
+        // One link: its largest residual, Σ|ΔQ| and Σ|Q| into the accumulators named.
+        macro_rules! link {
+            ($i:expr, $r:ident, $dq:ident, $q:ident) => {{
+                let i = $i;
+                let m = mode[i];
+                if m & MODE_MASK == MODE_LAW {
+                    let c = &structure.core[i];
+                    let ((d_from, h_from), (d_to, h_to)) = link_ends(c, delta, unknown_head, head);
+                    let p = cp[i];
+                    let q = cc[i] + p * (d_from - d_to);
+                    let dh = h_from - h_to;
+                    let y = match taylor[i].and_then(|t| t.at(q)) {
+                        Some(y) => y,
+                        None if m & LAW_GENERAL != 0 => laws[c.link as usize].evaluate_exact(q).0,
+                        None => super::links::hazen_williams(hot[i].r, hot[i].minor, q).0,
+                    };
+                    let r = (y - dh).abs();
+                    if r > $r {
+                        $r = r;
+                    }
+                    $dq += (q - cq[i]).abs();
+                    $q += q.abs();
+                    cq[i] = q;
+                    cc[i] = q + p * (dh - y);
+                }
+            }};
+        }
+        let (mut r0, mut dq0, mut q0) = (0.0f64, 0.0, self.tree_flow_sum);
+        let (mut r1, mut dq1, mut q1) = (0.0f64, 0.0, 0.0);
+        for i in (0..n - n % 2).step_by(2) {
+            link!(i, r0, dq0, q0);
+            link!(i + 1, r1, dq1, q1);
+        }
+        if n % 2 == 1 {
+            link!(n - 1, r0, dq0, q0);
+        }
+        ((dq0 + dq1) / (q0 + q1).max(self.demand_scale), r0.max(r1))
     }
 
     /// How many core links on their law carry a flow far from the base case's: reversed, or more
