@@ -1304,6 +1304,74 @@ mod tests {
         assert!(cores > 100 && trees > 20, "{cores} core and {trees} tree closures");
     }
 
+    /// A hub where seven pipes meet (more than [`INCIDENT`]) in an invented network: a reservoir
+    /// feeding a hub junction whose six spokes end in a ring of junctions.
+    fn hub_network() -> Model {
+        use crate::model::{Link, LinkKind, Node, Pipe};
+        let mut m = Model::default();
+        m.add_node(Node::reservoir("R", 60.0)).unwrap();
+        m.add_node(Node::junction("H", 12.0, 0.002)).unwrap();
+        for r in 0..6 {
+            m.add_node(Node::junction(format!("N{r}"), 10.0 + r as f64, 0.003)).unwrap();
+        }
+        let pipe = |id: String, from: usize, to: usize| Link {
+            id: id.into(),
+            from,
+            to,
+            status: LinkStatus::Open,
+            kind: LinkKind::Pipe(Pipe {
+                length: 300.0,
+                diameter: 0.2,
+                roughness: 110.0,
+                minor_loss: 0.0,
+                check_valve: false,
+            }),
+        };
+        m.add_link(pipe("RH".into(), 0, 1)).unwrap();
+        for r in 0..6 {
+            m.add_link(pipe(format!("S{r}"), 1, 2 + r)).unwrap();
+            m.add_link(pipe(format!("C{r}"), 2 + r, 2 + (r + 1) % 6)).unwrap();
+        }
+        m
+    }
+
+    /// The balances a closure gathers (see [`Incidence`]) equal those `chord_rhs` scatters from
+    /// the same constants, with every core link closed in turn (its constant then leaves the
+    /// balances), to round-off: on a generated network (invented: see `crate::generate`) and on
+    /// a hub where more links meet than [`INCIDENT`] holds in place.
+    #[test]
+    fn the_gathered_balances_equal_the_scattered_ones() {
+        let mut extras = 0;
+        for m in [generate(&NetworkSpec::new(300, 4)).unwrap(), hub_network()] {
+            let conditions = Conditions::from_model(&m);
+            let options = SolveOptions::from_model(&m);
+            let mut base = Solver::new(&m).unwrap();
+            let solution = base.solve(&m, &conditions, &options).unwrap();
+            let sweep = base.sweep_base(&m, &conditions, &solution).expect("the fast path serves this base case");
+            let chord = &*sweep.chord;
+            let structure = base.structure.clone();
+            extras += sweep.incidence.extra.len();
+            let (n, core) = (structure.n, structure.core.len());
+            // Constants of the size of the flows, of both signs, and outflows.
+            let cc: Vec<f64> = (0..core).map(|i| 1e-3 * (((i * 7919) % 211) as f64 - 105.0)).collect();
+            let demand: Vec<f64> = (0..n).map(|u| 1e-4 * ((u * 104_729) % 97) as f64).collect();
+            let mut mode = chord.mode.clone();
+            let (mut want, mut got) = (vec![0.0; n], vec![0.0; n]);
+            for closed in (0..core).filter(|&i| chord.mode[i] & MODE_MASK == MODE_LAW) {
+                mode[closed] = MODE_CLOSED;
+                let mut value = cc.clone();
+                value[closed] = 0.0;
+                chord_rhs(&structure, &mode, &cc, &demand, &chord.free, &mut want);
+                sweep.incidence.gather(&value, &demand, &chord.free, &mut got);
+                mode[closed] = chord.mode[closed];
+                for (u, (a, b)) in got.iter().zip(&want).enumerate() {
+                    assert!((a - b).abs() <= 1e-15, "link {closed} closed, unknown {u}: {a} vs {b}");
+                }
+            }
+        }
+        assert!(extras > 0, "a junction with more links than the fixed places");
+    }
+
     /// Tarjan's bridges on small graphs worked by hand: a triangle with a tail, parallel links
     /// (never bridges) and a closed link (not a link of the graph).
     #[test]
