@@ -819,16 +819,33 @@ impl Solver {
                 self.correction_solve(chord, correction);
             }
             std::mem::swap(&mut self.rhs, &mut self.delta);
-            let mut head_change = 0.0f64;
-            for (u, &d) in self.delta.iter().enumerate() {
-                if self.free[u] {
-                    if !d.is_finite() {
-                        return None;
+            // The largest correction by a plain comparison in two halves (the values are
+            // checked finite apart), so that no chain of dependent operations runs through it.
+            let (mut change, mut finite) = ([0.0f64; 2], true);
+            let heads =
+                self.unknown_head.chunks_exact_mut(2).zip(self.delta.chunks_exact(2).zip(self.free.chunks_exact(2)));
+            for (h, (d, f)) in heads {
+                for e in 0..2 {
+                    if f[e] {
+                        finite &= d[e].is_finite();
+                        if d[e].abs() > change[e] {
+                            change[e] = d[e].abs();
+                        }
+                        h[e] += d[e];
                     }
-                    head_change = head_change.max(d.abs());
-                    self.unknown_head[u] += d;
                 }
             }
+            let n = self.delta.len();
+            if n % 2 == 1 && self.free[n - 1] {
+                let d = self.delta[n - 1];
+                finite &= d.is_finite();
+                change[0] = change[0].max(d.abs());
+                self.unknown_head[n - 1] += d;
+            }
+            if !finite {
+                return None;
+            }
+            let mut head_change = change[0].max(change[1]);
             on_matrix += 1;
             // An exact Newton step (the first, or the first on a factor of its own) ends the
             // iteration on the solver's own test; a later one only if it contracted on its
