@@ -574,13 +574,17 @@ impl Worker {
             s.cq[i] = 0.0;
         }
         sweep.incidence.gather(&s.cq, &s.unknown_demand, &s.free, &mut s.rhs);
-        let mut worst = 0.0f64;
-        for (r, &free) in s.rhs.iter().zip(&s.free) {
-            if free {
-                worst = worst.max(r.abs());
+        // (The gather left the other unknowns' balances zero; plain comparisons, with a number
+        // that is not one caught apart.)
+        let (mut worst, mut nan) = (0.0f64, false);
+        for r in &s.rhs {
+            let a = r.abs();
+            nan |= a.is_nan();
+            if a > worst {
+                worst = a;
             }
         }
-        if worst.is_nan() || worst > MASS_GATE * sweep.demand_scale {
+        if nan || worst > MASS_GATE * sweep.demand_scale {
             return false;
         }
         // Heads and pressures (one pass): tree junctions follow their core root; the unknowns
