@@ -26,6 +26,12 @@
 //!   correction of the base factor (at most [`WOODBURY_LINKS`] of them, chosen afresh at most
 //!   [`WOODBURY_ROUNDS`] times), and the chord steps go on with that matrix. A core closure whose
 //!   first step moved a few links far (at least [`WOODBURY_AT_ONCE`]) chooses it right away.
+//! * **Passes without chains through memory.** A closure's passes gather each unknown's balance
+//!   from its links' values ([`Incidence`]) rather than scatter each link's value into its two
+//!   ends (consecutive links share ends, and the read-modify-writes of one balance wait on each
+//!   other), split their sums in two, and take their largest values by plain comparisons (a
+//!   NaN-aware `max` kept in memory was the longest chain of a step); a closure writes the
+//!   velocities of the core links and of the tree pipes whose flows it changed only.
 //! * **Newton's steps where the chord cannot serve.** A closure whose first step moved the
 //!   flows of more than [`NEWTON_AT_ONCE`] links far (more than a Woodbury correction covers)
 //!   factors at its own point at once; one whose chord diverges or stays slow does so later.
@@ -154,7 +160,8 @@ struct Incidence {
 }
 
 /// Links of an unknown held in [`Incidence`]'s fixed places: a street network's junctions join
-/// at most four pipes but for a few.
+/// at most four pipes but for a few (in the generated network of 10,000 junctions, seed 7, 276
+/// of its 10,000 nodes join five to seven links).
 const INCIDENT: usize = 4;
 
 impl Incidence {
