@@ -284,7 +284,7 @@ impl Taylor {
 
     /// The head loss at `q`, when `q` is within reach.
     #[inline]
-    fn at(&self, q: f64) -> Option<f64> {
+    pub(super) fn at(&self, q: f64) -> Option<f64> {
         let d = q - self.q0;
         (d.abs() <= TAYLOR_REACH * self.q0.abs())
             .then_some(self.h0 + d * (self.g0 + d * (self.half_h2 + d * self.sixth_h3)))

@@ -26,6 +26,12 @@
 //!   correction of the base factor (at most [`WOODBURY_LINKS`] of them, chosen afresh at most
 //!   [`WOODBURY_ROUNDS`] times), and the chord steps go on with that matrix. A core closure whose
 //!   first step moved a few links far (at least [`WOODBURY_AT_ONCE`]) chooses it right away.
+//! * **Passes without chains through memory.** A closure's passes gather each unknown's balance
+//!   from its links' values ([`Incidence`]) rather than scatter each link's value into its two
+//!   ends (consecutive links share ends, and the read-modify-writes of one balance wait on each
+//!   other), split their sums in two, and take their largest values by plain comparisons (a
+//!   NaN-aware `max` kept in memory was the longest chain of a step); a closure writes the
+//!   velocities of the core links and of the tree pipes whose flows it changed only.
 //! * **Newton's steps where the chord cannot serve.** A closure whose first step moved the
 //!   flows of more than [`NEWTON_AT_ONCE`] links far (more than a Woodbury correction covers)
 //!   factors at its own point at once; one whose chord diverges or stays slow does so later.
@@ -44,7 +50,7 @@
 //! tolerance), followed by the same last gates (every value finite, mass balance to round-off).
 //! `tests/conditions.rs` compares every closure with a fresh solve of the closed model.
 
-use super::assemble::{link_ends, FREE_FROM, FREE_TO, MODE_CLOSED, MODE_LAW, MODE_MASK};
+use super::assemble::{link_ends, FREE_FROM, FREE_TO, LAW_GENERAL, MODE_CLOSED, MODE_LAW, MODE_MASK};
 use super::chord::{
     backward_by_reciprocals, chord_rhs, forward, forward_path, ChordBase, Correction, CHORD_CONTRACTION, CHORD_MARGIN,
     CHORD_STEPS,
@@ -133,6 +139,76 @@ pub(super) struct SweepBase {
     y0: Vec<f64>,
     /// Per node: elevation, m.
     elevation: Vec<f64>,
+    /// Per unknown, the core links on their law whose free ends it is (see [`Incidence`]).
+    incidence: Incidence,
+}
+
+/// Per unknown, the core links on their law in the base case with a free end there, each with
+/// its sign in the unknown's balance (−1 for a link that leaves it, +1 for one that enters it).
+/// A closure's passes gather each balance from its links' values instead of scattering each
+/// link's value into its two ends: consecutive links of a street network share ends, and a
+/// scatter's read-modify-writes of one balance wait on each other through memory. The first
+/// [`INCIDENT`] links of an unknown sit in fixed places (unused places have sign 0), so that the
+/// gather takes no branch on how many there are; the rest (few: junctions where more than four
+/// pipes meet) are in `extra`.
+#[derive(Debug)]
+struct Incidence {
+    links: Vec<[u32; INCIDENT]>,
+    signs: Vec<[f64; INCIDENT]>,
+    /// `(unknown, link, sign)` beyond the first [`INCIDENT`] of an unknown.
+    extra: Vec<(u32, u32, f64)>,
+}
+
+/// Links of an unknown held in [`Incidence`]'s fixed places: a street network's junctions join
+/// at most four pipes but for a few (in the generated network of 10,000 junctions, seed 7, 276
+/// of its 10,000 nodes join five to seven links).
+const INCIDENT: usize = 4;
+
+impl Incidence {
+    /// The incidence of the core links on their law under `mode` (the base case's).
+    fn new(structure: &super::Structure, mode: &[u8]) -> Incidence {
+        let n = structure.n;
+        let mut links = vec![[0u32; INCIDENT]; n];
+        let mut signs = vec![[0.0f64; INCIDENT]; n];
+        let mut count = vec![0usize; n];
+        let mut extra = Vec::new();
+        for (i, (c, &m)) in structure.core.iter().zip(mode).enumerate() {
+            if m & MODE_MASK != MODE_LAW {
+                continue;
+            }
+            for (bit, slot, sign) in [(FREE_FROM, c.slots.from, -1.0), (FREE_TO, c.slots.to, 1.0)] {
+                if m & bit == 0 {
+                    continue;
+                }
+                let u = slot as usize;
+                if count[u] < INCIDENT {
+                    links[u][count[u]] = i as u32;
+                    signs[u][count[u]] = sign;
+                    count[u] += 1;
+                } else {
+                    extra.push((slot, i as u32, sign));
+                }
+            }
+        }
+        Incidence { links, signs, extra }
+    }
+
+    /// `balance[u] = −outflow[u] − Σ value (links leaving u) + Σ value (links entering u)` for
+    /// every free unknown, zero for the others. Every value must be finite (an unused place
+    /// multiplies one by zero).
+    fn gather(&self, value: &[f64], outflow: &[f64], free: &[bool], balance: &mut [f64]) {
+        let places = self.links.iter().zip(&self.signs);
+        for ((b, (&d, &f)), (l, sg)) in balance.iter_mut().zip(outflow.iter().zip(free)).zip(places) {
+            let v = (sg[0] * value[l[0] as usize] + sg[1] * value[l[1] as usize])
+                + (sg[2] * value[l[2] as usize] + sg[3] * value[l[3] as usize]);
+            *b = if f { v - d } else { 0.0 };
+        }
+        for &(u, i, sign) in &self.extra {
+            if free[u as usize] {
+                balance[u as usize] += sign * value[i as usize];
+            }
+        }
+    }
 }
 
 /// A worker's state between closures: its solver (the base case's buffers), the `Solution` it
@@ -315,7 +391,6 @@ impl Solver {
         forward(structure, &chord.l_values, &mut y0, 0);
         Some(SweepBase {
             y0,
-            chord,
             solution,
             bridge,
             tree_index,
@@ -330,6 +405,8 @@ impl Solver {
             demand_scale: self.demand_scale,
             area: (0..n_links).map(|k| conditions.flow_area(k)).collect(),
             elevation: model.nodes().iter().map(|n| n.elevation).collect(),
+            incidence: Incidence::new(structure, &chord.mode),
+            chord,
         })
     }
 }
@@ -499,29 +576,22 @@ impl Worker {
         let chord = &sweep.chord;
         // The last gate of the general solve: the mass balance of every free unknown (the tree
         // pipes' flows are in its outflow) holds to round-off.
-        for (r, &d) in s.rhs.iter_mut().zip(&s.unknown_demand) {
-            *r = -d;
+        if let Closure::Core(i) = *closure {
+            // Closed: it carries nothing (its flow is the base case's until now).
+            s.cq[i] = 0.0;
         }
-        for (i, c) in structure.core.iter().enumerate() {
-            let mode = s.mode[i];
-            if mode & MODE_MASK == MODE_CLOSED {
-                continue;
-            }
-            let q = s.cq[i];
-            if mode & FREE_FROM != 0 {
-                s.rhs[c.slots.from as usize] -= q;
-            }
-            if mode & FREE_TO != 0 {
-                s.rhs[c.slots.to as usize] += q;
-            }
-        }
-        let mut worst = 0.0f64;
-        for (r, &free) in s.rhs.iter().zip(&s.free) {
-            if free {
-                worst = worst.max(r.abs());
+        sweep.incidence.gather(&s.cq, &s.unknown_demand, &s.free, &mut s.rhs);
+        // (The gather left the other unknowns' balances zero; plain comparisons, with a number
+        // that is not one caught apart.)
+        let (mut worst, mut nan) = (0.0f64, false);
+        for r in &s.rhs {
+            let a = r.abs();
+            nan |= a.is_nan();
+            if a > worst {
+                worst = a;
             }
         }
-        if worst.is_nan() || worst > MASS_GATE * sweep.demand_scale {
+        if nan || worst > MASS_GATE * sweep.demand_scale {
             return false;
         }
         // Heads and pressures (one pass): tree junctions follow their core root; the unknowns
@@ -596,20 +666,38 @@ impl Worker {
                 }
             }
         }
-        // Core flows, velocities and head differences (one pass); every value finite where it
-        // is defined.
-        for (l, &(a, b)) in structure.ends.iter().enumerate() {
-            let i = structure.core_position[l];
-            if i != NONE && l != k {
-                out.flow[l] = s.cq[i as usize];
+        // Core flows and velocities (the tree pipes' are the base case's but for those the
+        // closure touched); every value finite where it is defined.
+        for (i, c) in structure.core.iter().enumerate() {
+            let l = c.link as usize;
+            if l != k {
+                out.flow[l] = s.cq[i];
             }
-            let q = out.flow[l];
+        }
+        let velocity = |l: usize, q: f64| {
             let area = sweep.area[l];
-            out.velocity[l] = if area > 0.0 { q / area } else { f64::NAN };
-            out.headloss[l] = (out.head[a as usize] - out.head[b as usize]).abs();
-            if !q.is_finite() || (area > 0.0 && !out.velocity[l].is_finite()) {
-                return false;
-            }
+            let v = if area > 0.0 { q / area } else { f64::NAN };
+            (v, q.is_finite() && (area <= 0.0 || v.is_finite()))
+        };
+        let mut finite = true;
+        for c in &structure.core {
+            let l = c.link as usize;
+            let (v, ok) = velocity(l, out.flow[l]);
+            out.velocity[l] = v;
+            finite &= ok;
+        }
+        for &l in &self.touched_links {
+            let l = l as usize;
+            let (v, ok) = velocity(l, out.flow[l]);
+            out.velocity[l] = v;
+            finite &= ok;
+        }
+        if !finite {
+            return false;
+        }
+        // Head differences: every junction's head moved.
+        for (h, &(a, b)) in out.headloss.iter_mut().zip(&structure.ends) {
+            *h = (out.head[a as usize] - out.head[b as usize]).abs();
         }
         out.iterations = settled.iterations;
         out.last_head_change = settled.head_change;
@@ -630,6 +718,7 @@ impl Worker {
             let l = l as usize;
             self.solution.link_state[l] = base.link_state[l];
             self.solution.flow[l] = base.flow[l];
+            self.solution.velocity[l] = base.velocity[l];
         }
         self.touched_nodes.clear();
         self.touched_links.clear();
@@ -669,6 +758,8 @@ impl Solver {
         correction.clear();
         if let Closure::Core(i) = *closure {
             correction.push(i, -chord.cp[i]);
+            // The closed link leaves the balances its constant is gathered into.
+            self.cc[i] = 0.0;
         }
         let result = if correction.build(&self.structure, chord, &chord.mode) {
             // The first step's forward solve (see `SweepBase::y0`): the closed link's constant
@@ -687,7 +778,7 @@ impl Solver {
                 ),
                 Closure::Tree(_) => {}
             }
-            self.chord_loop(chord, closure, correction, options)
+            self.chord_loop(chord, &sweep.incidence, closure, correction, options)
         } else {
             None
         };
@@ -703,6 +794,7 @@ impl Solver {
     fn chord_loop(
         &mut self,
         chord: &ChordBase,
+        incidence: &Incidence,
         closure: &Closure,
         correction: &mut Correction,
         options: &SolveOptions,
@@ -738,16 +830,33 @@ impl Solver {
                 self.correction_solve(chord, correction);
             }
             std::mem::swap(&mut self.rhs, &mut self.delta);
-            let mut head_change = 0.0f64;
-            for (u, &d) in self.delta.iter().enumerate() {
-                if self.free[u] {
-                    if !d.is_finite() {
-                        return None;
+            // The largest correction by a plain comparison in two halves (the values are
+            // checked finite apart), so that no chain of dependent operations runs through it.
+            let (mut change, mut finite) = ([0.0f64; 2], true);
+            let heads =
+                self.unknown_head.chunks_exact_mut(2).zip(self.delta.chunks_exact(2).zip(self.free.chunks_exact(2)));
+            for (h, (d, f)) in heads {
+                for e in 0..2 {
+                    if f[e] {
+                        finite &= d[e].is_finite();
+                        if d[e].abs() > change[e] {
+                            change[e] = d[e].abs();
+                        }
+                        h[e] += d[e];
                     }
-                    head_change = head_change.max(d.abs());
-                    self.unknown_head[u] += d;
                 }
             }
+            let n = self.delta.len();
+            if n % 2 == 1 && self.free[n - 1] {
+                let d = self.delta[n - 1];
+                finite &= d.is_finite();
+                change[0] = change[0].max(d.abs());
+                self.unknown_head[n - 1] += d;
+            }
+            if !finite {
+                return None;
+            }
+            let mut head_change = change[0].max(change[1]);
             on_matrix += 1;
             // An exact Newton step (the first, or the first on a factor of its own) ends the
             // iteration on the solver's own test; a later one only if it contracted on its
@@ -766,7 +875,8 @@ impl Solver {
                 // No previous iterate to compare with.
                 head_change = f64::INFINITY;
             }
-            let (flow_change, residual) = self.chord_update();
+            let (flow_change, residual) = self.closure_pass(chord);
+            incidence.gather(&self.cc, &self.unknown_demand, &self.free, &mut self.rhs);
             if !flow_change.is_finite() {
                 return None;
             }
@@ -844,6 +954,58 @@ impl Solver {
                 previous = f64::INFINITY;
             }
         }
+    }
+
+    /// The link pass after a closure's step: [`Solver::chord_pass`] without the scatter into
+    /// the right-hand side (the caller gathers it, see [`Incidence`]), its sums kept in two
+    /// halves (odd and even links) and the largest residual taken by a plain comparison, so that
+    /// the chains of dependent operations of consecutive links overlap. Returns the relative
+    /// flow change and the largest energy residual of the core links; a flow that is not a
+    /// number makes the flow change one (the caller's test then fails).
+    fn closure_pass(&mut self, chord: &ChordBase) -> (f64, f64) {
+        let structure = &*self.structure;
+        let n = structure.core.len();
+        let (laws, delta, unknown_head, head, hot) =
+            (&self.laws, &self.delta, &self.unknown_head, &self.head, &self.hot);
+        let (cp, cc, cq, mode, taylor) =
+            (&self.cp[..n], &mut self.cc[..n], &mut self.cq[..n], &self.mode[..n], &chord.taylor[..n]);
+        // One link: its largest residual, Σ|ΔQ| and Σ|Q| into the accumulators named.
+        macro_rules! link {
+            ($i:expr, $r:ident, $dq:ident, $q:ident) => {{
+                let i = $i;
+                let m = mode[i];
+                if m & MODE_MASK == MODE_LAW {
+                    let c = &structure.core[i];
+                    let ((d_from, h_from), (d_to, h_to)) = link_ends(c, delta, unknown_head, head);
+                    let p = cp[i];
+                    let q = cc[i] + p * (d_from - d_to);
+                    let dh = h_from - h_to;
+                    let y = match taylor[i].and_then(|t| t.at(q)) {
+                        Some(y) => y,
+                        None if m & LAW_GENERAL != 0 => laws[c.link as usize].evaluate_exact(q).0,
+                        None => super::links::hazen_williams(hot[i].r, hot[i].minor, q).0,
+                    };
+                    let r = (y - dh).abs();
+                    if r > $r {
+                        $r = r;
+                    }
+                    $dq += (q - cq[i]).abs();
+                    $q += q.abs();
+                    cq[i] = q;
+                    cc[i] = q + p * (dh - y);
+                }
+            }};
+        }
+        let (mut r0, mut dq0, mut q0) = (0.0f64, 0.0, self.tree_flow_sum);
+        let (mut r1, mut dq1, mut q1) = (0.0f64, 0.0, 0.0);
+        for i in (0..n - n % 2).step_by(2) {
+            link!(i, r0, dq0, q0);
+            link!(i + 1, r1, dq1, q1);
+        }
+        if n % 2 == 1 {
+            link!(n - 1, r0, dq0, q0);
+        }
+        ((dq0 + dq1) / (q0 + q1).max(self.demand_scale), r0.max(r1))
     }
 
     /// How many core links on their law carry a flow far from the base case's: reversed, or more
@@ -1168,6 +1330,74 @@ mod tests {
             assert!(path.iter().all(|&x| x == 0.0), "link {k}: the scratch is zeros again");
         }
         assert!(cores > 100 && trees > 20, "{cores} core and {trees} tree closures");
+    }
+
+    /// A hub where seven pipes meet (more than [`INCIDENT`]) in an invented network: a reservoir
+    /// feeding a hub junction whose six spokes end in a ring of junctions.
+    fn hub_network() -> Model {
+        use crate::model::{Link, LinkKind, Node, Pipe};
+        let mut m = Model::default();
+        m.add_node(Node::reservoir("R", 60.0)).unwrap();
+        m.add_node(Node::junction("H", 12.0, 0.002)).unwrap();
+        for r in 0..6 {
+            m.add_node(Node::junction(format!("N{r}"), 10.0 + r as f64, 0.003)).unwrap();
+        }
+        let pipe = |id: String, from: usize, to: usize| Link {
+            id: id.into(),
+            from,
+            to,
+            status: LinkStatus::Open,
+            kind: LinkKind::Pipe(Pipe {
+                length: 300.0,
+                diameter: 0.2,
+                roughness: 110.0,
+                minor_loss: 0.0,
+                check_valve: false,
+            }),
+        };
+        m.add_link(pipe("RH".into(), 0, 1)).unwrap();
+        for r in 0..6 {
+            m.add_link(pipe(format!("S{r}"), 1, 2 + r)).unwrap();
+            m.add_link(pipe(format!("C{r}"), 2 + r, 2 + (r + 1) % 6)).unwrap();
+        }
+        m
+    }
+
+    /// The balances a closure gathers (see [`Incidence`]) equal those `chord_rhs` scatters from
+    /// the same constants, with every core link closed in turn (its constant then leaves the
+    /// balances), to round-off: on a generated network (invented: see `crate::generate`) and on
+    /// a hub where more links meet than [`INCIDENT`] holds in place.
+    #[test]
+    fn the_gathered_balances_equal_the_scattered_ones() {
+        let mut extras = 0;
+        for m in [generate(&NetworkSpec::new(300, 4)).unwrap(), hub_network()] {
+            let conditions = Conditions::from_model(&m);
+            let options = SolveOptions::from_model(&m);
+            let mut base = Solver::new(&m).unwrap();
+            let solution = base.solve(&m, &conditions, &options).unwrap();
+            let sweep = base.sweep_base(&m, &conditions, &solution).expect("the fast path serves this base case");
+            let chord = &*sweep.chord;
+            let structure = base.structure.clone();
+            extras += sweep.incidence.extra.len();
+            let (n, core) = (structure.n, structure.core.len());
+            // Constants of the size of the flows, of both signs, and outflows.
+            let cc: Vec<f64> = (0..core).map(|i| 1e-3 * (((i * 7919) % 211) as f64 - 105.0)).collect();
+            let demand: Vec<f64> = (0..n).map(|u| 1e-4 * ((u * 104_729) % 97) as f64).collect();
+            let mut mode = chord.mode.clone();
+            let (mut want, mut got) = (vec![0.0; n], vec![0.0; n]);
+            for closed in (0..core).filter(|&i| chord.mode[i] & MODE_MASK == MODE_LAW) {
+                mode[closed] = MODE_CLOSED;
+                let mut value = cc.clone();
+                value[closed] = 0.0;
+                chord_rhs(&structure, &mode, &cc, &demand, &chord.free, &mut want);
+                sweep.incidence.gather(&value, &demand, &chord.free, &mut got);
+                mode[closed] = chord.mode[closed];
+                for (u, (a, b)) in got.iter().zip(&want).enumerate() {
+                    assert!((a - b).abs() <= 1e-15, "link {closed} closed, unknown {u}: {a} vs {b}");
+                }
+            }
+        }
+        assert!(extras > 0, "a junction with more links than the fixed places");
     }
 
     /// Tarjan's bridges on small graphs worked by hand: a triangle with a tail, parallel links
