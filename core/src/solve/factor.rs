@@ -85,11 +85,13 @@ impl Split {
     /// above) until the subtrees, in column order, part into a prefix and a suffix whose work
     /// differs by at most a twentieth of theirs, or the rows above would carry most of the work.
     /// `None` when the two parts would carry less than [`SPLIT_MIN_SHARE`] of it.
-    fn plan(parent: &[u32], work: &[f64]) -> Option<Split> {
+    ///
+    /// Lean in memory (it runs at the first factorization, near the solve's peak): a weight and
+    /// a size per column; a subtree's children are found from the sizes, the postorder putting a
+    /// column's last child just before it and each child's subtree just before that child.
+    fn plan(parent: &[u32], mut weight: Vec<f32>) -> Option<Split> {
         let n = parent.len();
-        let mut weight = work.to_vec();
         let mut size = vec![1u32; n];
-        let mut children: Vec<Vec<u32>> = vec![Vec::new(); n];
         let mut roots = Vec::new();
         for j in 0..n {
             match parent[j] {
@@ -99,25 +101,37 @@ impl Split {
                     debug_assert!(p > j, "the ordering is postordered");
                     weight[p] += weight[j];
                     size[p] += size[j];
-                    children[p].push(j as u32);
                 }
             }
         }
-        let total: f64 = roots.iter().map(|&r| weight[r as usize]).sum();
+        let total: f64 = roots.iter().map(|&r| f64::from(weight[r as usize])).sum();
         if total <= 0.0 {
             return None;
         }
+        // The children of `r`, in column order.
+        let children = |r: u32| {
+            let mut kids = Vec::new();
+            let first = r + 1 - size[r as usize];
+            let mut c = r;
+            while c > first {
+                c -= 1;
+                kids.push(c);
+                c = c + 1 - size[c as usize];
+            }
+            kids.reverse();
+            kids
+        };
         // The subtrees in column order, and the best prefix of them.
         let mut frontier = roots;
         let best_cut = |frontier: &[u32]| -> (usize, f64, f64) {
-            let sum: f64 = frontier.iter().map(|&r| weight[r as usize]).sum();
+            let sum: f64 = frontier.iter().map(|&r| f64::from(weight[r as usize])).sum();
             let (mut prefix, mut best) = (0.0, (0, f64::INFINITY));
             for (c, &r) in frontier.iter().enumerate() {
                 let gap = (sum - 2.0 * prefix).abs();
                 if gap < best.1 {
                     best = (c, gap);
                 }
-                prefix += weight[r as usize];
+                prefix += f64::from(weight[r as usize]);
             }
             (best.0, best.1, sum)
         };
@@ -132,8 +146,7 @@ impl Split {
             // The heaviest subtree gives way to its children.
             let (at, &heaviest) =
                 frontier.iter().enumerate().max_by(|a, b| weight[*a.1 as usize].total_cmp(&weight[*b.1 as usize]))?;
-            let kids = &children[heaviest as usize];
-            frontier.splice(at..=at, kids.iter().copied());
+            frontier.splice(at..=at, children(heaviest));
         }
         let (cut, gap, sum) = best_cut(&frontier);
         if (sum - gap) < SPLIT_MIN_SHARE * total || cut == 0 {
@@ -143,11 +156,14 @@ impl Split {
         let first: Vec<(u32, u32)> = frontier[..cut].iter().map(|&r| range(r)).collect();
         let second: Vec<(u32, u32)> = frontier[cut..].iter().map(|&r| range(r)).collect();
         let mid = second[0].0;
-        let mut inside = vec![false; n];
+        // The rows outside the subtrees: the gaps between their ranges (which are in order).
+        let mut top = Vec::new();
+        let mut next = 0u32;
         for &(a, b) in first.iter().chain(&second) {
-            inside[a as usize..=b as usize].iter_mut().for_each(|v| *v = true);
+            top.extend(next..a);
+            next = b + 1;
         }
-        let top = (0..n as u32).filter(|&j| !inside[j as usize]).collect();
+        top.extend(next..n as u32);
         Some(Split { first, second, mid, top })
     }
 }
@@ -201,13 +217,13 @@ impl Schedule {
         // squared, and one pass per row it appears in.
         let split = (l_row.len() >= SPLIT_MIN_ENTRIES)
             .then(|| {
-                let work: Vec<f64> = (0..n)
+                let work: Vec<f32> = (0..n)
                     .map(|j| {
-                        let count = (l_ptr[j + 1] - l_ptr[j]) as f64;
+                        let count = (l_ptr[j + 1] - l_ptr[j]) as f32;
                         0.5 * count * count + count
                     })
                     .collect();
-                Split::plan(&parent, &work)
+                Split::plan(&parent, work)
             })
             .flatten();
         Schedule { start, columns, split }
@@ -370,7 +386,9 @@ impl Factor {
         let (x_low, x_high) = x.split_at_mut(mid);
         let (next_low, next_high) = next.split_at_mut(mid);
         let (l_low, l_high) = l.split_at_mut(slot);
-        let ranges = |r: &[(u32, u32)]| r.iter().flat_map(|&(a, b)| a..=b).collect::<Vec<u32>>();
+        fn ranges(r: &[(u32, u32)]) -> impl Iterator<Item = u32> + '_ {
+            r.iter().flat_map(|&(a, b)| a..=b)
+        }
         let (low, high) = rayon::join(
             || rows.factor(ranges(&split.first), Part { x: x_low, next: next_low, l: l_low, column: 0, slot: 0 }),
             || rows.factor(ranges(&split.second), Part { x: x_high, next: next_high, l: l_high, column: mid, slot }),
@@ -481,6 +499,19 @@ mod tests {
         one.factor_with(&structure, false).unwrap();
         let split = one.schedule.as_ref().unwrap().split.as_ref().expect("a split at 1e5 junctions");
         assert!(split.first.len() + split.second.len() > 1 && !split.top.is_empty());
+        // Every row in exactly one of the three parts, the first part's below `mid`, the
+        // second's at or above it.
+        let mut seen = vec![0u8; structure.n];
+        for &(a, b) in &split.first {
+            assert!(b < split.mid);
+            (a..=b).for_each(|j| seen[j as usize] += 1);
+        }
+        for &(a, b) in &split.second {
+            assert!(a >= split.mid);
+            (a..=b).for_each(|j| seen[j as usize] += 1);
+        }
+        split.top.iter().for_each(|&j| seen[j as usize] += 1);
+        assert!(seen.iter().all(|&c| c == 1));
         let (mid, top) = (split.mid as usize, split.top.clone());
         let pool = rayon::ThreadPoolBuilder::new().num_threads(2).build().unwrap();
         pool.install(|| two.factor_with(&structure, true)).unwrap();
