@@ -193,18 +193,7 @@ impl Solver {
                 MODE_FIXED_FLOW => sum_q += cq.abs(),
                 _ => continue,
             }
-            let (p, c_value) = (*cp, *cc);
-            if mode & FREE_FROM != 0 {
-                values[c.diag_from as usize] += p;
-                rhs[c.slots.from as usize] -= c_value;
-            }
-            if mode & FREE_TO != 0 {
-                values[c.diag_to as usize] += p;
-                rhs[c.slots.to as usize] += c_value;
-            }
-            if mode & (FREE_FROM | FREE_TO) == FREE_FROM | FREE_TO {
-                values[c.slots.off as usize] -= p;
-            }
+            scatter_link(values, rhs, c, mode, *cp, *cc);
         }
         if !self.pinned.is_empty() {
             let links = model.links();
@@ -290,20 +279,8 @@ impl Solver {
         if mode & MODE_MASK == MODE_CLOSED {
             return;
         }
-        let (p, cc) = (self.cp[i], self.cc[i]);
         let c = &self.structure.core[i];
-        let values = &mut self.factor.values;
-        if mode & FREE_FROM != 0 {
-            values[c.diag_from as usize] += p;
-            self.rhs[c.slots.from as usize] -= cc;
-        }
-        if mode & FREE_TO != 0 {
-            values[c.diag_to as usize] += p;
-            self.rhs[c.slots.to as usize] += cc;
-        }
-        if mode & (FREE_FROM | FREE_TO) == FREE_FROM | FREE_TO {
-            values[c.slots.off as usize] -= p;
-        }
+        scatter_link(&mut self.factor.values, &mut self.rhs, c, mode, self.cp[i], self.cc[i]);
     }
 
     /// Ends the assembly: unit rows for pinned and cut-off unknowns (their δ is zero).
@@ -315,6 +292,23 @@ impl Solver {
                 self.rhs[u] = 0.0;
             }
         }
+    }
+}
+
+/// Adds core link `c` (mode byte `mode`, conductance `p`, constant `c_value`) to the matrix
+/// `values` and the right-hand side `rhs`: the scatter every assembly shares.
+#[inline(always)]
+pub(super) fn scatter_link(values: &mut [f64], rhs: &mut [f64], c: &CoreLink, mode: u8, p: f64, c_value: f64) {
+    if mode & FREE_FROM != 0 {
+        values[c.diag_from as usize] += p;
+        rhs[c.slots.from as usize] -= c_value;
+    }
+    if mode & FREE_TO != 0 {
+        values[c.diag_to as usize] += p;
+        rhs[c.slots.to as usize] += c_value;
+    }
+    if mode & (FREE_FROM | FREE_TO) == FREE_FROM | FREE_TO {
+        values[c.slots.off as usize] -= p;
     }
 }
 

@@ -29,7 +29,7 @@
 //! Device states and relations of pressure work as in a plain solve: the border only changes the
 //! step's corrections and the draw; the damping of the iteration damps the draw's step as well.
 
-use super::assemble::{link_ends, FREE_FROM, FREE_TO, LAW_GENERAL, MODE_FIXED_FLOW, MODE_LAW, MODE_MASK};
+use super::assemble::{link_ends, scatter_link, FREE_FROM, FREE_TO, LAW_GENERAL, MODE_FIXED_FLOW, MODE_LAW, MODE_MASK};
 use super::chord::{backward, forward};
 use super::iterate::MASS_GATE;
 use super::links;
@@ -832,18 +832,7 @@ impl Solver {
                 MODE_FIXED_FLOW => sum_q += cq.abs(),
                 _ => continue,
             }
-            let (p, c_value) = (*cp, *cc);
-            if mode & FREE_FROM != 0 {
-                values[c.diag_from as usize] += p;
-                rhs[c.slots.from as usize] -= c_value;
-            }
-            if mode & FREE_TO != 0 {
-                values[c.diag_to as usize] += p;
-                rhs[c.slots.to as usize] += c_value;
-            }
-            if mode & (FREE_FROM | FREE_TO) == FREE_FROM | FREE_TO {
-                values[c.slots.off as usize] -= p;
-            }
+            scatter_link(values, rhs, c, mode, *cp, *cc);
         }
         if let Some(h) = self.hold.as_mut() {
             h.core_loss = losses;
