@@ -352,7 +352,7 @@ impl Factor {
 
     /// Numeric factorization of `values`: faer's up-looking simplicial algorithm with the reach
     /// of every row kept from the first call (see the [module docs](self)), on two threads
-    /// where the structure has a [`Split`] and two threads are there.
+    /// where the structure has a `Split` and two threads are there.
     pub fn factor(&mut self, structure: &Structure) -> Result<(), NotPositive> {
         self.factor_with(structure, true)
     }

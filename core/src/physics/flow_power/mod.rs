@@ -15,7 +15,7 @@
 //! a^n = 2^(e n) · c_j^n · (1 + t)^n,   t = (m − c_j) / c_j,
 //! ```
 //!
-//! where `2^(e n)` and `c_j^n` come from tables of the f64 nearest the exact value ([`table`],
+//! where `2^(e n)` and `c_j^n` come from tables of the f64 nearest the exact value (`table`,
 //! made by `scripts/power_table.py` in 60-digit decimal arithmetic). `m − c_j` is exact (two
 //! numbers of one binade), and `t` is that difference times the table's nearest reciprocal of
 //! `c_j`: within two units of its last place, `|t| ≤ 2⁻⁹`. The binomial series
