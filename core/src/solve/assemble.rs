@@ -1,6 +1,7 @@
 //! Assembly: each core link's linearisation (`p = 1/g`, `c`) and its scatter into the head
 //! matrix and right-hand side, in one pass per iteration (see the [solver's docs](super)).
 
+use super::links::LinkLaw;
 use super::structure::{CoreLink, NONE};
 use super::{links, Pinned, Solver};
 use crate::model::Model;
@@ -113,12 +114,7 @@ impl Solver {
     /// law through its [`LinkLaw`](super::LinkLaw).
     #[inline]
     pub(super) fn core_law(&self, i: usize, q: f64) -> (f64, f64) {
-        if self.mode[i] & LAW_GENERAL != 0 {
-            self.laws[self.structure.core[i].link as usize].evaluate_exact(q)
-        } else {
-            let hot = &self.hot[i];
-            links::hazen_williams(hot.r, hot.minor, q)
-        }
+        law_at(&self.laws, self.structure.core[i].link, self.mode[i], &self.hot[i], q)
     }
 
     /// Conductance p, constant c and energy residual of core link `i` at flow `q` and head
@@ -176,11 +172,7 @@ impl Solver {
                     };
                     let dh = h_from - h_to;
                     let general = mode & LAW_GENERAL != 0;
-                    let (y, g) = if general {
-                        laws[c.link as usize].evaluate_exact(q)
-                    } else {
-                        links::hazen_williams(hot.r, hot.minor, q)
-                    };
+                    let (y, g) = law_at(laws, c.link, mode, hot, q);
                     let g = if secant && !general && q != 0.0 { y / q } else { g };
                     let p = 1.0 / g.max(hot.min_slope);
                     residual = residual.max((y - dh).abs());
@@ -292,6 +284,19 @@ impl Solver {
                 self.rhs[u] = 0.0;
             }
         }
+    }
+}
+
+/// Exact head loss and slope at flow `q` of the core link `link` with mode byte `mode` and hot
+/// parts `hot`: Hazen–Williams inline, any other law through its [`LinkLaw`](super::LinkLaw).
+/// The one evaluation of [`Solver::core_law`] and of the passes that borrow the solver's fields
+/// apart.
+#[inline(always)]
+pub(super) fn law_at(laws: &[LinkLaw], link: u32, mode: u8, hot: &HotLaw, q: f64) -> (f64, f64) {
+    if mode & LAW_GENERAL != 0 {
+        laws[link as usize].evaluate_exact(q)
+    } else {
+        links::hazen_williams(hot.r, hot.minor, q)
     }
 }
 

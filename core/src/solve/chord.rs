@@ -33,7 +33,9 @@
 //! solver's own test passes. Either way the answer is the one a fresh solve converges to,
 //! within the tolerances (`tests/conditions.rs` compares them closure by closure).
 
-use super::assemble::{link_ends, FREE_FROM, FREE_TO, LAW_GENERAL, MODE_CLOSED, MODE_FIXED_FLOW, MODE_LAW, MODE_MASK};
+use super::assemble::{
+    law_at, link_ends, FREE_FROM, FREE_TO, LAW_GENERAL, MODE_CLOSED, MODE_FIXED_FLOW, MODE_LAW, MODE_MASK,
+};
 use super::structure::NONE;
 use super::Solver;
 use std::sync::Arc;
@@ -327,11 +329,7 @@ impl Solver {
                     let dh = h_from - h_to;
                     let y = match base.taylor[i].and_then(|t| t.at(q)) {
                         Some(y) => y,
-                        None if mode & LAW_GENERAL != 0 => laws[c.link as usize].evaluate_exact(q).0,
-                        None => {
-                            let hot = self.hot[i];
-                            super::links::hazen_williams(hot.r, hot.minor, q).0
-                        }
+                        None => law_at(laws, c.link, mode, &self.hot[i], q).0,
                     };
                     residual = residual.max((y - dh).abs());
                     sum_dq += (q - self.cq[i]).abs();

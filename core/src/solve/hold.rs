@@ -29,10 +29,9 @@
 //! Device states and relations of pressure work as in a plain solve: the border only changes the
 //! step's corrections and the draw; the damping of the iteration damps the draw's step as well.
 
-use super::assemble::{link_ends, scatter_link, FREE_FROM, FREE_TO, LAW_GENERAL, MODE_FIXED_FLOW, MODE_LAW, MODE_MASK};
+use super::assemble::{law_at, link_ends, scatter_link, FREE_FROM, FREE_TO, MODE_FIXED_FLOW, MODE_LAW, MODE_MASK};
 use super::chord::{backward, forward};
 use super::iterate::MASS_GATE;
-use super::links;
 use super::status::StatusTracker;
 use super::structure::NONE;
 use super::{Solution, SolveOptions, Solver};
@@ -815,11 +814,7 @@ impl Solver {
                     let ((d_from, h_from), (d_to, h_to)) = link_ends(c, delta, unknown_head, head);
                     let q = *cc + *cp * (d_from - d_to);
                     let dh = h_from - h_to;
-                    let (y, g) = if mode & LAW_GENERAL != 0 {
-                        laws[c.link as usize].evaluate_exact(q)
-                    } else {
-                        links::hazen_williams(hot.r, hot.minor, q)
-                    };
+                    let (y, g) = law_at(laws, c.link, mode, hot, q);
                     let p = 1.0 / g.max(hot.min_slope);
                     *loss = [q, y];
                     residual = residual.max((y - dh).abs());

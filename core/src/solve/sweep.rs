@@ -50,7 +50,7 @@
 //! tolerance), followed by the same last gates (every value finite, mass balance to round-off).
 //! `tests/conditions.rs` compares every closure with a fresh solve of the closed model.
 
-use super::assemble::{link_ends, FREE_FROM, FREE_TO, LAW_GENERAL, MODE_CLOSED, MODE_LAW, MODE_MASK};
+use super::assemble::{law_at, link_ends, FREE_FROM, FREE_TO, MODE_CLOSED, MODE_LAW, MODE_MASK};
 use super::chord::{
     backward_by_reciprocals, chord_rhs, forward, forward_path, ChordBase, Correction, CHORD_CONTRACTION, CHORD_MARGIN,
     CHORD_STEPS,
@@ -982,8 +982,7 @@ impl Solver {
                     let dh = h_from - h_to;
                     let y = match taylor[i].and_then(|t| t.at(q)) {
                         Some(y) => y,
-                        None if m & LAW_GENERAL != 0 => laws[c.link as usize].evaluate_exact(q).0,
-                        None => super::links::hazen_williams(hot[i].r, hot[i].minor, q).0,
+                        None => law_at(laws, c.link, m, &hot[i], q).0,
                     };
                     let r = (y - dh).abs();
                     if r > $r {
@@ -1189,6 +1188,16 @@ mod tests {
     use super::*;
     use crate::generate::{generate, NetworkSpec};
 
+    /// The conditions of `m`, a solver with its base case solved, that solution, and the
+    /// sweep's shared part made from it (the fast path must serve it).
+    fn swept(m: &Model) -> (Conditions, Solver, Solution, SweepBase) {
+        let conditions = Conditions::from_model(m);
+        let mut base = Solver::new(m).unwrap();
+        let solution = base.solve(m, &conditions, &SolveOptions::from_model(m)).unwrap();
+        let sweep = base.sweep_base(m, &conditions, &solution).expect("the fast path serves this base case");
+        (conditions, base, solution, sweep)
+    }
+
     /// Every closure of a generated network (invented: see `crate::generate`) that the fast path
     /// serves equals a fresh solve of the closed model (heads to 1e-6 m, flows to 1e-9 m³/s,
     /// connectivity and link states exactly), with tolerances tight enough that every path is
@@ -1201,11 +1210,8 @@ mod tests {
         let mut m = generate(&NetworkSpec::new(400, 11)).unwrap();
         m.options.head_tolerance = 1e-9;
         m.options.flow_tolerance = 1e-12;
-        let conditions = Conditions::from_model(&m);
+        let (conditions, base, solution, sweep) = swept(&m);
         let options = SolveOptions::from_model(&m);
-        let mut base = Solver::new(&m).unwrap();
-        let solution = base.solve(&m, &conditions, &options).unwrap();
-        let sweep = base.sweep_base(&m, &conditions, &solution).expect("the fast path serves this base case");
         let mut solver = base.clone();
         solver.use_chord(Some(sweep.chord.clone()));
         let mut w = Worker::new(solver, solution.clone(), conditions.clone());
@@ -1273,11 +1279,7 @@ mod tests {
     #[test]
     fn the_first_forward_solve_from_the_base_case_equals_the_whole_one() {
         let m = generate(&NetworkSpec::new(400, 5)).unwrap();
-        let conditions = Conditions::from_model(&m);
-        let options = SolveOptions::from_model(&m);
-        let mut base = Solver::new(&m).unwrap();
-        let solution = base.solve(&m, &conditions, &options).unwrap();
-        let sweep = base.sweep_base(&m, &conditions, &solution).expect("the fast path serves this base case");
+        let (_, base, _, sweep) = swept(&m);
         let chord = &*sweep.chord;
         let structure = base.structure.clone();
         let mut s = base.clone();
@@ -1371,11 +1373,7 @@ mod tests {
     fn the_gathered_balances_equal_the_scattered_ones() {
         let mut extras = 0;
         for m in [generate(&NetworkSpec::new(300, 4)).unwrap(), hub_network()] {
-            let conditions = Conditions::from_model(&m);
-            let options = SolveOptions::from_model(&m);
-            let mut base = Solver::new(&m).unwrap();
-            let solution = base.solve(&m, &conditions, &options).unwrap();
-            let sweep = base.sweep_base(&m, &conditions, &solution).expect("the fast path serves this base case");
+            let (_, base, _, sweep) = swept(&m);
             let chord = &*sweep.chord;
             let structure = base.structure.clone();
             extras += sweep.incidence.extra.len();
