@@ -258,8 +258,8 @@ impl LinkLaw {
 /// `m`, `h = r |Q|^n sign(Q) + m Q|Q|`. This is the one evaluation the solver uses for these
 /// pipes (in the iteration, the tree sweeps and the reported residuals). `|Q|^n` is
 /// [`hw_flow_power`](crate::physics::flow_power::hw_flow_power): tables and a short series, within
-/// a few units in the last place of `powf` and several times faster than `exp(n ln|Q|)`, which
-/// matters in the solver's hottest loop.
+/// a few units in the last place of `powf`, and cheaper than `exp(n ln|Q|)`, which matters in
+/// the solver's hottest loop (the fire-flow analysis took about a fifth less CPU with it).
 #[inline]
 pub fn hazen_williams(r: f64, m: f64, q: f64) -> (f64, f64) {
     let a = q.abs();
