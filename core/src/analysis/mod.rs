@@ -177,7 +177,6 @@ pub fn demand_delivered_indexed(
     let behind_pumps: Vec<bool> = if shut.is_empty() {
         Vec::new()
     } else {
-        let adjacency = crate::solve::topology::Adjacency::new(model);
         let open: Vec<bool> = (0..links.len())
             .map(|k| {
                 let state = solution.link_state[k];
@@ -187,7 +186,6 @@ pub fn demand_delivered_indexed(
         let mut reach = vec![false; nodes.len()];
         crate::solve::topology::mark_connected(
             model,
-            &adjacency,
             &crate::solve::topology::link_ends(model),
             &open,
             &mut reach,
@@ -462,13 +460,11 @@ fn lost_supply(model: &Model, reference: &[bool], now: &[bool], keep: usize) -> 
 
 /// Which nodes a fixed head reaches through links not closed by the user (no solve needed).
 pub fn supplied_by_topology(model: &Model) -> Vec<bool> {
-    let adjacency = crate::solve::topology::Adjacency::new(model);
     let open: Vec<bool> = model.links().iter().map(|l| l.status != LinkStatus::Closed).collect();
     let mut connected = vec![false; model.nodes().len()];
     let mut stack = Vec::new();
     crate::solve::topology::mark_connected(
         model,
-        &adjacency,
         &crate::solve::topology::link_ends(model),
         &open,
         &mut connected,

