@@ -1043,7 +1043,11 @@ impl Solver {
             self.scatter(i);
         }
         self.end_assembly();
-        self.factor.factor(&structure).is_ok()
+        if self.factor.factor(&structure).is_err() {
+            return false;
+        }
+        self.own_reciprocals();
+        true
     }
 
     /// Chooses the links of the Woodbury correction afresh at the current point: the
