@@ -172,7 +172,9 @@ pub fn demand_delivered_indexed(
     use crate::solve::LinkState;
     let nodes = model.nodes();
     let links = model.links();
-    let shut: Vec<usize> = (0..links.len()).filter(|&k| solution.link_state[k] == LinkState::PumpShutoff).collect();
+    // Only a pump shuts off: its links are listed in the index.
+    let shut: Vec<usize> =
+        index.pumps.iter().map(|&k| k as usize).filter(|&k| solution.link_state[k] == LinkState::PumpShutoff).collect();
     // Junctions that the shut-off pumps would reach if they could run.
     let behind_pumps: Vec<bool> = if shut.is_empty() {
         Vec::new()
@@ -450,7 +452,9 @@ fn unsolved(criteria: &Criteria, model: &Model, e: Unsolved) -> Outcome {
 
 fn lost_supply(model: &Model, reference: &[bool], now: &[bool], keep: usize) -> LostSupply {
     let nodes = model.nodes();
-    let mut lost: Vec<usize> = (0..nodes.len()).filter(|&i| reference.get(i) == Some(&true) && !now[i]).collect();
+    // (A reference shorter than the nodes leaves the others out.)
+    let mut lost: Vec<usize> =
+        reference.iter().zip(now).enumerate().filter(|(_, (&was, &is))| was && !is).map(|(i, _)| i).collect();
     let demand = lost.iter().map(|&i| nodes[i].demand().max(0.0)).sum();
     let count = lost.len();
     let with_demand =
@@ -758,6 +762,8 @@ mod tests {
             kind: LinkKind::Pump(Box::new(pump)),
         })
         .unwrap();
+        // The index lists the pump: the only link whose shutoff the delivery check looks for.
+        assert_eq!(NodeIndex::new(&m).pumps, [1]);
         let criteria = Criteria::default();
         let mut solver = Solver::new(&m).unwrap();
         let (outcome, _) =

@@ -131,6 +131,11 @@ pub(super) struct SweepBase {
     demand_scale: f64,
     /// Per link: flow area, m² (zero for pumps).
     area: Vec<f64>,
+    /// Per core position: the reciprocal of its link's flow area, 1/m², where it is a finite
+    /// number (NaN elsewhere: pumps, and areas too small for one). The velocities of the core
+    /// links, which every closure writes, take a multiplication where a division cost a fifth of
+    /// the writing; they differ from `Q / A` by round-off only.
+    core_reciprocal_area: Vec<f64>,
     /// `L⁻¹ r₀`, the forward solve of the base case's chord right-hand side `r₀`. A closure
     /// changes `r₀` in one entry (a tree closure: its root's outflow) or along one link's
     /// columns `u` (a core closure: the closed link's constant leaves the balance), so its first
@@ -403,6 +408,19 @@ impl Solver {
             unknown_demand: self.unknown_demand.clone(),
             tree_flow_sum: self.tree_flow_sum,
             demand_scale: self.demand_scale,
+            core_reciprocal_area: structure
+                .core
+                .iter()
+                .map(|c| {
+                    let area = conditions.flow_area(c.link as usize);
+                    let r = area.recip();
+                    if area > 0.0 && r.is_finite() {
+                        r
+                    } else {
+                        f64::NAN
+                    }
+                })
+                .collect(),
             area: (0..n_links).map(|k| conditions.flow_area(k)).collect(),
             elevation: model.nodes().iter().map(|n| n.elevation).collect(),
             incidence: Incidence::new(structure, &chord.mode),
@@ -666,23 +684,20 @@ impl Worker {
                 }
             }
         }
-        // Core flows and velocities (the tree pipes' are the base case's but for those the
-        // closure touched); every value finite where it is defined.
-        for (i, c) in structure.core.iter().enumerate() {
-            let l = c.link as usize;
-            if l != k {
-                out.flow[l] = s.cq[i];
-            }
-        }
+        // Core flows and velocities in one pass (the tree pipes' are the base case's but for
+        // those the closure touched); every value finite where it is defined.
         let velocity = |l: usize, q: f64| {
             let area = sweep.area[l];
             let v = if area > 0.0 { q / area } else { f64::NAN };
             (v, q.is_finite() && (area <= 0.0 || v.is_finite()))
         };
         let mut finite = true;
-        for c in &structure.core {
+        for ((c, &q), &r) in structure.core.iter().zip(&s.cq).zip(&sweep.core_reciprocal_area) {
             let l = c.link as usize;
-            let (v, ok) = velocity(l, out.flow[l]);
+            // The closed link's flow is zero already.
+            let q = if l != k { q } else { out.flow[l] };
+            out.flow[l] = q;
+            let (v, ok) = if r.is_nan() { velocity(l, q) } else { (q * r, (q * r).is_finite()) };
             out.velocity[l] = v;
             finite &= ok;
         }
