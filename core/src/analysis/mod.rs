@@ -382,7 +382,7 @@ fn judge_closure(
         lost_supply: lost_supply(model, reference, &solution.connected, options.keep),
         connected: Vec::new(),
         repeated_from_base: 0,
-        shortfall: solution.outflow_summary(0).shortfall,
+        shortfall: solution.shortfall(),
     }
 }
 
@@ -775,6 +775,22 @@ mod tests {
         assert!(!outcome.passed());
         assert_eq!(outcome.checks[0].name, "must_converge");
         assert!(!outcome.checks[0].passed());
+    }
+
+    /// The shortfall a sweep's closure reports (`Solution::shortfall`) is the outflow summary's:
+    /// zero with every junction supplied, the demand cut off (here D's 2 L/s) with a dead end
+    /// closed, to round-off.
+    #[test]
+    fn the_closures_shortfall_is_the_summarys() {
+        let mut m = network();
+        let s = Solver::new(&m).unwrap().solve(&m, &Conditions::from_model(&m), &SolveOptions::from_model(&m)).unwrap();
+        assert_eq!((s.shortfall(), s.outflow_summary(0).shortfall), (0.0, 0.0));
+        m.set_status(4, LinkStatus::Closed).unwrap();
+        let s = Solver::new(&m).unwrap().solve(&m, &Conditions::from_model(&m), &SolveOptions::from_model(&m)).unwrap();
+        assert!(!s.connected[4]);
+        let summary = s.outflow_summary(0).shortfall;
+        assert!((summary - 0.002).abs() <= 1e-15, "{summary}");
+        assert!((s.shortfall() - summary).abs() <= 1e-15, "{} vs {summary}", s.shortfall());
     }
 
     #[test]
