@@ -31,12 +31,16 @@
 //!   ends (consecutive links share ends, and the read-modify-writes of one balance wait on each
 //!   other), split their sums in two, and take their largest values by plain comparisons (a
 //!   NaN-aware `max` kept in memory was the longest chain of a step); a closure writes the
-//!   velocities of the core links and of the tree pipes whose flows it changed only.
+//!   velocities of the core links (with their flows, in one pass, by the reciprocal of the flow
+//!   area) and of the tree pipes whose flows it changed only.
 //! * **Newton's steps where the chord cannot serve.** A closure whose first step moved the
 //!   flows of more than [`NEWTON_AT_ONCE`] links far (more than a Woodbury correction covers)
 //!   factors at its own point at once; one whose chord diverges or stays slow does so later.
 //!   Once its steps are within [`OWN_CHORD_REACH`] head tolerances, it keeps its own factor for
-//!   chord steps, and factors again only where one contracts too slowly.
+//!   chord steps (by the reciprocals of that factor's diagonal, made after each
+//!   factorization, as on the base factor), and factors again only where one contracts too
+//!   slowly. The factor of a neighbouring closure's answer does not serve instead (tried: most
+//!   closures that borrowed one stalled; see `benches/RESULTS.md`, branch `sweep7`).
 //!
 //! # When it serves, and when the general solve takes over
 //! Only where the answer is that of the general solve by construction: the base case solved
