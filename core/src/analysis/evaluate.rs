@@ -70,14 +70,18 @@ impl CheckResult {
     }
 }
 
-/// The nodes the criteria read, found once per model: a sweep evaluates thousands of solutions
-/// of one model, and reading every node's record for each of them cost more than the checks.
+/// The nodes the criteria read (and the pumps), found once per model: a sweep evaluates
+/// thousands of solutions of one model, and reading every node's record for each of them cost
+/// more than the checks.
 #[derive(Clone, Debug, Default)]
 pub struct NodeIndex {
     /// The junctions, in the model's order.
     pub(crate) junctions: Vec<u32>,
     /// The junctions with a demand above zero, in the model's order.
     pub(crate) demanding: Vec<u32>,
+    /// The pump links, in the model's order (the only links that shut off against too high a
+    /// head: what the check that demands are delivered looks for).
+    pub(crate) pumps: Vec<u32>,
 }
 
 impl NodeIndex {
@@ -90,6 +94,11 @@ impl NodeIndex {
                 if n.demand() > 0.0 {
                     index.demanding.push(i as u32);
                 }
+            }
+        }
+        for (k, l) in model.links().iter().enumerate() {
+            if matches!(l.kind, LinkKind::Pump(_)) {
+                index.pumps.push(k as u32);
             }
         }
         index

@@ -172,7 +172,9 @@ pub fn demand_delivered_indexed(
     use crate::solve::LinkState;
     let nodes = model.nodes();
     let links = model.links();
-    let shut: Vec<usize> = (0..links.len()).filter(|&k| solution.link_state[k] == LinkState::PumpShutoff).collect();
+    // Only a pump shuts off: its links are listed in the index.
+    let shut: Vec<usize> =
+        index.pumps.iter().map(|&k| k as usize).filter(|&k| solution.link_state[k] == LinkState::PumpShutoff).collect();
     // Junctions that the shut-off pumps would reach if they could run.
     let behind_pumps: Vec<bool> = if shut.is_empty() {
         Vec::new()
@@ -378,7 +380,7 @@ fn judge_closure(
         lost_supply: lost_supply(model, reference, &solution.connected, options.keep),
         connected: Vec::new(),
         repeated_from_base: 0,
-        shortfall: solution.outflow_summary(0).shortfall,
+        shortfall: solution.shortfall(),
     }
 }
 
@@ -448,7 +450,9 @@ fn unsolved(criteria: &Criteria, model: &Model, e: Unsolved) -> Outcome {
 
 fn lost_supply(model: &Model, reference: &[bool], now: &[bool], keep: usize) -> LostSupply {
     let nodes = model.nodes();
-    let mut lost: Vec<usize> = (0..nodes.len()).filter(|&i| reference.get(i) == Some(&true) && !now[i]).collect();
+    // (A reference shorter than the nodes leaves the others out.)
+    let mut lost: Vec<usize> =
+        reference.iter().zip(now).enumerate().filter(|(_, (&was, &is))| was && !is).map(|(i, _)| i).collect();
     let demand = lost.iter().map(|&i| nodes[i].demand().max(0.0)).sum();
     let count = lost.len();
     let with_demand =
@@ -754,6 +758,8 @@ mod tests {
             kind: LinkKind::Pump(Box::new(pump)),
         })
         .unwrap();
+        // The index lists the pump: the only link whose shutoff the delivery check looks for.
+        assert_eq!(NodeIndex::new(&m).pumps, [1]);
         let criteria = Criteria::default();
         let mut solver = Solver::new(&m).unwrap();
         let (outcome, _) =
@@ -765,6 +771,22 @@ mod tests {
         assert!(!outcome.passed());
         assert_eq!(outcome.checks[0].name, "must_converge");
         assert!(!outcome.checks[0].passed());
+    }
+
+    /// The shortfall a sweep's closure reports (`Solution::shortfall`) is the outflow summary's:
+    /// zero with every junction supplied, the demand cut off (here D's 2 L/s) with a dead end
+    /// closed, to round-off.
+    #[test]
+    fn the_closures_shortfall_is_the_summarys() {
+        let mut m = network();
+        let s = Solver::new(&m).unwrap().solve(&m, &Conditions::from_model(&m), &SolveOptions::from_model(&m)).unwrap();
+        assert_eq!((s.shortfall(), s.outflow_summary(0).shortfall), (0.0, 0.0));
+        m.set_status(4, LinkStatus::Closed).unwrap();
+        let s = Solver::new(&m).unwrap().solve(&m, &Conditions::from_model(&m), &SolveOptions::from_model(&m)).unwrap();
+        assert!(!s.connected[4]);
+        let summary = s.outflow_summary(0).shortfall;
+        assert!((summary - 0.002).abs() <= 1e-15, "{summary}");
+        assert!((s.shortfall() - summary).abs() <= 1e-15, "{} vs {summary}", s.shortfall());
     }
 
     #[test]

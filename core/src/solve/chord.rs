@@ -691,10 +691,22 @@ impl Solver {
         backward_by_reciprocals(&self.structure, &base.l_values, &base.recip, &mut self.rhs);
     }
 
-    /// Solves a chord step's system in place in `rhs` with this solver's own factor.
+    /// Makes the reciprocals of the diagonal of this solver's own factor (after a factorization)
+    /// for [`Solver::own_factor_solve`].
+    pub(super) fn own_reciprocals(&mut self) {
+        let col_ptr = self.structure.symbolic.col_ptr();
+        let l = self.factor.l_values();
+        self.own_recip.clear();
+        self.own_recip.extend((0..self.structure.n).map(|j| l[col_ptr[j] as usize].recip()));
+    }
+
+    /// Solves a chord step's system in place in `rhs` with this solver's own factor, by the
+    /// reciprocals of its diagonal made by [`Solver::own_reciprocals`] after its factorization
+    /// (see [`forward_by_reciprocals`]).
     pub(super) fn own_factor_solve(&mut self) {
-        forward(&self.structure, self.factor.l_values(), &mut self.rhs, 0);
-        backward(&self.structure, self.factor.l_values(), &mut self.rhs);
+        let l = self.factor.l_values();
+        forward_by_reciprocals(&self.structure, l, &self.own_recip, &mut self.rhs);
+        backward_by_reciprocals(&self.structure, l, &self.own_recip, &mut self.rhs);
     }
 }
 

@@ -271,6 +271,9 @@ pub struct Solver {
     chord: Option<Arc<chord::ChordBase>>,
     /// `A₀⁻¹ u` of the link a chord iteration closes.
     chord_w: Vec<f64>,
+    /// Reciprocals of the diagonal of this solver's own factor, made after each factorization of
+    /// a sweep's closure (see `sweep.rs`), for its chord steps' triangular solves.
+    own_recip: Vec<f64>,
     timings: Timings,
     analysis_time: Duration,
     /// Set during [`Solver::solve_once`]: the solve frees the iteration's work arrays before the
@@ -370,6 +373,7 @@ impl Solver {
             hold: None,
             chord: None,
             chord_w: Vec::new(),
+            own_recip: Vec::new(),
             timings: Timings { analysis: analysis_time, ..Timings::default() },
             analysis_time,
             one_off: false,

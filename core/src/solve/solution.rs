@@ -156,6 +156,25 @@ impl Solution {
         }
     }
 
+    /// The `shortfall` of [`Solution::outflow_summary`] alone, m³/s. Where no demand follows
+    /// pressure (`delivered` empty) it is the demand of the junctions cut off, summed without
+    /// the totals: a sweep asks it of every closure, and the summary's two running sums over
+    /// every node were a chain of dependent additions. It differs from the summary's
+    /// `asked − delivered` by round-off only, and is zero exactly where that is (nothing cut
+    /// off that asks for water).
+    pub fn shortfall(&self) -> f64 {
+        if !self.delivered.is_empty() {
+            return self.outflow_summary(0).shortfall;
+        }
+        let mut cut = 0.0;
+        for (&d, &connected) in self.demand.iter().zip(&self.connected) {
+            if d > 0.0 && !connected {
+                cut += d;
+            }
+        }
+        cut
+    }
+
     /// Net outflow of a node into the network, m³/s (positive: the node supplies water).
     pub fn net_outflow(&self, model: &Model, node: usize) -> f64 {
         model

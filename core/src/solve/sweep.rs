@@ -31,12 +31,16 @@
 //!   ends (consecutive links share ends, and the read-modify-writes of one balance wait on each
 //!   other), split their sums in two, and take their largest values by plain comparisons (a
 //!   NaN-aware `max` kept in memory was the longest chain of a step); a closure writes the
-//!   velocities of the core links and of the tree pipes whose flows it changed only.
+//!   velocities of the core links (with their flows, in one pass, by the reciprocal of the flow
+//!   area) and of the tree pipes whose flows it changed only.
 //! * **Newton's steps where the chord cannot serve.** A closure whose first step moved the
 //!   flows of more than [`NEWTON_AT_ONCE`] links far (more than a Woodbury correction covers)
 //!   factors at its own point at once; one whose chord diverges or stays slow does so later.
 //!   Once its steps are within [`OWN_CHORD_REACH`] head tolerances, it keeps its own factor for
-//!   chord steps, and factors again only where one contracts too slowly.
+//!   chord steps (by the reciprocals of that factor's diagonal, made after each
+//!   factorization, as on the base factor), and factors again only where one contracts too
+//!   slowly. The factor of a neighbouring closure's answer does not serve instead (tried: most
+//!   closures that borrowed one stalled; see `benches/RESULTS.md`, branch `sweep7`).
 //!
 //! # When it serves, and when the general solve takes over
 //! Only where the answer is that of the general solve by construction: the base case solved
@@ -131,6 +135,11 @@ pub(super) struct SweepBase {
     demand_scale: f64,
     /// Per link: flow area, m² (zero for pumps).
     area: Vec<f64>,
+    /// Per core position: the reciprocal of its link's flow area, 1/m², where it is a finite
+    /// number (NaN elsewhere: pumps, and areas too small for one). The velocities of the core
+    /// links, which every closure writes, take a multiplication where a division cost a fifth of
+    /// the writing; they differ from `Q / A` by round-off only.
+    core_reciprocal_area: Vec<f64>,
     /// `L⁻¹ r₀`, the forward solve of the base case's chord right-hand side `r₀`. A closure
     /// changes `r₀` in one entry (a tree closure: its root's outflow) or along one link's
     /// columns `u` (a core closure: the closed link's constant leaves the balance), so its first
@@ -403,6 +412,19 @@ impl Solver {
             unknown_demand: self.unknown_demand.clone(),
             tree_flow_sum: self.tree_flow_sum,
             demand_scale: self.demand_scale,
+            core_reciprocal_area: structure
+                .core
+                .iter()
+                .map(|c| {
+                    let area = conditions.flow_area(c.link as usize);
+                    let r = area.recip();
+                    if area > 0.0 && r.is_finite() {
+                        r
+                    } else {
+                        f64::NAN
+                    }
+                })
+                .collect(),
             area: (0..n_links).map(|k| conditions.flow_area(k)).collect(),
             elevation: model.nodes().iter().map(|n| n.elevation).collect(),
             incidence: Incidence::new(structure, &chord.mode),
@@ -666,23 +688,20 @@ impl Worker {
                 }
             }
         }
-        // Core flows and velocities (the tree pipes' are the base case's but for those the
-        // closure touched); every value finite where it is defined.
-        for (i, c) in structure.core.iter().enumerate() {
-            let l = c.link as usize;
-            if l != k {
-                out.flow[l] = s.cq[i];
-            }
-        }
+        // Core flows and velocities in one pass (the tree pipes' are the base case's but for
+        // those the closure touched); every value finite where it is defined.
         let velocity = |l: usize, q: f64| {
             let area = sweep.area[l];
             let v = if area > 0.0 { q / area } else { f64::NAN };
             (v, q.is_finite() && (area <= 0.0 || v.is_finite()))
         };
         let mut finite = true;
-        for c in &structure.core {
+        for ((c, &q), &r) in structure.core.iter().zip(&s.cq).zip(&sweep.core_reciprocal_area) {
             let l = c.link as usize;
-            let (v, ok) = velocity(l, out.flow[l]);
+            // The closed link's flow is zero already.
+            let q = if l != k { q } else { out.flow[l] };
+            out.flow[l] = q;
+            let (v, ok) = if r.is_nan() { velocity(l, q) } else { (q * r, (q * r).is_finite()) };
             out.velocity[l] = v;
             finite &= ok;
         }
@@ -1043,7 +1062,11 @@ impl Solver {
             self.scatter(i);
         }
         self.end_assembly();
-        self.factor.factor(&structure).is_ok()
+        if self.factor.factor(&structure).is_err() {
+            return false;
+        }
+        self.own_reciprocals();
+        true
     }
 
     /// Chooses the links of the Woodbury correction afresh at the current point: the
