@@ -179,13 +179,13 @@ pub fn diagnose_solution(model: &Model, solution: &Solution) -> Vec<Warning> {
 fn reachability(model: &Model, out: &mut Vec<Warning>) {
     let ends = crate::solve::topology::link_ends(model);
     let n = model.nodes().len();
-    let mut stack = Vec::with_capacity(n);
+    let mut scratch = Vec::new();
     let mut any = vec![false; n];
     let mut open = vec![false; n];
     let all_links = vec![true; model.links().len()];
-    mark_connected(model, &ends, &all_links, &mut any, &mut stack);
+    mark_connected(model, &ends, &all_links, &mut any, &mut scratch);
     let open_links: Vec<bool> = model.links().iter().map(|l| l.status != LinkStatus::Closed).collect();
-    mark_connected(model, &ends, &open_links, &mut open, &mut stack);
+    mark_connected(model, &ends, &open_links, &mut open, &mut scratch);
     for (i, node) in model.nodes().iter().enumerate() {
         if !matches!(node.kind, NodeKind::Junction { .. }) {
             continue;

@@ -466,14 +466,8 @@ fn lost_supply(model: &Model, reference: &[bool], now: &[bool], keep: usize) -> 
 pub fn supplied_by_topology(model: &Model) -> Vec<bool> {
     let open: Vec<bool> = model.links().iter().map(|l| l.status != LinkStatus::Closed).collect();
     let mut connected = vec![false; model.nodes().len()];
-    let mut stack = Vec::new();
-    crate::solve::topology::mark_connected(
-        model,
-        &crate::solve::topology::link_ends(model),
-        &open,
-        &mut connected,
-        &mut stack,
-    );
+    let ends = crate::solve::topology::link_ends(model);
+    crate::solve::topology::mark_connected(model, &ends, &open, &mut connected, &mut Vec::new());
     connected
 }
 

@@ -135,7 +135,11 @@ impl Solver {
         Some(Arc::new(ChordBase {
             parent,
             taylor,
-            recip: diagonal_reciprocals(&s.structure, s.factor.l_values()),
+            recip: {
+                let mut recip = Vec::new();
+                diagonal_reciprocals(&s.structure, s.factor.l_values(), &mut recip);
+                recip
+            },
             l_values: s.factor.l_values().to_vec(),
             cp: s.cp.clone(),
             q0: s.cq.clone(),
@@ -444,10 +448,13 @@ pub(super) fn backward_by_reciprocals(structure: &super::Structure, l: &[f64], r
     backward_with(structure, l, x, |j, _, v| v * recip[j]);
 }
 
-/// The reciprocals of the diagonal of a factor with values `l` (see [`forward_by_reciprocals`]).
-fn diagonal_reciprocals(structure: &super::Structure, l: &[f64]) -> Vec<f64> {
+/// The reciprocals of the diagonal of a factor with values `l`, into `recip` (see
+/// [`forward_by_reciprocals`]): the base case's factor once, a sweep closure's own factor after
+/// each factorization (reusing the buffer).
+fn diagonal_reciprocals(structure: &super::Structure, l: &[f64], recip: &mut Vec<f64>) {
     let col_ptr = structure.symbolic.col_ptr();
-    (0..structure.n).map(|j| l[col_ptr[j] as usize].recip()).collect()
+    recip.clear();
+    recip.extend((0..structure.n).map(|j| l[col_ptr[j] as usize].recip()));
 }
 
 /// [`forward`], with `scale(j, start, v)` the division of column `j`'s value `v` by its diagonal
@@ -694,10 +701,7 @@ impl Solver {
     /// Makes the reciprocals of the diagonal of this solver's own factor (after a factorization)
     /// for [`Solver::own_factor_solve`].
     pub(super) fn own_reciprocals(&mut self) {
-        let col_ptr = self.structure.symbolic.col_ptr();
-        let l = self.factor.l_values();
-        self.own_recip.clear();
-        self.own_recip.extend((0..self.structure.n).map(|j| l[col_ptr[j] as usize].recip()));
+        diagonal_reciprocals(&self.structure, self.factor.l_values(), &mut self.own_recip);
     }
 
     /// Solves a chord step's system in place in `rhs` with this solver's own factor, by the
