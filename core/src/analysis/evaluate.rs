@@ -169,6 +169,15 @@ fn pressure_checks(
     }
 }
 
+/// `values`, one per link, where the solution carries them: a sweep's closures carry only the
+/// link results its criteria read (see [`crate::solve::Outputs`]), and a criterion that reads
+/// one left out is a broken contract inside the crate, never a value to judge (see
+/// `analysis::outputs_read`).
+fn computed<'a>(values: &'a [f64], links: usize, what: &str) -> &'a [f64] {
+    assert_eq!(values.len(), links, "the solution carries no {what}: they were not asked of the sweep");
+    values
+}
+
 /// Counts junction `id`'s pressure `p` against `c` and adds a finding where it fails. `id` is
 /// read only then: a sweep checks every junction of thousands of solutions, and reading each
 /// junction's id (its record) for the ones that pass cost more than the check.
@@ -220,12 +229,13 @@ pub fn evaluate_indexed(
     pressure_checks(&mut out, criteria, model, index, solution, keep);
     if let Some(limit) = criteria.max_velocity {
         let mut c = CheckResult::new("max_velocity", Quantity::Velocity, limit);
+        let velocity = computed(&solution.velocity, links.len(), "velocities");
         for (k, l) in links.iter().enumerate() {
             if matches!(l.kind, LinkKind::Pump(_)) || !solution.link_state[k].carries_flow() {
                 continue;
             }
             c.checked += 1;
-            let v = solution.velocity[k].abs();
+            let v = velocity[k].abs();
             if v > limit {
                 c.add(Finding::over(Element::Link(l.id.to_string()), v, limit, v - limit), keep);
             }
@@ -234,13 +244,14 @@ pub fn evaluate_indexed(
     }
     if let Some(limit) = criteria.max_headloss {
         let mut c = CheckResult::new("max_headloss", Quantity::Gradient, limit);
+        let headloss = computed(&solution.headloss, links.len(), "head differences");
         for (k, l) in links.iter().enumerate() {
             let Some(p) = l.as_pipe() else { continue };
-            if !solution.link_state[k].carries_flow() || !solution.headloss[k].is_finite() {
+            if !solution.link_state[k].carries_flow() || !headloss[k].is_finite() {
                 continue;
             }
             c.checked += 1;
-            let g = solution.headloss[k] / p.length;
+            let g = headloss[k] / p.length;
             if g > limit {
                 c.add(Finding::over(Element::Link(l.id.to_string()), g, limit, g - limit), keep);
             }
@@ -249,6 +260,7 @@ pub fn evaluate_indexed(
     }
     if !criteria.source_capacity.is_empty() || criteria.min_supply_margin.is_some() {
         let mut c = CheckResult::new("min_supply_margin", Quantity::Flow, f64::NAN);
+        computed(&solution.flow, links.len(), "flows");
         for &(i, capacity) in &criteria.source_capacity {
             c.checked += 1;
             let allowed = criteria.min_supply_margin.map_or(capacity, |m| m.allowed_supply(capacity));

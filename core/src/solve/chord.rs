@@ -483,8 +483,9 @@ impl RowPattern {
         let entries = start[n] as usize;
         let (mut columns, mut at) = (vec![0u32; entries], vec![0u32; entries]);
         for j in 0..n {
-            for p in col_ptr[j] as usize + 1..col_ptr[j + 1] as usize {
-                let i = row_idx[p] as usize;
+            let below = col_ptr[j] as usize + 1..col_ptr[j + 1] as usize;
+            for (p, &i) in below.clone().zip(&row_idx[below]) {
+                let i = i as usize;
                 columns[fill[i] as usize] = j as u32;
                 at[fill[i] as usize] = p as u32;
                 fill[i] += 1;
