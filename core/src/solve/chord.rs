@@ -268,6 +268,13 @@ pub(super) struct Taylor {
     sixth_h3: f64,
 }
 
+impl Taylor {
+    /// No expansion: one that serves no flow (its base flow is not a number, so that no flow is
+    /// within its reach), for arrays of expansions without an `Option`'s tag.
+    pub(super) const NONE: Taylor =
+        Taylor { q0: f64::NAN, h0: f64::NAN, g0: f64::NAN, half_h2: f64::NAN, sixth_h3: f64::NAN };
+}
+
 /// Largest |Δq / q₀| the expansion of [`Taylor`] serves.
 const TAYLOR_REACH: f64 = 1e-2;
 
@@ -885,6 +892,12 @@ mod tests {
             }
         }
         assert!(Taylor::new(1.0, 0.0, 0.0).is_none());
+        // The expansion that serves nothing.
+        for q in [0.0, 1e-9, -0.35, f64::NAN] {
+            assert!(
+                Taylor::NONE.at(q).is_none() && Taylor::NONE.both_at(q).is_none() && Taylor::NONE.slope_at(q).is_none()
+            );
+        }
     }
 
     /// Closing a grid pipe of a generated network (a loop opened) in a worker of a batch takes
