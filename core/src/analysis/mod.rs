@@ -41,7 +41,7 @@ pub use crate::solve::Scenario;
 
 use crate::error::{printable, Element, ModelError, SolveError};
 use crate::model::{LinkKind, LinkStatus, Model, NodeKind};
-use crate::solve::{Conditions, Solution, SolveOptions, Solver};
+use crate::solve::{Conditions, Outputs, Solution, SolveOptions, Solver};
 use std::sync::atomic::{AtomicUsize, Ordering};
 
 /// The model a what-if `scenario` of `model` describes (its links closed, its demands scaled),
@@ -563,7 +563,8 @@ pub fn sweep_pipes(
     };
     let solve_options = SolveOptions::from_model(model);
     let index = NodeIndex::new(model);
-    let (_, outcomes) = solver.solve_closures(model, &conditions, &solve_options, pipes, &mut on_base, &|_, result| {
+    let outputs = outputs_read(criteria);
+    let judged = &|_, result: Result<&Solution, SolveError>| {
         let mut outcome = match result {
             Ok(solution) => {
                 let mut o = judge_closure((model, &index), criteria, solution, reference, &options_all);
@@ -577,8 +578,22 @@ pub fn sweep_pipes(
         outcome.connected = Vec::new();
         progress(done.fetch_add(1, Ordering::Relaxed) + 1, total);
         outcome
-    });
+    };
+    let (_, outcomes) =
+        solver.solve_closures_reading(model, &conditions, &solve_options, pipes, outputs, &mut on_base, judged);
     pipes.iter().copied().zip(outcomes).collect()
+}
+
+/// The link results that judging a closure against `criteria` reads (see [`judge_closure`]):
+/// velocities for `max_velocity`, head differences for `max_headloss`, flows for the supply of
+/// the sources. The others are left out of the closures' solutions (see [`Outputs`]); a read of
+/// one fails at once (see `evaluate::computed`).
+fn outputs_read(criteria: &Criteria) -> Outputs {
+    Outputs {
+        flows: !criteria.source_capacity.is_empty() || criteria.min_supply_margin.is_some(),
+        velocities: criteria.max_velocity.is_some(),
+        head_differences: criteria.max_headloss.is_some(),
+    }
 }
 
 #[cfg(test)]

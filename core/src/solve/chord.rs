@@ -75,6 +75,10 @@ pub(super) struct ChordBase {
     /// Per core link, the expansion of its law around the base flow (Hazen–Williams pipes on
     /// their law with a flow).
     pub(super) taylor: Vec<Option<Taylor>>,
+    /// The factor's pattern row by row, and its off-diagonal values in that order (see
+    /// [`forward_by_rows`]).
+    pub(super) rows: RowPattern,
+    pub(super) row_values: Vec<f64>,
     /// Parent of every column in the factor's elimination tree (`NONE` for a root): the columns
     /// `L⁻¹ e_j` touches are `j`'s ancestors.
     pub(super) parent: Vec<u32>,
@@ -132,7 +136,12 @@ impl Solver {
                 row_idx[start + 1..end].iter().copied().min().unwrap_or(NONE)
             })
             .collect();
+        let rows = RowPattern::new(&s.structure);
+        let mut row_values = Vec::new();
+        rows.values(s.factor.l_values(), &mut row_values);
         Some(Arc::new(ChordBase {
+            rows,
+            row_values,
             parent,
             taylor,
             recip: {
@@ -257,6 +266,13 @@ pub(super) struct Taylor {
     g0: f64,
     half_h2: f64,
     sixth_h3: f64,
+}
+
+impl Taylor {
+    /// No expansion: one that serves no flow (its base flow is not a number, so that no flow is
+    /// within its reach), for arrays of expansions without an `Option`'s tag.
+    pub(super) const NONE: Taylor =
+        Taylor { q0: f64::NAN, h0: f64::NAN, g0: f64::NAN, half_h2: f64::NAN, sixth_h3: f64::NAN };
 }
 
 /// Largest |Δq / q₀| the expansion of [`Taylor`] serves.
@@ -443,9 +459,96 @@ pub(super) fn forward_by_reciprocals(structure: &super::Structure, l: &[f64], re
     forward_with(structure, l, x, 0, |j, _, v| v * recip[j]);
 }
 
-/// [`backward`] with the reciprocals of the factor's diagonal (see [`forward_by_reciprocals`]).
+/// The off-diagonal entries of a factor of the structure's pattern row by row, each row's in
+/// the order of its columns, and where each sits in the factor's values (column by column): the
+/// layout [`forward_by_rows`] reads. Made once per sweep (in [`ChordBase`]); the values of a
+/// factor are copied into it once per factorization ([`RowPattern::values`]).
+#[derive(Debug)]
+pub(super) struct RowPattern {
+    /// Row `i`'s entries are `columns[start[i]..start[i + 1]]`.
+    start: Vec<u32>,
+    columns: Vec<u32>,
+    /// The place of each entry in the factor's values (column by column).
+    at: Vec<u32>,
+}
+
+impl RowPattern {
+    /// The rows of `structure`'s factor.
+    pub(super) fn new(structure: &super::Structure) -> RowPattern {
+        let (col_ptr, row_idx) = (structure.symbolic.col_ptr(), structure.symbolic.row_idx());
+        let n = structure.n;
+        let mut start = vec![0u32; n + 1];
+        for j in 0..n {
+            for p in col_ptr[j] as usize + 1..col_ptr[j + 1] as usize {
+                start[row_idx[p] as usize + 1] += 1;
+            }
+        }
+        for i in 0..n {
+            start[i + 1] += start[i];
+        }
+        let mut fill: Vec<u32> = start[..n].to_vec();
+        let entries = start[n] as usize;
+        let (mut columns, mut at) = (vec![0u32; entries], vec![0u32; entries]);
+        for j in 0..n {
+            let below = col_ptr[j] as usize + 1..col_ptr[j + 1] as usize;
+            for (p, &i) in below.clone().zip(&row_idx[below]) {
+                let i = i as usize;
+                columns[fill[i] as usize] = j as u32;
+                at[fill[i] as usize] = p as u32;
+                fill[i] += 1;
+            }
+        }
+        RowPattern { start, columns, at }
+    }
+
+    /// The off-diagonal values of the factor with values `l`, row by row, into `out`.
+    pub(super) fn values(&self, l: &[f64], out: &mut Vec<f64>) {
+        out.clear();
+        out.extend(self.at.iter().map(|&p| l[p as usize]));
+    }
+}
+
+/// [`forward_by_reciprocals`] row by row (up-looking): `x_i = (b_i − Σ_j L_ij x_j) · (1/L_ii)`
+/// over the columns `j` of row `i` in order, with `values` from [`RowPattern::values`] and
+/// `recip` the reciprocals of the diagonal.
+///
+/// The column solve subtracts each column's multiple from the rows below it, so the next column
+/// (in the postordered elimination tree most often the parent of the one just done) reads a value
+/// written an instant before, through memory. Here row `i` sums into a register and writes its
+/// value once; its last term is the column just before it (in order, the largest), the one most
+/// likely to have just been made, so that the other terms' products wait on nothing. The
+/// subtractions are the column solve's, in the same order: the values are the same to the last
+/// bit (a column whose value is zero adds a zero product where the column solve skips it).
+/// Measured on the generated network of 10,000 junctions (seed 7, one thread, `perf record`,
+/// samples against the unchanged factorization's): 0.92 against 0.97.
+pub(super) fn forward_by_rows(pattern: &RowPattern, values: &[f64], recip: &[f64], x: &mut [f64]) {
+    let (start, columns) = (&pattern.start, &pattern.columns);
+    for i in 0..recip.len() {
+        let mut v = x[i];
+        for k in start[i] as usize..start[i + 1] as usize {
+            v -= values[k] * x[columns[k] as usize];
+        }
+        x[i] = v * recip[i];
+    }
+}
+
+/// [`backward`] with the reciprocals of the factor's diagonal (see [`forward_by_reciprocals`]),
+/// each column's rows taken last to first: the first row below the diagonal is the column's
+/// parent in the elimination tree, in the postordered tree most often the column just made, so
+/// that its product, taken last, is the only one that waits for it (the others' columns are
+/// further up, made long before). The sums differ from [`backward`]'s in order, by round-off
+/// only. Measured on the generated network of 10,000 junctions (seed 7, one thread, `perf
+/// record`, samples against the unchanged factorization's): 1.04 against 1.23.
 pub(super) fn backward_by_reciprocals(structure: &super::Structure, l: &[f64], recip: &[f64], x: &mut [f64]) {
-    backward_with(structure, l, x, |j, _, v| v * recip[j]);
+    let (col_ptr, row_idx) = (structure.symbolic.col_ptr(), structure.symbolic.row_idx());
+    for j in (0..structure.n).rev() {
+        let (start, end) = (col_ptr[j] as usize, col_ptr[j + 1] as usize);
+        let mut v = x[j];
+        for p in (start + 1..end).rev() {
+            v -= l[p] * x[row_idx[p] as usize];
+        }
+        x[j] = v * recip[j];
+    }
 }
 
 /// The reciprocals of the diagonal of a factor with values `l`, into `recip` (see
@@ -693,23 +796,31 @@ impl Solver {
     /// Solves a chord step's system in place in `rhs` with the base factor and `correction`
     /// (see [`Correction`]).
     pub(super) fn correction_solve(&mut self, base: &ChordBase, correction: &mut Correction) {
-        forward_by_reciprocals(&self.structure, &base.l_values, &base.recip, &mut self.rhs);
+        forward_by_rows(&base.rows, &base.row_values, &base.recip, &mut self.rhs);
         correction.apply(&mut self.rhs);
         backward_by_reciprocals(&self.structure, &base.l_values, &base.recip, &mut self.rhs);
     }
 
     /// Makes the reciprocals of the diagonal of this solver's own factor (after a factorization)
-    /// for [`Solver::own_factor_solve`].
+    /// and, with a base factor's [`RowPattern`] at hand, its values row by row, for
+    /// [`Solver::own_factor_solve`].
     pub(super) fn own_reciprocals(&mut self) {
         diagonal_reciprocals(&self.structure, self.factor.l_values(), &mut self.own_recip);
+        if let Some(base) = &self.chord {
+            base.rows.values(self.factor.l_values(), &mut self.own_row_values);
+        }
     }
 
     /// Solves a chord step's system in place in `rhs` with this solver's own factor, by the
     /// reciprocals of its diagonal made by [`Solver::own_reciprocals`] after its factorization
-    /// (see [`forward_by_reciprocals`]).
+    /// (see [`forward_by_reciprocals`]), the forward solve row by row where the base factor's
+    /// rows serve ([`forward_by_rows`]).
     pub(super) fn own_factor_solve(&mut self) {
         let l = self.factor.l_values();
-        forward_by_reciprocals(&self.structure, l, &self.own_recip, &mut self.rhs);
+        match &self.chord {
+            Some(base) => forward_by_rows(&base.rows, &self.own_row_values, &self.own_recip, &mut self.rhs),
+            None => forward_by_reciprocals(&self.structure, l, &self.own_recip, &mut self.rhs),
+        }
         backward_by_reciprocals(&self.structure, l, &self.own_recip, &mut self.rhs);
     }
 }
@@ -744,9 +855,14 @@ mod tests {
         for (a, b) in ours.iter().zip(&theirs) {
             assert!((a - b).abs() <= 1e-12 * scale, "{a} vs {b}");
         }
+        // The forward solve row by row is the column solve's, to the last bit.
+        let (mut by_columns, mut by_rows) = (rhs.clone(), rhs.clone());
+        forward_by_reciprocals(&solver.structure, &base.l_values, &base.recip, &mut by_columns);
+        forward_by_rows(&base.rows, &base.row_values, &base.recip, &mut by_rows);
+        assert_eq!(by_columns, by_rows);
         // The same with the reciprocals of the diagonal, to round-off.
         let mut by_reciprocals = rhs.clone();
-        forward_by_reciprocals(&solver.structure, &base.l_values, &base.recip, &mut by_reciprocals);
+        forward_by_rows(&base.rows, &base.row_values, &base.recip, &mut by_reciprocals);
         backward_by_reciprocals(&solver.structure, &base.l_values, &base.recip, &mut by_reciprocals);
         for (a, b) in by_reciprocals.iter().zip(&theirs) {
             assert!((a - b).abs() <= 1e-12 * scale, "{a} vs {b}");
@@ -776,6 +892,12 @@ mod tests {
             }
         }
         assert!(Taylor::new(1.0, 0.0, 0.0).is_none());
+        // The expansion that serves nothing.
+        for q in [0.0, 1e-9, -0.35, f64::NAN] {
+            assert!(
+                Taylor::NONE.at(q).is_none() && Taylor::NONE.both_at(q).is_none() && Taylor::NONE.slope_at(q).is_none()
+            );
+        }
     }
 
     /// Closing a grid pipe of a generated network (a loop opened) in a worker of a batch takes

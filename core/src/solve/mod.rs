@@ -109,6 +109,7 @@ pub use conditions::Conditions;
 pub use hold::{HeldHead, LightBase};
 pub use nodes::{NodeLaw, Relation};
 pub use solution::{OutflowSummary, PumpResult, Solution, Warning, WarningKind};
+pub use sweep::Outputs;
 pub use timings::Timings;
 
 use crate::error::{ModelError, SolveError};
@@ -274,6 +275,8 @@ pub struct Solver {
     /// Reciprocals of the diagonal of this solver's own factor, made after each factorization of
     /// a sweep's closure (see `sweep.rs`), for its chord steps' triangular solves.
     own_recip: Vec<f64>,
+    /// The off-diagonal values of that factor row by row (see `chord::RowPattern`).
+    own_row_values: Vec<f64>,
     timings: Timings,
     analysis_time: Duration,
     /// Set during [`Solver::solve_once`]: the solve frees the iteration's work arrays before the
@@ -374,6 +377,7 @@ impl Solver {
             chord: None,
             chord_w: Vec::new(),
             own_recip: Vec::new(),
+            own_row_values: Vec::new(),
             timings: Timings { analysis: analysis_time, ..Timings::default() },
             analysis_time,
             one_off: false,
