@@ -149,15 +149,17 @@ pub fn plausibility(model: &Model) -> Vec<Warning> {
     out
 }
 
-/// Warnings about a solved scenario of the model (velocities).
+/// Warnings about a solved scenario of the model (velocities). A solution that carries no
+/// velocities (a sweep's closure that did not ask for them, see [`crate::solve::Outputs`]) has
+/// nothing to warn about here: no velocity is taken for zero.
 pub fn diagnose_solution(model: &Model, solution: &Solution) -> Vec<Warning> {
     let u = &model.units;
     let mut out = Vec::new();
-    for (k, l) in model.links().iter().enumerate() {
+    for (l, &v) in model.links().iter().zip(&solution.velocity) {
         if matches!(l.kind, LinkKind::Pump(_)) {
             continue;
         }
-        let v = solution.velocity.get(k).copied().unwrap_or(0.0).abs();
+        let v = v.abs();
         if v > PLAUSIBLE_VELOCITY {
             out.push(Warning {
                 kind: WarningKind::Model(DiagnosticKind::HighVelocity),
