@@ -115,14 +115,21 @@ fn pressure_checks(
     solution: &Solution,
     keep: usize,
 ) {
-    let mut global_min = criteria.min_pressure.map(|l| CheckResult::new("min_pressure", Quantity::Pressure, l));
-    let mut global_max = criteria.max_pressure.map(|l| CheckResult::new("max_pressure", Quantity::Pressure, l));
     if criteria.groups.is_empty() {
+        let (mut global_min, mut global_max) = global_pressure_results(criteria);
         global_pressure_checks([global_min.as_mut(), global_max.as_mut()], model, index, solution, keep);
         out.extend(global_min.into_iter().chain(global_max));
         return;
     }
     pressure_checks_by_junction(out, criteria, model, index, solution, keep);
+}
+
+/// The results of the global pressure limits `(min, max)`, none checked yet.
+fn global_pressure_results(criteria: &Criteria) -> (Option<CheckResult>, Option<CheckResult>) {
+    (
+        criteria.min_pressure.map(|l| CheckResult::new("min_pressure", Quantity::Pressure, l)),
+        criteria.max_pressure.map(|l| CheckResult::new("max_pressure", Quantity::Pressure, l)),
+    )
 }
 
 /// [`pressure_checks`] junction by junction, each junction's groups looked up (with groups or
@@ -135,8 +142,7 @@ fn pressure_checks_by_junction(
     solution: &Solution,
     keep: usize,
 ) {
-    let mut global_min = criteria.min_pressure.map(|l| CheckResult::new("min_pressure", Quantity::Pressure, l));
-    let mut global_max = criteria.max_pressure.map(|l| CheckResult::new("max_pressure", Quantity::Pressure, l));
+    let (mut global_min, mut global_max) = global_pressure_results(criteria);
     let mut groups: Vec<(Option<CheckResult>, Option<CheckResult>)> = criteria
         .groups
         .iter()
