@@ -149,9 +149,8 @@ pub fn plausibility(model: &Model) -> Vec<Warning> {
     out
 }
 
-/// Warnings about a solved scenario of the model (velocities). A solution that carries no
-/// velocities (a sweep's closure that did not ask for them, see [`crate::solve::Outputs`]) has
-/// nothing to warn about here: no velocity is taken for zero.
+/// Warnings about a solved scenario of the model (velocities). Only the velocities the solution
+/// carries are read: none is taken for zero where it has none.
 pub fn diagnose_solution(model: &Model, solution: &Solution) -> Vec<Warning> {
     let u = &model.units;
     let mut out = Vec::new();

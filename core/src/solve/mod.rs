@@ -109,7 +109,7 @@ pub use conditions::Conditions;
 pub use hold::{HeldHead, LightBase};
 pub use nodes::{NodeLaw, Relation};
 pub use solution::{OutflowSummary, PumpResult, Solution, Warning, WarningKind};
-pub use sweep::Outputs;
+pub(crate) use sweep::Outputs;
 pub use timings::Timings;
 
 use crate::error::{ModelError, SolveError};

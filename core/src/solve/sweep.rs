@@ -110,10 +110,12 @@ const FAR_FLOW: f64 = 2.25;
 
 /// Which of a closure's link results the callback of a sweep reads
 /// ([`Solver::solve_closures_reading`]). Heads, pressures, link states, connectivity and
-/// demands are always written; each of these is written only where it is asked for. One not
-/// asked for is an empty vector in the `Solution` the callback sees (on the fast path and after
-/// the general solve alike), so that a read of it fails at once instead of finding the base
-/// case's values or another closure's.
+/// demands are always written; each of the three results below only where it is asked for. One
+/// not asked for is an empty vector in the `Solution` the callback sees (on the fast path and
+/// after the general solve alike), so that a read of it fails at once instead of finding the
+/// base case's values or another closure's. Within the crate only (the criteria of
+/// `analysis::sweep_pipes` say what they read): a `Solution` handed outside is always whole, so
+/// that no caller of the library meets one with results missing.
 ///
 /// A sweep whose criteria read pressures only (a minimum pressure, supply lost) spares a pass
 /// over the core links (flows and velocities) and one over every link (head differences) per
@@ -121,7 +123,7 @@ const FAR_FLOW: f64 = 2.25;
 /// some two fifths of the writing of each closure's answer. Velocities come with the flows
 /// they are made from.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
-pub struct Outputs {
+pub(crate) struct Outputs {
     /// Flows of the links (`Solution::flow`).
     pub flows: bool,
     /// Mean velocities of the links (`Solution::velocity`).
@@ -132,7 +134,7 @@ pub struct Outputs {
 
 impl Outputs {
     /// Every result.
-    pub const ALL: Outputs = Outputs { flows: true, velocities: true, head_differences: true };
+    pub(crate) const ALL: Outputs = Outputs { flows: true, velocities: true, head_differences: true };
 
     /// Leaves the results not asked for out of `solution` (empty vectors).
     fn strip(&self, solution: &mut Solution) {
@@ -380,7 +382,7 @@ impl Solver {
     /// solutions (see [`Outputs`]): the others are empty vectors there. The base case's result
     /// handed to `on_base` and returned is whole.
     #[allow(clippy::too_many_arguments)]
-    pub fn solve_closures_reading<T: Send>(
+    pub(crate) fn solve_closures_reading<T: Send>(
         &mut self,
         model: &Model,
         conditions: &Conditions,
