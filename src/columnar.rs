@@ -6,8 +6,8 @@
 //! Written with the Apache Arrow project's `parquet` and `arrow-*` crates (the reference Rust
 //! implementation of the format), Snappy-compressed, in record batches of at most [`BATCH`] rows:
 //! memory holds one batch per table, whatever the size of the network or the length of the run.
-//! Each file is written under a temporary name and renamed when complete, so a failed run leaves
-//! no half-written table.
+//! Each file is written under a temporary name and renamed when complete (forced to the disk
+//! first with `--durable`), so a failed run leaves no half-written table.
 
 use arrow_array::builder::{BooleanBuilder, Float64Builder, StringBuilder};
 use arrow_array::{ArrayRef, RecordBatch};
@@ -177,7 +177,11 @@ impl Table {
     pub fn finish(&mut self) -> io::Result<()> {
         self.flush()?;
         if let Some(writer) = self.writer.take() {
-            drop(writer.into_inner().map_err(to_io)?);
+            let file = writer.into_inner().map_err(to_io)?;
+            if crate::output::durable() {
+                file.sync_all()?;
+            }
+            drop(file);
             std::fs::rename(&self.temporary, &self.path)?;
         }
         Ok(())

@@ -326,3 +326,94 @@ fn errors_are_printed_once_with_their_snippet_in_check_and_solve() {
     }
     let _ = std::fs::remove_dir_all(&dir);
 }
+
+/// What the files of `path` (itself, or the files of the directory it is) hold, by name: the
+/// bytes of a text file; the schema (metadata as a sorted list: its map's order is not kept)
+/// and the rows of a Parquet file.
+fn files_of(path: &Path) -> Vec<(String, String)> {
+    fn content(path: &Path) -> String {
+        if path.extension().is_some_and(|e| e == "parquet") {
+            let file = std::fs::File::open(path).unwrap();
+            let reader = parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder::try_new(file).unwrap();
+            let schema = reader.schema().clone();
+            let mut metadata: Vec<_> = schema.metadata().iter().collect();
+            metadata.sort();
+            let fields: Vec<_> =
+                schema.fields().iter().map(|f| (f.name().clone(), f.data_type().to_string())).collect();
+            let batches: Vec<_> = reader.build().unwrap().map(|b| format!("{:?}", b.unwrap().columns())).collect();
+            format!("{metadata:?}\n{fields:?}\n{batches:?}")
+        } else {
+            std::fs::read_to_string(path).unwrap()
+        }
+    }
+    if path.is_dir() {
+        let mut files: Vec<_> = std::fs::read_dir(path)
+            .unwrap()
+            .map(|e| {
+                let e = e.unwrap();
+                (e.file_name().to_string_lossy().into_owned(), content(&e.path()))
+            })
+            .collect();
+        files.sort();
+        files
+    } else {
+        vec![(String::new(), content(path))]
+    }
+}
+
+/// `--durable` (files forced to the disk before their rename) changes no byte of any output,
+/// for every command and format that writes files, and leaves no temporary file behind.
+#[test]
+fn durable_outputs_equal_the_plain_ones_for_every_writer() {
+    let dir = scratch("durable");
+    let model = example("hillside-day.toml");
+    let cases: [(&str, &str, &str); 7] = [
+        ("solve", "json", "r.json"),
+        ("solve", "csv", "tables"),
+        ("solve", "parquet", "columns"),
+        ("simulate", "json", "s.json"),
+        ("simulate", "csv", "s.csv"),
+        ("simulate", "parquet", "series"),
+        ("generate", "", "g.toml"),
+    ];
+    for (command, format, name) in cases {
+        let mut outputs = Vec::new();
+        for durable in [false, true] {
+            let out = dir.join(if durable { "durable" } else { "plain" }).join(name);
+            std::fs::create_dir_all(out.parent().unwrap()).unwrap();
+            let mut args: Vec<std::ffi::OsString> = vec![command.into()];
+            if command == "generate" {
+                args.extend(["--junctions".into(), "300".into(), "--seed".into(), "3".into()]);
+            } else {
+                args.extend([model.clone().into_os_string(), "--format".into(), format.into()]);
+            }
+            args.extend(["--output".into(), out.clone().into_os_string()]);
+            if durable {
+                args.push("--durable".into());
+            }
+            let run = ringmain(&args);
+            assert!(run.status.success(), "{command} {format} durable={durable}: {}", text(&run.stderr));
+            outputs.push(files_of(&out));
+        }
+        assert!(!outputs[0].is_empty() && outputs[0].iter().all(|(_, bytes)| !bytes.is_empty()), "{command} {format}");
+        let names = |o: &Vec<(String, String)>| o.iter().map(|(n, _)| n.clone()).collect::<Vec<_>>();
+        assert_eq!(names(&outputs[0]), names(&outputs[1]), "{command} {format}: other files");
+        for ((name, plain), (_, durable)) in outputs[0].iter().zip(&outputs[1]) {
+            assert!(plain == durable, "{command} {format}: --durable changed {name}");
+        }
+    }
+    for sub in ["plain", "durable"] {
+        let mut stack = vec![dir.join(sub)];
+        while let Some(d) = stack.pop() {
+            for e in std::fs::read_dir(&d).unwrap() {
+                let e = e.unwrap();
+                let name = e.file_name().to_string_lossy().into_owned();
+                assert!(!name.starts_with('.'), "a temporary file was left: {}", e.path().display());
+                if e.path().is_dir() {
+                    stack.push(e.path());
+                }
+            }
+        }
+    }
+    let _ = std::fs::remove_dir_all(&dir);
+}
