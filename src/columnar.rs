@@ -1,7 +1,9 @@
 //! Results as Parquet files: one file per table (nodes, links, and for a simulation tanks and
 //! pumps) in an output directory, typed columns, the unit of each column in its field metadata
 //! (`unit`) and all of them in the schema metadata (`units`, a JSON object), so that pandas,
-//! polars, DuckDB or pyarrow read them directly.
+//! polars, DuckDB or pyarrow read them directly; the table's name, the model's title and the
+//! program's version are the file's key-value metadata (`table`, `title`, `producer`). The same
+//! results give the same bytes at every run.
 //!
 //! Written with the Apache Arrow project's `parquet` and `arrow-*` crates (the reference Rust
 //! implementation of the format), Snappy-compressed, in record batches of at most [`BATCH`] rows:
@@ -14,6 +16,7 @@ use arrow_array::{ArrayRef, RecordBatch};
 use arrow_schema::{DataType, Field, Schema, SchemaRef};
 use parquet::arrow::ArrowWriter;
 use parquet::basic::Compression;
+use parquet::file::metadata::KeyValue;
 use parquet::file::properties::WriterProperties;
 use std::collections::HashMap;
 use std::fs::File;
@@ -74,7 +77,8 @@ fn to_io(e: impl std::fmt::Display) -> io::Error {
 
 impl Table {
     /// Creates `<dir>/<name>.parquet` (under a temporary name until [`Table::finish`]).
-    /// `metadata` goes into the schema metadata beside `units`.
+    /// The units go into the schema metadata (`units`); `metadata`, `table` and `producer` into
+    /// the file's key-value metadata (`metadata` cannot replace those three).
     pub fn create(dir: &Path, name: &'static str, columns: &[Column], metadata: &[(&str, String)]) -> io::Result<Self> {
         let mut units = serde_json::Map::new();
         let fields: Vec<Field> = columns
@@ -93,16 +97,28 @@ impl Table {
                 field
             })
             .collect();
-        let mut meta: HashMap<String, String> = metadata.iter().map(|(k, v)| ((*k).to_owned(), v.clone())).collect();
-        meta.insert("units".to_owned(), serde_json::Value::Object(units).to_string());
-        meta.insert("table".to_owned(), name.to_owned());
-        meta.insert("producer".to_owned(), format!("ringmain {}", env!("CARGO_PKG_VERSION")));
-        let schema = Arc::new(Schema::new_with_metadata(fields, meta));
+        // The units are the Arrow schema's only metadata, and the rest (`table`, `title`,
+        // `producer`) is the file's key-value metadata, sorted by key: the schema's metadata is a
+        // hash map, which the schema embedded in the file (`ARROW:schema`) lists in a random
+        // order, so that with several keys there the same results made different bytes at every
+        // run. (arrow-rs and polars show the key-value metadata among the schema's; pyarrow has
+        // it in `pyarrow.parquet.read_metadata(path).metadata`.)
+        const OWN: [&str; 3] = ["units", "table", "producer"];
+        let mut meta: Vec<(String, String)> =
+            metadata.iter().filter(|(k, _)| !OWN.contains(k)).map(|(k, v)| ((*k).to_owned(), v.clone())).collect();
+        meta.push(("table".to_owned(), name.to_owned()));
+        meta.push(("producer".to_owned(), format!("ringmain {}", env!("CARGO_PKG_VERSION"))));
+        meta.sort();
+        let units = HashMap::from([("units".to_owned(), serde_json::Value::Object(units).to_string())]);
+        let schema = Arc::new(Schema::new_with_metadata(fields, units));
         let path = dir.join(format!("{name}.parquet"));
         let temporary = dir.join(format!(".{name}.parquet.{}.part", std::process::id()));
         let file = File::create(&temporary)?;
-        let props =
-            WriterProperties::builder().set_compression(Compression::SNAPPY).set_max_row_group_size(1 << 20).build();
+        let props = WriterProperties::builder()
+            .set_compression(Compression::SNAPPY)
+            .set_max_row_group_size(1 << 20)
+            .set_key_value_metadata(Some(meta.into_iter().map(|(k, v)| KeyValue::new(k, v)).collect()))
+            .build();
         let writer = ArrowWriter::try_new(file, schema.clone(), Some(props)).map_err(to_io)?;
         let builders = columns
             .iter()

@@ -42,6 +42,10 @@ def test_solve_tables_match_the_json_results(run_ringmain, solve_model, tmp_path
     assert nodes.schema.field("id").type == pa.string()
     assert nodes.schema.field("head").metadata[b"unit"] == results["units"]["length"].encode()
     units = json.loads(nodes.schema.metadata[b"units"])
+    # The table's name and the program are the file's key-value metadata.
+    file_metadata = pq.read_metadata(out / "nodes.parquet").metadata
+    assert file_metadata[b"table"] == b"nodes"
+    assert file_metadata[b"producer"].startswith(b"ringmain ")
     assert units["pressure"] == results["units"]["pressure"]
     assert units["demand"] == results["units"]["flow"]
 
