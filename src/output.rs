@@ -100,10 +100,11 @@ impl Drop for Partial {
 }
 
 /// An output file written as a run goes (a streamed series), all or nothing: [`OutputFile::create`]
-/// gives the file to write, under a temporary name beside its destination; [`OutputFile::commit`]
-/// renames it into place (made durable first with `--durable`). Dropped without a commit (an error, a panic), it
-/// removes the temporary file and leaves the destination as it was. A destination that is not a
-/// regular file (a device, a named pipe) is written in place.
+/// gives the file to write, under a temporary name beside its destination, with its write-back
+/// started as it goes ([`EarlyWriteback`]); [`OutputFile::commit`] renames it into place (made
+/// durable first with `--durable`). Dropped without a commit (an error, a panic), it removes the
+/// temporary file and leaves the destination as it was. A destination that is not a regular file
+/// (a device, a named pipe) is written in place.
 pub struct OutputFile {
     /// The temporary file, or `None` when the destination is written in place.
     partial: Option<Partial>,
@@ -112,7 +113,14 @@ pub struct OutputFile {
 
 impl OutputFile {
     /// Opens the file to write for `path` (see the type's docs).
-    pub fn create(path: &Path) -> io::Result<(OutputFile, File)> {
+    pub fn create(path: &Path) -> io::Result<(OutputFile, EarlyWriteback)> {
+        let (output, file) = Self::create_file(path)?;
+        let replacing = output.partial.is_some();
+        Ok((output, EarlyWriteback::new(file, replacing)))
+    }
+
+    /// [`OutputFile::create`] with the plain file.
+    fn create_file(path: &Path) -> io::Result<(OutputFile, File)> {
         let existing = std::fs::metadata(path).ok();
         if existing.as_ref().is_some_and(|m| m.is_dir()) {
             return Err(io::Error::other("it is a directory"));
@@ -150,9 +158,8 @@ impl OutputFile {
 pub fn write_file(path: &Path, write: impl FnOnce(&mut dyn Write) -> io::Result<()>) -> io::Result<()> {
     const BUFFER: usize = 1 << 16;
     let (output, file) = OutputFile::create(path)?;
-    let replacing = output.partial.is_some();
-    let durable = replacing && durable();
-    let mut out = BufWriter::with_capacity(BUFFER, EarlyWriteback::new(file, replacing));
+    let durable = output.partial.is_some() && durable();
+    let mut out = BufWriter::with_capacity(BUFFER, file);
     write(&mut out)?;
     let file: File = out.into_inner().map_err(|e| e.into_error())?.file;
     if durable {
