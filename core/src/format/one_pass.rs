@@ -649,14 +649,8 @@ fn json_model(feed: &mut impl Feed) -> Option<Model> {
     read::finish_model(model, controls)
 }
 
-/// The `nodes` or `links` array, element by element into the model.
-///
-/// In a large text two threads share the work: this one parses the text into elements (the
-/// commonest ones, a plain junction or a plain pipe, straight into the model's structs; any
-/// other into a value tree), a helper adds them to the model in batches (the id index, the
-/// links' ends, the model's checks). At a million elements the two halves take about as long
-/// as each other. Anything either side gives up on stops both. A small text is read on this
-/// thread alone, the same way.
+/// The `nodes` or `links` array, element by element into the model (on two threads in a large
+/// text: see [`add_parsed`]).
 fn json_elements(feed: &mut impl Feed, model: &mut Model, nodes: bool) -> Option<()> {
     feed.step(|c| c.expect(b'['))?;
     let empty = feed.step(|c| {
@@ -673,14 +667,33 @@ fn json_elements(feed: &mut impl Feed, model: &mut Model, nodes: bool) -> Option
     let reading = Reading { units: model.units, headloss: model.options.headloss };
     // Links into a model without links yet: plain pipes are added without the link index, their
     // ids checked all different at once at the end (see `Adder::new_links`).
-    let new_links = (!nodes && model.links().is_empty()).then(NewIds::default);
-    let mut adder = Adder { ends: Ends::default(), i: 0, nodes, new_links };
+    let mut adder = Adder::new(model, nodes);
+    add_parsed(feed, model, &mut adder, |feed, send| parse_elements(feed, &reading, nodes, send))
+}
+
+/// Runs `parse`, which parses elements and hands them over in batches through its `send` (which
+/// gives back an empty batch to fill next), and adds the batches to the model with `adder`, then
+/// checks what `adder` left to check ([`Adder::finish`]); gives what `parse` gave.
+///
+/// In a large text two threads share the work: this one parses the text into elements (the
+/// commonest ones, a plain junction or a plain pipe, straight into the model's structs; any
+/// other into a value tree), a helper adds them to the model in batches (the id index, the
+/// links' ends, the model's checks). At a million elements the two halves take about as long
+/// as each other. Anything either side gives up on stops both. A small text is read on this
+/// thread alone, the same way.
+fn add_parsed<F: Feed, T>(
+    feed: &mut F,
+    model: &mut Model,
+    adder: &mut Adder,
+    parse: impl FnOnce(&mut F, &mut dyn FnMut(Vec<Parsed>) -> Option<Vec<Parsed>>) -> Option<T>,
+) -> Option<T> {
     if !feed.large() {
-        parse_elements(feed, &reading, nodes, |mut batch| {
+        let parsed = parse(feed, &mut |mut batch| {
             adder.add(model, &mut batch)?;
             Some(batch)
         })?;
-        return adder.finish(model);
+        adder.finish(model)?;
+        return Some(parsed);
     }
     let (send, receive) = std::sync::mpsc::sync_channel::<Vec<Parsed>>(BATCHES_IN_FLIGHT);
     // Emptied batches go back to the parsing thread, which fills them again: no batch is
@@ -696,13 +709,13 @@ fn json_elements(feed: &mut impl Feed, model: &mut Model, nodes: bool) -> Option
             })?;
             adder.finish(model)
         });
-        let parsed = parse_elements(feed, &reading, nodes, |batch| {
+        let parsed = parse(feed, &mut |batch| {
             send.send(batch).ok()?;
             Some(take_back.try_recv().unwrap_or_else(|_| Vec::with_capacity(BATCH)))
         });
         drop(send);
         let built = builder.join().ok().flatten();
-        parsed.and(built)
+        built.and(parsed)
     })
 }
 
@@ -735,7 +748,7 @@ fn parse_elements(
     feed: &mut impl Feed,
     reading: &Reading,
     nodes: bool,
-    mut send: impl FnMut(Vec<Parsed>) -> Option<Vec<Parsed>>,
+    send: &mut dyn FnMut(Vec<Parsed>) -> Option<Vec<Parsed>>,
 ) -> Option<()> {
     let mut batch = Vec::with_capacity(BATCH);
     let mut layout = Layout::default();
@@ -797,6 +810,13 @@ struct Adder {
 }
 
 impl Adder {
+    /// The adder of the `nodes` (or `links`) array into `model`: links into a model without
+    /// links yet are added without the link index ([`Adder::new_links`]).
+    fn new(model: &Model, nodes: bool) -> Adder {
+        let new_links = (!nodes && model.links().is_empty()).then(NewIds::default);
+        Adder { ends: Ends::default(), i: 0, nodes, new_links }
+    }
+
     /// Adds a batch, leaving it empty; `None`: give up (an element the model refuses, or a link
     /// end that is no node: the whole-text reader then says which).
     fn add(&mut self, model: &mut Model, batch: &mut Vec<Parsed>) -> Option<()> {
@@ -847,31 +867,6 @@ fn after_element(c: &mut Cursor) -> Step<bool> {
             Ok(false)
         }
         _ => Err(Stop::GiveUp),
-    }
-}
-
-enum Direct {
-    Node(Node),
-    Link(Link),
-}
-
-/// The plain junction or pipe of a flat element, if it is one.
-fn direct(flat: &FlatElement, model: &Model, nodes: bool, ends: &mut Ends) -> Option<Direct> {
-    if nodes {
-        plain_junction(flat, &model.units).map(Direct::Node)
-    } else {
-        let (mut link, from, to) = plain_pipe(flat, &model.units, model.options.headloss)?;
-        link.from = ends.from(model, from)?;
-        link.to = ends.to(model, to, link.from)?;
-        Some(Direct::Link(link))
-    }
-}
-
-/// Adds a plain element to the model (with every check of the model: ranges, duplicate ids).
-fn add_direct(model: &mut Model, element: Direct) -> Option<()> {
-    match element {
-        Direct::Node(node) => model.add_node(node).ok().map(drop),
-        Direct::Link(link) => model.add_link(link).ok().map(drop),
     }
 }
 
@@ -1504,11 +1499,8 @@ fn toml_flat_body<'a>(c: &mut Cursor<'a>) -> Step<Option<FlatElement<'a>>> {
                 word(c, b"false", Value::Bool(false))?;
                 Flat::Bool(false)
             }
-            Some(b'-' | b'0'..=b'9') => match c.json_number()? {
-                Value::Int(i) => Flat::Num(i as f64),
-                Value::Float(f) => Flat::Num(f),
-                _ => return Ok(None),
-            },
+            // The same values as the general reader's (`flat_number` is tested against it).
+            Some(b'-' | b'0'..=b'9') => Flat::Num(c.flat_number()?),
             Some(_) => return Ok(None),
             None => return Err(c.out()),
         };
@@ -1547,6 +1539,85 @@ fn toml_header<'a>(c: &mut Cursor<'a>) -> Step<(&'a str, bool)> {
     Ok((name, array))
 }
 
+/// What follows an element of an array of tables.
+enum NextHeader {
+    /// Another element of the same array.
+    Same,
+    /// Another table's header: its name and whether it is an array of tables.
+    Other(String, bool),
+    /// The end of the text.
+    End,
+}
+
+/// The header after a table's body (at the start of a line or at the end of the text), against
+/// the array of tables `name` being read.
+fn toml_next_header(c: &mut Cursor, name: &str) -> Step<NextHeader> {
+    match toml_next_line(c)? {
+        None => Ok(NextHeader::End),
+        Some(b'[') => {
+            let (n, array) = toml_header(c)?;
+            Ok(if array && n == name { NextHeader::Same } else { NextHeader::Other(n.to_owned(), array) })
+        }
+        Some(_) => Err(Stop::GiveUp),
+    }
+}
+
+/// Parses the elements of the array of tables `[[nodes]]` (or `[[links]]`) that follow one
+/// another, from the body after the first header, sending them in batches as [`parse_elements`]
+/// does; gives the header that ends them (`None`: the end of the text).
+fn toml_parse_elements(
+    feed: &mut impl Feed,
+    reading: &Reading,
+    nodes: bool,
+    send: &mut dyn FnMut(Vec<Parsed>) -> Option<Vec<Parsed>>,
+) -> Option<Option<(String, bool)>> {
+    let name = if nodes { "nodes" } else { "links" };
+    let mut batch = Vec::with_capacity(BATCH);
+    loop {
+        let direct = feed.step(|c| {
+            let start = c.i;
+            let element = match toml_flat_body(c)? {
+                Some(flat) if nodes => plain_junction(&flat, &reading.units).map(Parsed::Node),
+                Some(flat) => plain_pipe(&flat, &reading.units, reading.headloss)
+                    .map(|(link, from, to)| Parsed::Pipe(link, from.into(), to.into())),
+                None => None,
+            };
+            if element.is_none() {
+                c.i = start;
+            }
+            Ok(element)
+        })?;
+        let element = match direct {
+            Some(element) => element,
+            None => Parsed::Value(Value::Table(feed.step(|c| toml_body(c, 2))?)),
+        };
+        batch.push(element);
+        let next = feed.step(|c| toml_next_header(c, name))?;
+        let more = matches!(next, NextHeader::Same);
+        if batch.len() == BATCH || !more {
+            batch = send(std::mem::take(&mut batch))?;
+        }
+        match next {
+            NextHeader::Same => {}
+            NextHeader::Other(name, array) => return Some(Some((name, array))),
+            NextHeader::End => return Some(None),
+        }
+    }
+}
+
+/// The elements of `[[nodes]]` (or `[[links]]`) that follow one another, from the body after the
+/// first header, into the model with `adder` (on two threads in a large text: see
+/// [`add_parsed`]); gives the header that ends them (`None`: the end of the text).
+fn toml_elements(
+    feed: &mut impl Feed,
+    model: &mut Model,
+    nodes: bool,
+    adder: &mut Adder,
+) -> Option<Option<(String, bool)>> {
+    let reading = Reading { units: model.units, headloss: model.options.headloss };
+    add_parsed(feed, model, adder, |feed, send| toml_parse_elements(feed, &reading, nodes, send))
+}
+
 /// Reads a TOML model from a text in memory in one pass; `None`: give up (see the module docs).
 pub(crate) fn toml_from_slice(text: &[u8]) -> Option<Model> {
     let text = text.strip_prefix("\u{feff}".as_bytes()).unwrap_or(text);
@@ -1582,14 +1653,20 @@ fn toml_model(feed: &mut impl Feed) -> Option<Model> {
     let mut controls: Vec<Value> = Vec::new();
     let mut model: Option<Model> = None;
     let mut section = 0; // 0 settings, 1 nodes, 2 links
-    let mut ends = Ends::default();
-    let (mut nodes, mut links) = (0, 0);
+                         // The adders of the two arrays, kept from one run of their elements to the next (a
+                         // `[[controls]]` between them ends a run).
+    let (mut node_adder, mut link_adder): (Option<Adder>, Option<Adder>) = (None, None);
+    // The header that ended a run of elements, to be taken next.
+    let mut pending: Option<(String, bool)> = None;
     loop {
-        let header = feed.step(|c| match toml_next_line(c)? {
-            None => Ok(None),
-            Some(b'[') => Ok(Some(toml_header(c).map(|(n, a)| (n.to_owned(), a))?)),
-            Some(_) => Err(Stop::GiveUp),
-        })?;
+        let header = match pending.take() {
+            Some(header) => Some(header),
+            None => feed.step(|c| match toml_next_line(c)? {
+                None => Ok(None),
+                Some(b'[') => Ok(Some(toml_header(c).map(|(n, a)| (n.to_owned(), a))?)),
+                Some(_) => Err(Stop::GiveUp),
+            })?,
+        };
         let Some((name, array)) = header else { break };
         match (name.as_str(), array) {
             ("controls", true) => controls.push(Value::Table(feed.step(|c| toml_body(c, 1))?)),
@@ -1616,33 +1693,9 @@ fn toml_model(feed: &mut impl Feed) -> Option<Model> {
                 section = want;
                 let m = model.as_mut()?;
                 let is_nodes = want == 1;
-                let i = if is_nodes { &mut nodes } else { &mut links };
-                let done = feed.step(|c| {
-                    let start = c.i;
-                    let Some(flat) = toml_flat_body(c)? else {
-                        c.i = start;
-                        return Ok(None);
-                    };
-                    match direct(&flat, m, is_nodes, &mut ends) {
-                        Some(element) => Ok(Some(element)),
-                        None => {
-                            c.i = start;
-                            Ok(None)
-                        }
-                    }
-                })?;
-                match done {
-                    Some(element) => add_direct(m, element)?,
-                    None => {
-                        let entries = feed.step(|c| toml_body(c, 2))?;
-                        if is_nodes {
-                            read::add_node_value(m, *i, Value::Table(entries)).ok()?;
-                        } else {
-                            read::add_link_value(m, *i, Value::Table(entries)).ok()?;
-                        }
-                    }
-                }
-                *i += 1;
+                let adder = if is_nodes { &mut node_adder } else { &mut link_adder };
+                let adder = adder.get_or_insert_with(|| Adder::new(m, is_nodes));
+                pending = toml_elements(feed, m, is_nodes, adder)?;
             }
             _ if section > 0 => return None,
             (_, true) => {
@@ -1727,6 +1780,51 @@ mod tests {
             assert!(json_from_slice(edit.as_bytes()).is_none(), "{what}");
             assert!(json_from_chunks(edit.as_bytes(), u64::MAX, 64 << 10).is_none(), "{what}");
             assert!(read_tree(&edit, Format::Json).is_err(), "{what}");
+        }
+    }
+
+    /// The same for TOML: a text large enough to be read by two threads builds the tree
+    /// reader's model, with a `[[controls]]` table between the nodes and between the links too
+    /// (each ends a run of elements, and the next run goes on where it stopped), and anything the
+    /// model refuses makes both threads give up, from memory and from chunks.
+    #[test]
+    fn two_thread_toml_reader_builds_the_same_model_and_gives_up_as_one() {
+        let model = crate::generate::generate(&crate::generate::NetworkSpec::new(6_000, 5)).unwrap();
+        let text = write::to_string(&model, Format::Toml);
+        assert!(text.len() >= TWO_THREADS_ABOVE, "{} bytes", text.len());
+        let control = |id: &str, link: &str| {
+            format!("[[controls]]\nid = \"{id}\"\nlink = \"{link}\"\nstatus = \"closed\"\nwhen = {{ clock = \"06:00\" }}\n\n")
+        };
+        let middle_node = text.find("[[nodes]]\nid = \"J3000\"").unwrap();
+        let middle_link = text.find("[[links]]\nid = \"P4000\"").unwrap();
+        let interleaved = format!(
+            "{}{}{}{}{}",
+            &text[..middle_node],
+            control("c-1", "P7"),
+            &text[middle_node..middle_link],
+            control("c-2", "P9"),
+            &text[middle_link..]
+        );
+        for text in [&text, &interleaved] {
+            let tree = read_tree(text, Format::Toml).unwrap();
+            assert_eq!(toml_from_slice(text.as_bytes()).as_ref(), Some(&tree));
+            assert_eq!(toml_from_chunks(text.as_bytes(), u64::MAX, 64 << 10).as_ref(), Some(&tree));
+        }
+        assert_eq!(read_tree(&interleaved, Format::Toml).unwrap().time.controls.len(), 2);
+        let last_pipe = text.rfind("to = \"J").unwrap();
+        let edits = [
+            (text.replacen("to = \"J17\"", "to = \"J999999\"", 1), "an end that is no node"),
+            (format!("{}to = \"Jx{}", &text[..last_pipe], &text[last_pipe + 7..]), "the last link's end"),
+            (text.replacen("id = \"J12\"", "id = \"J11\"", 1), "a duplicate node id"),
+            (text.replacen("id = \"P40\"", "id = \"P39\"", 1), "a duplicate link id"),
+            (text.replacen("length = ", "length = -", 1), "a negative length"),
+            (interleaved.replacen("id = \"P4001\"", "id = \"P7\"", 1), "a duplicate link id after a control"),
+        ];
+        for (edit, what) in edits {
+            assert_ne!(&edit, &text, "{what}");
+            assert!(toml_from_slice(edit.as_bytes()).is_none(), "{what}");
+            assert!(toml_from_chunks(edit.as_bytes(), u64::MAX, 64 << 10).is_none(), "{what}");
+            assert!(read_tree(&edit, Format::Toml).is_err(), "{what}");
         }
     }
 
