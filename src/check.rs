@@ -193,7 +193,7 @@ pub fn run(args: Args) -> ExitCode {
         if let Some(c) = &args.criteria {
             inputs.push(("criteria file", c.as_path()));
         }
-        if let Err(message) = crate::output::refuse_input("--junit", junit, &inputs) {
+        if let Err(message) = ringmain_core::output::refuse_input("--junit", junit, &inputs) {
             eprintln!("error: {message}");
             return exit(EXIT_INVALID);
         }
@@ -348,7 +348,7 @@ pub fn run(args: Args) -> ExitCode {
     let code = run.exit_code();
     if let Some(path) = &args.junit {
         let junit = check_report::to_junit(&run);
-        if let Err(e) = crate::output::write_file(path, |out| out.write_all(junit.as_bytes())) {
+        if let Err(e) = ringmain_core::output::write_file(path, |out| out.write_all(junit.as_bytes())) {
             eprintln!("error: cannot write the JUnit report to {}: {e}", path.display());
             return exit(EXIT_WRITE);
         }

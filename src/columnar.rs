@@ -194,7 +194,7 @@ impl Table {
         self.flush()?;
         if let Some(writer) = self.writer.take() {
             let file = writer.into_inner().map_err(to_io)?;
-            if crate::output::durable() {
+            if ringmain_core::output::durable() {
                 file.sync_all()?;
             }
             drop(file);

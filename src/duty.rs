@@ -97,7 +97,7 @@ pub fn run(args: Args) -> ExitCode {
     };
     let view = View { model: &model, analysis: &analysis, flows: &flows_user, units: model.converter() };
     if let Some(plot) = &args.plot {
-        if let Err(e) = crate::output::write_text(plot, &view.svg()) {
+        if let Err(e) = ringmain_core::output::write_text(plot, &view.svg()) {
             eprintln!("error: cannot write the chart to {}: {e}", plot.display());
             return ExitCode::from(crate::EXIT_WRITE);
         }
@@ -114,9 +114,9 @@ pub fn run(args: Args) -> ExitCode {
     })
 }
 
-/// Whether two paths name the same existing file, by identity (see [`crate::output::same_file`]).
+/// Whether two paths name the same existing file, by identity (see [`ringmain_core::output::same_file`]).
 fn same_file(a: &Path, b: &Path) -> bool {
-    crate::output::same_file(a, b)
+    ringmain_core::output::same_file(a, b)
 }
 
 /// An analysis in the model's units.

@@ -150,7 +150,7 @@ pub fn run(args: Args) -> ExitCode {
 /// Writes `text` to a new file beside `path` and renames it into place: a failed run leaves no
 /// half-written file.
 fn write_whole(path: &Path, text: &str) -> ExitCode {
-    match crate::output::write_text(path, text) {
+    match ringmain_core::output::write_text(path, text) {
         Ok(()) => ExitCode::SUCCESS,
         Err(e) => {
             eprintln!("error: cannot write the results to {}: {e}", path.display());

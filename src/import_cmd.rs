@@ -25,9 +25,9 @@ fn read(path: &Path) -> Result<Vec<u8>, ExitCode> {
 }
 
 /// Whether two paths name the same file (an output must never overwrite an input): by
-/// identity, so hard and symbolic links count (see [`crate::output::same_file`]).
+/// identity, so hard and symbolic links count (see [`ringmain_core::output::same_file`]).
 pub fn same_file(a: &Path, b: &Path) -> bool {
-    crate::output::same_file(a, b)
+    ringmain_core::output::same_file(a, b)
 }
 
 pub fn run(args: Args) -> ExitCode {
@@ -111,7 +111,7 @@ pub fn run(args: Args) -> ExitCode {
     drop(points_bytes);
     eprint!("{}", report.summary());
     if let Some(path) = &args.report {
-        let written = crate::output::write_file(path, |out| {
+        let written = ringmain_core::output::write_file(path, |out| {
             serde_json::to_writer_pretty(&mut *out, &report)?;
             out.write_all(b"\n")
         });
@@ -122,7 +122,9 @@ pub fn run(args: Args) -> ExitCode {
     }
     let code = match &args.output {
         Some(path) => {
-            match crate::output::write_file(path, |out| ringmain_core::format::write::write_to(&model, format, out)) {
+            match ringmain_core::output::write_file(path, |out| {
+                ringmain_core::format::write::write_to(&model, format, out)
+            }) {
                 Ok(()) => ExitCode::SUCCESS,
                 Err(e) => {
                     eprintln!("error: cannot write the model to {}: {e}", path.display());

@@ -13,7 +13,7 @@ mod fire_flow;
 mod gis;
 mod import_cmd;
 mod map;
-mod output;
+use ringmain_core::output;
 mod plot;
 mod quality_report;
 mod report;

@@ -760,7 +760,7 @@ pub fn write_all(report: &RunReport<'_>, dir: &Path) -> std::io::Result<Vec<std:
     let mut written = Vec::new();
     let mut put = |name: &str, text: String| -> std::io::Result<()> {
         let path = dir.join(name);
-        crate::output::write_file(&path, |out| out.write_all(text.as_bytes()))?;
+        ringmain_core::output::write_file(&path, |out| out.write_all(text.as_bytes()))?;
         written.push(path);
         Ok(())
     };

@@ -4,7 +4,12 @@
  *
  *   test_errors MODEL.toml TMPDIR
  */
+#define _XOPEN_SOURCE 700
 #include "check.h"
+
+#include <dirent.h>
+#include <signal.h>
+#include <sys/resource.h>
 
 static ringmain_model *from_toml(const char *text) {
     ringmain_model *m = NULL;
@@ -203,6 +208,57 @@ static void bad_integers(void) {
     ringmain_model_free(m);
 }
 
+/* A save that fails half-way (the process's file-size limit reached after 64 bytes) leaves the
+ * file it would have replaced as it was, and no partial file beside it. */
+static void save_that_fails_half_way(const char *model_path, const char *tmpdir) {
+    char dir[4096], path[4200];
+    snprintf(dir, sizeof dir, "%s/half-way", tmpdir);
+    snprintf(path, sizeof path, "%s/kept.toml", dir);
+    char command[4300];
+    snprintf(command, sizeof command, "mkdir -p '%s'", dir);
+    EXPECT(system(command) == 0);
+    const char *before = "# the model as saved before\n";
+    FILE *f = fopen(path, "w");
+    EXPECT(f != NULL);
+    fputs(before, f);
+    fclose(f);
+    ringmain_model *demo = NULL;
+    OK(ringmain_model_load(model_path, &demo));
+    struct rlimit old, small;
+    EXPECT(getrlimit(RLIMIT_FSIZE, &old) == 0);
+    small = old;
+    small.rlim_cur = 64;
+    signal(SIGXFSZ, SIG_IGN);
+    EXPECT(setrlimit(RLIMIT_FSIZE, &small) == 0);
+    ringmain_status s = ringmain_model_save(demo, path);
+    EXPECT(setrlimit(RLIMIT_FSIZE, &old) == 0);
+    EXPECT(s == RINGMAIN_IO);
+    EXPECT_ERROR_CONTAINS("cannot write the file");
+    char kept[256] = {0};
+    f = fopen(path, "r");
+    EXPECT(f != NULL);
+    size_t n = fread(kept, 1, sizeof kept - 1, f);
+    fclose(f);
+    EXPECT(n == strlen(before) && strcmp(kept, before) == 0);
+    DIR *d = opendir(dir);
+    EXPECT(d != NULL);
+    int files = 0;
+    for (struct dirent *e = readdir(d); e != NULL; e = readdir(d)) {
+        if (strcmp(e->d_name, ".") != 0 && strcmp(e->d_name, "..") != 0) {
+            files++;
+            EXPECT(strcmp(e->d_name, "kept.toml") == 0);
+        }
+    }
+    closedir(d);
+    EXPECT(files == 1);
+    /* Without the limit the same save replaces the file. */
+    OK(ringmain_model_save(demo, path));
+    ringmain_model *back = NULL;
+    OK(ringmain_model_load(path, &back));
+    ringmain_model_free(back);
+    ringmain_model_free(demo);
+}
+
 static void buffers_files_and_solves(const char *model_path, const char *tmpdir) {
     ringmain_model *m = from_toml(GOOD);
 
@@ -230,6 +286,7 @@ static void buffers_files_and_solves(const char *model_path, const char *tmpdir)
     EXPECT_ERROR_CONTAINS("must end in .toml or .json");
     FAILS_WITH(ringmain_model_save(m, "/nonexistent/dir/model.toml"), RINGMAIN_IO);
     EXPECT_ERROR_CONTAINS("cannot write the file");
+    save_that_fails_half_way(model_path, tmpdir);
 
     /* A solve that cannot converge in one iteration: no results, the iterations in the message. */
     ringmain_model *demo = NULL;

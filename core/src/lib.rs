@@ -41,6 +41,7 @@ pub mod generate;
 pub mod import;
 pub mod json_text;
 pub mod model;
+pub mod output;
 pub mod physics;
 pub mod quality;
 pub mod simulate;

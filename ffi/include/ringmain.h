@@ -1246,7 +1246,9 @@ RINGMAIN_MUST_USE ringmain_status ringmain_model_validate(const ringmain_model *
 
 /**
  * Writes the model to a file in its own units, as TOML or JSON by the extension of `path`
- * (`.toml` or `.json`). The file reads back into an equal model.
+ * (`.toml` or `.json`). The file reads back into an equal model. It is written under a
+ * temporary name in the same directory and renamed over `path` only once whole, so a save that
+ * fails leaves an existing file as it was and no partial file behind.
  *
  * Errors: `RINGMAIN_INVALID_ARGUMENT` for another extension; `RINGMAIN_IO` when the file cannot
  * be written.

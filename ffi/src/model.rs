@@ -400,7 +400,9 @@ fn model_text(model: &Model, format: Format) -> Result<String, Failure> {
 }
 
 /// Writes the model to a file in its own units, as TOML or JSON by the extension of `path`
-/// (`.toml` or `.json`). The file reads back into an equal model.
+/// (`.toml` or `.json`). The file reads back into an equal model. It is written under a
+/// temporary name in the same directory and renamed over `path` only once whole, so a save that
+/// fails leaves an existing file as it was and no partial file behind.
 ///
 /// Errors: `RINGMAIN_INVALID_ARGUMENT` for another extension; `RINGMAIN_IO` when the file cannot
 /// be written.
@@ -417,8 +419,13 @@ pub unsafe extern "C" fn ringmain_model_save(model: *const ringmain_model, path:
             Failure::invalid(format!("{path}: the file name must end in .toml or .json to choose the format"))
         })?;
         let io_error = |e: std::io::Error| Failure::new(ringmain_status::RINGMAIN_IO, format!("{path}: cannot write the file: {e}"));
-        let file = std::fs::File::create(path).map_err(io_error)?;
-        ringmain_core::format::write::write_to(&*m.current()?, format, file).map_err(io_error)?;
+        let model = m.current()?;
+        // Under a temporary name beside it, renamed over it once whole: a failed save leaves the
+        // file as it was (see `ringmain_core::output`).
+        ringmain_core::output::write_file(Path::new(path), |out| {
+            ringmain_core::format::write::write_to(&model, format, out)
+        })
+        .map_err(io_error)?;
         Ok(())
     }
 }

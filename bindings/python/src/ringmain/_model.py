@@ -829,7 +829,10 @@ class Model(Handle):
         check(lib.ringmain_model_validate(self._ptr))
 
     def save(self, path: str | os.PathLike[str]) -> None:
-        """Writes the model to a .toml or .json file in its own units."""
+        """Writes the model to a .toml or .json file in its own units.
+
+        The file is written under a temporary name beside it and renamed into place only once
+        whole: a save that fails leaves an existing file as it was."""
         if not isinstance(path, (str, os.PathLike)):
             raise ArgumentTypeError(f"argument 'path' must be a str or os.PathLike, got {type(path).__name__}")
         encoded = os.fsencode(path)

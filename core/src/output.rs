@@ -1,7 +1,9 @@
 //! Output files that never replace an input and never stay half written.
 //!
-//! Two rules hold for every file the program writes (`--output`, `--junit`, the charts of
-//! `--plot`, the model of `generate`):
+//! These rules hold for every file the command-line program writes (`--output`, `--junit`, the
+//! charts of `--plot`, the model of `generate`), and for the model files the C library saves
+//! (`ringmain_model_save`, the Python package's `Model.save`), the first rule apart (a library
+//! caller may well save a model over the file it came from):
 //!
 //! 1. An output path that is one of the run's inputs (the model, a criteria file) is refused
 //!    before any work, with exit code 2. "Is" means the same file, by identity (device and inode
@@ -170,7 +172,7 @@ pub fn write_file(path: &Path, write: impl FnOnce(&mut dyn Write) -> io::Result<
 }
 
 /// A file whose written bytes start on their way to the disk as the writing goes: every
-/// [`EarlyWriteback::STEP`] bytes, the write-back of what was written since is started without
+/// 2 MB (`STEP`), the write-back of what was written since is started without
 /// waiting for it (Linux's `sync_file_range` with `SYNC_FILE_RANGE_WRITE`), so that what waits
 /// for the disk at the end waits for the last part only, not for the whole file:
 /// - with `--durable`, the `sync_all` before the rename (at a million junctions the results
@@ -184,6 +186,7 @@ pub fn write_file(path: &Path, write: impl FnOnce(&mut dyn Write) -> io::Result<
 ///
 /// Elsewhere, or for a destination written in place (a device, a pipe), it is the plain file.
 pub struct EarlyWriteback {
+    /// The file written.
     pub file: File,
     /// Whether to start write-back at all.
     enabled: bool,
@@ -194,6 +197,7 @@ pub struct EarlyWriteback {
 impl EarlyWriteback {
     const STEP: u64 = 2 << 20;
 
+    /// `file`, its write-back started as it is written if `enabled`.
     pub fn new(file: File, enabled: bool) -> Self {
         EarlyWriteback { file, enabled, written: 0, started: 0 }
     }
