@@ -1756,6 +1756,21 @@ mod tests {
         models
     }
 
+    /// Edits of a generated model's text that the model refuses, each with what it is; `key(k)`
+    /// is how the text writes key `k` before its value (`"k": ` or `k = `).
+    fn refused_edits(text: &str, key: impl Fn(&str) -> String) -> Vec<(String, &'static str)> {
+        let to = format!("{}\"J", key("to"));
+        let last_pipe = text.rfind(&to).unwrap();
+        let (id, length) = (key("id"), key("length"));
+        vec![
+            (text.replacen(&format!("{to}17\""), &format!("{to}999999\""), 1), "an end that is no node"),
+            (format!("{}{to}x{}", &text[..last_pipe], &text[last_pipe + to.len()..]), "the last link's end"),
+            (text.replacen(&format!("{id}\"J12\""), &format!("{id}\"J11\""), 1), "a duplicate node id"),
+            (text.replacen(&format!("{id}\"P40\""), &format!("{id}\"P39\""), 1), "a duplicate link id"),
+            (text.replacen(&length, &format!("{length}-"), 1), "a negative length"),
+        ]
+    }
+
     /// A text large enough to be read by two threads builds the model the tree reader builds,
     /// and anything the model refuses in it (a link's end that is no node, a duplicate id, a
     /// bad value) makes both threads give up, from memory and from chunks.
@@ -1767,15 +1782,7 @@ mod tests {
         let tree = read_tree(&text, Format::Json).unwrap();
         assert_eq!(json_from_slice(text.as_bytes()).as_ref(), Some(&tree));
         assert_eq!(json_from_chunks(text.as_bytes(), u64::MAX, 64 << 10).as_ref(), Some(&tree));
-        let last_pipe = text.rfind("\"to\": \"J").unwrap();
-        let edits = [
-            (text.replacen("\"to\": \"J17\"", "\"to\": \"J999999\"", 1), "an end that is no node"),
-            (format!("{}\"to\": \"Jx{}", &text[..last_pipe], &text[last_pipe + 8..]), "the last link's end"),
-            (text.replacen("\"id\": \"J12\"", "\"id\": \"J11\"", 1), "a duplicate node id"),
-            (text.replacen("\"id\": \"P40\"", "\"id\": \"P39\"", 1), "a duplicate link id"),
-            (text.replacen("\"length\": ", "\"length\": -", 1), "a negative length"),
-        ];
-        for (edit, what) in edits {
+        for (edit, what) in refused_edits(&text, |key| format!("\"{key}\": ")) {
             assert_ne!(edit, text, "{what}");
             assert!(json_from_slice(edit.as_bytes()).is_none(), "{what}");
             assert!(json_from_chunks(edit.as_bytes(), u64::MAX, 64 << 10).is_none(), "{what}");
@@ -1811,15 +1818,8 @@ mod tests {
             assert_eq!(toml_from_chunks(text.as_bytes(), u64::MAX, 64 << 10).as_ref(), Some(&tree));
         }
         assert_eq!(read_tree(&interleaved, Format::Toml).unwrap().time.controls.len(), 2);
-        let last_pipe = text.rfind("to = \"J").unwrap();
-        let edits = [
-            (text.replacen("to = \"J17\"", "to = \"J999999\"", 1), "an end that is no node"),
-            (format!("{}to = \"Jx{}", &text[..last_pipe], &text[last_pipe + 7..]), "the last link's end"),
-            (text.replacen("id = \"J12\"", "id = \"J11\"", 1), "a duplicate node id"),
-            (text.replacen("id = \"P40\"", "id = \"P39\"", 1), "a duplicate link id"),
-            (text.replacen("length = ", "length = -", 1), "a negative length"),
-            (interleaved.replacen("id = \"P4001\"", "id = \"P7\"", 1), "a duplicate link id after a control"),
-        ];
+        let mut edits = refused_edits(&text, |key| format!("{key} = "));
+        edits.push((interleaved.replacen("id = \"P4001\"", "id = \"P7\"", 1), "a duplicate link id after a control"));
         for (edit, what) in edits {
             assert_ne!(&edit, &text, "{what}");
             assert!(toml_from_slice(edit.as_bytes()).is_none(), "{what}");
