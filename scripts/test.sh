@@ -13,6 +13,14 @@ step() { printf '\n==> %s\n' "$*"; }
 step "format"
 cargo fmt --all --check
 
+step "lock files (the fuzz crate's own lock must follow the core's dependencies)"
+# Checked here, not only by the fuzzing at the end, so that a stale lock fails in seconds.
+if ! cargo metadata --locked --offline --manifest-path fuzz/Cargo.toml --format-version 1 >/dev/null 2>&1 &&
+  ! cargo metadata --locked --manifest-path fuzz/Cargo.toml --format-version 1 >/dev/null; then
+  echo "fuzz/Cargo.lock is out of date: run scripts/update-fuzz-lock.sh and commit it" >&2
+  exit 1
+fi
+
 step "lint"
 cargo clippy --release --workspace --all-targets -- -D warnings
 
