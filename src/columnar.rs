@@ -8,8 +8,8 @@
 //! Written with the Apache Arrow project's `parquet` and `arrow-*` crates (the reference Rust
 //! implementation of the format), Snappy-compressed, in record batches of at most [`BATCH`] rows:
 //! memory holds one batch per table, whatever the size of the network or the length of the run.
-//! Each file is written under a temporary name and renamed when complete (forced to the disk
-//! first with `--durable`), so a failed run leaves no half-written table.
+//! Each file is written whole or not at all, as every output file is
+//! ([`ringmain_core::output::OutputFile`]), so a failed run leaves no half-written table.
 
 use arrow_array::builder::{BooleanBuilder, Float64Builder, StringBuilder};
 use arrow_array::{ArrayRef, RecordBatch};
@@ -18,8 +18,8 @@ use parquet::arrow::ArrowWriter;
 use parquet::basic::Compression;
 use parquet::file::metadata::KeyValue;
 use parquet::file::properties::WriterProperties;
+use ringmain_core::output::{EarlyWriteback, OutputFile};
 use std::collections::HashMap;
-use std::fs::File;
 use std::io;
 use std::path::{Path, PathBuf};
 use std::sync::Arc;
@@ -66,8 +66,10 @@ pub struct Table {
     schema: SchemaRef,
     builders: Vec<Builder>,
     rows: usize,
-    writer: Option<ArrowWriter<File>>,
-    temporary: PathBuf,
+    writer: Option<ArrowWriter<EarlyWriteback>>,
+    /// The file until it is finished: under a temporary name, removed if the table is dropped
+    /// unfinished (a failed run).
+    output: Option<OutputFile>,
     path: PathBuf,
 }
 
@@ -112,8 +114,7 @@ impl Table {
         let units = HashMap::from([("units".to_owned(), serde_json::Value::Object(units).to_string())]);
         let schema = Arc::new(Schema::new_with_metadata(fields, units));
         let path = dir.join(format!("{name}.parquet"));
-        let temporary = dir.join(format!(".{name}.parquet.{}.part", std::process::id()));
-        let file = File::create(&temporary)?;
+        let (output, file) = OutputFile::create(&path)?;
         let props = WriterProperties::builder()
             .set_compression(Compression::SNAPPY)
             .set_max_row_group_size(1 << 20)
@@ -128,7 +129,7 @@ impl Table {
                 Kind::Bool => Builder::Bool(BooleanBuilder::with_capacity(BATCH)),
             })
             .collect();
-        Ok(Table { name, schema, builders, rows: 0, writer: Some(writer), temporary, path })
+        Ok(Table { name, schema, builders, rows: 0, writer: Some(writer), output: Some(output), path })
     }
 
     /// The table's file name (once finished).
@@ -192,24 +193,11 @@ impl Table {
     /// Writes the last rows and the file's footer, and gives the file its name.
     pub fn finish(&mut self) -> io::Result<()> {
         self.flush()?;
-        if let Some(writer) = self.writer.take() {
-            let file = writer.into_inner().map_err(to_io)?;
-            if ringmain_core::output::durable() {
-                file.sync_all()?;
-            }
-            drop(file);
-            std::fs::rename(&self.temporary, &self.path)?;
+        if let (Some(writer), Some(output)) = (self.writer.take(), self.output.take()) {
+            drop(writer.into_inner().map_err(to_io)?);
+            output.commit()?;
         }
         Ok(())
-    }
-}
-
-impl Drop for Table {
-    /// A table not finished (a failed run) leaves no file behind.
-    fn drop(&mut self) {
-        if self.writer.take().is_some() {
-            let _ = std::fs::remove_file(&self.temporary);
-        }
     }
 }
 

@@ -624,15 +624,13 @@ impl<'a> Report<'a> {
 
     /// Writes each table as its own CSV file in `dir` (`nodes.csv`, `links.csv`, `pumps.csv`,
     /// `valves.csv`, `summary.csv`), a header line first, the unit after each column's name
-    /// (`head_m`); returns the files written. Each file is written under a temporary name and
-    /// renamed when complete.
+    /// (`head_m`); returns the files written. Each file is written whole or not at all
+    /// ([`ringmain_core::output::write_file`]).
     pub fn write_csv_tables(&self, dir: &Path) -> io::Result<Vec<PathBuf>> {
         let mut written = Vec::new();
         for (t, spec) in self.tables().iter().enumerate() {
             let path = dir.join(format!("{}.csv", spec.name));
-            let temporary = dir.join(format!(".{}.csv.{}.part", spec.name, std::process::id()));
-            let result = (|| -> io::Result<()> {
-                let mut out = io::BufWriter::with_capacity(1 << 16, std::fs::File::create(&temporary)?);
+            ringmain_core::output::write_file(&path, |out| {
                 let header: Vec<String> = spec
                     .columns
                     .iter()
@@ -651,14 +649,8 @@ impl<'a> Report<'a> {
                     }
                     line.push('\n');
                     out.write_all(line.as_bytes())
-                })?;
-                out.flush()?;
-                std::fs::rename(&temporary, &path)
-            })();
-            if let Err(e) = result {
-                let _ = std::fs::remove_file(&temporary);
-                return Err(e);
-            }
+                })
+            })?;
             written.push(path);
         }
         Ok(written)

@@ -469,3 +469,105 @@ fn the_same_run_writes_the_same_bytes_for_every_writer() {
     }
     let _ = std::fs::remove_dir_all(&dir);
 }
+
+/// Every file under `path` (itself, or the files of the directory it is, hidden ones included),
+/// by name, with its bytes.
+fn all_files(path: &Path) -> Vec<(String, Vec<u8>)> {
+    let mut files: Vec<(String, Vec<u8>)> = if path.is_dir() {
+        std::fs::read_dir(path)
+            .unwrap()
+            .map(|e| {
+                let e = e.unwrap();
+                (e.file_name().to_string_lossy().into_owned(), std::fs::read(e.path()).unwrap())
+            })
+            .collect()
+    } else {
+        vec![(String::new(), std::fs::read(path).unwrap())]
+    };
+    files.sort();
+    files
+}
+
+/// Fault: the CSV tables and the Parquet tables had a temporary file and a rename of their own,
+/// beside the one every other output goes through. The class: for every command and format
+/// that writes files, a run whose writing is cut short (the process's file-size limit reached,
+/// the write refused) exits with code 4, and every file of the destination is either as it was
+/// before or whole (as an unhindered run writes it), with no temporary file left behind.
+#[cfg(target_os = "linux")]
+#[test]
+fn a_write_cut_short_leaves_every_file_as_it_was_or_whole() {
+    use std::os::unix::process::CommandExt;
+    let dir = scratch("cut-short");
+    let model = example("hillside-day.toml");
+    let cases: [(&str, &str, &str); 7] = [
+        ("solve", "json", "r.json"),
+        ("solve", "csv", "tables"),
+        ("solve", "parquet", "columns"),
+        ("simulate", "json", "s.json"),
+        ("simulate", "csv", "s.csv"),
+        ("simulate", "parquet", "series"),
+        ("generate", "", "g.toml"),
+    ];
+    let args = |command: &str, format: &str, out: &Path| -> Vec<std::ffi::OsString> {
+        let mut args: Vec<std::ffi::OsString> = vec![command.into()];
+        if command == "generate" {
+            args.extend(["--junctions".into(), "2000".into(), "--seed".into(), "3".into()]);
+        } else {
+            args.extend([model.clone().into_os_string(), "--format".into(), format.into()]);
+        }
+        args.extend(["--output".into(), out.as_os_str().to_owned()]);
+        args
+    };
+    for (command, format, name) in cases {
+        // What an unhindered run writes.
+        let whole = dir.join("whole").join(name);
+        std::fs::create_dir_all(whole.parent().unwrap()).unwrap();
+        let done = ringmain(&args(command, format, &whole));
+        assert!(done.status.success(), "{command} {format}: {}", text(&done.stderr));
+        let whole = all_files(&whole);
+        // An earlier result in place, then a run whose files may not grow beyond 2 kB.
+        let out = dir.join("cut").join(name);
+        std::fs::create_dir_all(out.parent().unwrap()).unwrap();
+        if whole.len() > 1 || whole[0].0 != String::new() {
+            std::fs::create_dir_all(&out).unwrap();
+            for (file, _) in &whole {
+                std::fs::write(out.join(file), "earlier\n").unwrap();
+            }
+        } else {
+            std::fs::write(&out, "earlier\n").unwrap();
+        }
+        let mut run = Command::new(env!("CARGO_BIN_EXE_ringmain"));
+        run.args(args(command, format, &out));
+        // SAFETY: between fork and exec the child calls only `signal` and `setrlimit`, both
+        // async-signal-safe, on values of its own.
+        unsafe {
+            run.pre_exec(|| {
+                libc::signal(libc::SIGXFSZ, libc::SIG_IGN);
+                let limit = libc::rlimit { rlim_cur: 2048, rlim_max: libc::RLIM_INFINITY };
+                if libc::setrlimit(libc::RLIMIT_FSIZE, &limit) != 0 {
+                    return Err(std::io::Error::last_os_error());
+                }
+                Ok(())
+            });
+        }
+        let cut = run.output().expect("start ringmain");
+        let stderr = text(&cut.stderr);
+        assert!(!stderr.contains("panicked"), "{command} {format}: {stderr}");
+        assert_eq!(cut.status.code(), Some(4), "{command} {format}: {stderr}");
+        assert!(stderr.contains("cannot write"), "{command} {format}: {stderr}");
+        let after = all_files(&out);
+        assert_eq!(
+            after.len(),
+            whole.len(),
+            "{command} {format}: {:?}",
+            after.iter().map(|f| &f.0).collect::<Vec<_>>()
+        );
+        for ((file, bytes), (_, complete)) in after.iter().zip(&whole) {
+            // Whole: byte for byte what the unhindered run wrote (every writer is reproducible).
+            let (kept, written) = (bytes.as_slice() == b"earlier\n", bytes == complete);
+            assert!(kept || written, "{command} {format}: {file} is neither the earlier file nor whole");
+        }
+        assert!(after.iter().any(|(_, b)| b.as_slice() == b"earlier\n"), "{command} {format}: nothing was cut short");
+    }
+    let _ = std::fs::remove_dir_all(&dir);
+}
