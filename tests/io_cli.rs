@@ -1,6 +1,8 @@
 //! Results as files: streamed simulation series (JSON, CSV, Parquet) equal to the series a run
 //! keeps, spreadsheet-safe CSV tables of every kind, signed pump head, the work bound of long
-//! simulations, the input size limit, and messages printed once with their snippet.
+//! simulations, the input size limit, messages printed once with their snippet, and for every
+//! writer of files: the same bytes at every run, `--durable` changing none, and a write cut
+//! short leaving every file as it was or whole.
 
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output};
@@ -327,147 +329,30 @@ fn errors_are_printed_once_with_their_snippet_in_check_and_solve() {
     let _ = std::fs::remove_dir_all(&dir);
 }
 
-/// What the files of `path` (itself, or the files of the directory it is) hold, by name: the
-/// bytes of a text file; the schema (metadata as a sorted list: its map's order is not kept)
-/// and the rows of a Parquet file.
-fn files_of(path: &Path) -> Vec<(String, String)> {
-    fn content(path: &Path) -> String {
-        if path.extension().is_some_and(|e| e == "parquet") {
-            let file = std::fs::File::open(path).unwrap();
-            let reader = parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder::try_new(file).unwrap();
-            let schema = reader.schema().clone();
-            let mut metadata: Vec<_> = schema.metadata().iter().collect();
-            metadata.sort();
-            let fields: Vec<_> =
-                schema.fields().iter().map(|f| (f.name().clone(), f.data_type().to_string())).collect();
-            let batches: Vec<_> = reader.build().unwrap().map(|b| format!("{:?}", b.unwrap().columns())).collect();
-            format!("{metadata:?}\n{fields:?}\n{batches:?}")
-        } else {
-            std::fs::read_to_string(path).unwrap()
-        }
-    }
-    if path.is_dir() {
-        let mut files: Vec<_> = std::fs::read_dir(path)
-            .unwrap()
-            .map(|e| {
-                let e = e.unwrap();
-                (e.file_name().to_string_lossy().into_owned(), content(&e.path()))
-            })
-            .collect();
-        files.sort();
-        files
+/// Every command and format that writes files, with the name of its output (a file, or a
+/// directory of tables).
+const WRITERS: [(&str, &str, &str); 8] = [
+    ("solve", "json", "r.json"),
+    ("solve", "csv", "tables"),
+    ("solve", "parquet", "columns"),
+    ("solve", "geojson", "r.geojson"),
+    ("simulate", "json", "s.json"),
+    ("simulate", "csv", "s.csv"),
+    ("simulate", "parquet", "series"),
+    ("generate", "", "g.toml"),
+];
+
+/// The arguments of `command` in `format` writing to `out`: the demo model's two days, or a
+/// generated network of 2,000 junctions.
+fn writer_args(command: &str, format: &str, out: &Path) -> Vec<std::ffi::OsString> {
+    let mut args: Vec<std::ffi::OsString> = vec![command.into()];
+    if command == "generate" {
+        args.extend(["--junctions".into(), "2000".into(), "--seed".into(), "3".into()]);
     } else {
-        vec![(String::new(), content(path))]
+        args.extend([example("hillside-day.toml").into_os_string(), "--format".into(), format.into()]);
     }
-}
-
-/// `--durable` (files forced to the disk before their rename) changes no byte of any output,
-/// for every command and format that writes files, and leaves no temporary file behind.
-#[test]
-fn durable_outputs_equal_the_plain_ones_for_every_writer() {
-    let dir = scratch("durable");
-    let model = example("hillside-day.toml");
-    let cases: [(&str, &str, &str); 7] = [
-        ("solve", "json", "r.json"),
-        ("solve", "csv", "tables"),
-        ("solve", "parquet", "columns"),
-        ("simulate", "json", "s.json"),
-        ("simulate", "csv", "s.csv"),
-        ("simulate", "parquet", "series"),
-        ("generate", "", "g.toml"),
-    ];
-    for (command, format, name) in cases {
-        let mut outputs = Vec::new();
-        for durable in [false, true] {
-            let out = dir.join(if durable { "durable" } else { "plain" }).join(name);
-            std::fs::create_dir_all(out.parent().unwrap()).unwrap();
-            let mut args: Vec<std::ffi::OsString> = vec![command.into()];
-            if command == "generate" {
-                args.extend(["--junctions".into(), "300".into(), "--seed".into(), "3".into()]);
-            } else {
-                args.extend([model.clone().into_os_string(), "--format".into(), format.into()]);
-            }
-            args.extend(["--output".into(), out.clone().into_os_string()]);
-            if durable {
-                args.push("--durable".into());
-            }
-            let run = ringmain(&args);
-            assert!(run.status.success(), "{command} {format} durable={durable}: {}", text(&run.stderr));
-            outputs.push(files_of(&out));
-        }
-        assert!(!outputs[0].is_empty() && outputs[0].iter().all(|(_, bytes)| !bytes.is_empty()), "{command} {format}");
-        let names = |o: &Vec<(String, String)>| o.iter().map(|(n, _)| n.clone()).collect::<Vec<_>>();
-        assert_eq!(names(&outputs[0]), names(&outputs[1]), "{command} {format}: other files");
-        for ((name, plain), (_, durable)) in outputs[0].iter().zip(&outputs[1]) {
-            assert!(plain == durable, "{command} {format}: --durable changed {name}");
-        }
-    }
-    for sub in ["plain", "durable"] {
-        let mut stack = vec![dir.join(sub)];
-        while let Some(d) = stack.pop() {
-            for e in std::fs::read_dir(&d).unwrap() {
-                let e = e.unwrap();
-                let name = e.file_name().to_string_lossy().into_owned();
-                assert!(!name.starts_with('.'), "a temporary file was left: {}", e.path().display());
-                if e.path().is_dir() {
-                    stack.push(e.path());
-                }
-            }
-        }
-    }
-    let _ = std::fs::remove_dir_all(&dir);
-}
-
-/// The same run writes the same bytes, for every writer of files (Parquet's schema metadata was
-/// once listed in a hash map's random order): two runs of each command and format compared byte
-/// for byte.
-#[test]
-fn the_same_run_writes_the_same_bytes_for_every_writer() {
-    let dir = scratch("reproducible");
-    let model = example("hillside-day.toml");
-    for (command, format) in [
-        ("solve", "json"),
-        ("solve", "csv"),
-        ("solve", "parquet"),
-        ("solve", "geojson"),
-        ("simulate", "json"),
-        ("simulate", "csv"),
-        ("simulate", "parquet"),
-    ] {
-        let mut outputs = Vec::new();
-        for run in ["first", "second"] {
-            let out = dir.join(run).join(format!("{command}-{format}"));
-            std::fs::create_dir_all(out.parent().unwrap()).unwrap();
-            let done = ringmain(&[
-                command.as_ref(),
-                model.as_os_str(),
-                "--format".as_ref(),
-                format.as_ref(),
-                "--output".as_ref(),
-                out.as_os_str(),
-            ]);
-            assert!(done.status.success(), "{command} {format}: {}", text(&done.stderr));
-            let mut files: Vec<(String, Vec<u8>)> = if out.is_dir() {
-                std::fs::read_dir(&out)
-                    .unwrap()
-                    .map(|e| {
-                        let e = e.unwrap();
-                        (e.file_name().to_string_lossy().into_owned(), std::fs::read(e.path()).unwrap())
-                    })
-                    .collect()
-            } else {
-                vec![(String::new(), std::fs::read(&out).unwrap())]
-            };
-            files.sort();
-            outputs.push(files);
-        }
-        assert!(!outputs[0].is_empty(), "{command} {format}: nothing written");
-        assert_eq!(outputs[0].len(), outputs[1].len(), "{command} {format}");
-        for ((name, a), (_, b)) in outputs[0].iter().zip(&outputs[1]) {
-            assert!(a == b, "{command} {format}: {name} differs between two runs of the same command");
-        }
-    }
-    let _ = std::fs::remove_dir_all(&dir);
+    args.extend(["--output".into(), out.as_os_str().to_owned()]);
+    args
 }
 
 /// Every file under `path` (itself, or the files of the directory it is, hidden ones included),
@@ -488,6 +373,52 @@ fn all_files(path: &Path) -> Vec<(String, Vec<u8>)> {
     files
 }
 
+/// Runs `command` in `format` into `out` (its parent made first) with `extra` arguments; the run
+/// must succeed. Gives what it wrote.
+fn written(command: &str, format: &str, out: &Path, extra: &[&str]) -> Vec<(String, Vec<u8>)> {
+    std::fs::create_dir_all(out.parent().unwrap()).unwrap();
+    let mut args = writer_args(command, format, out);
+    args.extend(extra.iter().map(std::ffi::OsString::from));
+    let run = ringmain(&args);
+    assert!(run.status.success(), "{command} {format} {extra:?}: {}", text(&run.stderr));
+    let files = all_files(out);
+    assert!(!files.is_empty() && files.iter().all(|(_, bytes)| !bytes.is_empty()), "{command} {format}");
+    files
+}
+
+/// `--durable` (files forced to the disk before their rename) changes no byte of any output,
+/// for every command and format that writes files, and leaves no temporary file behind (a
+/// hidden file would be among the directories' files).
+#[test]
+fn durable_outputs_equal_the_plain_ones_for_every_writer() {
+    let dir = scratch("durable");
+    for (command, format, name) in WRITERS {
+        let plain = written(command, format, &dir.join("plain").join(name), &[]);
+        let durable = written(command, format, &dir.join("durable").join(name), &["--durable"]);
+        assert!(plain == durable, "{command} {format}: --durable changed the output");
+    }
+    let left: Vec<_> = std::fs::read_dir(dir.join("durable")).unwrap().map(|e| e.unwrap().file_name()).collect();
+    assert_eq!(left.len(), WRITERS.len(), "only the outputs may be left: {left:?}");
+    let _ = std::fs::remove_dir_all(&dir);
+}
+
+/// The same run writes the same bytes, for every writer of files (Parquet's schema metadata was
+/// once listed in a hash map's random order): two runs of each command and format compared byte
+/// for byte.
+#[test]
+fn the_same_run_writes_the_same_bytes_for_every_writer() {
+    let dir = scratch("reproducible");
+    for (command, format, name) in WRITERS {
+        let first = written(command, format, &dir.join("first").join(name), &[]);
+        let second = written(command, format, &dir.join("second").join(name), &[]);
+        assert_eq!(first.len(), second.len(), "{command} {format}");
+        for ((file, a), (_, b)) in first.iter().zip(&second) {
+            assert!(a == b, "{command} {format}: {file} differs between two runs of the same command");
+        }
+    }
+    let _ = std::fs::remove_dir_all(&dir);
+}
+
 /// Fault: the CSV tables and the Parquet tables had a temporary file and a rename of their own,
 /// beside the one every other output goes through. The class: for every command and format
 /// that writes files, a run whose writing is cut short (the process's file-size limit reached,
@@ -498,37 +429,12 @@ fn all_files(path: &Path) -> Vec<(String, Vec<u8>)> {
 fn a_write_cut_short_leaves_every_file_as_it_was_or_whole() {
     use std::os::unix::process::CommandExt;
     let dir = scratch("cut-short");
-    let model = example("hillside-day.toml");
-    let cases: [(&str, &str, &str); 7] = [
-        ("solve", "json", "r.json"),
-        ("solve", "csv", "tables"),
-        ("solve", "parquet", "columns"),
-        ("simulate", "json", "s.json"),
-        ("simulate", "csv", "s.csv"),
-        ("simulate", "parquet", "series"),
-        ("generate", "", "g.toml"),
-    ];
-    let args = |command: &str, format: &str, out: &Path| -> Vec<std::ffi::OsString> {
-        let mut args: Vec<std::ffi::OsString> = vec![command.into()];
-        if command == "generate" {
-            args.extend(["--junctions".into(), "2000".into(), "--seed".into(), "3".into()]);
-        } else {
-            args.extend([model.clone().into_os_string(), "--format".into(), format.into()]);
-        }
-        args.extend(["--output".into(), out.as_os_str().to_owned()]);
-        args
-    };
-    for (command, format, name) in cases {
-        // What an unhindered run writes.
-        let whole = dir.join("whole").join(name);
-        std::fs::create_dir_all(whole.parent().unwrap()).unwrap();
-        let done = ringmain(&args(command, format, &whole));
-        assert!(done.status.success(), "{command} {format}: {}", text(&done.stderr));
-        let whole = all_files(&whole);
+    for (command, format, name) in WRITERS {
+        let whole = written(command, format, &dir.join("whole").join(name), &[]);
         // An earlier result in place, then a run whose files may not grow beyond 2 kB.
         let out = dir.join("cut").join(name);
         std::fs::create_dir_all(out.parent().unwrap()).unwrap();
-        if whole.len() > 1 || whole[0].0 != String::new() {
+        if whole.len() > 1 || !whole[0].0.is_empty() {
             std::fs::create_dir_all(&out).unwrap();
             for (file, _) in &whole {
                 std::fs::write(out.join(file), "earlier\n").unwrap();
@@ -537,7 +443,7 @@ fn a_write_cut_short_leaves_every_file_as_it_was_or_whole() {
             std::fs::write(&out, "earlier\n").unwrap();
         }
         let mut run = Command::new(env!("CARGO_BIN_EXE_ringmain"));
-        run.args(args(command, format, &out));
+        run.args(writer_args(command, format, &out));
         // SAFETY: between fork and exec the child calls only `signal` and `setrlimit`, both
         // async-signal-safe, on values of its own.
         unsafe {
