@@ -116,20 +116,13 @@ pub struct OutputFile {
 impl OutputFile {
     /// Opens the file to write for `path` (see the type's docs).
     pub fn create(path: &Path) -> io::Result<(OutputFile, EarlyWriteback)> {
-        let (output, file) = Self::create_file(path)?;
-        let replacing = output.partial.is_some();
-        Ok((output, EarlyWriteback::new(file, replacing)))
-    }
-
-    /// [`OutputFile::create`] with the plain file.
-    fn create_file(path: &Path) -> io::Result<(OutputFile, File)> {
         let existing = std::fs::metadata(path).ok();
         if existing.as_ref().is_some_and(|m| m.is_dir()) {
             return Err(io::Error::other("it is a directory"));
         }
         if existing.as_ref().is_some_and(|m| !m.is_file()) {
             let file = OpenOptions::new().write(true).open(path)?;
-            return Ok((OutputFile { partial: None, path: path.to_owned() }, file));
+            return Ok((OutputFile { partial: None, path: path.to_owned() }, EarlyWriteback::new(file, false)));
         }
         let partial = Partial { path: temporary_path(path), done: false };
         let file = OpenOptions::new().write(true).create_new(true).open(&partial.path)?;
@@ -137,7 +130,7 @@ impl OutputFile {
             // A replaced file keeps its permissions.
             let _ = file.set_permissions(m.permissions());
         }
-        Ok((OutputFile { partial: Some(partial), path: path.to_owned() }, file))
+        Ok((OutputFile { partial: Some(partial), path: path.to_owned() }, EarlyWriteback::new(file, true)))
     }
 
     /// Puts the written file in place: once everything written to it has been flushed (and its
@@ -160,14 +153,10 @@ impl OutputFile {
 pub fn write_file(path: &Path, write: impl FnOnce(&mut dyn Write) -> io::Result<()>) -> io::Result<()> {
     const BUFFER: usize = 1 << 16;
     let (output, file) = OutputFile::create(path)?;
-    let durable = output.partial.is_some() && durable();
     let mut out = BufWriter::with_capacity(BUFFER, file);
     write(&mut out)?;
-    let file: File = out.into_inner().map_err(|e| e.into_error())?.file;
-    if durable {
-        file.sync_all()?;
-    }
-    drop(file);
+    // Flushed and closed before the commit, which makes it durable if asked.
+    drop(out.into_inner().map_err(|e| e.into_error())?);
     output.commit()
 }
 
