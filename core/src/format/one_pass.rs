@@ -21,7 +21,7 @@
 //! parser. Both give the result serde_json gives with its `float_roundtrip` feature (enabled in
 //! this workspace for that reason) and the `toml` crate gives.
 //!
-//! A large JSON text is read by two threads (see `json_elements`): this one parses, a helper
+//! A large JSON or TOML text is read by two threads (see `add_parsed`): this one parses, a helper
 //! adds the elements to the model in the order of the file, so that the model, and every
 //! message of the reader it falls back to, is the same as one thread's.
 
