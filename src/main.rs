@@ -941,9 +941,9 @@ fn simulate(
     let streamed = matches!(format, OutputFormat::Json | OutputFormat::Csv | OutputFormat::Parquet);
     let mut part = None;
     let mut files = Vec::new();
-    let sink: Option<Box<dyn Write>> = match (streamed, format, output) {
+    let sink: Option<Box<dyn Write + Send>> = match (streamed, format, output) {
         (false, _, _) | (_, OutputFormat::Parquet, _) => None,
-        (_, _, None) => Some(Box::new(BufWriter::with_capacity(1 << 16, std::io::stdout().lock()))),
+        (_, _, None) => Some(Box::new(BufWriter::with_capacity(1 << 16, std::io::stdout()))),
         (_, _, Some(out)) => match output::OutputFile::create(out) {
             Ok((p, file)) => {
                 part = Some(p);
@@ -956,185 +956,187 @@ fn simulate(
             }
         },
     };
-    let opened: std::io::Result<Option<Box<dyn SeriesWriter + '_>>> = match (format, sink) {
-        (OutputFormat::Json, Some(out)) => {
-            simulation::JsonSeries::new(&model, out).map(|w| Some(Box::new(w) as Box<dyn SeriesWriter + '_>))
-        }
-        (OutputFormat::Csv, Some(out)) => {
-            simulation::CsvSeries::new(&model, out).map(|w| Some(Box::new(w) as Box<dyn SeriesWriter + '_>))
-        }
+    type Sent<'m> = Box<dyn SeriesWriter + Send + 'm>;
+    let opened: std::io::Result<Option<Sent>> = match (format, sink) {
+        (OutputFormat::Json, Some(out)) => simulation::JsonSeries::new(&model, out).map(|w| Some(Box::new(w) as Sent)),
+        (OutputFormat::Csv, Some(out)) => simulation::CsvSeries::new(&model, out).map(|w| Some(Box::new(w) as Sent)),
         (OutputFormat::Parquet, _) => {
             let dir = output.expect("checked above");
             columnar::output_dir(dir).and_then(|()| simulation::ParquetSeries::new(&model, dir)).map(|w| {
                 files = w.paths();
-                Some(Box::new(w) as Box<dyn SeriesWriter + '_>)
+                Some(Box::new(w) as Sent)
             })
         }
         _ => Ok(None),
     };
-    let mut writer = match opened {
-        Ok(w) => w,
-        Err(e) => {
-            let to = output.map_or("standard output".into(), |o| o.display().to_string());
-            eprintln!("error: cannot write the results to {to}: {e}");
-            return ExitCode::from(EXIT_WRITE);
-        }
-    };
-    let mut progress = Progress::new();
-    let options = ringmain_core::SimulateOptions::default();
-    let mut failure: Option<std::io::Error> = None;
-    let mut reports = 0usize;
-    let mut sink = |s: &ringmain_core::simulate::Snapshot, q: Option<&ringmain_core::quality::QualityRecord>| {
-        reports += 1;
-        match writer.as_mut().map_or(Ok(()), |w| w.snapshot(s, q)) {
-            Ok(()) => Ok(()),
+    // The series is formatted and written on a thread of its own while the run goes on.
+    std::thread::scope(|scope| {
+        let mut writer = match opened {
+            Ok(w) => w.map(|w| Box::new(simulation::Background::start(scope, w)) as Box<dyn SeriesWriter + '_>),
             Err(e) => {
-                let message = e.to_string();
-                failure = Some(e);
-                Err(message)
+                let to = output.map_or("standard output".into(), |o| o.display().to_string());
+                eprintln!("error: cannot write the results to {to}: {e}");
+                return ExitCode::from(EXIT_WRITE);
             }
-        }
-    };
-    let result = match (with_quality, keep) {
-        (true, true) => {
-            ringmain_core::quality::simulate(&model, &options, &mut |f| progress.update(f)).map(|(r, q)| (r, Some(q)))
-        }
-        (true, false) => {
-            ringmain_core::quality::simulate_streaming(&model, &options, &mut |f| progress.update(f), &mut sink)
-                .map(|(r, q)| (r, Some(q)))
-        }
-        (false, true) => {
-            ringmain_core::simulate::simulate_with(&model, &options, &mut |f| progress.update(f)).map(|r| (r, None))
-        }
-        (false, false) => {
-            ringmain_core::simulate::simulate_streaming(&model, &options, &mut |f| progress.update(f), &mut |s| {
-                sink(s, None)
-            })
-            .map(|r| (r, None))
-        }
-    };
-    progress.finish();
-    let (run, quality) = match result {
-        Ok(r) => r,
-        Err(SimulateError::Model(e)) => {
-            eprintln!("error: {}", e.in_file(path.display().to_string()));
-            return ExitCode::from(EXIT_INVALID);
-        }
-        Err(SimulateError::Output { .. })
-            if failure.as_ref().is_some_and(|e| e.kind() == std::io::ErrorKind::BrokenPipe) =>
-        {
-            return ExitCode::SUCCESS;
-        }
-        Err(SimulateError::Output { message, .. }) => {
-            let to = output.map_or("standard output".into(), |o| o.display().to_string());
-            eprintln!("error: cannot write the results to {to}: {message}");
-            return ExitCode::from(EXIT_WRITE);
-        }
-        Err(e) => {
-            eprintln!("error: {}: {e}", path.display());
-            return ExitCode::from(EXIT_NOT_CONVERGED);
-        }
-    };
-    if format == OutputFormat::Geojson {
-        let results = gis::GisResults::from_run(&model, &run, at).and_then(|mut r| {
-            if let Some(q) = &quality {
-                r.add_quality(q, at)?;
-            }
-            Ok(r)
-        });
-        return write_geojson(path, output, results);
-    }
-    // A kept series goes through the same writers, state by state.
-    if let (true, Some(w)) = (keep, writer.as_mut()) {
-        for s in &run.series {
+        };
+        let mut progress = Progress::new();
+        let options = ringmain_core::SimulateOptions::default();
+        let mut failure: Option<std::io::Error> = None;
+        let mut reports = 0usize;
+        let mut sink = |s: &ringmain_core::simulate::Snapshot, q: Option<&ringmain_core::quality::QualityRecord>| {
             reports += 1;
-            if let Err(e) = w.snapshot(s, quality.as_ref().and_then(|q| q.at(s.time))) {
-                if e.kind() == std::io::ErrorKind::BrokenPipe {
-                    return ExitCode::SUCCESS;
+            match writer.as_mut().map_or(Ok(()), |w| w.snapshot(s, q)) {
+                Ok(()) => Ok(()),
+                Err(e) => {
+                    let message = e.to_string();
+                    failure = Some(e);
+                    Err(message)
                 }
+            }
+        };
+        let result = match (with_quality, keep) {
+            (true, true) => ringmain_core::quality::simulate(&model, &options, &mut |f| progress.update(f))
+                .map(|(r, q)| (r, Some(q))),
+            (true, false) => {
+                ringmain_core::quality::simulate_streaming(&model, &options, &mut |f| progress.update(f), &mut sink)
+                    .map(|(r, q)| (r, Some(q)))
+            }
+            (false, true) => {
+                ringmain_core::simulate::simulate_with(&model, &options, &mut |f| progress.update(f)).map(|r| (r, None))
+            }
+            (false, false) => {
+                ringmain_core::simulate::simulate_streaming(&model, &options, &mut |f| progress.update(f), &mut |s| {
+                    sink(s, None)
+                })
+                .map(|r| (r, None))
+            }
+        };
+        progress.finish();
+        let (run, quality) = match result {
+            Ok(r) => r,
+            Err(SimulateError::Model(e)) => {
+                eprintln!("error: {}", e.in_file(path.display().to_string()));
+                return ExitCode::from(EXIT_INVALID);
+            }
+            Err(SimulateError::Output { .. })
+                if failure.as_ref().is_some_and(|e| e.kind() == std::io::ErrorKind::BrokenPipe) =>
+            {
+                return ExitCode::SUCCESS;
+            }
+            Err(SimulateError::Output { message, .. }) => {
+                let to = output.map_or("standard output".into(), |o| o.display().to_string());
+                eprintln!("error: cannot write the results to {to}: {message}");
+                return ExitCode::from(EXIT_WRITE);
+            }
+            Err(e) => {
+                eprintln!("error: {}: {e}", path.display());
+                return ExitCode::from(EXIT_NOT_CONVERGED);
+            }
+        };
+        if format == OutputFormat::Geojson {
+            let results = gis::GisResults::from_run(&model, &run, at).and_then(|mut r| {
+                if let Some(q) = &quality {
+                    r.add_quality(q, at)?;
+                }
+                Ok(r)
+            });
+            return write_geojson(path, output, results);
+        }
+        // A kept series goes through the same writers, state by state.
+        if let (true, Some(w)) = (keep, writer.as_mut()) {
+            for s in &run.series {
+                reports += 1;
+                if let Err(e) = w.snapshot(s, quality.as_ref().and_then(|q| q.at(s.time))) {
+                    if e.kind() == std::io::ErrorKind::BrokenPipe {
+                        return ExitCode::SUCCESS;
+                    }
+                    let to = output.map_or("standard output".into(), |o| o.display().to_string());
+                    eprintln!("error: cannot write the results to {to}: {e}");
+                    return ExitCode::from(EXIT_WRITE);
+                }
+            }
+        }
+        let mut report = simulation::RunReport::new(&model, &run);
+        report.quality = quality.as_ref();
+        report.criteria = criteria.as_ref();
+        if let Some(criteria) = criteria.as_ref().filter(|c| c.has_quality_limits()) {
+            let Some(q) = quality.as_ref() else {
+                eprintln!(
+                    "error: {}: [criteria]: key 'max_age'/'min_residual': the model has no [[quality]] constituents to check",
+                    path.display()
+                );
+                return ExitCode::from(EXIT_INVALID);
+            };
+            match ringmain_core::quality::criteria::evaluate(
+                criteria,
+                &model,
+                q,
+                ringmain_core::analysis::CheckOptions::KEEP,
+            ) {
+                Ok(checks) => report.checks = checks,
+                Err(e) => {
+                    eprintln!("error: {}", e.in_file(criteria_path.unwrap_or(path).display().to_string()));
+                    return ExitCode::from(EXIT_INVALID);
+                }
+            }
+        }
+        if let Some(dir) = plot_dir {
+            match plot::write_all(&report, dir) {
+                Ok(written) => {
+                    for f in written {
+                        eprintln!("wrote {}", f.display());
+                    }
+                }
+                Err(e) => {
+                    eprintln!("error: cannot write the charts to {}: {e}", dir.display());
+                    return ExitCode::from(EXIT_WRITE);
+                }
+            }
+        }
+        let failed = if report.checks.iter().any(|c| !c.passed()) {
+            ExitCode::from(exit::EXIT_FAILED)
+        } else {
+            ExitCode::SUCCESS
+        };
+        let finished = match writer.as_mut() {
+            Some(w) => w.finish(&report),
+            // The table (every other format has a writer, GeoJSON returned above).
+            None => {
+                let code = match output {
+                    None => write_out(&report.to_table(), None),
+                    Some(out) => {
+                        let code = write_with("the results", Some(out), |o| o.write_all(report.to_table().as_bytes()));
+                        if code == ExitCode::SUCCESS {
+                            println!("wrote {}", out.display());
+                        }
+                        code
+                    }
+                };
+                return if code == ExitCode::SUCCESS { failed } else { code };
+            }
+        };
+        drop(writer);
+        let committed = finished.and_then(|()| part.map_or(Ok(()), output::OutputFile::commit));
+        match committed {
+            Ok(()) => {}
+            Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => return ExitCode::SUCCESS,
+            Err(e) => {
                 let to = output.map_or("standard output".into(), |o| o.display().to_string());
                 eprintln!("error: cannot write the results to {to}: {e}");
                 return ExitCode::from(EXIT_WRITE);
             }
         }
-    }
-    let mut report = simulation::RunReport::new(&model, &run);
-    report.quality = quality.as_ref();
-    report.criteria = criteria.as_ref();
-    if let Some(criteria) = criteria.as_ref().filter(|c| c.has_quality_limits()) {
-        let Some(q) = quality.as_ref() else {
-            eprintln!(
-                "error: {}: [criteria]: key 'max_age'/'min_residual': the model has no [[quality]] constituents to check",
-                path.display()
-            );
-            return ExitCode::from(EXIT_INVALID);
-        };
-        match ringmain_core::quality::criteria::evaluate(
-            criteria,
-            &model,
-            q,
-            ringmain_core::analysis::CheckOptions::KEEP,
-        ) {
-            Ok(checks) => report.checks = checks,
-            Err(e) => {
-                eprintln!("error: {}", e.in_file(criteria_path.unwrap_or(path).display().to_string()));
-                return ExitCode::from(EXIT_INVALID);
+        if output.is_some() {
+            // The series went to files: the summary still comes to the terminal, with what was written.
+            let mut text = report.to_table();
+            for f in &files {
+                text.push_str(&format!("wrote {} ({} reported times)\n", f.display(), reports));
             }
-        }
-    }
-    if let Some(dir) = plot_dir {
-        match plot::write_all(&report, dir) {
-            Ok(written) => {
-                for f in written {
-                    eprintln!("wrote {}", f.display());
-                }
-            }
-            Err(e) => {
-                eprintln!("error: cannot write the charts to {}: {e}", dir.display());
-                return ExitCode::from(EXIT_WRITE);
-            }
-        }
-    }
-    let failed =
-        if report.checks.iter().any(|c| !c.passed()) { ExitCode::from(exit::EXIT_FAILED) } else { ExitCode::SUCCESS };
-    let finished = match writer.as_mut() {
-        Some(w) => w.finish(&report),
-        // The table (every other format has a writer, GeoJSON returned above).
-        None => {
-            let code = match output {
-                None => write_out(&report.to_table(), None),
-                Some(out) => {
-                    let code = write_with("the results", Some(out), |o| o.write_all(report.to_table().as_bytes()));
-                    if code == ExitCode::SUCCESS {
-                        println!("wrote {}", out.display());
-                    }
-                    code
-                }
-            };
+            let code = write_out(&text, None);
             return if code == ExitCode::SUCCESS { failed } else { code };
         }
-    };
-    drop(writer);
-    let committed = finished.and_then(|()| part.map_or(Ok(()), output::OutputFile::commit));
-    match committed {
-        Ok(()) => {}
-        Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => return ExitCode::SUCCESS,
-        Err(e) => {
-            let to = output.map_or("standard output".into(), |o| o.display().to_string());
-            eprintln!("error: cannot write the results to {to}: {e}");
-            return ExitCode::from(EXIT_WRITE);
-        }
-    }
-    if output.is_some() {
-        // The series went to files: the summary still comes to the terminal, with what was written.
-        let mut text = report.to_table();
-        for f in &files {
-            text.push_str(&format!("wrote {} ({} reported times)\n", f.display(), reports));
-        }
-        let code = write_out(&text, None);
-        return if code == ExitCode::SUCCESS { failed } else { code };
-    }
-    failed
+        failed
+    })
 }
 
 fn water_properties(temperature: f64, format: OutputFormat) -> ExitCode {

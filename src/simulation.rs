@@ -364,6 +364,84 @@ pub trait SeriesWriter {
     fn finish(&mut self, report: &RunReport) -> io::Result<()>;
 }
 
+/// A series writer working on a thread of its own, so that formatting and writing the series
+/// overlap the run that makes it (the run's solver works on one core at the sizes a series is
+/// written for, and a writer's formatting took a third of a 7-day run of a 10⁴-junction
+/// network when it was done in turn).
+///
+/// Each reported state is copied (a few hundred kilobytes at 10⁴ junctions) and handed over
+/// through a channel that holds at most [`Background::QUEUE`] states, so memory stays bounded
+/// whatever the run's length. The writer's first error stops it; the run learns of it at its
+/// next reported state, or at [`SeriesWriter::finish`], and gets that same error back. The
+/// states are written in the order they were reported, by the same writer as on one thread:
+/// the output is the same byte for byte.
+pub struct Background<'scope, 'env> {
+    to: Option<std::sync::mpsc::SyncSender<Reported>>,
+    worker: Option<std::thread::ScopedJoinHandle<'scope, io::Result<Box<dyn SeriesWriter + Send + 'env>>>>,
+    /// The writer, back from its thread once that has ended.
+    back: Option<Box<dyn SeriesWriter + Send + 'env>>,
+    /// The writer's error, once its thread has ended on one (given back at every later call).
+    failed: Option<(io::ErrorKind, String)>,
+}
+
+/// A reported state and its water-quality values, as handed to a [`Background`] writer.
+type Reported = (Snapshot, Option<QualityRecord>);
+
+impl<'scope, 'env> Background<'scope, 'env> {
+    /// Reported states waiting for the writer at most.
+    pub const QUEUE: usize = 2;
+
+    /// Starts `inner` on a thread of `scope`.
+    pub fn start(scope: &'scope std::thread::Scope<'scope, 'env>, inner: Box<dyn SeriesWriter + Send + 'env>) -> Self {
+        let (to, from) = std::sync::mpsc::sync_channel::<Reported>(Self::QUEUE);
+        let worker = scope.spawn(move || {
+            let mut inner = inner;
+            for (s, q) in from {
+                inner.snapshot(&s, q.as_ref())?;
+            }
+            Ok(inner)
+        });
+        Background { to: Some(to), worker: Some(worker), back: None, failed: None }
+    }
+
+    /// Ends the writer's thread (all states handed over are written first) and keeps its
+    /// writer, or its error.
+    fn join(&mut self) -> io::Result<()> {
+        self.to = None;
+        if let Some(worker) = self.worker.take() {
+            match worker.join() {
+                Ok(Ok(inner)) => self.back = Some(inner),
+                Ok(Err(e)) => self.failed = Some((e.kind(), e.to_string())),
+                Err(_) => self.failed = Some((io::ErrorKind::Other, "the series writer stopped unexpectedly".into())),
+            }
+        }
+        match &self.failed {
+            Some((kind, message)) => Err(io::Error::new(*kind, message.clone())),
+            None => Ok(()),
+        }
+    }
+}
+
+impl SeriesWriter for Background<'_, '_> {
+    fn snapshot(&mut self, s: &Snapshot, q: Option<&QualityRecord>) -> io::Result<()> {
+        if let Some(to) = &self.to {
+            let sent = to.send((s.clone(), q.cloned())).is_ok();
+            // Not sent: the thread gave up, and its error is the answer.
+            return if sent { Ok(()) } else { self.join() };
+        }
+        // Finished already: the states go to the writer on this thread.
+        match self.back.as_mut() {
+            Some(inner) => inner.snapshot(s, q),
+            None => self.join(),
+        }
+    }
+
+    fn finish(&mut self, report: &RunReport) -> io::Result<()> {
+        self.join()?;
+        self.back.as_mut().map_or(Ok(()), |inner| inner.finish(report))
+    }
+}
+
 /// JSON: `{"title", "units", "start_clock", "duration_s", "series": [...], "summary", "events"}`,
 /// one reported state a line.
 pub struct JsonSeries<'a, W: Write> {
@@ -827,5 +905,92 @@ impl SeriesWriter for ParquetSeries<'_> {
             t.finish()?;
         }
         Ok(())
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use std::sync::{Arc, Mutex};
+
+    /// A writer that records the times it is given and gives up at the `fail_at`-th state.
+    struct Recorder {
+        times: Arc<Mutex<Vec<f64>>>,
+        finished: Arc<Mutex<usize>>,
+        fail_at: Option<usize>,
+    }
+
+    impl SeriesWriter for Recorder {
+        fn snapshot(&mut self, s: &Snapshot, _: Option<&QualityRecord>) -> io::Result<()> {
+            let mut times = self.times.lock().unwrap();
+            if Some(times.len()) == self.fail_at {
+                return Err(io::Error::new(io::ErrorKind::StorageFull, "no space left for the series"));
+            }
+            times.push(s.time);
+            Ok(())
+        }
+        fn finish(&mut self, _: &RunReport) -> io::Result<()> {
+            *self.finished.lock().unwrap() += 1;
+            Ok(())
+        }
+    }
+
+    fn demo_run() -> (Model, Run) {
+        let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("examples/hillside-day.toml");
+        let model = crate::load(&path).unwrap();
+        let run = ringmain_core::simulate(&model).unwrap();
+        assert!(run.series.len() > 10, "the demo run reports too few states for the test");
+        (model, run)
+    }
+
+    /// The states reach the writer on its thread in the order reported, every one, and the
+    /// writer is finished once, after the last.
+    #[test]
+    fn background_writer_gets_every_state_in_order() {
+        let (model, run) = demo_run();
+        let (times, finished) = (Arc::new(Mutex::new(Vec::new())), Arc::new(Mutex::new(0)));
+        let inner = Recorder { times: times.clone(), finished: finished.clone(), fail_at: None };
+        std::thread::scope(|scope| {
+            let mut w = Background::start(scope, Box::new(inner));
+            for s in &run.series {
+                w.snapshot(s, None).unwrap();
+            }
+            w.finish(&RunReport::new(&model, &run)).unwrap();
+        });
+        let reported: Vec<f64> = run.series.iter().map(|s| s.time).collect();
+        assert_eq!(*times.lock().unwrap(), reported);
+        assert_eq!(*finished.lock().unwrap(), 1);
+    }
+
+    /// Fault class: an error of the writer on its own thread must come back to the run, with its
+    /// kind and message, at a later state or at the finish at the latest, wherever it happens
+    /// (first state, middle, last); no state after it is written and the writer is not finished.
+    #[test]
+    fn background_writer_gives_back_its_error_wherever_it_happens() {
+        let (model, run) = demo_run();
+        let n = run.series.len();
+        for fail_at in [0, 1, n / 2, n - 1] {
+            let (times, finished) = (Arc::new(Mutex::new(Vec::new())), Arc::new(Mutex::new(0)));
+            let inner = Recorder { times: times.clone(), finished: finished.clone(), fail_at: Some(fail_at) };
+            let errors = std::thread::scope(|scope| {
+                let mut w = Background::start(scope, Box::new(inner));
+                let mut errors = Vec::new();
+                for s in &run.series {
+                    if let Err(e) = w.snapshot(s, None) {
+                        errors.push(e);
+                        break;
+                    }
+                }
+                let finish = w.finish(&RunReport::new(&model, &run));
+                errors.push(finish.expect_err("the finish must give the error back"));
+                errors
+            });
+            for e in &errors {
+                assert_eq!(e.kind(), io::ErrorKind::StorageFull, "at {fail_at}");
+                assert_eq!(e.to_string(), "no space left for the series", "at {fail_at}");
+            }
+            assert_eq!(times.lock().unwrap().len(), fail_at, "states written after the error, at {fail_at}");
+            assert_eq!(*finished.lock().unwrap(), 0, "finished after an error, at {fail_at}");
+        }
     }
 }
