@@ -1,5 +1,6 @@
 //! Results as files: streamed simulation series (JSON, CSV, Parquet) equal to the series a run
-//! keeps, spreadsheet-safe CSV tables of every kind, signed pump head, the work bound of long
+//! keeps, and on standard output equal to the files (a closed pipe ending the run quietly),
+//! spreadsheet-safe CSV tables of every kind, signed pump head, the work bound of long
 //! simulations, the input size limit, messages printed once with their snippet, and for every
 //! writer of files: the same bytes at every run, `--durable` changing none, and a write cut
 //! short leaving every file as it was or whole.
@@ -474,6 +475,38 @@ fn a_write_cut_short_leaves_every_file_as_it_was_or_whole() {
             assert!(kept || written, "{command} {format}: {file} is neither the earlier file nor whole");
         }
         assert!(after.iter().any(|(_, b)| b.as_slice() == b"earlier\n"), "{command} {format}: nothing was cut short");
+    }
+    let _ = std::fs::remove_dir_all(&dir);
+}
+
+/// The series streamed to standard output (its writer works on a thread of its own) is the
+/// file's text byte for byte, for every format that streams to standard output; and a reader
+/// that stops early (the pipe closed after a few bytes, with megabytes still to come) ends the
+/// run quietly: exit 0, nothing on standard error.
+#[test]
+fn series_on_standard_output_equal_the_files_and_end_quietly_at_a_closed_pipe() {
+    use std::io::Read;
+    use std::process::Stdio;
+    let dir = scratch("series-stdout");
+    let model = example("hillside-day.toml");
+    for format in ["json", "csv"] {
+        let file = written("simulate", format, &dir.join(format!("s.{format}")), &[]);
+        assert!(file[0].1.len() > 1 << 20, "{format}: the demo's series must be larger than a pipe's buffer");
+        let out = ringmain(&["simulate".as_ref(), model.as_os_str(), "--format".as_ref(), format.as_ref()]);
+        assert!(out.status.success(), "{format}: {}", text(&out.stderr));
+        assert!(out.stdout == file[0].1, "{format}: standard output differs from the file");
+        let mut child = Command::new(env!("CARGO_BIN_EXE_ringmain"))
+            .args(["simulate".as_ref(), model.as_os_str(), "--format".as_ref(), format.as_ref()])
+            .stdout(Stdio::piped())
+            .stderr(Stdio::piped())
+            .spawn()
+            .expect("start ringmain");
+        let mut first = [0u8; 64];
+        child.stdout.as_mut().unwrap().read_exact(&mut first).unwrap();
+        drop(child.stdout.take());
+        let out = child.wait_with_output().unwrap();
+        assert_eq!(out.status.code(), Some(0), "{format}: {}", text(&out.stderr));
+        assert!(out.stderr.is_empty(), "{format}: {}", text(&out.stderr));
     }
     let _ = std::fs::remove_dir_all(&dir);
 }
