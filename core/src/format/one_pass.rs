@@ -807,14 +807,24 @@ struct Adder {
     /// again at the first lookup). The first link of another kind ends it: the ids so far are
     /// checked, and from there on links are added with the index.
     new_links: Option<NewIds>,
+    /// While every node so far is a plain junction added to a model that had none: they are
+    /// added without the node index, which is made at once when they end
+    /// (`Model::index_new_nodes`, in the order of its buckets), the ids checked all different
+    /// as it is made. At a million nodes the inserts one by one, each at a random place of a
+    /// table larger than the caches, and the table's growth took about half of the time of the
+    /// thread that adds them (which set the pace of the nodes' reading). The first node of
+    /// another kind ends it, as for the links.
+    new_nodes: bool,
 }
 
 impl Adder {
-    /// The adder of the `nodes` (or `links`) array into `model`: links into a model without
-    /// links yet are added without the link index ([`Adder::new_links`]).
+    /// The adder of the `nodes` (or `links`) array into `model`: nodes (links) into a model
+    /// without any yet are added without the node (link) index ([`Adder::new_nodes`],
+    /// [`Adder::new_links`]).
     fn new(model: &Model, nodes: bool) -> Adder {
         let new_links = (!nodes && model.links().is_empty()).then(NewIds::default);
-        Adder { ends: Ends::default(), i: 0, nodes, new_links }
+        let new_nodes = nodes && model.nodes().is_empty();
+        Adder { ends: Ends::default(), i: 0, nodes, new_links, new_nodes }
     }
 
     /// Adds a batch, leaving it empty; `None`: give up (an element the model refuses, or a link
@@ -822,6 +832,7 @@ impl Adder {
     fn add(&mut self, model: &mut Model, batch: &mut Vec<Parsed>) -> Option<()> {
         for element in batch.drain(..) {
             match element {
+                Parsed::Node(node) if self.new_nodes => model.add_node_with_new_id(node).ok().map(drop)?,
                 Parsed::Node(node) => model.add_node(node).ok().map(drop)?,
                 Parsed::Pipe(mut link, from, to) => {
                     link.from = self.ends.from(model, &from)?;
@@ -834,7 +845,10 @@ impl Adder {
                         None => model.add_link(link).ok().map(drop)?,
                     }
                 }
-                Parsed::Value(value) if self.nodes => read::add_node_value(model, self.i, value).ok()?,
+                Parsed::Value(value) if self.nodes => {
+                    self.finish(model)?;
+                    read::add_node_value(model, self.i, value).ok()?;
+                }
                 Parsed::Value(value) => {
                     self.finish(model)?;
                     read::add_link_value(model, self.i, value).ok()?;
@@ -845,9 +859,12 @@ impl Adder {
         Some(())
     }
 
-    /// Checks that the links added without the index have ids all different (`None`: some do
-    /// not; the whole-text reader then says which).
-    fn finish(&mut self, model: &Model) -> Option<()> {
+    /// Checks that the nodes or links added without the index have ids all different, making
+    /// the node index (`None`: some do not; the whole-text reader then says which).
+    fn finish(&mut self, model: &mut Model) -> Option<()> {
+        if std::mem::take(&mut self.new_nodes) && !model.index_new_nodes() {
+            return None;
+        }
         match self.new_links.take() {
             Some(new) => new.all_different(|k| &model.links()[k].id).then_some(()),
             None => Some(()),
@@ -1771,6 +1788,38 @@ mod tests {
         ]
     }
 
+    /// Edits that repeat a node's id while every link still finds its ends (a copy of a whole
+    /// element added, so that the only fault is the repeat), for every place the two readers
+    /// check ids: within the junctions added without the index (neighbours, far apart, first
+    /// and last), a junction repeated just before the first node of another kind (where the
+    /// index is made), and a node of another kind repeated after it (added with the index).
+    /// `element(id)` is where the text's element with that id starts; an element runs to the
+    /// next one.
+    fn repeated_node_ids(text: &str, element: impl Fn(&str) -> String) -> Vec<(String, &'static str)> {
+        let at = |id: &str| text.find(&element(id)).unwrap_or_else(|| panic!("{id} is in the text"));
+        let whole = |id: &str| {
+            let start = at(id);
+            let len = text[start + 1..].find(&element("")[..element("").len() - 1]).unwrap() + 1;
+            text[start..start + len].to_owned()
+        };
+        let copy_before = |id: &str, before: &str| {
+            let b = at(before);
+            format!("{}{}{}", &text[..b], whole(id), &text[b..])
+        };
+        let first_other = text.find(&element("R1")).unwrap();
+        let last_junction = &text[..first_other];
+        let last_id_start = last_junction.rfind(&element("J")).unwrap() + element("J").len() - 1;
+        let last_id = &text[last_id_start..last_id_start + text[last_id_start..].find('"').unwrap()];
+        assert!(last_id.starts_with('J'), "{last_id}");
+        vec![
+            (copy_before("J11", "J12"), "a junction's id repeated by the next element"),
+            (copy_before("J11", "J3000"), "a junction's id repeated far after it"),
+            (copy_before("J1", last_id), "the first junction's id repeated at the last"),
+            (copy_before("J11", "R1"), "a junction's id repeated just before the first reservoir"),
+            (copy_before("R1", "T1"), "a reservoir's id repeated after it"),
+        ]
+    }
+
     /// A text large enough to be read by two threads builds the model the tree reader builds,
     /// and anything the model refuses in it (a link's end that is no node, a duplicate id, a
     /// bad value) makes both threads give up, from memory and from chunks.
@@ -1782,7 +1831,9 @@ mod tests {
         let tree = read_tree(&text, Format::Json).unwrap();
         assert_eq!(json_from_slice(text.as_bytes()).as_ref(), Some(&tree));
         assert_eq!(json_from_chunks(text.as_bytes(), u64::MAX, 64 << 10).as_ref(), Some(&tree));
-        for (edit, what) in refused_edits(&text, |key| format!("\"{key}\": ")) {
+        let mut edits = refused_edits(&text, |key| format!("\"{key}\": "));
+        edits.extend(repeated_node_ids(&text, |id| format!("    {{\"id\": \"{id}")));
+        for (edit, what) in edits {
             assert_ne!(edit, text, "{what}");
             assert!(json_from_slice(edit.as_bytes()).is_none(), "{what}");
             assert!(json_from_chunks(edit.as_bytes(), u64::MAX, 64 << 10).is_none(), "{what}");
@@ -1820,6 +1871,19 @@ mod tests {
         assert_eq!(read_tree(&interleaved, Format::Toml).unwrap().time.controls.len(), 2);
         let mut edits = refused_edits(&text, |key| format!("{key} = "));
         edits.push((interleaved.replacen("id = \"P4001\"", "id = \"P7\"", 1), "a duplicate link id after a control"));
+        edits.extend(repeated_node_ids(&text, |id| format!("[[nodes]]\nid = \"{id}")));
+        let after_control = interleaved.find("[[nodes]]\nid = \"J3001\"").unwrap();
+        let j7 = interleaved.find("[[nodes]]\nid = \"J7\"").unwrap();
+        let j7_len = interleaved[j7 + 1..].find("[[nodes]]").unwrap() + 1;
+        edits.push((
+            format!(
+                "{}{}{}",
+                &interleaved[..after_control],
+                &interleaved[j7..j7 + j7_len],
+                &interleaved[after_control..]
+            ),
+            "a junction's id repeated after a control",
+        ));
         for (edit, what) in edits {
             assert_ne!(&edit, &text, "{what}");
             assert!(toml_from_slice(edit.as_bytes()).is_none(), "{what}");

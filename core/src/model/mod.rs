@@ -22,7 +22,7 @@ use crate::physics::fittings::{Fitting, FittingKind, FittingsMethod};
 use crate::physics::pump::{Efficiency, HeadCurve};
 use crate::physics::WaterProperties;
 use crate::units::{Converter, Quantity, UnitSystem};
-use index::{Insert, ReleasableIndex};
+use index::{IdIndex, Insert, ReleasableIndex};
 use std::collections::BTreeMap;
 
 /// Friction law used for every pipe of a model.
@@ -978,6 +978,21 @@ impl Model {
         }
         self.nodes.push(node);
         Ok(index)
+    }
+
+    /// Makes the node index at once from the nodes' ids (in the order of its buckets: see
+    /// `IdIndex::build_checked`), after nodes were added by [`Model::add_node_with_new_id`]
+    /// without it; `false` (and the index left to be made at its next use) if two nodes have the
+    /// same id. A reader adds a file's nodes so, then this checks them all.
+    pub(crate) fn index_new_nodes(&mut self) -> bool {
+        let nodes = &self.nodes;
+        match IdIndex::build_checked(nodes.len(), |k| &nodes[k].id) {
+            Some(index) => {
+                self.node_index = ReleasableIndex::from(index);
+                true
+            }
+            None => false,
+        }
     }
 
     /// [`Model::add_node`] for a node whose id the caller knows to be unused (the generator's
