@@ -677,10 +677,11 @@ fn json_elements(feed: &mut impl Feed, model: &mut Model, nodes: bool) -> Option
 ///
 /// In a large text two threads share the work: this one parses the text into elements (the
 /// commonest ones, a plain junction or a plain pipe, straight into the model's structs; any
-/// other into a value tree), a helper adds them to the model in batches (the id index, the
-/// links' ends, the model's checks). At a million elements the two halves take about as long
-/// as each other. Anything either side gives up on stops both. A small text is read on this
-/// thread alone, the same way.
+/// other into a value tree), a helper adds them to the model in batches (the links' ends, the
+/// model's checks; the ids of a run of plain elements are checked, and the node index made, at
+/// once when the run ends: see [`Adder`]). At a million elements the parsing thread sets the
+/// pace; the helper takes less time than it (two thirds of it in the nodes). Anything either
+/// side gives up on stops both. A small text is read on this thread alone, the same way.
 fn add_parsed<F: Feed, T>(
     feed: &mut F,
     model: &mut Model,
