@@ -14,7 +14,7 @@
 //! found on two threads at once, and the rows above them after (`Split`): each row's operations
 //! are the same, so the factor is too, to the last bit.
 
-use super::structure::{numeric_scratch, Structure};
+use super::structure::Structure;
 use faer::dyn_stack::{MemBuffer, MemStack};
 use faer::sparse::linalg::cholesky::simplicial::SimplicialLltRef;
 use faer::{Conj, MatMut, Par};
@@ -33,6 +33,9 @@ pub struct Factor {
     x: Vec<f64>,
     /// Next free slot of every column of the factor.
     next: Vec<u32>,
+    /// The dense top block (row-major) and faer's scratch for it (see [`DenseTop`]).
+    block: Vec<f64>,
+    block_mem: MemBuffer,
 }
 
 /// The reach of every row of the factor in the elimination tree: row `k` of `L` has its entries in
@@ -43,6 +46,9 @@ struct Schedule {
     columns: Vec<u32>,
     /// How the rows are shared by two threads, where that pays (see [`Split`]).
     split: Option<Split>,
+    /// The rows above the split's subtrees as one dense block, where that pays (see
+    /// [`DenseTop`]).
+    top: Option<DenseTop>,
 }
 
 /// Two sets of disjoint subtrees of the elimination tree, whose rows two threads factor at once,
@@ -70,6 +76,143 @@ struct Split {
     mid: u32,
     /// The other rows, in increasing order (each after every row of its subtree).
     top: Vec<u32>,
+}
+
+/// The rows above a [`Split`]'s subtrees (the rows of the last separators of the ordering, set
+/// `T`; the subtrees' rows are `B`) factored as one dense block, where it is nearly full.
+///
+/// The up-looking algorithm finds each of those rows by sparse operations over the whole block
+/// above it: on the generated networks (seed 7) they are 874 rows at 1e6 junctions whose block
+/// is 62 % full, and they took two thirds of the factorization's multiply-adds (79 million of
+/// 120), on one thread after the subtrees. As blocks of the permuted matrix `[B, T]` the factor
+/// is the same (no row of `T` is below a row of `B` in the elimination tree, so the subtrees'
+/// rows never read a row of `T`):
+///
+/// * `L_BB`: the subtrees' rows, as before (on two threads);
+/// * `L_TB = A_TB L_BBᵀ⁻¹`: each row of `T` in the subtrees' columns, by the same sparse
+///   triangular solve as the up-looking algorithm but stopping at the block (so these entries
+///   are the up-looking algorithm's to the last bit); the rows are independent of each other
+///   and are shared by two threads;
+/// * the Schur complement `S = A_TT − L_TB L_TBᵀ`, dense, each of its rows summed in the order
+///   of the row's reach (shared by two threads by rows);
+/// * `L_TT`: faer's dense Cholesky factorization of `S` (blocked, vectorised, one thread).
+///
+/// Every value is found by the same operations whether one thread or two do the work, so the
+/// factor does not depend on the threads; the block's entries differ from the up-looking
+/// algorithm's in the last bits only (another order of the same sums). A pivot that is not
+/// positive anywhere is found again by the up-looking algorithm alone, which names the first
+/// one in order, as faer does.
+#[derive(Debug)]
+struct DenseTop {
+    /// The block's rows, in increasing order (the split's `top`); a row's place in the block is
+    /// its index here.
+    rows: Vec<u32>,
+    /// Whether a row is in the block, a bit per row.
+    in_block: Vec<u64>,
+    /// The block rows' entries in the columns of the split's first set of subtrees (`[0]`) and
+    /// of its second (`[1]`): row `t`'s are `reach[s][start[s][t]..start[s][t + 1]]`, each in the
+    /// order of the row's reach in the elimination tree. An entry holds its column, its slot,
+    /// the column's first slot of a block row (the column's subtree rows lie between its
+    /// diagonal and that slot, its block rows from there on), and where the places of the
+    /// column's block rows are in `places` (less that first slot, wrapping: `places[o + s]` is
+    /// the place of the row of slot `s`).
+    start: [Vec<u32>; 2],
+    reach: [Vec<[u32; 4]>; 2],
+    /// The places of the block rows of every subtree column that has some, column after
+    /// column (read in the Schur complement's inner loop).
+    places: Vec<u16>,
+    /// The places of the rows of the block's own columns, in the factor's slot order.
+    column_places: Vec<u16>,
+    /// The block row from which the second thread sums the rows of the Schur complement (half
+    /// of the work before it).
+    mid_schur: usize,
+}
+
+/// Most rows of a dense top block (its values take 8 bytes times their square: 32 MiB at this
+/// bound; a place fits in 16 bits).
+const DENSE_TOP_MAX_ROWS: usize = 2048;
+
+/// Least share of the block's lower triangle that the factor fills for it to be factored dense:
+/// the dense factorization does all of the triangle's work, at several times the speed per
+/// operation of the sparse rows.
+const DENSE_TOP_MIN_FILL: f64 = 0.25;
+
+impl DenseTop {
+    /// The dense block of `split`'s rows above its subtrees, for the factor whose rows' reaches
+    /// are `start`/`columns`; `None` where it would not pay (see [`DENSE_TOP_MAX_ROWS`],
+    /// [`DENSE_TOP_MIN_FILL`]). Lean in memory: it runs at the first factorization, at the
+    /// solve's peak.
+    fn plan(structure: &Structure, start: &[u32], columns: &[u32], split: &Split) -> Option<DenseTop> {
+        let (n, top) = (structure.n, &split.top);
+        let nt = top.len();
+        if nt == 0 || nt > DENSE_TOP_MAX_ROWS {
+            return None;
+        }
+        let (l_ptr, l_row) = (structure.symbolic.col_ptr(), structure.symbolic.row_idx());
+        let filled: usize = top.iter().map(|&c| (l_ptr[c as usize + 1] - l_ptr[c as usize]) as usize).sum();
+        if (filled as f64) < DENSE_TOP_MIN_FILL * (nt * (nt + 1) / 2) as f64 {
+            return None;
+        }
+        let mut in_block = vec![0u64; n.div_ceil(64)];
+        for &k in top {
+            in_block[k as usize / 64] |= 1 << (k % 64);
+        }
+        let is_top = |r: u32| in_block[r as usize / 64] >> (r % 64) & 1 == 1;
+        let place = |r: u32| top.binary_search(&r).map_or(u16::MAX, |p| p as u16);
+        // The subtree columns with block rows (the last rows of a column, when it has some), in
+        // order, with their first block slot and where their places start.
+        let (mut cols, mut first, mut offset, mut places) = (Vec::new(), Vec::new(), Vec::new(), Vec::new());
+        for j in 0..n as u32 {
+            let (a, b) = (l_ptr[j as usize] as usize, l_ptr[j as usize + 1] as usize);
+            if is_top(j) || b <= a + 1 || !is_top(l_row[b - 1]) {
+                continue;
+            }
+            let f = a + 1 + l_row[a + 1..b].partition_point(|&r| !is_top(r));
+            cols.push(j);
+            first.push(f as u32);
+            offset.push((places.len() as u32).wrapping_sub(f as u32));
+            places.extend(l_row[f..b].iter().map(|&r| place(r)));
+        }
+        let mut entries = [vec![0u32], vec![0u32]];
+        let mut reach = [Vec::new(), Vec::new()];
+        let mut work = vec![0u64];
+        for &k in top {
+            let mut w = 0u64;
+            for &j in &columns[start[k as usize] as usize..start[k as usize + 1] as usize] {
+                if is_top(j) {
+                    continue;
+                }
+                let c = cols.binary_search(&j).ok()?;
+                let (f, end) = (first[c] as usize, l_ptr[j as usize + 1] as usize);
+                let slot = f + l_row[f..end].binary_search(&k).ok()?;
+                reach[usize::from(j >= split.mid)].push([j, slot as u32, f as u32, offset[c]]);
+                w += (slot - f + 1) as u64;
+            }
+            entries[0].push(reach[0].len() as u32);
+            entries[1].push(reach[1].len() as u32);
+            work.push(work.last()? + w);
+        }
+        let column_places = top
+            .iter()
+            .flat_map(|&c| &l_row[l_ptr[c as usize] as usize..l_ptr[c as usize + 1] as usize])
+            .map(|&r| place(r))
+            .collect();
+        let total = *work.last()?;
+        Some(DenseTop {
+            rows: top.clone(),
+            in_block,
+            start: entries,
+            reach,
+            places,
+            column_places,
+            mid_schur: work.partition_point(|&x| 2 * x < total).min(nt),
+        })
+    }
+
+    /// Whether row `r` is in the block.
+    fn has(&self, r: u32) -> bool {
+        self.in_block[r as usize / 64] >> (r % 64) & 1 == 1
+    }
 }
 
 /// Least factor size (entries) for which the rows are shared by two threads: below it a
@@ -226,7 +369,24 @@ impl Schedule {
                 Split::plan(&parent, work)
             })
             .flatten();
-        Schedule { start, columns, split }
+        let top = split.as_ref().and_then(|s| DenseTop::plan(structure, &start, &columns, s));
+        if let Some(top) = &top {
+            // The block rows' reaches are read no more (2.4 MB at 1e6 junctions, at the solve's
+            // peak): the rows are left with empty ones.
+            let mut kept = 0usize;
+            for k in 0..n {
+                let (a, b) = (start[k] as usize, start[k + 1] as usize);
+                start[k] = kept as u32;
+                if !top.has(k as u32) {
+                    columns.copy_within(a..b, kept);
+                    kept += b - a;
+                }
+            }
+            start[n] = kept as u32;
+            columns.truncate(kept);
+            columns.shrink_to_fit();
+        }
+        Schedule { start, columns, split, top }
     }
 }
 
@@ -289,6 +449,80 @@ impl Rows<'_> {
     }
 }
 
+impl Rows<'_> {
+    /// The entries of every block row of `top` in the columns of the split's set `set` of
+    /// subtrees (see [`DenseTop`]), with the subtrees' rows done: `part` holds those columns
+    /// (its dense row zero, and left so).
+    fn top_entries(&self, top: &DenseTop, set: usize, part: Part<'_>) {
+        let a = self.structure.matrix();
+        let (a_ptr, a_row) = (a.col_ptr(), a.row_idx());
+        let (l_ptr, l_row) = (self.structure.symbolic.col_ptr(), self.structure.symbolic.row_idx());
+        let Part { x, l, column: c0, slot: s0, .. } = part;
+        let columns = c0..c0 + x.len();
+        for (t, &k) in top.rows.iter().enumerate() {
+            let (a_start, a_end) = (a_ptr[k as usize] as usize, a_ptr[k as usize + 1] as usize);
+            for (&i, &v) in a_row[a_start..a_end].iter().zip(&self.values[a_start..a_end]) {
+                if columns.contains(&(i as usize)) && !top.has(i) {
+                    x[i as usize - c0] += v;
+                }
+            }
+            let reach = &top.reach[set][top.start[set][t] as usize..top.start[set][t + 1] as usize];
+            for &[j, slot, first_top, _] in reach {
+                let (j, first_top) = (j as usize, first_top as usize);
+                let j_start = l_ptr[j] as usize;
+                let xj = x[j - c0];
+                x[j - c0] = 0.0;
+                let lkj = xj * l[j_start - s0].recip();
+                for (&i, &lij) in l_row[j_start + 1..first_top].iter().zip(&l[j_start + 1 - s0..first_top - s0]) {
+                    x[i as usize - c0] -= lij * lkj;
+                }
+                l[slot as usize - s0] = lkj;
+            }
+        }
+    }
+
+    /// The rows `rows` (block places) of the Schur complement of `top`'s block, into `s` (those
+    /// rows of the row-major square, their lower triangle), from the factor `l` with every entry
+    /// outside the block done.
+    fn schur_rows(&self, top: &DenseTop, rows: std::ops::Range<usize>, s: &mut [f64], l: &[f64]) {
+        let a = self.structure.matrix();
+        let (a_ptr, a_row) = (a.col_ptr(), a.row_idx());
+        let nt = top.rows.len();
+        let t0 = rows.start;
+        for t in rows {
+            let k = top.rows[t] as usize;
+            let row = &mut s[(t - t0) * nt..(t - t0) * nt + t + 1];
+            row.fill(0.0);
+            let (a_start, a_end) = (a_ptr[k] as usize, a_ptr[k + 1] as usize);
+            for (&i, &v) in a_row[a_start..a_end].iter().zip(&self.values[a_start..a_end]) {
+                if top.has(i) {
+                    row[top.rows.partition_point(|&r| r < i)] += v;
+                }
+            }
+            let (first, second) = (&top.reach[0], &top.reach[1]);
+            let first = &first[top.start[0][t] as usize..top.start[0][t + 1] as usize];
+            let second = &second[top.start[1][t] as usize..top.start[1][t + 1] as usize];
+            for &[_, slot, first_top, offset] in first.iter().chain(second) {
+                let (slot, first_top) = (slot as usize, first_top as usize);
+                let o = offset.wrapping_add(first_top as u32) as usize;
+                let lkj = l[slot];
+                for (&p, &lij) in top.places[o..o + slot - first_top + 1].iter().zip(&l[first_top..=slot]) {
+                    row[p as usize] -= lij * lkj;
+                }
+            }
+        }
+    }
+}
+
+/// Runs `a` and `b`, at once on two threads if `two`, else one after the other.
+fn both<A: Send, B: Send>(two: bool, a: impl FnOnce() -> A + Send, b: impl FnOnce() -> B + Send) -> (A, B) {
+    if two {
+        rayon::join(a, b)
+    } else {
+        (a(), b())
+    }
+}
+
 impl Clone for Factor {
     /// The same values in new buffers (the scratch space is not copied: it holds nothing
     /// between calls).
@@ -296,11 +530,13 @@ impl Clone for Factor {
         Factor {
             values: self.values.clone(),
             l_values: self.l_values.clone(),
-            mem: MemBuffer::new(numeric_scratch(self.n)),
+            mem: MemBuffer::new(faer::dyn_stack::StackReq::new::<u8>(self.mem.len())),
             n: self.n,
             schedule: self.schedule.clone(),
             x: vec![0.0; self.x.len()],
             next: vec![0; self.next.len()],
+            block: Vec::new(),
+            block_mem: MemBuffer::new(faer::dyn_stack::StackReq::EMPTY),
         }
     }
 }
@@ -324,11 +560,15 @@ impl Factor {
         Factor {
             values: vec![0.0; structure.nnz()],
             l_values: vec![0.0; structure.factor_nnz()],
-            mem: MemBuffer::new(numeric_scratch(structure.n)),
+            // What the triangular solves ask for (nothing today: the whole factorization's
+            // scratch, 11 MB at 1e6 junctions, was kept here while only its tests use it).
+            mem: MemBuffer::new(structure.symbolic.solve_in_place_scratch::<f64>(1)),
             n: structure.n,
             schedule: None,
             x: Vec::new(),
             next: Vec::new(),
+            block: Vec::new(),
+            block_mem: MemBuffer::new(faer::dyn_stack::StackReq::EMPTY),
         }
     }
 
@@ -341,6 +581,8 @@ impl Factor {
         self.schedule = None;
         self.x = Vec::new();
         self.next = Vec::new();
+        self.block = Vec::new();
+        self.block_mem = MemBuffer::new(faer::dyn_stack::StackReq::EMPTY);
     }
 
     /// Factors the current `values` and solves `A x = rhs` in place.
@@ -377,9 +619,11 @@ impl Factor {
         next.clear();
         next.extend_from_slice(&structure.symbolic.col_ptr()[..n]);
         let rows = Rows { structure, schedule: &schedule, values: &self.values };
-        let split = schedule.split.as_ref().filter(|_| parallel && rayon::current_num_threads() > 1);
-        let Some(split) = split else {
-            return rows.factor(0..n as u32, Part { x, next, l, column: 0, slot: 0 });
+        let two = parallel && rayon::current_num_threads() > 1;
+        let (split, top) = match (&schedule.split, &schedule.top) {
+            (Some(split), Some(top)) => (split, Some(top)),
+            (Some(split), None) if two => (split, None),
+            _ => return rows.factor(0..n as u32, Part { x, next, l, column: 0, slot: 0 }),
         };
         let mid = split.mid as usize;
         let slot = structure.symbolic.col_ptr()[mid] as usize;
@@ -389,22 +633,93 @@ impl Factor {
         fn ranges(r: &[(u32, u32)]) -> impl Iterator<Item = u32> + '_ {
             r.iter().flat_map(|&(a, b)| a..=b)
         }
-        let (low, high) = rayon::join(
-            || rows.factor(ranges(&split.first), Part { x: x_low, next: next_low, l: l_low, column: 0, slot: 0 }),
-            || rows.factor(ranges(&split.second), Part { x: x_high, next: next_high, l: l_high, column: mid, slot }),
-        );
+        let low = || rows.factor(ranges(&split.first), Part { x: x_low, next: next_low, l: l_low, column: 0, slot: 0 });
+        let high =
+            || rows.factor(ranges(&split.second), Part { x: x_high, next: next_high, l: l_high, column: mid, slot });
+        let (low, high) = both(two, low, high);
         if low.is_err() || high.is_err() {
             // A pivot that is not positive: found again on one thread, so that the error names
             // the first such row in order, as one thread does.
-            return self.factor_with(structure, false);
+            return self.factor_in_order(structure);
         }
+        let Some(top) = top else {
+            let part = Part { x: &mut self.x, next: &mut self.next, l: &mut self.l_values, column: 0, slot: 0 };
+            return rows.factor(split.top.iter().copied(), part);
+        };
+        // The block rows' entries in the two sets' columns (each set's on its own thread,
+        // within its own part of the factor), then the Schur complement shared by two threads
+        // by rows (the same operations either way), then the block.
+        let nt = top.rows.len();
+        {
+            let (x_low, x_high) = self.x.split_at_mut(mid);
+            let (next_low, next_high) = self.next.split_at_mut(mid);
+            let (l_low, l_high) = self.l_values.split_at_mut(slot);
+            let low = || rows.top_entries(top, 0, Part { x: x_low, next: next_low, l: l_low, column: 0, slot: 0 });
+            let high = || rows.top_entries(top, 1, Part { x: x_high, next: next_high, l: l_high, column: mid, slot });
+            both(two, low, high);
+        }
+        self.block.resize(nt * nt, 0.0);
+        let l = &mut self.l_values;
+        {
+            let (s_low, s_high) = self.block.split_at_mut(top.mid_schur * nt);
+            let l = &*l;
+            let low = || rows.schur_rows(top, 0..top.mid_schur, s_low, l);
+            let high = || rows.schur_rows(top, top.mid_schur..nt, s_high, l);
+            both(two, low, high);
+        }
+        use faer::linalg::cholesky::llt::factor::{cholesky_in_place, cholesky_in_place_scratch, LltRegularization};
+        let scratch = cholesky_in_place_scratch::<f64>(nt, Par::Seq, Default::default());
+        if self.block_mem.len() < scratch.unaligned_bytes_required() {
+            self.block_mem = MemBuffer::new(scratch);
+        }
+        let block = MatMut::from_row_major_slice_mut(&mut self.block, nt, nt);
+        let dense = cholesky_in_place(
+            block,
+            LltRegularization::default(),
+            Par::Seq,
+            MemStack::new(&mut self.block_mem),
+            Default::default(),
+        );
+        let l_ptr = structure.symbolic.col_ptr();
+        let mut positive = dense.is_ok();
+        let mut places = &top.column_places[..];
+        for (t, &c) in top.rows.iter().enumerate() {
+            let (a, b) = (l_ptr[c as usize] as usize, l_ptr[c as usize + 1] as usize);
+            let (these, rest) = places.split_at(b - a);
+            places = rest;
+            for (&p, v) in these.iter().zip(&mut self.l_values[a..b]) {
+                *v = self.block[usize::from(p) * nt + t];
+            }
+            let d = self.l_values[a];
+            positive &= d.is_finite() && d > 0.0;
+        }
+        if !positive {
+            return self.factor_in_order(structure);
+        }
+        Ok(())
+    }
+
+    /// The factorization of every row in order, on this thread, by the up-looking algorithm
+    /// (faer's own where the schedule keeps no reach for the block rows of a dense top): it
+    /// names the first pivot that is not positive, as faer does.
+    fn factor_in_order(&mut self, structure: &Structure) -> Result<(), NotPositive> {
+        let schedule = self.schedule.clone().expect("made by the factorization that failed");
+        if schedule.top.is_some() {
+            return self.factor_by_faer(structure);
+        }
+        let n = structure.n;
+        self.x.clear();
+        self.x.resize(n, 0.0);
+        self.next.clear();
+        self.next.extend_from_slice(&structure.symbolic.col_ptr()[..n]);
+        let rows = Rows { structure, schedule: &schedule, values: &self.values };
         let part = Part { x: &mut self.x, next: &mut self.next, l: &mut self.l_values, column: 0, slot: 0 };
-        rows.factor(split.top.iter().copied(), part)
+        rows.factor(0..n as u32, part)
     }
 
     /// Numeric factorization of `values` by faer's own simplicial routine (the reference the
-    /// scheduled one is tested against).
-    #[cfg(test)]
+    /// scheduled one is tested against, and what names the pivot that is not positive where
+    /// the schedule has a dense top).
     pub(crate) fn factor_by_faer(&mut self, structure: &Structure) -> Result<(), NotPositive> {
         use faer::linalg::cholesky::llt::factor::LltRegularization;
         use faer::sparse::{linalg::cholesky::simplicial, SparseColMatRef};
@@ -417,7 +732,9 @@ impl Factor {
             a,
             LltRegularization::default(),
             &structure.symbolic,
-            MemStack::new(&mut self.mem),
+            MemStack::new(&mut MemBuffer::new(simplicial::factorize_simplicial_numeric_llt_scratch::<u32, f64>(
+                structure.n,
+            ))),
         )
         .map(|_| ())
         .map_err(|e| match e {
@@ -527,5 +844,55 @@ mod tests {
             one.values[slot] = kept;
             two.values[slot] = kept;
         }
+    }
+
+    /// Where the rows above the split are factored as a dense block (1e5 junctions): every
+    /// entry outside the block's columns is faer's to the last bit (the same operations), the
+    /// block's within round-off of faer's (another order of the same sums), the solution of a
+    /// system likewise; one thread and two give the same factor to the last bit.
+    #[test]
+    fn the_dense_top_block_is_faers_factor_to_round_off() {
+        let m = generate(&NetworkSpec::new(100_000, 7)).unwrap();
+        let mut solver = Solver::new(&m).unwrap();
+        solver.solve(&m, &Conditions::from_model(&m), &SolveOptions::from_model(&m)).unwrap();
+        let structure = solver.structure.clone();
+        let mut ours = solver.factor.clone();
+        let mut theirs = solver.factor.clone();
+        ours.factor_with(&structure, false).unwrap();
+        let schedule = ours.schedule.clone().unwrap();
+        let top = schedule.top.as_ref().expect("a dense top at 1e5 junctions");
+        assert!(top.rows.len() > 50, "{} rows in the block", top.rows.len());
+        theirs.factor_by_faer(&structure).unwrap();
+        let l_ptr = structure.symbolic.col_ptr();
+        let (mut outside, mut inside, mut worst) = (0, 0, 0.0f64);
+        for j in 0..structure.n {
+            let (a, b) = (l_ptr[j] as usize, l_ptr[j + 1] as usize);
+            let scale = theirs.l_values()[a].abs();
+            for s in a..b {
+                let (x, y) = (ours.l_values()[s], theirs.l_values()[s]);
+                if top.has(j as u32) {
+                    inside += 1;
+                    worst = worst.max((x - y).abs() / scale);
+                } else {
+                    outside += 1;
+                    assert_eq!(x.to_bits(), y.to_bits(), "column {j} slot {s}: {x} against faer's {y}");
+                }
+            }
+        }
+        assert!(inside > 1000 && outside > 100_000);
+        assert!(worst < 1e-12, "block entries off by {worst:e} of their diagonal");
+        // A solve with each factor.
+        let rhs: Vec<f64> = (0..structure.n).map(|i| ((i * 7919) % 1000) as f64 / 100.0 - 5.0).collect();
+        let (mut a, mut b) = (rhs.clone(), rhs);
+        ours.solve(&structure, &mut a);
+        theirs.solve(&structure, &mut b);
+        let norm = b.iter().fold(0.0f64, |m, v| m.max(v.abs()));
+        let off = a.iter().zip(&b).fold(0.0f64, |m, (x, y)| m.max((x - y).abs()));
+        assert!(off <= 1e-10 * norm, "solutions differ by {off:e} (largest value {norm:e})");
+        // Two threads: the same factor to the last bit.
+        let mut two = solver.factor.clone();
+        let pool = rayon::ThreadPoolBuilder::new().num_threads(2).build().unwrap();
+        pool.install(|| two.factor_with(&structure, true)).unwrap();
+        assert!(ours.l_values().iter().zip(two.l_values()).all(|(a, b)| a.to_bits() == b.to_bits()));
     }
 }

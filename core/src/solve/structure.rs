@@ -182,11 +182,6 @@ fn kept_nodes(model: &Model) -> Vec<bool> {
     }
 }
 
-/// Scratch size of the numeric factorization and solve for an `n`-unknown matrix.
-pub fn numeric_scratch(n: usize) -> StackReq {
-    simplicial::factorize_simplicial_numeric_llt_scratch::<u32, f64>(n)
-}
-
 impl Structure {
     /// Analyses the structure of `model`; `None` when the matrix or its factor would have more
     /// entries than 32-bit indices can number (some four thousand million, far beyond any
