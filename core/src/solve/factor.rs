@@ -807,6 +807,16 @@ mod tests {
     use crate::generate::{generate, NetworkSpec};
     use crate::solve::{Conditions, SolveOptions, Solver};
 
+    /// A solver that has solved the generated network of `junctions` (seed 7), and its
+    /// structure.
+    fn solved(junctions: usize) -> (Solver, std::sync::Arc<super::Structure>) {
+        let m = generate(&NetworkSpec::new(junctions, 7)).unwrap();
+        let mut solver = Solver::new(&m).unwrap();
+        solver.solve(&m, &Conditions::from_model(&m), &SolveOptions::from_model(&m)).unwrap();
+        let structure = solver.structure.clone();
+        (solver, structure)
+    }
+
     /// The scheduled factorization gives faer's factor to the last bit (the same operations in
     /// the same order), on the matrices of a generated network's solve and on a matrix that is
     /// not positive definite (the same pivot reported).
@@ -845,10 +855,7 @@ mod tests {
     /// both, is the one the single thread names.
     #[test]
     fn two_threads_factor_as_one_does() {
-        let m = generate(&NetworkSpec::new(100_000, 7)).unwrap();
-        let mut solver = Solver::new(&m).unwrap();
-        solver.solve(&m, &Conditions::from_model(&m), &SolveOptions::from_model(&m)).unwrap();
-        let structure = solver.structure.clone();
+        let (solver, structure) = solved(100_000);
         let mut one = solver.factor.clone();
         let mut two = solver.factor.clone();
         // The rows above the split one by one, as without a dense top (see
@@ -899,10 +906,7 @@ mod tests {
     /// system likewise; one thread and two give the same factor to the last bit.
     #[test]
     fn the_dense_top_block_is_faers_factor_to_round_off() {
-        let m = generate(&NetworkSpec::new(100_000, 7)).unwrap();
-        let mut solver = Solver::new(&m).unwrap();
-        solver.solve(&m, &Conditions::from_model(&m), &SolveOptions::from_model(&m)).unwrap();
-        let structure = solver.structure.clone();
+        let (solver, structure) = solved(100_000);
         let mut ours = solver.factor.clone();
         let mut theirs = solver.factor.clone();
         ours.factor_with(&structure, false).unwrap();
