@@ -186,11 +186,7 @@ impl Solver {
                 _ => None,
             };
         let (values, rhs) = (&mut self.factor.values, &mut self.rhs);
-        #[cfg(test)]
-        let one_thread = ONE_THREAD_PASS.with(|c| c.get());
-        #[cfg(not(test))]
-        let one_thread = false;
-        if one_thread || structure.core.len() < PARALLEL_LINKS {
+        if one_thread_pass() || structure.core.len() < PARALLEL_LINKS {
             let states = self.hot.iter().zip(&self.mode).zip(self.cq.iter_mut().zip(&mut self.cp).zip(&mut self.cc));
             for (c, ((hot, &mode), ((cq, cp), cc))) in structure.core.iter().zip(states) {
                 let Some((on_law, q)) = step(c, hot, mode, cq, cp, cc) else { continue };
@@ -343,12 +339,21 @@ impl Solver {
 /// `Solver::update_links`): a generated network of 1e5 junctions has some 78,000, one of 1e6
 /// some 790,000. At 1e6 the pass took 217–220 ms of the nine iterations on one thread, 155–164
 /// ms on two.
-const PARALLEL_LINKS: usize = 50_000;
+pub(super) const PARALLEL_LINKS: usize = 50_000;
 
 #[cfg(test)]
 thread_local! {
-    /// Tests: the pass on one thread whatever the network's size.
+    /// Tests: the pass on one thread whatever the network's size (and the solve on the calling
+    /// thread, where this is set: see `awake`).
     static ONE_THREAD_PASS: std::cell::Cell<bool> = const { std::cell::Cell::new(false) };
+}
+
+/// Whether the links' pass is kept on one thread (tests only).
+pub(super) fn one_thread_pass() -> bool {
+    #[cfg(test)]
+    return ONE_THREAD_PASS.with(|c| c.get());
+    #[cfg(not(test))]
+    false
 }
 
 /// Exact head loss and slope at flow `q` of the core link `link` with mode byte `mode` and hot

@@ -248,7 +248,7 @@ impl DenseTop {
 
 /// Least factor size (entries) for which the rows are shared by two threads: below it a
 /// factorization takes well under a millisecond, and the threads' start costs more than it saves.
-const SPLIT_MIN_ENTRIES: usize = 200_000;
+pub(super) const SPLIT_MIN_ENTRIES: usize = 200_000;
 
 /// Least share of the work in the two sets of subtrees for a split to be made.
 const SPLIT_MIN_SHARE: f64 = 0.2;

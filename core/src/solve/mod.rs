@@ -86,6 +86,7 @@
 //! answer.
 
 mod assemble;
+mod awake;
 pub mod batch;
 mod chord;
 pub mod conditions;
@@ -304,6 +305,10 @@ impl Solver {
     /// core while this one analyses (the ordering, a quarter of a first solve of a large
     /// network, is one thread's work). The solver comes back once the analysis is done (for its
     /// [`Solver::timings`]); its `preparation` time counts what was left after the analysis.
+    ///
+    /// A large network (50,000 links or more) is analysed and solved on a worker of rayon's
+    /// pool while a second worker waits for its shares of the work without sleeping (see the
+    /// `awake` module); the calling thread waits for it.
     pub fn analyse_and_solve_once(model: &Model) -> (Option<Solver>, Result<Solution, SolveError>) {
         if let Err(e) = model.validate() {
             return (None, Err(e.into()));
@@ -314,6 +319,17 @@ impl Solver {
             fill_laws(&mut laws, model.links().len(), |k| LinkLaw::of_model_link(model, k, &water));
             (Conditions::from_model_without_law_inputs(model), laws)
         };
+        // The analysis's own shares of work (see `awake`) from the model's size, as the structure
+        // is not known yet.
+        let large = model.links().len() >= assemble::PARALLEL_LINKS;
+        awake::with_second_worker_awake(large, || Self::analyse_and_finish_once(model, prepare))
+    }
+
+    /// [`Solver::analyse_and_solve_once`] after the validation.
+    fn analyse_and_finish_once(
+        model: &Model,
+        prepare: impl Fn() -> (Conditions, Vec<LinkLaw>) + Copy + Send,
+    ) -> (Option<Solver>, Result<Solution, SolveError>) {
         // The analysis on this thread: its temporaries, freed here, are room for the iteration's
         // arrays (freed on a helper thread they stayed resident in its heap: +13 MB at the peak
         // of a million junctions). Without a helper thread, one after the other.
@@ -430,7 +446,9 @@ impl Solver {
     fn finish_once(&mut self, model: &Model, conditions: &Conditions, start: Instant) -> Result<Solution, SolveError> {
         let options = SolveOptions::from_model(model);
         self.one_off = true;
-        let result = self.run(model, conditions, &options, start);
+        let result = awake::with_second_worker_awake(awake::shares_work(&self.structure), || {
+            self.run(model, conditions, &options, start)
+        });
         self.one_off = false;
         result
     }
@@ -439,6 +457,10 @@ impl Solver {
     /// solver last saw these conditions are rebuilt; nothing of the model is validated again
     /// ([`Solver::new`] and the setters of [`Conditions`] did it), but a model whose structure no
     /// longer fits the analysis is analysed (and validated) afresh.
+    ///
+    /// Where the solve shares work between two threads (a large network), it runs on a worker of
+    /// rayon's pool with a second worker awake (see the `awake` module), unless the caller is
+    /// one of the pool's workers already; the answer is the same to the last bit.
     pub fn solve(
         &mut self,
         model: &Model,
@@ -446,7 +468,9 @@ impl Solver {
         options: &SolveOptions,
     ) -> Result<Solution, SolveError> {
         let start = self.prepare(model, conditions, false)?;
-        self.run(model, conditions, options, start)
+        awake::with_second_worker_awake(awake::shares_work(&self.structure), || {
+            self.run(model, conditions, options, start)
+        })
     }
 
     /// The first part of a solve: checks that `conditions` and the analysis fit `model`, makes
