@@ -1,9 +1,8 @@
 //! A second worker kept awake while a large network is solved.
 //!
-//! A large network's solve shares its work between two threads many times per iteration: the
-//! links' pass in two halves (`assemble`), the factorization's two sets of subtrees, the rows of
-//! its dense top block and their Schur complement (`factor`), the scatter beside the symbolic
-//! factorization (`structure`). Each share lasts a fraction of a millisecond to a few
+//! A large network's solve shares its work between two threads several times per iteration:
+//! the links' pass in two halves (`assemble`), the factorization's two sets of subtrees, the
+//! rows of its dense top block and their Schur complement (`factor`). Each share lasts a fraction of a millisecond to a few
 //! milliseconds, and between them the second thread has nothing to do, so rayon's worker goes
 //! to sleep. On the virtual machines this program is measured on, waking it again took as long
 //! as the share itself: traced at 1e5 junctions, the second half of the factorization often
@@ -16,8 +15,9 @@
 //! other thread that wants it (`sched_yield`) when there is none. This is the active wait that
 //! parallel runtimes commonly use for short parallel regions (the OpenMP standard's
 //! `OMP_WAIT_POLICY=active`, for instance). Measured at 1e5 junctions (`--timings`, alternately,
-//! 5 December 2026): analysis 32–36 → 27–29 ms, assembly 14–17 → 11 ms, factorization 34–43 →
-//! 26 ms, the whole `solve` 0.22–0.24 → 0.20–0.21 s, for some 20–40 ms more processor time.
+//! 5 December 2026): assembly 14–17 → 11 ms, factorization 34–43 → 26 ms (nine iterations),
+//! the whole `solve` 0.23–0.24 → 0.20–0.22 s, for some 20–40 ms more processor time. At 1e6
+//! junctions, whose shares last tens of milliseconds, it changes nothing measurable.
 //!
 //! It applies only where the work is shared at all (a large network, see the callers), when
 //! the pool has two threads or more, and when the caller is not already one of the pool's

@@ -306,9 +306,8 @@ impl Solver {
     /// network, is one thread's work). The solver comes back once the analysis is done (for its
     /// [`Solver::timings`]); its `preparation` time counts what was left after the analysis.
     ///
-    /// A large network (50,000 links or more) is analysed and solved on a worker of rayon's
-    /// pool while a second worker waits for its shares of the work without sleeping (see the
-    /// `awake` module); the calling thread waits for it.
+    /// The iteration of a large network runs as [`Solver::solve`]'s does (see the `awake`
+    /// module); the analysis stays on the calling thread, beside its helper.
     pub fn analyse_and_solve_once(model: &Model) -> (Option<Solver>, Result<Solution, SolveError>) {
         if let Err(e) = model.validate() {
             return (None, Err(e.into()));
@@ -319,17 +318,6 @@ impl Solver {
             fill_laws(&mut laws, model.links().len(), |k| LinkLaw::of_model_link(model, k, &water));
             (Conditions::from_model_without_law_inputs(model), laws)
         };
-        // The analysis's own shares of work (see `awake`) from the model's size, as the structure
-        // is not known yet.
-        let large = model.links().len() >= assemble::PARALLEL_LINKS;
-        awake::with_second_worker_awake(large, || Self::analyse_and_finish_once(model, prepare))
-    }
-
-    /// [`Solver::analyse_and_solve_once`] after the validation.
-    fn analyse_and_finish_once(
-        model: &Model,
-        prepare: impl Fn() -> (Conditions, Vec<LinkLaw>) + Copy + Send,
-    ) -> (Option<Solver>, Result<Solution, SolveError>) {
         // The analysis on this thread: its temporaries, freed here, are room for the iteration's
         // arrays (freed on a helper thread they stayed resident in its heap: +13 MB at the peak
         // of a million junctions). Without a helper thread, one after the other.
