@@ -278,3 +278,24 @@ fn junction_laws_follow_the_data() {
     assert!((d2.base + d2.scale - 20.0).abs() < 1e-12);
     assert!(l2.outlet.is_some() && l1.outlet.is_none());
 }
+
+/// The messages give pressures in the model's own unit, as the file wrote them, not in the
+/// metres of head the library works in.
+#[test]
+fn refused_pressures_are_stated_in_the_models_unit() {
+    let kpa = format!("[units]\npressure = \"kPa\"\n\n{}", &BASE[BASE.find("[pressure_demand]").unwrap()..]);
+    let kpa = kpa.replacen("full_pressure = 20.0", "full_pressure = 150.0", 1).replacen(
+        "zero_pressure = 2.0",
+        "zero_pressure = 200.0",
+        1,
+    );
+    let f = refused("kpa-table.toml", &kpa, "[pressure_demand]", "full_pressure");
+    assert!(f.contains("(150 <= 200 kPa)"), "{f}");
+    let kpa = kpa.replacen("zero_pressure = 200.0", "zero_pressure = 20.0", 1).replacen(
+        "full_pressure = 15.0",
+        "full_pressure = 10.0",
+        1,
+    );
+    let f = refused("kpa-node.toml", &kpa, "node 'J1'", "full_pressure");
+    assert!(f.contains("full_pressure (10 kPa) must be above zero_pressure (20 kPa)"), "{f}");
+}

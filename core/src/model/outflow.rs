@@ -206,6 +206,16 @@ impl OutflowData {
     /// Checks the whole: overrides only with `[pressure_demand]`, per-pipe rates only with
     /// `[background_leakage]`, attachments on junctions and pipes, and full above zero pressure per junction.
     pub fn check(&self, model: &Model) -> Result<(), ModelError> {
+        // Pressures in messages are given in the model's own unit, as the file wrote them.
+        let density = model.options.water_properties().density;
+        // Six decimals at most: the value converted back from head may differ from the
+        // written one in its last bits (10 kPa came back as 9.999999999999998).
+        let pressure = |head: f64| {
+            let unit = model.units.pressure;
+            let text = format!("{:.6}", unit.from_head(head, density));
+            let text = if text.contains('.') { text.trim_end_matches('0').trim_end_matches('.') } else { &text };
+            format!("{text} {}", unit.label())
+        };
         for (&i, j) in &self.junctions {
             let node = model.nodes().get(i).ok_or_else(|| ModelError::new(format!("no node at index {i}")))?;
             let element = || Some(Element::Node(node.id.to_string()));
@@ -237,8 +247,9 @@ impl OutflowData {
                         element(),
                         Some(key),
                         format!(
-                            "full_pressure ({} m of head) must be above zero_pressure ({} m of head)",
-                            v.full_pressure, v.zero_pressure
+                            "full_pressure ({}) must be above zero_pressure ({})",
+                            pressure(v.full_pressure),
+                            pressure(v.zero_pressure)
                         ),
                     ));
                 }
@@ -263,7 +274,11 @@ impl OutflowData {
                 return Err(ModelError::at(
                     Some(Element::Table("pressure_demand".into())),
                     Some("full_pressure"),
-                    format!("must be above zero_pressure ({} <= {} m of head)", pd.full_pressure, pd.zero_pressure),
+                    format!(
+                        "must be above zero_pressure ({} <= {})",
+                        pressure(pd.full_pressure),
+                        pressure(pd.zero_pressure)
+                    ),
                 ));
             }
         }
