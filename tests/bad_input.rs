@@ -447,3 +447,23 @@ fn negative_demand_factor_and_absurd_reynolds_number_exit_2() {
         assert!(out.stdout.is_empty());
     }
 }
+
+/// Values compared in a message are in the model's own units, as the file wrote them (a tank in
+/// feet said "1.524 < 3.048 m" before; `pressure_input.rs` checks the pressures' messages).
+#[test]
+fn compared_values_are_stated_in_the_models_units() {
+    let tank = |level: &str| {
+        format!(
+            "title = \"tank in feet\"\n[units]\nlength = \"ft\"\nflow = \"gpm\"\n\n[[nodes]]\nid = \"T1\"\nkind = \"tank\"\n\
+             elevation = 100.0\n{level}\nmin_level = 10.0\nmax_level = 30.0\ndiameter = 40.0\n\n[[nodes]]\nid = \"J1\"\n\
+             elevation = 50.0\ndemand = 10.0\n\n[[links]]\nid = \"P1\"\nfrom = \"T1\"\nto = \"J1\"\nlength = 500.0\n\
+             diameter = 8\nroughness = 120\n"
+        )
+    };
+    let low = bad("tank-low.toml", &tank("level = 5.0"));
+    names(&low, "tank-low.toml", "node 'T1'", "level");
+    assert!(low.first_line.contains("is below min_level (5 < 10 ft)"), "{}", low.first_line);
+    let high = bad("tank-high.toml", &tank("level = 40.0"));
+    names(&high, "tank-high.toml", "node 'T1'", "level");
+    assert!(high.first_line.contains("is above max_level (40 > 30 ft)"), "{}", high.first_line);
+}

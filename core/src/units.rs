@@ -377,6 +377,18 @@ impl Converter {
     }
 }
 
+/// A value in a message, in the unit the model file wrote it: at most six decimals, trailing
+/// zeros dropped (a value converted back from SI may differ from the written one in its last
+/// bits: 10 kPa came back as 9.999999999999998).
+pub fn shown(value: f64) -> String {
+    let text = format!("{value:.6}");
+    if text.contains('.') {
+        text.trim_end_matches('0').trim_end_matches('.').to_owned()
+    } else {
+        text
+    }
+}
+
 /// The suggestion of an error message for a misspelt name: ` (did you mean 'x'?)` with the
 /// closest accepted name (see [`suggest`]), or an empty string when none is close. `quote` is
 /// the quotation mark the message uses around names (`'` or `"`).

@@ -21,7 +21,7 @@ use crate::error::{Element, ModelError};
 use crate::physics::fittings::{Fitting, FittingKind, FittingsMethod};
 use crate::physics::pump::{Efficiency, HeadCurve};
 use crate::physics::WaterProperties;
-use crate::units::{Converter, Quantity, UnitSystem};
+use crate::units::{shown, Converter, LengthUnit, Quantity, UnitSystem};
 use index::{IdIndex, Insert, ReleasableIndex};
 use std::collections::BTreeMap;
 
@@ -816,7 +816,8 @@ impl Model {
     }
 
     /// Checks one node's values (used when adding and after changes).
-    fn check_node(node: &Node) -> Result<(), ModelError> {
+    /// Values in messages are in `length`, the model's unit of lengths, as the file wrote them.
+    fn check_node(node: &Node, length: LengthUnit) -> Result<(), ModelError> {
         check_id(&node.id, node)?;
         if let NodeKind::Reservoir { head } = &node.kind {
             // Checked first: a reservoir's elevation defaults to its head.
@@ -844,7 +845,12 @@ impl Model {
                     return Err(ModelError::at(
                         Some(node.element()),
                         Some("level"),
-                        format!("is below min_level ({} < {} m)", t.level, t.min_level),
+                        format!(
+                            "is below min_level ({} < {} {})",
+                            shown(length.from_si(t.level)),
+                            shown(length.from_si(t.min_level)),
+                            length.label()
+                        ),
                     ));
                 }
                 if let Some(max) = t.max_level {
@@ -856,7 +862,12 @@ impl Model {
                         return Err(ModelError::at(
                             Some(node.element()),
                             Some("level"),
-                            format!("is above max_level ({} > {} m)", t.level, max),
+                            format!(
+                                "is above max_level ({} > {} {})",
+                                shown(length.from_si(t.level)),
+                                shown(length.from_si(max)),
+                                length.label()
+                            ),
                         ));
                     }
                 }
@@ -955,7 +966,7 @@ impl Model {
 
     /// Adds a node after checking its values; returns its index.
     pub fn add_node(&mut self, node: Node) -> Result<usize, ModelError> {
-        Self::check_node(&node)?;
+        Self::check_node(&node, self.units.length)?;
         let index = self.nodes.len();
         let nodes = &self.nodes;
         let ids = self.node_index.get_mut(index, |k| &nodes[k].id);
@@ -1000,7 +1011,7 @@ impl Model {
     /// and made again at the next lookup (as after [`Model::release_id_index`]), so that a
     /// million additions do not each probe an index far larger than the caches.
     pub(crate) fn add_node_with_new_id(&mut self, node: Node) -> Result<usize, ModelError> {
-        Self::check_node(&node)?;
+        Self::check_node(&node, self.units.length)?;
         let index = self.nodes.len();
         if u32::try_from(index).is_err() {
             return Err(ModelError::at(Some(node.element()), None, "too many nodes in one model"));
@@ -1056,7 +1067,7 @@ impl Model {
         if old.id != node.id {
             return Err(ModelError::at(Some(old.element()), Some("id"), "cannot be changed"));
         }
-        Self::check_node(&node)?;
+        Self::check_node(&node, self.units.length)?;
         self.nodes[index] = node;
         Ok(())
     }
@@ -1160,11 +1171,12 @@ impl Model {
     ) -> Result<(), ModelError> {
         let mut undo: Vec<(usize, T)> = Vec::new();
         let mut failure = None;
+        let length = self.units.length;
         for (i, node) in self.nodes.iter_mut().enumerate() {
             match change(i, node) {
                 Ok(Some(old)) => {
                     undo.push((i, old));
-                    if let Err(e) = Self::check_node(node) {
+                    if let Err(e) = Self::check_node(node, length) {
                         failure = Some(e);
                         break;
                     }

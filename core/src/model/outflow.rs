@@ -208,13 +208,9 @@ impl OutflowData {
     pub fn check(&self, model: &Model) -> Result<(), ModelError> {
         // Pressures in messages are given in the model's own unit, as the file wrote them.
         let density = model.options.water_properties().density;
-        // Six decimals at most: the value converted back from head may differ from the
-        // written one in its last bits (10 kPa came back as 9.999999999999998).
         let pressure = |head: f64| {
             let unit = model.units.pressure;
-            let text = format!("{:.6}", unit.from_head(head, density));
-            let text = if text.contains('.') { text.trim_end_matches('0').trim_end_matches('.') } else { &text };
-            format!("{text} {}", unit.label())
+            format!("{} {}", crate::units::shown(unit.from_head(head, density)), unit.label())
         };
         for (&i, j) in &self.junctions {
             let node = model.nodes().get(i).ok_or_else(|| ModelError::new(format!("no node at index {i}")))?;
