@@ -2,9 +2,9 @@
 //!
 //! A large network's solve shares its work between two threads several times per iteration:
 //! the links' pass in two halves (`assemble`), the factorization's two sets of subtrees, the
-//! rows of its dense top block and their Schur complement (`factor`). Each share lasts a fraction of a millisecond to a few
-//! milliseconds, and between them the second thread has nothing to do, so rayon's worker goes
-//! to sleep. On the virtual machines this program is measured on, waking it again took as long
+//! rows of its dense top block and their Schur complement (`factor`). Each share lasts a
+//! fraction of a millisecond to a few milliseconds, and between them the second thread has
+//! nothing to do, so rayon's worker goes to sleep. On the virtual machines this program is measured on, waking it again took as long
 //! as the share itself: traced at 1e5 junctions, the second half of the factorization often
 //! started only when the first had ended (1.4 ms later), and two threads factored in 3.3–6.5 ms
 //! what one thread factors in 3.9 ms.
@@ -23,11 +23,12 @@
 //! the pool has two threads or more, and when the caller is not already one of the pool's
 //! workers (a fire-flow or sweep analysis solves many networks at once, one per worker: every
 //! core is busy already). A caller outside the pool waits for a worker to take the solve, as
-//! its shares already waited for workers to take them before. The answer is the same to the last bit either way: which thread does
-//! a share changes nothing in it (`the_links_pass_on_two_threads_is_the_one_thread_pass`
-//! compares a large network's solve through here with one on the calling thread, the links'
-//! pass on one thread; `two_threads_factor_as_one_does` the factorization's). Measured on the
-//! same binary, the 1e5 and 1e6 results are byte-identical with and without it.
+//! its shares already waited for workers to take them before. The answer is the same to the
+//! last bit either way: which thread does a share changes nothing in it
+//! (`the_links_pass_on_two_threads_is_the_one_thread_pass` compares a large network's solve
+//! through here with one on the calling thread, the links' pass on one thread;
+//! `two_threads_factor_as_one_does` the factorization's). Measured on the same binary, the 1e5
+//! and 1e6 results are byte-identical with and without it.
 
 use super::structure::Structure;
 use std::sync::atomic::{AtomicBool, Ordering};
