@@ -4,10 +4,10 @@
 //! the links' pass in two halves (`assemble`), the factorization's two sets of subtrees, the
 //! rows of its dense top block and their Schur complement (`factor`). Each share lasts a
 //! fraction of a millisecond to a few milliseconds, and between them the second thread has
-//! nothing to do, so rayon's worker goes to sleep. On the virtual machines this program is measured on, waking it again took as long
-//! as the share itself: traced at 1e5 junctions, the second half of the factorization often
-//! started only when the first had ended (1.4 ms later), and two threads factored in 3.3–6.5 ms
-//! what one thread factors in 3.9 ms.
+//! nothing to do, so rayon's worker goes to sleep. On the virtual machines this program is
+//! measured on, waking it again took as long as the share itself: traced at 1e5 junctions, the
+//! second half of the factorization often started only when the first had ended (1.4 ms
+//! later), and two threads factored in 3.3–6.5 ms what one thread factors in 3.9 ms.
 //!
 //! [`with_second_worker_awake`] runs a solve on a worker of rayon's pool while a job on another
 //! worker waits for work by polling rather than sleeping: it runs every job it can take
