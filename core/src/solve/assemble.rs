@@ -185,49 +185,54 @@ impl Solver {
                 MODE_FIXED_FLOW => Some((None, cq.abs())),
                 _ => None,
             };
-        let (values, rhs) = (&mut self.factor.values, &mut self.rhs);
-        if one_thread_pass() || structure.core.len() < PARALLEL_LINKS {
-            let states = self.hot.iter().zip(&self.mode).zip(self.cq.iter_mut().zip(&mut self.cp).zip(&mut self.cc));
-            for (c, ((hot, &mode), ((cq, cp), cc))) in structure.core.iter().zip(states) {
+        // The links of `range` through `step`, their sums added to `sums` (|Δq|, |q|, the
+        // largest energy residual) in link order, and each link's part of the matrix scattered
+        // when `matrix` is given.
+        type Matrix<'m> = Option<(&'m mut [f64], &'m mut [f64])>;
+        let pass = |range: std::ops::Range<usize>,
+                    cq: &mut [f64],
+                    cp: &mut [f64],
+                    cc: &mut [f64],
+                    mut sums: (f64, f64, f64),
+                    mut matrix: Matrix| {
+            let links = structure.core[range.clone()].iter().zip(&self.hot[range.clone()]).zip(&self.mode[range]);
+            for (((c, hot), &mode), ((cq, cp), cc)) in links.zip(cq.iter_mut().zip(cp).zip(cc)) {
                 let Some((on_law, q)) = step(c, hot, mode, cq, cp, cc) else { continue };
                 if let Some((dq, r)) = on_law {
-                    residual = residual.max(r);
-                    sum_dq += dq;
+                    sums.2 = sums.2.max(r);
+                    sums.0 += dq;
                 }
-                sum_q += q;
-                scatter_link(values, rhs, c, mode, *cp, *cc);
+                sums.1 += q;
+                if let Some((values, rhs)) = &mut matrix {
+                    scatter_link(values, rhs, c, mode, *cp, *cc);
+                }
             }
+            sums
+        };
+        let n_core = structure.core.len();
+        let matrix = (&mut self.factor.values[..], &mut self.rhs[..]);
+        if one_thread_pass() || n_core < PARALLEL_LINKS {
+            let sums = (sum_dq, sum_q, residual);
+            (sum_dq, sum_q, residual) = pass(0..n_core, &mut self.cq, &mut self.cp, &mut self.cc, sums, Some(matrix));
         } else {
             // A large network: the links' laws in two halves on two threads (the flows and
             // slopes are the same; the sums are added half by half), then the matrix filled in
             // link order as above (the same values to the last bit).
-            let half = structure.core.len() / 2;
-            let pass = |range: std::ops::Range<usize>, cq: &mut [f64], cp: &mut [f64], cc: &mut [f64]| {
-                let (mut sum_dq, mut sum_q, mut residual) = (0.0, 0.0, 0.0f64);
-                let links = structure.core[range.clone()].iter().zip(&self.hot[range.clone()]).zip(&self.mode[range]);
-                for (((c, hot), &mode), ((cq, cp), cc)) in links.zip(cq.iter_mut().zip(cp).zip(cc)) {
-                    if let Some((on_law, q)) = step(c, hot, mode, cq, cp, cc) {
-                        if let Some((dq, r)) = on_law {
-                            residual = residual.max(r);
-                            sum_dq += dq;
-                        }
-                        sum_q += q;
-                    }
-                }
-                (sum_dq, sum_q, residual)
-            };
+            let half = n_core / 2;
             let (cq_low, cq_high) = self.cq.split_at_mut(half);
             let (cp_low, cp_high) = self.cp.split_at_mut(half);
             let (cc_low, cc_high) = self.cc.split_at_mut(half);
+            let zero = (0.0, 0.0, 0.0);
             let (low, high) = rayon::join(
-                || pass(0..half, cq_low, cp_low, cc_low),
-                || pass(half..structure.core.len(), cq_high, cp_high, cc_high),
+                || pass(0..half, cq_low, cp_low, cc_low, zero, None),
+                || pass(half..n_core, cq_high, cp_high, cc_high, zero, None),
             );
             for (dq, q, r) in [low, high] {
                 residual = residual.max(r);
                 sum_dq += dq;
                 sum_q += q;
             }
+            let (values, rhs) = matrix;
             for (i, c) in structure.core.iter().enumerate() {
                 let mode = self.mode[i];
                 if matches!(mode & MODE_MASK, MODE_LAW | MODE_FIXED_FLOW) {

@@ -650,11 +650,8 @@ impl Factor {
                 s
             }
         };
+        self.start_rows(structure);
         let (x, next, l) = (&mut self.x, &mut self.next, &mut self.l_values);
-        x.clear();
-        x.resize(n, 0.0);
-        next.clear();
-        next.extend_from_slice(&structure.symbolic.col_ptr()[..n]);
         let rows = Rows { structure, schedule: &schedule, values: &self.values };
         let two = parallel && rayon::current_num_threads() > 1;
         let (split, top) = match (&schedule.split, &schedule.top) {
@@ -744,14 +741,20 @@ impl Factor {
         if schedule.top.is_some() {
             return self.factor_by_faer(structure);
         }
+        self.start_rows(structure);
+        let rows = Rows { structure, schedule: &schedule, values: &self.values };
+        let part = Part { x: &mut self.x, next: &mut self.next, l: &mut self.l_values, column: 0, slot: 0 };
+        rows.factor(0..structure.n as u32, part)
+    }
+
+    /// The up-looking algorithm's state before its first row: the dense row zero, every
+    /// column's next free slot at its diagonal.
+    fn start_rows(&mut self, structure: &Structure) {
         let n = structure.n;
         self.x.clear();
         self.x.resize(n, 0.0);
         self.next.clear();
         self.next.extend_from_slice(&structure.symbolic.col_ptr()[..n]);
-        let rows = Rows { structure, schedule: &schedule, values: &self.values };
-        let part = Part { x: &mut self.x, next: &mut self.next, l: &mut self.l_values, column: 0, slot: 0 };
-        rows.factor(0..n as u32, part)
     }
 
     /// Numeric factorization of `values` by faer's own simplicial routine (the reference the
