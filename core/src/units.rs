@@ -207,6 +207,12 @@ impl PressureUnit {
             _ => head * density * GRAVITY / self.pascals().unwrap_or(1.0),
         }
     }
+
+    /// A pressure head (m of water of density `density`) in a message: in this unit, as a
+    /// model file writes it ([`shown`]), with the unit's label.
+    pub fn shown_head(self, head: f64, density: f64) -> String {
+        format!("{} {}", shown(self.from_head(head, density)), self.label())
+    }
 }
 
 impl fmt::Display for PressureUnit {

@@ -1068,25 +1068,20 @@ fn read_pressure_demand(
         f.required_number("full_pressure")?,
         crate::model::Rule::Finite,
     )?;
-    let zero_written = match f.number("zero_pressure")? {
-        Some(z) => crate::model::check_value(&el, "zero_pressure", z, crate::model::Rule::Finite)?,
-        None => units.pressure.from_head(PressureDemand::ZERO_PRESSURE, density),
+    let zero = match f.number("zero_pressure")? {
+        Some(z) => units
+            .pressure
+            .to_head(crate::model::check_value(&el, "zero_pressure", z, crate::model::Rule::Finite)?, density),
+        None => PressureDemand::ZERO_PRESSURE,
     };
-    let zero = units.pressure.to_head(zero_written, density);
     let exponent = match f.number("exponent")? {
         Some(e) => crate::model::check_value(&el, "exponent", e, crate::model::Rule::Positive)?,
         None => PressureDemand::EXPONENT,
     };
     f.finish(PRESSURE_DEMAND_KEYS)?;
-    let full_pressure = units.pressure.to_head(full, density);
-    if full_pressure <= zero {
-        return Err(ModelError::at(
-            Some(el),
-            Some("full_pressure"),
-            format!("must be above zero_pressure ({full} <= {zero_written} {})", units.pressure.label()),
-        ));
-    }
-    Ok(PressureDemand { full_pressure, zero_pressure: zero, exponent })
+    let table = PressureDemand { full_pressure: units.pressure.to_head(full, density), zero_pressure: zero, exponent };
+    table.check(units.pressure, density)?;
+    Ok(table)
 }
 
 /// Reads `[background_leakage]` (or the same table under its short name, `table`).

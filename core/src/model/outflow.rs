@@ -12,6 +12,7 @@
 use super::{Model, NodeKind};
 use crate::error::{Element, ModelError};
 use crate::physics::outflow::PowerLaw;
+use crate::units::PressureUnit;
 use std::collections::BTreeMap;
 
 /// The `[pressure_demand]` table: junction demands depend on pressure (Wagner, Shamir & Marks).
@@ -30,6 +31,23 @@ impl PressureDemand {
     pub const ZERO_PRESSURE: f64 = 0.0;
     /// Default exponent: the orifice law of the customers' connections (common practice).
     pub const EXPONENT: f64 = 0.5;
+
+    /// The table's own rule, full pressure above zero pressure, checked where a model file is
+    /// read and where a model is validated; the message gives both in `unit`, the model's.
+    pub fn check(&self, unit: PressureUnit, density: f64) -> Result<(), ModelError> {
+        if self.full_pressure <= self.zero_pressure {
+            return Err(ModelError::at(
+                Some(Element::Table("pressure_demand".into())),
+                Some("full_pressure"),
+                format!(
+                    "must be above zero_pressure ({} <= {})",
+                    crate::units::shown(unit.from_head(self.full_pressure, density)),
+                    unit.shown_head(self.zero_pressure, density)
+                ),
+            ));
+        }
+        Ok(())
+    }
 }
 
 /// An orifice to atmosphere at a junction: `q = coefficient · p^exponent` for `p > 0`.
@@ -207,11 +225,7 @@ impl OutflowData {
     /// `[background_leakage]`, attachments on junctions and pipes, and full above zero pressure per junction.
     pub fn check(&self, model: &Model) -> Result<(), ModelError> {
         // Pressures in messages are given in the model's own unit, as the file wrote them.
-        let density = model.options.water_properties().density;
-        let pressure = |head: f64| {
-            let unit = model.units.pressure;
-            format!("{} {}", crate::units::shown(unit.from_head(head, density)), unit.label())
-        };
+        let (unit, density) = (model.units.pressure, model.options.water_properties().density);
         for (&i, j) in &self.junctions {
             let node = model.nodes().get(i).ok_or_else(|| ModelError::new(format!("no node at index {i}")))?;
             let element = || Some(Element::Node(node.id.to_string()));
@@ -244,8 +258,8 @@ impl OutflowData {
                         Some(key),
                         format!(
                             "full_pressure ({}) must be above zero_pressure ({})",
-                            pressure(v.full_pressure),
-                            pressure(v.zero_pressure)
+                            unit.shown_head(v.full_pressure, density),
+                            unit.shown_head(v.zero_pressure, density)
                         ),
                     ));
                 }
@@ -265,19 +279,9 @@ impl OutflowData {
                 ));
             }
         }
-        if let Some(pd) = self.pressure_demand {
-            if pd.full_pressure <= pd.zero_pressure {
-                return Err(ModelError::at(
-                    Some(Element::Table("pressure_demand".into())),
-                    Some("full_pressure"),
-                    format!(
-                        "must be above zero_pressure ({} <= {})",
-                        pressure(pd.full_pressure),
-                        pressure(pd.zero_pressure)
-                    ),
-                ));
-            }
+        match &self.pressure_demand {
+            Some(pd) => pd.check(unit, density),
+            None => Ok(()),
         }
-        Ok(())
     }
 }
